@@ -1,0 +1,127 @@
+/**
+ * The contract of the batch monitor: what core/ returns for each spectrum, and what server/, web/
+ * and the signal channels read. Implementations live beside this file (batch-monitor.ts) and in
+ * core/envelope, core/endpoint; this file holds types only.
+ *
+ * Times are ms since the Unix epoch (UTC) unless a name says otherwise (…Min = minutes).
+ */
+
+/** Endpoint states, in order. 'signalled' is set by the server once the signal has gone out. */
+export const ENDPOINT_STATES = ['running', 'nearing', 'settling', 'done', 'signalled'] as const;
+export type EndpointState = (typeof ENDPOINT_STATES)[number];
+
+/** Conditions the monitor itself raises (on-delay / off-delay applied in core). */
+export const CONDITION_KINDS = ['t2', 'q', 'combined', 'envelope', 'property'] as const;
+export type ConditionKind = (typeof CONDITION_KINDS)[number];
+
+/** Alarm kinds known to the whole system: the monitor's conditions plus server-side ones. */
+export type AlarmKind = ConditionKind | 'stale' | 'analyzer';
+
+/** ISA-18.2 alarm states; shelving is a separate flag with an expiry. */
+export const ALARM_STATES = ['normal', 'active-unacknowledged', 'active-acknowledged', 'cleared-unacknowledged'] as const;
+export type AlarmState = (typeof ALARM_STATES)[number];
+
+export type AlarmPriority = 1 | 2 | 3 | 4; // 1 = highest
+
+export type EnvelopeStatus = 'inside' | 'above' | 'below';
+
+export interface EnvelopeCheck {
+  /** Principal component, 1-based. */
+  pc: number;
+  score: number;
+  expected: number;
+  lower: number;
+  upper: number;
+  status: EnvelopeStatus;
+  /** (score − expected) / sd at this progress point. */
+  sd: number;
+}
+
+/** A change of a monitor condition (after on-delay / off-delay). The server feeds these to the alarm life cycle. */
+export interface ConditionChange {
+  kind: ConditionKind;
+  /** e.g. 'pc1' for an envelope condition, otherwise equal to kind. */
+  key: string;
+  active: boolean;
+  /** Human-readable: what crossed which limit, by how much. */
+  message: string;
+  value: number;
+  limit: number;
+  priority: AlarmPriority;
+}
+
+export interface EndpointCriterionStatus {
+  /** 'property' | 'mbsd' | 'plateau' | 'golden-end' */
+  criterion: string;
+  met: boolean;
+  value: number | null;
+  threshold: number;
+  /** e.g. 'moisture 1.8 % w/w ≤ 2.0 % w/w' */
+  text: string;
+}
+
+export interface EndpointStatus {
+  state: EndpointState;
+  criteria: EndpointCriterionStatus[];
+  combine: 'all' | 'any';
+  confirmCount: number;
+  confirmNeeded: number;
+  /** Time to endpoint, minutes, with a spread (from the golden trajectories); null when unknown or done. */
+  etaMin: { median: number; low: number; high: number } | null;
+  /** Set once state reaches 'done': the time and seq of the spectrum that completed confirmation. */
+  doneAt: { t: number; seq: number; reason: string } | null;
+}
+
+export interface PropertyPrediction {
+  name: string; // 'moisture', 'conversion'
+  unit: string; // '% w/w', '%'
+  value: number;
+  /** The PLS X-model's own T² and Q for this spectrum, and whether the prediction extrapolates. */
+  t2: number;
+  q: number;
+  extrapolating: boolean;
+}
+
+export interface MonitorResult {
+  seq: number;
+  t: number;
+  /** Minutes since batch start. */
+  elapsedMin: number;
+  /** Batch progress on the envelope's axis: minutes, or the indicator variable's value. */
+  progress: number;
+  /** 0…1 fraction of the golden batch's course, for display. */
+  progressFraction: number;
+  scores: number[];
+  t2: number;
+  q: number;
+  combined: number;
+  limits: { t2: number; q: number; combined: number; confidence: number };
+  /** Per-progress-point limits from the envelope, when the model has them. */
+  localLimits: { t2: number; q: number } | null;
+  envelope: EnvelopeCheck[];
+  prediction: PropertyPrediction | null;
+  /** A single out-of-limit point that did not (yet) raise an alarm. */
+  suspect: boolean;
+  conditionChanges: ConditionChange[];
+  /** Conditions active after this spectrum (keys). */
+  activeConditions: string[];
+  endpoint: EndpointStatus;
+  /** Domain events caused by this spectrum, for the outbox. */
+  events: DomainEvent[];
+}
+
+/** Contributions of each variable (after preprocessing, on the model axis) for one spectrum. */
+export interface Contributions {
+  axis: number[]; // nm of the model variables
+  t2: number[]; // Westerhuis et al. 2000, sums to T²
+  q: number[]; // e_j², sums to Q
+  rbcT2: number[]; // Alcala & Qin 2009
+  rbcQ: number[];
+  /** Summed over named wavelength regions (band assignments). */
+  regions: { name: string; from: number; to: number; assignment: string; t2: number; q: number }[];
+}
+
+/** Events emitted by core for the outbox (server adds id and per-unit sequence). */
+export type DomainEvent =
+  | { type: 'endpoint-state'; from: EndpointState; to: EndpointState; t: number; seq: number; reason: string }
+  | { type: 'condition'; change: ConditionChange; t: number; seq: number };

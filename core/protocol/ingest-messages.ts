@@ -1,0 +1,197 @@
+/**
+ * Tideline ingest protocol, version 1 — message types and their validation.
+ *
+ * One WebSocket connection per analyzer at `/ingest`, authenticated at upgrade with the analyzer's
+ * token (`Authorization: Bearer <token>`). The analyzer's stream is an ordered log: every
+ * `batch-start`, spectrum and `batch-end` carries a sequence number `seq` that counts up by one
+ * within one analyzer boot epoch (`boot`, chosen by the analyzer when it starts, e.g. its start time
+ * in ms). The server persists entries in order and acks the highest contiguous persisted seq; a
+ * reconnecting analyzer sends `hello` again, reads `welcome.resumeAfter` and resends from there.
+ * Entries at or below the persisted seq are duplicates: acked again, never stored twice.
+ *
+ * Spectra travel as JSON (`type: "spectrum"`) or as binary frames (see binary-frame.ts).
+ */
+import { z } from 'zod';
+
+export const PROTOCOL_VERSION = 1;
+
+/** Upper bound on one WebSocket message, bytes (server maxPayload). */
+export const MAX_MESSAGE_BYTES = 256 * 1024;
+/** Upper bound on points in one spectrum (fits MAX_MESSAGE_BYTES as Float32 with room to spare). */
+export const MAX_SPECTRUM_POINTS = 16384;
+
+const seqSchema = z.number().int().nonnegative().max(Number.MAX_SAFE_INTEGER);
+/** Milliseconds since the Unix epoch, UTC. */
+const timeSchema = z.number().finite().nonnegative();
+const idSchema = z.string().min(1).max(128).regex(/^[A-Za-z0-9._:-]+$/, 'use letters, digits and . _ : - only');
+
+export const helloSchema = z.object({
+  type: z.literal('hello'),
+  protocol: z.literal(PROTOCOL_VERSION),
+  analyzer: idSchema,
+  boot: z.number().int().nonnegative(),
+  /** Wavelength axis in nm, strictly increasing. */
+  axis: z.array(z.number().finite()).min(2).max(MAX_SPECTRUM_POINTS),
+  /** Optional free text for the record: vendor, model, serial, firmware. */
+  instrument: z.string().max(256).optional(),
+});
+
+export const batchStartSchema = z.object({
+  type: z.literal('batch-start'),
+  seq: seqSchema,
+  t: timeSchema,
+  unit: idSchema,
+  batch: idSchema,
+  product: z.string().min(1).max(128),
+});
+
+export const batchEndSchema = z.object({
+  type: z.literal('batch-end'),
+  seq: seqSchema,
+  t: timeSchema,
+  batch: idSchema,
+  /** Why the batch ended, as the analyzer or operator saw it. */
+  reason: z.string().max(256).optional(),
+});
+
+export const spectrumJsonSchema = z.object({
+  type: z.literal('spectrum'),
+  seq: seqSchema,
+  t: timeSchema,
+  values: z.array(z.number()).min(2).max(MAX_SPECTRUM_POINTS),
+});
+
+export const analyzerMessageSchema = z.discriminatedUnion('type', [
+  helloSchema,
+  batchStartSchema,
+  batchEndSchema,
+  spectrumJsonSchema,
+]);
+
+export type HelloMessage = z.infer<typeof helloSchema>;
+export type BatchStartMessage = z.infer<typeof batchStartSchema>;
+export type BatchEndMessage = z.infer<typeof batchEndSchema>;
+export type SpectrumJsonMessage = z.infer<typeof spectrumJsonSchema>;
+export type AnalyzerMessage = z.infer<typeof analyzerMessageSchema>;
+
+/** A spectrum after decoding, whichever encoding it came in. */
+export interface SpectrumEntry {
+  type: 'spectrum';
+  seq: number;
+  /** ms since the Unix epoch, UTC */
+  t: number;
+  values: Float32Array;
+}
+
+/** One entry of the analyzer's ordered log. */
+export type LogEntry = BatchStartMessage | BatchEndMessage | SpectrumEntry;
+
+// ---- server -> analyzer ----------------------------------------------------------------------
+
+export interface WelcomeMessage {
+  type: 'welcome';
+  protocol: typeof PROTOCOL_VERSION;
+  analyzer: string;
+  boot: number;
+  /** Highest seq already persisted for this (analyzer, boot); -1 when none. Resend from resumeAfter + 1. */
+  resumeAfter: number;
+}
+
+export interface AckMessage {
+  type: 'ack';
+  /** Highest contiguous persisted seq for this (analyzer, boot). */
+  seq: number;
+}
+
+/** Stable error codes; the message text names the problem in words. */
+export const INGEST_ERROR_CODES = [
+  'bad-json',
+  'bad-message',
+  'bad-frame',
+  'unsupported-protocol',
+  'hello-required',
+  'analyzer-mismatch',
+  'axis-mismatch',
+  'wrong-length',
+  'non-finite',
+  'seq-gap',
+  'time-backwards',
+  'no-open-batch',
+  'batch-already-open',
+  'batch-mismatch',
+  'unknown-unit',
+  'too-large',
+  'rate-limited',
+  'internal',
+] as const;
+export type IngestErrorCode = (typeof INGEST_ERROR_CODES)[number];
+
+export interface ErrorMessage {
+  type: 'error';
+  code: IngestErrorCode;
+  message: string;
+  /** The seq of the offending entry, when it had one. */
+  seq?: number;
+}
+
+export type ServerToAnalyzerMessage = WelcomeMessage | AckMessage | ErrorMessage;
+
+export class IngestProtocolError extends Error {
+  constructor(
+    readonly code: IngestErrorCode,
+    message: string,
+    readonly seq?: number,
+  ) {
+    super(message);
+    this.name = 'IngestProtocolError';
+  }
+}
+
+/** Parse one text frame from an analyzer. Throws IngestProtocolError naming the problem. */
+export function parseAnalyzerText(text: string): HelloMessage | BatchStartMessage | BatchEndMessage | SpectrumEntry {
+  let raw: unknown;
+  try {
+    raw = JSON.parse(text);
+  } catch (e) {
+    throw new IngestProtocolError('bad-json', `message is not valid JSON: ${(e as Error).message}`);
+  }
+  if (raw && typeof raw === 'object' && 'type' in raw && (raw as { type: unknown }).type === 'hello') {
+    const p = (raw as { protocol?: unknown }).protocol;
+    if (p !== PROTOCOL_VERSION) {
+      throw new IngestProtocolError(
+        'unsupported-protocol',
+        `hello.protocol is ${JSON.stringify(p)}; this server speaks protocol ${PROTOCOL_VERSION}`,
+      );
+    }
+  }
+  const parsed = analyzerMessageSchema.safeParse(raw);
+  if (!parsed.success) {
+    const issue = parsed.error.issues[0]!;
+    const where = issue.path.length ? issue.path.join('.') : 'message';
+    const seq = typeof (raw as { seq?: unknown })?.seq === 'number' ? (raw as { seq: number }).seq : undefined;
+    throw new IngestProtocolError('bad-message', `${where}: ${issue.message}`, seq);
+  }
+  const m = parsed.data;
+  if (m.type === 'hello') {
+    for (let i = 1; i < m.axis.length; i++) {
+      if (!(m.axis[i]! > m.axis[i - 1]!)) {
+        throw new IngestProtocolError('bad-message', `hello.axis must increase strictly; axis[${i}] = ${m.axis[i]} follows ${m.axis[i - 1]}`);
+      }
+    }
+    return m;
+  }
+  if (m.type === 'spectrum') {
+    const values = new Float32Array(m.values.length);
+    for (let i = 0; i < values.length; i++) {
+      const v = m.values[i]!;
+      if (!Number.isFinite(v)) throw new IngestProtocolError('non-finite', `spectrum seq ${m.seq}: values[${i}] is not a finite number`, m.seq);
+      values[i] = v;
+    }
+    return { type: 'spectrum', seq: m.seq, t: m.t, values };
+  }
+  return m;
+}
+
+export function encodeSpectrumJson(seq: number, t: number, values: ArrayLike<number>): string {
+  return JSON.stringify({ type: 'spectrum', seq, t, values: Array.from(values) });
+}

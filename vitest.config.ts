@@ -1,0 +1,13 @@
+import { defineConfig } from 'vitest/config';
+
+export default defineConfig({
+  test: {
+    include: ['test/**/*.test.ts', 'test/**/*.test.tsx'],
+    environment: 'node',
+    testTimeout: 60_000,
+    hookTimeout: 120_000,
+    // Integration tests start child-process servers on loopback ports; keep files apart.
+    fileParallelism: true,
+    maxWorkers: 2,
+  },
+});
