@@ -1,0 +1,411 @@
+/**
+ * Tideline REST API, version 1 — the JSON shapes the server returns and accepts.
+ *
+ * Types only (no I/O). The server (server/) produces these; the dashboard (web/) reads them.
+ * Rule for changes: add fields, never rename or remove them.
+ *
+ * Base path `/api`. Times are ms since the Unix epoch (UTC). Errors are RFC 9457 problem details
+ * (`application/problem+json`, see {@link Problem}). The OpenAPI document is at `/api/openapi.json`.
+ *
+ * | method | path                                              | returns                      |
+ * | ------ | ------------------------------------------------- | ---------------------------- |
+ * | GET    | /api/info                                         | ServerInfo                   |
+ * | GET    | /api/units                                        | Page<UnitSummary>            |
+ * | GET    | /api/units/:unit                                  | UnitSummary                  |
+ * | POST   | /api/units                                        | UnitSummary (CreateUnitRequest) |
+ * | GET    | /api/analyzers                                    | Page<AnalyzerSummary>        |
+ * | POST   | /api/analyzers                                    | CreateAnalyzerResponse (CreateAnalyzerRequest) |
+ * | GET    | /api/batches?unit=&product=&status=&from=&to=&limit=&offset= | Page<BatchSummary> |
+ * | GET    | /api/batches/:batch                               | BatchDetail                  |
+ * | GET    | /api/batches/:batch/spectra?fromSeq=&toSeq=&limit= | SpectraRange                |
+ * | GET    | /api/batches/:batch/results?fromSeq=&toSeq=&limit= | ResultsRange                |
+ * | GET    | /api/batches/:batch/contributions?seq=            | ContributionsResponse        |
+ * | GET    | /api/batches/:batch/export.csv?what=spectra|results | text/csv                   |
+ * | GET    | /api/models                                       | Page<ModelSummary>           |
+ * | GET    | /api/models/versions/:version                     | ModelVersionDetail           |
+ * | GET    | /api/models/versions/:version/envelope            | ModelEnvelopeView            |
+ * | POST   | /api/models/build                                 | ModelVersionSummary (BuildModelRequest) |
+ * | POST   | /api/models/versions/:version/evaluate            | EvaluationResult (EvaluateModelRequest) |
+ * | POST   | /api/models/versions/:version/approve             | ModelVersionSummary (ApproveModelRequest) |
+ * | POST   | /api/models/versions/:version/retire              | ModelVersionSummary (RetireModelRequest) |
+ * | GET    | /api/deployments?unit=&active=                    | Page<Deployment>             |
+ * | POST   | /api/deployments                                  | Deployment (DeployModelRequest) |
+ * | GET    | /api/alarms?unit=&batch=&state=&active=&limit=&offset= | Page<Alarm>             |
+ * | POST   | /api/alarms/:alarm/acknowledge                    | Alarm (AcknowledgeAlarmRequest) |
+ * | POST   | /api/alarms/:alarm/shelve                         | Alarm (ShelveAlarmRequest)   |
+ * | POST   | /api/alarms/:alarm/unshelve                       | Alarm                        |
+ * | GET    | /api/batches/:batch/endpoint-events               | Page<EndpointEventRecord>    |
+ */
+import type {
+  AlarmKind,
+  AlarmPriority,
+  AlarmState,
+  Contributions,
+  EndpointState,
+  EndpointStatus,
+  MonitorResult,
+} from '../monitor/types.ts';
+
+export const API_VERSION = 1;
+export const API_BASE = '/api';
+
+// ---- common ----------------------------------------------------------------------------------
+
+/** RFC 9457 problem details. `type` is a URI naming the problem kind (relative, under /problems/). */
+export interface Problem {
+  type: string;
+  title: string;
+  status: number;
+  /** Human-readable explanation of this occurrence, naming what is wrong. */
+  detail?: string;
+  instance?: string;
+  /** Validation problems, one per offending field (zod path joined with '.'). */
+  errors?: { path: string; message: string }[];
+}
+
+export interface Page<T> {
+  items: T[];
+  /** Number of items matching the filter (ignoring limit/offset). */
+  total: number;
+  limit: number;
+  offset: number;
+}
+
+export interface ServerInfo {
+  name: 'tideline';
+  version: string;
+  apiVersion: typeof API_VERSION;
+  ingestProtocol: number;
+  liveProtocol: number;
+  serverTime: number;
+  startedAt: number;
+  /** The advisory notice to show wherever endpoints and alarms are configured or shown. */
+  advisory: string;
+}
+
+/** A model version as referred to from elsewhere. */
+export interface ModelRef {
+  /** Model version id (immutable). */
+  versionId: string;
+  /** Model (lineage) name, e.g. 'dryer-granule-A'. */
+  name: string;
+  version: number;
+  sha256: string;
+}
+
+// ---- units and analyzers ----------------------------------------------------------------------
+
+export type UnitKind = 'dryer' | 'reactor' | 'other';
+
+/**
+ * What a unit is doing now.
+ * - idle: no open batch.
+ * - running: open batch, data arriving.
+ * - stale: open batch, but the analyzer has been silent longer than the stale limit.
+ * - offline: open batch and the analyzer is not connected.
+ */
+export type UnitStatusKind = 'idle' | 'running' | 'stale' | 'offline';
+
+export interface OpenBatchRef {
+  id: string;
+  product: string;
+  startedAt: number;
+  lastSeq: number | null;
+  lastT: number | null;
+  spectrumCount: number;
+}
+
+export interface UnitSummary {
+  id: string;
+  name: string;
+  kind: UnitKind;
+  description: string;
+  createdAt: number;
+  status: UnitStatusKind;
+  /** Analyzer currently feeding this unit (last batch-start), if any. */
+  analyzer: string | null;
+  analyzerConnected: boolean;
+  /** Model deployed to the unit now; batches started now are judged by it. */
+  deployment: ModelRef | null;
+  openBatch: OpenBatchRef | null;
+  /** Endpoint state of the open batch; null without open batch or model. */
+  endpoint: EndpointStatus | null;
+  activeAlarms: number;
+  unacknowledgedAlarms: number;
+  /** Highest priority (1 = highest) among active alarms, null when none. */
+  highestPriority: AlarmPriority | null;
+  /** ms since the last data from the open batch's analyzer; null when not applicable. */
+  silentForMs: number | null;
+}
+
+export interface CreateUnitRequest {
+  id: string;
+  name?: string;
+  kind?: UnitKind;
+  description?: string;
+}
+
+export interface AnalyzerSummary {
+  id: string;
+  name: string;
+  createdAt: number;
+  connected: boolean;
+  /** Current or last boot epoch seen in hello. */
+  boot: number | null;
+  lastSeenAt: number | null;
+  instrument: string | null;
+  axisPoints: number | null;
+  /** First and last wavelength of the hello axis, nm. */
+  axisRange: [number, number] | null;
+  /** Highest contiguous persisted seq of the current boot; -1 when none. */
+  lastSeq: number | null;
+  remoteAddress: string | null;
+}
+
+export interface CreateAnalyzerRequest {
+  id: string;
+  name?: string;
+}
+
+/** The token is shown once, here; the server keeps only its hash. */
+export interface CreateAnalyzerResponse {
+  analyzer: AnalyzerSummary;
+  token: string;
+}
+
+// ---- batches ----------------------------------------------------------------------------------
+
+export type BatchStatus = 'open' | 'ended';
+
+export interface BatchSummary {
+  id: string;
+  unit: string;
+  product: string;
+  analyzer: string;
+  status: BatchStatus;
+  startedAt: number;
+  endedAt: number | null;
+  endReason: string | null;
+  spectrumCount: number;
+  firstSeq: number | null;
+  lastSeq: number | null;
+  lastT: number | null;
+  /** Model version that judged this batch (deployed at batch start); null when none was deployed. */
+  model: ModelRef | null;
+  endpointState: EndpointState | null;
+  /** Time the endpoint was reached (state 'done'), null if not reached. */
+  endpointAt: number | null;
+  alarmCount: number;
+  activeAlarms: number;
+}
+
+export interface BatchDetail extends BatchSummary {
+  /** Wavelength axis of the analyzer when the batch started, nm. */
+  axis: number[];
+  latestResult: MonitorResult | null;
+  endpoint: EndpointStatus | null;
+  endpointEvents: EndpointEventRecord[];
+  alarms: Alarm[];
+}
+
+export interface SpectrumRecord {
+  seq: number;
+  t: number;
+  /** Raw values as received (Float32 precision), on BatchDetail.axis. */
+  values: number[];
+}
+
+export interface SpectraRange {
+  batch: string;
+  axis: number[];
+  items: SpectrumRecord[];
+  /** seq to pass as fromSeq for the next page, null when complete. */
+  nextSeq: number | null;
+}
+
+/** One stored monitor result. `events` are kept. */
+export type ResultRecord = MonitorResult;
+
+export interface ResultsRange {
+  batch: string;
+  model: ModelRef | null;
+  items: ResultRecord[];
+  nextSeq: number | null;
+}
+
+export interface ContributionsResponse {
+  batch: string;
+  seq: number;
+  t: number;
+  model: ModelRef;
+  contributions: Contributions;
+}
+
+export interface EndpointEventRecord {
+  id: string;
+  unit: string;
+  batch: string;
+  from: EndpointState;
+  to: EndpointState;
+  t: number;
+  seq: number;
+  reason: string;
+  recordedAt: number;
+}
+
+// ---- models -----------------------------------------------------------------------------------
+
+export type ModelVersionStatus = 'draft' | 'approved' | 'retired';
+
+export interface ModelVersionSummary extends ModelRef {
+  product: string;
+  status: ModelVersionStatus;
+  createdAt: number;
+  createdBy: string;
+  approvedAt: number | null;
+  approvedBy: string | null;
+  approvalReason: string | null;
+  retiredAt: number | null;
+  retiredBy: string | null;
+  retireReason: string | null;
+  referenceBatches: string[];
+  components: number;
+  confidence: number;
+  /** Units this version is deployed to now. */
+  deployedTo: string[];
+}
+
+export interface ModelSummary {
+  name: string;
+  product: string;
+  versions: ModelVersionSummary[];
+}
+
+export interface ModelVersionDetail extends ModelVersionSummary {
+  /** The build settings as given (BuildSettings of core/model/monitoring-model.ts). */
+  settings: Record<string, unknown>;
+  explained: number[];
+  cumulative: number[];
+  limits: { t2: number; q: number; combined: number | null; confidence: number; t2Method: string; qMethod: string };
+  /** Model variable axis after preprocessing, nm. */
+  modelAxis: number[];
+  evaluations: EvaluationResult[];
+}
+
+/** The golden envelope in a form ready to draw. Arrays share the index of `progress`. */
+export interface ModelEnvelopeView {
+  versionId: string;
+  progressKind: 'time' | 'indicator';
+  /** 'min' for time, otherwise the indicator's name. */
+  progressUnit: string;
+  progress: number[];
+  scores: { pc: number; expected: number[]; lower: number[]; upper: number[] }[];
+  /** Per-progress limits when the model has them, else null. */
+  local: { t2: number[]; q: number[] } | null;
+  limits: { t2: number; q: number; combined: number | null; confidence: number };
+  /** Reference batches' score paths for drawing (optional thin lines). */
+  references: { batch: string; progress: number[]; scores: number[][] }[];
+}
+
+export interface BuildModelRequest {
+  name: string;
+  product: string;
+  referenceBatches: string[];
+  /** BuildSettings fields other than name/product/author/createdAt; omitted fields take defaults. */
+  settings?: Record<string, unknown>;
+}
+
+export interface EvaluateModelRequest {
+  batches: string[];
+}
+
+export interface BatchEvaluation {
+  batch: string;
+  spectra: number;
+  /** Spectra with T² or Q above the limit (single points). */
+  pointsOutside: number;
+  /** Alarms (after on-delay) raised during replay. */
+  alarms: number;
+  firstAlarmAt: number | null;
+  firstAlarmKind: string | null;
+  endpointAt: number | null;
+  maxT2: number;
+  maxQ: number;
+}
+
+export interface EvaluationResult {
+  id: string;
+  versionId: string;
+  createdAt: number;
+  createdBy: string;
+  batches: BatchEvaluation[];
+}
+
+export interface ApproveModelRequest {
+  reason: string;
+}
+
+export interface RetireModelRequest {
+  reason: string;
+}
+
+// ---- deployments ------------------------------------------------------------------------------
+
+export interface Deployment {
+  id: string;
+  unit: string;
+  model: ModelRef;
+  deployedAt: number;
+  deployedBy: string;
+  reason: string | null;
+  /** Set when a later deployment replaced this one or the model was retired. */
+  endedAt: number | null;
+  active: boolean;
+}
+
+export interface DeployModelRequest {
+  unit: string;
+  versionId: string;
+  reason?: string;
+}
+
+// ---- alarms -----------------------------------------------------------------------------------
+
+export interface Alarm {
+  id: string;
+  unit: string;
+  batch: string | null;
+  kind: AlarmKind;
+  /** Condition key, e.g. 't2', 'q', 'pc1', 'stale'. */
+  key: string;
+  state: AlarmState;
+  priority: AlarmPriority;
+  /** What crossed which limit, by how much (latest). */
+  message: string;
+  value: number | null;
+  limit: number | null;
+  /** Condition currently present (process side), independent of acknowledgement. */
+  active: boolean;
+  raisedAt: number;
+  clearedAt: number | null;
+  acknowledgedAt: number | null;
+  acknowledgedBy: string | null;
+  acknowledgeComment: string | null;
+  /** Shelved until this time (ms epoch); null when not shelved. */
+  shelvedUntil: number | null;
+  shelvedBy: string | null;
+  shelveReason: string | null;
+  /** seq of the spectrum that raised it, when a spectrum did. */
+  seq: number | null;
+  updatedAt: number;
+}
+
+export interface AcknowledgeAlarmRequest {
+  comment?: string;
+}
+
+export interface ShelveAlarmRequest {
+  /** Minutes until the shelve expires; 1…1440. */
+  minutes: number;
+  reason: string;
+}
