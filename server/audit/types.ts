@@ -1,0 +1,90 @@
+/**
+ * The audit trail contract (issue 8). Other parts of the server write audit records through
+ * `ctx.audit.record(...)`; the implementation is server/audit/audit-trail.ts.
+ *
+ * Every record carries UTC time, user, action, object, before/after where it applies, and a
+ * reason; each record stores the SHA-256 of the previous record, so an edited or deleted row
+ * breaks the chain and `verify()` names the first broken record.
+ */
+
+/** Who did it: a user name, or an object carrying one (an AuthUser, `req.user`). */
+export type AuditActor = string | { name: string };
+
+/** The user name written for actions the server takes on its own. */
+export const SYSTEM_ACTOR = 'system';
+
+export interface AuditEntry {
+  /** Who: user name, `analyzer:<id>` for an analyzer, or 'system'. */
+  user: AuditActor | null | undefined;
+  /** What was done, dotted lower-case, e.g. 'model.approve', 'alarm.acknowledge', 'auth.login'. */
+  action: string;
+  /** What it was done to, `<kind>:<id>`, e.g. 'model:dryer-a@3', 'alarm:42', 'user:alice'. */
+  object: string;
+  /** State before the change (any JSON value), where it applies. */
+  before?: unknown;
+  /** State after the change (any JSON value), where it applies. */
+  after?: unknown;
+  /** Why (the user's comment or the reason of a signature). */
+  reason?: string | null;
+}
+
+export interface AuditRecord {
+  /** 1, 2, 3, … without gaps. */
+  seq: number;
+  /** UTC time, ISO 8601 with milliseconds and 'Z', e.g. 2026-12-02T01:02:03.456Z. */
+  at: string;
+  user: string;
+  action: string;
+  object: string;
+  /** Canonical JSON text (sorted keys, no whitespace) of `before`, or null. */
+  before: string | null;
+  after: string | null;
+  reason: string | null;
+  /** Hash of the previous record (64 zeros for the first). */
+  prevHash: string;
+  /** SHA-256 (hex) over the canonical serialization of this record including prevHash. */
+  hash: string;
+}
+
+export interface AuditFilter {
+  /** ISO time or ms epoch; inclusive. */
+  from?: string | number;
+  /** ISO time or ms epoch; exclusive. */
+  to?: string | number;
+  user?: string;
+  /** Exact action, or a prefix ending in '.', e.g. 'model.' */
+  action?: string;
+  /** Exact object, or a prefix ending in ':', e.g. 'model:' */
+  object?: string;
+  /** Only records with seq > afterSeq (paging). */
+  afterSeq?: number;
+  /** Default 200, at most 10 000 for list(); export ignores it. */
+  limit?: number;
+  /** Newest first when true (default false: oldest first). */
+  descending?: boolean;
+}
+
+export type AuditVerifyResult =
+  | { ok: true; count: number; headSeq: number; headHash: string }
+  | {
+      ok: false;
+      count: number;
+      /** seq of the first broken record (for a deleted record: the seq that is missing). */
+      brokenSeq: number;
+      /** Plain words: what is wrong at that record. */
+      problem: string;
+    };
+
+export interface AuditTrail {
+  /**
+   * Append one record. Synchronous (better-sqlite3); may be called inside the caller's own
+   * db.transaction(), so a state change and its audit record commit together.
+   */
+  record(entry: AuditEntry): AuditRecord;
+  /** Walk the chain from the first record and name the first broken one. */
+  verify(): AuditVerifyResult;
+  list(filter?: AuditFilter): AuditRecord[];
+  /** Whole trail (or filtered) as CSV text (RFC 4180) or JSON text. */
+  exportCsv(filter?: AuditFilter): string;
+  exportJson(filter?: AuditFilter): string;
+}
