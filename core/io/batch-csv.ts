@@ -1,0 +1,241 @@
+/**
+ * Batches as CSV: a header row naming the metadata columns and giving the wavelengths in nm, then one
+ * row per spectrum.
+ *
+ *   batch,time_ms,moisture_pct,950.0,952.7,…
+ *   B-0001,1767225600000,18.2,0.4123,0.4131,…
+ *
+ * Reading is tolerant of what instruments and spreadsheets write — delimiter `,` `;` or tab, decimal
+ * point or decimal comma (detected, or set), a header cell like `1450 nm`, a decreasing axis, a BOM —
+ * and strict about everything else: a ragged row, text or NaN in a number, an empty file, a
+ * non-monotone axis or one in the wrong unit is refused with the file name, line and reason.
+ *
+ * Time columns: `time_ms` (ms since the Unix epoch), `time_s` / `time` / `seconds` (seconds),
+ * `time_min` / `minutes`, or `timestamp` (ISO 8601). Relative times are placed after `origin`.
+ */
+import { ImportError, normalizeAxis, wavenumberToNm, type ImportedBatch } from './imported-batch.ts';
+
+export interface CsvReadOptions {
+  file?: string;
+  delimiter?: ',' | ';' | '\t';
+  decimal?: '.' | ',';
+  axisUnit?: 'nm' | 'cm-1';
+  /** ms added to relative times (time_s, time_min); default 0. */
+  origin?: number;
+  /** Batch id for a file without a batch column. */
+  batch?: string;
+}
+
+type TimeKind = 'ms' | 's' | 'min' | 'iso';
+const TIME_COLUMNS: Record<string, TimeKind> = {
+  time_ms: 'ms',
+  t_ms: 'ms',
+  time_s: 's',
+  time: 's',
+  t_s: 's',
+  seconds: 's',
+  elapsed_s: 's',
+  time_min: 'min',
+  minutes: 'min',
+  elapsed_min: 'min',
+  timestamp: 'iso',
+  datetime: 'iso',
+  time_utc: 'iso',
+};
+const BATCH_COLUMNS = new Set(['batch', 'batch_id', 'batchid']);
+const TEXT_COLUMNS = new Set(['product', 'unit']);
+const TIME_FACTOR: Record<Exclude<TimeKind, 'iso'>, number> = { ms: 1, s: 1000, min: 60_000 };
+
+const NUMBER_RE = /^[+-]?(\d+\.?\d*|\.\d+)([eE][+-]?\d+)?$/;
+
+function splitLine(line: string, delimiter: string): string[] {
+  if (!line.includes('"')) return line.split(delimiter).map((c) => c.trim());
+  // Quoted fields (RFC 4180): a quote doubles inside quotes.
+  const out: string[] = [];
+  let cur = '';
+  let inQ = false;
+  for (let i = 0; i < line.length; i++) {
+    const ch = line[i]!;
+    if (inQ) {
+      if (ch === '"' && line[i + 1] === '"') {
+        cur += '"';
+        i++;
+      } else if (ch === '"') inQ = false;
+      else cur += ch;
+    } else if (ch === '"') inQ = true;
+    else if (ch === delimiter) {
+      out.push(cur.trim());
+      cur = '';
+    } else cur += ch;
+  }
+  out.push(cur.trim());
+  return out;
+}
+
+function detectDelimiter(header: string): ',' | ';' | '\t' {
+  const count = (c: string) => header.split(c).length - 1;
+  const counts: [',' | ';' | '\t', number][] = [
+    ['\t', count('\t')],
+    [';', count(';')],
+    [',', count(',')],
+  ];
+  counts.sort((a, b) => b[1] - a[1]);
+  return counts[0]![1] > 0 ? counts[0]![0] : ',';
+}
+
+/** Read one or more batches from CSV text. Throws ImportError naming file, line and reason. */
+export function readBatchCsv(text: string, opts: CsvReadOptions = {}): ImportedBatch[] {
+  const file = opts.file ?? 'CSV';
+  const src = text.charCodeAt(0) === 0xfeff ? text.slice(1) : text;
+  const lines = src.split(/\r?\n/);
+  let h = 0;
+  while (h < lines.length && (lines[h]!.trim() === '' || lines[h]!.startsWith('#'))) h++;
+  if (h >= lines.length) throw new ImportError(file, 0, 'the file is empty');
+  const delimiter = opts.delimiter ?? detectDelimiter(lines[h]!);
+  const header = splitLine(lines[h]!, delimiter);
+  const headerLine = h + 1;
+
+  // Decimal comma: only possible when the delimiter is not a comma; detect from the header's axis cells
+  // or, failing that, from the first data row.
+  let decimal = opts.decimal;
+  if (decimal === ',' && delimiter === ',') throw new ImportError(file, headerLine, 'decimal comma and comma delimiter cannot be used together');
+  if (!decimal) {
+    const firstData = lines.slice(h + 1).find((l) => l.trim() !== '' && !l.startsWith('#'));
+    const cells = [...header, ...(firstData ? splitLine(firstData, delimiter) : [])];
+    decimal = delimiter !== ',' && cells.some((c) => /^[+-]?\d+,\d+$/.test(c)) ? ',' : '.';
+  }
+  const toNumber = (cell: string): number | null => {
+    const s = decimal === ',' ? cell.replace(',', '.') : cell;
+    return NUMBER_RE.test(s) ? Number(s) : null;
+  };
+
+  // Classify the header.
+  let batchCol = -1;
+  let timeCol = -1;
+  let timeKind = 's' as TimeKind;
+  const textCols: { name: string; col: number }[] = [];
+  const propCols: { name: string; col: number }[] = [];
+  const axisCols: number[] = [];
+  const axisRaw: number[] = [];
+  let axisUnit = opts.axisUnit;
+  header.forEach((cellRaw, col) => {
+    const cell = cellRaw.replace(/^"|"$/g, '');
+    const m = /^([+-]?[\d.,]+(?:[eE][+-]?\d+)?)\s*(nm|cm-1|cm⁻¹|1\/cm)?$/.exec(cell);
+    const num = m ? toNumber(m[1]!) : null;
+    if (m && num !== null) {
+      if (m[2] && m[2] !== 'nm') {
+        if (axisUnit === 'nm') throw new ImportError(file, headerLine, `column ${col + 1} header "${cell}" is in cm⁻¹ but the axis unit was set to nm`);
+        axisUnit = 'cm-1';
+      }
+      axisCols.push(col);
+      axisRaw.push(num);
+      return;
+    }
+    const name = cell.toLowerCase().replace(/\s+/g, '_');
+    if (name === '') throw new ImportError(file, headerLine, `column ${col + 1} has an empty header`);
+    if (BATCH_COLUMNS.has(name)) batchCol = col;
+    else if (name in TIME_COLUMNS) {
+      if (timeCol >= 0) throw new ImportError(file, headerLine, `two time columns ("${header[timeCol]}" and "${cell}")`);
+      timeCol = col;
+      timeKind = TIME_COLUMNS[name]!;
+    } else if (TEXT_COLUMNS.has(name)) textCols.push({ name, col });
+    else propCols.push({ name, col });
+  });
+  if (axisCols.length < 2) throw new ImportError(file, headerLine, `the header has ${axisCols.length} wavelength column(s); expected a row of wavelengths in nm`);
+  if (timeCol < 0) throw new ImportError(file, headerLine, `no time column (expected one of ${Object.keys(TIME_COLUMNS).join(', ')})`);
+  if (batchCol < 0 && !opts.batch) throw new ImportError(file, headerLine, 'no batch column and no batch id given');
+  for (let i = 1; i < axisCols.length; i++) {
+    if (axisCols[i] !== axisCols[i - 1]! + 1) throw new ImportError(file, headerLine, `the wavelength columns are not contiguous (column ${axisCols[i - 1]! + 2} is "${header[axisCols[i - 1]! + 1]}")`);
+  }
+  const axisNm = axisUnit === 'cm-1' ? axisRaw.map(wavenumberToNm) : axisRaw;
+  const { axis, reversed } = normalizeAxis(axisNm, file, headerLine);
+  const p = axis.length;
+  const a0 = axisCols[0]!;
+
+  const batches = new Map<string, ImportedBatch>();
+  const order: string[] = [];
+  for (let li = h + 1; li < lines.length; li++) {
+    const raw = lines[li]!;
+    if (raw.trim() === '' || raw.startsWith('#')) continue;
+    const lineNo = li + 1;
+    const cells = splitLine(raw, delimiter);
+    if (cells.length !== header.length) {
+      throw new ImportError(file, lineNo, `${cells.length} fields, but the header has ${header.length}`);
+    }
+    const id = batchCol >= 0 ? cells[batchCol]! : opts.batch!;
+    if (!id) throw new ImportError(file, lineNo, 'the batch column is empty');
+    const tCell = cells[timeCol]!;
+    let t: number;
+    if (timeKind === 'iso') {
+      t = Date.parse(tCell);
+      if (!Number.isFinite(t)) throw new ImportError(file, lineNo, `time "${tCell}" is not an ISO 8601 date-time`);
+    } else {
+      const v = toNumber(tCell);
+      if (v === null || !Number.isFinite(v)) throw new ImportError(file, lineNo, `time "${tCell}" in column "${header[timeCol]}" is not a number`);
+      t = v * TIME_FACTOR[timeKind] + (timeKind === 'ms' ? 0 : (opts.origin ?? 0));
+    }
+    const values = new Float32Array(p);
+    for (let j = 0; j < p; j++) {
+      const cell = cells[a0 + j]!;
+      const v = toNumber(cell);
+      if (v === null || !Number.isFinite(v)) {
+        const what = cell === '' ? 'is empty' : /^nan$/i.test(cell) ? 'is NaN' : `"${cell}" is not a number`;
+        throw new ImportError(file, lineNo, `the value at ${axisRaw[j]} (column ${a0 + j + 1}) ${what}`);
+      }
+      values[reversed ? p - 1 - j : j] = v;
+    }
+    let b = batches.get(id);
+    if (!b) {
+      b = { id, axis, times: [], spectra: [], properties: {}, source: { file, firstLine: lineNo, lastLine: lineNo } };
+      for (const pc of propCols) b.properties[pc.name] = [];
+      for (const tc of textCols) {
+        const v = cells[tc.col]!;
+        if (v) (b as unknown as Record<string, string>)[tc.name] = v;
+      }
+      batches.set(id, b);
+      order.push(id);
+    }
+    const prevT = b.times[b.times.length - 1];
+    if (prevT !== undefined && !(t > prevT)) {
+      throw new ImportError(file, lineNo, `time does not increase within batch ${id} (${tCell} after the previous row)`);
+    }
+    for (const pc of propCols) {
+      const cell = cells[pc.col]!;
+      const v = cell === '' ? NaN : toNumber(cell);
+      if (v === null) throw new ImportError(file, lineNo, `column "${header[pc.col]}" holds "${cell}", which is not a number`);
+      b.properties[pc.name]!.push(v);
+    }
+    b.times.push(t);
+    b.spectra.push(values);
+    b.source.lastLine = lineNo;
+  }
+  if (order.length === 0) throw new ImportError(file, 0, 'the file has a header but no spectra');
+  return order.map((id) => batches.get(id)!);
+}
+
+/** Float32 values print exactly with 9 significant digits (IEEE 754: 9 decimal digits round-trip binary32). */
+export function formatFloat32(v: number): string {
+  return Number(Math.fround(v).toPrecision(9)).toString();
+}
+
+/** Write batches (same axis) as CSV in the layout readBatchCsv reads first: batch, time_ms, properties, wavelengths. */
+export function writeBatchCsv(batches: Pick<ImportedBatch, 'id' | 'axis' | 'times' | 'spectra' | 'properties'>[]): string {
+  if (batches.length === 0) throw new RangeError('no batches to write');
+  const axis = batches[0]!.axis;
+  const props = Object.keys(batches[0]!.properties);
+  const rows: string[] = [['batch', 'time_ms', ...props, ...Array.from(axis, (x) => String(x))].join(',')];
+  for (const b of batches) {
+    if (b.axis.length !== axis.length || b.axis.some((x, i) => x !== axis[i])) throw new RangeError(`batch ${b.id} has a different axis; write it to its own file`);
+    for (let i = 0; i < b.spectra.length; i++) {
+      const cells = [b.id, String(b.times[i])];
+      for (const k of props) {
+        const v = b.properties[k]?.[i];
+        cells.push(v === undefined || Number.isNaN(v) ? '' : String(v));
+      }
+      const s = b.spectra[i]!;
+      for (let j = 0; j < s.length; j++) cells.push(formatFloat32(s[j]!));
+      rows.push(cells.join(','));
+    }
+  }
+  return rows.join('\n') + '\n';
+}
