@@ -1,0 +1,183 @@
+import { describe, expect, it } from 'vitest';
+import { execFileSync } from 'node:child_process';
+import { openTestDb } from './db-fixture.ts';
+import { SqliteAuditTrail } from '../../server/audit/audit-trail.ts';
+import { canonicalJson } from '../../server/audit/canonical-json.ts';
+import { GENESIS_HASH, recordHash } from '../../server/audit/record-hash.ts';
+
+function fixedClock(start = Date.UTC(2026, 0, 5, 8, 0, 0)): () => number {
+  let t = start;
+  return () => (t += 1000);
+}
+
+function seeded(n = 5) {
+  const { db } = openTestDb();
+  const trail = new SqliteAuditTrail(db, { now: fixedClock() });
+  for (let i = 1; i <= n; i++) {
+    trail.record({ user: i % 2 ? 'alice' : { name: 'bob' }, action: 'model.build', object: `model:m@${i}`, after: { v: i }, reason: `r${i}` });
+  }
+  return { db, trail };
+}
+
+function dropTriggers(db: ReturnType<typeof openTestDb>['db']) {
+  db.exec('DROP TRIGGER audit_trail_no_update; DROP TRIGGER audit_trail_no_delete; DROP TRIGGER audit_head_no_delete;');
+}
+
+describe('audit trail', () => {
+  it('appends records with seq 1…n, UTC ISO times and a hash chain from the genesis hash', () => {
+    const { trail } = seeded(3);
+    const rows = trail.list();
+    expect(rows.map((r) => r.seq)).toEqual([1, 2, 3]);
+    expect(rows[0].prevHash).toBe(GENESIS_HASH);
+    expect(rows[1].prevHash).toBe(rows[0].hash);
+    expect(rows[2].prevHash).toBe(rows[1].hash);
+    expect(rows[0].at).toBe('2026-01-05T08:00:01.000Z');
+    expect(rows[1].user).toBe('bob');
+    expect(rows[0].before).toBeNull();
+    expect(rows[0].after).toBe('{"v":1}');
+    expect(trail.verify()).toEqual({ ok: true, count: 3, headSeq: 3, headHash: rows[2].hash });
+  });
+
+  it('an empty trail verifies', () => {
+    const { db } = openTestDb();
+    expect(new SqliteAuditTrail(db).verify()).toEqual({ ok: true, count: 0, headSeq: 0, headHash: GENESIS_HASH });
+  });
+
+  it('the chain recomputes in Python (hashlib SHA-256, FIPS 180-4) from the JSON export', () => {
+    const { db } = openTestDb();
+    const trail = new SqliteAuditTrail(db, { now: fixedClock() });
+    trail.record({ user: 'zoë', action: 'alarm.acknowledge', object: 'alarm:7', before: { state: 'active-unacknowledged', b: [1, 2.5] }, after: { state: 'active-acknowledged' }, reason: 'seen — probe window "fouled",\nwiping ✓ \u0001' });
+    trail.record({ user: 'system', action: 'signal.sent', object: 'unit:dryer-1' });
+    const exported = trail.exportJson();
+    const py = `
+import json, hashlib, sys
+doc = json.load(sys.stdin)
+prev = "0" * 64
+out = []
+for r in doc["records"]:
+    s = json.dumps([r["seq"], r["at"], r["user"], r["action"], r["object"], r["before"], r["after"], r["reason"], prev], separators=(",", ":"), ensure_ascii=False)
+    h = hashlib.sha256(s.encode("utf-8")).hexdigest()
+    out.append(h)
+    prev = h
+print(json.dumps(out))
+`;
+    const hashes = JSON.parse(execFileSync('python3', ['-c', py], { input: exported, encoding: 'utf8' })) as string[];
+    expect(hashes).toEqual(trail.list().map((r) => r.hash));
+  });
+
+  it('refuses UPDATE and DELETE at the database (triggers)', () => {
+    const { db } = seeded(2);
+    expect(() => db.prepare("UPDATE audit_trail SET user = 'mallory' WHERE seq = 1").run()).toThrow(/append-only/);
+    expect(() => db.prepare('DELETE FROM audit_trail WHERE seq = 2').run()).toThrow(/append-only/);
+  });
+
+  it('an edited row (triggers dropped) makes verify fail at that row', () => {
+    const { db, trail } = seeded(5);
+    dropTriggers(db);
+    db.prepare("UPDATE audit_trail SET reason = 'nothing to see' WHERE seq = 3").run();
+    const v = trail.verify();
+    expect(v.ok).toBe(false);
+    if (!v.ok) {
+      expect(v.brokenSeq).toBe(3);
+      expect(v.problem).toMatch(/edited/);
+      expect(v.count).toBe(2);
+    }
+  });
+
+  it('an edited row whose own hash was recomputed breaks the link of the next row', () => {
+    const { db, trail } = seeded(5);
+    dropTriggers(db);
+    const r = trail.list().find((x) => x.seq === 2)!;
+    const forged = { ...r, user: 'mallory' };
+    db.prepare('UPDATE audit_trail SET user = ?, hash = ? WHERE seq = 2').run('mallory', recordHash(forged));
+    const v = trail.verify();
+    expect(v.ok).toBe(false);
+    if (!v.ok) {
+      expect(v.brokenSeq).toBe(3);
+      expect(v.problem).toMatch(/prev_hash/);
+    }
+  });
+
+  it('a deleted row makes verify fail naming the missing record', () => {
+    const { db, trail } = seeded(5);
+    dropTriggers(db);
+    db.prepare('DELETE FROM audit_trail WHERE seq = 4').run();
+    const v = trail.verify();
+    expect(v).toMatchObject({ ok: false, brokenSeq: 4, count: 3 });
+    if (!v.ok) expect(v.problem).toMatch(/missing.*deleted/);
+  });
+
+  it('rows deleted from the end are caught by the chain head', () => {
+    const { db, trail } = seeded(5);
+    dropTriggers(db);
+    db.prepare('DELETE FROM audit_trail WHERE seq >= 4').run();
+    const v = trail.verify();
+    expect(v).toMatchObject({ ok: false, brokenSeq: 4 });
+    if (!v.ok) expect(v.problem).toMatch(/missing from the end/);
+  });
+
+  it('a record written inside a rolled-back transaction leaves no trace', () => {
+    const { db, trail } = seeded(2);
+    const tx = db.transaction(() => {
+      trail.record({ user: 'alice', action: 'model.approve', object: 'model:m@1' });
+      throw new Error('state change failed');
+    });
+    expect(() => tx()).toThrow('state change failed');
+    expect(trail.list()).toHaveLength(2);
+    expect(trail.verify().ok).toBe(true);
+    trail.record({ user: 'alice', action: 'model.approve', object: 'model:m@1' });
+    expect(trail.verify()).toMatchObject({ ok: true, count: 3 });
+  });
+
+  it('refuses malformed entries with a message naming the field', () => {
+    const { trail } = seeded(0);
+    expect(() => trail.record({ user: 'a', action: 'Model Approve', object: 'x' })).toThrow(/action/);
+    expect(() => trail.record({ user: 'a', action: 'x.y', object: '' })).toThrow(/object/);
+    expect(() => trail.record({ user: 'a', action: 'x.y', object: 'o', reason: 'x'.repeat(4001) })).toThrow(/reason/);
+    expect(trail.list()).toHaveLength(0);
+  });
+
+  it('filters by user, action prefix, object prefix, time and seq', () => {
+    const { trail } = seeded(6);
+    expect(trail.list({ user: 'bob' }).map((r) => r.seq)).toEqual([2, 4, 6]);
+    expect(trail.list({ action: 'model.' })).toHaveLength(6);
+    expect(trail.list({ action: 'model' })).toHaveLength(0);
+    expect(trail.list({ object: 'model:m@3' }).map((r) => r.seq)).toEqual([3]);
+    expect(trail.list({ from: '2026-01-05T08:00:03Z', to: '2026-01-05T08:00:05Z' }).map((r) => r.seq)).toEqual([3, 4]);
+    expect(trail.list({ afterSeq: 4 }).map((r) => r.seq)).toEqual([5, 6]);
+    expect(trail.list({ descending: true, limit: 2 }).map((r) => r.seq)).toEqual([6, 5]);
+    expect(() => trail.list({ from: 'yesterday' })).toThrow(/from: not a time/);
+    expect(() => trail.list({ limit: 0 })).toThrow(/limit/);
+  });
+
+  it('CSV export follows RFC 4180 quoting and round-trips through Python csv to the same hashes', () => {
+    const { db } = openTestDb();
+    const trail = new SqliteAuditTrail(db, { now: fixedClock() });
+    trail.record({ user: 'a', action: 'alarm.shelve', object: 'alarm:1', after: { note: 'x,"y"' }, reason: 'line1\r\nline2, "q"' });
+    trail.record({ user: 'b', action: 'alarm.unshelve', object: 'alarm:1' });
+    const csv = trail.exportCsv();
+    expect(csv.split('\r\n')[0]).toBe('seq,at,user,action,object,before,after,reason,prev_hash,hash');
+    const py = `
+import csv, hashlib, io, json, sys
+rows = list(csv.DictReader(io.StringIO(sys.stdin.read(), newline="")))
+prev = "0" * 64
+ok = []
+for r in rows:
+    n = lambda v: None if v == "" else v
+    s = json.dumps([int(r["seq"]), r["at"], r["user"], r["action"], r["object"], n(r["before"]), n(r["after"]), n(r["reason"]), prev], separators=(",", ":"), ensure_ascii=False)
+    h = hashlib.sha256(s.encode("utf-8")).hexdigest()
+    ok.append(h == r["hash"] and r["prev_hash"] == prev)
+    prev = h
+print(json.dumps(ok))
+`;
+    expect(JSON.parse(execFileSync('python3', ['-c', py], { input: csv, encoding: 'utf8' }))).toEqual([true, true]);
+  });
+});
+
+describe('canonical JSON', () => {
+  it('sorts keys at every depth and drops whitespace', () => {
+    expect(canonicalJson({ b: 1, a: { d: [3, { z: 1, y: 2 }], c: null } })).toBe('{"a":{"c":null,"d":[3,{"y":2,"z":1}]},"b":1}');
+    expect(canonicalJson({ x: 1, y: 2 })).toBe(canonicalJson({ y: 2, x: 1 }));
+    expect(canonicalJson({ a: undefined, b: NaN })).toBe('{"b":null}');
+  });
+});
