@@ -1,0 +1,208 @@
+/**
+ * The batch report: one self-contained HTML page (inline SVG charts, print CSS) that QA can file and
+ * that headless Chromium prints to PDF. It states what judged the batch (model version and hash), how
+ * it went (score path on the golden envelope, T² and Q against their limits), what was raised and who
+ * acknowledged it, when the endpoint was called and signalled, where the batch departed from the golden
+ * batches and which wavelength regions drove it — and the advisory caution.
+ */
+import type { Alarm, BatchDetail, EndpointEventRecord, ModelEnvelopeView, ModelVersionSummary } from '../../core/api/rest.ts';
+import type { MonitorResult } from '../../core/monitor/types.ts';
+import { escapeXml as esc, lineChart, OKABE_ITO } from './svg-chart.ts';
+
+export const ADVISORY_TEXT =
+  'Tideline advises. An endpoint signal or alarm must be used within the site’s validated control strategy; ' +
+  'interlocks and operating procedures decide, and a model must be validated under the site’s quality system ' +
+  'before it is used for release decisions.';
+
+export interface ReportRegion {
+  name: string;
+  from: number;
+  to: number;
+  assignment: string;
+  /** Share of the summed contribution over the departure window, 0…1. */
+  t2Share: number;
+  qShare: number;
+}
+
+export interface ReportDeparture {
+  /** Time (ms) the batch first left the envelope or a limit, null when it never did. */
+  firstExitT: number | null;
+  firstExitSeq: number | null;
+  /** What left: 'pc1 above', 'Q above 99 % limit' … */
+  firstExitWhat: string | null;
+  window: { fromSeq: number; toSeq: number } | null;
+  regions: ReportRegion[];
+  /** Mean |deviation| from the golden mean after DTW alignment, per PC. */
+  alignedDeviation: { pc: number; meanAbs: number; maxAbs: number }[];
+}
+
+export interface BatchReportData {
+  generatedAt: number;
+  generatedBy: string;
+  batch: BatchDetail;
+  unitName: string;
+  model: ModelVersionSummary | null;
+  envelope: ModelEnvelopeView | null;
+  results: MonitorResult[];
+  alarms: Alarm[];
+  endpointEvents: EndpointEventRecord[];
+  departure: ReportDeparture | null;
+  /** Property name and unit when the model predicts one (e.g. moisture, % w/w). */
+  property: { name: string; unit: string } | null;
+}
+
+const utc = (t: number | null | undefined) => (t === null || t === undefined ? '—' : new Date(t).toISOString().replace('T', ' ').replace(/\.\d+Z$/, ' UTC'));
+const num = (v: number | null | undefined, digits = 3) => (v === null || v === undefined || !Number.isFinite(v) ? '—' : Number(v.toPrecision(digits)).toString());
+
+function table(head: string[], rows: (string | number)[][]): string {
+  if (rows.length === 0) return '<p class="empty">None.</p>';
+  return `<table><thead><tr>${head.map((h) => `<th>${esc(h)}</th>`).join('')}</tr></thead><tbody>${rows
+    .map((r) => `<tr>${r.map((c) => `<td>${esc(String(c))}</td>`).join('')}</tr>`)
+    .join('')}</tbody></table>`;
+}
+
+/** Render the report. Pure: all data, including the generation time, are passed in. */
+export function renderBatchReport(d: BatchReportData): string {
+  const b = d.batch;
+  const res = d.results;
+  const elapsed = res.map((r) => r.elapsedMin);
+  const conf = res[0]?.limits.confidence ?? d.envelope?.limits.confidence ?? null;
+  const confText = conf === null ? '' : `${num(conf * 100, 4)} %`;
+  const charts: string[] = [];
+
+  // Score paths on the golden envelope (first two PCs), on the envelope's progress axis.
+  const pcs = d.envelope ? d.envelope.scores.slice(0, 2) : [];
+  const xKey = d.envelope?.progressKind === 'indicator' ? 'progress' : 'elapsedMin';
+  const xLabel = d.envelope?.progressKind === 'indicator' ? `progress (${d.envelope.progressUnit})` : 'elapsed time (min)';
+  for (const sc of pcs) {
+    charts.push(
+      lineChart({
+        title: `PC${sc.pc} score on the golden envelope`,
+        xLabel,
+        yLabel: `t${sc.pc} (score)`,
+        bands: [{ name: 'golden envelope', x: d.envelope!.progress, lower: sc.lower, upper: sc.upper, color: OKABE_ITO.skyBlue }],
+        series: [
+          { name: 'golden mean', x: d.envelope!.progress, y: sc.expected, color: OKABE_ITO.blue, dash: '5 3' },
+          { name: `batch ${b.id}`, x: res.map((r) => (xKey === 'progress' ? r.progress : r.elapsedMin)), y: res.map((r) => r.scores[sc.pc - 1] ?? null), color: OKABE_ITO.vermillion, width: 2 },
+        ],
+        markersX: d.departure?.firstExitT ? [{ name: 'first exit', x: xOf(res, d.departure.firstExitSeq, xKey), color: OKABE_ITO.black }] : [],
+      }),
+    );
+  }
+  if (res.length > 0) {
+    charts.push(
+      lineChart({
+        title: 'Hotelling T²',
+        xLabel: 'elapsed time (min)',
+        yLabel: 'T² (dimensionless)',
+        logY: true,
+        series: [{ name: 'T²', x: elapsed, y: res.map((r) => r.t2), color: OKABE_ITO.blue, width: 1.5 }],
+        limits: [{ name: `T² limit ${confText}`, y: res[0]!.limits.t2, color: OKABE_ITO.vermillion }],
+      }),
+      lineChart({
+        title: 'Q (SPE)',
+        xLabel: 'elapsed time (min)',
+        yLabel: 'Q (squared residual)',
+        logY: true,
+        series: [{ name: 'Q', x: elapsed, y: res.map((r) => r.q), color: OKABE_ITO.green, width: 1.5 }],
+        limits: [{ name: `Q limit ${confText}`, y: res[0]!.limits.q, color: OKABE_ITO.vermillion }],
+      }),
+    );
+    if (d.property && res.some((r) => r.prediction)) {
+      charts.push(
+        lineChart({
+          title: `Predicted ${d.property.name}`,
+          xLabel: 'elapsed time (min)',
+          yLabel: `${d.property.name} (${d.property.unit})`,
+          series: [{ name: `predicted ${d.property.name}`, x: elapsed, y: res.map((r) => r.prediction?.value ?? null), color: OKABE_ITO.purple, width: 1.5 }],
+        }),
+      );
+    }
+  }
+
+  const done = d.endpointEvents.find((e) => e.to === 'done');
+  const signalled = d.endpointEvents.find((e) => e.to === 'signalled');
+  const endpointCriteria = b.endpoint?.criteria ?? [];
+  const dep = d.departure;
+  const regionsChart =
+    dep && dep.regions.length
+      ? lineChart({
+          title: 'Share of T² and Q contributions by wavelength region over the departure window',
+          xLabel: 'wavelength (nm)',
+          yLabel: 'share of summed contribution',
+          regions: dep.regions.map((r) => ({ name: r.assignment, from: r.from, to: r.to })),
+          series: [
+            { name: 'T² share', x: dep.regions.map((r) => (r.from + r.to) / 2), y: dep.regions.map((r) => r.t2Share), color: OKABE_ITO.blue, markers: 'square' },
+            { name: 'Q share', x: dep.regions.map((r) => (r.from + r.to) / 2), y: dep.regions.map((r) => r.qShare), color: OKABE_ITO.vermillion, markers: 'triangle' },
+          ],
+        })
+      : '';
+
+  return `<!doctype html>
+<html lang="en"><head><meta charset="utf-8">
+<title>Batch report ${esc(b.id)} — Tideline</title>
+<style>
+  body { font-family: "DejaVu Sans", Arial, sans-serif; font-size: 11pt; color: #111; margin: 24px; }
+  h1 { font-size: 18pt; margin: 0 0 4px; } h2 { font-size: 13pt; border-bottom: 1px solid #999; margin-top: 22px; }
+  table { border-collapse: collapse; width: 100%; margin: 6px 0; } th, td { border: 1px solid #bbb; padding: 3px 6px; text-align: left; font-size: 9.5pt; }
+  th { background: #eee; } .meta td:first-child { width: 28%; font-weight: bold; }
+  .caution { border: 2px solid #D55E00; padding: 8px 10px; margin: 12px 0; background: #fff7f0; }
+  .empty { color: #555; font-style: italic; } .chart { page-break-inside: avoid; margin: 8px 0; }
+  .hash { font-family: "DejaVu Sans Mono", monospace; font-size: 8.5pt; word-break: break-all; }
+  @media print { body { margin: 0; } h2 { page-break-after: avoid; } }
+</style></head><body>
+<h1>Batch report — ${esc(b.id)}</h1>
+<p>Unit ${esc(d.unitName)} (${esc(b.unit)}) · product ${esc(b.product)} · generated ${esc(utc(d.generatedAt))} by ${esc(d.generatedBy)}</p>
+<div class="caution"><strong>Caution.</strong> ${esc(ADVISORY_TEXT)}</div>
+<h2>Batch and model</h2>
+<table class="meta"><tbody>
+<tr><td>Batch</td><td>${esc(b.id)} (${esc(b.status)})</td></tr>
+<tr><td>Started / ended</td><td>${esc(utc(b.startedAt))} / ${esc(utc(b.endedAt))}${b.endReason ? ` (${esc(b.endReason)})` : ''}</td></tr>
+<tr><td>Analyzer</td><td>${esc(b.analyzer)} · ${b.spectrumCount} spectra, seq ${b.firstSeq ?? '—'}…${b.lastSeq ?? '—'}</td></tr>
+<tr><td>Model</td><td>${d.model ? `${esc(d.model.name)} version ${d.model.version} (${esc(d.model.status)}) · ${d.model.components} PCs · limits at ${num(d.model.confidence * 100, 4)} %` : 'none deployed: the batch was recorded but not judged'}</td></tr>
+<tr><td>Model SHA-256</td><td class="hash">${esc(d.model?.sha256 ?? '—')}</td></tr>
+<tr><td>Approved</td><td>${d.model?.approvedAt ? `${esc(utc(d.model.approvedAt))} by ${esc(d.model.approvedBy ?? '?')}: ${esc(d.model.approvalReason ?? '')}` : 'not approved'}</td></tr>
+<tr><td>Reference batches</td><td>${esc(d.model?.referenceBatches.join(', ') ?? '—')}</td></tr>
+</tbody></table>
+<h2>Endpoint</h2>
+<table class="meta"><tbody>
+<tr><td>Endpoint reached (done)</td><td>${done ? `${esc(utc(done.t))} at seq ${done.seq}: ${esc(done.reason)}` : 'not reached'}</td></tr>
+<tr><td>Signalled to the control system</td><td>${signalled ? `${esc(utc(signalled.t))}: ${esc(signalled.reason)}` : 'not signalled'}</td></tr>
+</tbody></table>
+${table(['criterion', 'met', 'value', 'threshold', 'detail'], endpointCriteria.map((c) => [c.criterion, c.met ? 'yes' : 'no', num(c.value), num(c.threshold), c.text]))}
+${table(['time (UTC)', 'seq', 'from', 'to', 'reason'], d.endpointEvents.map((e) => [utc(e.t), e.seq, e.from, e.to, e.reason]))}
+<h2>Trajectory and limits</h2>
+${charts.map((c) => `<div class="chart">${c}</div>`).join('\n') || '<p class="empty">No monitor results were recorded for this batch.</p>'}
+<h2>Alarms</h2>
+${table(
+  ['raised (UTC)', 'kind', 'priority', 'message', 'cleared', 'acknowledged', 'shelved'],
+  d.alarms.map((a) => [
+    utc(a.raisedAt),
+    a.key,
+    a.priority,
+    a.message,
+    utc(a.clearedAt),
+    a.acknowledgedAt ? `${utc(a.acknowledgedAt)} by ${a.acknowledgedBy ?? '?'}${a.acknowledgeComment ? ` — ${a.acknowledgeComment}` : ''}` : 'no',
+    a.shelvedUntil ? `until ${utc(a.shelvedUntil)} by ${a.shelvedBy ?? '?'}: ${a.shelveReason ?? ''}` : '—',
+  ]),
+)}
+<h2>Departure from the golden batches</h2>
+${
+  dep
+    ? `<p>${dep.firstExitT ? `First left the envelope or a limit at ${esc(utc(dep.firstExitT))} (seq ${dep.firstExitSeq}): ${esc(dep.firstExitWhat ?? '')}.` : 'The batch stayed within the envelope and limits.'}</p>
+${table(['PC', 'mean |deviation| after DTW', 'max |deviation|'], dep.alignedDeviation.map((a) => [`PC${a.pc}`, num(a.meanAbs), num(a.maxAbs)]))}
+${dep.window ? `<p>Departure window: seq ${dep.window.fromSeq}…${dep.window.toSeq}.</p>` : ''}
+${table(['region (nm)', 'assignment', 'share of T²', 'share of Q'], dep.regions.map((r) => [`${r.from}–${r.to}`, r.assignment, `${num(r.t2Share * 100, 3)} %`, `${num(r.qShare * 100, 3)} %`]))}
+${regionsChart ? `<div class="chart">${regionsChart}</div>` : ''}`
+    : '<p class="empty">No departure analysis (no model, or no results).</p>'
+}
+<h2>Record</h2>
+<p>Raw spectra and per-spectrum results are kept unchanged in the Tideline record; this report is derived from them. Band assignments are common practice (Workman &amp; Weyer, Practical Guide to Interpretive Near-Infrared Spectroscopy, 2008).</p>
+</body></html>
+`;
+}
+
+function xOf(res: MonitorResult[], seq: number | null, key: 'progress' | 'elapsedMin'): number {
+  const r = res.find((x) => x.seq === seq);
+  return r ? r[key] : NaN;
+}

@@ -1,0 +1,74 @@
+import { execFileSync, spawnSync } from 'node:child_process';
+import { mkdirSync, writeFileSync } from 'node:fs';
+import { describe, expect, it } from 'vitest';
+import { renderBatchReport, ADVISORY_TEXT, type BatchReportData } from '../../server/transfer/batch-report.ts';
+import { chromiumPath, htmlToPdf } from '../../server/transfer/report-pdf.ts';
+import { lineChart, niceTicks } from '../../server/transfer/svg-chart.ts';
+import type { MonitorResult } from '../../core/monitor/types.ts';
+
+function result(i: number): MonitorResult {
+  const t2 = 2 + (i > 30 ? (i - 30) * 0.8 : 0);
+  return {
+    seq: i, t: 1767225600000 + i * 10_000, elapsedMin: i / 6, progress: i / 6, progressFraction: i / 60,
+    scores: [10 - i * 0.3, 1 + (i > 30 ? 0.2 * (i - 30) : 0)], t2, q: 0.5 + 0.01 * i, combined: 1,
+    limits: { t2: 11.3, q: 1.1, combined: 2, confidence: 0.99 }, localLimits: null, envelope: [], prediction: null,
+    suspect: false, conditionChanges: [], activeConditions: [], events: [],
+    endpoint: { state: 'running', criteria: [], combine: 'all', confirmCount: 0, confirmNeeded: 3, etaMin: null, doneAt: null },
+  };
+}
+
+function data(): BatchReportData {
+  const results = Array.from({ length: 60 }, (_, i) => result(i));
+  const progress = Array.from({ length: 11 }, (_, i) => i);
+  return {
+    generatedAt: Date.UTC(2026, 0, 2), generatedBy: 'qa.reviewer', unitName: 'Fluid-bed dryer 1', results, property: null,
+    batch: {
+      id: 'D-0042', unit: 'dryer-1', product: 'granule-A', analyzer: 'nir-1', status: 'ended', startedAt: results[0]!.t, endedAt: results[59]!.t,
+      endReason: 'operator', spectrumCount: 60, firstSeq: 0, lastSeq: 59, lastT: results[59]!.t, model: null, endpointState: 'done', endpointAt: null,
+      alarmCount: 1, activeAlarms: 0, axis: [1000, 1010], latestResult: results[59]!, endpoint: null, endpointEvents: [], alarms: [],
+    },
+    model: null,
+    envelope: { versionId: 'v', progressKind: 'time', progressUnit: 'min', progress, scores: [{ pc: 1, expected: progress.map((p) => 10 - 1.8 * p), lower: progress.map((p) => 8 - 1.8 * p), upper: progress.map((p) => 12 - 1.8 * p) }], local: null, limits: { t2: 11.3, q: 1.1, combined: null, confidence: 0.99 }, references: [] },
+    alarms: [{ id: 'a1', unit: 'dryer-1', batch: 'D-0042', kind: 't2', key: 't2', state: 'normal', priority: 2, message: 'T² 14.2 above 99 % limit 11.3', value: 14.2, limit: 11.3, active: false, raisedAt: results[45]!.t, clearedAt: results[55]!.t, acknowledgedAt: results[47]!.t, acknowledgedBy: 'op.shift2', acknowledgeComment: 'checked probe window', shelvedUntil: null, shelvedBy: null, shelveReason: null, seq: 45, updatedAt: results[55]!.t }],
+    endpointEvents: [],
+    departure: { firstExitT: results[44]!.t, firstExitSeq: 44, firstExitWhat: 'T² above 99 % limit', window: { fromSeq: 44, toSeq: 59 }, alignedDeviation: [{ pc: 1, meanAbs: 0.4, maxAbs: 1.2 }], regions: [{ name: 'water-1450', from: 1400, to: 1500, assignment: 'O–H 1st overtone (water)', t2Share: 0.6, qShare: 0.7 }] },
+  };
+}
+
+describe('batch report', () => {
+  it('states the batch, model, alarms with acknowledgements, departure and the caution', () => {
+    const html = renderBatchReport(data());
+    for (const s of ['D-0042', 'Fluid-bed dryer 1', 'checked probe window', 'op.shift2', 'O–H 1st overtone (water)', 'none deployed', 'T² limit 99 %', 'Q limit 99 %']) expect(html).toContain(s);
+    expect(html).toContain(ADVISORY_TEXT.replace(/’/g, '&#39;').slice(0, 20).replace('&#39;', '’'));
+    expect(html).not.toMatch(/<script/i);
+  });
+
+  it('escapes text taken from the record', () => {
+    const d = data();
+    d.alarms[0]!.acknowledgeComment = '<img src=x onerror=alert(1)>';
+    expect(renderBatchReport(d)).not.toContain('<img src=x');
+  });
+
+  it('chooses nice ticks (Heckbert 1990) and draws named limit lines', () => {
+    expect(niceTicks(0, 9.3, 5)).toEqual([0, 2, 4, 6, 8, 10]);
+    const svg = lineChart({ title: 't', xLabel: 'elapsed time (min)', yLabel: 'T²', series: [{ name: 's', x: [0, 1], y: [1, 2], color: '#000' }], limits: [{ name: 'T² limit 99 %', y: 1.5, color: '#D55E00' }] });
+    expect(svg).toContain('T² limit 99 %');
+    expect(svg).toContain('elapsed time (min)');
+  });
+
+  const haveTools = chromiumPath() !== null && spawnSync('pdftotext', ['-v']).status === 0;
+  it.skipIf(!haveTools)('prints to PDF whose text and page count check out (pdftotext, pdfinfo from poppler-utils)', async () => {
+    const pdf = await htmlToPdf(renderBatchReport(data()), { title: 'D-0042' });
+    mkdirSync('test-results', { recursive: true });
+    writeFileSync('test-results/report-unit.pdf', pdf);
+    const text = execFileSync('pdftotext', ['-layout', 'test-results/report-unit.pdf', '-']).toString();
+    expect(text).toContain('Batch report');
+    expect(text).toContain('D-0042');
+    expect(text).toContain('Tideline advises');
+    const info = execFileSync('pdfinfo', ['test-results/report-unit.pdf']).toString();
+    const pages = Number(/Pages:\s+(\d+)/.exec(info)![1]);
+    expect(pages).toBeGreaterThanOrEqual(1);
+    expect(pages).toBeLessThanOrEqual(6);
+  });
+  if (!haveTools) it('PDF printing was skipped: Debian chromium or poppler-utils (pdftotext) is not installed', () => expect(haveTools).toBe(false));
+});
