@@ -1,0 +1,58 @@
+/**
+ * Webhook channel: each outbox event is POSTed as JSON to one URL, signed (webhook-signature.ts),
+ * with the event id as idempotency key. Only a 2xx answer counts as delivered; anything else (or
+ * no answer within the timeout) is retried with backoff, and dead-lettered after maxAttempts.
+ */
+import type { BackoffPolicy } from './backoff.ts';
+import type { SignalChannel } from './dispatcher.ts';
+import type { SignalEnvelope } from './outbox-store.ts';
+import { EVENT_ID_HEADER, IDEMPOTENCY_HEADER, SIGNATURE_HEADER, signatureHeader } from './webhook-signature.ts';
+
+export interface WebhookConfig {
+  /** Short name, used in the channel key `webhook:<name>` and in the dead-letter list. */
+  name: string;
+  url: string;
+  secret: string;
+  /** Only these event types (default: all). */
+  types?: string[];
+  maxAttempts: number;
+  backoff: BackoffPolicy;
+  timeoutMs: number;
+}
+
+export class WebhookChannel implements SignalChannel {
+  readonly name: string;
+  readonly maxAttempts: number;
+  readonly backoff: BackoffPolicy;
+
+  constructor(
+    private readonly cfg: WebhookConfig,
+    private readonly now: () => number = Date.now,
+  ) {
+    if (!/^https?:\/\//.test(cfg.url)) throw new Error(`webhook '${cfg.name}': url must start with http:// or https://, got '${cfg.url}'`);
+    if (!cfg.secret || cfg.secret.length < 16) throw new Error(`webhook '${cfg.name}': secret must be at least 16 characters`);
+    this.name = `webhook:${cfg.name}`;
+    this.maxAttempts = cfg.maxAttempts;
+    this.backoff = cfg.backoff;
+  }
+
+  async deliver(event: SignalEnvelope): Promise<void> {
+    if (this.cfg.types && !this.cfg.types.includes(event.type)) return; // filtered out: counts as done
+    const body = JSON.stringify(event);
+    const res = await fetch(this.cfg.url, {
+      method: 'POST',
+      headers: {
+        'content-type': 'application/json',
+        [SIGNATURE_HEADER]: signatureHeader(this.cfg.secret, body, this.now()),
+        [IDEMPOTENCY_HEADER]: event.id,
+        [EVENT_ID_HEADER]: event.id,
+        'user-agent': 'tideline-signals',
+      },
+      body,
+      signal: AbortSignal.timeout(this.cfg.timeoutMs),
+    });
+    // drain the body so the connection can be reused
+    await res.arrayBuffer().catch(() => undefined);
+    if (res.status < 200 || res.status >= 300) throw new Error(`HTTP ${res.status} from ${this.cfg.url}`);
+  }
+}
