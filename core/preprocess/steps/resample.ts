@@ -1,0 +1,41 @@
+/** Linear interpolation onto a new axis (nm); refuses points outside the measured axis. */
+import { PreprocessSpecError } from '../spec.ts';
+import type { Stage } from '../stage.ts';
+
+export function compileResample(index: number, target: number[], axis: Float64Array): Stage {
+  const n = axis.length;
+  if (n < 2) throw new PreprocessSpecError(index, 'resample', null, `needs at least 2 wavelengths entering the step; got ${n}`);
+  for (let j = 1; j < n; j++) {
+    if (!(axis[j]! > axis[j - 1]!)) throw new PreprocessSpecError(index, 'resample', null, `the axis entering this step must increase strictly; value ${j} (${axis[j]} nm) does not`);
+  }
+  const lo = axis[0]!;
+  const hi = axis[n - 1]!;
+  const m = target.length;
+  const left = new Int32Array(m);
+  const frac = new Float64Array(m);
+  let j = 0;
+  for (let k = 0; k < m; k++) {
+    const x = target[k]!;
+    if (x < lo || x > hi) {
+      throw new PreprocessSpecError(index, 'resample', 'axis', `${x} nm lies outside the axis entering this step (${lo}–${hi} nm); extrapolation is refused`);
+    }
+    while (j < n - 2 && axis[j + 1]! < x) j++;
+    // x in [axis[j], axis[j+1]]
+    left[k] = j;
+    frac[k] = (x - axis[j]!) / (axis[j + 1]! - axis[j]!);
+  }
+  return {
+    inLength: n,
+    outLength: m,
+    outAxis: Float64Array.from(target),
+    fitted: null,
+    apply(src, dst) {
+      for (let k = 0; k < m; k++) {
+        const i = left[k]!;
+        const f = frac[k]!;
+        const a = src[i]!;
+        dst[k] = f === 0 ? a : a + f * (src[i + 1]! - a);
+      }
+    },
+  };
+}

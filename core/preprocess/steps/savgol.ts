@@ -1,0 +1,66 @@
+/**
+ * Savitzky–Golay smoothing and derivatives on an evenly spaced axis.
+ *
+ * Edge treatment (documented, no silent zeros): for the first and last (window−1)/2 points the
+ * polynomial fitted to the first (last) full window is evaluated at those points — the same
+ * treatment as scipy.signal.savgol_filter(mode='interp'). Derivatives are per nm: the per-step
+ * coefficients are divided by Δλ^d, Δλ the axis step in nm. The axis entering the step must be
+ * evenly spaced (each step within 0.1 % of the mean step); otherwise add a resample step first.
+ */
+import { PreprocessSpecError } from '../spec.ts';
+import type { Stage } from '../stage.ts';
+import { savgolAllPositions } from '../savgol-coefficients.ts';
+
+export const SAVGOL_SPACING_TOLERANCE = 1e-3;
+
+export function compileSavgol(index: number, window: number, polyorder: number, deriv: 0 | 1 | 2, axis: Float64Array): Stage {
+  const n = axis.length;
+  if (window > n) throw new PreprocessSpecError(index, 'savgol', 'window', `window ${window} is longer than the ${n} variables entering the step`);
+  let step = 1;
+  if (n > 1) {
+    step = (axis[n - 1]! - axis[0]!) / (n - 1);
+    if (!(step > 0)) throw new PreprocessSpecError(index, 'savgol', null, 'the axis entering the step must increase');
+    for (let j = 1; j < n; j++) {
+      const d = axis[j]! - axis[j - 1]!;
+      if (Math.abs(d - step) > SAVGOL_SPACING_TOLERANCE * step) {
+        throw new PreprocessSpecError(index, 'savgol', null, `the axis entering the step is not evenly spaced (step ${d} nm at ${axis[j - 1]} nm, mean ${step} nm); resample it first`);
+      }
+    }
+  }
+  const w = window;
+  const half = (w - 1) / 2;
+  const all = savgolAllPositions(w, polyorder, deriv);
+  const scale = 1 / step ** deriv;
+  for (let k = 0; k < all.length; k++) all[k]! *= scale;
+  const centre = all.slice(half * w, (half + 1) * w);
+  const tailStart = n - w; // first index of the last window
+  return {
+    inLength: n,
+    outLength: n,
+    outAxis: axis,
+    fitted: null,
+    apply(src, dst) {
+      // Left edge: polynomial of the first window, evaluated at positions 0…half−1.
+      for (let i = 0; i < half; i++) {
+        const off = i * w;
+        let acc = 0;
+        for (let j = 0; j < w; j++) acc += all[off + j]! * src[j]!;
+        dst[i] = acc;
+      }
+      const end = n - half;
+      for (let i = half; i < end; i++) {
+        const base = i - half;
+        let acc = 0;
+        for (let j = 0; j < w; j++) acc += centre[j]! * src[base + j]!;
+        dst[i] = acc;
+      }
+      // Right edge: polynomial of the last window, evaluated at positions half+1…w−1.
+      for (let i = Math.max(end, half); i < n; i++) {
+        const off = (i - tailStart) * w;
+        let acc = 0;
+        for (let j = 0; j < w; j++) acc += all[off + j]! * src[tailStart + j]!;
+        dst[i] = acc;
+      }
+    },
+  };
+}
