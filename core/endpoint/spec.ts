@@ -1,0 +1,54 @@
+/**
+ * Endpoint rule settings. Criteria (combinable with all / any), confirmed over N consecutive
+ * spectra:
+ * - property: PLS-predicted property crosses a target (e.g. moisture ≤ 2 % w/w);
+ * - mbsd: moving-block standard deviation (Sekulic et al. 1996, Anal. Chem. 68:509) below a threshold;
+ * - plateau: the least-squares slope of one PC score over the last `window` spectra, per minute,
+ *   within ± tolerance;
+ * - golden-end: the scores within the limit of the golden end region (Hotelling-type distance to
+ *   the reference batches' scores at their endpoints).
+ * 'auto' thresholds are resolved from the reference batches at model build and stored resolved.
+ */
+import { z } from 'zod';
+
+const auto = z.literal('auto');
+
+export const endpointCriterionSpecSchema = z.discriminatedUnion('kind', [
+  z.object({ kind: z.literal('property'), target: z.number().optional(), direction: z.enum(['below', 'above']).optional() }),
+  z.object({ kind: z.literal('mbsd'), block: z.number().int().min(2).max(50), threshold: z.union([z.number().positive(), auto]) }),
+  z.object({ kind: z.literal('plateau'), pc: z.number().int().min(1), window: z.number().int().min(3).max(200), tolerance: z.union([z.number().positive(), auto]) }),
+  z.object({ kind: z.literal('golden-end') }),
+]);
+export type EndpointCriterionSpec = z.infer<typeof endpointCriterionSpecSchema>;
+
+export const endpointRuleSpecSchema = z.object({
+  criteria: z.array(endpointCriterionSpecSchema).min(1),
+  combine: z.enum(['all', 'any']),
+  /** Consecutive spectra meeting the rule before 'done'. */
+  confirm: z.number().int().min(1).max(100),
+  /** 'nearing' once the estimated time to endpoint is at most this many minutes. */
+  nearingMin: z.number().nonnegative(),
+});
+export type EndpointRuleSpec = z.infer<typeof endpointRuleSpecSchema>;
+
+/** The rule after build: every threshold a number. */
+export type ResolvedCriterion =
+  | { kind: 'property'; target: number; direction: 'below' | 'above'; name: string; unit: string }
+  | { kind: 'mbsd'; block: number; threshold: number }
+  | { kind: 'plateau'; pc: number; window: number; tolerance: number }
+  | { kind: 'golden-end'; limit: number };
+export interface ResolvedEndpointRule {
+  criteria: ResolvedCriterion[];
+  combine: 'all' | 'any';
+  confirm: number;
+  nearingMin: number;
+}
+
+export function validateEndpointRuleSpec(spec: unknown): EndpointRuleSpec {
+  const r = endpointRuleSpecSchema.safeParse(spec);
+  if (!r.success) {
+    const i = r.error.issues[0]!;
+    throw new RangeError(`endpoint rule: ${i.path.join('.') || '(root)'}: ${i.message}`);
+  }
+  return r.data;
+}

@@ -1,0 +1,42 @@
+import { describe, expect, it } from 'vitest';
+import { EndpointTracker, type EndpointInputs } from '../../core/endpoint/endpoint-tracker.ts';
+import { validateEndpointRuleSpec } from '../../core/endpoint/spec.ts';
+import type { DomainEvent } from '../../core/monitor/types.ts';
+
+const base: EndpointInputs = { property: null, mbsd: null, slopes: [], goldenEndDistance: null, eta: null };
+
+describe('endpoint state machine (issue 4: running → nearing → settling → done → signalled)', () => {
+  it('confirms over N consecutive spectra, falls back on a break, and is final once done', () => {
+    const tr = new EndpointTracker({ criteria: [{ kind: 'property', target: 2, direction: 'below', name: 'moisture', unit: '% w/w' }], combine: 'all', confirm: 3, nearingMin: 5 });
+    const ev: DomainEvent[] = [];
+    const seqs = [
+      { property: 5, eta: { median: 20, low: 15, high: 25 } }, // running
+      { property: 3, eta: { median: 4, low: 3, high: 6 } }, // nearing (eta ≤ 5)
+      { property: 1.9, eta: null }, // settling 1
+      { property: 2.1, eta: null }, // break → nearing
+      { property: 1.9, eta: null }, // settling 1
+      { property: 1.8, eta: null }, // settling 2
+      { property: 1.7, eta: null }, // done
+      { property: 3, eta: null }, // stays done
+    ];
+    const states = seqs.map((s, i) => tr.update(i, 1000 * i, { ...base, ...s }, ev).state);
+    expect(states).toEqual(['running', 'nearing', 'settling', 'nearing', 'settling', 'settling', 'done', 'done']);
+    expect(ev.map((e) => e.type === 'endpoint-state' && `${e.from}>${e.to}`)).toEqual(['running>nearing', 'nearing>settling', 'settling>nearing', 'nearing>settling', 'settling>done']);
+    const last = tr.update(8, 8000, { ...base, property: 1 }, ev);
+    expect(last.doneAt).toMatchObject({ seq: 6, t: 6000 });
+    expect(last.etaMin).toBeNull();
+    const sig = tr.markSignalled(9000, 8);
+    expect(sig).toMatchObject({ from: 'done', to: 'signalled' });
+    expect(tr.markSignalled(9000, 8)).toBeNull();
+  });
+  it('combine all needs every criterion; any needs one', () => {
+    const rule = (combine: 'all' | 'any') => new EndpointTracker({ criteria: [{ kind: 'mbsd', block: 3, threshold: 0.01 }, { kind: 'golden-end', limit: 9 }], combine, confirm: 1, nearingMin: 0 });
+    const inp = { ...base, mbsd: 0.005, goldenEndDistance: 20 };
+    expect(rule('all').update(0, 0, inp, []).state).toBe('nearing');
+    expect(rule('any').update(0, 0, inp, []).state).toBe('done');
+  });
+  it('validates the rule and names the bad field', () => {
+    expect(() => validateEndpointRuleSpec({ criteria: [], combine: 'all', confirm: 3, nearingMin: 5 })).toThrow(/criteria/);
+    expect(() => validateEndpointRuleSpec({ criteria: [{ kind: 'mbsd', block: 1, threshold: 'auto' }], combine: 'all', confirm: 3, nearingMin: 5 })).toThrow(/criteria\.0\.block/);
+  });
+});
