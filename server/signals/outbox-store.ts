@@ -204,3 +204,13 @@ export class OutboxStore {
     this.sDeadDelivered.run(now, channel, eventId);
   }
 }
+
+/** Rows a channel has already passed (unit_seq ≤ its cursor), oldest first, at most `limit` of the newest. */
+export function deliveredRows(store: OutboxStore, channel: string, unit: string, limit = 5000): OutboxRow[] {
+  const upTo = store.cursor(channel, unit);
+  return store.db
+    .prepare<[string, number, number], OutboxRow>(
+      'SELECT * FROM (SELECT id, unit, unit_seq, type, payload, created_at FROM outbox WHERE unit = ? AND unit_seq <= ? ORDER BY unit_seq DESC LIMIT ?) ORDER BY unit_seq',
+    )
+    .all(unit, upTo, limit);
+}
