@@ -1,0 +1,14 @@
+/**
+ * Audit trail (issue 8). `install(ctx)` sets ctx.audit (and ctx.auth) and mounts /api/audit/*.
+ */
+import { ensureSecurity, type SecurityHost } from '../auth/security-setup.ts';
+import { auditRouter } from './audit-routes.ts';
+
+export function install(ctx: SecurityHost): void {
+  const { audit, auth } = ensureSecurity(ctx);
+  const now = ctx.now ? () => ctx.now!() : Date.now;
+  ctx.api.use('/audit', auditRouter(audit, auth, now));
+}
+
+export { SqliteAuditTrail } from './audit-trail.ts';
+export * from './types.ts';

@@ -1,0 +1,409 @@
+/**
+ * Access control: users and roles, login with throttling, sessions with CSRF tokens, analyzer
+ * tokens, electronic signatures. Every change is written to the audit trail.
+ */
+import type Database from 'better-sqlite3';
+import type { IncomingMessage } from 'node:http';
+import type { NextFunction, Request, RequestHandler, Response } from 'express';
+import { timingSafeEqual } from 'node:crypto';
+import type { AuditTrail } from '../audit/types.ts';
+import { AnalyzerTokenStore } from './analyzer-tokens.ts';
+import { readCookie } from './cookies.ts';
+import { HttpError, sendHttpError } from './http-problem.ts';
+import { DEFAULT_THROTTLE, LoginThrottle, addressKey, userKey, type ThrottlePolicy } from './login-throttle.ts';
+import { DEFAULT_SCRYPT_LOG2N, hashPassword, needsRehash, passwordProblem, verifyPassword } from './password.ts';
+import { DEFAULT_SESSION_TIMES, SessionStore, type SessionTimes } from './session-store.ts';
+import { SignatureStore } from './signature-store.ts';
+import {
+  CSRF_COOKIE,
+  CSRF_HEADER,
+  SESSION_COOKIE,
+  SIGNATURE_MEANINGS,
+  SignatureError,
+  isRole,
+  roleAtLeast,
+  type AnalyzerTokenInfo,
+  type Auth,
+  type AuthUser,
+  type Role,
+  type SignatureRecord,
+  type SignatureRequest,
+} from './types.ts';
+import { USER_NAME_RE, UserStore, toAuthUser, toUserView, type UserRow, type UserView } from './user-store.ts';
+
+export interface AuthOptions {
+  now?: () => number;
+  /** log2 of the scrypt cost N for new hashes (default 17). */
+  scryptLog2N?: number;
+  session?: Partial<SessionTimes>;
+  throttle?: Partial<ThrottlePolicy>;
+  /** Mark cookies Secure (set when TLS is configured). */
+  secureCookies?: boolean;
+}
+
+const UNSAFE = new Set(['POST', 'PUT', 'PATCH', 'DELETE']);
+
+export interface LoginResult {
+  user: AuthUser;
+  token: string;
+  csrfToken: string;
+  expiresAt: number;
+  mustChangePassword: boolean;
+}
+
+export interface SessionInfo {
+  user: AuthUser;
+  csrfToken: string;
+  expiresAt: number;
+  mustChangePassword: boolean;
+}
+
+function sameSecret(a: string, b: string): boolean {
+  const x = Buffer.from(a);
+  const y = Buffer.from(b);
+  return x.length === y.length && timingSafeEqual(x, y);
+}
+
+function clip(s: string, n = 64): string {
+  return s.length > n ? s.slice(0, n) + '…' : s;
+}
+
+export class AuthService implements Auth {
+  readonly users: UserStore;
+  readonly sessions: SessionStore;
+  readonly throttle: LoginThrottle;
+  readonly tokens: AnalyzerTokenStore;
+  readonly signatures: SignatureStore;
+  readonly now: () => number;
+  readonly scryptLog2N: number;
+  readonly secureCookies: boolean;
+  private dummyHash: Promise<string> | null = null;
+
+  constructor(
+    readonly db: Database.Database,
+    readonly audit: AuditTrail,
+    opts: AuthOptions = {},
+  ) {
+    this.now = opts.now ?? Date.now;
+    this.scryptLog2N = opts.scryptLog2N ?? DEFAULT_SCRYPT_LOG2N;
+    this.secureCookies = opts.secureCookies ?? false;
+    this.users = new UserStore(db);
+    this.sessions = new SessionStore(db, { ...DEFAULT_SESSION_TIMES, ...opts.session }, this.now);
+    this.throttle = new LoginThrottle(db, { ...DEFAULT_THROTTLE, ...opts.throttle }, this.now);
+    this.tokens = new AnalyzerTokenStore(db, this.now);
+    this.signatures = new SignatureStore(db);
+  }
+
+  private iso(): string {
+    return new Date(this.now()).toISOString();
+  }
+
+  // ---- users ------------------------------------------------------------------------------------
+
+  async createUser(
+    u: { name: string; fullName?: string; role: Role; password: string; mustChangePassword?: boolean },
+    by: string,
+  ): Promise<UserView> {
+    if (typeof u.name !== 'string' || !USER_NAME_RE.test(u.name))
+      throw new HttpError(400, 'bad-user', 'Bad user', 'user name must be 2–64 characters of A-Z a-z 0-9 . _ - starting with a letter or digit');
+    if (!isRole(u.role)) throw new HttpError(400, 'bad-user', 'Bad user', `role must be one of viewer, operator, model-owner, administrator (got ${String(u.role)})`);
+    const pp = passwordProblem(u.password);
+    if (pp) throw new HttpError(400, 'bad-password', 'Password not accepted', pp);
+    const fullName = (u.fullName ?? u.name).trim() || u.name;
+    if (fullName.length > 200) throw new HttpError(400, 'bad-user', 'Bad user', 'full name longer than 200 characters');
+    if (this.users.byName(u.name)) throw new HttpError(409, 'user-exists', 'User exists', `a user named ${u.name} already exists`);
+    const hash = await hashPassword(u.password, this.scryptLog2N);
+    const at = this.iso();
+    const row = this.db.transaction(() => {
+      const r = this.users.insert({ name: u.name, fullName, role: u.role, passwordHash: hash, mustChange: !!u.mustChangePassword, createdBy: by, at });
+      this.audit.record({ user: by, action: 'user.create', object: `user:${r.name}`, after: { name: r.name, fullName, role: u.role } });
+      return r;
+    })();
+    return toUserView(row);
+  }
+
+  listUsers(): UserView[] {
+    return this.users.list().map(toUserView);
+  }
+
+  /** Administrator changes to another user: role, full name, disabled, password reset. */
+  async updateUser(
+    name: string,
+    change: { role?: Role; fullName?: string; disabled?: boolean; password?: string; mustChangePassword?: boolean },
+    by: AuthUser | string,
+    reason?: string,
+  ): Promise<UserView> {
+    const byName = typeof by === 'string' ? by : by.name;
+    const row = this.users.byName(name);
+    if (!row) throw new HttpError(404, 'no-such-user', 'No such user', `no user named ${name}`);
+    if (change.role !== undefined && !isRole(change.role)) throw new HttpError(400, 'bad-user', 'Bad user', `unknown role ${String(change.role)}`);
+    if (change.password !== undefined) {
+      const pp = passwordProblem(change.password);
+      if (pp) throw new HttpError(400, 'bad-password', 'Password not accepted', pp);
+    }
+    const losesAdmin =
+      row.role === 'administrator' && !row.disabled_at && ((change.role && change.role !== 'administrator') || change.disabled === true);
+    if (losesAdmin && this.users.activeAdministrators() <= 1)
+      throw new HttpError(409, 'last-administrator', 'Last administrator', 'this is the last active administrator: create another one first');
+    const hash = change.password !== undefined ? await hashPassword(change.password, this.scryptLog2N) : null;
+    const at = this.iso();
+    const after = this.db.transaction(() => {
+      const before = { role: row.role, fullName: row.full_name, disabled: row.disabled_at !== null };
+      if (change.role !== undefined) this.users.setRole(row.id, change.role);
+      if (change.fullName !== undefined) this.users.setFullName(row.id, change.fullName.trim() || row.name);
+      if (change.disabled !== undefined) this.users.setDisabled(row.id, change.disabled ? (row.disabled_at ?? at) : null);
+      if (hash) this.users.setPassword(row.id, hash, change.mustChangePassword ?? true, at);
+      const r = this.users.byId(row.id)!;
+      const afterState = { role: r.role, fullName: r.full_name, disabled: r.disabled_at !== null, ...(hash ? { passwordReset: true } : {}) };
+      // Role change, disabling and password reset end the user's sessions.
+      if (change.role !== undefined || change.disabled || hash) this.sessions.deleteForUser(row.id);
+      this.audit.record({ user: byName, action: 'user.update', object: `user:${r.name}`, before, after: afterState, reason: reason ?? null });
+      return r;
+    })();
+    return toUserView(after);
+  }
+
+  async changeOwnPassword(user: AuthUser, current: string, next: string, keepToken: string | undefined, address: string): Promise<void> {
+    const row = this.users.byId(user.id);
+    if (!row) throw new HttpError(401, 'login-required', 'Login required', 'user no longer exists');
+    this.checkThrottle(row.name, address);
+    if (!(await verifyPassword(String(current ?? ''), row.password_hash))) {
+      this.recordFailure(row.name, address, 'password.change', 'current password wrong');
+      throw new HttpError(401, 'wrong-password', 'Wrong password', 'the current password is wrong');
+    }
+    const pp = passwordProblem(next);
+    if (pp) throw new HttpError(400, 'bad-password', 'Password not accepted', pp);
+    if (current === next) throw new HttpError(400, 'bad-password', 'Password not accepted', 'the new password must differ from the current one');
+    const hash = await hashPassword(next, this.scryptLog2N);
+    this.db.transaction(() => {
+      this.users.setPassword(row.id, hash, false, this.iso());
+      this.sessions.deleteForUser(row.id, keepToken);
+      this.audit.record({ user: row.name, action: 'user.password-change', object: `user:${row.name}` });
+    })();
+  }
+
+  // ---- login ------------------------------------------------------------------------------------
+
+  private checkThrottle(name: string, address: string): void {
+    const c = this.throttle.check([userKey(name), addressKey(address)]);
+    if (c.waitMs > 0) {
+      const s = Math.ceil(c.waitMs / 1000);
+      const what = c.key?.startsWith('addr:') ? 'from this address' : 'for this user';
+      throw new HttpError(429, 'too-many-attempts', 'Too many failed attempts', `too many failed attempts ${what}: try again in ${s} s`, s);
+    }
+  }
+
+  /** Count a failure, audit it, and audit a lock when one engages. */
+  private recordFailure(name: string, address: string, action: string, why: string): void {
+    const states = this.throttle.fail([userKey(name), addressKey(address)]);
+    this.audit.record({ user: 'anonymous', action: `${action}.failed`, object: `user:${clip(name)}`, after: { address }, reason: why });
+    for (const s of states) {
+      if (s.lockedUntil > 0)
+        this.audit.record({
+          user: SYSTEM_USER,
+          action: 'auth.throttle',
+          object: s.key.startsWith('addr:') ? `address:${clip(s.key.slice(5))}` : `user:${clip(s.key.slice(5))}`,
+          after: { failures: s.failures, lockedUntil: new Date(s.lockedUntil).toISOString() },
+          reason: 'repeated failed attempts',
+        });
+    }
+  }
+
+  private async dummy(): Promise<string> {
+    this.dummyHash ??= hashPassword('tideline-dummy-password', this.scryptLog2N);
+    return this.dummyHash;
+  }
+
+  async login(name: unknown, password: unknown, address: string): Promise<LoginResult> {
+    if (typeof name !== 'string' || name.length === 0 || name.length > 64)
+      throw new HttpError(400, 'bad-request', 'Bad request', 'name must be a non-empty string of at most 64 characters');
+    if (typeof password !== 'string' || password.length === 0 || password.length > 256)
+      throw new HttpError(400, 'bad-request', 'Bad request', 'password must be a non-empty string of at most 256 characters');
+    this.checkThrottle(name, address);
+    const row = this.users.byName(name);
+    const ok = row ? await verifyPassword(password, row.password_hash) : (await verifyPassword(password, await this.dummy()), false);
+    if (!row || !ok) {
+      this.recordFailure(name, address, 'auth.login', row ? 'wrong password' : 'unknown user');
+      throw new HttpError(401, 'login-failed', 'Login failed', 'user name or password is wrong');
+    }
+    if (row.disabled_at) {
+      this.audit.record({ user: row.name, action: 'auth.login.failed', object: `user:${row.name}`, after: { address }, reason: 'account disabled' });
+      throw new HttpError(403, 'account-disabled', 'Account disabled', 'this account is disabled; ask an administrator');
+    }
+    this.throttle.clear(userKey(name));
+    if (needsRehash(row.password_hash, this.scryptLog2N)) this.users.replaceHash(row.id, await hashPassword(password, this.scryptLog2N));
+    const s = this.sessions.create(row.id, address);
+    this.audit.record({ user: row.name, action: 'auth.login', object: `user:${row.name}`, after: { address } });
+    return { user: toAuthUser(row), token: s.token, csrfToken: s.csrf, expiresAt: s.expiresAt, mustChangePassword: row.must_change_password === 1 };
+  }
+
+  logout(token: string, user: AuthUser): void {
+    this.sessions.delete(token);
+    this.audit.record({ user: user.name, action: 'auth.logout', object: `user:${user.name}` });
+  }
+
+  // ---- sessions and middleware ----------------------------------------------------------------
+
+  /** The session behind a Cookie header, or null. */
+  session(cookieHeader: string | undefined): (SessionInfo & { token: string }) | null {
+    const token = readCookie(cookieHeader, SESSION_COOKIE);
+    if (!token || token.length > 100) return null;
+    const s = this.sessions.lookup(token);
+    if (!s) return null;
+    const row: UserRow | undefined = this.users.byId(s.user_id);
+    if (!row || row.disabled_at) return null;
+    return { token, user: toAuthUser(row), csrfToken: s.csrf_token, expiresAt: s.expires_at, mustChangePassword: row.must_change_password === 1 };
+  }
+
+  userFromRequest(req: IncomingMessage): AuthUser | null {
+    return this.session(req.headers.cookie)?.user ?? null;
+  }
+
+  identify(): RequestHandler {
+    return (req: Request, _res: Response, next: NextFunction) => {
+      const s = this.session(req.headers.cookie);
+      if (s) req.user = s.user;
+      next();
+    };
+  }
+
+  requireRole(role: Role): RequestHandler {
+    if (!isRole(role)) throw new Error(`requireRole: unknown role ${String(role)}`);
+    return (req: Request, res: Response, next: NextFunction) => {
+      const s = this.session(req.headers.cookie);
+      if (!s) return sendHttpError(res, new HttpError(401, 'login-required', 'Login required', 'no valid session: log in with POST /api/auth/login'));
+      if (!roleAtLeast(s.user.role, role))
+        return sendHttpError(
+          res,
+          new HttpError(403, 'forbidden', 'Forbidden', `this needs the role ${role} or above; ${s.user.name} has the role ${s.user.role}`),
+        );
+      if (UNSAFE.has(req.method)) {
+        const h = req.get(CSRF_HEADER);
+        if (!h || !sameSecret(h, s.csrfToken))
+          return sendHttpError(
+            res,
+            new HttpError(403, 'csrf', 'CSRF token missing or wrong', `send the header ${CSRF_HEADER} with the csrfToken from login or GET /api/auth/me`),
+          );
+      }
+      req.user = s.user;
+      next();
+    };
+  }
+
+  /**
+   * Defence in depth for a whole API: refuses every POST/PUT/PATCH/DELETE without a valid
+   * session and CSRF header, except the paths in `open` (login). Mount before the routes.
+   */
+  writeGuard(open: string[] = ['/api/auth/login']): RequestHandler {
+    const viewer = this.requireRole('viewer');
+    return (req, res, next) => {
+      if (!UNSAFE.has(req.method) || open.includes(req.originalUrl.split('?')[0])) return next();
+      viewer(req, res, next);
+    };
+  }
+
+  /** Set the session and CSRF cookies after login. */
+  setSessionCookies(res: Response, r: { token: string; csrfToken: string; expiresAt: number }): void {
+    const maxAge = Math.max(0, r.expiresAt - this.now());
+    res.cookie(SESSION_COOKIE, r.token, { httpOnly: true, sameSite: 'strict', secure: this.secureCookies, path: '/', maxAge });
+    // Readable by the page's script, which echoes it in the x-csrf-token header.
+    res.cookie(CSRF_COOKIE, r.csrfToken, { httpOnly: false, sameSite: 'strict', secure: this.secureCookies, path: '/', maxAge });
+  }
+
+  clearSessionCookies(res: Response): void {
+    res.clearCookie(SESSION_COOKIE, { httpOnly: true, sameSite: 'strict', secure: this.secureCookies, path: '/' });
+    res.clearCookie(CSRF_COOKIE, { sameSite: 'strict', secure: this.secureCookies, path: '/' });
+  }
+
+  // ---- analyzer tokens --------------------------------------------------------------------------
+
+  verifyAnalyzerToken(token: string): string | null {
+    return this.tokens.verify(token);
+  }
+
+  createAnalyzerToken(analyzer: string, label: string, createdBy: string): { id: string; token: string } {
+    return this.db.transaction(() => {
+      const t = this.tokens.create(analyzer, label, createdBy);
+      this.audit.record({ user: createdBy, action: 'analyzer-token.create', object: `analyzer:${analyzer}`, after: { tokenId: t.id, label } });
+      return { id: t.id, token: t.token };
+    })();
+  }
+
+  listAnalyzerTokens(): AnalyzerTokenInfo[] {
+    return this.tokens.list();
+  }
+
+  revokeAnalyzerToken(id: string, revokedBy: string): boolean {
+    return this.db.transaction(() => {
+      const info = this.tokens.get(id);
+      if (!info || !this.tokens.revoke(id, revokedBy)) return false;
+      this.audit.record({ user: revokedBy, action: 'analyzer-token.revoke', object: `analyzer:${info.analyzer}`, before: { tokenId: id, revoked: false }, after: { tokenId: id, revoked: true } });
+      return true;
+    })();
+  }
+
+  // ---- electronic signatures ----------------------------------------------------------------
+
+  async sign<T = void>(req: SignatureRequest, apply?: (sig: SignatureRecord) => T): Promise<{ signature: SignatureRecord; result: T }> {
+    const object = `${req.objectType}:${req.objectId}`;
+    if (!(SIGNATURE_MEANINGS as readonly string[]).includes(req.meaning)) throw new SignatureError(`unknown signature meaning ${String(req.meaning)}`, 400);
+    if (typeof req.reason !== 'string' || req.reason.trim().length === 0) throw new SignatureError('a signature needs a reason', 400);
+    if (req.reason.length > 2000) throw new SignatureError('reason longer than 2000 characters', 400);
+    if (typeof req.objectHash !== 'string' || !/^[0-9a-f]{64}$/i.test(req.objectHash))
+      throw new SignatureError('the signed object needs its SHA-256 (64 hex digits)', 400);
+    if (typeof req.password !== 'string' || req.password.length === 0)
+      throw new SignatureError('re-enter your password to sign', 400);
+    const address = req.address ?? 'unknown';
+    const row = this.users.byId(req.user.id);
+    if (!row || row.disabled_at) throw new SignatureError('the signing user does not exist or is disabled', 403);
+    try {
+      this.checkThrottle(row.name, address);
+    } catch (e) {
+      if (e instanceof HttpError) throw new SignatureError(e.message, 429);
+      throw e;
+    }
+    if (!(await verifyPassword(req.password, row.password_hash))) {
+      this.throttle.fail([userKey(row.name), addressKey(address)]);
+      this.audit.record({
+        user: row.name,
+        action: 'signature.failed',
+        object,
+        after: { meaning: req.meaning, objectHash: req.objectHash },
+        reason: 'wrong password',
+      });
+      throw new SignatureError('password does not match: signature refused (this attempt is in the audit trail)', 401);
+    }
+    this.throttle.clear(userKey(row.name));
+    const user = toAuthUser(row);
+    return this.db.transaction(() => {
+      const rec = this.audit.record({
+        user: user.name,
+        action: `signature.${req.meaning}`,
+        object,
+        after: { meaning: req.meaning, objectHash: req.objectHash, signer: user.fullName, role: user.role },
+        reason: req.reason,
+      });
+      const signature = this.signatures.insert({
+        userId: user.id,
+        userName: user.name,
+        fullName: user.fullName,
+        role: user.role,
+        meaning: req.meaning,
+        objectType: req.objectType,
+        objectId: req.objectId,
+        objectHash: req.objectHash,
+        reason: req.reason,
+        signedAt: rec.at,
+        auditSeq: rec.seq,
+      });
+      const result = apply ? apply(signature) : (undefined as T);
+      return { signature, result };
+    })();
+  }
+
+  signaturesFor(objectType: string, objectId: string): SignatureRecord[] {
+    return this.signatures.forObject(objectType, objectId);
+  }
+}
+
+export const SYSTEM_USER = 'system';

@@ -1,0 +1,57 @@
+/**
+ * Creates the audit trail and the auth service for a server (once per server context), from the
+ * shared SQLite handle and the `auth`/`tls` parts of the configuration.
+ */
+import type Database from 'better-sqlite3';
+import type { Router } from 'express';
+import { SqliteAuditTrail } from '../audit/audit-trail.ts';
+import type { AuditTrail } from '../audit/types.ts';
+import { AuthService } from './auth-service.ts';
+import { readSecurityConfig } from './security-config.ts';
+import type { Auth } from './types.ts';
+
+/** The part of the server context (server/context.ts) that auth and audit use. */
+export interface SecurityHost {
+  storage: { db: Database.Database };
+  /** Router mounted at /api. */
+  api: Router;
+  config?: unknown;
+  audit?: AuditTrail;
+  auth?: Auth;
+  now?(): number;
+  onClose?(fn: () => void | Promise<void>): void;
+}
+
+export function createSecurity(db: Database.Database, config: unknown, now: () => number = Date.now): { audit: SqliteAuditTrail; auth: AuthService } {
+  const { auth: ac, tls } = readSecurityConfig(config);
+  const audit = new SqliteAuditTrail(db, { now });
+  const auth = new AuthService(db, audit, {
+    now,
+    scryptLog2N: ac.scryptLog2N,
+    secureCookies: tls !== null,
+    session: { idleMs: ac.sessionIdleMinutes * 60_000, maxMs: ac.sessionMaxHours * 3_600_000 },
+    throttle: {
+      userFreeFailures: ac.userFreeFailures,
+      addressFreeFailures: ac.addressFreeFailures,
+      baseDelayMs: ac.lockBaseMs,
+      maxDelayMs: ac.lockMaxMs,
+    },
+  });
+  return { audit, auth };
+}
+
+/** ctx.audit and ctx.auth, created on first use and set on the context. */
+export function ensureSecurity(host: SecurityHost): { audit: SqliteAuditTrail; auth: AuthService } {
+  if (host.audit instanceof SqliteAuditTrail && host.auth instanceof AuthService) return { audit: host.audit, auth: host.auth };
+  const now = host.now ? () => host.now!() : Date.now;
+  const made = createSecurity(host.storage.db, host.config, now);
+  const audit = host.audit instanceof SqliteAuditTrail ? host.audit : made.audit;
+  const auth = host.auth instanceof AuthService ? host.auth : made.auth;
+  host.audit = audit;
+  host.auth = auth;
+  // Expired sessions are refused on lookup anyway; this keeps the table small.
+  const timer = setInterval(() => auth.sessions.purgeExpired(), 10 * 60_000);
+  timer.unref();
+  host.onClose?.(() => clearInterval(timer));
+  return { audit, auth };
+}

@@ -1,0 +1,57 @@
+/** Electronic signature records (table auth_signatures, append-only). */
+import type Database from 'better-sqlite3';
+import type { Role, SignatureMeaning, SignatureRecord } from './types.ts';
+
+interface Row {
+  id: number;
+  user_id: number;
+  user_name: string;
+  full_name: string;
+  role: string;
+  meaning: string;
+  object_type: string;
+  object_id: string;
+  object_hash: string;
+  reason: string;
+  signed_at: string;
+  audit_seq: number;
+}
+
+function view(r: Row): SignatureRecord {
+  return {
+    id: r.id,
+    userName: r.user_name,
+    fullName: r.full_name,
+    role: r.role as Role,
+    meaning: r.meaning as SignatureMeaning,
+    objectType: r.object_type,
+    objectId: r.object_id,
+    objectHash: r.object_hash,
+    reason: r.reason,
+    signedAt: r.signed_at,
+    auditSeq: r.audit_seq,
+  };
+}
+
+export class SignatureStore {
+  constructor(private readonly db: Database.Database) {}
+
+  insert(s: Omit<SignatureRecord, 'id'> & { userId: number }): SignatureRecord {
+    const info = this.db
+      .prepare(
+        'INSERT INTO auth_signatures (user_id, user_name, full_name, role, meaning, object_type, object_id, object_hash, reason, signed_at, audit_seq) VALUES (?,?,?,?,?,?,?,?,?,?,?)',
+      )
+      .run(s.userId, s.userName, s.fullName, s.role, s.meaning, s.objectType, s.objectId, s.objectHash, s.reason, s.signedAt, s.auditSeq);
+    return view(this.db.prepare('SELECT * FROM auth_signatures WHERE id = ?').get(Number(info.lastInsertRowid)) as Row);
+  }
+
+  forObject(objectType: string, objectId: string): SignatureRecord[] {
+    return (
+      this.db.prepare('SELECT * FROM auth_signatures WHERE object_type = ? AND object_id = ? ORDER BY id').all(objectType, objectId) as Row[]
+    ).map(view);
+  }
+
+  list(limit = 500): SignatureRecord[] {
+    return (this.db.prepare('SELECT * FROM auth_signatures ORDER BY id DESC LIMIT ?').all(limit) as Row[]).map(view);
+  }
+}
