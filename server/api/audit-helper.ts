@@ -1,0 +1,18 @@
+/** Writes audit records through server/audit when installed, else as plain rows in `audit`. */
+import type { Request } from 'express';
+import type { ServerContext } from '../context.ts';
+
+export function userOf(req: Request): string {
+  return req.user?.name ?? 'anonymous';
+}
+
+export async function recordAudit(
+  ctx: ServerContext,
+  e: { user: string; action: string; object: string; before?: unknown; after?: unknown; reason?: string | null },
+): Promise<void> {
+  if (ctx.audit) {
+    ctx.audit.record({ user: e.user, action: e.action, object: e.object, before: e.before, after: e.after, reason: e.reason ?? null });
+    return;
+  }
+  await ctx.storage.appendAudit({ at: ctx.now(), user: e.user, action: e.action, object: e.object, before: e.before, after: e.after, reason: e.reason ?? undefined });
+}

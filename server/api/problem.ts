@@ -1,0 +1,66 @@
+/** RFC 9457 problem details for every error answer of the REST API. */
+import type { ErrorRequestHandler, Request } from 'express';
+import { z } from 'zod';
+import type { Problem } from '../../core/api/rest.ts';
+import type { Logger } from '../logger.ts';
+
+export class HttpProblem extends Error {
+  constructor(
+    readonly status: number,
+    readonly title: string,
+    readonly detail: string,
+    readonly kind = slug(title),
+    readonly errors?: { path: string; message: string }[],
+  ) {
+    super(detail);
+  }
+}
+
+function slug(s: string) {
+  return s.toLowerCase().replace(/[^a-z0-9]+/g, '-').replace(/^-|-$/g, '');
+}
+
+export const notFound = (what: string) => new HttpProblem(404, 'Not found', what, 'not-found');
+export const conflict = (detail: string) => new HttpProblem(409, 'Conflict', detail, 'conflict');
+
+/** Parse with zod; on failure throw a 400 problem listing each offending field. */
+export function validate<T>(schema: z.ZodType<T>, data: unknown, where: 'query' | 'body' | 'path'): T {
+  const r = schema.safeParse(data ?? {});
+  if (r.success) return r.data;
+  const errors = r.error.issues.map((i) => ({ path: [where, ...i.path.map(String)].join('.'), message: i.message }));
+  throw new HttpProblem(400, 'Invalid request', `the request ${where} is invalid: ${errors.map((e) => `${e.path}: ${e.message}`).join('; ')}`, 'invalid-request', errors);
+}
+
+export function sendProblem(res: import('express').Response, req: Request, p: Problem) {
+  res.status(p.status).type('application/problem+json').send(JSON.stringify({ ...p, instance: req.originalUrl }));
+}
+
+export function problemHandler(log: Logger): ErrorRequestHandler {
+  return (err, req, res, _next) => {
+    if (res.headersSent) {
+      res.end();
+      return;
+    }
+    if (err instanceof HttpProblem) {
+      const p: Problem = { type: `/problems/${err.kind}`, title: err.title, status: err.status, detail: err.detail };
+      if (err.errors) p.errors = err.errors;
+      sendProblem(res, req, p);
+      return;
+    }
+    const e = err as { type?: string; status?: number; message?: string };
+    if (e?.type === 'entity.parse.failed') {
+      sendProblem(res, req, { type: '/problems/invalid-json', title: 'Invalid JSON', status: 400, detail: `the request body is not valid JSON: ${e.message}` });
+      return;
+    }
+    if (e?.type === 'entity.too.large') {
+      sendProblem(res, req, { type: '/problems/too-large', title: 'Request too large', status: 413, detail: 'the request body is larger than the server accepts (1 MiB)' });
+      return;
+    }
+    if (typeof e?.status === 'number' && e.status >= 400 && e.status < 500) {
+      sendProblem(res, req, { type: '/problems/bad-request', title: 'Bad request', status: e.status, detail: e.message ?? 'bad request' });
+      return;
+    }
+    log.error(`${req.method} ${req.originalUrl} failed`, err);
+    sendProblem(res, req, { type: '/problems/internal', title: 'Internal error', status: 500, detail: `the server failed to answer: ${(err as Error)?.message ?? String(err)}` });
+  };
+}

@@ -1,0 +1,115 @@
+/** REST: model versions — list, detail, envelope, build, evaluate, approve, retire. */
+import { z } from 'zod';
+import type { ModelSummary, Page } from '../../core/api/rest.ts';
+import type { ServerContext } from '../context.ts';
+import { SignatureError } from '../auth/types.ts';
+import { ModelRequestError, buildFromStored, envelopeView, evaluateVersion, versionDetail } from '../models/model-service.ts';
+import { HttpProblem, conflict, notFound } from './problem.ts';
+import type { RouteTable } from './route-table.ts';
+import { modelVersionSummary } from './views.ts';
+import { idSchema } from './routes-plant.ts';
+import { recordAudit, userOf } from './audit-helper.ts';
+
+const versionParams = z.object({ version: z.string().min(1).max(128) });
+
+async function guard<T>(f: () => Promise<T>): Promise<T> {
+  try {
+    return await f();
+  } catch (e) {
+    if (e instanceof ModelRequestError) throw new HttpProblem(e.status, e.status === 404 ? 'Not found' : e.status === 409 ? 'Conflict' : 'Cannot process', e.message);
+    if (e instanceof SignatureError) throw new HttpProblem(e.status, 'Signature refused', e.message, 'signature-refused');
+    throw e;
+  }
+}
+
+export function addModelRoutes(t: RouteTable, ctx: ServerContext) {
+  const load = async (id: string) => {
+    const m = await ctx.storage.getModelVersion(id);
+    if (!m) throw notFound(`model version "${id}" does not exist`);
+    return m;
+  };
+  t.add({
+    method: 'get', path: '/models', summary: 'Models with all their versions', role: 'viewer', response: 'Page<ModelSummary>',
+    handler: async (): Promise<Page<ModelSummary>> => {
+      const rows = await ctx.storage.listModelVersions();
+      const by = new Map<string, ModelSummary>();
+      for (const r of rows) {
+        const m = by.get(r.name) ?? { name: r.name, product: r.product, versions: [] };
+        m.versions.push(await modelVersionSummary(ctx.storage, r));
+        by.set(r.name, m);
+      }
+      const items = [...by.values()];
+      return { items, total: items.length, limit: items.length, offset: 0 };
+    },
+  });
+  t.add({
+    method: 'get', path: '/models/versions/:version', summary: 'One model version with its evidence', role: 'viewer', response: 'ModelVersionDetail',
+    params: versionParams, handler: async ({ params }) => guard(async () => versionDetail(ctx, await load(params.version))),
+  });
+  t.add({
+    method: 'get', path: '/models/versions/:version/envelope', summary: 'The golden envelope of a model version, ready to draw', role: 'viewer', response: 'ModelEnvelopeView',
+    params: versionParams, handler: async ({ params }) => guard(async () => envelopeView(ctx, await load(params.version))),
+  });
+  t.add({
+    method: 'post', path: '/models/build', summary: 'Build a draft model version from ended reference batches and settings', role: 'model-owner',
+    response: 'ModelVersionSummary', status: 201,
+    body: z.object({
+      name: idSchema, product: z.string().min(1).max(128),
+      referenceBatches: z.array(idSchema).min(2, 'choose at least 2 reference batches').max(200),
+      settings: z.record(z.string(), z.unknown()).optional(),
+    }).strict(),
+    handler: async ({ body, req }) =>
+      guard(async () => {
+        if (new Set(body.referenceBatches).size !== body.referenceBatches.length) throw new ModelRequestError(400, 'a reference batch is listed twice');
+        const row = await buildFromStored(ctx, body, userOf(req));
+        await recordAudit(ctx, { user: userOf(req), action: 'model.build', object: `model:${row.name}@${row.version}`, after: { id: row.id, sha256: row.sha256, referenceBatches: row.referenceBatches } });
+        return modelVersionSummary(ctx.storage, row);
+      }),
+  });
+  t.add({
+    method: 'post', path: '/models/versions/:version/evaluate', summary: 'Replay chosen stored batches through a model version', role: 'model-owner', response: 'EvaluationResult',
+    params: versionParams, body: z.object({ batches: z.array(idSchema).min(1).max(200) }).strict(),
+    handler: async ({ params, body, req }) => guard(async () => evaluateVersion(ctx, (await load(params.version)).id, body.batches, userOf(req))),
+  });
+  const signBody = z.object({ reason: z.string().trim().min(1, 'give a reason').max(2000), password: z.string().max(1024).optional() }).strict();
+  t.add({
+    method: 'post', path: '/models/versions/:version/approve', summary: 'Approve a draft version (electronic signature: password and reason)', role: 'model-owner',
+    response: 'ModelVersionSummary', params: versionParams, body: signBody,
+    handler: async ({ params, body, req }) =>
+      guard(async () => {
+        const m = await load(params.version);
+        if (m.status !== 'draft') throw conflict(`model version ${m.name} v${m.version} is ${m.status}; only a draft can be approved`);
+        const by = userOf(req);
+        if (ctx.auth && req.user) {
+          await ctx.auth.sign({ user: req.user, password: body.password ?? '', meaning: 'approved', objectType: 'model', objectId: m.id, objectHash: m.sha256, reason: body.reason, address: req.ip }, () => {
+            void ctx.storage.approveModelVersion(m.id, by, ctx.now(), body.reason);
+          });
+        } else {
+          await ctx.storage.approveModelVersion(m.id, by, ctx.now(), body.reason);
+          await recordAudit(ctx, { user: by, action: 'model.approve', object: `model:${m.name}@${m.version}`, after: { id: m.id, sha256: m.sha256 }, reason: body.reason });
+        }
+        return modelVersionSummary(ctx.storage, (await ctx.storage.getModelVersion(m.id))!);
+      }),
+  });
+  t.add({
+    method: 'post', path: '/models/versions/:version/retire', summary: 'Retire a version (ends its deployments; electronic signature)', role: 'model-owner',
+    response: 'ModelVersionSummary', params: versionParams, body: signBody,
+    handler: async ({ params, body, req }) =>
+      guard(async () => {
+        const m = await load(params.version);
+        if (m.status === 'retired') throw conflict(`model version ${m.name} v${m.version} is already retired`);
+        const units = (await ctx.storage.listDeployments({ active: true })).filter((d) => d.modelVersion === m.id).map((d) => d.unit);
+        const by = userOf(req);
+        if (ctx.auth && req.user) {
+          await ctx.auth.sign({ user: req.user, password: body.password ?? '', meaning: 'retired', objectType: 'model', objectId: m.id, objectHash: m.sha256, reason: body.reason, address: req.ip }, () => {
+            void ctx.storage.retireModelVersion(m.id, by, ctx.now(), body.reason);
+          });
+        } else {
+          await ctx.storage.retireModelVersion(m.id, by, ctx.now(), body.reason);
+          await recordAudit(ctx, { user: by, action: 'model.retire', object: `model:${m.name}@${m.version}`, after: { id: m.id }, reason: body.reason });
+        }
+        for (const u of units) await ctx.ingest.refreshDeployment(u);
+        return modelVersionSummary(ctx.storage, (await ctx.storage.getModelVersion(m.id))!);
+      }),
+  });
+}

@@ -1,0 +1,170 @@
+/** REST: server info, units, analyzers, deployments, alarms. */
+import { z } from 'zod';
+import type { Alarm, CreateAnalyzerResponse, Page, ServerInfo, UnitSummary } from '../../core/api/rest.ts';
+import { API_VERSION } from '../../core/api/rest.ts';
+import { LIVE_PROTOCOL_VERSION } from '../../core/api/live.ts';
+import { PROTOCOL_VERSION } from '../../core/protocol/ingest-messages.ts';
+import type { ServerContext } from '../context.ts';
+import { createAnalyzerToken } from '../ingest/analyzer-tokens.ts';
+import { AlarmRequestError } from '../ingest/pipeline.ts';
+import { randomUUID } from 'node:crypto';
+import { HttpProblem, conflict, notFound } from './problem.ts';
+import type { RouteTable } from './route-table.ts';
+import { analyzerSummary, deploymentView } from './views.ts';
+import { recordAudit, userOf } from './audit-helper.ts';
+
+export const ADVISORY =
+  "Tideline advises. Endpoint signals and alarms must be used within the site's validated control strategy; interlocks and operating procedures decide, and a model must be validated under the site's quality system before it is used for release decisions.";
+
+export const idSchema = z.string().min(1).max(128).regex(/^[A-Za-z0-9._:-]+$/, 'use letters, digits and . _ : - only');
+export const pageQuery = {
+  limit: z.coerce.number().int().min(1).max(1000).default(100),
+  offset: z.coerce.number().int().min(0).default(0),
+};
+const boolQuery = z.enum(['true', 'false']).transform((v) => v === 'true');
+
+export function addPlantRoutes(t: RouteTable, ctx: ServerContext, startedAt: number, version: string) {
+  t.add({
+    method: 'get', path: '/info', summary: 'Server version, protocol versions and the advisory notice', role: 'viewer', response: 'ServerInfo',
+    handler: async (): Promise<ServerInfo> => ({
+      name: 'tideline', version, apiVersion: API_VERSION, ingestProtocol: PROTOCOL_VERSION, liveProtocol: LIVE_PROTOCOL_VERSION,
+      serverTime: ctx.now(), startedAt, advisory: ADVISORY,
+    }),
+  });
+
+  t.add({
+    method: 'get', path: '/units', summary: 'All units with their status now', role: 'viewer', response: 'Page<UnitSummary>',
+    handler: async (): Promise<Page<UnitSummary>> => {
+      const items = [...ctx.ingest.units.keys()].sort().map((u) => strip(ctx.ingest.unitStatus(u)!));
+      return { items, total: items.length, limit: items.length, offset: 0 };
+    },
+  });
+  t.add({
+    method: 'get', path: '/units/:unit', summary: 'One unit with its status now', role: 'viewer', response: 'UnitSummary',
+    params: z.object({ unit: idSchema }),
+    handler: async ({ params }) => {
+      const s = ctx.ingest.unitStatus(params.unit);
+      if (!s) throw notFound(`unit "${params.unit}" does not exist`);
+      return strip(s);
+    },
+  });
+  t.add({
+    method: 'post', path: '/units', summary: 'Create a unit', role: 'administrator', response: 'UnitSummary', status: 201,
+    body: z.object({ id: idSchema, name: z.string().min(1).max(200).optional(), kind: z.enum(['dryer', 'reactor', 'other']).default('other'), description: z.string().max(2000).default('') }).strict(),
+    handler: async ({ body, req }) => {
+      if (ctx.ingest.units.has(body.id)) throw conflict(`unit "${body.id}" already exists`);
+      const row = { id: body.id, name: body.name ?? body.id, kind: body.kind, description: body.description, createdAt: ctx.now() };
+      await ctx.storage.createUnit(row);
+      ctx.ingest.addUnit(row);
+      await recordAudit(ctx, { user: userOf(req), action: 'unit.create', object: `unit:${row.id}`, after: row });
+      return strip(ctx.ingest.unitStatus(row.id)!);
+    },
+  });
+
+  t.add({
+    method: 'get', path: '/analyzers', summary: 'All analyzers, connected or not', role: 'viewer', response: 'Page<AnalyzerSummary>',
+    handler: async () => {
+      const rows = await ctx.storage.listAnalyzers();
+      const items = await Promise.all(rows.map((a) => analyzerSummary(ctx.storage, ctx.ingest, a, remoteAddresses)));
+      return { items, total: items.length, limit: items.length, offset: 0 };
+    },
+  });
+  t.add({
+    method: 'post', path: '/analyzers', summary: 'Register an analyzer and issue its token (shown once)', role: 'administrator', response: 'CreateAnalyzerResponse', status: 201,
+    body: z.object({ id: idSchema, name: z.string().min(1).max(200).optional() }).strict(),
+    handler: async ({ body, req }): Promise<CreateAnalyzerResponse> => {
+      if (await ctx.storage.getAnalyzer(body.id)) throw conflict(`analyzer "${body.id}" already exists`);
+      await ctx.storage.createAnalyzer({ id: body.id, name: body.name ?? body.id, createdAt: ctx.now() });
+      const token = await createAnalyzerToken(ctx.storage, body.id, ctx.now());
+      await recordAudit(ctx, { user: userOf(req), action: 'analyzer.create', object: `analyzer:${body.id}`, after: { id: body.id, name: body.name ?? body.id } });
+      const a = (await ctx.storage.getAnalyzer(body.id))!;
+      return { analyzer: await analyzerSummary(ctx.storage, ctx.ingest, a, remoteAddresses), token };
+    },
+  });
+
+  t.add({
+    method: 'get', path: '/deployments', summary: 'Model deployments to units', role: 'viewer', response: 'Page<Deployment>',
+    query: z.object({ unit: idSchema.optional(), active: boolQuery.optional() }),
+    handler: async ({ query }) => {
+      const rows = await ctx.storage.listDeployments(query);
+      const items = await Promise.all(rows.map((d) => deploymentView(ctx.storage, d)));
+      return { items, total: items.length, limit: items.length, offset: 0 };
+    },
+  });
+  t.add({
+    method: 'post', path: '/deployments', summary: 'Deploy an approved model version to a unit (batches started afterwards use it)', role: 'model-owner',
+    response: 'Deployment', status: 201,
+    body: z.object({ unit: idSchema, versionId: z.string().min(1).max(128), reason: z.string().max(2000).optional() }).strict(),
+    handler: async ({ body, req }) => {
+      if (!ctx.ingest.units.has(body.unit)) throw notFound(`unit "${body.unit}" does not exist`);
+      const m = await ctx.storage.getModelVersion(body.versionId);
+      if (!m) throw notFound(`model version "${body.versionId}" does not exist`);
+      if (m.status !== 'approved') throw conflict(`model version ${m.name} v${m.version} is ${m.status}; only an approved version can be deployed`);
+      const before = ctx.ingest.deploymentRef(body.unit);
+      const d = { id: randomUUID(), unit: body.unit, modelVersion: m.id, deployedAt: ctx.now(), deployedBy: userOf(req), reason: body.reason ?? null, endedAt: null };
+      await ctx.storage.deploy(d);
+      await ctx.ingest.refreshDeployment(body.unit);
+      await recordAudit(ctx, { user: userOf(req), action: 'model.deploy', object: `unit:${body.unit}`, before, after: { versionId: m.id, name: m.name, version: m.version, sha256: m.sha256 }, reason: body.reason ?? null });
+      return deploymentView(ctx.storage, d);
+    },
+  });
+
+  t.add({
+    method: 'get', path: '/alarms', summary: 'Alarms, newest change first', role: 'viewer', response: 'Page<Alarm>',
+    query: z.object({
+      unit: idSchema.optional(), batch: idSchema.optional(),
+      state: z.enum(['normal', 'active-unacknowledged', 'active-acknowledged', 'cleared-unacknowledged']).optional(),
+      active: boolQuery.optional(), open: boolQuery.optional(), ...pageQuery,
+    }),
+    handler: async ({ query }) => {
+      const r = await ctx.storage.listAlarms(query);
+      return { items: r.items, total: r.total, limit: query.limit, offset: query.offset } satisfies Page<Alarm>;
+    },
+  });
+  const alarmParams = z.object({ alarm: z.string().uuid('alarm ids are UUIDs') });
+  const wrap = async (f: () => Promise<Alarm>) => {
+    try {
+      return await f();
+    } catch (e) {
+      if (e instanceof AlarmRequestError) throw new HttpProblem(e.status, e.status === 404 ? 'Not found' : 'Conflict', e.message);
+      throw e;
+    }
+  };
+  t.add({
+    method: 'post', path: '/alarms/:alarm/acknowledge', summary: 'Acknowledge an alarm (ISA-18.2)', role: 'operator', response: 'Alarm',
+    params: alarmParams, body: z.object({ comment: z.string().max(2000).optional() }).strict(),
+    handler: async ({ params, body, req }) => {
+      const before = await ctx.storage.getAlarm(params.alarm);
+      const a = await wrap(() => ctx.ingest.acknowledgeAlarm(params.alarm, userOf(req), body.comment ?? null));
+      await recordAudit(ctx, { user: userOf(req), action: 'alarm.acknowledge', object: `alarm:${a.id}`, before: before?.state, after: a.state, reason: body.comment ?? null });
+      return a;
+    },
+  });
+  t.add({
+    method: 'post', path: '/alarms/:alarm/shelve', summary: 'Shelve an alarm for a while, with a reason (ISA-18.2 shelving)', role: 'operator', response: 'Alarm',
+    params: alarmParams,
+    body: z.object({ minutes: z.number().int().min(1, 'shelve for at least 1 minute').max(1440, 'shelve for at most 1440 minutes (24 h)'), reason: z.string().trim().min(1, 'give a reason').max(2000) }).strict(),
+    handler: async ({ params, body, req }) => {
+      const a = await wrap(() => ctx.ingest.shelveAlarm(params.alarm, userOf(req), body.minutes, body.reason));
+      await recordAudit(ctx, { user: userOf(req), action: 'alarm.shelve', object: `alarm:${a.id}`, after: { shelvedUntil: a.shelvedUntil }, reason: body.reason });
+      return a;
+    },
+  });
+  t.add({
+    method: 'post', path: '/alarms/:alarm/unshelve', summary: 'End the shelving of an alarm now', role: 'operator', response: 'Alarm',
+    params: alarmParams,
+    handler: async ({ params, req }) => {
+      const a = await wrap(() => ctx.ingest.unshelveAlarm(params.alarm, userOf(req)));
+      await recordAudit(ctx, { user: userOf(req), action: 'alarm.unshelve', object: `alarm:${a.id}` });
+      return a;
+    },
+  });
+}
+
+/** Connected analyzers' remote addresses (filled by the ingest upgrade handler). */
+export const remoteAddresses = new Map<string, string>();
+
+function strip(s: UnitSummary & { latest?: unknown }): UnitSummary {
+  const { latest: _l, ...rest } = s;
+  return rest;
+}

@@ -1,0 +1,192 @@
+/**
+ * Builds and starts a Tideline server: storage, ingest pipeline, live hub, REST API, metrics,
+ * the dashboard, and the parts other engineers install through ServerContext.
+ */
+import { EventEmitter } from 'node:events';
+import { existsSync, readFileSync } from 'node:fs';
+import { createServer, type IncomingMessage, type Server } from 'node:http';
+import type { Duplex } from 'node:stream';
+import { dirname, join, resolve } from 'node:path';
+import { fileURLToPath } from 'node:url';
+import express from 'express';
+import { WebSocketServer } from 'ws';
+import { MAX_MESSAGE_BYTES } from '../core/protocol/ingest-messages.ts';
+import { LIVE_PATH } from '../core/api/live.ts';
+import { install as installAuth } from './auth/index.ts';
+import type { Role } from './auth/types.ts';
+import type { ServerConfig } from './config.ts';
+import type { ServerContext } from './context.ts';
+import { verifyAnalyzerToken } from './ingest/analyzer-tokens.ts';
+import { IngestConnection } from './ingest/ingest-socket.ts';
+import { IngestPipeline } from './ingest/pipeline.ts';
+import { LiveHub } from './live/live-hub.ts';
+import { createLogger } from './logger.ts';
+import { createMetrics } from './metrics.ts';
+import { SqliteStorage } from './storage/sqlite-storage.ts';
+import { HttpProblem, problemHandler } from './api/problem.ts';
+import { RouteTable } from './api/route-table.ts';
+import { addPlantRoutes, remoteAddresses } from './api/routes-plant.ts';
+import { addBatchRoutes } from './api/routes-batches.ts';
+import { addModelRoutes } from './api/routes-models.ts';
+
+const here = dirname(fileURLToPath(import.meta.url));
+const VERSION: string = JSON.parse(readFileSync(join(here, '..', 'package.json'), 'utf8')).version;
+
+export interface TidelineServer {
+  ctx: ServerContext;
+  http: Server;
+  port: number;
+  /** http://host:port */
+  url: string;
+  routes: RouteTable;
+  close(): Promise<void>;
+}
+
+export interface StartOptions {
+  /** SQLite file; default <dataDir>/tideline.db. */
+  dbFile?: string;
+  /** Replace the clock (tests). */
+  now?: () => number;
+}
+
+export async function startServer(config: ServerConfig, opts: StartOptions = {}): Promise<TidelineServer> {
+  const log = createLogger(config.logLevel);
+  const now = opts.now ?? Date.now;
+  const storage = new SqliteStorage({ file: opts.dbFile ?? join(config.dataDir, 'tideline.db'), synchronous: config.synchronous });
+  const metrics = createMetrics();
+  const events = new EventEmitter();
+  events.setMaxListeners(100);
+  const app = express();
+  app.disable('x-powered-by');
+  const api = express.Router();
+  const closers: (() => void | Promise<void>)[] = [];
+  const pipeline = new IngestPipeline(storage, config, events, metrics, log, now);
+  const live = new LiveHub(pipeline, storage, config, metrics, log, events);
+  const ctx: ServerContext = {
+    config, storage, app, api, live, ingest: pipeline, metrics, log, events,
+    onClose: (fn) => closers.push(fn),
+    now,
+  };
+
+  for (const u of config.units) {
+    if (!(await storage.getUnit(u.id))) await storage.createUnit({ id: u.id, name: u.name ?? u.id, kind: u.kind, description: '', createdAt: now() });
+  }
+  await pipeline.start();
+
+  api.use(express.json({ limit: '1mb' }));
+  installAuth(ctx);
+  for (const part of ['signals', 'transfer']) {
+    const file = join(here, part, 'index.ts');
+    if (!existsSync(file)) continue;
+    const mod = (await import(`./${part}/index.ts`)) as { install?: (c: ServerContext) => void | Promise<void> };
+    if (typeof mod.install === 'function') await mod.install(ctx);
+  }
+
+  const routes = new RouteTable();
+  const startedAt = now();
+  addPlantRoutes(routes, ctx, startedAt, VERSION);
+  addBatchRoutes(routes, ctx);
+  addModelRoutes(routes, ctx);
+  const pass: express.RequestHandler = (_req, _res, next) => next();
+  routes.mount(api, (role: Role) => (ctx.auth ? ctx.auth.requireRole(role) : pass));
+  api.get('/openapi.json', (_req, res) => void res.json(routes.openapi({ version: VERSION })));
+  api.use((req, _res, next) => next(new HttpProblem(404, 'Not found', `no API route ${req.method} ${req.baseUrl}${req.path}; see /api/openapi.json`, 'not-found')));
+  api.use(problemHandler(log));
+  app.use('/api', api);
+
+  app.get('/metrics', async (_req, res) => {
+    res.type(metrics.registry.contentType).send(await metrics.registry.metrics());
+  });
+  app.get('/healthz', (_req, res) => void res.json({ ok: true, monitoring: pipeline.monitoringAvailable }));
+  if (config.webDir) {
+    const webDir = resolve(config.webDir);
+    if (existsSync(join(webDir, 'index.html'))) {
+      app.use(express.static(webDir, { index: 'index.html' }));
+      app.get(/^\/(?!api\/|metrics$|ingest$|live$).*/, (_req, res) => res.sendFile(join(webDir, 'index.html')));
+    } else {
+      app.get('/', (_req, res) => {
+        res.type('text/plain').send(`Tideline server ${VERSION}. The dashboard is not built: run npm run build:web (looked in ${webDir}).`);
+      });
+    }
+  }
+  app.use(problemHandler(log));
+
+  const http = createServer(app);
+  const ingestWss = new WebSocketServer({ noServer: true, maxPayload: MAX_MESSAGE_BYTES, perMessageDeflate: false });
+  const liveWss = new WebSocketServer({ noServer: true, maxPayload: 64 * 1024, perMessageDeflate: false });
+  const conns = new Set<IngestConnection>();
+
+  const refuse = (socket: Duplex, status: number, text: string, message: string) => {
+    socket.write(`HTTP/1.1 ${status} ${text}\r\nContent-Type: text/plain\r\nConnection: close\r\nContent-Length: ${Buffer.byteLength(message)}\r\n\r\n${message}`);
+    socket.destroy();
+  };
+
+  http.on('upgrade', (req: IncomingMessage, socket: Duplex, head: Buffer) => {
+    socket.on('error', () => undefined);
+    const path = (req.url ?? '/').split('?')[0];
+    if (path === '/ingest') {
+      const auth = req.headers.authorization ?? '';
+      const m = /^Bearer\s+(\S+)$/i.exec(auth);
+      if (!m) return refuse(socket, 401, 'Unauthorized', 'send the analyzer token as Authorization: Bearer <token>');
+      const token = m[1]!;
+      void (async () => {
+        const analyzer = ctx.auth?.verifyAnalyzerToken(token) ?? (await verifyAnalyzerToken(storage, token));
+        if (!analyzer) return refuse(socket, 401, 'Unauthorized', 'unknown or revoked analyzer token');
+        ingestWss.handleUpgrade(req, socket, head, (ws) => {
+          const addr = `${req.socket.remoteAddress ?? '?'}:${req.socket.remotePort ?? '?'}`;
+          remoteAddresses.set(analyzer, addr);
+          metrics.ingestConnections.inc();
+          const c = new IngestConnection(ws, analyzer, addr, pipeline, config, metrics, log);
+          conns.add(c);
+          ws.on('close', () => conns.delete(c));
+        });
+      })().catch((e) => {
+        log.error('ingest upgrade failed', e);
+        refuse(socket, 500, 'Internal Server Error', 'internal error');
+      });
+      return;
+    }
+    if (path === LIVE_PATH) {
+      if (ctx.auth && !ctx.auth.userFromRequest(req)) return refuse(socket, 401, 'Unauthorized', 'log in first (POST /api/auth/login)');
+      liveWss.handleUpgrade(req, socket, head, (ws) => live.attach(ws));
+      return;
+    }
+    refuse(socket, 404, 'Not Found', `no WebSocket endpoint at ${path}; use /ingest or ${LIVE_PATH}`);
+  });
+
+  const heartbeat = setInterval(() => {
+    for (const c of conns) c.heartbeat();
+  }, config.ingest.heartbeatMs);
+  heartbeat.unref();
+
+  await new Promise<void>((res, rej) => {
+    http.once('error', rej);
+    http.listen(config.port, config.host, () => {
+      http.off('error', rej);
+      res();
+    });
+  });
+  const addr = http.address();
+  const port = typeof addr === 'object' && addr ? addr.port : config.port;
+  const host = config.host.includes(':') ? `[${config.host}]` : config.host;
+  log.info(`Tideline ${VERSION} listening on http://${host}:${port} (data: ${opts.dbFile ?? join(config.dataDir, 'tideline.db')})`);
+
+  let closing: Promise<void> | null = null;
+  const close = () =>
+    (closing ??= (async () => {
+      clearInterval(heartbeat);
+      for (const c of conns) c.close(1001, 'server shutting down');
+      live.close();
+      for (const ws of ingestWss.clients) ws.terminate();
+      for (const ws of liveWss.clients) ws.terminate();
+      await new Promise<void>((r) => {
+        http.close(() => r());
+        http.closeAllConnections();
+      });
+      await pipeline.stop();
+      for (const fn of closers.reverse()) await fn();
+      await storage.close();
+    })());
+
+  return { ctx, http, port, url: `http://${host}:${port}`, routes, close };
+}

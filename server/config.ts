@@ -1,0 +1,151 @@
+/**
+ * Server configuration: defaults < config file (JSON) < environment (TIDELINE_*) < command-line flags.
+ * Validated with zod; an invalid value is refused with a message naming the setting and its source.
+ */
+import { readFileSync } from 'node:fs';
+import { z } from 'zod';
+import { authConfigSchema, tlsConfigSchema } from './auth/security-config.ts';
+
+export const configSchema = z
+  .object({
+    host: z.string().min(1).default('127.0.0.1'),
+    /** 0 = a free port. */
+    port: z.number().int().min(0).max(65535).default(8470),
+    /** Folder for the SQLite file (tideline.db). */
+    dataDir: z.string().min(1).default('./data'),
+    /** SQLite synchronous mode; FULL keeps every acked spectrum through a power cut. */
+    synchronous: z.enum(['FULL', 'NORMAL']).default('FULL'),
+    /** Folder with the built dashboard (served at /), or null. */
+    webDir: z.string().nullable().default('web/dist'),
+    ingest: z
+      .object({
+        /** Group commit window, ms: spectra arriving within it share one durable commit. */
+        groupCommitMs: z.number().min(0).max(100).default(2),
+        /** Commit at once when this many entries are pending. */
+        groupCommitMaxEntries: z.number().int().min(1).max(100000).default(2000),
+        /** Per connection: messages per second allowed (token bucket, burst = 2 s worth). */
+        maxMessagesPerSecond: z.number().int().min(1).default(20000),
+        /** Per connection: errors within 10 s after which the peer is closed as abusive. */
+        maxErrorsPer10s: z.number().int().min(1).default(200),
+        /** WebSocket ping interval, ms; a peer that misses one pong is dropped. */
+        heartbeatMs: z.number().int().min(100).default(10000),
+        /** An open batch whose analyzer sends nothing for this long raises a stale-data alarm. */
+        staleAfterMs: z.number().int().min(100).default(60000),
+      })
+      .prefault({}),
+    live: z
+      .object({
+        /** Messages queued per browser before coalescing. */
+        queueLimit: z.number().int().min(10).max(100000).default(1000),
+        /** Stop writing to a socket while this many bytes wait in its send buffer. */
+        highWaterBytes: z.number().int().min(1024).default(1 << 20),
+        /** Unit status pushes per unit at most this often, ms. */
+        unitStatusEveryMs: z.number().int().min(0).default(250),
+      })
+      .prefault({}),
+    /** Units created at start when missing. */
+    units: z
+      .array(z.object({ id: z.string().regex(/^[A-Za-z0-9._:-]{1,128}$/), name: z.string().optional(), kind: z.enum(['dryer', 'reactor', 'other']).default('other') }))
+      .default([]),
+    /** Access control (server/auth, docs/security.md). */
+    auth: authConfigSchema,
+    /** TLS certificate and key (server/auth, docs/security.md); null = plain HTTP on loopback. */
+    tls: tlsConfigSchema,
+    logLevel: z.enum(['silent', 'error', 'warn', 'info', 'debug']).default('info'),
+  })
+  .strict();
+
+export type ServerConfig = z.infer<typeof configSchema>;
+export type ServerConfigInput = z.input<typeof configSchema>;
+
+export class ConfigError extends Error {
+  override name = 'ConfigError';
+}
+
+function describe(err: z.ZodError, source: string): string {
+  return err.issues.map((i) => `${source}: ${i.path.length ? i.path.join('.') : '(root)'}: ${i.message}`).join('\n');
+}
+
+/** Environment variables understood (all optional). */
+export const ENV_VARS: Record<string, string> = {
+  TIDELINE_CONFIG: 'path of a JSON config file',
+  TIDELINE_HOST: 'host',
+  TIDELINE_PORT: 'port',
+  TIDELINE_DATA_DIR: 'dataDir',
+  TIDELINE_SYNCHRONOUS: 'synchronous',
+  TIDELINE_WEB_DIR: 'webDir',
+  TIDELINE_STALE_AFTER_MS: 'ingest.staleAfterMs',
+  TIDELINE_GROUP_COMMIT_MS: 'ingest.groupCommitMs',
+  TIDELINE_LOG_LEVEL: 'logLevel',
+};
+
+function setPath(obj: Record<string, unknown>, path: string, value: unknown) {
+  const parts = path.split('.');
+  let o = obj;
+  for (const p of parts.slice(0, -1)) {
+    if (typeof o[p] !== 'object' || o[p] === null) o[p] = {};
+    o = o[p] as Record<string, unknown>;
+  }
+  o[parts[parts.length - 1]!] = value;
+}
+
+const TEXT = new Set(['host', 'dataDir', 'webDir', 'synchronous', 'logLevel']);
+
+function coerce(path: string, raw: string, source: string): unknown {
+  if (path === 'webDir' && (raw === '' || raw === 'none')) return null;
+  if (TEXT.has(path)) return raw;
+  const n = Number(raw);
+  if (raw.trim() === '' || !Number.isFinite(n)) throw new ConfigError(`${source}: ${path} must be a number, got "${raw}"`);
+  return n;
+}
+
+/**
+ * Build the configuration. `flags` holds values from the command line as dotted paths
+ * (e.g. { port: '0', 'ingest.staleAfterMs': '5000', config: 'x.json' }).
+ */
+export function loadConfig(opts: { env?: NodeJS.ProcessEnv; flags?: Record<string, string>; overrides?: ServerConfigInput } = {}): ServerConfig {
+  const env = opts.env ?? {};
+  const flags = opts.flags ?? {};
+  const merged: Record<string, unknown> = {};
+  const file = flags.config ?? env.TIDELINE_CONFIG;
+  if (file) {
+    let text: string;
+    try {
+      text = readFileSync(file, 'utf8');
+    } catch (e) {
+      throw new ConfigError(`config file ${file}: cannot read it (${(e as Error).message})`);
+    }
+    let parsed: unknown;
+    try {
+      parsed = JSON.parse(text);
+    } catch (e) {
+      throw new ConfigError(`config file ${file}: not valid JSON (${(e as Error).message})`);
+    }
+    const check = configSchema.safeParse(parsed);
+    if (!check.success) throw new ConfigError(describe(check.error, `config file ${file}`));
+    Object.assign(merged, parsed as object);
+  }
+  for (const [name, path] of Object.entries(ENV_VARS)) {
+    if (name === 'TIDELINE_CONFIG') continue;
+    const v = env[name];
+    if (v !== undefined) setPath(merged, path, coerce(path, v, `environment ${name}`));
+  }
+  for (const [k, v] of Object.entries(flags)) {
+    if (k === 'config') continue;
+    const path = k.replace(/-([a-z])/g, (_, c: string) => c.toUpperCase());
+    setPath(merged, path, coerce(path, v, `flag --${k}`));
+  }
+  if (opts.overrides) deepAssign(merged, opts.overrides as Record<string, unknown>);
+  const res = configSchema.safeParse(merged);
+  if (!res.success) throw new ConfigError(describe(res.error, 'configuration'));
+  return res.data;
+}
+
+function deepAssign(target: Record<string, unknown>, src: Record<string, unknown>) {
+  for (const [k, v] of Object.entries(src)) {
+    if (v && typeof v === 'object' && !Array.isArray(v)) {
+      if (typeof target[k] !== 'object' || target[k] === null) target[k] = {};
+      deepAssign(target[k] as Record<string, unknown>, v as Record<string, unknown>);
+    } else target[k] = v;
+  }
+}

@@ -1,0 +1,42 @@
+/**
+ * ServerContext: what the parts of the server share. Other parts (server/signals, server/auth,
+ * server/audit, server/transfer) each export `install(ctx: ServerContext)`, called from app.ts.
+ */
+import type { EventEmitter } from 'node:events';
+import type { Express } from 'express';
+import type { Auth } from './auth/types.ts';
+import type { AuditTrail } from './audit/types.ts';
+import type { ServerConfig } from './config.ts';
+import type { Metrics } from './metrics.ts';
+import type { Storage } from './storage/storage.ts';
+import type { SqliteStorage } from './storage/sqlite-storage.ts';
+import type { IngestPipeline } from './ingest/pipeline.ts';
+import type { LiveHub } from './live/live-hub.ts';
+import type { Logger } from './logger.ts';
+
+/**
+ * Events on `ctx.events` (emitted after the commit that stored them):
+ * - 'outbox'  (rows: OutboxRow[])                        new outbox rows
+ * - 'result'  ({ unit, batch, result: MonitorResult })
+ * - 'alarm'   ({ alarm: Alarm, previousState })
+ * - 'endpoint'({ unit, batch, from, to, endpoint, t, seq })
+ * - 'batch'   ({ event: 'started' | 'ended', batch: BatchSummary-like row })
+ */
+export interface ServerContext {
+  config: ServerConfig;
+  storage: Storage & { db: SqliteStorage['db'] };
+  app: Express;
+  /** Express router mounted at /api: parts add their routes here. */
+  api: import('express').Router;
+  live: LiveHub;
+  ingest: IngestPipeline;
+  metrics: Metrics;
+  log: Logger;
+  events: EventEmitter;
+  audit?: AuditTrail;
+  auth?: Auth;
+  /** Called on shutdown, last registered first. */
+  onClose(fn: () => void | Promise<void>): void;
+  /** Clock (ms epoch); tests may replace it. */
+  now(): number;
+}

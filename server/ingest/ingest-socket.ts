@@ -1,0 +1,195 @@
+/**
+ * One analyzer connection on /ingest: decodes frames, runs the hello handshake, hands entries to
+ * the pipeline, answers with acks and error frames. Limits: maxPayload (ws closes with 1009 beyond
+ * it), a message-rate token bucket and an error budget; a peer over them is closed as abusive.
+ */
+import { performance } from 'node:perf_hooks';
+import type { WebSocket } from 'ws';
+import { decodeSpectrumFrame } from '../../core/protocol/binary-frame.ts';
+import {
+  IngestProtocolError,
+  PROTOCOL_VERSION,
+  parseAnalyzerText,
+  type ErrorMessage,
+  type HelloMessage,
+  type LogEntry,
+  type WelcomeMessage,
+} from '../../core/protocol/ingest-messages.ts';
+import type { ServerConfig } from '../config.ts';
+import type { Logger } from '../logger.ts';
+import type { Metrics } from '../metrics.ts';
+import type { AckSink, IngestPipeline, StreamState } from './pipeline.ts';
+
+type Raw = { data: Buffer; binary: boolean; rt: number };
+
+const MAX_BACKLOG = 10_000;
+
+export class IngestConnection implements AckSink {
+  private stream: StreamState | null = null;
+  private busy = false;
+  private readonly backlog: Raw[] = [];
+  private tokens: number;
+  private lastRefill = performance.now();
+  private errorTimes: number[] = [];
+  private alive = true;
+  private closed = false;
+  private lastAckSent = -2;
+
+  constructor(
+    private readonly ws: WebSocket,
+    readonly analyzer: string,
+    readonly remoteAddress: string,
+    private readonly pipeline: IngestPipeline,
+    private readonly config: ServerConfig,
+    private readonly metrics: Metrics,
+    private readonly log: Logger,
+  ) {
+    this.tokens = config.ingest.maxMessagesPerSecond * 2;
+    ws.on('message', (data: Buffer, isBinary: boolean) => this.onMessage(data, isBinary));
+    ws.on('pong', () => (this.alive = true));
+    ws.on('close', () => this.onClose());
+    ws.on('error', (e) => this.log.debug(`ingest ${analyzer}: socket error ${e.message}`));
+  }
+
+  /** Heartbeat: called every heartbeatMs; a peer that did not answer the last ping is dropped. */
+  heartbeat(): void {
+    if (!this.alive) {
+      this.log.info(`ingest ${this.analyzer}: no pong within ${this.config.ingest.heartbeatMs} ms; dropping the connection`);
+      this.ws.terminate();
+      return;
+    }
+    this.alive = false;
+    try {
+      this.ws.ping();
+    } catch {
+      /* closing */
+    }
+  }
+
+  sendAck(seq: number): void {
+    if (this.closed || seq === this.lastAckSent) return;
+    this.lastAckSent = seq;
+    this.ws.send(`{"type":"ack","seq":${seq}}`);
+  }
+
+  close(code: number, reason: string): void {
+    if (this.closed) return;
+    this.ws.close(code, reason.slice(0, 120));
+  }
+
+  private onClose() {
+    this.closed = true;
+    this.metrics.ingestConnections.dec();
+    if (this.stream) this.pipeline.closeStream(this.stream, this);
+  }
+
+  private sendError(e: IngestProtocolError) {
+    this.metrics.errors.inc({ code: e.code });
+    if (this.closed) return;
+    const m: ErrorMessage = { type: 'error', code: e.code, message: e.message };
+    if (e.seq !== undefined) m.seq = e.seq;
+    this.ws.send(JSON.stringify(m));
+  }
+
+  private takeToken(): boolean {
+    const now = performance.now();
+    const rate = this.config.ingest.maxMessagesPerSecond;
+    this.tokens = Math.min(rate * 2, this.tokens + ((now - this.lastRefill) / 1000) * rate);
+    this.lastRefill = now;
+    if (this.tokens < 1) return false;
+    this.tokens -= 1;
+    return true;
+  }
+
+  private abusive(code: 'rate-limited' | 'too-large', message: string) {
+    this.sendError(new IngestProtocolError(code, message));
+    this.log.warn(`ingest ${this.analyzer} (${this.remoteAddress}): closing: ${message}`);
+    this.ws.close(1008, message.slice(0, 120));
+    this.closed = true;
+  }
+
+  private onMessage(data: Buffer, binary: boolean) {
+    if (this.closed) return;
+    const rt = performance.now();
+    if (!this.takeToken()) {
+      this.abusive('rate-limited', `more than ${this.config.ingest.maxMessagesPerSecond} messages per second`);
+      return;
+    }
+    if (this.busy) {
+      if (this.backlog.length >= MAX_BACKLOG) {
+        this.abusive('rate-limited', `more than ${MAX_BACKLOG} messages sent while the hello was being answered`);
+        return;
+      }
+      this.backlog.push({ data, binary, rt });
+      return;
+    }
+    this.handle({ data, binary, rt });
+  }
+
+  private handle(m: Raw) {
+    let entry: LogEntry | null = null;
+    try {
+      if (m.binary) {
+        entry = decodeSpectrumFrame(new Uint8Array(m.data.buffer, m.data.byteOffset, m.data.byteLength));
+      } else {
+        const msg = parseAnalyzerText(m.data.toString('utf8'));
+        if (msg.type === 'hello') {
+          this.busy = true;
+          void this.hello(msg).finally(() => this.drain());
+          return;
+        }
+        entry = msg;
+      }
+      if (!this.stream) throw new IngestProtocolError('hello-required', 'send hello before any other message', entry.seq);
+      const out = this.pipeline.accept(this.stream, entry, m.rt);
+      if (out === 'duplicate-committed') {
+        this.lastAckSent = -2; // always answer a duplicate with an ack
+        this.sendAck(this.stream.lastCommitted);
+      }
+    } catch (e) {
+      this.fail(e);
+    }
+  }
+
+  private fail(e: unknown) {
+    if (!(e instanceof IngestProtocolError)) {
+      this.log.error(`ingest ${this.analyzer}: internal error`, e);
+      this.sendError(new IngestProtocolError('internal', `the server could not process this message: ${(e as Error)?.message ?? String(e)}`));
+      return;
+    }
+    this.pipeline.refuse(this.stream, e);
+    this.sendError(e);
+    const now = performance.now();
+    this.errorTimes.push(now);
+    while (this.errorTimes.length && now - this.errorTimes[0]! > 10_000) this.errorTimes.shift();
+    if (this.errorTimes.length > this.config.ingest.maxErrorsPer10s) {
+      this.abusive('rate-limited', `more than ${this.config.ingest.maxErrorsPer10s} bad messages within 10 s`);
+    }
+  }
+
+  private async hello(h: HelloMessage) {
+    try {
+      if (h.analyzer !== this.analyzer) {
+        throw new IngestProtocolError('analyzer-mismatch', `hello names analyzer "${h.analyzer}", but the token belongs to analyzer "${this.analyzer}"`);
+      }
+      if (this.stream) this.pipeline.closeStream(this.stream, this);
+      this.stream = null;
+      const st = await this.pipeline.openStream(h.analyzer, h.boot, h.axis, h.instrument ?? null, this);
+      if (this.closed) {
+        this.pipeline.closeStream(st, this);
+        return;
+      }
+      this.stream = st;
+      const w: WelcomeMessage = { type: 'welcome', protocol: PROTOCOL_VERSION, analyzer: h.analyzer, boot: h.boot, resumeAfter: st.lastCommitted };
+      this.lastAckSent = st.lastCommitted;
+      this.ws.send(JSON.stringify(w));
+    } catch (e) {
+      this.fail(e);
+    }
+  }
+
+  private drain() {
+    this.busy = false;
+    while (this.backlog.length && !this.busy && !this.closed) this.handle(this.backlog.shift()!);
+  }
+}

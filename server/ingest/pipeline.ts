@@ -1,0 +1,770 @@
+/**
+ * The ingest pipeline: validates each log entry of an analyzer against the stream and batch state,
+ * feeds spectra to the unit's batch monitor, and writes spectrum, result, alarm changes and outbox
+ * rows in one group commit (durable, synchronous=FULL) before the ack goes out.
+ *
+ * State kept in memory (streams, open batches, monitors, live alarms, outbox counters) is rebuilt
+ * from storage at start: open batches' monitors by replaying their stored spectra.
+ */
+import { randomUUID } from 'node:crypto';
+import { EventEmitter } from 'node:events';
+import { performance } from 'node:perf_hooks';
+import { stateOnAcknowledge, stateOnCondition, stateOnReturn } from '../../core/alarms/life-cycle.ts';
+import type { Alarm, ModelRef } from '../../core/api/rest.ts';
+import type { LivePoint, LiveUnitStatus } from '../../core/api/live.ts';
+import type { AlarmKind, AlarmPriority, AlarmState, ConditionKind, EndpointState, EndpointStatus, MonitorResult } from '../../core/monitor/types.ts';
+import { IngestProtocolError, type BatchEndMessage, type BatchStartMessage, type IngestErrorCode, type LogEntry, type SpectrumEntry } from '../../core/protocol/ingest-messages.ts';
+import type { ServerConfig } from '../config.ts';
+import type { Logger } from '../logger.ts';
+import type { Metrics } from '../metrics.ts';
+import { coreMonitoring, type BatchMonitorLike, type CoreMonitoring, type MonitoringModelLike } from '../monitor/core-monitor.ts';
+import { emptyIngestWrite, type BatchRow, type IngestWrite, type OutboxRow, type Storage, type UnitRow } from '../storage/storage.ts';
+
+/** What the pipeline needs from a connection to answer it. */
+export interface AckSink {
+  sendAck(seq: number): void;
+  close(code: number, reason: string): void;
+}
+
+export interface StreamState {
+  analyzer: string;
+  boot: number;
+  axis: Float64Array;
+  /** Highest seq accepted (stored or pending commit); -1 when none. */
+  lastAccepted: number;
+  /** Highest seq durably committed; -1 when none. */
+  lastCommitted: number;
+  conn: AckSink | null;
+}
+
+export interface OpenBatch {
+  id: string;
+  unit: string;
+  analyzer: string;
+  boot: number;
+  product: string;
+  startT: number;
+  startSeq: number;
+  axisLength: number;
+  modelVersion: string | null;
+  nextIdx: number;
+  lastSeq: number;
+  lastT: number;
+  monitor: BatchMonitorLike | null;
+  latest: MonitorResult | null;
+  endpoint: EndpointStatus | null;
+  endpointState: EndpointState | null;
+  endpointAt: number | null;
+  /** Server clock (ms) of the last entry received for this batch. */
+  lastDataAt: number;
+  stale: boolean;
+}
+
+interface DeployedModel {
+  ref: ModelRef;
+  model: MonitoringModelLike | null;
+}
+
+/** Codes whose entry consumes its seq when refused (the analyzer goes on with the next one). */
+const CONSUMING: ReadonlySet<IngestErrorCode> = new Set([
+  'bad-message', 'bad-frame', 'wrong-length', 'non-finite', 'time-backwards', 'no-open-batch',
+  'batch-already-open', 'batch-mismatch', 'unknown-unit',
+]);
+
+export type AcceptOutcome = 'accepted' | 'duplicate-committed' | 'duplicate-pending';
+
+interface PostCommit {
+  events: [string, unknown][];
+  acks: Map<StreamState, number>;
+  latencies: number[];
+  spectra: number;
+}
+
+export class IngestPipeline {
+  readonly streams = new Map<string, StreamState>();
+  readonly openByAnalyzer = new Map<string, OpenBatch>();
+  readonly openByUnit = new Map<string, OpenBatch>();
+  readonly units = new Map<string, UnitRow>();
+  private readonly deployments = new Map<string, DeployedModel>();
+  private readonly models = new Map<string, MonitoringModelLike>();
+  private batchIds = new Set<string>();
+  private readonly alarmsById = new Map<string, Alarm>();
+  private readonly alarmIdByKey = new Map<string, string>();
+  private outboxSeq = new Map<string, number>();
+  private core: CoreMonitoring | null = null;
+  private coreError: string | null = null;
+
+  private uow: IngestWrite = emptyIngestWrite();
+  private post: PostCommit = newPost();
+  private touched = new Set<OpenBatch>();
+  private pendingEntries = 0;
+  private timer: NodeJS.Timeout | null = null;
+  private flushing: Promise<void> = Promise.resolve();
+  private ticker: NodeJS.Timeout | null = null;
+  private closed = false;
+
+  constructor(
+    private readonly storage: Storage,
+    private readonly config: ServerConfig,
+    readonly events: EventEmitter,
+    private readonly metrics: Metrics,
+    private readonly log: Logger,
+    private readonly now: () => number = Date.now,
+  ) {}
+
+  /** Whether core monitoring could be loaded (else spectra are stored without results). */
+  get monitoringAvailable(): boolean {
+    return this.core !== null;
+  }
+  get monitoringProblem(): string | null {
+    return this.coreError;
+  }
+  async getCore(): Promise<CoreMonitoring> {
+    if (this.core) return this.core;
+    this.core = await coreMonitoring();
+    return this.core;
+  }
+
+  async start(): Promise<void> {
+    try {
+      this.core = await coreMonitoring();
+    } catch (e) {
+      this.coreError = (e as Error).message;
+      this.log.warn(`batch monitoring is not available; spectra are stored without results: ${this.coreError}`);
+    }
+    await this.load();
+    const every = Math.max(50, Math.min(1000, Math.floor(this.config.ingest.staleAfterMs / 4)));
+    this.ticker = setInterval(() => void this.tick().catch((e) => this.log.error('tick failed', e)), every);
+    this.ticker.unref();
+  }
+
+  async stop(): Promise<void> {
+    this.closed = true;
+    if (this.ticker) clearInterval(this.ticker);
+    await this.flush();
+  }
+
+  /** (Re)build the in-memory state from storage. */
+  private async load(): Promise<void> {
+    this.units.clear();
+    for (const u of await this.storage.listUnits()) this.units.set(u.id, u);
+    this.batchIds = new Set(await this.storage.batchIds());
+    this.outboxSeq = await this.storage.maxOutboxSeqByUnit();
+    this.alarmsById.clear();
+    this.alarmIdByKey.clear();
+    for (const a of await this.storage.liveAlarms()) this.indexAlarm(a);
+    this.deployments.clear();
+    for (const u of this.units.keys()) await this.refreshDeployment(u);
+    this.openByAnalyzer.clear();
+    this.openByUnit.clear();
+    for (const row of await this.storage.openBatches()) {
+      const ob = await this.rebuildOpenBatch(row);
+      this.openByAnalyzer.set(ob.analyzer, ob);
+      this.openByUnit.set(ob.unit, ob);
+    }
+    this.updateAlarmGauge();
+  }
+
+  private async rebuildOpenBatch(row: BatchRow): Promise<OpenBatch> {
+    const ob: OpenBatch = {
+      id: row.id, unit: row.unit, analyzer: row.analyzer, boot: row.boot, product: row.product, startT: row.startT,
+      startSeq: row.startSeq, axisLength: row.axis.length, modelVersion: row.modelVersion, nextIdx: row.spectrumCount,
+      lastSeq: row.lastSeq ?? row.startSeq, lastT: row.lastT ?? row.startT, monitor: null, latest: null, endpoint: null,
+      endpointState: row.endpointState, endpointAt: row.endpointAt, lastDataAt: this.now(), stale: false,
+    };
+    const staleId = this.alarmIdByKey.get(alarmKey(row.unit, row.id, 'stale'));
+    if (staleId && this.alarmsById.get(staleId)?.active) ob.stale = true;
+    if (row.modelVersion) {
+      const model = await this.loadModel(row.modelVersion);
+      if (model && this.core) {
+        try {
+          ob.monitor = this.core.createBatchMonitor(model, row.startT);
+          let last: MonitorResult | null = null;
+          for await (const s of this.storage.iterateSpectra(row.id)) last = ob.monitor.push(s.seq, s.t, s.values);
+          ob.latest = last;
+          ob.endpoint = last?.endpoint ?? null;
+          if (ob.endpoint && ob.endpointState === 'signalled') {
+            ob.monitor.markSignalled(ob.endpointAt ?? ob.lastT);
+            ob.endpoint = { ...ob.endpoint, state: 'signalled' };
+          }
+        } catch (e) {
+          this.log.error(`rebuilding the monitor of batch ${row.id} failed`, e);
+          ob.monitor = null;
+        }
+      }
+    }
+    return ob;
+  }
+
+  async loadModel(versionId: string): Promise<MonitoringModelLike | null> {
+    const cached = this.models.get(versionId);
+    if (cached) return cached;
+    if (!this.core) return null;
+    const row = await this.storage.getModelVersion(versionId);
+    if (!row) return null;
+    const m = this.core.parseMonitoringModel(row.body);
+    this.models.set(versionId, m);
+    return m;
+  }
+
+  /** Re-read the unit's deployment (after a deploy or retire). Batches already open keep their model. */
+  async refreshDeployment(unit: string): Promise<void> {
+    const d = await this.storage.activeDeployment(unit);
+    if (!d) {
+      this.deployments.delete(unit);
+      return;
+    }
+    const row = await this.storage.getModelVersion(d.modelVersion);
+    if (!row) return;
+    let model: MonitoringModelLike | null = null;
+    try {
+      model = await this.loadModel(d.modelVersion);
+    } catch (e) {
+      this.log.error(`model ${d.modelVersion} deployed to ${unit} cannot be read`, e);
+    }
+    this.deployments.set(unit, { ref: { versionId: row.id, name: row.name, version: row.version, sha256: row.sha256 }, model });
+    this.events.emit('unit-changed', unit);
+  }
+
+  addUnit(u: UnitRow): void {
+    this.units.set(u.id, u);
+    this.events.emit('unit-changed', u.id);
+  }
+
+  deploymentRef(unit: string): ModelRef | null {
+    return this.deployments.get(unit)?.ref ?? null;
+  }
+
+  // ---- streams -----------------------------------------------------------------------------
+
+  /**
+   * Handle a hello: returns the stream state (resumeAfter = lastCommitted). Throws
+   * IngestProtocolError('axis-mismatch') when the (analyzer, boot) announced a different axis before.
+   */
+  async openStream(analyzer: string, boot: number, axis: number[], instrument: string | null, conn: AckSink): Promise<StreamState> {
+    const now = this.now();
+    if (!(await this.storage.getAnalyzer(analyzer))) await this.storage.createAnalyzer({ id: analyzer, name: analyzer, createdAt: now });
+    const prev = await this.storage.getAnalyzerBoot(analyzer, boot);
+    if (prev && !sameAxis(prev.axis, axis)) {
+      throw new IngestProtocolError(
+        'axis-mismatch',
+        `analyzer ${analyzer} boot ${boot} announced a ${prev.axis.length}-point axis (${prev.axis[0]}…${prev.axis[prev.axis.length - 1]} nm) before; this hello has ${axis.length} points (${axis[0]}…${axis[axis.length - 1]} nm). A new axis needs a new boot epoch.`,
+      );
+    }
+    const existing = this.streams.get(analyzer);
+    if (existing?.conn && existing.conn !== conn) existing.conn.close(4000, 'replaced by a newer connection of the same analyzer');
+    const ob = this.openByAnalyzer.get(analyzer);
+    if (ob && ob.boot !== boot) {
+      // The analyzer restarted: its open batch cannot continue under a new seq numbering.
+      this.endBatch(ob, { seq: null, t: ob.lastT, reason: `analyzer restarted (boot ${ob.boot} → ${boot}) before batch-end` });
+    }
+    await this.flush();
+    await this.storage.upsertAnalyzerBoot({ analyzer, boot, axis: Float64Array.from(axis), instrument, firstSeen: now, lastSeen: now });
+    const stored = prev?.lastSeq ?? -1;
+    const mem = existing && existing.boot === boot ? existing.lastCommitted : -1;
+    const last = Math.max(stored, mem);
+    const st: StreamState = { analyzer, boot, axis: Float64Array.from(axis), lastAccepted: last, lastCommitted: last, conn };
+    this.streams.set(analyzer, st);
+    this.events.emit('unit-changed', ob?.unit ?? null);
+    return st;
+  }
+
+  closeStream(st: StreamState, conn: AckSink): void {
+    if (st.conn === conn) {
+      st.conn = null;
+      const ob = this.openByAnalyzer.get(st.analyzer);
+      if (ob) this.events.emit('unit-changed', ob.unit);
+    }
+  }
+
+  isConnected(analyzer: string): boolean {
+    return !!this.streams.get(analyzer)?.conn;
+  }
+
+  // ---- entries -----------------------------------------------------------------------------
+
+  /** Validate and take one log entry. Throws IngestProtocolError naming the problem. */
+  accept(st: StreamState, e: LogEntry, receivedAt: number): AcceptOutcome {
+    if (e.seq <= st.lastAccepted) {
+      this.metrics.duplicates.inc();
+      return e.seq <= st.lastCommitted ? 'duplicate-committed' : 'duplicate-pending';
+    }
+    if (st.lastAccepted >= 0 && e.seq !== st.lastAccepted + 1) {
+      throw new IngestProtocolError('seq-gap', `expected seq ${st.lastAccepted + 1}, got ${e.seq}; resend from ${st.lastAccepted + 1}`, e.seq);
+    }
+    switch (e.type) {
+      case 'spectrum':
+        this.acceptSpectrum(st, e, receivedAt);
+        break;
+      case 'batch-start':
+        this.acceptBatchStart(st, e);
+        break;
+      case 'batch-end':
+        this.acceptBatchEnd(st, e);
+        break;
+    }
+    this.advance(st, e.seq);
+    this.metrics.entries.inc({ type: e.type });
+    return 'accepted';
+  }
+
+  /**
+   * An entry refused with an error: when the error consumes its seq (see docs/protocol.md), record
+   * the refusal and move the stream on. Returns true when consumed.
+   */
+  refuse(st: StreamState | null, err: IngestProtocolError): boolean {
+    if (!st || err.seq === undefined || !CONSUMING.has(err.code)) return false;
+    if (err.seq <= st.lastAccepted) return false;
+    if (st.lastAccepted >= 0 && err.seq !== st.lastAccepted + 1) return false;
+    this.uow.rejected.push({ analyzer: st.analyzer, boot: st.boot, seq: err.seq, code: err.code, message: err.message, receivedAt: this.now() });
+    const ob = this.openByAnalyzer.get(st.analyzer);
+    if (ob) ob.lastDataAt = this.now();
+    this.advance(st, err.seq);
+    return true;
+  }
+
+  private advance(st: StreamState, seq: number) {
+    st.lastAccepted = seq;
+    this.post.acks.set(st, seq);
+    this.pendingEntries++;
+    this.schedule();
+  }
+
+  private acceptSpectrum(st: StreamState, e: SpectrumEntry, receivedAt: number) {
+    const ob = this.openByAnalyzer.get(st.analyzer);
+    if (!ob) throw new IngestProtocolError('no-open-batch', `spectrum seq ${e.seq}: analyzer ${st.analyzer} has no open batch; send batch-start first`, e.seq);
+    if (e.values.length !== ob.axisLength) {
+      throw new IngestProtocolError('wrong-length', `spectrum seq ${e.seq} has ${e.values.length} values; the axis of batch ${ob.id} has ${ob.axisLength} points`, e.seq);
+    }
+    if (e.t < ob.startT || (ob.nextIdx > 0 && e.t <= ob.lastT)) {
+      throw new IngestProtocolError(
+        'time-backwards',
+        `spectrum seq ${e.seq}: time ${new Date(e.t).toISOString()} is not after the previous entry of batch ${ob.id} (${new Date(ob.lastT).toISOString()})`,
+        e.seq,
+      );
+    }
+    const now = this.now();
+    const idx = ob.nextIdx++;
+    ob.lastSeq = e.seq;
+    ob.lastT = e.t;
+    ob.lastDataAt = now;
+    this.uow.spectra.push({ batch: ob.id, idx, seq: e.seq, t: e.t, values: e.values, analyzer: st.analyzer, boot: st.boot, receivedAt: now });
+    this.post.latencies.push(receivedAt);
+    this.post.spectra++;
+    this.touched.add(ob);
+    if (ob.stale) this.clearStale(ob, e.seq);
+    if (!ob.monitor) return;
+    let r: MonitorResult;
+    try {
+      r = ob.monitor.push(e.seq, e.t, e.values);
+    } catch (err) {
+      this.log.error(`monitor of batch ${ob.id} failed on seq ${e.seq}; the spectrum is stored without a result`, err);
+      return;
+    }
+    this.uow.results.push({ batch: ob.id, idx, modelVersion: ob.modelVersion!, result: r });
+    ob.latest = r;
+    ob.endpoint = r.endpoint;
+    for (const c of r.conditionChanges) {
+      this.applyCondition(ob.unit, ob.id, { kind: c.kind, key: c.key, active: c.active, message: c.message, value: c.value, limit: c.limit, priority: c.priority }, e.seq, now);
+    }
+    for (const ev of r.events) {
+      if (ev.type === 'endpoint-state') {
+        ob.endpointState = ev.to;
+        if (ev.to === 'done' && ob.endpointAt === null) ob.endpointAt = ev.t;
+        const rec = { id: randomUUID(), unit: ob.unit, batch: ob.id, from: ev.from, to: ev.to, t: ev.t, seq: ev.seq, reason: ev.reason, recordedAt: now };
+        this.uow.endpointEvents.push(rec);
+        this.addOutbox(ob.unit, 'endpoint-state', { unit: ob.unit, batch: ob.id, ...ev });
+        this.post.events.push(['endpoint', { unit: ob.unit, batch: ob.id, from: ev.from, to: ev.to, endpoint: r.endpoint, t: ev.t, seq: ev.seq }]);
+      } else {
+        this.addOutbox(ob.unit, 'condition', { unit: ob.unit, batch: ob.id, ...ev });
+      }
+    }
+    if (ob.endpointState === null) ob.endpointState = r.endpoint.state;
+    this.post.events.push(['result', { unit: ob.unit, batch: ob.id, result: r }]);
+  }
+
+  private acceptBatchStart(st: StreamState, e: BatchStartMessage) {
+    const cur = this.openByAnalyzer.get(st.analyzer);
+    if (cur) {
+      throw new IngestProtocolError('batch-already-open', `batch-start seq ${e.seq}: analyzer ${st.analyzer} still has batch ${cur.id} open; send batch-end for it first`, e.seq);
+    }
+    if (!this.units.has(e.unit)) {
+      throw new IngestProtocolError('unknown-unit', `batch-start seq ${e.seq}: unit "${e.unit}" is not known to this server; an administrator must create it first`, e.seq);
+    }
+    const busy = this.openByUnit.get(e.unit);
+    if (busy) {
+      throw new IngestProtocolError('batch-already-open', `batch-start seq ${e.seq}: unit ${e.unit} already runs batch ${busy.id} (analyzer ${busy.analyzer})`, e.seq);
+    }
+    if (this.batchIds.has(e.batch)) {
+      throw new IngestProtocolError('batch-already-open', `batch-start seq ${e.seq}: batch id "${e.batch}" is already used; batch ids must be unique`, e.seq);
+    }
+    const now = this.now();
+    const dep = this.deployments.get(e.unit) ?? null;
+    let monitor: BatchMonitorLike | null = null;
+    if (dep?.model && this.core) {
+      const inAxis = dep.model.chain.inputAxis;
+      if (!sameAxis(inAxis, st.axis)) {
+        this.applyCondition(e.unit, e.batch, {
+          kind: 'analyzer', key: 'model-axis', active: true, priority: 2, value: st.axis.length, limit: inAxis.length,
+          message: `analyzer ${st.analyzer} axis (${st.axis.length} points) does not match the axis of model ${dep.ref.name} v${dep.ref.version} (${inAxis.length} points); batch ${e.batch} is stored but not judged`,
+        }, e.seq, now);
+      } else {
+        try {
+          monitor = this.core.createBatchMonitor(dep.model, e.t);
+        } catch (err) {
+          this.log.error(`creating the monitor for batch ${e.batch} failed`, err);
+        }
+      }
+    }
+    const ob: OpenBatch = {
+      id: e.batch, unit: e.unit, analyzer: st.analyzer, boot: st.boot, product: e.product, startT: e.t, startSeq: e.seq,
+      axisLength: st.axis.length, modelVersion: monitor ? dep!.ref.versionId : null, nextIdx: 0, lastSeq: e.seq, lastT: e.t,
+      monitor, latest: null, endpoint: null, endpointState: monitor ? 'running' : null, endpointAt: null, lastDataAt: now, stale: false,
+    };
+    this.uow.batchStarts.push({
+      id: ob.id, unit: ob.unit, analyzer: ob.analyzer, boot: ob.boot, product: ob.product, startSeq: e.seq, startT: e.t,
+      axis: st.axis, modelVersion: ob.modelVersion, createdAt: now,
+    });
+    this.batchIds.add(ob.id);
+    this.openByAnalyzer.set(ob.analyzer, ob);
+    this.openByUnit.set(ob.unit, ob);
+    this.touched.add(ob);
+    this.addOutbox(ob.unit, 'batch-start', { unit: ob.unit, batch: ob.id, product: ob.product, t: e.t, model: dep?.ref ?? null });
+    this.post.events.push(['batch', { event: 'started', batch: ob.id, unit: ob.unit }]);
+  }
+
+  private acceptBatchEnd(st: StreamState, e: BatchEndMessage) {
+    const ob = this.openByAnalyzer.get(st.analyzer);
+    if (!ob) throw new IngestProtocolError('no-open-batch', `batch-end seq ${e.seq}: analyzer ${st.analyzer} has no open batch`, e.seq);
+    if (ob.id !== e.batch) throw new IngestProtocolError('batch-mismatch', `batch-end seq ${e.seq} names batch ${e.batch}, but the open batch is ${ob.id}`, e.seq);
+    if (e.t < ob.lastT) {
+      throw new IngestProtocolError('time-backwards', `batch-end seq ${e.seq}: time ${new Date(e.t).toISOString()} is before the last spectrum of batch ${ob.id}`, e.seq);
+    }
+    this.endBatch(ob, { seq: e.seq, t: e.t, reason: e.reason ?? null });
+  }
+
+  private endBatch(ob: OpenBatch, end: { seq: number | null; t: number; reason: string | null }) {
+    this.touched.add(ob);
+    this.uow.batchEnds.push({ batch: ob.id, endSeq: end.seq, endT: end.t, endReason: end.reason });
+    if (ob.stale) this.clearStale(ob, end.seq);
+    this.openByAnalyzer.delete(ob.analyzer);
+    if (this.openByUnit.get(ob.unit) === ob) this.openByUnit.delete(ob.unit);
+    this.addOutbox(ob.unit, 'batch-end', { unit: ob.unit, batch: ob.id, t: end.t, reason: end.reason, endpointState: ob.endpointState, endpointAt: ob.endpointAt });
+    this.post.events.push(['batch', { event: 'ended', batch: ob.id, unit: ob.unit }]);
+    this.schedule();
+  }
+
+  /** The signal channel has delivered the endpoint: done → signalled. Returns false when not applicable. */
+  async markSignalled(batch: string, t: number): Promise<boolean> {
+    const ob = [...this.openByUnit.values()].find((b) => b.id === batch);
+    if (!ob?.monitor) return false;
+    const ev = ob.monitor.markSignalled(t);
+    if (!ev || ev.type !== 'endpoint-state') return false;
+    const now = this.now();
+    ob.endpointState = ev.to;
+    if (ob.endpoint) ob.endpoint = { ...ob.endpoint, state: ev.to };
+    this.touched.add(ob);
+    this.uow.endpointEvents.push({ id: randomUUID(), unit: ob.unit, batch: ob.id, from: ev.from, to: ev.to, t: ev.t, seq: ev.seq, reason: ev.reason, recordedAt: now });
+    this.post.events.push(['endpoint', { unit: ob.unit, batch: ob.id, from: ev.from, to: ev.to, endpoint: ob.endpoint, t: ev.t, seq: ev.seq }]);
+    this.pendingEntries++;
+    await this.flush();
+    return true;
+  }
+
+  // ---- alarms ------------------------------------------------------------------------------
+
+  private applyCondition(
+    unit: string,
+    batch: string | null,
+    c: { kind: AlarmKind; key: string; active: boolean; message: string; value: number | null; limit: number | null; priority: AlarmPriority },
+    seq: number | null,
+    now: number,
+    direct = false,
+  ): Alarm | null {
+    const k = alarmKey(unit, batch, c.key);
+    const id = this.alarmIdByKey.get(k);
+    const cur = id ? this.alarmsById.get(id) : undefined;
+    if (!cur && !c.active) return null;
+    const prevState: AlarmState | null = cur ? cur.state : null;
+    const base: Alarm = cur ?? {
+      id: randomUUID(), unit, batch, kind: c.kind, key: c.key, state: 'normal', priority: c.priority, message: c.message,
+      value: c.value, limit: c.limit, active: false, raisedAt: now, clearedAt: null, acknowledgedAt: null, acknowledgedBy: null,
+      acknowledgeComment: null, shelvedUntil: null, shelvedBy: null, shelveReason: null, seq, updatedAt: now,
+    };
+    const next: Alarm = {
+      ...base,
+      state: stateOnCondition(base.state, c.active),
+      active: c.active,
+      message: c.message,
+      value: c.value,
+      limit: c.limit,
+      priority: c.priority,
+      seq: seq ?? base.seq,
+      clearedAt: c.active ? null : now,
+      raisedAt: cur && cur.state !== 'normal' ? base.raisedAt : c.active ? now : base.raisedAt,
+      updatedAt: now,
+    };
+    if (c.active && cur && cur.state === 'cleared-unacknowledged') next.acknowledgedAt = null;
+    this.indexAlarm(next);
+    const row = this.outboxRow(unit, 'alarm', { alarm: next, previousState: prevState });
+    if (direct) {
+      void this.storage
+        .saveAlarm(next, row)
+        .then(() => {
+          this.events.emit('outbox', [row]);
+          this.events.emit('alarm', { alarm: next, previousState: prevState });
+        })
+        .catch((e) => this.log.error('saving an alarm failed', e));
+    } else {
+      this.uow.alarms.push(next);
+      this.uow.outbox.push(row);
+      this.post.events.push(['alarm', { alarm: next, previousState: prevState }]);
+    }
+    this.updateAlarmGauge();
+    return next;
+  }
+
+  private indexAlarm(a: Alarm) {
+    const k = alarmKey(a.unit, a.batch, a.key);
+    if (a.state === 'normal' && a.shelvedUntil === null) {
+      this.alarmsById.delete(a.id);
+      if (this.alarmIdByKey.get(k) === a.id) this.alarmIdByKey.delete(k);
+    } else {
+      this.alarmsById.set(a.id, a);
+      this.alarmIdByKey.set(k, a.id);
+    }
+  }
+
+  /** Alarms not in state normal, or shelved. */
+  liveAlarms(): Alarm[] {
+    return [...this.alarmsById.values()];
+  }
+
+  private clearStale(ob: OpenBatch, seq: number | null) {
+    ob.stale = false;
+    this.applyCondition(ob.unit, ob.id, { kind: 'stale', key: 'stale', active: false, priority: 2, value: 0, limit: this.config.ingest.staleAfterMs / 1000, message: `data from analyzer ${ob.analyzer} arrives again` }, seq, this.now());
+    this.events.emit('unit-changed', ob.unit);
+  }
+
+  /** Operator acknowledges an alarm (ISA-18.2). Throws AlarmRequestError naming why not. */
+  async acknowledgeAlarm(id: string, user: string, comment: string | null): Promise<Alarm> {
+    const cur = this.alarmsById.get(id) ?? (await this.storage.getAlarm(id));
+    if (!cur) throw new AlarmRequestError(404, `alarm ${id} does not exist`);
+    const to = stateOnAcknowledge(cur.state);
+    if (!to) throw new AlarmRequestError(409, `alarm ${id} is ${cur.state}: there is nothing to acknowledge`);
+    const now = this.now();
+    const next: Alarm = { ...cur, state: to, acknowledgedAt: now, acknowledgedBy: user, acknowledgeComment: comment, updatedAt: now };
+    await this.saveAlarmChange(cur, next);
+    return next;
+  }
+
+  async shelveAlarm(id: string, user: string, minutes: number, reason: string): Promise<Alarm> {
+    const cur = this.alarmsById.get(id) ?? (await this.storage.getAlarm(id));
+    if (!cur) throw new AlarmRequestError(404, `alarm ${id} does not exist`);
+    if (cur.state === 'normal' && cur.shelvedUntil === null) throw new AlarmRequestError(409, `alarm ${id} is normal: only a standing alarm can be shelved`);
+    const now = this.now();
+    const next: Alarm = { ...cur, shelvedUntil: now + minutes * 60_000, shelvedBy: user, shelveReason: reason, updatedAt: now };
+    await this.saveAlarmChange(cur, next);
+    return next;
+  }
+
+  async unshelveAlarm(id: string, user: string, why = 'unshelved by operator'): Promise<Alarm> {
+    const cur = this.alarmsById.get(id) ?? (await this.storage.getAlarm(id));
+    if (!cur) throw new AlarmRequestError(404, `alarm ${id} does not exist`);
+    if (cur.shelvedUntil === null) throw new AlarmRequestError(409, `alarm ${id} is not shelved`);
+    const now = this.now();
+    const state = cur.state === 'normal' ? 'normal' : stateOnReturn(cur.active);
+    const next: Alarm = { ...cur, state, shelvedUntil: null, shelvedBy: null, shelveReason: `${why} (${user})`, updatedAt: now };
+    await this.saveAlarmChange(cur, next);
+    return next;
+  }
+
+  private async saveAlarmChange(cur: Alarm, next: Alarm) {
+    const row = this.outboxRow(next.unit, 'alarm', { alarm: next, previousState: cur.state });
+    try {
+      await this.storage.saveAlarm(next, row);
+    } catch (e) {
+      this.outboxSeq.set(next.unit, row.unitSeq - 1);
+      throw e;
+    }
+    this.indexAlarm(next);
+    this.updateAlarmGauge();
+    this.events.emit('outbox', [row]);
+    this.events.emit('alarm', { alarm: next, previousState: cur.state });
+    this.events.emit('unit-changed', next.unit);
+  }
+
+  private updateAlarmGauge() {
+    const counts: Record<string, number> = { 'active-unacknowledged': 0, 'active-acknowledged': 0, 'cleared-unacknowledged': 0 };
+    for (const a of this.alarmsById.values()) if (a.state !== 'normal') counts[a.state] = (counts[a.state] ?? 0) + 1;
+    for (const [state, n] of Object.entries(counts)) this.metrics.activeAlarms.set({ state }, n);
+  }
+
+  /** Periodic: stale data, shelve expiry. */
+  private async tick() {
+    const now = this.now();
+    for (const ob of this.openByUnit.values()) {
+      if (!ob.stale && now - ob.lastDataAt > this.config.ingest.staleAfterMs) {
+        ob.stale = true;
+        const silentS = (now - ob.lastDataAt) / 1000;
+        this.applyCondition(ob.unit, ob.id, {
+          kind: 'stale', key: 'stale', active: true, priority: 2, value: silentS, limit: this.config.ingest.staleAfterMs / 1000,
+          message: `no data from analyzer ${ob.analyzer} for ${silentS.toFixed(0)} s during batch ${ob.id} (limit ${(this.config.ingest.staleAfterMs / 1000).toFixed(0)} s)`,
+        }, null, now, true);
+        this.events.emit('unit-changed', ob.unit);
+      }
+    }
+    for (const a of [...this.alarmsById.values()]) {
+      if (a.shelvedUntil !== null && a.shelvedUntil <= now) await this.unshelveAlarm(a.id, 'system', 'shelve expired').catch((e) => this.log.error('unshelve failed', e));
+    }
+  }
+
+  // ---- outbox and commit -------------------------------------------------------------------
+
+  private outboxRow(unit: string, type: string, payload: unknown): OutboxRow {
+    const seq = (this.outboxSeq.get(unit) ?? 0) + 1;
+    this.outboxSeq.set(unit, seq);
+    return { id: randomUUID(), unit, unitSeq: seq, type, payload, createdAt: this.now() };
+  }
+
+  private addOutbox(unit: string, type: string, payload: unknown) {
+    this.uow.outbox.push(this.outboxRow(unit, type, payload));
+  }
+
+  private schedule() {
+    if (this.pendingEntries >= this.config.ingest.groupCommitMaxEntries) {
+      if (this.timer) clearTimeout(this.timer);
+      this.timer = null;
+      void this.flush();
+      return;
+    }
+    if (this.timer) return;
+    this.timer = setTimeout(() => {
+      this.timer = null;
+      void this.flush();
+    }, this.config.ingest.groupCommitMs);
+  }
+
+  /** Commit everything pending now; resolves after the commit (and the acks) went out. */
+  flush(): Promise<void> {
+    const next = this.flushing.then(() => this.commitNow());
+    this.flushing = next.catch(() => undefined);
+    return next;
+  }
+
+  private async commitNow(): Promise<void> {
+    if (this.timer) {
+      clearTimeout(this.timer);
+      this.timer = null;
+    }
+    const w = this.uow;
+    const post = this.post;
+    const touched = this.touched;
+    if (this.pendingEntries === 0 && w.spectra.length === 0 && w.batchEnds.length === 0 && w.endpointEvents.length === 0 && w.alarms.length === 0) return;
+    this.uow = emptyIngestWrite();
+    this.post = newPost();
+    this.touched = new Set();
+    const entries = this.pendingEntries;
+    this.pendingEntries = 0;
+    for (const [st, seq] of post.acks) w.boots.push({ analyzer: st.analyzer, boot: st.boot, lastSeq: seq, lastSeen: this.now() });
+    for (const ob of touched) {
+      w.batchProgress.push({ batch: ob.id, spectrumCount: ob.nextIdx, lastSeq: ob.lastSeq, lastT: ob.lastT, endpointState: ob.endpointState, endpointAt: ob.endpointAt });
+    }
+    const t0 = performance.now();
+    try {
+      await this.storage.commitIngest(w);
+    } catch (e) {
+      this.log.error(`group commit of ${entries} entries failed; dropping their connections and reloading state from storage`, e);
+      await this.recover();
+      return;
+    }
+    const t1 = performance.now();
+    this.metrics.commitSeconds.observe((t1 - t0) / 1000);
+    this.metrics.commitEntries.observe(entries);
+    for (const [st, seq] of post.acks) {
+      if (seq > st.lastCommitted) st.lastCommitted = seq;
+      st.conn?.sendAck(st.lastCommitted);
+    }
+    const t2 = performance.now();
+    for (const rt of post.latencies) this.metrics.ackLatency.observe((t2 - rt) / 1000);
+    this.metrics.spectra.inc(post.spectra);
+    if (w.outbox.length) this.events.emit('outbox', w.outbox);
+    for (const [name, payload] of post.events) this.events.emit(name, payload);
+    for (const ob of touched) this.events.emit('unit-changed', ob.unit);
+  }
+
+  private async recover() {
+    for (const st of this.streams.values()) st.conn?.close(1011, 'server storage error; reconnect and resend');
+    this.streams.clear();
+    this.models.clear();
+    await this.load();
+  }
+
+  // ---- views -------------------------------------------------------------------------------
+
+  unitStatus(unitId: string): LiveUnitStatus | null {
+    const u = this.units.get(unitId);
+    if (!u) return null;
+    const ob = this.openByUnit.get(unitId) ?? null;
+    const now = this.now();
+    let active = 0;
+    let unack = 0;
+    let prio: AlarmPriority | null = null;
+    for (const a of this.alarmsById.values()) {
+      if (a.unit !== unitId) continue;
+      if (a.state === 'active-unacknowledged' || a.state === 'cleared-unacknowledged') unack++;
+      if (a.active && a.state !== 'normal') {
+        active++;
+        if (prio === null || a.priority < prio) prio = a.priority;
+      }
+    }
+    const connected = ob ? this.isConnected(ob.analyzer) : false;
+    const status = !ob ? 'idle' : ob.stale ? 'stale' : !connected ? 'offline' : 'running';
+    return {
+      id: u.id, name: u.name, kind: u.kind, description: u.description, createdAt: u.createdAt, status,
+      analyzer: ob?.analyzer ?? null, analyzerConnected: connected, deployment: this.deploymentRef(unitId),
+      openBatch: ob ? { id: ob.id, product: ob.product, startedAt: ob.startT, lastSeq: ob.nextIdx ? ob.lastSeq : null, lastT: ob.nextIdx ? ob.lastT : null, spectrumCount: ob.nextIdx } : null,
+      endpoint: ob?.endpoint ? { ...ob.endpoint, state: ob.endpointState ?? ob.endpoint.state } : null,
+      activeAlarms: active, unacknowledgedAlarms: unack, highestPriority: prio,
+      silentForMs: ob ? now - ob.lastDataAt : null,
+      latest: ob?.latest ? livePoint(ob.latest) : null,
+    };
+  }
+
+  openBatchById(batch: string): OpenBatch | null {
+    for (const ob of this.openByUnit.values()) if (ob.id === batch) return ob;
+    return null;
+  }
+}
+
+export class AlarmRequestError extends Error {
+  constructor(readonly status: number, message: string) {
+    super(message);
+  }
+}
+
+function newPost(): PostCommit {
+  return { events: [], acks: new Map(), latencies: [], spectra: 0 };
+}
+
+function alarmKey(unit: string, batch: string | null, key: string) {
+  return `${unit}\u0000${batch ?? ''}\u0000${key}`;
+}
+
+function sameAxis(a: ArrayLike<number>, b: ArrayLike<number>): boolean {
+  if (a.length !== b.length) return false;
+  for (let i = 0; i < a.length; i++) if (Math.abs(a[i]! - b[i]!) > 1e-6 * Math.max(1, Math.abs(a[i]!))) return false;
+  return true;
+}
+
+export function livePoint(r: MonitorResult): LivePoint {
+  return {
+    seq: r.seq, t: r.t, elapsedMin: r.elapsedMin, progressFraction: r.progressFraction, t2: r.t2, q: r.q,
+    t2Limit: r.limits.t2, qLimit: r.limits.q, scores: r.scores.slice(0, 2),
+    envelopeOutside: r.envelope.some((e) => e.status !== 'inside'),
+    prediction: r.prediction ? { name: r.prediction.name, unit: r.prediction.unit, value: r.prediction.value } : null,
+    suspect: r.suspect,
+  };
+}
+
+export type { ConditionKind };

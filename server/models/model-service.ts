@@ -1,0 +1,136 @@
+/**
+ * Model versions on the server: build from stored reference batches (core buildMonitoringModel),
+ * register an immutable version with its hash, evaluate a version by replaying stored batches.
+ */
+import { randomUUID } from 'node:crypto';
+import type { BatchEvaluation, EvaluationResult, ModelEnvelopeView, ModelVersionDetail } from '../../core/api/rest.ts';
+import type { ServerContext } from '../context.ts';
+import type { MonitoringModelLike, ReferenceBatchInput } from '../monitor/core-monitor.ts';
+import type { ModelVersionRow } from '../storage/storage.ts';
+import { modelVersionSummary } from '../api/views.ts';
+
+export class ModelRequestError extends Error {
+  constructor(readonly status: number, message: string) {
+    super(message);
+  }
+}
+
+interface ModelShape extends MonitoringModelLike {
+  limits: { t2: { value: number; confidence: number; method: string }; q: { value: number; confidence: number; method: string }; combined?: { value: number } };
+  envelope: { grid: number[]; pcs: { mean: number[]; lower: number[]; upper: number[] }[]; t2Limit: number[]; qLimit: number[] };
+}
+
+/** Store a built model as a new draft version of its name. */
+export async function registerModel(ctx: ServerContext, model: MonitoringModelLike, opts: { createdBy: string; referenceBatches: string[] }): Promise<ModelVersionRow> {
+  const core = await ctx.ingest.getCore();
+  const body = core.serializeMonitoringModel(model);
+  const s = model.settings;
+  const name = String(s.name);
+  const row: ModelVersionRow = {
+    id: randomUUID(), name, version: await ctx.storage.nextModelVersion(name), product: String(s.product), sha256: model.sha256, body,
+    settings: s as Record<string, unknown>, referenceBatches: opts.referenceBatches, components: model.pca.nComponents,
+    confidence: Number(s.confidence), status: 'draft', createdAt: ctx.now(), createdBy: opts.createdBy, approvedAt: null,
+    approvedBy: null, approvalReason: null, retiredAt: null, retiredBy: null, retireReason: null,
+  };
+  await ctx.storage.insertModelVersion(row);
+  return row;
+}
+
+export async function loadReferenceBatch(ctx: ServerContext, id: string): Promise<ReferenceBatchInput> {
+  const b = await ctx.storage.getBatch(id);
+  if (!b) throw new ModelRequestError(404, `reference batch "${id}" does not exist`);
+  if (b.status !== 'ended') throw new ModelRequestError(409, `reference batch "${id}" is still open; only ended batches can be references`);
+  const times: number[] = [];
+  const spectra: Float32Array[] = [];
+  for await (const s of ctx.storage.iterateSpectra(id)) {
+    times.push(s.t);
+    spectra.push(s.values);
+  }
+  return { id, axis: b.axis, times, spectra };
+}
+
+export async function buildFromStored(
+  ctx: ServerContext,
+  req: { name: string; product: string; referenceBatches: string[]; settings?: Record<string, unknown> },
+  user: string,
+): Promise<ModelVersionRow> {
+  const core = await ctx.ingest.getCore();
+  const batches: ReferenceBatchInput[] = [];
+  for (const id of req.referenceBatches) batches.push(await loadReferenceBatch(ctx, id));
+  let model: MonitoringModelLike;
+  try {
+    model = core.buildMonitoringModel(batches, { ...(req.settings ?? {}), name: req.name, product: req.product, author: user, createdAt: ctx.now() });
+  } catch (e) {
+    throw new ModelRequestError(422, `the model could not be built: ${(e as Error).message}`);
+  }
+  return registerModel(ctx, model, { createdBy: user, referenceBatches: req.referenceBatches });
+}
+
+export async function evaluateVersion(ctx: ServerContext, versionId: string, batchIds: string[], user: string): Promise<EvaluationResult> {
+  const core = await ctx.ingest.getCore();
+  const model = (await ctx.ingest.loadModel(versionId)) as ModelShape | null;
+  if (!model) throw new ModelRequestError(404, `model version "${versionId}" does not exist`);
+  const out: BatchEvaluation[] = [];
+  for (const id of batchIds) {
+    const b = await ctx.storage.getBatch(id);
+    if (!b) throw new ModelRequestError(404, `batch "${id}" does not exist`);
+    if (b.axis.length !== model.chain.inputAxis.length) {
+      throw new ModelRequestError(422, `batch "${id}" has ${b.axis.length} wavelengths; the model expects ${model.chain.inputAxis.length}`);
+    }
+    const mon = core.createBatchMonitor(model, b.startT);
+    const ev: BatchEvaluation = { batch: id, spectra: 0, pointsOutside: 0, alarms: 0, firstAlarmAt: null, firstAlarmKind: null, endpointAt: null, maxT2: 0, maxQ: 0 };
+    for await (const s of ctx.storage.iterateSpectra(id)) {
+      const r = mon.push(s.seq, s.t, s.values);
+      ev.spectra++;
+      if (r.t2 > r.limits.t2 || r.q > r.limits.q) ev.pointsOutside++;
+      for (const c of r.conditionChanges) {
+        if (!c.active) continue;
+        ev.alarms++;
+        if (ev.firstAlarmAt === null) {
+          ev.firstAlarmAt = r.t;
+          ev.firstAlarmKind = c.key;
+        }
+      }
+      if (ev.endpointAt === null && (r.endpoint.state === 'done' || r.endpoint.state === 'signalled')) ev.endpointAt = r.endpoint.doneAt?.t ?? r.t;
+      ev.maxT2 = Math.max(ev.maxT2, r.t2);
+      ev.maxQ = Math.max(ev.maxQ, r.q);
+    }
+    out.push(ev);
+  }
+  const result: EvaluationResult = { id: randomUUID(), versionId, createdAt: ctx.now(), createdBy: user, batches: out };
+  await ctx.storage.insertEvaluation(result);
+  return result;
+}
+
+export async function versionDetail(ctx: ServerContext, row: ModelVersionRow): Promise<ModelVersionDetail> {
+  const model = (await ctx.ingest.loadModel(row.id)) as ModelShape | null;
+  const summary = await modelVersionSummary(ctx.storage, row);
+  return {
+    ...summary,
+    settings: row.settings,
+    explained: model ? model.pca.explained : [],
+    cumulative: model ? model.pca.cumulative : [],
+    limits: model
+      ? { t2: model.limits.t2.value, q: model.limits.q.value, combined: model.limits.combined?.value ?? null, confidence: model.limits.t2.confidence, t2Method: model.limits.t2.method, qMethod: model.limits.q.method }
+      : { t2: NaN, q: NaN, combined: null, confidence: row.confidence, t2Method: '', qMethod: '' },
+    modelAxis: model ? Array.from(model.chain.outputAxis) : [],
+    evaluations: await ctx.storage.listEvaluations(row.id),
+  };
+}
+
+export async function envelopeView(ctx: ServerContext, row: ModelVersionRow): Promise<ModelEnvelopeView> {
+  const model = (await ctx.ingest.loadModel(row.id)) as ModelShape | null;
+  if (!model) throw new ModelRequestError(503, 'batch monitoring is not available on this server');
+  const progress = (model.settings as { progress?: { kind: string; source?: string } }).progress ?? { kind: 'time' };
+  const env = model.envelope;
+  return {
+    versionId: row.id,
+    progressKind: progress.kind === 'indicator' ? 'indicator' : 'time',
+    progressUnit: progress.kind === 'indicator' ? String(progress.source ?? 'indicator') : 'min',
+    progress: env.grid,
+    scores: env.pcs.map((p, i) => ({ pc: i + 1, expected: p.mean, lower: p.lower, upper: p.upper })),
+    local: env.t2Limit?.length ? { t2: env.t2Limit, q: env.qLimit } : null,
+    limits: { t2: model.limits.t2.value, q: model.limits.q.value, combined: model.limits.combined?.value ?? null, confidence: model.limits.t2.confidence },
+    references: [],
+  };
+}

@@ -1,0 +1,383 @@
+/**
+ * SQLite implementation of the storage interface (better-sqlite3 12, WAL, synchronous=FULL).
+ * Commits are durable when they return: GMP records must survive a power cut.
+ */
+import Database from 'better-sqlite3';
+import { mkdirSync } from 'node:fs';
+import { dirname } from 'node:path';
+import type { Alarm, EvaluationResult } from '../../core/api/rest.ts';
+import type { MonitorResult } from '../../core/monitor/types.ts';
+import { migrate } from './migrate.ts';
+import type {
+  AlarmFilter,
+  AnalyzerBootRow,
+  AnalyzerRow,
+  AuditRow,
+  BatchFilter,
+  BatchRow,
+  DeploymentRow,
+  EndpointEventRow,
+  IngestWrite,
+  ModelVersionRow,
+  OutboxRow,
+  SpectrumRow,
+  Storage,
+  UnitRow,
+} from './storage.ts';
+
+type Row = Record<string, any>;
+
+function f64Blob(a: ArrayLike<number>): Buffer {
+  const f = Float64Array.from(a);
+  return Buffer.from(f.buffer, f.byteOffset, f.byteLength);
+}
+function blobF64(b: Buffer): Float64Array {
+  const out = new Float64Array(b.byteLength / 8);
+  new Uint8Array(out.buffer).set(b);
+  return out;
+}
+function f32Blob(a: Float32Array): Buffer {
+  return Buffer.from(a.buffer, a.byteOffset, a.byteLength);
+}
+function blobF32(b: Buffer): Float32Array {
+  const out = new Float32Array(b.byteLength / 4);
+  new Uint8Array(out.buffer).set(b);
+  return out;
+}
+
+function batchFromRow(r: Row): BatchRow {
+  return {
+    id: r.id, unit: r.unit, analyzer: r.analyzer, boot: r.boot, product: r.product, status: r.status,
+    startSeq: r.start_seq, startT: r.start_t, endSeq: r.end_seq, endT: r.end_t, endReason: r.end_reason,
+    axis: blobF64(r.axis), modelVersion: r.model_version, spectrumCount: r.spectrum_count,
+    lastSeq: r.last_seq, lastT: r.last_t, endpointState: r.endpoint_state, endpointAt: r.endpoint_at, createdAt: r.created_at,
+  };
+}
+function modelFromRow(r: Row): ModelVersionRow {
+  return {
+    id: r.id, name: r.name, version: r.version, product: r.product, sha256: r.sha256, body: r.body,
+    settings: JSON.parse(r.settings), referenceBatches: JSON.parse(r.reference_batches), components: r.components,
+    confidence: r.confidence, status: r.status, createdAt: r.created_at, createdBy: r.created_by,
+    approvedAt: r.approved_at, approvedBy: r.approved_by, approvalReason: r.approval_reason,
+    retiredAt: r.retired_at, retiredBy: r.retired_by, retireReason: r.retire_reason,
+  };
+}
+function alarmFromRow(r: Row): Alarm {
+  return {
+    id: r.id, unit: r.unit, batch: r.batch, kind: r.kind, key: r.key, state: r.state, priority: r.priority,
+    message: r.message, value: r.value, limit: r.limit_value, active: r.active === 1, raisedAt: r.raised_at,
+    clearedAt: r.cleared_at, acknowledgedAt: r.acknowledged_at, acknowledgedBy: r.acknowledged_by,
+    acknowledgeComment: r.ack_comment, shelvedUntil: r.shelved_until, shelvedBy: r.shelved_by,
+    shelveReason: r.shelve_reason, seq: r.seq, updatedAt: r.updated_at,
+  };
+}
+function deploymentFromRow(r: Row): DeploymentRow {
+  return { id: r.id, unit: r.unit, modelVersion: r.model_version, deployedAt: r.deployed_at, deployedBy: r.deployed_by, reason: r.reason, endedAt: r.ended_at };
+}
+
+export interface SqliteOptions {
+  /** File path, or ':memory:'. */
+  file: string;
+  /** Defaults to FULL (durable). */
+  synchronous?: 'FULL' | 'NORMAL' | 'OFF';
+}
+
+export class SqliteStorage implements Storage {
+  readonly db: Database.Database;
+  private readonly st: Record<string, Database.Statement>;
+  private readonly commitTx: (w: IngestWrite) => void;
+  private readonly saveAlarmTx: (a: Alarm, o?: OutboxRow) => void;
+
+  constructor(opts: SqliteOptions) {
+    if (opts.file !== ':memory:') mkdirSync(dirname(opts.file), { recursive: true });
+    this.db = new Database(opts.file);
+    this.db.pragma('journal_mode = WAL');
+    this.db.pragma(`synchronous = ${opts.synchronous ?? 'FULL'}`);
+    this.db.pragma('foreign_keys = ON');
+    this.db.pragma('busy_timeout = 5000');
+    migrate(this.db);
+    const p = (sql: string) => this.db.prepare(sql);
+    this.st = {
+      insertUnit: p('INSERT INTO units (id, name, kind, description, created_at) VALUES (?, ?, ?, ?, ?)'),
+      getUnit: p('SELECT * FROM units WHERE id = ?'),
+      listUnits: p('SELECT * FROM units ORDER BY id'),
+      insertAnalyzer: p('INSERT INTO analyzers (id, name, created_at) VALUES (?, ?, ?)'),
+      getAnalyzer: p('SELECT * FROM analyzers WHERE id = ?'),
+      listAnalyzers: p('SELECT * FROM analyzers ORDER BY id'),
+      insertToken: p('INSERT INTO analyzer_tokens (analyzer, token_sha256, created_at) VALUES (?, ?, ?)'),
+      findToken: p('SELECT analyzer FROM analyzer_tokens WHERE token_sha256 = ? AND revoked_at IS NULL'),
+      upsertBoot: p(`INSERT INTO analyzer_boots (analyzer, boot, axis, instrument, first_seen, last_seen) VALUES (?, ?, ?, ?, ?, ?)
+        ON CONFLICT (analyzer, boot) DO UPDATE SET last_seen = excluded.last_seen, instrument = excluded.instrument`),
+      getBoot: p('SELECT * FROM analyzer_boots WHERE analyzer = ? AND boot = ?'),
+      latestBoot: p('SELECT * FROM analyzer_boots WHERE analyzer = ? ORDER BY last_seen DESC, boot DESC LIMIT 1'),
+      bootSeq: p('UPDATE analyzer_boots SET last_seq = MAX(last_seq, ?), last_seen = ? WHERE analyzer = ? AND boot = ?'),
+      insertBatch: p(`INSERT INTO batches (id, unit, analyzer, boot, product, status, start_seq, start_t, axis, model_version, created_at)
+        VALUES (?, ?, ?, ?, ?, 'open', ?, ?, ?, ?, ?)`),
+      insertRejected: p('INSERT OR IGNORE INTO rejected_entries (analyzer, boot, seq, code, message, received_at) VALUES (?, ?, ?, ?, ?, ?)'),
+      batchIds: p('SELECT id FROM batches'),
+      insertSpectrum: p('INSERT INTO spectra (batch, idx, analyzer, boot, seq, t, vals, received_at) VALUES (?, ?, ?, ?, ?, ?, ?, ?)'),
+      insertResult: p('INSERT OR REPLACE INTO results (batch, idx, seq, t, model_version, t2, q, body) VALUES (?, ?, ?, ?, ?, ?, ?, ?)'),
+      batchProgress: p('UPDATE batches SET spectrum_count = ?, last_seq = ?, last_t = ?, endpoint_state = ?, endpoint_at = ? WHERE id = ?'),
+      batchEnd: p(`UPDATE batches SET status = 'ended', end_seq = ?, end_t = ?, end_reason = ? WHERE id = ?`),
+      upsertAlarm: p(`INSERT INTO alarms (id, unit, batch, kind, key, state, priority, message, value, limit_value, active, raised_at, cleared_at,
+          acknowledged_at, acknowledged_by, ack_comment, shelved_until, shelved_by, shelve_reason, seq, updated_at)
+        VALUES (@id, @unit, @batch, @kind, @key, @state, @priority, @message, @value, @limit, @active, @raisedAt, @clearedAt,
+          @acknowledgedAt, @acknowledgedBy, @acknowledgeComment, @shelvedUntil, @shelvedBy, @shelveReason, @seq, @updatedAt)
+        ON CONFLICT (id) DO UPDATE SET state = excluded.state, priority = excluded.priority, message = excluded.message,
+          value = excluded.value, limit_value = excluded.limit_value, active = excluded.active, cleared_at = excluded.cleared_at,
+          acknowledged_at = excluded.acknowledged_at, acknowledged_by = excluded.acknowledged_by, ack_comment = excluded.ack_comment,
+          shelved_until = excluded.shelved_until, shelved_by = excluded.shelved_by, shelve_reason = excluded.shelve_reason,
+          seq = excluded.seq, updated_at = excluded.updated_at`),
+      insertEndpointEvent: p(`INSERT INTO endpoint_events (id, unit, batch, from_state, to_state, t, seq, reason, recorded_at)
+        VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?)`),
+      insertOutbox: p('INSERT INTO outbox (id, unit, unit_seq, type, payload, created_at) VALUES (?, ?, ?, ?, ?, ?)'),
+      maxOutbox: p('SELECT unit, MAX(unit_seq) AS m FROM outbox GROUP BY unit'),
+      getBatch: p('SELECT * FROM batches WHERE id = ?'),
+      openBatches: p(`SELECT * FROM batches WHERE status = 'open' ORDER BY start_t`),
+      readSpectra: p('SELECT batch, idx, seq, t, vals FROM spectra WHERE batch = ? AND seq >= ? AND seq <= ? ORDER BY idx LIMIT ?'),
+      pageSpectra: p('SELECT batch, idx, seq, t, vals FROM spectra WHERE batch = ? AND idx >= ? ORDER BY idx LIMIT ?'),
+      spectrumBySeq: p('SELECT batch, idx, seq, t, vals FROM spectra WHERE batch = ? AND seq = ?'),
+      readResults: p('SELECT body FROM results WHERE batch = ? AND seq >= ? AND seq <= ? ORDER BY idx LIMIT ?'),
+      lastResult: p('SELECT body FROM results WHERE batch = ? ORDER BY idx DESC LIMIT 1'),
+      resultCount: p('SELECT COUNT(*) AS n FROM results WHERE batch = ?'),
+      nextVersion: p('SELECT COALESCE(MAX(version), 0) + 1 AS v FROM model_versions WHERE name = ?'),
+      insertModel: p(`INSERT INTO model_versions (id, name, version, product, sha256, body, settings, reference_batches, components, confidence,
+          status, created_at, created_by) VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, 'draft', ?, ?)`),
+      getModel: p('SELECT * FROM model_versions WHERE id = ?'),
+      listModels: p('SELECT * FROM model_versions ORDER BY name, version'),
+      approveModel: p(`UPDATE model_versions SET status = 'approved', approved_at = ?, approved_by = ?, approval_reason = ? WHERE id = ? AND status = 'draft'`),
+      retireModel: p(`UPDATE model_versions SET status = 'retired', retired_at = ?, retired_by = ?, retire_reason = ? WHERE id = ? AND status != 'retired'`),
+      insertEval: p('INSERT INTO model_evaluations (id, model_version, created_at, created_by, body) VALUES (?, ?, ?, ?, ?)'),
+      listEvals: p('SELECT body FROM model_evaluations WHERE model_version = ? ORDER BY created_at'),
+      endUnitDeployments: p('UPDATE deployments SET ended_at = ? WHERE unit = ? AND ended_at IS NULL'),
+      insertDeployment: p('INSERT INTO deployments (id, unit, model_version, deployed_at, deployed_by, reason) VALUES (?, ?, ?, ?, ?, ?)'),
+      activeDeployment: p('SELECT * FROM deployments WHERE unit = ? AND ended_at IS NULL ORDER BY deployed_at DESC LIMIT 1'),
+      endModelDeployments: p('UPDATE deployments SET ended_at = ? WHERE model_version = ? AND ended_at IS NULL'),
+      getAlarm: p('SELECT * FROM alarms WHERE id = ?'),
+      liveAlarms: p(`SELECT * FROM alarms WHERE state != 'normal' OR shelved_until IS NOT NULL`),
+      endpointEvents: p('SELECT * FROM endpoint_events WHERE batch = ? ORDER BY t, seq'),
+      insertAudit: p('INSERT INTO audit (at, user, action, object, before, after, reason) VALUES (?, ?, ?, ?, ?, ?, ?)'),
+    };
+    const s = this.st;
+    this.commitTx = this.db.transaction((w: IngestWrite) => {
+      for (const b of w.batchStarts) {
+        s.insertBatch.run(b.id, b.unit, b.analyzer, b.boot, b.product, b.startSeq, b.startT, f64Blob(b.axis), b.modelVersion, b.createdAt);
+      }
+      for (const r of w.rejected) s.insertRejected.run(r.analyzer, r.boot, r.seq, r.code, r.message, r.receivedAt);
+      for (const x of w.spectra) s.insertSpectrum.run(x.batch, x.idx, x.analyzer, x.boot, x.seq, x.t, f32Blob(x.values), x.receivedAt);
+      for (const r of w.results) {
+        s.insertResult.run(r.batch, r.idx, r.result.seq, r.result.t, r.modelVersion, r.result.t2, r.result.q, JSON.stringify(r.result));
+      }
+      for (const p of w.batchProgress) s.batchProgress.run(p.spectrumCount, p.lastSeq, p.lastT, p.endpointState, p.endpointAt, p.batch);
+      for (const e of w.batchEnds) s.batchEnd.run(e.endSeq, e.endT, e.endReason, e.batch);
+      for (const a of w.alarms) s.upsertAlarm.run(alarmParams(a));
+      for (const e of w.endpointEvents) s.insertEndpointEvent.run(e.id, e.unit, e.batch, e.from, e.to, e.t, e.seq, e.reason, e.recordedAt);
+      for (const o of w.outbox) s.insertOutbox.run(o.id, o.unit, o.unitSeq, o.type, JSON.stringify(o.payload), o.createdAt);
+      for (const b of w.boots) s.bootSeq.run(b.lastSeq, b.lastSeen, b.analyzer, b.boot);
+    });
+    this.saveAlarmTx = this.db.transaction((a: Alarm, o?: OutboxRow) => {
+      s.upsertAlarm.run(alarmParams(a));
+      if (o) s.insertOutbox.run(o.id, o.unit, o.unitSeq, o.type, JSON.stringify(o.payload), o.createdAt);
+    });
+  }
+
+  async close(): Promise<void> {
+    if (this.db.open) this.db.close();
+  }
+
+  async createUnit(u: UnitRow) {
+    this.st.insertUnit.run(u.id, u.name, u.kind, u.description, u.createdAt);
+  }
+  async getUnit(id: string) {
+    const r = this.st.getUnit.get(id) as Row | undefined;
+    return r ? { id: r.id, name: r.name, kind: r.kind, description: r.description, createdAt: r.created_at } : null;
+  }
+  async listUnits() {
+    return (this.st.listUnits.all() as Row[]).map((r) => ({ id: r.id, name: r.name, kind: r.kind, description: r.description, createdAt: r.created_at }));
+  }
+  async createAnalyzer(a: AnalyzerRow) {
+    this.st.insertAnalyzer.run(a.id, a.name, a.createdAt);
+  }
+  async getAnalyzer(id: string) {
+    const r = this.st.getAnalyzer.get(id) as Row | undefined;
+    return r ? { id: r.id, name: r.name, createdAt: r.created_at } : null;
+  }
+  async listAnalyzers() {
+    return (this.st.listAnalyzers.all() as Row[]).map((r) => ({ id: r.id, name: r.name, createdAt: r.created_at }));
+  }
+  async addAnalyzerToken(analyzer: string, tokenSha256: string, at: number) {
+    this.st.insertToken.run(analyzer, tokenSha256, at);
+  }
+  async findAnalyzerByTokenHash(h: string) {
+    const r = this.st.findToken.get(h) as Row | undefined;
+    return r ? (r.analyzer as string) : null;
+  }
+  async upsertAnalyzerBoot(b: Omit<AnalyzerBootRow, 'lastSeq'>) {
+    this.st.upsertBoot.run(b.analyzer, b.boot, f64Blob(b.axis), b.instrument, b.firstSeen, b.lastSeen);
+    return (await this.getAnalyzerBoot(b.analyzer, b.boot))!;
+  }
+  async getAnalyzerBoot(analyzer: string, boot: number) {
+    const r = this.st.getBoot.get(analyzer, boot) as Row | undefined;
+    return r ? bootFromRow(r) : null;
+  }
+  async latestAnalyzerBoot(analyzer: string) {
+    const r = this.st.latestBoot.get(analyzer) as Row | undefined;
+    return r ? bootFromRow(r) : null;
+  }
+
+  async commitIngest(w: IngestWrite) {
+    this.commitTx(w);
+  }
+  async maxOutboxSeqByUnit() {
+    const m = new Map<string, number>();
+    for (const r of this.st.maxOutbox.all() as Row[]) m.set(r.unit, r.m);
+    return m;
+  }
+
+  async getBatch(id: string) {
+    const r = this.st.getBatch.get(id) as Row | undefined;
+    return r ? batchFromRow(r) : null;
+  }
+  async batchIds() {
+    return (this.st.batchIds.all() as Row[]).map((r) => r.id as string);
+  }
+  async listBatches(f: BatchFilter) {
+    const where: string[] = [];
+    const args: unknown[] = [];
+    if (f.unit) (where.push('unit = ?'), args.push(f.unit));
+    if (f.product) (where.push('product = ?'), args.push(f.product));
+    if (f.status) (where.push('status = ?'), args.push(f.status));
+    if (f.from !== undefined) (where.push('start_t >= ?'), args.push(f.from));
+    if (f.to !== undefined) (where.push('start_t <= ?'), args.push(f.to));
+    if (f.ids) (where.push(`id IN (${f.ids.map(() => '?').join(',') || "''"})`), args.push(...f.ids));
+    const w = where.length ? `WHERE ${where.join(' AND ')}` : '';
+    const total = (this.db.prepare(`SELECT COUNT(*) AS n FROM batches ${w}`).get(...args) as Row).n as number;
+    const rows = this.db.prepare(`SELECT * FROM batches ${w} ORDER BY start_t DESC, id LIMIT ? OFFSET ?`).all(...args, f.limit, f.offset) as Row[];
+    return { items: rows.map(batchFromRow), total };
+  }
+  async openBatches() {
+    return (this.st.openBatches.all() as Row[]).map(batchFromRow);
+  }
+  async readSpectra(batch: string, fromSeq: number, toSeq: number, limit: number) {
+    return (this.st.readSpectra.all(batch, fromSeq, toSeq, limit) as Row[]).map(spectrumFromRow);
+  }
+  async *iterateSpectra(batch: string, pageSize = 2000): AsyncIterable<SpectrumRow> {
+    let idx = 0;
+    for (;;) {
+      const rows = this.st.pageSpectra.all(batch, idx, pageSize) as Row[];
+      for (const r of rows) yield spectrumFromRow(r);
+      if (rows.length < pageSize) return;
+      idx = (rows[rows.length - 1]!.idx as number) + 1;
+    }
+  }
+  async getSpectrumBySeq(batch: string, seq: number) {
+    const r = this.st.spectrumBySeq.get(batch, seq) as Row | undefined;
+    return r ? spectrumFromRow(r) : null;
+  }
+  async readResults(batch: string, fromSeq: number, toSeq: number, limit: number) {
+    return (this.st.readResults.all(batch, fromSeq, toSeq, limit) as Row[]).map((r) => JSON.parse(r.body) as MonitorResult);
+  }
+  async lastResult(batch: string) {
+    const r = this.st.lastResult.get(batch) as Row | undefined;
+    return r ? (JSON.parse(r.body) as MonitorResult) : null;
+  }
+  async resultCount(batch: string) {
+    return (this.st.resultCount.get(batch) as Row).n as number;
+  }
+
+  async nextModelVersion(name: string) {
+    return (this.st.nextVersion.get(name) as Row).v as number;
+  }
+  async insertModelVersion(m: ModelVersionRow) {
+    this.st.insertModel.run(m.id, m.name, m.version, m.product, m.sha256, m.body, JSON.stringify(m.settings), JSON.stringify(m.referenceBatches),
+      m.components, m.confidence, m.createdAt, m.createdBy);
+  }
+  async getModelVersion(id: string) {
+    const r = this.st.getModel.get(id) as Row | undefined;
+    return r ? modelFromRow(r) : null;
+  }
+  async listModelVersions() {
+    return (this.st.listModels.all() as Row[]).map(modelFromRow);
+  }
+  async approveModelVersion(id: string, by: string, at: number, reason: string) {
+    const r = this.st.approveModel.run(at, by, reason, id);
+    if (r.changes !== 1) throw new Error(`model version ${id} is not a draft`);
+  }
+  async retireModelVersion(id: string, by: string, at: number, reason: string) {
+    this.db.transaction(() => {
+      const r = this.st.retireModel.run(at, by, reason, id);
+      if (r.changes !== 1) throw new Error(`model version ${id} is already retired`);
+      this.st.endModelDeployments.run(at, id);
+    })();
+  }
+  async insertEvaluation(e: EvaluationResult) {
+    this.st.insertEval.run(e.id, e.versionId, e.createdAt, e.createdBy, JSON.stringify(e));
+  }
+  async listEvaluations(versionId: string) {
+    return (this.st.listEvals.all(versionId) as Row[]).map((r) => JSON.parse(r.body) as EvaluationResult);
+  }
+  async deploy(d: DeploymentRow) {
+    this.db.transaction(() => {
+      this.st.endUnitDeployments.run(d.deployedAt, d.unit);
+      this.st.insertDeployment.run(d.id, d.unit, d.modelVersion, d.deployedAt, d.deployedBy, d.reason);
+    })();
+  }
+  async activeDeployment(unit: string) {
+    const r = this.st.activeDeployment.get(unit) as Row | undefined;
+    return r ? deploymentFromRow(r) : null;
+  }
+  async listDeployments(f: { unit?: string; active?: boolean }) {
+    const where: string[] = [];
+    const args: unknown[] = [];
+    if (f.unit) (where.push('unit = ?'), args.push(f.unit));
+    if (f.active !== undefined) where.push(f.active ? 'ended_at IS NULL' : 'ended_at IS NOT NULL');
+    const w = where.length ? `WHERE ${where.join(' AND ')}` : '';
+    return (this.db.prepare(`SELECT * FROM deployments ${w} ORDER BY deployed_at DESC`).all(...args) as Row[]).map(deploymentFromRow);
+  }
+  async endDeploymentsOfModel(versionId: string, at: number) {
+    this.st.endModelDeployments.run(at, versionId);
+  }
+
+  async listAlarms(f: AlarmFilter) {
+    const where: string[] = [];
+    const args: unknown[] = [];
+    if (f.unit) (where.push('unit = ?'), args.push(f.unit));
+    if (f.batch) (where.push('batch = ?'), args.push(f.batch));
+    if (f.state) (where.push('state = ?'), args.push(f.state));
+    if (f.active !== undefined) (where.push('active = ?'), args.push(f.active ? 1 : 0));
+    if (f.open) where.push(`(state != 'normal' OR shelved_until IS NOT NULL)`);
+    const w = where.length ? `WHERE ${where.join(' AND ')}` : '';
+    const total = (this.db.prepare(`SELECT COUNT(*) AS n FROM alarms ${w}`).get(...args) as Row).n as number;
+    const rows = this.db.prepare(`SELECT * FROM alarms ${w} ORDER BY updated_at DESC, id LIMIT ? OFFSET ?`).all(...args, f.limit, f.offset) as Row[];
+    return { items: rows.map(alarmFromRow), total };
+  }
+  async getAlarm(id: string) {
+    const r = this.st.getAlarm.get(id) as Row | undefined;
+    return r ? alarmFromRow(r) : null;
+  }
+  async liveAlarms() {
+    return (this.st.liveAlarms.all() as Row[]).map(alarmFromRow);
+  }
+  async saveAlarm(a: Alarm, o?: OutboxRow) {
+    this.saveAlarmTx(a, o);
+  }
+  async listEndpointEvents(batch: string) {
+    return (this.st.endpointEvents.all(batch) as Row[]).map(
+      (r): EndpointEventRow => ({ id: r.id, unit: r.unit, batch: r.batch, from: r.from_state, to: r.to_state, t: r.t, seq: r.seq, reason: r.reason, recordedAt: r.recorded_at }),
+    );
+  }
+  async appendAudit(r: AuditRow) {
+    this.st.insertAudit.run(r.at, r.user, r.action, r.object, r.before === undefined ? null : JSON.stringify(r.before),
+      r.after === undefined ? null : JSON.stringify(r.after), r.reason ?? null);
+  }
+}
+
+function alarmParams(a: Alarm) {
+  return { ...a, active: a.active ? 1 : 0 };
+}
+function bootFromRow(r: Row): AnalyzerBootRow {
+  return { analyzer: r.analyzer, boot: r.boot, axis: blobF64(r.axis), instrument: r.instrument, firstSeen: r.first_seen, lastSeen: r.last_seen, lastSeq: r.last_seq };
+}
+function spectrumFromRow(r: Row): SpectrumRow {
+  return { batch: r.batch, idx: r.idx, seq: r.seq, t: r.t, values: blobF32(r.vals) };
+}

@@ -1,0 +1,228 @@
+/**
+ * The one storage interface of the Tideline server. The embedded implementation is SQLite
+ * (sqlite-storage.ts); a PostgreSQL implementation can follow behind the same interface, so every
+ * method returns a Promise even where SQLite answers synchronously.
+ *
+ * Raw spectra are the record: nothing here changes or deletes them.
+ */
+import type { Alarm, EvaluationResult, ModelVersionStatus } from '../../core/api/rest.ts';
+import type { EndpointState, MonitorResult } from '../../core/monitor/types.ts';
+
+export interface UnitRow {
+  id: string;
+  name: string;
+  kind: 'dryer' | 'reactor' | 'other';
+  description: string;
+  createdAt: number;
+}
+
+export interface AnalyzerRow {
+  id: string;
+  name: string;
+  createdAt: number;
+}
+
+export interface AnalyzerBootRow {
+  analyzer: string;
+  boot: number;
+  axis: Float64Array;
+  instrument: string | null;
+  firstSeen: number;
+  lastSeen: number;
+  lastSeq: number;
+}
+
+export interface BatchRow {
+  id: string;
+  unit: string;
+  analyzer: string;
+  boot: number;
+  product: string;
+  status: 'open' | 'ended';
+  startSeq: number;
+  startT: number;
+  endSeq: number | null;
+  endT: number | null;
+  endReason: string | null;
+  axis: Float64Array;
+  modelVersion: string | null;
+  spectrumCount: number;
+  lastSeq: number | null;
+  lastT: number | null;
+  endpointState: EndpointState | null;
+  endpointAt: number | null;
+  createdAt: number;
+}
+
+export interface SpectrumRow {
+  batch: string;
+  idx: number;
+  seq: number;
+  t: number;
+  values: Float32Array;
+}
+
+export interface ModelVersionRow {
+  id: string;
+  name: string;
+  version: number;
+  product: string;
+  sha256: string;
+  body: string;
+  settings: Record<string, unknown>;
+  referenceBatches: string[];
+  components: number;
+  confidence: number;
+  status: ModelVersionStatus;
+  createdAt: number;
+  createdBy: string;
+  approvedAt: number | null;
+  approvedBy: string | null;
+  approvalReason: string | null;
+  retiredAt: number | null;
+  retiredBy: string | null;
+  retireReason: string | null;
+}
+
+export interface DeploymentRow {
+  id: string;
+  unit: string;
+  modelVersion: string;
+  deployedAt: number;
+  deployedBy: string;
+  reason: string | null;
+  endedAt: number | null;
+}
+
+export interface EndpointEventRow {
+  id: string;
+  unit: string;
+  batch: string;
+  from: EndpointState;
+  to: EndpointState;
+  t: number;
+  seq: number;
+  reason: string;
+  recordedAt: number;
+}
+
+export interface OutboxRow {
+  id: string;
+  unit: string;
+  unitSeq: number;
+  type: string;
+  payload: unknown;
+  createdAt: number;
+}
+
+export interface AuditRow {
+  at: number;
+  user: string;
+  action: string;
+  object: string;
+  before?: unknown;
+  after?: unknown;
+  reason?: string;
+}
+
+/** Everything one group commit writes, in one transaction. Order of application: as listed. */
+export interface IngestWrite {
+  boots: { analyzer: string; boot: number; lastSeq: number; lastSeen: number }[];
+  batchStarts: Omit<BatchRow, 'spectrumCount' | 'lastSeq' | 'lastT' | 'endpointState' | 'endpointAt' | 'status' | 'endSeq' | 'endT' | 'endReason'>[];
+  rejected: { analyzer: string; boot: number; seq: number; code: string; message: string; receivedAt: number }[];
+  spectra: (SpectrumRow & { analyzer: string; boot: number; receivedAt: number })[];
+  results: { batch: string; idx: number; modelVersion: string; result: MonitorResult }[];
+  batchProgress: { batch: string; spectrumCount: number; lastSeq: number; lastT: number; endpointState: EndpointState | null; endpointAt: number | null }[];
+  batchEnds: { batch: string; endSeq: number | null; endT: number; endReason: string | null }[];
+  alarms: Alarm[];
+  endpointEvents: EndpointEventRow[];
+  outbox: OutboxRow[];
+}
+
+export function emptyIngestWrite(): IngestWrite {
+  return { boots: [], rejected: [], batchStarts: [], spectra: [], results: [], batchProgress: [], batchEnds: [], alarms: [], endpointEvents: [], outbox: [] };
+}
+
+export interface BatchFilter {
+  unit?: string;
+  product?: string;
+  status?: 'open' | 'ended';
+  from?: number;
+  to?: number;
+  ids?: string[];
+  limit: number;
+  offset: number;
+}
+
+export interface AlarmFilter {
+  unit?: string;
+  batch?: string;
+  state?: string;
+  active?: boolean;
+  /** Active, unacknowledged or shelved (what an operator must still see). */
+  open?: boolean;
+  limit: number;
+  offset: number;
+}
+
+export interface Storage {
+  /** The underlying handle, for other parts' own small stores (SQLite: better-sqlite3 Database). */
+  readonly db: unknown;
+  close(): Promise<void>;
+
+  // units, analyzers, tokens
+  createUnit(u: UnitRow): Promise<void>;
+  getUnit(id: string): Promise<UnitRow | null>;
+  listUnits(): Promise<UnitRow[]>;
+  createAnalyzer(a: AnalyzerRow): Promise<void>;
+  getAnalyzer(id: string): Promise<AnalyzerRow | null>;
+  listAnalyzers(): Promise<AnalyzerRow[]>;
+  addAnalyzerToken(analyzer: string, tokenSha256: string, at: number): Promise<void>;
+  findAnalyzerByTokenHash(tokenSha256: string): Promise<string | null>;
+  upsertAnalyzerBoot(row: Omit<AnalyzerBootRow, 'lastSeq'>): Promise<AnalyzerBootRow>;
+  getAnalyzerBoot(analyzer: string, boot: number): Promise<AnalyzerBootRow | null>;
+  latestAnalyzerBoot(analyzer: string): Promise<AnalyzerBootRow | null>;
+
+  // ingest
+  commitIngest(w: IngestWrite): Promise<void>;
+  maxOutboxSeqByUnit(): Promise<Map<string, number>>;
+
+  // batches, spectra, results
+  getBatch(id: string): Promise<BatchRow | null>;
+  batchIds(): Promise<string[]>;
+  listBatches(f: BatchFilter): Promise<{ items: BatchRow[]; total: number }>;
+  openBatches(): Promise<BatchRow[]>;
+  readSpectra(batch: string, fromSeq: number, toSeq: number, limit: number): Promise<SpectrumRow[]>;
+  /** Every spectrum of a batch in order, as a stream of pages (for replay). */
+  iterateSpectra(batch: string, pageSize?: number): AsyncIterable<SpectrumRow>;
+  getSpectrumBySeq(batch: string, seq: number): Promise<SpectrumRow | null>;
+  readResults(batch: string, fromSeq: number, toSeq: number, limit: number): Promise<MonitorResult[]>;
+  lastResult(batch: string): Promise<MonitorResult | null>;
+  /** Ids of the batch's results, to know which results are missing after a crash. */
+  resultCount(batch: string): Promise<number>;
+
+  // models and deployments
+  nextModelVersion(name: string): Promise<number>;
+  insertModelVersion(m: ModelVersionRow): Promise<void>;
+  getModelVersion(id: string): Promise<ModelVersionRow | null>;
+  listModelVersions(): Promise<ModelVersionRow[]>;
+  approveModelVersion(id: string, by: string, at: number, reason: string): Promise<void>;
+  retireModelVersion(id: string, by: string, at: number, reason: string): Promise<void>;
+  insertEvaluation(e: EvaluationResult): Promise<void>;
+  listEvaluations(versionId: string): Promise<EvaluationResult[]>;
+  deploy(d: DeploymentRow): Promise<void>;
+  activeDeployment(unit: string): Promise<DeploymentRow | null>;
+  listDeployments(f: { unit?: string; active?: boolean }): Promise<DeploymentRow[]>;
+  endDeploymentsOfModel(versionId: string, at: number): Promise<void>;
+
+  // alarms, endpoint events
+  listAlarms(f: AlarmFilter): Promise<{ items: Alarm[]; total: number }>;
+  getAlarm(id: string): Promise<Alarm | null>;
+  /** Alarms not in state 'normal' (for rebuilding the alarm book at start). */
+  liveAlarms(): Promise<Alarm[]>;
+  saveAlarm(a: Alarm, outbox?: OutboxRow): Promise<void>;
+  listEndpointEvents(batch: string): Promise<EndpointEventRow[]>;
+
+  // audit (plain rows until server/audit takes over)
+  appendAudit(r: AuditRow): Promise<void>;
+}
