@@ -1,13 +1,21 @@
 /**
- * Access control (issue 8). `install(ctx)` sets ctx.auth (and ctx.audit if not yet set) and
- * mounts /api/auth/*. See docs/security.md.
+ * Access control (issue 8). `install(ctx)` sets ctx.auth and ctx.audit and mounts /api/auth/*
+ * and the audit routes /api/audit/* (installing server/audit as well; calling its install again
+ * is harmless). See docs/security.md.
  */
+import { install as installAudit } from '../audit/index.ts';
 import { authRouter } from './auth-routes.ts';
 import { ensureSecurity, type SecurityHost } from './security-setup.ts';
 
+const installed = new WeakSet<object>();
+
 export function install(ctx: SecurityHost): void {
   const { auth } = ensureSecurity(ctx);
-  ctx.api.use('/auth', authRouter(auth));
+  if (!installed.has(ctx)) {
+    installed.add(ctx);
+    ctx.api.use('/auth', authRouter(auth));
+  }
+  installAudit(ctx);
 }
 
 export { AuthService } from './auth-service.ts';

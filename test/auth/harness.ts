@@ -99,7 +99,17 @@ export class Client {
     if (this.cookies.size) headers.cookie = [...this.cookies].map(([k, v]) => `${k}=${v}`).join('; ');
     if (opts.raw !== undefined || body !== undefined) headers['content-type'] = opts.contentType ?? 'application/json';
     if ((opts.csrf ?? true) && this.csrf && method !== 'GET') headers['x-csrf-token'] = this.csrf;
-    const res = await fetch(this.base + path, { method, headers, body: opts.raw ?? (body === undefined ? undefined : JSON.stringify(body)) });
+    const init = { method, headers, body: opts.raw ?? (body === undefined ? undefined : JSON.stringify(body)) };
+    let res: Response;
+    try {
+      res = await fetch(this.base + path, init);
+    } catch (e) {
+      // A pooled keep-alive socket the server had just closed (idle timeout): the request never
+      // reached the server; send it once more on a fresh connection.
+      const code = (e as { cause?: { code?: string } }).cause?.code;
+      if (code !== 'ECONNRESET' && code !== 'UND_ERR_SOCKET') throw e;
+      res = await fetch(this.base + path, init);
+    }
     this.lastSetCookie = res.headers.getSetCookie();
     for (const c of this.lastSetCookie) {
       const [kv] = c.split(';');
