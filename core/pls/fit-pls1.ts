@@ -2,7 +2,7 @@
 import { denseMatrix, type DenseMatrix } from '../linalg/dense-matrix.ts';
 import { makePls1Model, type Pls1Model } from './pls-model.ts';
 import { checkPlsInput, coefficientsFor, nipalsPls1, rotationsFor } from './nipals.ts';
-import { plsXLimits, residualThetaOf } from './x-limits.ts';
+import { calibrationQ, plsXLimits, plsXLimitsFromCalibrationQ, PLS_THETA_MAX_GRAM, residualThetaOf } from './x-limits.ts';
 
 export interface FitPls1Options {
   components: number;
@@ -32,7 +32,8 @@ export function fitPls1(X: DenseMatrix, y: ArrayLike<number>, opts: FitPls1Optio
     for (let i = 0; i < n; i++) ss += (fit.T[i * A + a]! - m) ** 2;
     scoreVariance[a] = ss / (n - 1);
   }
-  const theta = residualThetaOf(fit.E, n, p);
+  const theta = Math.min(n, p) <= PLS_THETA_MAX_GRAM ? residualThetaOf(fit.E, n, p) : null;
+  const limits = theta ? plsXLimits(A, n, theta, confidence) : plsXLimitsFromCalibrationQ(A, n, calibrationQ(fit.E, n, p), confidence);
   let lo = Infinity;
   let hi = -Infinity;
   for (let i = 0; i < n; i++) {
@@ -54,7 +55,7 @@ export function fitPls1(X: DenseMatrix, y: ArrayLike<number>, opts: FitPls1Optio
     intercept,
     scoreVariance,
     residualTheta: theta,
-    limits: plsXLimits(A, n, theta, confidence),
+    limits,
     yRange: [lo, hi],
   });
 }

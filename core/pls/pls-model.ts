@@ -29,8 +29,8 @@ export interface Pls1Model {
   readonly intercept: number;
   /** Variances of the calibration X scores (n − 1), length A: the T² scaling. */
   readonly scoreVariance: Float64Array;
-  /** θ1…θ3 of the calibration X residual covariance (Jackson & Mudholkar 1979). */
-  readonly residualTheta: [number, number, number];
+  /** θ1…θ3 of the calibration X residual covariance (Jackson & Mudholkar 1979); null when not computed (large sets, see x-limits.ts). */
+  readonly residualTheta: [number, number, number] | null;
   /** X-model limits for flagging extrapolation, with the method used. */
   readonly limits: { confidence: number; t2Limit: number; t2Method: string; qLimit: number; qMethod: string };
   /** Calibration y range, for context. */
@@ -58,7 +58,7 @@ export const pls1JsonSchema = z.strictObject({
   coefficients: z.array(finite),
   intercept: finite,
   scoreVariance: z.array(finite),
-  residualTheta: z.tuple([finite, finite, finite]),
+  residualTheta: z.tuple([finite, finite, finite]).nullable(),
   limits: z.strictObject({ confidence: finite, t2Limit: finite, t2Method: z.string(), qLimit: finite, qMethod: z.string() }),
   yRange: z.tuple([finite, finite]),
 });
@@ -87,7 +87,7 @@ export function makePls1Model(f: Pls1Fields): Pls1Model {
         coefficients: Array.from(f.coefficients),
         intercept: f.intercept,
         scoreVariance: Array.from(f.scoreVariance),
-        residualTheta: [...f.residualTheta],
+        residualTheta: f.residualTheta ? [...f.residualTheta] : null,
         limits: { ...f.limits },
         yRange: [...f.yRange],
       };
@@ -133,7 +133,7 @@ export function loadPls1(json: unknown): Pls1Model {
     coefficients: Float64Array.from(j.coefficients),
     intercept: j.intercept,
     scoreVariance: Float64Array.from(j.scoreVariance),
-    residualTheta: [j.residualTheta[0], j.residualTheta[1], j.residualTheta[2]],
+    residualTheta: j.residualTheta ? [j.residualTheta[0], j.residualTheta[1], j.residualTheta[2]] : null,
     limits: { ...j.limits },
     yRange: [j.yRange[0], j.yRange[1]],
   });

@@ -5,7 +5,14 @@
  * θ1…θ3 of the calibration residual covariance; where the Jackson–Mudholkar form is undefined
  * (h0 ≤ 0) the Box (1954) g·χ²_h form (Nomikos & MacGregor 1995) is used. The method is recorded.
  */
-import { t2LimitNew, qLimitJacksonMudholkar, qLimitBox, jacksonMudholkarH0 } from '../limits/index.ts';
+import { t2LimitNew, qLimitJacksonMudholkar, qLimitBox, qLimitBoxMoments, jacksonMudholkarH0 } from '../limits/index.ts';
+
+/**
+ * Above this size of the smaller Gram matrix, θ1…θ3 (cost min(n, p)³) are not computed and the
+ * Q limit comes from the moments of the calibration Q values instead (Box 1954 as used by
+ * Nomikos & MacGregor 1995: g = v/2m, h = 2m²/v); the method is recorded.
+ */
+export const PLS_THETA_MAX_GRAM = 1024;
 
 export interface PlsXLimits {
   confidence: number;
@@ -69,6 +76,22 @@ export function residualThetaOf(E: Float64Array, n: number, p: number): [number,
     for (let j = 0; j < d; j++) t3 += G[i * d + j]! * row[j]!;
   }
   return [t1, t2, t3];
+}
+
+/** Q of each calibration row: ‖E_i‖². */
+export function calibrationQ(E: Float64Array, n: number, p: number): Float64Array {
+  const q = new Float64Array(n);
+  for (let i = 0; i < n; i++) {
+    let s = 0;
+    for (let j = 0; j < p; j++) s += E[i * p + j]! * E[i * p + j]!;
+    q[i] = s;
+  }
+  return q;
+}
+
+export function plsXLimitsFromCalibrationQ(A: number, n: number, qValues: Float64Array, confidence: number): PlsXLimits {
+  const t2Limit = t2LimitNew(A, n, confidence);
+  return { confidence, t2Limit, t2Method: 't2-f-new', qLimit: qLimitBoxMoments(qValues, confidence), qMethod: 'q-box-moments' };
 }
 
 export function plsXLimits(A: number, n: number, theta: [number, number, number], confidence: number): PlsXLimits {

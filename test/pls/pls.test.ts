@@ -2,6 +2,7 @@ import { describe, expect, it } from 'vitest';
 import fc from 'fast-check';
 import { matrixFromRows, denseMatrix } from '../../core/linalg/dense-matrix.ts';
 import { fitPls1, createPls1Predictor, crossValidatePls1, regressionMetrics, loadPls1 } from '../../core/pls/index.ts';
+import { qLimitBoxMoments } from '../../core/limits/index.ts';
 import { maxAbsDiff, pythonAvailable, runPython, seededRandom } from '../preprocess/python.ts';
 
 function gauss(rnd: () => number): number {
@@ -72,7 +73,7 @@ describe.skipIf(!pythonAvailable)('PLS1 vs a numpy NIPALS written in the test (s
     expect(rel(got.map((g) => g.y), ref.yhat)).toBeLessThan(1e-8);
     expect(rel(got.map((g) => g.t2), ref.t2)).toBeLessThan(1e-8);
     expect(rel(got.map((g) => g.q), ref.q)).toBeLessThan(1e-8);
-    expect(rel(m.residualTheta, ref.theta)).toBeLessThan(1e-8);
+    expect(rel(m.residualTheta!, ref.theta)).toBeLessThan(1e-8);
     expect(Math.abs(m.limits.t2Limit - ref.t2lim) / ref.t2lim).toBeLessThan(1e-8);
     const qRef = m.limits.qMethod === 'q-jackson-mudholkar' ? ref.jm : ref.box;
     expect(Math.abs(m.limits.qLimit - qRef) / qRef).toBeLessThan(1e-8);
@@ -138,6 +139,32 @@ describe('PLS1 properties', () => {
     broken.coefficients = broken.coefficients.slice(1);
     expect(() => loadPls1(broken)).toThrow(/coefficients length is 19; expected 20/);
     expect(() => loadPls1({ ...m.toJSON(), weights: { rows: 2, cols: 2, data: [1] } })).toThrow(/weights/);
+  });
+
+  it('large sets (min(n, p) > 1024): Q limit from the moments of the calibration Q (Nomikos & MacGregor 1995)', () => {
+    const rnd = seededRandom(99);
+    const n = 1030;
+    const p = 1030;
+    const Xl = denseMatrix(n, p);
+    const yl = new Float64Array(n);
+    for (let i = 0; i < n; i++) {
+      const z1 = gauss(rnd);
+      const z2 = gauss(rnd);
+      yl[i] = z1 + 0.5 * z2;
+      for (let j = 0; j < p; j++) Xl.data[i * p + j] = z1 * Math.sin(j / 40) + z2 * Math.cos(j / 90) + 0.1 * gauss(rnd);
+    }
+    const m = fitPls1(Xl, yl, { components: 2, confidence: 0.95 });
+    expect(m.residualTheta).toBeNull();
+    expect(m.limits.qMethod).toBe('q-box-moments');
+    const pr = createPls1Predictor(m);
+    const q = new Float64Array(n);
+    for (let i = 0; i < n; i++) q[i] = pr.predict(Xl.data.subarray(i * p, (i + 1) * p)).q;
+    expect(Math.abs(m.limits.qLimit - qLimitBoxMoments(q, 0.95)) / m.limits.qLimit).toBeLessThan(1e-9);
+    // About 5 % of the calibration rows lie above a 95 % limit (binomial 99.9 % band for n = 1030, scipy binom.ppf: 2.9 %–7.4 %).
+    const above = Array.from(q).filter((v) => v > m.limits.qLimit).length / n;
+    expect(above).toBeGreaterThan(0.029);
+    expect(above).toBeLessThan(0.0738);
+    expect(loadPls1(JSON.parse(JSON.stringify(m.toJSON()))).residualTheta).toBeNull();
   });
 
   it('refuses impossible requests with a message', () => {
