@@ -70,6 +70,11 @@ export function handle(fn: (req: Request, res: Response) => Promise<void> | void
 export function authRouter(auth: AuthService): Router {
   const r = express.Router();
   r.use(express.json({ limit: AUTH_BODY_LIMIT }));
+  // Answers carry session and CSRF tokens: never cache them.
+  r.use((_req, res, next) => {
+    res.setHeader('Cache-Control', 'no-store');
+    next();
+  });
   const admin = auth.requireRole('administrator');
   const viewer = auth.requireRole('viewer');
 

@@ -5,6 +5,8 @@
  */
 import { install as installAudit } from '../audit/index.ts';
 import { authRouter } from './auth-routes.ts';
+import { readSecurityConfig } from './security-config.ts';
+import { securityHeaders } from './security-headers.ts';
 import { ensureSecurity, type SecurityHost } from './security-setup.ts';
 
 const installed = new WeakSet<object>();
@@ -13,6 +15,7 @@ export function install(ctx: SecurityHost): void {
   const { auth } = ensureSecurity(ctx);
   if (!installed.has(ctx)) {
     installed.add(ctx);
+    ctx.app?.use(securityHeaders(readSecurityConfig(ctx.config).tls !== null));
     ctx.api.use('/auth', authRouter(auth));
   }
   installAudit(ctx);

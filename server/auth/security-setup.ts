@@ -3,7 +3,7 @@
  * shared SQLite handle and the `auth`/`tls` parts of the configuration.
  */
 import type Database from 'better-sqlite3';
-import type { Router } from 'express';
+import type { RequestHandler, Router } from 'express';
 import { SqliteAuditTrail } from '../audit/audit-trail.ts';
 import type { AuditTrail } from '../audit/types.ts';
 import { AuthService } from './auth-service.ts';
@@ -15,6 +15,8 @@ export interface SecurityHost {
   storage: { db: Database.Database };
   /** Router mounted at /api. */
   api: Router;
+  /** The whole app, for response headers on every answer (optional). */
+  app?: { use(fn: RequestHandler): unknown };
   config?: unknown;
   audit?: AuditTrail;
   auth?: Auth;
