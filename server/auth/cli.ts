@@ -8,7 +8,7 @@
  *   npm run tideline -- audit verify | audit export [--format csv|json] [--out FILE] [--from T] [--to T]
  *
  * Without --password-stdin a random password is generated and printed once, and the user must
- * change it at first login. Every change is audited with the user `cli:<operating-system user>`.
+ * change it (POST /api/auth/password). Every change is audited with the user `cli:<operating-system user>`.
  */
 import type Database from 'better-sqlite3';
 import { writeFileSync } from 'node:fs';
@@ -110,7 +110,7 @@ export async function runSecurityCli(
       const pw = await readPassword();
       const u = await auth.createUser({ name: pos[0], fullName: o['full-name'], role: o.role, password: pw.password, mustChangePassword: pw.generated }, actor);
       io.out(`created user ${u.name} (${u.role})`);
-      if (pw.generated) io.out(`password: ${pw.password}\n(shown once; the user must change it at first login)`);
+      if (pw.generated) io.out(`password: ${pw.password}\n(shown once; the account is marked must-change-password: the user sets their own with POST /api/auth/password)`);
       return 0;
     }
     if (group === 'user' && verb === 'list') {
