@@ -127,6 +127,10 @@ function assemble(spec: ChainSpec, inputAxis: Float64Array, stages: Stage[]): Fi
       if (raw.length !== nIn) throw new RangeError(`preprocessing: the spectrum has ${raw.length} values; the chain expects ${nIn} (its input axis)`);
       const dst = out ?? new Float64Array(nOut);
       if (dst.length !== nOut) throw new RangeError(`preprocessing: output buffer has ${dst.length} values; the chain produces ${nOut}`);
+      for (let j = 0; j < nIn; j++) {
+        const v = raw[j]!;
+        if (v - v !== 0) throw new RangeError(`preprocessing: raw value ${j} (${inputAxis[j]} nm) is ${v}; spectra must hold finite numbers`);
+      }
       if (last < 0) {
         for (let j = 0; j < nIn; j++) dst[j] = raw[j]!;
         return dst;
@@ -171,6 +175,13 @@ export function fitChain(spec: ChainSpec, axis: ArrayLike<number>, calibration: 
   const inputAxis = checkAxis(axis);
   if (calibration.cols !== inputAxis.length) {
     throw new RangeError(`preprocessing: calibration spectra have ${calibration.cols} values; the axis has ${inputAxis.length}`);
+  }
+  for (let k = 0; k < calibration.data.length; k++) {
+    const v = calibration.data[k]!;
+    if (!Number.isFinite(v)) {
+      const c = k % calibration.cols;
+      throw new RangeError(`preprocessing: calibration spectrum ${Math.floor(k / calibration.cols)}, value ${c} (${inputAxis[c]} nm) is ${v}`);
+    }
   }
   const stages: Stage[] = [];
   let cur: DenseMatrix = calibration;

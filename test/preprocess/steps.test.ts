@@ -168,6 +168,15 @@ describe('apply', () => {
     expect(() => chain.applyMatrix(denseMatrix(2, 5))).toThrow(/5 columns/);
   });
 
+  it('refuses NaN and Infinity in a spectrum and in the calibration, naming the wavelength', () => {
+    const x = rows[0]!.slice();
+    x[10] = NaN;
+    expect(() => chain.apply(x)).toThrow(/raw value 10 \(1020 nm\) is NaN/);
+    x[10] = -Infinity;
+    expect(() => chain.apply(x)).toThrow(/is -Infinity/);
+    expect(() => fitChain(spec, axis, matrixFromRows([rows[0]!, x]))).toThrow(/calibration spectrum 1, value 10 \(1020 nm\) is -Infinity/);
+  });
+
   it('an empty chain copies', () => {
     const c = fitChain([], axis, cal);
     expect(Array.from(c.apply(rows[1]!))).toEqual(rows[1]);
