@@ -33,6 +33,8 @@ export interface DispatcherOptions {
   random?: () => number;
   /** Called on every failed attempt (logging). */
   onError?: (channel: string, event: SignalEnvelope, error: Error, attempts: number, dead: boolean) => void;
+  /** Called after the receiver confirmed an event and the cursor moved past it. */
+  onDelivered?: (channel: string, event: SignalEnvelope) => void;
   /** New channels start at the end of the outbox instead of replaying it (default false: replay). */
   startAtEnd?: boolean;
 }
@@ -137,6 +139,11 @@ export class SignalDispatcher {
           this.store.markDelivered(name, row, this.now());
           this.stats.delivered++;
           worked = true;
+          try {
+            this.opts.onDelivered?.(name, env);
+          } catch {
+            // a listener's trouble is not a delivery failure
+          }
         } catch (e) {
           const err = e instanceof Error ? e : new Error(String(e));
           const t = this.now();

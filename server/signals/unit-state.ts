@@ -149,7 +149,8 @@ export function applyEvent(prev: UnitSignalState, e: SignalEnvelope, now: number
     s.batch = str(b.id) ?? str(p.batch) ?? s.batch;
     s.product = str(b.product) ?? s.product;
     s.batchActive = true;
-    s.modelVersion = str(b.modelVersion) ?? str(p.modelVersion) ?? s.modelVersion;
+    const model = (p.model && typeof p.model === 'object' ? p.model : null) as Obj | null;
+    s.modelVersion = model ? `${str(model.name) ?? str(model.versionId) ?? '?'} v${num(model.version) ?? '?'}` : (str(b.modelVersion) ?? str(p.modelVersion) ?? null);
     s.endpoint = { state: 'running', reached: false, t: null, reason: null, etaMin: null };
     s.progress = 0;
   } else if (type === 'batch-end' || type === 'batch-ended' || (type === 'batch' && p.event === 'ended')) {
@@ -165,8 +166,10 @@ export function applyEvent(prev: UnitSignalState, e: SignalEnvelope, now: number
         s.endpoint.reason = str(p.reason) ?? '';
       }
     }
-  } else if (type === 'alarm' || type === 'condition') {
-    const a = (type === 'condition' ? p.change : p.alarm && typeof p.alarm === 'object' ? p.alarm : p) as Obj | undefined;
+  } else if (type === 'alarm') {
+    // The server writes an 'alarm' row for every alarm change (its payload: { alarm, previousState });
+    // 'condition' rows (the monitor's raw condition changes) are passed on but do not change alarm state.
+    const a = (p.alarm && typeof p.alarm === 'object' ? p.alarm : p) as Obj | undefined;
     if (a && str(a.key)) {
       const key = str(a.key)!;
       const active = typeof a.active === 'boolean' ? a.active : !!a.conditionActive;
@@ -187,7 +190,10 @@ export function applyEvent(prev: UnitSignalState, e: SignalEnvelope, now: number
       if (summary.state !== 'normal' || summary.active) s.alarms.push(summary);
       s.alarms.sort((x, y) => x.priority - y.priority || x.key.localeCompare(y.key));
       if (summary.kind === 'stale') s.stale = active;
-      if (summary.kind === 'analyzer' && !active) s.analyzer = 'good';
+      if (summary.kind === 'analyzer') {
+        const others = s.alarms.some((x) => x.kind === 'analyzer' && x.active);
+        s.analyzer = others ? 'failure' : 'good';
+      }
     }
   } else if (type === 'analyzer-status' || type === 'analyzer') {
     const st = str(p.status) ?? str(p.ne107);

@@ -9,6 +9,7 @@ import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { DataType, StatusCodes, type DataValue } from 'node-opcua';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import type { Alarm } from '../../core/api/rest.ts';
 import type { MonitorResult } from '../../core/monitor/types.ts';
 import { parseSignalsConfig } from '../../server/signals/config.ts';
 import { SignalDispatcher } from '../../server/signals/dispatcher.ts';
@@ -53,6 +54,15 @@ function result(seq: number, over: Partial<MonitorResult> = {}): MonitorResult {
   };
 }
 
+/** An alarm row as the server core writes it (core/api/rest.ts Alarm). */
+function alarm(over: Partial<Alarm>): Alarm {
+  return {
+    id: `alarm-${over.key ?? 't2'}`, unit: U, batch: 'D1-0042', kind: 't2', key: 't2', state: 'normal', priority: 2, message: '', value: null, limit: 11.3,
+    active: false, raisedAt: T0 + 70_000, clearedAt: null, acknowledgedAt: null, acknowledgedBy: null, acknowledgeComment: null,
+    shelvedUntil: null, shelvedBy: null, shelveReason: null, seq: 7, updatedAt: T0, ...over,
+  };
+}
+
 describe('OPC UA channel', () => {
   const dir = mkdtempSync(join(tmpdir(), 'tideline-opcua-'));
   const db = openSignalDb(join(dir, 'tideline.db'));
@@ -64,7 +74,7 @@ describe('OPC UA channel', () => {
   let client: TestClient;
 
   beforeAll(async () => {
-    appendOutbox(db, U, 'batch-start', { batch: 'D1-0042', product: 'granulate-7', modelVersion: 'dryer-gold@3', t: T0 }, T0);
+    appendOutbox(db, U, 'batch-start', { unit: U, batch: 'D1-0042', product: 'granulate-7', t: T0, model: { versionId: 'm-3', name: 'dryer-gold', version: 3, sha256: 'ab' } }, T0);
     await channel.start();
     dispatcher.start();
     client = await connectClient(channel.endpointUrl);
@@ -100,13 +110,13 @@ describe('OPC UA channel', () => {
     expect((await client.read(P('T2'))).statusCode.equals(StatusCodes.BadWaitingForInitialData)).toBe(true);
 
     // live results
-    for (let seq = 1; seq <= 5; seq++) channel.onResult(U, result(seq), { batch: 'D1-0042', modelVersion: 'dryer-gold@3' });
+    for (let seq = 1; seq <= 5; seq++) channel.onResult(U, result(seq), { batch: 'D1-0042' });
     const t2 = await client.read(P('T2'));
     expect(t2.value.value).toBe(4);
     expect(t2.statusCode.equals(StatusCodes.Good)).toBe(true);
     expect((await client.read(P('T2Limit'))).value.value).toBe(11.3);
     expect((await client.read(P('Property'))).value.value).toBeCloseTo(6 - 5 / 60, 12);
-    expect((await client.read(P('ModelVersion'))).value.value).toBe('dryer-gold@3');
+    expect((await client.read(P('ModelVersion'))).value.value).toBe('dryer-gold v3');
 
     // a spectrum far outside the model: values Uncertain
     channel.onResult(U, result(6, { t2: 80 }), { batch: 'D1-0042' });
@@ -115,7 +125,8 @@ describe('OPC UA channel', () => {
 
     // T² alarm raised by Tideline's own logic, then cleared and acknowledged
     const tAlarm = T0 + 70_000;
-    appendOutbox(db, U, 'condition', { t: tAlarm, seq: 7, change: { kind: 't2', key: 't2', active: true, message: 'T² 80.0 above limit 11.3 (2 of 3 spectra)', value: 80, limit: 11.3, priority: 2 } }, tAlarm);
+    appendOutbox(db, U, 'condition', { unit: U, batch: 'D1-0042', type: 'condition', t: tAlarm, seq: 7, change: { kind: 't2', key: 't2', active: true, message: 'T² 80.0 above limit 11.3 (2 of 3 spectra)', value: 80, limit: 11.3, priority: 2 } }, tAlarm);
+    appendOutbox(db, U, 'alarm', { alarm: alarm({ active: true, state: 'active-unacknowledged', message: 'T² 80.0 above limit 11.3 (2 of 3 spectra)', value: 80, updatedAt: tAlarm }), previousState: null }, tAlarm);
     dispatcher.wake();
     await until(() => events.some((e) => e.ConditionName === 'T2Limit' && e['ActiveState.Id'] === true), 'T2Limit active event');
     const on = events.find((e) => e.ConditionName === 'T2Limit' && e['ActiveState.Id'] === true)!;
@@ -125,9 +136,14 @@ describe('OPC UA channel', () => {
     expect(on.EventType).toBeDefined();
     expect((on.Time as Date).getTime()).toBe(tAlarm);
     expect((await client.read(P('ActiveAlarms'))).value.value).toBe(1);
-    appendOutbox(db, U, 'alarm', { unit: U, key: 't2', kind: 't2', state: 'normal', active: false, priority: 2, message: 'T² back inside limit', value: 5, limit: 11.3, updatedAt: tAlarm + 60_000 }, tAlarm + 60_000);
+    appendOutbox(db, U, 'alarm', { alarm: alarm({ active: false, state: 'cleared-unacknowledged', message: 'T² back inside limit', value: 5, updatedAt: tAlarm + 60_000 }), previousState: 'active-unacknowledged' }, tAlarm + 60_000);
     dispatcher.wake();
     await until(() => events.some((e) => e.ConditionName === 'T2Limit' && e['ActiveState.Id'] === false), 'T2Limit cleared event');
+    expect(events.filter((e) => e.ConditionName === 'T2Limit').map((e) => [e['ActiveState.Id'], e['AckedState.Id']])).toEqual([[true, false], [false, false]]);
+    expect((await client.read(P('ActiveAlarms'))).value.value).toBe(1); // cleared but not yet acknowledged
+    appendOutbox(db, U, 'alarm', { alarm: alarm({ active: false, state: 'normal', message: 'T² back inside limit', value: 5, acknowledgedBy: 'ana', updatedAt: tAlarm + 90_000 }), previousState: 'cleared-unacknowledged' }, tAlarm + 90_000);
+    dispatcher.wake();
+    await until(() => events.some((e) => e.ConditionName === 'T2Limit' && e['AckedState.Id'] === true), 'T2Limit acknowledged event');
     expect((await client.read(P('ActiveAlarms'))).value.value).toBe(0);
 
     // endpoint: nearing → settling → done → signalled
@@ -168,8 +184,7 @@ describe('OPC UA channel', () => {
     const events: Record<string, unknown>[] = [];
     await client.watchEvents(['ConditionName', 'ActiveState.Id', 'Message'], (e) => events.push(e));
     const t = T0 + 50 * 60_000;
-    appendOutbox(db, U, 'analyzer-status', { status: 'failure', t }, t);
-    appendOutbox(db, U, 'alarm', { unit: U, key: 'analyzer', kind: 'analyzer', state: 'active-unacknowledged', active: true, priority: 1, message: 'lamp failure reported', value: 1, limit: 0, updatedAt: t }, t);
+    appendOutbox(db, U, 'alarm', { alarm: alarm({ key: 'lamp', kind: 'analyzer', state: 'active-unacknowledged', active: true, priority: 1, message: 'lamp failure reported', value: 1, limit: 0, updatedAt: t }), previousState: null }, t);
     dispatcher.wake();
     await until(() => events.some((e) => e.ConditionName === 'AnalyzerFault' && e['ActiveState.Id'] === true), 'AnalyzerFault event');
     expect((await client.read(P('AnalyzerStatus'))).value.value).toBe(1);

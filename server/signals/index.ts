@@ -1,0 +1,102 @@
+/**
+ * Signals (issue 7): delivers the outbox to the control system and other receivers over OPC UA,
+ * MQTT and webhooks, each channel in per-unit sequence order with its own durable cursor.
+ * install(ctx) is called by server/app.ts. Settings: `signals` in the server configuration
+ * (server/signals/config.ts, docs/signals.md).
+ *
+ * Tideline advises; the site's validated control strategy, interlocks and procedures decide what a
+ * signal may do.
+ */
+import type Database from 'better-sqlite3';
+import type { MonitorResult } from '../../core/monitor/types.ts';
+import type { ServerContext } from '../context.ts';
+import { parseSignalsConfig } from './config.ts';
+import { SignalDispatcher, type SignalChannel } from './dispatcher.ts';
+import { MqttChannel } from './mqtt-channel.ts';
+import { OpcuaChannel } from './opcua/opcua-channel.ts';
+import { OutboxStore, type SignalEnvelope } from './outbox-store.ts';
+import { signalRoutes } from './routes.ts';
+import { WebhookChannel } from './webhook-channel.ts';
+
+export { SIGNALS_CAUTION } from './routes.ts';
+
+export interface SignalsHandle {
+  store: OutboxStore;
+  dispatchers: SignalDispatcher[];
+  opcua: OpcuaChannel | null;
+  mqtt: MqttChannel | null;
+}
+
+export async function install(ctx: ServerContext): Promise<SignalsHandle> {
+  const cfg = parseSignalsConfig((ctx.config as { signals?: unknown }).signals);
+  const db = ctx.storage.db as unknown as Database.Database;
+  const store = new OutboxStore(db);
+  const channels: SignalChannel[] = [];
+  for (const w of cfg.webhooks) channels.push(new WebhookChannel(w, ctx.now));
+  let mqtt: MqttChannel | null = null;
+  if (cfg.mqtt) {
+    mqtt = new MqttChannel(cfg.mqtt, store, ctx.now);
+    channels.push(mqtt);
+  }
+  let opcua: OpcuaChannel | null = null;
+  if (cfg.opcua) {
+    opcua = new OpcuaChannel(cfg.opcua, store, {
+      dataDir: ctx.config.dataDir,
+      now: ctx.now,
+      onEndpointAcknowledged: (unit, latch, by, at) => {
+        ctx.audit?.record({ user: by, action: 'endpoint.acknowledge', object: `unit:${unit}`, before: latch, after: { reached: false, acknowledgedAt: at }, reason: 'endpoint reached acknowledged by the control system' });
+        ctx.log.info(`endpoint of ${latch.batch ?? '?'} on ${unit} acknowledged by ${by}`);
+      },
+    });
+    channels.push(opcua);
+  }
+
+  // done → signalled once any channel has delivered the 'done' event
+  const signalled = new Set<string>();
+  const onDelivered = (_channel: string, e: SignalEnvelope) => {
+    const p = e.payload as { to?: string; batch?: string; t?: number };
+    if (e.type !== 'endpoint-state' || p.to !== 'done' || !p.batch || signalled.has(e.id)) return;
+    signalled.add(e.id);
+    void ctx.ingest.markSignalled(p.batch, ctx.now()).catch((err: unknown) => ctx.log.error(`marking ${p.batch} signalled failed`, err));
+  };
+  const dispatchers = channels.map(
+    (ch) =>
+      new SignalDispatcher(store, ch, {
+        pollMs: cfg.pollMs,
+        now: ctx.now,
+        onDelivered,
+        onError: (channel, e, err, attempts, dead) => {
+          const text = `signals/${channel}: event ${e.id} (${e.unit} #${e.seq}) attempt ${attempts} failed: ${err.message}${dead ? ' — dead-lettered' : ''}`;
+          if (dead) ctx.log.warn(text);
+          else ctx.log.debug(text);
+        },
+      }),
+  );
+  if (mqtt) {
+    const d = dispatchers[channels.indexOf(mqtt)]!;
+    mqtt.onReady = () => d.wake();
+    mqtt.start();
+  }
+  if (opcua) {
+    await opcua.start();
+    ctx.log.info(`OPC UA server at ${opcua.endpointUrl} (security: ${cfg.opcua!.securityModes.join(', ')}; PKI ${opcua.pkiDir})`);
+  }
+  for (const d of dispatchers) d.start();
+
+  ctx.events.on('outbox', () => {
+    for (const d of dispatchers) d.wake();
+  });
+  ctx.events.on('result', (e: { unit: string; batch: string; result: MonitorResult }) => {
+    mqtt?.onResult(e.unit, e.result, { batch: e.batch });
+    opcua?.onResult(e.unit, e.result, { batch: e.batch });
+  });
+
+  ctx.api.use('/signals', signalRoutes(ctx, store, dispatchers, opcua));
+
+  ctx.onClose(async () => {
+    for (const d of dispatchers) await d.stop();
+    await mqtt?.stop();
+    await opcua?.stop();
+  });
+  return { store, dispatchers, opcua, mqtt };
+}
