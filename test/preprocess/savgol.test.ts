@@ -2,6 +2,7 @@ import { describe, expect, it } from 'vitest';
 import { savgolCoefficients, savgolAllPositions, fitChain } from '../../core/preprocess/index.ts';
 import { matrixFromRows } from '../../core/linalg/dense-matrix.ts';
 import { maxAbsDiff, pythonAvailable, runPython, seededRandom } from './python.ts';
+import fixture from './fixtures/savgol-scipy.json' with { type: 'json' };
 
 // Savitzky & Golay 1964 (Anal. Chem. 36:1627) tables as corrected by Steinier, Termonia & Deltour
 // 1972 (Anal. Chem. 44:1906); values copied from shared/CHECKS.md. Order i = −m…m.
@@ -113,6 +114,27 @@ describe('Savitzky–Golay on polynomials (exactness, from the definition)', () 
     for (const [d, g] of [[0, f], [1, f1], [2, f2]] as const) {
       const got = fitChain([{ step: 'savgol', window: 9, polyorder: 3, deriv: d }], axis, cal).apply(x);
       expect(maxAbsDiff(got, axis.map(g))).toBeLessThan(1e-8);
+    }
+  });
+});
+
+// Committed fixture written by scripts/fixtures/savgol-scipy.py (scipy version recorded in the file),
+// so the scipy check also runs where python3 is absent. Tolerance 1e-10 relative (windows ≤ 31).
+
+describe(`Savitzky–Golay vs committed scipy ${fixture.scipy} fixture`, () => {
+  it(`${fixture.coefficients.length} centred coefficient sets`, () => {
+    for (const c of fixture.coefficients) {
+      const got = savgolCoefficients(c.window, c.polyorder, c.deriv);
+      const scale = Math.max(...c.coefficients.map(Math.abs));
+      expect(maxAbsDiff(got, c.coefficients) / scale, `w=${c.window} p=${c.polyorder} d=${c.deriv}`).toBeLessThan(1e-10);
+    }
+  });
+  it(`${fixture.filters.length} filtered signals, ends included (mode='interp', delta = 2 nm)`, () => {
+    const { axis, x } = fixture.signal;
+    for (const f of fixture.filters) {
+      const chain = fitChain([{ step: 'savgol', window: f.window, polyorder: f.polyorder, deriv: f.deriv as 0 | 1 | 2 }], axis, matrixFromRows([x]));
+      const scale = Math.max(...f.output.map(Math.abs));
+      expect(maxAbsDiff(chain.apply(x), f.output) / scale, `w=${f.window} p=${f.polyorder} d=${f.deriv}`).toBeLessThan(1e-10);
     }
   });
 });
