@@ -52,6 +52,8 @@ export interface StreamRunOptions {
   axis?: number[];
   intervalS?: number;
   boot?: number;
+  /** Prefix of batch ids (default `<analyzer>-<boot in base 36>`); ids end in -b001, -b002, … */
+  batchPrefix?: string;
   log?: (line: string) => void;
   /** Called after each batch is fully acked. */
   onBatch?: (analyzer: string, batchId: string, spectra: number) => void;
@@ -98,7 +100,8 @@ export async function runStreams(o: StreamRunOptions): Promise<StreamRunResult> 
       const seed = deriveSeed(o.seed, `analyzer:${k}:batch:${b}`);
       const batch = simulateBatch(o.kind, {
         seed,
-        id: `${id.analyzer}-b${String(b + 1).padStart(3, '0')}`,
+        // Batch ids must be unique on the server: analyzer, boot epoch (base 36) and number.
+        id: `${o.batchPrefix ?? `${id.analyzer}-${client.boot.toString(36)}`}-b${String(b + 1).padStart(3, '0')}`,
         faults: o.faults,
         axis: o.axis,
         intervalS: o.intervalS,
