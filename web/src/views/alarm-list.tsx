@@ -1,0 +1,117 @@
+/** The alarm list with acknowledge and shelve (ISA-18.2 states in words, glyphs and colour). */
+import { useState } from 'preact/hooks';
+import type { Alarm } from '../../../core/api/rest.ts';
+import { api } from '../api/endpoints.ts';
+import { errorText } from '../api/problem.ts';
+import { sortAlarms } from '../live/live-state.ts';
+import { Advisory, Badge, ErrorBox } from '../components/status.tsx';
+import { PRIORITY_WORDS, alarmWords } from '../format/status-words.ts';
+import { clock, sig } from '../format/number-format.ts';
+
+export function AlarmList({ alarms, now, title = 'Alarms' }: { alarms: Alarm[]; now: number; title?: string }) {
+  const list = sortAlarms(alarms);
+  const [error, setError] = useState<string | null>(null);
+  const [shelving, setShelving] = useState<string | null>(null);
+  const [busy, setBusy] = useState<string | null>(null);
+  const act = async (id: string, f: () => Promise<unknown>) => {
+    setBusy(id);
+    setError(null);
+    try {
+      await f();
+    } catch (e) {
+      setError(errorText(e));
+    } finally {
+      setBusy(null);
+    }
+  };
+  return (
+    <div class="panel alarms" data-testid="alarm-list">
+      <div class="panel-head">
+        <h2>{title}</h2>
+        <span class="muted">{list.filter((a) => a.state !== 'normal').length} open</span>
+      </div>
+      {error && <ErrorBox message={error} />}
+      {list.length === 0 && <p class="muted">No alarms.</p>}
+      <ul class="alarm-rows">
+        {list.map((a) => {
+          const w = alarmWords(a, now);
+          const unack = a.state === 'active-unacknowledged' || a.state === 'cleared-unacknowledged';
+          return (
+            <li key={a.id} class={`alarm-row state-${a.state}`} data-testid={`alarm-${a.id}`}>
+              <div class="alarm-line">
+                <Badge tone={w.tone}>{w.text}</Badge>
+                <span class="prio">{PRIORITY_WORDS[a.priority]}</span>
+                <b>{a.kind === 'envelope' ? a.key.toUpperCase() : a.kind.toUpperCase()}</b>
+              </div>
+              <div class="alarm-msg">{a.message}</div>
+              <div class="alarm-meta muted small">
+                raised {clock(a.raisedAt)}
+                {a.value !== null && a.limit !== null && ` · value ${sig(a.value)} / limit ${sig(a.limit)}`}
+                {a.acknowledgedBy && ` · acknowledged by ${a.acknowledgedBy} ${clock(a.acknowledgedAt)}`}
+                {a.shelvedUntil && a.shelvedUntil > now && ` · shelved by ${a.shelvedBy ?? '?'} until ${clock(a.shelvedUntil)}: ${a.shelveReason ?? ''}`}
+              </div>
+              <div class="alarm-actions">
+                {unack && (
+                  <button type="button" class="btn small primary" disabled={busy === a.id} onClick={() => act(a.id, () => api.acknowledge(a.id))}>
+                    Acknowledge
+                  </button>
+                )}
+                {a.shelvedUntil && a.shelvedUntil > now ? (
+                  <button type="button" class="btn small" disabled={busy === a.id} onClick={() => act(a.id, () => api.unshelve(a.id))}>
+                    Unshelve
+                  </button>
+                ) : (
+                  a.state !== 'normal' && (
+                    <button type="button" class="btn small" onClick={() => setShelving(shelving === a.id ? null : a.id)}>
+                      Shelve…
+                    </button>
+                  )
+                )}
+              </div>
+              {shelving === a.id && (
+                <ShelveForm
+                  onCancel={() => setShelving(null)}
+                  onShelve={(minutes, reason) =>
+                    act(a.id, async () => {
+                      await api.shelve(a.id, minutes, reason);
+                      setShelving(null);
+                    })
+                  }
+                />
+              )}
+            </li>
+          );
+        })}
+      </ul>
+      <Advisory />
+    </div>
+  );
+}
+
+function ShelveForm({ onShelve, onCancel }: { onShelve: (minutes: number, reason: string) => void; onCancel: () => void }) {
+  const [minutes, setMinutes] = useState(30);
+  const [reason, setReason] = useState('');
+  return (
+    <form
+      class="shelve-form"
+      onSubmit={(e) => {
+        e.preventDefault();
+        onShelve(minutes, reason);
+      }}
+    >
+      <label>
+        for{' '}
+        <input type="number" min={1} max={1440} value={minutes} onInput={(e) => setMinutes(Number((e.target as HTMLInputElement).value))} required /> min
+      </label>
+      <label>
+        reason <input type="text" value={reason} onInput={(e) => setReason((e.target as HTMLInputElement).value)} required placeholder="why this alarm may be set aside" />
+      </label>
+      <button type="submit" class="btn small primary">
+        Shelve
+      </button>
+      <button type="button" class="btn small" onClick={onCancel}>
+        Cancel
+      </button>
+    </form>
+  );
+}

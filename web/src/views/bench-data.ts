@@ -1,0 +1,73 @@
+/** Pure helpers for Model bench: chain presets, preview data, evaluation figures. */
+import type { BatchEvaluation, EvaluationResult } from '../../../core/api/rest.ts';
+import type { ChainSpec } from '../../../core/preprocess/index.ts';
+
+export const CHAIN_PRESETS: { id: string; label: string; chain: ChainSpec; note: string }[] = [
+  {
+    id: 'sg1-centre',
+    label: 'Savitzky–Golay 1st derivative (15 points, quadratic), mean-centre',
+    chain: [
+      { step: 'savgol', window: 15, polyorder: 2, deriv: 1 },
+      { step: 'scale', center: true, scaling: 'none' },
+    ],
+    note: 'Keeps intensity changes that carry moisture information; removes baseline offset.',
+  },
+  {
+    id: 'snv-sg1-centre',
+    label: 'SNV, Savitzky–Golay 1st derivative (15, quadratic), mean-centre',
+    chain: [{ step: 'snv' }, { step: 'savgol', window: 15, polyorder: 2, deriv: 1 }, { step: 'scale', center: true, scaling: 'none' }],
+    note: 'Scatter correction: in drying it can remove intensity changes that carry moisture information (Bogomolov, Mannhardt & Heinzerling 2018).',
+  },
+  {
+    id: 'centre',
+    label: 'Mean-centre only',
+    chain: [{ step: 'scale', center: true, scaling: 'none' }],
+    note: 'Raw absorbance, centred on the calibration mean.',
+  },
+];
+
+/** Pick up to `n` indices spread evenly over 0…len−1 (first and last included). */
+export function spreadIndices(len: number, n: number): number[] {
+  if (len <= 0 || n <= 0) return [];
+  if (len <= n) return Array.from({ length: len }, (_, i) => i);
+  if (n === 1) return [0];
+  return Array.from({ length: n }, (_, k) => Math.round((k * (len - 1)) / (n - 1)));
+}
+
+/** Figures summarising an evaluation: per group (good / faulty) false-alarm rate, detection delay. */
+export interface EvaluationSummary {
+  good: { batches: number; withAlarm: number; falseAlarmRate: number | null; pointsOutsideRate: number | null };
+  faulty: { batches: number; detected: number; meanDelayMin: number | null };
+  endpoint: { batches: number; reached: number };
+}
+
+/**
+ * `faulty` names the batches known to be faulty; every other evaluated batch is a good one.
+ * Detection delay is measured from `faultOnset[batch]` (ms) when given, else from the batch start.
+ */
+export function summariseEvaluation(e: EvaluationResult, faulty: Set<string>, starts: Map<string, number>, faultOnset: Map<string, number> = new Map()): EvaluationSummary {
+  const good = e.batches.filter((b) => !faulty.has(b.batch));
+  const bad = e.batches.filter((b) => faulty.has(b.batch));
+  const spectraGood = good.reduce((a, b) => a + b.spectra, 0);
+  const outsideGood = good.reduce((a, b) => a + b.pointsOutside, 0);
+  const delays = bad
+    .filter((b): b is BatchEvaluation & { firstAlarmAt: number } => b.firstAlarmAt !== null)
+    .map((b) => (b.firstAlarmAt - (faultOnset.get(b.batch) ?? starts.get(b.batch) ?? b.firstAlarmAt)) / 60000);
+  return {
+    good: {
+      batches: good.length,
+      withAlarm: good.filter((b) => b.alarms > 0).length,
+      falseAlarmRate: good.length ? good.filter((b) => b.alarms > 0).length / good.length : null,
+      pointsOutsideRate: spectraGood ? outsideGood / spectraGood : null,
+    },
+    faulty: { batches: bad.length, detected: delays.length, meanDelayMin: delays.length ? delays.reduce((a, b) => a + b, 0) / delays.length : null },
+    endpoint: { batches: e.batches.length, reached: e.batches.filter((b) => b.endpointAt !== null).length },
+  };
+}
+
+/** Default build settings sent with a build request, from the form. */
+export function buildSettingsFromForm(f: { chain: ChainSpec; components: number | 'auto'; confidence: number; excludeSpectra?: { batch: string; index: number }[] }): Record<string, unknown> {
+  const s: Record<string, unknown> = { chain: f.chain, components: f.components, confidence: f.confidence };
+  if (f.excludeSpectra && f.excludeSpectra.length) s.excludeSpectra = f.excludeSpectra;
+  return s;
+}

@@ -1,0 +1,118 @@
+/** Floor: one tile per unit — batch, product, progress, endpoint, T²/Q, alarms, stale data. Live. */
+import type { LiveUnitStatus } from '../../../core/api/live.ts';
+import { useLive } from '../live/use-live.ts';
+import { Badge, Empty, Loading } from '../components/status.tsx';
+import { ENDPOINT_WORDS, UNIT_STATUS_WORDS, limitStatus, PRIORITY_WORDS } from '../format/status-words.ts';
+import { age, eta, fixed, minutes, percent, sig, withUnit } from '../format/number-format.ts';
+import { href } from '../router.ts';
+
+export function Floor({ now }: { now: number }) {
+  const live = useLive({ kind: 'plant' });
+  const units = [...live.state.units.values()].sort((a, b) => a.name.localeCompare(b.name));
+  const snapshotSeen = live.state.lastN > 0;
+  return (
+    <section class="view floor" aria-labelledby="floor-title">
+      <header class="view-head">
+        <h1 id="floor-title">Floor</h1>
+        <ConnectionNote state={live.connection} />
+      </header>
+      {!snapshotSeen && live.connection !== 'closed' && <Loading what="units" />}
+      {!snapshotSeen && live.connection === 'closed' && <Empty>No live connection to the server yet; retrying.</Empty>}
+      {snapshotSeen && units.length === 0 && <Empty>No units are configured. Add a unit (POST /api/units) or start the demo.</Empty>}
+      <div class="tiles">
+        {units.map((u) => (
+          <UnitTile key={u.id} u={u} now={live.state.serverTime ?? now} />
+        ))}
+      </div>
+    </section>
+  );
+}
+
+export function ConnectionNote({ state }: { state: 'connecting' | 'open' | 'closed' }) {
+  if (state === 'open') return <Badge tone="ok">live</Badge>;
+  if (state === 'connecting') return <Badge tone="muted">connecting…</Badge>;
+  return <Badge tone="warn">connection lost, reconnecting</Badge>;
+}
+
+function UnitTile({ u, now }: { u: LiveUnitStatus; now: number }) {
+  const st = UNIT_STATUS_WORDS[u.status];
+  const ep = u.endpoint ? ENDPOINT_WORDS[u.endpoint.state] : null;
+  const p = u.latest;
+  const t2 = limitStatus(p?.t2, p?.t2Limit);
+  const q = limitStatus(p?.q, p?.qLimit);
+  const stale = u.status === 'stale' || u.status === 'offline';
+  return (
+    <a class={`tile${stale ? ' tile-stale' : ''}${u.unacknowledgedAlarms ? ' tile-alarm' : ''}`} href={href({ view: 'watch', unit: u.id })} data-testid={`tile-${u.id}`}>
+      <div class="tile-head">
+        <h2>{u.name}</h2>
+        <span class="muted">{u.kind}</span>
+        <Badge tone={st.tone}>{st.text}</Badge>
+      </div>
+      {u.openBatch ? (
+        <>
+          <div class="tile-batch">
+            <span>
+              batch <b>{u.openBatch.id}</b>
+            </span>
+            <span>{u.openBatch.product}</span>
+          </div>
+          <div class="progress" role="progressbar" aria-valuemin={0} aria-valuemax={100} aria-valuenow={Math.round((p?.progressFraction ?? 0) * 100)}>
+            <div class="progress-fill" style={{ width: `${Math.min(100, Math.max(0, (p?.progressFraction ?? 0) * 100))}%` }} />
+            <span class="progress-text">
+              {percent(p?.progressFraction)} of golden course · {minutes(p?.elapsedMin)} elapsed
+            </span>
+          </div>
+          <dl class="tile-facts">
+            <dt>Endpoint</dt>
+            <dd>
+              {ep ? <Badge tone={ep.tone} title={ep.help}>{ep.text}</Badge> : <span class="muted">no model deployed</span>}
+              {u.endpoint?.etaMin && <span class="eta"> {eta(u.endpoint.etaMin)}</span>}
+            </dd>
+            <dt>T²</dt>
+            <dd>
+              <Badge tone={t2.tone}>{t2.text}</Badge> <span class="num">{sig(p?.t2)} / {sig(p?.t2Limit)}</span>
+            </dd>
+            <dt>Q</dt>
+            <dd>
+              <Badge tone={q.tone}>{q.text}</Badge> <span class="num">{sig(p?.q)} / {sig(p?.qLimit)}</span>
+            </dd>
+            {p?.prediction && (
+              <>
+                <dt>{p.prediction.name}</dt>
+                <dd class="num">{withUnit(p.prediction.value, p.prediction.unit)}</dd>
+              </>
+            )}
+            {p?.envelopeOutside && (
+              <>
+                <dt>Envelope</dt>
+                <dd>
+                  <Badge tone="warn">outside golden envelope</Badge>
+                </dd>
+              </>
+            )}
+          </dl>
+        </>
+      ) : (
+        <p class="muted">No batch running.</p>
+      )}
+      <div class="tile-foot">
+        {u.activeAlarms > 0 ? (
+          <Badge tone={u.unacknowledgedAlarms ? 'alarm' : 'warn'}>
+            {u.activeAlarms} active alarm{u.activeAlarms === 1 ? '' : 's'}
+            {u.unacknowledgedAlarms ? `, ${u.unacknowledgedAlarms} not acknowledged` : ''}
+            {u.highestPriority ? ` · ${PRIORITY_WORDS[u.highestPriority]}` : ''}
+          </Badge>
+        ) : (
+          <span class="muted">no active alarms</span>
+        )}
+        {stale && u.silentForMs !== null && <Badge tone="warn">last data {age(now - u.silentForMs, now)}</Badge>}
+        {u.deployment && (
+          <span class="muted small">
+            model {u.deployment.name} v{u.deployment.version}
+          </span>
+        )}
+        {u.openBatch && <span class="muted small">{fixed(u.openBatch.spectrumCount, 0)} spectra</span>}
+      </div>
+    </a>
+  );
+}
