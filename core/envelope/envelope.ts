@@ -151,8 +151,9 @@ export function buildEnvelope(refs: ReferenceTrajectory[], axis: ProgressAxis, o
   for (let k = 0; k < P; k++) {
     poolT2.length = 0;
     poolQ.length = 0;
-    const lo = grid[k] - half;
-    const hi = grid[k] + half;
+    // The end points also pool everything beyond them (the monitor clamps progress to the grid).
+    const lo = k === 0 ? -Infinity : grid[k] - half;
+    const hi = k === P - 1 ? Infinity : grid[k] + half;
     for (const r of refs) {
       for (let i = 0; i < r.progress.length; i++) {
         const p = r.progress[i];

@@ -1,0 +1,94 @@
+/**
+ * Settings of a monitoring-model build, validated with zod; omitted fields take the defaults below
+ * (the server passes what the model owner chose). Defaults are common practice, not from a source:
+ * 99 % limits, envelope mean ± 3 sd, alarms on 3 of 5 points out and off after 5 points back in.
+ */
+import { z } from 'zod';
+import { chainSpecSchema, type ChainSpec } from '../preprocess/index.ts';
+import { endpointRuleSpecSchema, type EndpointRuleSpec } from '../endpoint/spec.ts';
+
+export const buildSettingsSchema = z.object({
+  name: z.string().min(1),
+  product: z.string().min(1),
+  author: z.string().min(1),
+  createdAt: z.number().finite(),
+  chain: chainSpecSchema,
+  components: z.union([z.number().int().min(1).max(50), z.literal('auto')]),
+  confidence: z.number().gt(0.5).lt(1),
+  progress: z.discriminatedUnion('kind', [z.object({ kind: z.literal('time') }), z.object({ kind: z.literal('indicator'), source: z.enum(['pc1', 'property']) })]),
+  envelope: z.object({ k: z.number().positive().max(10), smoothing: z.number().int().min(0).max(50), points: z.number().int().min(2).max(2000) }),
+  endpoint: endpointRuleSpecSchema,
+  alarms: z.object({ onDelay: z.number().int().min(1).max(31), onWindow: z.number().int().min(1).max(31), offDelay: z.number().int().min(1).max(1000), deadband: z.number().min(0).lt(1), limits: z.enum(['global', 'local']).optional(), startupMin: z.number().min(0).max(600).optional() }),
+  property: z
+    .object({
+      name: z.string().min(1),
+      unit: z.string(),
+      components: z.union([z.number().int().min(1).max(30), z.literal('auto')]),
+      target: z.number().finite().optional(),
+      direction: z.enum(['below', 'above']).optional(),
+      chain: chainSpecSchema.optional(),
+      range: z.tuple([z.number().finite(), z.number().finite()]).optional(),
+    })
+    .optional(),
+  excludeSpectra: z.array(z.object({ batch: z.string(), index: z.number().int().min(0) })).optional(),
+});
+
+export interface BuildSettings {
+  name: string;
+  product: string;
+  author: string;
+  /** ms epoch, passed in (no clock in core). */
+  createdAt: number;
+  chain: ChainSpec;
+  components: number | 'auto';
+  confidence: number;
+  progress: { kind: 'time' } | { kind: 'indicator'; source: 'pc1' | 'property' };
+  envelope: { k: number; smoothing: number; points: number };
+  endpoint: EndpointRuleSpec;
+  /**
+   * limits: which T²/Q limits raise alarms — the per-progress-point ones ('local', default) or the
+   * global ones; startupMin: minutes after batch start with no alarm conditions (default 0).
+   */
+  alarms: { onDelay: number; onWindow: number; offDelay: number; deadband: number; limits?: 'global' | 'local'; startupMin?: number };
+  /** chain: the property model's own preprocessing (default: the model's chain); range: calibrate on reference spectra with the property in [lo, hi] only. */
+  property?: { name: string; unit: string; components: number | 'auto'; target?: number; direction?: 'below' | 'above'; chain?: ChainSpec; range?: [number, number] };
+  excludeSpectra?: { batch: string; index: number }[];
+}
+
+export type BuildSettingsInput = Pick<BuildSettings, 'name' | 'product' | 'author' | 'createdAt'> & Partial<Omit<BuildSettings, 'name' | 'product' | 'author' | 'createdAt'>>;
+
+export const DEFAULT_SETTINGS: Omit<BuildSettings, 'name' | 'product' | 'author' | 'createdAt' | 'endpoint'> = {
+  chain: [{ step: 'scale', center: true, scaling: 'none' }],
+  components: 3,
+  confidence: 0.99,
+  progress: { kind: 'time' },
+  envelope: { k: 3, smoothing: 2, points: 100 },
+  alarms: { onDelay: 3, onWindow: 5, offDelay: 5, deadband: 0.05 },
+};
+
+/** Fill defaults and validate; throws naming the first bad field. */
+export function resolveBuildSettings(input: unknown): BuildSettings {
+  if (typeof input !== 'object' || input === null) throw new TypeError('build settings must be an object');
+  const i = input as Record<string, unknown>;
+  const property = i.property as BuildSettings['property'] | undefined;
+  const endpoint: EndpointRuleSpec =
+    (i.endpoint as EndpointRuleSpec | undefined) ??
+    (property?.target !== undefined
+      ? { criteria: [{ kind: 'property' }], combine: 'all', confirm: 3, nearingMin: 10 }
+      : { criteria: [{ kind: 'mbsd', block: 5, threshold: 'auto' }], combine: 'all', confirm: 3, nearingMin: 10 });
+  const merged = { ...DEFAULT_SETTINGS, ...Object.fromEntries(Object.entries(i).filter(([, v]) => v !== undefined)), endpoint };
+  const r = buildSettingsSchema.safeParse(merged);
+  if (!r.success) {
+    const issue = r.error.issues[0]!;
+    throw new RangeError(`build settings: ${issue.path.join('.') || '(root)'}: ${issue.message}`);
+  }
+  const s = r.data as BuildSettings;
+  if (s.alarms.onDelay > s.alarms.onWindow) throw new RangeError(`build settings: alarms.onDelay (${s.alarms.onDelay}) must not exceed alarms.onWindow (${s.alarms.onWindow})`);
+  if (s.progress.kind === 'indicator' && s.progress.source === 'property' && !s.property) throw new RangeError('build settings: progress.source "property" needs a property model (settings.property)');
+  for (const c of s.endpoint.criteria) {
+    if (c.kind === 'property' && !s.property) throw new RangeError('build settings: endpoint criterion "property" needs a property model (settings.property)');
+    if (c.kind === 'property' && c.target === undefined && s.property?.target === undefined) throw new RangeError('build settings: endpoint criterion "property" needs a target (criterion.target or property.target)');
+    if (c.kind === 'plateau' && typeof s.components === 'number' && c.pc > s.components) throw new RangeError(`build settings: plateau criterion uses PC${c.pc} but the model has ${s.components} components`);
+  }
+  return s;
+}

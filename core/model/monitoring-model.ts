@@ -1,0 +1,367 @@
+/**
+ * The monitoring model: preprocessing chain + PCA + limits + golden envelope + endpoint rule +
+ * optional PLS property model, built from chosen good reference batches, stored as versioned JSON
+ * with a content hash (core/model/model-file.ts).
+ *
+ * Limits: global T² for new observations, F-based (Tracy, Young & Mason 1992); global Q by
+ * Jackson & Mudholkar (1979); combined index (Yue & Qin 2001); per-progress-point T² and Q limits
+ * moment-matched g·χ²_h over the reference spectra near each point (Nomikos & MacGregor 1995).
+ */
+import { z } from 'zod';
+import { denseMatrix, matrixFromRows, type DenseMatrix } from '../linalg/dense-matrix.ts';
+import { fitChain, loadChain, type FittedChain } from '../preprocess/index.ts';
+import { fitPca, scoreRows } from '../pca/fit-pca.ts';
+import { crossValidatePca } from '../pca/cross-validate.ts';
+import { pcaFromJSON, pcaToJSON } from '../pca/pca-json.ts';
+import type { PcaModel } from '../pca/pca-model.ts';
+import { t2Limit, qLimit, combinedLimit, type Limit } from '../limits/index.ts';
+import { buildEnvelope, type Envelope, type ReferenceTrajectory } from '../envelope/envelope.ts';
+import { progressOf, type ProgressAxis } from '../envelope/progress.ts';
+import { movingBlockSd } from '../envelope/mbsd.ts';
+import type { ResolvedCriterion, ResolvedEndpointRule } from '../endpoint/spec.ts';
+import { readModelFile, writeModelFile } from './model-file.ts';
+import { resolveBuildSettings, type BuildSettings } from './build-settings.ts';
+import { fitPropertyModel, loadPropertyModel, type PropertyModel } from './property-model.ts';
+import { plateauSlope } from '../endpoint/plateau.ts';
+
+export { resolveBuildSettings, DEFAULT_SETTINGS, type BuildSettings, type BuildSettingsInput } from './build-settings.ts';
+
+export const MONITORING_MODEL_FORMAT = 'tideline-monitoring-model';
+export const MONITORING_MODEL_VERSION = 1;
+
+export interface ReferenceBatch {
+  id: string;
+  axis: ArrayLike<number>;
+  /** ms epoch per spectrum */
+  times: ArrayLike<number>;
+  spectra: ArrayLike<number>[];
+  /** Measured (or reference-method) property per spectrum, for the PLS model and the endpoint time. */
+  property?: ArrayLike<number>;
+}
+
+export interface ModelLimits {
+  t2: Limit;
+  q: Limit;
+  combined: Limit;
+}
+
+export interface ModelMeta {
+  batches: { id: string; spectra: number; excluded: number; durationMin: number; endMin: number }[];
+  nSpectra: number;
+  nVariables: number;
+  createdAt: number;
+  author: string;
+  /** Cross-validation of the component count (Model bench evidence). */
+  pcaCv: { press: number[]; recommended: number; method: string };
+  /** Per calibration spectrum: which batch and index (same order as pca.calibrationT2/Q). */
+  sampleOrigin: { batch: number; index: number }[];
+}
+
+export interface MonitoringModel {
+  format: 'tideline-monitoring-model';
+  version: 1;
+  /** 'mm-' + first 16 hex digits of the content hash. */
+  id: string;
+  settings: BuildSettings;
+  chain: FittedChain;
+  pca: PcaModel;
+  limits: ModelLimits;
+  envelope: Envelope;
+  endpoint: ResolvedEndpointRule;
+  pls?: PropertyModel;
+  meta: ModelMeta;
+  sha256: string;
+}
+
+function checkBatches(batches: ReferenceBatch[]): void {
+  if (!Array.isArray(batches) || batches.length < 2) throw new RangeError(`a monitoring model needs at least 2 reference batches (got ${batches?.length ?? 0})`);
+  const axis0 = batches[0].axis;
+  const ids = new Set<string>();
+  for (const b of batches) {
+    if (ids.has(b.id)) throw new RangeError(`reference batch "${b.id}" is listed twice`);
+    ids.add(b.id);
+    if (b.axis.length !== axis0.length) throw new RangeError(`reference batch "${b.id}" has ${b.axis.length} wavelengths; batch "${batches[0].id}" has ${axis0.length}`);
+    for (let j = 0; j < axis0.length; j++) if (Math.abs(b.axis[j] - axis0[j]) > 1e-6) throw new RangeError(`reference batch "${b.id}": wavelength ${j} is ${b.axis[j]} nm, batch "${batches[0].id}" has ${axis0[j]} nm`);
+    if (b.spectra.length !== b.times.length) throw new RangeError(`reference batch "${b.id}" has ${b.spectra.length} spectra but ${b.times.length} times`);
+    if (b.spectra.length < 3) throw new RangeError(`reference batch "${b.id}" has only ${b.spectra.length} spectra`);
+    if (b.property && b.property.length !== b.spectra.length) throw new RangeError(`reference batch "${b.id}" has ${b.property.length} property values for ${b.spectra.length} spectra`);
+    for (let i = 1; i < b.times.length; i++) if (!(b.times[i] > b.times[i - 1])) throw new RangeError(`reference batch "${b.id}": time ${i} does not increase`);
+    for (const [i, s] of b.spectra.entries()) if (s.length !== axis0.length) throw new RangeError(`reference batch "${b.id}": spectrum ${i} has ${s.length} values, the axis ${axis0.length}`);
+  }
+}
+
+/** First index where the property meets the target (last index if never or no property). */
+function endIndexOf(b: ReferenceBatch, kept: number[], target: number | undefined, direction: 'below' | 'above' | undefined): number {
+  if (!b.property || target === undefined) return kept.length - 1;
+  for (let k = 0; k < kept.length; k++) {
+    const v = b.property[kept[k]];
+    if (direction === 'above' ? v >= target : v <= target) return k;
+  }
+  return kept.length - 1;
+}
+
+function median(xs: number[]): number {
+  const s = xs.filter(Number.isFinite).sort((a, b) => a - b);
+  if (s.length === 0) return NaN;
+  const m = s.length >> 1;
+  return s.length % 2 ? s[m] : (s[m - 1] + s[m]) / 2;
+}
+
+export function buildMonitoringModel(batches: ReferenceBatch[], settingsInput: unknown): MonitoringModel {
+  const settings = resolveBuildSettings(settingsInput);
+  checkBatches(batches);
+  const excl = new Map<string, Set<number>>();
+  for (const e of settings.excludeSpectra ?? []) {
+    if (!batches.some((b) => b.id === e.batch)) throw new RangeError(`excludeSpectra names batch "${e.batch}", which is not among the reference batches`);
+    let s = excl.get(e.batch);
+    if (!s) excl.set(e.batch, (s = new Set()));
+    s.add(e.index);
+  }
+  // Kept spectra per batch, stacked.
+  const kept: number[][] = batches.map((b) => {
+    const ex = excl.get(b.id);
+    const k: number[] = [];
+    for (let i = 0; i < b.spectra.length; i++) if (!ex?.has(i)) k.push(i);
+    if (k.length < 3) throw new RangeError(`reference batch "${b.id}" keeps only ${k.length} spectra after exclusions`);
+    return k;
+  });
+  const rows: ArrayLike<number>[] = [];
+  const origin: { batch: number; index: number }[] = [];
+  batches.forEach((b, bi) => kept[bi].forEach((i) => { rows.push(b.spectra[i]); origin.push({ batch: bi, index: i }); }));
+  const raw = matrixFromRows(rows);
+  const chain = fitChain(settings.chain, batches[0].axis, raw);
+  const X = chain.applyMatrix(raw);
+  const n = X.rows;
+
+  const pcaCv = crossValidateComponents(X);
+  const nComp = settings.components === 'auto' ? pcaCv.recommended : settings.components;
+  const pca = fitPca(X, { components: nComp, center: true, seed: 1 });
+  const A = pca.nComponents;
+  const conf = settings.confidence;
+  const t2L = t2Limit('t2-f-new', A, n, conf);
+  const qL = qLimit('q-jackson-mudholkar', { theta: pca.residualTheta }, conf);
+  const cL = combinedLimit(A, pca.residualTheta, t2L.value, qL.value, conf);
+  const limits: ModelLimits = { t2: t2L, q: qL, combined: cL };
+
+  // Property model (PLS1) from the raw spectra through its own chain.
+  let pls: PropertyModel | undefined;
+  let predicted: Float64Array | null = null;
+  if (settings.property) {
+    const y = new Float64Array(n);
+    let r = 0;
+    batches.forEach((b, bi) => {
+      if (!b.property) throw new RangeError(`reference batch "${b.id}" has no ${settings.property!.name} values; the property model needs them for every batch`);
+      for (const i of kept[bi]) y[r++] = b.property[i];
+    });
+    pls = fitPropertyModel(batches[0].axis, rows, y, settings.property, settings.chain);
+    predicted = Float64Array.from(rows, (x) => pls!.predict(x).y);
+  }
+
+  // Per-batch trajectories on the progress axis. T² and Q for the per-point limits are
+  // cross-validated by batch groups: in-sample residuals understate those of new batches
+  // (leave-batches-out limits, van Sprang, Ramaker, Westerhuis, Gurden & Smilde 2002, Chem. Eng.
+  // Sci. 57:3979 — from memory).
+  const { scores } = scoreRows(pca, X);
+  const { t2, q } = crossValidatedStatistics(X, origin.map((o) => o.batch), batches.length, A);
+  const propTarget = settings.property?.target;
+  const propDir = settings.property?.direction ?? 'below';
+  const trajectories: ReferenceTrajectory[] = [];
+  const indicators: Float64Array[] = [];
+  const elapsed: Float64Array[] = [];
+  let off = 0;
+  for (const [bi, b] of batches.entries()) {
+    const k = kept[bi];
+    const m = k.length;
+    const el = Float64Array.from(k, (i) => (b.times[i] - b.times[0]) / 60000);
+    const sc = Array.from({ length: A }, (_, a) => Float64Array.from({ length: m }, (_, r) => scores.data[(off + r) * A + a]));
+    const ind = settings.progress.kind === 'indicator' && settings.progress.source === 'property' ? predicted!.slice(off, off + m) : sc[0];
+    indicators.push(ind);
+    elapsed.push(el);
+    trajectories.push({ elapsedMin: el, progress: el, scores: sc, t2: t2.slice(off, off + m), q: q.slice(off, off + m), endIndex: endIndexOf(b, k, propTarget, propDir) });
+    off += m;
+  }
+  let axis: ProgressAxis = { kind: 'time', sign: 1, alpha: 1 };
+  if (settings.progress.kind === 'indicator') {
+    const dir = median(indicators.map((ind) => ind[ind.length - 1] - ind[0]));
+    if (!(Math.abs(dir) > 0)) throw new RangeError(`progress indicator ${settings.progress.source} does not change over the reference batches; choose time`);
+    axis = { kind: 'indicator', source: settings.progress.source, sign: dir > 0 ? 1 : -1, alpha: 0.3 };
+    trajectories.forEach((tr, bi) => { tr.progress = progressOf(axis, elapsed[bi], indicators[bi]); });
+  }
+  const envelope = buildEnvelope(trajectories, axis, {
+    k: settings.envelope.k,
+    smoothing: settings.envelope.smoothing,
+    points: settings.envelope.points,
+    confidence: conf,
+    globalT2Limit: t2L.value,
+    globalQLimit: qL.value,
+  });
+
+  // Endpoint rule with 'auto' thresholds resolved from the reference batches at their endpoints.
+  const criteria: ResolvedCriterion[] = settings.endpoint.criteria.map((c): ResolvedCriterion => {
+    switch (c.kind) {
+      case 'property': {
+        const target = c.target ?? settings.property!.target!;
+        return { kind: 'property', target, direction: c.direction ?? settings.property!.direction ?? 'below', name: settings.property!.name, unit: settings.property!.unit };
+      }
+      case 'mbsd': {
+        if (c.threshold !== 'auto') return { kind: 'mbsd', block: c.block, threshold: c.threshold };
+        let o = 0;
+        const atEnd: number[] = [];
+        trajectories.forEach((tr, bi) => {
+          const m = kept[bi].length;
+          const rowsB: Float64Array[] = [];
+          for (let r = 0; r < m; r++) rowsB.push(X.data.subarray((o + r) * X.cols, (o + r + 1) * X.cols));
+          const sd = movingBlockSd(rowsB, c.block);
+          const idx = Math.max(0, Math.min(sd.length - 1, tr.endIndex - c.block + 1));
+          if (sd.length > 0) atEnd.push(sd[idx]);
+          o += m;
+        });
+        return { kind: 'mbsd', block: c.block, threshold: median(atEnd) };
+      }
+      case 'plateau': {
+        if (c.pc > A) throw new RangeError(`plateau criterion uses PC${c.pc} but the model has ${A} components`);
+        if (c.tolerance !== 'auto') return { kind: 'plateau', pc: c.pc, window: c.window, tolerance: c.tolerance };
+        const atEnd: number[] = [];
+        for (const tr of trajectories) {
+          const e = tr.endIndex;
+          if (e + 1 < c.window) continue;
+          atEnd.push(Math.abs(plateauSlope(tr.elapsedMin, tr.scores[c.pc - 1], e - c.window + 1, c.window)));
+        }
+        if (atEnd.length === 0) throw new RangeError(`plateau criterion: no reference batch has ${c.window} spectra before its endpoint`);
+        return { kind: 'plateau', pc: c.pc, window: c.window, tolerance: median(atEnd) };
+      }
+      case 'golden-end':
+        return { kind: 'golden-end', limit: envelope.endRegion.limit };
+    }
+  });
+  const endpoint: ResolvedEndpointRule = { criteria, combine: settings.endpoint.combine, confirm: settings.endpoint.confirm, nearingMin: settings.endpoint.nearingMin };
+
+  const meta: ModelMeta = {
+    batches: batches.map((b, bi) => ({
+      id: b.id,
+      spectra: kept[bi].length,
+      excluded: b.spectra.length - kept[bi].length,
+      durationMin: (b.times[b.times.length - 1] - b.times[0]) / 60000,
+      endMin: envelope.endMin[bi],
+    })),
+    nSpectra: n,
+    nVariables: X.cols,
+    createdAt: settings.createdAt,
+    author: settings.author,
+    pcaCv,
+    sampleOrigin: origin,
+  };
+  const body = { settings, chain: chain.toJSON(), pca: pcaToJSON(pca), limits, envelope, endpoint, pls: pls?.toJSON(), meta };
+  // Hash exactly as the file will carry it: write, then read back.
+  return parseMonitoringModel(writeModelFile(MONITORING_MODEL_FORMAT, MONITORING_MODEL_VERSION, body));
+}
+
+/** T² and Q of every row from PCA models fitted without its batch group (min(I, 5) groups, batch b in group b mod G). */
+function crossValidatedStatistics(X: DenseMatrix, batchOfRow: number[], I: number, A: number): { t2: Float64Array; q: Float64Array } {
+  const G = Math.min(I, 5);
+  const t2 = new Float64Array(X.rows);
+  const q = new Float64Array(X.rows);
+  const p = X.cols;
+  for (let g = 0; g < G; g++) {
+    const train: number[] = [];
+    const test: number[] = [];
+    for (let i = 0; i < X.rows; i++) (batchOfRow[i] % G === g ? test : train).push(i);
+    const sub = (idx: number[]) => {
+      const d = new Float64Array(idx.length * p);
+      idx.forEach((i, r) => d.set(X.data.subarray(i * p, (i + 1) * p), r * p));
+      return denseMatrix(idx.length, p, d);
+    };
+    const m = fitPca(sub(train), { components: Math.min(A, train.length - 1), center: true, seed: 1 });
+    const s = scoreRows(m, sub(test));
+    test.forEach((i, r) => { t2[i] = s.t2[r]; q[i] = s.q[r]; });
+  }
+  return { t2, q };
+}
+
+/** Cross-validation of the component count (Bro et al. 2008 ekf, A2's crossValidatePca): Model bench evidence and 'auto'. */
+function crossValidateComponents(X: DenseMatrix): { press: number[]; recommended: number; method: string } {
+  const folds = Math.min(7, X.rows);
+  const maxA = Math.min(8, X.cols - 1, X.rows - Math.ceil(X.rows / folds) - 1);
+  const r = crossValidatePca(X, Math.max(1, maxA), { folds });
+  return { press: Array.from(r.press), recommended: r.recommended, method: r.method };
+}
+
+// ---- file form ---------------------------------------------------------------------------------
+
+const limitSchema = z.object({ value: z.number().finite().positive(), confidence: z.number(), method: z.string(), reference: z.string() });
+const num = z.number().finite();
+const envelopeSchema = z.object({
+  axis: z.object({ kind: z.enum(['time', 'indicator']), source: z.enum(['pc1', 'property']).optional(), sign: z.union([z.literal(1), z.literal(-1)]), alpha: z.number().gt(0).max(1) }),
+  grid: z.array(num).min(2),
+  k: z.number().positive(),
+  smoothing: z.number().int().min(0),
+  nBatches: z.number().int().min(2),
+  pcs: z.array(z.object({ mean: z.array(num), sd: z.array(num), lower: z.array(num), upper: z.array(num) })),
+  t2Limit: z.array(num),
+  qLimit: z.array(num),
+  timeAtProgress: z.array(z.array(num.nullable())),
+  endMin: z.array(num),
+  endProgress: z.array(num),
+  endRegion: z.object({ mean: z.array(num), sd: z.array(num), limit: num, method: z.string() }),
+});
+const criterionSchema = z.discriminatedUnion('kind', [
+  z.object({ kind: z.literal('property'), target: num, direction: z.enum(['below', 'above']), name: z.string(), unit: z.string() }),
+  z.object({ kind: z.literal('mbsd'), block: z.number().int().min(2), threshold: num }),
+  z.object({ kind: z.literal('plateau'), pc: z.number().int().min(1), window: z.number().int().min(3), tolerance: num }),
+  z.object({ kind: z.literal('golden-end'), limit: num }),
+]);
+const bodySchema = z.object({
+  settings: z.unknown(),
+  chain: z.unknown(),
+  pca: z.unknown(),
+  limits: z.object({ t2: limitSchema, q: limitSchema, combined: limitSchema }),
+  envelope: envelopeSchema,
+  endpoint: z.object({ criteria: z.array(criterionSchema).min(1), combine: z.enum(['all', 'any']), confirm: z.number().int().min(1), nearingMin: num }),
+  pls: z.unknown().optional(),
+  meta: z.object({
+    batches: z.array(z.object({ id: z.string(), spectra: z.number().int(), excluded: z.number().int(), durationMin: num, endMin: num })),
+    nSpectra: z.number().int(),
+    nVariables: z.number().int(),
+    createdAt: num,
+    author: z.string(),
+    pcaCv: z.object({ press: z.array(num), recommended: z.number().int(), method: z.string() }),
+    sampleOrigin: z.array(z.object({ batch: z.number().int(), index: z.number().int() })),
+  }),
+});
+type Body = z.infer<typeof bodySchema>;
+
+export function serializeMonitoringModel(m: MonitoringModel): string {
+  const body = { settings: m.settings, chain: m.chain.toJSON(), pca: pcaToJSON(m.pca), limits: m.limits, envelope: m.envelope, endpoint: m.endpoint, pls: m.pls?.toJSON(), meta: m.meta };
+  return writeModelFile(MONITORING_MODEL_FORMAT, MONITORING_MODEL_VERSION, body);
+}
+
+export function parseMonitoringModel(text: string): MonitoringModel {
+  const { body, sha256 } = readModelFile<Body>(text, MONITORING_MODEL_FORMAT, [MONITORING_MODEL_VERSION], bodySchema as unknown as z.ZodType<Body>);
+  const settings = resolveBuildSettings(body.settings);
+  const chain = loadChain(body.chain);
+  const pca = pcaFromJSON(body.pca);
+  const env = body.envelope as Envelope;
+  const A = pca.nComponents;
+  const P = env.grid.length;
+  if (env.pcs.length !== A) throw new RangeError(`monitoring model: envelope has ${env.pcs.length} PCs, the PCA ${A}`);
+  for (const [a, pc] of env.pcs.entries()) for (const key of ['mean', 'sd', 'lower', 'upper'] as const) if (pc[key].length !== P) throw new RangeError(`monitoring model: envelope.pcs.${a}.${key} has ${pc[key].length} points, the grid ${P}`);
+  if (env.t2Limit.length !== P || env.qLimit.length !== P) throw new RangeError('monitoring model: per-point limits do not match the envelope grid');
+  if (chain.outputAxis.length !== pca.nVariables) throw new RangeError(`monitoring model: the chain gives ${chain.outputAxis.length} variables, the PCA expects ${pca.nVariables}`);
+  const pls = body.pls !== undefined && body.pls !== null ? loadPropertyModel(body.pls) : undefined;
+  return {
+    format: MONITORING_MODEL_FORMAT,
+    version: 1,
+    id: `mm-${sha256.slice(0, 16)}`,
+    settings,
+    chain,
+    pca,
+    limits: body.limits,
+    envelope: env,
+    endpoint: body.endpoint as ResolvedEndpointRule,
+    pls,
+    meta: body.meta,
+    sha256,
+  };
+}
+
+export { calibrationDiagnostics, type CalibrationDiagnostics } from './calibration-diagnostics.ts';

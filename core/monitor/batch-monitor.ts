@@ -1,0 +1,212 @@
+/**
+ * The batch monitor: one per unit and batch, fed one spectrum at a time. Per spectrum it
+ * preprocesses (the model's chain, once), projects on the PCA model, computes T², Q and the
+ * combined index, the envelope status of every PC at the current progress, the alarm conditions
+ * (on-delay / off-delay, core/monitor/condition-filter.ts) and the endpoint state
+ * (core/endpoint). Work buffers are allocated here, at creation; a push allocates only the small
+ * result object. Deterministic: replaying the stored spectra of a batch through a new monitor
+ * rebuilds the exact state.
+ *
+ * Tideline advises: the site's validated control strategy, interlocks and procedures decide what
+ * an alarm or an endpoint signal may do.
+ */
+import { createProjector } from '../pca/projector.ts';
+import { combinedIndex } from '../limits/index.ts';
+import { contributions as pcaContributions } from '../contributions/index.ts';
+import { gridIndex, progressFraction } from '../envelope/envelope.ts';
+import { ProgressTracker } from '../envelope/progress.ts';
+import { MovingBlockSd } from '../envelope/mbsd.ts';
+import { EndpointTracker, type EndpointInputs } from '../endpoint/endpoint-tracker.ts';
+import { PlateauWindow } from '../endpoint/plateau.ts';
+import { sumByRegion } from '../bands/nir-bands.ts';
+import type { MonitoringModel } from '../model/monitoring-model.ts';
+import { ConditionFilter } from './condition-filter.ts';
+import { EtaEstimator } from './eta.ts';
+import type { AlarmPriority, ConditionChange, ConditionKind, Contributions, DomainEvent, EnvelopeCheck, MonitorResult } from './types.ts';
+
+export interface BatchMonitor {
+  push(seq: number, t: number, values: Float32Array | ArrayLike<number>): MonitorResult;
+  contributions(values: Float32Array | ArrayLike<number>): Contributions;
+  markSignalled(t: number): DomainEvent | null;
+}
+
+interface Cond {
+  kind: ConditionKind;
+  key: string;
+  label: string;
+  priority: AlarmPriority;
+  filter: ConditionFilter;
+}
+
+function fmt(x: number): string {
+  return Math.abs(x) >= 100 ? x.toFixed(0) : Math.abs(x) >= 10 ? x.toFixed(1) : x.toFixed(2);
+}
+
+export function createBatchMonitor(model: MonitoringModel, batchStartT: number): BatchMonitor {
+  if (!Number.isFinite(batchStartT)) throw new RangeError(`batch start ${batchStartT} is not a time`);
+  const { chain, pca, envelope: env, limits } = model;
+  const pIn = chain.inputAxis.length;
+  const p = chain.outputAxis.length;
+  const A = pca.nComponents;
+  const xp = new Float64Array(p);
+  const xc = new Float64Array(p);
+  const projector = createProjector(pca);
+  const pls = model.pls;
+  const progress = new ProgressTracker(env.axis);
+  const eta = new EtaEstimator(env);
+  const alarmSpec = model.settings.alarms;
+  // Which T²/Q limits the alarm conditions use: the global ones (default) or the per-progress-point ones.
+  const useLocal = (model.settings.alarms.limits ?? 'local') === 'local';
+  // Designed suppression during start-up (ISA-18.2 state-based alarming): no conditions evaluated
+  // in the first startupMin minutes, while the batch settles.
+  const startupMin = model.settings.alarms.startupMin ?? 0;
+  const t2Lim = limits.t2.value;
+  const qLim = limits.q.value;
+  const cLim = limits.combined.value;
+  const conf = limits.t2.confidence;
+  const confPct = `${+(conf * 100).toFixed(2)} %`;
+  const conds: Cond[] = [
+    { kind: 't2', key: 't2', label: 'T²', priority: 2, filter: new ConditionFilter(alarmSpec) },
+    { kind: 'q', key: 'q', label: 'Q', priority: 2, filter: new ConditionFilter(alarmSpec) },
+  ];
+  // The combined index (Yue & Qin 2001) has a limit only for the global T²/Q limits: it raises a
+  // condition when those are in force; with per-point limits it is reported, not alarmed.
+  if (!useLocal) conds.push({ kind: 'combined', key: 'combined', label: 'combined index', priority: 3, filter: new ConditionFilter(alarmSpec) });
+  const firstEnv = conds.length;
+  // Envelope conditions per PC, except the PC that is itself the progress indicator (its envelope is
+  // the progress axis and says nothing).
+  const indicatorPc = env.axis.kind === 'indicator' && env.axis.source === 'pc1' ? 0 : -1;
+  for (let a = 0; a < A; a++) if (a !== indicatorPc) conds.push({ kind: 'envelope', key: `pc${a + 1}`, label: `PC${a + 1}`, priority: 3, filter: new ConditionFilter(alarmSpec) });
+  const condPc = conds.map((c) => (c.kind === 'envelope' ? Number(c.key.slice(2)) - 1 : -1));
+  const rule = model.endpoint;
+  const endpoint = new EndpointTracker(rule);
+  const mbsdCrit = rule.criteria.find((c) => c.kind === 'mbsd');
+  const mbsd = mbsdCrit && mbsdCrit.kind === 'mbsd' ? new MovingBlockSd(mbsdCrit.block, p) : null;
+  const plateaus = rule.criteria.flatMap((c) => (c.kind === 'plateau' ? [{ pc: c.pc - 1, win: new PlateauWindow(c.window) }] : []));
+  const endMean = env.endRegion.mean;
+  const endSd = env.endRegion.sd;
+  const needsEnd = rule.criteria.some((c) => c.kind === 'golden-end');
+  const inputs: EndpointInputs = { property: null, mbsd: null, slopes: plateaus.map(() => null), goldenEndDistance: null, eta: null };
+  let lastSeq = -1;
+  let lastT = batchStartT;
+
+  function check(values: ArrayLike<number>): void {
+    if (values.length !== pIn) throw new RangeError(`spectrum has ${values.length} values; the model ${model.id} expects ${pIn} on its axis`);
+  }
+
+  function push(seq: number, t: number, values: Float32Array | ArrayLike<number>): MonitorResult {
+    check(values);
+    if (!Number.isFinite(t)) throw new RangeError(`spectrum ${seq}: time ${t} is not a number`);
+    chain.apply(values, xp);
+    const proj = projector.project(xp);
+    const t2 = proj.t2;
+    const q = proj.q;
+    const scores = Array.from(proj.scores);
+    const combined = combinedIndex(t2, q, t2Lim, qLim);
+    const elapsedMin = (t - batchStartT) / 60000;
+    let prediction: MonitorResult['prediction'] = null;
+    if (pls) {
+      const r = pls.predict(values);
+      prediction = { name: pls.name, unit: pls.unit, value: r.y, t2: r.t2, q: r.q, extrapolating: r.extrapolating };
+    }
+    const indicator = env.axis.kind === 'indicator' ? (env.axis.source === 'property' ? (prediction ? prediction.value : NaN) : scores[0]) : 0;
+    const prog = progress.push(elapsedMin, indicator);
+    const k = gridIndex(env, prog);
+    const localT2 = env.t2Limit[k];
+    const localQ = env.qLimit[k];
+
+    const envelope: EnvelopeCheck[] = new Array(A);
+    for (let a = 0; a < A; a++) {
+      const pc = env.pcs[a];
+      const expected = pc.mean[k];
+      const sd = pc.sd[k];
+      const s = scores[a];
+      const z = sd > 0 ? (s - expected) / sd : s === expected ? 0 : (s > expected ? Infinity : -Infinity);
+      envelope[a] = { pc: a + 1, score: s, expected, lower: pc.lower[k], upper: pc.upper[k], status: s > pc.upper[k] ? 'above' : s < pc.lower[k] ? 'below' : 'inside', sd: z };
+    }
+
+    // Conditions.
+    const events: DomainEvent[] = [];
+    const changes: ConditionChange[] = [];
+    const active: string[] = [];
+    let suspect = false;
+    for (let c = 0; c < conds.length && elapsedMin >= startupMin; c++) {
+      const cd = conds[c];
+      let value: number;
+      let limit: number;
+      if (c === 0) { value = t2; limit = useLocal ? localT2 : t2Lim; }
+      else if (c === 1) { value = q; limit = useLocal ? localQ : qLim; }
+      else if (c < firstEnv) { value = combined; limit = cLim; }
+      else { value = Math.abs(envelope[condPc[c]].sd); limit = env.k; }
+      const u = cd.filter.update(value, limit);
+      if (u.suspect) suspect = true;
+      if (u.active) active.push(cd.key);
+      if (u.changed) {
+        const what = c >= firstEnv ? `${cd.label} score ${fmt(envelope[condPc[c]].score)} is ${fmt(envelope[condPc[c]].sd)} sd from the golden path (band ±${env.k} sd)` : `${cd.label} ${fmt(value)} ${u.active ? 'above' : 'back below'} its ${confPct} limit ${fmt(limit)}`;
+        const change: ConditionChange = { kind: cd.kind, key: cd.key, active: u.active, message: u.active ? what : `${cd.label} back within limits: ${what}`, value, limit, priority: cd.priority };
+        changes.push(change);
+        events.push({ type: 'condition', change, t, seq });
+      }
+    }
+
+    // Endpoint.
+    inputs.property = prediction ? prediction.value : null;
+    inputs.mbsd = mbsd ? mbsd.push(xp) : null;
+    for (let i = 0; i < plateaus.length; i++) inputs.slopes[i] = plateaus[i].win.push(elapsedMin, scores[plateaus[i].pc]);
+    if (needsEnd) {
+      let d = 0;
+      for (let a = 0; a < A; a++) {
+        const z = endSd[a] > 0 ? (scores[a] - endMean[a]) / endSd[a] : 0;
+        d += z * z;
+      }
+      inputs.goldenEndDistance = d;
+    }
+    inputs.eta = endpoint.state === 'done' || endpoint.state === 'signalled' ? null : eta.estimate(k, elapsedMin);
+    const ep = endpoint.update(seq, t, inputs, events);
+    lastSeq = seq;
+    lastT = t;
+
+    return {
+      seq,
+      t,
+      elapsedMin,
+      progress: prog,
+      progressFraction: progressFraction(env, prog),
+      scores,
+      t2,
+      q,
+      combined,
+      limits: { t2: t2Lim, q: qLim, combined: cLim, confidence: conf },
+      localLimits: { t2: localT2, q: localQ },
+      envelope,
+      prediction,
+      suspect,
+      conditionChanges: changes,
+      activeConditions: active,
+      endpoint: { ...ep, criteria: ep.criteria, etaMin: ep.etaMin ? { ...ep.etaMin } : null },
+      events,
+    };
+  }
+
+  function contributions(values: Float32Array | ArrayLike<number>): Contributions {
+    check(values);
+    chain.apply(values, xc);
+    const c = pcaContributions(pca, xc);
+    const axis = Array.from(chain.outputAxis);
+    const regions = sumByRegion(axis, [c.t2, c.q]).map((r) => ({ name: r.region.name, from: r.region.from, to: r.region.to, assignment: r.region.assignment, t2: r.sums[0], q: r.sums[1] }));
+    return { axis, t2: Array.from(c.t2), q: Array.from(c.q), rbcT2: Array.from(c.rbcT2), rbcQ: Array.from(c.rbcQ), regions };
+  }
+
+  function markSignalled(t: number): DomainEvent | null {
+    return endpoint.markSignalled(Number.isFinite(t) ? t : lastT, lastSeq);
+  }
+
+  return { push, contributions, markSignalled };
+}
+
+/** Replay stored spectra through a new monitor (state rebuild after a restart, review, evaluation). */
+export function replayBatch(model: MonitoringModel, batchStartT: number, spectra: { seq: number; t: number; values: ArrayLike<number> }[]): { monitor: BatchMonitor; results: MonitorResult[] } {
+  const monitor = createBatchMonitor(model, batchStartT);
+  const results = spectra.map((s) => monitor.push(s.seq, s.t, s.values));
+  return { monitor, results };
+}
