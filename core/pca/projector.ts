@@ -31,24 +31,39 @@ export function createProjector(m: PcaModel): Projector {
     project(x: ArrayLike<number>): Projection {
       if (x.length !== p) throw new RangeError(`projection: spectrum has ${x.length} values, the model ${p}`);
       for (let j = 0; j < p; j++) e[j] = x[j]! - mean[j]!;
-      let t2 = 0;
-      for (let a = 0; a < A; a++) {
-        const po = a * p;
-        let s0 = 0, s1 = 0;
-        let j = 0;
-        for (; j + 1 < p; j += 2) {
-          s0 += e[j]! * PT[po + j]!;
-          s1 += e[j + 1]! * PT[po + j + 1]!;
+      // Scores four components per pass over the spectrum (one load of e[j] feeds four products).
+      let a = 0;
+      for (; a + 3 < A; a += 4) {
+        const o0 = a * p, o1 = o0 + p, o2 = o1 + p, o3 = o2 + p;
+        let s0 = 0, s1 = 0, s2 = 0, s3 = 0;
+        for (let j = 0; j < p; j++) {
+          const v = e[j]!;
+          s0 += v * PT[o0 + j]!;
+          s1 += v * PT[o1 + j]!;
+          s2 += v * PT[o2 + j]!;
+          s3 += v * PT[o3 + j]!;
         }
-        if (j < p) s0 += e[j]! * PT[po + j]!;
-        const s = s0 + s1;
-        t[a] = s;
-        t2 += s * s * invLambda[a]!;
+        t[a] = s0; t[a + 1] = s1; t[a + 2] = s2; t[a + 3] = s3;
       }
-      for (let a = 0; a < A; a++) {
+      for (; a < A; a++) {
+        const o = a * p;
+        let s = 0;
+        for (let j = 0; j < p; j++) s += e[j]! * PT[o + j]!;
+        t[a] = s;
+      }
+      let t2 = 0;
+      for (let b = 0; b < A; b++) t2 += t[b]! * t[b]! * invLambda[b]!;
+      // Residual e − Pt, four components per pass; Q from the finished residual.
+      a = 0;
+      for (; a + 3 < A; a += 4) {
+        const o0 = a * p, o1 = o0 + p, o2 = o1 + p, o3 = o2 + p;
+        const s0 = t[a]!, s1 = t[a + 1]!, s2 = t[a + 2]!, s3 = t[a + 3]!;
+        for (let j = 0; j < p; j++) e[j] -= s0 * PT[o0 + j]! + s1 * PT[o1 + j]! + s2 * PT[o2 + j]! + s3 * PT[o3 + j]!;
+      }
+      for (; a < A; a++) {
         const s = t[a]!;
-        const po = a * p;
-        for (let j = 0; j < p; j++) e[j] -= s * PT[po + j]!;
+        const o = a * p;
+        for (let j = 0; j < p; j++) e[j] -= s * PT[o + j]!;
       }
       let q = 0;
       for (let j = 0; j < p; j++) q += e[j]! * e[j]!;
