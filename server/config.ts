@@ -51,6 +51,10 @@ export const configSchema = z
     auth: authConfigSchema,
     /** TLS certificate and key (server/auth, docs/security.md); null = plain HTTP on loopback. */
     tls: tlsConfigSchema,
+    /** Signal channels (server/signals validates this part, docs/signals.md). */
+    signals: z.unknown().optional(),
+    /** Import/export settings (server/transfer validates this part). */
+    transfer: z.unknown().optional(),
     logLevel: z.enum(['silent', 'error', 'warn', 'info', 'debug']).default('info'),
   })
   .strict();

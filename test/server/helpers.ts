@@ -138,3 +138,61 @@ export function axis(n: number, from = 1100, step = 2): number[] {
 export function spectrum(n: number, k: number): number[] {
   return Array.from({ length: n }, (_, i) => 0.5 + 0.1 * Math.sin(i / 7 + k / 10));
 }
+
+export interface Session {
+  cookie: string;
+  csrf: string;
+  get(path: string): Promise<{ status: number; body: any; type: string }>;
+  post(path: string, body: unknown): Promise<{ status: number; body: any; type: string }>;
+}
+
+/** Create a user with the role and log in; returns a small fetch client carrying the session. */
+export async function login(ts: TestServer, role: 'viewer' | 'operator' | 'model-owner' | 'administrator' = 'administrator', name = `u-${role}`): Promise<Session> {
+  const password = 'correct horse battery staple 42';
+  const auth = ts.server.ctx.auth!;
+  if (!(auth as any).users.byName(name)) await (auth as any).createUser({ name, role, password }, 'test');
+  const r = await fetch(ts.server.url + '/api/auth/login', { method: 'POST', headers: { 'content-type': 'application/json' }, body: JSON.stringify({ name, password }) });
+  if (r.status !== 200) throw new Error(`login failed: ${r.status} ${await r.text()}`);
+  const cookie = r.headers.getSetCookie().map((c) => c.split(';')[0]).join('; ');
+  const csrf = ((await r.json()) as { csrfToken: string }).csrfToken;
+  const call = async (method: string, path: string, body?: unknown) => {
+    const res = await fetch(ts.server.url + path, {
+      method,
+      headers: { cookie, 'x-csrf-token': csrf, ...(body === undefined ? {} : { 'content-type': 'application/json' }) },
+      body: body === undefined ? undefined : typeof body === 'string' ? body : JSON.stringify(body),
+    });
+    const type = res.headers.get('content-type') ?? '';
+    const text = await res.text();
+    return { status: res.status, type, body: type.includes('json') ? JSON.parse(text) : text };
+  };
+  return { cookie, csrf, get: (p) => call('GET', p), post: (p, b) => call('POST', p, b) };
+}
+
+/** A /live browser peer. */
+export class LivePeer {
+  readonly ws: WebSocket;
+  readonly messages: Msg[] = [];
+  constructor(url: string, cookie: string) {
+    this.ws = new WebSocket(url + '/live', { headers: { cookie }, perMessageDeflate: false });
+    this.ws.on('message', (d: Buffer) => this.messages.push(JSON.parse(d.toString())));
+    this.ws.on('error', () => undefined);
+  }
+  open(): Promise<void> {
+    return new Promise((res, rej) => {
+      this.ws.once('open', () => res());
+      this.ws.once('unexpected-response', (_q, r) => rej(new Error(`upgrade refused: ${r.statusCode}`)));
+    });
+  }
+  send(m: unknown) {
+    this.ws.send(JSON.stringify(m));
+  }
+  async until(pred: (m: Msg) => boolean, timeoutMs = 15_000): Promise<Msg> {
+    const t0 = Date.now();
+    for (;;) {
+      const m = this.messages.find(pred);
+      if (m) return m;
+      if (Date.now() - t0 > timeoutMs) throw new Error(`live: timed out; last: ${JSON.stringify(this.messages.slice(-3)).slice(0, 600)}`);
+      await new Promise((r) => setTimeout(r, 10));
+    }
+  }
+}
