@@ -115,7 +115,7 @@ export interface ResolvedFault {
 export function resolveFaults(kind: ProcessKind, specs: readonly FaultSpec[] | undefined): ResolvedFault[] {
   const out: ResolvedFault[] = [];
   (specs ?? []).forEach((f, ordinal) => {
-    const info = FAULT_INFO[f.type as FaultType];
+    const info = Object.hasOwn(FAULT_INFO, f.type) ? FAULT_INFO[f.type] : undefined;
     if (!info) throw new Error(`fault ${ordinal}: unknown type "${f.type}"; known: ${FAULT_TYPES.join(', ')}`);
     if (!info.kinds.includes(kind)) throw new Error(`fault ${ordinal}: "${f.type}" applies to ${info.kinds.join(' and ')}, not to the ${kind}`);
     if (!Number.isFinite(f.onsetS) || f.onsetS < 0) throw new Error(`fault ${ordinal} (${f.type}): onset ${f.onsetS} s must be a non-negative number`);
@@ -123,7 +123,7 @@ export function resolveFaults(kind: ProcessKind, specs: readonly FaultSpec[] | u
     const params: Record<string, number> = {};
     for (const [name, p] of Object.entries(info.params)) params[name] = p.default;
     for (const [name, v] of Object.entries(f.params ?? {})) {
-      const p = info.params[name];
+      const p = Object.hasOwn(info.params, name) ? info.params[name] : undefined;
       if (!p) throw new Error(`fault ${ordinal} (${f.type}): unknown parameter "${name}"; known: ${Object.keys(info.params).join(', ') || 'none'}`);
       if (!Number.isFinite(v) || v < p.min || v > p.max) throw new Error(`fault ${ordinal} (${f.type}): ${name} = ${v} is outside ${p.min}…${p.max}`);
       params[name] = v;

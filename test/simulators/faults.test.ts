@@ -145,6 +145,8 @@ describe('fault specifications', () => {
     expect(() => parseFaultArg('spikes')).toThrow(/TYPE@MINUTES/);
     expect(() => parseFaultArg('spikes@3:probability=x')).toThrow(/probability=x/);
     expect(() => resolveFaults('dryer', [{ type: 'stalled-reaction', onsetS: 0 }])).toThrow(/not to the dryer/);
+    expect(() => resolveFaults('dryer', [{ type: 'constructor' as FaultType, onsetS: 0 }])).toThrow(/unknown type "constructor"/);
+    expect(() => resolveFaults('dryer', [{ type: 'spikes', onsetS: 0, params: { toString: 1 } }])).toThrow(/unknown parameter "toString"/);
     expect(() => resolveFaults('dryer', [{ type: 'spikes', onsetS: 0, params: { size: 1 } }])).toThrow(/unknown parameter "size"/);
     expect(() => resolveFaults('dryer', [{ type: 'spikes', onsetS: 0, params: { probability: 2 } }])).toThrow(/probability = 2 is outside/);
     expect(() => resolveFaults('dryer', [{ type: 'over-wet', onsetS: 60 }])).toThrow(/onset must be 0/);
