@@ -12,8 +12,8 @@
  */
 import { execFileSync } from 'node:child_process';
 import { readdirSync, writeFileSync } from 'node:fs';
-import { cpus, totalmem, platform, release, arch } from 'node:os';
-import { dirname, join } from 'node:path';
+import { cpus, totalmem, platform, release, arch, loadavg } from 'node:os';
+import { dirname, join, resolve } from 'node:path';
 import { fileURLToPath, pathToFileURL } from 'node:url';
 
 export interface BenchContext {
@@ -70,6 +70,7 @@ function machine(): Record<string, string | number> {
     memory_gib: Math.round((totalmem() / 2 ** 30) * 10) / 10,
     os: `${platform()} ${release()} ${arch()}`,
     node: process.version,
+    load_average_1_5_15min: loadavg().map((v) => v.toFixed(2)).join(' '),
     numpy: info.numpy!,
     scipy: info.scipy!,
     numpy_blas: info.blas!,
@@ -92,21 +93,22 @@ async function main(): Promise<void> {
   let failures = 0;
   for (const f of files) {
     const mod = (await import(pathToFileURL(join(dir, f)).href)) as Partial<Section>;
-    if (typeof mod.run !== 'function' || typeof mod.name !== 'string') {
-      console.log(`\n[${f}] skipped: does not export name and run()`);
+    if (typeof mod.run !== 'function') {
+      console.log(`\n[${f}] skipped: does not export run()`);
       continue;
     }
-    if (args.only.length && !args.only.includes(mod.name) && !args.only.includes(f.replace(/\.ts$/, ''))) continue;
-    console.log(`\n[${mod.name}]`);
+    const sectionName = typeof mod.name === 'string' ? mod.name : f.replace(/\.ts$/, '');
+    if (args.only.length && !args.only.includes(sectionName) && !args.only.includes(f.replace(/\.ts$/, ''))) continue;
+    console.log(`\n[${sectionName}]`);
     const t0 = performance.now();
     try {
-      const figures = await mod.run({ quick: args.quick, log: (line) => console.log(`  ${line}`) });
-      results[mod.name] = figures;
+      const figures = await mod.run!({ quick: args.quick, log: (line) => console.log(`  ${line}`) });
+      results[sectionName] = figures;
       for (const [k, v] of Object.entries(figures)) console.log(`  ${k} = ${typeof v === 'number' ? formatNumber(v) : String(v)}`);
     } catch (err) {
       failures++;
       const msg = err instanceof Error ? err.message : String(err);
-      results[mod.name] = { error: msg };
+      results[sectionName] = { error: msg };
       console.log(`  error: ${msg}`);
     }
     console.log(`  (${((performance.now() - t0) / 1000).toFixed(1)} s)`);
@@ -127,7 +129,10 @@ function formatNumber(v: number): string {
   return a >= 100 ? v.toFixed(0) : v.toPrecision(4);
 }
 
-main().catch((err) => {
-  console.error(err instanceof Error ? err.message : err);
-  process.exit(1);
-});
+const isEntry = process.argv[1] !== undefined && resolve(process.argv[1]) === fileURLToPath(import.meta.url);
+if (isEntry) {
+  main().catch((err) => {
+    console.error(err instanceof Error ? err.message : err);
+    process.exit(1);
+  });
+}
