@@ -9,7 +9,9 @@
  * PRESS(a) = Σ over held-out elements of (x_j − x̂_j)². Recommended count: the a of least PRESS.
  */
 import type { DenseMatrix } from '../linalg/dense-matrix.ts';
-import { checkMatrix, fitPcaCore } from './fit-pca.ts';
+import { checkMatrix, columnMeans, fitPcaCore } from './fit-pca.ts';
+import { scatterMatrix } from './gram-kernel.ts';
+import { topSymmetricEigen } from './sym-eigen.ts';
 
 export interface PcaCrossValidation {
   /** press[a − 1] for a = 1..maxComponents. */
@@ -42,15 +44,42 @@ export function crossValidatePca(
   let press0 = 0;
   const xc = new Float64Array(p);
   const t = new Float64Array(A);
+  // Tall data: the training scatter of each fold is the total scatter minus the fold's own, both
+  // about the overall mean, corrected to the training mean:
+  //   S_train = S_all − S_fold − n_t·d·dᵀ,  d = m_train − m_all
+  // so the folds cost two Gram passes in all instead of one per fold.
+  const tall = p <= smallestTrain;
+  const overallMean = center ? columnMeans(X) : new Float64Array(p);
+  const sAll = tall ? scatterMatrix(X.data, n, p, overallMean) : null;
   for (let f = 0; f < k; f++) {
     const train: number[] = [];
     const test: number[] = [];
     for (let i = 0; i < n; i++) (i % k === f ? test : train).push(i);
-    const core = fitPcaCore(X, A, center, opts.seed ?? 1, train, false);
-    const P = core.loadings;
+    let P: Float64Array;
+    let mean: Float64Array;
+    if (sAll) {
+      const sFold = scatterMatrix(X.data, n, p, overallMean, test);
+      const nt = train.length;
+      mean = new Float64Array(p);
+      if (center) {
+        const foldMean = columnMeans(X, test);
+        for (let j = 0; j < p; j++) mean[j] = (n * overallMean[j]! - test.length * foldMean[j]!) / nt;
+      }
+      const d = Float64Array.from(mean, (v, j) => v - overallMean[j]!);
+      const C = new Float64Array(p * p);
+      const dof = nt - 1;
+      for (let i = 0; i < p; i++) {
+        for (let j = 0; j < p; j++) C[i * p + j] = (sAll[i * p + j]! - sFold[i * p + j]! - nt * d[i]! * d[j]!) / dof;
+      }
+      P = topSymmetricEigen(C, p, A, opts.seed ?? 1).vectors;
+    } else {
+      const core = fitPcaCore(X, A, center, opts.seed ?? 1, train, false);
+      P = core.loadings;
+      mean = core.mean;
+    }
     for (const i of test) {
       const off = i * p;
-      for (let j = 0; j < p; j++) xc[j] = X.data[off + j]! - core.mean[j]!;
+      for (let j = 0; j < p; j++) xc[j] = X.data[off + j]! - mean[j]!;
       for (let a = 0; a < A; a++) {
         let s = 0;
         for (let j = 0; j < p; j++) s += xc[j]! * P[j * A + a]!;

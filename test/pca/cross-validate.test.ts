@@ -48,6 +48,12 @@ describe('crossValidatePca (ekf, Bro et al. 2008)', () => {
     cv.press.forEach((v, i) => expect(Math.abs(v / ref[i]! - 1)).toBeLessThan(1e-9));
     expect(cv.method).toMatch(/Bro, Kjeldahl, Smilde & Kiers 2008/);
   });
+  it('closed form equals the explicit least squares on wide data (p > training rows: refit per fold)', () => {
+    const { X } = lowRankData(20, 30, [4, 2.5, 1.5], 0.3, 8);
+    const cv = crossValidatePca(X, 3, { folds: 4 });
+    const ref = bruteForcePress(X, 3, 4);
+    cv.press.forEach((v, i) => expect(Math.abs(v / ref[i]! - 1)).toBeLessThan(1e-9));
+  });
   it('recommends the true rank of low-rank data with noise', () => {
     const { X } = lowRankData(200, 50, [6, 4, 3, 2], 0.3, 21);
     const cv = crossValidatePca(X, 8);
