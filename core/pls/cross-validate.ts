@@ -9,15 +9,18 @@
  *
  * Segments: 'loo' (leave one out), or k contiguous blocks (default; samples close in time stay
  * together, so neighbouring spectra of one batch do not predict each other) or k interleaved
- * ones (sample i in segment i mod k).
+ * ones (sample i in segment i mod k), or 'groups': one segment per distinct value of
+ * `groups` (e.g. the batch of each spectrum: leave one batch out).
  */
 import { denseMatrix, type DenseMatrix } from '../linalg/dense-matrix.ts';
 import { checkPlsInput, coefficientsFor, nipalsPls1, rotationsFor } from './nipals.ts';
 
 export interface CrossValidatePls1Options {
   maxComponents: number;
-  folds: number | 'loo';
+  folds: number | 'loo' | 'groups';
   segments?: 'contiguous' | 'interleaved';
+  /** With folds 'groups': a group label per sample (e.g. batch index); each group is left out once. */
+  groups?: ArrayLike<number>;
   center?: boolean;
 }
 
@@ -43,11 +46,26 @@ export function crossValidatePls1(X: DenseMatrix, y: ArrayLike<number>, opts: Cr
   const { rows: n, cols: p } = X;
   const center = opts.center ?? true;
   const mode = opts.segments ?? 'contiguous';
-  const k = opts.folds === 'loo' ? n : opts.folds;
-  if (!Number.isInteger(k) || k < 2 || k > n) throw new RangeError(`crossValidatePls1: folds must be 'loo' or an integer in [2, ${n}]; got ${opts.folds}`);
+  let k: number;
+  let seg: Int32Array;
+  if (opts.folds === 'groups') {
+    const g = opts.groups;
+    if (!g || g.length !== n) throw new RangeError(`crossValidatePls1: folds 'groups' needs a group label for each of the ${n} samples; got ${g ? g.length : 'none'}`);
+    const ids = new Map<number, number>();
+    seg = new Int32Array(n);
+    for (let i = 0; i < n; i++) {
+      if (!ids.has(g[i]!)) ids.set(g[i]!, ids.size);
+      seg[i] = ids.get(g[i]!)!;
+    }
+    k = ids.size;
+    if (k < 2) throw new RangeError('crossValidatePls1: folds \'groups\' needs at least 2 distinct groups');
+  } else {
+    k = opts.folds === 'loo' ? n : opts.folds;
+    if (!Number.isInteger(k) || k < 2 || k > n) throw new RangeError(`crossValidatePls1: folds must be 'loo', 'groups' or an integer in [2, ${n}]; got ${opts.folds}`);
+    seg = segmentOf(n, k, mode);
+  }
   const Amax = opts.maxComponents;
   // The smallest training set must support Amax components.
-  const seg = segmentOf(n, k, mode);
   const sizes = new Int32Array(k);
   for (let i = 0; i < n; i++) sizes[seg[i]!]!++;
   const minTrain = n - Math.max(...sizes);
@@ -100,6 +118,6 @@ export function crossValidatePls1(X: DenseMatrix, y: ArrayLike<number>, opts: Cr
     recommended,
     predictions: pred,
     folds: k,
-    method: opts.folds === 'loo' ? 'leave-one-out' : `${k}-fold ${mode}`,
+    method: opts.folds === 'loo' ? 'leave-one-out' : opts.folds === 'groups' ? `leave-one-group-out (${k} groups)` : `${k}-fold ${mode}`,
   };
 }

@@ -196,6 +196,16 @@ describe('cross-validation', () => {
     for (const i of test) expect(Math.abs(k4.predictions[1]![i]! - pr.predict(rows[i]!).y)).toBeLessThan(1e-10);
   });
 
+  it("folds 'groups' leaves each group out once (here the same as 4 interleaved segments)", () => {
+    const groups = rows.map((_, i) => 100 + (i % 4));
+    const g = crossValidatePls1(X, y, { maxComponents: 3, folds: 'groups', groups });
+    const k4 = crossValidatePls1(X, y, { maxComponents: 3, folds: 4, segments: 'interleaved' });
+    expect(g.rmsecv).toEqual(k4.rmsecv);
+    expect(g.method).toBe('leave-one-group-out (4 groups)');
+    expect(() => crossValidatePls1(X, y, { maxComponents: 3, folds: 'groups' })).toThrow(/group label for each of the 36 samples/);
+    expect(() => crossValidatePls1(X, y, { maxComponents: 3, folds: 'groups', groups: rows.map(() => 1) })).toThrow(/at least 2 distinct groups/);
+  });
+
   it('recommends a count by the one-standard-error rule: 4 latent factors in the data → 3 or 4', () => {
     const cv = crossValidatePls1(X, y, { maxComponents: 8, folds: 6 });
     expect(cv.rmsecv.length).toBe(8);
