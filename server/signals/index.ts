@@ -79,6 +79,7 @@ export async function install(ctx: ServerContext): Promise<SignalsHandle> {
   }
   if (opcua) {
     await opcua.start();
+    opcua.ensureUnits(ctx.ingest.units.keys());
     ctx.log.info(`OPC UA server at ${opcua.endpointUrl} (security: ${cfg.opcua!.securityModes.join(', ')}; PKI ${opcua.pkiDir})`);
   }
   for (const d of dispatchers) d.start();

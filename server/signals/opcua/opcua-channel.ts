@@ -164,6 +164,16 @@ export class OpcuaChannel implements SignalChannel {
     return n;
   }
 
+  /** Create the folders of units known to the server even before their first event. */
+  ensureUnits(units: Iterable<string>): void {
+    for (const unit of units) {
+      if (this.units.has(unit)) continue;
+      const s = this.states.get(unit) ?? emptyUnitState(unit, this.now());
+      this.states.set(unit, s);
+      this.nodesFor(unit).update(s, this.latchView(unit));
+    }
+  }
+
   isReady(): boolean {
     return this.server !== null;
   }
