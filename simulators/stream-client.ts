@@ -38,6 +38,12 @@ export interface AnalyzerClientOptions {
   instrument?: string;
   /** Reconnect backoff: first delay and cap, ms (defaults 200 and 10 000). */
   backoff?: { initialMs?: number; maxMs?: number };
+  /**
+   * Liveness: ping the server this often, ms, and drop the connection (then reconnect and resend)
+   * when nothing at all has been heard from it for 2.5 × this long — a half-open TCP connection
+   * would otherwise hold the stream forever. 0 disables. Default 10 000.
+   */
+  heartbeatMs?: number;
   /** Progress and problems in words (default: silent). */
   log?: (line: string) => void;
   /** Extra options for the ws client (e.g. TLS settings). */
@@ -118,6 +124,9 @@ export class AnalyzerClient {
   private startWaiters: { resolve: () => void; reject: (e: Error) => void }[] = [];
   private closeWaiters: (() => void)[] = [];
   private processClock: number | null = null;
+  private sending = false;
+  private lastHeard = 0;
+  private heartbeat: NodeJS.Timeout | null = null;
   private lastT = 0;
   private readonly counters = { sent: 0, resent: 0, spectra: 0, bytesSent: 0, connects: 0, reconnects: 0 };
   private readonly errors: ClientStats['errors'] = [];
@@ -149,6 +158,16 @@ export class AnalyzerClient {
     if (batch.axis.length !== this.opts.axis.length) {
       throw new AnalyzerClientError(`batch ${batch.id} has ${batch.axis.length} wavelengths; this analyzer's axis has ${this.opts.axis.length}`);
     }
+    if (this.sending) throw new AnalyzerClientError('a batch is already being sent on this analyzer; await it first');
+    this.sending = true;
+    try {
+      await this.sendBatchInner(batch, opts);
+    } finally {
+      this.sending = false;
+    }
+  }
+
+  private async sendBatchInner(batch: SimulatedBatch, opts: SendBatchOptions): Promise<void> {
     await this.start();
     const original = opts.timestamps === 'original';
     if (this.processClock === null) this.processClock = Date.now();
@@ -191,6 +210,7 @@ export class AnalyzerClient {
   /** Close the connection without waiting for acks (call flush() first to drain). */
   close(): Promise<void> {
     this.closing = true;
+    this.stopHeartbeat();
     if (this.reconnectTimer) clearTimeout(this.reconnectTimer);
     this.reconnectTimer = null;
     const err = new AnalyzerClientError('client closed');
@@ -263,7 +283,12 @@ export class AnalyzerClient {
       headers: { ...(this.opts.wsOptions?.headers ?? {}), Authorization: `Bearer ${this.opts.token}` },
     });
     this.ws = ws;
+    const heard = () => (this.lastHeard = Date.now());
+    ws.on('ping', heard);
+    ws.on('pong', heard);
     ws.on('open', () => {
+      heard();
+      this.startHeartbeat(ws);
       const hello: HelloMessage = {
         type: 'hello',
         protocol: PROTOCOL_VERSION,
@@ -275,6 +300,7 @@ export class AnalyzerClient {
       ws.send(JSON.stringify(hello));
     });
     ws.on('message', (data, isBinary) => {
+      heard();
       if (isBinary) return this.log('server sent a binary message; ignored');
       let m: ServerToAnalyzerMessage;
       try {
@@ -338,8 +364,36 @@ export class AnalyzerClient {
     this.waiters = keep;
   }
 
+  private startHeartbeat(ws: WebSocket): void {
+    this.stopHeartbeat();
+    const every = this.opts.heartbeatMs ?? 10_000;
+    if (!(every > 0)) return;
+    const openedAt = Date.now();
+    this.heartbeat = setInterval(() => {
+      if (this.ws !== ws || ws.readyState !== WebSocket.OPEN) return;
+      if (!this.ready && Date.now() - openedAt > 2.5 * every) {
+        this.log(`no welcome within ${Date.now() - openedAt} ms of hello; dropping the connection`);
+        ws.terminate();
+        return;
+      }
+      if (Date.now() - this.lastHeard > 2.5 * every) {
+        this.log(`nothing heard from the server for ${Date.now() - this.lastHeard} ms; dropping the connection`);
+        ws.terminate();
+        return;
+      }
+      ws.ping();
+    }, every);
+    this.heartbeat.unref();
+  }
+
+  private stopHeartbeat(): void {
+    if (this.heartbeat) clearInterval(this.heartbeat);
+    this.heartbeat = null;
+  }
+
   private onClose(ws: WebSocket): void {
     if (this.ws !== ws) return;
+    this.stopHeartbeat();
     this.ws = null;
     this.ready = false;
     if (this.closing || this.failure) {
@@ -363,6 +417,7 @@ export class AnalyzerClient {
   private fail(e: AnalyzerClientError): void {
     if (this.failure) return;
     this.failure = e;
+    this.stopHeartbeat();
     this.log(e.message);
     for (const w of this.startWaiters.splice(0)) w.reject(e);
     for (const w of this.waiters.splice(0)) w.reject(e);

@@ -27,6 +27,8 @@ export interface PeerOptions {
   refuseFirst?: number;
   /** Send acks on a timer of this many ms instead of at once. */
   ackDelayMs?: number;
+  /** Go silent (no acks, no pongs, ignore input, keep the TCP connection) after this many entries in total, once. */
+  silentAfterEntries?: number;
 }
 
 export interface StreamLog {
@@ -44,6 +46,7 @@ export class IngestPeer {
   upgrades = 0;
   connections = 0;
   dropped = 0;
+  silenced = 0;
   private persistedTotal = 0;
   private http!: Server;
   private wss!: WebSocketServer;
@@ -53,7 +56,7 @@ export class IngestPeer {
 
   async start(): Promise<void> {
     this.http = createServer();
-    this.wss = new WebSocketServer({ noServer: true, maxPayload: MAX_MESSAGE_BYTES, perMessageDeflate: false });
+    this.wss = new WebSocketServer({ noServer: true, maxPayload: MAX_MESSAGE_BYTES, perMessageDeflate: false, autoPong: false });
     this.http.on('upgrade', (req, socket, head) => {
       this.upgrades++;
       if (this.upgrades <= (this.o.refuseFirst ?? 0)) {
@@ -87,6 +90,8 @@ export class IngestPeer {
     let log: StreamLog | null = null;
     let lastAckSent = -1;
     let ackTimer: NodeJS.Timeout | null = null;
+    let silent = false;
+    ws.on('ping', (d) => !silent && ws.pong(d));
     const lastSeq = () => (log ? log.entries.length - 1 : -1);
     const ack = () => {
       if (!log || lastSeq() === lastAckSent || ws.readyState !== ws.OPEN) return;
@@ -101,6 +106,7 @@ export class IngestPeer {
     ws.on('close', () => ackTimer && clearTimeout(ackTimer));
     ws.on('message', (raw, isBinary) => {
       const data = raw as Buffer;
+      if (silent) return;
       try {
         const msg = isBinary ? decodeSpectrumFrame(new Uint8Array(data.buffer, data.byteOffset, data.byteLength)) : parseAnalyzerText(data.toString());
         if (msg.type === 'hello') {
@@ -140,6 +146,11 @@ export class IngestPeer {
         if (this.o.dropAfterEntries !== undefined && this.persistedTotal === this.o.dropAfterEntries) {
           this.dropped++;
           ws.terminate(); // persisted but never acked: the client must learn it from welcome.resumeAfter
+          return;
+        }
+        if (this.o.silentAfterEntries !== undefined && this.persistedTotal === this.o.silentAfterEntries) {
+          this.silenced++;
+          silent = true; // a half-open connection: the client must notice by itself
           return;
         }
         scheduleAck();

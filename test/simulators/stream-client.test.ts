@@ -118,6 +118,29 @@ describe('AnalyzerClient against a protocol-conformant test peer', () => {
     expect(expectLogHoldsBatch(logs[0]!, b2, next)).toBe(logs[0]!.entries.length);
   });
 
+  it('notices a silent (half-open) connection by its heartbeat, reconnects and completes the log', async () => {
+    const p = await startPeer({ tokens: { tok7: 'a7' }, silentAfterEntries: 30 });
+    const batch = simulateDryerBatch({ seed: 7, intervalS: 60 });
+    const lines: string[] = [];
+    const c = new AnalyzerClient({ url: p.url, token: 'tok7', analyzer: 'a7', axis: batch.axis, boot: 7, heartbeatMs: 40, backoff: { initialMs: 10 }, log: (l) => lines.push(l) });
+    await c.sendBatch(batch, { speed: 0 });
+    await c.close();
+    expect(p.silenced).toBe(1);
+    expect(p.connections).toBe(2);
+    expect(lines.some((l) => /nothing heard from the server/.test(l))).toBe(true);
+    expectLogHoldsBatch(p.stream('a7')[0]!, batch);
+  });
+
+  it('refuses a second batch on the same analyzer while one is being sent', async () => {
+    const p = await startPeer({ tokens: { tok8: 'a8' } });
+    const batch = simulateDryerBatch({ seed: 8, intervalS: 120 });
+    const c = new AnalyzerClient({ url: p.url, token: 'tok8', analyzer: 'a8', axis: batch.axis });
+    const first = c.sendBatch(batch, { speed: 0 });
+    await expect(c.sendBatch(batch, { speed: 0 })).rejects.toThrow(/already being sent/);
+    await first;
+    await c.close();
+  });
+
   it('rejects with a clear message when the token is refused or the server rejects an entry', async () => {
     const p = await startPeer({ tokens: { good: 'a6' }, units: ['dryer-9'] });
     const batch = simulateDryerBatch({ seed: 6, intervalS: 300 });
