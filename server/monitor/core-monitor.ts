@@ -4,6 +4,8 @@
  * One place that imports them, so the rest of server/ depends only on the shapes below.
  */
 import type { Contributions, DomainEvent, MonitorResult } from '../../core/monitor/types.ts';
+import { createBatchMonitor } from '../../core/monitor/batch-monitor.ts';
+import { buildMonitoringModel, parseMonitoringModel, serializeMonitoringModel } from '../../core/model/monitoring-model.ts';
 
 export interface BatchMonitorLike {
   push(seq: number, t: number, values: Float32Array): MonitorResult;
@@ -38,34 +40,14 @@ export interface CoreMonitoring {
   buildMonitoringModel(batches: ReferenceBatchInput[], settings: Record<string, unknown>): MonitoringModelLike;
 }
 
-let loaded: Promise<CoreMonitoring> | null = null;
+const core: CoreMonitoring = {
+  createBatchMonitor: createBatchMonitor as unknown as CoreMonitoring['createBatchMonitor'],
+  parseMonitoringModel: parseMonitoringModel as unknown as CoreMonitoring['parseMonitoringModel'],
+  serializeMonitoringModel: serializeMonitoringModel as unknown as CoreMonitoring['serializeMonitoringModel'],
+  buildMonitoringModel: buildMonitoringModel as unknown as CoreMonitoring['buildMonitoringModel'],
+};
 
-/** Loads the core monitoring functions once. Throws naming what is missing. */
+/** The core monitoring functions. */
 export function coreMonitoring(): Promise<CoreMonitoring> {
-  if (!loaded) {
-    loaded = (async () => {
-      // Paths held in variables: the modules are written in parallel by engineer C.
-      const monitorPath = '../../core/monitor/batch-monitor.ts';
-      const modelPath = '../../core/model/monitoring-model.ts';
-      const [mon, mod] = await Promise.all([import(monitorPath), import(modelPath)]);
-      for (const [name, fn] of [
-        ['createBatchMonitor', mon.createBatchMonitor],
-        ['parseMonitoringModel', mod.parseMonitoringModel],
-        ['serializeMonitoringModel', mod.serializeMonitoringModel],
-        ['buildMonitoringModel', mod.buildMonitoringModel],
-      ] as const) {
-        if (typeof fn !== 'function') throw new Error(`core monitoring: ${name} is not exported`);
-      }
-      return {
-        createBatchMonitor: mon.createBatchMonitor,
-        parseMonitoringModel: mod.parseMonitoringModel,
-        serializeMonitoringModel: mod.serializeMonitoringModel,
-        buildMonitoringModel: mod.buildMonitoringModel,
-      } as CoreMonitoring;
-    })();
-    loaded.catch(() => {
-      loaded = null;
-    });
-  }
-  return loaded;
+  return Promise.resolve(core);
 }

@@ -1,0 +1,183 @@
+/**
+ * `npm start`: the whole of Tideline on one machine, with invented demo data.
+ *
+ * 1. Starts the server (port from config/env/flags, default 8470, or a free port if that is taken;
+ *    SQLite in ./data).
+ * 2. On first start: simulates reference batches for a fluid-bed dryer and a batch reactor, streams
+ *    them into the server over the public ingest protocol, builds a monitoring model for each,
+ *    approves it (marked as a demo approval, not a validated model) and deploys it.
+ * 3. Streams accelerated dryer and reactor batches from simulated analyzers, now and then a faulty
+ *    one, until Ctrl-C; serves the dashboard and prints its URL and the demo login.
+ *
+ * Flags: --speed N (×N real time for the dryer, ×4N for the reactor; default 60), --seed N, and
+ * every server configuration flag (see docs/configuration.md).
+ *
+ * Tideline advises; the site's validated control strategy, interlocks and procedures decide what a
+ * signal may do. The demo models are approved automatically and are not validated.
+ */
+import { randomUUID } from 'node:crypto';
+import { ConfigError, loadConfig, type ServerConfig } from '../server/config.ts';
+import { startServer, type TidelineServer } from '../server/app.ts';
+import { ensureDemoAdministrator } from '../server/auth/index.ts';
+import { registerModel } from '../server/models/model-service.ts';
+import { recordAudit } from '../server/api/audit-helper.ts';
+import { simulateBatch, simulateReferenceSet, FAULT_INFO, FAULT_TYPES, type FaultSpec, type SimulatedBatch } from '../simulators/batch.ts';
+import { AnalyzerClient } from '../simulators/stream-client.ts';
+import { buildMonitoringModel } from '../core/model/monitoring-model.ts';
+
+type Kind = 'dryer' | 'reactor';
+interface Line {
+  kind: Kind;
+  unit: string;
+  unitName: string;
+  analyzer: string;
+  product: string;
+  refSeed: number;
+  refCount: number;
+  speedFactor: number;
+}
+
+const LINES: Line[] = [
+  { kind: 'dryer', unit: 'dryer-1', unitName: 'Fluid-bed dryer 1', analyzer: 'nir-dryer-1', product: 'granule A', refSeed: 4201, refCount: 6, speedFactor: 1 },
+  { kind: 'reactor', unit: 'reactor-1', unitName: 'Batch reactor 1', analyzer: 'nir-reactor-1', product: 'ester B', refSeed: 4301, refCount: 6, speedFactor: 4 },
+];
+
+function parseArgs(argv: string[]): { speed: number; seed: number; flags: Record<string, string> } {
+  const flags: Record<string, string> = {};
+  for (let i = 0; i < argv.length; i++) {
+    const a = argv[i]!;
+    if (!a.startsWith('--')) throw new ConfigError(`unexpected argument "${a}"`);
+    const eq = a.indexOf('=');
+    const key = eq > 0 ? a.slice(2, eq) : a.slice(2);
+    const val = eq > 0 ? a.slice(eq + 1) : argv[++i];
+    if (val === undefined) throw new ConfigError(`flag --${key} needs a value`);
+    flags[key.replace(/-([a-z])/g, (_, c: string) => c.toUpperCase())] = val;
+  }
+  const speed = Number(flags.speed ?? 60);
+  const seed = Number(flags.seed ?? Date.now() % 100000);
+  delete flags.speed;
+  delete flags.seed;
+  if (!(speed > 0 && speed <= 10000)) throw new ConfigError(`--speed must be a number in (0, 10000], got "${speed}"`);
+  if (!Number.isInteger(seed) || seed < 0) throw new ConfigError(`--seed must be a non-negative integer`);
+  return { speed, seed, flags };
+}
+
+async function start(config: ServerConfig): Promise<TidelineServer> {
+  try {
+    return await startServer(config);
+  } catch (e) {
+    if ((e as NodeJS.ErrnoException).code === 'EADDRINUSE' && config.port !== 0) {
+      console.log(`  port ${config.port} is taken; using a free port instead`);
+      return startServer({ ...config, port: 0 });
+    }
+    throw e;
+  }
+}
+
+async function setUpLine(s: TidelineServer, line: Line, url: string, log: (l: string) => void): Promise<AnalyzerClient> {
+  const ctx = s.ctx;
+  if (!ctx.ingest.units.has(line.unit)) {
+    const row = { id: line.unit, name: line.unitName, kind: line.kind, description: `demo ${line.kind} (simulated)`, createdAt: ctx.now() };
+    await ctx.storage.createUnit(row);
+    ctx.ingest.addUnit(row);
+  }
+  if (!(await ctx.storage.getAnalyzer(line.analyzer))) await ctx.storage.createAnalyzer({ id: line.analyzer, name: `${line.kind} NIR probe`, createdAt: ctx.now() });
+  const { token } = ctx.auth!.createAnalyzerToken(line.analyzer, `demo ${new Date().toISOString()}`, 'demo');
+  const refs = simulateReferenceSet(line.kind, line.refCount, line.refSeed, { unit: line.unit, product: line.product });
+  const client = new AnalyzerClient({ url, token, analyzer: line.analyzer, axis: refs[0]!.axis, instrument: `simulated ${line.kind} NIR analyzer (demo)` });
+  await client.start();
+  if (!ctx.ingest.deploymentRef(line.unit)) {
+    log(`  first start: streaming ${refs.length} simulated reference batches for ${line.unit} …`);
+    const known = new Set(await ctx.storage.batchIds());
+    for (const b of refs) if (!known.has(b.id)) await client.sendBatch(b, { speed: 0, unit: line.unit, timestamps: 'original' });
+    log(`  building the ${line.kind} monitoring model from ${refs.length} reference batches …`);
+    const model = buildMonitoringModel(
+      refs.map((b) => ({ id: b.id, axis: b.axis, times: b.times, spectra: b.spectra, property: b.truth.property.values })),
+      {
+        name: `${line.kind}-${line.product.replace(/\s+/g, '-')}`, product: line.product, author: 'demo-setup', createdAt: ctx.now(),
+        property: { name: refs[0]!.truth.property.name, unit: refs[0]!.truth.property.unit, components: 'auto', target: refs[0]!.truth.property.target, direction: refs[0]!.truth.property.direction },
+      },
+    );
+    const row = await registerModel(ctx, model as never, { createdBy: 'demo-setup', referenceBatches: refs.map((b) => b.id) });
+    const reason = 'demo: approved automatically at first start; NOT a validated model';
+    await ctx.storage.approveModelVersion(row.id, 'demo-setup', ctx.now(), reason);
+    await recordAudit(ctx, { user: 'demo-setup', action: 'model.approve', object: `model:${row.name}@${row.version}`, after: { id: row.id, sha256: row.sha256 }, reason });
+    await ctx.storage.deploy({ id: randomUUID(), unit: line.unit, modelVersion: row.id, deployedAt: ctx.now(), deployedBy: 'demo-setup', reason: 'demo', endedAt: null });
+    await recordAudit(ctx, { user: 'demo-setup', action: 'model.deploy', object: `unit:${line.unit}`, after: { versionId: row.id }, reason: 'demo' });
+    await ctx.ingest.refreshDeployment(line.unit);
+    log(`  ${row.name} v${row.version} (${model.pca.nComponents} PCs, sha256 ${row.sha256.slice(0, 12)}…) deployed to ${line.unit}`);
+  }
+  return client;
+}
+
+/** Every 4th batch carries a fault that fits the process. */
+function nextBatch(line: Line, seed: number, k: number): SimulatedBatch {
+  const stamp = new Date().toISOString().slice(0, 16).replace(/[-:T]/g, '');
+  let faults: FaultSpec[] | undefined;
+  if (k % 4 === 3) {
+    const fitting = FAULT_TYPES.filter((f) => FAULT_INFO[f].kinds.includes(line.kind) && f !== 'dropout');
+    const type = fitting[(seed + k) % fitting.length]!;
+    faults = [{ type, onsetS: line.kind === 'dryer' ? 900 : 2400 }];
+  }
+  return simulateBatch(line.kind, { seed: seed * 100 + k, id: `${line.unit}-${stamp}-${String(k).padStart(3, '0')}`, unit: line.unit, product: line.product, faults });
+}
+
+let stopping = false;
+
+async function main() {
+  const { speed, seed, flags } = parseArgs(process.argv.slice(2));
+  const config = loadConfig({ env: process.env, flags });
+  console.log('Tideline demo — invented data from simulated analyzers.');
+  console.log("Tideline advises; the site's validated control strategy, interlocks and procedures decide what a signal may do.\n");
+  const s = await start(config);
+  const wsUrl = s.url.replace(/^http/, 'ws') + '/ingest';
+  const log = (l: string) => console.log(l);
+  const clients: AnalyzerClient[] = [];
+  const loops: Promise<void>[] = [];
+  const stop = async () => {
+    if (stopping) return;
+    stopping = true;
+    console.log('\nstopping …');
+    for (const c of clients) await c.close().catch(() => undefined);
+    await Promise.allSettled(loops);
+    await s.close();
+    console.log('stopped.');
+    process.exit(0);
+  };
+  process.once('SIGINT', () => void stop());
+  process.once('SIGTERM', () => void stop());
+
+  for (const line of LINES) clients.push(await setUpLine(s, line, wsUrl, log));
+  const admin = await ensureDemoAdministrator(s.ctx);
+  console.log(admin.notice);
+  console.log(`  Dashboard:  ${s.url}/`);
+  console.log(`  REST API:   ${s.url}/api/openapi.json    Metrics: ${s.url}/metrics`);
+  console.log(`  Streaming:  dryer ×${speed}, reactor ×${speed * 4} (every 4th batch has a fault). Ctrl-C stops.\n`);
+
+  LINES.forEach((line, i) => {
+    const client = clients[i]!;
+    loops.push(
+      (async () => {
+        for (let k = 0; !stopping; k++) {
+          const b = nextBatch(line, seed + i, k);
+          const fault = b.truth.faults.map((f) => f.type).join(', ');
+          log(`  ${line.unit}: batch ${b.id} (${b.spectra.length} spectra${fault ? `, fault: ${fault}` : ''})`);
+          try {
+            await client.sendBatch(b, { speed: speed * line.speedFactor, unit: line.unit });
+          } catch (e) {
+            if (stopping) return;
+            log(`  ${line.unit}: streaming stopped: ${(e as Error).message}`);
+            return;
+          }
+          await new Promise((r) => setTimeout(r, 3000));
+        }
+      })(),
+    );
+  });
+}
+
+main().catch((e) => {
+  if (stopping) return;
+  console.error(e instanceof ConfigError ? `demo: ${e.message}` : e);
+  process.exit(1);
+});
