@@ -5,28 +5,16 @@
  * the retained status goes offline through the last will and online again; the retained state
  * follows the last event.
  */
-import { spawn, spawnSync, type ChildProcess } from 'node:child_process';
-import { mkdtempSync, writeFileSync } from 'node:fs';
-import { createServer } from 'node:net';
+import { spawn } from 'node:child_process';
+import { mkdtempSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import mqtt from 'mqtt';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import { mosquittoPath, startMosquitto, type Broker } from './helpers/mosquitto.ts';
 import { openSignalDb } from './helpers/outbox-db.ts';
 
-const mosquittoPath = ['/usr/sbin/mosquitto', '/usr/bin/mosquitto'].find((p) => spawnSync('test', ['-x', p]).status === 0) ?? null;
 if (!mosquittoPath) console.warn('mqtt test skipped: mosquitto is not installed (apt-get install mosquitto)');
-
-function freePort(): Promise<number> {
-  return new Promise((resolve, reject) => {
-    const s = createServer();
-    s.once('error', reject);
-    s.listen(0, '127.0.0.1', () => {
-      const port = (s.address() as { port: number }).port;
-      s.close(() => resolve(port));
-    });
-  });
-}
 
 async function until(cond: () => boolean, what: string, ms = 30_000): Promise<void> {
   const end = Date.now() + ms;
@@ -39,36 +27,17 @@ async function until(cond: () => boolean, what: string, ms = 30_000): Promise<vo
 const FIXTURE = join(import.meta.dirname, 'fixtures/mqtt-batch-process.ts');
 
 describe.skipIf(!mosquittoPath)('MQTT channel against mosquitto', () => {
-  let broker: ChildProcess;
+  let broker: Broker;
   let url: string;
   const dir = mkdtempSync(join(tmpdir(), 'tideline-mqtt-'));
 
   beforeAll(async () => {
-    const port = await freePort();
-    const conf = join(dir, 'mosquitto.conf');
-    writeFileSync(conf, `listener ${port} 127.0.0.1\nallow_anonymous true\npersistence false\nlog_dest stderr\nlog_type error\n`);
-    broker = spawn(mosquittoPath!, ['-c', conf], { stdio: ['ignore', 'ignore', 'pipe'] });
-    url = `mqtt://127.0.0.1:${port}`;
-    // wait until the broker accepts a connection
-    await until(() => false === broker.killed, 'broker process');
-    const probe = await new Promise<boolean>((resolve) => {
-      const end = Date.now() + 10_000;
-      const attempt = () => {
-        const c = mqtt.connect(url, { reconnectPeriod: 0, connectTimeout: 1000 });
-        c.once('connect', () => c.end(true, () => resolve(true)));
-        c.once('error', () => {
-          c.end(true);
-          if (Date.now() > end) resolve(false);
-          else setTimeout(attempt, 100);
-        });
-      };
-      attempt();
-    });
-    expect(probe).toBe(true);
+    broker = await startMosquitto();
+    url = broker.url;
   });
 
   afterAll(() => {
-    broker?.kill('SIGTERM');
+    broker?.stop();
   });
 
   it('every event exactly once per id across a kill and restart mid-batch', async () => {
