@@ -27,11 +27,16 @@ function pathText(path: (string | number)[]): string {
   return s || '(root)';
 }
 
+function badNumber(path: (string | number)[], v: number): TypeError {
+  return new TypeError(`canonical JSON: ${pathText(path)} is ${v}; only finite numbers can be stored`);
+}
+
+/** `path` is a stack shared by the whole walk (pushed and popped), so nothing is allocated per element. */
 function canon(value: unknown, path: (string | number)[], seen: Set<object>): string | undefined {
   if (value === null) return 'null';
   switch (typeof value) {
     case 'number':
-      if (!Number.isFinite(value)) throw new TypeError(`canonical JSON: ${pathText(path)} is ${value}; only finite numbers can be stored`);
+      if (!Number.isFinite(value)) throw badNumber(path, value);
       return JSON.stringify(value);
     case 'string':
       return JSON.stringify(value);
@@ -58,14 +63,31 @@ function canon(value: unknown, path: (string | number)[], seen: Set<object>): st
   let out: string;
   if (Array.isArray(obj) || ArrayBuffer.isView(obj)) {
     const arr = obj as ArrayLike<unknown>;
-    const parts: string[] = new Array(arr.length);
-    for (let i = 0; i < arr.length; i++) parts[i] = canon(arr[i], [...path, i], seen) ?? 'null';
+    const n = arr.length;
+    const parts: string[] = new Array(n);
+    for (let i = 0; i < n; i++) {
+      const v = arr[i];
+      if (typeof v === 'number') {
+        // Fast path for numeric arrays: String(v) is JSON's number form (shortest round trip; −0 → "0").
+        if (v - v !== 0) {
+          path.push(i);
+          throw badNumber(path, v);
+        }
+        parts[i] = String(v);
+      } else {
+        path.push(i);
+        parts[i] = canon(v, path, seen) ?? 'null';
+        path.pop();
+      }
+    }
     out = `[${parts.join(',')}]`;
   } else {
     const keys = Object.keys(obj).sort();
     const parts: string[] = [];
     for (const k of keys) {
-      const v = canon((obj as Record<string, unknown>)[k], [...path, k], seen);
+      path.push(k);
+      const v = canon((obj as Record<string, unknown>)[k], path, seen);
+      path.pop();
       if (v !== undefined) parts.push(`${JSON.stringify(k)}:${v}`);
     }
     out = `{${parts.join(',')}}`;
@@ -90,19 +112,24 @@ export function sha256Hex(text: string): string {
   return bytesToHex(sha256(utf8ToBytes(text)));
 }
 
+/** The hashed text: canonical {body, format, version} (keys already in sorted order). */
+function hashedText(format: string, version: number, bodyJson: string): string {
+  return `{"body":${bodyJson},"format":${JSON.stringify(format)},"version":${version}}`;
+}
+
 function hashOf(format: string, version: number, body: unknown): string {
-  return sha256Hex(canonicalJson({ body, format, version }));
+  return sha256Hex(hashedText(format, version, canonicalJson(body)));
 }
 
 /** Serialize `{ body, format, sha256, version }` canonically; the hash covers body, format and version. */
 export function writeModelFile<T>(format: string, version: number, body: T): string {
   if (typeof format !== 'string' || format.length === 0) throw new TypeError('model file: format must be a non-empty string');
   if (!Number.isInteger(version) || version < 1) throw new TypeError(`model file: version must be a positive integer; got ${version}`);
+  // Canonical JSON is a fixed point of parse → canonicalize, so the reader, which hashes the
+  // canonical form of the body it parsed, hashes exactly this text (tested).
   const bodyJson = canonicalJson(body);
-  // Hash the canonical text of the parsed body, i.e. exactly what a reader will see.
-  const parsedBody: unknown = JSON.parse(bodyJson);
-  const sha = hashOf(format, version, parsedBody);
-  return canonicalJson({ body: parsedBody, format, sha256: sha, version });
+  const sha = sha256Hex(hashedText(format, version, bodyJson));
+  return `{"body":${bodyJson},"format":${JSON.stringify(format)},"sha256":"${sha}","version":${version}}`;
 }
 
 /**

@@ -28,11 +28,23 @@ describe('canonicalJson', () => {
   });
   it('refuses NaN, Infinity and cycles with the path', () => {
     expect(() => canonicalJson({ a: [1, NaN] })).toThrow(/a\[1\] is NaN/);
+    expect(() => canonicalJson({ a: [{ b: [0, { c: Float64Array.of(1, 2, -Infinity) }] }] })).toThrow(/a\[0\]\.b\[1\]\.c\[2\] is -Infinity/);
     expect(() => canonicalJson({ a: { b: Infinity } })).toThrow(/a\.b is Infinity/);
     const c: Record<string, unknown> = {};
     c.self = c;
     expect(() => canonicalJson(c)).toThrow(/cycle/);
   });
+  it('property: canonical JSON is a fixed point of parse → canonicalize, and the written file equals canonicalJson of its parse (fast-check)', () => {
+    fc.assert(
+      fc.property(fc.jsonValue(), (v) => {
+        const c = canonicalJson(v);
+        const file = writeModelFile('fx', 1, { v });
+        return canonicalJson(JSON.parse(c)) === c && canonicalJson(JSON.parse(file)) === file;
+      }),
+      { numRuns: 300, seed: 2 },
+    );
+  });
+
   it('property: parse(canonical(x)) round-trips every float64 exactly (fast-check)', () => {
     fc.assert(
       fc.property(fc.array(fc.double({ noNaN: true, noDefaultInfinity: true })), (xs) => {
