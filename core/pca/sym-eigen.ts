@@ -24,7 +24,59 @@ const FULL_DECOMPOSITION_BELOW = 160;
 export function topSymmetricEigen(G: Float64Array, d: number, k: number, seed = 1, tol = 1e-14): SymEigen {
   if (!Number.isInteger(k) || k < 1 || k > d) throw new RangeError(`asked for ${k} eigenpairs of a ${d} × ${d} matrix`);
   if (d <= FULL_DECOMPOSITION_BELOW || k > d / 3) return fullEigen(G, d, k);
-  return lanczosEigen(G, d, k, seed, tol);
+  const r = lanczosEigen((x, y) => symMatVec(G, d, x, y), d, k, seed, tol, frobenius(G));
+  // Guards, each falling back to the full decomposition (never needed on the test data):
+  // 1. the true residuals ‖Gv − λv‖ must be ≤ 1e-9·λ1;
+  // 2. single-vector Lanczos sees one copy of a repeated eigenvalue: run it again on G deflated by
+  //    the k pairs found, (I − VVᵀ)G(I − VVᵀ), from a fresh start; its largest eigenvalue must lie
+  //    below λ_k, or an eigenvalue was missed.
+  if (!trueResidualOk(G, d, k, r)) return fullEigen(G, d, k);
+  if (k < d) {
+    const V = r.vectors;
+    const proj = new Float64Array(k);
+    const deflate = (y: Float64Array): void => {
+      proj.fill(0);
+      for (let i = 0; i < d; i++) for (let c = 0; c < k; c++) proj[c] += V[i * k + c]! * y[i]!;
+      for (let i = 0; i < d; i++) for (let c = 0; c < k; c++) y[i] -= V[i * k + c]! * proj[c]!;
+    };
+    const xd = new Float64Array(d);
+    const rest = lanczosEigen(
+      (x, y) => {
+        xd.set(x);
+        deflate(xd);
+        symMatVec(G, d, xd, y);
+        deflate(y);
+      },
+      d - k,
+      1,
+      seed + 7919,
+      1e-10,
+      frobenius(G),
+      d,
+    );
+    if (rest.values[0]! > r.values[k - 1]! * (1 - 1e-9)) return fullEigen(G, d, k);
+  }
+  return r;
+}
+
+function frobenius(G: Float64Array): number {
+  let f = 0;
+  for (let i = 0; i < G.length; i++) f += G[i]! * G[i]!;
+  return Math.sqrt(f);
+}
+
+function trueResidualOk(G: Float64Array, d: number, k: number, r: SymEigen): boolean {
+  const v = new Float64Array(d);
+  const gv = new Float64Array(d);
+  const scale = Math.abs(r.values[0]!) || 1;
+  for (let c = 0; c < k; c++) {
+    for (let i = 0; i < d; i++) v[i] = r.vectors[i * k + c]!;
+    symMatVec(G, d, v, gv);
+    let s = 0;
+    for (let i = 0; i < d; i++) s += (gv[i]! - r.values[c]! * v[i]!) ** 2;
+    if (!(Math.sqrt(s) <= 1e-9 * scale)) return false;
+  }
+  return true;
 }
 
 function fullEigen(G: Float64Array, d: number, k: number): SymEigen {
@@ -95,33 +147,49 @@ function norm(w: Float64Array): number {
   return Math.sqrt(s);
 }
 
-function lanczosEigen(G: Float64Array, d: number, k: number, seed: number, tol: number): SymEigen {
+/**
+ * Lanczos on the operator `apply` (y = Op·x) of dimension d (its range), vectors of length `len`
+ * (= d, or the full length when Op is a deflated matrix whose range has dimension d < len).
+ */
+function lanczosEigen(
+  apply: (x: Float64Array, y: Float64Array) => void,
+  rangeDim: number,
+  k: number,
+  seed: number,
+  tol: number,
+  fro: number,
+  len = rangeDim,
+): SymEigen {
+  const d = len;
   const rng = createPrng(seed);
-  let capacity = Math.min(d, Math.max(4 * k + 40, 100));
+  let capacity = Math.min(rangeDim, Math.max(4 * k + 40, 100));
   let Q = new Float64Array(capacity * d);
   const alpha: number[] = [];
   const beta: number[] = [];
   const w = new Float64Array(d);
   const coef = new Float64Array(d);
   // Scale for "β is zero": the Frobenius norm bounds ‖G‖.
-  let fro = 0;
-  for (let i = 0; i < G.length; i++) fro += G[i]! * G[i]!;
-  fro = Math.sqrt(fro);
   if (fro === 0) return { values: new Float64Array(k), vectors: identityColumns(d, k), steps: 0 };
   const q0 = new Float64Array(d);
   randomUnit(d, rng, q0);
+  if (rangeDim < d) {
+    // deflated operator: start inside its range
+    apply(q0, w);
+    const nw = norm(w);
+    for (let t = 0; t < d; t++) q0[t] = w[t]! / nw;
+  }
   Q.set(q0, 0);
   let m = 1; // basis size
   for (;;) {
     const j = m - 1;
     const qj = Q.subarray(j * d, (j + 1) * d);
-    symMatVec(G, d, qj, w);
+    apply(qj, w);
     const a = dot(Q, j * d, w, d);
     alpha.push(a);
     reorthogonalize(Q, m, d, w, coef);
     let b = norm(w);
     const breakdown = b <= 1e-13 * fro;
-    const exhausted = m === d;
+    const exhausted = m === rangeDim;
     const check = exhausted || (m >= k + 2 && (m % 4 === 0 || breakdown));
     if (check && !breakdown) {
       const done = ritzConverged(alpha, beta, b, k, tol);
@@ -133,6 +201,10 @@ function lanczosEigen(G: Float64Array, d: number, k: number, seed: number, tol: 
       b = 0;
       for (let attempt = 0; ; attempt++) {
         randomUnit(d, rng, w);
+        if (rangeDim < d) {
+          const tmp = Float64Array.from(w);
+          apply(tmp, w);
+        }
         reorthogonalize(Q, m, d, w, coef);
         const nw = norm(w);
         if (nw > 1e-8) { for (let t = 0; t < d; t++) w[t]! /= nw; break; }
@@ -143,7 +215,7 @@ function lanczosEigen(G: Float64Array, d: number, k: number, seed: number, tol: 
     }
     beta.push(b);
     if (m === capacity) {
-      capacity = Math.min(d, capacity * 2);
+      capacity = Math.min(rangeDim, capacity * 2);
       const grown = new Float64Array(capacity * d);
       grown.set(Q);
       Q = grown;
