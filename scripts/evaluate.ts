@@ -2,7 +2,7 @@
  * `npm run evaluate` — build a monitoring model from a simulated reference set, judge fresh
  * simulated batches (other seeds): good ones and one set per fault type, and report the figures of
  * issue 4 (core/evaluate/evaluate-model.ts defines them). `-- --json FILE` also writes them as JSON.
- * Options: --kind dryer|reactor, --reference N, --good N, --per-fault N, --seed S.
+ * Options: --kind dryer|reactor, --reference N, --good N, --per-fault N, --seed S, --components A|auto.
  *
  * Tideline advises: the site's validated control strategy, interlocks and procedures decide what an
  * alarm or endpoint signal may do.
@@ -49,10 +49,10 @@ export function defaultSettings(kind: ProcessKind): Record<string, unknown> {
     author: 'evaluation',
     createdAt: Date.UTC(2026, 2, 1),
     chain: [{ step: 'scale', center: true, scaling: 'none' }],
-    components: 3,
+    components: 5,
     confidence: 0.99,
     progress: { kind: 'indicator', source: 'property' },
-    envelope: { k: 3, smoothing: 2, points: 100 },
+    envelope: { k: 3, smoothing: 2, points: 100, band: 'prediction' },
     alarms: { onDelay: 3, onWindow: 5, offDelay: 5, deadband: 0.05, limits: 'local', startupMin: 2 },
     property: prop,
     endpoint: { criteria: [{ kind: 'property' }], combine: 'all', confirm: 2, nearingMin: 10 },
@@ -93,7 +93,7 @@ export function runEvaluation(plan: EvaluationPlan): { model: MonitoringModel; f
 }
 
 function parseArgs(argv: string[]): { plan: EvaluationPlan; json: string | null } {
-  const plan: EvaluationPlan = { kind: 'dryer', reference: 20, good: 30, perFault: 8, seed: 2026 };
+  const plan: EvaluationPlan = { kind: 'dryer', reference: 30, good: 30, perFault: 8, seed: 2026 };
   let json: string | null = null;
   for (let i = 0; i < argv.length; i++) {
     const a = argv[i];
@@ -116,7 +116,8 @@ function parseArgs(argv: string[]): { plan: EvaluationPlan; json: string | null 
     else if (a === '--good') plan.good = int(a);
     else if (a === '--per-fault') plan.perFault = int(a);
     else if (a === '--seed') plan.seed = int(a);
-    else throw new Error(`unknown option "${a}" (known: --json FILE, --kind, --reference, --good, --per-fault, --seed)`);
+    else if (a === '--components') plan.settings = { ...(plan.settings ?? {}), components: v === 'auto' ? (i++, 'auto') : int(a) };
+    else throw new Error(`unknown option "${a}" (known: --json FILE, --kind, --reference, --good, --per-fault, --seed, --components)`);
   }
   return { plan, json };
 }

@@ -47,6 +47,8 @@ export interface Envelope {
   axis: ProgressAxis;
   /** Uniform progress grid: minutes or indicator values. */
   grid: number[];
+  /** Reference batches that passed through each grid point. */
+  count: number[];
   k: number;
   smoothing: number;
   nBatches: number;
@@ -67,7 +69,8 @@ export interface Envelope {
 function valueAtProgress(progress: ArrayLike<number>, values: ArrayLike<number>, g: number): number {
   const n = progress.length;
   if (n === 0) return NaN;
-  if (g <= progress[0]) return values[0];
+  if (g < progress[0]) return NaN; // the batch started beyond this point
+  if (g === progress[0]) return values[0];
   for (let i = 1; i < n; i++) {
     if (progress[i] >= g) {
       const p0 = progress[i - 1];
@@ -113,14 +116,16 @@ export function buildEnvelope(refs: ReferenceTrajectory[], axis: ProgressAxis, o
     if (r.scores.length !== A) throw new RangeError(`reference batch ${b} has ${r.scores.length} score series; batch 0 has ${A}`);
     if (r.progress.length === 0) throw new RangeError(`reference batch ${b} has no spectra`);
   }
-  // Grid: from the median starting progress to the median final progress.
-  const g0 = median(refs.map((r) => r.progress[0]));
-  const g1 = median(refs.map((r) => r.progress[r.progress.length - 1]));
+  // Grid: from the earliest starting progress to the furthest final progress; each point keeps the
+  // number of batches that passed through it (time axis: all batches start at 0).
+  const g0 = Math.min(...refs.map((r) => r.progress[0]));
+  const g1 = Math.max(...refs.map((r) => r.progress[r.progress.length - 1]));
   if (!(g1 > g0)) throw new RangeError(`reference batches show no progress (start ${g0}, end ${g1}); choose another progress variable`);
   const P = opts.points;
   const step = (g1 - g0) / (P - 1);
   const grid = Array.from({ length: P }, (_, k) => g0 + k * step);
 
+  const count = grid.map((g) => refs.filter((r) => Number.isFinite(valueAtProgress(r.progress, r.elapsedMin, g))).length);
   const pcs: PcEnvelope[] = [];
   for (let a = 0; a < A; a++) {
     const mean = new Array<number>(P);
@@ -134,10 +139,14 @@ export function buildEnvelope(refs: ReferenceTrajectory[], axis: ProgressAxis, o
     }
     const m = smoothSeries(mean, opts.smoothing);
     const s = smoothSeries(sd, opts.smoothing);
-    // Carry the last known value forward where no batch reached a point.
+    // Carry known values into points no batch (or only one) reached, from either side.
     for (let k = 1; k < P; k++) {
       if (!Number.isFinite(m[k])) m[k] = m[k - 1];
       if (!Number.isFinite(s[k])) s[k] = s[k - 1];
+    }
+    for (let k = P - 2; k >= 0; k--) {
+      if (!Number.isFinite(m[k])) m[k] = m[k + 1];
+      if (!Number.isFinite(s[k])) s[k] = s[k + 1];
     }
     pcs.push({ mean: m, sd: s, lower: m.map((v, k) => v - opts.k * s[k]), upper: m.map((v, k) => v + opts.k * s[k]) });
   }
@@ -192,6 +201,7 @@ export function buildEnvelope(refs: ReferenceTrajectory[], axis: ProgressAxis, o
   return {
     axis,
     grid,
+    count,
     k: opts.k,
     smoothing: opts.smoothing,
     nBatches: I,

@@ -16,7 +16,7 @@ export const buildSettingsSchema = z.object({
   components: z.union([z.number().int().min(1).max(50), z.literal('auto')]),
   confidence: z.number().gt(0.5).lt(1),
   progress: z.discriminatedUnion('kind', [z.object({ kind: z.literal('time') }), z.object({ kind: z.literal('indicator'), source: z.enum(['pc1', 'property']) })]),
-  envelope: z.object({ k: z.number().positive().max(10), smoothing: z.number().int().min(0).max(50), points: z.number().int().min(2).max(2000) }),
+  envelope: z.object({ k: z.number().positive().max(10), smoothing: z.number().int().min(0).max(50), points: z.number().int().min(2).max(2000), band: z.enum(['sd', 'prediction']).optional() }),
   endpoint: endpointRuleSpecSchema,
   alarms: z.object({ onDelay: z.number().int().min(1).max(31), onWindow: z.number().int().min(1).max(31), offDelay: z.number().int().min(1).max(1000), deadband: z.number().min(0).lt(1), limits: z.enum(['global', 'local']).optional(), startupMin: z.number().min(0).max(600).optional() }),
   property: z
@@ -43,7 +43,12 @@ export interface BuildSettings {
   components: number | 'auto';
   confidence: number;
   progress: { kind: 'time' } | { kind: 'indicator'; source: 'pc1' | 'property' };
-  envelope: { k: number; smoothing: number; points: number };
+  /**
+   * band 'sd' (default): mean ± k·sd. band 'prediction': k is replaced by the multiplier of a
+   * prediction interval for one new batch, t(1 − α/(2A); I − 1)·√(1 + 1/I), α = 1 − confidence,
+   * Bonferroni over the A PCs (simultaneous band; Nomikos & MacGregor 1995 for the per-point form).
+   */
+  envelope: { k: number; smoothing: number; points: number; band?: 'sd' | 'prediction' };
   endpoint: EndpointRuleSpec;
   /**
    * limits: which T²/Q limits raise alarms — the per-progress-point ones ('local', default) or the

@@ -8,6 +8,7 @@
  * moment-matched g·χ²_h over the reference spectra near each point (Nomikos & MacGregor 1995).
  */
 import { z } from 'zod';
+import tQuantile from '@stdlib/stats-base-dists-t-quantile';
 import { denseMatrix, matrixFromRows, type DenseMatrix } from '../linalg/dense-matrix.ts';
 import { fitChain, loadChain, type FittedChain } from '../preprocess/index.ts';
 import { fitPca, scoreRows } from '../pca/fit-pca.ts';
@@ -187,8 +188,12 @@ export function buildMonitoringModel(batches: ReferenceBatch[], settingsInput: u
     axis = { kind: 'indicator', source: settings.progress.source, sign: dir > 0 ? 1 : -1, alpha: 0.3 };
     trajectories.forEach((tr, bi) => { tr.progress = progressOf(axis, elapsed[bi], indicators[bi]); });
   }
+  const bandK =
+    settings.envelope.band === 'prediction'
+      ? tQuantile(1 - (1 - conf) / (2 * A), batches.length - 1) * Math.sqrt(1 + 1 / batches.length)
+      : settings.envelope.k;
   const envelope = buildEnvelope(trajectories, axis, {
-    k: settings.envelope.k,
+    k: bandK,
     smoothing: settings.envelope.smoothing,
     points: settings.envelope.points,
     confidence: conf,
@@ -293,6 +298,7 @@ const num = z.number().finite();
 const envelopeSchema = z.object({
   axis: z.object({ kind: z.enum(['time', 'indicator']), source: z.enum(['pc1', 'property']).optional(), sign: z.union([z.literal(1), z.literal(-1)]), alpha: z.number().gt(0).max(1) }),
   grid: z.array(num).min(2),
+  count: z.array(z.number().int().min(0)),
   k: z.number().positive(),
   smoothing: z.number().int().min(0),
   nBatches: z.number().int().min(2),
@@ -345,7 +351,7 @@ export function parseMonitoringModel(text: string): MonitoringModel {
   const P = env.grid.length;
   if (env.pcs.length !== A) throw new RangeError(`monitoring model: envelope has ${env.pcs.length} PCs, the PCA ${A}`);
   for (const [a, pc] of env.pcs.entries()) for (const key of ['mean', 'sd', 'lower', 'upper'] as const) if (pc[key].length !== P) throw new RangeError(`monitoring model: envelope.pcs.${a}.${key} has ${pc[key].length} points, the grid ${P}`);
-  if (env.t2Limit.length !== P || env.qLimit.length !== P) throw new RangeError('monitoring model: per-point limits do not match the envelope grid');
+  if (env.t2Limit.length !== P || env.qLimit.length !== P || env.count.length !== P) throw new RangeError('monitoring model: per-point limits do not match the envelope grid');
   if (chain.outputAxis.length !== pca.nVariables) throw new RangeError(`monitoring model: the chain gives ${chain.outputAxis.length} variables, the PCA expects ${pca.nVariables}`);
   const pls = body.pls !== undefined && body.pls !== null ? loadPropertyModel(body.pls) : undefined;
   return {

@@ -77,6 +77,8 @@ export function createBatchMonitor(model: MonitoringModel, batchStartT: number):
   // the progress axis and says nothing).
   const indicatorPc = env.axis.kind === 'indicator' && env.axis.source === 'pc1' ? 0 : -1;
   for (let a = 0; a < A; a++) if (a !== indicatorPc) conds.push({ kind: 'envelope', key: `pc${a + 1}`, label: `PC${a + 1}`, priority: 3, filter: new ConditionFilter(alarmSpec) });
+  // Envelope conditions are judged only where enough reference batches passed (common practice, no source).
+  const minBatches = Math.max(3, Math.ceil(env.nBatches / 3));
   const condPc = conds.map((c) => (c.kind === 'envelope' ? Number(c.key.slice(2)) - 1 : -1));
   const rule = model.endpoint;
   const endpoint = new EndpointTracker(rule);
@@ -137,6 +139,7 @@ export function createBatchMonitor(model: MonitoringModel, batchStartT: number):
       if (c === 0) { value = t2; limit = useLocal ? localT2 : t2Lim; }
       else if (c === 1) { value = q; limit = useLocal ? localQ : qLim; }
       else if (c < firstEnv) { value = combined; limit = cLim; }
+      else if (env.count[k] < minBatches) { value = 0; limit = env.k; } // too few golden batches here to judge
       else { value = Math.abs(envelope[condPc[c]].sd); limit = env.k; }
       const u = cd.filter.update(value, limit);
       if (u.suspect) suspect = true;
