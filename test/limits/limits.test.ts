@@ -105,6 +105,14 @@ print(json.dumps(out))`);
       expect(Math.abs(qLimitBox(th[0], th[1], c) / ref[i++]! - 1)).toBeLessThan(1e-9);
     }
   });
+  it('moment form matches g·χ²_h with scipy (ddof = 1) at test time', () => {
+    const q = [1.2, 0.8, 2.3, 1.1, 0.95, 1.6, 0.7, 1.9, 1.3, 1.05, 0.88, 1.44];
+    const ref = scipyValues(`
+q = np.array(${JSON.stringify(q)})
+m, v = q.mean(), q.var(ddof=1)
+print(json.dumps([v/(2*m) * stats.chi2.ppf(c, 2*m*m/v) for c in (0.95, 0.99, 0.999)]))`);
+    [0.95, 0.99, 0.999].forEach((c, i) => expect(Math.abs(qLimitBoxMoments(q, c) / ref[i]! - 1)).toBeLessThan(1e-9));
+  });
   it('JM refuses h0 ≤ 0 with a message naming Box as the way out', () => {
     // one dominant discarded eigenvalue and many tiny ones: θ1θ3 > 1.5θ2²
     const l = [10, ...Array(200).fill(0.5)];
