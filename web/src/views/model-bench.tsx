@@ -23,6 +23,11 @@ import { COMPARE_STYLES, STYLE } from '../theme/palette.ts';
 import type { SeriesStyle } from '../theme/palette.ts';
 import { href } from '../router.ts';
 
+/** Model names are ids: letters, digits and . _ : - only. */
+export function modelName(s: string): string {
+  return s.trim().replace(/[^A-Za-z0-9._:-]+/g, '-').slice(0, 128);
+}
+
 export function ModelBench({ version, me }: { version: string | null; me: Me | null }) {
   return (
     <section class="view bench">
@@ -107,7 +112,7 @@ function Builder({ me }: { me: Me | null }) {
     setBusy(true);
     try {
       const v = await api.build({
-        name: name || `${prod}-model`,
+        name: modelName(name || `${prod}-model`),
         product: prod,
         referenceBatches: chosen,
         settings: buildSettingsFromForm({ chain: chainResult.chain, components, confidence: conf }),

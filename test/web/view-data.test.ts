@@ -1,0 +1,144 @@
+import { describe, expect, it } from 'vitest';
+import type { BatchDetail, EvaluationResult, ModelEnvelopeView } from '../../core/api/rest.ts';
+import type { Contributions, MonitorResult } from '../../core/monitor/types.ts';
+import { departureWindow, firstExit, meanContributions, sampleSeqs, timeline } from '../../web/src/views/review-data.ts';
+import { ledgerQuery, summariseChange } from '../../web/src/views/ledger-data.ts';
+import { CHAIN_PRESETS, buildSettingsFromForm, spreadIndices, summariseEvaluation } from '../../web/src/views/bench-data.ts';
+import { availablePcs, goldenPath, progressLabel, referencePaths, scoreBand } from '../../web/src/views/watch-data.ts';
+import { contributionSeries, topRegions } from '../../web/src/views/contribution-data.ts';
+import { sortedByAxis } from '../../web/src/views/spectrum-data.ts';
+import { niceTicks } from '../../web/src/charts/scatter-svg.tsx';
+import { validateChainSpec } from '../../core/preprocess/index.ts';
+import { ENDPOINT_WORDS, alarmWords, limitStatus } from '../../web/src/format/status-words.ts';
+
+function r(seq: number, o: { out?: 'above' | 'below'; t2?: number; q?: number } = {}): MonitorResult {
+  return {
+    seq, t: seq * 60_000, elapsedMin: seq, progress: seq, progressFraction: 0, scores: [0, 0], t2: o.t2 ?? 1, q: o.q ?? 0.1, combined: 0,
+    limits: { t2: 10, q: 1, combined: 2, confidence: 0.99 }, localLimits: null,
+    envelope: [{ pc: 1, score: 0, expected: 0, lower: -1, upper: 1, status: o.out ?? 'inside', sd: o.out === 'above' ? 3.5 : o.out ? -3.5 : 0 }],
+    prediction: null, suspect: false, conditionChanges: [], activeConditions: [],
+    endpoint: { state: 'running', criteria: [], combine: 'all', confirmCount: 0, confirmNeeded: 3, etaMin: null, doneAt: null }, events: [],
+  };
+}
+
+describe('Review helpers', () => {
+  const rs = [r(0), r(1), r(2, { out: 'above' }), r(3, { t2: 12 }), r(4), r(5, { q: 2 }), r(6), r(7), r(8), r(9), r(10, { out: 'below' })];
+  it('finds the first exit and says what left', () => {
+    expect(firstExit(rs)?.result.seq).toBe(2);
+    expect(firstExit(rs)?.what).toBe('PC1 above the envelope (3.5 sd)');
+    expect(firstExit([r(0), r(1, { q: 5 })])?.what).toBe('Q above its limit');
+    expect(firstExit([r(0)])).toBeNull();
+  });
+  it('departure window runs to the last point out, bridging short returns inside', () => {
+    expect(departureWindow(rs, 0)).toEqual({ fromSeq: 2, toSeq: 3 });
+    expect(departureWindow(rs, 1)).toEqual({ fromSeq: 2, toSeq: 5 });
+    expect(departureWindow(rs, 3)).toEqual({ fromSeq: 2, toSeq: 5 });
+    expect(departureWindow(rs, 4)).toEqual({ fromSeq: 2, toSeq: 10 });
+    expect(departureWindow([r(0)])).toBeNull();
+  });
+  it('timeline orders start, first exit, alarms, endpoint and end by minutes from start', () => {
+    const b = { startedAt: 0, endedAt: 12 * 60_000, endReason: 'discharged', endpointEvents: [{ id: 'e', unit: 'u', batch: 'b', from: 'settling', to: 'done', t: 9 * 60_000, seq: 9, reason: 'x', recordedAt: 0 }] } as unknown as BatchDetail;
+    const alarms = [{ priority: 2, message: 'T² 12 > 10', raisedAt: 3.5 * 60_000, clearedAt: 4 * 60_000, key: 't2' }] as never;
+    const t = timeline(b, rs, alarms);
+    expect(t.map((e) => e.kind)).toEqual(['start', 'first-exit', 'alarm', 'alarm-cleared', 'endpoint', 'end']);
+    expect(t[5]!.label).toBe('batch end (discharged)');
+    expect(t[2]!.tMin).toBe(3.5);
+  });
+  it('averages contributions and their region sums; samples seqs in the window', () => {
+    const c = (k: number): Contributions => ({ axis: [1, 2], t2: [k, 2 * k], q: [k, 0], rbcT2: [0, 0], rbcQ: [k, k], regions: [{ name: 'O–H', from: 1, to: 2, assignment: 'water', t2: 3 * k, q: k }] });
+    const m = meanContributions([c(1), c(3)])!;
+    expect(m.t2).toEqual([2, 4]);
+    expect(m.regions[0]).toMatchObject({ t2: 6, q: 2 });
+    expect(meanContributions([])).toBeNull();
+    expect(sampleSeqs(rs, 2, 9, 3)).toEqual([2, 6, 9]);
+    expect(sampleSeqs(rs, 2, 3, 5)).toEqual([2, 3]);
+  });
+});
+
+describe('Ledger helpers', () => {
+  it('summarises only what changed', () => {
+    expect(summariseChange('{"status":"draft","v":1}', '{"status":"approved","v":1}')).toBe('status: draft → approved');
+    expect(summariseChange(null, '{"id":"m1","n":[1,2]}')).toBe('id: m1; n: [1,2]');
+    expect(summariseChange('"a"', null)).toBe('removed a');
+    expect(summariseChange(null, null)).toBe('');
+    expect(summariseChange(null, 'not json')).toBe('not json');
+  });
+  it('builds the audit query with ISO times and newest first', () => {
+    const q = ledgerQuery({ user: 'al', action: '', object: 'model:', from: '2026-12-02T10:00:00Z', to: '' }, 500);
+    expect(q).toEqual({ user: 'al', action: undefined, object: 'model:', from: '2026-12-02T10:00:00.000Z', to: undefined, limit: 500, order: 'desc' });
+  });
+});
+
+describe('Model bench helpers', () => {
+  it('every chain preset is a valid chain (core/preprocess validation)', () => {
+    for (const p of CHAIN_PRESETS) expect(validateChainSpec(p.chain)).toEqual(p.chain);
+  });
+  it('spreads preview indices from first to last', () => {
+    expect(spreadIndices(100, 5)).toEqual([0, 25, 50, 74, 99]);
+    expect(spreadIndices(3, 5)).toEqual([0, 1, 2]);
+    expect(spreadIndices(0, 5)).toEqual([]);
+  });
+  it('summarises an evaluation: false alarms on good batches, detection delay on faulty ones', () => {
+    const e = { batches: [
+      { batch: 'g1', spectra: 100, pointsOutside: 1, alarms: 0, firstAlarmAt: null, firstAlarmKind: null, endpointAt: 5, maxT2: 1, maxQ: 1 },
+      { batch: 'g2', spectra: 100, pointsOutside: 3, alarms: 1, firstAlarmAt: 10, firstAlarmKind: 'q', endpointAt: null, maxT2: 1, maxQ: 1 },
+      { batch: 'f1', spectra: 50, pointsOutside: 20, alarms: 2, firstAlarmAt: 10 * 60_000, firstAlarmKind: 't2', endpointAt: null, maxT2: 9, maxQ: 9 },
+    ] } as unknown as EvaluationResult;
+    const s = summariseEvaluation(e, new Set(['f1']), new Map([['f1', 0]]), new Map([['f1', 4 * 60_000]]));
+    expect(s.good).toEqual({ batches: 2, withAlarm: 1, falseAlarmRate: 0.5, pointsOutsideRate: 0.02 });
+    expect(s.faulty).toEqual({ batches: 1, detected: 1, meanDelayMin: 6 });
+    expect(s.endpoint).toEqual({ batches: 3, reached: 1 });
+  });
+  it('sends only chosen settings, with exclusions when any', () => {
+    expect(buildSettingsFromForm({ chain: [], components: 'auto', confidence: 0.99 })).toEqual({ chain: [], components: 'auto', confidence: 0.99 });
+    expect(buildSettingsFromForm({ chain: [], components: 2, confidence: 0.95, excludeSpectra: [{ batch: 'b', index: 3 }] }).excludeSpectra).toEqual([{ batch: 'b', index: 3 }]);
+  });
+});
+
+describe('Watch helpers', () => {
+  const env: ModelEnvelopeView = {
+    versionId: 'v', progressKind: 'time', progressUnit: 'min', progress: [0, 1, 2],
+    scores: [{ pc: 1, expected: [0, 1, 2], lower: [-1, 0, 1], upper: [1, 2, 3] }, { pc: 2, expected: [5, 5, 5], lower: [4, 4, 4], upper: [6, 6, 6] }],
+    local: null, limits: { t2: 1, q: 1, combined: null, confidence: 0.99 },
+    references: [{ batch: 'r1', progress: [0, 1, 2], scores: [[1, 2], [3, 4], [5, 6]] }, { batch: 'r2', progress: [0, 1], scores: [[1, 2], [3, 4]] }],
+  };
+  it('band, labels and PCs from the envelope view', () => {
+    expect(scoreBand(env, 2)).toEqual({ x: [0, 1, 2], mean: [5, 5, 5], lower: [4, 4, 4], upper: [6, 6, 6] });
+    expect(scoreBand(env, 3)).toBeNull();
+    expect(progressLabel(env)).toBe('elapsed time (min)');
+    expect(progressLabel({ progressKind: 'indicator', progressUnit: 'moisture % w/w' })).toBe('batch progress (moisture % w/w)');
+    expect(availablePcs(env, null)).toEqual([1, 2]);
+    expect(availablePcs(null, [1, 2, 3])).toEqual([1, 2, 3]);
+    expect(goldenPath(env, 1, 2)).toEqual([[0, 1, 2], [5, 5, 5]]);
+  });
+  it('reference paths read scores stored per point or per PC', () => {
+    // r1: 3 points × 2 PCs (per point); r2: 2 PCs × 2 points is ambiguous and read per PC.
+    expect(referencePaths(env, 1, 2)).toEqual([[[1, 3, 5], [2, 4, 6]], [[1, 2], [3, 4]]]);
+  });
+});
+
+describe('chart data helpers', () => {
+  it('sorts a descending wavelength axis and reorders series with it', () => {
+    expect(sortedByAxis([3, 2, 1], [[30, 20, 10]])).toEqual({ axis: [1, 2, 3], series: [[10, 20, 30]] });
+  });
+  it('contribution series ascend in wavelength; top regions by size', () => {
+    const c: Contributions = { axis: [1500, 1400], t2: [1, 2], q: [3, 4], rbcT2: [0, 0], rbcQ: [0, 0], regions: [
+      { name: 'a', from: 1, to: 2, assignment: '', t2: 1, q: -5 }, { name: 'b', from: 1, to: 2, assignment: '', t2: 3, q: 1 }] };
+    expect(contributionSeries(c, 'q')).toEqual([[1400, 1500], [4, 3]]);
+    expect(topRegions(c, 'q', 1)[0]!.name).toBe('a');
+    expect(topRegions(c, 't2', 1)[0]!.name).toBe('b');
+  });
+  it('nice ticks are round numbers covering the range', () => {
+    expect(niceTicks(0, 10)).toEqual([0, 2, 4, 6, 8, 10]);
+    expect(niceTicks(0, 0.37)).toEqual([0, 0.1, 0.2, 0.3]);
+  });
+  it('status words carry text, not only colour', () => {
+    expect(ENDPOINT_WORDS.settling.text).toBe('settling');
+    expect(limitStatus(11, 10)).toEqual({ text: 'above limit', tone: 'alarm' });
+    expect(limitStatus(9, 10).text).toBe('near limit');
+    expect(limitStatus(null, 10).text).toBe('no data');
+    const a = { state: 'active-unacknowledged', shelvedUntil: 100 } as never;
+    expect(alarmWords(a, 50).text).toBe('shelved');
+    expect(alarmWords(a, 150).text).toBe('active, not acknowledged');
+  });
+});
