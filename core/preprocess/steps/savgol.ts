@@ -32,7 +32,13 @@ export function compileSavgol(index: number, window: number, polyorder: number, 
   const all = savgolAllPositions(w, polyorder, deriv);
   const scale = 1 / step ** deriv;
   for (let k = 0; k < all.length; k++) all[k]! *= scale;
-  const centre = all.slice(half * w, (half + 1) * w);
+  // The centred filter is symmetric for even derivatives and antisymmetric for odd ones:
+  // fold it, so each output costs half + 1 multiplications instead of window.
+  const c0 = all[half * w + half]!;
+  const sign = deriv % 2 === 0 ? 1 : -1;
+  const fold = new Float64Array(half + 1);
+  for (let k = 1; k <= half; k++) fold[k] = (all[half * w + half + k]! + sign * all[half * w + half - k]!) / 2;
+  const odd = sign < 0;
   const tailStart = n - w; // first index of the last window
   return {
     inLength: n,
@@ -48,11 +54,18 @@ export function compileSavgol(index: number, window: number, polyorder: number, 
         dst[i] = acc;
       }
       const end = n - half;
-      for (let i = half; i < end; i++) {
-        const base = i - half;
-        let acc = 0;
-        for (let j = 0; j < w; j++) acc += centre[j]! * src[base + j]!;
-        dst[i] = acc;
+      if (odd) {
+        for (let i = half; i < end; i++) {
+          let acc = 0;
+          for (let k = 1; k <= half; k++) acc += fold[k]! * (src[i + k]! - src[i - k]!);
+          dst[i] = acc;
+        }
+      } else {
+        for (let i = half; i < end; i++) {
+          let acc = c0 * src[i]!;
+          for (let k = 1; k <= half; k++) acc += fold[k]! * (src[i + k]! + src[i - k]!);
+          dst[i] = acc;
+        }
       }
       // Right edge: polynomial of the last window, evaluated at positions half+1…w−1.
       for (let i = Math.max(end, half); i < n; i++) {
