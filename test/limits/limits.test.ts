@@ -13,7 +13,37 @@ import {
   t2LimitChi2,
   t2LimitNew,
 } from '../../core/limits/index.ts';
-import { scipyValues } from './scipy.ts';
+import { scipyNamed } from './scipy.ts';
+
+const MOMENT_Q = [1.2, 0.8, 2.3, 1.1, 0.95, 1.6, 0.7, 1.9, 1.3, 1.05, 0.88, 1.44];
+// All scipy reference values of this file, computed in one python3 process at test time.
+const REF = scipyNamed({
+  t2: `
+A, n = 7, 45
+out = []
+for c in (0.95, 0.99, 0.999):
+    out.append(A*(n-1)*(n+1)/(n*(n-A)) * stats.f.ppf(c, A, n-A))
+    out.append((n-1)**2/n * stats.beta.ppf(c, A/2, (n-A-1)/2))
+print(json.dumps(out))`,
+  jmbox: `
+lam = np.array([2.1, 1.3, 0.9, 0.4, 0.33, 0.2, 0.07, 0.01])
+t1, t2, t3 = (lam**1).sum(), (lam**2).sum(), (lam**3).sum()
+h0 = 1 - 2*t1*t3/(3*t2**2)
+out = []
+for c in (0.95, 0.99, 0.999):
+    z = stats.norm.ppf(c)
+    out.append(t1*(z*np.sqrt(2*t2*h0**2)/t1 + 1 + t2*h0*(h0-1)/t1**2)**(1/h0))
+    out.append(t2/t1 * stats.chi2.ppf(c, t1**2/t2))
+print(json.dumps(out))`,
+  moments: `
+q = np.array(${JSON.stringify(MOMENT_Q)})
+m, v = q.mean(), q.var(ddof=1)
+print(json.dumps([v/(2*m) * stats.chi2.ppf(c, 2*m*m/v) for c in (0.95, 0.99, 0.999)]))`,
+  combined: `
+A, t1, t2, tau2, d2 = 4, 3.1, 1.7, 11.0, 6.5
+num = A/tau2**2 + t2/d2**2; den = A/tau2 + t1/d2
+print(json.dumps([num/den * stats.chi2.ppf(0.99, den**2/num)]))`,
+});
 
 const close = (a: number, b: number, tol: number): void => expect(Math.abs(a - b)).toBeLessThanOrEqual(tol);
 
@@ -32,13 +62,7 @@ describe('Hotelling T² limits', () => {
     close(t2LimitChi2(A, c), chi2, 5e-5);
   });
   it('matches scipy at test time to 1e-9 relative', () => {
-    const ref = scipyValues(`
-A, n = 7, 45
-out = []
-for c in (0.95, 0.99, 0.999):
-    out.append(A*(n-1)*(n+1)/(n*(n-A)) * stats.f.ppf(c, A, n-A))
-    out.append((n-1)**2/n * stats.beta.ppf(c, A/2, (n-A-1)/2))
-print(json.dumps(out))`);
+    const ref = REF.t2!;
     let i = 0;
     for (const c of [0.95, 0.99, 0.999]) {
       expect(Math.abs(t2LimitNew(7, 45, c) / ref[i++]! - 1)).toBeLessThan(1e-9);
@@ -87,16 +111,7 @@ describe('Q limits', () => {
     close(qLimitBoxMoments(q, 0.99), 1.00271, 5e-7);
   });
   it('JM and Box match the same formulas evaluated with scipy at test time', () => {
-    const ref = scipyValues(`
-lam = np.array([2.1, 1.3, 0.9, 0.4, 0.33, 0.2, 0.07, 0.01])
-t1, t2, t3 = (lam**1).sum(), (lam**2).sum(), (lam**3).sum()
-h0 = 1 - 2*t1*t3/(3*t2**2)
-out = []
-for c in (0.95, 0.99, 0.999):
-    z = stats.norm.ppf(c)
-    out.append(t1*(z*np.sqrt(2*t2*h0**2)/t1 + 1 + t2*h0*(h0-1)/t1**2)**(1/h0))
-    out.append(t2/t1 * stats.chi2.ppf(c, t1**2/t2))
-print(json.dumps(out))`);
+    const ref = REF.jmbox!;
     const l = [2.1, 1.3, 0.9, 0.4, 0.33, 0.2, 0.07, 0.01];
     const th = [1, 2, 3].map((k) => l.reduce((s, v) => s + v ** k, 0)) as [number, number, number];
     let i = 0;
@@ -106,11 +121,8 @@ print(json.dumps(out))`);
     }
   });
   it('moment form matches g·χ²_h with scipy (ddof = 1) at test time', () => {
-    const q = [1.2, 0.8, 2.3, 1.1, 0.95, 1.6, 0.7, 1.9, 1.3, 1.05, 0.88, 1.44];
-    const ref = scipyValues(`
-q = np.array(${JSON.stringify(q)})
-m, v = q.mean(), q.var(ddof=1)
-print(json.dumps([v/(2*m) * stats.chi2.ppf(c, 2*m*m/v) for c in (0.95, 0.99, 0.999)]))`);
+    const q = MOMENT_Q;
+    const ref = REF.moments!;
     [0.95, 0.99, 0.999].forEach((c, i) => expect(Math.abs(qLimitBoxMoments(q, c) / ref[i]! - 1)).toBeLessThan(1e-9));
   });
   it('JM refuses h0 ≤ 0 with a message naming Box as the way out', () => {
@@ -142,10 +154,7 @@ describe('combined index (Yue & Qin 2001)', () => {
     close(combinedIndexLimit(3, theta, tau2, delta2, 0.95), 1.603, 5e-4);
   });
   it('matches the formula evaluated with scipy at test time', () => {
-    const ref = scipyValues(`
-A, t1, t2, tau2, d2 = 4, 3.1, 1.7, 11.0, 6.5
-num = A/tau2**2 + t2/d2**2; den = A/tau2 + t1/d2
-print(json.dumps([num/den * stats.chi2.ppf(0.99, den**2/num)]))`);
+    const ref = REF.combined!;
     expect(Math.abs(combinedIndexLimit(4, [3.1, 1.7, 1], 11, 6.5, 0.99) / ref[0]! - 1)).toBeLessThan(1e-9);
   });
 });
