@@ -19,9 +19,9 @@ export const mscStepSchema = z.strictObject({ step: z.literal('msc') });
 export const detrendStepSchema = z.strictObject({ step: z.literal('detrend'), order: z.number().int().min(0).max(10) });
 export const savgolStepSchema = z.strictObject({
   step: z.literal('savgol'),
-  window: z.number().int().min(1),
+  window: z.number().int().min(1).max(1001),
   polyorder: z.number().int().min(0),
-  deriv: z.union([z.literal(0), z.literal(1), z.literal(2)]),
+  deriv: z.union([z.literal(0), z.literal(1), z.literal(2)], { error: 'must be 0 (smoothing), 1 or 2 (derivative order)' }),
 });
 export const scaleStepSchema = z.strictObject({
   step: z.literal('scale'),
@@ -96,7 +96,7 @@ export function validateStepSpec(value: unknown, i: number): StepSpec {
   }
   const name = (value as { step?: unknown }).step;
   if (typeof name !== 'string' || !(name in schemaByStep)) {
-    throw new PreprocessSpecError(i, String(name), 'step', `unknown step; known steps: ${STEP_NAMES.join(', ')}`);
+    throw new PreprocessSpecError(i, name === undefined ? 'missing' : String(name), 'step', `unknown step; known steps: ${STEP_NAMES.join(', ')}`);
   }
   const schema = schemaByStep[name as keyof typeof schemaByStep];
   const r = schema.safeParse(value);

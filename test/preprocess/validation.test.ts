@@ -20,7 +20,7 @@ describe('chain spec validation names step index, step and parameter', () => {
     [[{ step: 'snv' }, { step: 'savgol', window: 8, polyorder: 2, deriv: 1 }], 1, 'savgol', 'window', /must be odd; got 8/],
     [[{ step: 'savgol', window: 7, polyorder: 7, deriv: 0 }], 0, 'savgol', 'polyorder', /below window \(7\)/],
     [[{ step: 'savgol', window: 7, polyorder: 1, deriv: 2 }], 0, 'savgol', 'deriv', /polyorder ≥ 2/],
-    [[{ step: 'savgol', window: 7, polyorder: 2, deriv: 3 }], 0, 'savgol', 'deriv', /./],
+    [[{ step: 'savgol', window: 7, polyorder: 2, deriv: 3 }], 0, 'savgol', 'deriv', /must be 0 \(smoothing\), 1 or 2/],
     [[{ step: 'snv' }, { step: 'smooth' }], 1, 'smooth', 'step', /unknown step; known steps: select, exclude/],
     [[{ step: 'select', ranges: [[1000, 1050], [1040, 1080]] }], 0, 'select', 'ranges', /range 1 \[1040, 1080\] overlaps range 0/],
     [[{ step: 'exclude', ranges: [[1050, 1050]] }], 0, 'exclude', 'ranges', /empty/],
@@ -28,6 +28,9 @@ describe('chain spec validation names step index, step and parameter', () => {
     [[{ step: 'detrend', order: 1.5 }], 0, 'detrend', 'order', /./],
     [[{ step: 'scale', center: true, scaling: 'log' }], 0, 'scale', 'scaling', /./],
     [[{ step: 'snv', window: 3 }], 0, 'snv', 'window', /not a parameter of snv/],
+    [[{ step: 'savgol', window: 1003, polyorder: 2, deriv: 0 }], 0, 'savgol', 'window', /1001/],
+    [[{ window: 5 }], 0, 'missing', 'step', /unknown step/],
+    [[{ step: 'savgol', window: '7', polyorder: 2, deriv: 0 }], 0, 'savgol', 'window', /number/],
     [[{ step: 'resample', axis: [1000, 1000, 1010] }], 0, 'resample', 'axis', /increase strictly/],
   ])('%j → steps[%i] (%s) %s', (spec, index, step, parameter, detail) => {
     const e = refusal(() => validateChainSpec(spec));
