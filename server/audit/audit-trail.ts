@@ -79,7 +79,7 @@ export class SqliteAuditTrail implements AuditTrail {
   private readonly insertStmt;
   private readonly headStmt;
   private readonly readHeadStmt;
-  private readonly append: (e: AuditEntry) => AuditRecord;
+  private readonly append: Database.Transaction<(e: AuditEntry) => AuditRecord>;
 
   constructor(
     readonly db: Database.Database,
@@ -98,7 +98,9 @@ export class SqliteAuditTrail implements AuditTrail {
   }
 
   record(entry: AuditEntry): AuditRecord {
-    return this.append(entry);
+    // On its own: BEGIN IMMEDIATE, so a second process (the CLI beside the server) waits for the
+    // write lock instead of reading the same chain head. Inside the caller's transaction: a savepoint.
+    return this.db.inTransaction ? this.append(entry) : this.append.immediate(entry);
   }
 
   private appendInTx(e: AuditEntry): AuditRecord {

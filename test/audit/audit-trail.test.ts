@@ -181,3 +181,35 @@ describe('canonical JSON', () => {
     expect(canonicalJson({ a: undefined, b: NaN })).toBe('{"b":null}');
   });
 });
+
+describe('two writers on one database file', () => {
+  it('two processes appending at once keep one unbroken chain', async () => {
+    const { spawn } = await import('node:child_process');
+    const { db, file } = openTestDb();
+    const helper = new URL('./helpers/write-records.ts', import.meta.url).pathname;
+    const tsx = new URL('../../node_modules/.bin/tsx', import.meta.url).pathname;
+    const writers = ['a', 'b'].map((who) => {
+      const p = spawn(tsx, [helper, file, who, '300'], { stdio: ['pipe', 'pipe', 'pipe'] });
+      let err = '';
+      p.stderr.on('data', (c) => (err += c));
+      const ready = new Promise<void>((resolve, reject) => {
+        p.stdout.on('data', (c) => String(c).includes('ready') && resolve());
+        p.on('exit', (code) => reject(new Error(`writer ${who} exited ${code} before ready: ${err}`)));
+      });
+      const done = new Promise<void>((resolve, reject) =>
+        p.on('exit', (code) => (code === 0 ? resolve() : reject(new Error(`writer ${who} exited ${code}: ${err}`)))),
+      );
+      return { p, ready, done };
+    });
+    await Promise.all(writers.map((w) => w.ready));
+    for (const w of writers) w.p.stdin.write('go\n');
+    await Promise.all(writers.map((w) => w.done));
+    const trail = new SqliteAuditTrail(db);
+    expect(trail.verify()).toMatchObject({ ok: true, count: 600 });
+    expect(trail.list({ user: 'a', limit: 1000 })).toHaveLength(300);
+    expect(trail.list({ user: 'b', limit: 1000 })).toHaveLength(300);
+    const users = trail.list({ limit: 1000 }).map((r) => r.user);
+    const switches = users.filter((u, i) => i > 0 && u !== users[i - 1]).length;
+    expect(switches).toBeGreaterThan(10); // the writers really did interleave
+  });
+});
