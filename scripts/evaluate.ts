@@ -42,7 +42,7 @@ export function defaultSettings(kind: ProcessKind): Record<string, unknown> {
   const prop =
     kind === 'dryer'
       ? { name: 'moisture', unit: '% w/w', components: 'auto', target: 2, direction: 'below', chain: propChain, range: [0, 4] }
-      : { name: 'conversion', unit: '%', components: 'auto', target: 95, direction: 'above', chain: propChain, range: [85, 100] };
+      : { name: 'conversion', unit: '%', components: 'auto', target: 99, direction: 'above', chain: propChain, range: [93, 100] };
   return {
     name: `${kind} evaluation`,
     product: `${kind} demo product`,

@@ -1,7 +1,8 @@
 /**
  * Settings of a monitoring-model build, validated with zod; omitted fields take the defaults below
  * (the server passes what the model owner chose). Defaults are common practice, not from a source:
- * 99 % limits, envelope mean ± 3 sd, alarms on 3 of 5 points out and off after 5 points back in.
+ * 99 % limits, envelope mean ± 3 sd, alarms on 3 of 5 points out and off after 5 points back in,
+ * judged against the per-progress-point limits, none in the first 2 minutes of a batch.
  */
 import { z } from 'zod';
 import { chainSpecSchema, type ChainSpec } from '../preprocess/index.ts';
@@ -68,7 +69,7 @@ export const DEFAULT_SETTINGS: Omit<BuildSettings, 'name' | 'product' | 'author'
   confidence: 0.99,
   progress: { kind: 'time' },
   envelope: { k: 3, smoothing: 2, points: 100 },
-  alarms: { onDelay: 3, onWindow: 5, offDelay: 5, deadband: 0.05 },
+  alarms: { onDelay: 3, onWindow: 5, offDelay: 5, deadband: 0.05, limits: 'local', startupMin: 2 },
 };
 
 /** Fill defaults and validate; throws naming the first bad field. */
@@ -81,7 +82,11 @@ export function resolveBuildSettings(input: unknown): BuildSettings {
     (property?.target !== undefined
       ? { criteria: [{ kind: 'property' }], combine: 'all', confirm: 3, nearingMin: 10 }
       : { criteria: [{ kind: 'mbsd', block: 5, threshold: 'auto' }], combine: 'all', confirm: 3, nearingMin: 10 });
-  const merged = { ...DEFAULT_SETTINGS, ...Object.fromEntries(Object.entries(i).filter(([, v]) => v !== undefined)), endpoint };
+  const given = Object.fromEntries(Object.entries(i).filter(([, v]) => v !== undefined));
+  const merged = { ...DEFAULT_SETTINGS, ...given, endpoint };
+  // Nested groups: given fields over the defaults.
+  if (typeof i.alarms === 'object' && i.alarms !== null) merged.alarms = { ...DEFAULT_SETTINGS.alarms, ...(i.alarms as object) };
+  if (typeof i.envelope === 'object' && i.envelope !== null) merged.envelope = { ...DEFAULT_SETTINGS.envelope, ...(i.envelope as object) };
   const r = buildSettingsSchema.safeParse(merged);
   if (!r.success) {
     const issue = r.error.issues[0]!;
@@ -96,4 +101,14 @@ export function resolveBuildSettings(input: unknown): BuildSettings {
     if (c.kind === 'plateau' && typeof s.components === 'number' && c.pc > s.components) throw new RangeError(`build settings: plateau criterion uses PC${c.pc} but the model has ${s.components} components`);
   }
   return s;
+}
+
+/** Settings as stored in a model file: validated as they are, without filling defaults (a stored model must not change meaning when defaults change). */
+export function parseStoredSettings(input: unknown): BuildSettings {
+  const r = buildSettingsSchema.safeParse(input);
+  if (!r.success) {
+    const issue = r.error.issues[0]!;
+    throw new RangeError(`monitoring model: settings.${issue.path.join('.')}: ${issue.message}`);
+  }
+  return r.data as BuildSettings;
 }

@@ -21,7 +21,7 @@ import { progressOf, type ProgressAxis } from '../envelope/progress.ts';
 import { movingBlockSd } from '../envelope/mbsd.ts';
 import type { ResolvedCriterion, ResolvedEndpointRule } from '../endpoint/spec.ts';
 import { readModelFile, writeModelFile } from './model-file.ts';
-import { resolveBuildSettings, type BuildSettings } from './build-settings.ts';
+import { parseStoredSettings, resolveBuildSettings, type BuildSettings } from './build-settings.ts';
 import { fitPropertyModel, loadPropertyModel, type PropertyModel } from './property-model.ts';
 import { plateauSlope } from '../endpoint/plateau.ts';
 
@@ -343,7 +343,7 @@ export function serializeMonitoringModel(m: MonitoringModel): string {
 
 export function parseMonitoringModel(text: string): MonitoringModel {
   const { body, sha256 } = readModelFile<Body>(text, MONITORING_MODEL_FORMAT, [MONITORING_MODEL_VERSION], bodySchema as unknown as z.ZodType<Body>);
-  const settings = resolveBuildSettings(body.settings);
+  const settings = parseStoredSettings(body.settings);
   const chain = loadChain(body.chain);
   const pca = pcaFromJSON(body.pca);
   const env = body.envelope as Envelope;

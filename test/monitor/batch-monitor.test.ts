@@ -4,6 +4,7 @@ import { buildMonitoringModel, calibrationDiagnostics, parseMonitoringModel, ser
 import { createBatchMonitor, replayBatch } from '../../core/monitor/batch-monitor.ts';
 import { compareBatch } from '../../core/compare/compare-batch.ts';
 import type { MonitorResult } from '../../core/monitor/types.ts';
+import { execFileSync } from 'node:child_process';
 
 const settings = {
   name: 'test dryer model',
@@ -55,6 +56,21 @@ describe('monitoring model file', () => {
     const foreign = JSON.parse(text);
     foreign.format = 'something-else';
     expect(() => parseMonitoringModel(JSON.stringify(foreign))).toThrow(/format/i);
+  });
+  it('builds from minimal settings with the defaults (no property: MBSD endpoint, auto threshold)', () => {
+    const m = buildMonitoringModel(ref.map((b) => ({ id: b.id, axis: b.axis, times: b.times, spectra: b.spectra })), { name: 'n', product: 'p', author: 'a', createdAt: 0, alarms: { onDelay: 2 } });
+    expect(m.pca.nComponents).toBe(3);
+    expect(m.settings.alarms).toEqual({ onDelay: 2, onWindow: 5, offDelay: 5, deadband: 0.05, limits: 'local', startupMin: 2 });
+    expect(m.endpoint.criteria[0]).toMatchObject({ kind: 'mbsd', block: 5 });
+    expect(m.pls).toBeUndefined();
+    const r = run(m, good);
+    expect(r.some((x) => x.endpoint.state === 'done')).toBe(true);
+    expect(r[0].prediction).toBeNull();
+  });
+  it("the 'prediction' band uses t(1 − α/(2A); I − 1)·√(1 + 1/I) (t from scipy at test time)", () => {
+    const m = buildMonitoringModel(ref.map((b) => ({ id: b.id, axis: b.axis, times: b.times, spectra: b.spectra, property: b.truth.property.values })), { ...settings, envelope: { k: 3, smoothing: 2, points: 60, band: 'prediction' } });
+    const want = Number(execFileSync('python3', ['-c', 'from scipy.stats import t; import math; print(float(t.ppf(1 - 0.01 / 6, 5) * math.sqrt(1 + 1 / 6)))']).toString());
+    expect(m.envelope.k).toBeCloseTo(want, 8);
   });
   it('names bad build input', () => {
     const rb = ref.map((b) => ({ id: b.id, axis: b.axis, times: b.times, spectra: b.spectra, property: b.truth.property.values }));
