@@ -73,7 +73,9 @@ export async function startServer(config: ServerConfig, opts: StartOptions = {})
   }
   await pipeline.start();
 
-  api.use(express.json({ limit: '1mb' }));
+  // JSON bodies up to 1 MB; file imports (POST /api/import, server/transfer) parse their own larger bodies.
+  const json = express.json({ limit: '1mb' });
+  api.use((req, res, next) => (req.path === '/import' ? next() : json(req, res, next)));
   installAuth(ctx);
   for (const part of ['signals', 'transfer']) {
     const file = join(here, part, 'index.ts');

@@ -7,6 +7,7 @@
  *   migrate                       apply storage migrations and exit
  *   config                        print the effective configuration
  *   (security commands: user …, token …, audit … — see docs/security.md)
+ *   import … | export …           historical batches in and out (server/transfer/cli.ts)
  *
  * Flags set configuration values by name: --port 0 --data-dir ./data --ingest.stale-after-ms 5000
  * --config tideline.json. Run with --help for this text.
@@ -26,6 +27,9 @@ commands:
   migrate                            apply storage migrations and exit
   config                             print the effective configuration
   user … | token … | audit …         access control and audit trail (docs/security.md)
+  import --unit U --product P FILE|DIR …  import historical batches, CSV or JCAMP-DX, in one transaction
+         [--delimiter , | ; | tab] [--decimal . | ,] [--axis-unit nm|cm-1] [--by NAME]
+  export BATCH --format csv|jcamp [--out FILE]  a batch's raw spectra (reports: GET /api/batches/ID/report.pdf)
 
 configuration flags (override file and environment):
   --config FILE  --host H  --port P (0 = free port)  --data-dir DIR  --web-dir DIR|none
@@ -74,6 +78,19 @@ async function main(argv: string[]): Promise<number> {
     const storage = new SqliteStorage({ file: join(config.dataDir, 'tideline.db') });
     try {
       return await sec.runSecurityCli(rest, { db: storage.db, config });
+    } finally {
+      await storage.close();
+    }
+  }
+  if (cmd === 'import' || cmd === 'export') {
+    const { positional, flags } = parseFlags(argv.slice(1));
+    const own: Record<string, string> = {};
+    for (const k of ['config', 'data-dir']) if (k in flags) ((own[k === 'config' ? 'config' : 'dataDir'] = flags[k]!), delete flags[k]);
+    const config = loadConfig({ env: process.env, flags: own });
+    const storage = new SqliteStorage({ file: join(config.dataDir, 'tideline.db') });
+    try {
+      const { runTransferCli } = await import('./transfer/cli.ts');
+      return await runTransferCli(cmd, positional, flags, storage, (s) => process.stdout.write(s));
     } finally {
       await storage.close();
     }

@@ -11,7 +11,9 @@
  * non-monotone axis or one in the wrong unit is refused with the file name, line and reason.
  *
  * Time columns: `time_ms` (ms since the Unix epoch), `time_s` / `time` / `seconds` (seconds),
- * `time_min` / `minutes`, or `timestamp` (ISO 8601). Relative times are placed after `origin`.
+ * `time_min` / `minutes`, or `timestamp` / `time_utc` (ISO 8601); with several, the most precise
+ * wins. Relative times are placed after `origin`. Columns `seq` and `index` are read past; any other
+ * named column must hold numbers and is kept as a per-spectrum property (e.g. laboratory moisture).
  */
 import { ImportError, normalizeAxis, wavenumberToNm, type ImportedBatch } from './imported-batch.ts';
 
@@ -42,7 +44,11 @@ const TIME_COLUMNS: Record<string, TimeKind> = {
   datetime: 'iso',
   time_utc: 'iso',
 };
+/** When a file has several time columns, the most precise is used: ms, then ISO, then s, then min. */
+const TIME_PRECEDENCE: TimeKind[] = ['ms', 'iso', 's', 'min'];
 const BATCH_COLUMNS = new Set(['batch', 'batch_id', 'batchid']);
+/** Bookkeeping columns that are read past (neither time nor a property). */
+const IGNORED_COLUMNS = new Set(['seq', 'index', 'idx', 'row']);
 const TEXT_COLUMNS = new Set(['product', 'unit']);
 const TIME_FACTOR: Record<Exclude<TimeKind, 'iso'>, number> = { ms: 1, s: 1000, min: 60_000 };
 
@@ -120,7 +126,8 @@ export function readBatchCsv(text: string, opts: CsvReadOptions = {}): ImportedB
   let axisUnit = opts.axisUnit;
   header.forEach((cellRaw, col) => {
     const cell = cellRaw.replace(/^"|"$/g, '');
-    const m = /^([+-]?[\d.,]+(?:[eE][+-]?\d+)?)\s*(nm|cm-1|cm⁻¹|1\/cm)?$/.exec(cell);
+    // A wavelength: "1450", "1450.5 nm", "nm_1450.5" (as Tideline's batch export writes), or a wavenumber "7000 cm-1".
+    const m = /^(?:nm_)?([+-]?[\d.,]+(?:[eE][+-]?\d+)?)\s*(nm|cm-1|cm⁻¹|1\/cm)?$/.exec(cell);
     const num = m ? toNumber(m[1]!) : null;
     if (m && num !== null) {
       if (m[2] && m[2] !== 'nm') {
@@ -135,10 +142,14 @@ export function readBatchCsv(text: string, opts: CsvReadOptions = {}): ImportedB
     if (name === '') throw new ImportError(file, headerLine, `column ${col + 1} has an empty header`);
     if (BATCH_COLUMNS.has(name)) batchCol = col;
     else if (name in TIME_COLUMNS) {
-      if (timeCol >= 0) throw new ImportError(file, headerLine, `two time columns ("${header[timeCol]}" and "${cell}")`);
-      timeCol = col;
-      timeKind = TIME_COLUMNS[name]!;
-    } else if (TEXT_COLUMNS.has(name)) textCols.push({ name, col });
+      const kind = TIME_COLUMNS[name]!;
+      if (timeCol >= 0 && kind === timeKind) throw new ImportError(file, headerLine, `two time columns of the same kind ("${header[timeCol]}" and "${cell}")`);
+      if (timeCol < 0 || TIME_PRECEDENCE.indexOf(kind) < TIME_PRECEDENCE.indexOf(timeKind)) {
+        timeCol = col;
+        timeKind = kind;
+      }
+    } else if (IGNORED_COLUMNS.has(name)) return;
+    else if (TEXT_COLUMNS.has(name)) textCols.push({ name, col });
     else propCols.push({ name, col });
   });
   if (axisCols.length < 2) throw new ImportError(file, headerLine, `the header has ${axisCols.length} wavelength column(s); expected a row of wavelengths in nm`);

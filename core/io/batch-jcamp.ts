@@ -6,7 +6,7 @@
  * (##DATA TYPE=LINK with ##BLOCKS=n) holding one block per spectrum. The time of each spectrum is
  * taken from the user label ##$TIME MS (ms since the Unix epoch, written by Tideline), else from
  * ##LONGDATE (YYYY/MM/DD HH:MM:SS[.sss], UTC assumed); the batch id from ##$BATCH, else the
- * title of the link block or the file name.
+ * title of the link block, else the fallback given (the file name).
  *
  * Writing produces a compound LINK file; each block carries ##XUNITS=NANOMETERS,
  * ##YUNITS=ABSORBANCE and the data as ##XYDATA=(X++(Y..Y)) when the axis is equidistant, else as
@@ -76,7 +76,7 @@ export function readBatchJcamp(text: string, opts: { file?: string; batch?: stri
     const tMs = Number(meta['TIME MS']);
     const t = Number.isFinite(tMs) ? tMs : parseLongDate(String(blk.info?.LONGDATE ?? ''));
     if (!Number.isFinite(t)) throw new ImportError(file, 0, `${where}: no time (neither ##$TIME MS nor a ##LONGDATE)`);
-    const id = String(meta['BATCH'] ?? opts.batch ?? linkTitle ?? file.replace(/\.[^.]*$/, ''));
+    const id = String(meta['BATCH'] ?? linkTitle ?? opts.batch ?? file.replace(/\.[^.]*$/, ''));
     let b = batches.get(id);
     if (!b) {
       b = { id, axis, times: [], spectra: [], properties: {}, source: { file, firstLine: 0, lastLine: 0 } };

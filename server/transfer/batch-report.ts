@@ -7,7 +7,7 @@
  */
 import type { Alarm, BatchDetail, EndpointEventRecord, ModelEnvelopeView, ModelVersionSummary } from '../../core/api/rest.ts';
 import type { MonitorResult } from '../../core/monitor/types.ts';
-import { escapeXml as esc, lineChart, OKABE_ITO } from './svg-chart.ts';
+import { barChart, escapeXml as esc, lineChart, OKABE_ITO } from './svg-chart.ts';
 
 export const ADVISORY_TEXT =
   'Tideline advises. An endpoint signal or alarm must be used within the site’s validated control strategy; ' +
@@ -52,6 +52,7 @@ export interface BatchReportData {
 }
 
 const utc = (t: number | null | undefined) => (t === null || t === undefined ? '—' : new Date(t).toISOString().replace('T', ' ').replace(/\.\d+Z$/, ' UTC'));
+const nm = (v: number) => v.toFixed(0);
 const num = (v: number | null | undefined, digits = 3) => (v === null || v === undefined || !Number.isFinite(v) ? '—' : Number(v.toPrecision(digits)).toString());
 
 function table(head: string[], rows: (string | number)[][]): string {
@@ -126,15 +127,15 @@ export function renderBatchReport(d: BatchReportData): string {
   const dep = d.departure;
   const regionsChart =
     dep && dep.regions.length
-      ? lineChart({
-          title: 'Share of T² and Q contributions by wavelength region over the departure window',
-          xLabel: 'wavelength (nm)',
-          yLabel: 'share of summed contribution',
-          regions: dep.regions.map((r) => ({ name: r.assignment, from: r.from, to: r.to })),
+      ? barChart({
+          title: 'Wavelength regions that drove T² and Q over the departure window',
+          valueLabel: 'share of the summed contribution (%)',
+          rows: dep.regions.map((r) => ({ label: `${nm(r.from)}–${nm(r.to)} nm · ${r.assignment}`, values: [100 * r.t2Share, 100 * r.qShare] })),
           series: [
-            { name: 'T² share', x: dep.regions.map((r) => (r.from + r.to) / 2), y: dep.regions.map((r) => r.t2Share), color: OKABE_ITO.blue, markers: 'square' },
-            { name: 'Q share', x: dep.regions.map((r) => (r.from + r.to) / 2), y: dep.regions.map((r) => r.qShare), color: OKABE_ITO.vermillion, markers: 'triangle' },
+            { name: 'T² share', color: OKABE_ITO.blue, pattern: 'solid' },
+            { name: 'Q share', color: OKABE_ITO.vermillion, pattern: 'hatched' },
           ],
+          format: (v) => `${Number(v.toPrecision(3))} %`,
         })
       : '';
 
@@ -192,7 +193,7 @@ ${
     ? `<p>${dep.firstExitT ? `First left the envelope or a limit at ${esc(utc(dep.firstExitT))} (seq ${dep.firstExitSeq}): ${esc(dep.firstExitWhat ?? '')}.` : 'The batch stayed within the envelope and limits.'}</p>
 ${table(['PC', 'mean |deviation| after DTW', 'max |deviation|'], dep.alignedDeviation.map((a) => [`PC${a.pc}`, num(a.meanAbs), num(a.maxAbs)]))}
 ${dep.window ? `<p>Departure window: seq ${dep.window.fromSeq}…${dep.window.toSeq}.</p>` : ''}
-${table(['region (nm)', 'assignment', 'share of T²', 'share of Q'], dep.regions.map((r) => [`${r.from}–${r.to}`, r.assignment, `${num(r.t2Share * 100, 3)} %`, `${num(r.qShare * 100, 3)} %`]))}
+${table(['region (nm)', 'assignment', 'share of T²', 'share of Q'], dep.regions.map((r) => [`${nm(r.from)}–${nm(r.to)}`, r.assignment, `${num(r.t2Share * 100, 3)} %`, `${num(r.qShare * 100, 3)} %`]))}
 ${regionsChart ? `<div class="chart">${regionsChart}</div>` : ''}`
     : '<p class="empty">No departure analysis (no model, or no results).</p>'
 }

@@ -239,3 +239,58 @@ function hashString(s: string): number {
   for (let i = 0; i < s.length; i++) h = (h * 31 + s.charCodeAt(i)) | 0;
   return h;
 }
+
+export interface BarChartSpec {
+  title: string;
+  /** Axis label of the values, with unit. */
+  valueLabel: string;
+  rows: { label: string; values: number[] }[];
+  /** One per entry of values: name, colour and fill pattern (never colour alone). */
+  series: { name: string; color: string; pattern: 'solid' | 'hatched' }[];
+  width?: number;
+  /** Value axis maximum (default: the largest value). */
+  max?: number;
+  format?: (v: number) => string;
+}
+
+/** Horizontal grouped bars, one group per row, with the value printed at each bar's end. */
+export function barChart(spec: BarChartSpec): string {
+  const W = spec.width ?? 720;
+  const labelW = 260;
+  const barH = 11;
+  const groupH = spec.series.length * (barH + 2) + 10;
+  const top = 28;
+  const H = top + spec.rows.length * groupH + 52;
+  const pw = W - labelW - 70;
+  const max = spec.max ?? Math.max(1e-12, ...spec.rows.flatMap((r) => r.values.filter(Number.isFinite)));
+  const fmt = spec.format ?? formatTick;
+  const out: string[] = [`<svg xmlns="http://www.w3.org/2000/svg" width="${W}" height="${H}" viewBox="0 0 ${W} ${H}" role="img" aria-label="${escapeXml(spec.title)}">`];
+  out.push(`<defs>${spec.series.map((s, i) => `<pattern id="hatch-${i}" width="5" height="5" patternUnits="userSpaceOnUse" patternTransform="rotate(45)"><rect width="5" height="5" fill="#fff"/><line x1="0" y1="0" x2="0" y2="5" stroke="${s.color}" stroke-width="3"/></pattern>`).join('')}</defs>`);
+  out.push(`<text x="4" y="18" ${FONT} font-size="13" font-weight="bold">${escapeXml(spec.title)}</text>`);
+  spec.rows.forEach((r, gi) => {
+    const y0 = top + gi * groupH;
+    out.push(`<text x="${labelW - 6}" y="${y0 + groupH / 2}" text-anchor="end" ${FONT} font-size="10">${escapeXml(r.label)}</text>`);
+    r.values.forEach((v, si) => {
+      const s = spec.series[si]!;
+      const w = Number.isFinite(v) ? Math.max(0, (v / max) * pw) : 0;
+      const y = y0 + 4 + si * (barH + 2);
+      const fill = s.pattern === 'hatched' ? `url(#hatch-${si})` : s.color;
+      out.push(`<rect x="${labelW}" y="${y}" width="${w.toFixed(1)}" height="${barH}" fill="${fill}" stroke="${s.color}"/>`);
+      out.push(`<text x="${(labelW + w + 4).toFixed(1)}" y="${y + barH - 2}" ${FONT} font-size="9">${escapeXml(fmt(v))}</text>`);
+    });
+  });
+  const axisY = top + spec.rows.length * groupH;
+  out.push(`<line x1="${labelW}" x2="${labelW + pw}" y1="${axisY}" y2="${axisY}" stroke="#444"/>`);
+  for (const v of niceTicks(0, max, 5).filter((x) => x <= max)) {
+    const x = labelW + (v / max) * pw;
+    out.push(`<line x1="${x.toFixed(1)}" x2="${x.toFixed(1)}" y1="${axisY}" y2="${axisY + 4}" stroke="#444"/><text x="${x.toFixed(1)}" y="${axisY + 15}" text-anchor="middle" ${FONT} font-size="9">${escapeXml(fmt(v))}</text>`);
+  }
+  out.push(`<text x="${labelW + pw / 2}" y="${axisY + 30}" text-anchor="middle" ${FONT} font-size="11">${escapeXml(spec.valueLabel)}</text>`);
+  let lx = labelW;
+  spec.series.forEach((s, i) => {
+    out.push(`<rect x="${lx}" y="${H - 14}" width="18" height="9" fill="${s.pattern === 'hatched' ? `url(#hatch-${i})` : s.color}" stroke="${s.color}"/><text x="${lx + 22}" y="${H - 6}" ${FONT} font-size="10">${escapeXml(s.name)}</text>`);
+    lx += 40 + s.name.length * 6;
+  });
+  out.push('</svg>');
+  return out.join('');
+}

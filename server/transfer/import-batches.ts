@@ -1,0 +1,150 @@
+/**
+ * Import historical batches (CSV or JCAMP-DX) into the record, all files of one import in one
+ * transaction: either every batch is stored or none is.
+ *
+ * Imported batches are stored like streamed ones (as ended batches) under the pseudo-analyzer
+ * `file-import`, with the import's start time as its boot epoch and seq counting through the import.
+ * With a target axis (a model's input axis), each spectrum is resampled onto it by linear
+ * interpolation (core/preprocess 'resample' step, which refuses to extrapolate); a file whose range
+ * does not cover the target is refused with its name.
+ */
+import { readBatchCsv, type CsvReadOptions } from '../../core/io/batch-csv.ts';
+import { readBatchJcamp } from '../../core/io/batch-jcamp.ts';
+import { ImportError, type ImportedBatch } from '../../core/io/imported-batch.ts';
+import { matrixFromRows } from '../../core/linalg/dense-matrix.ts';
+import { fitChain } from '../../core/preprocess/index.ts';
+import { emptyIngestWrite, type Storage } from '../storage/storage.ts';
+
+export const IMPORT_ANALYZER = 'file-import';
+
+export type ImportFormat = 'csv' | 'jcamp';
+
+export interface ImportFile {
+  name: string;
+  content: string;
+  format?: ImportFormat;
+}
+
+export interface ImportRequest {
+  files: ImportFile[];
+  unit: string;
+  product: string;
+  csv?: Omit<CsvReadOptions, 'file'>;
+  /** Resample every spectrum onto this axis (nm); else all batches must share one axis. */
+  targetAxis?: ArrayLike<number>;
+  user: string;
+}
+
+export interface ImportSummary {
+  importId: number;
+  unit: string;
+  product: string;
+  batches: { id: string; spectra: number; file: string; from: number; to: number; resampled: boolean }[];
+  axis: { points: number; from: number; to: number };
+}
+
+export function formatOf(file: ImportFile): ImportFormat {
+  if (file.format) return file.format;
+  if (/\.(jdx|dx|jcamp|jcm)$/i.test(file.name)) return 'jcamp';
+  if (/\.(csv|txt|tsv)$/i.test(file.name)) return 'csv';
+  if (/^\s*##TITLE=/m.test(file.content.slice(0, 2000))) return 'jcamp';
+  return 'csv';
+}
+
+/** Parse the files (pure). Throws ImportError naming file, line and reason. */
+export function parseImportFiles(req: Pick<ImportRequest, 'files' | 'csv' | 'targetAxis'>): { batches: ImportedBatch[]; resampled: Set<string> } {
+  if (req.files.length === 0) throw new ImportError('import', 0, 'no files were given');
+  const batches: ImportedBatch[] = [];
+  for (const f of req.files) {
+    const got = formatOf(f) === 'jcamp' ? readBatchJcamp(f.content, { file: f.name, batch: fileStem(f.name) }) : readBatchCsv(f.content, { ...req.csv, file: f.name, batch: fileStem(f.name) });
+    batches.push(...got);
+  }
+  const seen = new Map<string, string>();
+  for (const b of batches) {
+    const prev = seen.get(b.id);
+    if (prev) throw new ImportError(b.source.file, 0, `batch ${b.id} appears twice in this import (also in ${prev}); a batch must come whole from one place`);
+    seen.set(b.id, b.source.file);
+  }
+  const resampled = new Set<string>();
+  if (req.targetAxis) {
+    const target = Array.from(req.targetAxis);
+    for (const b of batches) {
+      if (sameAxis(b.axis, target)) continue;
+      const lo = target[0]!;
+      const hi = target[target.length - 1]!;
+      if (b.axis[0]! > lo || b.axis[b.axis.length - 1]! < hi) {
+        throw new ImportError(
+          b.source.file,
+          0,
+          `batch ${b.id}: the file's axis ${b.axis[0]}–${b.axis[b.axis.length - 1]} nm does not cover the model's ${lo}–${hi} nm; Tideline does not extrapolate`,
+        );
+      }
+      const chain = fitChain([{ step: 'resample', axis: target }], b.axis, matrixFromRows(b.spectra.slice(0, 1)));
+      const out = new Float64Array(target.length);
+      b.spectra = b.spectra.map((s) => Float32Array.from(chain.apply(s, out)));
+      b.axis = Float64Array.from(target);
+      resampled.add(b.id);
+    }
+  } else {
+    const first = batches[0]!;
+    for (const b of batches) {
+      if (!sameAxis(b.axis, first.axis)) {
+        throw new ImportError(
+          b.source.file,
+          0,
+          `batch ${b.id} has a different wavelength axis (${b.axis.length} points, ${b.axis[0]}–${b.axis[b.axis.length - 1]} nm) from batch ${first.id} (${first.axis.length} points); import them separately or give a model axis to resample onto`,
+        );
+      }
+    }
+  }
+  return { batches, resampled };
+}
+
+/** A file without a batch column or label names its batch by the file name: "D-0042.csv" → "D-0042". */
+function fileStem(name: string): string {
+  return name.replace(/^.*[\\/]/, '').replace(/\.[^.]*$/, '');
+}
+
+function sameAxis(a: ArrayLike<number>, b: ArrayLike<number>): boolean {
+  if (a.length !== b.length) return false;
+  for (let i = 0; i < a.length; i++) if (Math.abs(a[i]! - b[i]!) > 1e-9 * Math.max(1, Math.abs(a[i]!))) return false;
+  return true;
+}
+
+/** Parse, check against the store, and write everything in one transaction. */
+export async function importBatches(storage: Storage, req: ImportRequest, now: number): Promise<ImportSummary> {
+  const unit = await storage.getUnit(req.unit);
+  if (!unit) throw new ImportError('import', 0, `unit "${req.unit}" is not known; create it first (npm run tideline -- unit add ${req.unit})`);
+  if (!req.product.trim()) throw new ImportError('import', 0, 'the product must be named');
+  const { batches, resampled } = parseImportFiles(req);
+  for (const b of batches) {
+    if (!/^[A-Za-z0-9._:-]{1,128}$/.test(b.id)) throw new ImportError(b.source.file, b.source.firstLine, `batch id "${b.id}" must be 1–128 letters, digits or . _ : -`);
+    if (await storage.getBatch(b.id)) throw new ImportError(b.source.file, b.source.firstLine, `batch ${b.id} is already in the record; it was not imported again`);
+  }
+  if (!(await storage.getAnalyzer(IMPORT_ANALYZER))) {
+    await storage.createAnalyzer({ id: IMPORT_ANALYZER, name: 'historical batches imported from files', createdAt: now });
+  }
+  const w = emptyIngestWrite();
+  let seq = 0;
+  const summary: ImportSummary = {
+    importId: now,
+    unit: req.unit,
+    product: req.product,
+    batches: [],
+    axis: { points: batches[0]!.axis.length, from: batches[0]!.axis[0]!, to: batches[0]!.axis[batches[0]!.axis.length - 1]! },
+  };
+  for (const b of batches) {
+    const startSeq = seq++;
+    const n = b.spectra.length;
+    w.batchStarts.push({ id: b.id, unit: req.unit, analyzer: IMPORT_ANALYZER, boot: now, product: b.product ?? req.product, startSeq, startT: b.times[0]!, axis: b.axis, modelVersion: null, createdAt: now });
+    b.spectra.forEach((values, idx) => {
+      w.spectra.push({ batch: b.id, idx, seq: seq++, t: b.times[idx]!, values, analyzer: IMPORT_ANALYZER, boot: now, receivedAt: now });
+    });
+    const endSeq = seq++;
+    w.batchProgress.push({ batch: b.id, spectrumCount: n, lastSeq: endSeq - 1, lastT: b.times[n - 1]!, endpointState: null, endpointAt: null });
+    w.batchEnds.push({ batch: b.id, endSeq, endT: b.times[n - 1]!, endReason: `imported from ${b.source.file} by ${req.user}` });
+    summary.batches.push({ id: b.id, spectra: n, file: b.source.file, from: b.times[0]!, to: b.times[n - 1]!, resampled: resampled.has(b.id) });
+  }
+  await storage.commitIngest(w);
+  return summary;
+}

@@ -1,0 +1,134 @@
+/**
+ * Bringing batches in and taking results out (installed by server/app.ts):
+ *
+ * | method | path                                         | role        | what |
+ * | ------ | -------------------------------------------- | ----------- | ---- |
+ * | POST   | /api/import                                  | model-owner | import CSV / JCAMP-DX files (JSON body, see ImportBody) in one transaction |
+ * | GET    | /api/batches/:batch/comparison?version=      | viewer      | DTW comparison with the golden batches (core compareBatch) |
+ * | GET    | /api/batches/:batch/export.jdx               | viewer      | the batch's raw spectra as a JCAMP-DX compound file |
+ * | GET    | /api/batches/:batch/report.html              | viewer      | printable report |
+ * | GET    | /api/batches/:batch/report.pdf               | viewer      | the same report as PDF (headless Chromium) |
+ * | GET    | /api/models/versions/:version/model.json     | viewer      | the model file exactly as stored (hash inside) |
+ *
+ * Batch CSV export is in the batch routes (/api/batches/:batch/export.csv); the audit trail's
+ * export in /api/audit.
+ */
+import express, { type Request, type RequestHandler } from 'express';
+import { z } from 'zod';
+import { writeBatchJcamp } from '../../core/io/batch-jcamp.ts';
+import { ImportError } from '../../core/io/imported-batch.ts';
+import { HttpProblem, notFound, validate } from '../api/problem.ts';
+import type { Role } from '../auth/types.ts';
+import type { ServerContext } from '../context.ts';
+import { renderBatchReport } from './batch-report.ts';
+import { importBatches } from './import-batches.ts';
+import { htmlToPdf, PdfUnavailableError } from './report-pdf.ts';
+import { compareStoredBatch, loadBatch, reportData } from './review.ts';
+
+/** Imports can be large (a batch of 500 spectra × 1,000 points is about 5 MB of CSV). */
+export const IMPORT_BODY_LIMIT = '64mb';
+
+const idSchema = z.string().min(1).max(128).regex(/^[A-Za-z0-9._:-]+$/, 'use letters, digits and . _ : - only');
+
+export const importBodySchema = z.object({
+  unit: idSchema,
+  product: z.string().min(1).max(128),
+  files: z
+    .array(z.object({ name: z.string().min(1).max(256), content: z.string().max(60 * 1024 * 1024), format: z.enum(['csv', 'jcamp']).optional() }))
+    .min(1)
+    .max(500),
+  csv: z
+    .object({
+      delimiter: z.enum([',', ';', '\t']).optional(),
+      decimal: z.enum(['.', ',']).optional(),
+      axisUnit: z.enum(['nm', 'cm-1']).optional(),
+      origin: z.number().finite().min(0).optional(),
+    })
+    .optional(),
+  /** Resample onto this model version's input axis. */
+  resampleToModel: z.string().min(1).max(128).optional(),
+});
+export type ImportBody = z.infer<typeof importBodySchema>;
+
+const userName = (req: Request) => req.user?.name ?? 'anonymous';
+
+export function install(ctx: ServerContext): void {
+  const r = express.Router();
+  const pass: RequestHandler = (_req, _res, next) => next();
+  const role = (x: Role): RequestHandler => (ctx.auth ? ctx.auth.requireRole(x) : pass);
+  const batchParam = (req: Request) => validate(z.object({ batch: idSchema }), req.params, 'path').batch;
+
+  r.post('/import', role('model-owner'), express.json({ limit: IMPORT_BODY_LIMIT }), async (req, res) => {
+    const body = validate(importBodySchema, req.body, 'body');
+    let targetAxis: Float64Array | undefined;
+    if (body.resampleToModel) {
+      const m = (await ctx.ingest.loadModel(body.resampleToModel)) as { chain: { inputAxis: Float64Array } } | null;
+      if (!m) throw notFound(`model version "${body.resampleToModel}" does not exist`);
+      targetAxis = m.chain.inputAxis;
+    }
+    try {
+      const summary = await importBatches(ctx.storage, { ...body, targetAxis, user: userName(req) }, ctx.now());
+      ctx.audit?.record({
+        user: userName(req),
+        action: 'batch.import',
+        object: `unit:${body.unit}`,
+        after: { files: body.files.map((f) => f.name), batches: summary.batches.map((b) => b.id), resampledToModel: body.resampleToModel ?? null },
+      });
+      res.status(201).json(summary);
+    } catch (e) {
+      if (e instanceof ImportError) {
+        throw new HttpProblem(422, 'Import refused', `${e.message}. Nothing was imported.`, 'import-refused', [{ path: e.line > 0 ? `${e.file}:${e.line}` : e.file, message: e.reason }]);
+      }
+      throw e;
+    }
+  });
+
+  r.get('/batches/:batch/comparison', role('viewer'), async (req, res) => {
+    const q = validate(z.object({ version: z.string().min(1).max(128).optional() }), req.query, 'query');
+    const b = await loadBatch(ctx, batchParam(req));
+    const { versionId, comparison } = await compareStoredBatch(ctx, b, q.version);
+    res.json({ batch: b.id, versionId, comparison });
+  });
+
+  r.get('/batches/:batch/export.jdx', role('viewer'), async (req, res) => {
+    const b = await loadBatch(ctx, batchParam(req));
+    const times: number[] = [];
+    const spectra: Float32Array[] = [];
+    for await (const s of ctx.storage.iterateSpectra(b.id)) {
+      times.push(s.t);
+      spectra.push(s.values);
+    }
+    if (spectra.length === 0) throw new HttpProblem(409, 'No spectra', `batch ${b.id} has no spectra to export`, 'no-spectra');
+    res
+      .type('chemical/x-jcamp-dx')
+      .attachment(`${b.id}.jdx`)
+      .send(writeBatchJcamp({ id: b.id, axis: b.axis, times, spectra, product: b.product, unit: b.unit }));
+  });
+
+  r.get('/batches/:batch/report.html', role('viewer'), async (req, res) => {
+    const html = renderBatchReport(await reportData(ctx, batchParam(req), userName(req)));
+    res.type('html').send(html);
+  });
+
+  r.get('/batches/:batch/report.pdf', role('viewer'), async (req, res) => {
+    const id = batchParam(req);
+    const html = renderBatchReport(await reportData(ctx, id, userName(req)));
+    try {
+      const pdf = await htmlToPdf(html, { title: `Batch report ${id}` });
+      ctx.audit?.record({ user: userName(req), action: 'batch.report', object: `batch:${id}`, after: { format: 'pdf', bytes: pdf.length } });
+      res.type('application/pdf').attachment(`${id}-report.pdf`).send(pdf);
+    } catch (e) {
+      if (e instanceof PdfUnavailableError) throw new HttpProblem(503, 'PDF unavailable', e.message, 'pdf-unavailable');
+      throw e;
+    }
+  });
+
+  r.get('/models/versions/:version/model.json', role('viewer'), async (req, res) => {
+    const v = validate(z.object({ version: z.string().min(1).max(128) }), req.params, 'path').version;
+    const m = await ctx.storage.getModelVersion(v);
+    if (!m) throw notFound(`model version "${v}" does not exist`);
+    res.type('application/json').attachment(`${m.name}-v${m.version}.json`).send(m.body);
+  });
+
+  ctx.api.use(r);
+}
