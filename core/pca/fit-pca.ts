@@ -14,6 +14,7 @@ import type { PcaModel } from './pca-model.ts';
 import { rowGramMatrix, scatterMatrix } from './gram-kernel.ts';
 import { topSymmetricEigen } from './sym-eigen.ts';
 import { residualTheta } from './residual-theta.ts';
+import { createProjector } from './projector.ts';
 
 export interface FitPcaOptions {
   components: number;
@@ -179,44 +180,22 @@ export function fitPca(X: DenseMatrix, opts: FitPcaOptions): PcaModel {
 }
 
 /**
- * Scores, T² and Q of every row of X under model m (X in the model's raw variable space).
- * Scores are n × A; the residual is formed explicitly for Q.
+ * Scores, T² and Q of every row of X under model m (X in the model's raw variable space), through
+ * the same projector that scores new spectra, so calibration and monitoring values agree exactly.
  */
 export function scoreRows(m: PcaModel, X: DenseMatrix): { scores: DenseMatrix; t2: Float64Array; q: Float64Array } {
   const { rows: n, cols: p } = X;
   if (p !== m.nVariables) throw new RangeError(`PCA scores: X has ${p} variables, the model ${m.nVariables}`);
   const A = m.nComponents;
-  const P = m.loadings.data;
-  const PT = new Float64Array(A * p);
-  for (let j = 0; j < p; j++) for (let a = 0; a < A; a++) PT[a * p + j] = P[j * A + a]!;
   const scores = denseMatrix(n, A);
   const t2 = new Float64Array(n);
   const q = new Float64Array(n);
-  const xc = new Float64Array(p);
-  const t = new Float64Array(A);
-  const invLambda = m.eigenvalues.map((v) => 1 / v);
-  const mean = m.mean;
+  const projector = createProjector(m);
   for (let i = 0; i < n; i++) {
-    const off = i * p;
-    for (let j = 0; j < p; j++) xc[j] = X.data[off + j]! - mean[j]!;
-    let tt = 0;
-    for (let a = 0; a < A; a++) {
-      let s = 0;
-      const po = a * p;
-      for (let j = 0; j < p; j++) s += xc[j]! * PT[po + j]!;
-      t[a] = s;
-      scores.data[i * A + a] = s;
-      tt += s * s * invLambda[a]!;
-    }
-    t2[i] = tt;
-    for (let a = 0; a < A; a++) {
-      const s = t[a]!;
-      const po = a * p;
-      for (let j = 0; j < p; j++) xc[j] -= s * PT[po + j]!;
-    }
-    let qq = 0;
-    for (let j = 0; j < p; j++) qq += xc[j]! * xc[j]!;
-    q[i] = qq;
+    const r = projector.project(X.data.subarray(i * p, (i + 1) * p));
+    scores.data.set(r.scores, i * A);
+    t2[i] = r.t2;
+    q[i] = r.q;
   }
   return { scores, t2, q };
 }

@@ -6,12 +6,13 @@
  * leading dimension ld. Rows are taken four at a time against two at a time (a 4 × 2 register tile:
  * eight accumulators, six loads per eight multiply–adds). `rows` must be a multiple of 4 (callers
  * pad with zero rows). Only entries G[j][k] with k ≥ j − 3 are written; symmetrize afterwards.
+ * With `stride` > len the rows are the first `len` entries of rows `stride` apart (column blocks).
  */
-export function accumulateRowGram(M: Float64Array, rows: number, len: number, G: Float64Array, ld: number): void {
+export function accumulateRowGram(M: Float64Array, rows: number, len: number, G: Float64Array, ld: number, stride = len): void {
   for (let j = 0; j < rows; j += 4) {
-    const a0 = j * len, a1 = a0 + len, a2 = a1 + len, a3 = a2 + len;
+    const a0 = j * stride, a1 = a0 + stride, a2 = a1 + stride, a3 = a2 + stride;
     for (let k = j; k < rows; k += 2) {
-      const c0 = k * len, c1 = c0 + len;
+      const c0 = k * stride, c1 = c0 + stride;
       let s00 = 0, s01 = 0, s10 = 0, s11 = 0, s20 = 0, s21 = 0, s30 = 0, s31 = 0;
       for (let r = 0; r < len; r++) {
         const x0 = M[a0 + r]!, x1 = M[a1 + r]!, x2 = M[a2 + r]!, x3 = M[a3 + r]!;

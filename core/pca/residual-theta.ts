@@ -26,8 +26,9 @@ export function residualTheta(
   for (let i = 0; i < d; i++) t1 += R[i * d + i]!;
   for (let i = 0; i < d * d; i++) t2 += R[i]! * R[i]!;
   // R² = R·Rᵀ (R symmetric), upper triangle by the blocked kernel; trace(R³) = Σ_ij R_ij (R²)_ij.
+  // Column blocks of 128 keep the six rows of a tile in L1 cache.
   const R2 = new Float64Array(dd * dd);
-  accumulateRowGram(R, dd, d, R2, dd);
+  for (let c0 = 0; c0 < d; c0 += 128) accumulateRowGram(R.subarray(c0), dd, Math.min(128, d - c0), R2, dd, d);
   let t3 = 0;
   for (let i = 0; i < d; i++) {
     t3 += R[i * d + i]! * R2[i * dd + i]!;
