@@ -26,7 +26,8 @@ function makeData(seed: number, n: number, p: number) {
 const NUMPY_NIPALS = `
 from scipy.stats import norm, f as fdist, chi2
 X = np.array(inp["X"]); y = np.array(inp["y"]); Xn = np.array(inp["Xn"]); A = inp["A"]; n, p = X.shape
-xm = X.mean(0); ym = y.mean(); E = X - xm; f = y - ym
+c = inp.get("center", True)
+xm = X.mean(0) if c else np.zeros(p); ym = y.mean() if c else 0.0; E = X - xm; f = y - ym
 W, P, Q, T = [], [], [], []
 for a in range(A):
     w = E.T @ f; w = w / np.linalg.norm(w)
@@ -83,6 +84,18 @@ describe.skipIf(!pythonAvailable)('PLS1 vs a numpy NIPALS written in the test (s
     expect(rel(m.loadings.data, (ref.P as unknown as number[][]).flat())).toBeLessThan(1e-8);
     // A different route to the same regression vector: Helland's Krylov form (well conditioned for small A).
     if (A <= 4) expect(rel(m.coefficients, ref.bk)).toBeLessThan(1e-6);
+  });
+
+  it('without centring (center: false): coefficients, predictions, T² and Q to 1e-8', () => {
+    const m = fitPls1(matrixFromRows(rows), y, { components: 3, center: false });
+    expect(m.intercept).toBe(0);
+    expect(Array.from(m.xMean).every((v) => v === 0)).toBe(true);
+    const ref = runPython<Record<string, number[] & number>>(NUMPY_NIPALS, { X: rows, y, Xn: fresh, A: 3, center: false });
+    expect(rel(m.coefficients, ref.b)).toBeLessThan(1e-8);
+    const pr = createPls1Predictor(m);
+    expect(rel(fresh.map((x) => pr.predict(x).y), ref.yhat)).toBeLessThan(1e-8);
+    expect(rel(fresh.map((x) => pr.predict(x).t2), ref.t2)).toBeLessThan(1e-8);
+    expect(rel(fresh.map((x) => pr.predict(x).q), ref.q)).toBeLessThan(1e-8);
   });
 });
 
