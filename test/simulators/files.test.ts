@@ -1,4 +1,4 @@
-import { spawnSync } from 'node:child_process';
+import { spawn } from 'node:child_process';
 import { mkdtempSync, readdirSync, readFileSync, rmSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
@@ -59,33 +59,42 @@ describe('file output', () => {
 
 describe('command line', () => {
   const cli = (args: string[]) =>
-    spawnSync(process.execPath, ['--import', 'tsx', 'simulators/cli.ts', ...args], { cwd: join(import.meta.dirname, '../..'), encoding: 'utf8' });
+    new Promise<{ status: number | null; stdout: string; stderr: string }>((resolve) => {
+      const child = spawn(process.execPath, ['--import', 'tsx', 'simulators/cli.ts', ...args], { cwd: join(import.meta.dirname, '../..') });
+      let stdout = '';
+      let stderr = '';
+      child.stdout.on('data', (d) => (stdout += d));
+      child.stderr.on('data', (d) => (stderr += d));
+      child.on('close', (status) => resolve({ status, stdout, stderr }));
+    });
 
-  it('writes byte-identical files for the same seed', () => {
-    const r1 = cli(['reactor', '--batches', '2', '--seed', '7', '--out', join(tmp, 'cli1'), '--fault', 'stalled-reaction@60:rateFactor=0.2', '--faulty-batches', '2']);
-    const r2 = cli(['reactor', '--batches', '2', '--seed', '7', '--out', join(tmp, 'cli2'), '--fault', 'stalled-reaction@60:rateFactor=0.2', '--faulty-batches', '2', '--quiet']);
+  it('writes byte-identical files for the same seed', async () => {
+    const args = (dir: string) => ['reactor', '--batches', '2', '--seed', '7', '--interval', '60', '--out', join(tmp, dir), '--fault', 'stalled-reaction@60:rateFactor=0.2', '--faulty-batches', '2'];
+    const [r1, r2] = await Promise.all([cli(args('cli1')), cli([...args('cli2'), '--quiet'])]);
     expect(r1.status, r1.stderr).toBe(0);
     expect(r2.status, r2.stderr).toBe(0);
-    expect(r1.stdout).toMatch(/reactor-s7-b02: \d+ spectra, endpoint not reached, faults stalled-reaction@60\.3min/);
+    expect(r1.stdout).toMatch(/reactor-s7-b02: \d+ spectra, endpoint not reached, faults stalled-reaction@61\.0min/);
     const a = readAll(join(tmp, 'cli1'));
     const b = readAll(join(tmp, 'cli2'));
     expect(Object.keys(a)).toHaveLength(4);
     for (const f of Object.keys(a)) expect(a[f]!.equals(b[f]!), f).toBe(true);
-  });
+  }, 300_000);
 
-  it('--help explains every option; bad options get a clear message and exit code 2', () => {
-    const h = cli(['--help']);
+  it('--help explains every option; bad options get a clear message and exit code 2', async () => {
+    const [h, bad, noUrl, unknown] = await Promise.all([
+      cli(['--help']),
+      cli(['dryer', '--out', join(tmp, 'x'), '--fault', 'stalled-reaction@3']),
+      cli(['stream', 'dryer', '--token', 't']),
+      cli(['mixer']),
+    ]);
     expect(h.status).toBe(0);
     for (const opt of ['--seed', '--batches', '--fault', '--faulty-batches', '--interval', '--axis', '--unit', '--product', '--out', '--url', '--token', '--tokens-file', '--analyzer', '--analyzers', '--speed', '--json', '--window', '--boot', '--quiet']) {
       expect(h.stdout).toContain(opt);
     }
-    const bad = cli(['dryer', '--out', join(tmp, 'x'), '--fault', 'stalled-reaction@3']);
     expect(bad.status).toBe(2);
     expect(bad.stderr).toMatch(/not to the dryer/);
-    const noUrl = cli(['stream', 'dryer', '--token', 't']);
     expect(noUrl.status).toBe(2);
     expect(noUrl.stderr).toMatch(/--url is required/);
-    const unknown = cli(['mixer']);
     expect(unknown.stderr).toMatch(/unknown command "mixer"/);
-  });
+  }, 300_000);
 });

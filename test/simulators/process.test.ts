@@ -97,7 +97,7 @@ describe('reactor process (A + B → C, Arrhenius)', () => {
       { v, t: ts },
     );
     idx.forEach((i, k) => expect(b.truth.property.values[i]).toBeCloseTo(ref[k]!, 4));
-  });
+  }, 300_000);
 
   it('temperature rises from the charge temperature to the set point', () => {
     const b = batches[1]!;

@@ -105,7 +105,7 @@ describe('Beer–Lambert mixing', () => {
     );
     const maxDiff = Math.max(...ours.map((v, i) => Math.abs(v - theirs[i]!)));
     expect(maxDiff).toBeLessThan(1e-12);
-  });
+  }, 300_000);
 
   it('a simulated dryer spectrum with an ideal instrument is the Beer–Lambert mixture of its true state', () => {
     const b = simulateDryerBatch({ seed: 3, ideal: true });
