@@ -118,7 +118,7 @@ export class AuthService implements Auth {
       const r = this.users.insert({ name: u.name, fullName, role: u.role, passwordHash: hash, mustChange: !!u.mustChangePassword, createdBy: by, at });
       this.audit.record({ user: by, action: 'user.create', object: `user:${r.name}`, after: { name: r.name, fullName, role: u.role } });
       return r;
-    })();
+    }).immediate();
     return toUserView(row);
   }
 
@@ -159,7 +159,7 @@ export class AuthService implements Auth {
       if (change.role !== undefined || change.disabled || hash) this.sessions.deleteForUser(row.id);
       this.audit.record({ user: byName, action: 'user.update', object: `user:${r.name}`, before, after: afterState, reason: reason ?? null });
       return r;
-    })();
+    }).immediate();
     return toUserView(after);
   }
 
@@ -179,7 +179,7 @@ export class AuthService implements Auth {
       this.users.setPassword(row.id, hash, false, this.iso());
       this.sessions.deleteForUser(row.id, keepToken);
       this.audit.record({ user: row.name, action: 'user.password-change', object: `user:${row.name}` });
-    })();
+    }).immediate();
   }
 
   // ---- login ------------------------------------------------------------------------------------
@@ -326,7 +326,7 @@ export class AuthService implements Auth {
       const t = this.tokens.create(analyzer, label, createdBy);
       this.audit.record({ user: createdBy, action: 'analyzer-token.create', object: `analyzer:${analyzer}`, after: { tokenId: t.id, label } });
       return { id: t.id, token: t.token };
-    })();
+    }).immediate();
   }
 
   listAnalyzerTokens(): AnalyzerTokenInfo[] {
@@ -339,7 +339,7 @@ export class AuthService implements Auth {
       if (!info || !this.tokens.revoke(id, revokedBy)) return false;
       this.audit.record({ user: revokedBy, action: 'analyzer-token.revoke', object: `analyzer:${info.analyzer}`, before: { tokenId: id, revoked: false }, after: { tokenId: id, revoked: true } });
       return true;
-    })();
+    }).immediate();
   }
 
   // ---- electronic signatures ----------------------------------------------------------------
@@ -398,7 +398,7 @@ export class AuthService implements Auth {
       });
       const result = apply ? apply(signature) : (undefined as T);
       return { signature, result };
-    })();
+    }).immediate();
   }
 
   signaturesFor(objectType: string, objectId: string): SignatureRecord[] {
