@@ -28,6 +28,7 @@ import { RouteTable } from './api/route-table.ts';
 import { addPlantRoutes, remoteAddresses } from './api/routes-plant.ts';
 import { addBatchRoutes } from './api/routes-batches.ts';
 import { addModelRoutes } from './api/routes-models.ts';
+import { addViewRoutes } from './api/routes-views.ts';
 
 const here = dirname(fileURLToPath(import.meta.url));
 const VERSION: string = JSON.parse(readFileSync(join(here, '..', 'package.json'), 'utf8')).version;
@@ -89,6 +90,7 @@ export async function startServer(config: ServerConfig, opts: StartOptions = {})
   addPlantRoutes(routes, ctx, startedAt, VERSION);
   addBatchRoutes(routes, ctx);
   addModelRoutes(routes, ctx);
+  addViewRoutes(routes, ctx);
   const pass: express.RequestHandler = (_req, _res, next) => next();
   routes.mount(api, (role: Role) => (ctx.auth ? ctx.auth.requireRole(role) : pass));
   api.get('/openapi.json', (_req, res) => void res.json(routes.openapi({ version: VERSION })));

@@ -409,3 +409,32 @@ export interface ShelveAlarmRequest {
   minutes: number;
   reason: string;
 }
+
+// ---- added after v1 types (additive): views proposed by the dashboard -------------------------
+// | GET | /api/batches/:batch/spectrum-view?seq= | SpectrumView |
+// | GET | /api/models/versions/:version/calibration | CalibrationView |
+// (GET /api/batches/:batch/comparison is served by server/transfer; see its index.ts for the shape.)
+
+/** One spectrum raw and after the model's preprocessing (golden arrays null when the model has none per wavelength). */
+export interface SpectrumView {
+  batch: string;
+  seq: number;
+  t: number;
+  raw: { axis: number[]; values: number[]; goldenMean: number[] | null; goldenLower: number[] | null; goldenUpper: number[] | null };
+  preprocessed: { axis: number[]; values: number[]; goldenMean: number[] | null; goldenLower: number[] | null; goldenUpper: number[] | null } | null;
+}
+
+/** Calibration diagnostics of a model version, for Model bench. */
+export interface CalibrationView {
+  versionId: string;
+  explained: number[];
+  cumulative: number[];
+  /** Cross-validation PRESS per number of components, 1…max. */
+  press: number[];
+  recommended: number;
+  modelAxis: number[];
+  /** loadings[pc-1][variable] */
+  loadings: number[][];
+  samples: { batch: string; index: number; t2: number; q: number; excluded: boolean }[];
+  limits: { t2: number; q: number; confidence: number };
+}

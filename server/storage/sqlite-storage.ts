@@ -8,6 +8,7 @@ import { dirname } from 'node:path';
 import type { Alarm, EvaluationResult } from '../../core/api/rest.ts';
 import type { MonitorResult } from '../../core/monitor/types.ts';
 import { migrate } from './migrate.ts';
+import { startCheckpointer, type Checkpointer } from './checkpointer.ts';
 import type {
   AlarmFilter,
   AnalyzerBootRow,
@@ -80,6 +81,9 @@ export interface SqliteOptions {
   file: string;
   /** Defaults to FULL (durable). */
   synchronous?: 'FULL' | 'NORMAL' | 'OFF';
+  /** Run WAL checkpoints in a worker thread (default true for files); else SQLite's automatic ones. */
+  checkpointInWorker?: boolean;
+  onError?: (message: string) => void;
 }
 
 export class SqliteStorage implements Storage {
@@ -87,6 +91,7 @@ export class SqliteStorage implements Storage {
   private readonly st: Record<string, Database.Statement>;
   private readonly commitTx: (w: IngestWrite) => void;
   private readonly saveAlarmTx: (a: Alarm, o?: OutboxRow) => void;
+  private checkpointer: Checkpointer | null = null;
 
   constructor(opts: SqliteOptions) {
     if (opts.file !== ':memory:') mkdirSync(dirname(opts.file), { recursive: true });
@@ -96,6 +101,13 @@ export class SqliteStorage implements Storage {
     this.db.pragma('foreign_keys = ON');
     this.db.pragma('busy_timeout = 5000');
     migrate(this.db);
+    if (opts.file !== ':memory:' && opts.checkpointInWorker !== false) {
+      this.db.pragma('wal_autocheckpoint = 0');
+      this.db.pragma('journal_size_limit = 67108864');
+      this.checkpointer = startCheckpointer(opts.file, 250, (m) => {
+        (opts.onError ?? ((x: string) => process.stderr.write(`WAL checkpoint: ${x}\n`)))(m);
+      });
+    }
     const p = (sql: string) => this.db.prepare(sql);
     this.st = {
       insertUnit: p('INSERT INTO units (id, name, kind, description, created_at) VALUES (?, ?, ?, ?, ?)'),
@@ -182,7 +194,16 @@ export class SqliteStorage implements Storage {
   }
 
   async close(): Promise<void> {
-    if (this.db.open) this.db.close();
+    if (this.checkpointer) await this.checkpointer.stop();
+    this.checkpointer = null;
+    if (this.db.open) {
+      try {
+        this.db.pragma('wal_checkpoint(PASSIVE)');
+      } catch {
+        /* another connection may hold it; the WAL stays valid */
+      }
+      this.db.close();
+    }
   }
 
   async createUnit(u: UnitRow) {

@@ -163,6 +163,15 @@ describe('REST: models — build, evaluate, approve (signature), deploy, retire'
     expect(r.body.contributions.q.length).toBe(r.body.contributions.axis.length);
     r = await viewer.get('/api/batches/judged-1/export.csv?what=results');
     expect((r.body as string).split('\r\n')[0]).toMatch(/^seq,t_ms,time_utc,elapsed_min,progress,t2/);
+    r = await viewer.get('/api/batches/judged-1/spectrum-view?seq=3');
+    expect(r.status, JSON.stringify(r.body).slice(0, 300)).toBe(200);
+    expect(r.body.raw.values).toEqual(Array.from(b.spectra[2]!));
+    expect(r.body.preprocessed.values.length).toBe(r.body.preprocessed.axis.length);
+    r = await viewer.get(`/api/models/versions/${versionId}/calibration`);
+    expect(r.status, JSON.stringify(r.body).slice(0, 300)).toBe(200);
+    expect(r.body.loadings.length).toBe(2);
+    expect(r.body.loadings[0].length).toBe(r.body.modelAxis.length);
+    expect(r.body.samples.length).toBeGreaterThan(10);
     r = await admin.post(`/api/models/versions/${versionId}/retire`, { reason: 'superseded', password: 'correct horse battery staple 42' });
     expect(r.body).toMatchObject({ status: 'retired', deployedTo: [] });
     r = await viewer.get('/api/units/dryer-2');
