@@ -12,8 +12,8 @@ import type { MonitorResult } from '../../core/monitor/types.ts';
 import type { ServerContext } from '../context.ts';
 import { parseSignalsConfig } from './config.ts';
 import { SignalDispatcher, type SignalChannel } from './dispatcher.ts';
-import { MqttChannel } from './mqtt-channel.ts';
-import { OpcuaChannel } from './opcua/opcua-channel.ts';
+import type { MqttChannel } from './mqtt-channel.ts';
+import type { OpcuaChannel } from './opcua/opcua-channel.ts';
 import { OutboxStore, type SignalEnvelope } from './outbox-store.ts';
 import { signalRoutes } from './routes.ts';
 import { WebhookChannel } from './webhook-channel.ts';
@@ -34,12 +34,15 @@ export async function install(ctx: ServerContext): Promise<SignalsHandle> {
   const channels: SignalChannel[] = [];
   for (const w of cfg.webhooks) channels.push(new WebhookChannel(w, ctx.now));
   let mqtt: MqttChannel | null = null;
+  // node-opcua and mqtt are loaded only when their channel is configured (node-opcua takes seconds to load)
   if (cfg.mqtt) {
+    const { MqttChannel } = await import('./mqtt-channel.ts');
     mqtt = new MqttChannel(cfg.mqtt, store, ctx.now);
     channels.push(mqtt);
   }
   let opcua: OpcuaChannel | null = null;
   if (cfg.opcua) {
+    const { OpcuaChannel } = await import('./opcua/opcua-channel.ts');
     opcua = new OpcuaChannel(cfg.opcua, store, {
       dataDir: ctx.config.dataDir,
       now: ctx.now,

@@ -53,7 +53,7 @@ describe.skipIf(!mosquittoPath || !haveMonitor)('MQTT across a server kill and r
     return new Promise((resolve, reject) => {
       let out = '';
       let err = '';
-      const timer = setTimeout(() => reject(new Error(`server did not start: ${out} ${err}`)), 60_000);
+      const timer = setTimeout(() => reject(new Error(`server did not start: ${out} ${err}`)), 120_000);
       child.stderr!.on('data', (d) => (err += d));
       child.stdout!.on('data', (d) => {
         out += d;

@@ -126,5 +126,5 @@ describe.skipIf(!mosquittoPath)('MQTT channel against mosquitto', () => {
       }
       sub.end(true);
     }
-  });
+  }, 180_000);
 });

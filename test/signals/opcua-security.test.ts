@@ -45,7 +45,7 @@ describe('OPC UA security', () => {
     // the accepted client certificate was stored as trusted
     expect(readdirSync(join(dir, 'pki', 'opcua', 'trusted', 'certs')).length).toBeGreaterThan(0);
     await expect(connectClient(channel.endpointUrl, { mode: 'None' })).rejects.toThrow();
-  });
+  }, 180_000);
 
   it('refuses an unknown client certificate unless told to accept it', async () => {
     const { channel, dir } = await startChannel({ securityModes: ['Sign'], securityPolicies: ['Basic256Sha256'], allowAnonymous: true, acceptUnknownCertificates: false });
@@ -53,7 +53,7 @@ describe('OPC UA security', () => {
     // the refused certificate waits in rejected/ for an administrator to move it to trusted/
     expect(readdirSync(join(dir, 'pki', 'opcua', 'rejected')).filter((f) => f.endsWith('.pem'))).toHaveLength(1);
     expect(readdirSync(join(dir, 'pki', 'opcua', 'trusted', 'certs'))).toHaveLength(0);
-  });
+  }, 180_000);
 
   it('names a bad setting', () => {
     expect(() => parseSignalsConfig({ opcua: { securityModes: ['Encrypt'] } })).toThrow(/signals\.opcua\.securityModes\.0/);

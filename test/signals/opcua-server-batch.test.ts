@@ -108,5 +108,5 @@ describe.skipIf(!haveMonitor)('OPC UA with the full server and a simulated dryer
     expect(reached.filter((dv) => dv.value.value === true)).toHaveLength(1);
     const audit = await admin.get('/api/audit?action=endpoint.acknowledge');
     expect(JSON.stringify(audit.body)).toContain(`unit:${U}`);
-  });
+  }, 180_000);
 });

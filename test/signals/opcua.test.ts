@@ -178,7 +178,7 @@ describe('OPC UA channel', () => {
     expect(acks).toEqual([{ unit: U, by: 'opcua-client' }]);
     expect(channel.latch(U)).toMatchObject({ reached: 0, acknowledged_by: 'opcua-client' });
     expect(reached.filter((dv) => dv.value.value === true)).toHaveLength(1);
-  });
+  }, 180_000);
 
   it('marks live values Bad when the analyzer reports a failure (NE 107) and raises AnalyzerFault', async () => {
     const events: Record<string, unknown>[] = [];

@@ -23,12 +23,18 @@ describe('signals installed in the server', () => {
   let receiver: Server;
   let ts: TestServer;
   const got: { body: string; sig: string | undefined; id: string | undefined }[] = [];
+  let down = false;
+  let refused = 0;
 
   beforeAll(async () => {
     receiver = createServer((req, res) => {
       const chunks: Buffer[] = [];
       req.on('data', (c: Buffer) => chunks.push(c));
       req.on('end', () => {
+        if (down) {
+          refused++;
+          return void res.writeHead(503).end();
+        }
         got.push({ body: Buffer.concat(chunks).toString(), sig: req.headers['tideline-signature'] as string, id: req.headers['idempotency-key'] as string });
         res.writeHead(200).end();
       });
@@ -78,4 +84,46 @@ describe('signals installed in the server', () => {
     const viewer = await login(ts, 'viewer');
     expect((await viewer.post('/api/signals/dead-letters/webhook:mes/x/requeue', {})).status).toBe(403);
   });
+
+  it('a dryer batch judged by the model while the receiver is down: every event arrives afterwards, in order, signed', async () => {
+    const { buildSmallDryerModel, installModel } = await import('../server/model-fixture.ts');
+    const { simulateDryerBatch } = await import('../../simulators/batch.ts');
+    const { model, text } = buildSmallDryerModel();
+    await installModel(ts.server.ctx.storage, text, model, 'dryer-1');
+    await ts.server.ctx.ingest.refreshDeployment('dryer-1');
+    got.length = 0;
+    down = true;
+    const batch = simulateDryerBatch({ seed: 21, id: 'B-hook', intervalS: 60 });
+    const peer = new Peer(ts.wsUrl, ts.token);
+    await peer.open();
+    expect((await peer.hello('nir-1', 2, batch.axis)).type).toBe('welcome');
+    peer.send({ type: 'batch-start', seq: 1, t: batch.start, unit: 'dryer-1', batch: 'B-hook', product: 'granule A' });
+    const n = batch.spectra.length;
+    for (let i = 0; i < n; i++) peer.sendFrame(2 + i, batch.times[i]!, batch.spectra[i]!);
+    peer.send({ type: 'batch-end', seq: n + 2, t: batch.times[n - 1]! + 1000, batch: 'B-hook' });
+    await peer.waitAck(n + 2, 60_000);
+    peer.close();
+    await until(() => refused >= 5, 'several refused attempts while the receiver is down');
+    const admin = await login(ts, 'administrator');
+    const during = await admin.get('/api/signals');
+    expect(during.body.channels[0].units[0].retrying).toMatchObject({ seq: 3, lastError: expect.stringMatching(/^HTTP 503 from http:\/\/127\.0\.0\.1:\d+\/hook$/) });
+    expect(during.body.channels[0].units[0].pending).toBeGreaterThan(2);
+    expect(got).toHaveLength(0);
+
+    down = false;
+    const db = ts.server.ctx.storage.db as unknown as { prepare(s: string): { all(): unknown[] } };
+    const rows = db.prepare("SELECT id, unit_seq, type FROM outbox WHERE unit = 'dryer-1' AND unit_seq > 2 ORDER BY unit_seq").all() as { id: string; unit_seq: number; type: string }[];
+    expect(rows.map((r) => r.type)).toContain('endpoint-state');
+    await until(() => new Set(got.map((g) => g.id)).size >= rows.length, 'every event after the receiver came back');
+    const firstSeen: number[] = [];
+    for (const g of got) {
+      expect(verifySignature(SECRET, g.sig, g.body, Date.now())).toBeNull();
+      const e = JSON.parse(g.body) as { id: string; seq: number };
+      expect(g.id).toBe(e.id);
+      if (!firstSeen.includes(e.seq)) firstSeen.push(e.seq);
+    }
+    expect(firstSeen).toEqual(rows.map((r) => r.unit_seq));
+    expect([...new Set(got.map((g) => g.id))].sort()).toEqual(rows.map((r) => r.id).sort());
+    console.log(`webhook e2e: ${rows.length} events (${rows.map((r) => r.type).join(', ')}) after ${refused} refused attempts`);
+  }, 180_000);
 });
