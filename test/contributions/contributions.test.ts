@@ -1,4 +1,5 @@
 import fc from 'fast-check';
+import { Matrix } from 'ml-matrix';
 import { describe, expect, it } from 'vitest';
 import { contributions, createContributionCalculator, sumOverRegions } from '../../core/contributions/index.ts';
 import { denseMatrix } from '../../core/linalg/dense-matrix.ts';
@@ -69,6 +70,24 @@ describe('contributions on a fitted model', () => {
     let arg = 0;
     for (let j = 1; j < 40; j++) if (c.rbcQ[j]! > c.rbcQ[arg]!) arg = j;
     expect(arg).toBe(17);
+  });
+  it('RBC equals (ξᵀMx)²/(ξᵀMξ) with M formed explicitly (ml-matrix), for both metrics', () => {
+    const P = new Matrix(40, 2);
+    for (let j = 0; j < 40; j++) for (let a = 0; a < 2; a++) P.set(j, a, m.loadings.data[j * 2 + a]!);
+    const Linv = Matrix.diag(Array.from(m.eigenvalues, (v) => 1 / v));
+    const MT2 = P.mmul(Linv).mmul(P.transpose());
+    const MQ = Matrix.eye(40).sub(P.mmul(P.transpose()));
+    const x = Array.from(X.data.subarray(40 * 7, 40 * 8), (v, j) => v + (j === 3 ? 2 : 0));
+    const xc = Matrix.columnVector(x.map((v, j) => v - m.mean[j]!));
+    const c = calc.compute(x);
+    const mxT = MT2.mmul(xc);
+    const mxQ = MQ.mmul(xc);
+    for (let j = 0; j < 40; j++) {
+      const wantT = mxT.get(j, 0) ** 2 / MT2.get(j, j);
+      const wantQ = mxQ.get(j, 0) ** 2 / MQ.get(j, j);
+      expect(Math.abs(c.rbcT2[j]! - wantT)).toBeLessThan(1e-10 * (1 + wantT));
+      expect(Math.abs(c.rbcQ[j]! - wantQ)).toBeLessThan(1e-10 * (1 + wantQ));
+    }
   });
   it('refuses a spectrum of the wrong length', () => {
     expect(() => calc.compute([1, 2])).toThrow(/2 values, the model 40/);
