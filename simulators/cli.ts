@@ -60,7 +60,8 @@ Options (stream):
                       streaming starts.
   --json              send spectra as JSON messages instead of binary frames
   --window N          maximum spectra in flight without an ack (default 64)
-  --boot N            boot epoch to announce (default: now, ms); reuse one to resume a stream
+  --boot N            boot epoch to announce (default: now, ms); every analyzer's seq counts
+                      from 0 within its boot epoch (load mode uses N, N+1, …)
   --quiet             print only the summary
 
 The simulated batches are an invented scenario for commissioning, demos and tests; they do not
@@ -221,11 +222,14 @@ async function main(argv: string[]): Promise<void> {
   const batches = intOpt(v.batches, 'batches', 1, 0, 1_000_000);
   const window = intOpt(v.window, 'window', 64, 1, 100000);
   const boot = v.boot === undefined ? undefined : intOpt(v.boot, 'boot', 0, 0, Number.MAX_SAFE_INTEGER);
-  let onSigint: () => void = () => {};
-  const stop = new Promise<void>((resolve) => (onSigint = resolve));
-  process.once('SIGINT', () => {
-    process.stderr.write('stopping (unacked spectra are not sent; resume with the same --boot)\n');
-    onSigint();
+  const stop = new AbortController();
+  process.on('SIGINT', () => {
+    if (stop.signal.aborted) {
+      process.stderr.write('quitting without waiting for acks\n');
+      process.exit(130);
+    }
+    process.stderr.write('ending the open batch(es) and waiting for the acks (Ctrl-C again to quit at once)\n');
+    stop.abort();
   });
   const quiet = v.quiet ?? false;
   const log = quiet ? undefined : (line: string) => process.stderr.write(line + '\n');
@@ -245,8 +249,8 @@ async function main(argv: string[]): Promise<void> {
       intervalS,
       boot,
       log,
-      stop,
-      onBatch: quiet ? undefined : (a, b, n) => process.stdout.write(`${a}: batch ${b} streamed and acked (${n} spectra)\n`),
+      signal: stop.signal,
+      onBatch: quiet ? undefined : (a, b, n, st) => process.stdout.write(`${a}: batch ${b} ${st ? 'stopped early' : 'streamed'} and acked (${n} spectra)\n`),
     });
     const resent = r.perAnalyzer.reduce((s, a) => s + a.stats.resent, 0);
     const reconnects = r.perAnalyzer.reduce((s, a) => s + a.stats.reconnects, 0);

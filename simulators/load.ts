@@ -56,9 +56,9 @@ export interface StreamRunOptions {
   batchPrefix?: string;
   log?: (line: string) => void;
   /** Called after each batch is fully acked. */
-  onBatch?: (analyzer: string, batchId: string, spectra: number) => void;
-  /** Resolves when the run should stop early (e.g. SIGINT). */
-  stop?: Promise<void>;
+  onBatch?: (analyzer: string, batchId: string, spectra: number, stopped: boolean) => void;
+  /** When aborted (e.g. on SIGINT) every analyzer ends its open batch at once, waits for the acks and stops. */
+  signal?: AbortSignal;
 }
 
 export interface StreamRunResult {
@@ -89,11 +89,8 @@ export async function runStreams(o: StreamRunOptions): Promise<StreamRunResult> 
         log: o.log ? (line) => o.log!(`[${id.analyzer}] ${line}`) : undefined,
       }),
   );
-  void o.stop?.then(() => {
-    // Stop at once: close every client (entries not yet acked stay unsent; the server resumes cleanly).
-    stopped = true;
-    for (const c of clients) void c.close();
-  });
+  o.signal?.addEventListener('abort', () => (stopped = true), { once: true });
+  if (o.signal?.aborted) stopped = true;
   const runOne = async (client: AnalyzerClient, id: AnalyzerIdentity, k: number) => {
     await client.start();
     for (let b = 0; (o.batches === 0 || b < o.batches) && !stopped; b++) {
@@ -107,16 +104,16 @@ export async function runStreams(o: StreamRunOptions): Promise<StreamRunResult> 
         intervalS: o.intervalS,
         product: o.product,
       });
-      await client.sendBatch(batch, { speed: o.speed, unit: id.unit ?? batch.unit });
+      const r = await client.sendBatch(batch, { speed: o.speed, unit: id.unit ?? batch.unit, signal: o.signal });
       batches++;
-      spectra += batch.spectra.length - batch.truth.dropped.length;
-      o.onBatch?.(id.analyzer, batch.id, batch.spectra.length - batch.truth.dropped.length);
+      spectra += r.spectra;
+      o.onBatch?.(id.analyzer, batch.id, r.spectra, r.stopped);
     }
   };
   try {
     const results = await Promise.allSettled(clients.map((c, k) => runOne(c, o.identities[k]!, k)));
     const failed = results.find((r): r is PromiseRejectedResult => r.status === 'rejected');
-    if (failed && !stopped) throw failed.reason;
+    if (failed) throw failed.reason;
   } finally {
     await Promise.all(clients.map((c) => c.close()));
   }

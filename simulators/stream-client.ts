@@ -64,6 +64,18 @@ export interface SendBatchOptions {
    * process in a minute, stamped as an hour). 'original': the simulated batch's own times.
    */
   timestamps?: 'process' | 'original';
+  /** When aborted, no more spectra are sent: the batch ends at once ("stopped by operator") and is flushed. */
+  signal?: AbortSignal;
+}
+
+export interface SentBatch {
+  batch: string;
+  /** Spectra sent (drop-outs and spectra after a stop are not). */
+  spectra: number;
+  /** True when the signal stopped the batch early. */
+  stopped: boolean;
+  /** seq of the batch-end. */
+  endSeq: number;
 }
 
 export interface ClientStats {
@@ -102,7 +114,18 @@ export class AnalyzerClientError extends Error {
   }
 }
 
-const sleep = (ms: number) => new Promise<void>((r) => setTimeout(r, ms));
+/** Sleep for ms, or less if the signal aborts. */
+const sleep = (ms: number, signal?: AbortSignal) =>
+  new Promise<void>((resolve) => {
+    if (signal?.aborted) return resolve();
+    const done = () => {
+      clearTimeout(timer);
+      signal?.removeEventListener('abort', done);
+      resolve();
+    };
+    const timer = setTimeout(done, ms);
+    signal?.addEventListener('abort', done, { once: true });
+  });
 
 export class AnalyzerClient {
   readonly boot: number;
@@ -152,8 +175,11 @@ export class AnalyzerClient {
     return p;
   }
 
-  /** Stream one batch: batch-start, its spectra (drop-outs skipped) paced at ×speed, batch-end; resolves when all are acked. */
-  async sendBatch(batch: SimulatedBatch, opts: SendBatchOptions): Promise<void> {
+  /**
+   * Stream one batch: batch-start, its spectra (drop-outs skipped) paced at ×speed, batch-end;
+   * resolves when all are acked. Rejects if the server refuses the stream.
+   */
+  async sendBatch(batch: SimulatedBatch, opts: SendBatchOptions): Promise<SentBatch> {
     if (!(opts.speed >= 0) || !Number.isFinite(opts.speed)) throw new AnalyzerClientError(`speed ${opts.speed} must be a finite number ≥ 0 (0 = as fast as acks allow)`);
     if (batch.axis.length !== this.opts.axis.length) {
       throw new AnalyzerClientError(`batch ${batch.id} has ${batch.axis.length} wavelengths; this analyzer's axis has ${this.opts.axis.length}`);
@@ -161,13 +187,13 @@ export class AnalyzerClient {
     if (this.sending) throw new AnalyzerClientError('a batch is already being sent on this analyzer; await it first');
     this.sending = true;
     try {
-      await this.sendBatchInner(batch, opts);
+      return await this.sendBatchInner(batch, opts);
     } finally {
       this.sending = false;
     }
   }
 
-  private async sendBatchInner(batch: SimulatedBatch, opts: SendBatchOptions): Promise<void> {
+  private async sendBatchInner(batch: SimulatedBatch, opts: SendBatchOptions): Promise<SentBatch> {
     await this.start();
     const original = opts.timestamps === 'original';
     if (this.processClock === null) this.processClock = Date.now();
@@ -178,26 +204,39 @@ export class AnalyzerClient {
     const start: BatchStartMessage = { type: 'batch-start', seq: 0, t: tOf(0), unit: opts.unit ?? batch.unit, batch: id, product: opts.product ?? batch.product };
     this.enqueue((seq) => JSON.stringify({ ...start, seq }), start.t);
     const wallStart = Date.now();
+    let sent = 0;
+    let last = 0;
+    let stopped = false;
     for (let i = 0; i < batch.spectra.length; i++) {
       this.throwIfFailed();
       if (opts.speed > 0) {
         const due = wallStart + (batch.times[i]! - batch.start) / opts.speed;
         const wait = due - Date.now();
-        if (wait > 0) await sleep(wait);
+        if (wait > 0) await sleep(wait, opts.signal);
         this.throwIfFailed();
       }
+      if (opts.signal?.aborted) {
+        stopped = true;
+        break;
+      }
+      last = i;
       if (dropped.has(i)) continue;
       const t = tOf(i);
       const values = batch.spectra[i]!;
       this.enqueue((seq) => (this.opts.binary ? encodeSpectrumFrame(seq, t, values) : encodeSpectrumJson(seq, t, values)), t);
       this.counters.spectra++;
+      sent++;
     }
-    const last = batch.spectra.length - 1;
-    const reason = batch.truth.endpointIndex === null ? 'stopped at the maximum batch time' : 'stopped after the endpoint';
+    const reason = stopped
+      ? 'stopped by operator'
+      : batch.truth.endpointIndex === null
+        ? 'stopped at the maximum batch time'
+        : 'stopped after the endpoint';
     const end: BatchEndMessage = { type: 'batch-end', seq: 0, t: tOf(last), batch: id, reason };
     const endSeq = this.enqueue((seq) => JSON.stringify({ ...end, seq }), end.t);
     if (!original) this.processClock = tOf(last) + 1;
     await this.flush(endSeq);
+    return { batch: id, spectra: sent, stopped, endSeq };
   }
 
   /** Resolves when every entry up to `seq` (default: all so far) has been acked. */

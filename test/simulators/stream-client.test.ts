@@ -132,6 +132,26 @@ describe('AnalyzerClient against a protocol-conformant test peer', () => {
     expectLogHoldsBatch(p.stream('a7')[0]!, batch);
   });
 
+  it('an aborted batch ends at once with batch-end "stopped by operator", flushed and contiguous', async () => {
+    const p = await startPeer({ tokens: { tok9: 'a9' } });
+    const batch = simulateDryerBatch({ seed: 9 });
+    const c = new AnalyzerClient({ url: p.url, token: 'tok9', analyzer: 'a9', axis: batch.axis });
+    const ac = new AbortController();
+    const sending = c.sendBatch(batch, { speed: 2000, signal: ac.signal });
+    while (c.stats().acked < 20) await new Promise((r) => setTimeout(r, 2));
+    ac.abort();
+    const r = await sending;
+    await c.close();
+    expect(r.stopped).toBe(true);
+    expect(r.spectra).toBeGreaterThanOrEqual(19);
+    expect(r.spectra).toBeLessThan(batch.spectra.length);
+    const log = p.stream('a9')[0]!;
+    log.entries.forEach((x, i) => expect(x.seq).toBe(i));
+    expect(log.entries).toHaveLength(r.spectra + 2);
+    const end = log.entries[log.entries.length - 1] as BatchEndMessage;
+    expect(end).toMatchObject({ type: 'batch-end', reason: 'stopped by operator', seq: r.endSeq });
+  });
+
   it('refuses a second batch on the same analyzer while one is being sent', async () => {
     const p = await startPeer({ tokens: { tok8: 'a8' } });
     const batch = simulateDryerBatch({ seed: 8, intervalS: 120 });
