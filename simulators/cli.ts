@@ -21,7 +21,8 @@ Usage:
   npm run sim -- stream dryer|reactor --url ws://HOST:PORT/ingest (--token T | --tokens-file FILE) [options]
       Stream simulated batches live over the Tideline ingest protocol (v1): hello, batch-start,
       spectra, batch-end with contiguous seq; waits for acks; reconnects and resends what was not
-      acked. With --analyzers N (load mode) runs N analyzers at once.
+      acked. With --analyzers N (load mode) runs N analyzers at once. Ctrl-C ends the
+      open batches ("stopped by operator") and waits for their acks.
   npm run sim -- faults
       List the fault types and their parameters.
   npm run sim -- --help
