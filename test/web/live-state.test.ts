@@ -2,7 +2,7 @@ import { describe, expect, it } from 'vitest';
 import type { LiveServerMessage } from '../../core/api/live.ts';
 import type { Alarm, BatchSummary } from '../../core/api/rest.ts';
 import type { MonitorResult } from '../../core/monitor/types.ts';
-import { applyLive, createLiveState, mergeResults, sortAlarms } from '../../web/src/live/live-state.ts';
+import { applyLive, createLiveState, mergeResults, setBatch, sortAlarms } from '../../web/src/live/live-state.ts';
 import { SeriesBuffer } from '../../web/src/live/series-buffer.ts';
 
 function result(seq: number, over: Partial<MonitorResult> = {}): MonitorResult {
@@ -66,12 +66,11 @@ describe('live state reduction', () => {
     expect(s.lostMessages).toBe(false);
   });
 
-  it('ignores duplicates and reordered results, and results of another batch', () => {
+  it('ignores duplicates and reordered results', () => {
     const s = createLiveState();
     applyLive(s, snapshot(1, [result(0), result(1)]));
     expect(applyLive(s, res(2, result(1))).series).toBe(false);
     expect(applyLive(s, res(3, result(0))).series).toBe(false);
-    expect(applyLive(s, res(4, result(5), 'B2')).series).toBe(false);
     expect(s.series.length).toBe(2);
     expect(s.ignored).toBe(2);
   });
@@ -158,5 +157,36 @@ describe('series buffer', () => {
     expect(Number.isNaN(b.at('v', 100))).toBe(true);
     b.keepLast(2);
     expect(Array.from(b.view('seq'))).toEqual([198, 500]);
+  });
+});
+
+describe('unit scope follows the open batch', () => {
+  it('starts a new series when a batch starts, and after results of a new batch fetches its summary', () => {
+    const s = createLiveState();
+    s.subscription = 's1';
+    applyLive(s, { type: 'snapshot', ...env, n: 1, scope: { kind: 'unit', unit: 'dryer-1' }, units: [], alarms: [], batch: null, results: [], truncatedBefore: null, model: null });
+    const c = applyLive(s, { type: 'batch', ...env, n: 2, event: 'started', batch });
+    expect(c.batch).toBe(true);
+    expect(s.batch?.id).toBe('B1');
+    applyLive(s, res(3, result(0)));
+    applyLive(s, res(4, result(1)));
+    expect(s.series.length).toBe(2);
+    // The next batch's first result arrives before (or without) its 'batch' message.
+    applyLive(s, res(5, result(0), 'B2'));
+    expect(s.batch).toBeNull();
+    expect(s.pendingBatch).toBe('B2');
+    expect(Array.from(s.series.view('seq'))).toEqual([0]);
+    expect(setBatch(s, { ...batch, id: 'B9' })).toBe(false);
+    expect(setBatch(s, { ...batch, id: 'B2' })).toBe(true);
+    expect(s.batch?.id).toBe('B2');
+    applyLive(s, res(6, result(1), 'B2'));
+    expect(s.series.length).toBe(2);
+  });
+  it('batch scope ignores results of other batches', () => {
+    const s = createLiveState();
+    applyLive(s, { type: 'snapshot', ...env, n: 1, scope: { kind: 'batch', batch: 'B1' }, units: [], alarms: [], batch, results: [result(0)], truncatedBefore: null, model: null });
+    applyLive(s, res(2, result(1), 'B2'));
+    expect(s.series.length).toBe(1);
+    expect(s.batch?.id).toBe('B1');
   });
 });

@@ -59,3 +59,13 @@ describe('number formatting', () => {
     expect(ofLimit(4.2, 0)).toBe('—');
   });
 });
+
+describe('share of limit', () => {
+  it('writes a statistic as a percentage of its limit', async () => {
+    const { ofLimitPct } = await import('../../web/src/format/number-format.ts');
+    expect(ofLimitPct(1.14e-4, 3.1e-4)).toBe('37 % of limit');
+    expect(ofLimitPct(25, 10)).toBe('250 % of limit');
+    expect(ofLimitPct(2500, 10)).toBe('25000 % of limit');
+    expect(ofLimitPct(1, 0)).toBe('—');
+  });
+});

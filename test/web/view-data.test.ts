@@ -1,11 +1,11 @@
 import { describe, expect, it } from 'vitest';
 import type { BatchDetail, EvaluationResult, ModelEnvelopeView } from '../../core/api/rest.ts';
 import type { Contributions, MonitorResult } from '../../core/monitor/types.ts';
-import { departureWindow, firstExit, meanContributions, sampleSeqs, timeline } from '../../web/src/views/review-data.ts';
+import { departureWindow, firstExit, meanContributions, regionShares, sampleSeqs, timeline } from '../../web/src/views/review-data.ts';
 import { ledgerQuery, summariseChange } from '../../web/src/views/ledger-data.ts';
 import { CHAIN_PRESETS, buildSettingsFromForm, spreadIndices, summariseEvaluation } from '../../web/src/views/bench-data.ts';
 import { availablePcs, goldenPath, progressLabel, referencePaths, scoreBand } from '../../web/src/views/watch-data.ts';
-import { contributionSeries, topRegions } from '../../web/src/views/contribution-data.ts';
+import { contributionSeries, topRegions, topShares } from '../../web/src/views/contribution-data.ts';
 import { sortedByAxis } from '../../web/src/views/spectrum-data.ts';
 import { niceTicks } from '../../web/src/charts/scatter-svg.tsx';
 import { validateChainSpec } from '../../core/preprocess/index.ts';
@@ -34,15 +34,25 @@ describe('Review helpers', () => {
     expect(departureWindow(rs, 1)).toEqual({ fromSeq: 2, toSeq: 5 });
     expect(departureWindow(rs, 3)).toEqual({ fromSeq: 2, toSeq: 5 });
     expect(departureWindow(rs, 4)).toEqual({ fromSeq: 2, toSeq: 10 });
+    // A lone early outlier is not the departure; the first sustained run is.
+    const lone = [r(0, { t2: 50 }), r(1), r(2), r(3), r(4), r(5, { q: 3 }), r(6, { q: 3 }), r(7, { out: 'below' }), r(8)];
+    expect(departureWindow(lone, 3, 3)).toEqual({ fromSeq: 5, toSeq: 7 });
+    expect(departureWindow(lone, 3, 5)).toEqual({ fromSeq: 5, toSeq: 7 });
     expect(departureWindow([r(0)])).toBeNull();
   });
   it('timeline orders start, first exit, alarms, endpoint and end by minutes from start', () => {
     const b = { startedAt: 0, endedAt: 12 * 60_000, endReason: 'discharged', endpointEvents: [{ id: 'e', unit: 'u', batch: 'b', from: 'settling', to: 'done', t: 9 * 60_000, seq: 9, reason: 'x', recordedAt: 0 }] } as unknown as BatchDetail;
-    const alarms = [{ priority: 2, message: 'T² 12 > 10', raisedAt: 3.5 * 60_000, clearedAt: 4 * 60_000, key: 't2' }] as never;
+    // One alarm without a spectrum (placed by time), one raised by spectrum #5 on a different clock (placed by seq).
+    const alarms = [
+      { priority: 2, message: 'data stale', raisedAt: 3.5 * 60_000, clearedAt: 4 * 60_000, key: 'stale', seq: null },
+      { priority: 2, message: 'Q 2 > 1', raisedAt: 9e12, clearedAt: null, key: 'q', seq: 5 },
+    ] as never;
     const t = timeline(b, rs, alarms);
-    expect(t.map((e) => e.kind)).toEqual(['start', 'first-exit', 'alarm', 'alarm-cleared', 'endpoint', 'end']);
-    expect(t[5]!.label).toBe('batch end (discharged)');
+    expect(t.map((e) => e.kind)).toEqual(['start', 'first-exit', 'alarm', 'alarm-cleared', 'alarm', 'endpoint', 'end']);
+    expect(t[6]!.label).toBe('batch end (discharged)');
     expect(t[2]!.tMin).toBe(3.5);
+    expect(t[4]!.tMin).toBe(5);
+    expect(t[5]!.tMin).toBe(9);
   });
   it('averages contributions and their region sums; samples seqs in the window', () => {
     const c = (k: number): Contributions => ({ axis: [1, 2], t2: [k, 2 * k], q: [k, 0], rbcT2: [0, 0], rbcQ: [k, k], regions: [{ name: 'O–H', from: 1, to: 2, assignment: 'water', t2: 3 * k, q: k }] });
@@ -120,6 +130,12 @@ describe('Watch helpers', () => {
 describe('chart data helpers', () => {
   it('sorts a descending wavelength axis and reorders series with it', () => {
     expect(sortedByAxis([3, 2, 1], [[30, 20, 10]])).toEqual({ axis: [1, 2, 3], series: [[10, 20, 30]] });
+  });
+  it('region shares are parts of the summed contribution', () => {
+    const c: Contributions = { axis: [1, 2, 3, 4], t2: [1, 1, 1, 1], q: [0, 2, 2, 4], rbcT2: [0, 0, 0, 0], rbcQ: [0, 0, 0, 0], regions: [
+      { name: 'a', from: 1, to: 2, assignment: 'x', t2: 2, q: 2 }, { name: 'b', from: 3, to: 4, assignment: 'y', t2: 2, q: 6 }] };
+    expect(regionShares(c).map((x) => [x.t2Share, x.qShare])).toEqual([[0.5, 0.25], [0.5, 0.75]]);
+    expect(topShares(c, 'q', 1)[0]!.name).toBe('b');
   });
   it('contribution series ascend in wavelength; top regions by size', () => {
     const c: Contributions = { axis: [1500, 1400], t2: [1, 2], q: [3, 4], rbcT2: [0, 0], rbcQ: [0, 0], regions: [

@@ -173,7 +173,8 @@ export function drawMarker(ctx: CanvasRenderingContext2D, shape: MarkerShape, x:
  * Markers on points of series `seriesIdx` outside the band (▲ above, ▼ below) or above a limit
  * (▲). The status of each point comes, in order of preference, from a precomputed column
  * (1 above, −1 below, as the monitor judged it), from a limit per point, or from the band.
- * Only points in the visible x range are visited; at most one marker per 3 px column.
+ * Only points in the visible x range are visited; at most one marker per 6 px, so dense runs of
+ * markers do not hide the line.
  */
 export function outsideMarkersPlugin(
   seriesIdx: number,
@@ -218,7 +219,7 @@ export function outsideMarkersPlugin(
           }
           if (!shape) continue;
           const X = px(u, xs[i], 'x');
-          if (X - lastX < 3 * uPlot.pxRatio) continue;
+          if (X - lastX < 6 * uPlot.pxRatio) continue;
           lastX = X;
           drawMarker(ctx, shape, X, px(u, y, yKey), r);
           ctx.fill();

@@ -114,3 +114,10 @@ export function ofLimit(value: number | null | undefined, limit: number | null |
   if (!isNum(value) || !isNum(limit) || limit <= 0) return NO_VALUE;
   return `${fixed(value / limit, 2)} × limit`;
 }
+
+/** A statistic as a share of its limit: "64 % of limit" (100 % = on the limit). */
+export function ofLimitPct(value: number | null | undefined, limit: number | null | undefined): string {
+  if (!isNum(value) || !isNum(limit) || limit <= 0) return NO_VALUE;
+  const pct = (100 * value) / limit;
+  return `${pct >= 1000 ? sig(pct, 3) : fixed(pct, 0)} % of limit`;
+}

@@ -4,7 +4,7 @@
  * view re-renders only the parts that need it. Deterministic: no clock, no I/O.
  */
 import type { Alarm, BatchSummary, ModelRef } from '../../../core/api/rest.ts';
-import type { LiveServerMessage, LiveUnitStatus } from '../../../core/api/live.ts';
+import type { LiveScope, LiveServerMessage, LiveUnitStatus } from '../../../core/api/live.ts';
 import type { EndpointStatus, MonitorResult } from '../../../core/monitor/types.ts';
 import { SeriesBuffer } from './series-buffer.ts';
 
@@ -28,6 +28,13 @@ export function envCol(pc: number): EnvCol {
 
 export interface LiveState {
   subscription: string | null;
+  /** Scope of the last snapshot. */
+  scope: LiveScope | null;
+  /**
+   * Unit scope: results arrived for a batch whose summary has not come (a batch started between
+   * messages); the view fetches it by REST and sets `batch`.
+   */
+  pendingBatch: string | null;
   /** Last per-connection counter seen; a jump means messages were lost. */
   lastN: number;
   /** True when a counter jump was seen since the last snapshot (the view should resubscribe). */
@@ -65,6 +72,8 @@ const none = (): Changes => ({ units: false, alarms: false, batch: false, series
 export function createLiveState(maxRows = 50_000): LiveState {
   return {
     subscription: null,
+    scope: null,
+    pendingBatch: null,
     lastN: 0,
     lostMessages: false,
     serverTime: null,
@@ -158,6 +167,26 @@ export function mergeResults(s: LiveState, results: MonitorResult[]): void {
   if (latest) s.endpoint = latest.endpoint;
 }
 
+/** Forget the previous batch's series and follow a new one. */
+function startBatch(s: LiveState, b: BatchSummary | null): void {
+  s.batch = b;
+  s.pendingBatch = null;
+  s.series.clear();
+  s.latest = null;
+  s.endpoint = null;
+  s.gaps = [];
+  s.truncatedBefore = null;
+  s.predictionLabel = null;
+}
+
+/** Set the summary of the batch the view fetched after `pendingBatch` was set. */
+export function setBatch(s: LiveState, b: BatchSummary): boolean {
+  if (s.pendingBatch !== b.id) return false;
+  s.batch = b;
+  s.pendingBatch = null;
+  return true;
+}
+
 /** Apply one server message. Returns what changed. */
 export function applyLive(s: LiveState, m: LiveServerMessage): Changes {
   const c = none();
@@ -176,6 +205,8 @@ export function applyLive(s: LiveState, m: LiveServerMessage): Changes {
       return { ...c, batch: true };
     case 'snapshot': {
       s.lostMessages = false;
+      s.scope = m.scope;
+      s.pendingBatch = null;
       s.units = new Map(m.units.map((u) => [u.id, u]));
       s.alarms = new Map(m.alarms.map((a) => [a.id, a]));
       s.batch = m.batch;
@@ -189,7 +220,17 @@ export function applyLive(s: LiveState, m: LiveServerMessage): Changes {
       return { units: true, alarms: true, batch: true, series: true, endpoint: true };
     }
     case 'result': {
-      if (s.batch && m.batch !== s.batch.id) return c;
+      if (s.batch && m.batch !== s.batch.id) {
+        // Unit scope follows the unit's open batch: a result of another batch means a new batch began.
+        if (s.scope?.kind !== 'unit' || s.scope.unit !== m.unit) return c;
+        startBatch(s, null);
+        s.pendingBatch = m.batch;
+        c.batch = true;
+      } else if (!s.batch && s.scope?.kind === 'unit' && s.pendingBatch !== m.batch) {
+        startBatch(s, null);
+        s.pendingBatch = m.batch;
+        c.batch = true;
+      }
       c.series = appendResult(s, m.result);
       c.endpoint = c.series;
       return c;
@@ -220,6 +261,15 @@ export function applyLive(s: LiveState, m: LiveServerMessage): Changes {
       if (s.batch && s.batch.id === m.batch.id) {
         s.batch = m.batch;
         c.batch = true;
+      } else if (s.pendingBatch === m.batch.id) {
+        s.batch = m.batch;
+        s.pendingBatch = null;
+        c.batch = true;
+      } else if (m.event === 'started' && s.scope?.kind === 'unit' && s.scope.unit === m.batch.unit) {
+        startBatch(s, m.batch);
+        c.batch = true;
+        c.series = true;
+        c.endpoint = true;
       }
       return c;
     case 'gap':

@@ -1,7 +1,7 @@
 import { useEffect, useRef, useState } from 'preact/hooks';
 import type { LiveScope, LiveServerMessage } from '../../../core/api/live.ts';
 import type { Changes, LiveState } from './live-state.ts';
-import { applyLive, createLiveState, mergeResults } from './live-state.ts';
+import { applyLive, createLiveState, mergeResults, setBatch } from './live-state.ts';
 import type { ConnectionState } from './live-socket.ts';
 import { LiveSocket } from './live-socket.ts';
 import { api } from '../api/endpoints.ts';
@@ -33,6 +33,7 @@ export function useLive(scope: LiveScope | null, maxResults?: number): LiveHandl
     let pending: Changes | null = null;
     let frame = 0;
     let fetchingGap = false;
+    let fetchingBatch = false;
     const flush = () => {
       frame = 0;
       const c = pending!;
@@ -40,6 +41,19 @@ export function useLive(scope: LiveScope | null, maxResults?: number): LiveHandl
       if (c.series) seriesListeners.current.forEach((f) => f());
       if (c.units || c.alarms || c.batch || c.endpoint) setVersion((v) => v + 1);
       if (s.lostMessages) sock.resubscribe();
+      if (s.pendingBatch && !fetchingBatch) {
+        const id = s.pendingBatch;
+        fetchingBatch = true;
+        api.batch(id).then(
+          (b) => {
+            fetchingBatch = false;
+            if (setBatch(s, b)) schedule({ units: false, alarms: false, batch: true, series: false, endpoint: false });
+          },
+          () => {
+            fetchingBatch = false;
+          },
+        );
+      }
       if (s.gaps.length && s.batch && !fetchingGap) {
         const g = s.gaps.shift()!;
         fetchingGap = true;

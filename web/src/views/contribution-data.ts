@@ -1,4 +1,5 @@
 import type { Contributions } from '../../../core/monitor/types.ts';
+import { regionShares } from './review-data.ts';
 
 export type ContributionKind = 'q' | 't2' | 'rbcQ' | 'rbcT2';
 
@@ -12,4 +13,10 @@ export function contributionSeries(c: Contributions, kind: ContributionKind): [n
 /** Regions ordered by their share of the statistic, largest first. */
 export function topRegions(c: Contributions, by: 't2' | 'q', n: number): Contributions['regions'] {
   return [...c.regions].sort((a, b) => Math.abs(b[by]) - Math.abs(a[by])).slice(0, n);
+}
+
+/** Regions with their shares of the statistic, largest share first. */
+export function topShares(c: Contributions, by: 't2' | 'q', n: number): ReturnType<typeof regionShares> {
+  const k = by === 't2' ? 't2Share' : 'qShare';
+  return regionShares(c).sort((a, b) => Math.abs(b[k]) - Math.abs(a[k])).slice(0, n);
 }

@@ -6,9 +6,9 @@ import { useAsync } from '../components/use-async.ts';
 import { Chart } from '../charts/chart.tsx';
 import { contributionOptions } from '../charts/chart-options.ts';
 import { ErrorBox, Loading } from '../components/status.tsx';
-import { clock, sig } from '../format/number-format.ts';
+import { clock, percent, sig } from '../format/number-format.ts';
 import { STYLE } from '../theme/palette.ts';
-import { contributionSeries, topRegions } from './contribution-data.ts';
+import { contributionSeries, topShares } from './contribution-data.ts';
 import type { ContributionKind } from './contribution-data.ts';
 
 export function ContributionsPanel({ batch, seq, onClose }: { batch: string; seq: number; onClose?: () => void }) {
@@ -57,20 +57,20 @@ export function ContributionsPanel({ batch, seq, onClose }: { batch: string; seq
                 <th scope="col">region</th>
                 <th scope="col">nm</th>
                 <th scope="col">assignment</th>
-                <th scope="col" class="num">T² part</th>
-                <th scope="col" class="num">Q part</th>
+                <th scope="col" class="num">share of T²</th>
+                <th scope="col" class="num">share of Q</th>
               </tr>
             </thead>
             <tbody>
-              {topRegions(c, kind === 't2' || kind === 'rbcT2' ? 't2' : 'q', 5).map((r) => (
+              {topShares(c, kind === 't2' || kind === 'rbcT2' ? 't2' : 'q', 5).map((r) => (
                 <tr key={r.name}>
                   <td>{r.name}</td>
                   <td>
                     {sig(r.from, 4)}–{sig(r.to, 4)}
                   </td>
                   <td>{r.assignment}</td>
-                  <td class="num">{sig(r.t2)}</td>
-                  <td class="num">{sig(r.q)}</td>
+                  <td class="num">{percent(r.t2Share)}</td>
+                  <td class="num">{percent(r.qShare)}</td>
                 </tr>
               ))}
             </tbody>

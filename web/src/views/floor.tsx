@@ -3,7 +3,7 @@ import type { LiveUnitStatus } from '../../../core/api/live.ts';
 import { useLive } from '../live/use-live.ts';
 import { Badge, Empty, Loading } from '../components/status.tsx';
 import { ENDPOINT_WORDS, UNIT_STATUS_WORDS, limitStatus, PRIORITY_WORDS } from '../format/status-words.ts';
-import { age, eta, fixed, minutes, percent, sig, withUnit } from '../format/number-format.ts';
+import { age, eta, fixed, minutes, ofLimitPct, percent, sig, withUnit } from '../format/number-format.ts';
 import { href } from '../router.ts';
 
 export function Floor({ now }: { now: number }) {
@@ -70,11 +70,11 @@ function UnitTile({ u, now }: { u: LiveUnitStatus; now: number }) {
             </dd>
             <dt>T²</dt>
             <dd>
-              <Badge tone={t2.tone}>{t2.text}</Badge> <span class="num">{sig(p?.t2)} / {sig(p?.t2Limit)}</span>
+              <Badge tone={t2.tone}>{t2.text}</Badge> <span class="num" title={`T² ${sig(p?.t2)}, limit ${sig(p?.t2Limit)}`}>{ofLimitPct(p?.t2, p?.t2Limit)}</span>
             </dd>
             <dt>Q</dt>
             <dd>
-              <Badge tone={q.tone}>{q.text}</Badge> <span class="num">{sig(p?.q)} / {sig(p?.qLimit)}</span>
+              <Badge tone={q.tone}>{q.text}</Badge> <span class="num" title={`Q ${sig(p?.q)}, limit ${sig(p?.qLimit)}`}>{ofLimitPct(p?.q, p?.qLimit)}</span>
             </dd>
             {p?.prediction && (
               <>
@@ -99,9 +99,11 @@ function UnitTile({ u, now }: { u: LiveUnitStatus; now: number }) {
         {u.activeAlarms > 0 ? (
           <Badge tone={u.unacknowledgedAlarms ? 'alarm' : 'warn'}>
             {u.activeAlarms} active alarm{u.activeAlarms === 1 ? '' : 's'}
-            {u.unacknowledgedAlarms ? `, ${u.unacknowledgedAlarms} not acknowledged` : ''}
+            {u.unacknowledgedAlarms ? ` · ${u.unacknowledgedAlarms} to acknowledge` : ''}
             {u.highestPriority ? ` · ${PRIORITY_WORDS[u.highestPriority]}` : ''}
           </Badge>
+        ) : u.unacknowledgedAlarms > 0 ? (
+          <Badge tone="info">{u.unacknowledgedAlarms} cleared alarm{u.unacknowledgedAlarms === 1 ? '' : 's'} to acknowledge</Badge>
         ) : (
           <span class="muted">no active alarms</span>
         )}

@@ -20,36 +20,60 @@ export function firstExit(results: MonitorResult[]): { result: MonitorResult; wh
 }
 
 /**
- * The departure window: from the first exit to the last consecutive result still outside (allowing
- * gaps of up to `tolerance` results back inside). Returns seq bounds, or null.
+ * The departure window: the first run of results outside the envelope or above a limit that holds
+ * at least `minPoints` such results (short returns inside of up to `tolerance` results are bridged),
+ * from its first to its last result out. A lone outlier does not make a departure; when no run is
+ * long enough the longest run is taken. Returns seq bounds, or null when nothing was ever out.
  */
-export function departureWindow(results: MonitorResult[], tolerance = 3): { fromSeq: number; toSeq: number } | null {
+export function departureWindow(results: MonitorResult[], tolerance = 3, minPoints = 3): { fromSeq: number; toSeq: number } | null {
   const out = (r: MonitorResult) => r.envelope.some((e) => e.status !== 'inside') || r.t2 > r.limits.t2 || r.q > r.limits.q;
-  const i0 = results.findIndex(out);
-  if (i0 < 0) return null;
-  let last = i0;
+  const runs: { from: number; to: number; count: number }[] = [];
+  let cur: { from: number; to: number; count: number } | null = null;
   let inside = 0;
-  for (let i = i0 + 1; i < results.length; i++) {
+  for (let i = 0; i < results.length; i++) {
     if (out(results[i])) {
-      last = i;
+      if (cur) {
+        cur.to = i;
+        cur.count++;
+      } else cur = { from: i, to: i, count: 1 };
       inside = 0;
-    } else if (++inside > tolerance) break;
+    } else if (cur && ++inside > tolerance) {
+      runs.push(cur);
+      cur = null;
+    }
   }
-  return { fromSeq: results[i0].seq, toSeq: results[last].seq };
+  if (cur) runs.push(cur);
+  if (runs.length === 0) return null;
+  const run = runs.find((r) => r.count >= minPoints) ?? runs.reduce((a, b) => (b.count > a.count ? b : a));
+  return { fromSeq: results[run.from].seq, toSeq: results[run.to].seq };
 }
 
+/**
+ * Events of a batch on its own clock (minutes from start). Alarms and endpoint changes are placed
+ * by the seq of the spectrum that caused them when that result is known (the server stamps them
+ * with its own clock, which differs from the analyzer's for replayed or accelerated data).
+ */
 export function timeline(b: BatchDetail, results: MonitorResult[], alarms: Alarm[]): TimelineEvent[] {
-  const m = (t: number) => (t - b.startedAt) / 60000;
+  const bySeq = new Map(results.map((r) => [r.seq, r.elapsedMin]));
+  const at = (seq: number | null, t: number) => (seq !== null && bySeq.has(seq) ? bySeq.get(seq)! : (t - b.startedAt) / 60000);
   const ev: TimelineEvent[] = [{ tMin: 0, kind: 'start', label: 'batch start' }];
   const fe = firstExit(results);
   if (fe) ev.push({ tMin: fe.result.elapsedMin, kind: 'first-exit', label: `first exit: ${fe.what}` });
   for (const a of alarms) {
-    ev.push({ tMin: m(a.raisedAt), kind: 'alarm', label: `alarm P${a.priority}: ${a.message}` });
-    if (a.clearedAt !== null) ev.push({ tMin: m(a.clearedAt), kind: 'alarm-cleared', label: `alarm cleared (${a.key})` });
+    ev.push({ tMin: at(a.seq, a.raisedAt), kind: 'alarm', label: `alarm P${a.priority}: ${a.message}` });
+    if (a.clearedAt !== null && a.seq === null) ev.push({ tMin: (a.clearedAt - b.startedAt) / 60000, kind: 'alarm-cleared', label: `alarm cleared (${a.key})` });
   }
-  for (const e of b.endpointEvents) ev.push({ tMin: m(e.t), kind: 'endpoint', label: `endpoint ${e.from} → ${e.to}` });
-  if (b.endedAt !== null) ev.push({ tMin: m(b.endedAt), kind: 'end', label: `batch end${b.endReason ? ` (${b.endReason})` : ''}` });
+  for (const e of b.endpointEvents) ev.push({ tMin: at(e.seq, e.t), kind: 'endpoint', label: `endpoint ${e.from} → ${e.to}` });
+  if (b.endedAt !== null) ev.push({ tMin: (b.endedAt - b.startedAt) / 60000, kind: 'end', label: `batch end${b.endReason ? ` (${b.endReason})` : ''}` });
   return ev.sort((a, b2) => a.tMin - b2.tMin);
+}
+
+/** Shares of each region in the summed contribution (0…1), by T² and by Q. */
+export function regionShares(c: Contributions): { name: string; from: number; to: number; assignment: string; t2Share: number; qShare: number }[] {
+  const sum = (v: number[]) => v.reduce((a, x) => a + x, 0);
+  const t2 = sum(c.t2);
+  const q = sum(c.q);
+  return c.regions.map((r) => ({ name: r.name, from: r.from, to: r.to, assignment: r.assignment, t2Share: t2 ? r.t2 / t2 : NaN, qShare: q ? r.q / q : NaN }));
 }
 
 /** Mean of several contribution vectors (same axis) and of their region sums. */

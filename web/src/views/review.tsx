@@ -12,10 +12,11 @@ import { Chart } from '../charts/chart.tsx';
 import { contributionOptions, scoreChartOptions, statChartOptions } from '../charts/chart-options.ts';
 import { progressLabel, scoreBand } from './watch-data.ts';
 import { departureWindow, meanContributions, sampleSeqs, timeline } from './review-data.ts';
+import { topShares } from './contribution-data.ts';
 import type { TimelineEvent } from './review-data.ts';
-import { contributionSeries, topRegions } from './contribution-data.ts';
+import { contributionSeries } from './contribution-data.ts';
 import { ENDPOINT_WORDS } from '../format/status-words.ts';
-import { dateTime, limitName, minutes, sig } from '../format/number-format.ts';
+import { dateTime, limitName, minutes, percent, sig } from '../format/number-format.ts';
 import { COMPARE_STYLES, STYLE } from '../theme/palette.ts';
 import type { SeriesStyle } from '../theme/palette.ts';
 import { href } from '../router.ts';
@@ -264,12 +265,14 @@ function StatsOverTime({ rs, win }: { rs: ResultRecord[]; win: { fromSeq: number
         {(['T²', 'Q'] as const).map((stat) => {
           const y = rs.map((r) => (stat === 'T²' ? r.t2 : r.q));
           const lim = rs[rs.length - 1] ? (stat === 'T²' ? rs[rs.length - 1].limits.t2 : rs[rs.length - 1].limits.q) : NaN;
+          // A departure far above the limit would flatten the limit line to the axis: use a log scale then.
+          const log = Math.max(...y) > 20 * lim && y.every((v) => v > 0);
           return (
             <Chart
               key={stat}
               title={`${stat} over the batch`}
               height={200}
-              optsKey={`rev-${stat}-${rs.length}`}
+              optsKey={`rev-${stat}-${rs.length}-${log}`}
               data={[x, y] as unknown as uPlot.AlignedData}
               legend={[{ style: STYLE.batch, label: stat }, { style: STYLE.limit, label: limitName(stat, conf) }, { style: { ...STYLE.outside, label: 'above limit ▲' } }]}
               make={(w, h) =>
@@ -277,10 +280,10 @@ function StatsOverTime({ rs, win }: { rs: ResultRecord[]; win: { fromSeq: number
                   width: w,
                   height: h,
                   stat,
-                  log: false,
+                  log,
                   hasLocal: false,
                   xLabel: 'elapsed time (min)',
-                  yLabel: stat,
+                  yLabel: log ? `${stat} (log scale)` : stat,
                   getLines: () => [{ value: lim, label: limitName(stat, conf), style: STYLE.limit }],
                   limitAt: () => lim,
                   getValues: () => y,
@@ -328,20 +331,20 @@ function DepartureContributions({ batch, results, win }: { batch: string; result
                 <th scope="col">region</th>
                 <th scope="col">nm</th>
                 <th scope="col">assignment</th>
-                <th scope="col" class="num">T² part</th>
-                <th scope="col" class="num">Q part</th>
+                <th scope="col" class="num">share of T²</th>
+                <th scope="col" class="num">share of Q</th>
               </tr>
             </thead>
             <tbody>
-              {topRegions(mean, 'q', 6).map((r) => (
+              {topShares(mean, 'q', 6).map((r) => (
                 <tr key={r.name}>
                   <td>{r.name}</td>
                   <td>
                     {sig(r.from, 4)}–{sig(r.to, 4)}
                   </td>
                   <td>{r.assignment}</td>
-                  <td class="num">{sig(r.t2)}</td>
-                  <td class="num">{sig(r.q)}</td>
+                  <td class="num">{percent(r.t2Share)}</td>
+                  <td class="num">{percent(r.qShare)}</td>
                 </tr>
               ))}
             </tbody>
