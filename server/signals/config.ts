@@ -63,6 +63,11 @@ export const signalsConfigSchema = z
     webhooks: z.array(webhookSchema).default([]),
     mqtt: mqttSchema.nullable().default(null),
     opcua: opcuaSchema.nullable().default(null),
+    /**
+     * A channel configured for the first time on a server with history: false (default) sends only
+     * events written from then on; true sends the whole outbox history first.
+     */
+    replayHistory: z.boolean().default(false),
     /** Idle poll interval of the delivery loops, ms. */
     pollMs: z.number().int().min(10).max(60_000).default(500),
   })

@@ -35,7 +35,7 @@ export interface DispatcherOptions {
   onError?: (channel: string, event: SignalEnvelope, error: Error, attempts: number, dead: boolean) => void;
   /** Called after the receiver confirmed an event and the cursor moved past it. */
   onDelivered?: (channel: string, event: SignalEnvelope) => void;
-  /** New channels start at the end of the outbox instead of replaying it (default false: replay). */
+  /** A channel running for the first time starts at the end of the outbox instead of replaying it (default false: replay). */
   startAtEnd?: boolean;
 }
 
@@ -69,7 +69,7 @@ export class SignalDispatcher {
   start(): void {
     if (!this.stopped) return;
     this.stopped = false;
-    if (this.opts.startAtEnd) this.store.startAtEnd(this.channel.name, this.now());
+    this.store.registerChannel(this.channel.name, this.now(), this.opts.startAtEnd ?? false);
     this.loop = this.run();
   }
 

@@ -67,6 +67,7 @@ export async function install(ctx: ServerContext): Promise<SignalsHandle> {
       new SignalDispatcher(store, ch, {
         pollMs: cfg.pollMs,
         now: ctx.now,
+        startAtEnd: !cfg.replayHistory,
         onDelivered,
         onError: (channel, e, err, attempts, dead) => {
           const text = `signals/${channel}: event ${e.id} (${e.unit} #${e.seq}) attempt ${attempts} failed: ${err.message}${dead ? ' — dead-lettered' : ''}`;
@@ -75,6 +76,8 @@ export async function install(ctx: ServerContext): Promise<SignalsHandle> {
         },
       }),
   );
+  // register before the channels rebuild their state from what they already delivered
+  for (const ch of channels) store.registerChannel(ch.name, ctx.now(), !cfg.replayHistory);
   if (mqtt) {
     const d = dispatchers[channels.indexOf(mqtt)]!;
     mqtt.onReady = () => d.wake();

@@ -133,20 +133,23 @@ export class OutboxStore {
   }
 
   /**
-   * Start a new channel at the current end of the outbox (it will not replay history), unless it
-   * already has a cursor. Returns true when a cursor was created.
+   * Register a channel the first time it runs. With `startAtEnd` a new channel's cursors are set to
+   * the current end of the outbox, so it sends only events written from now on; a channel seen
+   * before always resumes from its cursors. Returns true when the channel was new.
    */
-  startAtEnd(channel: string, now: number): boolean {
-    let created = false;
-    this.db.transaction(() => {
-      for (const unit of this.units()) {
-        if (this.sCursor.get(channel, unit)) continue;
-        const max = this.db.prepare<[string], { m: number | null }>('SELECT MAX(unit_seq) AS m FROM outbox WHERE unit = ?').get(unit)?.m ?? 0;
-        this.sSetCursor.run({ channel, unit, seq: max, now });
-        created = true;
+  registerChannel(channel: string, now: number, startAtEnd: boolean): boolean {
+    return this.db.transaction(() => {
+      const known = this.db.prepare<[string], { channel: string }>('SELECT channel FROM signal_channel WHERE channel = ?').get(channel);
+      if (known) return false;
+      this.db.prepare('INSERT INTO signal_channel (channel, registered_at, started_at_end) VALUES (?, ?, ?)').run(channel, now, startAtEnd ? 1 : 0);
+      if (startAtEnd) {
+        for (const unit of this.units()) {
+          const max = this.db.prepare<[string], { m: number | null }>('SELECT MAX(unit_seq) AS m FROM outbox WHERE unit = ?').get(unit)?.m ?? 0;
+          this.sSetCursor.run({ channel, unit, seq: max, now });
+        }
       }
+      return true;
     })();
-    return created;
   }
 
   markDelivered(channel: string, row: OutboxRow, now: number): void {

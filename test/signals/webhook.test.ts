@@ -191,4 +191,38 @@ print(bad, len(items))
     await until(() => received.length === 2, 'the requeued event');
     expect(store.deadLetter('webhook:mes', a.id)!.delivered_at).not.toBeNull();
   });
+
+  it('a channel added to a server with history starts at the end; once registered it resumes, never skips', async () => {
+    const db = openSignalDb();
+    cleanups.push(() => {
+      db.close();
+    });
+    const store = new OutboxStore(db);
+    for (let i = 0; i < 3; i++) appendOutbox(db, 'dryer-1', 'endpoint-state', { old: i }, T0 + i);
+    const received: Received[] = [];
+    let up = true;
+    const server = receiver(received, () => (up ? 200 : 503));
+    const port = await listen(server);
+    cleanups.push(() => new Promise<void>((r) => server.close(() => r())));
+    const make = () =>
+      new SignalDispatcher(store, new WebhookChannel({ name: 'late', url: `http://127.0.0.1:${port}/`, secret: SECRET, maxAttempts: 1000, backoff: { baseMs: 5, capMs: 20 }, timeoutMs: 2000 }), { pollMs: 10, startAtEnd: true });
+    let d = make();
+    d.start();
+    const fresh = appendOutbox(db, 'dryer-1', 'endpoint-state', { new: 1 }, T0 + 10);
+    d.wake();
+    await until(() => received.length === 1, 'the new event');
+    expect(JSON.parse(received[0]!.body).id).toBe(fresh.id);
+    // stopped while events wait (receiver down): the next start resumes with them
+    up = false;
+    const waiting = [appendOutbox(db, 'dryer-1', 'alarm', { w: 1 }, T0 + 11), appendOutbox(db, 'dryer-2', 'alarm', { w: 2 }, T0 + 12)];
+    d.wake();
+    await until(() => store.attempt('webhook:late', waiting[0]!.id) !== undefined, 'a failed attempt');
+    await d.stop();
+    up = true;
+    d = make();
+    cleanups.push(() => d.stop());
+    d.start();
+    await until(() => received.length === 3, 'the waiting events after the restart');
+    expect(received.slice(1).map((r) => JSON.parse(r.body).id).sort()).toEqual(waiting.map((w) => w.id).sort());
+  });
 });
