@@ -15,6 +15,8 @@ export type Ne107Status = (typeof NE107_STATUSES)[number];
 export type ValueQuality = 'good' | 'uncertain' | 'bad';
 
 export interface UnitAlarmSummary {
+  /** Tideline alarm id (GET /api/alarms), when the event carried one. */
+  id?: string;
   key: string;
   kind: string;
   state: AlarmState;
@@ -175,6 +177,7 @@ export function applyEvent(prev: UnitSignalState, e: SignalEnvelope, now: number
       const active = typeof a.active === 'boolean' ? a.active : !!a.conditionActive;
       const state = (str(a.state) ?? str(a.to) ?? (active ? 'active-unacknowledged' : 'normal')) as AlarmState;
       const summary: UnitAlarmSummary = {
+        ...(str(a.id) ? { id: str(a.id)! } : {}),
         key,
         kind: str(a.kind) ?? key,
         state,

@@ -7,7 +7,7 @@
 import { mkdtempSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
-import { DataType, StatusCodes, type DataValue } from 'node-opcua';
+import { DataType, StatusCodes, type DataValue, type NodeId } from 'node-opcua';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import type { Alarm } from '../../core/api/rest.ts';
 import type { MonitorResult } from '../../core/monitor/types.ts';
@@ -69,7 +69,12 @@ describe('OPC UA channel', () => {
   const store = new OutboxStore(db);
   const acks: { unit: string; by: string }[] = [];
   const cfg = parseSignalsConfig({ opcua: { port: 0, securityModes: ['None'], allowAnonymous: true, heartbeatMs: 200 } }).opcua!;
-  const channel = new OpcuaChannel(cfg, store, { dataDir: dir, onEndpointAcknowledged: (unit, _l, by) => acks.push({ unit, by }) });
+  const alarmAcks: { unit: string; alarmId: string; comment: string }[] = [];
+  const channel = new OpcuaChannel(cfg, store, {
+    dataDir: dir,
+    onEndpointAcknowledged: (unit, _l, by) => acks.push({ unit, by }),
+    onAlarmAcknowledged: (unit, alarmId, comment) => alarmAcks.push({ unit, alarmId, comment }),
+  });
   const dispatcher = new SignalDispatcher(store, channel, { pollMs: 20 });
   let client: TestClient;
 
@@ -182,12 +187,24 @@ describe('OPC UA channel', () => {
 
   it('marks live values Bad when the analyzer reports a failure (NE 107) and raises AnalyzerFault', async () => {
     const events: Record<string, unknown>[] = [];
-    await client.watchEvents(['ConditionName', 'ActiveState.Id', 'Message'], (e) => events.push(e));
+    await client.watchEvents(['ConditionName', 'ActiveState.Id', 'AckedState.Id', 'Message', 'EventId', 'ConditionId'], (e) => events.push(e));
     const t = T0 + 50 * 60_000;
     appendOutbox(db, U, 'alarm', { alarm: alarm({ key: 'lamp', kind: 'analyzer', state: 'active-unacknowledged', active: true, priority: 1, message: 'lamp failure reported', value: 1, limit: 0, updatedAt: t }), previousState: null }, t);
     dispatcher.wake();
     await until(() => events.some((e) => e.ConditionName === 'AnalyzerFault' && e['ActiveState.Id'] === true), 'AnalyzerFault event');
     expect((await client.read(P('AnalyzerStatus'))).value.value).toBe(1);
     expect((await client.read(P('T2'))).statusCode.equals(StatusCodes.BadSensorFailure)).toBe(true);
+
+    // the DCS operator acknowledges the condition over OPC UA: passed on to Tideline's alarm by id
+    const on = events.find((e) => e.ConditionName === 'AnalyzerFault' && e['ActiveState.Id'] === true)!;
+    const sc = await client.session.acknowledgeCondition(on.ConditionId as NodeId, on.EventId as Buffer, 'seen in the control room');
+    expect(sc.toString()).toMatch(/Good/);
+    await until(() => alarmAcks.length === 1, 'acknowledge passed on');
+    expect(alarmAcks[0]).toEqual({ unit: U, alarmId: 'alarm-lamp', comment: 'seen in the control room' });
+    // Tideline's acknowledged state comes back through the outbox; the condition does not flip again
+    appendOutbox(db, U, 'alarm', { alarm: alarm({ key: 'lamp', kind: 'analyzer', state: 'active-acknowledged', active: true, priority: 1, message: 'lamp failure reported', acknowledgedBy: 'opcua-client', updatedAt: t + 5000 }), previousState: 'active-unacknowledged' }, t + 5000);
+    dispatcher.wake();
+    await until(() => channel.state(U)!.alarms.some((a) => a.key === 'lamp' && a.state === 'active-acknowledged'), 'acknowledged state delivered');
+    expect(events.filter((e) => e.ConditionName === 'AnalyzerFault' && e['AckedState.Id'] === true)).toHaveLength(1);
   });
 });

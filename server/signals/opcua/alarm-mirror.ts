@@ -34,6 +34,8 @@ function disableSelfEvaluation(alarm: UAAlarmConditionEx): void {
 
 export class UnitAlarmMirror {
   private readonly alarms = new Map<MirroredKind, Mirrored>();
+  /** Tideline alarm id currently mirrored by each condition. */
+  private readonly alarmIds = new Map<MirroredKind, string>();
 
   constructor(
     ns: Namespace,
@@ -41,6 +43,8 @@ export class UnitAlarmMirror {
     inputs: { t2: UAVariable; q: UAVariable; property: UAVariable; stale: UAVariable; analyzer: UAVariable; normal: UAVariable },
     maxTimeShelvedMs: number,
     unitName: string,
+    /** A client acknowledged a condition over OPC UA: pass it on to Tideline's alarm (by id). */
+    onClientAcknowledge?: (alarmId: string, comment: string) => void,
   ) {
     for (const kind of ['t2', 'q', 'property'] as const) {
       const alarm = ns.instantiateExclusiveLimitAlarm('ExclusiveLimitAlarmType', {
@@ -52,7 +56,6 @@ export class UnitAlarmMirror {
         highLimit: 1e300,
         lowLimit: -1e300,
         maxTimeShelved: maxTimeShelvedMs,
-        optionals: ['ConfirmedState', 'Confirm'],
       } as Parameters<Namespace['instantiateExclusiveLimitAlarm']>[1]);
       disableSelfEvaluation(alarm);
       this.alarms.set(kind, { alarm, kind, input: inputs[kind] });
@@ -66,12 +69,15 @@ export class UnitAlarmMirror {
         inputNode: inputs[kind],
         normalState: inputs.normal,
         maxTimeShelved: maxTimeShelvedMs,
-        optionals: ['ConfirmedState', 'Confirm'],
       });
       disableSelfEvaluation(alarm);
       this.alarms.set(kind, { alarm, kind, input: inputs[kind] });
     }
     for (const m of this.alarms.values()) {
+      m.alarm.on('acknowledged', (_eventId: unknown, comment: { text?: string | null } | null) => {
+        const id = this.alarmIds.get(m.kind);
+        if (id && onClientAcknowledge) onClientAcknowledge(id, comment?.text ?? '');
+      });
       // SourceName: the unit id as Tideline spells it (not the namespace-qualified browse name)
       m.alarm.sourceName.setValueFromSource({ dataType: DataType.String, value: unitName });
       const b = m.alarm.currentBranch();
@@ -94,6 +100,7 @@ export class UnitAlarmMirror {
     const kind = (summary.kind in MIRRORED_ALARMS ? summary.kind : summary.key) as MirroredKind;
     const m = this.alarms.get(kind);
     if (!m) return false;
+    if ('id' in summary && summary.id) this.alarmIds.set(kind, summary.id);
     const alarm = m.alarm;
     const branch = alarm.currentBranch();
     const wasActive = branch.getActiveState();
@@ -108,7 +115,6 @@ export class UnitAlarmMirror {
       if (active) branch.setAckedState(false);
     }
     if (!active || acked) branch.setAckedState(acked);
-    if (acked && !active && alarm.confirmedState) branch.setConfirmedState(true);
     branch.setRetain(active || !acked);
     alarm.raiseNewCondition({
       message: summary.message || `${summary.key} ${active ? 'active' : 'cleared'}`,

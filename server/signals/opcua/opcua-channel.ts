@@ -39,6 +39,8 @@ export interface OpcuaChannelOptions {
   dataDir: string;
   now?: () => number;
   softwareVersion?: string;
+  /** A client acknowledged an alarm condition over OPC UA (forward to the alarm life cycle). */
+  onAlarmAcknowledged?: (unit: string, alarmId: string, comment: string) => void;
   /** Called after the DCS acknowledged "endpoint reached" (for the audit trail). */
   onEndpointAcknowledged?: (unit: string, latch: LatchRow, by: string, at: number) => void;
 }
@@ -157,6 +159,7 @@ export class OpcuaChannel implements SignalChannel {
         propertyRange: this.cfg.propertyRange[unit] ?? { low: 0, high: 100 },
         maxTimeShelvedMs: this.cfg.maxTimeShelvedMs,
         onAcknowledge: (u) => this.acknowledgeEndpoint(u, 'opcua-client'),
+        onAlarmAcknowledge: (u, id, comment) => this.opts.onAlarmAcknowledged?.(u, id, comment),
       });
       n.beat(this.heartbeat);
       this.units.set(unit, n);

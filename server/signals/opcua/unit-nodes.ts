@@ -21,6 +21,8 @@ export interface UnitNodeOptions {
   maxTimeShelvedMs: number;
   /** The DCS wrote true to EndpointAcknowledge. */
   onAcknowledge: (unit: string) => void;
+  /** A client acknowledged an alarm condition. */
+  onAlarmAcknowledge?: (unit: string, alarmId: string, comment: string) => void;
 }
 
 type Vars = {
@@ -135,7 +137,7 @@ export class UnitNodes {
     }
     const normal = ns.addVariable({ componentOf: o, browseName: 'NormalState', dataType: 'Boolean', description: 'Normal value of DataStale / AnalyzerFaultActive' });
     normal.setValueFromSource(new Variant({ dataType: DataType.Boolean, value: false }));
-    this.alarms = new UnitAlarmMirror(ns, o, { t2: this.vars.t2, q: this.vars.q, property: this.vars.property, stale: this.vars.dataStale, analyzer: this.vars.analyzerFault, normal }, opts.maxTimeShelvedMs, unit);
+    this.alarms = new UnitAlarmMirror(ns, o, { t2: this.vars.t2, q: this.vars.q, property: this.vars.property, stale: this.vars.dataStale, analyzer: this.vars.analyzerFault, normal }, opts.maxTimeShelvedMs, unit, (id, comment) => opts.onAlarmAcknowledge?.(unit, id, comment));
   }
 
   private set(node: UAVariable, dataType: DataType, value: unknown, status: StatusCode = StatusCodes.Good, t?: number): void {
