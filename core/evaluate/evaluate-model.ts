@@ -143,6 +143,12 @@ export function evaluateBatch(model: MonitoringModel, b: EvalBatch, opts: Evalua
       out.etaErrors.push(Math.abs(r.endpoint.etaMin.median - (trueEndT - t) / 60000));
     }
   }
+  // A drop-out running to the end of the batch: the stale alarm still comes on the clock.
+  const lastT = b.times[b.times.length - 1];
+  if (prevT !== null && prevT < lastT) {
+    const st = staleAlarmTime(prevT, lastT + intervalMs, intervalMs, staleAfter);
+    if (st !== null) noteAlarm(Math.min(b.spectra.length - 1, Math.round((st - t0) / intervalMs)), 'stale', 'stale', st);
+  }
   if (out.detectedEndpointIndex !== null && b.endpointIndex !== null) out.endpointError = out.detectedEndpointIndex - b.endpointIndex;
   return out;
 }
