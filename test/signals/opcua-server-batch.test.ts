@@ -8,7 +8,7 @@
  */
 import { existsSync } from 'node:fs';
 import { join } from 'node:path';
-import { DataType, type DataValue } from 'node-opcua';
+import { DataType, type DataValue, type NodeId } from 'node-opcua';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { simulateDryerBatch } from '../../simulators/batch.ts';
 import { login, Peer, startTestServer, type TestServer } from '../server/helpers.ts';
@@ -56,7 +56,7 @@ describe.skipIf(!haveMonitor)('OPC UA with the full server and a simulated dryer
     const reached: DataValue[] = [];
     await client.watch(P('EndpointReached'), (dv) => reached.push(dv));
     const events: Record<string, unknown>[] = [];
-    await client.watchEvents(['ConditionName', 'SourceName', 'ActiveState.Id', 'AckedState.Id', 'Message', 'Time'], (e) => events.push(e));
+    await client.watchEvents(['ConditionName', 'SourceName', 'ActiveState.Id', 'AckedState.Id', 'Message', 'Time', 'EventId', 'ConditionId'], (e) => events.push(e));
 
     const peer = new Peer(ts.wsUrl, ts.token);
     await peer.open();
@@ -72,6 +72,9 @@ describe.skipIf(!haveMonitor)('OPC UA with the full server and a simulated dryer
         await peer.waitAck(seq);
         // the analyzer falls silent: the server raises the stale-data alarm
         await until(() => events.some((e) => e.ConditionName === 'DataStale' && e['ActiveState.Id'] === true), 'DataStale active');
+        // the control room acknowledges it over OPC UA
+        const on = events.find((e) => e.ConditionName === 'DataStale' && e['ActiveState.Id'] === true)!;
+        expect((await client.session.acknowledgeCondition(on.ConditionId as NodeId, on.EventId as Buffer, 'analyzer paused for a sample')).toString()).toMatch(/Good/);
       }
       if (i % 20 === 0) await peer.waitAck(seq);
     }
@@ -84,6 +87,9 @@ describe.skipIf(!haveMonitor)('OPC UA with the full server and a simulated dryer
     await until(() => reached.some((dv) => dv.value.value === true), 'EndpointReached true');
 
     const admin = await login(ts, 'administrator');
+    const alarms = await admin.get(`/api/alarms?unit=${U}`);
+    const stale = (alarms.body.items as { key: string; acknowledgedBy: string | null; acknowledgeComment: string | null }[]).find((a) => a.key === 'stale');
+    expect(stale).toMatchObject({ acknowledgedBy: 'opcua-client', acknowledgeComment: 'over OPC UA: analyzer paused for a sample' });
     const ep = await admin.get(`/api/batches/${batch.id}/endpoint-events`);
     const done = (ep.body.items as { to: string; t: number; reason: string }[]).find((e) => e.to === 'done');
     expect(done).toBeDefined();
