@@ -224,9 +224,18 @@ export function gridIndex(env: Envelope, progress: number): number {
   return k < 0 ? 0 : k >= P ? P - 1 : k;
 }
 
-/** Fraction 0…1 of the golden course. */
-export function progressFraction(env: Envelope, progress: number): number {
-  const g = env.grid;
-  const f = (progress - g[0]) / (g[g.length - 1] - g[0]);
+/** Progress at which the golden batches reached their endpoint (median over the reference batches). */
+export function goldenEndProgress(env: Envelope): number {
+  const s = env.endProgress.slice().sort((a, b) => a - b);
+  const m = s.length >> 1;
+  return s.length % 2 ? s[m] : (s[m - 1] + s[m]) / 2;
+}
+
+/** Fraction 0…1 of the golden course: from the start of the grid to the golden endpoint. */
+export function progressFraction(env: Envelope, progress: number, endProgress = goldenEndProgress(env)): number {
+  const g0 = env.grid[0];
+  const span = endProgress - g0;
+  if (!(span > 0)) return 1;
+  const f = (progress - g0) / span;
   return f < 0 ? 0 : f > 1 ? 1 : f;
 }

@@ -13,7 +13,7 @@
 import { createProjector } from '../pca/projector.ts';
 import { combinedIndex } from '../limits/index.ts';
 import { contributions as pcaContributions } from '../contributions/index.ts';
-import { gridIndex, progressFraction } from '../envelope/envelope.ts';
+import { goldenEndProgress, gridIndex, progressFraction } from '../envelope/envelope.ts';
 import { ProgressTracker } from '../envelope/progress.ts';
 import { MovingBlockSd } from '../envelope/mbsd.ts';
 import { EndpointTracker, type EndpointInputs } from '../endpoint/endpoint-tracker.ts';
@@ -54,6 +54,7 @@ export function createBatchMonitor(model: MonitoringModel, batchStartT: number):
   const pls = model.pls;
   const progress = new ProgressTracker(env.axis);
   const eta = new EtaEstimator(env);
+  const endProgress = goldenEndProgress(env);
   const alarmSpec = model.settings.alarms;
   // Which T²/Q limits the alarm conditions use: the global ones (default) or the per-progress-point ones.
   const useLocal = (model.settings.alarms.limits ?? 'local') === 'local';
@@ -174,7 +175,7 @@ export function createBatchMonitor(model: MonitoringModel, batchStartT: number):
       t,
       elapsedMin,
       progress: prog,
-      progressFraction: progressFraction(env, prog),
+      progressFraction: progressFraction(env, prog, endProgress),
       scores,
       t2,
       q,
