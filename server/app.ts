@@ -4,7 +4,7 @@
  */
 import { EventEmitter } from 'node:events';
 import { existsSync, readFileSync } from 'node:fs';
-import { createServer, type IncomingMessage, type Server } from 'node:http';
+import type { IncomingMessage, Server } from 'node:http';
 import type { Duplex } from 'node:stream';
 import { dirname, join, resolve } from 'node:path';
 import { fileURLToPath } from 'node:url';
@@ -13,6 +13,7 @@ import { WebSocketServer } from 'ws';
 import { MAX_MESSAGE_BYTES } from '../core/protocol/ingest-messages.ts';
 import { LIVE_PATH } from '../core/api/live.ts';
 import { install as installAuth } from './auth/index.ts';
+import { createWebServer, schemes } from './auth/tls.ts';
 import type { Role } from './auth/types.ts';
 import type { ServerConfig } from './config.ts';
 import type { ServerContext } from './context.ts';
@@ -115,7 +116,8 @@ export async function startServer(config: ServerConfig, opts: StartOptions = {})
   }
   app.use(problemHandler(log));
 
-  const http = createServer(app);
+  // https (and wss) when tls.cert/tls.key are configured (docs/security.md)
+  const http = createWebServer(app, config.tls);
   const ingestWss = new WebSocketServer({ noServer: true, maxPayload: MAX_MESSAGE_BYTES, perMessageDeflate: false });
   const liveWss = new WebSocketServer({ noServer: true, maxPayload: 64 * 1024, perMessageDeflate: false });
   const conns = new Set<IngestConnection>();
@@ -173,7 +175,7 @@ export async function startServer(config: ServerConfig, opts: StartOptions = {})
   const addr = http.address();
   const port = typeof addr === 'object' && addr ? addr.port : config.port;
   const host = config.host.includes(':') ? `[${config.host}]` : config.host;
-  log.info(`Tideline ${VERSION} listening on http://${host}:${port} (data: ${opts.dbFile ?? join(config.dataDir, 'tideline.db')})`);
+  log.info(`Tideline ${VERSION} listening on ${schemes(config.tls).http}://${host}:${port} (data: ${opts.dbFile ?? join(config.dataDir, 'tideline.db')})`);
 
   let closing: Promise<void> | null = null;
   const close = () =>
@@ -192,5 +194,5 @@ export async function startServer(config: ServerConfig, opts: StartOptions = {})
       await storage.close();
     })());
 
-  return { ctx, http, port, url: `http://${host}:${port}`, routes, close };
+  return { ctx, http, port, url: `${schemes(config.tls).http}://${host}:${port}`, routes, close };
 }
