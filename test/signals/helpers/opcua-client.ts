@@ -30,9 +30,20 @@ export interface TestClient {
   close(): Promise<void>;
 }
 
+// One client PKI (and its RSA key, slow to make) per test process; every server has its own PKI,
+// so this certificate is still unknown to each new server.
+let clientPki: Promise<OPCUACertificateManager> | null = null;
+function clientCertificates(): Promise<OPCUACertificateManager> {
+  clientPki ??= (async () => {
+    const m = new OPCUACertificateManager({ rootFolder: join(mkdtempSync(join(tmpdir(), 'tideline-opcua-client-')), 'pki'), automaticallyAcceptUnknownCertificate: true });
+    await m.initialize();
+    return m;
+  })();
+  return clientPki;
+}
+
 export async function connectClient(url: string, security: { mode: 'None' | 'Sign' | 'SignAndEncrypt'; policy?: SecurityPolicy } = { mode: 'None' }): Promise<TestClient> {
-  const clientCertificateManager = new OPCUACertificateManager({ rootFolder: join(mkdtempSync(join(tmpdir(), 'tideline-opcua-client-')), 'pki'), automaticallyAcceptUnknownCertificate: true });
-  await clientCertificateManager.initialize();
+  const clientCertificateManager = await clientCertificates();
   const client = OPCUAClient.create({
     applicationName: 'tideline-test-dcs',
     applicationUri: 'urn:tideline-test-dcs',
