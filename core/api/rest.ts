@@ -273,6 +273,22 @@ export interface ModelVersionSummary extends ModelRef {
   confidence: number;
   /** Units this version is deployed to now. */
   deployedTo: string[];
+  /** Electronic signatures on this version (approval, retirement), oldest first; show them with the model. */
+  signatures?: ModelSignature[];
+}
+
+/** An electronic signature on a model version: re-entered password + reason, bound to the model hash. */
+export interface ModelSignature {
+  signer: string;
+  signerFullName: string;
+  signerRole: string;
+  meaning: 'approved' | 'retired';
+  /** The sha256 of the model file the signature is bound to. */
+  modelSha256: string;
+  reason: string;
+  signedAt: number;
+  /** seq of the signature's audit trail record. */
+  auditSeq: number;
 }
 
 export interface ModelSummary {

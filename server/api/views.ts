@@ -1,6 +1,7 @@
 /** Builds the REST/live view objects (core/api) from storage rows and pipeline state. */
 import type { AnalyzerSummary, BatchDetail, BatchSummary, Deployment, ModelRef, ModelVersionSummary } from '../../core/api/rest.ts';
 import type { IngestPipeline } from '../ingest/pipeline.ts';
+import { modelSignatures } from '../auth/model-signatures.ts';
 import type { AnalyzerRow, BatchRow, DeploymentRow, ModelVersionRow, Storage } from '../storage/storage.ts';
 
 export function modelRef(m: ModelVersionRow): ModelRef {
@@ -62,6 +63,7 @@ export async function modelVersionSummary(storage: Storage, m: ModelVersionRow):
     approvedAt: m.approvedAt, approvedBy: m.approvedBy, approvalReason: m.approvalReason, retiredAt: m.retiredAt,
     retiredBy: m.retiredBy, retireReason: m.retireReason, referenceBatches: m.referenceBatches, components: m.components,
     confidence: m.confidence, deployedTo: deps.filter((d) => d.modelVersion === m.id).map((d) => d.unit),
+    signatures: modelSignatures(storage.db, m.id),
   };
 }
 

@@ -183,6 +183,14 @@ describe('electronic signature on approval', () => {
     const sigs = await m.req('GET', `/api/auth/signatures?objectType=model&objectId=${modelId}`);
     expect(sigs.json.items).toHaveLength(1);
     expect(sigs.json.items[0]).toMatchObject({ userName: 'mona', meaning: 'approved', objectHash: row.sha256, reason: 'validated per VP-7' });
+    // …and shown with the model wherever the API shows it
+    const detail = await m.req('GET', `/api/models/versions/${modelId}`);
+    expect(detail.json.signatures).toEqual([
+      expect.objectContaining({ signer: 'mona', signerRole: 'model-owner', meaning: 'approved', modelSha256: row.sha256, reason: 'validated per VP-7' }),
+    ]);
+    const models = await m.req('GET', '/api/models');
+    const listed = models.json.items.flatMap((x: { versions: { versionId: string; signatures?: unknown[] }[] }) => x.versions).find((v: { versionId: string }) => v.versionId === modelId);
+    expect(listed.signatures).toHaveLength(1);
   });
 });
 
