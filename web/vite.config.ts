@@ -15,5 +15,5 @@ export default defineConfig({
     target: 'es2022',
     rollupOptions: { input: { index: `${root}index.html`, bench: `${root}bench.html` } },
   },
-  server: { proxy: { '/api': 'http://127.0.0.1:8080', '/live': { target: 'ws://127.0.0.1:8080', ws: true } } },
+  server: { proxy: { '/api': 'http://127.0.0.1:8470', '/live': { target: 'ws://127.0.0.1:8470', ws: true } } },
 });

@@ -55,3 +55,22 @@ describe('envelope band shaping', () => {
     expect(Array.from(clampForLog([0, 2, NaN, -1], 0.01))).toEqual([0.01, 2, NaN, 0.01]);
   });
 });
+
+describe('axis tick labels', () => {
+  it('plain numbers with the decimals the step needs; ×10ⁿ for very small or large ticks', async () => {
+    const { tickLabels } = await import('../../web/src/charts/chart-options.ts');
+    expect(tickLabels([0, 0.25, 0.5, 0.75])).toEqual(['0', '0.25', '0.50', '0.75']);
+    expect(tickLabels([-10, 0, 10, 20])).toEqual(['−10', '0', '10', '20']);
+    expect(tickLabels([0, 2.5e-4, 5e-4, 7.5e-4])).toEqual(['0', '2.5×10⁻⁴', '5×10⁻⁴', '7.5×10⁻⁴']);
+    expect(tickLabels([1e5, 2e5])).toEqual(['1×10⁵', '2×10⁵']);
+    expect(tickLabels([1000, 1200, 1400])).toEqual(['1000', '1200', '1400']);
+  });
+});
+
+describe('log axis tick labels', () => {
+  it('labels uneven (log) ticks one by one', async () => {
+    const { tickLabels } = await import('../../web/src/charts/chart-options.ts');
+    expect(tickLabels([0.0001, 0.001, 0.01, 0.1])).toEqual(['10⁻⁴', '10⁻³', '0.01', '0.1']);
+    expect(tickLabels([1, 2, 5, 10, 20])).toEqual(['1', '2', '5', '10', '20']);
+  });
+});

@@ -98,8 +98,8 @@ function Bench() {
       {CHARTS.includes('score') && <ScoreChart live={handle} pc={2} env={env} picked={null} onPick={() => {}} />}
       {CHARTS.includes('stat') && (
         <div class="two-col">
-          <StatChart live={handle} stat="T²" log={false} picked={null} onPick={() => {}} />
-          <StatChart live={handle} stat="Q" log={false} picked={null} onPick={() => {}} />
+          <StatChart live={handle} stat="T²" log={false} picked={null} onPick={() => {}} env={env} />
+          <StatChart live={handle} stat="Q" log={false} picked={null} onPick={() => {}} env={env} />
         </div>
       )}
       {CHARTS.includes('plane') && <PlaneChart live={handle} env={env} a={1} b={2} />}

@@ -6,7 +6,7 @@ import type { LimitLine } from './plugins.ts';
 import { envelopePlugin, limitLinesPlugin, outsideMarkersPlugin, regionsPlugin, verticalMarkersPlugin } from './plugins.ts';
 import type { SeriesStyle } from '../theme/palette.ts';
 import { REGION_FILLS, STYLE } from '../theme/palette.ts';
-import { sig } from '../format/number-format.ts';
+import { superscript } from '../format/number-format.ts';
 
 const AXIS_FONT = '12px system-ui, sans-serif';
 const LABEL_FONT = '600 12px system-ui, sans-serif';
@@ -17,7 +17,50 @@ function axis(label: string, extra: Partial<uPlot.Axis> = {}): uPlot.Axis {
   return { label, font: AXIS_FONT, labelFont: LABEL_FONT, stroke: '#333', grid: GRID, ticks: TICKS, labelSize: 20, ...extra };
 }
 
-const yValues = (_u: uPlot, splits: number[]) => splits.map((v) => (v === null ? '' : sig(v, 3)));
+/** Tick labels: plain numbers, or "7.5×10⁻⁴" style when the ticks are very small or large. */
+export function tickLabels(splits: number[]): string[] {
+  const finite = splits.filter((v) => v !== null && Number.isFinite(v) && v !== 0);
+  const maxAbs = finite.length ? Math.max(...finite.map(Math.abs)) : 1;
+  const even = splits.length < 3 || Math.abs(splits[2] - splits[1] - (splits[1] - splits[0])) <= 1e-9 * maxAbs;
+  if (!even) {
+    // Log axes: each label on its own, three significant digits at most.
+    return splits.map((v) => {
+      if (v === null) return '';
+      const a = Math.abs(v);
+      if (a >= 1e-2 && a < 1e5) return String(Number(v.toPrecision(3))).replace('-', '−');
+      const e = Math.floor(Math.log10(a));
+      const m = Number((v / 10 ** e).toPrecision(2));
+      return m === 1 ? `10${superscript(e)}` : `${String(m).replace('-', '−')}×10${superscript(e)}`;
+    });
+  }
+  if (maxAbs >= 1e-2 && maxAbs < 1e5) {
+    // As few decimals as the step between ticks needs.
+    const step = splits.length > 1 ? Math.abs(splits[1] - splits[0]) : maxAbs;
+    let dec = 0;
+    while (dec < 6 && step > 0 && Math.abs(step * 10 ** dec - Math.round(step * 10 ** dec)) > 1e-6 * step * 10 ** dec) dec++;
+    return splits.map((v) => (v === null ? '' : v === 0 ? '0' : fixedTick(v, dec)));
+  }
+  return splits.map((v) => {
+    if (v === null) return '';
+    if (v === 0) return '0';
+    const e = Math.floor(Math.log10(Math.abs(v)));
+    const m = Number((v / 10 ** e).toPrecision(2));
+    return `${String(m).replace('-', '−')}×10${superscript(e)}`;
+  });
+}
+
+function fixedTick(v: number, dec: number): string {
+  return v.toFixed(dec).replace('-', '−');
+}
+
+const yValues = (_u: uPlot, splits: number[]) => tickLabels(splits);
+
+/** Axis width from its longest label, so labels never run into the axis title. */
+const ySize = (u: uPlot, values: string[] | null) => {
+  if (!values || values.length === 0) return 50;
+  const longest = Math.max(...values.map((v) => (v ?? '').length));
+  return Math.max(44, Math.ceil(longest * 7.2) + 24);
+};
 
 export function line(style: SeriesStyle, label = style.label, extra: Partial<uPlot.Series> = {}): uPlot.Series {
   return { label, stroke: style.stroke, width: style.width, dash: style.dash.length ? style.dash : undefined, points: { show: false }, spanGaps: false, ...extra };
@@ -46,7 +89,7 @@ function base(b: Base, series: uPlot.Series[], plugins: uPlot.Plugin[], scales: 
     cursor: { drag: { x: true, y: false, setScale: true }, points: { size: 7 } },
     scales,
     series,
-    axes: [axis(b.xLabel), axis(b.yLabel, { values: yValues, size: 60, ...yExtra })],
+    axes: [axis(b.xLabel, { values: yValues }), axis(b.yLabel, { values: yValues, size: ySize, ...yExtra })],
     plugins,
   };
 }
@@ -100,12 +143,20 @@ export function statChartOptions(
     limitAt: (i: number) => number;
     hasLocal: boolean;
     getValues: () => ArrayLike<number>;
+    /** The golden course in minutes, so T² and Q line up with the score charts; null = data only. */
+    getCourse?: () => [number, number] | null;
   },
 ): uPlot.Options {
   const series: uPlot.Series[] = [{ label: b.xLabel }, line(STYLE.batch, b.stat, { points: { show: false } })];
   if (b.hasLocal) series.push(line(STYLE.warnLimit, `${b.stat} local limit`));
   return base(b, series, [limitLinesPlugin(b.getLines), outsideMarkersPlugin(1, () => ({ limit: b.limitAt }))], {
-    x: { time: false },
+    x: {
+      time: false,
+      range: (_u, min, max) => {
+        const c = b.getCourse?.() ?? null;
+        return courseRange(c ? { x: c, mean: [], lower: [], upper: [] } : null, min, max);
+      },
+    },
     y: b.log
       ? { distr: 3, log: 10, range: (_u, min, max) => logRange(min, max, b.getLines()) }
       : { range: (_u, _min, max) => [0, Math.max(max, ...b.getLines().map((l) => l.value).filter(Number.isFinite)) * 1.1 || 1] },
@@ -138,7 +189,7 @@ export function planeOptions(b: { width: number; height: number; pcA: number; pc
     cursor: { drag: { x: false, y: false } },
     scales: { x: { time: false, auto: true }, y: { auto: true } },
     series,
-    axes: [axis(`PC${b.pcA} score`, { values: yValues }), axis(`PC${b.pcB} score`, { values: yValues, size: 60 })],
+    axes: [axis(`PC${b.pcA} score`, { values: yValues }), axis(`PC${b.pcB} score`, { values: yValues, size: ySize })],
     plugins: [planeEndsPlugin(series.length - 1)],
   };
 }
@@ -210,13 +261,16 @@ export function contributionOptions(
 }
 
 /** Plain line chart (explained variance, CV curve, loadings), optional points. */
-export function linesOptions(b: Base & { series: { style: SeriesStyle; label: string; points?: boolean }[]; getLines?: () => LimitLine[]; yLog?: boolean }): uPlot.Options {
+export function linesOptions(b: Base & { series: { style: SeriesStyle; label: string; points?: boolean }[]; getLines?: () => LimitLine[]; yLog?: boolean; integerX?: boolean }): uPlot.Options {
   const plugins: uPlot.Plugin[] = [];
   if (b.getLines) plugins.push(limitLinesPlugin(b.getLines));
-  return base(
+  const o = base(
     b,
     [{ label: b.xLabel }, ...b.series.map((s) => line(s.style, s.label, s.points ? { points: { show: true, size: 7, fill: s.style.stroke } } : {}))],
     plugins,
     { x: { time: false }, y: b.yLog ? { distr: 3, log: 10 } : { auto: true } },
   );
+  // Component counts are whole numbers: ticks at 1, 2, 5, … steps only.
+  if (b.integerX) o.axes![0] = { ...o.axes![0], incrs: [1, 2, 5, 10, 20, 50] };
+  return o;
 }

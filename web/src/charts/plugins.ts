@@ -173,7 +173,7 @@ export function drawMarker(ctx: CanvasRenderingContext2D, shape: MarkerShape, x:
  * Markers on points of series `seriesIdx` outside the band (▲ above, ▼ below) or above a limit
  * (▲). The status of each point comes, in order of preference, from a precomputed column
  * (1 above, −1 below, as the monitor judged it), from a limit per point, or from the band.
- * Only points in the visible x range are visited; at most one marker per 6 px, so dense runs of
+ * Only points in the visible x range are visited; at most one marker per 10 px, so dense runs of
  * markers do not hide the line.
  */
 export function outsideMarkersPlugin(
@@ -192,7 +192,7 @@ export function outsideMarkersPlugin(
         const i0 = u.series[0].idxs?.[0] ?? 0;
         const i1 = u.series[0].idxs?.[1] ?? xs.length - 1;
         const ctx = u.ctx;
-        const r = 4 * uPlot.pxRatio;
+        const r = 3.5 * uPlot.pxRatio;
         ctx.save();
         ctx.fillStyle = STYLE.outside.stroke;
         ctx.strokeStyle = '#fff';
@@ -219,7 +219,7 @@ export function outsideMarkersPlugin(
           }
           if (!shape) continue;
           const X = px(u, xs[i], 'x');
-          if (X - lastX < 6 * uPlot.pxRatio) continue;
+          if (X - lastX < 10 * uPlot.pxRatio) continue;
           lastX = X;
           drawMarker(ctx, shape, X, px(u, y, yKey), r);
           ctx.fill();
@@ -239,6 +239,7 @@ export function verticalMarkersPlugin(getMarks: () => { x: number; label: string
         const ctx = u.ctx;
         const { top, height, left, width } = u.bbox;
         ctx.save();
+        let row = 0;
         for (const m of getMarks()) {
           if (!Number.isFinite(m.x)) continue;
           const X = px(u, m.x, 'x');
@@ -254,8 +255,16 @@ export function verticalMarkersPlugin(getMarks: () => { x: number; label: string
           ctx.font = `600 ${11 * uPlot.pxRatio}px system-ui, sans-serif`;
           ctx.fillStyle = m.style.stroke;
           const tw = ctx.measureText(m.label).width;
-          const tx = X + tw + 8 > left + width ? X - tw - 4 * uPlot.pxRatio : X + 4 * uPlot.pxRatio;
-          ctx.fillText(m.label, tx, top + 12 * uPlot.pxRatio);
+          // Right of the line, or left of it near the right edge; one text row per marker so labels never overlap.
+          let tx = X + 4 * uPlot.pxRatio;
+          if (tx + tw > left + width) tx = X - tw - 4 * uPlot.pxRatio;
+          tx = Math.max(left + 2 * uPlot.pxRatio, tx);
+          const ty = top + (12 + 13 * row) * uPlot.pxRatio;
+          ctx.fillStyle = 'rgba(255,255,255,0.85)';
+          ctx.fillRect(tx - 2, ty - 11 * uPlot.pxRatio, tw + 4, 14 * uPlot.pxRatio);
+          ctx.fillStyle = m.style.stroke;
+          ctx.fillText(m.label, tx, ty);
+          row++;
         }
         ctx.restore();
       },

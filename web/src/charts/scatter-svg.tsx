@@ -3,7 +3,7 @@
  * the T²–Q plane). Limits are drawn as named dashed lines; excluded points are crosses, points
  * outside a limit are triangles, others circles — shape carries the meaning, colour helps.
  */
-import { sig } from '../format/number-format.ts';
+import { tickLabels } from './chart-options.ts';
 import { STYLE } from '../theme/palette.ts';
 import { Legend } from './chart.tsx';
 
@@ -25,6 +25,11 @@ export function niceTicks(lo: number, hi: number, n = 5): number[] {
   return out;
 }
 
+function withLabels(ticks: number[]): [number, string][] {
+  const l = tickLabels(ticks);
+  return ticks.map((t, i) => [t, l[i]]);
+}
+
 export function ScatterSvg(p: {
   points: ScatterPoint[];
   xLabel: string;
@@ -38,7 +43,7 @@ export function ScatterSvg(p: {
 }) {
   const W = p.width ?? 520;
   const H = p.height ?? 320;
-  const m = { l: 64, r: 16, t: 12, b: 44 };
+  const m = { l: 72, r: 16, t: 12, b: 44 };
   const xs = p.points.map((q) => q.x).concat(p.xLimit ? [p.xLimit.value] : []);
   const ys = p.points.map((q) => q.y).concat(p.yLimit ? [p.yLimit.value] : []);
   const xMax = Math.max(1e-12, ...xs.filter(Number.isFinite)) * 1.08;
@@ -58,26 +63,26 @@ export function ScatterSvg(p: {
       />
       <svg viewBox={`0 0 ${W} ${H}`} width="100%" role="img" aria-label={`${p.yLabel} against ${p.xLabel}`} class="scatter">
         <rect x={m.l} y={m.t} width={W - m.l - m.r} height={H - m.t - m.b} fill="#fff" stroke="#ccc" />
-        {niceTicks(0, xMax).map((t) => (
+        {withLabels(niceTicks(0, xMax)).map(([t, label]) => (
           <g key={`x${t}`}>
             <line x1={X(t)} x2={X(t)} y1={m.t} y2={H - m.b} stroke="rgba(0,0,0,0.07)" />
             <text x={X(t)} y={H - m.b + 16} text-anchor="middle" class="tick">
-              {sig(t, 3)}
+              {label}
             </text>
           </g>
         ))}
-        {niceTicks(0, yMax).map((t) => (
+        {withLabels(niceTicks(0, yMax)).map(([t, label]) => (
           <g key={`y${t}`}>
             <line x1={m.l} x2={W - m.r} y1={Y(t)} y2={Y(t)} stroke="rgba(0,0,0,0.07)" />
             <text x={m.l - 6} y={Y(t) + 4} text-anchor="end" class="tick">
-              {sig(t, 3)}
+              {label}
             </text>
           </g>
         ))}
         <text x={(m.l + W - m.r) / 2} y={H - 6} text-anchor="middle" class="axis-label">
           {p.xLabel}
         </text>
-        <text transform={`translate(14 ${(m.t + H - m.b) / 2}) rotate(-90)`} text-anchor="middle" class="axis-label">
+        <text transform={`translate(12 ${(m.t + H - m.b) / 2}) rotate(-90)`} text-anchor="middle" class="axis-label">
           {p.yLabel}
         </text>
         {p.xLimit && (

@@ -8,7 +8,7 @@ import { matrixFromRows, matrixRow } from '../../../core/linalg/dense-matrix.ts'
 import { api } from '../api/endpoints.ts';
 import { get } from '../api/http.ts';
 import { ApiError, errorText } from '../api/problem.ts';
-import type { CalibrationView } from '../api/proposed.ts';
+import type { CalibrationView } from '../../../core/api/rest.ts';
 import type { Me } from '../api/session.ts';
 import { useAsync } from '../components/use-async.ts';
 import { Advisory, Badge, Empty, ErrorBox, Loading } from '../components/status.tsx';
@@ -366,7 +366,7 @@ function ExplainedChart({ d }: { d: ModelVersionDetail }) {
         optsKey={`explained-${d.versionId}`}
         data={[x, per, cum] as unknown as uPlot.AlignedData}
         legend={styles}
-        make={(w, h) => linesOptions({ width: w, height: h, xLabel: 'component', yLabel: 'variance explained (%)', series: styles })}
+        make={(w, h) => linesOptions({ width: w, height: h, xLabel: 'component', yLabel: 'variance explained (%)', series: styles, integerX: true })}
       />
       <p class="small">
         {d.components} components explain {percent(d.cumulative[d.components - 1], 1)} of the variance after preprocessing.
@@ -425,7 +425,7 @@ function Calibration({ d }: { d: ModelVersionDetail }) {
         optsKey={`cv-${d.versionId}`}
         data={[c.press.map((_, i) => i + 1), c.press] as unknown as uPlot.AlignedData}
         legend={cvStyles}
-        make={(w, h) => linesOptions({ width: w, height: h, xLabel: 'components', yLabel: 'PRESS', series: cvStyles })}
+        make={(w, h) => linesOptions({ width: w, height: h, xLabel: 'components', yLabel: 'PRESS', series: cvStyles, integerX: true })}
       />
       <p class="small">Recommended: {c.recommended} components; this version uses {d.components}.</p>
       <h3>Loadings</h3>

@@ -1,6 +1,30 @@
 /** Pure helpers for Review: departure timeline, first exit from results, contribution averaging. */
 import type { Alarm, BatchDetail } from '../../../core/api/rest.ts';
 import type { Contributions, MonitorResult } from '../../../core/monitor/types.ts';
+import type { BatchComparison } from '../../../core/compare/compare-batch.ts';
+
+/** GET /api/batches/:batch/comparison (server/transfer): the core comparison of a stored batch. */
+export interface ComparisonResponse {
+  batch: string;
+  versionId: string;
+  comparison: BatchComparison;
+}
+
+/** The batch's PC `pc` after DTW alignment, on the golden progress grid; null when absent. */
+export function alignedLine(c: BatchComparison, pc: number): { x: number[]; y: number[] } | null {
+  const p = c.aligned.pcs.find((x) => x.pc === pc);
+  if (!p || p.score.length !== c.aligned.grid.length) return null;
+  return { x: c.aligned.grid, y: p.score };
+}
+
+/** The comparison's departure window (spectrum indices) as seqs of the stored results. */
+export function comparisonWindow(c: BatchComparison, results: MonitorResult[]): { fromSeq: number; toSeq: number } | null {
+  const w = c.departureWindow;
+  if (!w || results.length === 0) return null;
+  const a = results[Math.min(Math.max(0, w.from), results.length - 1)];
+  const b = results[Math.min(Math.max(0, w.to), results.length - 1)];
+  return { fromSeq: a.seq, toSeq: b.seq };
+}
 
 export interface TimelineEvent {
   tMin: number;
@@ -53,12 +77,20 @@ export function departureWindow(results: MonitorResult[], tolerance = 3, minPoin
  * by the seq of the spectrum that caused them when that result is known (the server stamps them
  * with its own clock, which differs from the analyzer's for replayed or accelerated data).
  */
-export function timeline(b: BatchDetail, results: MonitorResult[], alarms: Alarm[]): TimelineEvent[] {
+export function timeline(b: BatchDetail, results: MonitorResult[], alarms: Alarm[], cmp: BatchComparison | null = null): TimelineEvent[] {
   const bySeq = new Map(results.map((r) => [r.seq, r.elapsedMin]));
   const at = (seq: number | null, t: number) => (seq !== null && bySeq.has(seq) ? bySeq.get(seq)! : (t - b.startedAt) / 60000);
   const ev: TimelineEvent[] = [{ tMin: 0, kind: 'start', label: 'batch start' }];
-  const fe = firstExit(results);
-  if (fe) ev.push({ tMin: fe.result.elapsedMin, kind: 'first-exit', label: `first exit: ${fe.what}` });
+  if (cmp) {
+    // The comparison applies the alarm rule (on-delay): its first exit is the departure; a single
+    // point outside before it is listed apart, as it may be a suspect scan.
+    if (cmp.firstOutside && (!cmp.firstExit || cmp.firstOutside.index < cmp.firstExit.index))
+      ev.push({ tMin: cmp.firstOutside.elapsedMin, kind: 'first-exit', label: `first single point outside: ${cmp.firstOutside.what}` });
+    if (cmp.firstExit) ev.push({ tMin: cmp.firstExit.elapsedMin, kind: 'first-exit', label: `left the golden batches: ${cmp.firstExit.message}` });
+  } else {
+    const fe = firstExit(results);
+    if (fe) ev.push({ tMin: fe.result.elapsedMin, kind: 'first-exit', label: `first exit: ${fe.what}` });
+  }
   for (const a of alarms) {
     ev.push({ tMin: at(a.seq, a.raisedAt), kind: 'alarm', label: `alarm P${a.priority}: ${a.message}` });
     if (a.clearedAt !== null && a.seq === null) ev.push({ tMin: (a.clearedAt - b.startedAt) / 60000, kind: 'alarm-cleared', label: `alarm cleared (${a.key})` });

@@ -5,13 +5,14 @@ import type { BatchDetail, ModelEnvelopeView, ResultRecord } from '../../../core
 import { api } from '../api/endpoints.ts';
 import { get } from '../api/http.ts';
 import { ApiError } from '../api/problem.ts';
-import type { BatchComparisonView } from '../api/proposed.ts';
+import type { ComparisonResponse } from './review-data.ts';
+import type { RegionContribution } from '../../../core/compare/compare-batch.ts';
 import { useAsync } from '../components/use-async.ts';
 import { Advisory, Badge, Empty, ErrorBox, Loading } from '../components/status.tsx';
 import { Chart } from '../charts/chart.tsx';
 import { contributionOptions, scoreChartOptions, statChartOptions } from '../charts/chart-options.ts';
 import { progressLabel, scoreBand } from './watch-data.ts';
-import { departureWindow, meanContributions, sampleSeqs, timeline } from './review-data.ts';
+import { alignedLine, comparisonWindow, departureWindow, meanContributions, sampleSeqs, timeline } from './review-data.ts';
 import { topShares } from './contribution-data.ts';
 import type { TimelineEvent } from './review-data.ts';
 import { contributionSeries } from './contribution-data.ts';
@@ -33,9 +34,9 @@ async function allResults(batch: string): Promise<ResultRecord[]> {
   return out;
 }
 
-async function comparison(batch: string): Promise<BatchComparisonView | null> {
+async function comparison(batch: string): Promise<ComparisonResponse | null> {
   try {
-    return await get<BatchComparisonView>(`/api/batches/${encodeURIComponent(batch)}/comparison`);
+    return await get<ComparisonResponse>(`/api/batches/${encodeURIComponent(batch)}/comparison`);
   } catch (e) {
     if (e instanceof ApiError && e.status === 404) return null;
     throw e;
@@ -73,7 +74,11 @@ function BatchPicker({ current, compare }: { current: string | null; compare: st
         {items.map((b) => (
           <li key={b.id} class={b.id === current ? 'current' : ''}>
             <a href={href({ view: 'review', batch: b.id, compare: compare.filter((c) => c !== b.id) })} data-testid={`review-${b.id}`}>
-              <b>{b.id}</b> <span class="muted">{b.unit} · {b.product}</span>
+              <b>{b.id}</b>
+              <br />
+              <span class="muted">
+                {b.unit} · {b.product}
+              </span>
               <br />
               <span class="small">
                 {dateTime(b.startedAt)} · {b.alarmCount ? `${b.alarmCount} alarms` : 'no alarms'} · {b.endpointState ?? 'no endpoint'}
@@ -111,7 +116,8 @@ function BatchReview({ id, compare }: { id: string; compare: string[] }) {
   if (detail.error) return <ErrorBox message={detail.error} onRetry={detail.reload} />;
   if (!d) return null;
   const rs = results.data ?? [];
-  const win = departureWindow(rs);
+  const c = cmp.data?.comparison ?? null;
+  const win = (c ? comparisonWindow(c, rs) : null) ?? (c && !c.departureWindow ? null : departureWindow(rs));
   return (
     <div class="batch-review" data-testid="batch-review">
       <div class="panel">
@@ -151,7 +157,7 @@ function BatchReview({ id, compare }: { id: string; compare: string[] }) {
       </div>
       {results.error && <ErrorBox message={results.error} onRetry={results.reload} />}
       {results.loading && !results.data && <Loading what="results" />}
-      {results.data && <Timeline events={timeline(d, rs, d.alarms)} durationMin={d.endedAt ? (d.endedAt - d.startedAt) / 60000 : (rs[rs.length - 1]?.elapsedMin ?? 0)} />}
+      {results.data && <Timeline events={timeline(d, rs, d.alarms, c)} durationMin={d.endedAt ? (d.endedAt - d.startedAt) / 60000 : (rs[rs.length - 1]?.elapsedMin ?? 0)} />}
       {cmp.error && <ErrorBox message={`Comparison: ${cmp.error}`} />}
       {results.data && (
         <Overlay
@@ -160,11 +166,17 @@ function BatchReview({ id, compare }: { id: string; compare: string[] }) {
           cmp={cmp.data ?? null}
           own={rs}
           others={others.data ?? []}
-          alignedNote={cmp.loading ? 'loading the DTW alignment…' : cmp.data ? 'aligned to the golden batch by DTW' : 'not aligned: this server does not provide DTW-aligned comparisons, so the batch is drawn on its own progress'}
+          alignedNote={
+            cmp.loading
+              ? 'loading the DTW alignment…'
+              : c
+                ? `aligned to the golden mean trajectory by DTW, distance ${sig(c.dtw.distance)}`
+                : 'not aligned: no DTW comparison is available, so the batch is drawn on its own progress'
+          }
         />
       )}
       {results.data && <StatsOverTime rs={rs} win={win} />}
-      {results.data && win && <DepartureContributions batch={d.id} results={rs} win={win} />}
+      {results.data && win && <DepartureContributions batch={d.id} results={rs} win={win} regions={c?.regions ?? null} />}
       {results.data && !win && <Empty>The batch never left the envelope or exceeded a limit: there is no departure window.</Empty>}
       <Advisory />
     </div>
@@ -195,7 +207,7 @@ function Timeline({ events, durationMin }: { events: TimelineEvent[]; durationMi
   );
 }
 
-function Overlay({ d, env, cmp, own, others, alignedNote }: { d: BatchDetail; env: ModelEnvelopeView | null; cmp: BatchComparisonView | null; own: ResultRecord[]; others: { id: string; results: ResultRecord[] }[]; alignedNote: string }) {
+function Overlay({ d, env, cmp, own, others, alignedNote }: { d: BatchDetail; env: ModelEnvelopeView | null; cmp: ComparisonResponse | null; own: ResultRecord[]; others: { id: string; results: ResultRecord[] }[]; alignedNote: string }) {
   const pcs = (env?.scores.map((s) => s.pc) ?? [1, 2]).slice(0, 3);
   return (
     <div class="panel" data-testid="overlay">
@@ -206,7 +218,8 @@ function Overlay({ d, env, cmp, own, others, alignedNote }: { d: BatchDetail; en
         {pcs.map((pc) => {
           const band = scoreBand(env, pc);
           const lines: { x: number[]; y: number[]; style: SeriesStyle; label: string }[] = [];
-          if (cmp) lines.push({ x: cmp.progress, y: cmp.scores[pc - 1] ?? [], style: COMPARE_STYLES[0], label: `${d.id} (DTW)` });
+          const al = cmp ? alignedLine(cmp.comparison, pc) : null;
+          if (al) lines.push({ ...al, style: COMPARE_STYLES[0], label: `${d.id} (DTW-aligned)` });
           else lines.push({ x: own.map((r) => r.progress), y: own.map((r) => r.scores[pc - 1]), style: COMPARE_STYLES[0], label: d.id });
           others.forEach((o, i) => lines.push({ x: o.results.map((r) => r.progress), y: o.results.map((r) => r.scores[pc - 1]), style: COMPARE_STYLES[(i + 1) % COMPARE_STYLES.length], label: o.id }));
           return <OverlayChart key={`${pc}-${lines.length}-${cmp ? 1 : 0}`} pc={pc} band={band} lines={lines} xLabel={progressLabel(env)} />;
@@ -254,8 +267,8 @@ function StatsOverTime({ rs, win }: { rs: ResultRecord[]; win: { fromSeq: number
     const a = rs.find((r) => r.seq === win.fromSeq);
     const b = rs.find((r) => r.seq === win.toSeq);
     return [
-      ...(a ? [{ x: a.elapsedMin, label: 'departure starts', style: STYLE.selected }] : []),
-      ...(b && b !== a ? [{ x: b.elapsedMin, label: 'departure ends', style: { ...STYLE.selected, dash: [4, 3] } }] : []),
+      ...(a ? [{ x: a.elapsedMin, label: 'departure', style: STYLE.selected }] : []),
+      ...(b && b !== a ? [{ x: b.elapsedMin, label: 'end of departure window', style: { ...STYLE.selected, dash: [4, 3] } }] : []),
     ];
   };
   return (
@@ -298,7 +311,7 @@ function StatsOverTime({ rs, win }: { rs: ResultRecord[]; win: { fromSeq: number
   );
 }
 
-function DepartureContributions({ batch, results, win }: { batch: string; results: ResultRecord[]; win: { fromSeq: number; toSeq: number } }) {
+function DepartureContributions({ batch, results, win, regions }: { batch: string; results: ResultRecord[]; win: { fromSeq: number; toSeq: number }; regions: RegionContribution[] | null }) {
   const seqs = sampleSeqs(results, win.fromSeq, win.toSeq, 6);
   const res = useAsync(() => Promise.all(seqs.map((s) => api.contributions(batch, s))), [batch, seqs.join(',')]);
   const mean = res.data ? meanContributions(res.data.map((r) => r.contributions)) : null;
@@ -336,7 +349,7 @@ function DepartureContributions({ batch, results, win }: { batch: string; result
               </tr>
             </thead>
             <tbody>
-              {topShares(mean, 'q', 6).map((r) => (
+              {(regions && regions.length ? regions : topShares(mean, 'q', 6)).map((r) => (
                 <tr key={r.name}>
                   <td>{r.name}</td>
                   <td>

@@ -4,7 +4,7 @@ import type uPlot from 'uplot';
 import { api } from '../api/endpoints.ts';
 import { get } from '../api/http.ts';
 import { ApiError, errorText } from '../api/problem.ts';
-import type { SpectrumView } from '../api/proposed.ts';
+import type { SpectrumView } from '../../../core/api/rest.ts';
 import { Chart } from '../charts/chart.tsx';
 import { spectrumOptions } from '../charts/chart-options.ts';
 import type { Band } from '../charts/envelope-band.ts';
@@ -58,19 +58,19 @@ export function SpectrumPanel({ batch, seq, following, latestT }: { batch: strin
       {!loaded && !error && <Loading what="spectrum" />}
       {loaded?.kind === 'raw' && (
         <>
-          <SpectrumChart title="raw absorbance" axis={loaded.axis} values={loaded.values} yLabel="absorbance (raw)" style={STYLE.batch} band={null} />
+          <SpectrumChart title="raw absorbance" axis={loaded.axis} values={loaded.values} yLabel="absorbance" style={STYLE.batch} band={null} />
           <p class="muted small">{loaded.note}</p>
         </>
       )}
       {loaded?.kind === 'view' && (
         <>
-          <SpectrumChart title="raw absorbance" axis={loaded.v.raw.axis} values={loaded.v.raw.values} yLabel="absorbance (raw)" style={STYLE.batch} band={bandOf(loaded.v.raw)} />
+          <SpectrumChart title="raw absorbance" axis={loaded.v.raw.axis} values={loaded.v.raw.values} yLabel="absorbance" style={STYLE.batch} band={bandOf(loaded.v.raw)} />
           {loaded.v.preprocessed && (
             <SpectrumChart
               title="preprocessed (model input)"
               axis={loaded.v.preprocessed.axis}
               values={loaded.v.preprocessed.values}
-              yLabel="preprocessed value"
+              yLabel="preprocessed"
               style={STYLE.preprocessed}
               band={bandOf(loaded.v.preprocessed)}
             />

@@ -101,8 +101,8 @@ export function Watch({ unit, now }: { unit: string; now: number }) {
               </label>
             </div>
             <div class="two-col">
-              <StatChart live={live} stat="T²" log={log} picked={pickedSeq} onPick={setPicked} />
-              <StatChart live={live} stat="Q" log={log} picked={pickedSeq} onPick={setPicked} />
+              <StatChart live={live} stat="T²" log={log} picked={pickedSeq} onPick={setPicked} env={envData} />
+              <StatChart live={live} stat="Q" log={log} picked={pickedSeq} onPick={setPicked} env={envData} />
             </div>
             <p class="hint">Click a point on any chart to see its contributions by wavelength.</p>
           </div>
@@ -212,7 +212,8 @@ function pickedMark(s: LiveState, seq: number | null, col: 'progress' | 'elapsed
   return [{ x: s.series.at(col, i), label: `selected #${seq}`, style: STYLE.selected }];
 }
 
-export function StatChart({ live, stat, log, picked, onPick }: { live: ReturnType<typeof useLive>; stat: 'T²' | 'Q'; log: boolean; picked: number | null; onPick: (seq: number) => void }) {
+export function StatChart({ live, stat, log, picked, onPick, env }: { live: ReturnType<typeof useLive>; stat: 'T²' | 'Q'; log: boolean; picked: number | null; onPick: (seq: number) => void; env?: ModelEnvelopeView | null }) {
+  const course: [number, number] | null = env && env.progressKind === 'time' && env.progress.length ? [0, env.progress[env.progress.length - 1]] : null;
   const s = live.state;
   const local = hasLocal(s, stat);
   const inst = useSeriesFeed(live, () => statData(s, stat, local));
@@ -227,7 +228,7 @@ export function StatChart({ live, stat, log, picked, onPick }: { live: ReturnTyp
       testId={`stat-chart-${stat === 'T²' ? 't2' : 'q'}`}
       title={`${stat} against elapsed time with its ${limitName(stat, conf)}`}
       height={220}
-      optsKey={`stat-${stat}-${log}-${local}`}
+      optsKey={`stat-${stat}-${log}-${local}-${course?.[1] ?? ''}`}
       data={statData(s, stat, local)}
       legend={[
         { style: STYLE.batch, label: stat },
@@ -250,6 +251,7 @@ export function StatChart({ live, stat, log, picked, onPick }: { live: ReturnTyp
             return Number.isFinite(l) ? l : s.series.at(limitCol, i);
           },
           getValues: () => s.series.view(stat === 'T²' ? 't2' : 'q'),
+          getCourse: () => course,
           getMarks: () => pickedMark(s, pickedRef.current, 'elapsedMin'),
         })
       }
