@@ -39,7 +39,8 @@ interface Cond {
 }
 
 function fmt(x: number): string {
-  return Math.abs(x) >= 100 ? x.toFixed(0) : Math.abs(x) >= 10 ? x.toFixed(1) : x.toFixed(2);
+  const a = Math.abs(x);
+  return a >= 100 ? x.toFixed(0) : a >= 10 ? x.toFixed(1) : a >= 1 ? x.toFixed(2) : x.toPrecision(3);
 }
 
 export function createBatchMonitor(model: MonitoringModel, batchStartT: number): BatchMonitor {
@@ -146,7 +147,7 @@ export function createBatchMonitor(model: MonitoringModel, batchStartT: number):
       if (u.suspect) suspect = true;
       if (u.active) active.push(cd.key);
       if (u.changed) {
-        const what = c >= firstEnv ? `${cd.label} score ${fmt(envelope[condPc[c]].score)} is ${fmt(envelope[condPc[c]].sd)} sd from the golden path (band ±${env.k} sd)` : `${cd.label} ${fmt(value)} ${u.active ? 'above' : 'back below'} its ${confPct} limit ${fmt(limit)}`;
+        const what = c >= firstEnv ? `${cd.label} score ${fmt(envelope[condPc[c]].score)} is ${fmt(envelope[condPc[c]].sd)} sd from the golden path (band ±${fmt(env.k)} sd)` : `${cd.label} ${fmt(value)} ${u.active ? 'above' : 'back below'} its ${confPct} limit ${fmt(limit)}`;
         const change: ConditionChange = { kind: cd.kind, key: cd.key, active: u.active, message: u.active ? what : `${cd.label} back within limits: ${what}`, value, limit, priority: cd.priority };
         changes.push(change);
         events.push({ type: 'condition', change, t, seq });

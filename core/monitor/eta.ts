@@ -3,13 +3,20 @@
  * the time it still needed from this progress point to its endpoint, scaled by how fast the live
  * batch got here relative to that batch (ratio clamped to 0.5…2); the median and the 10th/90th
  * percentiles of those times give the estimate and its spread. With time as progress the ratio is 1.
+ * Batches that started beyond the current progress give no evidence and are left out.
  */
 import type { Envelope } from '../envelope/envelope.ts';
 
 export class EtaEstimator {
   private readonly rem: Float64Array;
+  /** First grid point each reference batch reached (it started beyond the points before). */
+  private readonly first: Int32Array;
   constructor(private readonly env: Envelope) {
     this.rem = new Float64Array(env.nBatches);
+    this.first = Int32Array.from(env.timeAtProgress, (row) => {
+      const i = row.findIndex((v) => v !== null);
+      return i < 0 ? row.length : i;
+    });
   }
 
   estimate(k: number, elapsedMin: number): { median: number; low: number; high: number } | null {
@@ -21,7 +28,8 @@ export class EtaEstimator {
       const end = env.endMin[b];
       let r: number;
       if (timeAxis) r = end - elapsedMin;
-      else if (tap === null) r = 0;
+      else if (k < this.first[b]) continue; // this batch started beyond the current progress: no evidence
+      else if (tap === null) r = 0; // this batch ended before reaching it
       else {
         let ratio = tap > 1 ? elapsedMin / tap : 1;
         ratio = ratio < 0.5 ? 0.5 : ratio > 2 ? 2 : ratio;
