@@ -144,6 +144,7 @@ async function main() {
     console.log('stopped.');
     process.exit(0);
   };
+  process.on('unhandledRejection', (e) => console.error('demo: unhandled rejection:', e));
   process.once('SIGINT', () => void stop());
   process.once('SIGTERM', () => void stop());
 

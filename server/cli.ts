@@ -101,6 +101,8 @@ async function main(argv: string[]): Promise<number> {
   const config = loadConfig({ env: process.env, flags: Object.fromEntries(Object.entries(flags).map(([k, v]) => [k.replace(/-([a-z])/g, (_, c: string) => c.toUpperCase()), v])) });
   switch (cmd) {
     case 'serve': {
+      // The server must not crash on what a peer sends; anything that slips through is logged.
+      process.on('unhandledRejection', (e) => process.stderr.write(`tideline: unhandled rejection: ${(e as Error)?.stack ?? e}\n`));
       const s = await startServer(config);
       process.stdout.write(`Tideline is running at ${s.url}/  (Ctrl-C stops it)\n`);
       await new Promise<void>((res) => {

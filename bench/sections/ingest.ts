@@ -55,6 +55,7 @@ interface Peer {
   ws: WebSocket;
   acked: number;
   onAck: (seq: number) => void;
+  problems: string[];
 }
 
 async function connect(url: string, token: string, analyzer: string, boot: number, axis: number[]): Promise<Peer> {
@@ -63,7 +64,8 @@ async function connect(url: string, token: string, analyzer: string, boot: numbe
     ws.once('open', () => res());
     ws.once('error', rej);
   });
-  const peer: Peer = { ws, acked: -1, onAck: () => undefined };
+  const peer: Peer = { ws, acked: -1, onAck: () => undefined, problems: [] };
+  ws.on('close', (code, reason) => peer.problems.push(`closed ${code} ${reason.toString()}`));
   const welcome = new Promise<void>((res, rej) => {
     ws.on('message', (d: Buffer) => {
       const m = JSON.parse(d.toString()) as { type: string; seq?: number; message?: string };
@@ -83,6 +85,19 @@ async function connect(url: string, token: string, analyzer: string, boot: numbe
 async function flat(peers: Peer[], units: string[], spectra: Float32Array[], count: number, json: boolean, tag: string): Promise<number> {
   const t0 = Date.now() * 1000 + Math.floor(Math.random() * 1000);
   const start = performance.now();
+  let lastProgress = performance.now();
+  let total = -1;
+  const watchdog = setInterval(() => {
+    const sum = peers.reduce((a, p) => a + p.acked, 0);
+    if (sum !== total) {
+      total = sum;
+      lastProgress = performance.now();
+    } else if (performance.now() - lastProgress > 60_000) {
+      clearInterval(watchdog);
+      const stuck = peers.map((p, i) => `${i}: acked ${p.acked} ${p.problems.slice(-2).join(' | ')}`).join('\n');
+      throw new Error(`ingest bench (${tag}): no ack for 60 s\n${stuck}`);
+    }
+  }, 1000);
   await Promise.all(
     peers.map(
       (p, i) =>
@@ -108,6 +123,7 @@ async function flat(peers: Peer[], units: string[], spectra: Float32Array[], cou
         }),
     ),
   );
+  clearInterval(watchdog);
   return (peers.length * count) / ((performance.now() - start) / 1000);
 }
 

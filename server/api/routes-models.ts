@@ -82,7 +82,7 @@ export function addModelRoutes(t: RouteTable, ctx: ServerContext) {
         const by = userOf(req);
         if (ctx.auth && req.user) {
           await ctx.auth.sign({ user: req.user, password: body.password ?? '', meaning: 'approved', objectType: 'model', objectId: m.id, objectHash: m.sha256, reason: body.reason, address: req.ip }, () => {
-            void ctx.storage.approveModelVersion(m.id, by, ctx.now(), body.reason);
+            ctx.storage.approveModelVersion(m.id, by, ctx.now(), body.reason).catch((e) => ctx.log.error(`approving ${m.id} failed after the signature`, e));
           });
         } else {
           await ctx.storage.approveModelVersion(m.id, by, ctx.now(), body.reason);
@@ -102,7 +102,7 @@ export function addModelRoutes(t: RouteTable, ctx: ServerContext) {
         const by = userOf(req);
         if (ctx.auth && req.user) {
           await ctx.auth.sign({ user: req.user, password: body.password ?? '', meaning: 'retired', objectType: 'model', objectId: m.id, objectHash: m.sha256, reason: body.reason, address: req.ip }, () => {
-            void ctx.storage.retireModelVersion(m.id, by, ctx.now(), body.reason);
+            ctx.storage.retireModelVersion(m.id, by, ctx.now(), body.reason).catch((e) => ctx.log.error(`retiring ${m.id} failed after the signature`, e));
           });
         } else {
           await ctx.storage.retireModelVersion(m.id, by, ctx.now(), body.reason);

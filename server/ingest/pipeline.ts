@@ -635,13 +635,13 @@ export class IngestPipeline {
     if (this.pendingEntries >= this.config.ingest.groupCommitMaxEntries) {
       if (this.timer) clearTimeout(this.timer);
       this.timer = null;
-      void this.flush();
+      void this.flush().catch((e) => this.log.error('group commit failed', e));
       return;
     }
     if (this.timer) return;
     this.timer = setTimeout(() => {
       this.timer = null;
-      void this.flush();
+      void this.flush().catch((e) => this.log.error('group commit failed', e));
     }, this.config.ingest.groupCommitMs);
   }
 

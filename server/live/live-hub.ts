@@ -77,7 +77,7 @@ export class LiveHub {
     events.on('endpoint', (e: { unit: string; batch: string; from: EndpointState; to: EndpointState; endpoint: EndpointStatus; t: number; seq: number }) =>
       this.broadcast((s) => matchesUnitOrBatch(s, e.unit, e.batch), { type: 'endpoint', ...e }),
     );
-    events.on('batch', (e: { event: 'started' | 'ended'; batch: string; unit: string }) => void this.onBatch(e));
+    events.on('batch', (e: { event: 'started' | 'ended'; batch: string; unit: string }) => void this.onBatch(e).catch((err) => this.log.error('live batch event failed', err)));
     events.on('unit-changed', (unit: string | null) => {
       if (unit) this.markUnit(unit);
     });
