@@ -290,18 +290,6 @@ export class AuthService implements Auth {
     };
   }
 
-  /**
-   * Defence in depth for a whole API: refuses every POST/PUT/PATCH/DELETE without a valid
-   * session and CSRF header, except the paths in `open` (login). Mount before the routes.
-   */
-  writeGuard(open: string[] = ['/api/auth/login']): RequestHandler {
-    const viewer = this.requireRole('viewer');
-    return (req, res, next) => {
-      if (!UNSAFE.has(req.method) || open.includes(req.originalUrl.split('?')[0])) return next();
-      viewer(req, res, next);
-    };
-  }
-
   /** Set the session and CSRF cookies after login. */
   setSessionCookies(res: Response, r: { token: string; csrfToken: string; expiresAt: number }): void {
     const maxAge = Math.max(0, r.expiresAt - this.now());
