@@ -134,6 +134,16 @@ describe('batch monitor', () => {
     expect(rr[120].suspect).toBe(true);
     expect(rr.slice(118, 130).some((r) => r.conditionChanges.some((c) => c.active))).toBe(false);
   });
+  it("with alarms.limits 'global' the T²/Q conditions use the global limits and the combined index raises too", () => {
+    const m = buildMonitoringModel(ref.map((b) => ({ id: b.id, axis: b.axis, times: b.times, spectra: b.spectra, property: b.truth.property.values })), { ...settings, alarms: { ...settings.alarms, limits: 'global' } });
+    const bad = simulateBatch('dryer', { seed: 777002, faults: [{ type: 'wrong-material', onsetS: 1200 }] });
+    const changes = run(m, bad).flatMap((r) => r.conditionChanges);
+    const q = changes.find((c) => c.key === 'q' && c.active);
+    expect(q?.limit).toBe(m.limits.q.value);
+    expect(changes.some((c) => c.key === 'combined' && c.active)).toBe(true);
+    // per-point limits (the default) never raise a 'combined' condition
+    expect(run(model, bad).flatMap((r) => r.conditionChanges).some((c) => c.key === 'combined')).toBe(false);
+  });
   it('refuses a spectrum of the wrong length, naming the model', () => {
     const mon = createBatchMonitor(model, good.times[0]);
     expect(() => mon.push(0, good.times[0], new Float32Array(5))).toThrow(/5 values.*expects 256/);
