@@ -15,9 +15,39 @@ const SALT_LEN = 16;
 export const MIN_PASSWORD_LENGTH = 10;
 export const MAX_PASSWORD_LENGTH = 256;
 
+/**
+ * At most this many scrypt computations run at once (each takes 128·N·r bytes: 128 MiB at the
+ * default cost); further ones wait their turn, so a burst of login attempts cannot exhaust memory.
+ */
+export const MAX_CONCURRENT_SCRYPT = 2;
+let running = 0;
+const waiting: (() => void)[] = [];
+
+async function withSlot<T>(fn: () => Promise<T>): Promise<T> {
+  // A released slot is handed straight to the next waiter, so `running` never exceeds the cap.
+  if (running < MAX_CONCURRENT_SCRYPT) running++;
+  else await new Promise<void>((r) => waiting.push(r));
+  try {
+    return await fn();
+  } finally {
+    const next = waiting.shift();
+    if (next) next();
+    else running--;
+  }
+}
+
+/** Largest number of scrypt computations seen running at once (for tests). */
+export let peakConcurrentScrypt = 0;
+
 export function scrypt(password: string | Buffer, salt: Buffer, keylen: number, o: { N: number; r: number; p: number }): Promise<Buffer> {
   const opts: ScryptOptions = { N: o.N, r: o.r, p: o.p, maxmem: 256 * o.N * o.r * o.p + 16 * 1024 * 1024 };
-  return new Promise((resolve, reject) => scryptCb(password, salt, keylen, opts, (err, key) => (err ? reject(err) : resolve(key))));
+  return withSlot(
+    () =>
+      new Promise<Buffer>((resolve, reject) => {
+        peakConcurrentScrypt = Math.max(peakConcurrentScrypt, running);
+        scryptCb(password, salt, keylen, opts, (err, key) => (err ? reject(err) : resolve(key)));
+      }),
+  );
 }
 
 export async function hashPassword(password: string, log2N = DEFAULT_SCRYPT_LOG2N): Promise<string> {

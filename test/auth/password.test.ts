@@ -46,3 +46,14 @@ describe('scrypt password hashing', () => {
     expect(generatePassword(20)).not.toBe(p);
   });
 });
+
+describe('scrypt concurrency', () => {
+  it('runs at most MAX_CONCURRENT_SCRYPT computations at once, and all finish correctly', async () => {
+    const mod = await import('../../server/auth/password.ts');
+    const stored = await mod.hashPassword('burst-password-1', 10);
+    const results = await Promise.all(Array.from({ length: 12 }, (_, i) => mod.verifyPassword(i % 3 ? 'burst-password-1' : 'wrong-password', stored)));
+    expect(results.filter(Boolean)).toHaveLength(8);
+    expect(mod.peakConcurrentScrypt).toBeGreaterThan(0);
+    expect(mod.peakConcurrentScrypt).toBeLessThanOrEqual(mod.MAX_CONCURRENT_SCRYPT);
+  });
+});
