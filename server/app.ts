@@ -154,7 +154,10 @@ export async function startServer(config: ServerConfig, opts: StartOptions = {})
     }
     if (path === LIVE_PATH) {
       if (ctx.auth && !ctx.auth.userFromRequest(req)) return refuse(socket, 401, 'Unauthorized', 'log in first (POST /api/auth/login)');
-      liveWss.handleUpgrade(req, socket, head, (ws) => live.attach(ws));
+      liveWss.handleUpgrade(req, socket, head, (ws) => {
+        live.attach(ws);
+        ctx.auth?.closeWhenSessionEnds?.(req, ws);
+      });
       return;
     }
     refuse(socket, 404, 'Not Found', `no WebSocket endpoint at ${path}; use /ingest or ${LIVE_PATH}`);

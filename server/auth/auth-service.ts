@@ -259,6 +259,29 @@ export class AuthService implements Auth {
     return this.session(req.headers.cookie)?.user ?? null;
   }
 
+  /**
+   * For a WebSocket opened with a session (/live): close it with code 4401 once the session ends
+   * (logout, expiry, role change, disabled user, password reset). Checks every `everyMs`; the
+   * check does not count as activity, so an open dashboard does not keep an idle session alive.
+   */
+  closeWhenSessionEnds(req: IncomingMessage, ws: { close(code?: number, reason?: string): void; once(ev: 'close', fn: () => void): unknown }, everyMs = 30_000): void {
+    const token = readCookie(req.headers.cookie, SESSION_COOKIE);
+    const userId = token ? this.sessions.lookup(token)?.user_id : undefined;
+    if (!token || userId === undefined) {
+      ws.close(4401, 'session ended: log in again');
+      return;
+    }
+    const timer = setInterval(() => {
+      const row = this.users.byId(userId);
+      if (!this.sessions.isLive(token) || !row || row.disabled_at) {
+        clearInterval(timer);
+        ws.close(4401, 'session ended: log in again');
+      }
+    }, everyMs);
+    timer.unref();
+    ws.once('close', () => clearInterval(timer));
+  }
+
   identify(): RequestHandler {
     return (req: Request, _res: Response, next: NextFunction) => {
       const s = this.session(req.headers.cookie);

@@ -68,6 +68,16 @@ export class SessionStore {
     return r;
   }
 
+  /** Whether the session is still live, without counting this as activity. */
+  isLive(token: string): boolean {
+    const r = this.db.prepare('SELECT last_seen_at, expires_at FROM auth_sessions WHERE token_hash = ?').get(sha256Hex(token)) as
+      | { last_seen_at: number; expires_at: number }
+      | undefined;
+    if (!r) return false;
+    const t = this.now();
+    return t < r.expires_at && t - r.last_seen_at < this.times.idleMs;
+  }
+
   delete(token: string): void {
     this.db.prepare('DELETE FROM auth_sessions WHERE token_hash = ?').run(sha256Hex(token));
   }

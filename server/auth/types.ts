@@ -114,6 +114,8 @@ export interface Auth {
   identify(): RequestHandler;
   /** For WebSocket upgrades (/live): the user of the session cookie on this request, or null. */
   userFromRequest(req: IncomingMessage): AuthUser | null;
+  /** For /live sockets: close the socket (code 4401) once the session behind `req` ends. */
+  closeWhenSessionEnds?(req: IncomingMessage, ws: { close(code?: number, reason?: string): void; once(ev: 'close', fn: () => void): unknown }, everyMs?: number): void;
   /** For the /ingest upgrade: the analyzer id the token belongs to, or null (unknown or revoked). */
   verifyAnalyzerToken(token: string): string | null;
   /** Create an analyzer token; the plain token is returned once and stored only hashed. */

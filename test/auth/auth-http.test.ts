@@ -317,3 +317,33 @@ describe('audit API', () => {
     expect(v.json.problem).toMatch(/record 4/);
   });
 });
+
+describe('live sockets and session end', () => {
+  it('a socket opened with a session is closed (4401) after logout; one without a session at once', async () => {
+    const { WebSocketServer, WebSocket } = await import('ws');
+    h = await startHarness();
+    const pw = await addUser(h, 'vera', 'viewer');
+    const wss = new WebSocketServer({ host: '127.0.0.1', port: 0 });
+    await new Promise((r) => wss.once('listening', r));
+    wss.on('connection', (ws, req) => h!.auth.closeWhenSessionEnds(req, ws, 20));
+    const url = `ws://127.0.0.1:${(wss.address() as import('node:net').AddressInfo).port}/live`;
+    const closeCode = (ws: InstanceType<typeof WebSocket>) => new Promise<number>((r) => ws.once('close', (c) => r(c)));
+    try {
+      const anon = new WebSocket(url);
+      expect(await closeCode(anon)).toBe(4401);
+      const c = new Client(h.base);
+      await c.login('vera', pw);
+      const ws = new WebSocket(url, { headers: { cookie: [...c.cookies].map(([k, v]) => `${k}=${v}`).join('; ') } });
+      await new Promise((r) => ws.once('open', r));
+      const closed = closeCode(ws);
+      let stillOpen = true;
+      void closed.then(() => (stillOpen = false));
+      await new Promise((r) => setTimeout(r, 100));
+      expect(stillOpen).toBe(true); // a live session keeps it open
+      expect((await c.req('POST', '/api/auth/logout')).status).toBe(204);
+      expect(await closed).toBe(4401);
+    } finally {
+      wss.close();
+    }
+  });
+});
