@@ -24,6 +24,7 @@ import { recordAudit } from '../server/api/audit-helper.ts';
 import { simulateBatch, simulateReferenceSet, FAULT_INFO, FAULT_TYPES, type FaultSpec, type SimulatedBatch } from '../simulators/batch.ts';
 import { AnalyzerClient } from '../simulators/stream-client.ts';
 import { buildMonitoringModel } from '../core/model/monitoring-model.ts';
+import { defaultSettings } from './evaluate.ts';
 
 type Kind = 'dryer' | 'reactor';
 interface Line {
@@ -38,8 +39,8 @@ interface Line {
 }
 
 const LINES: Line[] = [
-  { kind: 'dryer', unit: 'dryer-1', unitName: 'Fluid-bed dryer 1', analyzer: 'nir-dryer-1', product: 'granule A', refSeed: 4201, refCount: 6, speedFactor: 1 },
-  { kind: 'reactor', unit: 'reactor-1', unitName: 'Batch reactor 1', analyzer: 'nir-reactor-1', product: 'ester B', refSeed: 4301, refCount: 6, speedFactor: 4 },
+  { kind: 'dryer', unit: 'dryer-1', unitName: 'Fluid-bed dryer 1', analyzer: 'nir-dryer-1', product: 'granule A', refSeed: 4201, refCount: 10, speedFactor: 1 },
+  { kind: 'reactor', unit: 'reactor-1', unitName: 'Batch reactor 1', analyzer: 'nir-reactor-1', product: 'ester B', refSeed: 4301, refCount: 10, speedFactor: 4 },
 ];
 
 function parseArgs(argv: string[]): { speed: number; seed: number; flags: Record<string, string> } {
@@ -93,10 +94,9 @@ async function setUpLine(s: TidelineServer, line: Line, url: string, log: (l: st
     log(`  building the ${line.kind} monitoring model from ${refs.length} reference batches …`);
     const model = buildMonitoringModel(
       refs.map((b) => ({ id: b.id, axis: b.axis, times: b.times, spectra: b.spectra, property: b.truth.property.values })),
-      {
-        name: `${line.kind}-${line.product.replace(/\s+/g, '-')}`, product: line.product, author: 'demo-setup', createdAt: ctx.now(),
-        property: { name: refs[0]!.truth.property.name, unit: refs[0]!.truth.property.unit, components: 'auto', target: refs[0]!.truth.property.target, direction: refs[0]!.truth.property.direction },
-      },
+      // The settings the issue-4 evaluation uses (scripts/evaluate.ts): property-indexed progress,
+      // local limits, MSC for the property model only.
+      { ...defaultSettings(line.kind), name: `${line.kind}-${line.product.replace(/\s+/g, '-')}`, product: line.product, author: 'demo-setup', createdAt: ctx.now() },
     );
     const row = await registerModel(ctx, model as never, { createdBy: 'demo-setup', referenceBatches: refs.map((b) => b.id) });
     const reason = 'demo: approved automatically at first start; NOT a validated model';
