@@ -54,7 +54,7 @@ export interface StartOptions {
 export async function startServer(config: ServerConfig, opts: StartOptions = {}): Promise<TidelineServer> {
   const log = createLogger(config.logLevel);
   const now = opts.now ?? Date.now;
-  const storage = new SqliteStorage({ file: opts.dbFile ?? join(config.dataDir, 'tideline.db'), synchronous: config.synchronous });
+  const storage = new SqliteStorage({ file: opts.dbFile ?? join(config.dataDir, 'tideline.db'), synchronous: config.synchronous, checkpointInWorker: config.walCheckpoint === 'worker' });
   const metrics = createMetrics();
   const events = new EventEmitter();
   events.setMaxListeners(100);

@@ -15,6 +15,8 @@ export const configSchema = z
     dataDir: z.string().min(1).default('./data'),
     /** SQLite synchronous mode; FULL keeps every acked spectrum through a power cut. */
     synchronous: z.enum(['FULL', 'NORMAL']).default('FULL'),
+    /** Where WAL checkpoints run: a worker thread (default) or SQLite's automatic ones on the committing thread. */
+    walCheckpoint: z.enum(['worker', 'sqlite']).default('worker'),
     /** Folder with the built dashboard (served at /), or null. */
     webDir: z.string().nullable().default('web/dist'),
     ingest: z
@@ -93,7 +95,7 @@ function setPath(obj: Record<string, unknown>, path: string, value: unknown) {
   o[parts[parts.length - 1]!] = value;
 }
 
-const TEXT = new Set(['host', 'dataDir', 'webDir', 'synchronous', 'logLevel']);
+const TEXT = new Set(['host', 'dataDir', 'webDir', 'synchronous', 'logLevel', 'walCheckpoint']);
 
 function coerce(path: string, raw: string, source: string): unknown {
   if (path === 'webDir' && (raw === '' || raw === 'none')) return null;

@@ -34,7 +34,7 @@ const WINDOW = 256;
 
 function startServer(dir: string): Promise<{ child: ChildProcess; url: string }> {
   const extra = process.env.TIDELINE_BENCH_SERVER_NODE_ARGS?.split(' ').filter(Boolean) ?? [];
-  const child = spawn(process.execPath, [...extra, '--import', 'tsx', join(root, 'server', 'cli.ts'), 'serve', '--port', '0', '--data-dir', dir, '--web-dir', 'none', '--log-level', 'error'], {
+  const child = spawn(process.execPath, [...extra, '--import', 'tsx', join(root, 'server', 'cli.ts'), 'serve', '--port', '0', '--data-dir', dir, '--web-dir', 'none', '--log-level', 'error', ...(process.env.TIDELINE_BENCH_SERVER_FLAGS?.split(' ').filter(Boolean) ?? [])], {
     cwd: root,
     stdio: ['ignore', 'pipe', 'pipe'],
   });
