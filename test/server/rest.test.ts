@@ -196,6 +196,9 @@ describe('REST: alarms — stale data, acknowledge, shelve', () => {
     expect(alarm).toMatchObject({ kind: 'stale', state: 'active-unacknowledged', batch: 'stale-1', active: true });
     expect(alarm.message).toMatch(/no data from analyzer nir-1/);
     expect((await viewer.get('/api/units/dryer-1')).body.status).toBe('stale');
+    // The alarm change went into the outbox for the signal channels.
+    const rows = ts.server.ctx.storage.db.prepare(`SELECT type, payload FROM outbox WHERE unit = 'dryer-1' AND type = 'alarm'`).all() as { payload: string }[];
+    expect(rows.some((r) => JSON.parse(r.payload).alarm.id === alarm.id)).toBe(true);
     const operator = await login(ts, 'operator');
     let r = await viewer.post(`/api/alarms/${alarm.id}/acknowledge`, {});
     expect(r.status).toBe(403);
