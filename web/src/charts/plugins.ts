@@ -298,12 +298,8 @@ export function regionsPlugin(getRegions: () => { from: number; to: number; name
           }
           ctx.font = `${10 * uPlot.pxRatio}px system-ui, sans-serif`;
           ctx.fillStyle = '#333';
-          ctx.save();
-          ctx.beginPath();
-          ctx.rect(x0, top, x1 - x0, height);
-          ctx.clip();
-          ctx.fillText(r.name, x0 + 3 * uPlot.pxRatio, top + 11 * uPlot.pxRatio);
-          ctx.restore();
+          // Name the region only where the name fits; the table beside the chart names them all.
+          if (ctx.measureText(r.name).width + 6 * uPlot.pxRatio <= x1 - x0) ctx.fillText(r.name, x0 + 3 * uPlot.pxRatio, top + 11 * uPlot.pxRatio);
         });
         ctx.restore();
       },

@@ -1,0 +1,216 @@
+/**
+ * The dashboard in real headless Chromium (Debian's chromium, driven by playwright-core) against the
+ * demo server (scripts/demo.ts) on a free port: Floor, the dryer's Watch with live points, envelope,
+ * limit lines and endpoint panel drawn with data, acknowledging an alarm, building and approving a
+ * model in Model bench, a finished batch in Review, and the Ledger. Screenshots go to
+ * test-results/web/. Without Chromium the tests are skipped and say why.
+ *
+ * To run against a demo that is already up: TIDELINE_WEB_URL=http://127.0.0.1:PORT
+ * TIDELINE_WEB_PASSWORD=... (the demo prints both).
+ */
+import { spawn, type ChildProcess } from 'node:child_process';
+import { existsSync, mkdirSync, mkdtempSync, rmSync } from 'node:fs';
+import { tmpdir } from 'node:os';
+import { join, resolve } from 'node:path';
+import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import type { Browser, Page } from 'playwright-core';
+import { STYLE } from '../../web/src/theme/palette.ts';
+
+const ROOT = resolve(import.meta.dirname, '../..');
+const CHROMIUM = process.env.TIDELINE_CHROMIUM ?? '/usr/bin/chromium';
+const SHOTS = join(ROOT, 'test-results/web');
+const haveChromium = existsSync(CHROMIUM);
+if (!haveChromium) console.warn(`dashboard browser test SKIPPED: Chromium not found at ${CHROMIUM} (install Debian's chromium package or set TIDELINE_CHROMIUM)`);
+
+let demo: ChildProcess | null = null;
+let tmp = '';
+let url = process.env.TIDELINE_WEB_URL ?? '';
+let password = process.env.TIDELINE_WEB_PASSWORD ?? '';
+let browser: Browser;
+let page: Page;
+const pageErrors: string[] = [];
+
+async function startDemo(): Promise<void> {
+  tmp = mkdtempSync(join(tmpdir(), 'tideline-web-test-'));
+  const dist = join(tmp, 'dist');
+  const { build } = await import('vite');
+  await build({ configFile: join(ROOT, 'web/vite.config.ts'), logLevel: 'warn', build: { outDir: dist, emptyOutDir: true } });
+  demo = spawn(process.execPath, ['--import', 'tsx', 'scripts/demo.ts', '--port', '0', '--data-dir', join(tmp, 'data'), '--web-dir', dist, '--speed', '200', '--seed', '11'], {
+    cwd: ROOT,
+    stdio: ['ignore', 'pipe', 'pipe'],
+    env: { ...process.env, TIDELINE_LOG_LEVEL: 'warn' },
+  });
+  let out = '';
+  await new Promise<void>((ok, fail) => {
+    const timer = setTimeout(() => fail(new Error(`demo did not print its dashboard URL within 240 s:\n${out}`)), 240_000);
+    const onData = (d: Buffer) => {
+      out += d.toString();
+      const u = /Dashboard:\s+(http:\/\/127\.0\.0\.1:\d+)/.exec(out);
+      const p = /password:\s+(\S+)/.exec(out);
+      if (u && p) {
+        url = u[1]!;
+        password = p[1]!;
+        clearTimeout(timer);
+        ok();
+      }
+    };
+    demo!.stdout!.on('data', onData);
+    demo!.stderr!.on('data', onData);
+    demo!.once('exit', (code) => fail(new Error(`demo exited with code ${code}:\n${out}`)));
+  });
+}
+
+/** An rgba(...) or #rrggbb colour as [r, g, b, alpha 0…255] (what getImageData gives on the transparent chart canvas). */
+function rgba(css: string): [number, number, number, number] {
+  const hex = /^#([0-9a-f]{2})([0-9a-f]{2})([0-9a-f]{2})$/i.exec(css);
+  if (hex) return [parseInt(hex[1]!, 16), parseInt(hex[2]!, 16), parseInt(hex[3]!, 16), 255];
+  const m = /rgba?\(([\d.]+),\s*([\d.]+),\s*([\d.]+)(?:,\s*([\d.]+))?\)/.exec(css)!;
+  return [Number(m[1]), Number(m[2]), Number(m[3]), Math.round(255 * (m[4] === undefined ? 1 : Number(m[4])))];
+}
+
+async function shot(name: string): Promise<void> {
+  await page.screenshot({ path: join(SHOTS, `${name}.png`), fullPage: true });
+}
+
+/** Count canvas pixels close to a colour and opacity (to see that a band or a line was drawn). */
+async function countColour(selector: string, rgbaWanted: [number, number, number, number], tol = 18): Promise<number> {
+  return page.evaluate(
+    ({ selector, c, tol }) => {
+      const canvases = [...document.querySelectorAll(`${selector} canvas`)] as HTMLCanvasElement[];
+      let n = 0;
+      for (const cv of canvases) {
+        const d = cv.getContext('2d')!.getImageData(0, 0, cv.width, cv.height).data;
+        for (let i = 0; i < d.length; i += 4)
+          if (Math.abs(d[i]! - c[0]) <= tol && Math.abs(d[i + 1]! - c[1]) <= tol && Math.abs(d[i + 2]! - c[2]) <= tol && Math.abs(d[i + 3]! - c[3]) <= Math.max(tol, 10)) n++;
+      }
+      return n;
+    },
+    { selector, c: rgbaWanted, tol },
+  );
+}
+
+describe.skipIf(!haveChromium)('dashboard in headless Chromium', () => {
+  beforeAll(async () => {
+    mkdirSync(SHOTS, { recursive: true });
+    if (!url) await startDemo();
+    const { chromium } = await import('playwright-core');
+    browser = await chromium.launch({
+      executablePath: CHROMIUM,
+      args: ['--no-sandbox', '--disable-gpu', '--disable-background-networking', '--disable-component-update', '--no-first-run'],
+    });
+    page = await browser.newPage({ viewport: { width: 1280, height: 800 } });
+    page.on('pageerror', (e) => pageErrors.push(e.message));
+    page.setDefaultTimeout(60_000);
+  }, 300_000);
+
+  afterAll(async () => {
+    await browser?.close();
+    if (demo) {
+      demo.kill('SIGTERM');
+      await new Promise((r) => demo!.once('exit', r));
+    }
+    if (tmp) rmSync(tmp, { recursive: true, force: true });
+  }, 60_000);
+
+  it('signs in and shows a tile per unit on Floor', async () => {
+    await page.goto(`${url}/#/floor`);
+    await page.getByLabel('User name').fill('demo-admin');
+    await page.getByLabel('Password').fill(password);
+    await page.getByRole('button', { name: 'Sign in' }).click();
+    await page.getByRole('heading', { name: 'Floor' }).waitFor();
+    await page.getByTestId('tile-dryer-1').waitFor();
+    await page.getByTestId('tile-reactor-1').waitFor();
+    expect(await page.getByTestId('tile-dryer-1').getByRole('heading').textContent()).toBe('Fluid-bed dryer 1');
+    // wait until the dryer runs a batch and the tile shows it
+    await page.getByTestId('tile-dryer-1').getByText('of golden course').waitFor({ timeout: 120_000 });
+    await shot('floor');
+    expect(pageErrors).toEqual([]);
+  }, 180_000);
+
+  it("opens the dryer's Watch: live points, envelope band, named limit lines and endpoint panel with data", async () => {
+    await page.getByTestId('tile-dryer-1').click();
+    await page.waitForURL(/#\/watch\/dryer-1$/);
+    const count = page.getByTestId('point-count');
+    await count.waitFor({ timeout: 120_000 });
+    const n0 = Number((await count.textContent())!.split(' ')[0]);
+    await expect.poll(async () => Number((await count.textContent())!.split(' ')[0]), { timeout: 60_000 }).toBeGreaterThan(n0);
+    // The envelope band is drawn (the palette's band fill over white) in the PC1 chart.
+    await expect.poll(() => countColour('[data-testid="score-chart-pc1"]', rgba(STYLE.envelope.fill!), 8), { timeout: 30_000 }).toBeGreaterThan(500);
+    // Limit lines in the palette's limit colour in the T² and Q charts, named with their confidence.
+    expect(await countColour('[data-testid="stat-chart-t2"]', rgba(STYLE.limit.stroke), 30)).toBeGreaterThan(100);
+    expect(await countColour('[data-testid="stat-chart-q"]', rgba(STYLE.limit.stroke), 30)).toBeGreaterThan(100);
+    await page.getByTestId('stat-chart-t2').getByText(/T² limit \(\d+(\.\d+)? %\)/).waitFor();
+    await page.getByTestId('stat-chart-q').getByText(/Q limit \(\d+(\.\d+)? %\)/).waitFor();
+    const ep = page.getByTestId('endpoint-panel');
+    await ep.getByText(/consecutive spectra/).waitFor();
+    expect(await ep.locator('table.criteria tbody tr').count()).toBeGreaterThan(0);
+    await ep.getByText(/Tideline advises/).waitFor();
+    await shot('watch-dryer');
+    // Click a point on the T² chart: contributions by wavelength appear.
+    const box = (await page.getByTestId('stat-chart-t2').locator('.u-over').boundingBox())!;
+    await page.mouse.click(box.x + box.width * 0.5, box.y + box.height * 0.5);
+    await page.getByTestId('contributions-panel').locator('canvas').first().waitFor();
+    await page.getByTestId('contributions-panel').scrollIntoViewIfNeeded();
+    await shot('watch-contributions');
+    expect(pageErrors).toEqual([]);
+  }, 240_000);
+
+  it('acknowledges an alarm', async () => {
+    const row = page.getByTestId('alarm-list').locator('li.alarm-row').filter({ has: page.getByRole('button', { name: 'Acknowledge' }) }).first();
+    await row.waitFor({ timeout: 240_000 });
+    const id = (await row.getAttribute('data-testid'))!;
+    await page.getByTestId(id).getByRole('button', { name: 'Acknowledge' }).click();
+    await page.getByTestId(id).getByText(/acknowledged by demo-admin/).waitFor({ timeout: 30_000 });
+    await page.getByTestId(id).scrollIntoViewIfNeeded();
+    await shot('watch-alarm-acknowledged');
+  }, 300_000);
+
+  it('builds and approves a model in Model bench', async () => {
+    await page.getByRole('link', { name: 'Model bench' }).click();
+    await page.getByTestId('builder').waitFor();
+    await page.getByLabel('Product').selectOption('granule A');
+    const refs = page.locator('[data-testid^="ref-dryer"]');
+    await expect.poll(() => refs.count(), { timeout: 60_000 }).toBeGreaterThanOrEqual(3);
+    for (let i = 0; i < 3; i++) await refs.nth(i).check();
+    await page.getByLabel('Model name').fill('dryer-test-model');
+    await page.getByLabel('Components').selectOption('2');
+    await page.getByTestId('build').click();
+    await page.getByTestId('version-detail').waitFor({ timeout: 120_000 });
+    await page.getByTestId('explained-chart').locator('canvas').waitFor();
+    await page.getByTestId('envelope-preview').locator('canvas').first().waitFor();
+    await shot('bench-draft');
+    const approve = page.getByTestId('approve');
+    await approve.getByLabel(/Reason/).fill('browser test: evaluated on the demo reference set');
+    await approve.getByLabel(/Password/).fill(password);
+    await approve.getByRole('button', { name: 'Approve' }).click();
+    await page.getByTestId('version-detail').locator('.panel-head h2 .badge', { hasText: 'approved' }).first().waitFor({ timeout: 30_000 });
+    await shot('bench-approved');
+    expect(pageErrors).toEqual([]);
+  }, 240_000);
+
+  it('opens a finished batch in Review', async () => {
+    await page.getByRole('link', { name: 'Review' }).click();
+    const first = page.locator('[data-testid^="review-dryer-1-"]').first();
+    await first.waitFor({ timeout: 60_000 });
+    await first.click();
+    const review = page.getByTestId('batch-review');
+    await review.waitFor();
+    await page.getByTestId('overlay').locator('canvas').first().waitFor({ timeout: 60_000 });
+    await page.getByTestId('timeline').getByText('batch start').waitFor();
+    await shot('review');
+    expect(pageErrors).toEqual([]);
+  }, 180_000);
+
+  it('shows the Ledger with the approval recorded', async () => {
+    await page.getByRole('link', { name: 'Ledger' }).click();
+    await page.getByTestId('ledger-table').waitFor();
+    await page.getByTestId('ledger-table').getByText('model.approve').first().waitFor();
+    await shot('ledger');
+  }, 60_000);
+});
+
+describe.skipIf(haveChromium)('dashboard in headless Chromium (skipped)', () => {
+  it(`is skipped: Chromium not found at ${CHROMIUM}`, () => {
+    expect(haveChromium).toBe(false);
+  });
+});
