@@ -95,7 +95,7 @@ function setPath(obj: Record<string, unknown>, path: string, value: unknown) {
   o[parts[parts.length - 1]!] = value;
 }
 
-const TEXT = new Set(['host', 'dataDir', 'webDir', 'synchronous', 'logLevel', 'walCheckpoint']);
+const TEXT = new Set(['host', 'dataDir', 'webDir', 'synchronous', 'logLevel', 'walCheckpoint', 'tls.cert', 'tls.key', 'tls.ca', 'tls.passphrase']);
 
 function coerce(path: string, raw: string, source: string): unknown {
   if (path === 'webDir' && (raw === '' || raw === 'none')) return null;

@@ -6,6 +6,7 @@ import { SignatureError } from '../auth/types.ts';
 import { ModelRequestError, buildFromStored, envelopeView, evaluateVersion, versionDetail } from '../models/model-service.ts';
 import { HttpProblem, conflict, notFound } from './problem.ts';
 import type { RouteTable } from './route-table.ts';
+import type { SqliteStorage } from '../storage/sqlite-storage.ts';
 import { modelVersionSummary } from './views.ts';
 import { idSchema } from './routes-plant.ts';
 import { recordAudit, userOf } from './audit-helper.ts';
@@ -82,7 +83,12 @@ export function addModelRoutes(t: RouteTable, ctx: ServerContext) {
         const by = userOf(req);
         if (ctx.auth && req.user) {
           await ctx.auth.sign({ user: req.user, password: body.password ?? '', meaning: 'approved', objectType: 'model', objectId: m.id, objectHash: m.sha256, reason: body.reason, address: req.ip }, () => {
-            ctx.storage.approveModelVersion(m.id, by, ctx.now(), body.reason).catch((e) => ctx.log.error(`approving ${m.id} failed after the signature`, e));
+            // Synchronous inside the signature's transaction: if the version is no longer a draft, the throw rolls the signature back too.
+            try {
+              (ctx.storage as unknown as SqliteStorage).approveModelVersionSync(m.id, by, ctx.now(), body.reason);
+            } catch {
+              throw conflict(`model version ${m.name} v${m.version} stopped being a draft while it was being signed; nothing was signed or changed`);
+            }
           });
         } else {
           await ctx.storage.approveModelVersion(m.id, by, ctx.now(), body.reason);
@@ -102,7 +108,11 @@ export function addModelRoutes(t: RouteTable, ctx: ServerContext) {
         const by = userOf(req);
         if (ctx.auth && req.user) {
           await ctx.auth.sign({ user: req.user, password: body.password ?? '', meaning: 'retired', objectType: 'model', objectId: m.id, objectHash: m.sha256, reason: body.reason, address: req.ip }, () => {
-            ctx.storage.retireModelVersion(m.id, by, ctx.now(), body.reason).catch((e) => ctx.log.error(`retiring ${m.id} failed after the signature`, e));
+            try {
+              (ctx.storage as unknown as SqliteStorage).retireModelVersionSync(m.id, by, ctx.now(), body.reason);
+            } catch {
+              throw conflict(`model version ${m.name} v${m.version} was retired by someone else while it was being signed; nothing was signed or changed`);
+            }
           });
         } else {
           await ctx.storage.retireModelVersion(m.id, by, ctx.now(), body.reason);

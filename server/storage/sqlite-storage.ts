@@ -321,10 +321,20 @@ export class SqliteStorage implements Storage {
     return (this.st.listModels.all() as Row[]).map(modelFromRow);
   }
   async approveModelVersion(id: string, by: string, at: number, reason: string) {
+    this.approveModelVersionSync(id, by, at, reason);
+  }
+  async retireModelVersion(id: string, by: string, at: number, reason: string) {
+    this.retireModelVersionSync(id, by, at, reason);
+  }
+  /**
+   * The same, synchronously: for use inside another SQLite transaction (an electronic signature),
+   * where a throw must roll the signature back with the state change.
+   */
+  approveModelVersionSync(id: string, by: string, at: number, reason: string): void {
     const r = this.st.approveModel.run(at, by, reason, id);
     if (r.changes !== 1) throw new Error(`model version ${id} is not a draft`);
   }
-  async retireModelVersion(id: string, by: string, at: number, reason: string) {
+  retireModelVersionSync(id: string, by: string, at: number, reason: string): void {
     this.db.transaction(() => {
       const r = this.st.retireModel.run(at, by, reason, id);
       if (r.changes !== 1) throw new Error(`model version ${id} is already retired`);
