@@ -35,18 +35,26 @@ function serve(dir: string): Promise<Server> {
   return new Promise((ok) => server.listen(0, '127.0.0.1', () => ok(server)));
 }
 
-export interface WatchFpsResult {
-  watch_fps: number | null;
-  watch_fps_points: number;
-  watch_fps_new_per_frame: number;
-  watch_fps_seconds: number | null;
-  watch_fps_skipped?: string;
+export const name = 'watch-fps';
+
+/** Figures as bench/run.ts collects them. */
+export type WatchFpsFigures = Record<string, number | string | null>;
+
+export interface WatchFpsOptions {
+  /** bench/run.ts: smaller run. */
+  quick?: boolean;
+  log?(line: string): void;
+  points?: number;
+  perFrame?: number;
+  seconds?: number;
+  /** Which charts (score,stat,plane); all by default. */
+  charts?: string;
 }
 
-export async function run(opts: { points?: number; perFrame?: number; seconds?: number; charts?: string } = {}): Promise<WatchFpsResult> {
+export async function run(opts: WatchFpsOptions = {}): Promise<WatchFpsFigures> {
   const points = opts.points ?? 10_000;
   const perFrame = opts.perFrame ?? 5;
-  const seconds = opts.seconds ?? 5;
+  const seconds = opts.seconds ?? (opts.quick ? 2 : 5);
   const base = { watch_fps_points: points, watch_fps_new_per_frame: perFrame };
   if (!existsSync(CHROMIUM)) return { watch_fps: null, watch_fps_seconds: null, ...base, watch_fps_skipped: `Chromium not found at ${CHROMIUM}` };
   const out = mkdtempSync(join(tmpdir(), 'tideline-web-'));
@@ -64,6 +72,7 @@ export async function run(opts: { points?: number; perFrame?: number; seconds?: 
     const r = await page.waitForFunction(() => window.__tidelineFps, undefined, { timeout: (seconds + 30) * 1000 }).then((h) => h.jsonValue());
     if (errors.length) throw new Error(`bench page failed: ${errors.join('; ')}`);
     if (!r || r.rowsAtEnd !== points) throw new Error(`bench page kept ${r?.rowsAtEnd} rows, expected ${points}`);
+    opts.log?.(`watch_fps: ${r.frames} frames in ${r.seconds.toFixed(2)} s with ${points} points per series, ${perFrame} new results per frame`);
     return { watch_fps: Math.round(r.fps * 10) / 10, watch_fps_seconds: Math.round(r.seconds * 100) / 100, ...base };
   } finally {
     await browser.close();

@@ -222,7 +222,7 @@ function Overlay({ d, env, cmp, own, others, alignedNote }: { d: BatchDetail; en
           if (al) lines.push({ ...al, style: COMPARE_STYLES[0], label: `${d.id} (DTW-aligned)` });
           else lines.push({ x: own.map((r) => r.progress), y: own.map((r) => r.scores[pc - 1]), style: COMPARE_STYLES[0], label: d.id });
           others.forEach((o, i) => lines.push({ x: o.results.map((r) => r.progress), y: o.results.map((r) => r.scores[pc - 1]), style: COMPARE_STYLES[(i + 1) % COMPARE_STYLES.length], label: o.id }));
-          return <OverlayChart key={`${pc}-${lines.length}-${cmp ? 1 : 0}`} pc={pc} band={band} lines={lines} xLabel={progressLabel(env)} />;
+          return <OverlayChart key={`${pc}-${lines.length}-${cmp ? 1 : 0}-${env?.versionId ?? ''}`} pc={pc} band={band} lines={lines} xLabel={progressLabel(env)} />;
         })}
       </div>
     </div>
@@ -247,7 +247,7 @@ function OverlayChart({ pc, band, lines, xLabel }: { pc: number; band: ReturnTyp
     <Chart
       title={`PC${pc} of the reviewed batch and compared batches on the golden envelope`}
       height={220}
-      optsKey={`ov-${pc}-${lines.map((l) => l.label).join()}`}
+      optsKey={`ov-${pc}-${lines.map((l) => l.label).join()}-${band ? band.x.length : 0}-${xLabel}`}
       data={data as unknown as uPlot.AlignedData}
       legend={[...lines.map((l) => ({ style: l.style, label: l.label })), { style: STYLE.goldenMean }, { style: STYLE.envelope }]}
       make={(w, h) => {
@@ -285,7 +285,7 @@ function StatsOverTime({ rs, win }: { rs: ResultRecord[]; win: { fromSeq: number
               key={stat}
               title={`${stat} over the batch`}
               height={200}
-              optsKey={`rev-${stat}-${rs.length}-${log}`}
+              optsKey={`rev-${stat}-${rs.length}-${log}-${win?.fromSeq}-${win?.toSeq}`}
               data={[x, y] as unknown as uPlot.AlignedData}
               legend={[{ style: STYLE.batch, label: stat }, { style: STYLE.limit, label: limitName(stat, conf) }, { style: { ...STYLE.outside, label: 'above limit ▲' } }]}
               make={(w, h) =>

@@ -1,5 +1,5 @@
 /** The latest (or selected) spectrum, raw and preprocessed, against the golden mean and band. */
-import { useEffect, useState } from 'preact/hooks';
+import { useEffect, useRef, useState } from 'preact/hooks';
 import type uPlot from 'uplot';
 import { api } from '../api/endpoints.ts';
 import { get } from '../api/http.ts';
@@ -103,6 +103,9 @@ async function loadSpectrum(batch: string, seq: number): Promise<Loaded> {
 
 function SpectrumChart({ title, axis, values, yLabel, style, band }: { title: string; axis: number[]; values: number[]; yLabel: string; style: SeriesStyle; band: Band | null }) {
   const s = sortedByAxis(axis, [values]);
+  // The band changes with each spectrum's progress; the chart reads it through a ref when it draws.
+  const bandRef = useRef(band);
+  bandRef.current = band;
   return (
     <Chart
       title={title}
@@ -110,7 +113,7 @@ function SpectrumChart({ title, axis, values, yLabel, style, band }: { title: st
       optsKey={`${title}-${band ? 1 : 0}`}
       data={[s.axis, s.series[0]] as unknown as uPlot.AlignedData}
       legend={[{ style, label: title }, ...(band ? [{ style: STYLE.goldenMean }, { style: STYLE.envelope, label: 'golden band' }] : [])]}
-      make={(w, h) => spectrumOptions({ width: w, height: h, xLabel: 'wavelength (nm)', yLabel, series: [{ style, label: title }], getBand: band ? () => band : undefined })}
+      make={(w, h) => spectrumOptions({ width: w, height: h, xLabel: 'wavelength (nm)', yLabel, series: [{ style, label: title }], getBand: band ? () => bandRef.current : undefined })}
     />
   );
 }
