@@ -24,6 +24,7 @@ import { readModelFile, writeModelFile } from './model-file.ts';
 import { parseStoredSettings, resolveBuildSettings, type BuildSettings } from './build-settings.ts';
 import { fitPropertyModel, loadPropertyModel, type PropertyModel } from './property-model.ts';
 import { plateauSlope } from '../endpoint/plateau.ts';
+import { crossValidatedStatistics } from './group-cv-statistics.ts';
 
 export { resolveBuildSettings, DEFAULT_SETTINGS, type BuildSettings, type BuildSettingsInput } from './build-settings.ts';
 
@@ -259,28 +260,6 @@ export function buildMonitoringModel(batches: ReferenceBatch[], settingsInput: u
   const body = { settings, chain: chain.toJSON(), pca: pcaToJSON(pca), limits, envelope, endpoint, pls: pls?.toJSON(), meta };
   // Hash exactly as the file will carry it: write, then read back.
   return parseMonitoringModel(writeModelFile(MONITORING_MODEL_FORMAT, MONITORING_MODEL_VERSION, body));
-}
-
-/** T² and Q of every row from PCA models fitted without its batch group (min(I, 5) groups, batch b in group b mod G). */
-function crossValidatedStatistics(X: DenseMatrix, batchOfRow: number[], I: number, A: number): { t2: Float64Array; q: Float64Array } {
-  const G = Math.min(I, 5);
-  const t2 = new Float64Array(X.rows);
-  const q = new Float64Array(X.rows);
-  const p = X.cols;
-  for (let g = 0; g < G; g++) {
-    const train: number[] = [];
-    const test: number[] = [];
-    for (let i = 0; i < X.rows; i++) (batchOfRow[i] % G === g ? test : train).push(i);
-    const sub = (idx: number[]) => {
-      const d = new Float64Array(idx.length * p);
-      idx.forEach((i, r) => d.set(X.data.subarray(i * p, (i + 1) * p), r * p));
-      return denseMatrix(idx.length, p, d);
-    };
-    const m = fitPca(sub(train), { components: Math.min(A, train.length - 1), center: true, seed: 1 });
-    const s = scoreRows(m, sub(test));
-    test.forEach((i, r) => { t2[i] = s.t2[r]; q[i] = s.q[r]; });
-  }
-  return { t2, q };
 }
 
 /**
