@@ -465,6 +465,8 @@ export class IngestPipeline {
     if (ob.endpoint) ob.endpoint = { ...ob.endpoint, state: ev.to };
     this.touched.add(ob);
     this.uow.endpointEvents.push({ id: randomUUID(), unit: ob.unit, batch: ob.id, from: ev.from, to: ev.to, t: ev.t, seq: ev.seq, reason: ev.reason, recordedAt: now });
+    // Receivers learn of 'signalled' like any other state change: through the outbox, in per-unit order.
+    this.addOutbox(ob.unit, 'endpoint-state', { unit: ob.unit, batch: ob.id, ...ev });
     this.post.events.push(['endpoint', { unit: ob.unit, batch: ob.id, from: ev.from, to: ev.to, endpoint: ob.endpoint, t: ev.t, seq: ev.seq }]);
     this.pendingEntries++;
     await this.flush();

@@ -100,6 +100,11 @@ describe.skipIf(!haveMonitor)('OPC UA with the full server and a simulated dryer
     // the first channel to deliver 'done' lets the server move the batch on to 'signalled'
     const after = await admin.get(`/api/batches/${batch.id}/endpoint-events`);
     expect((after.body.items as { to: string }[]).map((e) => e.to)).toContain('signalled');
+    // ... and tells every channel so through the outbox, after 'done' in the unit's sequence.
+    const rows = (ts.server.ctx.storage.db as import('better-sqlite3').Database)
+      .prepare("SELECT unit_seq, payload FROM outbox WHERE type = 'endpoint-state' ORDER BY unit_seq").all() as { unit_seq: number; payload: string }[];
+    const tos = rows.map((r) => (JSON.parse(r.payload) as { to: string }).to);
+    expect(tos.indexOf('signalled')).toBeGreaterThan(tos.indexOf('done'));
 
     const hb1 = (await client.read(P('Heartbeat'))).value.value as number;
     let hb2 = hb1;
