@@ -19,6 +19,11 @@ export interface ChartProps {
   testId?: string;
 }
 
+/** Charts grow on a large control-room screen (≥ 2200 px wide): heights × 1.4. */
+export function chartHeight(h: number): number {
+  return typeof window !== 'undefined' && window.innerWidth >= 2200 ? Math.round(h * 1.4) : h;
+}
+
 export function Chart(p: ChartProps) {
   const box = useRef<HTMLDivElement>(null);
   const plot = useRef<uPlot | null>(null);
@@ -28,7 +33,8 @@ export function Chart(p: ChartProps) {
   useEffect(() => {
     const el = box.current!;
     const width = Math.max(200, el.clientWidth);
-    const opts = p.make(width, p.height);
+    const height = chartHeight(p.height);
+    const opts = p.make(width, height);
     const u = new uPlot(opts, p.data, el);
     plot.current = u;
     p.onReady?.(u);
@@ -39,7 +45,7 @@ export function Chart(p: ChartProps) {
     u.over.addEventListener('click', onClick);
     const ro = new ResizeObserver(() => {
       const w = Math.max(200, el.clientWidth);
-      if (Math.abs(w - u.width) > 2) u.setSize({ width: w, height: p.height });
+      if (Math.abs(w - u.width) > 2) u.setSize({ width: w, height });
     });
     ro.observe(el);
     return () => {
