@@ -9,6 +9,7 @@ import type { Alarm, EvaluationResult } from '../../core/api/rest.ts';
 import type { MonitorResult } from '../../core/monitor/types.ts';
 import { migrate } from './migrate.ts';
 import { startCheckpointer, type Checkpointer } from './checkpointer.ts';
+import { INGEST_SQL, startIngestWriter, type IngestWriter } from './ingest-writer.ts';
 import type {
   AlarmFilter,
   AnalyzerBootRow,
@@ -83,6 +84,11 @@ export interface SqliteOptions {
   synchronous?: 'FULL' | 'NORMAL' | 'OFF';
   /** Run WAL checkpoints in a worker thread (default true for files); else SQLite's automatic ones. */
   checkpointInWorker?: boolean;
+  /**
+   * Run ingest group commits in a worker thread with its own connection (default true for files), so
+   * that monitoring on the main thread and the commit's fsync overlap. ':memory:' always commits inline.
+   */
+  ingestInWorker?: boolean;
   onError?: (message: string) => void;
 }
 
@@ -92,6 +98,7 @@ export class SqliteStorage implements Storage {
   private readonly commitTx: (w: IngestWrite) => void;
   private readonly saveAlarmTx: (a: Alarm, o?: OutboxRow) => void;
   private checkpointer: Checkpointer | null = null;
+  private writer: IngestWriter | null = null;
 
   constructor(opts: SqliteOptions) {
     if (opts.file !== ':memory:') mkdirSync(dirname(opts.file), { recursive: true });
@@ -108,6 +115,9 @@ export class SqliteStorage implements Storage {
         (opts.onError ?? ((x: string) => process.stderr.write(`WAL checkpoint: ${x}\n`)))(m);
       });
     }
+    if (opts.file !== ':memory:' && opts.ingestInWorker !== false) {
+      this.writer = startIngestWriter(opts.file, opts.synchronous ?? 'FULL', this.checkpointer !== null);
+    }
     const p = (sql: string) => this.db.prepare(sql);
     this.st = {
       insertUnit: p('INSERT INTO units (id, name, kind, description, created_at) VALUES (?, ?, ?, ?, ?)'),
@@ -122,27 +132,17 @@ export class SqliteStorage implements Storage {
         ON CONFLICT (analyzer, boot) DO UPDATE SET last_seen = excluded.last_seen, instrument = excluded.instrument`),
       getBoot: p('SELECT * FROM analyzer_boots WHERE analyzer = ? AND boot = ?'),
       latestBoot: p('SELECT * FROM analyzer_boots WHERE analyzer = ? ORDER BY last_seen DESC, boot DESC LIMIT 1'),
-      bootSeq: p('UPDATE analyzer_boots SET last_seq = MAX(last_seq, ?), last_seen = ? WHERE analyzer = ? AND boot = ?'),
-      insertBatch: p(`INSERT INTO batches (id, unit, analyzer, boot, product, status, start_seq, start_t, axis, model_version, created_at)
-        VALUES (?, ?, ?, ?, ?, 'open', ?, ?, ?, ?, ?)`),
-      insertRejected: p('INSERT OR IGNORE INTO rejected_entries (analyzer, boot, seq, code, message, received_at) VALUES (?, ?, ?, ?, ?, ?)'),
+      bootSeq: p(INGEST_SQL.bootSeq),
+      insertBatch: p(INGEST_SQL.insertBatch),
+      insertRejected: p(INGEST_SQL.insertRejected),
       batchIds: p('SELECT id FROM batches'),
-      insertSpectrum: p('INSERT INTO spectra (batch, idx, analyzer, boot, seq, t, vals, received_at) VALUES (?, ?, ?, ?, ?, ?, ?, ?)'),
-      insertResult: p('INSERT OR REPLACE INTO results (batch, idx, seq, t, model_version, t2, q, body) VALUES (?, ?, ?, ?, ?, ?, ?, ?)'),
-      batchProgress: p('UPDATE batches SET spectrum_count = ?, last_seq = ?, last_t = ?, endpoint_state = ?, endpoint_at = ? WHERE id = ?'),
-      batchEnd: p(`UPDATE batches SET status = 'ended', end_seq = ?, end_t = ?, end_reason = ? WHERE id = ?`),
-      upsertAlarm: p(`INSERT INTO alarms (id, unit, batch, kind, key, state, priority, message, value, limit_value, active, raised_at, cleared_at,
-          acknowledged_at, acknowledged_by, ack_comment, shelved_until, shelved_by, shelve_reason, seq, updated_at)
-        VALUES (@id, @unit, @batch, @kind, @key, @state, @priority, @message, @value, @limit, @active, @raisedAt, @clearedAt,
-          @acknowledgedAt, @acknowledgedBy, @acknowledgeComment, @shelvedUntil, @shelvedBy, @shelveReason, @seq, @updatedAt)
-        ON CONFLICT (id) DO UPDATE SET state = excluded.state, priority = excluded.priority, message = excluded.message,
-          value = excluded.value, limit_value = excluded.limit_value, active = excluded.active, cleared_at = excluded.cleared_at,
-          acknowledged_at = excluded.acknowledged_at, acknowledged_by = excluded.acknowledged_by, ack_comment = excluded.ack_comment,
-          shelved_until = excluded.shelved_until, shelved_by = excluded.shelved_by, shelve_reason = excluded.shelve_reason,
-          seq = excluded.seq, updated_at = excluded.updated_at`),
-      insertEndpointEvent: p(`INSERT INTO endpoint_events (id, unit, batch, from_state, to_state, t, seq, reason, recorded_at)
-        VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?)`),
-      insertOutbox: p('INSERT INTO outbox (id, unit, unit_seq, type, payload, created_at) VALUES (?, ?, ?, ?, ?, ?)'),
+      insertSpectrum: p(INGEST_SQL.insertSpectrum),
+      insertResult: p(INGEST_SQL.insertResult),
+      batchProgress: p(INGEST_SQL.batchProgress),
+      batchEnd: p(INGEST_SQL.batchEnd),
+      upsertAlarm: p(INGEST_SQL.upsertAlarm),
+      insertEndpointEvent: p(INGEST_SQL.insertEndpointEvent),
+      insertOutbox: p(INGEST_SQL.insertOutbox),
       maxOutbox: p('SELECT unit, MAX(unit_seq) AS m FROM outbox GROUP BY unit'),
       getBatch: p('SELECT * FROM batches WHERE id = ?'),
       openBatches: p(`SELECT * FROM batches WHERE status = 'open' ORDER BY start_t`),
@@ -194,6 +194,8 @@ export class SqliteStorage implements Storage {
   }
 
   async close(): Promise<void> {
+    if (this.writer) await this.writer.stop();
+    this.writer = null;
     if (this.checkpointer) await this.checkpointer.stop();
     this.checkpointer = null;
     if (this.db.open) {
@@ -247,7 +249,8 @@ export class SqliteStorage implements Storage {
   }
 
   async commitIngest(w: IngestWrite) {
-    this.commitTx(w);
+    if (this.writer) await this.writer.commit(w);
+    else this.commitTx(w);
   }
   async maxOutboxSeqByUnit() {
     const m = new Map<string, number>();
