@@ -414,6 +414,10 @@ export interface Alarm {
   /** seq of the spectrum that raised it, when a spectrum did. */
   seq: number | null;
   updatedAt: number;
+  /** Activations within the chattering window (ANSI/ISA-18.2: 60 s), counted since the server started. */
+  recentActivations?: number;
+  /** ≥ 3 activations within 60 s (ANSI/ISA-18.2-2016, ISA-TR18.2.5): the alarm chatters. */
+  chattering?: boolean;
 }
 
 export interface AcknowledgeAlarmRequest {

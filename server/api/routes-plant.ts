@@ -12,6 +12,10 @@ import { HttpProblem, conflict, notFound } from './problem.ts';
 import type { RouteTable } from './route-table.ts';
 import { analyzerSummary, deploymentView } from './views.ts';
 import { recordAudit, userOf } from './audit-helper.ts';
+import { DEFAULT_ALARM_SETTINGS } from '../../core/alarms/types.ts';
+
+/** The longest shelve an operator may ask for (core/alarms default: 8 h, one shift). */
+const MAX_SHELVE_MIN = DEFAULT_ALARM_SETTINGS.maxShelveMs / 60_000;
 
 export const ADVISORY =
   "Tideline advises. Endpoint signals and alarms must be used within the site's validated control strategy; interlocks and operating procedures decide, and a model must be validated under the site's quality system before it is used for release decisions.";
@@ -118,7 +122,7 @@ export function addPlantRoutes(t: RouteTable, ctx: ServerContext, startedAt: num
     }),
     handler: async ({ query }) => {
       const r = await ctx.storage.listAlarms(query);
-      return { items: r.items, total: r.total, limit: query.limit, offset: query.offset } satisfies Page<Alarm>;
+      return { items: ctx.ingest.withActivity(r.items), total: r.total, limit: query.limit, offset: query.offset } satisfies Page<Alarm>;
     },
   });
   const alarmParams = z.object({ alarm: z.string().uuid('alarm ids are UUIDs') });
@@ -143,7 +147,7 @@ export function addPlantRoutes(t: RouteTable, ctx: ServerContext, startedAt: num
   t.add({
     method: 'post', path: '/alarms/:alarm/shelve', summary: 'Shelve an alarm for a while, with a reason (ISA-18.2 shelving)', role: 'operator', response: 'Alarm',
     params: alarmParams,
-    body: z.object({ minutes: z.number().int().min(1, 'shelve for at least 1 minute').max(1440, 'shelve for at most 1440 minutes (24 h)'), reason: z.string().trim().min(1, 'give a reason').max(2000) }).strict(),
+    body: z.object({ minutes: z.number().int().min(1, 'shelve for at least 1 minute').max(MAX_SHELVE_MIN, `shelve for at most ${MAX_SHELVE_MIN} minutes (one shift)`), reason: z.string().trim().min(1, 'give a reason').max(2000) }).strict(),
     handler: async ({ params, body, req }) => {
       const a = await wrap(() => ctx.ingest.shelveAlarm(params.alarm, userOf(req), body.minutes, body.reason));
       await recordAudit(ctx, { user: userOf(req), action: 'alarm.shelve', object: `alarm:${a.id}`, after: { shelvedUntil: a.shelvedUntil }, reason: body.reason });

@@ -40,7 +40,7 @@ export async function batchDetail(storage: Storage, pipeline: IngestPipeline, ro
     latestResult: latest,
     endpoint: latest ? { ...latest.endpoint, state: s.endpointState ?? latest.endpoint.state } : null,
     endpointEvents: events,
-    alarms: alarms.items,
+    alarms: pipeline.withActivity(alarms.items),
   };
 }
 

@@ -10,6 +10,8 @@ import { randomUUID } from 'node:crypto';
 import { EventEmitter } from 'node:events';
 import { performance } from 'node:perf_hooks';
 import { stateOnAcknowledge, stateOnCondition, stateOnReturn } from '../../core/alarms/life-cycle.ts';
+import { activationsInWindow } from '../../core/alarms/chattering.ts';
+import { DEFAULT_ALARM_SETTINGS } from '../../core/alarms/types.ts';
 import type { Alarm, ModelRef } from '../../core/api/rest.ts';
 import type { LivePoint, LiveUnitStatus } from '../../core/api/live.ts';
 import type { AlarmKind, AlarmPriority, AlarmState, ConditionKind, EndpointState, EndpointStatus, MonitorResult } from '../../core/monitor/types.ts';
@@ -91,6 +93,8 @@ export class IngestPipeline {
   private readonly alarmsById = new Map<string, Alarm>();
   private readonly alarmIdByKey = new Map<string, string>();
   private outboxSeq = new Map<string, number>();
+  /** Recent activation times per alarm id, for the chattering count (a restart starts the count afresh). */
+  private activations = new Map<string, number[]>();
   private core: CoreMonitoring | null = null;
   private coreError: string | null = null;
 
@@ -100,6 +104,7 @@ export class IngestPipeline {
   private pendingEntries = 0;
   private timer: NodeJS.Timeout | null = null;
   private flushing: Promise<void> = Promise.resolve();
+  private queuedFlush: Promise<void> | null = null;
   private ticker: NodeJS.Timeout | null = null;
   private closed = false;
 
@@ -507,6 +512,11 @@ export class IngestPipeline {
       updatedAt: now,
     };
     if (c.active && cur && cur.state === 'cleared-unacknowledged') next.acknowledgedAt = null;
+    // Chattering (ANSI/ISA-18.2): count activations of this alarm within the window.
+    const acts = activationsInWindow(this.activations.get(next.id) ?? [], now, DEFAULT_ALARM_SETTINGS.chatterWindowMs);
+    if (c.active && !(cur?.active ?? false)) acts.push(now);
+    this.activations.set(next.id, acts);
+    Object.assign(next, this.alarmActivity(next.id, now));
     this.indexAlarm(next);
     const row = this.outboxRow(unit, 'alarm', { alarm: next, previousState: prevState });
     if (direct) {
@@ -524,6 +534,19 @@ export class IngestPipeline {
     }
     this.updateAlarmGauge();
     return next;
+  }
+
+  /** Chattering (ANSI/ISA-18.2-2016: ≥ 3 activations within 60 s) of an alarm at time `now`. */
+  alarmActivity(id: string, now: number = this.now()): { recentActivations: number; chattering: boolean } {
+    const { chatterWindowMs, chatterActivations } = DEFAULT_ALARM_SETTINGS;
+    const n = activationsInWindow(this.activations.get(id) ?? [], now, chatterWindowMs).length;
+    return { recentActivations: n, chattering: n >= chatterActivations };
+  }
+
+  /** Alarms as stored, with their current chattering count added. */
+  withActivity(alarms: Alarm[]): Alarm[] {
+    const now = this.now();
+    return alarms.map((a) => ({ ...a, ...this.alarmActivity(a.id, now) }));
   }
 
   private indexAlarm(a: Alarm) {
@@ -649,7 +672,14 @@ export class IngestPipeline {
 
   /** Commit everything pending now; resolves after the commit (and the acks) went out. */
   flush(): Promise<void> {
-    const next = this.flushing.then(() => this.commitNow());
+    // While a commit is in flight, entries gather for the next one: one queued commit takes them all
+    // (group commits grow with the load instead of queueing many small ones behind each other).
+    if (this.queuedFlush) return this.queuedFlush;
+    const next = this.flushing.then(() => {
+      this.queuedFlush = null;
+      return this.commitNow();
+    });
+    this.queuedFlush = next;
     this.flushing = next.catch(() => undefined);
     return next;
   }
