@@ -99,7 +99,7 @@ describe.skipIf(!haveChromium)('dashboard in headless Chromium', () => {
       args: ['--no-sandbox', '--disable-gpu', '--disable-background-networking', '--disable-component-update', '--no-first-run'],
     });
     page = await browser.newPage({ viewport: { width: 1280, height: 800 } });
-    page.on('pageerror', (e) => pageErrors.push(e.message));
+    page.on('pageerror', (e) => pageErrors.push(`${e.message} ${e.stack?.split('\n').slice(1, 3).join(' ')}`));
     page.setDefaultTimeout(60_000);
   }, 300_000);
 
@@ -124,7 +124,7 @@ describe.skipIf(!haveChromium)('dashboard in headless Chromium', () => {
     // wait until the dryer runs a batch and the tile shows it
     await page.getByTestId('tile-dryer-1').getByText('of golden course').waitFor({ timeout: 120_000 });
     await shot('floor');
-    expect(pageErrors).toEqual([]);
+    expect(pageErrors.join("\n")).toBe("");
   }, 180_000);
 
   it("opens the dryer's Watch: live points, envelope band, named limit lines and endpoint panel with data", async () => {
@@ -152,7 +152,7 @@ describe.skipIf(!haveChromium)('dashboard in headless Chromium', () => {
     await page.getByTestId('contributions-panel').locator('canvas').first().waitFor();
     await page.getByTestId('contributions-panel').scrollIntoViewIfNeeded();
     await shot('watch-contributions');
-    expect(pageErrors).toEqual([]);
+    expect(pageErrors.join("\n")).toBe("");
   }, 240_000);
 
   it('acknowledges an alarm', async () => {
@@ -185,7 +185,7 @@ describe.skipIf(!haveChromium)('dashboard in headless Chromium', () => {
     await approve.getByRole('button', { name: 'Approve' }).click();
     await page.getByTestId('version-detail').locator('.panel-head h2 .badge', { hasText: 'approved' }).first().waitFor({ timeout: 30_000 });
     await shot('bench-approved');
-    expect(pageErrors).toEqual([]);
+    expect(pageErrors.join("\n")).toBe("");
   }, 240_000);
 
   it('opens a finished batch in Review', async () => {
@@ -198,7 +198,7 @@ describe.skipIf(!haveChromium)('dashboard in headless Chromium', () => {
     await page.getByTestId('overlay').locator('canvas').first().waitFor({ timeout: 60_000 });
     await page.getByTestId('timeline').getByText('batch start').waitFor();
     await shot('review');
-    expect(pageErrors).toEqual([]);
+    expect(pageErrors.join("\n")).toBe("");
   }, 180_000);
 
   it('shows the Ledger with the approval recorded', async () => {
