@@ -11,6 +11,8 @@ import { writeFileSync } from 'node:fs';
 import { pathToFileURL } from 'node:url';
 import { simulateBatch, simulateReferenceSet, FAULT_INFO, type FaultSpec, type FaultType, type ProcessKind, type SimulatedBatch } from '../simulators/batch.ts';
 import { buildMonitoringModel, type MonitoringModel, type ReferenceBatch } from '../core/model/monitoring-model.ts';
+import { defaultBuildSettings } from '../core/model/default-settings.ts';
+import type { BuildSettings } from '../core/model/build-settings.ts';
 import { evaluateModel, evaluationMarkdown, type EvalBatch, type EvaluationFigures } from '../core/evaluate/evaluate-model.ts';
 
 export interface EvaluationPlan {
@@ -34,29 +36,12 @@ const EVAL_FAULT_PARAMS: Partial<Record<FaultType, Record<string, number>>> = {
 /** Step faults (issue 4 target: detection_delay_median ≤ 10 spectra); the others are drifts or batch-level. */
 export const STEP_FAULTS: FaultType[] = ['wrong-material', 'spikes', 'dropout'];
 
-export function defaultSettings(kind: ProcessKind): Record<string, unknown> {
-  // The property model: MSC (Geladi, MacDougall & Martens 1985) then centring, calibrated locally
-  // around the endpoint target (the endpoint call needs accuracy there); the PCA monitoring chain
-  // stays without scatter correction so additive spikes and offsets remain visible.
-  const propChain = [{ step: 'msc' }, { step: 'scale', center: true, scaling: 'none' }];
-  const prop =
-    kind === 'dryer'
-      ? { name: 'moisture', unit: '% w/w', components: 'auto', target: 2, direction: 'below', chain: propChain, range: [0, 4] }
-      : { name: 'conversion', unit: '%', components: 'auto', target: 99, direction: 'above', chain: propChain, range: [93, 100] };
-  return {
-    name: `${kind} evaluation`,
-    product: `${kind} demo product`,
-    author: 'evaluation',
-    createdAt: Date.UTC(2026, 2, 1),
-    chain: [{ step: 'scale', center: true, scaling: 'none' }],
-    components: 5,
-    confidence: 0.99,
-    progress: { kind: 'indicator', source: 'property' },
-    envelope: { k: 3, smoothing: 2, points: 100, band: 'prediction' },
-    alarms: { onDelay: 3, onWindow: 5, offDelay: 5, deadband: 0.05, limits: 'local', startupMin: 2 },
-    property: prop,
-    endpoint: { criteria: [{ kind: 'property' }], combine: 'all', confirm: 2, nearingMin: 10 },
-  };
+/**
+ * The evaluation's build settings: the per-kind defaults of core (core/model/default-settings.ts),
+ * named for the evaluation. The demo (scripts/demo.ts) uses the same.
+ */
+export function defaultSettings(kind: ProcessKind): BuildSettings {
+  return defaultBuildSettings(kind, { name: `${kind} evaluation`, author: 'evaluation' });
 }
 
 function toReference(b: SimulatedBatch): ReferenceBatch {

@@ -38,8 +38,12 @@ export class EndpointTracker {
       switch (c.kind) {
         case 'property': {
           const v = inp.property;
-          const met = v !== null && (c.direction === 'below' ? v <= c.target : v >= c.target);
-          st = { criterion: 'property', met, value: v, threshold: c.target, text: v === null ? `${c.name}: no prediction` : `${c.name} ${fmt(v)} ${c.unit} ${c.direction === 'below' ? (met ? '≤' : '>') : met ? '≥' : '<'} ${fmt(c.target)} ${c.unit}` };
+          // With a margin the prediction must clear the target by it (threshold = target ∓ margin).
+          const m = c.margin ?? 0;
+          const thr = c.direction === 'below' ? c.target - m : c.target + m;
+          const met = v !== null && (c.direction === 'below' ? v <= thr : v >= thr);
+          const marginText = m > 0 ? ` (target ${fmt(c.target)} ${c.direction === 'below' ? '−' : '+'} margin ${fmt(m)})` : '';
+          st = { criterion: 'property', met, value: v, threshold: thr, text: v === null ? `${c.name}: no prediction` : `${c.name} ${fmt(v)} ${c.unit} ${c.direction === 'below' ? (met ? '≤' : '>') : met ? '≥' : '<'} ${fmt(thr)} ${c.unit}${marginText}` };
           break;
         }
         case 'mbsd': {

@@ -14,7 +14,14 @@ import { z } from 'zod';
 const auto = z.literal('auto');
 
 export const endpointCriterionSpecSchema = z.discriminatedUnion('kind', [
-  z.object({ kind: z.literal('property'), target: z.number().optional(), direction: z.enum(['below', 'above']).optional() }),
+  /**
+   * margin: the prediction must clear the target by this much (property units) — 'auto' takes
+   * z(confidence)·RMSECV of the property model, a one-sided bound on the prediction error, so a
+   * batch is called done only when its property is past the target with that confidence
+   * (conservative release decision; the RMSECV from segments of whole batches carries the
+   * batch-to-batch bias). Omitted: 0.
+   */
+  z.object({ kind: z.literal('property'), target: z.number().optional(), direction: z.enum(['below', 'above']).optional(), margin: z.union([z.number().nonnegative(), auto]).optional() }),
   z.object({ kind: z.literal('mbsd'), block: z.number().int().min(2).max(50), threshold: z.union([z.number().positive(), auto]) }),
   z.object({ kind: z.literal('plateau'), pc: z.number().int().min(1), window: z.number().int().min(3).max(200), tolerance: z.union([z.number().positive(), auto]) }),
   z.object({ kind: z.literal('golden-end') }),
@@ -33,7 +40,7 @@ export type EndpointRuleSpec = z.infer<typeof endpointRuleSpecSchema>;
 
 /** The rule after build: every threshold a number. */
 export type ResolvedCriterion =
-  | { kind: 'property'; target: number; direction: 'below' | 'above'; name: string; unit: string }
+  | { kind: 'property'; target: number; direction: 'below' | 'above'; name: string; unit: string; margin?: number; marginMethod?: string }
   | { kind: 'mbsd'; block: number; threshold: number }
   | { kind: 'plateau'; pc: number; window: number; tolerance: number }
   | { kind: 'golden-end'; limit: number };

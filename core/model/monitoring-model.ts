@@ -9,6 +9,7 @@
  */
 import { z } from 'zod';
 import tQuantile from '@stdlib/stats-base-dists-t-quantile';
+import normalQuantile from '@stdlib/stats-base-dists-normal-quantile';
 import { denseMatrix, matrixFromRows, type DenseMatrix } from '../linalg/dense-matrix.ts';
 import { fitChain, loadChain, type FittedChain } from '../preprocess/index.ts';
 import { fitPca, scoreRows } from '../pca/fit-pca.ts';
@@ -155,7 +156,8 @@ export function buildMonitoringModel(batches: ReferenceBatch[], settingsInput: u
       if (!b.property) throw new RangeError(`reference batch "${b.id}" has no ${settings.property!.name} values; the property model needs them for every batch`);
       for (const i of kept[bi]) y[r++] = b.property[i];
     });
-    pls = fitPropertyModel(batches[0].axis, rows, y, settings.property, settings.chain);
+    const needsCv = settings.endpoint.criteria.some((c) => c.kind === 'property' && c.margin === 'auto');
+    pls = fitPropertyModel(batches[0].axis, rows, y, settings.property, settings.chain, needsCv);
     predicted = Float64Array.from(rows, (x) => pls!.predict(x).y);
   }
 
@@ -207,7 +209,13 @@ export function buildMonitoringModel(batches: ReferenceBatch[], settingsInput: u
     switch (c.kind) {
       case 'property': {
         const target = c.target ?? settings.property!.target!;
-        return { kind: 'property', target, direction: c.direction ?? settings.property!.direction ?? 'below', name: settings.property!.name, unit: settings.property!.unit };
+        const base = { kind: 'property' as const, target, direction: c.direction ?? settings.property!.direction ?? 'below', name: settings.property!.name, unit: settings.property!.unit };
+        if (c.margin === undefined || c.margin === 0) return base;
+        if (c.margin !== 'auto') return { ...base, margin: c.margin, marginMethod: 'fixed by the model owner' };
+        const rmsecv = pls!.rmsecv?.[pls!.components - 1];
+        if (rmsecv === undefined || !Number.isFinite(rmsecv)) throw new RangeError('endpoint criterion "property": margin "auto" needs the cross-validated error of the property model');
+        const z = normalQuantile(conf, 0, 1);
+        return { ...base, margin: z * rmsecv, marginMethod: `z(${conf})·RMSECV = ${z.toFixed(3)} × ${rmsecv.toPrecision(3)} ${settings.property!.unit} (one-sided bound on the prediction error)` };
       }
       case 'mbsd': {
         if (c.threshold !== 'auto') return { kind: 'mbsd', block: c.block, threshold: c.threshold };
@@ -305,7 +313,7 @@ const envelopeSchema = z.object({
   endRegion: z.object({ mean: z.array(num), sd: z.array(num), limit: num, method: z.string() }),
 });
 const criterionSchema = z.discriminatedUnion('kind', [
-  z.object({ kind: z.literal('property'), target: num, direction: z.enum(['below', 'above']), name: z.string(), unit: z.string() }),
+  z.object({ kind: z.literal('property'), target: num, direction: z.enum(['below', 'above']), name: z.string(), unit: z.string(), margin: num.nonnegative().optional(), marginMethod: z.string().optional() }),
   z.object({ kind: z.literal('mbsd'), block: z.number().int().min(2), threshold: num }),
   z.object({ kind: z.literal('plateau'), pc: z.number().int().min(1), window: z.number().int().min(3), tolerance: num }),
   z.object({ kind: z.literal('golden-end'), limit: num }),

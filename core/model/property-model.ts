@@ -70,7 +70,8 @@ function wrap(name: string, unit: string, rmsecv: number[] | null, range: [numbe
 }
 
 /** rows: raw spectra (stacked batch by batch); y: the property per row. */
-export function fitPropertyModel(axis: ArrayLike<number>, rows: ArrayLike<number>[], y: ArrayLike<number>, spec: PropertySpec, modelChain: ChainSpec): PropertyModel {
+/** withCv: also cross-validate a fixed component count (rmsecv up to it). */
+export function fitPropertyModel(axis: ArrayLike<number>, rows: ArrayLike<number>[], y: ArrayLike<number>, spec: PropertySpec, modelChain: ChainSpec, withCv = false): PropertyModel {
   const keep: number[] = [];
   for (let i = 0; i < rows.length; i++) if (!spec.range || (y[i] >= spec.range[0] && y[i] <= spec.range[1])) keep.push(i);
   if (keep.length < 10) throw new RangeError(`property model: only ${keep.length} reference spectra have ${spec.name} within ${spec.range?.join('…')} ${spec.unit}; at least 10 are needed`);
@@ -84,7 +85,14 @@ export function fitPropertyModel(axis: ArrayLike<number>, rows: ArrayLike<number
     const cv = crossValidatePls1(X, yy, { maxComponents: Math.min(12, X.cols - 1, X.rows - Math.ceil(X.rows / 10) - 2), folds: 10 });
     rmsecv = Array.from(cv.rmsecv);
     A = cv.recommended;
-  } else A = spec.components;
+  } else {
+    A = spec.components;
+    if (withCv) {
+      // Cross-validated error at the chosen count (for a margin on the endpoint target).
+      const cv = crossValidatePls1(X, yy, { maxComponents: A, folds: 10 });
+      rmsecv = Array.from(cv.rmsecv);
+    }
+  }
   return wrap(spec.name, spec.unit, rmsecv, spec.range ?? null, keep.length, chain, fitPls1(X, yy, { components: A, center: true }));
 }
 
