@@ -29,6 +29,18 @@ describe('endpoint state machine (issue 4: running → nearing → settling → 
     expect(sig).toMatchObject({ from: 'done', to: 'signalled' });
     expect(tr.markSignalled(9000, 8)).toBeNull();
   });
+  it('a property margin moves the threshold past the target (above: target + margin; below: target − margin)', () => {
+    const up = new EndpointTracker({ criteria: [{ kind: 'property', target: 99, direction: 'above', name: 'conversion', unit: '%', margin: 0.12 }], combine: 'all', confirm: 1, nearingMin: 0 });
+    const ev: DomainEvent[] = [];
+    const a = up.update(0, 0, { ...base, property: 99.1 }, ev);
+    expect(a.state).not.toBe('done');
+    expect(a.criteria[0]!.threshold).toBeCloseTo(99.12, 12);
+    expect(a.criteria[0]!.text).toContain('margin');
+    expect(up.update(1, 1000, { ...base, property: 99.12 }, ev).state).toBe('done');
+    const down = new EndpointTracker({ criteria: [{ kind: 'property', target: 2, direction: 'below', name: 'moisture', unit: '% w/w', margin: 0.1 }], combine: 'all', confirm: 1, nearingMin: 0 });
+    expect(down.update(0, 0, { ...base, property: 1.95 }, ev).state).not.toBe('done');
+    expect(down.update(1, 1000, { ...base, property: 1.9 }, ev).state).toBe('done');
+  });
   it('combine all needs every criterion; any needs one', () => {
     const rule = (combine: 'all' | 'any') => new EndpointTracker({ criteria: [{ kind: 'mbsd', block: 3, threshold: 0.01 }, { kind: 'golden-end', limit: 9 }], combine, confirm: 1, nearingMin: 0 });
     const inp = { ...base, mbsd: 0.005, goldenEndDistance: 20 };
