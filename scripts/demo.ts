@@ -117,7 +117,8 @@ function nextBatch(line: Line, seed: number, k: number): SimulatedBatch {
   if (k % 4 === 3) {
     const fitting = FAULT_TYPES.filter((f) => FAULT_INFO[f].kinds.includes(line.kind) && f !== 'dropout');
     const type = fitting[(seed + k) % fitting.length]!;
-    faults = [{ type, onsetS: line.kind === 'dryer' ? 900 : 2400 }];
+    // Over-wet granules are charged wet: that fault starts with the batch (simulators/faults.ts).
+    faults = [{ type, onsetS: type === 'over-wet' ? 0 : line.kind === 'dryer' ? 900 : 2400 }];
   }
   return simulateBatch(line.kind, { seed: seed * 100 + k, id: `${line.unit}-${stamp}-${String(k).padStart(3, '0')}`, unit: line.unit, product: line.product, faults });
 }
