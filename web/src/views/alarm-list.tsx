@@ -7,6 +7,7 @@ import { sortAlarms } from '../live/live-state.ts';
 import { Advisory, Badge, ErrorBox } from '../components/status.tsx';
 import { PRIORITY_WORDS, alarmWords } from '../format/status-words.ts';
 import { clock, sig } from '../format/number-format.ts';
+import { DEFAULT_ALARM_SETTINGS } from '../../../core/alarms/types.ts';
 
 export function AlarmList({ alarms, now, title = 'Alarms' }: { alarms: Alarm[]; now: number; title?: string }) {
   const list = sortAlarms(alarms);
@@ -42,6 +43,11 @@ export function AlarmList({ alarms, now, title = 'Alarms' }: { alarms: Alarm[]; 
                 <Badge tone={w.tone}>{w.text}</Badge>
                 <span class="prio">{PRIORITY_WORDS[a.priority]}</span>
                 <b>{a.kind === 'envelope' ? a.key.toUpperCase() : a.kind.toUpperCase()}</b>
+                {a.chattering && (
+                  <Badge tone="warn" title={`${a.recentActivations ?? 3} activations within the last minute (ANSI/ISA-18.2: ≥ 3 a minute is chattering)`}>
+                    chattering ×{a.recentActivations}
+                  </Badge>
+                )}
               </div>
               <div class="alarm-msg">{a.message}</div>
               <div class="alarm-meta muted small">
@@ -88,6 +94,9 @@ export function AlarmList({ alarms, now, title = 'Alarms' }: { alarms: Alarm[]; 
   );
 }
 
+/** The longest shelve the server accepts: one shift (core/alarms default). */
+const MAX_SHELVE_MIN = DEFAULT_ALARM_SETTINGS.maxShelveMs / 60_000;
+
 function ShelveForm({ onShelve, onCancel }: { onShelve: (minutes: number, reason: string) => void; onCancel: () => void }) {
   const [minutes, setMinutes] = useState(30);
   const [reason, setReason] = useState('');
@@ -101,7 +110,7 @@ function ShelveForm({ onShelve, onCancel }: { onShelve: (minutes: number, reason
     >
       <label>
         for{' '}
-        <input type="number" min={1} max={1440} value={minutes} onInput={(e) => setMinutes(Number((e.target as HTMLInputElement).value))} required /> min
+        <input type="number" min={1} max={MAX_SHELVE_MIN} value={minutes} onInput={(e) => setMinutes(Number((e.target as HTMLInputElement).value))} required /> min
       </label>
       <label>
         reason <input type="text" value={reason} onInput={(e) => setReason((e.target as HTMLInputElement).value)} required placeholder="why this alarm may be set aside" />
