@@ -126,11 +126,27 @@ export async function envelopeView(ctx: ServerContext, row: ModelVersionRow): Pr
   return {
     versionId: row.id,
     progressKind: progress.kind === 'indicator' ? 'indicator' : 'time',
-    progressUnit: progress.kind === 'indicator' ? String(progress.source ?? 'indicator') : 'min',
+    progressUnit: progressUnitOf(model),
     progress: env.grid,
     scores: env.pcs.map((p, i) => ({ pc: i + 1, expected: p.mean, lower: p.lower, upper: p.upper })),
     local: env.t2Limit?.length ? { t2: env.t2Limit, q: env.qLimit } : null,
     limits: { t2: model.limits.t2.value, q: model.limits.q.value, combined: model.limits.combined?.value ?? null, confidence: model.limits.t2.confidence },
     references: [],
   };
+}
+
+/**
+ * The unit of the envelope's progress axis, in words a reader can check against the numbers: minutes,
+ * or the indicator with its orientation — a falling property (moisture while drying) is negated so
+ * that progress rises, and the label says so ("−moisture, % w/w").
+ */
+function progressUnitOf(model: ModelShape): string {
+  const axis = (model.envelope as unknown as { axis?: { kind: string; source?: string; sign?: number } }).axis;
+  if (!axis || axis.kind !== 'indicator') return 'min';
+  const minus = axis.sign === -1 ? '−' : '';
+  if (axis.source === 'property') {
+    const p = (model.settings as { property?: { name?: string; unit?: string } }).property;
+    return `${minus}predicted ${p?.name ?? 'property'}${p?.unit ? `, ${p.unit}` : ''}`;
+  }
+  return `${minus}PC1 score`;
 }

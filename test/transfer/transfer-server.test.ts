@@ -113,6 +113,14 @@ describe('export and import round trip', () => {
     expect(r.body.detail).toMatch(/narrow\.csv: batch RS-2: the file's axis .* does not cover the model's .*does not extrapolate/);
   });
 
+  it('names the envelope progress axis in words that match its numbers', async () => {
+    const version = (await viewer.get('/api/deployments?unit=dryer-1')).body.items[0].model.versionId as string;
+    const env = (await viewer.get(`/api/models/versions/${version}/envelope`)).body;
+    const axis = (fixture.model.envelope as unknown as { axis: { kind: string; sign: number } }).axis;
+    if (axis.kind === 'time') expect(env.progressUnit).toBe('min');
+    else expect(env.progressUnit).toBe(axis.sign < 0 ? '−predicted moisture, % w/w' : 'predicted moisture, % w/w');
+  });
+
   it('serves the stored model file with its hash', async () => {
     const version = (await viewer.get('/api/deployments?unit=dryer-1')).body.items[0].model.versionId as string;
     const r = await viewer.get(`/api/models/versions/${version}/model.json`);
