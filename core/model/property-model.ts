@@ -8,7 +8,8 @@
  */
 import { matrixFromRows } from '../linalg/dense-matrix.ts';
 import { fitChain, loadChain, type ChainSpec, type FittedChain } from '../preprocess/index.ts';
-import { crossValidatePls1, createPls1Predictor, fitPls1, loadPls1, type Pls1Model } from '../pls/index.ts';
+import { kernelCrossValidatePls1 } from './pls-kernel-cv.ts';
+import { createPls1Predictor, fitPls1, loadPls1, type Pls1Model } from '../pls/index.ts';
 
 export interface PropertyPredictionValue {
   y: number;
@@ -82,14 +83,15 @@ export function fitPropertyModel(axis: ArrayLike<number>, rows: ArrayLike<number
   let A: number;
   let rmsecv: number[] | null = null;
   if (spec.components === 'auto') {
-    const cv = crossValidatePls1(X, yy, { maxComponents: Math.min(12, X.cols - 1, X.rows - Math.ceil(X.rows / 10) - 2), folds: 10 });
+    // 10 contiguous segments (A1's crossValidatePls1 scheme) from cross-products: same figures to round-off, one data pass.
+    const cv = kernelCrossValidatePls1(X, yy, Math.min(12, X.cols - 1, X.rows - Math.ceil(X.rows / 10) - 2), 10);
     rmsecv = Array.from(cv.rmsecv);
     A = cv.recommended;
   } else {
     A = spec.components;
     if (withCv) {
       // Cross-validated error at the chosen count (for a margin on the endpoint target).
-      const cv = crossValidatePls1(X, yy, { maxComponents: A, folds: 10 });
+      const cv = kernelCrossValidatePls1(X, yy, A, 10);
       rmsecv = Array.from(cv.rmsecv);
     }
   }
