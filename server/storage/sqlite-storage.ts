@@ -85,8 +85,11 @@ export interface SqliteOptions {
   /** Run WAL checkpoints in a worker thread (default true for files); else SQLite's automatic ones. */
   checkpointInWorker?: boolean;
   /**
-   * Run ingest group commits in a worker thread with its own connection (default true for files), so
-   * that monitoring on the main thread and the commit's fsync overlap. ':memory:' always commits inline.
+   * Run ingest group commits in a worker thread with its own connection, so that monitoring on the
+   * main thread and the commit's fsync can overlap (files only; ':memory:' always commits inline).
+   * Off by default: on the shared, loaded 2-core bench machine (load average 6-9) it measured slower
+   * than inline commits in 3 of 4 alternating runs and used more server CPU (structured clone of
+   * every write, a second connection); it may pay on an otherwise idle machine.
    */
   ingestInWorker?: boolean;
   onError?: (message: string) => void;
@@ -115,7 +118,7 @@ export class SqliteStorage implements Storage {
         (opts.onError ?? ((x: string) => process.stderr.write(`WAL checkpoint: ${x}\n`)))(m);
       });
     }
-    if (opts.file !== ':memory:' && opts.ingestInWorker !== false) {
+    if (opts.file !== ':memory:' && opts.ingestInWorker === true) {
       this.writer = startIngestWriter(opts.file, opts.synchronous ?? 'FULL', this.checkpointer !== null);
     }
     const p = (sql: string) => this.db.prepare(sql);
