@@ -39,8 +39,8 @@ interface Line {
 }
 
 const LINES: Line[] = [
-  { kind: 'dryer', unit: 'dryer-1', unitName: 'Fluid-bed dryer 1', analyzer: 'nir-dryer-1', product: 'granule A', refSeed: 4201, refCount: 10, speedFactor: 1 },
-  { kind: 'reactor', unit: 'reactor-1', unitName: 'Batch reactor 1', analyzer: 'nir-reactor-1', product: 'ester B', refSeed: 4301, refCount: 10, speedFactor: 4 },
+  { kind: 'dryer', unit: 'dryer-1', unitName: 'Fluid-bed dryer 1', analyzer: 'nir-dryer-1', product: 'granule A', refSeed: 4201, refCount: 30, speedFactor: 1 },
+  { kind: 'reactor', unit: 'reactor-1', unitName: 'Batch reactor 1', analyzer: 'nir-reactor-1', product: 'ester B', refSeed: 4301, refCount: 30, speedFactor: 4 },
 ];
 
 function parseArgs(argv: string[]): { speed: number; seed: number; flags: Record<string, string> } {
