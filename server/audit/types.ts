@@ -7,6 +7,8 @@
  * breaks the chain and `verify()` names the first broken record.
  */
 
+import type { AuditRecord } from '../../core/api/audit.ts';
+
 /** Who did it: a user name, or an object carrying one (an AuthUser, `req.user`). */
 export type AuditActor = string | { name: string };
 
@@ -28,23 +30,8 @@ export interface AuditEntry {
   reason?: string | null;
 }
 
-export interface AuditRecord {
-  /** 1, 2, 3, … without gaps. */
-  seq: number;
-  /** UTC time, ISO 8601 with milliseconds and 'Z', e.g. 2026-12-02T01:02:03.456Z. */
-  at: string;
-  user: string;
-  action: string;
-  object: string;
-  /** Canonical JSON text (sorted keys, no whitespace) of `before`, or null. */
-  before: string | null;
-  after: string | null;
-  reason: string | null;
-  /** Hash of the previous record (64 zeros for the first). */
-  prevHash: string;
-  /** SHA-256 (hex) over the canonical serialization of this record including prevHash. */
-  hash: string;
-}
+/** One record of the trail as stored and served (shared with the dashboard through core/api). */
+export type { AuditRecord };
 
 export interface AuditFilter {
   /** ISO time or ms epoch; inclusive. */

@@ -6,9 +6,10 @@ import { useAsync } from '../components/use-async.ts';
 import { Chart } from '../charts/chart.tsx';
 import { contributionOptions } from '../charts/chart-options.ts';
 import { ErrorBox, Loading } from '../components/status.tsx';
-import { clock, percent, sig } from '../format/number-format.ts';
+import { clock } from '../format/number-format.ts';
 import { STYLE } from '../theme/palette.ts';
 import { contributionSeries, topShares } from './contribution-data.ts';
+import { RegionShareTable } from './region-share-table.tsx';
 import type { ContributionKind } from './contribution-data.ts';
 
 export function ContributionsPanel({ batch, seq, onClose }: { batch: string; seq: number; onClose?: () => void }) {
@@ -50,31 +51,7 @@ export function ContributionsPanel({ batch, seq, onClose }: { batch: string; seq
               contributionOptions({ width: w, height: h, xLabel: 'wavelength (nm)', yLabel: KIND_LABEL[kind], label: KIND_LABEL[kind], getRegions: () => c.regions })
             }
           />
-          <table class="regions">
-            <caption>Largest regions (band assignments)</caption>
-            <thead>
-              <tr>
-                <th scope="col">region</th>
-                <th scope="col">nm</th>
-                <th scope="col">assignment</th>
-                <th scope="col" class="num">share of T²</th>
-                <th scope="col" class="num">share of Q</th>
-              </tr>
-            </thead>
-            <tbody>
-              {topShares(c, kind === 't2' || kind === 'rbcT2' ? 't2' : 'q', 5).map((r) => (
-                <tr key={r.name}>
-                  <td>{r.name}</td>
-                  <td>
-                    {sig(r.from, 4)}–{sig(r.to, 4)}
-                  </td>
-                  <td>{r.assignment}</td>
-                  <td class="num">{percent(r.t2Share)}</td>
-                  <td class="num">{percent(r.qShare)}</td>
-                </tr>
-              ))}
-            </tbody>
-          </table>
+          <RegionShareTable caption="Largest regions (band assignments)" rows={topShares(c, kind === 't2' || kind === 'rbcT2' ? 't2' : 'q', 5)} />
         </>
       )}
     </div>

@@ -1,18 +1,9 @@
 /** Pure helpers for the Ledger: query building from the filter form, and a short text of a change. */
 
-/** One audit record as /api/audit returns it (see the audit trail's record shape). */
-export interface AuditRow {
-  seq: number;
-  at: string;
-  user: string;
-  action: string;
-  object: string;
-  before: string | null;
-  after: string | null;
-  reason: string | null;
-  prevHash: string;
-  hash: string;
-}
+import type { AuditRecord } from '../../../core/api/audit.ts';
+
+/** One audit record as /api/audit returns it. */
+export type AuditRow = AuditRecord;
 
 export interface LedgerFilter {
   user: string;

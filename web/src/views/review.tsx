@@ -14,10 +14,11 @@ import { contributionOptions, scoreChartOptions, statChartOptions } from '../cha
 import { progressLabel, scoreBand } from './watch-data.ts';
 import { alignedLine, comparisonWindow, departureWindow, meanContributions, sampleSeqs, timeline } from './review-data.ts';
 import { topShares } from './contribution-data.ts';
+import { RegionShareTable } from './region-share-table.tsx';
 import type { TimelineEvent } from './review-data.ts';
 import { contributionSeries } from './contribution-data.ts';
 import { ENDPOINT_WORDS } from '../format/status-words.ts';
-import { dateTime, limitName, minutes, percent, sig } from '../format/number-format.ts';
+import { dateTime, limitName, minutes, sig } from '../format/number-format.ts';
 import { COMPARE_STYLES, STYLE } from '../theme/palette.ts';
 import type { SeriesStyle } from '../theme/palette.ts';
 import { href } from '../router.ts';
@@ -337,31 +338,7 @@ function DepartureContributions({ batch, results, win, regions }: { batch: strin
             legend={[{ style: { ...STYLE.batch, fill: 'rgba(0,114,178,0.55)' }, label: 'mean Q contribution (e²)' }]}
             make={(w, h) => contributionOptions({ width: w, height: h, xLabel: 'wavelength (nm)', yLabel: 'Q contribution', label: 'Q contribution', getRegions: () => mean.regions })}
           />
-          <table class="regions">
-            <caption>Regions driving the departure (band assignments)</caption>
-            <thead>
-              <tr>
-                <th scope="col">region</th>
-                <th scope="col">nm</th>
-                <th scope="col">assignment</th>
-                <th scope="col" class="num">share of T²</th>
-                <th scope="col" class="num">share of Q</th>
-              </tr>
-            </thead>
-            <tbody>
-              {(regions && regions.length ? regions : topShares(mean, 'q', 6)).map((r) => (
-                <tr key={r.name}>
-                  <td>{r.name}</td>
-                  <td>
-                    {sig(r.from, 4)}–{sig(r.to, 4)}
-                  </td>
-                  <td>{r.assignment}</td>
-                  <td class="num">{percent(r.t2Share)}</td>
-                  <td class="num">{percent(r.qShare)}</td>
-                </tr>
-              ))}
-            </tbody>
-          </table>
+          <RegionShareTable caption="Regions driving the departure (band assignments)" rows={regions && regions.length ? regions : topShares(mean, 'q', 6)} />
         </div>
       )}
     </div>
