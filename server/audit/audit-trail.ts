@@ -200,24 +200,19 @@ export class SqliteAuditTrail implements AuditTrail {
       conds.push('user = ?');
       args.push(f.user);
     }
-    if (f.action) {
-      if (f.action.endsWith('.')) {
-        conds.push('substr(action, 1, ?) = ?');
-        args.push(f.action.length, f.action);
+    // 'model.' matches every model action and 'batch:' every batch; anything else matches exactly.
+    const prefixOrExact = (column: 'action' | 'object', value: string | undefined, prefixEnd: string) => {
+      if (!value) return;
+      if (value.endsWith(prefixEnd)) {
+        conds.push(`substr(${column}, 1, ?) = ?`);
+        args.push(value.length, value);
       } else {
-        conds.push('action = ?');
-        args.push(f.action);
+        conds.push(`${column} = ?`);
+        args.push(value);
       }
-    }
-    if (f.object) {
-      if (f.object.endsWith(':')) {
-        conds.push('substr(object, 1, ?) = ?');
-        args.push(f.object.length, f.object);
-      } else {
-        conds.push('object = ?');
-        args.push(f.object);
-      }
-    }
+    };
+    prefixOrExact('action', f.action, '.');
+    prefixOrExact('object', f.object, ':');
     if (f.afterSeq !== undefined) {
       conds.push('seq > ?');
       args.push(f.afterSeq);

@@ -5,7 +5,7 @@
  *
  * Raw spectra are the record: nothing here changes or deletes them.
  */
-import type { Alarm, EvaluationResult, ModelVersionStatus } from '../../core/api/rest.ts';
+import type { Alarm, EndpointEventRecord, EvaluationResult, ModelVersionStatus } from '../../core/api/rest.ts';
 import type { EndpointState, MonitorResult } from '../../core/monitor/types.ts';
 
 export interface UnitRow {
@@ -94,17 +94,8 @@ export interface DeploymentRow {
   endedAt: number | null;
 }
 
-export interface EndpointEventRow {
-  id: string;
-  unit: string;
-  batch: string;
-  from: EndpointState;
-  to: EndpointState;
-  t: number;
-  seq: number;
-  reason: string;
-  recordedAt: number;
-}
+/** Stored endpoint events have exactly the shape the API serves. */
+export type EndpointEventRow = EndpointEventRecord;
 
 export interface OutboxRow {
   id: string;
