@@ -86,8 +86,6 @@ export async function reportData(ctx: ServerContext, batchId: string, user: stri
   const unit = await ctx.storage.getUnit(b.unit);
   const mrow = b.modelVersion ? await ctx.storage.getModelVersion(b.modelVersion) : null;
   const results = await allResults(ctx, b.id);
-  const alarms = (await ctx.storage.listAlarms({ batch: b.id, limit: 10_000, offset: 0 })).items;
-  const endpointEvents = await ctx.storage.listEndpointEvents(b.id);
   let departure: ReportDeparture | null = null;
   let property: BatchReportData['property'] = null;
   if (mrow && results.length > 0) {
@@ -104,8 +102,9 @@ export async function reportData(ctx: ServerContext, batchId: string, user: stri
     model: mrow ? await modelVersionSummary(ctx.storage, mrow) : null,
     envelope: mrow ? await envelopeView(ctx, mrow) : null,
     results,
-    alarms,
-    endpointEvents,
+    // The batch detail already carries the batch's alarms and endpoint events.
+    alarms: detail.alarms,
+    endpointEvents: detail.endpointEvents,
     departure,
     property,
   };
