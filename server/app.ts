@@ -102,7 +102,7 @@ export async function startServer(config: ServerConfig, opts: StartOptions = {})
   app.get('/metrics', async (_req, res) => {
     res.type(metrics.registry.contentType).send(await metrics.registry.metrics());
   });
-  app.get('/healthz', (_req, res) => void res.json({ ok: true, monitoring: pipeline.monitoringAvailable }));
+  app.get('/healthz', (_req, res) => void res.json({ ok: true }));
   if (config.webDir) {
     const webDir = resolve(config.webDir);
     if (existsSync(join(webDir, 'index.html'))) {

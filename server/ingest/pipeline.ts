@@ -95,8 +95,7 @@ export class IngestPipeline {
   private outboxSeq = new Map<string, number>();
   /** Recent activation times per alarm id, for the chattering count (a restart starts the count afresh). */
   private activations = new Map<string, number[]>();
-  private core: CoreMonitoring | null = null;
-  private coreError: string | null = null;
+  private readonly core: CoreMonitoring = coreMonitoring;
 
   private uow: IngestWrite = emptyIngestWrite();
   private post: PostCommit = newPost();
@@ -117,26 +116,12 @@ export class IngestPipeline {
     private readonly now: () => number = Date.now,
   ) {}
 
-  /** Whether core monitoring could be loaded (else spectra are stored without results). */
-  get monitoringAvailable(): boolean {
-    return this.core !== null;
-  }
-  get monitoringProblem(): string | null {
-    return this.coreError;
-  }
+  /** The core monitoring functions, for the parts of the server that build or replay models. */
   async getCore(): Promise<CoreMonitoring> {
-    if (this.core) return this.core;
-    this.core = await coreMonitoring();
     return this.core;
   }
 
   async start(): Promise<void> {
-    try {
-      this.core = await coreMonitoring();
-    } catch (e) {
-      this.coreError = (e as Error).message;
-      this.log.warn(`batch monitoring is not available; spectra are stored without results: ${this.coreError}`);
-    }
     await this.load();
     const every = Math.max(50, Math.min(1000, Math.floor(this.config.ingest.staleAfterMs / 4)));
     this.ticker = setInterval(() => void this.tick().catch((e) => this.log.error('tick failed', e)), every);
@@ -181,7 +166,7 @@ export class IngestPipeline {
     if (staleId && this.alarmsById.get(staleId)?.active) ob.stale = true;
     if (row.modelVersion) {
       const model = await this.loadModel(row.modelVersion);
-      if (model && this.core) {
+      if (model) {
         try {
           ob.monitor = this.core.createBatchMonitor(model, row.startT);
           let last: MonitorResult | null = null;
@@ -204,7 +189,6 @@ export class IngestPipeline {
   async loadModel(versionId: string): Promise<MonitoringModelLike | null> {
     const cached = this.models.get(versionId);
     if (cached) return cached;
-    if (!this.core) return null;
     const row = await this.storage.getModelVersion(versionId);
     if (!row) return null;
     const m = this.core.parseMonitoringModel(row.body);
@@ -406,7 +390,7 @@ export class IngestPipeline {
     const now = this.now();
     const dep = this.deployments.get(e.unit) ?? null;
     let monitor: BatchMonitorLike | null = null;
-    if (dep?.model && this.core) {
+    if (dep?.model) {
       const inAxis = dep.model.chain.inputAxis;
       if (!sameAxis(inAxis, st.axis)) {
         this.applyCondition(e.unit, e.batch, {

@@ -40,14 +40,11 @@ export interface CoreMonitoring {
   buildMonitoringModel(batches: ReferenceBatchInput[], settings: Record<string, unknown>): MonitoringModelLike;
 }
 
-const core: CoreMonitoring = {
+/** The core monitoring functions (core/ is imported statically: they are always there). */
+export const coreMonitoring: CoreMonitoring = {
   createBatchMonitor: createBatchMonitor as unknown as CoreMonitoring['createBatchMonitor'],
   parseMonitoringModel: parseMonitoringModel as unknown as CoreMonitoring['parseMonitoringModel'],
   serializeMonitoringModel: serializeMonitoringModel as unknown as CoreMonitoring['serializeMonitoringModel'],
   buildMonitoringModel: buildMonitoringModel as unknown as CoreMonitoring['buildMonitoringModel'],
 };
 
-/** The core monitoring functions. */
-export function coreMonitoring(): Promise<CoreMonitoring> {
-  return Promise.resolve(core);
-}
