@@ -79,6 +79,8 @@ export async function startServer(config: ServerConfig, opts: StartOptions = {})
   const json = express.json({ limit: '1mb' });
   api.use((req, res, next) => (req.path === '/import' ? next() : json(req, res, next)));
   installAuth(ctx);
+  // alarm actions the server takes itself (suppression by state) go to the same audit trail
+  pipeline.audit = ctx.audit ?? null;
   for (const part of ['signals', 'transfer']) {
     const file = join(here, part, 'index.ts');
     if (!existsSync(file)) continue;

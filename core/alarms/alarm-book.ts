@@ -41,7 +41,8 @@ export function isAnnunciated(r: AlarmRecord): boolean {
   return r.shelved === null && r.suppressedBy.length === 0;
 }
 
-function suppressionFor(kind: AlarmRecord['kind'], ctx: AlarmContext, s: AlarmSettings): SuppressionReason[] {
+/** Reasons (ISA-18.2 designed suppression) for which an alarm of this kind is hidden in this context. */
+export function suppressionFor(kind: AlarmRecord['kind'], ctx: AlarmContext, s: AlarmSettings): SuppressionReason[] {
   const out: SuppressionReason[] = [];
   if (!ctx.batchRunning && s.suppressWithoutBatch.includes(kind)) out.push('no-batch');
   if (ctx.functionCheck && s.suppressInFunctionCheck.includes(kind)) out.push('function-check');

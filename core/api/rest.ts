@@ -45,6 +45,8 @@ import type {
   EndpointStatus,
   MonitorResult,
 } from '../monitor/types.ts';
+import type { SuppressionReason } from '../alarms/types.ts';
+import type { Ne107Category } from '../protocol/ingest-messages.ts';
 
 export const API_VERSION = 1;
 export const API_BASE = '/api';
@@ -136,6 +138,21 @@ export interface UnitSummary {
   highestPriority: AlarmPriority | null;
   /** ms since the last data from the open batch's analyzer; null when not applicable. */
   silentForMs: number | null;
+  /** The analyzer's latest NAMUR NE 107 status report (message `analyzer-status`); null when it sent none. */
+  analyzerStatus: AnalyzerStatusView | null;
+  /** Why the unit's alarms are suppressed now (ISA-18.2 designed suppression); empty when they are not. */
+  suppression: SuppressionReason[];
+}
+
+/** An analyzer's NE 107 status as the server last received it. */
+export interface AnalyzerStatusView {
+  analyzer: string;
+  status: Ne107Category;
+  code: string | null;
+  detail: string | null;
+  /** The analyzer's time of the status, ms epoch. */
+  t: number;
+  receivedAt: number;
 }
 
 export interface CreateUnitRequest {
@@ -418,6 +435,12 @@ export interface Alarm {
   recentActivations?: number;
   /** ≥ 3 activations within 60 s (ANSI/ISA-18.2-2016, ISA-TR18.2.5): the alarm chatters. */
   chattering?: boolean;
+  /**
+   * Suppressed by state (ISA-18.2 designed suppression): 'no-batch' (its batch is not running) or
+   * 'function-check' (the analyzer reports NE 107 function check). While suppressed the state reads
+   * 'normal' and `active` still follows the condition; empty or absent when annunciated.
+   */
+  suppressedBy?: SuppressionReason[];
 }
 
 export interface AcknowledgeAlarmRequest {

@@ -10,6 +10,10 @@
  * Entries at or below the persisted seq are duplicates: acked again, never stored twice.
  *
  * Spectra travel as JSON (`type: "spectrum"`) or as binary frames (see binary-frame.ts).
+ *
+ * `analyzer-status` reports the analyzer's own NAMUR NE 107 status signal (good, failure, function
+ * check, out of specification, maintenance required). It is a log entry like `batch-start`: it
+ * carries a seq, is persisted and acked, and may come at any time, with or without an open batch.
  */
 import { z } from 'zod';
 
@@ -54,6 +58,27 @@ export const batchEndSchema = z.object({
   reason: z.string().max(256).optional(),
 });
 
+/**
+ * NAMUR NE 107 (2017) status signal categories as Tideline names them: 'good' when none of the
+ * four applies, then failure (F), function check (C), out of specification (S), maintenance required (M).
+ */
+export const NE107_CATEGORIES = ['good', 'failure', 'function-check', 'out-of-specification', 'maintenance-required'] as const;
+export type Ne107Category = (typeof NE107_CATEGORIES)[number];
+
+export const analyzerStatusSchema = z.object({
+  type: z.literal('analyzer-status'),
+  seq: seqSchema,
+  /** The analyzer's clock when the status took effect, ms since the Unix epoch. */
+  t: timeSchema,
+  status: z.enum(NE107_CATEGORIES),
+  /** The analyzer's own diagnostic code, e.g. a vendor code or 'probe-cleaning'. */
+  code: z.string().min(1).max(64).optional(),
+  /** Free text for the operator and the record. */
+  detail: z.string().max(256).optional(),
+  /** The unit the analyzer serves; default: the unit of its open batch, else of its last batch. */
+  unit: idSchema.optional(),
+});
+
 export const spectrumJsonSchema = z.object({
   type: z.literal('spectrum'),
   seq: seqSchema,
@@ -66,12 +91,14 @@ export const analyzerMessageSchema = z.discriminatedUnion('type', [
   batchStartSchema,
   batchEndSchema,
   spectrumJsonSchema,
+  analyzerStatusSchema,
 ]);
 
 export type HelloMessage = z.infer<typeof helloSchema>;
 export type BatchStartMessage = z.infer<typeof batchStartSchema>;
 export type BatchEndMessage = z.infer<typeof batchEndSchema>;
 export type SpectrumJsonMessage = z.infer<typeof spectrumJsonSchema>;
+export type AnalyzerStatusMessage = z.infer<typeof analyzerStatusSchema>;
 export type AnalyzerMessage = z.infer<typeof analyzerMessageSchema>;
 
 /** A spectrum after decoding, whichever encoding it came in. */
@@ -84,7 +111,7 @@ export interface SpectrumEntry {
 }
 
 /** One entry of the analyzer's ordered log. */
-export type LogEntry = BatchStartMessage | BatchEndMessage | SpectrumEntry;
+export type LogEntry = BatchStartMessage | BatchEndMessage | SpectrumEntry | AnalyzerStatusMessage;
 
 // ---- server -> analyzer ----------------------------------------------------------------------
 
@@ -148,7 +175,7 @@ export class IngestProtocolError extends Error {
 }
 
 /** Parse one text frame from an analyzer. Throws IngestProtocolError naming the problem. */
-export function parseAnalyzerText(text: string): HelloMessage | BatchStartMessage | BatchEndMessage | SpectrumEntry {
+export function parseAnalyzerText(text: string): HelloMessage | LogEntry {
   let raw: unknown;
   try {
     raw = JSON.parse(text);
@@ -190,6 +217,10 @@ export function parseAnalyzerText(text: string): HelloMessage | BatchStartMessag
     return { type: 'spectrum', seq: m.seq, t: m.t, values };
   }
   return m;
+}
+
+export function encodeAnalyzerStatus(m: Omit<AnalyzerStatusMessage, 'type'>): string {
+  return JSON.stringify({ type: 'analyzer-status', ...m });
 }
 
 export function encodeSpectrumJson(seq: number, t: number, values: ArrayLike<number>): string {

@@ -11,11 +11,13 @@ import { EventEmitter } from 'node:events';
 import { performance } from 'node:perf_hooks';
 import { stateOnAcknowledge, stateOnCondition, stateOnReturn } from '../../core/alarms/life-cycle.ts';
 import { activationsInWindow } from '../../core/alarms/chattering.ts';
-import { DEFAULT_ALARM_SETTINGS } from '../../core/alarms/types.ts';
-import type { Alarm, ModelRef } from '../../core/api/rest.ts';
+import { suppressionFor } from '../../core/alarms/alarm-book.ts';
+import { DEFAULT_ALARM_SETTINGS, type SuppressionReason } from '../../core/alarms/types.ts';
+import type { Alarm, AnalyzerStatusView, ModelRef } from '../../core/api/rest.ts';
 import type { LivePoint, LiveUnitStatus } from '../../core/api/live.ts';
 import type { AlarmKind, AlarmPriority, AlarmState, ConditionKind, EndpointState, EndpointStatus, MonitorResult } from '../../core/monitor/types.ts';
-import { IngestProtocolError, type BatchEndMessage, type BatchStartMessage, type IngestErrorCode, type LogEntry, type SpectrumEntry } from '../../core/protocol/ingest-messages.ts';
+import { IngestProtocolError, type AnalyzerStatusMessage, type BatchEndMessage, type BatchStartMessage, type IngestErrorCode, type LogEntry, type SpectrumEntry } from '../../core/protocol/ingest-messages.ts';
+import type { AuditEntry } from '../audit/types.ts';
 import type { ServerConfig } from '../config.ts';
 import type { Logger } from '../logger.ts';
 import type { Metrics } from '../metrics.ts';
@@ -77,6 +79,7 @@ export type AcceptOutcome = 'accepted' | 'duplicate-committed' | 'duplicate-pend
 
 interface PostCommit {
   events: [string, unknown][];
+  audits: AuditEntry[];
   acks: Map<StreamState, number>;
   latencies: number[];
   spectra: number;
@@ -96,6 +99,12 @@ export class IngestPipeline {
   /** Recent activation times per alarm id, for the chattering count (a restart starts the count afresh). */
   private activations = new Map<string, number[]>();
   private readonly core: CoreMonitoring = coreMonitoring;
+  /** Latest NAMUR NE 107 status report per analyzer (message analyzer-status), rebuilt from storage at start. */
+  private readonly analyzerStatus = new Map<string, AnalyzerStatusView>();
+  /** The unit each analyzer served last (its last batch, or the unit its last status named). */
+  private readonly lastUnitOf = new Map<string, string>();
+  /** Where alarm actions taken by the server itself (suppression by state) are recorded; set by the app once the audit trail is installed. */
+  audit: { record(e: AuditEntry): unknown } | null = null;
 
   private uow: IngestWrite = emptyIngestWrite();
   private post: PostCommit = newPost();
@@ -140,6 +149,13 @@ export class IngestPipeline {
     for (const u of await this.storage.listUnits()) this.units.set(u.id, u);
     this.batchIds = new Set(await this.storage.batchIds());
     this.outboxSeq = await this.storage.maxOutboxSeqByUnit();
+    this.lastUnitOf.clear();
+    for (const [a, u] of await this.storage.lastUnitByAnalyzer()) this.lastUnitOf.set(a, u);
+    this.analyzerStatus.clear();
+    for (const r of await this.storage.latestAnalyzerStatuses()) {
+      this.analyzerStatus.set(r.analyzer, { analyzer: r.analyzer, status: r.status, code: r.code, detail: r.detail, t: r.t, receivedAt: r.receivedAt });
+      if (r.unit && !this.lastUnitOf.has(r.analyzer)) this.lastUnitOf.set(r.analyzer, r.unit);
+    }
     this.alarmsById.clear();
     this.alarmIdByKey.clear();
     for (const a of await this.storage.liveAlarms()) this.indexAlarm(a);
@@ -291,6 +307,9 @@ export class IngestPipeline {
       case 'batch-end':
         this.acceptBatchEnd(st, e);
         break;
+      case 'analyzer-status':
+        this.acceptAnalyzerStatus(st, e);
+        break;
     }
     this.advance(st, e.seq);
     this.metrics.entries.inc({ type: e.type });
@@ -415,6 +434,7 @@ export class IngestPipeline {
       axis: st.axis, modelVersion: ob.modelVersion, createdAt: now,
     });
     this.batchIds.add(ob.id);
+    this.lastUnitOf.set(ob.analyzer, ob.unit);
     this.openByAnalyzer.set(ob.analyzer, ob);
     this.openByUnit.set(ob.unit, ob);
     this.touched.add(ob);
@@ -440,6 +460,102 @@ export class IngestPipeline {
     if (this.openByUnit.get(ob.unit) === ob) this.openByUnit.delete(ob.unit);
     this.addOutbox(ob.unit, 'batch-end', { unit: ob.unit, batch: ob.id, t: end.t, reason: end.reason, endpointState: ob.endpointState, endpointAt: ob.endpointAt });
     this.post.events.push(['batch', { event: 'ended', batch: ob.id, unit: ob.unit }]);
+    this.applySuppression(ob.unit, end.seq, `batch ${ob.id} ended${end.reason ? ` (${end.reason})` : ''}`);
+    this.schedule();
+  }
+
+  private acceptAnalyzerStatus(st: StreamState, e: AnalyzerStatusMessage) {
+    if (e.unit !== undefined && !this.units.has(e.unit)) {
+      throw new IngestProtocolError('unknown-unit', `analyzer-status seq ${e.seq}: unit "${e.unit}" is not known to this server; an administrator must create it first`, e.seq);
+    }
+    const ob = this.openByAnalyzer.get(st.analyzer) ?? null;
+    if (e.unit !== undefined && ob && ob.unit !== e.unit) {
+      throw new IngestProtocolError('batch-mismatch', `analyzer-status seq ${e.seq} names unit ${e.unit}, but the open batch ${ob.id} of analyzer ${st.analyzer} runs on unit ${ob.unit}`, e.seq);
+    }
+    const now = this.now();
+    const unit = e.unit ?? ob?.unit ?? this.lastUnitOf.get(st.analyzer) ?? null;
+    const prev = this.analyzerStatus.get(st.analyzer) ?? null;
+    const view: AnalyzerStatusView = { analyzer: st.analyzer, status: e.status, code: e.code ?? null, detail: e.detail ?? null, t: e.t, receivedAt: now };
+    this.analyzerStatus.set(st.analyzer, view);
+    this.uow.analyzerStatus.push({ analyzer: st.analyzer, boot: st.boot, seq: e.seq, t: e.t, status: e.status, code: view.code, detail: view.detail, unit, receivedAt: now });
+    if (!unit) return;
+    this.lastUnitOf.set(st.analyzer, unit);
+    const changed = !prev || prev.status !== view.status || prev.code !== view.code || prev.detail !== view.detail;
+    if (changed) {
+      const payload = { unit, analyzer: st.analyzer, batch: ob?.id ?? null, status: view.status, previous: prev?.status ?? null, code: view.code, detail: view.detail, t: e.t, seq: e.seq };
+      this.addOutbox(unit, 'analyzer-status', payload);
+      this.post.events.push(['analyzer-status', payload]);
+    }
+    const failed = view.status === 'failure';
+    if (failed !== (prev?.status === 'failure')) {
+      const what = [view.code, view.detail].filter(Boolean).join(': ');
+      this.applyCondition(unit, null, {
+        kind: 'analyzer', key: 'analyzer-failure', active: failed, priority: 2, value: failed ? 1 : 0, limit: 0,
+        message: failed ? `analyzer ${st.analyzer} reports failure (NE 107 F)${what ? `: ${what}` : ''}` : `analyzer ${st.analyzer} reports ${view.status} (no longer failure)`,
+      }, e.seq, now);
+    }
+    this.applySuppression(unit, e.seq, `analyzer ${st.analyzer} reports ${view.status}${view.code ? ` (${view.code})` : ''}`);
+    this.post.events.push(['unit-changed', unit]);
+  }
+
+  /** The NE 107 status of the analyzer that serves the unit (open batch's analyzer, else the last one). */
+  unitAnalyzerStatus(unit: string): AnalyzerStatusView | null {
+    const ob = this.openByUnit.get(unit);
+    if (ob) return this.analyzerStatus.get(ob.analyzer) ?? null;
+    let best: AnalyzerStatusView | null = null;
+    for (const [a, u] of this.lastUnitOf) {
+      if (u !== unit) continue;
+      const v = this.analyzerStatus.get(a);
+      if (v && (!best || v.receivedAt > best.receivedAt)) best = v;
+    }
+    return best;
+  }
+
+  /** Suppression by state (ISA-18.2) of an alarm of this kind on this unit and batch now. */
+  private suppressionOf(unit: string, batch: string | null, kind: AlarmKind): SuppressionReason[] {
+    const ob = this.openByUnit.get(unit);
+    const batchRunning = batch === null ? !!ob : ob?.id === batch;
+    const functionCheck = this.unitAnalyzerStatus(unit)?.status === 'function-check';
+    return suppressionFor(kind, { batchRunning, functionCheck }, DEFAULT_ALARM_SETTINGS);
+  }
+
+  /**
+   * The unit's operating context changed (batch ended, analyzer status): suppress or release its
+   * alarms. A suppressed alarm reads 'normal' and keeps tracking its condition; on release an
+   * alarm whose condition still holds is annunciated afresh (ISA-18.2). Each change is stored with
+   * an outbox row and recorded in the audit trail.
+   */
+  private applySuppression(unit: string, seq: number | null, why: string) {
+    const now = this.now();
+    for (const cur of [...this.alarmsById.values()]) {
+      if (cur.unit !== unit) continue;
+      const before = cur.suppressedBy ?? [];
+      const sup = this.suppressionOf(unit, cur.batch, cur.kind);
+      if (sup.join(',') === before.join(',')) continue;
+      const next: Alarm = { ...cur, suppressedBy: sup, updatedAt: now };
+      if (sup.length) next.state = 'normal';
+      else if (before.length) {
+        next.state = stateOnReturn(cur.active);
+        if (next.state === 'active-unacknowledged') {
+          next.raisedAt = now;
+          next.acknowledgedAt = null;
+          next.acknowledgedBy = null;
+          next.acknowledgeComment = null;
+        }
+      }
+      this.indexAlarm(next);
+      const row = this.outboxRow(unit, 'alarm', { alarm: next, previousState: cur.state });
+      this.uow.alarms.push(next);
+      this.uow.outbox.push(row);
+      this.post.events.push(['alarm', { alarm: next, previousState: cur.state }]);
+      const suppressing = sup.length > before.length;
+      this.post.audits.push({
+        user: 'system', action: suppressing ? 'alarm.suppress' : 'alarm.unsuppress', object: `alarm:${cur.id}`,
+        before: { state: cur.state, suppressedBy: before }, after: { state: next.state, suppressedBy: sup },
+        reason: `suppression by state (ISA-18.2): ${why}${sup.length ? `; suppressed: ${sup.join(', ')}` : '; no longer suppressed'}`,
+      });
+    }
+    this.updateAlarmGauge();
     this.schedule();
   }
 
@@ -477,14 +593,18 @@ export class IngestPipeline {
     const cur = id ? this.alarmsById.get(id) : undefined;
     if (!cur && !c.active) return null;
     const prevState: AlarmState | null = cur ? cur.state : null;
+    const sup = this.suppressionOf(unit, batch, c.kind);
+    const wasSuppressed = (cur?.suppressedBy ?? []).length > 0;
     const base: Alarm = cur ?? {
       id: randomUUID(), unit, batch, kind: c.kind, key: c.key, state: 'normal', priority: c.priority, message: c.message,
       value: c.value, limit: c.limit, active: false, raisedAt: now, clearedAt: null, acknowledgedAt: null, acknowledgedBy: null,
-      acknowledgeComment: null, shelvedUntil: null, shelvedBy: null, shelveReason: null, seq, updatedAt: now,
+      acknowledgeComment: null, shelvedUntil: null, shelvedBy: null, shelveReason: null, seq, updatedAt: now, suppressedBy: [],
     };
     const next: Alarm = {
       ...base,
-      state: stateOnCondition(base.state, c.active),
+      // Suppressed by state: not annunciated (reads 'normal'), the condition is still tracked.
+      state: sup.length ? 'normal' : wasSuppressed ? stateOnReturn(c.active) : stateOnCondition(base.state, c.active),
+      suppressedBy: sup,
       active: c.active,
       message: c.message,
       value: c.value,
@@ -498,7 +618,7 @@ export class IngestPipeline {
     if (c.active && cur && cur.state === 'cleared-unacknowledged') next.acknowledgedAt = null;
     // Chattering (ANSI/ISA-18.2): count activations of this alarm within the window.
     const acts = activationsInWindow(this.activations.get(next.id) ?? [], now, DEFAULT_ALARM_SETTINGS.chatterWindowMs);
-    if (c.active && !(cur?.active ?? false)) acts.push(now);
+    if (c.active && !(cur?.active ?? false) && !sup.length) acts.push(now);
     this.activations.set(next.id, acts);
     Object.assign(next, this.alarmActivity(next.id, now));
     this.indexAlarm(next);
@@ -535,7 +655,7 @@ export class IngestPipeline {
 
   private indexAlarm(a: Alarm) {
     const k = alarmKey(a.unit, a.batch, a.key);
-    if (a.state === 'normal' && a.shelvedUntil === null) {
+    if (a.state === 'normal' && a.shelvedUntil === null && !(a.active && (a.suppressedBy ?? []).length)) {
       this.alarmsById.delete(a.id);
       if (this.alarmIdByKey.get(k) === a.id) this.alarmIdByKey.delete(k);
     } else {
@@ -544,7 +664,7 @@ export class IngestPipeline {
     }
   }
 
-  /** Alarms not in state normal, or shelved. */
+  /** Alarms not in state normal, shelved, or suppressed with their condition present. */
   liveAlarms(): Alarm[] {
     return [...this.alarmsById.values()];
   }
@@ -676,7 +796,7 @@ export class IngestPipeline {
     const w = this.uow;
     const post = this.post;
     const touched = this.touched;
-    if (this.pendingEntries === 0 && w.spectra.length === 0 && w.batchEnds.length === 0 && w.endpointEvents.length === 0 && w.alarms.length === 0) return;
+    if (this.pendingEntries === 0 && w.spectra.length === 0 && w.batchEnds.length === 0 && w.endpointEvents.length === 0 && w.alarms.length === 0 && w.analyzerStatus.length === 0) return;
     this.uow = emptyIngestWrite();
     this.post = newPost();
     this.touched = new Set();
@@ -707,6 +827,16 @@ export class IngestPipeline {
     if (w.outbox.length) this.events.emit('outbox', w.outbox);
     for (const [name, payload] of post.events) this.events.emit(name, payload);
     for (const ob of touched) this.events.emit('unit-changed', ob.unit);
+    for (const a of post.audits) this.recordAudit(a);
+  }
+
+  private recordAudit(a: AuditEntry) {
+    try {
+      if (this.audit) this.audit.record(a);
+      else void this.storage.appendAudit({ at: this.now(), user: String(a.user), action: a.action, object: a.object, before: a.before, after: a.after, reason: a.reason ?? undefined }).catch((e) => this.log.error('audit record failed', e));
+    } catch (e) {
+      this.log.error(`audit record ${a.action} ${a.object} failed`, e);
+    }
   }
 
   private async recover() {
@@ -743,6 +873,8 @@ export class IngestPipeline {
       endpoint: ob?.endpoint ? { ...ob.endpoint, state: ob.endpointState ?? ob.endpoint.state } : null,
       activeAlarms: active, unacknowledgedAlarms: unack, highestPriority: prio,
       silentForMs: ob ? now - ob.lastDataAt : null,
+      analyzerStatus: this.unitAnalyzerStatus(unitId),
+      suppression: this.suppressionOf(unitId, ob?.id ?? null, 't2'),
       latest: ob?.latest ? livePoint(ob.latest) : null,
     };
   }
@@ -760,7 +892,7 @@ export class AlarmRequestError extends Error {
 }
 
 function newPost(): PostCommit {
-  return { events: [], acks: new Map(), latencies: [], spectra: 0 };
+  return { events: [], audits: [], acks: new Map(), latencies: [], spectra: 0 };
 }
 
 function alarmKey(unit: string, batch: string | null, key: string) {

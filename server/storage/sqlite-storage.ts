@@ -71,6 +71,7 @@ function alarmFromRow(r: Row): Alarm {
     clearedAt: r.cleared_at, acknowledgedAt: r.acknowledged_at, acknowledgedBy: r.acknowledged_by,
     acknowledgeComment: r.ack_comment, shelvedUntil: r.shelved_until, shelvedBy: r.shelved_by,
     shelveReason: r.shelve_reason, seq: r.seq, updatedAt: r.updated_at,
+    suppressedBy: r.suppressed_by ? (String(r.suppressed_by).split(',') as Alarm['suppressedBy']) : [],
   };
 }
 function deploymentFromRow(r: Row): DeploymentRow {
@@ -146,6 +147,9 @@ export class SqliteStorage implements Storage {
       upsertAlarm: p(INGEST_SQL.upsertAlarm),
       insertEndpointEvent: p(INGEST_SQL.insertEndpointEvent),
       insertOutbox: p(INGEST_SQL.insertOutbox),
+      insertAnalyzerStatus: p(INGEST_SQL.insertAnalyzerStatus),
+      latestStatuses: p(`SELECT s.* FROM analyzer_status s JOIN (SELECT analyzer, MAX(id) AS id FROM analyzer_status GROUP BY analyzer) m ON s.id = m.id`),
+      lastUnits: p(`SELECT analyzer, unit FROM batches b WHERE start_t = (SELECT MAX(start_t) FROM batches c WHERE c.analyzer = b.analyzer)`),
       maxOutbox: p('SELECT unit, MAX(unit_seq) AS m FROM outbox GROUP BY unit'),
       getBatch: p('SELECT * FROM batches WHERE id = ?'),
       openBatches: p(`SELECT * FROM batches WHERE status = 'open' ORDER BY start_t`),
@@ -169,7 +173,7 @@ export class SqliteStorage implements Storage {
       activeDeployment: p('SELECT * FROM deployments WHERE unit = ? AND ended_at IS NULL ORDER BY deployed_at DESC LIMIT 1'),
       endModelDeployments: p('UPDATE deployments SET ended_at = ? WHERE model_version = ? AND ended_at IS NULL'),
       getAlarm: p('SELECT * FROM alarms WHERE id = ?'),
-      liveAlarms: p(`SELECT * FROM alarms WHERE state != 'normal' OR shelved_until IS NOT NULL`),
+      liveAlarms: p(`SELECT * FROM alarms WHERE state != 'normal' OR shelved_until IS NOT NULL OR (active = 1 AND suppressed_by != '')`),
       endpointEvents: p('SELECT * FROM endpoint_events WHERE batch = ? ORDER BY t, seq'),
       insertAudit: p('INSERT INTO audit (at, user, action, object, before, after, reason) VALUES (?, ?, ?, ?, ?, ?, ?)'),
     };
@@ -185,6 +189,7 @@ export class SqliteStorage implements Storage {
       }
       for (const p of w.batchProgress) s.batchProgress.run(p.spectrumCount, p.lastSeq, p.lastT, p.endpointState, p.endpointAt, p.batch);
       for (const e of w.batchEnds) s.batchEnd.run(e.endSeq, e.endT, e.endReason, e.batch);
+      for (const x of w.analyzerStatus) s.insertAnalyzerStatus.run(x.analyzer, x.boot, x.seq, x.t, x.status, x.code, x.detail, x.unit, x.receivedAt);
       for (const a of w.alarms) s.upsertAlarm.run(alarmParams(a));
       for (const e of w.endpointEvents) s.insertEndpointEvent.run(e.id, e.unit, e.batch, e.from, e.to, e.t, e.seq, e.reason, e.recordedAt);
       for (const o of w.outbox) s.insertOutbox.run(o.id, o.unit, o.unitSeq, o.type, JSON.stringify(o.payload), o.createdAt);
@@ -258,6 +263,17 @@ export class SqliteStorage implements Storage {
   async maxOutboxSeqByUnit() {
     const m = new Map<string, number>();
     for (const r of this.st.maxOutbox.all() as Row[]) m.set(r.unit, r.m);
+    return m;
+  }
+
+  async latestAnalyzerStatuses() {
+    return (this.st.latestStatuses.all() as Row[]).map((r) => ({
+      analyzer: r.analyzer, boot: r.boot, seq: r.seq, t: r.t, status: r.status, code: r.code, detail: r.detail, unit: r.unit, receivedAt: r.received_at,
+    }));
+  }
+  async lastUnitByAnalyzer() {
+    const m = new Map<string, string>();
+    for (const r of this.st.lastUnits.all() as Row[]) m.set(r.analyzer, r.unit);
     return m;
   }
 
@@ -410,7 +426,7 @@ export class SqliteStorage implements Storage {
 }
 
 function alarmParams(a: Alarm) {
-  return { ...a, active: a.active ? 1 : 0 };
+  return { ...a, active: a.active ? 1 : 0, suppressedBy: (a.suppressedBy ?? []).join(',') };
 }
 function bootFromRow(r: Row): AnalyzerBootRow {
   return { analyzer: r.analyzer, boot: r.boot, axis: blobF64(r.axis), instrument: r.instrument, firstSeen: r.first_seen, lastSeen: r.last_seen, lastSeq: r.last_seq };

@@ -7,6 +7,7 @@
  */
 import type { Alarm, EndpointEventRecord, EvaluationResult, ModelVersionStatus } from '../../core/api/rest.ts';
 import type { EndpointState, MonitorResult } from '../../core/monitor/types.ts';
+import type { Ne107Category } from '../../core/protocol/ingest-messages.ts';
 
 export interface UnitRow {
   id: string;
@@ -97,6 +98,21 @@ export interface DeploymentRow {
 /** Stored endpoint events have exactly the shape the API serves. */
 export type EndpointEventRow = EndpointEventRecord;
 
+/** One analyzer-status report (NAMUR NE 107), as stored. */
+export interface AnalyzerStatusRow {
+  analyzer: string;
+  boot: number;
+  seq: number;
+  /** The analyzer's time of the status, ms epoch. */
+  t: number;
+  status: Ne107Category;
+  code: string | null;
+  detail: string | null;
+  /** The unit it was applied to; null when the analyzer served no unit yet. */
+  unit: string | null;
+  receivedAt: number;
+}
+
 export interface OutboxRow {
   id: string;
   unit: string;
@@ -125,13 +141,14 @@ export interface IngestWrite {
   results: { batch: string; idx: number; modelVersion: string; result: MonitorResult }[];
   batchProgress: { batch: string; spectrumCount: number; lastSeq: number; lastT: number; endpointState: EndpointState | null; endpointAt: number | null }[];
   batchEnds: { batch: string; endSeq: number | null; endT: number; endReason: string | null }[];
+  analyzerStatus: AnalyzerStatusRow[];
   alarms: Alarm[];
   endpointEvents: EndpointEventRow[];
   outbox: OutboxRow[];
 }
 
 export function emptyIngestWrite(): IngestWrite {
-  return { boots: [], rejected: [], batchStarts: [], spectra: [], results: [], batchProgress: [], batchEnds: [], alarms: [], endpointEvents: [], outbox: [] };
+  return { boots: [], rejected: [], batchStarts: [], spectra: [], results: [], batchProgress: [], batchEnds: [], analyzerStatus: [], alarms: [], endpointEvents: [], outbox: [] };
 }
 
 export interface BatchFilter {
@@ -177,6 +194,10 @@ export interface Storage {
   // ingest
   commitIngest(w: IngestWrite): Promise<void>;
   maxOutboxSeqByUnit(): Promise<Map<string, number>>;
+  /** The latest analyzer-status report of every analyzer that sent one. */
+  latestAnalyzerStatuses(): Promise<AnalyzerStatusRow[]>;
+  /** Unit of each analyzer's most recent batch. */
+  lastUnitByAnalyzer(): Promise<Map<string, string>>;
 
   // batches, spectra, results
   getBatch(id: string): Promise<BatchRow | null>;

@@ -137,7 +137,7 @@ export class IngestPeer {
         } else if (msg.type === 'batch-end') {
           if (log.openBatch !== msg.batch) throw new IngestProtocolError('batch-mismatch', `batch-end for ${msg.batch}, open is ${log.openBatch}`, msg.seq);
           log.openBatch = null;
-        } else {
+        } else if (msg.type === 'spectrum') {
           if (!log.openBatch) throw new IngestProtocolError('no-open-batch', 'spectrum outside a batch', msg.seq);
           if (msg.values.length !== log.axis.length) throw new IngestProtocolError('wrong-length', `${msg.values.length} values for a ${log.axis.length}-point axis`, msg.seq);
         }
