@@ -52,6 +52,8 @@ export interface UnitSignalState {
   qLimit: number | null;
   prediction: { name: string; unit: string; value: number; extrapolating: boolean } | null;
   analyzer: Ne107Status;
+  /** What the analyzer itself last reported (analyzer-status events); `analyzer` adds Tideline's own analyzer alarms. */
+  analyzerReported?: Ne107Status;
   stale: boolean;
   quality: ValueQuality;
   /** Why the quality is not good, in words. */
@@ -195,12 +197,16 @@ export function applyEvent(prev: UnitSignalState, e: SignalEnvelope, now: number
       if (summary.kind === 'stale') s.stale = active;
       if (summary.kind === 'analyzer') {
         const others = s.alarms.some((x) => x.kind === 'analyzer' && x.active);
-        s.analyzer = others ? 'failure' : 'good';
+        s.analyzer = others ? 'failure' : (s.analyzerReported ?? 'good');
       }
     }
   } else if (type === 'analyzer-status' || type === 'analyzer') {
     const st = str(p.status) ?? str(p.ne107);
-    if (st && (NE107_STATUSES as readonly string[]).includes(st)) s.analyzer = st as Ne107Status;
+    if (st && (NE107_STATUSES as readonly string[]).includes(st)) {
+      s.analyzerReported = st as Ne107Status;
+      // the analyzer's own report, unless one of Tideline's analyzer alarms still stands
+      s.analyzer = st !== 'failure' && s.alarms.some((x) => x.kind === 'analyzer' && x.active) ? 'failure' : (st as Ne107Status);
+    }
   } else if (type === 'stale') {
     s.stale = !!p.active;
   }
