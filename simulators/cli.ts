@@ -8,6 +8,7 @@ import { simulateReferenceSet } from './batch.ts';
 import { FAULT_INFO, FAULT_TYPES, parseFaultArg, resolveFaults, type FaultSpec, type ProcessKind } from './faults.ts';
 import { writeBatchFiles } from './files.ts';
 import { readTokensFile, runStreams, type AnalyzerIdentity } from './load.ts';
+import { parseStatusWindow, type StatusWindow } from './stream-client.ts';
 
 export const USAGE = `Tideline simulators: simulated inline NIR analyzers on a fluid-bed dryer and a batch reactor,
 deterministic by seed, with ground truth for every spectrum and optional faults.
@@ -60,6 +61,9 @@ Options (stream):
                       (default 1). Timestamps always advance by process time from the moment
                       streaming starts.
   --json              send spectra as JSON messages instead of binary frames
+  --status SPEC       analyzer status window (NAMUR NE 107): STATUS@FROM-TO[:code], minutes after
+                      batch start, e.g. function-check@20-25:probe-cleaning (no spectra inside a
+                      function-check window; 'good' again at TO). Repeat for several windows.
   --window N          maximum spectra in flight without an ack (default 64)
   --boot N            boot epoch to announce (default: now, ms); every analyzer's seq counts
                       from 0 within its boot epoch (load mode uses N, N+1, …)
@@ -134,6 +138,7 @@ async function main(argv: string[]): Promise<void> {
         analyzers: { type: 'string' },
         speed: { type: 'string' },
         json: { type: 'boolean' },
+        status: { type: 'string', multiple: true },
         window: { type: 'string' },
         boot: { type: 'string' },
         quiet: { type: 'boolean' },
@@ -170,7 +175,7 @@ async function main(argv: string[]): Promise<void> {
 
   if (!streaming) {
     if (!v.out) fail('--out DIR is required to write files');
-    for (const k of ['url', 'token', 'tokens-file', 'analyzer', 'analyzers', 'speed', 'json', 'window', 'boot'] as const) {
+    for (const k of ['url', 'token', 'tokens-file', 'analyzer', 'analyzers', 'speed', 'json', 'window', 'boot', 'status'] as const) {
       if (v[k] !== undefined) fail(`--${k} applies to "stream" only`);
     }
     const n = intOpt(v.batches, 'batches', 20, 1, 10000);
@@ -197,6 +202,12 @@ async function main(argv: string[]): Promise<void> {
   if (v.out) fail('--out applies to files only, not to "stream"');
   if (v['faulty-batches']) fail('--faulty-batches applies to files only');
   if (!v.url) fail('--url is required, e.g. --url ws://127.0.0.1:8080/ingest');
+  let statusWindows: StatusWindow[] = [];
+  try {
+    statusWindows = (v.status ?? []).map(parseStatusWindow);
+  } catch (e) {
+    fail(`--status: ${(e as Error).message}`);
+  }
   if (!v.token && !v['tokens-file']) fail('give --token T or --tokens-file FILE');
   if (v.token && v['tokens-file']) fail('give either --token or --tokens-file, not both');
   let identities: AnalyzerIdentity[];
@@ -246,6 +257,7 @@ async function main(argv: string[]): Promise<void> {
       window,
       product: v.product,
       faults,
+      ...(statusWindows.length ? { statusWindows } : {}),
       axis,
       intervalS,
       boot,

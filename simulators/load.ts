@@ -7,7 +7,7 @@ import { DRYER_AXIS, REACTOR_AXIS } from './bands.ts';
 import { simulateBatch } from './batch.ts';
 import type { FaultSpec, ProcessKind } from './faults.ts';
 import { deriveSeed } from './prng.ts';
-import { AnalyzerClient, type ClientStats } from './stream-client.ts';
+import { AnalyzerClient, type ClientStats, type StatusWindow } from './stream-client.ts';
 
 export interface AnalyzerIdentity {
   analyzer: string;
@@ -49,6 +49,8 @@ export interface StreamRunOptions {
   window?: number;
   product?: string;
   faults?: FaultSpec[];
+  /** Analyzer status windows (NAMUR NE 107) sent during every batch, e.g. function check while the probe is cleaned. */
+  statusWindows?: StatusWindow[];
   axis?: number[];
   intervalS?: number;
   boot?: number;
@@ -104,7 +106,7 @@ export async function runStreams(o: StreamRunOptions): Promise<StreamRunResult> 
         intervalS: o.intervalS,
         product: o.product,
       });
-      const r = await client.sendBatch(batch, { speed: o.speed, unit: id.unit ?? batch.unit, signal: o.signal });
+      const r = await client.sendBatch(batch, { speed: o.speed, unit: id.unit ?? batch.unit, signal: o.signal, ...(o.statusWindows ? { statusWindows: o.statusWindows } : {}) });
       batches++;
       spectra += r.spectra;
       o.onBatch?.(id.analyzer, batch.id, r.spectra, r.stopped);

@@ -11,11 +11,14 @@ import WebSocket from 'ws';
 import { encodeSpectrumFrame } from '../core/protocol/binary-frame.ts';
 import {
   encodeSpectrumJson,
+  NE107_CATEGORIES,
   PROTOCOL_VERSION,
+  type AnalyzerStatusMessage,
   type BatchEndMessage,
   type BatchStartMessage,
   type HelloMessage,
   type IngestErrorCode,
+  type Ne107Category,
   type ServerToAnalyzerMessage,
 } from '../core/protocol/ingest-messages.ts';
 import type { SimulatedBatch } from './batch-types.ts';
@@ -66,6 +69,33 @@ export interface SendBatchOptions {
   timestamps?: 'process' | 'original';
   /** When aborted, no more spectra are sent: the batch ends at once ("stopped by operator") and is flushed. */
   signal?: AbortSignal;
+  /**
+   * Analyzer status windows (NAMUR NE 107), in process minutes after batch start: at `fromMin` the
+   * analyzer reports `status` (message analyzer-status), at `toMin` 'good' again. In 'function-check'
+   * (e.g. probe cleaning) it sends no spectra inside the window.
+   */
+  statusWindows?: StatusWindow[];
+}
+
+export interface StatusWindow {
+  status: Ne107Category;
+  fromMin: number;
+  toMin: number;
+  code?: string;
+}
+
+/** Parse `STATUS@FROM-TO[:code]`, e.g. `function-check@20-25:probe-cleaning` (minutes after batch start). */
+export function parseStatusWindow(spec: string): StatusWindow {
+  const m = /^([a-z-]+)@(\d+(?:\.\d+)?)-(\d+(?:\.\d+)?)(?::([A-Za-z0-9._-]{1,64}))?$/.exec(spec);
+  if (!m) throw new AnalyzerClientError(`status window "${spec}" must look like STATUS@FROM-TO[:code], e.g. function-check@20-25:probe-cleaning`);
+  const status = m[1]! as Ne107Category;
+  if (!(NE107_CATEGORIES as readonly string[]).includes(status) || status === 'good') {
+    throw new AnalyzerClientError(`status window "${spec}": status must be one of ${NE107_CATEGORIES.filter((c) => c !== 'good').join(', ')}`);
+  }
+  const fromMin = Number(m[2]);
+  const toMin = Number(m[3]);
+  if (!(toMin > fromMin)) throw new AnalyzerClientError(`status window "${spec}": the end (${toMin} min) must come after the start (${fromMin} min)`);
+  return { status, fromMin, toMin, ...(m[4] ? { code: m[4] } : {}) };
 }
 
 export interface SentBatch {
@@ -207,6 +237,7 @@ export class AnalyzerClient {
     let sent = 0;
     let last = 0;
     let stopped = false;
+    const windows = (opts.statusWindows ?? []).map((w) => ({ ...w, state: 0 as 0 | 1 | 2 }));
     for (let i = 0; i < batch.spectra.length; i++) {
       this.throwIfFailed();
       if (opts.speed > 0) {
@@ -220,7 +251,21 @@ export class AnalyzerClient {
         break;
       }
       last = i;
-      if (dropped.has(i)) continue;
+      const min = (batch.times[i]! - batch.start) / 60_000;
+      let quiet = false;
+      for (const w of windows) {
+        const next = min >= w.toMin ? 2 : min >= w.fromMin ? 1 : 0;
+        if (next === w.state) {
+          if (next === 1 && w.status === 'function-check') quiet = true;
+          continue;
+        }
+        const status = next === 1 ? w.status : 'good';
+        const m: Omit<AnalyzerStatusMessage, 'seq'> = { type: 'analyzer-status', t: tOf(i), status, ...(next === 1 && w.code ? { code: w.code } : {}) };
+        this.enqueue((seq) => JSON.stringify({ ...m, seq }), m.t);
+        w.state = next;
+        if (next === 1 && w.status === 'function-check') quiet = true;
+      }
+      if (quiet || dropped.has(i)) continue;
       const t = tOf(i);
       const values = batch.spectra[i]!;
       this.enqueue((seq) => (this.opts.binary ? encodeSpectrumFrame(seq, t, values) : encodeSpectrumJson(seq, t, values)), t);

@@ -3,7 +3,7 @@ import { StatusCodes } from 'node-opcua';
 import { describe, expect, it } from 'vitest';
 import { liveValueStatus, ne107Code } from '../../server/signals/opcua/status-codes.ts';
 import type { SignalEnvelope } from '../../server/signals/outbox-store.ts';
-import { applyEvent, emptyUnitState } from '../../server/signals/unit-state.ts';
+import { applyEvent, emptyUnitState, type UnitSignalState } from '../../server/signals/unit-state.ts';
 
 const T0 = Date.parse('2026-01-05T08:00:00Z');
 let seq = 0;
@@ -12,7 +12,7 @@ const axisAlarm = (active: boolean) => ev('alarm', { alarm: { key: 'model-axis',
 
 describe('analyzer status in the unit signal state', () => {
   it('an analyzer alarm that clears returns to what the analyzer reported, not to good', () => {
-    let s = { ...emptyUnitState('dryer-1', T0), resultT: T0 };
+    let s: UnitSignalState = { ...emptyUnitState('dryer-1', T0), resultT: T0 };
     s = applyEvent(s, ev('analyzer-status', { status: 'function-check', code: 'probe-cleaning' }), T0);
     expect(s.analyzer).toBe('function-check');
     expect(ne107Code(s.analyzer)).toBe(2);
