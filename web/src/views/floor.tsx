@@ -2,6 +2,7 @@
 import type { LiveUnitStatus } from '../../../core/api/live.ts';
 import { useLive } from '../live/use-live.ts';
 import { Badge, Empty, Loading } from '../components/status.tsx';
+import { AnalyzerStatusBadge } from '../components/analyzer-status.tsx';
 import { ENDPOINT_WORDS, UNIT_STATUS_WORDS, limitStatus, PRIORITY_WORDS } from '../format/status-words.ts';
 import { age, eta, fixed, minutes, ofLimitPct, percent, sig, withUnit } from '../format/number-format.ts';
 import { href } from '../router.ts';
@@ -108,6 +109,7 @@ function UnitTile({ u, now }: { u: LiveUnitStatus; now: number }) {
           <span class="muted">no active alarms</span>
         )}
         {stale && u.silentForMs !== null && <Badge tone="warn">last data {age(now - u.silentForMs, now)}</Badge>}
+        <AnalyzerStatusBadge status={u.analyzerStatus} suppressed={u.suppression} />
         {u.deployment && (
           <span class="muted small">
             model {u.deployment.name} v{u.deployment.version}

@@ -11,6 +11,7 @@ import { envCol } from '../live/live-state.ts';
 import { Chart } from '../charts/chart.tsx';
 import { planeOptions, scoreChartOptions, statChartOptions } from '../charts/chart-options.ts';
 import { Advisory, Badge, Empty, ErrorBox, Loading } from '../components/status.tsx';
+import { AnalyzerStatusBadge } from '../components/analyzer-status.tsx';
 import { ConnectionNote } from './floor.tsx';
 import { AlarmList } from './alarm-list.tsx';
 import { ContributionsPanel } from './contributions-panel.tsx';
@@ -148,6 +149,7 @@ function WatchHead({ unit, s, connection }: { unit: string; s: LiveState; connec
           </span>
         )}
         {r && <span data-testid="point-count">{s.series.length} spectra</span>}
+        <AnalyzerStatusBadge status={u?.analyzerStatus} suppressed={u?.suppression} />
         <ConnectionNote state={connection} />
         {u && (u.status === 'stale' || u.status === 'offline') && <Badge tone="warn">{u.status === 'stale' ? 'data stale' : 'analyzer offline'}</Badge>}
       </div>
