@@ -45,6 +45,17 @@ export const configSchema = z
         unitStatusEveryMs: z.number().int().min(0).default(250),
       })
       .prefault({}),
+    /** Model builds (POST /api/models/build), each in its own worker thread so the event loop stays free. */
+    modelBuild: z
+      .object({
+        /** Builds running at once (each keeps a core busy); a request beyond this is refused with 409, not queued. */
+        maxConcurrent: z.number().int().min(1).max(16).default(1),
+        /** A build still running after this long is stopped and answered with a problem detail, ms. */
+        timeoutMs: z.number().int().min(1000).default(600_000),
+        /** Heap limit of a build worker, MiB (null = Node's default); a build that exceeds it fails alone. */
+        maxHeapMb: z.number().int().min(16).nullable().default(null),
+      })
+      .prefault({}),
     /** Units created at start when missing. */
     units: z
       .array(z.object({ id: z.string().regex(/^[A-Za-z0-9._:-]{1,128}$/), name: z.string().optional(), kind: z.enum(['dryer', 'reactor', 'other']).default('other') }))

@@ -17,7 +17,7 @@ async function guard<T>(f: () => Promise<T>): Promise<T> {
   try {
     return await f();
   } catch (e) {
-    if (e instanceof ModelRequestError) throw new HttpProblem(e.status, e.status === 404 ? 'Not found' : e.status === 409 ? 'Conflict' : 'Cannot process', e.message);
+    if (e instanceof ModelRequestError) throw new HttpProblem(e.status, e.title ?? (e.status === 404 ? 'Not found' : e.status === 409 ? 'Conflict' : 'Cannot process'), e.message, e.kind);
     if (e instanceof SignatureError) throw new HttpProblem(e.status, 'Signature refused', e.message, 'signature-refused');
     throw e;
   }
@@ -52,7 +52,7 @@ export function addModelRoutes(t: RouteTable, ctx: ServerContext) {
     params: versionParams, handler: async ({ params }) => guard(async () => envelopeView(ctx, await load(params.version))),
   });
   t.add({
-    method: 'post', path: '/models/build', summary: 'Build a draft model version from ended reference batches and settings', role: 'model-owner',
+    method: 'post', path: '/models/build', summary: 'Build a draft model version from ended reference batches and settings (computed in a worker thread; answered when done; 409 while another build runs)', role: 'model-owner',
     response: 'ModelVersionSummary', status: 201,
     body: z.object({
       name: idSchema, product: z.string().min(1).max(128),

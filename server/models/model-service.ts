@@ -1,6 +1,6 @@
 /**
- * Model versions on the server: build from stored reference batches (core buildMonitoringModel),
- * register an immutable version with its hash, evaluate a version by replaying stored batches.
+ * Model versions on the server: build from stored reference batches (core buildMonitoringModel, run
+ * in a worker thread by build-runner.ts), register an immutable version with its hash, evaluate a version by replaying stored batches.
  */
 import { randomUUID } from 'node:crypto';
 import type { BatchEvaluation, EvaluationResult, ModelEnvelopeView, ModelVersionDetail } from '../../core/api/rest.ts';
@@ -8,9 +8,12 @@ import type { ServerContext } from '../context.ts';
 import type { MonitoringModelLike, ReferenceBatchInput } from '../monitor/core-monitor.ts';
 import type { ModelVersionRow } from '../storage/storage.ts';
 import { modelVersionSummary } from '../api/views.ts';
+import { BuildBusyError, BuildFailedError, ModelBuildRunner, packReferenceBatch, type BuildInfo, type BuiltModelFile } from './build-runner.ts';
+import type { PackedReferenceBatch } from './build-worker.ts';
 
 export class ModelRequestError extends Error {
-  constructor(readonly status: number, message: string) {
+  /** `title` and `kind` (problem type slug) default by status in routes-models.ts. */
+  constructor(readonly status: number, message: string, readonly title?: string, readonly kind?: string) {
     super(message);
   }
 }
@@ -23,12 +26,17 @@ interface ModelShape extends MonitoringModelLike {
 /** Store a built model as a new draft version of its name. */
 export async function registerModel(ctx: ServerContext, model: MonitoringModelLike, opts: { createdBy: string; referenceBatches: string[] }): Promise<ModelVersionRow> {
   const core = await ctx.ingest.getCore();
-  const body = core.serializeMonitoringModel(model);
-  const s = model.settings;
+  const file: BuiltModelFile = { body: core.serializeMonitoringModel(model), sha256: model.sha256, settings: model.settings, components: model.pca.nComponents };
+  return registerModelFile(ctx, file, opts);
+}
+
+/** Store a model file built elsewhere (the build worker) as a new draft version: the same row registerModel writes. */
+export async function registerModelFile(ctx: ServerContext, file: BuiltModelFile, opts: { createdBy: string; referenceBatches: string[] }): Promise<ModelVersionRow> {
+  const s = file.settings;
   const name = String(s.name);
   const row: ModelVersionRow = {
-    id: randomUUID(), name, version: await ctx.storage.nextModelVersion(name), product: String(s.product), sha256: model.sha256, body,
-    settings: s as Record<string, unknown>, referenceBatches: opts.referenceBatches, components: model.pca.nComponents,
+    id: randomUUID(), name, version: await ctx.storage.nextModelVersion(name), product: String(s.product), sha256: file.sha256, body: file.body,
+    settings: s, referenceBatches: opts.referenceBatches, components: file.components,
     confidence: Number(s.confidence), status: 'draft', createdAt: ctx.now(), createdBy: opts.createdBy, approvedAt: null,
     approvedBy: null, approvalReason: null, retiredAt: null, retiredBy: null, retireReason: null,
   };
@@ -49,21 +57,54 @@ export async function loadReferenceBatch(ctx: ServerContext, id: string): Promis
   return { id, axis: b.axis, times, spectra };
 }
 
+const runners = new WeakMap<ServerContext, ModelBuildRunner>();
+
+/** The server's model build runner (created on first use; its workers are stopped when the server closes). */
+export function buildRunnerOf(ctx: ServerContext): ModelBuildRunner {
+  let r = runners.get(ctx);
+  if (!r) {
+    const runner = new ModelBuildRunner(() => ctx.config.modelBuild);
+    runners.set(ctx, runner);
+    ctx.onClose(() => runner.stop());
+    r = runner;
+  }
+  return r;
+}
+
+/**
+ * Build a draft version from stored reference batches in a worker thread (server/models/build-runner.ts):
+ * the event loop stays free for ingest, /live and signals while core computes. At most
+ * config.modelBuild.maxConcurrent builds run at once; a request beyond that is refused (409).
+ */
 export async function buildFromStored(
   ctx: ServerContext,
   req: { name: string; product: string; referenceBatches: string[]; settings?: Record<string, unknown> },
   user: string,
 ): Promise<ModelVersionRow> {
-  const core = await ctx.ingest.getCore();
-  const batches: ReferenceBatchInput[] = [];
-  for (const id of req.referenceBatches) batches.push(await loadReferenceBatch(ctx, id));
-  let model: MonitoringModelLike;
+  const runner = buildRunnerOf(ctx);
+  const info: BuildInfo = { name: req.name, product: req.product, startedBy: user, startedAt: ctx.now(), referenceBatches: req.referenceBatches.length };
+  let release: () => void;
   try {
-    model = core.buildMonitoringModel(batches, { ...(req.settings ?? {}), name: req.name, product: req.product, author: user, createdAt: ctx.now() });
+    release = runner.acquire(info);
   } catch (e) {
-    throw new ModelRequestError(422, `the model could not be built: ${(e as Error).message}`);
+    if (e instanceof BuildBusyError) throw new ModelRequestError(409, e.message, 'Model build running', 'model-build-busy');
+    throw e;
   }
-  return registerModel(ctx, model, { createdBy: user, referenceBatches: req.referenceBatches });
+  try {
+    const batches: PackedReferenceBatch[] = [];
+    for (const id of req.referenceBatches) batches.push(packReferenceBatch(await loadReferenceBatch(ctx, id)));
+    let file: BuiltModelFile;
+    try {
+      file = await runner.build(info, batches, { ...(req.settings ?? {}), name: req.name, product: req.product, author: user, createdAt: ctx.now() });
+    } catch (e) {
+      if (e instanceof BuildFailedError && e.kind === 'model') throw new ModelRequestError(422, `the model could not be built: ${e.message}`);
+      if (e instanceof BuildFailedError) throw new ModelRequestError(500, `the model could not be built: ${e.message}; the server goes on`, 'Model build failed', 'model-build-failed');
+      throw e;
+    }
+    return await registerModelFile(ctx, file, { createdBy: user, referenceBatches: req.referenceBatches });
+  } finally {
+    release();
+  }
 }
 
 export async function evaluateVersion(ctx: ServerContext, versionId: string, batchIds: string[], user: string): Promise<EvaluationResult> {
