@@ -142,7 +142,7 @@ export class ModelBuildRunner extends EventEmitter {
         void w.terminate();
       };
       const timer = setTimeout(
-        () => finish(() => reject(new BuildFailedError('timeout', `the model build ran longer than ${Math.round(opts.timeoutMs / 1000)} s and was stopped`))),
+        () => finish(() => reject(new BuildFailedError('timeout', `the model build ran longer than ${opts.timeoutMs >= 1000 ? `${Math.round(opts.timeoutMs / 1000)} s` : `${opts.timeoutMs} ms`} (modelBuild.timeoutMs) and was stopped`))),
         opts.timeoutMs,
       );
       w.on('message', (m: BuildReplyMessage) => {

@@ -127,4 +127,22 @@ describe('model build in a worker thread', () => {
     expect(r.status).toBe(201);
     expect(r.body.version).toBe(2);
   }, 120_000);
+  it('a build over its time limit is stopped: 500 problem saying so; the next build runs', async () => {
+    const cfg = ts.server.ctx.config.modelBuild;
+    const before = cfg.timeoutMs;
+    cfg.timeoutMs = 1; // below the configurable minimum, so the worker cannot even load its code in time
+    let r;
+    try {
+      r = await owner.post('/api/models/build', { name: 'dryer-w', product: 'granule A', referenceBatches: ids, settings: { components: 2 } });
+    } finally {
+      cfg.timeoutMs = before;
+    }
+    expect(r.status).toBe(500);
+    expect(r.body).toMatchObject({ type: '/problems/model-build-failed' });
+    expect(r.body.detail).toMatch(/ran longer than 1 ms \(modelBuild.timeoutMs\) and was stopped/);
+    expect(buildRunnerOf(ts.server.ctx).running()).toEqual([]);
+    r = await owner.post('/api/models/build', { name: 'dryer-w', product: 'granule A', referenceBatches: ids, settings: { components: 2 } });
+    expect(r.status).toBe(201);
+    expect(r.body.version).toBe(3);
+  }, 120_000);
 });
