@@ -23,6 +23,10 @@ export interface UnitAlarmSummary {
   priority: AlarmPriority;
   active: boolean;
   shelved: boolean;
+  /** The shelve as Tideline recorded it (ISA-18.2: time-limited, with who and why); null when not shelved. */
+  shelf: { until: number; by: string | null; reason: string | null } | null;
+  /** Suppressed by design (state based, e.g. no batch running, analyzer in function check), when the alarm says so. */
+  suppressed: boolean;
   message: string;
   value: number | null;
   limit: number | null;
@@ -143,6 +147,15 @@ type Obj = Record<string, unknown>;
 const str = (v: unknown): string | null => (typeof v === 'string' ? v : null);
 const num = (v: unknown): number | null => (typeof v === 'number' && Number.isFinite(v) ? v : null);
 
+/** The shelve of an alarm payload: core/api Alarm (shelvedUntil, shelvedBy, shelveReason) or core/alarms (shelved: ShelveInfo). */
+function shelfOf(a: Obj): UnitAlarmSummary['shelf'] {
+  const until = num(a.shelvedUntil);
+  if (until !== null) return { until, by: str(a.shelvedBy), reason: str(a.shelveReason) };
+  const info = (a.shelved && typeof a.shelved === 'object' ? a.shelved : null) as Obj | null;
+  if (info && num(info.until) !== null) return { until: num(info.until)!, by: str(info.by), reason: str(info.reason) };
+  return null;
+}
+
 /** Fold in one delivered outbox event. Unknown types only advance lastEventSeq. */
 export function applyEvent(prev: UnitSignalState, e: SignalEnvelope, now: number): UnitSignalState {
   const s: UnitSignalState = { ...prev, endpoint: { ...prev.endpoint }, alarms: [...prev.alarms], lastEventSeq: Math.max(prev.lastEventSeq, e.seq), updatedAt: now };
@@ -185,14 +198,17 @@ export function applyEvent(prev: UnitSignalState, e: SignalEnvelope, now: number
         state,
         priority: (num(a.priority) ?? 3) as AlarmPriority,
         active,
-        shelved: !!(num(a.shelvedUntil) ?? a.shelved),
+        shelved: shelfOf(a) !== null,
+        shelf: shelfOf(a),
+        suppressed: a.suppressed === true || (Array.isArray(a.suppressedBy) && a.suppressedBy.length > 0),
         message: str(a.message) ?? '',
         value: num(a.value),
         limit: num(a.limit),
         t: num(p.t) ?? num(a.updatedAt) ?? e.createdAt,
       };
       s.alarms = s.alarms.filter((x) => x.key !== key);
-      if (summary.state !== 'normal' || summary.active) s.alarms.push(summary);
+      // standing alarms, and shelved or suppressed ones (so that the end of a shelve or of a suppression reaches the receivers too)
+      if (summary.state !== 'normal' || summary.active || summary.shelved || summary.suppressed) s.alarms.push(summary);
       s.alarms.sort((x, y) => x.priority - y.priority || x.key.localeCompare(y.key));
       if (summary.kind === 'stale') s.stale = active;
       if (summary.kind === 'analyzer') {

@@ -16,7 +16,7 @@ export interface TestServer {
   stop(): Promise<void>;
 }
 
-export async function startTestServer(overrides: ServerConfigInput = {}, opts: { dir?: string; units?: string[]; analyzer?: string } = {}): Promise<TestServer> {
+export async function startTestServer(overrides: ServerConfigInput = {}, opts: { dir?: string; units?: string[]; analyzer?: string; now?: () => number } = {}): Promise<TestServer> {
   const dir = opts.dir ?? mkdtempSync(join(tmpdir(), 'tideline-test-'));
   const config = loadConfig({
     overrides: {
@@ -26,7 +26,7 @@ export async function startTestServer(overrides: ServerConfigInput = {}, opts: {
       ...overrides,
     },
   });
-  const server = await startServer(config);
+  const server = await startServer(config, opts.now ? { now: opts.now } : {});
   const token = await createAnalyzerToken(server.ctx.storage, opts.analyzer ?? 'nir-1', Date.now());
   return {
     server, dir, token, wsUrl: server.url.replace('http', 'ws'),

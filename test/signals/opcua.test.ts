@@ -209,4 +209,24 @@ describe('OPC UA channel', () => {
     await new Promise((r) => setTimeout(r, 300)); // a second acked event would arrive within a few publish intervals
     expect(events.filter((e) => e.ConditionName === 'AnalyzerFault' && e['AckedState.Id'] === true)).toHaveLength(1);
   });
+  it('mirrors suppression by state (SuppressedState, SuppressedOrShelved) when Tideline reports it', async () => {
+    const events: Record<string, unknown>[] = [];
+    await client.watchEvents(['ConditionName', 'ActiveState.Id', 'SuppressedState.Id', 'SuppressedOrShelved', 'Message'], (e) => events.push(e));
+    const Q = P('QLimit');
+    expect((await client.read(`${Q}/0:SuppressedState/0:Id`)).value.value).toBe(false);
+    const t = T0 + 60 * 60_000;
+    // the analyzer is in NE 107 function check: the Q alarm's condition is present but suppressed by design
+    appendOutbox(db, U, 'alarm', { alarm: { ...alarm({ key: 'q', kind: 'q', state: 'normal', active: true, message: 'Q 0.05 above limit 0.01', value: 0.05, limit: 0.01, updatedAt: t }), suppressedBy: ['function-check'] }, previousState: null }, t);
+    dispatcher.wake();
+    await until(() => events.some((e) => e.ConditionName === 'QLimit' && e['SuppressedState.Id'] === true), 'QLimit suppressed event');
+    expect(events.find((e) => e.ConditionName === 'QLimit')).toMatchObject({ 'ActiveState.Id': true, SuppressedOrShelved: true });
+    expect((await client.read(`${Q}/0:SuppressedState/0:Id`)).value.value).toBe(true);
+    expect((await client.read(`${Q}/0:SuppressedOrShelved`)).value.value).toBe(true);
+    expect(((await client.read(`${Q}/0:ShelvingState/0:CurrentState`)).value.value as { text: string }).text).toBe('Unshelved');
+    // function check over: annunciated again
+    appendOutbox(db, U, 'alarm', { alarm: { ...alarm({ key: 'q', kind: 'q', state: 'active-unacknowledged', active: true, message: 'Q 0.05 above limit 0.01', value: 0.05, limit: 0.01, updatedAt: t + 10_000 }), suppressedBy: [] }, previousState: 'normal' }, t + 10_000);
+    dispatcher.wake();
+    await until(() => events.some((e) => e.ConditionName === 'QLimit' && e['SuppressedState.Id'] === false), 'QLimit unsuppressed event');
+    expect((await client.read(`${Q}/0:SuppressedOrShelved`)).value.value).toBe(false);
+  });
 });

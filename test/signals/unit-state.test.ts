@@ -57,6 +57,27 @@ describe('unit state', () => {
     expect(s.alarms).toEqual([]);
   });
 
+  it('carries the shelve (until, by, reason) and suppression; keeps shelved and suppressed alarms until they end', () => {
+    let s = emptyUnitState('dryer-1', T0);
+    const row = (over: Record<string, unknown>) => ({ alarm: { id: 'a1', unit: 'dryer-1', batch: 'B1', kind: 'q', key: 'q', state: 'normal', priority: 3, message: 'Q high', value: 0.2, limit: 0.01, active: false, shelvedUntil: null, shelvedBy: null, shelveReason: null, updatedAt: T0, ...over }, previousState: null });
+    s = applyEvent(s, ev('alarm', row({ state: 'active-unacknowledged', active: true })), T0);
+    expect(s.alarms[0]).toMatchObject({ shelved: false, shelf: null, suppressed: false });
+    s = applyEvent(s, ev('alarm', row({ state: 'active-unacknowledged', active: true, shelvedUntil: T0 + 60_000, shelvedBy: 'ana', shelveReason: 'lamp swap' })), T0);
+    expect(s.alarms[0]).toMatchObject({ shelved: true, shelf: { until: T0 + 60_000, by: 'ana', reason: 'lamp swap' } });
+    // the condition returns while shelved: still listed, so that the unshelve reaches the receivers
+    s = applyEvent(s, ev('alarm', row({ shelvedUntil: T0 + 60_000, shelvedBy: 'ana', shelveReason: 'lamp swap' })), T0);
+    expect(s.alarms.map((a) => [a.key, a.state, a.shelved])).toEqual([['q', 'normal', true]]);
+    s = applyEvent(s, ev('alarm', row({ shelveReason: 'shelve expired (system)' })), T0);
+    expect(s.alarms).toEqual([]);
+    // core/alarms spelling: shelved as ShelveInfo; suppression by state as suppressedBy
+    s = applyEvent(s, ev('alarm', { alarm: { key: 't2', kind: 't2', state: 'normal', active: true, priority: 2, message: 'T² high', shelved: { by: 'bo', at: T0, until: T0 + 1000, reason: 'r' }, suppressedBy: ['function-check'] } }), T0);
+    expect(s.alarms[0]).toMatchObject({ key: 't2', shelf: { until: T0 + 1000, by: 'bo', reason: 'r' }, suppressed: true });
+    s = applyEvent(s, ev('alarm', { alarm: { key: 't2', kind: 't2', state: 'normal', active: false, priority: 2, message: 'T² ok', shelved: null, suppressedBy: ['no-batch'] } }), T0);
+    expect(s.alarms.map((a) => [a.key, a.suppressed, a.shelved])).toEqual([['t2', true, false]]);
+    s = applyEvent(s, ev('alarm', { alarm: { key: 't2', kind: 't2', state: 'normal', active: false, priority: 2, message: 'T² ok', shelved: null, suppressedBy: [] } }), T0);
+    expect(s.alarms).toEqual([]);
+  });
+
   it('maps analyzer status, staleness and model fit to status codes', () => {
     let s = applyResult(emptyUnitState('dryer-1', T0), result(), { batch: 'B1' }, T0);
     const stale = applyEvent(s, ev('alarm', { alarm: { key: 'stale', kind: 'stale', state: 'active-unacknowledged', active: true, priority: 2, message: 'no data' } }), T0);

@@ -158,6 +158,7 @@ export class OpcuaChannel implements SignalChannel {
       n = new UnitNodes(this.ns, this.root, this.notifier, unit, {
         propertyRange: this.cfg.propertyRange[unit] ?? { low: 0, high: 100 },
         maxTimeShelvedMs: this.cfg.maxTimeShelvedMs,
+        now: this.now,
         onAcknowledge: (u) => this.acknowledgeEndpoint(u, 'opcua-client'),
         onAlarmAcknowledge: (u, id, comment) => this.opts.onAlarmAcknowledged?.(u, id, comment),
       });
@@ -199,7 +200,7 @@ export class OpcuaChannel implements SignalChannel {
         const a = after.get(key);
         const b = before.get(key)!;
         if (a) nodes.alarms.mirror(a);
-        else if (b.kind in MIRRORED_ALARMS || key in MIRRORED_ALARMS) nodes.alarms.mirror({ ...b, active: false, state: 'normal', t: event.createdAt });
+        else if (b.kind in MIRRORED_ALARMS || key in MIRRORED_ALARMS) nodes.alarms.mirror({ ...b, active: false, state: 'normal', shelf: null, suppressed: false, t: event.createdAt });
       }
     }
     nodes.update(s, this.latchView(event.unit));

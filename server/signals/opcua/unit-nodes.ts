@@ -19,6 +19,8 @@ import { liveValueStatus, ne107Code } from './status-codes.ts';
 export interface UnitNodeOptions {
   propertyRange: { low: number; high: number };
   maxTimeShelvedMs: number;
+  /** Clock (ms epoch) for UnshelveTime; default Date.now. */
+  now?: () => number;
   /** The DCS wrote true to EndpointAcknowledge. */
   onAcknowledge: (unit: string) => void;
   /** A client acknowledged an alarm condition. */
@@ -137,7 +139,7 @@ export class UnitNodes {
     }
     const normal = ns.addVariable({ componentOf: o, browseName: 'NormalState', dataType: 'Boolean', description: 'Normal value of DataStale / AnalyzerFaultActive' });
     normal.setValueFromSource(new Variant({ dataType: DataType.Boolean, value: false }));
-    this.alarms = new UnitAlarmMirror(ns, o, { t2: this.vars.t2, q: this.vars.q, property: this.vars.property, stale: this.vars.dataStale, analyzer: this.vars.analyzerFault, normal }, opts.maxTimeShelvedMs, unit, (id, comment) => opts.onAlarmAcknowledge?.(unit, id, comment));
+    this.alarms = new UnitAlarmMirror(ns, o, { t2: this.vars.t2, q: this.vars.q, property: this.vars.property, stale: this.vars.dataStale, analyzer: this.vars.analyzerFault, normal }, opts.maxTimeShelvedMs, unit, (id, comment) => opts.onAlarmAcknowledge?.(unit, id, comment), opts.now);
   }
 
   private set(node: UAVariable, dataType: DataType, value: unknown, status: StatusCode = StatusCodes.Good, t?: number): void {
@@ -177,7 +179,7 @@ export class UnitNodes {
     this.set(V.quality, DataType.String, s.qualityReason ?? '');
     this.set(V.dataStale, DataType.Boolean, s.stale);
     this.set(V.analyzerFault, DataType.Boolean, s.analyzer === 'failure');
-    this.set(V.activeAlarms, DataType.UInt32, s.alarms.length);
+    this.set(V.activeAlarms, DataType.UInt32, s.alarms.filter((a) => a.active || a.state !== 'normal').length);
   }
 
   isLatched(): boolean {
