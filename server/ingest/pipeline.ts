@@ -384,7 +384,9 @@ export class IngestPipeline {
         this.addOutbox(ob.unit, 'endpoint-state', { unit: ob.unit, batch: ob.id, ...ev });
         this.post.events.push(['endpoint', { unit: ob.unit, batch: ob.id, from: ev.from, to: ev.to, endpoint: r.endpoint, t: ev.t, seq: ev.seq }]);
       } else {
-        this.addOutbox(ob.unit, 'condition', { unit: ob.unit, batch: ob.id, ...ev });
+        // the condition's suppression by state now (ISA-18.2), as on the alarm rows: a receiver of raw
+        // conditions can tell a suppressed one without waiting for the 'alarm' row
+        this.addOutbox(ob.unit, 'condition', { unit: ob.unit, batch: ob.id, ...ev, suppressedBy: this.suppressionOf(ob.unit, ob.id, ev.change.kind) });
       }
     }
     if (ob.endpointState === null) ob.endpointState = r.endpoint.state;

@@ -52,6 +52,22 @@ describe('suppression by state with a model', () => {
     const after = (await alarms()).filter((a) => model.some((m) => m.id === a.id));
     expect(after.some((a) => a.state === 'active-unacknowledged' && a.active && a.suppressedBy.length === 0)).toBe(true);
     expect((await viewer.get('/api/units/dryer-1')).body.activeAlarms).toBeGreaterThan(0);
+
+    // outbox: the monitor's raw 'condition' rows carry the suppression by state of their moment, as the
+    // 'alarm' rows do — function-check between the two analyzer-status rows, none before and after
+    const rows = (ts.server.ctx.storage.db as import('better-sqlite3').Database)
+      .prepare(`SELECT unit_seq, type, payload FROM outbox WHERE unit = 'dryer-1' ORDER BY unit_seq`)
+      .all() as { unit_seq: number; type: string; payload: string }[];
+    const statusAt = rows.filter((r) => r.type === 'analyzer-status').map((r) => [r.unit_seq, JSON.parse(r.payload).status]);
+    expect(statusAt.map((x) => x[1])).toEqual(['function-check', 'good']);
+    const [fcFrom, goodFrom] = statusAt.map((x) => x[0] as number);
+    const conditions = rows.filter((r) => r.type === 'condition').map((r) => ({ at: r.unit_seq, ...JSON.parse(r.payload) }));
+    const during = conditions.filter((c) => c.at > fcFrom! && c.at < goodFrom!);
+    expect(during.filter((c) => c.change.active).length).toBeGreaterThan(0);
+    for (const c of during) expect(c.suppressedBy).toEqual(['function-check']);
+    for (const c of conditions.filter((c) => c.at < fcFrom! || c.at > goodFrom!)) expect(c.suppressedBy).toEqual([]);
+    const alarmRows = rows.filter((r) => r.type === 'alarm' && r.unit_seq > fcFrom! && r.unit_seq < goodFrom!).map((r) => JSON.parse(r.payload).alarm);
+    for (const a of alarmRows.filter((a) => a.kind !== 'analyzer')) expect(a.suppressedBy).toEqual(['function-check']);
     p.close();
   }, 120_000);
 });
