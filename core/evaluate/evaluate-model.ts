@@ -12,12 +12,20 @@
  *   confirmed alarm at or after onset (for a drop-out: the stale alarm, core/evaluate/stale.ts).
  * - endpoint_error: detected − true endpoint, in spectrum intervals, on good batches;
  *   endpoint_early_max: the largest (true − detected) over good batches (≤ 0 means never early).
+ *   endpoint_error_median_min: the same median in minutes (interval × nominal spacing);
+ *   endpoint_property_at_call: the true property at the detected endpoint (median, min, max), when
+ *   the batches carry their true property — how far past the target a call lands, in the
+ *   property's own units, which says more than intervals for a slow process.
+ * - false_alarm_batch_rate_ci95: the exact binomial (Clopper & Pearson 1934, Biometrika 26:404)
+ *   95 % interval of the batch rate: with 30 good batches one alarm more or less moves the rate by
+ *   0.033, so the interval says what the count can and cannot show.
  * - eta_error: |estimated − true time to endpoint| in minutes over the last quarter of the span
  *   from batch start to the true endpoint, on good batches.
  */
 import type { MonitoringModel } from '../model/monitoring-model.ts';
 import { createBatchMonitor } from '../monitor/batch-monitor.ts';
 import { staleAlarmTime } from './stale.ts';
+import { betaInv } from '../stats/quantiles.ts';
 
 export interface EvalBatch {
   id: string;
@@ -33,6 +41,8 @@ export interface EvalBatch {
   faultOnsetIndex: number | null;
   /** Nominal seconds between spectra. */
   intervalS: number;
+  /** True property per spectrum (optional): gives endpoint_property_at_call. */
+  property?: ArrayLike<number>;
 }
 
 export interface EvaluateOptions {
@@ -55,6 +65,8 @@ export interface BatchOutcome {
   endpointIndex: number | null;
   detectedEndpointIndex: number | null;
   endpointError: number | null;
+  /** True property at the detected endpoint (when the batch carries it). */
+  propertyAtCall: number | null;
   etaErrors: number[];
   maxT2: number;
   maxQ: number;
@@ -78,9 +90,13 @@ export interface EvaluationFigures {
   /** 1 − confidence + 3·√(α(1−α)/N). */
   false_alarm_point_rate_bound: number;
   false_alarm_batch_rate: number;
+  /** Clopper–Pearson 95 % interval of false_alarm_batch_rate. */
+  false_alarm_batch_rate_ci95: [number, number];
   detection_delay_median: Record<string, number | null>;
   faults: Record<string, GroupFigures>;
   endpoint_error_median: number | null;
+  endpoint_error_median_min: number | null;
+  endpoint_property_at_call: { median: number; min: number; max: number } | null;
   endpoint_early_max: number | null;
   endpoint_late_max: number | null;
   endpoint_missed: number;
@@ -95,6 +111,19 @@ export function median(xs: number[]): number | null {
   return s.length % 2 ? s[m] : (s[m - 1] + s[m]) / 2;
 }
 
+/**
+ * Exact (Clopper & Pearson 1934) two-sided interval for a binomial proportion k/n:
+ * [Beta(α/2; k, n−k+1), Beta(1−α/2; k+1, n−k)], with 0 and 1 at the ends.
+ */
+export function clopperPearson(k: number, n: number, confidence = 0.95): [number, number] {
+  if (!Number.isInteger(k) || !Number.isInteger(n) || n < 1 || k < 0 || k > n) throw new RangeError(`clopperPearson: need integers 0 ≤ k ≤ n, n ≥ 1 (got k=${k}, n=${n})`);
+  if (!(confidence > 0 && confidence < 1)) throw new RangeError(`clopperPearson: confidence must be in (0, 1), got ${confidence}`);
+  const a = 1 - confidence;
+  const lo = k === 0 ? 0 : betaInv(a / 2, k, n - k + 1);
+  const hi = k === n ? 1 : betaInv(1 - a / 2, k + 1, n - k);
+  return [lo, hi];
+}
+
 /** Replay one batch and score it against its truth. */
 export function evaluateBatch(model: MonitoringModel, b: EvalBatch, opts: EvaluateOptions = {}): BatchOutcome {
   const staleAfter = opts.staleAfter ?? 3;
@@ -104,7 +133,7 @@ export function evaluateBatch(model: MonitoringModel, b: EvalBatch, opts: Evalua
   const mon = createBatchMonitor(model, t0);
   const out: BatchOutcome = {
     id: b.id, group: b.group, spectra: 0, pointsOutsideT2: 0, pointsOutsideQ: 0, suspects: 0, alarms: 0, firstAlarm: null, detection: null,
-    falseAlarmsBeforeOnset: 0, endpointIndex: b.endpointIndex, detectedEndpointIndex: null, endpointError: null, etaErrors: [], maxT2: 0, maxQ: 0,
+    falseAlarmsBeforeOnset: 0, endpointIndex: b.endpointIndex, detectedEndpointIndex: null, endpointError: null, propertyAtCall: null, etaErrors: [], maxT2: 0, maxQ: 0,
   };
   const onset = b.faultOnsetIndex;
   const etaFrom = b.endpointIndex !== null ? Math.floor(0.75 * b.endpointIndex) : Infinity;
@@ -150,6 +179,7 @@ export function evaluateBatch(model: MonitoringModel, b: EvalBatch, opts: Evalua
     if (st !== null) noteAlarm(Math.min(b.spectra.length - 1, Math.round((st - t0) / intervalMs)), 'stale', 'stale', st);
   }
   if (out.detectedEndpointIndex !== null && b.endpointIndex !== null) out.endpointError = out.detectedEndpointIndex - b.endpointIndex;
+  if (out.detectedEndpointIndex !== null && b.property && out.detectedEndpointIndex < b.property.length) out.propertyAtCall = b.property[out.detectedEndpointIndex];
   return out;
 }
 
@@ -176,6 +206,12 @@ export function evaluateModel(model: MonitoringModel, batches: EvalBatch[], opts
   }
   const errs = good.flatMap((o) => (o.endpointError !== null ? [o.endpointError] : []));
   const eta = good.flatMap((o) => o.etaErrors);
+  const errsMin = good.flatMap((o) => {
+    const b = batches.find((x) => x.id === o.id && x.group === o.group)!;
+    return o.endpointError !== null ? [(o.endpointError * b.intervalS) / 60] : [];
+  });
+  const atCall = good.flatMap((o) => (o.propertyAtCall !== null && Number.isFinite(o.propertyAtCall) ? [o.propertyAtCall] : []));
+  const goodAlarmed = good.filter((o) => o.alarms > 0).length;
   return {
     modelId: model.id,
     confidence: conf,
@@ -185,10 +221,13 @@ export function evaluateModel(model: MonitoringModel, batches: EvalBatch[], opts
     false_alarm_point_rate_t2: rT2,
     false_alarm_point_rate_q: rQ,
     false_alarm_point_rate_bound: alpha + 3 * Math.sqrt((alpha * (1 - alpha)) / Math.max(1, N)),
-    false_alarm_batch_rate: good.length ? good.filter((o) => o.alarms > 0).length / good.length : NaN,
+    false_alarm_batch_rate: good.length ? goodAlarmed / good.length : NaN,
+    false_alarm_batch_rate_ci95: good.length ? clopperPearson(goodAlarmed, good.length) : [NaN, NaN],
     detection_delay_median: delays,
     faults,
     endpoint_error_median: median(errs),
+    endpoint_error_median_min: median(errsMin),
+    endpoint_property_at_call: atCall.length ? { median: median(atCall)!, min: Math.min(...atCall), max: Math.max(...atCall) } : null,
     endpoint_early_max: errs.length ? Math.max(...errs.map((e) => -e)) : null,
     endpoint_late_max: errs.length ? Math.max(...errs) : null,
     endpoint_missed: good.filter((o) => o.endpointIndex !== null && o.detectedEndpointIndex === null).length,
@@ -208,11 +247,12 @@ export function evaluationMarkdown(f: EvaluationFigures): string {
     '| figure | value | target |',
     '| --- | --- | --- |',
     `| false_alarm_point_rate (max of T², Q) | ${n(f.false_alarm_point_rate, 4)} (T² ${n(f.false_alarm_point_rate_t2, 4)}, Q ${n(f.false_alarm_point_rate_q, 4)}) | ≤ ${n(f.false_alarm_point_rate_bound, 4)} |`,
-    `| false_alarm_batch_rate | ${n(f.false_alarm_batch_rate, 3)} | ≤ 0.05 |`,
-    `| endpoint_error_median (intervals) | ${n(f.endpoint_error_median, 1)} | ≤ 2 |`,
+    `| false_alarm_batch_rate | ${n(f.false_alarm_batch_rate, 3)} (95 % CI ${n(f.false_alarm_batch_rate_ci95[0], 3)}–${n(f.false_alarm_batch_rate_ci95[1], 3)}) | ≤ 0.05 |`,
+    `| endpoint_error_median (intervals) | ${n(f.endpoint_error_median, 1)} (${n(f.endpoint_error_median_min, 1)} min) | ≤ 2 |`,
     `| endpoint_early_max (intervals) | ${n(f.endpoint_early_max, 0)} | ≤ 1 |`,
     `| endpoint_late_max (intervals) | ${n(f.endpoint_late_max, 0)} | reported |`,
     `| endpoint_missed (batches) | ${f.endpoint_missed} | reported |`,
+    `| true property at the call (median, min–max) | ${f.endpoint_property_at_call ? `${n(f.endpoint_property_at_call.median, 3)} (${n(f.endpoint_property_at_call.min, 3)}–${n(f.endpoint_property_at_call.max, 3)})` : '—'} | reported |`,
     `| eta_error_median (min, last quarter) | ${n(f.eta_error_median, 2)} | reported |`,
     '',
     '| fault | batches | detected | detection_delay_median (spectra) | max |',

@@ -1,6 +1,7 @@
 import { beforeAll, describe, expect, it } from 'vitest';
 import { runEvaluation, STEP_FAULTS } from '../../scripts/evaluate.ts';
-import { evaluationMarkdown, type EvaluationFigures } from '../../core/evaluate/evaluate-model.ts';
+import { clopperPearson, evaluationMarkdown, type EvaluationFigures } from '../../core/evaluate/evaluate-model.ts';
+import { scipyNamed } from '../limits/scipy.ts';
 import { staleAlarmTime } from '../../core/evaluate/stale.ts';
 
 // Issue 4 targets, asserted on a fixed seed set (smaller than `npm run evaluate`'s default run so the
@@ -47,6 +48,40 @@ describe('evaluation on simulated dryer batches (issue 4 targets)', () => {
     expect(md).toContain('false_alarm_point_rate');
     expect(md).toContain('| spikes |');
     expect(md).toContain('Tideline advises');
+  });
+  it('reports the endpoint error in minutes and the true moisture at the call', () => {
+    // 10 s spectra on the simulated dryer: minutes = intervals / 6
+    expect(f.endpoint_error_median_min!).toBeCloseTo(f.endpoint_error_median! / 6, 9);
+    const at = f.endpoint_property_at_call!;
+    expect(at.min).toBeLessThanOrEqual(at.median);
+    expect(at.median).toBeLessThanOrEqual(at.max);
+    // a dryer called at most one interval early still has its moisture near the 2 % w/w target
+    expect(at.max).toBeLessThan(2.05);
+    expect(f.false_alarm_batch_rate_ci95[0]).toBeLessThanOrEqual(f.false_alarm_batch_rate);
+    expect(f.false_alarm_batch_rate_ci95[1]).toBeGreaterThanOrEqual(f.false_alarm_batch_rate);
+  });
+});
+
+describe('Clopper–Pearson interval of the false-alarm batch rate', () => {
+  const cases: [number, number][] = [[0, 30], [2, 30], [1, 10], [30, 30], [5, 8]];
+  it('matches scipy.stats.binomtest(k, n).proportion_ci(method="exact") (Clopper & Pearson 1934)', () => {
+    const ref = scipyNamed(
+      Object.fromEntries(cases.map(([k, n]) => [`${k}/${n}`, `ci = stats.binomtest(${k}, ${n}).proportion_ci(confidence_level=0.95, method='exact')\nprint(json.dumps([ci.low, ci.high]))`])),
+    );
+    for (const [k, n] of cases) {
+      const [lo, hi] = clopperPearson(k, n);
+      expect(lo).toBeCloseTo(ref[`${k}/${n}`]![0]!, 10);
+      expect(hi).toBeCloseTo(ref[`${k}/${n}`]![1]!, 10);
+    }
+    // 2 of 30: [0.00818, 0.22074] (computed with scipy 1.17)
+    const [lo, hi] = clopperPearson(2, 30);
+    expect(lo).toBeCloseTo(0.008178, 5);
+    expect(hi).toBeCloseTo(0.220735, 5);
+  });
+  it('names bad arguments', () => {
+    expect(() => clopperPearson(3, 2)).toThrow(/0 ≤ k ≤ n/);
+    expect(() => clopperPearson(1.5, 4)).toThrow(/integers/);
+    expect(() => clopperPearson(1, 4, 1)).toThrow(/confidence/);
   });
 });
 
