@@ -64,8 +64,11 @@ export async function startServer(config: ServerConfig, opts: StartOptions = {})
   const closers: (() => void | Promise<void>)[] = [];
   const pipeline = new IngestPipeline(storage, config, events, metrics, log, now);
   const live = new LiveHub(pipeline, storage, config, metrics, log, events);
+  // Every /api route is in this table (or in a table included in it): validated by its zod
+  // schemas, guarded by its role, listed in /api/openapi.json. Parts add theirs when installed.
+  const routes = new RouteTable();
   const ctx: ServerContext = {
-    config, storage, app, api, live, ingest: pipeline, metrics, log, events,
+    config, storage, app, api, routes, live, ingest: pipeline, metrics, log, events,
     onClose: (fn) => closers.push(fn),
     now,
   };
@@ -75,9 +78,6 @@ export async function startServer(config: ServerConfig, opts: StartOptions = {})
   }
   await pipeline.start();
 
-  // JSON bodies up to 1 MB; file imports (POST /api/import, server/transfer) parse their own larger bodies.
-  const json = express.json({ limit: '1mb' });
-  api.use((req, res, next) => (req.path === '/import' ? next() : json(req, res, next)));
   installAuth(ctx);
   // alarm actions the server takes itself (suppression by state) go to the same audit trail
   pipeline.audit = ctx.audit ?? null;
@@ -88,15 +88,20 @@ export async function startServer(config: ServerConfig, opts: StartOptions = {})
     if (typeof mod.install === 'function') await mod.install(ctx);
   }
 
-  const routes = new RouteTable();
   const startedAt = now();
   addPlantRoutes(routes, ctx, startedAt, VERSION);
   addBatchRoutes(routes, ctx);
   addModelRoutes(routes, ctx);
   addViewRoutes(routes, ctx);
+  routes.add({
+    method: 'get', path: '/openapi.json', summary: 'This OpenAPI 3.1 document: every /api route with its schemas and least role', role: 'public',
+    response: 'application/json',
+    handler: async () => routes.openapi({ version: VERSION }),
+  });
   const pass: express.RequestHandler = (_req, _res, next) => next();
-  routes.mount(api, (role: Role) => (ctx.auth ? ctx.auth.requireRole(role) : pass));
-  api.get('/openapi.json', (_req, res) => void res.json(routes.openapi({ version: VERSION })));
+  // JSON bodies up to 1 MB, read after the role check; a route may bring its own parser
+  // (POST /api/import: larger file imports). /api/auth/* has its own 16 KiB parser.
+  routes.mount(api, (role: Role) => (ctx.auth ? ctx.auth.requireRole(role) : pass), { bodyParser: express.json({ limit: '1mb' }) });
   api.use((req, _res, next) => next(new HttpProblem(404, 'Not found', `no API route ${req.method} ${req.baseUrl}${req.path}; see /api/openapi.json`, 'not-found')));
   api.use(problemHandler(log));
   app.use('/api', api);

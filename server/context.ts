@@ -4,6 +4,7 @@
  */
 import type { EventEmitter } from 'node:events';
 import type { Express } from 'express';
+import type { RouteTable } from './api/route-table.ts';
 import type { Auth } from './auth/types.ts';
 import type { AuditTrail } from './audit/types.ts';
 import type { ServerConfig } from './config.ts';
@@ -26,8 +27,13 @@ export interface ServerContext {
   config: ServerConfig;
   storage: Storage & { db: SqliteStorage['db'] };
   app: Express;
-  /** Express router mounted at /api: parts add their routes here. */
+  /** Express router mounted at /api. */
   api: import('express').Router;
+  /**
+   * The REST route table, mounted on `api` after every part is installed: parts add their routes
+   * here (or `include` a table they mount themselves) so each is validated and in /api/openapi.json.
+   */
+  routes: RouteTable;
   live: LiveHub;
   ingest: IngestPipeline;
   metrics: Metrics;

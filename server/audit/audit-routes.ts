@@ -12,10 +12,18 @@
 import express, { type Router } from 'express';
 import { z } from 'zod';
 import type { Auth } from '../auth/types.ts';
-import { handle, parseWith } from '../auth/auth-routes.ts';
+import { RouteTable } from '../api/route-table.ts';
+import { authValidate } from '../auth/auth-routes.ts';
 import { HttpError, problemErrorHandler } from '../auth/http-problem.ts';
 import { AuditInputError, MAX_LIST, type SqliteAuditTrail } from './audit-trail.ts';
-import type { AuditFilter } from './types.ts';
+import type { AuditFilter, AuditRecord } from './types.ts';
+
+/** Answer of GET /api/audit. */
+export interface AuditPage {
+  items: AuditRecord[];
+  total: number;
+  limit: number;
+}
 
 const filterQuery = z
   .object({
@@ -53,32 +61,34 @@ function guard<T>(fn: () => T): T {
   }
 }
 
-export function auditRouter(trail: SqliteAuditTrail, auth: Auth, now: () => number): Router {
-  const r = express.Router();
-  const viewer = auth.requireRole('viewer');
+/** The /api/audit routes as a table (paths relative to /api/audit). */
+export function auditRoutes(trail: SqliteAuditTrail, now: () => number): RouteTable {
+  const t = new RouteTable({ validate: authValidate });
 
-  r.get(
-    '/',
-    viewer,
-    handle((req, res) => {
-      const q = parseWith(filterQuery, req.query, 'audit query');
-      const f = toFilter(q);
+  t.add({
+    method: 'get', path: '/', summary: "The audit trail, filtered (the Ledger's data)", role: 'viewer', query: filterQuery, subject: 'audit query',
+    response: 'AuditPage', responseSource: 'server/audit/audit-routes.ts',
+    handler: async ({ query }): Promise<AuditPage> => {
+      const f = toFilter(query);
       const items = guard(() => trail.list(f));
       const total = guard(() => trail.count({ ...f, afterSeq: undefined }));
-      res.json({ items, total, limit: f.limit ?? 200 });
-    }),
-  );
+      return { items, total, limit: f.limit ?? 200 };
+    },
+  });
 
-  r.get('/verify', viewer, handle((_req, res) => void res.json(trail.verify())));
+  t.add({
+    method: 'get', path: '/verify', summary: 'Check the hash chain of the whole trail (200 either way; ok says)', role: 'viewer',
+    response: 'AuditVerifyResult', responseSource: 'server/audit/types.ts',
+    handler: async () => trail.verify(),
+  });
 
-  r.get(
-    '/export',
-    viewer,
-    handle((req, res) => {
-      const q = parseWith(filterQuery, req.query, 'audit export');
-      const f = { ...toFilter(q), limit: undefined, descending: false };
+  t.add({
+    method: 'get', path: '/export', summary: 'The filtered trail as a CSV or JSON file', role: 'viewer', query: filterQuery, subject: 'audit export',
+    response: 'application/json, text/csv',
+    handler: async ({ query, res }) => {
+      const f = { ...toFilter(query), limit: undefined, descending: false };
       const stamp = new Date(now()).toISOString().replace(/[:.]/g, '-');
-      if ((q.format ?? 'json') === 'csv') {
+      if ((query.format ?? 'json') === 'csv') {
         const text = guard(() => trail.exportCsv(f));
         res.setHeader('Content-Disposition', `attachment; filename="tideline-audit-${stamp}.csv"`);
         res.type('text/csv; charset=utf-8').send(text);
@@ -87,9 +97,16 @@ export function auditRouter(trail: SqliteAuditTrail, auth: Auth, now: () => numb
         res.setHeader('Content-Disposition', `attachment; filename="tideline-audit-${stamp}.json"`);
         res.type('application/json; charset=utf-8').send(text);
       }
-    }),
-  );
+      return undefined;
+    },
+  });
 
+  return t;
+}
+
+export function auditRouter(trail: SqliteAuditTrail, auth: Auth, now: () => number, table: RouteTable = auditRoutes(trail, now)): Router {
+  const r = express.Router();
+  table.mount(r, (role) => auth.requireRole(role));
   r.use(problemErrorHandler('16 KiB'));
   return r;
 }

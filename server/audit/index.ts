@@ -3,7 +3,7 @@
  * Idempotent: server/auth's install calls it too.
  */
 import { ensureSecurity, type SecurityHost } from '../auth/security-setup.ts';
-import { auditRouter } from './audit-routes.ts';
+import { auditRouter, auditRoutes } from './audit-routes.ts';
 
 const installed = new WeakSet<object>();
 
@@ -12,7 +12,9 @@ export function install(ctx: SecurityHost): void {
   if (installed.has(ctx)) return;
   installed.add(ctx);
   const now = ctx.now ? () => ctx.now!() : Date.now;
-  ctx.api.use('/audit', auditRouter(audit, auth, now));
+  const table = auditRoutes(audit, now);
+  ctx.api.use('/audit', auditRouter(audit, auth, now, table));
+  ctx.routes?.include('/audit', table);
 }
 
 export { SqliteAuditTrail } from './audit-trail.ts';

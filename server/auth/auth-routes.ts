@@ -15,13 +15,30 @@
  * | DELETE | /api/auth/tokens/:id          | administrator | → 204, 404 when unknown or already revoked |
  * | GET    | /api/auth/signatures?objectType=&objectId= | viewer | → {items: SignatureRecord[]} |
  */
-import express, { type Request, type Response, type Router } from 'express';
+import express, { type Request, type Router } from 'express';
 import { z } from 'zod';
+import { RouteTable, type RouteValidator } from '../api/route-table.ts';
 import type { AuthService } from './auth-service.ts';
-import { HttpError, problemErrorHandler, sendHttpError, validationError } from './http-problem.ts';
-import { ROLES } from './types.ts';
+import { HttpError, problemErrorHandler, validationError } from './http-problem.ts';
+import { ROLES, type AuthUser } from './types.ts';
 
 export const AUTH_BODY_LIMIT = '16kb';
+
+/** Answer of POST /api/auth/login and GET /api/auth/me. */
+export interface LoginResponse {
+  user: AuthUser;
+  csrfToken: string;
+  expiresAt: number;
+  mustChangePassword: boolean;
+}
+
+/** Answer of POST /api/auth/tokens: the token is shown this once. */
+export interface CreatedAnalyzerToken {
+  id: string;
+  analyzer: string;
+  token: string;
+  notice: string;
+}
 
 const loginBody = z.object({ name: z.string().min(1).max(64), password: z.string().min(1).max(256) }).strict();
 const passwordBody = z.object({ currentPassword: z.string().min(1).max(256), newPassword: z.string().min(1).max(256) }).strict();
@@ -58,16 +75,115 @@ export function clientAddress(req: Request): string {
   return req.ip ?? req.socket.remoteAddress ?? 'unknown';
 }
 
-/** Wrap an async handler so thrown HttpErrors become problem answers. */
-export function handle(fn: (req: Request, res: Response) => Promise<void> | void) {
-  return (req: Request, res: Response, next: (e?: unknown) => void) => {
-    Promise.resolve()
-      .then(() => fn(req, res))
-      .catch((e: unknown) => (e instanceof HttpError ? sendHttpError(res, e) : next(e)));
-  };
+/** Validation as the auth and audit routes always answered: kind 'validation', field paths without a prefix. */
+export const authValidate: RouteValidator = (schema, data, where, route) => parseWith(schema, data, route.subject ?? `request ${where}`);
+
+const nameParam = z.object({ name: z.string().min(1) });
+const idParam = z.object({ id: z.string().min(1) });
+const SOURCE = 'server/auth/types.ts';
+
+/** The /api/auth routes as a table (paths relative to /api/auth). */
+export function authRoutes(auth: AuthService): RouteTable {
+  const t = new RouteTable({ validate: authValidate });
+
+  t.add({
+    method: 'post', path: '/login', summary: 'Log in: sets the session and CSRF cookies', role: 'public',
+    body: loginBody, subject: 'login', response: 'LoginResponse', responseSource: 'server/auth/auth-routes.ts',
+    handler: async ({ body, req, res }): Promise<LoginResponse> => {
+      const out = await auth.login(body.name, body.password, clientAddress(req));
+      auth.setSessionCookies(res, out);
+      return { user: out.user, csrfToken: out.csrfToken, expiresAt: out.expiresAt, mustChangePassword: out.mustChangePassword };
+    },
+  });
+
+  t.add({
+    method: 'post', path: '/logout', summary: 'End the session', role: 'viewer', response: '', status: 204,
+    handler: async ({ req, res }) => {
+      const s = auth.session(req.headers.cookie);
+      if (s) auth.logout(s.token, s.user);
+      auth.clearSessionCookies(res);
+      return undefined;
+    },
+  });
+
+  t.add({
+    method: 'get', path: '/me', summary: "The session's user and CSRF token (401 without a valid session)", role: 'public',
+    response: 'LoginResponse', responseSource: 'server/auth/auth-routes.ts',
+    handler: async ({ req }): Promise<LoginResponse> => {
+      const s = auth.session(req.headers.cookie);
+      if (!s) throw new HttpError(401, 'login-required', 'Login required', 'no valid session: log in with POST /api/auth/login');
+      return { user: s.user, csrfToken: s.csrfToken, expiresAt: s.expiresAt, mustChangePassword: s.mustChangePassword };
+    },
+  });
+
+  t.add({
+    method: 'post', path: '/password', summary: 'Change your own password', role: 'viewer', body: passwordBody, subject: 'password change', response: '', status: 204,
+    handler: async ({ body, req }) => {
+      const s = auth.session(req.headers.cookie);
+      await auth.changeOwnPassword(req.user!, body.currentPassword, body.newPassword, s?.token, clientAddress(req));
+      return undefined;
+    },
+  });
+
+  t.add({
+    method: 'get', path: '/users', summary: 'All users', role: 'administrator', response: 'Items<UserView>', responseSource: 'server/auth/user-store.ts',
+    handler: async () => ({ items: auth.listUsers() }),
+  });
+
+  t.add({
+    method: 'post', path: '/users', summary: 'Create a user', role: 'administrator', body: createUserBody, subject: 'new user',
+    response: 'UserView', responseSource: 'server/auth/user-store.ts', status: 201,
+    handler: async ({ body, req }) => auth.createUser(body, req.user!.name),
+  });
+
+  t.add({
+    method: 'patch', path: '/users/:name', summary: "Change a user's role, name, password or disabled flag (audited with the reason)", role: 'administrator',
+    params: nameParam, body: updateUserBody, subject: 'user change', response: 'UserView', responseSource: 'server/auth/user-store.ts',
+    handler: async ({ params, body, req }) => {
+      const { reason, ...change } = body;
+      return auth.updateUser(params.name, change, req.user!, reason);
+    },
+  });
+
+  t.add({
+    method: 'get', path: '/tokens', summary: 'Analyzer tokens (never the token itself)', role: 'administrator', response: 'Items<AnalyzerTokenInfo>', responseSource: SOURCE,
+    handler: async () => ({ items: auth.listAnalyzerTokens() }),
+  });
+
+  t.add({
+    method: 'post', path: '/tokens', summary: 'Create an analyzer token (shown once)', role: 'administrator', body: tokenBody, subject: 'analyzer token',
+    response: 'CreatedAnalyzerToken', responseSource: 'server/auth/auth-routes.ts', status: 201,
+    handler: async ({ body, req }): Promise<CreatedAnalyzerToken> => {
+      let t: { id: string; token: string };
+      try {
+        t = auth.createAnalyzerToken(body.analyzer, body.label ?? '', req.user!.name);
+      } catch (e) {
+        throw new HttpError(400, 'validation', 'Invalid request', (e as Error).message);
+      }
+      return { id: t.id, analyzer: body.analyzer, token: t.token, notice: 'The token is shown once; the server keeps only its hash.' };
+    },
+  });
+
+  t.add({
+    method: 'delete', path: '/tokens/:id', summary: 'Revoke an analyzer token (404 when unknown or already revoked)', role: 'administrator',
+    params: idParam, response: '', status: 204,
+    handler: async ({ params, req }) => {
+      if (!auth.revokeAnalyzerToken(params.id, req.user!.name))
+        throw new HttpError(404, 'no-such-token', 'No such token', `no active analyzer token with id ${params.id}`);
+      return undefined;
+    },
+  });
+
+  t.add({
+    method: 'get', path: '/signatures', summary: 'Electronic signatures on one object', role: 'viewer', query: signaturesQuery, subject: 'signature query',
+    response: 'Items<SignatureRecord>', responseSource: SOURCE,
+    handler: async ({ query }) => ({ items: auth.signaturesFor(query.objectType, query.objectId) }),
+  });
+
+  return t;
 }
 
-export function authRouter(auth: AuthService): Router {
+export function authRouter(auth: AuthService, table: RouteTable = authRoutes(auth)): Router {
   const r = express.Router();
   r.use(express.json({ limit: AUTH_BODY_LIMIT }));
   // Answers carry session and CSRF tokens: never cache them.
@@ -75,107 +191,7 @@ export function authRouter(auth: AuthService): Router {
     res.setHeader('Cache-Control', 'no-store');
     next();
   });
-  const admin = auth.requireRole('administrator');
-  const viewer = auth.requireRole('viewer');
-
-  r.post(
-    '/login',
-    handle(async (req, res) => {
-      const b = parseWith(loginBody, req.body, 'login');
-      const out = await auth.login(b.name, b.password, clientAddress(req));
-      auth.setSessionCookies(res, out);
-      res.json({ user: out.user, csrfToken: out.csrfToken, expiresAt: out.expiresAt, mustChangePassword: out.mustChangePassword });
-    }),
-  );
-
-  r.post(
-    '/logout',
-    viewer,
-    handle((req, res) => {
-      const s = auth.session(req.headers.cookie);
-      if (s) auth.logout(s.token, s.user);
-      auth.clearSessionCookies(res);
-      res.status(204).end();
-    }),
-  );
-
-  r.get(
-    '/me',
-    handle((req, res) => {
-      const s = auth.session(req.headers.cookie);
-      if (!s) throw new HttpError(401, 'login-required', 'Login required', 'no valid session: log in with POST /api/auth/login');
-      res.json({ user: s.user, csrfToken: s.csrfToken, expiresAt: s.expiresAt, mustChangePassword: s.mustChangePassword });
-    }),
-  );
-
-  r.post(
-    '/password',
-    viewer,
-    handle(async (req, res) => {
-      const b = parseWith(passwordBody, req.body, 'password change');
-      const s = auth.session(req.headers.cookie);
-      await auth.changeOwnPassword(req.user!, b.currentPassword, b.newPassword, s?.token, clientAddress(req));
-      res.status(204).end();
-    }),
-  );
-
-  r.get('/users', admin, handle((_req, res) => void res.json({ items: auth.listUsers() })));
-
-  r.post(
-    '/users',
-    admin,
-    handle(async (req, res) => {
-      const b = parseWith(createUserBody, req.body, 'new user');
-      res.status(201).json(await auth.createUser(b, req.user!.name));
-    }),
-  );
-
-  r.patch(
-    '/users/:name',
-    admin,
-    handle(async (req, res) => {
-      const b = parseWith(updateUserBody, req.body, 'user change');
-      const { reason, ...change } = b;
-      res.json(await auth.updateUser(String(req.params.name), change, req.user!, reason));
-    }),
-  );
-
-  r.get('/tokens', admin, handle((_req, res) => void res.json({ items: auth.listAnalyzerTokens() })));
-
-  r.post(
-    '/tokens',
-    admin,
-    handle((req, res) => {
-      const b = parseWith(tokenBody, req.body, 'analyzer token');
-      let t: { id: string; token: string };
-      try {
-        t = auth.createAnalyzerToken(b.analyzer, b.label ?? '', req.user!.name);
-      } catch (e) {
-        throw new HttpError(400, 'validation', 'Invalid request', (e as Error).message);
-      }
-      res.status(201).json({ id: t.id, analyzer: b.analyzer, token: t.token, notice: 'The token is shown once; the server keeps only its hash.' });
-    }),
-  );
-
-  r.delete(
-    '/tokens/:id',
-    admin,
-    handle((req, res) => {
-      if (!auth.revokeAnalyzerToken(String(req.params.id), req.user!.name))
-        throw new HttpError(404, 'no-such-token', 'No such token', `no active analyzer token with id ${String(req.params.id)}`);
-      res.status(204).end();
-    }),
-  );
-
-  r.get(
-    '/signatures',
-    viewer,
-    handle((req, res) => {
-      const q = parseWith(signaturesQuery, req.query, 'signature query');
-      res.json({ items: auth.signaturesFor(q.objectType, q.objectId) });
-    }),
-  );
-
+  table.mount(r, (role) => auth.requireRole(role));
   r.use(problemErrorHandler('16 KiB'));
   return r;
 }

@@ -4,7 +4,7 @@
  * is harmless). See docs/security.md.
  */
 import { install as installAudit } from '../audit/index.ts';
-import { authRouter } from './auth-routes.ts';
+import { authRouter, authRoutes } from './auth-routes.ts';
 import { readSecurityConfig } from './security-config.ts';
 import { securityHeaders } from './security-headers.ts';
 import { ensureSecurity, type SecurityHost } from './security-setup.ts';
@@ -16,7 +16,9 @@ export function install(ctx: SecurityHost): void {
   if (!installed.has(ctx)) {
     installed.add(ctx);
     ctx.app?.use(securityHeaders(readSecurityConfig(ctx.config).tls !== null));
-    ctx.api.use('/auth', authRouter(auth));
+    const table = authRoutes(auth);
+    ctx.api.use('/auth', authRouter(auth, table));
+    ctx.routes?.include('/auth', table);
   }
   installAudit(ctx);
 }

@@ -4,6 +4,7 @@
  */
 import type Database from 'better-sqlite3';
 import type { RequestHandler, Router } from 'express';
+import type { RouteTable } from '../api/route-table.ts';
 import { SqliteAuditTrail } from '../audit/audit-trail.ts';
 import type { AuditTrail } from '../audit/types.ts';
 import { AuthService } from './auth-service.ts';
@@ -15,6 +16,8 @@ export interface SecurityHost {
   storage: { db: Database.Database };
   /** Router mounted at /api. */
   api: Router;
+  /** The server's route table (server/api/route-table.ts): the auth and audit tables are included for the OpenAPI document. */
+  routes?: RouteTable;
   /** The whole app, for response headers on every answer (optional). */
   app?: { use(fn: RequestHandler): unknown };
   config?: unknown;

@@ -15,7 +15,7 @@ import { SignalDispatcher, type SignalChannel } from './dispatcher.ts';
 import type { MqttChannel } from './mqtt-channel.ts';
 import type { OpcuaChannel } from './opcua/opcua-channel.ts';
 import { OutboxStore, type SignalEnvelope } from './outbox-store.ts';
-import { signalRoutes } from './routes.ts';
+import { addSignalRoutes } from './routes.ts';
 import { WebhookChannel } from './webhook-channel.ts';
 
 export { SIGNALS_CAUTION } from './routes.ts';
@@ -107,7 +107,7 @@ export async function install(ctx: ServerContext): Promise<SignalsHandle> {
     opcua?.onResult(e.unit, e.result, { batch: e.batch });
   });
 
-  ctx.api.use('/signals', signalRoutes(ctx, store, dispatchers, opcua));
+  addSignalRoutes(ctx.routes, ctx, store, dispatchers, opcua);
 
   ctx.onClose(async () => {
     for (const d of dispatchers) await d.stop();

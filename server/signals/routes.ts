@@ -8,10 +8,16 @@
  * | POST   | /api/signals/dead-letters/:channel/:event/requeue | administrator | try the event again (sent after its successors) |
  * | POST   | /api/signals/endpoint/:unit/acknowledge         | operator      | reset the OPC UA "endpoint reached" latch (when the DCS cannot) |
  *
+ * The routes are in the server's route table (server/api/route-table.ts): validated by the zod
+ * schemas below and listed in /api/openapi.json.
+ *
  * Tideline advises; the site's validated control strategy, interlocks and procedures decide what a
  * signal may do.
  */
-import express, { type RequestHandler } from 'express';
+import { z } from 'zod';
+import { conflict, notFound } from '../api/problem.ts';
+import type { RouteTable } from '../api/route-table.ts';
+import { idSchema } from '../api/routes-plant.ts';
 import type { ServerContext } from '../context.ts';
 import type { SignalDispatcher } from './dispatcher.ts';
 import type { OpcuaChannel } from './opcua/opcua-channel.ts';
@@ -20,79 +26,125 @@ import type { OutboxStore } from './outbox-store.ts';
 export const SIGNALS_CAUTION =
   "Tideline advises. Endpoint signals and alarms must be used within the site's validated control strategy; interlocks and operating procedures decide what a signal may do.";
 
-function problem(res: express.Response, status: number, title: string, detail: string) {
-  res.status(status).type('application/problem+json').json({ type: `/problems/${title.toLowerCase().replace(/\s+/g, '-')}`, title, status, detail });
+/** Answer of GET /api/signals. */
+export interface SignalsStatus {
+  caution: string;
+  channels: {
+    name: string;
+    ready: boolean;
+    maxAttempts: number | null;
+    delivered: number;
+    failed: number;
+    dead: number;
+    units: {
+      unit: string;
+      deliveredSeq: number;
+      pending: number;
+      retrying: { eventId: string; seq: number; attempts: number; nextAt: number; lastError: string | null } | null;
+    }[];
+  }[];
+  opcua: { endpointUrl: string; pkiDir: string } | null;
 }
 
-export function signalRoutes(ctx: ServerContext, store: OutboxStore, dispatchers: SignalDispatcher[], opcua: OpcuaChannel | null): express.Router {
-  const r = express.Router();
-  const pass: RequestHandler = (_req, _res, next) => next();
-  const role = (name: 'viewer' | 'operator' | 'administrator') => (ctx.auth ? ctx.auth.requireRole(name) : pass);
+/** Answer of GET /api/signals/dead-letters. */
+export interface DeadLetterPage {
+  items: {
+    channel: string;
+    eventId: string;
+    unit: string;
+    seq: number;
+    type: string;
+    attempts: number;
+    lastError: string | null;
+    deadAt: number;
+    requeuedAt: number | null;
+    deliveredAt: number | null;
+  }[];
+  limit: number;
+  offset: number;
+}
 
-  r.get('/', role('viewer'), (_req, res) => {
-    const units = store.units();
-    res.json({
-      caution: SIGNALS_CAUTION,
-      channels: dispatchers.map((d) => ({
-        name: d.channel.name,
-        ready: d.channel.isReady ? d.channel.isReady() : true,
-        maxAttempts: Number.isFinite(d.channel.maxAttempts) ? d.channel.maxAttempts : null,
-        delivered: d.stats.delivered,
-        failed: d.stats.failed,
-        dead: d.stats.dead,
-        units: units.map((unit) => {
-          const pending = store.pending(d.channel.name, unit, 1000);
-          const head = pending[0] ? store.attempt(d.channel.name, pending[0].id) : undefined;
-          return {
-            unit,
-            deliveredSeq: store.cursor(d.channel.name, unit),
-            pending: pending.length,
-            retrying: head ? { eventId: head.event_id, seq: head.unit_seq, attempts: head.attempts, nextAt: head.next_at, lastError: head.last_error } : null,
-          };
-        }),
-      })),
-      opcua: opcua ? { endpointUrl: opcua.endpointUrl, pkiDir: opcua.pkiDir } : null,
-    });
+const deadLetterQuery = z.object({
+  channel: z.string().min(1).max(200).optional(),
+  unit: idSchema.optional(),
+  limit: z.coerce.number().int('limit must be an integer 1…1000').min(1, 'limit must be an integer 1…1000').max(1000, 'limit must be an integer 1…1000').default(100),
+  offset: z.coerce.number().int('offset must be an integer ≥ 0').min(0, 'offset must be an integer ≥ 0').default(0),
+});
+const requeueParams = z.object({ channel: z.string().min(1).max(200), event: z.string().min(1).max(200) });
+const requeueBody = z.object({ reason: z.string().max(2000).optional() });
+const SOURCE = 'server/signals/routes.ts';
+
+export function addSignalRoutes(t: RouteTable, ctx: ServerContext, store: OutboxStore, dispatchers: SignalDispatcher[], opcua: OpcuaChannel | null): void {
+  t.add({
+    method: 'get', path: '/signals', summary: 'Signal channels, their cursors and pending events per unit', role: 'viewer', response: 'SignalsStatus', responseSource: SOURCE,
+    handler: async (): Promise<SignalsStatus> => {
+      const units = store.units();
+      return {
+        caution: SIGNALS_CAUTION,
+        channels: dispatchers.map((d) => ({
+          name: d.channel.name,
+          ready: d.channel.isReady ? d.channel.isReady() : true,
+          maxAttempts: Number.isFinite(d.channel.maxAttempts) ? d.channel.maxAttempts : null,
+          delivered: d.stats.delivered,
+          failed: d.stats.failed,
+          dead: d.stats.dead,
+          units: units.map((unit) => {
+            const pending = store.pending(d.channel.name, unit, 1000);
+            const head = pending[0] ? store.attempt(d.channel.name, pending[0].id) : undefined;
+            return {
+              unit,
+              deliveredSeq: store.cursor(d.channel.name, unit),
+              pending: pending.length,
+              retrying: head ? { eventId: head.event_id, seq: head.unit_seq, attempts: head.attempts, nextAt: head.next_at, lastError: head.last_error } : null,
+            };
+          }),
+        })),
+        opcua: opcua ? { endpointUrl: opcua.endpointUrl, pkiDir: opcua.pkiDir } : null,
+      };
+    },
   });
 
-  r.get('/dead-letters', role('viewer'), (req, res) => {
-    const q = req.query as Record<string, string | undefined>;
-    const limit = q.limit === undefined ? 100 : Number(q.limit);
-    const offset = q.offset === undefined ? 0 : Number(q.offset);
-    if (!Number.isInteger(limit) || limit < 1 || limit > 1000) return problem(res, 400, 'Bad request', 'limit must be an integer 1…1000');
-    if (!Number.isInteger(offset) || offset < 0) return problem(res, 400, 'Bad request', 'offset must be an integer ≥ 0');
-    const items = store.deadLetters({ channel: q.channel, unit: q.unit, limit, offset }).map((d) => ({
-      channel: d.channel,
-      eventId: d.event_id,
-      unit: d.unit,
-      seq: d.unit_seq,
-      type: d.type,
-      attempts: d.attempts,
-      lastError: d.last_error,
-      deadAt: d.dead_at,
-      requeuedAt: d.requeued_at,
-      deliveredAt: d.delivered_at,
-    }));
-    res.json({ items, limit, offset });
+  t.add({
+    method: 'get', path: '/signals/dead-letters', summary: 'Events a channel gave up on after its maximum attempts', role: 'viewer',
+    query: deadLetterQuery, response: 'DeadLetterPage', responseSource: SOURCE,
+    handler: async ({ query }): Promise<DeadLetterPage> => {
+      const items = store.deadLetters({ channel: query.channel, unit: query.unit, limit: query.limit, offset: query.offset }).map((d) => ({
+        channel: d.channel,
+        eventId: d.event_id,
+        unit: d.unit,
+        seq: d.unit_seq,
+        type: d.type,
+        attempts: d.attempts,
+        lastError: d.last_error,
+        deadAt: d.dead_at,
+        requeuedAt: d.requeued_at,
+        deliveredAt: d.delivered_at,
+      }));
+      return { items, limit: query.limit, offset: query.offset };
+    },
   });
 
-  r.post('/dead-letters/:channel/:event/requeue', role('administrator'), (req, res) => {
-    const { channel, event } = req.params as { channel: string; event: string };
-    const before = store.deadLetter(channel, event);
-    if (!before) return problem(res, 404, 'Not found', `no dead letter ${event} on channel ${channel}`);
-    store.requeue(channel, event, ctx.now());
-    ctx.audit?.record({ user: req.user ?? 'system', action: 'signal.requeue', object: `signal:${channel}/${event}`, before, reason: typeof req.body?.reason === 'string' ? req.body.reason : null });
-    for (const d of dispatchers) d.wake();
-    res.json({ channel, eventId: event, requeuedAt: store.deadLetter(channel, event)?.requeued_at ?? null });
+  t.add({
+    method: 'post', path: '/signals/dead-letters/:channel/:event/requeue', summary: 'Try a dead-lettered event again (sent after its successors; audited)', role: 'administrator',
+    params: requeueParams, body: requeueBody, bodyOptional: true, response: 'RequeueResult', responseSource: SOURCE,
+    handler: async ({ params: { channel, event }, body, req }) => {
+      const before = store.deadLetter(channel, event);
+      if (!before) throw notFound(`no dead letter ${event} on channel ${channel}`);
+      store.requeue(channel, event, ctx.now());
+      ctx.audit?.record({ user: req.user ?? 'system', action: 'signal.requeue', object: `signal:${channel}/${event}`, before, reason: body?.reason ?? null });
+      for (const d of dispatchers) d.wake();
+      return { channel, eventId: event, requeuedAt: store.deadLetter(channel, event)?.requeued_at ?? null };
+    },
   });
 
-  r.post('/endpoint/:unit/acknowledge', role('operator'), (req, res) => {
-    if (!opcua) return problem(res, 409, 'Conflict', 'the OPC UA channel is not configured: there is no endpoint latch');
-    const unit = (req.params as { unit: string }).unit;
-    const by = req.user?.name ?? 'api';
-    if (!opcua.acknowledgeEndpoint(unit, by)) return problem(res, 409, 'Conflict', `unit ${unit} has no latched endpoint to acknowledge`);
-    res.json({ unit, latch: opcua.latch(unit) });
+  t.add({
+    method: 'post', path: '/signals/endpoint/:unit/acknowledge', summary: 'Reset the OPC UA "endpoint reached" latch (when the DCS cannot)', role: 'operator',
+    params: z.object({ unit: idSchema }), response: 'EndpointAcknowledgeResult', responseSource: SOURCE,
+    handler: async ({ params: { unit }, req }) => {
+      if (!opcua) throw conflict('the OPC UA channel is not configured: there is no endpoint latch');
+      const by = req.user?.name ?? 'api';
+      if (!opcua.acknowledgeEndpoint(unit, by)) throw conflict(`unit ${unit} has no latched endpoint to acknowledge`);
+      return { unit, latch: opcua.latch(unit) };
+    },
   });
-
-  return r;
 }

@@ -11,14 +11,15 @@
  * | GET    | /api/models/versions/:version/model.json     | viewer      | the model file exactly as stored (hash inside) |
  *
  * Batch CSV export is in the batch routes (/api/batches/:batch/export.csv); the audit trail's
- * export in /api/audit.
+ * export in /api/audit. The routes are in the server's route table (ctx.routes): validated by the
+ * zod schemas here and listed in /api/openapi.json; POST /api/import reads its body with its own
+ * larger limit, after the role check.
  */
-import express, { type Request, type RequestHandler } from 'express';
+import express, { type Request } from 'express';
 import { z } from 'zod';
 import { writeBatchJcamp } from '../../core/io/batch-jcamp.ts';
 import { ImportError } from '../../core/io/imported-batch.ts';
-import { HttpProblem, notFound, validate } from '../api/problem.ts';
-import type { Role } from '../auth/types.ts';
+import { HttpProblem, notFound } from '../api/problem.ts';
 import type { ServerContext } from '../context.ts';
 import { renderBatchReport } from './batch-report.ts';
 import { importBatches } from './import-batches.ts';
@@ -50,85 +51,114 @@ export const importBodySchema = z.object({
 });
 export type ImportBody = z.infer<typeof importBodySchema>;
 
+/** Answer of GET /api/batches/:batch/comparison. */
+export interface BatchComparisonView {
+  batch: string;
+  versionId: string;
+  comparison: Awaited<ReturnType<typeof compareStoredBatch>>['comparison'];
+}
+
 const userName = (req: Request) => req.user?.name ?? 'anonymous';
+const batchParams = z.object({ batch: idSchema });
+const versionParams = z.object({ version: z.string().min(1).max(128) });
 
 export function install(ctx: ServerContext): void {
-  const r = express.Router();
-  const pass: RequestHandler = (_req, _res, next) => next();
-  const role = (x: Role): RequestHandler => (ctx.auth ? ctx.auth.requireRole(x) : pass);
-  const batchParam = (req: Request) => validate(z.object({ batch: idSchema }), req.params, 'path').batch;
+  const t = ctx.routes;
 
-  r.post('/import', role('model-owner'), express.json({ limit: IMPORT_BODY_LIMIT }), async (req, res) => {
-    const body = validate(importBodySchema, req.body, 'body');
-    let targetAxis: Float64Array | undefined;
-    if (body.resampleToModel) {
-      const m = (await ctx.ingest.loadModel(body.resampleToModel)) as { chain: { inputAxis: Float64Array } } | null;
-      if (!m) throw notFound(`model version "${body.resampleToModel}" does not exist`);
-      targetAxis = m.chain.inputAxis;
-    }
-    try {
-      const summary = await importBatches(ctx.storage, { ...body, targetAxis, user: userName(req) }, ctx.now());
-      ctx.audit?.record({
-        user: userName(req),
-        action: 'batch.import',
-        object: `unit:${body.unit}`,
-        after: { files: body.files.map((f) => f.name), batches: summary.batches.map((b) => b.id), resampledToModel: body.resampleToModel ?? null },
-      });
-      res.status(201).json(summary);
-    } catch (e) {
-      if (e instanceof ImportError) {
-        throw new HttpProblem(422, 'Import refused', `${e.message}. Nothing was imported.`, 'import-refused', [{ path: e.line > 0 ? `${e.file}:${e.line}` : e.file, message: e.reason }]);
+  t.add({
+    method: 'post', path: '/import', summary: 'Import CSV / JCAMP-DX batch files in one transaction (nothing is imported when one file is refused)', role: 'model-owner',
+    body: importBodySchema, bodyParser: express.json({ limit: IMPORT_BODY_LIMIT }), status: 201,
+    response: 'ImportSummary', responseSource: 'server/transfer/import-batches.ts',
+    handler: async ({ body, req }) => {
+      let targetAxis: Float64Array | undefined;
+      if (body.resampleToModel) {
+        const m = (await ctx.ingest.loadModel(body.resampleToModel)) as { chain: { inputAxis: Float64Array } } | null;
+        if (!m) throw notFound(`model version "${body.resampleToModel}" does not exist`);
+        targetAxis = m.chain.inputAxis;
       }
-      throw e;
-    }
+      try {
+        const summary = await importBatches(ctx.storage, { ...body, targetAxis, user: userName(req) }, ctx.now());
+        ctx.audit?.record({
+          user: userName(req),
+          action: 'batch.import',
+          object: `unit:${body.unit}`,
+          after: { files: body.files.map((f) => f.name), batches: summary.batches.map((b) => b.id), resampledToModel: body.resampleToModel ?? null },
+        });
+        return summary;
+      } catch (e) {
+        if (e instanceof ImportError) {
+          throw new HttpProblem(422, 'Import refused', `${e.message}. Nothing was imported.`, 'import-refused', [{ path: e.line > 0 ? `${e.file}:${e.line}` : e.file, message: e.reason }]);
+        }
+        throw e;
+      }
+    },
   });
 
-  r.get('/batches/:batch/comparison', role('viewer'), async (req, res) => {
-    const q = validate(z.object({ version: z.string().min(1).max(128).optional() }), req.query, 'query');
-    const b = await loadBatch(ctx, batchParam(req));
-    const { versionId, comparison } = await compareStoredBatch(ctx, b, q.version);
-    res.json({ batch: b.id, versionId, comparison });
+  t.add({
+    method: 'get', path: '/batches/:batch/comparison', summary: 'DTW comparison of a batch with the golden batches of a model version', role: 'viewer',
+    params: batchParams, query: z.object({ version: z.string().min(1).max(128).optional() }),
+    response: 'BatchComparisonView', responseSource: 'server/transfer/index.ts',
+    handler: async ({ params, query }): Promise<BatchComparisonView> => {
+      const b = await loadBatch(ctx, params.batch);
+      const { versionId, comparison } = await compareStoredBatch(ctx, b, query.version);
+      return { batch: b.id, versionId, comparison };
+    },
   });
 
-  r.get('/batches/:batch/export.jdx', role('viewer'), async (req, res) => {
-    const b = await loadBatch(ctx, batchParam(req));
-    const times: number[] = [];
-    const spectra: Float32Array[] = [];
-    for await (const s of ctx.storage.iterateSpectra(b.id)) {
-      times.push(s.t);
-      spectra.push(s.values);
-    }
-    if (spectra.length === 0) throw new HttpProblem(409, 'No spectra', `batch ${b.id} has no spectra to export`, 'no-spectra');
-    res
-      .type('chemical/x-jcamp-dx')
-      .attachment(`${b.id}.jdx`)
-      .send(writeBatchJcamp({ id: b.id, axis: b.axis, times, spectra, product: b.product, unit: b.unit }));
+  t.add({
+    method: 'get', path: '/batches/:batch/export.jdx', summary: "The batch's raw spectra as a JCAMP-DX compound file", role: 'viewer',
+    params: batchParams, response: 'chemical/x-jcamp-dx',
+    handler: async ({ params, res }) => {
+      const b = await loadBatch(ctx, params.batch);
+      const times: number[] = [];
+      const spectra: Float32Array[] = [];
+      for await (const s of ctx.storage.iterateSpectra(b.id)) {
+        times.push(s.t);
+        spectra.push(s.values);
+      }
+      if (spectra.length === 0) throw new HttpProblem(409, 'No spectra', `batch ${b.id} has no spectra to export`, 'no-spectra');
+      res
+        .type('chemical/x-jcamp-dx')
+        .attachment(`${b.id}.jdx`)
+        .send(writeBatchJcamp({ id: b.id, axis: b.axis, times, spectra, product: b.product, unit: b.unit }));
+      return undefined;
+    },
   });
 
-  r.get('/batches/:batch/report.html', role('viewer'), async (req, res) => {
-    const html = renderBatchReport(await reportData(ctx, batchParam(req), userName(req)));
-    res.type('html').send(html);
+  t.add({
+    method: 'get', path: '/batches/:batch/report.html', summary: 'Printable batch report', role: 'viewer', params: batchParams, response: 'text/html',
+    handler: async ({ params, req, res }) => {
+      const html = renderBatchReport(await reportData(ctx, params.batch, userName(req)));
+      res.type('html').send(html);
+      return undefined;
+    },
   });
 
-  r.get('/batches/:batch/report.pdf', role('viewer'), async (req, res) => {
-    const id = batchParam(req);
-    const html = renderBatchReport(await reportData(ctx, id, userName(req)));
-    try {
-      const pdf = await htmlToPdf(html, { title: `Batch report ${id}` });
-      ctx.audit?.record({ user: userName(req), action: 'batch.report', object: `batch:${id}`, after: { format: 'pdf', bytes: pdf.length } });
-      res.type('application/pdf').attachment(`${id}-report.pdf`).send(pdf);
-    } catch (e) {
-      if (e instanceof PdfUnavailableError) throw new HttpProblem(503, 'PDF unavailable', e.message, 'pdf-unavailable');
-      throw e;
-    }
+  t.add({
+    method: 'get', path: '/batches/:batch/report.pdf', summary: 'The batch report as PDF (headless Chromium; 503 when unavailable)', role: 'viewer', params: batchParams, response: 'application/pdf',
+    handler: async ({ params, req, res }) => {
+      const id = params.batch;
+      const html = renderBatchReport(await reportData(ctx, id, userName(req)));
+      try {
+        const pdf = await htmlToPdf(html, { title: `Batch report ${id}` });
+        ctx.audit?.record({ user: userName(req), action: 'batch.report', object: `batch:${id}`, after: { format: 'pdf', bytes: pdf.length } });
+        res.type('application/pdf').attachment(`${id}-report.pdf`).send(pdf);
+      } catch (e) {
+        if (e instanceof PdfUnavailableError) throw new HttpProblem(503, 'PDF unavailable', e.message, 'pdf-unavailable');
+        throw e;
+      }
+      return undefined;
+    },
   });
 
-  r.get('/models/versions/:version/model.json', role('viewer'), async (req, res) => {
-    const v = validate(z.object({ version: z.string().min(1).max(128) }), req.params, 'path').version;
-    const m = await ctx.storage.getModelVersion(v);
-    if (!m) throw notFound(`model version "${v}" does not exist`);
-    res.type('application/json').attachment(`${m.name}-v${m.version}.json`).send(m.body);
+  t.add({
+    method: 'get', path: '/models/versions/:version/model.json', summary: 'The model file exactly as stored (canonical JSON, SHA-256 inside)', role: 'viewer',
+    params: versionParams, response: 'application/json',
+    handler: async ({ params, res }) => {
+      const m = await ctx.storage.getModelVersion(params.version);
+      if (!m) throw notFound(`model version "${params.version}" does not exist`);
+      res.type('application/json').attachment(`${m.name}-v${m.version}.json`).send(m.body);
+      return undefined;
+    },
   });
-
-  ctx.api.use(r);
 }
