@@ -102,7 +102,10 @@ export function emptyUnitState(unit: string, now: number): UnitSignalState {
 function quality(s: UnitSignalState): { quality: ValueQuality; reason: string | null } {
   if (s.resultT === null) return { quality: 'bad', reason: 'no data yet' };
   if (s.analyzer === 'failure') return { quality: 'bad', reason: 'analyzer failure (NE 107 F)' };
-  if (s.stale) return { quality: 'bad', reason: 'data stale' };
+  if (s.stale) {
+    const alarm = s.alarms.find((a) => a.kind === 'stale' && a.active);
+    return { quality: 'bad', reason: `data stale${alarm?.message ? `: ${alarm.message}` : ''}` };
+  }
   if (s.analyzer === 'function-check') return { quality: 'uncertain', reason: 'analyzer in function check (NE 107 C)' };
   if (s.analyzer === 'out-of-specification') return { quality: 'uncertain', reason: 'analyzer out of specification (NE 107 S)' };
   if (s.t2 !== null && s.t2Limit && s.t2 > OUTSIDE_MODEL_FACTOR * s.t2Limit) return { quality: 'uncertain', reason: `T² above ${OUTSIDE_MODEL_FACTOR}× its limit: spectrum outside the model` };

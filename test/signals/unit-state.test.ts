@@ -6,7 +6,7 @@
 import { StatusCodes } from 'node-opcua';
 import { describe, expect, it } from 'vitest';
 import type { MonitorResult } from '../../core/monitor/types.ts';
-import { liveValueStatus, ne107Code, severityOf } from '../../server/signals/opcua/status-codes.ts';
+import { analyzerStatusSignal, liveValueStatus, ne107Code, severityOf } from '../../server/signals/opcua/status-codes.ts';
 import type { SignalEnvelope } from '../../server/signals/outbox-store.ts';
 import { applyEvent, applyResult, emptyUnitState } from '../../server/signals/unit-state.ts';
 
@@ -82,6 +82,20 @@ describe('unit state', () => {
     let s = applyResult(emptyUnitState('dryer-1', T0), result(), { batch: 'B1' }, T0);
     const stale = applyEvent(s, ev('alarm', { alarm: { key: 'stale', kind: 'stale', state: 'active-unacknowledged', active: true, priority: 2, message: 'no data' } }), T0);
     expect(liveValueStatus(stale).equals(StatusCodes.UncertainLastUsableValue)).toBe(true);
+    // AnalyzerStatus while Tideline receives nothing: failure with BadNoCommunication (IEC 62541-4
+    // §7.34: communication with the data source not established), the reason in Quality; on the next
+    // result it is the analyzer's own report again, Good
+    expect(analyzerStatusSignal(s)).toEqual({ status: 'good', code: StatusCodes.Good });
+    expect(analyzerStatusSignal(stale).status).toBe('failure');
+    expect(analyzerStatusSignal(stale).code.equals(StatusCodes.BadNoCommunication)).toBe(true);
+    expect(stale.qualityReason).toBe('data stale: no data');
+    const back = applyResult(stale, result({ seq: 6, t: T0 + 60_000 }), { batch: 'B1' }, T0);
+    expect([back.stale, analyzerStatusSignal(back).status, analyzerStatusSignal(back).code.equals(StatusCodes.Good), liveValueStatus(back).equals(StatusCodes.Good)]).toEqual([false, 'good', true, true]);
+    // an analyzer in function check announced its silence: it stays function check, Good
+    const fcStale = applyEvent(applyEvent(s, ev('analyzer-status', { status: 'function-check' }), T0), ev('alarm', { alarm: { key: 'stale', kind: 'stale', state: 'normal', active: true, priority: 2, message: 'no data', suppressedBy: ['function-check'] } }), T0);
+    expect(fcStale.stale).toBe(true);
+    expect(analyzerStatusSignal(fcStale)).toEqual({ status: 'function-check', code: StatusCodes.Good });
+    expect(liveValueStatus(fcStale).equals(StatusCodes.BadOutOfService)).toBe(true);
     const fc = applyEvent(s, ev('analyzer-status', { status: 'function-check' }), T0);
     expect(liveValueStatus(fc).equals(StatusCodes.BadOutOfService)).toBe(true);
     const fail = applyEvent(s, ev('alarm', { alarm: { key: 'model-axis', kind: 'analyzer', state: 'active-unacknowledged', active: true, priority: 2, message: 'axis' } }), T0);

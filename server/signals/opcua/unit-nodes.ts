@@ -14,7 +14,7 @@ import {
 } from 'node-opcua';
 import type { UnitSignalState } from '../unit-state.ts';
 import { UnitAlarmMirror } from './alarm-mirror.ts';
-import { liveValueStatus, ne107Code } from './status-codes.ts';
+import { analyzerStatusSignal, liveValueStatus, ne107Code } from './status-codes.ts';
 
 export interface UnitNodeOptions {
   propertyRange: { low: number; high: number };
@@ -127,8 +127,8 @@ export class UnitNodes {
       qLimit: v('QLimit', DataType.Double, 0, 'Control limit of Q at the model confidence'),
       modelVersion: v('ModelVersion', DataType.String, '', 'Monitoring model version judging the batch'),
       heartbeat: v('Heartbeat', DataType.UInt32, 0, 'Counts up about once a second while Tideline runs'),
-      analyzerStatus: v('AnalyzerStatus', DataType.Byte, 0, 'NAMUR NE 107: 0 good, 1 failure, 2 function check, 3 out of specification, 4 maintenance required'),
-      analyzerStatusText: v('AnalyzerStatusText', DataType.String, 'good', 'NAMUR NE 107 category in words'),
+      analyzerStatus: v('AnalyzerStatus', DataType.Byte, 0, 'NAMUR NE 107: 0 good, 1 failure, 2 function check, 3 out of specification, 4 maintenance required; 1 with BadNoCommunication while Tideline receives no spectrum (data stale, see Quality)'),
+      analyzerStatusText: v('AnalyzerStatusText', DataType.String, 'good', 'NAMUR NE 107 category in words (status code as AnalyzerStatus)'),
       quality: v('Quality', DataType.String, 'no data yet', 'Why the live values are Uncertain or Bad (empty when Good)'),
       dataStale: v('DataStale', DataType.Boolean, false, 'True while no spectrum arrives (input of the DataStale alarm)'),
       analyzerFault: v('AnalyzerFaultActive', DataType.Boolean, false, 'True while the analyzer reports a fault (input of the AnalyzerFault alarm)'),
@@ -174,8 +174,9 @@ export class UnitNodes {
     this.alarms.setLimit('t2', s.t2Limit);
     this.alarms.setLimit('q', s.qLimit);
     this.set(V.modelVersion, DataType.String, s.modelVersion ?? '');
-    this.set(V.analyzerStatus, DataType.Byte, ne107Code(s.analyzer));
-    this.set(V.analyzerStatusText, DataType.String, s.analyzer);
+    const analyzer = analyzerStatusSignal(s);
+    this.set(V.analyzerStatus, DataType.Byte, ne107Code(analyzer.status), analyzer.code);
+    this.set(V.analyzerStatusText, DataType.String, analyzer.status, analyzer.code);
     this.set(V.quality, DataType.String, s.qualityReason ?? '');
     this.set(V.dataStale, DataType.Boolean, s.stale);
     this.set(V.analyzerFault, DataType.Boolean, s.analyzer === 'failure');
