@@ -99,14 +99,20 @@ export function emptyUnitState(unit: string, now: number): UnitSignalState {
   };
 }
 
+/**
+ * The quality summary of the live values, in the order and categories of their OPC UA status codes
+ * (opcua/status-codes.ts liveValueStatus), so MQTT and OPC UA clients read the same judgement:
+ * bad — no data, analyzer failure (NE 107 F), function check (NE 107 C: output temporarily invalid);
+ * uncertain — stale (the values are the last usable ones), out of specification, outside the model.
+ */
 function quality(s: UnitSignalState): { quality: ValueQuality; reason: string | null } {
   if (s.resultT === null) return { quality: 'bad', reason: 'no data yet' };
   if (s.analyzer === 'failure') return { quality: 'bad', reason: 'analyzer failure (NE 107 F)' };
+  if (s.analyzer === 'function-check') return { quality: 'bad', reason: 'analyzer in function check (NE 107 C)' };
   if (s.stale) {
     const alarm = s.alarms.find((a) => a.kind === 'stale' && a.active);
-    return { quality: 'bad', reason: `data stale${alarm?.message ? `: ${alarm.message}` : ''}` };
+    return { quality: 'uncertain', reason: `data stale${alarm?.message ? `: ${alarm.message}` : ''}` };
   }
-  if (s.analyzer === 'function-check') return { quality: 'uncertain', reason: 'analyzer in function check (NE 107 C)' };
   if (s.analyzer === 'out-of-specification') return { quality: 'uncertain', reason: 'analyzer out of specification (NE 107 S)' };
   if (s.t2 !== null && s.t2Limit && s.t2 > OUTSIDE_MODEL_FACTOR * s.t2Limit) return { quality: 'uncertain', reason: `T² above ${OUTSIDE_MODEL_FACTOR}× its limit: spectrum outside the model` };
   if (s.q !== null && s.qLimit && s.q > OUTSIDE_MODEL_FACTOR * s.qLimit) return { quality: 'uncertain', reason: `Q above ${OUTSIDE_MODEL_FACTOR}× its limit: spectrum outside the model` };

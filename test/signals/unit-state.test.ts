@@ -89,6 +89,10 @@ describe('unit state', () => {
     expect(analyzerStatusSignal(stale).status).toBe('failure');
     expect(analyzerStatusSignal(stale).code.equals(StatusCodes.BadNoCommunication)).toBe(true);
     expect(stale.qualityReason).toBe('data stale: no data');
+    // the MQTT quality summary follows the same precedence and categories as the status codes
+    expect(stale.quality).toBe('uncertain');
+    const fcOnly = applyEvent(s, ev('analyzer-status', { status: 'function-check' }), T0);
+    expect([fcOnly.quality, liveValueStatus(fcOnly).equals(StatusCodes.BadOutOfService)]).toEqual(['bad', true]);
     const back = applyResult(stale, result({ seq: 6, t: T0 + 60_000 }), { batch: 'B1' }, T0);
     expect([back.stale, analyzerStatusSignal(back).status, analyzerStatusSignal(back).code.equals(StatusCodes.Good), liveValueStatus(back).equals(StatusCodes.Good)]).toEqual([false, 'good', true, true]);
     // an analyzer in function check announced its silence: it stays function check, Good
