@@ -64,6 +64,19 @@ export interface DeadLetterPage {
   offset: number;
 }
 
+/** Answer of POST /api/signals/dead-letters/:channel/:event/requeue. */
+export interface RequeueResult {
+  channel: string;
+  eventId: string;
+  requeuedAt: number | null;
+}
+
+/** Answer of POST /api/signals/endpoint/:unit/acknowledge. */
+export interface EndpointAcknowledgeResult {
+  unit: string;
+  latch: ReturnType<OpcuaChannel['latch']>;
+}
+
 const deadLetterQuery = z.object({
   channel: z.string().min(1).max(200).optional(),
   unit: idSchema.optional(),
@@ -127,7 +140,7 @@ export function addSignalRoutes(t: RouteTable, ctx: ServerContext, store: Outbox
   t.add({
     method: 'post', path: '/signals/dead-letters/:channel/:event/requeue', summary: 'Try a dead-lettered event again (sent after its successors; audited)', role: 'administrator',
     params: requeueParams, body: requeueBody, bodyOptional: true, response: 'RequeueResult', responseSource: SOURCE,
-    handler: async ({ params: { channel, event }, body, req }) => {
+    handler: async ({ params: { channel, event }, body, req }): Promise<RequeueResult> => {
       const before = store.deadLetter(channel, event);
       if (!before) throw notFound(`no dead letter ${event} on channel ${channel}`);
       store.requeue(channel, event, ctx.now());
@@ -140,7 +153,7 @@ export function addSignalRoutes(t: RouteTable, ctx: ServerContext, store: Outbox
   t.add({
     method: 'post', path: '/signals/endpoint/:unit/acknowledge', summary: 'Reset the OPC UA "endpoint reached" latch (when the DCS cannot)', role: 'operator',
     params: z.object({ unit: idSchema }), response: 'EndpointAcknowledgeResult', responseSource: SOURCE,
-    handler: async ({ params: { unit }, req }) => {
+    handler: async ({ params: { unit }, req }): Promise<EndpointAcknowledgeResult> => {
       if (!opcua) throw conflict('the OPC UA channel is not configured: there is no endpoint latch');
       const by = req.user?.name ?? 'api';
       if (!opcua.acknowledgeEndpoint(unit, by)) throw conflict(`unit ${unit} has no latched endpoint to acknowledge`);

@@ -3,17 +3,22 @@
  * - every method + path in the express router stack under /api is in the document, and every
  *   operation in the document is served (walked from app.router, express 5 / router 2: a mounted
  *   router's layer keeps its mount path as rawPath, a route layer has route.path and route.methods);
- * - every {name} in a path has its path parameter (OpenAPI 3.1, Path Templating);
+ * - every {name} in a path has its path parameter (OpenAPI 3.1, Path Templating), and every
+ *   response type named exists in the file named;
  * - x-required-role is what the guard enforces: no session → 401 on every operation that names a
  *   role; the role just below → 403; the role itself gets past the guard;
  * - a bad request to one route of each part that used to be mounted outside the table (auth,
  *   audit, signals, transfer) is a 400 RFC 9457 problem naming the field, and the document holds
  *   the zod schema that refused it; POST /api/import keeps its own body limit.
  */
+import { readFileSync } from 'node:fs';
+import { dirname, join } from 'node:path';
+import { fileURLToPath } from 'node:url';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { ROLES, type Role } from '../../server/auth/types.ts';
 import { login, startTestServer, type Session, type TestServer } from './helpers.ts';
 
+const root = join(dirname(fileURLToPath(import.meta.url)), '..', '..');
 let ts: TestServer;
 let doc: any;
 const sessions = new Map<Role, Session>();
@@ -89,6 +94,25 @@ describe('OpenAPI document and the served routes', () => {
       const declared = (op.parameters as { name: string; in: string }[]).filter((p) => p.in === 'path').map((p) => p.name).sort();
       expect(declared, `${method} ${path}`).toEqual(inPath);
     }
+  });
+
+  it('names response types that exist in the files it points to', () => {
+    const missing: string[] = [];
+    for (const [name, schema] of Object.entries(doc.components.schemas as Record<string, { description?: string }>)) {
+      if (name === 'Problem') continue;
+      const m = /^TypeScript type (.+) in (\S+)$/.exec(schema.description ?? '');
+      if (!m) {
+        missing.push(`${name}: no type named`);
+        continue;
+      }
+      const text = readFileSync(join(root, m[2]!), 'utf8');
+      // Page<UnitSummary>: both names; Items<X> stands for {items: X[]}
+      for (const id of m[1]!.match(/[A-Za-z_][A-Za-z0-9_]*/g)!) {
+        if (id === 'Items') continue;
+        if (!new RegExp(`export (interface|type) ${id}\\b`).test(text)) missing.push(`${id} in ${m[2]}`);
+      }
+    }
+    expect(missing).toEqual([]);
   });
 
   it('x-required-role is what the guard enforces', async () => {
