@@ -47,13 +47,15 @@ export function problemHandler(log: Logger): ErrorRequestHandler {
       sendProblem(res, req, p);
       return;
     }
-    const e = err as { type?: string; status?: number; message?: string };
+    const e = err as { type?: string; status?: number; message?: string; limit?: number };
     if (e?.type === 'entity.parse.failed') {
       sendProblem(res, req, { type: '/problems/invalid-json', title: 'Invalid JSON', status: 400, detail: `the request body is not valid JSON: ${e.message}` });
       return;
     }
     if (e?.type === 'entity.too.large') {
-      sendProblem(res, req, { type: '/problems/too-large', title: 'Request too large', status: 413, detail: 'the request body is larger than the server accepts (1 MiB)' });
+      // the limit of the parser that refused it (body-parser sets it in bytes): 1 MiB, or a route's own
+      const limit = typeof e.limit === 'number' ? `${+(e.limit / 1048576).toFixed(2)} MiB` : '1 MiB';
+      sendProblem(res, req, { type: '/problems/too-large', title: 'Request too large', status: 413, detail: `the request body is larger than the server accepts (${limit})` });
       return;
     }
     if (typeof e?.status === 'number' && e.status >= 400 && e.status < 500) {

@@ -185,13 +185,13 @@ export function authRoutes(auth: AuthService): RouteTable {
 
 export function authRouter(auth: AuthService, table: RouteTable = authRoutes(auth)): Router {
   const r = express.Router();
-  r.use(express.json({ limit: AUTH_BODY_LIMIT }));
   // Answers carry session and CSRF tokens: never cache them.
   r.use((_req, res, next) => {
     res.setHeader('Cache-Control', 'no-store');
     next();
   });
-  table.mount(r, (role) => auth.requireRole(role));
+  // bodies (up to 16 KiB) are read after the role check, only by routes that take one
+  table.mount(r, (role) => auth.requireRole(role), { bodyParser: express.json({ limit: AUTH_BODY_LIMIT }) });
   r.use(problemErrorHandler('16 KiB'));
   return r;
 }

@@ -125,8 +125,8 @@ describe('OpenAPI document and the served routes', () => {
       const role = op['x-required-role'] as Role | 'none';
       if (role === 'none') continue;
       expect(ROLES, `${method} ${path}`).toContain(role);
-      // no session: refused by the guard before anything is read
-      const anon = await call(null, method, concrete(path));
+      // no session: refused by the guard before the body is read (malformed JSON is not looked at)
+      const anon = await call(null, method, concrete(path), undefined, method === 'GET' ? undefined : '{"broken": ');
       if (anon.status !== 401 || anon.body?.type !== '/problems/login-required') leaky.push(`${method} ${path} anonymous → ${anon.status}`);
       const rank = ROLES.indexOf(role);
       if (rank > 0) {
@@ -196,5 +196,11 @@ describe('bad requests to the moved routes are 400 problems naming the field', (
     // the same 2 MB to a route with the shared parser is too large
     const units = await call(sessions.get('administrator')!, 'POST', '/api/units', undefined, JSON.stringify({ id: 'u-big', description: 'x'.repeat(2 * 1024 * 1024) }));
     expect(units).toMatchObject({ status: 413, body: { type: '/problems/too-large' } });
+    expect(units.body.detail).toMatch(/\(1 MiB\)/);
+    // over the import's own 64 MB (IMPORT_BODY_LIMIT '64mb', bytes parsed by body-parser): 413 naming that limit
+    const huge = JSON.stringify({ unit: 'dryer-1', product: 'granule A', files: [{ name: 'a.csv', content: 'x'.repeat(64 * 1024 * 1024 + 1) }] });
+    const h = await call(owner, 'POST', '/api/import', undefined, huge);
+    expect(h).toMatchObject({ status: 413, body: { type: '/problems/too-large' } });
+    expect(h.body.detail).toMatch(/\(64 MiB\)/);
   });
 });
