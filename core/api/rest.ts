@@ -320,6 +320,8 @@ export interface ModelVersionDetail extends ModelVersionSummary {
   explained: number[];
   cumulative: number[];
   limits: { t2: number; q: number; combined: number | null; confidence: number; t2Method: string; qMethod: string };
+  /** The limits that raise alarms when the model has them above `limits` (settings.alarms.confidence), else null. */
+  alarmLimits: { t2: number; q: number; combined: number; confidence: number; envelopeK: number; envelopeKMethod: string } | null;
   /** Model variable axis after preprocessing, nm. */
   modelAxis: number[];
   evaluations: EvaluationResult[];

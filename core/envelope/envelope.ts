@@ -34,6 +34,8 @@ export interface EnvelopeOptions {
   /** Global limits, used where too few reference spectra fall near a progress point. */
   globalT2Limit: number;
   globalQLimit: number;
+  /** Also per-point T²/Q limits at this confidence (alarm limits), with the global ones at it. */
+  alarm?: { confidence: number; globalT2Limit: number; globalQLimit: number };
 }
 
 export interface PcEnvelope {
@@ -55,6 +57,9 @@ export interface Envelope {
   pcs: PcEnvelope[];
   t2Limit: number[];
   qLimit: number[];
+  /** Per-point limits at the alarm confidence (model.alarmLimits), when it differs. */
+  t2AlarmLimit?: number[];
+  qAlarmLimit?: number[];
   /** timeAtProgress[b][k]: minutes since start at which reference batch b reached grid point k (null = never). */
   timeAtProgress: (number | null)[][];
   /** Minutes from start to each reference batch's endpoint. */
@@ -155,6 +160,9 @@ export function buildEnvelope(refs: ReferenceTrajectory[], axis: ProgressAxis, o
   const half = Math.max(1, opts.smoothing) * step;
   const t2Limit = new Array<number>(P);
   const qLimit = new Array<number>(P);
+  const al = opts.alarm;
+  const t2AlarmLimit = al ? new Array<number>(P) : undefined;
+  const qAlarmLimit = al ? new Array<number>(P) : undefined;
   const poolT2: number[] = [];
   const poolQ: number[] = [];
   for (let k = 0; k < P; k++) {
@@ -171,6 +179,10 @@ export function buildEnvelope(refs: ReferenceTrajectory[], axis: ProgressAxis, o
     }
     t2Limit[k] = poolT2.length >= 10 ? momentLimit(poolT2, opts.confidence) : opts.globalT2Limit;
     qLimit[k] = poolQ.length >= 10 ? momentLimit(poolQ, opts.confidence) : opts.globalQLimit;
+    if (al) {
+      t2AlarmLimit![k] = poolT2.length >= 10 ? momentLimit(poolT2, al.confidence) : al.globalT2Limit;
+      qAlarmLimit![k] = poolQ.length >= 10 ? momentLimit(poolQ, al.confidence) : al.globalQLimit;
+    }
   }
 
   const timeAtProgress = refs.map((r) => grid.map((g) => {
@@ -208,6 +220,7 @@ export function buildEnvelope(refs: ReferenceTrajectory[], axis: ProgressAxis, o
     pcs,
     t2Limit,
     qLimit,
+    ...(al ? { t2AlarmLimit, qAlarmLimit } : {}),
     timeAtProgress,
     endMin,
     endProgress,

@@ -19,7 +19,7 @@ export const buildSettingsSchema = z.object({
   progress: z.discriminatedUnion('kind', [z.object({ kind: z.literal('time') }), z.object({ kind: z.literal('indicator'), source: z.enum(['pc1', 'property']) })]),
   envelope: z.object({ k: z.number().positive().max(10), smoothing: z.number().int().min(0).max(50), points: z.number().int().min(2).max(2000), band: z.enum(['sd', 'prediction']).optional() }),
   endpoint: endpointRuleSpecSchema,
-  alarms: z.object({ onDelay: z.number().int().min(1).max(31), onWindow: z.number().int().min(1).max(31), offDelay: z.number().int().min(1).max(1000), deadband: z.number().min(0).lt(1), limits: z.enum(['global', 'local']).optional(), startupMin: z.number().min(0).max(600).optional() }),
+  alarms: z.object({ onDelay: z.number().int().min(1).max(31), onWindow: z.number().int().min(1).max(31), offDelay: z.number().int().min(1).max(1000), deadband: z.number().min(0).lt(1), limits: z.enum(['global', 'local']).optional(), startupMin: z.number().min(0).max(600).optional(), confidence: z.number().gt(0.5).lt(1).optional() }),
   property: z
     .object({
       name: z.string().min(1),
@@ -53,9 +53,16 @@ export interface BuildSettings {
   endpoint: EndpointRuleSpec;
   /**
    * limits: which T²/Q limits raise alarms — the per-progress-point ones ('local', default) or the
-   * global ones; startupMin: minutes after batch start with no alarm conditions (default 0).
+   * global ones; startupMin: minutes after batch start with no alarm conditions (default 0);
+   * confidence: the confidence of the limits that raise alarms (action limits), when it differs
+   * from `confidence` (the limits drawn on the charts, warning limits). Two levels are the usual
+   * practice of multivariate SPC (warning and action limits at 95 % and 99 % in Nomikos &
+   * MacGregor 1995, Technometrics 37:41 — from memory). A 99 % limit is crossed by about one good
+   * spectrum in a hundred; a batch of several hundred spectra judged on T², Q and every PC's
+   * envelope meets that often enough that a good batch raises a confirmed alarm one time in ten
+   * (measured: `npm run evaluate`), so alarms need the higher level.
    */
-  alarms: { onDelay: number; onWindow: number; offDelay: number; deadband: number; limits?: 'global' | 'local'; startupMin?: number };
+  alarms: { onDelay: number; onWindow: number; offDelay: number; deadband: number; limits?: 'global' | 'local'; startupMin?: number; confidence?: number };
   /** chain: the property model's own preprocessing (default: the model's chain); range: calibrate on reference spectra with the property in [lo, hi] only. */
   property?: { name: string; unit: string; components: number | 'auto'; target?: number; direction?: 'below' | 'above'; chain?: ChainSpec; range?: [number, number] };
   excludeSpectra?: { batch: string; index: number }[];
@@ -93,6 +100,7 @@ export function resolveBuildSettings(input: unknown): BuildSettings {
     throw new RangeError(`build settings: ${issue.path.join('.') || '(root)'}: ${issue.message}`);
   }
   const s = r.data as BuildSettings;
+  if (s.alarms.confidence !== undefined && s.alarms.confidence < s.confidence) throw new RangeError(`build settings: alarms.confidence (${s.alarms.confidence}) must not be below confidence (${s.confidence}): alarm limits are at least as wide as the limits drawn`);
   if (s.alarms.onDelay > s.alarms.onWindow) throw new RangeError(`build settings: alarms.onDelay (${s.alarms.onDelay}) must not exceed alarms.onWindow (${s.alarms.onWindow})`);
   if (s.progress.kind === 'indicator' && s.progress.source === 'property' && !s.property) throw new RangeError('build settings: progress.source "property" needs a property model (settings.property)');
   for (const c of s.endpoint.criteria) {

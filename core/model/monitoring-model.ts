@@ -48,6 +48,21 @@ export interface ModelLimits {
   combined: Limit;
 }
 
+/**
+ * The limits that raise alarms when settings.alarms.confidence is above the model's confidence
+ * (action limits; the `limits` are then the warning limits drawn on the charts). Per-point alarm
+ * limits are in envelope.t2AlarmLimit / qAlarmLimit; envelopeK is the band half-width, in sd, at
+ * which a PC's envelope condition is raised.
+ */
+export interface AlarmLimits {
+  confidence: number;
+  t2: Limit;
+  q: Limit;
+  combined: Limit;
+  envelopeK: number;
+  envelopeKMethod: string;
+}
+
 export interface ModelMeta {
   batches: { id: string; spectra: number; excluded: number; durationMin: number; endMin: number }[];
   nSpectra: number;
@@ -69,6 +84,8 @@ export interface MonitoringModel {
   chain: FittedChain;
   pca: PcaModel;
   limits: ModelLimits;
+  /** Present when alarms use a higher confidence than the limits drawn (settings.alarms.confidence). */
+  alarmLimits?: AlarmLimits;
   envelope: Envelope;
   endpoint: ResolvedEndpointRule;
   pls?: PropertyModel;
@@ -145,6 +162,13 @@ export function buildMonitoringModel(batches: ReferenceBatch[], settingsInput: u
   const qL = qLimit('q-jackson-mudholkar', { theta: pca.residualTheta }, conf);
   const cL = combinedLimit(A, pca.residualTheta, t2L.value, qL.value, conf);
   const limits: ModelLimits = { t2: t2L, q: qL, combined: cL };
+  const alarmConf = settings.alarms.confidence;
+  let alarmLimits: AlarmLimits | undefined;
+  if (alarmConf !== undefined && alarmConf !== conf) {
+    const t2A = t2Limit('t2-f-new', A, n, alarmConf);
+    const qA = qLimit('q-jackson-mudholkar', { theta: pca.residualTheta }, alarmConf);
+    alarmLimits = { confidence: alarmConf, t2: t2A, q: qA, combined: combinedLimit(A, pca.residualTheta, t2A.value, qA.value, alarmConf), envelopeK: NaN, envelopeKMethod: '' };
+  }
 
   // Property model (PLS1) from the raw spectra through its own chain.
   let pls: PropertyModel | undefined;
@@ -191,10 +215,16 @@ export function buildMonitoringModel(batches: ReferenceBatch[], settingsInput: u
     axis = { kind: 'indicator', source: settings.progress.source, sign: dir > 0 ? 1 : -1, alpha: 0.3 };
     trajectories.forEach((tr, bi) => { tr.progress = progressOf(axis, elapsed[bi], indicators[bi]); });
   }
-  const bandK =
-    settings.envelope.band === 'prediction'
-      ? tQuantile(1 - (1 - conf) / (2 * A), batches.length - 1) * Math.sqrt(1 + 1 / batches.length)
-      : settings.envelope.k;
+  const predictionK = (c: number) => tQuantile(1 - (1 - c) / (2 * A), batches.length - 1) * Math.sqrt(1 + 1 / batches.length);
+  const bandK = settings.envelope.band === 'prediction' ? predictionK(conf) : settings.envelope.k;
+  if (alarmLimits) {
+    const I = batches.length;
+    alarmLimits.envelopeK = settings.envelope.band === 'prediction' ? predictionK(alarmLimits.confidence) : settings.envelope.k;
+    alarmLimits.envelopeKMethod =
+      settings.envelope.band === 'prediction'
+        ? `t(1 − α/(2A); I − 1)·√(1 + 1/I) at α = ${+(1 - alarmLimits.confidence).toPrecision(3)}, A = ${A}, I = ${I}`
+        : 'k as set (band "sd")';
+  }
   const envelope = buildEnvelope(trajectories, axis, {
     k: bandK,
     smoothing: settings.envelope.smoothing,
@@ -202,6 +232,7 @@ export function buildMonitoringModel(batches: ReferenceBatch[], settingsInput: u
     confidence: conf,
     globalT2Limit: t2L.value,
     globalQLimit: qL.value,
+    ...(alarmLimits ? { alarm: { confidence: alarmLimits.confidence, globalT2Limit: alarmLimits.t2.value, globalQLimit: alarmLimits.q.value } } : {}),
   });
 
   // Endpoint rule with 'auto' thresholds resolved from the reference batches at their endpoints.
@@ -265,7 +296,7 @@ export function buildMonitoringModel(batches: ReferenceBatch[], settingsInput: u
     pcaCv,
     sampleOrigin: origin,
   };
-  const body = { settings, chain: chain.toJSON(), pca: pcaToJSON(pca), limits, envelope, endpoint, pls: pls?.toJSON(), meta };
+  const body = { settings, chain: chain.toJSON(), pca: pcaToJSON(pca), limits, ...(alarmLimits ? { alarmLimits } : {}), envelope, endpoint, pls: pls?.toJSON(), meta };
   // Hash exactly as the file will carry it: write, then read back.
   return parseMonitoringModel(writeModelFile(MONITORING_MODEL_FORMAT, MONITORING_MODEL_VERSION, body));
 }
@@ -307,6 +338,8 @@ const envelopeSchema = z.object({
   pcs: z.array(z.object({ mean: z.array(num), sd: z.array(num), lower: z.array(num), upper: z.array(num) })),
   t2Limit: z.array(num),
   qLimit: z.array(num),
+  t2AlarmLimit: z.array(num).optional(),
+  qAlarmLimit: z.array(num).optional(),
   timeAtProgress: z.array(z.array(num.nullable())),
   endMin: z.array(num),
   endProgress: z.array(num),
@@ -323,6 +356,7 @@ const bodySchema = z.object({
   chain: z.unknown(),
   pca: z.unknown(),
   limits: z.object({ t2: limitSchema, q: limitSchema, combined: limitSchema }),
+  alarmLimits: z.object({ confidence: z.number().gt(0).lt(1), t2: limitSchema, q: limitSchema, combined: limitSchema, envelopeK: num.positive(), envelopeKMethod: z.string() }).optional(),
   envelope: envelopeSchema,
   endpoint: z.object({ criteria: z.array(criterionSchema).min(1), combine: z.enum(['all', 'any']), confirm: z.number().int().min(1), nearingMin: num }),
   pls: z.unknown().optional(),
@@ -339,7 +373,7 @@ const bodySchema = z.object({
 type Body = z.infer<typeof bodySchema>;
 
 export function serializeMonitoringModel(m: MonitoringModel): string {
-  const body = { settings: m.settings, chain: m.chain.toJSON(), pca: pcaToJSON(m.pca), limits: m.limits, envelope: m.envelope, endpoint: m.endpoint, pls: m.pls?.toJSON(), meta: m.meta };
+  const body = { settings: m.settings, chain: m.chain.toJSON(), pca: pcaToJSON(m.pca), limits: m.limits, ...(m.alarmLimits ? { alarmLimits: m.alarmLimits } : {}), envelope: m.envelope, endpoint: m.endpoint, pls: m.pls?.toJSON(), meta: m.meta };
   return writeModelFile(MONITORING_MODEL_FORMAT, MONITORING_MODEL_VERSION, body);
 }
 
@@ -354,6 +388,7 @@ export function parseMonitoringModel(text: string): MonitoringModel {
   if (env.pcs.length !== A) throw new RangeError(`monitoring model: envelope has ${env.pcs.length} PCs, the PCA ${A}`);
   for (const [a, pc] of env.pcs.entries()) for (const key of ['mean', 'sd', 'lower', 'upper'] as const) if (pc[key].length !== P) throw new RangeError(`monitoring model: envelope.pcs.${a}.${key} has ${pc[key].length} points, the grid ${P}`);
   if (env.t2Limit.length !== P || env.qLimit.length !== P || env.count.length !== P) throw new RangeError('monitoring model: per-point limits do not match the envelope grid');
+  if (body.alarmLimits && (env.t2AlarmLimit?.length !== P || env.qAlarmLimit?.length !== P)) throw new RangeError('monitoring model: alarmLimits needs per-point alarm limits (envelope.t2AlarmLimit, qAlarmLimit) on the envelope grid');
   if (chain.outputAxis.length !== pca.nVariables) throw new RangeError(`monitoring model: the chain gives ${chain.outputAxis.length} variables, the PCA expects ${pca.nVariables}`);
   const pls = body.pls !== undefined && body.pls !== null ? loadPropertyModel(body.pls) : undefined;
   return {
@@ -364,6 +399,7 @@ export function parseMonitoringModel(text: string): MonitoringModel {
     chain,
     pca,
     limits: body.limits,
+    ...(body.alarmLimits ? { alarmLimits: body.alarmLimits } : {}),
     envelope: env,
     endpoint: body.endpoint as ResolvedEndpointRule,
     pls,

@@ -66,7 +66,17 @@ export function createBatchMonitor(model: MonitoringModel, batchStartT: number):
   const qLim = limits.q.value;
   const cLim = limits.combined.value;
   const conf = limits.t2.confidence;
-  const confPct = `${+(conf * 100).toFixed(2)} %`;
+  // Alarm (action) limits when the model has them (settings.alarms.confidence above the model's
+  // confidence); otherwise the alarms use the limits drawn.
+  const al = model.alarmLimits;
+  const aT2 = al ? al.t2.value : t2Lim;
+  const aQ = al ? al.q.value : qLim;
+  const aC = al ? al.combined.value : cLim;
+  const aK = al ? al.envelopeK : env.k;
+  const aT2Local = al && env.t2AlarmLimit ? env.t2AlarmLimit : env.t2Limit;
+  const aQLocal = al && env.qAlarmLimit ? env.qAlarmLimit : env.qLimit;
+  const aConf = al ? al.confidence : conf;
+  const confPct = `${+(aConf * 100).toFixed(2)} %`;
   const conds: Cond[] = [
     { kind: 't2', key: 't2', label: 'T²', priority: 2, filter: new ConditionFilter(alarmSpec) },
     { kind: 'q', key: 'q', label: 'Q', priority: 2, filter: new ConditionFilter(alarmSpec) },
@@ -118,6 +128,8 @@ export function createBatchMonitor(model: MonitoringModel, batchStartT: number):
     const k = gridIndex(env, prog);
     const localT2 = env.t2Limit[k];
     const localQ = env.qLimit[k];
+    const alarmT2 = useLocal ? aT2Local[k] : aT2;
+    const alarmQ = useLocal ? aQLocal[k] : aQ;
 
     const envelope: EnvelopeCheck[] = new Array(A);
     for (let a = 0; a < A; a++) {
@@ -138,16 +150,16 @@ export function createBatchMonitor(model: MonitoringModel, batchStartT: number):
       const cd = conds[c];
       let value: number;
       let limit: number;
-      if (c === 0) { value = t2; limit = useLocal ? localT2 : t2Lim; }
-      else if (c === 1) { value = q; limit = useLocal ? localQ : qLim; }
-      else if (c < firstEnv) { value = combined; limit = cLim; }
-      else if (env.count[k] < minBatches) { value = 0; limit = env.k; } // too few golden batches here to judge
-      else { value = Math.abs(envelope[condPc[c]].sd); limit = env.k; }
+      if (c === 0) { value = t2; limit = alarmT2; }
+      else if (c === 1) { value = q; limit = alarmQ; }
+      else if (c < firstEnv) { value = al ? combinedIndex(t2, q, aT2, aQ) : combined; limit = aC; }
+      else if (env.count[k] < minBatches) { value = 0; limit = aK; } // too few golden batches here to judge
+      else { value = Math.abs(envelope[condPc[c]].sd); limit = aK; }
       const u = cd.filter.update(value, limit);
       if (u.suspect) suspect = true;
       if (u.active) active.push(cd.key);
       if (u.changed) {
-        const what = c >= firstEnv ? `${cd.label} score ${fmt(envelope[condPc[c]].score)} is ${fmt(envelope[condPc[c]].sd)} sd from the golden path (band ±${fmt(env.k)} sd)` : `${cd.label} ${fmt(value)} ${u.active ? 'above' : 'back below'} its ${confPct} limit ${fmt(limit)}`;
+        const what = c >= firstEnv ? `${cd.label} score ${fmt(envelope[condPc[c]].score)} is ${fmt(envelope[condPc[c]].sd)} sd from the golden path (alarm at ±${fmt(aK)} sd, ${confPct})` : `${cd.label} ${fmt(value)} ${u.active ? 'above' : 'back below'} its ${confPct} limit ${fmt(limit)}`;
         const change: ConditionChange = { kind: cd.kind, key: cd.key, active: u.active, message: u.active ? what : `${cd.label} back within limits: ${what}`, value, limit, priority: cd.priority };
         changes.push(change);
         events.push({ type: 'condition', change, t, seq });
@@ -183,6 +195,7 @@ export function createBatchMonitor(model: MonitoringModel, batchStartT: number):
       combined,
       limits: { t2: t2Lim, q: qLim, combined: cLim, confidence: conf },
       localLimits: { t2: localT2, q: localQ },
+      alarmLimits: { t2: alarmT2, q: alarmQ, envelopeK: aK, confidence: aConf },
       envelope,
       prediction,
       suspect,

@@ -98,6 +98,13 @@ export interface MonitorResult {
   limits: { t2: number; q: number; combined: number; confidence: number };
   /** Per-progress-point limits from the envelope, when the model has them. */
   localLimits: { t2: number; q: number } | null;
+  /**
+   * The limits in force for the alarm conditions at this spectrum (per-point or global, as the
+   * model's alarms.limits says) and their confidence: equal to the drawn limits unless the model
+   * has action limits (settings.alarms.confidence); envelopeK in sd of the band. Absent in results
+   * stored before alarm limits existed.
+   */
+  alarmLimits?: { t2: number; q: number; envelopeK: number; confidence: number };
   envelope: EnvelopeCheck[];
   prediction: PropertyPrediction | null;
   /** A single out-of-limit point that did not (yet) raise an alarm. */

@@ -142,8 +142,9 @@ export function applyResult(prev: UnitSignalState, r: MonitorResult, meta: { bat
   s.elapsedMin = r.elapsedMin;
   s.t2 = r.t2;
   s.q = r.q;
-  s.t2Limit = r.localLimits?.t2 ?? r.limits.t2;
-  s.qLimit = r.localLimits?.q ?? r.limits.q;
+  // The limit Tideline's T² / Q alarms are judged against (the action limit when the model has one).
+  s.t2Limit = r.alarmLimits?.t2 ?? r.localLimits?.t2 ?? r.limits.t2;
+  s.qLimit = r.alarmLimits?.q ?? r.localLimits?.q ?? r.limits.q;
   s.prediction = r.prediction ? { name: r.prediction.name, unit: r.prediction.unit, value: r.prediction.value, extrapolating: r.prediction.extrapolating } : null;
   s.endpoint.state = s.endpoint.state === 'signalled' && r.endpoint.state === 'done' ? 'signalled' : r.endpoint.state;
   s.endpoint.etaMin = r.endpoint.etaMin?.median ?? null;
