@@ -132,7 +132,8 @@ export function courseRange(band: Band | null, min: number | null, max: number |
 
 /**
  * T² or Q against progress with the overall limit drawn and named, the local (per-progress) limit
- * as a dashed series when present, points above the limit marked ▲, optional log scale.
+ * as a dashed series when present, the alarm (action) limit as a dash-dot series when the model has
+ * one above the drawn limits, points above the limit marked ▲, optional log scale.
  */
 export function statChartOptions(
   b: Base & {
@@ -142,6 +143,7 @@ export function statChartOptions(
     /** Limit at data index i (local limit if present, else the overall one). */
     limitAt: (i: number) => number;
     hasLocal: boolean;
+    hasAlarm?: boolean;
     getValues: () => ArrayLike<number>;
     /** The golden course in minutes, so T² and Q line up with the score charts; null = data only. */
     getCourse?: () => [number, number] | null;
@@ -149,6 +151,7 @@ export function statChartOptions(
 ): uPlot.Options {
   const series: uPlot.Series[] = [{ label: b.xLabel }, line(STYLE.batch, b.stat, { points: { show: false } })];
   if (b.hasLocal) series.push(line(STYLE.warnLimit, `${b.stat} local limit`));
+  if (b.hasAlarm) series.push(line(STYLE.alarmLimit, `${b.stat} alarm limit`));
   return base(b, series, [limitLinesPlugin(b.getLines), outsideMarkersPlugin(1, () => ({ limit: b.limitAt }))], {
     x: {
       time: false,

@@ -15,7 +15,7 @@ const SCORE_COLS = ['s1', 's2', 's3', 's4', 's5', 's6'] as const;
 const ENV_COLS = ['e1', 'e2', 'e3', 'e4', 'e5', 'e6'] as const;
 export type ScoreCol = (typeof SCORE_COLS)[number];
 export type EnvCol = (typeof ENV_COLS)[number];
-export const COLUMNS = ['seq', 't', 'elapsedMin', 'progress', 't2', 'q', 'combined', 't2Limit', 'qLimit', 'localT2', 'localQ', 'outside', 'prediction', ...SCORE_COLS, ...ENV_COLS] as const;
+export const COLUMNS = ['seq', 't', 'elapsedMin', 'progress', 't2', 'q', 'combined', 't2Limit', 'qLimit', 'localT2', 'localQ', 'alarmT2', 'alarmQ', 'outside', 'prediction', ...SCORE_COLS, ...ENV_COLS] as const;
 export type Column = (typeof COLUMNS)[number];
 export function scoreCol(pc: number): ScoreCol {
   if (pc < 1 || pc > MAX_PCS) throw new Error(`PC${pc} is outside PC1…PC${MAX_PCS}`);
@@ -117,6 +117,9 @@ export function appendResult(s: LiveState, r: MonitorResult): boolean {
     qLimit: r.limits.q,
     localT2: r.localLimits?.t2,
     localQ: r.localLimits?.q,
+    // drawn only when the model has action limits above the drawn ones
+    alarmT2: r.alarmLimits && r.alarmLimits.confidence !== r.limits.confidence ? r.alarmLimits.t2 : undefined,
+    alarmQ: r.alarmLimits && r.alarmLimits.confidence !== r.limits.confidence ? r.alarmLimits.q : undefined,
     outside: outsideEnvelope(r) || r.t2 > r.limits.t2 || r.q > r.limits.q ? 1 : 0,
     prediction: r.prediction?.value,
   };

@@ -38,6 +38,8 @@ export const STYLE = {
   envelope: { label: 'golden envelope', stroke: 'rgba(86,180,233,0.9)', dash: [], width: 1, marker: 'none', fill: 'rgba(86,180,233,0.22)' },
   limit: { label: 'control limit', stroke: OKABE_ITO.vermillion, dash: [10, 4], width: 1.5, marker: 'none' },
   warnLimit: { label: 'warning limit', stroke: OKABE_ITO.orange, dash: [3, 3], width: 1.5, marker: 'none' },
+  /** The limit that raises an alarm when it is above the drawn limits (the model's action limits). */
+  alarmLimit: { label: 'alarm limit', stroke: OKABE_ITO.reddishPurple, dash: [14, 3, 2, 3], width: 1.5, marker: 'none' },
   outside: { label: 'outside limit', stroke: OKABE_ITO.vermillion, dash: [], width: 1, marker: 'triangle-up' },
   selected: { label: 'selected point', stroke: OKABE_ITO.reddishPurple, dash: [], width: 2, marker: 'diamond' },
   preprocessed: { label: 'preprocessed', stroke: OKABE_ITO.bluishGreen, dash: [], width: 1.5, marker: 'none' },

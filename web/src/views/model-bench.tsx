@@ -318,6 +318,14 @@ function VersionDetail({ version, me }: { version: string; me: Me | null }) {
           <dd>
             {limitName('T²', d.limits.confidence)} = {sig(d.limits.t2)} ({d.limits.t2Method}); {limitName('Q', d.limits.confidence)} = {sig(d.limits.q)} ({d.limits.qMethod})
           </dd>
+          {d.alarmLimits && (
+            <>
+              <dt>Alarm limits</dt>
+              <dd data-testid="alarm-limits">
+                {limitName('T²', d.alarmLimits.confidence, 'alarm limit')} = {sig(d.alarmLimits.t2)}; {limitName('Q', d.alarmLimits.confidence, 'alarm limit')} = {sig(d.alarmLimits.q)}; envelope alarm at ±{sig(d.alarmLimits.envelopeK)} sd ({d.alarmLimits.envelopeKMethod}). The charts draw the {limitName('', d.limits.confidence).trim()} limits; alarms are raised at these.
+              </dd>
+            </>
+          )}
           {d.approvedAt && (
             <>
               <dt>Approved</dt>

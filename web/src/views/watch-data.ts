@@ -39,17 +39,29 @@ export function scoreData(s: LiveState, pc: number): [Float64Array, Float64Array
   return [s.series.view('progress'), s.series.view(scoreCol(pc))];
 }
 
-export function statData(s: LiveState, stat: 'T²' | 'Q', withLocal: boolean): Float64Array[] {
+/** x, the statistic, then the local limit and the alarm limit series when drawn. */
+export function statData(s: LiveState, stat: 'T²' | 'Q', withLocal: boolean, withAlarm = false): Float64Array[] {
   const x = s.series.view('elapsedMin');
   const y = s.series.view(stat === 'T²' ? 't2' : 'q');
-  return withLocal ? [x, y, s.series.view(stat === 'T²' ? 'localT2' : 'localQ')] : [x, y];
+  const out = [x, y];
+  if (withLocal) out.push(s.series.view(stat === 'T²' ? 'localT2' : 'localQ'));
+  if (withAlarm) out.push(s.series.view(stat === 'T²' ? 'alarmT2' : 'alarmQ'));
+  return out;
+}
+
+function recentFinite(v: Float64Array): boolean {
+  for (let i = v.length - 1; i >= 0 && i >= v.length - 50; i--) if (Number.isFinite(v[i])) return true;
+  return false;
 }
 
 /** Whether any local limit values are present in the series. */
 export function hasLocal(s: LiveState, stat: 'T²' | 'Q'): boolean {
-  const v = s.series.view(stat === 'T²' ? 'localT2' : 'localQ');
-  for (let i = v.length - 1; i >= 0 && i >= v.length - 50; i--) if (Number.isFinite(v[i])) return true;
-  return false;
+  return recentFinite(s.series.view(stat === 'T²' ? 'localT2' : 'localQ'));
+}
+
+/** Whether the model has alarm (action) limits above the drawn ones, present in the series. */
+export function hasAlarmLimit(s: LiveState, stat: 'T²' | 'Q'): boolean {
+  return recentFinite(s.series.view(stat === 'T²' ? 'alarmT2' : 'alarmQ'));
 }
 
 /** Golden path in the plane of PCs a and b (expected scores), or null. */

@@ -16,7 +16,7 @@ import { ConnectionNote } from './floor.tsx';
 import { AlarmList } from './alarm-list.tsx';
 import { ContributionsPanel } from './contributions-panel.tsx';
 import { SpectrumPanel } from './spectrum-panel.tsx';
-import { availablePcs, goldenPath, hasLocal, progressLabel, referencePaths, scoreBand, scoreData, statData, statLines } from './watch-data.ts';
+import { availablePcs, goldenPath, hasAlarmLimit, hasLocal, progressLabel, referencePaths, scoreBand, scoreData, statData, statLines } from './watch-data.ts';
 import { ENDPOINT_WORDS } from '../format/status-words.ts';
 import { clock, eta, limitName, minutes, percent, sig, withUnit } from '../format/number-format.ts';
 import { STYLE } from '../theme/palette.ts';
@@ -218,11 +218,13 @@ export function StatChart({ live, stat, log, picked, onPick, env }: { live: Retu
   const course: [number, number] | null = env && env.progressKind === 'time' && env.progress.length ? [0, env.progress[env.progress.length - 1]] : null;
   const s = live.state;
   const local = hasLocal(s, stat);
-  const inst = useSeriesFeed(live, () => statData(s, stat, local));
+  const alarm = hasAlarmLimit(s, stat);
+  const inst = useSeriesFeed(live, () => statData(s, stat, local, alarm));
   const pickedRef = useRef(picked);
   pickedRef.current = picked;
   useEffect(() => inst.current?.redraw(), [picked]);
   const conf = s.latest?.limits.confidence ?? NaN;
+  const alarmConf = s.latest?.alarmLimits?.confidence ?? NaN;
   const limitCol = stat === 'T²' ? 't2Limit' : 'qLimit';
   const localCol = stat === 'T²' ? 'localT2' : 'localQ';
   return (
@@ -230,12 +232,13 @@ export function StatChart({ live, stat, log, picked, onPick, env }: { live: Retu
       testId={`stat-chart-${stat === 'T²' ? 't2' : 'q'}`}
       title={`${stat} against elapsed time with its ${limitName(stat, conf)}`}
       height={220}
-      optsKey={`stat-${stat}-${log}-${local}-${course?.[1] ?? ''}`}
-      data={statData(s, stat, local)}
+      optsKey={`stat-${stat}-${log}-${local}-${alarm}-${course?.[1] ?? ''}`}
+      data={statData(s, stat, local, alarm)}
       legend={[
         { style: STYLE.batch, label: stat },
         { style: STYLE.limit, label: limitName(stat, conf) },
         ...(local ? [{ style: STYLE.warnLimit, label: limitName(stat, conf, 'local limit') }] : []),
+        ...(alarm ? [{ style: STYLE.alarmLimit, label: limitName(stat, alarmConf, 'alarm limit') }] : []),
         { style: { ...STYLE.outside, label: 'above limit ▲' } },
       ]}
       make={(w, h) =>
@@ -245,6 +248,7 @@ export function StatChart({ live, stat, log, picked, onPick, env }: { live: Retu
           stat,
           log,
           hasLocal: local,
+          hasAlarm: alarm,
           xLabel: 'elapsed time (min)',
           yLabel: `${stat}${log ? ' (log scale)' : ''}`,
           getLines: () => statLines(s, stat),
