@@ -33,6 +33,20 @@ export const configSchema = z
         heartbeatMs: z.number().int().min(100).default(10000),
         /** An open batch whose analyzer sends nothing for this long raises a stale-data alarm. */
         staleAfterMs: z.number().int().min(100).default(60000),
+        /**
+         * Longest an analyzer may stay in NAMUR NE 107 function check during a batch before the
+         * suppression by function-check lapses and Tideline raises 'function-check-overdue', ms.
+         * Default 15 min: a common-practice value, no published source. 0 or null = no limit (not recommended).
+         */
+        functionCheckMaxMs: z
+          .number()
+          .int()
+          .min(0)
+          .nullable()
+          .default(900_000)
+          .refine((v) => v === null || v === 0 || v >= 1000, {
+            message: 'must be 0 or null (no limit, not recommended) or at least 1000 ms',
+          }),
       })
       .prefault({}),
     live: z
@@ -92,6 +106,7 @@ export const ENV_VARS: Record<string, string> = {
   TIDELINE_SYNCHRONOUS: 'synchronous',
   TIDELINE_WEB_DIR: 'webDir',
   TIDELINE_STALE_AFTER_MS: 'ingest.staleAfterMs',
+  TIDELINE_FUNCTION_CHECK_MAX_MS: 'ingest.functionCheckMaxMs',
   TIDELINE_GROUP_COMMIT_MS: 'ingest.groupCommitMs',
   TIDELINE_LOG_LEVEL: 'logLevel',
 };

@@ -103,6 +103,13 @@ export class IngestPipeline {
   private readonly analyzerStatus = new Map<string, AnalyzerStatusView>();
   /** The unit each analyzer served last (its last batch, or the unit its last status named). */
   private readonly lastUnitOf = new Map<string, string>();
+  /** Server clock (ms) at which each analyzer now in function check entered it (start of the unbroken run of function-check reports). */
+  private readonly functionCheckSince = new Map<string, number>();
+  /**
+   * Analyzers whose function check outlasted ingest.functionCheckMaxMs while a batch of theirs ran:
+   * suppression by function-check has lapsed for their unit until they report another status.
+   */
+  private readonly functionCheckOverdue = new Set<string>();
   /** Where alarm actions taken by the server itself (suppression by state) are recorded; set by the app once the audit trail is installed. */
   audit: { record(e: AuditEntry): unknown } | null = null;
 
@@ -132,7 +139,8 @@ export class IngestPipeline {
 
   async start(): Promise<void> {
     await this.load();
-    const every = Math.max(50, Math.min(1000, Math.floor(this.config.ingest.staleAfterMs / 4)));
+    const fcMax = this.functionCheckMaxMs();
+    const every = Math.max(50, Math.min(1000, Math.floor(this.config.ingest.staleAfterMs / 4), fcMax === null ? Infinity : Math.floor(fcMax / 4)));
     this.ticker = setInterval(() => void this.tick().catch((e) => this.log.error('tick failed', e)), every);
     this.ticker.unref();
   }
@@ -152,8 +160,13 @@ export class IngestPipeline {
     this.lastUnitOf.clear();
     for (const [a, u] of await this.storage.lastUnitByAnalyzer()) this.lastUnitOf.set(a, u);
     this.analyzerStatus.clear();
+    this.functionCheckSince.clear();
+    this.functionCheckOverdue.clear();
     for (const r of await this.storage.latestAnalyzerStatuses()) {
       this.analyzerStatus.set(r.analyzer, { analyzer: r.analyzer, status: r.status, code: r.code, detail: r.detail, t: r.t, receivedAt: r.receivedAt });
+      // Only the latest report is at hand here: a function check counts from it (if the analyzer
+      // repeated its function-check report, from the repeat: the limit may run longer once).
+      if (r.status === 'function-check') this.functionCheckSince.set(r.analyzer, r.receivedAt);
       if (r.unit && !this.lastUnitOf.has(r.analyzer)) this.lastUnitOf.set(r.analyzer, r.unit);
     }
     this.alarmsById.clear();
@@ -180,6 +193,10 @@ export class IngestPipeline {
     };
     const staleId = this.alarmIdByKey.get(alarmKey(row.unit, row.id, 'stale'));
     if (staleId && this.alarmsById.get(staleId)?.active) ob.stale = true;
+    const overdueId = this.alarmIdByKey.get(alarmKey(row.unit, row.id, FUNCTION_CHECK_OVERDUE));
+    if (overdueId && this.alarmsById.get(overdueId)?.active && this.analyzerStatus.get(row.analyzer)?.status === 'function-check') {
+      this.functionCheckOverdue.add(row.analyzer);
+    }
     if (row.modelVersion) {
       const model = await this.loadModel(row.modelVersion);
       if (model) {
@@ -458,6 +475,7 @@ export class IngestPipeline {
     this.touched.add(ob);
     this.uow.batchEnds.push({ batch: ob.id, endSeq: end.seq, endT: end.t, endReason: end.reason });
     if (ob.stale) this.clearStale(ob, end.seq);
+    this.clearFunctionCheckOverdue(ob, end.seq, `batch ${ob.id} ended`);
     this.openByAnalyzer.delete(ob.analyzer);
     if (this.openByUnit.get(ob.unit) === ob) this.openByUnit.delete(ob.unit);
     this.addOutbox(ob.unit, 'batch-end', { unit: ob.unit, batch: ob.id, t: end.t, reason: end.reason, endpointState: ob.endpointState, endpointAt: ob.endpointAt });
@@ -479,6 +497,10 @@ export class IngestPipeline {
     const prev = this.analyzerStatus.get(st.analyzer) ?? null;
     const view: AnalyzerStatusView = { analyzer: st.analyzer, status: e.status, code: e.code ?? null, detail: e.detail ?? null, t: e.t, receivedAt: now };
     this.analyzerStatus.set(st.analyzer, view);
+    if (view.status !== 'function-check') {
+      this.functionCheckSince.delete(st.analyzer);
+      this.functionCheckOverdue.delete(st.analyzer);
+    } else if (prev?.status !== 'function-check' || !this.functionCheckSince.has(st.analyzer)) this.functionCheckSince.set(st.analyzer, now);
     this.uow.analyzerStatus.push({ analyzer: st.analyzer, boot: st.boot, seq: e.seq, t: e.t, status: e.status, code: view.code, detail: view.detail, unit, receivedAt: now });
     if (!unit) return;
     this.lastUnitOf.set(st.analyzer, unit);
@@ -488,6 +510,7 @@ export class IngestPipeline {
       this.addOutbox(unit, 'analyzer-status', payload);
       this.post.events.push(['analyzer-status', payload]);
     }
+    if (view.status !== 'function-check' && ob) this.clearFunctionCheckOverdue(ob, e.seq, `analyzer ${st.analyzer} reports ${view.status}`);
     const failed = view.status === 'failure';
     if (failed !== (prev?.status === 'failure')) {
       const what = [view.code, view.detail].filter(Boolean).join(': ');
@@ -517,7 +540,10 @@ export class IngestPipeline {
   private suppressionOf(unit: string, batch: string | null, kind: AlarmKind): SuppressionReason[] {
     const ob = this.openByUnit.get(unit);
     const batchRunning = batch === null ? !!ob : ob?.id === batch;
-    const functionCheck = this.unitAnalyzerStatus(unit)?.status === 'function-check';
+    const st = this.unitAnalyzerStatus(unit);
+    // Function check suppresses only up to ingest.functionCheckMaxMs during a batch; beyond, the
+    // suppression lapses (functionCheckOverdue) and the alarms are annunciated.
+    const functionCheck = st?.status === 'function-check' && !this.functionCheckOverdue.has(st.analyzer);
     return suppressionFor(kind, { batchRunning, functionCheck }, DEFAULT_ALARM_SETTINGS);
   }
 
@@ -677,6 +703,49 @@ export class IngestPipeline {
     this.events.emit('unit-changed', ob.unit);
   }
 
+  /** ingest.functionCheckMaxMs, null when function check has no time limit (0 or null). */
+  private functionCheckMaxMs(): number | null {
+    const v = this.config.ingest.functionCheckMaxMs;
+    return v === null || v === undefined || v <= 0 ? null : v;
+  }
+
+  /**
+   * Periodic: the analyzer of this open batch has been in function check longer than
+   * ingest.functionCheckMaxMs. The suppression by function-check of the unit's alarms lapses (the
+   * standing conditions are annunciated, audited as alarm.unsuppress) and Tideline raises its own
+   * analyzer alarm, function-check-overdue, until the analyzer reports another status or the batch
+   * ends. Returns true when it raised the alarm (the caller commits).
+   */
+  private checkFunctionCheckOverdue(ob: OpenBatch, now: number): boolean {
+    const max = this.functionCheckMaxMs();
+    if (max === null || this.functionCheckOverdue.has(ob.analyzer)) return false;
+    if (this.analyzerStatus.get(ob.analyzer)?.status !== 'function-check') return false;
+    const since = this.functionCheckSince.get(ob.analyzer);
+    if (since === undefined || now - since <= max) return false;
+    this.functionCheckOverdue.add(ob.analyzer);
+    const forMin = (now - since) / 60_000;
+    const maxMin = max / 60_000;
+    const what = `analyzer ${ob.analyzer} has been in function check (NE 107 C) for ${fmtMin(forMin)} min during batch ${ob.id}, beyond the limit of ${fmtMin(maxMin)} min (ingest.functionCheckMaxMs)`;
+    this.applyCondition(ob.unit, ob.id, {
+      kind: 'analyzer', key: FUNCTION_CHECK_OVERDUE, active: true, priority: 1, value: forMin, limit: maxMin,
+      message: `${what}; its alarms are no longer suppressed`,
+    }, null, now);
+    this.applySuppression(ob.unit, null, what);
+    this.post.events.push(['unit-changed', ob.unit]);
+    return true;
+  }
+
+  /** The function check of this batch's analyzer is no longer overdue (another status, batch end). */
+  private clearFunctionCheckOverdue(ob: OpenBatch, seq: number | null, why: string) {
+    this.functionCheckOverdue.delete(ob.analyzer);
+    const id = this.alarmIdByKey.get(alarmKey(ob.unit, ob.id, FUNCTION_CHECK_OVERDUE));
+    if (!id || !this.alarmsById.get(id)?.active) return;
+    this.applyCondition(ob.unit, ob.id, {
+      kind: 'analyzer', key: FUNCTION_CHECK_OVERDUE, active: false, priority: 1, value: 0, limit: (this.functionCheckMaxMs() ?? 0) / 60_000,
+      message: `function check of analyzer ${ob.analyzer} over: ${why}`,
+    }, seq, this.now());
+  }
+
   /** Operator acknowledges an alarm (ISA-18.2). Throws AlarmRequestError naming why not. */
   async acknowledgeAlarm(id: string, user: string, comment: string | null): Promise<Alarm> {
     const cur = this.alarmsById.get(id) ?? (await this.storage.getAlarm(id));
@@ -734,6 +803,9 @@ export class IngestPipeline {
   /** Periodic: stale data, shelve expiry. */
   private async tick() {
     const now = this.now();
+    let overdue = false;
+    for (const ob of [...this.openByUnit.values()]) overdue = this.checkFunctionCheckOverdue(ob, now) || overdue;
+    if (overdue) await this.flush();
     for (const ob of this.openByUnit.values()) {
       if (!ob.stale && now - ob.lastDataAt > this.config.ingest.staleAfterMs) {
         ob.stale = true;
@@ -895,6 +967,13 @@ export class AlarmRequestError extends Error {
 
 function newPost(): PostCommit {
   return { events: [], audits: [], acks: new Map(), latencies: [], spectra: 0 };
+}
+
+/** Key of Tideline's own alarm when an analyzer stays in function check beyond ingest.functionCheckMaxMs. */
+export const FUNCTION_CHECK_OVERDUE = 'function-check-overdue';
+
+function fmtMin(min: number): string {
+  return min >= 10 ? min.toFixed(0) : min.toFixed(1);
 }
 
 function alarmKey(unit: string, batch: string | null, key: string) {
