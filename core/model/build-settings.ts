@@ -19,7 +19,7 @@ export const buildSettingsSchema = z.object({
   progress: z.discriminatedUnion('kind', [z.object({ kind: z.literal('time') }), z.object({ kind: z.literal('indicator'), source: z.enum(['pc1', 'property']) })]),
   envelope: z.object({ k: z.number().positive().max(10), smoothing: z.number().int().min(0).max(50), points: z.number().int().min(2).max(2000), band: z.enum(['sd', 'prediction']).optional() }),
   endpoint: endpointRuleSpecSchema,
-  alarms: z.object({ onDelay: z.number().int().min(1).max(31), onWindow: z.number().int().min(1).max(31), offDelay: z.number().int().min(1).max(1000), deadband: z.number().min(0).lt(1), limits: z.enum(['global', 'local']).optional(), startupMin: z.number().min(0).max(600).optional(), confidence: z.number().gt(0.5).lt(1).optional() }),
+  alarms: z.object({ onDelay: z.number().int().min(1).max(31), onWindow: z.number().int().min(1).max(31), offDelay: z.number().int().min(1).max(1000), deadband: z.number().min(0).lt(1), limits: z.enum(['global', 'local']).optional(), startupMin: z.number().min(0).max(600).optional(), confidence: z.number().gt(0.5).lt(1).optional(), pace: z.boolean().optional() }),
   property: z
     .object({
       name: z.string().min(1),
@@ -61,8 +61,11 @@ export interface BuildSettings {
    * spectrum in a hundred; a batch of several hundred spectra judged on T², Q and every PC's
    * envelope meets that often enough that a good batch raises a confirmed alarm one time in ten
    * (measured: `npm run evaluate`), so alarms need the higher level.
+   * pace: with an indicator-variable progress axis, also raise a condition when the batch is slower
+   * than the golden batches to reach its next progress point (core/monitor/pace.ts) — a stalled
+   * batch otherwise sits inside its envelope. Default off (models built before it keep their meaning).
    */
-  alarms: { onDelay: number; onWindow: number; offDelay: number; deadband: number; limits?: 'global' | 'local'; startupMin?: number; confidence?: number };
+  alarms: { onDelay: number; onWindow: number; offDelay: number; deadband: number; limits?: 'global' | 'local'; startupMin?: number; confidence?: number; pace?: boolean };
   /** chain: the property model's own preprocessing (default: the model's chain); range: calibrate on reference spectra with the property in [lo, hi] only. */
   property?: { name: string; unit: string; components: number | 'auto'; target?: number; direction?: 'below' | 'above'; chain?: ChainSpec; range?: [number, number] };
   excludeSpectra?: { batch: string; index: number }[];

@@ -22,6 +22,8 @@ import { sumByRegion } from '../bands/nir-bands.ts';
 import type { MonitoringModel } from '../model/monitoring-model.ts';
 import { ConditionFilter } from './condition-filter.ts';
 import { EtaEstimator } from './eta.ts';
+import { PaceCheck, type PaceStatus } from './pace.ts';
+import tQuantile from '@stdlib/stats-base-dists-t-quantile';
 import type { AlarmPriority, ConditionChange, ConditionKind, Contributions, DomainEvent, EnvelopeCheck, MonitorResult } from './types.ts';
 
 export interface BatchMonitor {
@@ -91,7 +93,13 @@ export function createBatchMonitor(model: MonitoringModel, batchStartT: number):
   for (let a = 0; a < A; a++) if (a !== indicatorPc) conds.push({ kind: 'envelope', key: `pc${a + 1}`, label: `PC${a + 1}`, priority: 3, filter: new ConditionFilter(alarmSpec) });
   // Envelope conditions are judged only where enough reference batches passed (common practice, no source).
   const minBatches = Math.max(3, Math.ceil(env.nBatches / 3));
-  const condPc = conds.map((c) => (c.kind === 'envelope' ? Number(c.key.slice(2)) - 1 : -1));
+  // Pace (indicator axis only): one-sided band for one new batch at the alarm confidence,
+  // t(conf; I − 1)·√(1 + 1/I) of ln(time), when the envelope uses prediction bands; else k sd.
+  const paceK = model.settings.envelope.band === 'prediction' ? tQuantile(aConf, env.nBatches - 1) * Math.sqrt(1 + 1 / env.nBatches) : aK;
+  const pace = model.settings.alarms.pace === true && env.axis.kind === 'indicator' ? new PaceCheck(env, paceK, minBatches) : null;
+  if (pace) conds.push({ kind: 'envelope', key: 'pace', label: 'pace', priority: 3, filter: new ConditionFilter(alarmSpec) });
+  const paceCond = pace ? conds.length - 1 : -1;
+  const condPc = conds.map((c) => (c.kind === 'envelope' && c.key.startsWith('pc') ? Number(c.key.slice(2)) - 1 : -1));
   const rule = model.endpoint;
   const endpoint = new EndpointTracker(rule);
   const mbsdCrit = rule.criteria.find((c) => c.kind === 'mbsd');
@@ -141,6 +149,10 @@ export function createBatchMonitor(model: MonitoringModel, batchStartT: number):
       envelope[a] = { pc: a + 1, score: s, expected, lower: pc.lower[k], upper: pc.upper[k], status: s > pc.upper[k] ? 'above' : s < pc.lower[k] ? 'below' : 'inside', sd: z };
     }
 
+    // Pace: judged after start-up, before the endpoint and the golden end progress.
+    let paceStatus: PaceStatus | null = null;
+    if (pace && elapsedMin >= startupMin && endpoint.state !== 'done' && endpoint.state !== 'signalled' && prog < endProgress) paceStatus = pace.update(k, elapsedMin);
+
     // Conditions.
     const events: DomainEvent[] = [];
     const changes: ConditionChange[] = [];
@@ -153,13 +165,18 @@ export function createBatchMonitor(model: MonitoringModel, batchStartT: number):
       if (c === 0) { value = t2; limit = alarmT2; }
       else if (c === 1) { value = q; limit = alarmQ; }
       else if (c < firstEnv) { value = al ? combinedIndex(t2, q, aT2, aQ) : combined; limit = aC; }
+      else if (c === paceCond) { value = paceStatus && paceStatus.z > 0 ? paceStatus.z : 0; limit = paceK; }
       else if (env.count[k] < minBatches) { value = 0; limit = aK; } // too few golden batches here to judge
       else { value = Math.abs(envelope[condPc[c]].sd); limit = aK; }
       const u = cd.filter.update(value, limit);
       if (u.suspect) suspect = true;
       if (u.active) active.push(cd.key);
       if (u.changed) {
-        const what = c >= firstEnv ? `${cd.label} score ${fmt(envelope[condPc[c]].score)} is ${fmt(envelope[condPc[c]].sd)} sd from the golden path (alarm at ±${fmt(aK)} sd, ${confPct})` : `${cd.label} ${fmt(value)} ${u.active ? 'above' : 'back below'} its ${confPct} limit ${fmt(limit)}`;
+        const what = c === paceCond
+          ? paceStatus
+            ? `pace: ${fmt(paceStatus.tookMin)} min without reaching the next progress point; the golden batches took ${fmt(paceStatus.expectedMin)} min (alarm beyond ${fmt(paceStatus.upperMin)} min, ${confPct})`
+            : 'pace no longer judged (endpoint or golden end reached)'
+          : c >= firstEnv ? `${cd.label} score ${fmt(envelope[condPc[c]].score)} is ${fmt(envelope[condPc[c]].sd)} sd from the golden path (alarm at ±${fmt(aK)} sd, ${confPct})` : `${cd.label} ${fmt(value)} ${u.active ? 'above' : 'back below'} its ${confPct} limit ${fmt(limit)}`;
         const change: ConditionChange = { kind: cd.kind, key: cd.key, active: u.active, message: u.active ? what : `${cd.label} back within limits: ${what}`, value, limit, priority: cd.priority };
         changes.push(change);
         events.push({ type: 'condition', change, t, seq });
@@ -196,6 +213,7 @@ export function createBatchMonitor(model: MonitoringModel, batchStartT: number):
       limits: { t2: t2Lim, q: qLim, combined: cLim, confidence: conf },
       localLimits: { t2: localT2, q: localQ },
       alarmLimits: { t2: alarmT2, q: alarmQ, envelopeK: aK, confidence: aConf },
+      ...(pace ? { pace: paceStatus } : {}),
       envelope,
       prediction,
       suspect,

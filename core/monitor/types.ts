@@ -106,6 +106,8 @@ export interface MonitorResult {
    */
   alarmLimits?: { t2: number; q: number; envelopeK: number; confidence: number };
   envelope: EnvelopeCheck[];
+  /** Pace against the golden batches (core/monitor/pace.ts) when the model judges it; null where not judged. */
+  pace?: { tookMin: number; expectedMin: number; upperMin: number; z: number } | null;
   prediction: PropertyPrediction | null;
   /** A single out-of-limit point that did not (yet) raise an alarm. */
   suspect: boolean;
