@@ -360,6 +360,15 @@ export function EndpointPanel({ ep, s }: { ep: EndpointStatus | null; s: LiveSta
             </dd>
           </>
         )}
+        {s.latest?.pace && (
+          <>
+            <dt>Pace</dt>
+            <dd data-testid="pace">
+              {minutes(s.latest.pace.tookMin)} toward the next progress point; golden batches {minutes(s.latest.pace.expectedMin)} (alarm beyond {minutes(s.latest.pace.upperMin)})
+              {s.latest.pace.z > 0 && s.latest.pace.tookMin > s.latest.pace.upperMin && <Badge tone="warn">behind the golden batches</Badge>}
+            </dd>
+          </>
+        )}
         {pred && (
           <>
             <dt>Predicted {pred.name}</dt>
