@@ -15,6 +15,7 @@ import { join } from 'node:path';
 import { afterAll, describe, expect, it } from 'vitest';
 import { simulateDryerBatch } from '../../simulators/batch.ts';
 import { loadConfig } from '../../server/config.ts';
+import { applyEvent, emptyUnitState, type UnitSignalState } from '../../server/signals/unit-state.ts';
 import { Peer, login, startTestServer, type Session, type TestServer } from './helpers.ts';
 import { buildSmallDryerModel, installModel } from './model-fixture.ts';
 
@@ -160,6 +161,22 @@ describe('function check beyond ingest.functionCheckMaxMs during a batch', () =>
     expect(JSON.parse(last.payload).alarm).toMatchObject({ id: overdue.id, active: false, state: 'cleared-unacknowledged' });
     // the model conditions still stand and stay annunciated
     for (const m of model) expect((await alarmsOf(viewer, 'fc-1')).find((a) => a.id === m.id)).toMatchObject({ active: true, state: 'active-unacknowledged' });
+
+    // the unit state the signal channels publish (OPC UA AnalyzerStatus / AnalyzerFault, MQTT), fed
+    // the unit's outbox in order: failure while the overdue alarm stands, the analyzer's report after
+    const outbox = (ts.server.ctx.storage.db as import('better-sqlite3').Database)
+      .prepare(`SELECT id, unit, unit_seq, type, payload, created_at FROM outbox WHERE unit = 'dryer-1' ORDER BY unit_seq`)
+      .all() as { id: string; unit: string; unit_seq: number; type: string; payload: string; created_at: number }[];
+    let sig: UnitSignalState = emptyUnitState('dryer-1', 0);
+    let atOverdue: UnitSignalState | null = null;
+    for (const r of outbox) {
+      sig = applyEvent(sig, { id: r.id, unit: r.unit, seq: r.unit_seq, type: r.type, createdAt: r.created_at, payload: JSON.parse(r.payload) }, r.created_at);
+      if (r.unit_seq === raised.at) atOverdue = sig;
+    }
+    expect(atOverdue!.analyzer).toBe('failure');
+    expect(atOverdue!.alarms.find((a) => a.key === 'function-check-overdue')).toMatchObject({ kind: 'analyzer', active: true, state: 'active-unacknowledged', priority: 1 });
+    expect(sig.analyzer).toBe('good');
+    expect(sig.alarms.find((a) => a.key === 'function-check-overdue')).toMatchObject({ active: false, state: 'cleared-unacknowledged' });
     p.close();
   }, 120_000);
 
