@@ -107,7 +107,12 @@ export function emptyUnitState(unit: string, now: number): UnitSignalState {
  */
 function quality(s: UnitSignalState): { quality: ValueQuality; reason: string | null } {
   if (s.resultT === null) return { quality: 'bad', reason: 'no data yet' };
-  if (s.analyzer === 'failure') return { quality: 'bad', reason: 'analyzer failure (NE 107 F)' };
+  if (s.analyzer === 'failure') {
+    // failure reported by the analyzer, or concluded by one of Tideline's analyzer alarms (e.g. a
+    // function check past ingest.functionCheckMaxMs): name which
+    const own = s.alarms.find((a) => a.kind === 'analyzer' && a.active);
+    return { quality: 'bad', reason: own?.message ? `analyzer failure (NE 107 F): ${own.message}` : 'analyzer failure (NE 107 F)' };
+  }
   if (s.analyzer === 'function-check') return { quality: 'bad', reason: 'analyzer in function check (NE 107 C)' };
   if (s.stale) {
     const alarm = s.alarms.find((a) => a.kind === 'stale' && a.active);

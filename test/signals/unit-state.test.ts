@@ -93,6 +93,9 @@ describe('unit state', () => {
     expect(stale.quality).toBe('uncertain');
     const fcOnly = applyEvent(s, ev('analyzer-status', { status: 'function-check' }), T0);
     expect([fcOnly.quality, liveValueStatus(fcOnly).equals(StatusCodes.BadOutOfService)]).toEqual(['bad', true]);
+    // a failure Tideline concluded (its own analyzer alarm) is named in the reason
+    const overdue = applyEvent(fcOnly, ev('alarm', { alarm: { key: 'function-check-overdue', kind: 'analyzer', state: 'active-unacknowledged', active: true, priority: 1, message: 'function check for 16 min (limit 15 min)' } }), T0);
+    expect([overdue.analyzer, overdue.quality, overdue.qualityReason]).toEqual(['failure', 'bad', 'analyzer failure (NE 107 F): function check for 16 min (limit 15 min)']);
     const back = applyResult(stale, result({ seq: 6, t: T0 + 60_000 }), { batch: 'B1' }, T0);
     expect([back.stale, analyzerStatusSignal(back).status, analyzerStatusSignal(back).code.equals(StatusCodes.Good), liveValueStatus(back).equals(StatusCodes.Good)]).toEqual([false, 'good', true, true]);
     // an analyzer in function check announced its silence: it stays function check, Good
