@@ -48,7 +48,7 @@ export function confidence(c: number | null | undefined): string {
 }
 
 /** The name of a limit line as drawn on charts: "T² limit (99 %)". */
-export function limitName(stat: 'T²' | 'Q' | 'combined' | string, c: number, kind: 'limit' | 'local limit' | 'alarm limit' = 'limit'): string {
+export function limitName(stat: 'T²' | 'Q' | 'combined' | string, c: number, kind: 'limit' | 'overall limit' | 'local limit' | 'alarm limit' = 'limit'): string {
   return `${stat} ${kind} (${confidence(c)})`;
 }
 

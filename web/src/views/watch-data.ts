@@ -27,12 +27,15 @@ export function availablePcs(env: ModelEnvelopeView | null, latestScores: number
   return Array.from({ length: Math.min(n, MAX_PCS) }, (_, i) => i + 1);
 }
 
-/** Named limit lines of T² or Q for the latest result's limits. */
+/**
+ * Named limit lines of T² or Q for the latest result's limits. Where per-progress-point limits are
+ * drawn too, the constant line is the overall limit (not the one in force), and is named so.
+ */
 export function statLines(s: LiveState, stat: 'T²' | 'Q'): LimitLine[] {
   const r = s.latest;
   if (!r) return [];
   const value = stat === 'T²' ? r.limits.t2 : r.limits.q;
-  return [{ value, label: limitName(stat, r.limits.confidence), style: STYLE.limit }];
+  return [{ value, label: limitName(stat, r.limits.confidence, hasLocal(s, stat) ? 'overall limit' : 'limit'), style: STYLE.limit }];
 }
 
 export function scoreData(s: LiveState, pc: number): [Float64Array, Float64Array] {

@@ -236,7 +236,7 @@ export function StatChart({ live, stat, log, picked, onPick, env }: { live: Retu
       data={statData(s, stat, local, alarm)}
       legend={[
         { style: STYLE.batch, label: stat },
-        { style: STYLE.limit, label: limitName(stat, conf) },
+        { style: STYLE.limit, label: limitName(stat, conf, local ? 'overall limit' : 'limit') },
         ...(local ? [{ style: STYLE.warnLimit, label: limitName(stat, conf, 'local limit') }] : []),
         ...(alarm ? [{ style: STYLE.alarmLimit, label: limitName(stat, alarmConf, 'alarm limit') }] : []),
         { style: { ...STYLE.outside, label: 'above limit ▲' } },
@@ -364,7 +364,7 @@ export function EndpointPanel({ ep, s }: { ep: EndpointStatus | null; s: LiveSta
           <>
             <dt>Pace</dt>
             <dd data-testid="pace">
-              {minutes(s.latest.pace.tookMin)} toward the next progress point; golden batches {minutes(s.latest.pace.expectedMin)} (alarm beyond {minutes(s.latest.pace.upperMin)})
+              {minutes(s.latest.pace.tookMin)} to this point of progress; golden batches {minutes(s.latest.pace.expectedMin)} (alarm beyond {minutes(s.latest.pace.upperMin)})
               {s.latest.pace.z > 0 && s.latest.pace.tookMin > s.latest.pace.upperMin && <Badge tone="warn">behind the golden batches</Badge>}
             </dd>
           </>
