@@ -223,7 +223,7 @@ export function buildMonitoringModel(batches: ReferenceBatch[], settingsInput: u
     alarmLimits.envelopeKMethod =
       settings.envelope.band === 'prediction'
         ? `t(1 − α/(2A); I − 1)·√(1 + 1/I) at α = ${+(1 - alarmLimits.confidence).toPrecision(3)}, A = ${A}, I = ${I}`
-        : 'k as set (band "sd")';
+        : 'k as set, band "sd"';
   }
   const envelope = buildEnvelope(trajectories, axis, {
     k: bandK,

@@ -183,6 +183,8 @@ describe.skipIf(!haveChromium)('dashboard in headless Chromium', () => {
     await page.getByTestId('version-detail').waitFor({ timeout: 120_000 });
     await page.getByTestId('explained-chart').locator('canvas').waitFor();
     await page.getByTestId('envelope-preview').locator('canvas').first().waitFor();
+    // built with the form's default alarm confidence, 99.9 % over the 99 % limits drawn
+    await page.getByTestId('alarm-limits').getByText(/T² alarm limit \(99\.9 %\)/).waitFor();
     await shot('bench-draft');
     const approve = page.getByTestId('approve');
     await approve.getByLabel(/Reason/).fill('browser test: evaluated on the demo reference set');

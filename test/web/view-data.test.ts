@@ -102,6 +102,9 @@ describe('Model bench helpers', () => {
   it('sends only chosen settings, with exclusions when any', () => {
     expect(buildSettingsFromForm({ chain: [], components: 'auto', confidence: 0.99 })).toEqual({ chain: [], components: 'auto', confidence: 0.99 });
     expect(buildSettingsFromForm({ chain: [], components: 2, confidence: 0.95, excludeSpectra: [{ batch: 'b', index: 3 }] }).excludeSpectra).toEqual([{ batch: 'b', index: 3 }]);
+    // alarm limits above the drawn ones go as alarms.confidence; equal ones are not sent
+    expect(buildSettingsFromForm({ chain: [], components: 2, confidence: 0.99, alarmConfidence: 0.999 }).alarms).toEqual({ confidence: 0.999 });
+    expect(buildSettingsFromForm({ chain: [], components: 2, confidence: 0.999, alarmConfidence: 0.999 }).alarms).toBeUndefined();
   });
 });
 

@@ -65,9 +65,13 @@ export function summariseEvaluation(e: EvaluationResult, faulty: Set<string>, st
   };
 }
 
-/** Default build settings sent with a build request, from the form. */
-export function buildSettingsFromForm(f: { chain: ChainSpec; components: number | 'auto'; confidence: number; excludeSpectra?: { batch: string; index: number }[] }): Record<string, unknown> {
+/**
+ * Default build settings sent with a build request, from the form. alarmConfidence: raise alarms at
+ * this higher confidence than the limits drawn (action limits); omitted or equal: at the drawn limits.
+ */
+export function buildSettingsFromForm(f: { chain: ChainSpec; components: number | 'auto'; confidence: number; alarmConfidence?: number; excludeSpectra?: { batch: string; index: number }[] }): Record<string, unknown> {
   const s: Record<string, unknown> = { chain: f.chain, components: f.components, confidence: f.confidence };
+  if (f.alarmConfidence !== undefined && f.alarmConfidence > f.confidence) s.alarms = { confidence: f.alarmConfidence };
   if (f.excludeSpectra && f.excludeSpectra.length) s.excludeSpectra = f.excludeSpectra;
   return s;
 }

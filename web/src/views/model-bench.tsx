@@ -89,6 +89,9 @@ function Builder({ me }: { me: Me | null }) {
   const [custom, setCustom] = useState(JSON.stringify(CHAIN_PRESETS[0].chain, null, 1));
   const [components, setComponents] = useState<number | 'auto'>('auto');
   const [conf, setConf] = useState(0.99);
+  // alarms at 99.9 % by default: at the 99 % limits about one good batch in ten raised an alarm in
+  // the evaluation (README, Measured)
+  const [alarmConf, setAlarmConf] = useState(0.999);
   const [error, setError] = useState<string | null>(null);
   const [busy, setBusy] = useState(false);
   const [preview, setPreview] = useState<string | null>(null);
@@ -115,7 +118,7 @@ function Builder({ me }: { me: Me | null }) {
         name: modelName(name || `${prod}-model`),
         product: prod,
         referenceBatches: chosen,
-        settings: buildSettingsFromForm({ chain: chainResult.chain, components, confidence: conf }),
+        settings: buildSettingsFromForm({ chain: chainResult.chain, components, confidence: conf, alarmConfidence: Math.max(alarmConf, conf) }),
       });
       location.hash = href({ view: 'bench', version: v.versionId });
     } catch (e) {
@@ -224,6 +227,18 @@ function Builder({ me }: { me: Me | null }) {
             ))}
           </select>
         </label>
+        <label title="Alarms are raised at these limits; the charts draw the limit confidence. A good batch is judged at hundreds of points: at 99 % about one good batch in ten raises an alarm somewhere.">
+          Alarm confidence{' '}
+          <select value={String(Math.max(alarmConf, conf))} onChange={(e) => setAlarmConf(Number((e.target as HTMLSelectElement).value))} data-testid="alarm-confidence">
+            {[0.99, 0.999, 0.9999]
+              .filter((c) => c >= conf)
+              .map((c) => (
+                <option key={c} value={c}>
+                  {c === conf ? `${confidence(c)} (as drawn)` : confidence(c)}
+                </option>
+              ))}
+          </select>
+        </label>
         <button type="button" class="btn primary" disabled={busy} onClick={build} data-testid="build">
           {busy ? 'Building…' : 'Build draft model'}
         </button>
@@ -322,7 +337,7 @@ function VersionDetail({ version, me }: { version: string; me: Me | null }) {
             <>
               <dt>Alarm limits</dt>
               <dd data-testid="alarm-limits">
-                {limitName('T²', d.alarmLimits.confidence, 'alarm limit')} = {sig(d.alarmLimits.t2)}; {limitName('Q', d.alarmLimits.confidence, 'alarm limit')} = {sig(d.alarmLimits.q)}; envelope alarm at ±{sig(d.alarmLimits.envelopeK)} sd ({d.alarmLimits.envelopeKMethod}). The charts draw the {limitName('', d.limits.confidence).trim()} limits; alarms are raised at these.
+                {limitName('T²', d.alarmLimits.confidence, 'alarm limit')} = {sig(d.alarmLimits.t2)}; {limitName('Q', d.alarmLimits.confidence, 'alarm limit')} = {sig(d.alarmLimits.q)}; envelope alarm at ±{sig(d.alarmLimits.envelopeK)} sd — {d.alarmLimits.envelopeKMethod}. The charts draw the {confidence(d.limits.confidence)} limits; alarms are raised at these.
               </dd>
             </>
           )}
