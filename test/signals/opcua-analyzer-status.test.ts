@@ -12,58 +12,29 @@
 import { StatusCodes, type DataValue, type StatusCode } from 'node-opcua';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { simulateDryerBatch } from '../../simulators/batch.ts';
-import { login, Peer, startTestServer, type TestServer } from '../server/helpers.ts';
-import { buildSmallDryerModel, installModel } from '../server/model-fixture.ts';
-import { connectClient, type TestClient } from './helpers/opcua-client.ts';
+import { Peer, type TestServer } from '../server/helpers.ts';
+import { startOpcuaHarness, until, type OpcuaHarness } from './helpers/opcua-harness.ts';
 
 const U = 'dryer-1';
-const P = (name: string) => `/Objects/1:Tideline/1:${U}/1:${name}`;
 const LIVE = ['T2', 'Q', 'Property', 'Progress'];
 
-async function until(cond: () => boolean | Promise<boolean>, what: string, ms = 30_000): Promise<void> {
-  const end = Date.now() + ms;
-  while (!(await cond())) {
-    if (Date.now() > end) throw new Error(`timed out waiting for ${what}`);
-    await new Promise((r) => setTimeout(r, 25));
-  }
-}
-
 describe('OPC UA AnalyzerStatus and value status codes with the full server', () => {
+  let h: OpcuaHarness;
   let ts: TestServer;
-  let client: TestClient;
-  let offset = 0; // the server's clock runs ahead of the wall clock by this much
-  const events: Record<string, unknown>[] = [];
+  let events: Record<string, unknown>[];
 
   beforeAll(async () => {
-    ts = await startTestServer(
-      { ingest: { staleAfterMs: 60_000 }, signals: { pollMs: 20, opcua: { port: 0, securityModes: ['None'], allowAnonymous: true, heartbeatMs: 200 } } } as never,
-      { now: () => Date.now() + offset },
-    );
-    const { model, text } = buildSmallDryerModel(11);
-    await installModel(ts.server.ctx.storage, text, model, U);
-    await ts.server.ctx.ingest.refreshDeployment(U);
-    const admin = await login(ts, 'administrator');
-    client = await connectClient((await admin.get('/api/signals')).body.opcua.endpointUrl);
-    await client.watchEvents(['ConditionName', 'ActiveState.Id', 'SuppressedOrShelved'], (e) => events.push(e));
+    h = await startOpcuaHarness({ ingest: { staleAfterMs: 60_000 }, eventFields: ['ConditionName', 'ActiveState.Id', 'SuppressedOrShelved'], modelOn: U });
+    ts = h.ts;
+    events = h.events;
   }, 120_000);
 
   afterAll(async () => {
-    await client?.close();
-    await ts?.stop();
+    await h?.stop();
   });
 
-  const read = (name: string): Promise<DataValue> => client.read(P(name));
-  /** Poll until the variable has this value and status code; returns the last read. */
-  const reaches = async (name: string, value: unknown, code: StatusCode): Promise<DataValue> => {
-    let dv: DataValue | null = null;
-    await until(async () => {
-      dv = await read(name);
-      return dv.value.value === value && dv.statusCode.equals(code);
-    }, `${name} = ${String(value)} with ${code.name}`).catch((e: Error) => {
-      throw new Error(`${e.message}; last read ${String(dv?.value.value)} with ${dv?.statusCode.name}`);
-    });
-    return dv!;
-  };
+  const read = (name: string): Promise<DataValue> => h.client.read(h.path(U, name));
+  const reaches = (name: string, value: unknown, code: StatusCode): Promise<DataValue> => h.reaches(U, name, value, code);
   const liveCodes = async () => Promise.all(LIVE.map(async (n) => (await read(n)).statusCode.name));
   const liveReach = (code: StatusCode) => until(async () => (await liveCodes()).every((c) => c === code.name), `T2, Q, Property, Progress ${code.name}`).catch(async (e: Error) => {
     throw new Error(`${e.message}; last read ${(await liveCodes()).join(', ')}`);
@@ -101,7 +72,7 @@ describe('OPC UA AnalyzerStatus and value status codes with the full server', ()
 
     // silent beyond ingest.staleAfterMs on the server's clock: the stale condition is tracked but
     // suppressed (function check announced the silence), AnalyzerStatus stays function check
-    offset += 120_000;
+    h.advance(120_000);
     await reaches('DataStale', true, StatusCodes.Good);
     await reaches('AnalyzerStatus', 2, StatusCodes.Good);
     expect((await read('AnalyzerStatusText')).value.value).toBe('function-check');

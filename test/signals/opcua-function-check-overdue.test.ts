@@ -13,55 +13,30 @@
 import { StatusCodes, type DataValue, type StatusCode } from 'node-opcua';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { simulateDryerBatch } from '../../simulators/batch.ts';
-import { login, Peer, startTestServer, type TestServer } from '../server/helpers.ts';
-import { buildSmallDryerModel, installModel } from '../server/model-fixture.ts';
-import { connectClient, type TestClient } from './helpers/opcua-client.ts';
+import { Peer, type TestServer } from '../server/helpers.ts';
+import { startOpcuaHarness, until, type OpcuaHarness } from './helpers/opcua-harness.ts';
 
 const U = 'dryer-1';
-const P = (name: string) => `/Objects/1:Tideline/1:${U}/1:${name}`;
 const MIN = 60_000;
 
-async function until(cond: () => boolean | Promise<boolean>, what: string, ms = 30_000): Promise<void> {
-  const end = Date.now() + ms;
-  while (!(await cond())) {
-    if (Date.now() > end) throw new Error(`timed out waiting for ${what}`);
-    await new Promise((r) => setTimeout(r, 25));
-  }
-}
-
 describe('OPC UA: function check beyond ingest.functionCheckMaxMs with the full server', () => {
+  let h: OpcuaHarness;
   let ts: TestServer;
-  let client: TestClient;
-  let offset = 0; // the server's clock runs ahead of the wall clock by this much
-  const events: Record<string, unknown>[] = [];
+  let events: Record<string, unknown>[];
 
   beforeAll(async () => {
-    ts = await startTestServer(
-      { ingest: { staleAfterMs: MIN, functionCheckMaxMs: 15 * MIN }, signals: { pollMs: 20, opcua: { port: 0, securityModes: ['None'], allowAnonymous: true, heartbeatMs: 200 } } } as never,
-      { now: () => Date.now() + offset },
-    );
-    const { model, text } = buildSmallDryerModel(11);
-    await installModel(ts.server.ctx.storage, text, model, U);
-    await ts.server.ctx.ingest.refreshDeployment(U);
-    const admin = await login(ts, 'administrator');
-    client = await connectClient((await admin.get('/api/signals')).body.opcua.endpointUrl);
-    await client.watchEvents(['ConditionName', 'ActiveState.Id', 'SuppressedOrShelved', 'Message'], (e) => events.push(e));
+    h = await startOpcuaHarness({ ingest: { staleAfterMs: MIN, functionCheckMaxMs: 15 * MIN }, eventFields: ['ConditionName', 'ActiveState.Id', 'SuppressedOrShelved', 'Message'], modelOn: U });
+    ts = h.ts;
+    events = h.events;
   }, 120_000);
 
   afterAll(async () => {
-    await client?.close();
-    await ts?.stop();
+    await h?.stop();
   });
 
-  const read = (name: string): Promise<DataValue> => client.read(P(name));
+  const read = (name: string): Promise<DataValue> => h.client.read(h.path(U, name));
   const reaches = async (name: string, value: unknown, code: StatusCode): Promise<void> => {
-    let dv: DataValue | null = null;
-    await until(async () => {
-      dv = await read(name);
-      return dv.value.value === value && dv.statusCode.equals(code);
-    }, `${name} = ${String(value)} with ${code.name}`).catch((e: Error) => {
-      throw new Error(`${e.message}; last read ${String(dv?.value.value)} with ${dv?.statusCode.name}`);
-    });
+    await h.reaches(U, name, value, code);
   };
   const seen = (name: string, active: boolean, suppressed: boolean | null) =>
     events.some((e) => e.ConditionName === name && e['ActiveState.Id'] === active && (suppressed === null || e.SuppressedOrShelved === suppressed));
@@ -82,7 +57,7 @@ describe('OPC UA: function check beyond ingest.functionCheckMaxMs with the full 
     await reaches('AnalyzerStatus', 2, StatusCodes.Good);
 
     // silent 2 min (beyond staleAfterMs, within the limit): DataStale active but suppressed
-    offset += 2 * MIN;
+    h.advance(2 * MIN);
     await until(() => seen('DataStale', true, true), 'DataStale active, suppressed');
     await reaches('AnalyzerStatus', 2, StatusCodes.Good);
     const modelSuppressed = events.filter((e) => ['T2Limit', 'QLimit'].includes(e.ConditionName as string) && e['ActiveState.Id'] === true && e.SuppressedOrShelved === true);
@@ -90,7 +65,7 @@ describe('OPC UA: function check beyond ingest.functionCheckMaxMs with the full 
     expect(seen('AnalyzerFault', true, null)).toBe(false);
 
     // 16 min in function check: Tideline's own analyzer alarm, the suppression lapses
-    offset += 14 * MIN;
+    h.advance(14 * MIN);
     await until(() => seen('AnalyzerFault', true, false), 'AnalyzerFault active');
     const fault = events.find((e) => e.ConditionName === 'AnalyzerFault' && e['ActiveState.Id'] === true)!;
     expect(message(fault)).toMatch(/analyzer nir-1 has been in function check \(NE 107 C\) for 16(\.\d)? min during batch D1-FC, beyond the limit of 15 min \(ingest\.functionCheckMaxMs\)/);

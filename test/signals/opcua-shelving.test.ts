@@ -9,39 +9,28 @@
  */
 import { AttributeIds, DataType, StatusCodes, type LocalizedText, type NodeId } from 'node-opcua';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { login, Peer, startTestServer, type TestServer } from '../server/helpers.ts';
-import { connectClient, type TestClient } from './helpers/opcua-client.ts';
+import { login, Peer, type TestServer } from '../server/helpers.ts';
+import type { TestClient } from './helpers/opcua-client.ts';
+import { startOpcuaHarness, until, type OpcuaHarness } from './helpers/opcua-harness.ts';
 
 const U = 'dryer-1';
 const C = `/Objects/1:Tideline/1:${U}/1:DataStale`;
 
-async function until(cond: () => boolean | Promise<boolean>, what: string, ms = 30_000): Promise<void> {
-  const end = Date.now() + ms;
-  while (!(await cond())) {
-    if (Date.now() > end) throw new Error(`timed out waiting for ${what}`);
-    await new Promise((r) => setTimeout(r, 25));
-  }
-}
-
 describe('OPC UA condition shelving mirrors Tideline shelving', () => {
+  let h: OpcuaHarness;
   let ts: TestServer;
   let client: TestClient;
-  let offset = 0; // the server's clock runs ahead of the wall clock by this much (shelve expiry)
-  const events: Record<string, unknown>[] = [];
+  let events: Record<string, unknown>[];
 
   beforeAll(async () => {
-    ts = await startTestServer(
-      { ingest: { staleAfterMs: 1500 }, signals: { pollMs: 20, opcua: { port: 0, securityModes: ['None'], allowAnonymous: true, heartbeatMs: 200 } } } as never,
-      { now: () => Date.now() + offset },
-    );
-    const admin = await login(ts, 'administrator');
-    client = await connectClient((await admin.get('/api/signals')).body.opcua.endpointUrl);
-    await client.watchEvents(['ConditionName', 'ActiveState.Id', 'AckedState.Id', 'SuppressedOrShelved', 'Comment', 'ClientUserId', 'Message'], (e) => events.push(e));
+    h = await startOpcuaHarness({ ingest: { staleAfterMs: 1500 }, eventFields: ['ConditionName', 'ActiveState.Id', 'AckedState.Id', 'SuppressedOrShelved', 'Comment', 'ClientUserId', 'Message'] });
+    ts = h.ts;
+    client = h.client;
+    events = h.events;
   }, 60_000);
 
   afterAll(async () => {
-    await client?.close();
-    await ts?.stop();
+    await h?.stop();
   });
 
   const currentState = async () => ((await client.read(`${C}/0:ShelvingState/0:CurrentState`)).value.value as LocalizedText).text;
@@ -115,7 +104,7 @@ describe('OPC UA condition shelving mirrors Tideline shelving', () => {
     expect((await operator.post(`/api/alarms/${stale.id}/shelve`, { minutes: 1, reason: 'sample drawn' })).status).toBe(200);
     await until(async () => (await currentState()) === 'TimedShelved', 'TimedShelved again');
     const n = events.length;
-    offset += 2 * 60_000;
+    h.advance(2 * 60_000);
     await until(async () => (await currentState()) === 'Unshelved', 'Unshelved after expiry');
     await until(() => events.slice(n).some((e) => e.ConditionName === 'DataStale' && e.SuppressedOrShelved === false), 'expiry event');
     const after = (await operator.get(`/api/alarms?unit=${U}`)).body.items.find((a: { id: string }) => a.id === stale.id);
