@@ -338,8 +338,21 @@ export interface ModelEnvelopeView {
   /** Per-progress limits when the model has them, else null. */
   local: { t2: number[]; q: number[] } | null;
   limits: { t2: number; q: number; combined: number | null; confidence: number };
-  /** Reference batches' score paths for drawing (optional thin lines). */
-  references: { batch: string; progress: number[]; scores: number[][] }[];
+  /** Empty here: the reference batches' paths come from GET …/references (ModelReferencesView). */
+  references: ReferencePath[];
+}
+
+/** A reference batch's path: replayed through the version's monitor, at most 200 points; scores[i][pc − 1] at progress[i]. */
+export interface ReferencePath {
+  batch: string;
+  progress: number[];
+  scores: number[][];
+}
+
+/** GET /api/models/versions/:version/references: the reference batches' paths, for drawing (thin lines). */
+export interface ModelReferencesView {
+  versionId: string;
+  references: ReferencePath[];
 }
 
 export interface BuildModelRequest {

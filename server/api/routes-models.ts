@@ -3,7 +3,7 @@ import { z } from 'zod';
 import type { ModelSummary, Page } from '../../core/api/rest.ts';
 import type { ServerContext } from '../context.ts';
 import { SignatureError } from '../auth/types.ts';
-import { ModelRequestError, buildFromStored, envelopeView, evaluateVersion, versionDetail } from '../models/model-service.ts';
+import { ModelRequestError, buildFromStored, envelopeView, evaluateVersion, referencesView, versionDetail } from '../models/model-service.ts';
 import { HttpProblem, conflict, notFound } from './problem.ts';
 import type { RouteTable } from './route-table.ts';
 import type { SqliteStorage } from '../storage/sqlite-storage.ts';
@@ -50,6 +50,10 @@ export function addModelRoutes(t: RouteTable, ctx: ServerContext) {
   t.add({
     method: 'get', path: '/models/versions/:version/envelope', summary: 'The golden envelope of a model version, ready to draw', role: 'viewer', response: 'ModelEnvelopeView',
     params: versionParams, handler: async ({ params }) => guard(async () => envelopeView(ctx, await load(params.version))),
+  });
+  t.add({
+    method: 'get', path: '/models/versions/:version/references', summary: "The reference batches' paths on the version's progress axis (replayed once per version, then kept), for drawing", role: 'viewer', response: 'ModelReferencesView',
+    params: versionParams, handler: async ({ params }) => guard(async () => referencesView(ctx, await load(params.version))),
   });
   t.add({
     method: 'post', path: '/models/build', summary: 'Build a draft model version from ended reference batches and settings (computed in a worker thread; answered when done; 409 while another build runs)', role: 'model-owner',

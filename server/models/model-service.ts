@@ -3,7 +3,7 @@
  * in a worker thread by build-runner.ts), register an immutable version with its hash, evaluate a version by replaying stored batches.
  */
 import { randomUUID } from 'node:crypto';
-import type { BatchEvaluation, EvaluationResult, ModelEnvelopeView, ModelVersionDetail } from '../../core/api/rest.ts';
+import type { BatchEvaluation, EvaluationResult, ModelEnvelopeView, ModelReferencesView, ModelVersionDetail } from '../../core/api/rest.ts';
 import type { ServerContext } from '../context.ts';
 import type { MonitoringModelLike, ReferenceBatchInput } from '../monitor/core-monitor.ts';
 import type { ModelVersionRow } from '../storage/storage.ts';
@@ -176,8 +176,58 @@ export async function envelopeView(ctx: ServerContext, row: ModelVersionRow): Pr
     scores: env.pcs.map((p, i) => ({ pc: i + 1, expected: p.mean, lower: p.lower, upper: p.upper })),
     local: env.t2Limit?.length ? { t2: env.t2Limit, q: env.qLimit } : null,
     limits: { t2: model.limits.t2.value, q: model.limits.q.value, combined: model.limits.combined?.value ?? null, confidence: model.limits.t2.confidence },
+    // drawn from GET …/references (referencesView), which replays the reference batches: kept out
+    // of this answer so the envelope comes at once
     references: [],
   };
+}
+
+/** The reference batches' paths of a version (GET /api/models/versions/:version/references). */
+export async function referencesView(ctx: ServerContext, row: ModelVersionRow): Promise<ModelReferencesView> {
+  const model = (await ctx.ingest.loadModel(row.id)) as ModelShape | null;
+  if (!model) throw new ModelRequestError(503, 'batch monitoring is not available on this server');
+  return { versionId: row.id, references: await referenceTrajectories(ctx, row, model) };
+}
+
+/** Points kept per reference batch in the envelope view (evenly spaced, first and last kept). */
+const REFERENCE_POINTS = 200;
+/** Reference batches drawn at most (evenly chosen when a model has more). */
+const REFERENCE_BATCHES = 30;
+const referenceCache = new WeakMap<ServerContext, Map<string, ModelEnvelopeView['references']>>();
+
+/**
+ * The reference batches' paths on the model's own progress axis: each stored reference batch replayed
+ * through a batch monitor of this version (so progress and scores are exactly what the live monitor
+ * would have shown), thinned to REFERENCE_POINTS points. A version is immutable, so the result is
+ * kept per version for the life of the server. Reference batches no longer stored (imported
+ * elsewhere, deleted) or on another wavelength axis are left out.
+ */
+async function referenceTrajectories(ctx: ServerContext, row: ModelVersionRow, model: ModelShape): Promise<ModelEnvelopeView['references']> {
+  let cache = referenceCache.get(ctx);
+  if (!cache) referenceCache.set(ctx, (cache = new Map()));
+  const hit = cache.get(row.id);
+  if (hit) return hit;
+  const core = await ctx.ingest.getCore();
+  const ids = row.referenceBatches;
+  const chosen = ids.length <= REFERENCE_BATCHES ? ids : Array.from({ length: REFERENCE_BATCHES }, (_, i) => ids[Math.round((i * (ids.length - 1)) / (REFERENCE_BATCHES - 1))]!);
+  const out: ModelEnvelopeView['references'] = [];
+  for (const id of chosen) {
+    const b = await ctx.storage.getBatch(id);
+    if (!b || b.axis.length !== model.chain.inputAxis.length) continue;
+    const mon = core.createBatchMonitor(model, b.startT);
+    const progress: number[] = [];
+    const scores: number[][] = [];
+    for await (const sp of ctx.storage.iterateSpectra(id)) {
+      const r = mon.push(sp.seq, sp.t, sp.values);
+      progress.push(r.progress);
+      scores.push(r.scores);
+    }
+    if (progress.length === 0) continue;
+    const keep = progress.length <= REFERENCE_POINTS ? progress.map((_, i) => i) : Array.from({ length: REFERENCE_POINTS }, (_, i) => Math.round((i * (progress.length - 1)) / (REFERENCE_POINTS - 1)));
+    out.push({ batch: id, progress: keep.map((i) => progress[i]!), scores: keep.map((i) => scores[i]!) });
+  }
+  cache.set(row.id, out);
+  return out;
 }
 
 /**

@@ -126,6 +126,21 @@ describe('REST: models — build, evaluate, approve (signature), deploy, retire'
     r = await viewer.get(`/api/models/versions/${versionId}/envelope`);
     expect(r.body.scores.length).toBe(2);
     expect(r.body.scores[0].expected.length).toBe(r.body.progress.length);
+    // the reference batches' paths, replayed through this version: one per stored reference batch,
+    // progress never falling (time or a running-maximum indicator), 2 scores per point
+    expect(r.body.references).toEqual([]); // the envelope answers at once; the paths come from /references
+    const rr = await viewer.get(`/api/models/versions/${versionId}/references`);
+    expect(rr.body.versionId).toBe(versionId);
+    const refsView = rr.body.references as { batch: string; progress: number[]; scores: number[][] }[];
+    const detail = (await viewer.get(`/api/models/versions/${versionId}`)).body;
+    expect(refsView.map((x) => x.batch).sort()).toEqual([...detail.referenceBatches].sort());
+    for (const x of refsView) {
+      expect(x.progress.length).toBeGreaterThan(1);
+      expect(x.progress.length).toBeLessThanOrEqual(200);
+      expect(x.scores.length).toBe(x.progress.length);
+      expect(x.scores.every((p) => p.length === 2 && p.every(Number.isFinite))).toBe(true);
+      for (let i = 1; i < x.progress.length; i++) expect(x.progress[i]!).toBeGreaterThanOrEqual(x.progress[i - 1]!);
+    }
   }, 120_000);
   it('evaluates on chosen batches', async () => {
     const r = await admin.post(`/api/models/versions/${versionId}/evaluate`, { batches: [refs[1]!.id] });

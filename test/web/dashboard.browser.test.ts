@@ -150,6 +150,8 @@ describe.skipIf(!haveChromium)('dashboard in headless Chromium', () => {
     await ep.getByTestId('pace').getByText(/golden batches .* \(alarm beyond /).waitFor({ timeout: 120_000 });
     expect(await ep.locator('table.criteria tbody tr').count()).toBeGreaterThan(0);
     await ep.getByText(/Tideline advises/).waitFor();
+    // the reference batches' paths arrive separately and are drawn in the score plane
+    await page.getByTestId('plane-chart').getByText('reference batches').waitFor({ timeout: 60_000 });
     await shot('watch-dryer');
     // Click a point on the T² chart: contributions by wavelength appear.
     const box = (await page.getByTestId('stat-chart-t2').locator('.u-over').boundingBox())!;
@@ -220,6 +222,8 @@ describe.skipIf(!haveChromium)('dashboard in headless Chromium', () => {
     await page.getByTestId('point-count').waitFor({ timeout: 120_000 });
     await page.getByTestId('stat-chart-q').getByText('Q alarm limit (99.9 %)').waitFor({ timeout: 60_000 });
     await page.getByTestId('endpoint-panel').getByText(/Predicted conversion/).waitFor({ timeout: 60_000 });
+    await page.getByTestId('score-chart-pc1').getByText('golden envelope', { exact: true }).waitFor({ timeout: 60_000 });
+    await page.getByTestId('plane-chart').getByText('reference batches').waitFor({ timeout: 60_000 });
     await shot('watch-reactor');
     expect(pageErrors.join("\n")).toBe("");
   }, 180_000);

@@ -303,6 +303,8 @@ function MultiLine({ title, axis, rows, labels, xLabel, yLabel, yLog }: { title:
 function VersionDetail({ version, me }: { version: string; me: Me | null }) {
   const detail = useAsync(() => api.modelVersion(version), [version]);
   const env = useAsync(() => api.envelope(version), [version]);
+  const refsView = useAsync(() => api.references(version), [version]);
+  const envWithRefs = useMemo(() => (env.data && refsView.data ? { ...env.data, references: refsView.data.references } : env.data), [env.data, refsView.data]);
   const d = detail.data;
   if (detail.loading && !d) return <Loading what="model version" />;
   if (detail.error) return <ErrorBox message={detail.error} onRetry={detail.reload} />;
@@ -361,7 +363,7 @@ function VersionDetail({ version, me }: { version: string; me: Me | null }) {
         <ExplainedChart d={d} />
         <Calibration d={d} />
       </div>
-      <EnvelopePreview env={env.data} error={env.error} />
+      <EnvelopePreview env={envWithRefs} error={env.error} />
       <Evaluation d={d} onDone={detail.reload} />
       <div class="two-col">
         <Approve d={d} me={me} onDone={detail.reload} />

@@ -27,6 +27,9 @@ export function Watch({ unit, now }: { unit: string; now: number }) {
   const s = live.state;
   const modelId = s.model?.versionId ?? s.batch?.model?.versionId ?? null;
   const env = useAsync(() => (modelId ? api.envelope(modelId) : Promise.resolve(null)), [modelId]);
+  // the reference batches' paths come separately (the server replays them once per version)
+  const refsView = useAsync(() => (modelId ? api.references(modelId) : Promise.resolve(null)), [modelId]);
+  const planeEnv = useMemo(() => (env.data && refsView.data ? { ...env.data, references: refsView.data.references } : env.data), [env.data, refsView.data]);
   const [pcs, setPcs] = useState<number[]>([1, 2]);
   const [plane, setPlane] = useState<[number, number]>([1, 2]);
   const [log, setLog] = useState(false);
@@ -113,7 +116,7 @@ export function Watch({ unit, now }: { unit: string; now: number }) {
                 <h2>Score plane</h2>
                 <PlanePick pcs={pcChoices} value={plane} onChange={setPlane} />
               </div>
-              <PlaneChart live={live} env={envData} a={plane[0]} b={plane[1]} />
+              <PlaneChart live={live} env={planeEnv} a={plane[0]} b={plane[1]} />
             </div>
             <SpectrumPanel batch={s.batch.id} seq={pickedSeq ?? s.latest?.seq ?? null} following={pickedSeq === null} latestT={s.latest?.t ?? null} />
           </div>
