@@ -19,9 +19,11 @@ export const endpointCriterionSpecSchema = z.discriminatedUnion('kind', [
    * z(confidence)·RMSECV of the property model, a one-sided bound on the prediction error, so a
    * batch is called done only when its property is past the target with that confidence
    * (conservative release decision; the RMSECV from segments of whole batches carries the
-   * batch-to-batch bias). Omitted: 0.
+   * batch-to-batch bias). Omitted: 0. marginConfidence: the one-sided confidence of the 'auto'
+   * margin when it should differ from the model's confidence (e.g. 0.7: z = 0.52, about half the
+   * RMSECV — a dryer called late by a spectrum or two costs little, one called early leaves wet product).
    */
-  z.object({ kind: z.literal('property'), target: z.number().optional(), direction: z.enum(['below', 'above']).optional(), margin: z.union([z.number().nonnegative(), auto]).optional() }),
+  z.object({ kind: z.literal('property'), target: z.number().optional(), direction: z.enum(['below', 'above']).optional(), margin: z.union([z.number().nonnegative(), auto]).optional(), marginConfidence: z.number().gt(0.5).lt(1).optional() }),
   z.object({ kind: z.literal('mbsd'), block: z.number().int().min(2).max(50), threshold: z.union([z.number().positive(), auto]) }),
   z.object({ kind: z.literal('plateau'), pc: z.number().int().min(1), window: z.number().int().min(3).max(200), tolerance: z.union([z.number().positive(), auto]) }),
   z.object({ kind: z.literal('golden-end') }),

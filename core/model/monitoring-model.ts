@@ -245,8 +245,9 @@ export function buildMonitoringModel(batches: ReferenceBatch[], settingsInput: u
         if (c.margin !== 'auto') return { ...base, margin: c.margin, marginMethod: 'fixed by the model owner' };
         const rmsecv = pls!.rmsecv?.[pls!.components - 1];
         if (rmsecv === undefined || !Number.isFinite(rmsecv)) throw new RangeError('endpoint criterion "property": margin "auto" needs the cross-validated error of the property model');
-        const z = normalQuantile(conf, 0, 1);
-        return { ...base, margin: z * rmsecv, marginMethod: `z(${conf})·RMSECV = ${z.toFixed(3)} × ${rmsecv.toPrecision(3)} ${settings.property!.unit} (one-sided bound on the prediction error)` };
+        const mc = c.marginConfidence ?? conf;
+        const z = normalQuantile(mc, 0, 1);
+        return { ...base, margin: z * rmsecv, marginMethod: `z(${mc})·RMSECV = ${z.toFixed(3)} × ${rmsecv.toPrecision(3)} ${settings.property!.unit} (one-sided bound on the prediction error)` };
       }
       case 'mbsd': {
         if (c.threshold !== 'auto') return { kind: 'mbsd', block: c.block, threshold: c.threshold };
