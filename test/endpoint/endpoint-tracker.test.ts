@@ -50,5 +50,6 @@ describe('endpoint state machine (issue 4: running → nearing → settling → 
   it('validates the rule and names the bad field', () => {
     expect(() => validateEndpointRuleSpec({ criteria: [], combine: 'all', confirm: 3, nearingMin: 5 })).toThrow(/criteria/);
     expect(() => validateEndpointRuleSpec({ criteria: [{ kind: 'mbsd', block: 1, threshold: 'auto' }], combine: 'all', confirm: 3, nearingMin: 5 })).toThrow(/criteria\.0\.block/);
+    expect(() => validateEndpointRuleSpec({ criteria: [{ kind: 'property', margin: 'auto', marginConfidence: 0.4 }], combine: 'all', confirm: 3, nearingMin: 5 })).toThrow(/criteria\.0\.marginConfidence/);
   });
 });

@@ -1,5 +1,6 @@
 import { beforeAll, describe, expect, it } from 'vitest';
 import { runEvaluation, STEP_FAULTS } from '../../scripts/evaluate.ts';
+import type { MonitoringModel } from '../../core/model/monitoring-model.ts';
 import { clopperPearson, evaluationMarkdown, type EvaluationFigures } from '../../core/evaluate/evaluate-model.ts';
 import { scipyNamed } from '../limits/scipy.ts';
 import { staleAlarmTime } from '../../core/evaluate/stale.ts';
@@ -7,9 +8,10 @@ import { staleAlarmTime } from '../../core/evaluate/stale.ts';
 // Issue 4 targets, asserted on a fixed seed set (smaller than `npm run evaluate`'s default run so the
 // test stays near a minute; the same 30 good batches as the script, fewer fault batches).
 let f: EvaluationFigures;
+let model: MonitoringModel;
 
 beforeAll(() => {
-  f = runEvaluation({
+  const r = runEvaluation({
     kind: 'dryer',
     reference: 30,
     good: 30,
@@ -17,7 +19,9 @@ beforeAll(() => {
     seed: 2026,
     faults: STEP_FAULTS,
     // the per-kind defaults (core/model/default-settings.ts), as the demo and `npm run evaluate` use
-  }).figures;
+  });
+  f = r.figures;
+  model = r.model;
 }, 180_000);
 
 describe('evaluation on simulated dryer batches (issue 4 targets)', () => {
@@ -34,6 +38,14 @@ describe('evaluation on simulated dryer batches (issue 4 targets)', () => {
       expect(f.detection_delay_median[t]).not.toBeNull();
       expect(f.detection_delay_median[t]!).toBeLessThanOrEqual(10);
     }
+  });
+  it('the endpoint margin is z(0.7)·RMSECV of the moisture model (marginConfidence 0.7)', () => {
+    const c = model.endpoint.criteria[0]!;
+    if (c.kind !== 'property') throw new Error('expected the property criterion');
+    const rmsecv = model.pls!.rmsecv![model.pls!.components - 1]!;
+    // z(0.70) = 0.5244 (NIST/SEMATECH handbook 1.3.6.7.1, normal table; scipy norm.ppf(0.7) = 0.524401)
+    expect(c.margin!).toBeCloseTo(0.524401 * rmsecv, 5);
+    expect(c.marginMethod).toMatch(/^z\(0\.7\)·RMSECV/);
   });
   it('endpoint: median error ≤ 2 intervals, never more than 1 interval early, none missed', () => {
     expect(f.endpoint_error_median).not.toBeNull();
