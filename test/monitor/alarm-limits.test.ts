@@ -10,18 +10,15 @@ import { simulateReferenceSet, type SimulatedBatch } from '../../simulators/batc
 import { buildMonitoringModel, parseMonitoringModel, serializeMonitoringModel, type MonitoringModel } from '../../core/model/monitoring-model.ts';
 import { createBatchMonitor } from '../../core/monitor/batch-monitor.ts';
 import { scipyNamed } from '../limits/scipy.ts';
+import { DRYER_TEST_SETTINGS } from './settings-fixture.ts';
 
 const settings = {
+  ...DRYER_TEST_SETTINGS,
   name: 'two-level limits',
-  product: 'granulate',
-  author: 'test',
-  createdAt: Date.UTC(2026, 0, 1),
-  chain: [{ step: 'scale', center: true, scaling: 'none' }],
-  components: 3,
-  confidence: 0.99,
   progress: { kind: 'time' },
   envelope: { k: 3, smoothing: 2, points: 40, band: 'prediction' },
-  alarms: { onDelay: 3, onWindow: 5, offDelay: 5, deadband: 0.05, limits: 'global', startupMin: 0, confidence: 0.999 },
+  alarms: { ...DRYER_TEST_SETTINGS.alarms, limits: 'global', startupMin: 0, confidence: 0.999 },
+  property: undefined,
   endpoint: { criteria: [{ kind: 'mbsd', block: 5, threshold: 'auto' }], combine: 'all', confirm: 3, nearingMin: 10 },
 };
 

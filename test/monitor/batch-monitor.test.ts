@@ -5,21 +5,9 @@ import { createBatchMonitor, replayBatch } from '../../core/monitor/batch-monito
 import { compareBatch } from '../../core/compare/compare-batch.ts';
 import type { MonitorResult } from '../../core/monitor/types.ts';
 import { execFileSync } from 'node:child_process';
+import { DRYER_TEST_SETTINGS } from './settings-fixture.ts';
 
-const settings = {
-  name: 'test dryer model',
-  product: 'granulate',
-  author: 'test',
-  createdAt: Date.UTC(2026, 0, 1),
-  chain: [{ step: 'scale', center: true, scaling: 'none' }],
-  components: 3,
-  confidence: 0.99,
-  progress: { kind: 'indicator', source: 'property' },
-  envelope: { k: 3, smoothing: 2, points: 60 },
-  alarms: { onDelay: 3, onWindow: 5, offDelay: 5, deadband: 0.05, startupMin: 2 },
-  property: { name: 'moisture', unit: '% w/w', components: 3, target: 2, direction: 'below', chain: [{ step: 'msc' }, { step: 'scale', center: true, scaling: 'none' }], range: [0, 4] },
-  endpoint: { criteria: [{ kind: 'property' }, { kind: 'mbsd', block: 5, threshold: 'auto' }], combine: 'any', confirm: 3, nearingMin: 10 },
-};
+const settings = DRYER_TEST_SETTINGS;
 
 let ref: SimulatedBatch[];
 let model: MonitoringModel;

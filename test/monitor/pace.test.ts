@@ -10,6 +10,7 @@ import type { Envelope } from '../../core/envelope/envelope.ts';
 import { simulateBatch, simulateReferenceSet, type SimulatedBatch } from '../../simulators/batch.ts';
 import { buildMonitoringModel, type MonitoringModel } from '../../core/model/monitoring-model.ts';
 import { createBatchMonitor } from '../../core/monitor/batch-monitor.ts';
+import { DRYER_TEST_SETTINGS } from './settings-fixture.ts';
 
 // Five reference batches on a 6-point grid: minutes at which each reached each point (null: never /
 // started beyond). Batch 4 started beyond point 1.
@@ -68,17 +69,10 @@ describe('PaceCheck', () => {
 
 describe('pace in the batch monitor', () => {
   const settings = {
+    ...DRYER_TEST_SETTINGS,
     name: 'pace',
-    product: 'granulate',
-    author: 'test',
-    createdAt: Date.UTC(2026, 0, 1),
-    chain: [{ step: 'scale', center: true, scaling: 'none' }],
-    components: 3,
-    confidence: 0.99,
-    progress: { kind: 'indicator', source: 'property' },
     envelope: { k: 3, smoothing: 2, points: 60, band: 'prediction' },
-    alarms: { onDelay: 3, onWindow: 5, offDelay: 5, deadband: 0.05, limits: 'local', startupMin: 2, confidence: 0.999, pace: true },
-    property: { name: 'moisture', unit: '% w/w', components: 3, target: 2, direction: 'below', chain: [{ step: 'msc' }, { step: 'scale', center: true, scaling: 'none' }], range: [0, 4] },
+    alarms: { ...DRYER_TEST_SETTINGS.alarms, limits: 'local', confidence: 0.999, pace: true },
     endpoint: { criteria: [{ kind: 'property' }], combine: 'all', confirm: 2, nearingMin: 10 },
   };
   let ref: SimulatedBatch[];
