@@ -36,6 +36,16 @@ export function sdBand(values: ArrayLike<number>, k: number): Band {
   return { mean, sd, lower: mean - k * sd, upper: mean + k * sd };
 }
 
+/**
+ * Multiplier of s for one new observation from I reference values: t(p; I − 1)·√(1 + 1/I)
+ * (p = 1 − α/2 for a two-sided interval, 1 − α one-sided, 1 − α/(2A) two-sided over A PCs).
+ */
+export function newObservationMultiplier(p: number, I: number): number {
+  if (!(p > 0 && p < 1)) throw new RangeError(`quantile probability must be in (0, 1) (got ${p})`);
+  if (!(I >= 2)) throw new RangeError(`a prediction interval needs at least 2 batches (got ${I})`);
+  return tQuantile(p, I - 1) * Math.sqrt(1 + 1 / I);
+}
+
 /** Two-sided prediction interval for one new observation at confidence 1 − α. */
 export function predictionBand(values: ArrayLike<number>, confidence: number): Band & { t: number } {
   if (!(confidence > 0 && confidence < 1)) throw new RangeError(`confidence must be in (0, 1) (got ${confidence})`);

@@ -244,6 +244,17 @@ export function goldenEndProgress(env: Envelope): number {
   return s.length % 2 ? s[m] : (s[m - 1] + s[m]) / 2;
 }
 
+/**
+ * For each reference batch, the first grid point it reached (it started beyond the points before;
+ * grid.length when it reached none): those points give no time for a stretch that starts there.
+ */
+export function firstReachedPoint(env: Pick<Envelope, 'timeAtProgress'>): Int32Array {
+  return Int32Array.from(env.timeAtProgress, (row) => {
+    const i = row.findIndex((v) => v !== null);
+    return i < 0 ? row.length : i;
+  });
+}
+
 /** Fraction 0…1 of the golden course: from the start of the grid to the golden endpoint. */
 export function progressFraction(env: Envelope, progress: number, endProgress = goldenEndProgress(env)): number {
   const g0 = env.grid[0];

@@ -8,7 +8,6 @@
  * moment-matched g·χ²_h over the reference spectra near each point (Nomikos & MacGregor 1995).
  */
 import { z } from 'zod';
-import tQuantile from '@stdlib/stats-base-dists-t-quantile';
 import normalQuantile from '@stdlib/stats-base-dists-normal-quantile';
 import { denseMatrix, matrixFromRows, type DenseMatrix } from '../linalg/dense-matrix.ts';
 import { fitChain, loadChain, type FittedChain } from '../preprocess/index.ts';
@@ -18,6 +17,7 @@ import { pcaFromJSON, pcaToJSON } from '../pca/pca-json.ts';
 import type { PcaModel } from '../pca/pca-model.ts';
 import { t2Limit, qLimit, combinedLimit, type Limit } from '../limits/index.ts';
 import { buildEnvelope, type Envelope, type ReferenceTrajectory } from '../envelope/envelope.ts';
+import { newObservationMultiplier } from '../envelope/band.ts';
 import { progressOf, type ProgressAxis } from '../envelope/progress.ts';
 import { movingBlockSd } from '../envelope/mbsd.ts';
 import type { ResolvedCriterion, ResolvedEndpointRule } from '../endpoint/spec.ts';
@@ -162,14 +162,6 @@ export function buildMonitoringModel(batches: ReferenceBatch[], settingsInput: u
   const qL = qLimit('q-jackson-mudholkar', { theta: pca.residualTheta }, conf);
   const cL = combinedLimit(A, pca.residualTheta, t2L.value, qL.value, conf);
   const limits: ModelLimits = { t2: t2L, q: qL, combined: cL };
-  const alarmConf = settings.alarms.confidence;
-  let alarmLimits: AlarmLimits | undefined;
-  if (alarmConf !== undefined && alarmConf !== conf) {
-    const t2A = t2Limit('t2-f-new', A, n, alarmConf);
-    const qA = qLimit('q-jackson-mudholkar', { theta: pca.residualTheta }, alarmConf);
-    alarmLimits = { confidence: alarmConf, t2: t2A, q: qA, combined: combinedLimit(A, pca.residualTheta, t2A.value, qA.value, alarmConf), envelopeK: NaN, envelopeKMethod: '' };
-  }
-
   // Property model (PLS1) from the raw spectra through its own chain.
   let pls: PropertyModel | undefined;
   let predicted: Float64Array | null = null;
@@ -215,15 +207,24 @@ export function buildMonitoringModel(batches: ReferenceBatch[], settingsInput: u
     axis = { kind: 'indicator', source: settings.progress.source, sign: dir > 0 ? 1 : -1, alpha: 0.3 };
     trajectories.forEach((tr, bi) => { tr.progress = progressOf(axis, elapsed[bi], indicators[bi]); });
   }
-  const predictionK = (c: number) => tQuantile(1 - (1 - c) / (2 * A), batches.length - 1) * Math.sqrt(1 + 1 / batches.length);
-  const bandK = settings.envelope.band === 'prediction' ? predictionK(conf) : settings.envelope.k;
-  if (alarmLimits) {
-    const I = batches.length;
-    alarmLimits.envelopeK = settings.envelope.band === 'prediction' ? predictionK(alarmLimits.confidence) : settings.envelope.k;
-    alarmLimits.envelopeKMethod =
-      settings.envelope.band === 'prediction'
-        ? `t(1 − α/(2A); I − 1)·√(1 + 1/I) at α = ${+(1 - alarmLimits.confidence).toPrecision(3)}, A = ${A}, I = ${I}`
-        : 'k as set, band "sd"';
+  // Prediction band over A PCs at once (Bonferroni): t(1 − α/(2A); I − 1)·√(1 + 1/I).
+  const predictionK = (c: number) => newObservationMultiplier(1 - (1 - c) / (2 * A), batches.length);
+  const prediction = settings.envelope.band === 'prediction';
+  const bandK = prediction ? predictionK(conf) : settings.envelope.k;
+  // Alarm (action) limits when settings.alarms.confidence is above the drawn confidence.
+  const alarmConf = settings.alarms.confidence;
+  let alarmLimits: AlarmLimits | undefined;
+  if (alarmConf !== undefined && alarmConf !== conf) {
+    const t2A = t2Limit('t2-f-new', A, n, alarmConf);
+    const qA = qLimit('q-jackson-mudholkar', { theta: pca.residualTheta }, alarmConf);
+    alarmLimits = {
+      confidence: alarmConf,
+      t2: t2A,
+      q: qA,
+      combined: combinedLimit(A, pca.residualTheta, t2A.value, qA.value, alarmConf),
+      envelopeK: prediction ? predictionK(alarmConf) : settings.envelope.k,
+      envelopeKMethod: prediction ? `t(1 − α/(2A); I − 1)·√(1 + 1/I) at α = ${+(1 - alarmConf).toPrecision(3)}, A = ${A}, I = ${batches.length}` : 'k as set, band "sd"',
+    };
   }
   const envelope = buildEnvelope(trajectories, axis, {
     k: bandK,

@@ -14,6 +14,7 @@ import { createProjector } from '../pca/projector.ts';
 import { combinedIndex } from '../limits/index.ts';
 import { contributions as pcaContributions } from '../contributions/index.ts';
 import { goldenEndProgress, gridIndex, progressFraction } from '../envelope/envelope.ts';
+import { newObservationMultiplier } from '../envelope/band.ts';
 import { ProgressTracker } from '../envelope/progress.ts';
 import { MovingBlockSd } from '../envelope/mbsd.ts';
 import { EndpointTracker, type EndpointInputs } from '../endpoint/endpoint-tracker.ts';
@@ -23,7 +24,6 @@ import type { MonitoringModel } from '../model/monitoring-model.ts';
 import { ConditionFilter } from './condition-filter.ts';
 import { EtaEstimator } from './eta.ts';
 import { PaceCheck, type PaceStatus } from './pace.ts';
-import tQuantile from '@stdlib/stats-base-dists-t-quantile';
 import type { AlarmPriority, ConditionChange, ConditionKind, Contributions, DomainEvent, EnvelopeCheck, MonitorResult } from './types.ts';
 
 export interface BatchMonitor {
@@ -95,7 +95,7 @@ export function createBatchMonitor(model: MonitoringModel, batchStartT: number):
   const minBatches = Math.max(3, Math.ceil(env.nBatches / 3));
   // Pace (indicator axis only): one-sided band for one new batch at the alarm confidence,
   // t(conf; I − 1)·√(1 + 1/I) of ln(time), when the envelope uses prediction bands; else k sd.
-  const paceK = model.settings.envelope.band === 'prediction' ? tQuantile(aConf, env.nBatches - 1) * Math.sqrt(1 + 1 / env.nBatches) : aK;
+  const paceK = model.settings.envelope.band === 'prediction' ? newObservationMultiplier(aConf, env.nBatches) : aK;
   const pace = model.settings.alarms.pace === true && env.axis.kind === 'indicator' ? new PaceCheck(env, paceK, minBatches) : null;
   if (pace) conds.push({ kind: 'envelope', key: 'pace', label: 'pace', priority: 3, filter: new ConditionFilter(alarmSpec) });
   const paceCond = pace ? conds.length - 1 : -1;
@@ -172,11 +172,15 @@ export function createBatchMonitor(model: MonitoringModel, batchStartT: number):
       if (u.suspect) suspect = true;
       if (u.active) active.push(cd.key);
       if (u.changed) {
-        const what = c === paceCond
-          ? paceStatus
+        let what: string;
+        if (c === paceCond) {
+          what = paceStatus
             ? `pace: ${fmt(paceStatus.tookMin)} min without reaching the next progress point; the golden batches took ${fmt(paceStatus.expectedMin)} min (alarm beyond ${fmt(paceStatus.upperMin)} min, ${confPct})`
-            : 'pace no longer judged (endpoint or golden end reached)'
-          : c >= firstEnv ? `${cd.label} score ${fmt(envelope[condPc[c]].score)} is ${fmt(envelope[condPc[c]].sd)} sd from the golden path (alarm at ±${fmt(aK)} sd, ${confPct})` : `${cd.label} ${fmt(value)} ${u.active ? 'above' : 'back below'} its ${confPct} limit ${fmt(limit)}`;
+            : 'pace no longer judged (endpoint or golden end reached)';
+        } else if (c >= firstEnv) {
+          const e = envelope[condPc[c]];
+          what = `${cd.label} score ${fmt(e.score)} is ${fmt(e.sd)} sd from the golden path (alarm at ±${fmt(aK)} sd, ${confPct})`;
+        } else what = `${cd.label} ${fmt(value)} ${u.active ? 'above' : 'back below'} its ${confPct} limit ${fmt(limit)}`;
         const change: ConditionChange = { kind: cd.kind, key: cd.key, active: u.active, message: u.active ? what : `${cd.label} back within limits: ${what}`, value, limit, priority: cd.priority };
         changes.push(change);
         events.push({ type: 'condition', change, t, seq });

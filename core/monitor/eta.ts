@@ -5,7 +5,7 @@
  * percentiles of those times give the estimate and its spread. With time as progress the ratio is 1.
  * Batches that started beyond the current progress give no evidence and are left out.
  */
-import type { Envelope } from '../envelope/envelope.ts';
+import { firstReachedPoint, type Envelope } from '../envelope/envelope.ts';
 
 export class EtaEstimator {
   private readonly rem: Float64Array;
@@ -13,10 +13,7 @@ export class EtaEstimator {
   private readonly first: Int32Array;
   constructor(private readonly env: Envelope) {
     this.rem = new Float64Array(env.nBatches);
-    this.first = Int32Array.from(env.timeAtProgress, (row) => {
-      const i = row.findIndex((v) => v !== null);
-      return i < 0 ? row.length : i;
-    });
+    this.first = firstReachedPoint(env);
   }
 
   estimate(k: number, elapsedMin: number): { median: number; low: number; high: number } | null {

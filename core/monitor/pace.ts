@@ -21,7 +21,7 @@
  * `minBatches` reference batches passed both points and the golden batches needed at least
  * `minSpanMin` minutes for the stretch (below that, ln d is dominated by noise in the indicator).
  */
-import type { Envelope } from '../envelope/envelope.ts';
+import { firstReachedPoint, type Envelope } from '../envelope/envelope.ts';
 
 export interface PaceStatus {
   /** Minutes the live batch has taken since k0 (without reaching the next grid point yet). */
@@ -49,10 +49,7 @@ export class PaceCheck {
     private readonly minSpanMin = 5,
   ) {
     this.d = new Float64Array(env.nBatches);
-    this.first = Int32Array.from(env.timeAtProgress, (row) => {
-      const i = row.findIndex((v) => v !== null);
-      return i < 0 ? row.length : i;
-    });
+    this.first = firstReachedPoint(env);
   }
 
   /** Reference batches that passed through grid point k (reached it, not started beyond it). */
