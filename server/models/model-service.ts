@@ -8,6 +8,7 @@ import type { ServerContext } from '../context.ts';
 import type { MonitoringModelLike, ReferenceBatchInput } from '../monitor/core-monitor.ts';
 import type { ModelVersionRow } from '../storage/storage.ts';
 import { modelVersionSummary } from '../api/views.ts';
+import { spreadIndices } from '../../core/stats/spread-indices.ts';
 import { BuildBusyError, BuildFailedError, ModelBuildRunner, packReferenceBatch, type BuildInfo, type BuiltModelFile } from './build-runner.ts';
 import type { PackedReferenceBatch } from './build-worker.ts';
 
@@ -209,7 +210,7 @@ async function referenceTrajectories(ctx: ServerContext, row: ModelVersionRow, m
   if (hit) return hit;
   const core = await ctx.ingest.getCore();
   const ids = row.referenceBatches;
-  const chosen = ids.length <= REFERENCE_BATCHES ? ids : Array.from({ length: REFERENCE_BATCHES }, (_, i) => ids[Math.round((i * (ids.length - 1)) / (REFERENCE_BATCHES - 1))]!);
+  const chosen = spreadIndices(ids.length, REFERENCE_BATCHES).map((i) => ids[i]!);
   const out: ModelEnvelopeView['references'] = [];
   for (const id of chosen) {
     const b = await ctx.storage.getBatch(id);
@@ -223,7 +224,7 @@ async function referenceTrajectories(ctx: ServerContext, row: ModelVersionRow, m
       scores.push(r.scores);
     }
     if (progress.length === 0) continue;
-    const keep = progress.length <= REFERENCE_POINTS ? progress.map((_, i) => i) : Array.from({ length: REFERENCE_POINTS }, (_, i) => Math.round((i * (progress.length - 1)) / (REFERENCE_POINTS - 1)));
+    const keep = spreadIndices(progress.length, REFERENCE_POINTS);
     out.push({ batch: id, progress: keep.map((i) => progress[i]!), scores: keep.map((i) => scores[i]!) });
   }
   cache.set(row.id, out);
