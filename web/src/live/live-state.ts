@@ -105,6 +105,8 @@ export function appendResult(s: LiveState, r: MonitorResult): boolean {
     s.ignored++;
     return false;
   }
+  // alarm limits drawn only when the model has action limits above the drawn ones
+  const al = r.alarmLimits && r.alarmLimits.confidence !== r.limits.confidence ? r.alarmLimits : null;
   const row: Partial<Record<Column, number>> = {
     seq: r.seq,
     t: r.t,
@@ -117,9 +119,8 @@ export function appendResult(s: LiveState, r: MonitorResult): boolean {
     qLimit: r.limits.q,
     localT2: r.localLimits?.t2,
     localQ: r.localLimits?.q,
-    // drawn only when the model has action limits above the drawn ones
-    alarmT2: r.alarmLimits && r.alarmLimits.confidence !== r.limits.confidence ? r.alarmLimits.t2 : undefined,
-    alarmQ: r.alarmLimits && r.alarmLimits.confidence !== r.limits.confidence ? r.alarmLimits.q : undefined,
+    alarmT2: al?.t2,
+    alarmQ: al?.q,
     outside: outsideEnvelope(r) || r.t2 > r.limits.t2 || r.q > r.limits.q ? 1 : 0,
     prediction: r.prediction?.value,
   };

@@ -15,6 +15,7 @@ import { Advisory, Badge, Empty, ErrorBox, Loading } from '../components/status.
 import { Chart } from '../charts/chart.tsx';
 import { linesOptions, scoreChartOptions } from '../charts/chart-options.ts';
 import { ScatterSvg } from '../charts/scatter-svg.tsx';
+import { useEnvelope } from './use-envelope.ts';
 import { CHAIN_PRESETS, buildSettingsFromForm, spreadIndices, summariseEvaluation } from './bench-data.ts';
 import { progressLabel, scoreBand } from './watch-data.ts';
 import { sortedByAxis } from './spectrum-data.ts';
@@ -302,9 +303,7 @@ function MultiLine({ title, axis, rows, labels, xLabel, yLabel, yLog }: { title:
 
 function VersionDetail({ version, me }: { version: string; me: Me | null }) {
   const detail = useAsync(() => api.modelVersion(version), [version]);
-  const env = useAsync(() => api.envelope(version), [version]);
-  const refsView = useAsync(() => api.references(version), [version]);
-  const envWithRefs = useMemo(() => (env.data && refsView.data ? { ...env.data, references: refsView.data.references } : env.data), [env.data, refsView.data]);
+  const { env, withReferences: envWithRefs } = useEnvelope(version);
   const d = detail.data;
   if (detail.loading && !d) return <Loading what="model version" />;
   if (detail.error) return <ErrorBox message={detail.error} onRetry={detail.reload} />;

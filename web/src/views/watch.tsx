@@ -3,8 +3,6 @@ import { useEffect, useMemo, useRef, useState } from 'preact/hooks';
 import type uPlot from 'uplot';
 import type { ModelEnvelopeView } from '../../../core/api/rest.ts';
 import type { EndpointStatus } from '../../../core/monitor/types.ts';
-import { api } from '../api/endpoints.ts';
-import { useAsync } from '../components/use-async.ts';
 import { useLive } from '../live/use-live.ts';
 import type { LiveState } from '../live/live-state.ts';
 import { envCol } from '../live/live-state.ts';
@@ -16,6 +14,7 @@ import { ConnectionNote } from './floor.tsx';
 import { AlarmList } from './alarm-list.tsx';
 import { ContributionsPanel } from './contributions-panel.tsx';
 import { SpectrumPanel } from './spectrum-panel.tsx';
+import { useEnvelope } from './use-envelope.ts';
 import { availablePcs, goldenPath, hasAlarmLimit, hasLocal, progressLabel, referencePaths, scoreBand, scoreData, statData, statLines } from './watch-data.ts';
 import { ENDPOINT_WORDS } from '../format/status-words.ts';
 import { clock, eta, limitName, minutes, percent, sig, withUnit } from '../format/number-format.ts';
@@ -26,10 +25,7 @@ export function Watch({ unit, now }: { unit: string; now: number }) {
   const live = useLive({ kind: 'unit', unit }, 20_000);
   const s = live.state;
   const modelId = s.model?.versionId ?? s.batch?.model?.versionId ?? null;
-  const env = useAsync(() => (modelId ? api.envelope(modelId) : Promise.resolve(null)), [modelId]);
-  // the reference batches' paths come separately (the server replays them once per version)
-  const refsView = useAsync(() => (modelId ? api.references(modelId) : Promise.resolve(null)), [modelId]);
-  const planeEnv = useMemo(() => (env.data && refsView.data ? { ...env.data, references: refsView.data.references } : env.data), [env.data, refsView.data]);
+  const { env, withReferences: planeEnv } = useEnvelope(modelId);
   const [pcs, setPcs] = useState<number[]>([1, 2]);
   const [plane, setPlane] = useState<[number, number]>([1, 2]);
   const [log, setLog] = useState(false);
