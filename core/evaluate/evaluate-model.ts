@@ -206,10 +206,8 @@ export function evaluateModel(model: MonitoringModel, batches: EvalBatch[], opts
   }
   const errs = good.flatMap((o) => (o.endpointError !== null ? [o.endpointError] : []));
   const eta = good.flatMap((o) => o.etaErrors);
-  const errsMin = good.flatMap((o) => {
-    const b = batches.find((x) => x.id === o.id && x.group === o.group)!;
-    return o.endpointError !== null ? [(o.endpointError * b.intervalS) / 60] : [];
-  });
+  // outcomes[i] is batches[i]'s
+  const errsMin = outcomes.flatMap((o, i) => (o.group === 'good' && o.endpointError !== null ? [(o.endpointError * batches[i].intervalS) / 60] : []));
   const atCall = good.flatMap((o) => (o.propertyAtCall !== null && Number.isFinite(o.propertyAtCall) ? [o.propertyAtCall] : []));
   const goodAlarmed = good.filter((o) => o.alarms > 0).length;
   return {
