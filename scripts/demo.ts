@@ -95,7 +95,7 @@ async function setUpLine(s: TidelineServer, line: Line, url: string, log: (l: st
     // In a worker thread (server/models/build-runner.ts), as the API's builds run: the dashboard,
     // ingest and signals stay responsive while the model is computed.
     const runner = buildRunnerOf(ctx);
-    // The settings the issue-4 evaluation uses (scripts/evaluate.ts): property-indexed progress,
+    // The settings the evaluation uses (scripts/evaluate.ts): property-indexed progress,
     // local limits, MSC for the property model only.
     const settings = { ...defaultSettings(line.kind), name: `${line.kind}-${line.product.replace(/\s+/g, '-')}`, product: line.product, author: 'demo-setup', createdAt: ctx.now() };
     const info = { name: settings.name, product: line.product, startedBy: 'demo-setup', startedAt: ctx.now(), referenceBatches: refs.length };

@@ -1,7 +1,7 @@
 /**
  * `npm run evaluate` — build a monitoring model from a simulated reference set, judge fresh
  * simulated batches (other seeds): good ones and one set per fault type, and report the figures of
- * issue 4 (core/evaluate/evaluate-model.ts defines them). `-- --json FILE` also writes them as JSON.
+ * the evaluation (core/evaluate/evaluate-model.ts defines them). `-- --json FILE` also writes them as JSON.
  * Options: --kind dryer|reactor, --reference N, --good N, --per-fault N, --seed S, --components A|auto.
  *
  * Tideline advises: the site's validated control strategy, interlocks and procedures decide what an
@@ -33,7 +33,7 @@ const EVAL_FAULT_PARAMS: Partial<Record<FaultType, Record<string, number>>> = {
   spikes: { probability: 0.5 },
 };
 
-/** Step faults (issue 4 target: detection_delay_median ≤ 10 spectra); the others are drifts or batch-level. */
+/** Step faults (evaluation target: detection_delay_median ≤ 10 spectra); the others are drifts or batch-level. */
 export const STEP_FAULTS: FaultType[] = ['wrong-material', 'spikes', 'dropout'];
 
 /**

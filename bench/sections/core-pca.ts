@@ -1,5 +1,5 @@
 /**
- * PCA fit speed (issue 2):
+ * PCA fit speed:
  * - pca_fit_vs_numpy: fitPca, 10 components, 20,000 × 1,024 / numpy.linalg.svd(X − mean,
  *   full_matrices=False) on the same matrix in the same run (python3, matrix passed as a raw
  *   float64 file; only the numpy call is timed). Goal < 1.

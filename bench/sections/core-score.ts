@@ -1,5 +1,5 @@
 /**
- * Scoring speed, one spectrum at a time on one core (issue 2):
+ * Scoring speed, one spectrum at a time on one core:
  * - score_per_s: raw 1,024-point spectra per second through the fitted chain (Savitzky–Golay
  *   2nd derivative, 15 points, quadratic; SNV) + projection on 8 PCs + T² + Q. Goal ≥ 20,000.
  * - score_vs_bare: that per-spectrum cost / a bare typed-array loop doing the same arithmetic

@@ -1,5 +1,5 @@
 /**
- * Ingest benchmark (issue 5). A real server in a child process (SQLite, synchronous=FULL, group
+ * Ingest benchmark. A real server in a child process (SQLite, synchronous=FULL, group
  * commit) and analyzer peers in this process speaking ingest protocol v1 over loopback.
  *
  * - ingest_per_s: spectra stored, judged by the batch monitor and acked per second, 512-point

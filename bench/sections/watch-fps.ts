@@ -1,5 +1,5 @@
 /**
- * Live chart frame rate of the Watch view (issue 6): the Watch chart components (two score charts
+ * Live chart frame rate of the Watch view: the Watch chart components (two score charts
  * on the golden envelope, T², Q, score plane) hold 10,000 points per series while new results
  * arrive every frame through the live reducer; frames per second are counted with
  * requestAnimationFrame in headless Chromium. Goal ≥ 30.

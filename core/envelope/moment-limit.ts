@@ -1,7 +1,7 @@
 /**
  * Limit of a positive statistic from reference values by matching g·χ²_h to their mean m and
  * variance v: g = v/(2m), h = 2m²/v (Box 1954; used per time point for SPE by Nomikos &
- * MacGregor 1995, Technometrics 37:41). Check values in CHECKS.md ("moment form").
+ * MacGregor 1995, Technometrics 37:41). Check values in docs/check-values.md ("moment form").
  */
 import chisqQuantile from '@stdlib/stats-base-dists-chisquare-quantile';
 

@@ -1,5 +1,5 @@
 /**
- * Measured evaluation of a monitoring model on batches with known truth (issue 4): every batch is
+ * Measured evaluation of a monitoring model on batches with known truth: every batch is
  * replayed spectrum by spectrum through a fresh batch monitor, exactly as live.
  *
  * Figures (definitions ours, stated here):

@@ -1,6 +1,6 @@
 /**
  * Per-kind default build settings for a monitoring model (dryer, reactor): the settings the
- * evaluation (`npm run evaluate`, scripts/evaluate.ts) measured against the issue-4 targets, shared
+ * evaluation (`npm run evaluate`, scripts/evaluate.ts) measured against the evaluation targets, shared
  * with the demo so both build the same models. Pure: no clock (createdAt is a fixed date unless
  * overridden). Overrides replace top-level fields; `alarms` and `envelope` merge field by field.
  *

@@ -1,6 +1,6 @@
 /**
  * θ_i = Σ over discarded components of λ_j^i, computed as trace(R^i) of the residual covariance
- * R = C − Σ_a λ_a v_a v_aᵀ (no full eigendecomposition needed; CHECKS.md, Jackson & Mudholkar 1979).
+ * R = C − Σ_a λ_a v_a v_aᵀ (no full eigendecomposition needed; Jackson & Mudholkar 1979).
  * R is d × d (d = p, or n when the row Gram was used: the nonzero spectrum is the same).
  */
 import { accumulateRowGram, roundUp4 } from './gram-kernel.ts';

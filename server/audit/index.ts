@@ -1,5 +1,5 @@
 /**
- * Audit trail (issue 8). `install(ctx)` sets ctx.audit (and ctx.auth) and mounts /api/audit/*.
+ * Audit trail. `install(ctx)` sets ctx.audit (and ctx.auth) and mounts /api/audit/*.
  * Idempotent: server/auth's install calls it too.
  */
 import { ensureSecurity, type SecurityHost } from '../auth/security-setup.ts';

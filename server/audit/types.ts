@@ -1,5 +1,5 @@
 /**
- * The audit trail contract (issue 8). Other parts of the server write audit records through
+ * The audit trail contract. Other parts of the server write audit records through
  * `ctx.audit.record(...)`; the implementation is server/audit/audit-trail.ts.
  *
  * Every record carries UTC time, user, action, object, before/after where it applies, and a

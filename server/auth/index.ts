@@ -1,5 +1,5 @@
 /**
- * Access control (issue 8). `install(ctx)` sets ctx.auth and ctx.audit and mounts /api/auth/*
+ * Access control. `install(ctx)` sets ctx.auth and ctx.audit and mounts /api/auth/*
  * and the audit routes /api/audit/* (installing server/audit as well; calling its install again
  * is harmless). See docs/security.md.
  */

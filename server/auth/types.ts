@@ -1,5 +1,5 @@
 /**
- * The access-control contract (issue 8). Implementation: server/auth/auth-service.ts.
+ * The access-control contract. Implementation: server/auth/auth-service.ts.
  *
  * Roles are ordered: viewer < operator < model-owner < administrator. A route guarded by
  * `requireRole('operator')` admits operators, model owners and administrators.

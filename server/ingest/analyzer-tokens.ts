@@ -1,7 +1,7 @@
 /**
  * Analyzer tokens of the server core: 256-bit random tokens, stored only as their SHA-256 (a
  * random token of this length needs no slow hash; the digest is a lookup key, never reversible).
- * server/auth (engineer G) has its own token store; ingest accepts a token known to either.
+ * server/auth has its own token store; ingest accepts a token known to either.
  */
 import { createHash, randomBytes } from 'node:crypto';
 import type { Storage } from '../storage/storage.ts';

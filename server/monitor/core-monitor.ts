@@ -1,6 +1,6 @@
 /**
- * The server's view of engineer C's core monitoring model and batch monitor
- * (core/model/monitoring-model.ts, core/monitor/batch-monitor.ts; see /work/contracts.md).
+ * The server's view of core's monitoring model and batch monitor
+ * (core/model/monitoring-model.ts, core/monitor/batch-monitor.ts).
  * One place that imports them, so the rest of server/ depends only on the shapes below.
  */
 import type { Contributions, DomainEvent, MonitorResult } from '../../core/monitor/types.ts';

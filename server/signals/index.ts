@@ -1,5 +1,5 @@
 /**
- * Signals (issue 7): delivers the outbox to the control system and other receivers over OPC UA,
+ * Signals: delivers the outbox to the control system and other receivers over OPC UA,
  * MQTT and webhooks, each channel in per-unit sequence order with its own durable cursor.
  * install(ctx) is called by server/app.ts. Settings: `signals` in the server configuration
  * (server/signals/config.ts, docs/signals.md).

@@ -1,4 +1,4 @@
-/** A real SQLite database with the issue-8 migrations (200–299) applied, for standalone tests. */
+/** A real SQLite database with the auth and audit migrations (200–299) applied, for standalone tests. */
 import Database from 'better-sqlite3';
 import { mkdtempSync, readdirSync, readFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';

@@ -6,7 +6,7 @@ import { denseMatrix } from '../../core/linalg/dense-matrix.ts';
 import { createProjector, fitPca, type PcaModel } from '../../core/pca/index.ts';
 import { lowRankData } from '../pca/synthetic.ts';
 
-/** The CHECKS.md worked case as a model (Westerhuis, Gurden & Smilde 2000; Alcala & Qin 2009). */
+/** The worked case of docs/check-values.md as a model (Westerhuis, Gurden & Smilde 2000; Alcala & Qin 2009). */
 function checksCaseModel(): PcaModel {
   return {
     nComponents: 2,
@@ -28,7 +28,7 @@ function checksCaseModel(): PcaModel {
 const near = (got: ArrayLike<number>, want: number[], tol = 1e-12): void =>
   want.forEach((w, i) => expect(Math.abs(got[i]! - w)).toBeLessThan(tol));
 
-describe('contributions: CHECKS.md worked case', () => {
+describe('contributions: the worked case of docs/check-values.md', () => {
   const m = checksCaseModel();
   const x = [1, 0.5, -0.2, 0.3];
   it('scores, T², Q', () => {

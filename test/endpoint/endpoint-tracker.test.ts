@@ -5,7 +5,7 @@ import type { DomainEvent } from '../../core/monitor/types.ts';
 
 const base: EndpointInputs = { property: null, mbsd: null, slopes: [], goldenEndDistance: null, eta: null };
 
-describe('endpoint state machine (issue 4: running → nearing → settling → done → signalled)', () => {
+describe('endpoint state machine (running → nearing → settling → done → signalled)', () => {
   it('confirms over N consecutive spectra, falls back on a break, and is final once done', () => {
     const tr = new EndpointTracker({ criteria: [{ kind: 'property', target: 2, direction: 'below', name: 'moisture', unit: '% w/w' }], combine: 'all', confirm: 3, nearingMin: 5 });
     const ev: DomainEvent[] = [];

@@ -8,8 +8,8 @@ import { progressOf } from '../../core/envelope/progress.ts';
 
 const MBSD_SPECTRA = [[1, 2, 3], [1.2, 2.1, 2.9], [0.9, 1.8, 3.2], [1, 2, 3], [1.01, 2, 3], [1, 1.99, 3.01]];
 
-describe('moving-block standard deviation (Sekulic et al. 1996; CHECKS.md worked case)', () => {
-  it('matches the CHECKS.md case, n = 3, n−1 denominator', () => {
+describe('moving-block standard deviation (Sekulic et al. 1996; worked case in docs/check-values.md)', () => {
+  it('matches the worked case, n = 3, n−1 denominator', () => {
     const r = movingBlockSd(MBSD_SPECTRA, 3);
     const want = [0.152753, 0.152753, 0.097256, 0.005774];
     expect(r.length).toBe(4);
@@ -27,7 +27,7 @@ describe('moving-block standard deviation (Sekulic et al. 1996; CHECKS.md worked
   });
 });
 
-describe('envelope band at one progress point (CHECKS.md; Nomikos & MacGregor 1995)', () => {
+describe('envelope band at one progress point (docs/check-values.md; Nomikos & MacGregor 1995)', () => {
   const t = [0.9, 1.1, 1.0, 1.3, 0.7];
   it('mean ± 3s', () => {
     const b = sdBand(t, 3);
@@ -43,16 +43,16 @@ describe('envelope band at one progress point (CHECKS.md; Nomikos & MacGregor 19
     expect(b.t).toBeCloseTo(q, 8);
     expect(b.lower).toBeCloseTo(lo, 8);
     expect(b.upper).toBeCloseTo(hi, 8);
-    // CHECKS.md printed values
+    // values printed in docs/check-values.md
     expect(b.lower).toBeCloseTo(0.3199, 4);
     expect(b.upper).toBeCloseTo(1.6801, 4);
     expect(b.t).toBeCloseTo(2.7764, 4);
   });
 });
 
-describe('moment-matched limit g·χ²_h (Box 1954; Nomikos & MacGregor 1995; CHECKS.md)', () => {
+describe('moment-matched limit g·χ²_h (Box 1954; Nomikos & MacGregor 1995; docs/check-values.md)', () => {
   const Q = [0.52, 0.61, 0.48, 0.75, 0.90, 0.40, 0.66, 0.58, 0.71, 0.55];
-  it('matches the CHECKS.md values', () => {
+  it('matches the worked values', () => {
     expect(momentLimit(Q, 0.95)).toBeCloseTo(0.872433, 5);
     expect(momentLimit(Q, 0.99)).toBeCloseTo(1.002710, 5);
   });

@@ -17,7 +17,7 @@ beforeAll(() => {
   model = r.model;
 }, 300_000);
 
-describe('evaluation on simulated reactor batches (issue 4 targets)', () => {
+describe('evaluation on simulated reactor batches (evaluation targets)', () => {
   it('the endpoint margin is z(0.99)·RMSECV of the conversion model', () => {
     const c = model.endpoint.criteria[0]!;
     expect(c.kind).toBe('property');

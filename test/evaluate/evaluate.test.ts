@@ -24,7 +24,7 @@ beforeAll(() => {
   model = r.model;
 }, 180_000);
 
-describe('evaluation on simulated dryer batches (issue 4 targets)', () => {
+describe('evaluation on simulated dryer batches (evaluation targets)', () => {
   it('false alarms on good batches: point rate within 1 % + binomial tolerance, batch rate ≤ 0.05', () => {
     expect(f.good_batches).toBe(30);
     expect(f.false_alarm_point_rate).toBeLessThanOrEqual(f.false_alarm_point_rate_bound);

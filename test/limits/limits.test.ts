@@ -48,7 +48,7 @@ print(json.dumps([num/den * stats.chi2.ppf(0.99, den**2/num)]))`,
 const close = (a: number, b: number, tol: number): void => expect(Math.abs(a - b)).toBeLessThanOrEqual(tol);
 
 describe('Hotelling T² limits', () => {
-  // Tracy, Young & Mason 1992 formulas; values from CHECKS.md (computed with scipy), 4 decimals.
+  // Tracy, Young & Mason 1992 formulas; values from docs/check-values.md (computed with scipy), 4 decimals.
   const cases: [number, number, number, number, number, number][] = [
     [2, 20, 0.95, 7.8793, 5.3614, 5.9915],
     [2, 20, 0.99, 13.3286, 7.5502, 9.2103],
@@ -56,7 +56,7 @@ describe('Hotelling T² limits', () => {
     [3, 30, 0.99, 15.3193, 9.7704, 11.3449],
     [5, 100, 0.95, 12.1579, 10.7302, 11.0705],
   ];
-  it.each(cases)('A=%d, n=%d, conf %d: CHECKS.md worked values', (A, n, c, fNew, beta, chi2) => {
+  it.each(cases)('A=%d, n=%d, conf %d: worked values of docs/check-values.md', (A, n, c, fNew, beta, chi2) => {
     close(t2LimitNew(A, n, c), fNew, 5e-5);
     close(t2LimitCalibration(A, n, c), beta, 5e-5);
     close(t2LimitChi2(A, c), chi2, 5e-5);
@@ -81,10 +81,10 @@ describe('Hotelling T² limits', () => {
 });
 
 describe('Q limits', () => {
-  // CHECKS.md worked case: residual eigenvalues [0.8, 0.5, 0.3, 0.2, 0.1, 0.05].
+  // Worked case (docs/check-values.md): residual eigenvalues [0.8, 0.5, 0.3, 0.2, 0.1, 0.05].
   const lam = [0.8, 0.5, 0.3, 0.2, 0.1, 0.05];
   const theta: [number, number, number] = [1, 2, 3].map((k) => lam.reduce((s, v) => s + v ** k, 0)) as [number, number, number];
-  it('θ and h0, g, h of the worked case (CHECKS.md)', () => {
+  it('θ and h0, g, h of the worked case (docs/check-values.md)', () => {
     close(theta[0], 1.95, 1e-12);
     close(theta[1], 1.0325, 1e-12);
     close(theta[2], 0.673125, 1e-12);
@@ -92,17 +92,17 @@ describe('Q limits', () => {
     close(theta[1] / theta[0], 0.529487, 5e-7);
     close(theta[0] ** 2 / theta[1], 3.682809, 5e-7);
   });
-  it('Jackson & Mudholkar 1979 and Box 1954 on the worked case (CHECKS.md, 4 decimals)', () => {
+  it('Jackson & Mudholkar 1979 and Box 1954 on the worked case (docs/check-values.md, 4 decimals)', () => {
     close(qLimitJacksonMudholkar(theta, 0.95), 4.848, 5e-5);
     close(qLimitJacksonMudholkar(theta, 0.99), 7.313, 5e-5);
     close(qLimitBox(theta[0], theta[1], 0.95), 4.7488, 5e-5);
     close(qLimitBox(theta[0], theta[1], 0.99), 6.7138, 5e-5);
   });
-  it('Box is exact for ten equal eigenvalues of 0.1 (CHECKS.md: 1.83070, 2.32093)', () => {
+  it('Box is exact for ten equal eigenvalues of 0.1 (docs/check-values.md: 1.83070, 2.32093)', () => {
     close(qLimitBox(1, 0.1, 0.95), 1.8307, 5e-6);
     close(qLimitBox(1, 0.1, 0.99), 2.32093, 5e-6);
   });
-  it('moment form on the CHECKS.md Q values', () => {
+  it('moment form on the Q values of docs/check-values.md', () => {
     const q = [0.52, 0.61, 0.48, 0.75, 0.9, 0.4, 0.66, 0.58, 0.71, 0.55];
     const { mean, variance } = qMoments(q);
     close(mean, 0.616, 1e-12);
@@ -141,7 +141,7 @@ describe('Q limits', () => {
 });
 
 describe('combined index (Yue & Qin 2001)', () => {
-  it('CHECKS.md case: retained [4, 2, 1], residual as above, α = 0.05', () => {
+  it('worked case: retained [4, 2, 1], residual as above, α = 0.05', () => {
     const lam = [0.8, 0.5, 0.3, 0.2, 0.1, 0.05];
     const theta = [1, 2, 3].map((k) => lam.reduce((s, v) => s + v ** k, 0)) as [number, number, number];
     const tau2 = t2LimitChi2(3, 0.95);

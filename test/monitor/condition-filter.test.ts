@@ -1,7 +1,7 @@
 import { describe, expect, it } from 'vitest';
 import { ConditionFilter } from '../../core/monitor/condition-filter.ts';
 
-// On-delay / off-delay semantics as specified in issue 4 (k of m on-delay, off-delay with deadband),
+// On-delay / off-delay semantics as documented in core/monitor/condition-filter.ts (k of m on-delay, off-delay with deadband),
 // alarm management practice per ANSI/ISA-18.2.
 function run(f: ConditionFilter, values: number[], limit = 1) {
   return values.map((v) => f.update(v, limit));

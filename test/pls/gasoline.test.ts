@@ -2,7 +2,7 @@
  * The gasoline NIR data (Kalivas 1997, Chemom. Intell. Lab. Syst. 37:255) as carried by R's pls
  * package (Debian r-cran-pls, GPL-2), exported with Rscript at run time (not committed).
  * Published result (Mevik & Wehrens 2007, J. Stat. Softw. 18(2); reproduced with R pls, see
- * shared/CHECKS.md): PLS on rows 1–50, mean-centred, leave-one-out CV: RMSEP 1.3570 (1 comp),
+ * docs/check-values.md): PLS on rows 1–50, mean-centred, leave-one-out CV: RMSEP 1.3570 (1 comp),
  * 0.2966 (2), 0.2524 (3); predicting rows 51–60 with 2 components: RMSEP 0.2445.
  */
 import { spawnSync } from 'node:child_process';

@@ -5,7 +5,7 @@ import { maxAbsDiff, pythonAvailable, runPython, seededRandom } from './python.t
 import fixture from './fixtures/savgol-scipy.json' with { type: 'json' };
 
 // Savitzky & Golay 1964 (Anal. Chem. 36:1627) tables as corrected by Steinier, Termonia & Deltour
-// 1972 (Anal. Chem. 44:1906); values copied from shared/CHECKS.md. Order i = −m…m.
+// 1972 (Anal. Chem. 44:1906); values as printed there (docs/check-values.md). Order i = −m…m.
 const TABLE: { window: number; polyorder: number; deriv: number; coef: number[]; norm: number }[] = [
   { window: 5, polyorder: 2, deriv: 0, coef: [-3, 12, 17, 12, -3], norm: 35 },
   { window: 5, polyorder: 3, deriv: 0, coef: [-3, 12, 17, 12, -3], norm: 35 },

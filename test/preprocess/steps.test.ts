@@ -5,7 +5,7 @@ import { maxAbsDiff, pythonAvailable, runPython, seededRandom } from './python.t
 
 const axis5 = [1000, 1002, 1004, 1006, 1008];
 
-describe('SNV (Barnes, Dhanoa & Lister 1989; values in shared/CHECKS.md)', () => {
+describe('SNV (Barnes, Dhanoa & Lister 1989; values in docs/check-values.md)', () => {
   it('uses the n−1 standard deviation: [1,2,3,4,5] → ±1.264911, ±0.632456, 0', () => {
     const chain = fitChain([{ step: 'snv' }], axis5, matrixFromRows([[1, 2, 3, 4, 5]]));
     const got = chain.apply([1, 2, 3, 4, 5]);
@@ -21,7 +21,7 @@ describe('SNV (Barnes, Dhanoa & Lister 1989; values in shared/CHECKS.md)', () =>
 });
 
 describe('MSC (Geladi, MacDougall & Martens 1985)', () => {
-  it('x = 0.5 + 2·ref gives back ref (shared/CHECKS.md)', () => {
+  it('x = 0.5 + 2·ref gives back ref (Geladi et al. 1985)', () => {
     const ref = [0.2, 0.5, 0.9, 0.4, 0.3];
     // Calibration mean equals ref: two spectra symmetric around it.
     const cal = matrixFromRows([ref.map((v) => v + 0.1), ref.map((v) => v - 0.1)]);

@@ -1,5 +1,5 @@
 /**
- * Crash safety (issue 5): a real child-process server is killed with SIGKILL mid-batch while an
+ * Crash safety: a real child-process server is killed with SIGKILL mid-batch while an
  * analyzer streams; after a restart every acked spectrum is stored, the batch monitor state is
  * rebuilt from the stored spectra, and the analyzer's resend completes the batch without duplicates.
  */

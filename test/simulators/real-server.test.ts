@@ -1,5 +1,5 @@
 /**
- * The analyzer client against the real Tideline server (server/, engineer D's /ingest): a simulated
+ * The analyzer client against the real Tideline server (server/, /ingest): a simulated
  * dryer batch streamed with the connection dropped mid-batch must be stored complete, in order,
  * without duplicates, with the values exactly as simulated (Float32).
  */

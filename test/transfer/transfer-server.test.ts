@@ -1,5 +1,5 @@
 /**
- * Import and export against a running server (issue 9): a simulated faulty dryer batch streamed over
+ * Import and export against a running server: a simulated faulty dryer batch streamed over
  * the ingest protocol, exported as CSV and JCAMP-DX, imported back under new ids (values identical at
  * Float32 precision), malformed imports refused whole, and a PDF report of the faulty batch checked with
  * poppler-utils' pdftotext and pdfinfo.

@@ -187,7 +187,7 @@ CREATE TABLE endpoint_events (
 );
 CREATE INDEX endpoint_events_batch ON endpoint_events(batch);
 
--- Outgoing signals, written in the same transaction as the result that caused them (see contracts).
+-- Outgoing signals, written in the same transaction as the result that caused them.
 CREATE TABLE outbox (
   id TEXT PRIMARY KEY,
   unit TEXT NOT NULL,

@@ -1,4 +1,4 @@
--- Signal delivery bookkeeping (issue 7, server/signals). The outbox itself is created by 0NN files.
+-- Signal delivery bookkeeping (server/signals). The outbox itself is created by 0NN files.
 -- Each channel (webhook:<name>, mqtt, opcua, alarms) delivers one unit's outbox rows in unit_seq
 -- order and remembers the last delivered (or dead-lettered) seq here.
 CREATE TABLE IF NOT EXISTS signal_cursor (

@@ -1,4 +1,4 @@
--- Durable state of the signal side (issue 7): the OPC UA "endpoint reached" latch per unit, so a
+-- Durable state of the signal side: the OPC UA "endpoint reached" latch per unit, so a
 -- restart neither re-raises nor forgets it. Reset only when the DCS acknowledges.
 CREATE TABLE IF NOT EXISTS endpoint_latch (
   unit TEXT PRIMARY KEY,

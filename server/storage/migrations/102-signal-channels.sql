@@ -1,4 +1,4 @@
--- Channels of the signal side that have run at least once (issue 7). A channel configured on a
+-- Channels of the signal side that have run at least once. A channel configured on a
 -- server that already has history starts at the end of the outbox, so a newly added receiver is not
 -- sent last year's endpoints; once registered it always resumes from its cursors.
 CREATE TABLE IF NOT EXISTS signal_channel (

@@ -1,4 +1,4 @@
--- Audit trail (issue 8): append-only, hash-chained. Owner: server/audit/.
+-- Audit trail: append-only, hash-chained. Owner: server/audit/.
 -- Each row stores the SHA-256 of the previous row (prev_hash) and its own hash over a canonical
 -- serialization (server/audit/record-hash.ts). Triggers refuse UPDATE and DELETE; the hash chain
 -- makes any change made around them (editing the file, dropping the triggers) visible to verify.

@@ -1,4 +1,4 @@
--- Users, sessions, login throttling, analyzer tokens, electronic signatures (issue 8).
+-- Users, sessions, login throttling, analyzer tokens, electronic signatures.
 -- Owner: server/auth/.
 CREATE TABLE IF NOT EXISTS auth_users (
   id                    INTEGER PRIMARY KEY,

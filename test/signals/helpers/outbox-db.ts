@@ -1,6 +1,6 @@
 /**
  * A real SQLite database for signal tests: the outbox table exactly as in the contract
- * (/work/contracts.md, server/storage/migrations/001_initial.sql) plus the signal migrations
+ * (server/storage/migrations/001_initial.sql) plus the signal migrations
  * 100–199 of server/storage/migrations.
  */
 import Database from 'better-sqlite3';
