@@ -64,6 +64,11 @@ export interface SimulateOptions {
   start?: number;
   /** Pure Beer–Lambert absorbance without scatter, jitter, drift or noise (for checks). */
   ideal?: boolean;
+  /**
+   * When the operator stops the batch: seconds after the true endpoint (rounded to whole scan
+   * intervals). Default: the process model's own overrun (dryer 4–10 min, reactor per reactor.ts).
+   */
+  stopAfterEndpointS?: number;
 }
 
 /** 2026-03-02 06:00 UTC: an invented, fixed start for simulated batches (no clock is read). */

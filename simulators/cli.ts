@@ -9,6 +9,7 @@ import { FAULT_INFO, FAULT_TYPES, parseFaultArg, resolveFaults, type FaultSpec, 
 import { writeBatchFiles } from './files.ts';
 import { readTokensFile, runStreams, type AnalyzerIdentity } from './load.ts';
 import { parseStatusWindow, type StatusWindow } from './stream-client.ts';
+import { SITE_DEFAULTS, SITE_FAULTS, simulateSiteSet, writeSiteSet } from './site-set.ts';
 
 export const USAGE = `Tideline simulators: simulated inline NIR analyzers on a fluid-bed dryer and a batch reactor,
 deterministic by seed, with ground truth for every spectrum and optional faults.
@@ -24,6 +25,16 @@ Usage:
       spectra, batch-end with contiguous seq; waits for acks; reconnects and resends what was not
       acked. With --analyzers N (load mode) runs N analyzers at once. Ctrl-C ends the
       open batches ("stopped by operator") and waits for their acks.
+  npm run sim -- site --out DIR [--seed S] [--reference N] [--good N] [--per-fault N]
+      Write a site-style dryer set to DIR, as a site has its files rather than as the simulator
+      writes its own: another instrument (line shape, stray light, noise), a ${SITE_DEFAULTS.axis.points}-point axis
+      ${SITE_DEFAULTS.axis.from}–${SITE_DEFAULTS.axis.to} nm rounded to 0.01 nm, a spectrum every ${SITE_DEFAULTS.intervalS} s as elapsed seconds,
+      loss-on-drying moisture on a few spectra per batch, operators stopping 5–15 min after the
+      true endpoint. reference/<batch>.csv (header batch,time_s,${SITE_DEFAULTS.propertyHeader},<nm>…),
+      test/<batch>.csv (good batches and one set per fault type), batch-record.csv, lab-results.csv,
+      truth/<batch>.truth.json and site-set.json. Defaults: ${SITE_DEFAULTS.reference} reference, ${SITE_DEFAULTS.good} good test
+      batches, ${SITE_DEFAULTS.perFault} per fault type (${SITE_FAULTS.join(', ')}).
+      The same seed gives identical bytes. simulators/site-set.ts describes every choice.
   npm run sim -- faults
       List the fault types and their parameters.
   npm run sim -- --help
@@ -142,6 +153,9 @@ async function main(argv: string[]): Promise<void> {
         window: { type: 'string' },
         boot: { type: 'string' },
         quiet: { type: 'boolean' },
+        reference: { type: 'string' },
+        good: { type: 'string' },
+        'per-fault': { type: 'string' },
       },
     });
   } catch (e) {
@@ -157,6 +171,31 @@ async function main(argv: string[]): Promise<void> {
     process.stdout.write(faultsList());
     return;
   }
+  if (command === 'site') {
+    if (!v.out) fail('--out DIR is required to write the site set');
+    for (const k of ['fault', 'faulty-batches', 'interval', 'axis', 'unit', 'product', 'url', 'token', 'tokens-file', 'analyzer', 'analyzers', 'speed', 'json', 'window', 'boot', 'status', 'batches'] as const) {
+      if (v[k] !== undefined) fail(`--${k} does not apply to "site" (its axis, interval and faults are fixed: see --help)`);
+    }
+    if (positionals.length > 1) fail(`unexpected argument "${positionals[1]}"`);
+    const set = simulateSiteSet({
+      seed: intOpt(v.seed, 'seed', 1, 0, 0xffffffff),
+      reference: intOpt(v.reference, 'reference', SITE_DEFAULTS.reference, 2, 1000),
+      good: intOpt(v.good, 'good', SITE_DEFAULTS.good, 0, 1000),
+      perFault: intOpt(v['per-fault'], 'per-fault', SITE_DEFAULTS.perFault, 0, 1000),
+    });
+    const w = writeSiteSet(v.out, set);
+    if (!v.quiet) {
+      for (const sb of [...set.reference, ...set.test]) {
+        const b = sb.batch;
+        const ep = b.truth.endpointIndex === null ? 'not reached' : `at ${((b.truth.endpointT! - b.start) / 60000).toFixed(1)} min`;
+        const stop = sb.stopAfterEndpointMin === null ? '' : `, stopped ${sb.stopAfterEndpointMin.toFixed(1)} min later`;
+        process.stdout.write(`${b.id} (${sb.role}, ${sb.group}): ${b.spectra.length - b.truth.dropped.length} spectra, endpoint ${ep}${stop}, ${sb.lab.length} lab values\n`);
+      }
+    }
+    process.stdout.write(`wrote ${w.reference.length} reference and ${w.test.length} test batch files, ${w.truth.length} truth files, ${w.batchRecord}, ${w.labResults} and ${w.manifest}\n`);
+    return;
+  }
+  for (const k of ['reference', 'good', 'per-fault'] as const) if (v[k] !== undefined) fail(`--${k} applies to "site" only`);
   const streaming = command === 'stream';
   const kind = (streaming ? kindArg : command) as ProcessKind;
   if (kind !== 'dryer' && kind !== 'reactor') fail(`unknown ${streaming ? 'process' : 'command'} "${streaming ? kindArg ?? '' : command}"; use dryer or reactor`);

@@ -51,6 +51,9 @@ export function runBatch(
   validateAxis(axis);
   const intervalS = opts.intervalS ?? defaults.intervalS;
   if (!(intervalS > 0) || !Number.isFinite(intervalS)) throw new RangeError(`interval ${intervalS} s must be a positive number`);
+  if (opts.stopAfterEndpointS !== undefined && !(opts.stopAfterEndpointS >= 0 && Number.isFinite(opts.stopAfterEndpointS))) {
+    throw new RangeError(`stop after endpoint ${opts.stopAfterEndpointS} s must be a finite number ≥ 0`);
+  }
   const faults = resolveFaults(defaults.kind, opts.faults);
   const root = new Rng(opts.seed);
   // Fixed order of derived streams: batch variables, instrument variables, then per-scan streams.
@@ -64,6 +67,7 @@ export function runBatch(
   const traces: StateTrace[] = model.traces.map((t) => ({ ...t, values: [] }));
   let endpointIndex: number | null = null;
   let lastIndex = model.maxSteps - 1;
+  const overrunSteps = opts.stopAfterEndpointS === undefined ? model.overrunSteps : Math.round(opts.stopAfterEndpointS / intervalS);
   for (let i = 0; i <= lastIndex; i++) {
     const tS = i * intervalS;
     const s = model.step(i, tS, intervalS);
@@ -74,7 +78,7 @@ export function runBatch(
     const holds = model.direction === 'below' ? s.property <= model.target : s.property >= model.target;
     if (endpointIndex === null && holds) {
       endpointIndex = i;
-      lastIndex = Math.min(lastIndex, i + model.overrunSteps);
+      lastIndex = Math.min(lastIndex, i + overrunSteps);
     }
   }
   const n = spectra.length;
