@@ -139,14 +139,18 @@ export function createBatchMonitor(model: MonitoringModel, batchStartT: number):
     const alarmT2 = useLocal ? aT2Local[k] : aT2;
     const alarmQ = useLocal ? aQLocal[k] : aQ;
 
+    // A PC is judged against its envelope only where enough golden batches passed and their spread
+    // is known; elsewhere (and for the progress indicator PC) it is 'unjudged', neither in nor out.
     const envelope: EnvelopeCheck[] = new Array(A);
+    const enoughBatches = env.count[k] >= minBatches;
     for (let a = 0; a < A; a++) {
       const pc = env.pcs[a];
       const expected = pc.mean[k];
       const sd = pc.sd[k];
       const s = scores[a];
-      const z = sd > 0 ? (s - expected) / sd : s === expected ? 0 : (s > expected ? Infinity : -Infinity);
-      envelope[a] = { pc: a + 1, score: s, expected, lower: pc.lower[k], upper: pc.upper[k], status: s > pc.upper[k] ? 'above' : s < pc.lower[k] ? 'below' : 'inside', sd: z };
+      const z = sd > 0 && Number.isFinite(sd) ? (s - expected) / sd : null;
+      const status = a === indicatorPc || !enoughBatches || z === null ? 'unjudged' : s > pc.upper[k] ? 'above' : s < pc.lower[k] ? 'below' : 'inside';
+      envelope[a] = { pc: a + 1, score: s, expected, lower: pc.lower[k], upper: pc.upper[k], status, sd: z };
     }
 
     // Pace: judged after start-up, before the endpoint and the golden end progress.
@@ -166,8 +170,17 @@ export function createBatchMonitor(model: MonitoringModel, batchStartT: number):
       else if (c === 1) { value = q; limit = alarmQ; }
       else if (c < firstEnv) { value = al ? combinedIndex(t2, q, aT2, aQ) : combined; limit = aC; }
       else if (c === paceCond) { value = paceStatus && paceStatus.z > 0 ? paceStatus.z : 0; limit = paceK; }
-      else if (env.count[k] < minBatches) { value = 0; limit = aK; } // too few golden batches here to judge
-      else { value = Math.abs(envelope[condPc[c]].sd); limit = aK; }
+      else {
+        // An unjudged point says nothing about the condition: it neither raises nor clears it (a
+        // batch running past the golden batches' course keeps a standing envelope alarm).
+        const e = envelope[condPc[c]];
+        if (e.status === 'unjudged' || e.sd === null) {
+          if (cd.filter.active) active.push(cd.key);
+          continue;
+        }
+        value = Math.abs(e.sd);
+        limit = aK;
+      }
       const u = cd.filter.update(value, limit);
       if (u.suspect) suspect = true;
       if (u.active) active.push(cd.key);
@@ -179,8 +192,8 @@ export function createBatchMonitor(model: MonitoringModel, batchStartT: number):
             : 'pace no longer judged (endpoint or golden end reached)';
         } else if (c >= firstEnv) {
           const e = envelope[condPc[c]];
-          what = `${cd.label} score ${fmt(e.score)} is ${fmt(e.sd)} sd from the golden path (alarm at ±${fmt(aK)} sd, ${confPct})`;
-        } else what = `${cd.label} ${fmt(value)} ${u.active ? 'above' : 'back below'} its ${confPct} limit ${fmt(limit)}`;
+          what = `${cd.label} score ${fmt(e.score)} is ${fmt(e.sd!)} sd from the golden path (alarm at ±${fmt(aK)} sd, ${confPct})`;
+        } else what = `${cd.label} ${fmt(value)} ${u.active ? 'above' : 'below'} its ${confPct} limit ${fmt(limit)}`;
         const change: ConditionChange = { kind: cd.kind, key: cd.key, active: u.active, message: u.active ? what : `${cd.label} back within limits: ${what}`, value, limit, priority: cd.priority };
         changes.push(change);
         events.push({ type: 'condition', change, t, seq });

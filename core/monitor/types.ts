@@ -23,7 +23,11 @@ export type AlarmState = (typeof ALARM_STATES)[number];
 
 export type AlarmPriority = 1 | 2 | 3 | 4; // 1 = highest
 
-export type EnvelopeStatus = 'inside' | 'above' | 'below';
+/**
+ * 'unjudged': the point is not compared with the envelope — the PC is the progress indicator
+ * itself, too few golden batches reached this progress, or their spread here is zero.
+ */
+export type EnvelopeStatus = 'inside' | 'above' | 'below' | 'unjudged';
 
 export interface EnvelopeCheck {
   /** Principal component, 1-based. */
@@ -33,8 +37,8 @@ export interface EnvelopeCheck {
   lower: number;
   upper: number;
   status: EnvelopeStatus;
-  /** (score − expected) / sd at this progress point. */
-  sd: number;
+  /** (score − expected) / sd at this progress point; null where the golden sd is zero or unknown. */
+  sd: number | null;
 }
 
 /** A change of a monitor condition (after on-delay / off-delay). The server feeds these to the alarm life cycle. */

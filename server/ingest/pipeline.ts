@@ -990,7 +990,7 @@ export function livePoint(r: MonitorResult): LivePoint {
   return {
     seq: r.seq, t: r.t, elapsedMin: r.elapsedMin, progressFraction: r.progressFraction, t2: r.t2, q: r.q,
     t2Limit: r.limits.t2, qLimit: r.limits.q, scores: r.scores.slice(0, 2),
-    envelopeOutside: r.envelope.some((e) => e.status !== 'inside'),
+    envelopeOutside: r.envelope.some((e) => e.status === 'above' || e.status === 'below'),
     prediction: r.prediction ? { name: r.prediction.name, unit: r.prediction.unit, value: r.prediction.value } : null,
     suspect: r.suspect,
   };

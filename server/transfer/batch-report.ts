@@ -25,11 +25,13 @@ export interface ReportRegion {
 }
 
 export interface ReportDeparture {
-  /** Time (ms) the batch first left the envelope or a limit, null when it never did. */
+  /** Time (ms) the batch first left the golden batches by the alarm rule (on-delay), null when it never did. */
   firstExitT: number | null;
   firstExitSeq: number | null;
   /** What left: 'pc1 above', 'Q above 99 % limit' … */
   firstExitWhat: string | null;
+  /** The first single point outside the envelope or a limit before that (may be a suspect scan). */
+  firstOutside?: { t: number; seq: number; what: string } | null;
   window: { fromSeq: number; toSeq: number } | null;
   regions: ReportRegion[];
   /** Mean |deviation| from the golden mean after DTW alignment, per PC. */
@@ -190,7 +192,7 @@ ${table(
 <h2>Departure from the golden batches</h2>
 ${
   dep
-    ? `<p>${dep.firstExitT ? `First left the envelope or a limit at ${esc(utc(dep.firstExitT))} (seq ${dep.firstExitSeq}): ${esc(dep.firstExitWhat ?? '')}.` : 'The batch stayed within the envelope and limits.'}</p>
+    ? `<p>${dep.firstExitT ? `First left the golden batches (alarm rule) at ${esc(utc(dep.firstExitT))} (seq ${dep.firstExitSeq}): ${esc(dep.firstExitWhat ?? '')}.` : 'The batch never left the golden batches by the alarm rule: no departure window.'}${dep.firstOutside ? ` A single point was outside at ${esc(utc(dep.firstOutside.t))} (seq ${dep.firstOutside.seq}): ${esc(dep.firstOutside.what)} (possibly a suspect scan).` : ''}</p>
 ${table(['PC', 'mean |deviation| after DTW', 'max |deviation|'], dep.alignedDeviation.map((a) => [`PC${a.pc}`, num(a.meanAbs), num(a.maxAbs)]))}
 ${dep.window ? `<p>Departure window: seq ${dep.window.fromSeq}…${dep.window.toSeq}.</p>` : ''}
 ${table(['region (nm)', 'assignment', 'share of T²', 'share of Q'], dep.regions.map((r) => [`${nm(r.from)}–${nm(r.to)}`, r.assignment, `${num(r.t2Share * 100, 3)} %`, `${num(r.qShare * 100, 3)} %`]))}

@@ -62,11 +62,11 @@ async function allResults(ctx: ServerContext, batch: string): Promise<MonitorRes
 function departureOf(c: BatchComparison, seqOfIndex: (i: number) => number): ReportDeparture {
   const exit = c.firstExit ?? null;
   const outside = c.firstOutside ?? null;
-  const first = exit ?? (outside ? { index: outside.index, t: outside.t, message: outside.what } : null);
   return {
-    firstExitT: first ? first.t : null,
-    firstExitSeq: first ? seqOfIndex(first.index) : null,
-    firstExitWhat: first ? first.message : null,
+    firstExitT: exit ? exit.t : null,
+    firstExitSeq: exit ? seqOfIndex(exit.index) : null,
+    firstExitWhat: exit ? exit.message : null,
+    firstOutside: outside && (!exit || outside.index < exit.index) ? { t: outside.t, seq: seqOfIndex(outside.index), what: outside.what } : null,
     window: c.departureWindow ? { fromSeq: seqOfIndex(c.departureWindow.from), toSeq: seqOfIndex(c.departureWindow.to) } : null,
     regions: c.regions.map((r) => ({ name: r.name, from: r.from, to: r.to, assignment: r.assignment, t2Share: r.t2Share, qShare: r.qShare })),
     alignedDeviation: c.aligned.pcs.map((p) => {

@@ -132,6 +132,47 @@ describe('batch monitor', () => {
     // per-point limits (the default) never raise a 'combined' condition
     expect(run(model, bad).flatMap((r) => r.conditionChanges).some((c) => c.key === 'combined')).toBe(false);
   });
+  it('an envelope alarm stands, never cleared "back within limits", while the batch runs past the golden course; no infinite sd', () => {
+    // Time axis: past the shortest reference batches too few golden batches remain to judge the
+    // envelope, and past the longest their spread is unknown (one batch, sd 0).
+    const timeModel = buildMonitoringModel(
+      ref.map((b) => ({ id: b.id, axis: b.axis, times: b.times, spectra: b.spectra, property: b.truth.property.values })),
+      { ...settings, progress: { kind: 'time' }, endpoint: { criteria: [{ kind: 'mbsd', block: 5, threshold: 'auto' }], combine: 'any', confirm: 3, nearingMin: 10 } },
+    );
+    const bad = simulateBatch('dryer', { seed: 777002, faults: [{ type: 'wrong-material', onsetS: 1200 }] });
+    const mon = createBatchMonitor(timeModel, bad.times[0]);
+    const dt = bad.times[1] - bad.times[0];
+    const n = bad.spectra.length;
+    // the operator stops late: the last spectrum repeats for 200 more intervals
+    const rs = Array.from({ length: n + 200 }, (_, i) => mon.push(i, bad.times[0] + i * dt, bad.spectra[Math.min(i, n - 1)]));
+    const k = timeModel.alarmLimits?.envelopeK ?? timeModel.envelope.k;
+    const longest = Math.max(...ref.map((b) => (b.times[b.times.length - 1] - b.times[0]) / 60000));
+    let raisedLate = 0;
+    for (const r of rs) {
+      for (const c of r.conditionChanges) {
+        expect(c.message).not.toMatch(/Infinity|NaN/);
+        if (c.kind !== 'envelope' || c.key === 'pace') continue;
+        const e = r.envelope[Number(c.key.slice(2)) - 1];
+        // a change happens only on a judged point, and a clear only with the score back near the path
+        expect(e.status).not.toBe('unjudged');
+        if (!c.active) expect(Math.abs(e.sd!)).toBeLessThan(k);
+        else if (r.elapsedMin > 50) raisedLate++;
+      }
+      for (const e of r.envelope) if (e.sd !== null) expect(Number.isFinite(e.sd)).toBe(true);
+    }
+    const past = rs.filter((r) => r.elapsedMin > longest + 1);
+    expect(past.length).toBeGreaterThan(30);
+    for (const r of past) for (const e of r.envelope) expect(e.status).toBe('unjudged');
+    // an envelope alarm raised late in the batch is still standing at its end
+    expect(raisedLate).toBeGreaterThan(0);
+    expect(rs[rs.length - 1].activeConditions.some((key) => key.startsWith('pc'))).toBe(true);
+  });
+  it('the PC that is the progress indicator is never judged against its own envelope', () => {
+    const pc1Model = buildMonitoringModel(ref.map((b) => ({ id: b.id, axis: b.axis, times: b.times, spectra: b.spectra })), { ...settings, property: undefined, progress: { kind: 'indicator', source: 'pc1' }, endpoint: { criteria: [{ kind: 'mbsd', block: 5, threshold: 'auto' }], combine: 'any', confirm: 3, nearingMin: 10 } });
+    const rs = run(pc1Model, good);
+    expect(rs.every((r) => r.envelope[0].status === 'unjudged')).toBe(true);
+    expect(rs.some((r) => r.envelope[1].status === 'inside')).toBe(true);
+  });
   it('refuses a spectrum of the wrong length, naming the model', () => {
     const mon = createBatchMonitor(model, good.times[0]);
     expect(() => mon.push(0, good.times[0], new Float32Array(5))).toThrow(/5 values.*expects 256/);
@@ -162,6 +203,9 @@ describe('post-batch comparison and diagnostics', () => {
     expect(cmp.aligned.pcs[0].score).toHaveLength(model.envelope.grid.length);
     const same = compareBatch(model, base);
     expect(same.firstExit).toBeNull();
+    // a good batch has no departure window, even with single points outside a 99 % limit
+    expect(same.departureWindow).toBeNull();
+    expect(same.regions).toEqual([]);
   });
   it('calibration diagnostics for the Model bench', () => {
     const d = calibrationDiagnostics(model);

@@ -150,7 +150,7 @@ describe('review and report of the faulty batch', () => {
     const text = execFileSync('pdftotext', ['test-results/report-faulty-batch.pdf', '-']).toString();
     for (const s of ['Batch report', faulty.id, 'dryer-test', 'Departure from the golden batches', 'Tideline advises']) expect(text).toContain(s);
     expect(text.replace(/\s+/g, '')).toContain(fixture.model.sha256);
-    expect(text).toMatch(/First left the envelope or a limit at/);
+    expect(text).toMatch(/First left the golden batches \(alarm rule\) at/);
     const pages = Number(/Pages:\s+(\d+)/.exec(execFileSync('pdfinfo', ['test-results/report-faulty-batch.pdf']).toString())![1]);
     expect(pages).toBeGreaterThanOrEqual(2);
     expect(pages).toBeLessThanOrEqual(8);

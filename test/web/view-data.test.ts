@@ -30,14 +30,17 @@ describe('Review helpers', () => {
     expect(firstExit([r(0)])).toBeNull();
   });
   it('departure window runs to the last point out, bridging short returns inside', () => {
-    expect(departureWindow(rs, 0)).toEqual({ fromSeq: 2, toSeq: 3 });
+    expect(departureWindow(rs, 0, 2)).toEqual({ fromSeq: 2, toSeq: 3 });
+    expect(departureWindow(rs, 0)).toBeNull();
     expect(departureWindow(rs, 1)).toEqual({ fromSeq: 2, toSeq: 5 });
     expect(departureWindow(rs, 3)).toEqual({ fromSeq: 2, toSeq: 5 });
     expect(departureWindow(rs, 4)).toEqual({ fromSeq: 2, toSeq: 10 });
     // A lone early outlier is not the departure; the first sustained run is.
     const lone = [r(0, { t2: 50 }), r(1), r(2), r(3), r(4), r(5, { q: 3 }), r(6, { q: 3 }), r(7, { out: 'below' }), r(8)];
     expect(departureWindow(lone, 3, 3)).toEqual({ fromSeq: 5, toSeq: 7 });
-    expect(departureWindow(lone, 3, 5)).toEqual({ fromSeq: 5, toSeq: 7 });
+    // No run long enough (a good batch with a few single points out): no departure window.
+    expect(departureWindow(lone, 3, 5)).toBeNull();
+    expect(departureWindow([r(0), r(1, { t2: 12 }), r(2), r(3), r(4), r(5), r(6, { out: 'above' }), r(7)])).toBeNull();
     expect(departureWindow([r(0)])).toBeNull();
   });
   it('timeline orders start, first exit, alarms, endpoint and end by minutes from start', () => {

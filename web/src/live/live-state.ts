@@ -95,7 +95,7 @@ export function createLiveState(maxRows = 50_000): LiveState {
 
 /** Whether the envelope check of a result has any PC outside its band. */
 export function outsideEnvelope(r: MonitorResult): boolean {
-  return r.envelope.some((e) => e.status !== 'inside');
+  return r.envelope.some((e) => e.status === 'above' || e.status === 'below');
 }
 
 /** Append one result; results at or below the last seq are ignored (duplicates, reordering). */

@@ -32,11 +32,17 @@ export interface TimelineEvent {
   label: string;
 }
 
+/** A judged envelope check outside its band ('unjudged' points are neither in nor out). */
+function outsideEnvelope(e: MonitorResult['envelope'][number]): boolean {
+  return e.status === 'above' || e.status === 'below';
+}
+
 /** First result outside the envelope or above a limit (what made the batch depart), or null. */
 export function firstExit(results: MonitorResult[]): { result: MonitorResult; what: string } | null {
   for (const r of results) {
-    const env = r.envelope.find((e) => e.status !== 'inside');
-    if (env) return { result: r, what: `PC${env.pc} ${env.status} the envelope (${env.sd.toFixed(1)} sd)` };
+    const env = r.envelope.find(outsideEnvelope);
+    // Results stored before unjudged points were named may carry sd null (an infinite z).
+    if (env) return { result: r, what: `PC${env.pc} ${env.status} the envelope${env.sd !== null && Number.isFinite(env.sd) ? ` (${env.sd.toFixed(1)} sd)` : ''}` };
     if (r.t2 > r.limits.t2) return { result: r, what: 'T² above its limit' };
     if (r.q > r.limits.q) return { result: r, what: 'Q above its limit' };
   }
@@ -46,11 +52,11 @@ export function firstExit(results: MonitorResult[]): { result: MonitorResult; wh
 /**
  * The departure window: the first run of results outside the envelope or above a limit that holds
  * at least `minPoints` such results (short returns inside of up to `tolerance` results are bridged),
- * from its first to its last result out. A lone outlier does not make a departure; when no run is
- * long enough the longest run is taken. Returns seq bounds, or null when nothing was ever out.
+ * from its first to its last result out. A lone outlier does not make a departure: returns seq
+ * bounds, or null when no run is long enough (a good batch has single points out now and then).
  */
 export function departureWindow(results: MonitorResult[], tolerance = 3, minPoints = 3): { fromSeq: number; toSeq: number } | null {
-  const out = (r: MonitorResult) => r.envelope.some((e) => e.status !== 'inside') || r.t2 > r.limits.t2 || r.q > r.limits.q;
+  const out = (r: MonitorResult) => r.envelope.some(outsideEnvelope) || r.t2 > r.limits.t2 || r.q > r.limits.q;
   const runs: { from: number; to: number; count: number }[] = [];
   let cur: { from: number; to: number; count: number } | null = null;
   let inside = 0;
@@ -67,9 +73,8 @@ export function departureWindow(results: MonitorResult[], tolerance = 3, minPoin
     }
   }
   if (cur) runs.push(cur);
-  if (runs.length === 0) return null;
-  const run = runs.find((r) => r.count >= minPoints) ?? runs.reduce((a, b) => (b.count > a.count ? b : a));
-  return { fromSeq: results[run.from].seq, toSeq: results[run.to].seq };
+  const run = runs.find((r) => r.count >= minPoints);
+  return run ? { fromSeq: results[run.from].seq, toSeq: results[run.to].seq } : null;
 }
 
 /**

@@ -178,7 +178,7 @@ function BatchReview({ id, compare }: { id: string; compare: string[] }) {
       )}
       {results.data && <StatsOverTime rs={rs} win={win} />}
       {results.data && win && <DepartureContributions batch={d.id} results={rs} win={win} regions={c?.regions ?? null} />}
-      {results.data && !win && <Empty>The batch never left the envelope or exceeded a limit: there is no departure window.</Empty>}
+      {results.data && !win && <Empty>The batch never left the golden batches by the alarm rule (a run of points outside the envelope or above a limit): there is no departure window.</Empty>}
       <Advisory />
     </div>
   );
