@@ -16,7 +16,6 @@ import { join } from 'node:path';
 import { ConfigError, ENV_VARS, loadConfig } from './config.ts';
 import { SqliteStorage } from './storage/sqlite-storage.ts';
 import { createAnalyzerToken } from './ingest/analyzer-tokens.ts';
-import { startServer } from './app.ts';
 
 const HELP = `usage: npm run tideline -- <command> [--flag value …]
 
@@ -103,6 +102,9 @@ async function main(argv: string[]): Promise<number> {
     case 'serve': {
       // The server must not crash on what a peer sends; anything that slips through is logged.
       process.on('unhandledRejection', (e) => process.stderr.write(`tideline: unhandled rejection: ${(e as Error)?.stack ?? e}\n`));
+      // Loaded here, not at the top: the server pulls in every channel (OPC UA, MQTT, …), which
+      // the other commands do not need and which would slow each of them by seconds.
+      const { startServer } = await import('./app.ts');
       const s = await startServer(config);
       process.stdout.write(`Tideline is running at ${s.url}/  (Ctrl-C stops it)\n`);
       await new Promise<void>((res) => {
