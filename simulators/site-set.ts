@@ -17,18 +17,13 @@
  *   written as elapsed seconds (`time_s`, 0.1 s) from the first spectrum; the batch start is only
  *   in the batch record.
  * - Operators who stop late: 5–15 min after the true endpoint (a whole number of scan intervals,
- *   each equally likely), the spectra going on until the stop. A batch that never reaches the target runs to the dryer's 150-min limit.
- * - Lab moisture on a few spectra only: loss-on-drying (LOD) samples taken by the operators — one
- *   10–14 min into the batch, then one every 25–30 min until the product temperature has risen
- *   12 °C above its value at 10 min (well into the falling-rate period, when operators start
- *   checking), then one every 5–8 min until the stop, and a discharge sample at the stop: about 5–9
- *   per batch, more near the end. Sample times are recorded to the minute (as written on a sample label); the LOD
- *   result is the true moisture at the sample time plus a normal error of standard deviation
- *   sqrt(0.10² + (0.03·w)²) % w/w (0.10 % w/w absolute for the LOD analyzer's repeatability and 3 %
- *   relative for the thief sample not being what the probe sees — common-practice sizes, from
- *   memory, no published source), reported to 0.01 % w/w. In the spectra file the result sits in
- *   the moisture column of the spectrum nearest the recorded sample time; every other cell of that
- *   column is empty.
+ *   each equally likely), the spectra going on until the stop. A batch that never reaches the
+ *   target runs to the dryer's 150-min limit.
+ * - Lab moisture on a few spectra only: loss-on-drying (LOD) samples taken by the operators, about
+ *   5–9 per batch, more near the end, sample times recorded to the minute, with a stated lab error
+ *   (simulators/lab-samples.ts gives the schedule and the error). In the spectra file each result
+ *   sits in the moisture column of the spectrum nearest its recorded sample time; every other cell
+ *   of that column is empty.
  *
  * Files (writeSiteSet):
  *   reference/<batch>.csv   one file per reference batch: `batch,time_s,moisture [% w/w],<nm>…`
@@ -48,6 +43,7 @@ import { join } from 'node:path';
 import type { SimulatedBatch, TruthFault } from './batch-types.ts';
 import { simulateDryerBatch } from './dryer.ts';
 import { FAULT_INFO, FAULT_TYPES, type FaultSpec, type FaultType } from './faults.ts';
+import { drawLabSamples, LAB_METHODS, type LabSample } from './lab-samples.ts';
 import { deriveSeed, Rng } from './prng.ts';
 
 export const SITE_TRUTH_FORMAT = 'tideline-site-truth';
@@ -94,22 +90,10 @@ export const SITE_INSTRUMENT = {
 };
 
 /** LOD error model: sd = sqrt(abs² + (rel·w)²) % w/w. */
-export const SITE_LAB_ERROR = { absPct: 0.1, rel: 0.03, decimals: 2 };
+export const SITE_LAB_ERROR = { absPct: LAB_METHODS.dryer.abs, rel: LAB_METHODS.dryer.rel, decimals: LAB_METHODS.dryer.decimals };
 
-export interface SiteLabSample {
-  /** Sample time as recorded (to the minute), ms epoch. */
-  sampleT: number;
-  /** True sample time, ms epoch. */
-  trueSampleT: number;
-  /** LOD result, % w/w. */
-  value: number;
-  /** True moisture at the true sample time, % w/w. */
-  trueValue: number;
-  /** Index of the spectrum nearest the recorded sample time (the row that carries it in the file). */
-  spectrumIndex: number;
-  /** 'in-process' or 'discharge' (the sample at the stop). */
-  kind: 'in-process' | 'discharge';
-}
+/** A lab result of a site batch (simulators/lab-samples.ts). */
+export type SiteLabSample = LabSample;
 
 export interface SiteBatch {
   role: 'reference' | 'test';
@@ -142,6 +126,8 @@ export interface SiteSetOptions {
   good?: number;
   /** Test batches per fault type, default 1. */
   perFault?: number;
+  /** Test batches for some fault types instead of perFault, e.g. { 'slow-drying': 2 }. */
+  perFaultByType?: Partial<Record<FaultType, number>>;
   /** Fault types of the test set, default every dryer fault. */
   faults?: FaultType[];
   /** Fault parameters by type (simulator defaults otherwise). */
@@ -233,79 +219,6 @@ export class SiteInstrument {
   }
 }
 
-/** Linear interpolation of y(t) at tq (t increasing); clamps at the ends. */
-function interp(t: readonly number[], y: readonly number[], tq: number): number {
-  if (tq <= t[0]!) return y[0]!;
-  const n = t.length;
-  if (tq >= t[n - 1]!) return y[n - 1]!;
-  let lo = 0;
-  let hi = n - 1;
-  while (hi - lo > 1) {
-    const mid = (lo + hi) >> 1;
-    if (t[mid]! <= tq) lo = mid;
-    else hi = mid;
-  }
-  const f = (tq - t[lo]!) / (t[hi]! - t[lo]!);
-  return y[lo]! + f * (y[hi]! - y[lo]!);
-}
-
-function nearestIndex(times: readonly number[], tq: number, skip: ReadonlySet<number>): number {
-  let best = -1;
-  let bestD = Infinity;
-  for (let i = 0; i < times.length; i++) {
-    if (skip.has(i)) continue;
-    const d = Math.abs(times[i]! - tq);
-    if (d < bestD) {
-      bestD = d;
-      best = i;
-    }
-  }
-  return best;
-}
-
-/** Rise of the product temperature over its value at 10 min at which operators start sampling closely, °C. */
-const CLOSE_SAMPLING_RISE_C = 12;
-
-/** The operators' LOD samples for one batch (see the header comment for the schedule). */
-function labSamples(b: SimulatedBatch, rng: Rng): SiteLabSample[] {
-  const times = b.times;
-  const startT = b.start;
-  const endT = times[times.length - 1]!;
-  const temp = b.truth.state.find((s) => s.name === 'product temperature')!.values;
-  const moisture = b.truth.property.values;
-  const dropped = new Set(b.truth.dropped);
-  const tempAt10 = interp(times, temp, startT + 10 * 60_000);
-  const closeFrom = (() => {
-    for (let i = 0; i < times.length; i++) if (times[i]! - startT > 10 * 60_000 && temp[i]! >= tempAt10 + CLOSE_SAMPLING_RISE_C) return times[i]!;
-    return Infinity;
-  })();
-  const minute = 60_000;
-  const planned: { t: number; kind: SiteLabSample['kind'] }[] = [];
-  let t = startT + rng.between(10, 14) * minute;
-  while (t < endT - 2 * minute) {
-    planned.push({ t, kind: 'in-process' });
-    const step = t >= closeFrom ? rng.between(5, 8) : rng.between(25, 30);
-    let next = t + step * minute;
-    // The first close check comes soon after the temperature rise is noticed.
-    if (t < closeFrom && next > closeFrom) next = Math.max(t + 3 * minute, closeFrom + rng.between(0, 2) * minute);
-    t = next;
-  }
-  planned.push({ t: endT - rng.between(0, 0.5) * minute, kind: 'discharge' });
-  const out: SiteLabSample[] = [];
-  const used = new Set<number>();
-  for (const s of planned) {
-    const recorded = Math.round(s.t / minute) * minute;
-    const idx = nearestIndex(times, recorded, dropped);
-    const trueValue = interp(times, moisture, s.t);
-    const sd = Math.hypot(SITE_LAB_ERROR.absPct, SITE_LAB_ERROR.rel * trueValue);
-    const value = Math.max(0, round(trueValue + sd * rng.gauss(), SITE_LAB_ERROR.decimals));
-    if (used.has(idx)) continue; // two samples on one spectrum: the schedule keeps ≥ 3 min apart, so only at the very end
-    used.add(idx);
-    out.push({ sampleT: recorded, trueSampleT: Math.round(s.t), value, trueValue: round(trueValue, 4), spectrumIndex: idx, kind: s.kind });
-  }
-  return out;
-}
-
 /** One site batch: simulate the process on the render grid, measure it with the site instrument. */
 function siteBatch(
   inst: SiteInstrument,
@@ -352,7 +265,7 @@ function siteBatch(
       faults: sim.truth.faults.map(remapFault),
     },
   };
-  const lab = labSamples(batch, rng.derive('lab'));
+  const lab = drawLabSamples(batch, rng.derive('lab'));
   const ep = batch.truth.endpointIndex;
   return {
     role,
@@ -397,7 +310,9 @@ export function simulateSiteSet(opts: SiteSetOptions): SiteSet {
   for (let i = 0; i < nGood; i++) plan.push({ group: 'good', label: `good:${i}` });
   const onsets = root.derive('onsets');
   for (const type of faultTypes) {
-    for (let i = 0; i < perFault; i++) {
+    const count = opts.perFaultByType?.[type] ?? perFault;
+    if (!Number.isInteger(count) || count < 0 || count > 1000) throw new RangeError(`test batches for ${type}: ${count} must be an integer 0…1000`);
+    for (let i = 0; i < count; i++) {
       // Onsets 10–30 min into the batch; over-wet granules are charged wet (onset 0).
       const onsetS = type === 'over-wet' ? 0 : Math.round(onsets.between(10, 30) * 60);
       plan.push({ group: type, faults: [{ type, onsetS, ...(opts.faultParams?.[type] ? { params: opts.faultParams[type] } : {}) }], label: `${type}:${i}` });
