@@ -319,12 +319,15 @@ export interface ModelVersionDetail extends ModelVersionSummary {
   settings: Record<string, unknown>;
   explained: number[];
   cumulative: number[];
+  /** qMethod: the method id, followed by why when the build fell back from the method asked for (e.g. Box where Jackson–Mudholkar is undefined). */
   limits: { t2: number; q: number; combined: number | null; confidence: number; t2Method: string; qMethod: string };
   /** The limits that raise alarms when the model has them above `limits` (settings.alarms.confidence), else null. */
   alarmLimits: { t2: number; q: number; combined: number; confidence: number; envelopeK: number; envelopeKMethod: string } | null;
   /** Model variable axis after preprocessing, nm. */
   modelAxis: number[];
   evaluations: EvaluationResult[];
+  /** What the build decided on its own that the model owner should know (e.g. the Box fallback of the Q limit). */
+  notes: string[];
 }
 
 /** The golden envelope in a form ready to draw. Arrays share the index of `progress`. */

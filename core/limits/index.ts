@@ -7,6 +7,8 @@ export {
   qMoments,
   jacksonMudholkarH0,
   qLimit,
+  modelQLimit,
   type QMethod,
+  type QLimitSetting,
 } from './q-limit.ts';
 export { combinedIndexLimit, combinedIndexParameters, combinedIndex, combinedLimit } from './combined-limit.ts';

@@ -6,6 +6,8 @@ export interface Limit {
   method: string;
   /** The published source of the formula. */
   reference: string;
+  /** Why this method was used when it is not the one asked for (e.g. the Box fallback of the Q limit). */
+  note?: string;
 }
 
 export function checkConfidence(confidence: number, what: string): void {

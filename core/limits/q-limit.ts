@@ -100,3 +100,37 @@ export function qLimit(
       throw new RangeError(`unknown Q limit method '${String(method)}' (use q-jackson-mudholkar, q-box or q-box-moments)`);
   }
 }
+
+/** The Q-limit method of a model build (settings.qMethod). */
+export type QLimitSetting = 'jackson-mudholkar' | 'box';
+
+/**
+ * The global Q limit of a model with the method the model owner chose, from θ1…θ3 of the discarded
+ * eigenvalues. Jackson–Mudholkar is undefined where h0 = 1 − 2θ1θ3/(3θ2²) ≤ 0 (one discarded
+ * eigenvalue dominating many small ones) or where its bracket is not positive at this confidence;
+ * there the Box (1954) g·χ²_h form is used instead, and `note` says so and why. g = θ2/θ1 and
+ * h = θ1²/θ2 are returned with h0 so the evidence can show them.
+ */
+export function modelQLimit(theta: readonly [number, number, number], confidence: number, setting: QLimitSetting = 'jackson-mudholkar'): { limit: Limit; h0: number; g: number; h: number } {
+  if (setting !== 'jackson-mudholkar' && setting !== 'box') throw new RangeError(`Q limit: unknown method "${String(setting)}" (use jackson-mudholkar or box)`);
+  checkTheta(theta, 3, 'Q limit');
+  const h0 = jacksonMudholkarH0(theta);
+  const g = theta[1] / theta[0];
+  const h = (theta[0] * theta[0]) / theta[1];
+  if (setting === 'box') return { limit: qLimit('q-box', { theta }, confidence), h0, g, h };
+  let why: string;
+  if (h0 > 0) {
+    const c = normalInv(confidence);
+    const [t1, t2] = theta;
+    const base = (c * Math.sqrt(2 * t2 * h0 * h0)) / t1 + 1 + (t2 * h0 * (h0 - 1)) / (t1 * t1);
+    if (base > 0) return { limit: qLimit('q-jackson-mudholkar', { theta }, confidence), h0, g, h };
+    why = `its bracket is ${base.toPrecision(3)} ≤ 0 at confidence ${confidence}`;
+  } else why = `h0 = 1 − 2θ1θ3/(3θ2²) = ${h0.toPrecision(4)} ≤ 0`;
+  const box = qLimit('q-box', { theta }, confidence);
+  return {
+    limit: { ...box, note: `Jackson–Mudholkar (1979) is undefined for these residual eigenvalues (${why}); the Box (1954) form g·χ²_h is used instead (g = ${g.toPrecision(4)}, h = ${h.toPrecision(4)})` },
+    h0,
+    g,
+    h,
+  };
+}

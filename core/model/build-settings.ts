@@ -16,6 +16,7 @@ export const buildSettingsSchema = z.object({
   chain: chainSpecSchema,
   components: z.union([z.number().int().min(1).max(50), z.literal('auto')]),
   confidence: z.number().gt(0.5).lt(1),
+  qMethod: z.enum(['jackson-mudholkar', 'box']).optional(),
   progress: z.discriminatedUnion('kind', [z.object({ kind: z.literal('time') }), z.object({ kind: z.literal('indicator'), source: z.enum(['pc1', 'property']) })]),
   envelope: z.object({ k: z.number().positive().max(10), smoothing: z.number().int().min(0).max(50), points: z.number().int().min(2).max(2000), band: z.enum(['sd', 'prediction']).optional() }),
   endpoint: endpointRuleSpecSchema,
@@ -43,6 +44,13 @@ export interface BuildSettings {
   chain: ChainSpec;
   components: number | 'auto';
   confidence: number;
+  /**
+   * Method of the global Q limits (drawn and alarm): 'jackson-mudholkar' (default; Jackson &
+   * Mudholkar 1979) or 'box' (Box 1954 g·χ²_h, as Nomikos & MacGregor 1995 use it). Where
+   * Jackson–Mudholkar is undefined (h0 ≤ 0) the build uses Box and says so in the limit's note and
+   * the model notes.
+   */
+  qMethod?: 'jackson-mudholkar' | 'box';
   progress: { kind: 'time' } | { kind: 'indicator'; source: 'pc1' | 'property' };
   /**
    * band 'sd' (default): mean ± k·sd. band 'prediction': k is replaced by the multiplier of a

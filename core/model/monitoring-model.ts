@@ -4,7 +4,8 @@
  * with a content hash (core/model/model-file.ts).
  *
  * Limits: global T² for new observations, F-based (Tracy, Young & Mason 1992); global Q by
- * Jackson & Mudholkar (1979); combined index (Yue & Qin 2001); per-progress-point T² and Q limits
+ * Jackson & Mudholkar (1979) or Box (1954) as settings.qMethod says (Box where Jackson–Mudholkar is
+ * undefined, with a note); combined index (Yue & Qin 2001); per-progress-point T² and Q limits
  * moment-matched g·χ²_h over the reference spectra near each point (Nomikos & MacGregor 1995).
  */
 import { z } from 'zod';
@@ -15,7 +16,7 @@ import { fitPca, scoreRows } from '../pca/fit-pca.ts';
 import { crossValidatePca } from '../pca/cross-validate.ts';
 import { pcaFromJSON, pcaToJSON } from '../pca/pca-json.ts';
 import type { PcaModel } from '../pca/pca-model.ts';
-import { t2Limit, qLimit, combinedLimit, type Limit } from '../limits/index.ts';
+import { t2Limit, modelQLimit, combinedLimit, type Limit } from '../limits/index.ts';
 import { buildEnvelope, type Envelope, type ReferenceTrajectory } from '../envelope/envelope.ts';
 import { newObservationMultiplier } from '../envelope/band.ts';
 import { progressOf, type ProgressAxis } from '../envelope/progress.ts';
@@ -73,6 +74,8 @@ export interface ModelMeta {
   pcaCv: { press: number[]; recommended: number; method: string };
   /** Per calibration spectrum: which batch and index (same order as pca.calibrationT2/Q). */
   sampleOrigin: { batch: number; index: number }[];
+  /** What the build decided on its own that the model owner should know (e.g. a Q-limit fallback). */
+  notes?: string[];
 }
 
 export interface MonitoringModel {
@@ -159,7 +162,10 @@ export function buildMonitoringModel(batches: ReferenceBatch[], settingsInput: u
   const A = pca.nComponents;
   const conf = settings.confidence;
   const t2L = t2Limit('t2-f-new', A, n, conf);
-  const qL = qLimit('q-jackson-mudholkar', { theta: pca.residualTheta }, conf);
+  const notes: string[] = [];
+  const qSetting = settings.qMethod ?? 'jackson-mudholkar';
+  const qL = modelQLimit(pca.residualTheta, conf, qSetting).limit;
+  if (qL.note) notes.push(`Q limit at ${+(conf * 100).toFixed(3)} %: ${qL.note}.`);
   const cL = combinedLimit(A, pca.residualTheta, t2L.value, qL.value, conf);
   const limits: ModelLimits = { t2: t2L, q: qL, combined: cL };
   // Property model (PLS1) from the raw spectra through its own chain.
@@ -216,7 +222,8 @@ export function buildMonitoringModel(batches: ReferenceBatch[], settingsInput: u
   let alarmLimits: AlarmLimits | undefined;
   if (alarmConf !== undefined && alarmConf !== conf) {
     const t2A = t2Limit('t2-f-new', A, n, alarmConf);
-    const qA = qLimit('q-jackson-mudholkar', { theta: pca.residualTheta }, alarmConf);
+    const qA = modelQLimit(pca.residualTheta, alarmConf, qSetting).limit;
+    if (qA.note) notes.push(`Q alarm limit at ${+(alarmConf * 100).toFixed(3)} %: ${qA.note}.`);
     alarmLimits = {
       confidence: alarmConf,
       t2: t2A,
@@ -297,6 +304,7 @@ export function buildMonitoringModel(batches: ReferenceBatch[], settingsInput: u
     author: settings.author,
     pcaCv,
     sampleOrigin: origin,
+    ...(notes.length ? { notes } : {}),
   };
   const body = { settings, chain: chain.toJSON(), pca: pcaToJSON(pca), limits, ...(alarmLimits ? { alarmLimits } : {}), envelope, endpoint, pls: pls?.toJSON(), meta };
   // Hash exactly as the file will carry it: write, then read back.
@@ -328,7 +336,7 @@ function crossValidateComponents(X: DenseMatrix): { press: number[]; recommended
 
 // ---- file form ---------------------------------------------------------------------------------
 
-const limitSchema = z.object({ value: z.number().finite().positive(), confidence: z.number(), method: z.string(), reference: z.string() });
+const limitSchema = z.object({ value: z.number().finite().positive(), confidence: z.number(), method: z.string(), reference: z.string(), note: z.string().optional() });
 const num = z.number().finite();
 const envelopeSchema = z.object({
   axis: z.object({ kind: z.enum(['time', 'indicator']), source: z.enum(['pc1', 'property']).optional(), sign: z.union([z.literal(1), z.literal(-1)]), alpha: z.number().gt(0).max(1) }),
@@ -370,6 +378,7 @@ const bodySchema = z.object({
     author: z.string(),
     pcaCv: z.object({ press: z.array(num), recommended: z.number().int(), method: z.string() }),
     sampleOrigin: z.array(z.object({ batch: z.number().int(), index: z.number().int() })),
+    notes: z.array(z.string()).optional(),
   }),
 });
 type Body = z.infer<typeof bodySchema>;

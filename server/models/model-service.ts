@@ -20,7 +20,8 @@ export class ModelRequestError extends Error {
 }
 
 interface ModelShape extends MonitoringModelLike {
-  limits: { t2: { value: number; confidence: number; method: string }; q: { value: number; confidence: number; method: string }; combined?: { value: number } };
+  limits: { t2: { value: number; confidence: number; method: string }; q: { value: number; confidence: number; method: string; note?: string }; combined?: { value: number } };
+  meta: { notes?: string[] };
   alarmLimits?: { confidence: number; t2: { value: number }; q: { value: number }; combined: { value: number }; envelopeK: number; envelopeKMethod: string };
   envelope: { grid: number[]; pcs: { mean: number[]; lower: number[]; upper: number[] }[]; t2Limit: number[]; qLimit: number[] };
 }
@@ -154,13 +155,14 @@ export async function versionDetail(ctx: ServerContext, row: ModelVersionRow): P
     explained: model ? model.pca.explained : [],
     cumulative: model ? model.pca.cumulative : [],
     limits: model
-      ? { t2: model.limits.t2.value, q: model.limits.q.value, combined: model.limits.combined?.value ?? null, confidence: model.limits.t2.confidence, t2Method: model.limits.t2.method, qMethod: model.limits.q.method }
+      ? { t2: model.limits.t2.value, q: model.limits.q.value, combined: model.limits.combined?.value ?? null, confidence: model.limits.t2.confidence, t2Method: model.limits.t2.method, qMethod: model.limits.q.note ? `${model.limits.q.method} — ${model.limits.q.note}` : model.limits.q.method }
       : { t2: NaN, q: NaN, combined: null, confidence: row.confidence, t2Method: '', qMethod: '' },
     alarmLimits: model?.alarmLimits
       ? { t2: model.alarmLimits.t2.value, q: model.alarmLimits.q.value, combined: model.alarmLimits.combined.value, confidence: model.alarmLimits.confidence, envelopeK: model.alarmLimits.envelopeK, envelopeKMethod: model.alarmLimits.envelopeKMethod }
       : null,
     modelAxis: model ? Array.from(model.chain.outputAxis) : [],
     evaluations: await ctx.storage.listEvaluations(row.id),
+    notes: model?.meta.notes ?? [],
   };
 }
 
