@@ -117,7 +117,7 @@ export async function startServer(config: ServerConfig, opts: StartOptions = {})
       app.get(/^\/(?!api\/|metrics$|ingest$|live$).*/, (_req, res) => res.sendFile(join(webDir, 'index.html')));
     } else {
       app.get('/', (_req, res) => {
-        res.type('text/plain').send(`Tideline server ${VERSION}. The dashboard is not built: run npm run build:web (looked in ${webDir}).`);
+        res.type('text/plain').send(`Tideline server ${VERSION}. The dashboard is not built (looked in ${webDir}): npm run tideline -- serve builds it when Vite is installed (npm install); or run npm run build:web.`);
       });
     }
   }

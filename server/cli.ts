@@ -102,6 +102,12 @@ async function main(argv: string[]): Promise<number> {
     case 'serve': {
       // The server must not crash on what a peer sends; anything that slips through is logged.
       process.on('unhandledRejection', (e) => process.stderr.write(`tideline: unhandled rejection: ${(e as Error)?.stack ?? e}\n`));
+      // The dashboard is built on first serve and whenever its sources changed (server/web-dashboard.ts).
+      if (config.webDir) {
+        const { ensureDashboard } = await import('./web-dashboard.ts');
+        const r = await ensureDashboard(config.webDir, (line) => process.stdout.write(`${line}\n`));
+        process.stdout.write(`${r.note}\n`);
+      }
       // Loaded here, not at the top: the server pulls in every channel (OPC UA, MQTT, …), which
       // the other commands do not need and which would slow each of them by seconds.
       const { startServer } = await import('./app.ts');
