@@ -446,8 +446,15 @@ export interface Alarm {
   shelvedUntil: number | null;
   shelvedBy: string | null;
   shelveReason: string | null;
-  /** seq of the spectrum that raised it, when a spectrum did. */
+  /** seq of the spectrum of the latest change (raised, cleared), when a spectrum caused it. */
   seq: number | null;
+  /**
+   * The analyzer's time (ms epoch) of the spectrum that raised the alarm, and of the spectrum of its
+   * latest change (the one `seq` names); raisedAt/clearedAt are the server's time of receipt.
+   * Null when no spectrum caused it (stale data, analyzer status) or for alarms stored before.
+   */
+  raisedSpectrumT?: number | null;
+  spectrumT?: number | null;
   updatedAt: number;
   /** Activations within the chattering window (ANSI/ISA-18.2: 60 s), counted since the server started. */
   recentActivations?: number;

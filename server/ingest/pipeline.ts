@@ -377,7 +377,7 @@ export class IngestPipeline {
     this.post.latencies.push(receivedAt);
     this.post.spectra++;
     this.touched.add(ob);
-    if (ob.stale) this.clearStale(ob, e.seq);
+    if (ob.stale) this.clearStale(ob, e.seq, e.t);
     if (!ob.monitor) return;
     let r: MonitorResult;
     try {
@@ -390,7 +390,7 @@ export class IngestPipeline {
     ob.latest = r;
     ob.endpoint = r.endpoint;
     for (const c of r.conditionChanges) {
-      this.applyCondition(ob.unit, ob.id, { kind: c.kind, key: c.key, active: c.active, message: c.message, value: c.value, limit: c.limit, priority: c.priority }, e.seq, now);
+      this.applyCondition(ob.unit, ob.id, { kind: c.kind, key: c.key, active: c.active, message: c.message, value: c.value, limit: c.limit, priority: c.priority, spectrumT: e.t }, e.seq, now);
     }
     for (const ev of r.events) {
       if (ev.type === 'endpoint-state') {
@@ -611,7 +611,7 @@ export class IngestPipeline {
   private applyCondition(
     unit: string,
     batch: string | null,
-    c: { kind: AlarmKind; key: string; active: boolean; message: string; value: number | null; limit: number | null; priority: AlarmPriority },
+    c: { kind: AlarmKind; key: string; active: boolean; message: string; value: number | null; limit: number | null; priority: AlarmPriority; spectrumT?: number | null },
     seq: number | null,
     now: number,
     direct = false,
@@ -627,6 +627,7 @@ export class IngestPipeline {
       id: randomUUID(), unit, batch, kind: c.kind, key: c.key, state: 'normal', priority: c.priority, message: c.message,
       value: c.value, limit: c.limit, active: false, raisedAt: now, clearedAt: null, acknowledgedAt: null, acknowledgedBy: null,
       acknowledgeComment: null, shelvedUntil: null, shelvedBy: null, shelveReason: null, seq, updatedAt: now, suppressedBy: [],
+      raisedSpectrumT: null, spectrumT: null,
     };
     const next: Alarm = {
       ...base,
@@ -641,6 +642,9 @@ export class IngestPipeline {
       seq: seq ?? base.seq,
       clearedAt: c.active ? null : now,
       raisedAt: cur && cur.state !== 'normal' ? base.raisedAt : c.active ? now : base.raisedAt,
+      // the analyzer's time of the spectrum, paired with raisedAt and with seq as they change
+      raisedSpectrumT: cur && cur.state !== 'normal' ? (base.raisedSpectrumT ?? null) : c.active ? (c.spectrumT ?? null) : (base.raisedSpectrumT ?? null),
+      spectrumT: seq !== null ? (c.spectrumT ?? null) : (base.spectrumT ?? null),
       updatedAt: now,
     };
     if (c.active && cur && cur.state === 'cleared-unacknowledged') next.acknowledgedAt = null;
@@ -697,9 +701,9 @@ export class IngestPipeline {
     return [...this.alarmsById.values()];
   }
 
-  private clearStale(ob: OpenBatch, seq: number | null) {
+  private clearStale(ob: OpenBatch, seq: number | null, spectrumT: number | null = null) {
     ob.stale = false;
-    this.applyCondition(ob.unit, ob.id, { kind: 'stale', key: 'stale', active: false, priority: 2, value: 0, limit: this.config.ingest.staleAfterMs / 1000, message: `data from analyzer ${ob.analyzer} arrives again` }, seq, this.now());
+    this.applyCondition(ob.unit, ob.id, { kind: 'stale', key: 'stale', active: false, priority: 2, value: 0, limit: this.config.ingest.staleAfterMs / 1000, message: `data from analyzer ${ob.analyzer} arrives again`, spectrumT }, seq, this.now());
     this.events.emit('unit-changed', ob.unit);
   }
 

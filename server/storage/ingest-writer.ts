@@ -22,14 +22,17 @@ export const INGEST_SQL = {
   batchProgress: 'UPDATE batches SET spectrum_count = ?, last_seq = ?, last_t = ?, endpoint_state = ?, endpoint_at = ? WHERE id = ?',
   batchEnd: `UPDATE batches SET status = 'ended', end_seq = ?, end_t = ?, end_reason = ? WHERE id = ?`,
   upsertAlarm: `INSERT INTO alarms (id, unit, batch, kind, key, state, priority, message, value, limit_value, active, raised_at, cleared_at,
-          acknowledged_at, acknowledged_by, ack_comment, shelved_until, shelved_by, shelve_reason, seq, updated_at, suppressed_by)
+          acknowledged_at, acknowledged_by, ack_comment, shelved_until, shelved_by, shelve_reason, seq, updated_at, suppressed_by,
+          raised_spectrum_t, spectrum_t)
         VALUES (@id, @unit, @batch, @kind, @key, @state, @priority, @message, @value, @limit, @active, @raisedAt, @clearedAt,
-          @acknowledgedAt, @acknowledgedBy, @acknowledgeComment, @shelvedUntil, @shelvedBy, @shelveReason, @seq, @updatedAt, @suppressedBy)
+          @acknowledgedAt, @acknowledgedBy, @acknowledgeComment, @shelvedUntil, @shelvedBy, @shelveReason, @seq, @updatedAt, @suppressedBy,
+          @raisedSpectrumT, @spectrumT)
         ON CONFLICT (id) DO UPDATE SET state = excluded.state, priority = excluded.priority, message = excluded.message,
           value = excluded.value, limit_value = excluded.limit_value, active = excluded.active, cleared_at = excluded.cleared_at,
           acknowledged_at = excluded.acknowledged_at, acknowledged_by = excluded.acknowledged_by, ack_comment = excluded.ack_comment,
           shelved_until = excluded.shelved_until, shelved_by = excluded.shelved_by, shelve_reason = excluded.shelve_reason,
-          seq = excluded.seq, updated_at = excluded.updated_at, suppressed_by = excluded.suppressed_by`,
+          seq = excluded.seq, updated_at = excluded.updated_at, suppressed_by = excluded.suppressed_by,
+          raised_spectrum_t = excluded.raised_spectrum_t, spectrum_t = excluded.spectrum_t`,
   insertAnalyzerStatus: `INSERT INTO analyzer_status (analyzer, boot, seq, t, status, code, detail, unit, received_at)
         VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?)`,
   insertEndpointEvent: `INSERT INTO endpoint_events (id, unit, batch, from_state, to_state, t, seq, reason, recorded_at)
@@ -58,7 +61,7 @@ const commit = db.transaction((w) => {
   for (const p of w.batchProgress) s.batchProgress.run(p.spectrumCount, p.lastSeq, p.lastT, p.endpointState, p.endpointAt, p.batch);
   for (const e of w.batchEnds) s.batchEnd.run(e.endSeq, e.endT, e.endReason, e.batch);
   for (const x of (w.analyzerStatus || [])) s.insertAnalyzerStatus.run(x.analyzer, x.boot, x.seq, x.t, x.status, x.code, x.detail, x.unit, x.receivedAt);
-  for (const a of w.alarms) s.upsertAlarm.run({ ...a, active: a.active ? 1 : 0, suppressedBy: (a.suppressedBy || []).join(',') });
+  for (const a of w.alarms) s.upsertAlarm.run({ ...a, active: a.active ? 1 : 0, suppressedBy: (a.suppressedBy || []).join(','), raisedSpectrumT: a.raisedSpectrumT ?? null, spectrumT: a.spectrumT ?? null });
   for (const e of w.endpointEvents) s.insertEndpointEvent.run(e.id, e.unit, e.batch, e.from, e.to, e.t, e.seq, e.reason, e.recordedAt);
   for (const o of w.outbox) s.insertOutbox.run(o.id, o.unit, o.unitSeq, o.type, JSON.stringify(o.payload), o.createdAt);
   for (const b of w.boots) s.bootSeq.run(b.lastSeq, b.lastSeen, b.analyzer, b.boot);

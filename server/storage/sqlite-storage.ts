@@ -71,6 +71,7 @@ function alarmFromRow(r: Row): Alarm {
     clearedAt: r.cleared_at, acknowledgedAt: r.acknowledged_at, acknowledgedBy: r.acknowledged_by,
     acknowledgeComment: r.ack_comment, shelvedUntil: r.shelved_until, shelvedBy: r.shelved_by,
     shelveReason: r.shelve_reason, seq: r.seq, updatedAt: r.updated_at,
+    raisedSpectrumT: r.raised_spectrum_t ?? null, spectrumT: r.spectrum_t ?? null,
     suppressedBy: r.suppressed_by ? (String(r.suppressed_by).split(',') as Alarm['suppressedBy']) : [],
   };
 }
@@ -426,7 +427,7 @@ export class SqliteStorage implements Storage {
 }
 
 function alarmParams(a: Alarm) {
-  return { ...a, active: a.active ? 1 : 0, suppressedBy: (a.suppressedBy ?? []).join(',') };
+  return { ...a, active: a.active ? 1 : 0, suppressedBy: (a.suppressedBy ?? []).join(','), raisedSpectrumT: a.raisedSpectrumT ?? null, spectrumT: a.spectrumT ?? null };
 }
 function bootFromRow(r: Row): AnalyzerBootRow {
   return { analyzer: r.analyzer, boot: r.boot, axis: blobF64(r.axis), instrument: r.instrument, firstSeen: r.first_seen, lastSeen: r.last_seen, lastSeq: r.last_seq };

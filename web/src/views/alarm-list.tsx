@@ -3,14 +3,14 @@ import { useState } from 'preact/hooks';
 import type { Alarm } from '../../../core/api/rest.ts';
 import { api } from '../api/endpoints.ts';
 import { errorText } from '../api/problem.ts';
-import { sortAlarms } from '../live/live-state.ts';
+import { alarmTimes, orderAlarms } from './alarm-data.ts';
 import { Advisory, Badge, ErrorBox } from '../components/status.tsx';
 import { PRIORITY_WORDS, alarmWords } from '../format/status-words.ts';
 import { clock, sig } from '../format/number-format.ts';
 import { DEFAULT_ALARM_SETTINGS } from '../../../core/alarms/types.ts';
 
-export function AlarmList({ alarms, now, title = 'Alarms' }: { alarms: Alarm[]; now: number; title?: string }) {
-  const list = sortAlarms(alarms);
+export function AlarmList({ alarms, now, title = 'Alarms', currentBatch = null }: { alarms: Alarm[]; now: number; title?: string; currentBatch?: string | null }) {
+  const list = orderAlarms(alarms, currentBatch);
   const [error, setError] = useState<string | null>(null);
   const [shelving, setShelving] = useState<string | null>(null);
   const [busy, setBusy] = useState<string | null>(null);
@@ -43,6 +43,9 @@ export function AlarmList({ alarms, now, title = 'Alarms' }: { alarms: Alarm[]; 
                 <Badge tone={w.tone}>{w.text}</Badge>
                 <span class="prio">{PRIORITY_WORDS[a.priority]}</span>
                 <b>{a.kind === 'envelope' ? a.key.toUpperCase() : a.kind.toUpperCase()}</b>
+                <span class="alarm-batch small" data-testid="alarm-batch">
+                  {a.batch === null ? 'no batch' : a.batch === currentBatch ? `this batch (${a.batch})` : `earlier batch ${a.batch}`}
+                </span>
                 {a.chattering && (
                   <Badge tone="warn" title={`${a.recentActivations ?? 3} activations within the last minute (ANSI/ISA-18.2: ≥ 3 a minute is chattering)`}>
                     chattering ×{a.recentActivations}
@@ -51,7 +54,7 @@ export function AlarmList({ alarms, now, title = 'Alarms' }: { alarms: Alarm[]; 
               </div>
               <div class="alarm-msg">{a.message}</div>
               <div class="alarm-meta muted small">
-                raised {clock(a.raisedAt)}
+                {alarmTimes(a)}
                 {a.value !== null && a.limit !== null && ` · value ${sig(a.value)} / limit ${sig(a.limit)}`}
                 {a.acknowledgedBy && ` · acknowledged by ${a.acknowledgedBy} ${clock(a.acknowledgedAt)}`}
                 {a.shelvedUntil && a.shelvedUntil > now && ` · shelved by ${a.shelvedBy ?? '?'} until ${clock(a.shelvedUntil)}: ${a.shelveReason ?? ''}`}

@@ -29,7 +29,9 @@ export function Watch({ unit, now }: { unit: string; now: number }) {
   const [pcs, setPcs] = useState<number[]>([1, 2]);
   const [plane, setPlane] = useState<[number, number]>([1, 2]);
   const [log, setLog] = useState(false);
-  const [picked, setPicked] = useState<number | null>(null);
+  // The picked spectrum belongs to a batch: when the unit moves on to a new batch, nothing is picked
+  // (the spectrum view follows the new batch's latest and the contributions close).
+  const [pickedIn, setPickedIn] = useState<{ batch: string; seq: number } | null>(null);
   const unitStatus = s.units.get(unit);
   const snapshotSeen = s.lastN > 0;
 
@@ -62,7 +64,9 @@ export function Watch({ unit, now }: { unit: string; now: number }) {
   }
   const envData = env.data;
   const pcChoices = availablePcs(envData, s.latest?.scores ?? null);
-  const pickedSeq = picked;
+  const batchId = s.batch.id;
+  const pickedSeq = pickedIn && pickedIn.batch === batchId ? pickedIn.seq : null;
+  const setPicked = (seq: number | null) => setPickedIn(seq === null ? null : { batch: batchId, seq });
   return (
     <section class="view watch">
       <WatchHead unit={unit} s={s} connection={live.connection} />
@@ -114,13 +118,13 @@ export function Watch({ unit, now }: { unit: string; now: number }) {
               </div>
               <PlaneChart live={live} env={planeEnv} a={plane[0]} b={plane[1]} />
             </div>
-            <SpectrumPanel batch={s.batch.id} seq={pickedSeq ?? s.latest?.seq ?? null} following={pickedSeq === null} latestT={s.latest?.t ?? null} />
+            <SpectrumPanel key={batchId} batch={batchId} seq={pickedSeq ?? s.latest?.seq ?? null} following={pickedSeq === null} latestT={s.latest?.t ?? null} />
           </div>
-          {pickedSeq !== null && <ContributionsPanel batch={s.batch.id} seq={pickedSeq} onClose={() => setPicked(null)} />}
+          {pickedSeq !== null && <ContributionsPanel key={batchId} batch={batchId} seq={pickedSeq} onClose={() => setPicked(null)} />}
         </div>
         <aside class="watch-side">
           <EndpointPanel ep={s.endpoint} s={s} />
-          <AlarmList alarms={[...s.alarms.values()]} now={now} />
+          <AlarmList alarms={[...s.alarms.values()]} now={now} currentBatch={s.batch.id} />
         </aside>
       </div>
     </section>
