@@ -483,13 +483,19 @@ export interface ShelveAlarmRequest {
 // | GET | /api/models/versions/:version/calibration | CalibrationView |
 // (GET /api/batches/:batch/comparison is served by server/transfer; see its index.ts for the shape.)
 
-/** One spectrum raw and after the model's preprocessing (golden arrays null when the model has none per wavelength). */
+/**
+ * One spectrum raw and after the model's preprocessing, with the golden band at the spectrum's
+ * progress: the reference batches' spectra near that progress, one mean spectrum per batch, mean ±
+ * k·sd between batches per wavelength (golden arrays null when there is no band; `golden` says why).
+ */
 export interface SpectrumView {
   batch: string;
   seq: number;
   t: number;
   raw: { axis: number[]; values: number[]; goldenMean: number[] | null; goldenLower: number[] | null; goldenUpper: number[] | null };
   preprocessed: { axis: number[]; values: number[]; goldenMean: number[] | null; goldenLower: number[] | null; goldenUpper: number[] | null } | null;
+  /** How the band was made (null arrays above: `note` says why there is none). */
+  golden?: { versionId: string; progress: number; progressFrom: number; progressTo: number; batches: number; spectra: number; k: number; method: string } | { versionId: string | null; note: string };
 }
 
 /** Calibration diagnostics of a model version, for Model bench. */

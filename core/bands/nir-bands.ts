@@ -42,24 +42,40 @@ export function regionOf(nm: number, regions: readonly NirRegion[] = NIR_REGIONS
 }
 
 /**
- * Sum per-variable values over the named regions; variables in no region go to 'other'.
- * Returns one entry per region present on the axis, in wavelength order.
+ * Sum per-variable values over the named regions. Variables in no named region are grouped by
+ * contiguous runs along the axis, each run its own 'other' region named by where it starts
+ * ('other-1002'), so regions never overlap. Each region's from/to are the lowest and highest
+ * wavelengths of the axis that fell in it. Returns one entry per region present, in wavelength order;
+ * every variable is in exactly one region, so the region sums add up to the totals.
  */
 export function sumByRegion(axis: ArrayLike<number>, values: ArrayLike<number>[], regions: readonly NirRegion[] = NIR_REGIONS): { region: NirRegion; sums: number[] }[] {
-  const present = new Map<string, { region: NirRegion; sums: number[] }>();
-  const other: NirRegion = { name: 'other', from: NaN, to: NaN, assignment: 'no assigned band' };
-  for (let j = 0; j < axis.length; j++) {
-    const r = regionOf(axis[j], regions) ?? other;
-    let e = present.get(r.name);
-    if (!e) {
-      e = { region: r === other ? { ...other, from: axis[j], to: axis[j] } : r, sums: values.map(() => 0) };
-      present.set(r.name, e);
+  const order = Array.from({ length: axis.length }, (_, j) => j).sort((a, b) => axis[a] - axis[b]);
+  const out: { region: NirRegion; sums: number[] }[] = [];
+  const byName = new Map<string, { region: NirRegion; sums: number[] }>();
+  let run: { region: NirRegion; sums: number[] } | null = null; // the 'other' run being extended
+  for (const j of order) {
+    const nm = axis[j];
+    const named = regionOf(nm, regions);
+    let e: { region: NirRegion; sums: number[] };
+    if (named) {
+      run = null;
+      const hit = byName.get(named.name);
+      if (hit) e = hit;
+      else {
+        e = { region: { ...named, from: nm, to: nm }, sums: values.map(() => 0) };
+        byName.set(named.name, e);
+        out.push(e);
+      }
+    } else {
+      if (!run) {
+        run = { region: { name: `other-${Math.round(nm)}`, from: nm, to: nm, assignment: 'no assigned band' }, sums: values.map(() => 0) };
+        out.push(run);
+      }
+      e = run;
     }
-    if (r === other) {
-      e.region.from = Math.min(e.region.from, axis[j]);
-      e.region.to = Math.max(e.region.to, axis[j]);
-    }
+    if (nm < e.region.from) e.region.from = nm;
+    if (nm > e.region.to) e.region.to = nm;
     for (let v = 0; v < values.length; v++) e.sums[v] += values[v][j];
   }
-  return [...present.values()].sort((a, b) => a.region.from - b.region.from);
+  return out.sort((a, b) => a.region.from - b.region.from);
 }

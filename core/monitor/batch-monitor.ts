@@ -246,7 +246,7 @@ export function createBatchMonitor(model: MonitoringModel, batchStartT: number):
     chain.apply(values, xc);
     const c = pcaContributions(pca, xc);
     const axis = Array.from(chain.outputAxis);
-    const regions = sumByRegion(axis, [c.t2, c.q]).map((r) => ({ name: r.region.name, from: r.region.from, to: r.region.to, assignment: r.region.assignment, t2: r.sums[0], q: r.sums[1] }));
+    const regions = sumByRegion(axis, [c.t2, c.q, c.t2.map(Math.abs)]).map((r) => ({ name: r.region.name, from: r.region.from, to: r.region.to, assignment: r.region.assignment, t2: r.sums[0], q: r.sums[1], t2Abs: r.sums[2] }));
     return { axis, t2: Array.from(c.t2), q: Array.from(c.q), rbcT2: Array.from(c.rbcT2), rbcQ: Array.from(c.rbcQ), regions };
   }
 

@@ -130,8 +130,12 @@ export interface Contributions {
   q: number[]; // e_j², sums to Q
   rbcT2: number[]; // Alcala & Qin 2009
   rbcQ: number[];
-  /** Summed over named wavelength regions (band assignments). */
-  regions: { name: string; from: number; to: number; assignment: string; t2: number; q: number }[];
+  /**
+   * Summed over wavelength regions (band assignments; regions do not overlap and hold every
+   * variable): t2 the signed sum, t2Abs the sum of |T² contribution| (T² contributions can be
+   * negative, so shares of T² are taken of Σ|c|), q the sum of e².
+   */
+  regions: { name: string; from: number; to: number; assignment: string; t2: number; q: number; t2Abs: number }[];
 }
 
 /** Events emitted by core for the outbox (server adds id and per-unit sequence). */

@@ -53,6 +53,16 @@ export interface BatchReportData {
   property: { name: string; unit: string } | null;
 }
 
+/** The listed regions and one row for the rest, so each share column adds up to 100 %. */
+function regionRows(regions: ReportRegion[]): string[][] {
+  const rows = regions.map((r) => [`${nm(r.from)}–${nm(r.to)}`, r.assignment, `${num(r.t2Share * 100, 3)} %`, `${num(r.qShare * 100, 3)} %`]);
+  if (regions.length === 0) return rows;
+  const t2 = Math.max(0, 1 - regions.reduce((a, r) => a + r.t2Share, 0));
+  const q = Math.max(0, 1 - regions.reduce((a, r) => a + r.qShare, 0));
+  if (t2 >= 5e-4 || q >= 5e-4) rows.push(['other regions', '', `${num(t2 * 100, 3)} %`, `${num(q * 100, 3)} %`]);
+  return rows;
+}
+
 const utc = (t: number | null | undefined) => (t === null || t === undefined ? '—' : new Date(t).toISOString().replace('T', ' ').replace(/\.\d+Z$/, ' UTC'));
 const nm = (v: number) => v.toFixed(0);
 const num = (v: number | null | undefined, digits = 3) => (v === null || v === undefined || !Number.isFinite(v) ? '—' : Number(v.toPrecision(digits)).toString());
@@ -195,7 +205,8 @@ ${
     ? `<p>${dep.firstExitT ? `First left the golden batches (alarm rule) at ${esc(utc(dep.firstExitT))} (seq ${dep.firstExitSeq}): ${esc(dep.firstExitWhat ?? '')}.` : 'The batch never left the golden batches by the alarm rule: no departure window.'}${dep.firstOutside ? ` A single point was outside at ${esc(utc(dep.firstOutside.t))} (seq ${dep.firstOutside.seq}): ${esc(dep.firstOutside.what)} (possibly a suspect scan).` : ''}</p>
 ${table(['PC', 'mean |deviation| after DTW', 'max |deviation|'], dep.alignedDeviation.map((a) => [`PC${a.pc}`, num(a.meanAbs), num(a.maxAbs)]))}
 ${dep.window ? `<p>Departure window: seq ${dep.window.fromSeq}…${dep.window.toSeq}.</p>` : ''}
-${table(['region (nm)', 'assignment', 'share of T²', 'share of Q'], dep.regions.map((r) => [`${nm(r.from)}–${nm(r.to)}`, r.assignment, `${num(r.t2Share * 100, 3)} %`, `${num(r.qShare * 100, 3)} %`]))}
+${dep.regions.length ? `${table(['region (nm)', 'assignment', 'share of T²', 'share of Q'], regionRows(dep.regions))}
+<p>Shares over the departure window: of T² the region's sum of |T² contribution| (contributions can be negative), of Q its sum of squared residuals; the last row holds the regions not listed, so each column adds up to 100 %.</p>` : ''}
 ${regionsChart ? `<div class="chart">${regionsChart}</div>` : ''}`
     : '<p class="empty">No departure analysis (no model, or no results).</p>'
 }

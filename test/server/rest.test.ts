@@ -1,6 +1,10 @@
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { simulateReferenceSet, simulateDryerBatch } from '../../simulators/batch.ts';
 import { Peer, login, startTestServer, type Session, type TestServer } from './helpers.ts';
+import { execFileSync } from 'node:child_process';
+import { parseMonitoringModel } from '../../core/model/monitoring-model.ts';
+import { createBatchMonitor } from '../../core/monitor/batch-monitor.ts';
+import { gridIndex } from '../../core/envelope/envelope.ts';
 
 let ts: TestServer;
 let admin: Session;
@@ -182,6 +186,7 @@ describe('REST: models — build, evaluate, approve (signature), deploy, retire'
     expect(r.status, JSON.stringify(r.body).slice(0, 300)).toBe(200);
     expect(r.body.raw.values).toEqual(Array.from(b.spectra[2]!));
     expect(r.body.preprocessed.values.length).toBe(r.body.preprocessed.axis.length);
+    await expectGoldenBand(r.body, versionId);
     r = await viewer.get(`/api/models/versions/${versionId}/calibration`);
     expect(r.status, JSON.stringify(r.body).slice(0, 300)).toBe(200);
     expect(r.body.loadings.length).toBe(2);
@@ -254,3 +259,46 @@ describe('OpenAPI and metrics', () => {
     expect(text).toMatch(/tideline_alarms_active\{state="active-unacknowledged"\}/);
   });
 });
+
+/**
+ * The spectrum view's golden band: the reference batches replayed here through the version's
+ * model, their spectra within ±max(1, smoothing) grid points of the spectrum's progress averaged per
+ * batch, then mean and sd between batches by numpy (ddof = 1) times the envelope's k.
+ */
+async function expectGoldenBand(view: any, versionId: string): Promise<void> {
+  const g = view.golden;
+  expect(g, JSON.stringify(g)).toMatchObject({ versionId, batches: refs.length });
+  const file = await viewer.get(`/api/models/versions/${versionId}/model.json`);
+  const model = parseMonitoringModel(JSON.stringify(file.body));
+  const env = model.envelope;
+  const k = gridIndex(env, g.progress);
+  const half = Math.max(1, env.smoothing);
+  const perBatch: { raw: number[][]; pre: number[][] }[] = refs.map((b) => {
+    const mon = createBatchMonitor(model, b.times[0]!);
+    const raw: number[][] = [];
+    b.spectra.forEach((sp, i) => {
+      const r = mon.push(i, b.times[i]!, sp);
+      if (Math.abs(gridIndex(env, r.progress) - k) <= half) raw.push(Array.from(sp));
+    });
+    return { raw, pre: raw.map((x) => Array.from(model.chain.apply(x))) };
+  });
+  expect(g.spectra).toBe(perBatch.reduce((n, b) => n + b.raw.length, 0));
+  const py = `
+import json, sys, numpy as np
+d = json.load(sys.stdin)
+out = {}
+for key in ('raw', 'pre'):
+    m = np.array([np.mean(np.array(b[key]), axis=0) for b in d['batches']])
+    out[key] = {'mean': m.mean(axis=0).tolist(), 'sd': m.std(axis=0, ddof=1).tolist()}
+print(json.dumps(out))`;
+  const want = JSON.parse(execFileSync('python3', ['-c', py], { input: JSON.stringify({ batches: perBatch }) }).toString());
+  for (const [key, part] of [['raw', view.raw], ['pre', view.preprocessed]] as const) {
+    const w = want[key] as { mean: number[]; sd: number[] };
+    expect(part.goldenMean.length).toBe(part.axis.length);
+    for (let j = 0; j < part.axis.length; j += 17) {
+      expect(part.goldenMean[j]).toBeCloseTo(w.mean[j]!, 9);
+      expect(part.goldenUpper[j]).toBeCloseTo(w.mean[j]! + env.k * w.sd[j]!, 9);
+      expect(part.goldenLower[j]).toBeCloseTo(w.mean[j]! - env.k * w.sd[j]!, 9);
+    }
+  }
+}

@@ -152,15 +152,36 @@ describe.skipIf(!haveChromium)('dashboard in headless Chromium', () => {
     await ep.getByText(/Tideline advises/).waitFor();
     // the reference batches' paths arrive separately and are drawn in the score plane
     await page.getByTestId('plane-chart').getByText('reference batches').waitFor({ timeout: 60_000 });
+    // at 1,280 px the endpoint panel stays beside the charts, not under them
+    const main = (await page.locator('.watch-main').boundingBox())!;
+    const side = (await ep.boundingBox())!;
+    expect(side.x).toBeGreaterThanOrEqual(main.x + main.width);
+    expect(side.y).toBeLessThan(main.y + 200);
+    // the spectrum over the golden band of the reference batches at its progress, raw and preprocessed
+    const spectrum = page.getByTestId('spectrum-panel');
+    await spectrum.getByTestId('golden-band-note').getByText(/^Golden band: \d+ reference batches/).waitFor({ timeout: 60_000 });
+    await spectrum.getByText('reference mean (raw)').waitFor();
+    await expect.poll(() => countColour('[data-testid="spectrum-panel"]', rgba(STYLE.envelope.fill!), 8), { timeout: 30_000 }).toBeGreaterThan(1000);
     await shot('watch-dryer');
     // Click a point on the T² chart: contributions by wavelength appear.
     const box = (await page.getByTestId('stat-chart-t2').locator('.u-over').boundingBox())!;
     await page.mouse.click(box.x + box.width * 0.5, box.y + box.height * 0.5);
     await page.getByTestId('contributions-panel').locator('canvas').first().waitFor();
     await page.getByTestId('contributions-panel').scrollIntoViewIfNeeded();
+    // the shares of the largest regions and the rest add up to 100 %, each between 0 and 100 %
+    const shares = page.getByTestId('contributions-panel').getByTestId('region-shares');
+    expect((await shares.locator('tfoot tr').first().locator('td.num').allTextContents()).map((x) => x.trim())).toEqual(['100 %', '100 %']);
+    for (const cell of await shares.locator('tbody td.num').allTextContents()) expect(Number(cell.replace(/[^\d.−-]/g, '').replace('−', '-'))).toBeGreaterThanOrEqual(0);
     await shot('watch-contributions');
+    expect(await spectrum.getByText('selected point').count()).toBe(1);
+    // when the unit moves on to a new batch, the picked point and its contributions are let go
+    const head = page.locator('.view-head h1 .sub');
+    const batch0 = (await head.textContent())!;
+    await expect.poll(async () => (await head.textContent()) ?? batch0, { timeout: 180_000 }).not.toBe(batch0);
+    await page.getByTestId('contributions-panel').waitFor({ state: 'detached', timeout: 10_000 });
+    await spectrum.getByText('following the latest').waitFor();
     expect(pageErrors.join("\n")).toBe("");
-  }, 240_000);
+  }, 420_000);
 
   it('acknowledges an alarm', async () => {
     const row = page.getByTestId('alarm-list').locator('li.alarm-row').filter({ has: page.getByRole('button', { name: 'Acknowledge' }) }).first();
@@ -168,6 +189,9 @@ describe.skipIf(!haveChromium)('dashboard in headless Chromium', () => {
     const id = (await row.getAttribute('data-testid'))!;
     await page.getByTestId(id).getByRole('button', { name: 'Acknowledge' }).click();
     await page.getByTestId(id).getByText(/acknowledged by demo-admin/).waitFor({ timeout: 30_000 });
+    // each alarm names its batch, and a model alarm gives the time of the spectrum that raised it
+    await expect(page.getByTestId(id).getByTestId('alarm-batch').textContent()).resolves.toMatch(/^(this batch \(dryer-1-|earlier batch dryer-1-)/);
+    await page.getByTestId('alarm-list').getByText(/spectrum taken \d\d:\d\d:\d\d/).first().waitFor();
     await page.getByTestId(id).scrollIntoViewIfNeeded();
     await shot('watch-alarm-acknowledged');
   }, 300_000);

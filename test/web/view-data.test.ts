@@ -1,7 +1,7 @@
 import { describe, expect, it } from 'vitest';
-import type { BatchDetail, EvaluationResult, ModelEnvelopeView } from '../../core/api/rest.ts';
+import type { Alarm, BatchDetail, EvaluationResult, ModelEnvelopeView } from '../../core/api/rest.ts';
 import type { Contributions, MonitorResult } from '../../core/monitor/types.ts';
-import { departureWindow, firstExit, meanContributions, regionShares, sampleSeqs, timeline } from '../../web/src/views/review-data.ts';
+import { departureWindow, firstExit, meanContributions, regionShares, sampleSeqs, timeline, withRemainder } from '../../web/src/views/review-data.ts';
 import { ledgerQuery, summariseChange } from '../../web/src/views/ledger-data.ts';
 import { CHAIN_PRESETS, buildSettingsFromForm, spreadIndices, summariseEvaluation } from '../../web/src/views/bench-data.ts';
 import { availablePcs, goldenPath, progressLabel, referencePaths, scoreBand } from '../../web/src/views/watch-data.ts';
@@ -10,6 +10,9 @@ import { sortedByAxis } from '../../web/src/views/spectrum-data.ts';
 import { niceTicks } from '../../web/src/charts/scatter-svg.tsx';
 import { validateChainSpec } from '../../core/preprocess/index.ts';
 import { ENDPOINT_WORDS, alarmWords, limitStatus } from '../../web/src/format/status-words.ts';
+import { alarmTimes, orderAlarms } from '../../web/src/views/alarm-data.ts';
+import { clock, dateTime } from '../../web/src/format/number-format.ts';
+import { goldenNote } from '../../web/src/views/spectrum-panel.tsx';
 
 function r(seq: number, o: { out?: 'above' | 'below'; t2?: number; q?: number } = {}): MonitorResult {
   return {
@@ -58,10 +61,10 @@ describe('Review helpers', () => {
     expect(t[5]!.tMin).toBe(9);
   });
   it('averages contributions and their region sums; samples seqs in the window', () => {
-    const c = (k: number): Contributions => ({ axis: [1, 2], t2: [k, 2 * k], q: [k, 0], rbcT2: [0, 0], rbcQ: [k, k], regions: [{ name: 'O–H', from: 1, to: 2, assignment: 'water', t2: 3 * k, q: k }] });
+    const c = (k: number): Contributions => ({ axis: [1, 2], t2: [k, 2 * k], q: [k, 0], rbcT2: [0, 0], rbcQ: [k, k], regions: [{ name: 'O–H', from: 1, to: 2, assignment: 'water', t2: 3 * k, q: k, t2Abs: 3 * k }] });
     const m = meanContributions([c(1), c(3)])!;
     expect(m.t2).toEqual([2, 4]);
-    expect(m.regions[0]).toMatchObject({ t2: 6, q: 2 });
+    expect(m.regions[0]).toMatchObject({ t2: 6, q: 2, t2Abs: 6 });
     expect(meanContributions([])).toBeNull();
     expect(sampleSeqs(rs, 2, 9, 3)).toEqual([2, 6, 9]);
     expect(sampleSeqs(rs, 2, 3, 5)).toEqual([2, 3]);
@@ -137,15 +140,25 @@ describe('chart data helpers', () => {
   it('sorts a descending wavelength axis and reorders series with it', () => {
     expect(sortedByAxis([3, 2, 1], [[30, 20, 10]])).toEqual({ axis: [1, 2, 3], series: [[10, 20, 30]] });
   });
-  it('region shares are parts of the summed contribution', () => {
-    const c: Contributions = { axis: [1, 2, 3, 4], t2: [1, 1, 1, 1], q: [0, 2, 2, 4], rbcT2: [0, 0, 0, 0], rbcQ: [0, 0, 0, 0], regions: [
-      { name: 'a', from: 1, to: 2, assignment: 'x', t2: 2, q: 2 }, { name: 'b', from: 3, to: 4, assignment: 'y', t2: 2, q: 6 }] };
-    expect(regionShares(c).map((x) => [x.t2Share, x.qShare])).toEqual([[0.5, 0.25], [0.5, 0.75]]);
+  it('region shares are parts of the summed contribution and add up to 100 %, even with negative T² contributions', () => {
+    // Signed T² contributions 4, −1 | −2, 0.5 sum to 1.5: shares of the signed sum would be 200 % and −100 %.
+    const c: Contributions = { axis: [1, 2, 3, 4], t2: [4, -1, -2, 0.5], q: [0, 2, 2, 4], rbcT2: [0, 0, 0, 0], rbcQ: [0, 0, 0, 0], regions: [
+      { name: 'a', from: 1, to: 2, assignment: 'x', t2: 3, q: 2, t2Abs: 5 }, { name: 'b', from: 3, to: 4, assignment: 'y', t2: -1.5, q: 6, t2Abs: 2.5 }] };
+    const s = regionShares(c);
+    expect(s.map((x) => [x.t2Share, x.qShare])).toEqual([[5 / 7.5, 0.25], [2.5 / 7.5, 0.75]]);
+    expect(s.reduce((a, x) => a + x.t2Share, 0)).toBeCloseTo(1, 12);
     expect(topShares(c, 'q', 1)[0]!.name).toBe('b');
+    // the table of the largest regions gets one row for the rest, so its columns add up to 100 %
+    const rows = withRemainder(topShares(c, 'q', 1), c.regions.length);
+    expect(rows.map((r) => r.name)).toEqual(['b', '1 other region']);
+    expect(rows.reduce((a, r) => a + r.t2Share, 0)).toBeCloseTo(1, 12);
+    expect(rows.reduce((a, r) => a + r.qShare, 0)).toBeCloseTo(1, 12);
+    expect(withRemainder(s, 2)).toHaveLength(2);
+    expect(withRemainder([{ name: 'x', t2Share: 0.6, qShare: 0.9 }]).at(-1)).toMatchObject({ name: 'all other regions', from: null });
   });
   it('contribution series ascend in wavelength; top regions by size', () => {
     const c: Contributions = { axis: [1500, 1400], t2: [1, 2], q: [3, 4], rbcT2: [0, 0], rbcQ: [0, 0], regions: [
-      { name: 'a', from: 1, to: 2, assignment: '', t2: 1, q: -5 }, { name: 'b', from: 1, to: 2, assignment: '', t2: 3, q: 1 }] };
+      { name: 'a', from: 1, to: 2, assignment: '', t2: 1, q: -5, t2Abs: 1 }, { name: 'b', from: 1, to: 2, assignment: '', t2: 3, q: 1, t2Abs: 3 }] };
     expect(contributionSeries(c, 'q')).toEqual([[1400, 1500], [4, 3]]);
     expect(topRegions(c, 'q', 1)[0]!.name).toBe('a');
     expect(topRegions(c, 't2', 1)[0]!.name).toBe('b');
@@ -162,5 +175,43 @@ describe('chart data helpers', () => {
     const a = { state: 'active-unacknowledged', shelvedUntil: 100 } as never;
     expect(alarmWords(a, 50).text).toBe('shelved');
     expect(alarmWords(a, 150).text).toBe('active, not acknowledged');
+  });
+});
+
+describe('alarm list helpers', () => {
+  const alarm = (id: string, batch: string | null, o: Partial<Alarm> = {}): Alarm => ({
+    id, unit: 'dryer-1', batch, kind: 't2', key: 't2', state: 'active-unacknowledged', priority: 2, message: '', value: 1, limit: 1, active: true,
+    raisedAt: 0, clearedAt: null, acknowledgedAt: null, acknowledgedBy: null, acknowledgeComment: null, shelvedUntil: null, shelvedBy: null,
+    shelveReason: null, seq: null, updatedAt: 0, ...o,
+  });
+  it("puts the running batch's alarms first, each group by state, priority and time", () => {
+    const list = [
+      alarm('old-unack', 'b1', { raisedAt: 50 }),
+      alarm('cur-cleared', 'b2', { state: 'cleared-unacknowledged', raisedAt: 60 }),
+      alarm('none', null, { raisedAt: 70 }),
+      alarm('cur-active', 'b2', { raisedAt: 40 }),
+    ];
+    expect(orderAlarms(list, 'b2').map((a) => a.id)).toEqual(['cur-active', 'cur-cleared', 'none', 'old-unack']);
+    expect(orderAlarms(list, null).map((a) => a.id)).toEqual(['none', 'old-unack', 'cur-active', 'cur-cleared']);
+  });
+  it("gives the spectrum's time beside the time received, with the date when the day differs", () => {
+    const recv = Date.UTC(2026, 11, 5, 13, 30, 7);
+    const taken = Date.UTC(2026, 11, 5, 11, 2, 33);
+    const a = alarm('a', 'b', { raisedAt: recv, raisedSpectrumT: taken, seq: 11579, spectrumT: taken });
+    expect(alarmTimes(a)).toBe(`raised ${clock(recv)} (spectrum taken ${clock(taken)}) · spectrum #11579`);
+    const c = alarmTimes({ ...a, clearedAt: recv + 60_000, seq: 11590, spectrumT: taken + 600_000 });
+    expect(c).toBe(`raised ${clock(recv)} (spectrum taken ${clock(taken)}) · cleared ${clock(recv + 60_000)} (spectrum taken ${clock(taken + 600_000)}, #11590)`);
+    const yesterday = taken - 86_400_000;
+    expect(alarmTimes({ ...a, raisedSpectrumT: yesterday })).toContain(`(spectrum taken ${dateTime(yesterday)})`);
+    expect(alarmTimes(alarm('s', 'b', { raisedAt: recv }))).toBe(`raised ${clock(recv)}`);
+  });
+});
+
+describe('spectrum view note', () => {
+  it('says what the golden band is, or why there is none', () => {
+    expect(goldenNote({ versionId: 'v', progress: -8.67, progressFrom: -9.01, progressTo: -8.42, batches: 30, spectra: 364, k: 3.45, method: '' })).toBe(
+      'Golden band: 30 reference batches, 364 of their spectra at progress −9.01 to −8.42 (this spectrum −8.67); each batch\'s mean spectrum, then mean ± 3.45 sd between batches per wavelength.',
+    );
+    expect(goldenNote({ versionId: null, note: 'no model judged this batch' })).toBe('No golden band: no model judged this batch.');
   });
 });

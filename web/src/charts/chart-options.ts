@@ -247,7 +247,9 @@ export function spectrumOptions(
 ): uPlot.Options {
   const plugins: uPlot.Plugin[] = [];
   if (b.getBand) plugins.push(envelopePlugin(b.getBand));
-  return base(b, [{ label: 'wavelength' }, ...b.series.map((s) => line(s.style, s.label))], plugins, { x: { time: false }, y: { auto: true } });
+  // With a band, the y range holds band and spectrum together (the band may reach beyond the spectrum).
+  const y: uPlot.Scale = b.getBand ? { range: (u) => yRange(b.getBand!(), u.data.slice(1) as ArrayLike<number>[]) } : { auto: true };
+  return base(b, [{ label: 'wavelength' }, ...b.series.map((s) => line(s.style, s.label))], plugins, { x: { time: false }, y });
 }
 
 /** Contributions by wavelength as bars, with band-assignment regions shaded and named. */
@@ -258,7 +260,8 @@ export function contributionOptions(
   return base(
     b,
     [{ label: 'wavelength' }, { label: b.label, stroke: STYLE.batch.stroke, fill: 'rgba(0,114,178,0.55)', width: 1, paths: bars, points: { show: false } }],
-    [regionsPlugin(b.getRegions, REGION_FILLS)],
+    // only regions with an assigned band are shaded and named; wavelengths between them stay plain
+    [regionsPlugin(() => b.getRegions().filter((r) => !r.name.startsWith('other')), REGION_FILLS)],
     { x: { time: false }, y: { auto: true } },
   );
 }

@@ -51,7 +51,7 @@ export function ContributionsPanel({ batch, seq, onClose }: { batch: string; seq
               contributionOptions({ width: w, height: h, xLabel: 'wavelength (nm)', yLabel: KIND_LABEL[kind], label: KIND_LABEL[kind], getRegions: () => c.regions })
             }
           />
-          <RegionShareTable caption="Largest regions (band assignments)" rows={topShares(c, kind === 't2' || kind === 'rbcT2' ? 't2' : 'q', 5)} />
+          <RegionShareTable caption="Largest regions (band assignments)" rows={topShares(c, kind === 't2' || kind === 'rbcT2' ? 't2' : 'q', 5)} totalRegions={c.regions.length} />
         </>
       )}
     </div>

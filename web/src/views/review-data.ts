@@ -105,12 +105,29 @@ export function timeline(b: BatchDetail, results: MonitorResult[], alarms: Alarm
   return ev.sort((a, b2) => a.tMin - b2.tMin);
 }
 
-/** Shares of each region in the summed contribution (0…1), by T² and by Q. */
+/**
+ * Shares of each region (0…1), adding up to 1 over the regions: of T² as the region's sum of |T²
+ * contribution| over the whole axis's (T² contributions can be negative, and shares of their signed
+ * sum run past ±100 %), of Q as its sum of e² over Q.
+ */
 export function regionShares(c: Contributions): { name: string; from: number; to: number; assignment: string; t2Share: number; qShare: number }[] {
-  const sum = (v: number[]) => v.reduce((a, x) => a + x, 0);
-  const t2 = sum(c.t2);
-  const q = sum(c.q);
-  return c.regions.map((r) => ({ name: r.name, from: r.from, to: r.to, assignment: r.assignment, t2Share: t2 ? r.t2 / t2 : NaN, qShare: q ? r.q / q : NaN }));
+  const abs = c.regions.reduce((a, r) => a + r.t2Abs, 0);
+  const q = c.regions.reduce((a, r) => a + r.q, 0);
+  return c.regions.map((r) => ({ name: r.name, from: r.from, to: r.to, assignment: r.assignment, t2Share: abs > 0 ? r.t2Abs / abs : NaN, qShare: q > 0 ? r.q / q : NaN }));
+}
+
+/**
+ * The rows shown plus one row for every region not shown, so each share column adds up to 100 %
+ * (rows whose shares, over all regions, add up to 1).
+ */
+export function withRemainder<R extends { name: string; t2Share: number; qShare: number }>(shown: R[], totalRegions?: number): (R | { name: string; from: null; to: null; assignment: string; t2Share: number; qShare: number })[] {
+  const left = totalRegions === undefined ? null : totalRegions - shown.length;
+  // rounding can leave ±1e-16
+  const t2 = Math.max(0, 1 - shown.reduce((a, r) => a + (Number.isFinite(r.t2Share) ? r.t2Share : 0), 0));
+  const q = Math.max(0, 1 - shown.reduce((a, r) => a + (Number.isFinite(r.qShare) ? r.qShare : 0), 0));
+  if (left === 0 || (left === null && t2 < 5e-4 && q < 5e-4)) return shown;
+  const name = left === null ? 'all other regions' : `${left} other region${left === 1 ? '' : 's'}`;
+  return [...shown, { name, from: null, to: null, assignment: '', t2Share: t2, qShare: q }];
 }
 
 /** Mean of several contribution vectors (same axis) and of their region sums. */
@@ -125,7 +142,12 @@ export function meanContributions(list: Contributions[]): Contributions | null {
     q: avg('q'),
     rbcT2: avg('rbcT2'),
     rbcQ: avg('rbcQ'),
-    regions: first.regions.map((r, i) => ({ ...r, t2: list.reduce((a, c) => a + (c.regions[i]?.t2 ?? 0), 0) / n, q: list.reduce((a, c) => a + (c.regions[i]?.q ?? 0), 0) / n })),
+    regions: first.regions.map((r, i) => ({
+      ...r,
+      t2: list.reduce((a, c) => a + (c.regions[i]?.t2 ?? 0), 0) / n,
+      q: list.reduce((a, c) => a + (c.regions[i]?.q ?? 0), 0) / n,
+      t2Abs: list.reduce((a, c) => a + (c.regions[i]?.t2Abs ?? 0), 0) / n,
+    })),
   };
 }
 

@@ -338,7 +338,11 @@ function DepartureContributions({ batch, results, win, regions }: { batch: strin
             legend={[{ style: { ...STYLE.batch, fill: 'rgba(0,114,178,0.55)' }, label: 'mean Q contribution (e²)' }]}
             make={(w, h) => contributionOptions({ width: w, height: h, xLabel: 'wavelength (nm)', yLabel: 'Q contribution', label: 'Q contribution', getRegions: () => mean.regions })}
           />
-          <RegionShareTable caption="Regions driving the departure (band assignments)" rows={regions && regions.length ? regions : topShares(mean, 'q', 6)} />
+          {regions && regions.length ? (
+            <RegionShareTable caption="Regions driving the departure (band assignments; T² shares of the window's summed contributions)" rows={regions} />
+          ) : (
+            <RegionShareTable caption="Regions driving the departure (band assignments)" rows={topShares(mean, 'q', 6)} totalRegions={mean.regions.length} />
+          )}
         </div>
       )}
     </div>

@@ -9,7 +9,7 @@ import { Chart } from '../charts/chart.tsx';
 import { spectrumOptions } from '../charts/chart-options.ts';
 import type { Band } from '../charts/envelope-band.ts';
 import { ErrorBox, Loading } from '../components/status.tsx';
-import { clock } from '../format/number-format.ts';
+import { clock, sig } from '../format/number-format.ts';
 import { STYLE } from '../theme/palette.ts';
 import type { SeriesStyle } from '../theme/palette.ts';
 import { sortedByAxis } from './spectrum-data.ts';
@@ -58,13 +58,13 @@ export function SpectrumPanel({ batch, seq, following, latestT }: { batch: strin
       {!loaded && !error && <Loading what="spectrum" />}
       {loaded?.kind === 'raw' && (
         <>
-          <SpectrumChart title="raw absorbance" axis={loaded.axis} values={loaded.values} yLabel="absorbance" style={STYLE.batch} band={null} />
+          <SpectrumChart title="raw absorbance" axis={loaded.axis} values={loaded.values} yLabel="absorbance" style={STYLE.batch} band={null} meanLabel="" />
           <p class="muted small">{loaded.note}</p>
         </>
       )}
       {loaded?.kind === 'view' && (
         <>
-          <SpectrumChart title="raw absorbance" axis={loaded.v.raw.axis} values={loaded.v.raw.values} yLabel="absorbance" style={STYLE.batch} band={bandOf(loaded.v.raw)} />
+          <SpectrumChart title="raw absorbance" axis={loaded.v.raw.axis} values={loaded.v.raw.values} yLabel="absorbance" style={STYLE.batch} band={bandOf(loaded.v.raw)} meanLabel="reference mean (raw)" />
           {loaded.v.preprocessed && (
             <SpectrumChart
               title="preprocessed (model input)"
@@ -73,12 +73,23 @@ export function SpectrumPanel({ batch, seq, following, latestT }: { batch: strin
               yLabel="preprocessed"
               style={STYLE.preprocessed}
               band={bandOf(loaded.v.preprocessed)}
+              meanLabel="reference mean (preprocessed)"
             />
           )}
+          <p class="muted small" data-testid="golden-band-note">
+            {goldenNote(loaded.v.golden)}
+          </p>
         </>
       )}
     </div>
   );
+}
+
+/** What the golden band is, or why there is none, in words. */
+export function goldenNote(g: SpectrumView['golden']): string {
+  if (!g) return 'This server sends no golden band for spectra.';
+  if ('note' in g) return `No golden band: ${g.note}.`;
+  return `Golden band: ${g.batches} reference batches, ${g.spectra} of their spectra at progress ${sig(g.progressFrom)} to ${sig(g.progressTo)} (this spectrum ${sig(g.progress)}); each batch's mean spectrum, then mean ± ${sig(g.k)} sd between batches per wavelength.`;
 }
 
 function bandOf(p: SpectrumView['raw']): Band | null {
@@ -101,7 +112,7 @@ async function loadSpectrum(batch: string, seq: number): Promise<Loaded> {
   return { kind: 'raw', seq: sp.seq, t: sp.t, axis: r.axis, values: sp.values, note: 'This server does not provide the preprocessed spectrum or the golden band for spectra; the raw spectrum is shown alone.' };
 }
 
-function SpectrumChart({ title, axis, values, yLabel, style, band }: { title: string; axis: number[]; values: number[]; yLabel: string; style: SeriesStyle; band: Band | null }) {
+function SpectrumChart({ title, axis, values, yLabel, style, band, meanLabel }: { title: string; axis: number[]; values: number[]; yLabel: string; style: SeriesStyle; band: Band | null; meanLabel: string }) {
   const s = sortedByAxis(axis, [values]);
   // The band changes with each spectrum's progress; the chart reads it through a ref when it draws.
   const bandRef = useRef(band);
@@ -112,7 +123,7 @@ function SpectrumChart({ title, axis, values, yLabel, style, band }: { title: st
       height={170}
       optsKey={`${title}-${band ? 1 : 0}`}
       data={[s.axis, s.series[0]] as unknown as uPlot.AlignedData}
-      legend={[{ style, label: title }, ...(band ? [{ style: STYLE.goldenMean }, { style: STYLE.envelope, label: 'golden band' }] : [])]}
+      legend={[{ style, label: `this spectrum (${title})` }, ...(band ? [{ style: STYLE.goldenMean, label: meanLabel }, { style: STYLE.envelope, label: 'golden band' }] : [])]}
       make={(w, h) => spectrumOptions({ width: w, height: h, xLabel: 'wavelength (nm)', yLabel, series: [{ style, label: title }], getBand: band ? () => bandRef.current : undefined })}
     />
   );
