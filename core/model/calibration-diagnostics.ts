@@ -4,6 +4,7 @@
  * the limits, the loadings on the model axis and the PLS cross-validation when there is one.
  */
 import type { MonitoringModel } from './monitoring-model.ts';
+import type { PropertyEvidence } from './property-model.ts';
 
 export interface CalibrationDiagnostics {
   components: number;
@@ -13,6 +14,9 @@ export interface CalibrationDiagnostics {
   press: number[];
   recommended: number;
   cvMethod: string;
+  /** How the recommendation was made (the one-standard-error rule), and whether it is the largest count searched. */
+  cvRule: string | null;
+  cvAtSearchLimit: boolean;
   /** Per calibration spectrum, in build order. */
   sampleT2: number[];
   sampleQ: number[];
@@ -22,7 +26,7 @@ export interface CalibrationDiagnostics {
   outliers: { batch: string; index: number; t2: number; q: number }[];
   limits: { t2: number; q: number; combined: number; confidence: number; t2Method: string; qMethod: string };
   loadings: { axis: number[]; pcs: number[][] };
-  pls: { name: string; unit: string; components: number; rmsecv: number[] | null } | null;
+  pls: { name: string; unit: string; components: number; rmsecv: number[] | null; evidence: PropertyEvidence | null } | null;
 }
 
 export function calibrationDiagnostics(m: MonitoringModel): CalibrationDiagnostics {
@@ -46,6 +50,8 @@ export function calibrationDiagnostics(m: MonitoringModel): CalibrationDiagnosti
     press: meta.pcaCv.press,
     recommended: meta.pcaCv.recommended,
     cvMethod: meta.pcaCv.method,
+    cvRule: meta.pcaCv.rule ?? null,
+    cvAtSearchLimit: meta.pcaCv.atSearchLimit ?? false,
     sampleT2,
     sampleQ,
     sampleBatch,
@@ -53,6 +59,6 @@ export function calibrationDiagnostics(m: MonitoringModel): CalibrationDiagnosti
     outliers,
     limits: { t2: limits.t2.value, q: limits.q.value, combined: limits.combined.value, confidence: limits.t2.confidence, t2Method: limits.t2.method, qMethod: limits.q.method },
     loadings: { axis: Array.from(m.chain.outputAxis), pcs: Array.from({ length: A }, (_, a) => Array.from({ length: p }, (_, j) => pca.loadings.data[j * A + a])) },
-    pls: m.pls ? { name: m.pls.name, unit: m.pls.unit, components: m.pls.components, rmsecv: m.pls.rmsecv } : null,
+    pls: m.pls ? { name: m.pls.name, unit: m.pls.unit, components: m.pls.components, rmsecv: m.pls.rmsecv, evidence: m.pls.evidence } : null,
   };
 }

@@ -27,6 +27,7 @@ import { parseStoredSettings, resolveBuildSettings, type BuildSettings } from '.
 import { fitPropertyModel, loadPropertyModel, type PropertyModel } from './property-model.ts';
 import { plateauSlope } from '../endpoint/plateau.ts';
 import { crossValidatedStatistics } from './group-cv-statistics.ts';
+import { oneStandardErrorRule } from './parsimony.ts';
 
 export { resolveBuildSettings, DEFAULT_SETTINGS, type BuildSettings, type BuildSettingsInput } from './build-settings.ts';
 
@@ -39,7 +40,10 @@ export interface ReferenceBatch {
   /** ms epoch per spectrum */
   times: ArrayLike<number>;
   spectra: ArrayLike<number>[];
-  /** Measured (or reference-method) property per spectrum, for the PLS model and the endpoint time. */
+  /**
+   * Lab (reference-method) value of the property per spectrum, NaN where the spectrum has none
+   * (sparse: a few per batch, as lab results arrive at a site), for the PLS model and the endpoint.
+   */
   property?: ArrayLike<number>;
 }
 
@@ -70,8 +74,12 @@ export interface ModelMeta {
   nVariables: number;
   createdAt: number;
   author: string;
-  /** Cross-validation of the component count (Model bench evidence). */
-  pcaCv: { press: number[]; recommended: number; method: string };
+  /**
+   * Cross-validation of the component count (Model bench evidence): recommended by the
+   * one-standard-error rule (rule: in words; best: the count of least PRESS; atSearchLimit: the
+   * recommendation is the largest count searched). The last three are absent in older files.
+   */
+  pcaCv: { press: number[]; recommended: number; method: string; best?: number; rule?: string; atSearchLimit?: boolean };
   /** Per calibration spectrum: which batch and index (same order as pca.calibrationT2/Q). */
   sampleOrigin: { batch: number; index: number }[];
   /** What the build decided on its own that the model owner should know (e.g. a Q-limit fallback). */
@@ -163,6 +171,7 @@ export function buildMonitoringModel(batches: ReferenceBatch[], settingsInput: u
   const conf = settings.confidence;
   const t2L = t2Limit('t2-f-new', A, n, conf);
   const notes: string[] = [];
+  if (settings.components === 'auto' && pcaCv.atSearchLimit) notes.push(`PCA components: the ${A} chosen are the most the cross-validation searched; more might describe the reference batches better. ${pcaCv.rule}.`);
   const qSetting = settings.qMethod ?? 'jackson-mudholkar';
   const qL = modelQLimit(pca.residualTheta, conf, qSetting).limit;
   if (qL.note) notes.push(`Q limit at ${+(conf * 100).toFixed(3)} %: ${qL.note}.`);
@@ -172,14 +181,17 @@ export function buildMonitoringModel(batches: ReferenceBatch[], settingsInput: u
   let pls: PropertyModel | undefined;
   let predicted: Float64Array | null = null;
   if (settings.property) {
-    const y = new Float64Array(n);
+    // Sparse lab values: NaN where a spectrum has none (a batch without values has none at all).
+    const y = new Float64Array(n).fill(NaN);
     let r = 0;
     batches.forEach((b, bi) => {
-      if (!b.property) throw new RangeError(`reference batch "${b.id}" has no ${settings.property!.name} values; the property model needs them for every batch`);
-      for (const i of kept[bi]) y[r++] = b.property[i];
+      for (const i of kept[bi]) y[r++] = b.property ? b.property[i] : NaN;
     });
-    const needsCv = settings.endpoint.criteria.some((c) => c.kind === 'property' && c.margin === 'auto');
-    pls = fitPropertyModel(batches[0].axis, rows, y, settings.property, settings.chain, needsCv);
+    const fit = fitPropertyModel({ axis: batches[0].axis, rows, y, batchOfRow: origin.map((o) => o.batch), batchIds: batches.map((b) => b.id) }, settings.property, settings.chain);
+    pls = fit.model;
+    const ev = fit.model.evidence!;
+    if (ev.atSearchLimit) notes.push(`Property model: the ${ev.components} LVs chosen are the most the cross-validation searched. ${ev.componentsRule}.`);
+    if (ev.batchesWithoutLab.length) notes.push(`Property model: no lab values of ${settings.property.name}${settings.property.range ? ` within ${settings.property.range[0]}…${settings.property.range[1]} ${settings.property.unit}` : ''} on ${ev.batchesWithoutLab.length} reference batch${ev.batchesWithoutLab.length === 1 ? '' : 'es'} (${ev.batchesWithoutLab.join(', ')}); calibrated on the other ${ev.nBatchesWithLab}.`);
     predicted = Float64Array.from(rows, (x) => pls!.predict(x).y);
   }
 
@@ -312,11 +324,13 @@ export function buildMonitoringModel(batches: ReferenceBatch[], settingsInput: u
 }
 
 /**
- * Cross-validation of the component count (Bro et al. 2008 ekf, A2's crossValidatePca): Model bench
- * evidence and 'auto'. Above 3000 spectra it runs on every k-th spectrum (a fixed stride, so the
- * result is deterministic) to keep the build quick.
+ * Cross-validation of the component count (Bro et al. 2008 ekf, core/pca crossValidatePca): Model
+ * bench evidence and 'auto', which takes the one-standard-error rule over the folds
+ * (core/model/parsimony.ts) rather than the least PRESS, and says when the choice is the largest
+ * count searched. Above 3000 spectra it runs on every k-th spectrum (a fixed stride, so the result
+ * is deterministic) to keep the build quick.
  */
-function crossValidateComponents(X: DenseMatrix): { press: number[]; recommended: number; method: string } {
+function crossValidateComponents(X: DenseMatrix): ModelMeta['pcaCv'] {
   let Y = X;
   let note = '';
   if (X.rows > 3000) {
@@ -331,7 +345,10 @@ function crossValidateComponents(X: DenseMatrix): { press: number[]; recommended
   const folds = Math.min(7, Y.rows);
   const maxA = Math.min(8, Y.cols - 1, Y.rows - Math.ceil(Y.rows / folds) - 1);
   const r = crossValidatePca(Y, Math.max(1, maxA), { folds });
-  return { press: Array.from(r.press), recommended: r.recommended, method: r.method + note };
+  const perElement = r.press.map((v) => v / (Y.rows * Y.cols));
+  const foldErr = r.foldPress.map((row) => row.map((v, f) => v / (r.foldRows[f]! * Y.cols)));
+  const choice = oneStandardErrorRule(perElement, foldErr, 'PC', (a) => `PRESS ${r.press[a - 1]!.toPrecision(4)}`);
+  return { press: Array.from(r.press), recommended: choice.chosen, method: r.method + note, best: choice.best, rule: choice.text, atSearchLimit: choice.atLimit };
 }
 
 // ---- file form ---------------------------------------------------------------------------------
@@ -376,7 +393,7 @@ const bodySchema = z.object({
     nVariables: z.number().int(),
     createdAt: num,
     author: z.string(),
-    pcaCv: z.object({ press: z.array(num), recommended: z.number().int(), method: z.string() }),
+    pcaCv: z.object({ press: z.array(num), recommended: z.number().int(), method: z.string(), best: z.number().int().optional(), rule: z.string().optional(), atSearchLimit: z.boolean().optional() }),
     sampleOrigin: z.array(z.object({ batch: z.number().int(), index: z.number().int() })),
     notes: z.array(z.string()).optional(),
   }),

@@ -1,14 +1,23 @@
 /**
  * The optional property model of a monitoring model: PLS1 (core/pls) from the raw spectra, through
  * its own preprocessing chain (by default the model's chain), to a property (moisture, conversion),
- * with its own T²/Q so an extrapolating prediction is flagged. The calibration may be restricted to
- * a property range around the endpoint (a local calibration, common practice: the endpoint call
- * needs accuracy near the target, not over the whole batch). Component count 'auto' takes the
- * cross-validation recommendation (contiguous segments = whole batches when rows are stacked by batch).
+ * with its own T²/Q so an extrapolating prediction is flagged.
+ *
+ * Calibration on sparse lab values: the reference batches carry a property value only where a lab
+ * result exists (NaN elsewhere); the PLS is calibrated on those spectra only, optionally only on
+ * values within a property range around the endpoint (a local calibration, common practice: the
+ * endpoint call needs accuracy near the target, not over the whole batch). Cross-validation leaves
+ * whole batches out (one fold per batch with lab values): spectra of one batch share its raw
+ * material, probe state and bias, so predicting a batch from its own neighbours would understate
+ * the error of a new batch. RMSECV per LV count and the bias (mean cross-validated residual, ŷ − y)
+ * are kept with the model; the LV count 'auto' is chosen by the one-standard-error rule over the
+ * batch folds (core/model/parsimony.ts).
  */
+import { z } from 'zod';
 import { matrixFromRows } from '../linalg/dense-matrix.ts';
 import { fitChain, loadChain, type ChainSpec, type FittedChain } from '../preprocess/index.ts';
-import { kernelCrossValidatePls1 } from './pls-kernel-cv.ts';
+import { kernelCrossValidatePls1, type KernelCv } from './pls-kernel-cv.ts';
+import { oneStandardErrorRule } from './parsimony.ts';
 import { createPls1Predictor, fitPls1, loadPls1, type Pls1Model } from '../pls/index.ts';
 
 export interface PropertyPredictionValue {
@@ -16,6 +25,30 @@ export interface PropertyPredictionValue {
   t2: number;
   q: number;
   extrapolating: boolean;
+}
+
+/** The cross-validation evidence of a property model (Model bench, version detail). */
+export interface PropertyEvidence {
+  /** How the folds were made. */
+  cvMethod: string;
+  /** RMSECV per LV count, rmsecv[a − 1]; rmsecv0: predicting the training mean (no LV). */
+  rmsecv: number[];
+  rmsecv0: number;
+  /** Mean cross-validated residual (ŷ − y) per LV count. */
+  bias: number[];
+  /** LVs in the model, and how they were chosen. */
+  components: number;
+  componentsRule: string;
+  /** The count chosen is the largest searched (only for 'auto'). */
+  atSearchLimit: boolean;
+  /** Lab values used, and on how many batches (of how many reference batches). */
+  nLabValues: number;
+  nBatchesWithLab: number;
+  nBatches: number;
+  /** Batches with no lab value used (none at all, or none within the range). */
+  batchesWithoutLab: string[];
+  /** Range of the lab values used. */
+  labRange: [number, number];
 }
 
 export interface PropertyModel {
@@ -26,6 +59,8 @@ export interface PropertyModel {
   /** Calibration range of the property, when restricted. */
   range: [number, number] | null;
   nCalibration: number;
+  /** Cross-validation evidence (null in model files written before it was kept). */
+  evidence: PropertyEvidence | null;
   /** One raw spectrum; allocates nothing but the returned object. */
   predict(raw: ArrayLike<number>): PropertyPredictionValue;
   toJSON(): PropertyModelJson;
@@ -37,6 +72,7 @@ export interface PropertyModelJson {
   rmsecv: number[] | null;
   range: [number, number] | null;
   nCalibration: number;
+  evidence?: PropertyEvidence;
   chain: unknown;
   pls: unknown;
 }
@@ -49,7 +85,13 @@ export interface PropertySpec {
   range?: [number, number];
 }
 
-function wrap(name: string, unit: string, rmsecv: number[] | null, range: [number, number] | null, nCalibration: number, chain: FittedChain, model: Pls1Model): PropertyModel {
+/** Least lab values, and least batches carrying them, a property model is calibrated from. */
+export const MIN_LAB_VALUES = 10;
+export const MIN_LAB_BATCHES = 3;
+/** Largest LV count searched for 'auto'. */
+export const MAX_LV_SEARCH = 12;
+
+function wrap(name: string, unit: string, rmsecv: number[] | null, range: [number, number] | null, nCalibration: number, evidence: PropertyEvidence | null, chain: FittedChain, model: Pls1Model): PropertyModel {
   const predictor = createPls1Predictor(model);
   const buf = new Float64Array(chain.outputAxis.length);
   return {
@@ -59,49 +101,191 @@ function wrap(name: string, unit: string, rmsecv: number[] | null, range: [numbe
     rmsecv,
     range,
     nCalibration,
+    evidence,
     predict(raw) {
       chain.apply(raw, buf);
       const r = predictor.predict(buf);
       return { y: r.y, t2: r.t2, q: r.q, extrapolating: r.extrapolating };
     },
     toJSON() {
-      return { name, unit, rmsecv, range, nCalibration, chain: chain.toJSON(), pls: model.toJSON() };
+      return { name, unit, rmsecv, range, nCalibration, ...(evidence ? { evidence } : {}), chain: chain.toJSON(), pls: model.toJSON() };
     },
   };
 }
 
-/** rows: raw spectra (stacked batch by batch); y: the property per row. */
-/** withCv: also cross-validate a fixed component count (rmsecv up to it). */
-export function fitPropertyModel(axis: ArrayLike<number>, rows: ArrayLike<number>[], y: ArrayLike<number>, spec: PropertySpec, modelChain: ChainSpec, withCv = false): PropertyModel {
+/** The reference spectra a property model is fitted from. */
+export interface PropertyCalibrationInput {
+  axis: ArrayLike<number>;
+  /** Raw spectra, all kept reference spectra stacked batch by batch. */
+  rows: ArrayLike<number>[];
+  /** Lab value per row; NaN where the spectrum has none. */
+  y: ArrayLike<number>;
+  /** Reference batch index of each row, and the batch ids. */
+  batchOfRow: ArrayLike<number>;
+  batchIds: string[];
+}
+
+/** A fitted property model with what the rest of the build needs from its cross-validation. */
+export interface PropertyFit {
+  model: PropertyModel;
+  /** Rows (indices into the input rows) the PLS was calibrated on. */
+  calibrationRows: number[];
+  /** Batch-left-out cross-validation (folds = batches with lab values, in order of first appearance). */
+  cv: KernelCv;
+  /** Reference batch index of each fold. */
+  foldBatch: number[];
+  /** The fitted property chain. */
+  chain: FittedChain;
+}
+
+function rmsecvOf(pred: Float64Array, y: Float64Array): number {
+  let s = 0;
+  for (let i = 0; i < y.length; i++) s += (pred[i]! - y[i]!) ** 2;
+  return Math.sqrt(s / y.length);
+}
+
+/**
+ * Fit the property model on the spectra with lab values. Refuses, naming the property and the
+ * batches, when there are fewer than MIN_LAB_VALUES lab values or fewer than MIN_LAB_BATCHES
+ * batches carrying them (whole batches are left out in cross-validation), or when the spectra do
+ * not predict the property better than its mean.
+ */
+export function fitPropertyModel(input: PropertyCalibrationInput, spec: PropertySpec, modelChain: ChainSpec, opts: { keepFolds?: boolean } = {}): PropertyFit {
+  const { rows, y, batchOfRow, batchIds } = input;
+  if (y.length !== rows.length || batchOfRow.length !== rows.length) throw new RangeError(`property model: ${rows.length} spectra, ${y.length} lab values, ${batchOfRow.length} batch labels`);
+  const inRange = (v: number) => !spec.range || (v >= spec.range[0] && v <= spec.range[1]);
   const keep: number[] = [];
-  for (let i = 0; i < rows.length; i++) if (!spec.range || (y[i] >= spec.range[0] && y[i] <= spec.range[1])) keep.push(i);
-  if (keep.length < 10) throw new RangeError(`property model: only ${keep.length} reference spectra have ${spec.name} within ${spec.range?.join('…')} ${spec.unit}; at least 10 are needed`);
-  const raw = matrixFromRows(keep.map((i) => rows[i]));
-  const yy = Float64Array.from(keep, (i) => y[i]);
-  const chain = fitChain(spec.chain ?? modelChain, axis, raw);
+  const anyLab = new Set<number>();
+  for (let i = 0; i < rows.length; i++) {
+    const v = y[i]!;
+    if (!Number.isFinite(v)) continue;
+    anyLab.add(batchOfRow[i]!);
+    if (inRange(v)) keep.push(i);
+  }
+  const within = spec.range ? ` within ${spec.range[0]}…${spec.range[1]} ${spec.unit}` : '';
+  const what = `${spec.name}${spec.unit ? ` (${spec.unit})` : ''}`;
+  if (anyLab.size === 0) throw new RangeError(`property model: none of the ${batchIds.length} reference batches has lab values of ${what}; give lab values (import a property column, or POST /api/batches/:batch/lab-values) or build without a property model`);
+  const labBatches = [...new Set(keep.map((i) => batchOfRow[i]!))].sort((a, b) => a - b);
+  const without = batchIds.filter((_, b) => !labBatches.includes(b));
+  if (labBatches.length < MIN_LAB_BATCHES) {
+    throw new RangeError(
+      `property model: lab values of ${what}${within} on only ${labBatches.length} reference batch${labBatches.length === 1 ? '' : 'es'}${labBatches.length ? ` (${labBatches.map((b) => batchIds[b]).join(', ')})` : ''}; ` +
+        `cross-validation leaves whole batches out and needs lab values on at least ${MIN_LAB_BATCHES}`,
+    );
+  }
+  if (keep.length < MIN_LAB_VALUES) throw new RangeError(`property model: only ${keep.length} lab values of ${what}${within} on the reference batches; at least ${MIN_LAB_VALUES} are needed`);
+  const raw = matrixFromRows(keep.map((i) => rows[i]!));
+  const yy = Float64Array.from(keep, (i) => y[i]!);
+  const chain = fitChain(spec.chain ?? modelChain, input.axis, raw);
   const X = chain.applyMatrix(raw);
+  // Folds: one per batch with lab values, numbered in order.
+  const foldOfBatch = new Map<number, number>();
+  labBatches.forEach((b, f) => foldOfBatch.set(b, f));
+  const seg = Int32Array.from(keep, (i) => foldOfBatch.get(batchOfRow[i]!)!);
+  const foldSize = new Int32Array(labBatches.length);
+  for (const f of seg) foldSize[f]!++;
+  const smallestTrain = keep.length - Math.max(...foldSize);
+  const maxA = Math.min(MAX_LV_SEARCH, X.cols - 1, smallestTrain - 2);
+  if (maxA < 1) throw new RangeError(`property model: too few lab values to cross-validate (${smallestTrain} training values when the largest batch is left out)`);
+  const searched = spec.components === 'auto' ? maxA : spec.components;
+  if (spec.components !== 'auto' && spec.components > maxA) {
+    throw new RangeError(`property model: ${spec.components} LVs asked; at most ${maxA} can be cross-validated with ${keep.length} lab values on ${labBatches.length} batches (${X.cols} variables)`);
+  }
+  const cv = kernelCrossValidatePls1(X, yy, searched, seg, opts);
+  const n = yy.length;
+  const rmsecv = cv.predictions.map((p) => rmsecvOf(p, yy));
+  const bias = cv.predictions.map((p) => {
+    let s = 0;
+    for (let i = 0; i < n; i++) s += p[i]! - yy[i]!;
+    return s / n;
+  });
+  // Intercept-only model per fold: the training mean.
+  let ss0 = 0;
+  let sumAll = 0;
+  for (let i = 0; i < n; i++) sumAll += yy[i]!;
+  const foldSum = new Float64Array(labBatches.length);
+  for (let i = 0; i < n; i++) foldSum[seg[i]!] += yy[i]!;
+  for (let i = 0; i < n; i++) {
+    const f = seg[i]!;
+    ss0 += ((sumAll - foldSum[f]!) / (n - foldSize[f]!) - yy[i]!) ** 2;
+  }
+  const rmsecv0 = Math.sqrt(ss0 / n);
+  const fmt = (v: number) => v.toPrecision(3);
+  const describe = (a: number) => `RMSECV ${fmt(rmsecv[a - 1]!)} ${spec.unit}`;
   let A: number;
-  let rmsecv: number[] | null = null;
+  let rule: string;
+  let atLimit = false;
   if (spec.components === 'auto') {
-    // 10 contiguous segments (A1's crossValidatePls1 scheme) from cross-products: same figures to round-off, one data pass.
-    const cv = kernelCrossValidatePls1(X, yy, Math.min(12, X.cols - 1, X.rows - Math.ceil(X.rows / 10) - 2), 10);
-    rmsecv = Array.from(cv.rmsecv);
-    A = cv.recommended;
+    // Fold errors: mean squared CV residual of each batch.
+    const foldErr = cv.predictions.map((p) => {
+      const s = new Float64Array(labBatches.length);
+      for (let i = 0; i < n; i++) s[seg[i]!] += (p[i]! - yy[i]!) ** 2;
+      return Array.from(s, (v, f) => v / foldSize[f]!);
+    });
+    const choice = oneStandardErrorRule(rmsecv.map((r) => r * r), foldErr, 'LV', describe);
+    A = choice.chosen;
+    atLimit = choice.atLimit;
+    rule = choice.text;
   } else {
     A = spec.components;
-    if (withCv) {
-      // Cross-validated error at the chosen count (for a margin on the endpoint target).
-      const cv = kernelCrossValidatePls1(X, yy, A, 10);
-      rmsecv = Array.from(cv.rmsecv);
-    }
+    rule = `fixed by the model owner (${A} LV, ${describe(A)})`;
   }
-  return wrap(spec.name, spec.unit, rmsecv, spec.range ?? null, keep.length, chain, fitPls1(X, yy, { components: A, center: true }));
+  const bestRmsecv = Math.min(...rmsecv);
+  if (!(bestRmsecv < rmsecv0)) {
+    throw new RangeError(
+      `property model: the spectra do not predict ${spec.name} better than the mean of its lab values (RMSECV ${fmt(bestRmsecv)} ${spec.unit} at best, ${fmt(rmsecv0)} ${spec.unit} with no LV); check the lab values, their spectra and the preprocessing`,
+    );
+  }
+  let lo = Infinity;
+  let hi = -Infinity;
+  for (const v of yy) {
+    lo = Math.min(lo, v);
+    hi = Math.max(hi, v);
+  }
+  const evidence: PropertyEvidence = {
+    cvMethod: `leave-one-batch-out: ${labBatches.length} folds, each the lab values of one reference batch`,
+    rmsecv,
+    rmsecv0,
+    bias,
+    components: A,
+    componentsRule: rule,
+    atSearchLimit: atLimit,
+    nLabValues: n,
+    nBatchesWithLab: labBatches.length,
+    nBatches: batchIds.length,
+    batchesWithoutLab: without,
+    labRange: [lo, hi],
+  };
+  const model = wrap(spec.name, spec.unit, rmsecv, spec.range ?? null, n, evidence, chain, fitPls1(X, yy, { components: A, center: true }));
+  return { model, calibrationRows: keep, cv, foldBatch: labBatches, chain };
 }
+
+const finite = z.number().refine(Number.isFinite, { message: 'must be a finite number' });
+const evidenceSchema = z.object({
+  cvMethod: z.string(),
+  rmsecv: z.array(finite).min(1),
+  rmsecv0: finite,
+  bias: z.array(finite).min(1),
+  components: z.number().int().min(1),
+  componentsRule: z.string(),
+  atSearchLimit: z.boolean(),
+  nLabValues: z.number().int().min(1),
+  nBatchesWithLab: z.number().int().min(1),
+  nBatches: z.number().int().min(1),
+  batchesWithoutLab: z.array(z.string()),
+  labRange: z.tuple([finite, finite]),
+});
 
 export function loadPropertyModel(json: unknown): PropertyModel {
   if (typeof json !== 'object' || json === null) throw new TypeError('monitoring model: pls must be an object');
   const j = json as PropertyModelJson;
   if (typeof j.name !== 'string' || typeof j.unit !== 'string') throw new TypeError('monitoring model: pls.name and pls.unit must be strings');
   const range = Array.isArray(j.range) && j.range.length === 2 ? ([Number(j.range[0]), Number(j.range[1])] as [number, number]) : null;
-  return wrap(j.name, j.unit, Array.isArray(j.rmsecv) ? j.rmsecv : null, range, Number(j.nCalibration) || 0, loadChain(j.chain), loadPls1(j.pls));
+  let evidence: PropertyEvidence | null = null;
+  if (j.evidence !== undefined) {
+    const r = evidenceSchema.safeParse(j.evidence);
+    if (!r.success) throw new RangeError(`monitoring model: pls.evidence.${r.error.issues[0]!.path.join('.')}: ${r.error.issues[0]!.message}`);
+    evidence = r.data as PropertyEvidence;
+  }
+  return wrap(j.name, j.unit, Array.isArray(j.rmsecv) ? j.rmsecv : null, range, Number(j.nCalibration) || 0, evidence, loadChain(j.chain), loadPls1(j.pls));
 }

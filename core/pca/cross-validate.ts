@@ -22,6 +22,10 @@ export interface PcaCrossValidation {
   recommended: number;
   method: string;
   folds: number;
+  /** foldPress[a − 1][f]: the part of press[a − 1] from the rows of fold f. */
+  foldPress: number[][];
+  /** Rows in each fold. */
+  foldRows: number[];
 }
 
 export function crossValidatePca(
@@ -41,6 +45,8 @@ export function crossValidatePca(
   }
   const A = maxComponents;
   const press = new Float64Array(A);
+  const foldPress = Array.from({ length: A }, () => new Array<number>(k).fill(0));
+  const foldRows = new Array<number>(k).fill(0);
   let press0 = 0;
   const xc = new Float64Array(p);
   const t = new Float64Array(A);
@@ -77,6 +83,8 @@ export function crossValidatePca(
       P = core.loadings;
       mean = core.mean;
     }
+    foldRows[f] = test.length;
+    const before = Array.from(press);
     for (const i of test) {
       const off = i * p;
       for (let j = 0; j < p; j++) xc[j] = X.data[off + j]! - mean[j]!;
@@ -98,6 +106,7 @@ export function crossValidatePca(
         }
       }
     }
+    for (let a = 0; a < A; a++) foldPress[a]![f] = press[a]! - before[a]!;
   }
   let best = 0;
   for (let a = 1; a < A; a++) if (press[a]! < press[best]!) best = a;
@@ -107,5 +116,7 @@ export function crossValidatePca(
     recommended: best + 1,
     method: `ekf: element-wise ${k}-fold, venetian blinds, each variable left out in turn (Bro, Kjeldahl, Smilde & Kiers 2008)`,
     folds: k,
+    foldPress,
+    foldRows,
   };
 }
