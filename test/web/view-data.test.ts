@@ -1,5 +1,6 @@
 import { describe, expect, it } from 'vitest';
-import type { Alarm, BatchDetail, EvaluationResult, ModelEnvelopeView } from '../../core/api/rest.ts';
+import type { Alarm, BatchDetail, EvaluationResult, ModelEnvelopeView, ModelVersionDetail, ResultRecord } from '../../core/api/rest.ts';
+import { propertyChartData, propertyTarget } from '../../web/src/views/review-property-data.ts';
 import type { Contributions, MonitorResult } from '../../core/monitor/types.ts';
 import { departureWindow, firstExit, meanContributions, regionShares, sampleSeqs, timeline, withRemainder } from '../../web/src/views/review-data.ts';
 import { ledgerQuery, summariseChange } from '../../web/src/views/ledger-data.ts';
@@ -213,5 +214,21 @@ describe('spectrum view note', () => {
       'Golden band: 30 reference batches, 364 of their spectra at progress −9.01 to −8.42 (this spectrum −8.67); each batch\'s mean spectrum, then mean ± 3.45 sd between batches per wavelength.',
     );
     expect(goldenNote({ versionId: null, note: 'no model judged this batch' })).toBe('No golden band: no model judged this batch.');
+  });
+});
+
+describe('predicted property in Review', () => {
+  const res = (seq: number, min: number, value: number | null, threshold = 1.99): ResultRecord =>
+    ({ ...r(seq), elapsedMin: min, prediction: value === null ? null : { name: 'moisture', unit: '% w/w', value, t2: 0, q: 0, extrapolating: false },
+      endpoint: { state: 'running', criteria: [{ criterion: 'property', met: false, value, threshold, text: '' }], combine: 'all', confirmCount: 0, confirmNeeded: 2, etaMin: null, doneAt: null } }) as ResultRecord;
+  it('puts predictions and lab values on one ascending time axis, null where a series has no point', () => {
+    const d = propertyChartData([res(1, 0, 15), res(2, 10, 9), res(3, 20, 3)], [{ elapsedMin: 12, value: 8.1 }, { elapsedMin: 20, value: 2.9 }]);
+    expect(d).toEqual([[0, 10, 12, 20, 20], [15, 9, null, 3, null], [null, null, 8.1, null, 2.9]]);
+  });
+  it('takes the target from the model and the threshold from the resolved criterion', () => {
+    const v = { settings: { property: { target: 2, direction: 'below' } } } as unknown as ModelVersionDetail;
+    expect(propertyTarget(v, [res(1, 0, 15)])).toEqual({ target: 2, threshold: 1.99, text: 'The endpoint rule asks for the prediction at or below 1.99: the target cleared by a margin for the prediction error.' });
+    expect(propertyTarget(v, [res(1, 0, 15, 2)]).text).toBe('The endpoint rule asks for the prediction at or below 2.00.');
+    expect(propertyTarget(null, [])).toEqual({ target: null, threshold: null, text: '' });
   });
 });

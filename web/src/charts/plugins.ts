@@ -114,6 +114,7 @@ export function limitLinesPlugin(getLines: () => LimitLine[], yKey = 'y'): uPlot
           ctx.lineTo(left + width, y);
           ctx.stroke();
           ctx.setLineDash([]);
+          if (!l.label) continue;
           const fs = 11 * uPlot.pxRatio;
           ctx.font = `600 ${fs}px system-ui, sans-serif`;
           const tw = ctx.measureText(l.label).width;

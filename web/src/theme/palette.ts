@@ -45,6 +45,10 @@ export const STYLE = {
   preprocessed: { label: 'preprocessed', stroke: OKABE_ITO.bluishGreen, dash: [], width: 1.5, marker: 'none' },
   reference: { label: 'reference batch', stroke: '#7a7a7a', dash: [2, 2], width: 1, marker: 'none' },
   excluded: { label: 'excluded sample', stroke: OKABE_ITO.vermillion, dash: [], width: 1, marker: 'cross' },
+  /** A lab result (e.g. loss on drying) drawn on the predicted property. */
+  lab: { label: 'lab value', stroke: OKABE_ITO.black, dash: [], width: 1, marker: 'square' },
+  /** The property target of the endpoint rule. */
+  target: { label: 'target', stroke: OKABE_ITO.bluishGreen, dash: [8, 4], width: 1.5, marker: 'none' },
 } satisfies Record<string, SeriesStyle>;
 
 /** Distinct styles for several batches overlaid (Review compare): colour + dash both vary. */

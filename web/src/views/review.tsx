@@ -15,6 +15,7 @@ import { progressLabel, scoreBand } from './watch-data.ts';
 import { alignedLine, comparisonWindow, departureWindow, meanContributions, sampleSeqs, timeline } from './review-data.ts';
 import { topShares } from './contribution-data.ts';
 import { RegionShareTable } from './region-share-table.tsx';
+import { PropertyOverTime } from './review-property.tsx';
 import type { TimelineEvent } from './review-data.ts';
 import { contributionSeries } from './contribution-data.ts';
 import { ENDPOINT_WORDS } from '../format/status-words.ts';
@@ -111,6 +112,7 @@ function BatchReview({ id, compare }: { id: string; compare: string[] }) {
   const versionId = detail.data?.model?.versionId ?? null;
   const env = useAsync(() => (versionId ? api.envelope(versionId) : Promise.resolve(null)), [versionId]);
   const cmp = useAsync(() => comparison(id), [id]);
+  const version = useAsync(() => (versionId ? api.modelVersion(versionId) : Promise.resolve(null)), [versionId]);
   const others = useAsync(() => Promise.all(compare.map(async (c) => ({ id: c, results: await allResults(c) }))), [compare.join(',')]);
   const d = detail.data;
   if (detail.loading && !d) return <Loading what={`batch ${id}`} />;
@@ -177,6 +179,7 @@ function BatchReview({ id, compare }: { id: string; compare: string[] }) {
         />
       )}
       {results.data && <StatsOverTime rs={rs} win={win} />}
+      {results.data && <PropertyOverTime rs={rs} version={version.data ?? null} endpointMin={d.endpointAt !== null ? (d.endpointAt - d.startedAt) / 60000 : null} lab={[]} />}
       {results.data && win && <DepartureContributions batch={d.id} results={rs} win={win} regions={c?.regions ?? null} />}
       {results.data && !win && <Empty>The batch never left the golden batches by the alarm rule (a run of points outside the envelope or above a limit): there is no departure window.</Empty>}
       <Advisory />
