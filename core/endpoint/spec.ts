@@ -40,12 +40,12 @@ export const endpointRuleSpecSchema = z.object({
 });
 export type EndpointRuleSpec = z.infer<typeof endpointRuleSpecSchema>;
 
-/** The rule after build: every threshold a number. */
+/** The rule after build: every threshold a number, with how it was obtained (`method`, `marginMethod`; absent in older files). */
 export type ResolvedCriterion =
   | { kind: 'property'; target: number; direction: 'below' | 'above'; name: string; unit: string; margin?: number; marginMethod?: string }
-  | { kind: 'mbsd'; block: number; threshold: number }
-  | { kind: 'plateau'; pc: number; window: number; tolerance: number }
-  | { kind: 'golden-end'; limit: number };
+  | { kind: 'mbsd'; block: number; threshold: number; method?: string }
+  | { kind: 'plateau'; pc: number; window: number; tolerance: number; method?: string }
+  | { kind: 'golden-end'; limit: number; method?: string };
 export interface ResolvedEndpointRule {
   criteria: ResolvedCriterion[];
   combine: 'all' | 'any';

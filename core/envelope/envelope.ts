@@ -18,8 +18,8 @@ export interface ReferenceTrajectory {
   scores: ArrayLike<number>[];
   t2: ArrayLike<number>;
   q: ArrayLike<number>;
-  /** Index of the spectrum at which this batch reached its endpoint (last index when unknown). */
-  endIndex: number;
+  /** Index of the spectrum at which this batch reached its known endpoint; null when it has none (never assumed). */
+  endIndex: number | null;
 }
 
 export interface EnvelopeOptions {
@@ -62,12 +62,12 @@ export interface Envelope {
   qAlarmLimit?: number[];
   /** timeAtProgress[b][k]: minutes since start at which reference batch b reached grid point k (null = never). */
   timeAtProgress: (number | null)[][];
-  /** Minutes from start to each reference batch's endpoint. */
-  endMin: number[];
-  /** Progress each reference batch had at its endpoint. */
-  endProgress: number[];
-  /** The golden end region: score mean and sd over the reference batches at their endpoints. */
-  endRegion: { mean: number[]; sd: number[]; limit: number; method: string };
+  /** Minutes from start to each reference batch's known endpoint (null: none known). */
+  endMin: (number | null)[];
+  /** Progress each reference batch had at its known endpoint (null: none known). */
+  endProgress: (number | null)[];
+  /** The golden end region: score mean and sd over the reference batches at their known endpoints (null: fewer than 2 known). */
+  endRegion: { mean: number[]; sd: number[]; limit: number; method: string } | null;
 }
 
 /** Value of a trajectory where its progress first reaches g (linear interpolation); NaN if never. */
@@ -189,27 +189,10 @@ export function buildEnvelope(refs: ReferenceTrajectory[], axis: ProgressAxis, o
     const v = valueAtProgress(r.progress, r.elapsedMin, g);
     return Number.isFinite(v) ? v : null;
   }));
-  const endMin = refs.map((r) => r.elapsedMin[Math.min(r.endIndex, r.elapsedMin.length - 1)]);
-  const endProgress = refs.map((r) => r.progress[Math.min(r.endIndex, r.progress.length - 1)]);
-
-  // Golden end region: scores at each batch's endpoint.
-  const endMean: number[] = [];
-  const endSd: number[] = [];
-  for (let a = 0; a < A; a++) {
-    const s = meanSd(refs.map((r) => r.scores[a][Math.min(r.endIndex, r.progress.length - 1)]));
-    endMean.push(s.mean);
-    endSd.push(s.sd);
-  }
-  let limit: number;
-  let method: string;
-  if (I > A + 1) {
-    // Hotelling T² for one new observation from I reference points (Tracy, Young & Mason 1992).
-    limit = ((A * (I - 1) * (I + 1)) / (I * (I - A))) * fQuantile(opts.confidence, A, I - A);
-    method = 'Hotelling T² of a new observation, F-based (Tracy, Young & Mason 1992), diagonal covariance';
-  } else {
-    limit = chisqQuantile(opts.confidence, A);
-    method = 'chi-square(A) (too few batches for the F form)';
-  }
+  const endAt = (r: ReferenceTrajectory) => (r.endIndex === null ? null : Math.min(r.endIndex, r.progress.length - 1));
+  const endMin = refs.map((r) => { const e = endAt(r); return e === null ? null : r.elapsedMin[e]; });
+  const endProgress = refs.map((r) => { const e = endAt(r); return e === null ? null : r.progress[e]; });
+  const endRegion = goldenEndRegion(refs.flatMap((r) => { const e = endAt(r); return e === null ? [] : [r.scores.map((s) => s[e])]; }), A, opts.confidence);
   return {
     axis,
     grid,
@@ -224,8 +207,36 @@ export function buildEnvelope(refs: ReferenceTrajectory[], axis: ProgressAxis, o
     timeAtProgress,
     endMin,
     endProgress,
-    endRegion: { mean: endMean, sd: endSd, limit, method },
+    endRegion,
   };
+}
+
+/**
+ * The golden end region from the scores of the reference batches at their known endpoints
+ * (end[b][a]): mean and sd per PC and the limit of a Hotelling-type distance. Null with fewer than
+ * 2 known endpoints.
+ */
+export function goldenEndRegion(end: ArrayLike<number>[], A: number, confidence: number): Envelope['endRegion'] {
+  const I = end.length;
+  if (I < 2) return null;
+  const endMean: number[] = [];
+  const endSd: number[] = [];
+  for (let a = 0; a < A; a++) {
+    const s = meanSd(end.map((e) => e[a]));
+    endMean.push(s.mean);
+    endSd.push(s.sd);
+  }
+  let limit: number;
+  let method: string;
+  if (I > A + 1) {
+    // Hotelling T² for one new observation from I reference points (Tracy, Young & Mason 1992).
+    limit = ((A * (I - 1) * (I + 1)) / (I * (I - A))) * fQuantile(confidence, A, I - A);
+    method = `Hotelling T² of a new observation, F-based (Tracy, Young & Mason 1992), diagonal covariance, from the ${I} known endpoints`;
+  } else {
+    limit = chisqQuantile(confidence, A);
+    method = `chi-square(A) (${I} known endpoints: too few for the F form)`;
+  }
+  return { mean: endMean, sd: endSd, limit, method };
 }
 
 /** Index of the grid point nearest to a progress value (clamped to the grid). */
@@ -237,9 +248,14 @@ export function gridIndex(env: Envelope, progress: number): number {
   return k < 0 ? 0 : k >= P ? P - 1 : k;
 }
 
-/** Progress at which the golden batches reached their endpoint (median over the reference batches). */
+/**
+ * Progress at which the golden batches reached their endpoint (median over the reference batches
+ * with a known endpoint). With none known, the end of the grid: the progress shown and the pace
+ * then run over the whole golden course (no endpoint is assumed from it).
+ */
 export function goldenEndProgress(env: Envelope): number {
-  const s = env.endProgress.slice().sort((a, b) => a - b);
+  const s = env.endProgress.filter((v): v is number => v !== null).sort((a, b) => a - b);
+  if (s.length === 0) return env.grid[env.grid.length - 1];
   const m = s.length >> 1;
   return s.length % 2 ? s[m] : (s[m - 1] + s[m]) / 2;
 }

@@ -33,6 +33,14 @@ export const buildSettingsSchema = z.object({
     })
     .optional(),
   excludeSpectra: z.array(z.object({ batch: z.string(), index: z.number().int().min(0) })).optional(),
+  referenceEndpoints: z
+    .array(
+      z
+        .object({ batch: z.string().min(1), index: z.number().int().min(0).optional(), elapsedMin: z.number().finite().min(0).optional(), last: z.literal(true).optional(), note: z.string().max(500).optional() })
+        .strict()
+        .refine((m) => [m.index !== undefined, m.elapsedMin !== undefined, m.last === true].filter(Boolean).length === 1, { message: 'give exactly one of index (spectrum), elapsedMin (minutes) or last: true' }),
+    )
+    .optional(),
 });
 
 export interface BuildSettings {
@@ -77,6 +85,13 @@ export interface BuildSettings {
   /** chain: the property model's own preprocessing (default: the model's chain); range: calibrate on reference spectra with the property in [lo, hi] only. */
   property?: { name: string; unit: string; components: number | 'auto'; target?: number; direction?: 'below' | 'above'; chain?: ChainSpec; range?: [number, number] };
   excludeSpectra?: { batch: string; index: number }[];
+  /**
+   * Endpoints of reference batches marked by the model owner (core/model/reference-endpoints.ts):
+   * by spectrum index, by minutes from the batch's first spectrum (the first spectrum at or after
+   * it), or `last: true` — the only way to make the last spectrum an endpoint. A mark decides for
+   * its batch; batches without one take their endpoint from lab values crossing the target.
+   */
+  referenceEndpoints?: { batch: string; index?: number; elapsedMin?: number; last?: true; note?: string }[];
 }
 
 export type BuildSettingsInput = Pick<BuildSettings, 'name' | 'product' | 'author' | 'createdAt'> & Partial<Omit<BuildSettings, 'name' | 'product' | 'author' | 'createdAt'>>;

@@ -9,7 +9,6 @@
  * moment-matched g·χ²_h over the reference spectra near each point (Nomikos & MacGregor 1995).
  */
 import { z } from 'zod';
-import normalQuantile from '@stdlib/stats-base-dists-normal-quantile';
 import { denseMatrix, matrixFromRows, type DenseMatrix } from '../linalg/dense-matrix.ts';
 import { fitChain, loadChain, type FittedChain } from '../preprocess/index.ts';
 import { fitPca, scoreRows } from '../pca/fit-pca.ts';
@@ -20,14 +19,14 @@ import { t2Limit, modelQLimit, combinedLimit, type Limit } from '../limits/index
 import { buildEnvelope, type Envelope, type ReferenceTrajectory } from '../envelope/envelope.ts';
 import { newObservationMultiplier } from '../envelope/band.ts';
 import { progressOf, type ProgressAxis } from '../envelope/progress.ts';
-import { movingBlockSd } from '../envelope/mbsd.ts';
-import type { ResolvedCriterion, ResolvedEndpointRule } from '../endpoint/spec.ts';
+import type { ResolvedEndpointRule } from '../endpoint/spec.ts';
 import { readModelFile, writeModelFile } from './model-file.ts';
 import { parseStoredSettings, resolveBuildSettings, type BuildSettings } from './build-settings.ts';
 import { fitPropertyModel, loadPropertyModel, type PropertyModel } from './property-model.ts';
-import { plateauSlope } from '../endpoint/plateau.ts';
 import { crossValidatedStatistics } from './group-cv-statistics.ts';
 import { oneStandardErrorRule } from './parsimony.ts';
+import { missingEndpointsMessage, partsNeedingEndpoints, resolveReferenceEndpoints, type ReferenceEndpoint } from './reference-endpoints.ts';
+import { endValuesOf, resolveCriteria, type CalibrationBatch, type PropertyContext } from './endpoint-calibration.ts';
 
 export { resolveBuildSettings, DEFAULT_SETTINGS, type BuildSettings, type BuildSettingsInput } from './build-settings.ts';
 
@@ -69,7 +68,10 @@ export interface AlarmLimits {
 }
 
 export interface ModelMeta {
-  batches: { id: string; spectra: number; excluded: number; durationMin: number; endMin: number }[];
+  /** endMin: minutes to the batch's known endpoint (null: none known). */
+  batches: { id: string; spectra: number; excluded: number; durationMin: number; endMin: number | null }[];
+  /** The known endpoint of each reference batch that has one (lab crossing or marked), and how it was found. Absent in older files. */
+  referenceEndpoints?: ReferenceEndpoint[];
   nSpectra: number;
   nVariables: number;
   createdAt: number;
@@ -121,16 +123,6 @@ function checkBatches(batches: ReferenceBatch[]): void {
   }
 }
 
-/** First index where the property meets the target (last index if never or no property). */
-function endIndexOf(b: ReferenceBatch, kept: number[], target: number | undefined, direction: 'below' | 'above' | undefined): number {
-  if (!b.property || target === undefined) return kept.length - 1;
-  for (let k = 0; k < kept.length; k++) {
-    const v = b.property[kept[k]];
-    if (direction === 'above' ? v >= target : v <= target) return k;
-  }
-  return kept.length - 1;
-}
-
 function median(xs: number[]): number {
   const s = xs.filter(Number.isFinite).sort((a, b) => a - b);
   if (s.length === 0) return NaN;
@@ -155,6 +147,17 @@ export function buildMonitoringModel(batches: ReferenceBatch[], settingsInput: u
     for (let i = 0; i < b.spectra.length; i++) if (!ex?.has(i)) k.push(i);
     if (k.length < 3) throw new RangeError(`reference batch "${b.id}" keeps only ${k.length} spectra after exclusions`);
     return k;
+  });
+  // Known endpoints (lab crossing or marked; never the last spectrum by assumption); a rule
+  // calibrated at the endpoints needs one for every reference batch.
+  const ends = resolveReferenceEndpoints(batches, settings);
+  const needEnds = partsNeedingEndpoints(settings);
+  if (needEnds.length && ends.missing.size) throw new RangeError(missingEndpointsMessage(needEnds, ends.missing, settings));
+  // The endpoint as a position among the kept spectra (the next kept one when it was excluded).
+  const endKept = ends.endpoints.map((e, bi) => {
+    if (!e) return null;
+    const k = kept[bi].findIndex((i) => i >= e.index);
+    return k < 0 ? kept[bi].length - 1 : k;
   });
   const rows: ArrayLike<number>[] = [];
   const origin: { batch: number; index: number }[] = [];
@@ -201,8 +204,6 @@ export function buildMonitoringModel(batches: ReferenceBatch[], settingsInput: u
   // Sci. 57:3979 — from memory).
   const { scores } = scoreRows(pca, X);
   const { t2, q } = crossValidatedStatistics(X, origin.map((o) => o.batch), batches.length, A);
-  const propTarget = settings.property?.target;
-  const propDir = settings.property?.direction ?? 'below';
   const trajectories: ReferenceTrajectory[] = [];
   const indicators: Float64Array[] = [];
   const elapsed: Float64Array[] = [];
@@ -215,7 +216,7 @@ export function buildMonitoringModel(batches: ReferenceBatch[], settingsInput: u
     const ind = settings.progress.kind === 'indicator' && settings.progress.source === 'property' ? predicted!.slice(off, off + m) : sc[0];
     indicators.push(ind);
     elapsed.push(el);
-    trajectories.push({ elapsedMin: el, progress: el, scores: sc, t2: t2.slice(off, off + m), q: q.slice(off, off + m), endIndex: endIndexOf(b, k, propTarget, propDir) });
+    trajectories.push({ elapsedMin: el, progress: el, scores: sc, t2: t2.slice(off, off + m), q: q.slice(off, off + m), endIndex: endKept[bi] });
     off += m;
   }
   let axis: ProgressAxis = { kind: 'time', sign: 1, alpha: 1 };
@@ -255,53 +256,26 @@ export function buildMonitoringModel(batches: ReferenceBatch[], settingsInput: u
     ...(alarmLimits ? { alarm: { confidence: alarmLimits.confidence, globalT2Limit: alarmLimits.t2.value, globalQLimit: alarmLimits.q.value } } : {}),
   });
 
-  // Endpoint rule with 'auto' thresholds resolved from the reference batches at their endpoints.
-  const criteria: ResolvedCriterion[] = settings.endpoint.criteria.map((c): ResolvedCriterion => {
-    switch (c.kind) {
-      case 'property': {
-        const target = c.target ?? settings.property!.target!;
-        const base = { kind: 'property' as const, target, direction: c.direction ?? settings.property!.direction ?? 'below', name: settings.property!.name, unit: settings.property!.unit };
-        if (c.margin === undefined || c.margin === 0) return base;
-        if (c.margin !== 'auto') return { ...base, margin: c.margin, marginMethod: 'fixed by the model owner' };
-        const rmsecv = pls!.rmsecv?.[pls!.components - 1];
-        if (rmsecv === undefined || !Number.isFinite(rmsecv)) throw new RangeError('endpoint criterion "property": margin "auto" needs the cross-validated error of the property model');
-        const mc = c.marginConfidence ?? conf;
-        const z = normalQuantile(mc, 0, 1);
-        return { ...base, margin: z * rmsecv, marginMethod: `z(${mc})·RMSECV = ${z.toFixed(3)} × ${rmsecv.toPrecision(3)} ${settings.property!.unit} (one-sided bound on the prediction error)` };
-      }
-      case 'mbsd': {
-        if (c.threshold !== 'auto') return { kind: 'mbsd', block: c.block, threshold: c.threshold };
-        let o = 0;
-        const atEnd: number[] = [];
-        trajectories.forEach((tr, bi) => {
-          const m = kept[bi].length;
-          const rowsB: Float64Array[] = [];
-          for (let r = 0; r < m; r++) rowsB.push(X.data.subarray((o + r) * X.cols, (o + r + 1) * X.cols));
-          const sd = movingBlockSd(rowsB, c.block);
-          const idx = Math.max(0, Math.min(sd.length - 1, tr.endIndex - c.block + 1));
-          if (sd.length > 0) atEnd.push(sd[idx]);
-          o += m;
-        });
-        return { kind: 'mbsd', block: c.block, threshold: median(atEnd) };
-      }
-      case 'plateau': {
-        if (c.pc > A) throw new RangeError(`plateau criterion uses PC${c.pc} but the model has ${A} components`);
-        if (c.tolerance !== 'auto') return { kind: 'plateau', pc: c.pc, window: c.window, tolerance: c.tolerance };
-        const atEnd: number[] = [];
-        for (const tr of trajectories) {
-          const e = tr.endIndex;
-          if (e + 1 < c.window) continue;
-          atEnd.push(Math.abs(plateauSlope(tr.elapsedMin, tr.scores[c.pc - 1], e - c.window + 1, c.window)));
-        }
-        if (atEnd.length === 0) throw new RangeError(`plateau criterion: no reference batch has ${c.window} spectra before its endpoint`);
-        return { kind: 'plateau', pc: c.pc, window: c.window, tolerance: median(atEnd) };
-      }
-      case 'golden-end':
-        return { kind: 'golden-end', limit: envelope.endRegion.limit };
-    }
-  });
+  // Endpoint rule with 'auto' thresholds resolved from the reference batches at their known endpoints.
+  const calib: CalibrationBatch[] = [];
+  let o = 0;
+  for (const [bi, tr] of trajectories.entries()) {
+    const m = kept[bi].length;
+    const rowsB: Float64Array[] = [];
+    for (let r = 0; r < m; r++) rowsB.push(X.data.subarray((o + r) * X.cols, (o + r + 1) * X.cols));
+    calib.push({ rows: rowsB, elapsedMin: tr.elapsedMin, scores: tr.scores, endIndex: tr.endIndex });
+    o += m;
+  }
+  const endValues = endValuesOf(settings.endpoint, calib, batches.map((b) => b.id));
+  const propertyContext: PropertyContext | null = settings.property
+    ? { name: settings.property.name, unit: settings.property.unit, target: settings.property.target, direction: settings.property.direction, rmsecv: pls?.rmsecv?.[pls.components - 1] ?? null }
+    : null;
+  const { criteria } = resolveCriteria(settings.endpoint, endValues, { A, confidence: conf, property: propertyContext, exclude: null });
   const endpoint: ResolvedEndpointRule = { criteria, combine: settings.endpoint.combine, confirm: settings.endpoint.confirm, nearingMin: settings.endpoint.nearingMin };
 
+  if (ends.missing.size) {
+    notes.push(`No known endpoint on ${ends.missing.size} reference batch${ends.missing.size === 1 ? '' : 'es'}: ${[...ends.missing.entries()].map(([b, why]) => `"${b}" (${why})`).join(', ')}. They take no part in the time-to-endpoint estimate or the golden end progress; give their endpoints (lab values crossing the target, or settings.referenceEndpoints) to include them.`);
+  }
   const meta: ModelMeta = {
     batches: batches.map((b, bi) => ({
       id: b.id,
@@ -310,6 +284,7 @@ export function buildMonitoringModel(batches: ReferenceBatch[], settingsInput: u
       durationMin: (b.times[b.times.length - 1] - b.times[0]) / 60000,
       endMin: envelope.endMin[bi],
     })),
+    referenceEndpoints: ends.endpoints.filter((e): e is ReferenceEndpoint => e !== null),
     nSpectra: n,
     nVariables: X.cols,
     createdAt: settings.createdAt,
@@ -368,15 +343,15 @@ const envelopeSchema = z.object({
   t2AlarmLimit: z.array(num).optional(),
   qAlarmLimit: z.array(num).optional(),
   timeAtProgress: z.array(z.array(num.nullable())),
-  endMin: z.array(num),
-  endProgress: z.array(num),
-  endRegion: z.object({ mean: z.array(num), sd: z.array(num), limit: num, method: z.string() }),
+  endMin: z.array(num.nullable()),
+  endProgress: z.array(num.nullable()),
+  endRegion: z.object({ mean: z.array(num), sd: z.array(num), limit: num, method: z.string() }).nullable(),
 });
 const criterionSchema = z.discriminatedUnion('kind', [
   z.object({ kind: z.literal('property'), target: num, direction: z.enum(['below', 'above']), name: z.string(), unit: z.string(), margin: num.nonnegative().optional(), marginMethod: z.string().optional() }),
-  z.object({ kind: z.literal('mbsd'), block: z.number().int().min(2), threshold: num }),
-  z.object({ kind: z.literal('plateau'), pc: z.number().int().min(1), window: z.number().int().min(3), tolerance: num }),
-  z.object({ kind: z.literal('golden-end'), limit: num }),
+  z.object({ kind: z.literal('mbsd'), block: z.number().int().min(2), threshold: num, method: z.string().optional() }),
+  z.object({ kind: z.literal('plateau'), pc: z.number().int().min(1), window: z.number().int().min(3), tolerance: num, method: z.string().optional() }),
+  z.object({ kind: z.literal('golden-end'), limit: num, method: z.string().optional() }),
 ]);
 const bodySchema = z.object({
   settings: z.unknown(),
@@ -388,7 +363,15 @@ const bodySchema = z.object({
   endpoint: z.object({ criteria: z.array(criterionSchema).min(1), combine: z.enum(['all', 'any']), confirm: z.number().int().min(1), nearingMin: num }),
   pls: z.unknown().optional(),
   meta: z.object({
-    batches: z.array(z.object({ id: z.string(), spectra: z.number().int(), excluded: z.number().int(), durationMin: num, endMin: num })),
+    batches: z.array(z.object({ id: z.string(), spectra: z.number().int(), excluded: z.number().int(), durationMin: num, endMin: num.nullable() })),
+    referenceEndpoints: z
+      .array(
+        z.object({
+          batch: z.string(), index: z.number().int().min(0), elapsedMin: num, source: z.enum(['lab', 'marked', 'marked-last']), detail: z.string(),
+          bracket: z.object({ fromIndex: z.number().int().min(0), toIndex: z.number().int().min(0), fromMin: num, toMin: num }).optional(),
+        }),
+      )
+      .optional(),
     nSpectra: z.number().int(),
     nVariables: z.number().int(),
     createdAt: num,

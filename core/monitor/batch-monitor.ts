@@ -105,8 +105,8 @@ export function createBatchMonitor(model: MonitoringModel, batchStartT: number):
   const mbsdCrit = rule.criteria.find((c) => c.kind === 'mbsd');
   const mbsd = mbsdCrit && mbsdCrit.kind === 'mbsd' ? new MovingBlockSd(mbsdCrit.block, p) : null;
   const plateaus = rule.criteria.flatMap((c) => (c.kind === 'plateau' ? [{ pc: c.pc - 1, win: new PlateauWindow(c.window) }] : []));
-  const endMean = env.endRegion.mean;
-  const endSd = env.endRegion.sd;
+  const endMean = env.endRegion?.mean ?? [];
+  const endSd = env.endRegion?.sd ?? [];
   const needsEnd = rule.criteria.some((c) => c.kind === 'golden-end');
   const inputs: EndpointInputs = { property: null, mbsd: null, slopes: plateaus.map(() => null), goldenEndDistance: null, eta: null };
   let lastSeq = -1;

@@ -3,7 +3,8 @@
  * the time it still needed from this progress point to its endpoint, scaled by how fast the live
  * batch got here relative to that batch (ratio clamped to 0.5…2); the median and the 10th/90th
  * percentiles of those times give the estimate and its spread. With time as progress the ratio is 1.
- * Batches that started beyond the current progress give no evidence and are left out.
+ * Batches that started beyond the current progress, and batches without a known endpoint, give no
+ * evidence and are left out.
  */
 import { firstReachedPoint, type Envelope } from '../envelope/envelope.ts';
 
@@ -23,6 +24,7 @@ export class EtaEstimator {
     for (let b = 0; b < env.nBatches; b++) {
       const tap = env.timeAtProgress[b][k];
       const end = env.endMin[b];
+      if (end === null) continue; // no known endpoint: no evidence of the time to it
       let r: number;
       if (timeAxis) r = end - elapsedMin;
       else if (k < this.first[b]) continue; // this batch started beyond the current progress: no evidence

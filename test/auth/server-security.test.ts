@@ -42,8 +42,11 @@ beforeAll(async () => {
   }
   // A real draft model version: built by core from simulated dryer batches, registered by the server.
   const core = await srv.ctx.ingest.getCore();
-  const batches = simulateReferenceSet('dryer', 4, 7).map((b) => ({ id: b.id, axis: b.axis, times: b.times, spectra: b.spectra }));
-  const model = core.buildMonitoringModel(batches, { name: 'dryer-sec', product: 'granule-A', author: 'mona', createdAt: srv.ctx.now() });
+  const sims = simulateReferenceSet('dryer', 4, 7);
+  const batches = sims.map((b) => ({ id: b.id, axis: b.axis, times: b.times, spectra: b.spectra }));
+  // endpoints marked (at the simulated truth) for the default rule's auto threshold
+  const referenceEndpoints = sims.map((b) => ({ batch: b.id, index: b.truth.endpointIndex! }));
+  const model = core.buildMonitoringModel(batches, { name: 'dryer-sec', product: 'granule-A', author: 'mona', createdAt: srv.ctx.now(), referenceEndpoints });
   modelId = (await registerModel(srv.ctx, model, { createdBy: 'mona', referenceBatches: batches.map((b) => b.id) })).id;
 }, 120_000);
 

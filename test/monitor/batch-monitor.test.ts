@@ -45,8 +45,12 @@ describe('monitoring model file', () => {
     foreign.format = 'something-else';
     expect(() => parseMonitoringModel(JSON.stringify(foreign))).toThrow(/format/i);
   });
-  it('builds from minimal settings with the defaults (no property: MBSD endpoint, auto threshold)', () => {
-    const m = buildMonitoringModel(ref.map((b) => ({ id: b.id, axis: b.axis, times: b.times, spectra: b.spectra })), { name: 'n', product: 'p', author: 'a', createdAt: 0, alarms: { onDelay: 2 } });
+  it('builds from minimal settings with the defaults (no property: MBSD endpoint, auto threshold at marked endpoints)', () => {
+    const plain = ref.map((b) => ({ id: b.id, axis: b.axis, times: b.times, spectra: b.spectra }));
+    // no lab values and no marks: the auto threshold has no endpoint to calibrate at
+    expect(() => buildMonitoringModel(plain, { name: 'n', product: 'p', author: 'a', createdAt: 0 })).toThrow(/moving-block SD threshold 'auto' on the reference batches' known endpoints, and \d+ reference batches have none/);
+    const marks = ref.map((b) => ({ batch: b.id, index: b.truth.endpointIndex! }));
+    const m = buildMonitoringModel(plain, { name: 'n', product: 'p', author: 'a', createdAt: 0, alarms: { onDelay: 2 }, referenceEndpoints: marks });
     expect(m.pca.nComponents).toBe(3);
     expect(m.settings.alarms).toEqual({ onDelay: 2, onWindow: 5, offDelay: 5, deadband: 0.05, limits: 'local', startupMin: 2 });
     expect(m.endpoint.criteria[0]).toMatchObject({ kind: 'mbsd', block: 5 });
@@ -168,7 +172,7 @@ describe('batch monitor', () => {
     expect(rs[rs.length - 1].activeConditions.some((key) => key.startsWith('pc'))).toBe(true);
   });
   it('the PC that is the progress indicator is never judged against its own envelope', () => {
-    const pc1Model = buildMonitoringModel(ref.map((b) => ({ id: b.id, axis: b.axis, times: b.times, spectra: b.spectra })), { ...settings, property: undefined, progress: { kind: 'indicator', source: 'pc1' }, endpoint: { criteria: [{ kind: 'mbsd', block: 5, threshold: 'auto' }], combine: 'any', confirm: 3, nearingMin: 10 } });
+    const pc1Model = buildMonitoringModel(ref.map((b) => ({ id: b.id, axis: b.axis, times: b.times, spectra: b.spectra })), { ...settings, property: undefined, progress: { kind: 'indicator', source: 'pc1' }, endpoint: { criteria: [{ kind: 'mbsd', block: 5, threshold: 'auto' }], combine: 'any', confirm: 3, nearingMin: 10 }, referenceEndpoints: ref.map((b) => ({ batch: b.id, index: b.truth.endpointIndex! })) });
     const rs = run(pc1Model, good);
     expect(rs.every((r) => r.envelope[0].status === 'unjudged')).toBe(true);
     expect(rs.some((r) => r.envelope[1].status === 'inside')).toBe(true);

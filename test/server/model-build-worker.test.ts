@@ -15,6 +15,9 @@ let ts: TestServer;
 let owner: Session;
 const refs = simulateReferenceSet('dryer', 5, 31, { intervalS: 60 });
 const ids = refs.map((b) => b.id);
+// The default endpoint rule (moving-block SD, threshold 'auto') is calibrated at known endpoints:
+// the stored batches have no lab values, so the model owner marks them (here at the simulated truth).
+const marks = refs.map((b) => ({ batch: b.id, index: b.truth.endpointIndex! }));
 
 beforeAll(async () => {
   ts = await startTestServer({}, { units: ['dryer-1'] });
@@ -43,7 +46,7 @@ function buildingStarted(): Promise<void> {
 describe('model build in a worker thread', () => {
   let versionId = '';
   it('answers /healthz while the build computes; the stored model equals an in-process build byte for byte', async () => {
-    const settings = { components: 3 };
+    const settings = { components: 3, referenceEndpoints: marks };
     const started = buildingStarted();
     let buildDone = false;
     const build = owner.post('/api/models/build', { name: 'dryer-w', product: 'granule A', referenceBatches: ids, settings }).finally(() => {
@@ -103,7 +106,7 @@ describe('model build in a worker thread', () => {
 
   it('a reference batch with too few spectra after exclusions: 422 naming the batch', async () => {
     const excludeSpectra = Array.from({ length: refs[1]!.spectra.length - 2 }, (_, i) => ({ batch: ids[1]!, index: i }));
-    const r = await owner.post('/api/models/build', { name: 'dryer-w', product: 'granule A', referenceBatches: ids, settings: { components: 2, excludeSpectra } });
+    const r = await owner.post('/api/models/build', { name: 'dryer-w', product: 'granule A', referenceBatches: ids, settings: { components: 2, excludeSpectra, referenceEndpoints: marks } });
     expect(r.status).toBe(422);
     expect(r.body.detail).toContain(`reference batch "${ids[1]}" keeps only 2 spectra`);
   }, 120_000);
@@ -111,7 +114,7 @@ describe('model build in a worker thread', () => {
   it('a worker that dies mid-build: 500 problem saying so; the server goes on and builds again', async () => {
     const runner = buildRunnerOf(ts.server.ctx);
     const started = buildingStarted();
-    const build = owner.post('/api/models/build', { name: 'dryer-w', product: 'granule A', referenceBatches: ids, settings: { components: 2 } });
+    const build = owner.post('/api/models/build', { name: 'dryer-w', product: 'granule A', referenceBatches: ids, settings: { components: 2, referenceEndpoints: marks } });
     await started;
     // The worker thread ends while computing (as after a fatal error in it): the request is answered, nothing is stored.
     await runner.stop();
@@ -123,7 +126,7 @@ describe('model build in a worker thread', () => {
     expect((await fetch(ts.server.url + '/healthz')).status).toBe(200);
     expect(runner.running()).toEqual([]);
     expect((await owner.get('/api/models')).body.items.find((m: any) => m.name === 'dryer-w').versions).toHaveLength(1);
-    r = await owner.post('/api/models/build', { name: 'dryer-w', product: 'granule A', referenceBatches: ids, settings: { components: 2 } });
+    r = await owner.post('/api/models/build', { name: 'dryer-w', product: 'granule A', referenceBatches: ids, settings: { components: 2, referenceEndpoints: marks } });
     expect(r.status).toBe(201);
     expect(r.body.version).toBe(2);
   }, 120_000);
@@ -133,7 +136,7 @@ describe('model build in a worker thread', () => {
     cfg.timeoutMs = 1; // below the configurable minimum, so the worker cannot even load its code in time
     let r;
     try {
-      r = await owner.post('/api/models/build', { name: 'dryer-w', product: 'granule A', referenceBatches: ids, settings: { components: 2 } });
+      r = await owner.post('/api/models/build', { name: 'dryer-w', product: 'granule A', referenceBatches: ids, settings: { components: 2, referenceEndpoints: marks } });
     } finally {
       cfg.timeoutMs = before;
     }
@@ -141,7 +144,7 @@ describe('model build in a worker thread', () => {
     expect(r.body).toMatchObject({ type: '/problems/model-build-failed' });
     expect(r.body.detail).toMatch(/ran longer than 1 ms \(modelBuild.timeoutMs\) and was stopped/);
     expect(buildRunnerOf(ts.server.ctx).running()).toEqual([]);
-    r = await owner.post('/api/models/build', { name: 'dryer-w', product: 'granule A', referenceBatches: ids, settings: { components: 2 } });
+    r = await owner.post('/api/models/build', { name: 'dryer-w', product: 'granule A', referenceBatches: ids, settings: { components: 2, referenceEndpoints: marks } });
     expect(r.status).toBe(201);
     expect(r.body.version).toBe(3);
   }, 120_000);

@@ -119,7 +119,22 @@ describe('REST: models — build, evaluate, approve (signature), deploy, retire'
     r = await admin.post('/api/models/build', { name: 'dryer-a', product: 'granule A', referenceBatches: refs.map((b) => b.id), settings: { components: 0 } });
     expect(r.status).toBe(422);
     expect(r.body.detail).toMatch(/components/);
+    // no lab values stored and no marks: the default rule's auto threshold has no endpoint to calibrate at
     r = await admin.post('/api/models/build', { name: 'dryer-a', product: 'granule A', referenceBatches: refs.map((b) => b.id), settings: { components: 2 } });
+    expect(r.status).toBe(422);
+    expect(r.body.detail).toContain(`3 reference batches have none: "${refs[0]!.id}" (no property target to read lab values against)`);
+    expect(r.body.detail).toMatch(/settings\.referenceEndpoints/);
+    // a mark naming a batch that is not a reference batch is refused by name
+    r = await admin.post('/api/models/build', { name: 'dryer-a', product: 'granule A', referenceBatches: refs.map((b) => b.id), settings: { components: 2, referenceEndpoints: [{ batch: 'elsewhere', elapsedMin: 30 }] } });
+    expect(r.status).toBe(422);
+    expect(r.body.detail).toMatch(/referenceEndpoints names batch "elsewhere"/);
+    // the model owner marks them: by minutes, by spectrum, and one as its last spectrum (said explicitly)
+    const marks = [
+      { batch: refs[0]!.id, elapsedMin: (refs[0]!.times[refs[0]!.truth.endpointIndex!]! - refs[0]!.times[0]!) / 60000 },
+      { batch: refs[1]!.id, index: refs[1]!.truth.endpointIndex! },
+      { batch: refs[2]!.id, last: true, note: 'stopped at the endpoint' },
+    ];
+    r = await admin.post('/api/models/build', { name: 'dryer-a', product: 'granule A', referenceBatches: refs.map((b) => b.id), settings: { components: 2, referenceEndpoints: marks } });
     expect(r.status).toBe(201);
     expect(r.body).toMatchObject({ name: 'dryer-a', version: 1, status: 'draft', components: 2, referenceBatches: refs.map((b) => b.id) });
     expect(r.body.sha256).toMatch(/^[0-9a-f]{64}$/);

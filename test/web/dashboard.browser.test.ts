@@ -203,6 +203,12 @@ describe.skipIf(!haveChromium)('dashboard in headless Chromium', () => {
     const refs = page.locator('[data-testid^="ref-dryer"]');
     await expect.poll(() => refs.count(), { timeout: 60_000 }).toBeGreaterThanOrEqual(3);
     for (let i = 0; i < 3; i++) await refs.nth(i).check();
+    // The demo's stored batches carry no lab values: the endpoint of each reference batch is marked
+    // (the default rule's automatic MBSD threshold is calibrated there; never the last spectrum by assumption).
+    for (let i = 0; i < 3; i++) {
+      const id = (await refs.nth(i).getAttribute('data-testid'))!.slice('ref-'.length);
+      await page.getByTestId(`end-${id}`).fill('50');
+    }
     await page.getByLabel('Model name').fill('dryer-test-model');
     await page.getByLabel('Components').selectOption('2');
     await page.getByTestId('build').click();

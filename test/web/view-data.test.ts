@@ -4,7 +4,7 @@ import { propertyChartData, propertyTarget } from '../../web/src/views/review-pr
 import type { Contributions, MonitorResult } from '../../core/monitor/types.ts';
 import { departureWindow, firstExit, meanContributions, regionShares, sampleSeqs, timeline, withRemainder } from '../../web/src/views/review-data.ts';
 import { ledgerQuery, summariseChange } from '../../web/src/views/ledger-data.ts';
-import { CHAIN_PRESETS, buildSettingsFromForm, spreadIndices, summariseEvaluation } from '../../web/src/views/bench-data.ts';
+import { CHAIN_PRESETS, buildSettingsFromForm, parseEndpointMark, spreadIndices, summariseEvaluation } from '../../web/src/views/bench-data.ts';
 import { availablePcs, goldenPath, progressLabel, referencePaths, scoreBand } from '../../web/src/views/watch-data.ts';
 import { contributionSeries, topRegions, topShares } from '../../web/src/views/contribution-data.ts';
 import { sortedByAxis } from '../../web/src/views/spectrum-data.ts';
@@ -112,6 +112,16 @@ describe('Model bench helpers', () => {
     // alarm limits above the drawn ones go as alarms.confidence; equal ones are not sent
     expect(buildSettingsFromForm({ chain: [], components: 2, confidence: 0.99, alarmConfidence: 0.999 }).alarms).toEqual({ confidence: 0.999 });
     expect(buildSettingsFromForm({ chain: [], components: 2, confidence: 0.999, alarmConfidence: 0.999 }).alarms).toBeUndefined();
+    expect(buildSettingsFromForm({ chain: [], components: 2, confidence: 0.99, referenceEndpoints: [{ batch: 'b', last: true }] }).referenceEndpoints).toEqual([{ batch: 'b', last: true }]);
+    expect(buildSettingsFromForm({ chain: [], components: 2, confidence: 0.99, referenceEndpoints: [] }).referenceEndpoints).toBeUndefined();
+  });
+  it('reads a typed reference endpoint: minutes, #spectrum, last; empty is none; anything else is named', () => {
+    expect(parseEndpointMark('b1', '')).toBeNull();
+    expect(parseEndpointMark('b1', ' 52.5 ')).toEqual({ batch: 'b1', elapsedMin: 52.5 });
+    expect(parseEndpointMark('b1', '52,5 min')).toEqual({ batch: 'b1', elapsedMin: 52.5 });
+    expect(parseEndpointMark('b1', '#316')).toEqual({ batch: 'b1', index: 316 });
+    expect(parseEndpointMark('b1', 'LAST')).toEqual({ batch: 'b1', last: true });
+    expect(() => parseEndpointMark('b1', 'soon')).toThrow('endpoint of b1: "soon" is not minutes (e.g. 52.5), a spectrum (#316) or "last"');
   });
 });
 

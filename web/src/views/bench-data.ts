@@ -63,9 +63,29 @@ export function summariseEvaluation(e: EvaluationResult, faulty: Set<string>, st
  * Default build settings sent with a build request, from the form. alarmConfidence: raise alarms at
  * this higher confidence than the limits drawn (action limits); omitted or equal: at the drawn limits.
  */
-export function buildSettingsFromForm(f: { chain: ChainSpec; components: number | 'auto'; confidence: number; alarmConfidence?: number; excludeSpectra?: { batch: string; index: number }[] }): Record<string, unknown> {
+export function buildSettingsFromForm(f: { chain: ChainSpec; components: number | 'auto'; confidence: number; alarmConfidence?: number; excludeSpectra?: { batch: string; index: number }[]; referenceEndpoints?: EndpointMark[] }): Record<string, unknown> {
   const s: Record<string, unknown> = { chain: f.chain, components: f.components, confidence: f.confidence };
   if (f.alarmConfidence !== undefined && f.alarmConfidence > f.confidence) s.alarms = { confidence: f.alarmConfidence };
   if (f.excludeSpectra && f.excludeSpectra.length) s.excludeSpectra = f.excludeSpectra;
+  if (f.referenceEndpoints && f.referenceEndpoints.length) s.referenceEndpoints = f.referenceEndpoints;
   return s;
+}
+
+/** A reference batch's endpoint marked by the model owner (settings.referenceEndpoints). */
+export type EndpointMark = { batch: string; elapsedMin: number } | { batch: string; index: number } | { batch: string; last: true };
+
+/**
+ * The endpoint typed for a reference batch in the builder: empty = none (lab values decide);
+ * minutes from the batch start (`52.5`, `52.5 min`); a spectrum as `#316`; `last` only when the
+ * batch really ended at its last spectrum. Throws naming the batch and what is accepted.
+ */
+export function parseEndpointMark(batch: string, text: string): EndpointMark | null {
+  const t = text.trim().toLowerCase();
+  if (t === '') return null;
+  if (t === 'last') return { batch, last: true };
+  const idx = /^#\s*(\d+)$/.exec(t);
+  if (idx) return { batch, index: Number(idx[1]) };
+  const min = /^(\d+(?:[.,]\d+)?)\s*(?:min)?$/.exec(t);
+  if (min) return { batch, elapsedMin: Number(min[1]!.replace(',', '.')) };
+  throw new RangeError(`endpoint of ${batch}: "${text}" is not minutes (e.g. 52.5), a spectrum (#316) or "last"`);
 }

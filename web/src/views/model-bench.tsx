@@ -16,7 +16,7 @@ import { Chart } from '../charts/chart.tsx';
 import { linesOptions, scoreChartOptions } from '../charts/chart-options.ts';
 import { ScatterSvg } from '../charts/scatter-svg.tsx';
 import { useEnvelope } from './use-envelope.ts';
-import { CHAIN_PRESETS, buildSettingsFromForm, spreadIndices, summariseEvaluation } from './bench-data.ts';
+import { CHAIN_PRESETS, buildSettingsFromForm, parseEndpointMark, spreadIndices, summariseEvaluation, type EndpointMark } from './bench-data.ts';
 import { progressLabel, scoreBand } from './watch-data.ts';
 import { sortedByAxis } from './spectrum-data.ts';
 import { confidence, dateTime, fixed, limitName, minutes, percent, sig } from '../format/number-format.ts';
@@ -96,6 +96,8 @@ function Builder({ me }: { me: Me | null }) {
   const [error, setError] = useState<string | null>(null);
   const [busy, setBusy] = useState(false);
   const [preview, setPreview] = useState<string | null>(null);
+  // Endpoint of each reference batch as typed (empty: lab values crossing the target decide).
+  const [ends, setEnds] = useState<Record<string, string>>({});
 
   const products = useMemo(() => [...new Set((batches.data?.items ?? []).map((b) => b.product))].sort(), [batches.data]);
   const shown = (batches.data?.items ?? []).filter((b) => !product || b.product === product);
@@ -113,13 +115,19 @@ function Builder({ me }: { me: Me | null }) {
     if (!('chain' in chainResult)) return setError(chainResult.error);
     if (chosen.length < 2) return setError('Choose at least two reference batches.');
     const prod = product || shown.find((b) => chosen.includes(b.id))?.product || '';
+    let marks: EndpointMark[];
+    try {
+      marks = chosen.map((b) => parseEndpointMark(b, ends[b] ?? '')).filter((m): m is EndpointMark => m !== null);
+    } catch (e) {
+      return setError(errorText(e));
+    }
     setBusy(true);
     try {
       const v = await api.build({
         name: modelName(name || `${prod}-model`),
         product: prod,
         referenceBatches: chosen,
-        settings: buildSettingsFromForm({ chain: chainResult.chain, components, confidence: conf, alarmConfidence: Math.max(alarmConf, conf) }),
+        settings: buildSettingsFromForm({ chain: chainResult.chain, components, confidence: conf, alarmConfidence: Math.max(alarmConf, conf), referenceEndpoints: marks }),
       });
       location.hash = href({ view: 'bench', version: v.versionId });
     } catch (e) {
@@ -161,6 +169,7 @@ function Builder({ me }: { me: Me | null }) {
               <th scope="col">started</th>
               <th scope="col" class="num">spectra</th>
               <th scope="col" class="num">alarms</th>
+              <th scope="col">endpoint</th>
               <th scope="col">preview</th>
             </tr>
           </thead>
@@ -183,6 +192,17 @@ function Builder({ me }: { me: Me | null }) {
                 <td class="num">{b.spectrumCount}</td>
                 <td class="num">{b.alarmCount > 0 ? <Badge tone="warn">{b.alarmCount}</Badge> : '0'}</td>
                 <td>
+                  <input
+                    class="endpoint-mark"
+                    size={9}
+                    aria-label={`endpoint of ${b.id}`}
+                    data-testid={`end-${b.id}`}
+                    placeholder="lab values"
+                    value={ends[b.id] ?? ''}
+                    onInput={(e) => setEnds((m) => ({ ...m, [b.id]: (e.target as HTMLInputElement).value }))}
+                  />
+                </td>
+                <td>
                   <button type="button" class="btn small" onClick={() => setPreview(b.id)}>
                     chain preview
                   </button>
@@ -191,6 +211,12 @@ function Builder({ me }: { me: Me | null }) {
             ))}
           </tbody>
         </table>
+        <p class="muted small">
+          Endpoint: where the batch really reached its end. Empty takes it from lab values crossing the target; otherwise give minutes from the batch start (52.5), a
+          spectrum (#316), or "last" only if the batch really ended at its last spectrum — operators stop late, so the last spectrum is never taken as the endpoint
+          unless you say so. Rules with automatic thresholds (moving-block SD, plateau, golden end) are calibrated at these endpoints and need one for every
+          reference batch. Tideline advises; the site's validated control strategy, interlocks and procedures decide what an endpoint signal may do.
+        </p>
       </fieldset>
       <fieldset>
         <legend>Preprocessing chain</legend>

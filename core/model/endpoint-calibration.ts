@@ -1,0 +1,124 @@
+/**
+ * The endpoint rule's automatic thresholds, resolved from the reference batches at their known
+ * endpoints only (core/model/reference-endpoints.ts; never at the last spectrum by assumption):
+ *
+ * - moving-block SD 'auto': the smallest MBSD (Sekulic et al. 1996, Anal. Chem. 68:509) among the
+ *   reference batches over the block that ends at their endpoint;
+ * - plateau 'auto': the smallest |slope| of the PC score over the window that ends at the endpoint;
+ * - golden end: the end region from the scores at the known endpoints (core/envelope).
+ *
+ * Smallest, not median: both quantities fall as a batch approaches its end, so with the smallest
+ * value no reference batch would meet the threshold before its own endpoint were it to fall
+ * steadily; a median would be met early by about half of them. This choice is ours (no published
+ * rule), made to err late: a dryer stopped a little late costs little, one stopped early leaves wet
+ * product. The leave-one-batch-out check at build (core/model/endpoint-check.ts) measures what it
+ * gives. Each threshold can be re-resolved without one batch, for that check.
+ */
+import normalQuantile from '@stdlib/stats-base-dists-normal-quantile';
+import type { EndpointRuleSpec, ResolvedCriterion } from '../endpoint/spec.ts';
+import { goldenEndRegion, type Envelope } from '../envelope/envelope.ts';
+import { movingBlockSd } from '../envelope/mbsd.ts';
+import { plateauSlope } from '../endpoint/plateau.ts';
+
+/** Per reference batch, what the automatic thresholds are calibrated from (null: no known endpoint, or too few spectra before it). */
+export interface EndValues {
+  /** Per criterion of the rule (same order): MBSD or |slope| at each batch's endpoint; null for other kinds. */
+  perCriterion: ((number | null)[] | null)[];
+  /** PCA scores at each batch's endpoint. */
+  endScores: (number[] | null)[];
+  batchIds: string[];
+}
+
+export interface CalibrationBatch {
+  /** Preprocessed spectra (model chain) of the batch's kept spectra. */
+  rows: ArrayLike<number>[];
+  elapsedMin: ArrayLike<number>;
+  /** scores[a][i] */
+  scores: ArrayLike<number>[];
+  /** Kept-spectrum index of the known endpoint, or null. */
+  endIndex: number | null;
+}
+
+export function endValuesOf(rule: EndpointRuleSpec, batches: CalibrationBatch[], batchIds: string[]): EndValues {
+  const perCriterion = rule.criteria.map((c) => {
+    if (c.kind === 'mbsd' && c.threshold === 'auto') {
+      return batches.map((b) => {
+        if (b.endIndex === null || b.endIndex + 1 < c.block) return null;
+        const from = b.endIndex - c.block + 1;
+        const sd = movingBlockSd(b.rows.slice(from, b.endIndex + 1), c.block);
+        return sd.length ? sd[0]! : null;
+      });
+    }
+    if (c.kind === 'plateau' && c.tolerance === 'auto') {
+      return batches.map((b) => {
+        if (b.endIndex === null || b.endIndex + 1 < c.window || c.pc > b.scores.length) return null;
+        return Math.abs(plateauSlope(b.elapsedMin, b.scores[c.pc - 1]!, b.endIndex - c.window + 1, c.window));
+      });
+    }
+    return null;
+  });
+  const endScores = batches.map((b) => (b.endIndex === null ? null : b.scores.map((s) => s[b.endIndex!]!)));
+  return { perCriterion, endScores, batchIds };
+}
+
+const sig = (v: number) => (Math.abs(v) >= 100 ? v.toFixed(1) : v.toPrecision(3));
+
+/** Context the property criterion needs. */
+export interface PropertyContext {
+  name: string;
+  unit: string;
+  target?: number;
+  direction?: 'below' | 'above';
+  /** RMSECV at the model's LV count (for margin 'auto'). */
+  rmsecv: number | null;
+}
+
+/**
+ * The rule's criteria with every threshold a number and how it was obtained. `exclude`: a batch
+ * index left out (the leave-one-batch-out check); null for the model itself.
+ */
+export function resolveCriteria(rule: EndpointRuleSpec, ev: EndValues, opts: { A: number; confidence: number; property: PropertyContext | null; exclude: number | null }): { criteria: ResolvedCriterion[]; endRegion: Envelope['endRegion'] } {
+  const { A, confidence, property, exclude } = opts;
+  const keep = (b: number) => b !== exclude;
+  let endRegion: Envelope['endRegion'] = null;
+  const criteria = rule.criteria.map((c, ci): ResolvedCriterion => {
+    switch (c.kind) {
+      case 'property': {
+        if (!property) throw new RangeError('endpoint criterion "property" needs a property model (settings.property)');
+        const target = c.target ?? property.target;
+        if (target === undefined) throw new RangeError('endpoint criterion "property" needs a target (criterion.target or property.target)');
+        const base = { kind: 'property' as const, target, direction: c.direction ?? property.direction ?? 'below', name: property.name, unit: property.unit };
+        if (c.margin === undefined || c.margin === 0) return base;
+        if (c.margin !== 'auto') return { ...base, margin: c.margin, marginMethod: 'fixed by the model owner' };
+        const rmsecv = property.rmsecv;
+        if (rmsecv === null || !Number.isFinite(rmsecv)) throw new RangeError('endpoint criterion "property": margin "auto" needs the cross-validated error of the property model');
+        const mc = c.marginConfidence ?? confidence;
+        const z = normalQuantile(mc, 0, 1);
+        return { ...base, margin: z * rmsecv, marginMethod: `z(${mc})·RMSECV = ${z.toFixed(3)} × ${rmsecv.toPrecision(3)} ${property.unit} (one-sided bound on the prediction error)` };
+      }
+      case 'mbsd': {
+        if (c.threshold !== 'auto') return { kind: 'mbsd', block: c.block, threshold: c.threshold, method: 'fixed by the model owner' };
+        const vals = ev.perCriterion[ci]!.map((v, b) => ({ v, b })).filter((x): x is { v: number; b: number } => x.v !== null && keep(x.b));
+        if (vals.length === 0) throw new RangeError(`moving-block SD criterion: no reference batch${exclude !== null ? ` (without "${ev.batchIds[exclude]}")` : ''} has ${c.block} spectra up to a known endpoint`);
+        const low = vals.reduce((m, x) => (x.v < m.v ? x : m));
+        return { kind: 'mbsd', block: c.block, threshold: low.v, method: `'auto': the smallest MBSD over the ${c.block} spectra up to the known endpoint among ${vals.length} reference batches (${sig(low.v)}, batch "${ev.batchIds[low.b]}")` };
+      }
+      case 'plateau': {
+        if (c.pc > A) throw new RangeError(`plateau criterion uses PC${c.pc} but the model has ${A} components`);
+        if (c.tolerance !== 'auto') return { kind: 'plateau', pc: c.pc, window: c.window, tolerance: c.tolerance, method: 'fixed by the model owner' };
+        const vals = ev.perCriterion[ci]!.map((v, b) => ({ v, b })).filter((x): x is { v: number; b: number } => x.v !== null && keep(x.b));
+        if (vals.length === 0) throw new RangeError(`plateau criterion: no reference batch${exclude !== null ? ` (without "${ev.batchIds[exclude]}")` : ''} has ${c.window} spectra up to a known endpoint`);
+        const low = vals.reduce((m, x) => (x.v < m.v ? x : m));
+        return { kind: 'plateau', pc: c.pc, window: c.window, tolerance: low.v, method: `'auto': the smallest |slope| of PC${c.pc} per minute over the ${c.window} spectra up to the known endpoint among ${vals.length} reference batches (${sig(low.v)}, batch "${ev.batchIds[low.b]}")` };
+      }
+      case 'golden-end': {
+        const end = ev.endScores.filter((s, b): s is number[] => s !== null && keep(b));
+        const region = goldenEndRegion(end, A, confidence);
+        if (!region) throw new RangeError(`golden end region: needs at least 2 reference batches with a known endpoint${exclude !== null ? ` besides "${ev.batchIds[exclude]}"` : ''}`);
+        endRegion = region;
+        return { kind: 'golden-end', limit: region.limit, method: region.method };
+      }
+    }
+  });
+  return { criteria, endRegion };
+}
