@@ -328,6 +328,96 @@ export interface ModelVersionDetail extends ModelVersionSummary {
   evaluations: EvaluationResult[];
   /** What the build decided on its own that the model owner should know (e.g. the Box fallback of the Q limit). */
   notes: string[];
+  /** The endpoint rule as resolved at build: every threshold with how it was obtained (null: model not loadable here). */
+  endpoint: EndpointRuleView | null;
+  /** The property (PLS) model's evidence, or null when the model has none. */
+  property: PropertyModelView | null;
+  /** The known endpoint of each reference batch that has one, and how it was found (docs/model-building.md). */
+  referenceEndpoints: ReferenceEndpointView[];
+  /** The endpoint rule replayed leave-one-batch-out on the reference batches (null in models built before it). */
+  endpointCheck: EndpointCheckView | null;
+}
+
+/** One criterion of a resolved endpoint rule, in words and numbers. */
+export interface EndpointCriterionView {
+  kind: 'property' | 'mbsd' | 'plateau' | 'golden-end';
+  /** e.g. "predicted moisture ≤ 1.995 % w/w (target 2 − margin 0.005)". */
+  text: string;
+  /** The threshold the live value is compared with (property: target ∓ margin). */
+  threshold: number;
+  /** How the threshold was obtained (fixed by the model owner, 'auto' from the reference batches, …). */
+  method: string;
+}
+
+export interface EndpointRuleView {
+  criteria: EndpointCriterionView[];
+  combine: 'all' | 'any';
+  confirm: number;
+  nearingMin: number;
+  /** The caution shown with every endpoint rule. */
+  caution: string;
+}
+
+export interface PropertyModelView {
+  name: string;
+  unit: string;
+  target: number | null;
+  direction: 'below' | 'above' | null;
+  components: number;
+  componentsRule: string;
+  /** The LV count chosen is the largest searched. */
+  atSearchLimit: boolean;
+  cvMethod: string;
+  /** RMSECV per LV count (rmsecv[a − 1]) and with none; bias (mean CV residual ŷ − y) per LV count. */
+  rmsecv: number[];
+  rmsecv0: number;
+  bias: number[];
+  nLabValues: number;
+  nBatchesWithLab: number;
+  nBatches: number;
+  batchesWithoutLab: string[];
+  /** Range of the lab values used (the calibration range), and the range the calibration was restricted to (null: none). */
+  calibrationRange: [number, number];
+  restrictedTo: [number, number] | null;
+  /** Limits of the prediction's X-space T² and Q beyond which it is flagged as outside its calibration. */
+  extrapolation: { confidence: number; t2Limit: number; qLimit: number; t2Method: string; qMethod: string };
+}
+
+export interface ReferenceEndpointView {
+  batch: string;
+  index: number;
+  elapsedMin: number;
+  source: 'lab' | 'marked' | 'marked-last';
+  detail: string;
+  bracket?: { fromIndex: number; toIndex: number; fromMin: number; toMin: number };
+}
+
+export interface EndpointCheckRowView {
+  batch: string;
+  knownIndex: number | null;
+  knownMin: number | null;
+  knownSource: 'lab' | 'marked' | 'marked-last' | null;
+  bracketMin: [number, number] | null;
+  firedIndex: number | null;
+  firedMin: number | null;
+  /** fired − known (negative: early), spectrum intervals and minutes. */
+  intervals: number | null;
+  minutes: number | null;
+  propertyAtFire: number | null;
+  verdict: 'early' | 'on time' | 'late' | 'not reached' | 'no known endpoint';
+}
+
+export interface EndpointCheckView {
+  method: string;
+  rows: EndpointCheckRowView[];
+  early: number;
+  earlyMaxIntervals: number;
+  earlyMaxMinutes: number;
+  late: number;
+  onTime: number;
+  notReached: number;
+  noEndpoint: number;
+  medianIntervals: number | null;
 }
 
 /** The golden envelope in a form ready to draw. Arrays share the index of `progress`. */

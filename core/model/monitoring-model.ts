@@ -22,7 +22,8 @@ import { progressOf, type ProgressAxis } from '../envelope/progress.ts';
 import type { ResolvedEndpointRule } from '../endpoint/spec.ts';
 import { readModelFile, writeModelFile } from './model-file.ts';
 import { parseStoredSettings, resolveBuildSettings, type BuildSettings } from './build-settings.ts';
-import { fitPropertyModel, loadPropertyModel, type PropertyModel } from './property-model.ts';
+import { fitPropertyModel, loadPropertyModel, type PropertyFit, type PropertyModel } from './property-model.ts';
+import { checkEndpointRule, earlyBatchesText, type CheckBatch, type EndpointCheck } from './endpoint-check.ts';
 import { crossValidatedStatistics } from './group-cv-statistics.ts';
 import { oneStandardErrorRule } from './parsimony.ts';
 import { missingEndpointsMessage, partsNeedingEndpoints, resolveReferenceEndpoints, type ReferenceEndpoint } from './reference-endpoints.ts';
@@ -72,6 +73,8 @@ export interface ModelMeta {
   batches: { id: string; spectra: number; excluded: number; durationMin: number; endMin: number | null }[];
   /** The known endpoint of each reference batch that has one (lab crossing or marked), and how it was found. Absent in older files. */
   referenceEndpoints?: ReferenceEndpoint[];
+  /** The endpoint rule replayed leave-one-batch-out on the reference batches (core/model/endpoint-check.ts). Absent in older files. */
+  endpointCheck?: EndpointCheck;
   nSpectra: number;
   nVariables: number;
   createdAt: number;
@@ -183,6 +186,7 @@ export function buildMonitoringModel(batches: ReferenceBatch[], settingsInput: u
   // Property model (PLS1) from the raw spectra through its own chain.
   let pls: PropertyModel | undefined;
   let predicted: Float64Array | null = null;
+  let propertyFit: PropertyFit | null = null;
   if (settings.property) {
     // Sparse lab values: NaN where a spectrum has none (a batch without values has none at all).
     const y = new Float64Array(n).fill(NaN);
@@ -192,6 +196,7 @@ export function buildMonitoringModel(batches: ReferenceBatch[], settingsInput: u
     });
     const fit = fitPropertyModel({ axis: batches[0].axis, rows, y, batchOfRow: origin.map((o) => o.batch), batchIds: batches.map((b) => b.id) }, settings.property, settings.chain);
     pls = fit.model;
+    propertyFit = fit;
     const ev = fit.model.evidence!;
     if (ev.atSearchLimit) notes.push(`Property model: the ${ev.components} LVs chosen are the most the cross-validation searched. ${ev.componentsRule}.`);
     if (ev.batchesWithoutLab.length) notes.push(`Property model: no lab values of ${settings.property.name}${settings.property.range ? ` within ${settings.property.range[0]}…${settings.property.range[1]} ${settings.property.unit}` : ''} on ${ev.batchesWithoutLab.length} reference batch${ev.batchesWithoutLab.length === 1 ? '' : 'es'} (${ev.batchesWithoutLab.join(', ')}); calibrated on the other ${ev.nBatchesWithLab}.`);
@@ -271,6 +276,16 @@ export function buildMonitoringModel(batches: ReferenceBatch[], settingsInput: u
     ? { name: settings.property.name, unit: settings.property.unit, target: settings.property.target, direction: settings.property.direction, rmsecv: pls?.rmsecv?.[pls.components - 1] ?? null }
     : null;
   const { criteria } = resolveCriteria(settings.endpoint, endValues, { A, confidence: conf, property: propertyContext, exclude: null });
+  // The rule replayed leave-one-batch-out on the reference batches against their known endpoints.
+  let po = 0;
+  const replayBatches: CheckBatch[] = calib.map((c, bi) => {
+    const m = kept[bi].length;
+    const pred = propertyFit ? propertyFit.cvAll.y.subarray(po, po + m) : null;
+    po += m;
+    return { ...c, id: batches[bi].id, kept: kept[bi], predicted: pred, endpoint: ends.endpoints[bi] };
+  });
+  const endpointCheck = checkEndpointRule(settings.endpoint, replayBatches, endValues, { A, confidence: conf, property: propertyContext });
+  if (endpointCheck.early > 0) notes.push(`Endpoint check (leave one batch out): ${earlyBatchesText(endpointCheck)}. Approval needs a signed override.`);
   const endpoint: ResolvedEndpointRule = { criteria, combine: settings.endpoint.combine, confirm: settings.endpoint.confirm, nearingMin: settings.endpoint.nearingMin };
 
   if (ends.missing.size) {
@@ -285,6 +300,7 @@ export function buildMonitoringModel(batches: ReferenceBatch[], settingsInput: u
       endMin: envelope.endMin[bi],
     })),
     referenceEndpoints: ends.endpoints.filter((e): e is ReferenceEndpoint => e !== null),
+    endpointCheck,
     nSpectra: n,
     nVariables: X.cols,
     createdAt: settings.createdAt,
@@ -379,6 +395,34 @@ const bodySchema = z.object({
     pcaCv: z.object({ press: z.array(num), recommended: z.number().int(), method: z.string(), best: z.number().int().optional(), rule: z.string().optional(), atSearchLimit: z.boolean().optional() }),
     sampleOrigin: z.array(z.object({ batch: z.number().int(), index: z.number().int() })),
     notes: z.array(z.string()).optional(),
+    endpointCheck: z
+      .object({
+        method: z.string(),
+        rows: z.array(
+          z.object({
+            batch: z.string(),
+            knownIndex: z.number().int().nullable(),
+            knownMin: num.nullable(),
+            knownSource: z.enum(['lab', 'marked', 'marked-last']).nullable(),
+            bracketMin: z.tuple([num, num]).nullable(),
+            firedIndex: z.number().int().nullable(),
+            firedMin: num.nullable(),
+            intervals: z.number().int().nullable(),
+            minutes: num.nullable(),
+            propertyAtFire: num.nullable(),
+            verdict: z.enum(['early', 'on time', 'late', 'not reached', 'no known endpoint']),
+          }),
+        ),
+        early: z.number().int(),
+        earlyMaxIntervals: z.number().int(),
+        earlyMaxMinutes: num,
+        late: z.number().int(),
+        onTime: z.number().int(),
+        notReached: z.number().int(),
+        noEndpoint: z.number().int(),
+        medianIntervals: num.nullable(),
+      })
+      .optional(),
   }),
 });
 type Body = z.infer<typeof bodySchema>;

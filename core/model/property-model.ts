@@ -61,6 +61,8 @@ export interface PropertyModel {
   nCalibration: number;
   /** Cross-validation evidence (null in model files written before it was kept). */
   evidence: PropertyEvidence | null;
+  /** Limits of the prediction's X-space T² and Q (beyond either: extrapolating), with their methods. */
+  limits: Pls1Model['limits'];
   /** One raw spectrum; allocates nothing but the returned object. */
   predict(raw: ArrayLike<number>): PropertyPredictionValue;
   toJSON(): PropertyModelJson;
@@ -102,6 +104,7 @@ function wrap(name: string, unit: string, rmsecv: number[] | null, range: [numbe
     range,
     nCalibration,
     evidence,
+    limits: model.limits,
     predict(raw) {
       chain.apply(raw, buf);
       const r = predictor.predict(buf);
@@ -136,6 +139,66 @@ export interface PropertyFit {
   foldBatch: number[];
   /** The fitted property chain. */
   chain: FittedChain;
+  /**
+   * Every input row (not only the lab rows) through the model of its batch's fold — the PLS
+   * calibrated without that batch's lab values; a batch without lab values took no part in the
+   * calibration, so the final model is already "without it": the prediction and its X-space T²
+   * (score variances of the fold's training rows) and Q (residual of the fold's loadings).
+   */
+  cvAll: { y: Float64Array; t2: Float64Array; q: Float64Array };
+}
+
+/** Per-row prediction, T² and Q of every input row from the model that left out its batch (see PropertyFit.cvAll). */
+function crossValidatedRows(input: PropertyCalibrationInput, chain: FittedChain, cv: KernelCv, foldBatch: number[], final: Pls1Model): PropertyFit['cvAll'] {
+  const n = input.rows.length;
+  const p = chain.outputAxis.length;
+  const A = final.components;
+  const y = new Float64Array(n);
+  const t2 = new Float64Array(n);
+  const q = new Float64Array(n);
+  const foldOf = new Map<number, number>();
+  foldBatch.forEach((b, f) => foldOf.set(b, f));
+  const x = new Float64Array(p);
+  const xc = new Float64Array(p);
+  const t = new Float64Array(A);
+  // The final model in the same form as a fold's (rows: component a, p values).
+  const fR = new Float64Array(A * p);
+  const fP = new Float64Array(A * p);
+  for (let j = 0; j < p; j++) for (let a = 0; a < A; a++) { fR[a * p + j] = final.rotations.data[j * A + a]!; fP[a * p + j] = final.loadings.data[j * A + a]!; }
+  const fVar = final.scoreVariance;
+  const fB = final.coefficients;
+  for (let i = 0; i < n; i++) {
+    chain.apply(input.rows[i]!, x);
+    const f = foldOf.get(input.batchOfRow[i]!);
+    const fm = f === undefined ? null : cv.foldModels![f]!;
+    const mean = fm ? fm.xMean : final.xMean;
+    const R = fm ? fm.R : fR;
+    const P = fm ? fm.P : fP;
+    const bOff = (A - 1) * p;
+    let yh = fm ? fm.yMean : final.yMean;
+    for (let j = 0; j < p; j++) {
+      xc[j] = x[j]! - mean[j]!;
+      yh += xc[j]! * (fm ? fm.B[bOff + j]! : fB[j]!);
+    }
+    let s2 = 0;
+    for (let a = 0; a < A; a++) {
+      let ta = 0;
+      for (let j = 0; j < p; j++) ta += R[a * p + j]! * xc[j]!;
+      t[a] = ta;
+      const v = fm ? fm.tt[a]! / (fm.nTrain - 1) : fVar[a]!;
+      s2 += (ta * ta) / v;
+    }
+    let qq = 0;
+    for (let j = 0; j < p; j++) {
+      let r = xc[j]!;
+      for (let a = 0; a < A; a++) r -= t[a]! * P[a * p + j]!;
+      qq += r * r;
+    }
+    y[i] = yh;
+    t2[i] = s2;
+    q[i] = qq;
+  }
+  return { y, t2, q };
 }
 
 function rmsecvOf(pred: Float64Array, y: Float64Array): number {
@@ -150,7 +213,7 @@ function rmsecvOf(pred: Float64Array, y: Float64Array): number {
  * batches carrying them (whole batches are left out in cross-validation), or when the spectra do
  * not predict the property better than its mean.
  */
-export function fitPropertyModel(input: PropertyCalibrationInput, spec: PropertySpec, modelChain: ChainSpec, opts: { keepFolds?: boolean } = {}): PropertyFit {
+export function fitPropertyModel(input: PropertyCalibrationInput, spec: PropertySpec, modelChain: ChainSpec): PropertyFit {
   const { rows, y, batchOfRow, batchIds } = input;
   if (y.length !== rows.length || batchOfRow.length !== rows.length) throw new RangeError(`property model: ${rows.length} spectra, ${y.length} lab values, ${batchOfRow.length} batch labels`);
   const inRange = (v: number) => !spec.range || (v >= spec.range[0] && v <= spec.range[1]);
@@ -191,7 +254,7 @@ export function fitPropertyModel(input: PropertyCalibrationInput, spec: Property
   if (spec.components !== 'auto' && spec.components > maxA) {
     throw new RangeError(`property model: ${spec.components} LVs asked; at most ${maxA} can be cross-validated with ${keep.length} lab values on ${labBatches.length} batches (${X.cols} variables)`);
   }
-  const cv = kernelCrossValidatePls1(X, yy, searched, seg, opts);
+  const cv = kernelCrossValidatePls1(X, yy, searched, seg, { keepFolds: true });
   const n = yy.length;
   const rmsecv = cv.predictions.map((p) => rmsecvOf(p, yy));
   const bias = cv.predictions.map((p) => {
@@ -256,8 +319,9 @@ export function fitPropertyModel(input: PropertyCalibrationInput, spec: Property
     batchesWithoutLab: without,
     labRange: [lo, hi],
   };
-  const model = wrap(spec.name, spec.unit, rmsecv, spec.range ?? null, n, evidence, chain, fitPls1(X, yy, { components: A, center: true }));
-  return { model, calibrationRows: keep, cv, foldBatch: labBatches, chain };
+  const pls = fitPls1(X, yy, { components: A, center: true });
+  const model = wrap(spec.name, spec.unit, rmsecv, spec.range ?? null, n, evidence, chain, pls);
+  return { model, calibrationRows: keep, cv, foldBatch: labBatches, chain, cvAll: crossValidatedRows(input, chain, cv, labBatches, pls) };
 }
 
 const finite = z.number().refine(Number.isFinite, { message: 'must be a finite number' });

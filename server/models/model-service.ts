@@ -11,6 +11,8 @@ import { modelVersionSummary } from '../api/views.ts';
 import { spreadIndices } from '../../core/stats/spread-indices.ts';
 import { BuildBusyError, BuildFailedError, ModelBuildRunner, packReferenceBatch, type BuildInfo, type BuiltModelFile } from './build-runner.ts';
 import type { PackedReferenceBatch } from './build-worker.ts';
+import type { MonitoringModel } from '../../core/model/monitoring-model.ts';
+import { endpointCheckView, endpointRuleView, propertyModelView, referenceEndpointsView } from '../../core/model/version-evidence.ts';
 
 export class ModelRequestError extends Error {
   /** `title` and `kind` (problem type slug) default by status in routes-models.ts. */
@@ -148,6 +150,7 @@ export async function evaluateVersion(ctx: ServerContext, versionId: string, bat
 
 export async function versionDetail(ctx: ServerContext, row: ModelVersionRow): Promise<ModelVersionDetail> {
   const model = (await ctx.ingest.loadModel(row.id)) as ModelShape | null;
+  const full = model as unknown as MonitoringModel | null;
   const summary = await modelVersionSummary(ctx.storage, row);
   return {
     ...summary,
@@ -163,6 +166,10 @@ export async function versionDetail(ctx: ServerContext, row: ModelVersionRow): P
     modelAxis: model ? Array.from(model.chain.outputAxis) : [],
     evaluations: await ctx.storage.listEvaluations(row.id),
     notes: model?.meta.notes ?? [],
+    endpoint: full ? endpointRuleView(full) : null,
+    property: full ? propertyModelView(full) : null,
+    referenceEndpoints: full ? referenceEndpointsView(full) : [],
+    endpointCheck: full ? endpointCheckView(full) : null,
   };
 }
 

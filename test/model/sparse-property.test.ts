@@ -7,6 +7,7 @@
 import { describe, expect, it } from 'vitest';
 import { simulateReferenceSet } from '../../simulators/batch.ts';
 import { buildMonitoringModel, parseMonitoringModel, serializeMonitoringModel, type ReferenceBatch } from '../../core/model/monitoring-model.ts';
+import { fitPropertyModel } from '../../core/model/property-model.ts';
 
 const sim = simulateReferenceSet('dryer', 5, 99);
 /** Lab values every `every` spectra (offset by batch), NaN elsewhere; `none` batches get none. */
@@ -71,6 +72,20 @@ describe('property model on sparse lab values', () => {
     expect(m.pls!.evidence!.rmsecv).toHaveLength(3);
     expect(m.pls!.evidence!.componentsRule).toMatch(/^fixed by the model owner \(3 LV/);
     expect(() => buildMonitoringModel(sparse(30), { ...settings, property: { ...settings.property, components: 30 } })).toThrow(/30 LVs asked; at most \d+ can be cross-validated/);
+  });
+  it('every reference spectrum is predicted by the model without its batch: on lab rows exactly the CV predictions', () => {
+    const batches = sparse(30, [1]);
+    const rows = batches.flatMap((b) => b.spectra);
+    const y = batches.flatMap((b) => Array.from(b.property!));
+    const batchOfRow = batches.flatMap((b, bi) => b.spectra.map(() => bi));
+    const fit = fitPropertyModel({ axis: batches[0]!.axis, rows, y, batchOfRow, batchIds: batches.map((b) => b.id) }, { name: 'moisture', unit: '% w/w', components: 'auto' }, settings.chain as never);
+    const A = fit.model.components;
+    fit.calibrationRows.forEach((i, r) => expect(Math.abs(fit.cvAll.y[i]! - fit.cv.predictions[A - 1]![r]!)).toBeLessThan(1e-9));
+    // batch 1 has no lab values: its spectra go through the final model itself
+    const i1 = batchOfRow.indexOf(1);
+    expect(Math.abs(fit.cvAll.y[i1]! - fit.model.predict(rows[i1]!).y)).toBeLessThan(1e-9);
+    expect(Math.abs(fit.cvAll.t2[i1]! - fit.model.predict(rows[i1]!).t2)).toBeLessThan(1e-9 * Math.max(1, fit.cvAll.t2[i1]!));
+    expect(Math.abs(fit.cvAll.q[i1]! - fit.model.predict(rows[i1]!).q)).toBeLessThan(1e-9 * Math.max(1, fit.cvAll.q[i1]!));
   });
   it('dense values (every spectrum) are the special case: every spectrum is a lab row', () => {
     const dense = sim.map((b) => ({ id: b.id, axis: b.axis, times: b.times, spectra: b.spectra, property: b.truth.property.values }));

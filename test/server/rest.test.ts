@@ -141,6 +141,15 @@ describe('REST: models — build, evaluate, approve (signature), deploy, retire'
     versionId = r.body.versionId;
     r = await viewer.get(`/api/models/versions/${versionId}`);
     expect(r.body.explained.length).toBe(2);
+    // the evidence: the rule with its resolved threshold and how, the marked endpoints, the check table
+    expect(r.body.endpoint.criteria[0]).toMatchObject({ kind: 'mbsd' });
+    expect(r.body.endpoint.criteria[0].method).toMatch(/^'auto': the smallest MBSD over the 5 spectra up to the known endpoint among 3 reference batches/);
+    expect(r.body.endpoint.caution).toMatch(/Tideline advises/);
+    expect(r.body.property).toBeNull();
+    expect(r.body.referenceEndpoints.map((e: any) => e.source)).toEqual(['marked', 'marked', 'marked-last']);
+    expect(r.body.referenceEndpoints[2].detail).toMatch(/stopped at the endpoint$/);
+    expect(r.body.endpointCheck.rows.map((x: any) => x.batch)).toEqual(refs.map((b) => b.id));
+    expect(r.body.endpointCheck.method).toMatch(/^leave-one-batch-out/);
     expect(r.body.limits.t2).toBeGreaterThan(0);
     r = await viewer.get(`/api/models/versions/${versionId}/envelope`);
     expect(r.body.scores.length).toBe(2);

@@ -1,0 +1,161 @@
+/**
+ * The endpoint rule checked before approval: replayed leave-one-batch-out on the reference batches
+ * through core's EndpointTracker (the state machine the live monitor uses), and compared with each
+ * batch's known endpoint (core/model/reference-endpoints.ts).
+ *
+ * For each reference batch, as for a batch the model has not seen:
+ * - refitted without the batch: the property predictions (the PLS calibrated without that batch's
+ *   lab values, same LV count), and every automatic threshold (MBSD, plateau, golden end region:
+ *   re-resolved from the other batches' known endpoints, core/model/endpoint-calibration.ts);
+ * - not refitted: the preprocessing chains and the PCA (loadings from all reference batches: one
+ *   batch in many moves them little, and refitting the PCA per batch would rotate and re-sign the
+ *   scores the plateau and golden end criteria compare), the LV count, and the automatic property
+ *   margin (RMSECV is itself cross-validated over batches).
+ * Run-time holds (standing alarms, a prediction outside its calibration) are not replayed: they can
+ * only delay a call, so a call early here may be later at run time, and one on time or late here
+ * is not earlier there.
+ *
+ * A call counts as early when it comes before the known endpoint (any interval); approval of a rule
+ * that is early on a reference batch needs a signed override (contract of the approval route).
+ */
+import { EndpointTracker, type EndpointInputs } from '../endpoint/endpoint-tracker.ts';
+import type { EndpointRuleSpec, ResolvedEndpointRule } from '../endpoint/spec.ts';
+import { PlateauWindow } from '../endpoint/plateau.ts';
+import { MovingBlockSd } from '../envelope/mbsd.ts';
+import type { DomainEvent } from '../monitor/types.ts';
+import { resolveCriteria, type CalibrationBatch, type EndValues, type PropertyContext } from './endpoint-calibration.ts';
+import type { ReferenceEndpoint } from './reference-endpoints.ts';
+
+export interface EndpointCheckRow {
+  batch: string;
+  /** The known endpoint (null: none known — the batch is replayed, not judged). */
+  knownIndex: number | null;
+  knownMin: number | null;
+  knownSource: ReferenceEndpoint['source'] | null;
+  /** Lab bracket of the known endpoint, minutes. */
+  bracketMin: [number, number] | null;
+  /** Where the rule reached done (spectrum index in the batch, minutes from its first spectrum); null: never. */
+  firedIndex: number | null;
+  firedMin: number | null;
+  /** fired − known, in spectrum intervals and in minutes (negative: early). */
+  intervals: number | null;
+  minutes: number | null;
+  /** The predicted property where the rule fired (property models only). */
+  propertyAtFire: number | null;
+  verdict: 'early' | 'on time' | 'late' | 'not reached' | 'no known endpoint';
+}
+
+export interface EndpointCheck {
+  method: string;
+  rows: EndpointCheckRow[];
+  /** Batches called early, and the most intervals / minutes early among them (0 when none). */
+  early: number;
+  earlyMaxIntervals: number;
+  earlyMaxMinutes: number;
+  late: number;
+  onTime: number;
+  notReached: number;
+  noEndpoint: number;
+  /** Median of fired − known over the batches judged that fired (intervals), null when none. */
+  medianIntervals: number | null;
+}
+
+export const ENDPOINT_CHECK_METHOD =
+  'leave-one-batch-out replay through the endpoint tracker: for each reference batch, property predictions from the PLS calibrated without its lab values and automatic thresholds re-resolved from the other batches\u2019 known endpoints; the preprocessing, the PCA, the LV count and the automatic property margin are those of the model (not refitted per batch); run-time holds (alarms, predictions outside calibration) are not replayed — they can only delay a call. Early: the rule reached done before the known endpoint.';
+
+export interface CheckBatch extends CalibrationBatch {
+  id: string;
+  /** Original spectrum index of each kept spectrum. */
+  kept: number[];
+  /** Property prediction of each kept spectrum from the model without this batch (null: no property model). */
+  predicted: ArrayLike<number> | null;
+  endpoint: ReferenceEndpoint | null;
+}
+
+function median(xs: number[]): number | null {
+  if (xs.length === 0) return null;
+  const s = [...xs].sort((a, b) => a - b);
+  const m = s.length >> 1;
+  return s.length % 2 ? s[m]! : (s[m - 1]! + s[m]!) / 2;
+}
+
+/** Replay one batch through a tracker with a rule; the kept-spectrum position where it reached done, or null. */
+function replay(rule: ResolvedEndpointRule, b: CheckBatch, endRegion: { mean: number[]; sd: number[] } | null): number | null {
+  const tracker = new EndpointTracker(rule);
+  const mbsdCrit = rule.criteria.find((c) => c.kind === 'mbsd');
+  const p = b.rows[0]?.length ?? 0;
+  const mbsd = mbsdCrit && mbsdCrit.kind === 'mbsd' ? new MovingBlockSd(mbsdCrit.block, p) : null;
+  const plateaus = rule.criteria.flatMap((c) => (c.kind === 'plateau' ? [{ pc: c.pc - 1, win: new PlateauWindow(c.window) }] : []));
+  const needsEnd = rule.criteria.some((c) => c.kind === 'golden-end');
+  const inputs: EndpointInputs = { property: null, mbsd: null, slopes: plateaus.map(() => null), goldenEndDistance: null, eta: null };
+  const events: DomainEvent[] = [];
+  const A = b.scores.length;
+  for (let k = 0; k < b.rows.length; k++) {
+    inputs.property = b.predicted ? b.predicted[k]! : null;
+    inputs.mbsd = mbsd ? mbsd.push(b.rows[k]!) : null;
+    for (let i = 0; i < plateaus.length; i++) inputs.slopes[i] = plateaus[i]!.win.push(b.elapsedMin[k]!, b.scores[plateaus[i]!.pc]![k]!);
+    if (needsEnd && endRegion) {
+      let d = 0;
+      for (let a = 0; a < A; a++) {
+        const sd = endRegion.sd[a]!;
+        const z = sd > 0 ? (b.scores[a]![k]! - endRegion.mean[a]!) / sd : 0;
+        d += z * z;
+      }
+      inputs.goldenEndDistance = d;
+    }
+    events.length = 0;
+    const st = tracker.update(k, b.elapsedMin[k]!, inputs, events);
+    if (st.state === 'done' || st.state === 'signalled') return k;
+  }
+  return null;
+}
+
+export function checkEndpointRule(spec: EndpointRuleSpec, batches: CheckBatch[], endValues: EndValues, opts: { A: number; confidence: number; property: PropertyContext | null }): EndpointCheck {
+  const rows: EndpointCheckRow[] = batches.map((b, bi) => {
+    const { criteria, endRegion } = resolveCriteria(spec, endValues, { ...opts, exclude: bi });
+    const rule: ResolvedEndpointRule = { criteria, combine: spec.combine, confirm: spec.confirm, nearingMin: spec.nearingMin };
+    const k = replay(rule, b, endRegion);
+    const e = b.endpoint;
+    const firedIndex = k === null ? null : b.kept[k]!;
+    const firedMin = k === null ? null : b.elapsedMin[k]!;
+    const intervals = e && firedIndex !== null ? firedIndex - e.index : null;
+    const minutes = e && firedMin !== null ? firedMin - e.elapsedMin : null;
+    const verdict: EndpointCheckRow['verdict'] = !e ? 'no known endpoint' : intervals === null ? 'not reached' : intervals < 0 ? 'early' : intervals === 0 ? 'on time' : 'late';
+    return {
+      batch: b.id,
+      knownIndex: e ? e.index : null,
+      knownMin: e ? e.elapsedMin : null,
+      knownSource: e ? e.source : null,
+      bracketMin: e?.bracket ? [e.bracket.fromMin, e.bracket.toMin] : null,
+      firedIndex,
+      firedMin,
+      intervals,
+      minutes,
+      propertyAtFire: k !== null && b.predicted ? b.predicted[k]! : null,
+      verdict,
+    };
+  });
+  const early = rows.filter((r) => r.verdict === 'early');
+  return {
+    method: ENDPOINT_CHECK_METHOD,
+    rows,
+    early: early.length,
+    earlyMaxIntervals: early.reduce((m, r) => Math.max(m, -r.intervals!), 0),
+    earlyMaxMinutes: early.reduce((m, r) => Math.max(m, -r.minutes!), 0),
+    late: rows.filter((r) => r.verdict === 'late').length,
+    onTime: rows.filter((r) => r.verdict === 'on time').length,
+    notReached: rows.filter((r) => r.verdict === 'not reached').length,
+    noEndpoint: rows.filter((r) => r.verdict === 'no known endpoint').length,
+    medianIntervals: median(rows.filter((r) => r.intervals !== null).map((r) => r.intervals!)),
+  };
+}
+
+/** One sentence naming the early batches and by how much (for the approval refusal and the report). */
+export function earlyBatchesText(c: EndpointCheck): string {
+  const early = c.rows.filter((r) => r.verdict === 'early');
+  if (early.length === 0) return 'the rule reached done before the known endpoint on no reference batch';
+  const fmt = (v: number) => v.toFixed(1);
+  return `the rule reached done before the known endpoint on ${early.length} of ${c.rows.length} reference batches: ${early
+    .map((r) => `"${r.batch}" ${-r.intervals!} interval${r.intervals === -1 ? '' : 's'} (${fmt(-r.minutes!)} min) early`)
+    .join(', ')}`;
+}

@@ -1,0 +1,89 @@
+/**
+ * The endpoint rule replayed leave-one-batch-out at build (core/model/endpoint-check.ts): held
+ * against hand-worked replays, and against the live batch monitor of a model built without the
+ * batch — with centring-only preprocessing, refitting the chains per batch changes nothing (PLS
+ * centres again; the moving-block SD ignores a constant per wavelength), so the two routes must
+ * call done at the same spectrum.
+ */
+import { describe, expect, it } from 'vitest';
+import { checkEndpointRule, earlyBatchesText, type CheckBatch } from '../../core/model/endpoint-check.ts';
+import { endValuesOf } from '../../core/model/endpoint-calibration.ts';
+import { validateEndpointRuleSpec } from '../../core/endpoint/spec.ts';
+import { buildMonitoringModel, parseMonitoringModel, serializeMonitoringModel, type ReferenceBatch } from '../../core/model/monitoring-model.ts';
+import { createBatchMonitor } from '../../core/monitor/batch-monitor.ts';
+import { simulateReferenceSet } from '../../simulators/batch.ts';
+
+function handBatch(id: string, predicted: number[], endIndex: number | null): CheckBatch {
+  const n = predicted.length;
+  return {
+    id, rows: Array.from({ length: n }, () => new Float64Array(2)), elapsedMin: Float64Array.from({ length: n }, (_, i) => i * 0.5), scores: [new Float64Array(n)],
+    endIndex, kept: Array.from({ length: n }, (_, i) => i), predicted,
+    endpoint: endIndex === null ? null : { batch: id, index: endIndex, elapsedMin: endIndex * 0.5, source: 'lab', detail: 'test', bracket: { fromIndex: endIndex - 1, toIndex: endIndex, fromMin: (endIndex - 1) * 0.5, toMin: endIndex * 0.5 } },
+  };
+}
+
+describe('checkEndpointRule on hand-worked batches', () => {
+  // moisture ≤ 2 − 0.1, confirmed over 2 spectra: done at the 2nd consecutive spectrum at or below 1.9
+  const spec = validateEndpointRuleSpec({ criteria: [{ kind: 'property', target: 2, margin: 0.1 }], combine: 'all', confirm: 2, nearingMin: 5 });
+  const property = { name: 'moisture', unit: '% w/w', target: 2, direction: 'below' as const, rmsecv: null };
+  const batches = [
+    handBatch('early', [5, 4, 1.8, 1.85, 1.7, 1.6, 1.5], 5), // done at 3 (1.8, 1.85) → 2 intervals early
+    handBatch('late', [5, 4, 3, 2.5, 1.95, 1.8, 1.8, 1.7], 4), // done at 6 → 2 late
+    handBatch('on-time', [5, 1.85, 2.1, 1.9, 1.88, 1.5], 4), // 1.85 then 2.1 breaks it; done at 4
+    handBatch('never', [5, 4, 3, 2.5, 2.2], 3),
+    handBatch('unknown', [5, 1.5, 1.5], null),
+  ];
+  const ev = endValuesOf(spec, batches, batches.map((b) => b.id));
+  const c = checkEndpointRule(spec, batches, ev, { A: 1, confidence: 0.99, property });
+  it('finds where each batch reaches done and judges it against the known endpoint', () => {
+    expect(c.rows.map((r) => [r.batch, r.firedIndex, r.intervals, r.verdict])).toEqual([
+      ['early', 3, -2, 'early'],
+      ['late', 6, 2, 'late'],
+      ['on-time', 4, 0, 'on time'],
+      ['never', null, null, 'not reached'],
+      ['unknown', 2, null, 'no known endpoint'],
+    ]);
+    expect(c.rows[0]).toMatchObject({ firedMin: 1.5, knownMin: 2.5, minutes: -1, propertyAtFire: 1.85, bracketMin: [2, 2.5], knownSource: 'lab' });
+    expect(c).toMatchObject({ early: 1, earlyMaxIntervals: 2, earlyMaxMinutes: 1, late: 1, onTime: 1, notReached: 1, noEndpoint: 1, medianIntervals: 0 });
+    expect(earlyBatchesText(c)).toBe('the rule reached done before the known endpoint on 1 of 5 reference batches: "early" 2 intervals (1.0 min) early');
+    expect(c.method).toMatch(/^leave-one-batch-out replay through the endpoint tracker/);
+  });
+});
+
+describe('the leave-one-batch-out check agrees with the live monitor of a model built without the batch', () => {
+  const sim = simulateReferenceSet('dryer', 5, 303, { intervalS: 30 });
+  // lab values every 6th spectrum (offset per batch), as a site has them
+  const refs: ReferenceBatch[] = sim.map((b, bi) => ({ id: b.id, axis: b.axis, times: b.times, spectra: b.spectra, property: Array.from(b.truth.property.values, (v, i) => ((i + bi) % 6 === 0 ? v : NaN)) }));
+  const settings = {
+    name: 'lobo', product: 'p', author: 't', createdAt: 0, components: 3, chain: [{ step: 'scale', center: true, scaling: 'none' }],
+    property: { name: 'moisture', unit: '% w/w', components: 3, target: 2, direction: 'below' },
+    endpoint: { criteria: [{ kind: 'property', margin: 0.05 }, { kind: 'mbsd', block: 4, threshold: 'auto' }], combine: 'any', confirm: 2, nearingMin: 5 },
+  };
+  const model = buildMonitoringModel(refs, settings);
+  const check = model.meta.endpointCheck!;
+  it('stores one row per reference batch with the known endpoint from the lab values, and round-trips in the file', () => {
+    expect(check.rows.map((r) => r.batch)).toEqual(refs.map((b) => b.id));
+    check.rows.forEach((r, bi) => {
+      expect(r.knownIndex).toBe(model.meta.referenceEndpoints![bi]!.index);
+      expect(r.knownSource).toBe('lab');
+    });
+    expect(parseMonitoringModel(serializeMonitoringModel(model)).meta.endpointCheck).toEqual(check);
+    // every batch reaches done somewhere near its endpoint (the comparison below is not about nulls)
+    for (const r of check.rows) {
+      expect(r.firedIndex).not.toBeNull();
+      expect(Math.abs(r.intervals!)).toBeLessThan(40);
+    }
+  });
+  it.each(refs.map((b, bi) => [b.id, bi] as const))('batch %s: same spectrum as the monitor of a model without it', (_id, bi) => {
+    const others = refs.filter((_, j) => j !== bi);
+    const m = buildMonitoringModel(others, settings);
+    const b = refs[bi]!;
+    const mon = createBatchMonitor(m, b.times[0]!);
+    let done: number | null = null;
+    for (let i = 0; i < b.spectra.length && done === null; i++) {
+      const r = mon.push(i, b.times[i]!, b.spectra[i]!);
+      if (r.endpoint.state === 'done') done = i;
+    }
+    expect(check.rows[bi]!.firedIndex).toBe(done);
+  }, 60_000);
+});
