@@ -303,6 +303,8 @@ export interface ModelSignature {
   /** The sha256 of the model file the signature is bound to. */
   modelSha256: string;
   reason: string;
+  /** An override signed with it (e.g. approving an endpoint rule that reached done early on reference batches), or null. */
+  override: string | null;
   signedAt: number;
   /** seq of the signature's audit trail record. */
   auditSeq: number;
@@ -484,6 +486,13 @@ export interface EvaluationResult {
 
 export interface ApproveModelRequest {
   reason: string;
+  password?: string;
+  /**
+   * Required when the version's endpoint check shows the rule reaching done before the known
+   * endpoint on a reference batch (422 without it, naming the batches); refused when there is
+   * nothing to override. Signed with the approval and kept in the signature and the audit record.
+   */
+  earlyEndpointOverride?: string;
 }
 
 export interface RetireModelRequest {

@@ -10,6 +10,8 @@ import type { SqliteStorage } from '../storage/sqlite-storage.ts';
 import { modelVersionSummary } from './views.ts';
 import { idSchema } from './routes-plant.ts';
 import { recordAudit, userOf } from './audit-helper.ts';
+import { parseMonitoringModel } from '../../core/model/monitoring-model.ts';
+import { earlyBatchesText } from '../../core/model/endpoint-check.ts';
 
 const versionParams = z.object({ version: z.string().min(1).max(128) });
 
@@ -77,16 +79,29 @@ export function addModelRoutes(t: RouteTable, ctx: ServerContext) {
     handler: async ({ params, body, req }) => guard(async () => evaluateVersion(ctx, (await load(params.version)).id, body.batches, userOf(req))),
   });
   const signBody = z.object({ reason: z.string().trim().min(1, 'give a reason').max(2000), password: z.string().max(1024).optional() }).strict();
+  const approveBody = signBody.extend({ earlyEndpointOverride: z.string().trim().min(1, 'give the reason for the override').max(2000).optional() }).strict();
   t.add({
-    method: 'post', path: '/models/versions/:version/approve', summary: 'Approve a draft version (electronic signature: password and reason)', role: 'model-owner',
-    response: 'ModelVersionSummary', params: versionParams, body: signBody,
+    method: 'post', path: '/models/versions/:version/approve',
+    summary: 'Approve a draft version (electronic signature: password and reason). When the leave-one-batch-out endpoint check shows the rule reaching done early on a reference batch, approval needs earlyEndpointOverride (a reason, signed with the approval); without it 422',
+    role: 'model-owner',
+    response: 'ModelVersionSummary', params: versionParams, body: approveBody,
     handler: async ({ params, body, req }) =>
       guard(async () => {
         const m = await load(params.version);
         if (m.status !== 'draft') throw conflict(`model version ${m.name} v${m.version} is ${m.status}; only a draft can be approved`);
         const by = userOf(req);
+        // The endpoint check stored in the (hashed) model: an early call on a reference batch needs a signed override.
+        const check = parseMonitoringModel(m.body).meta.endpointCheck;
+        const early = check !== undefined && check.early > 0;
+        const override = body.earlyEndpointOverride;
+        if (early && override === undefined) {
+          throw new HttpProblem(422, 'Endpoint rule fires early', `approval of ${m.name} v${m.version} refused: ${earlyBatchesText(check!)}. Change the rule and rebuild, or approve with earlyEndpointOverride giving your reason (it is signed with the approval and kept in the audit trail)`, 'early-endpoint', [{ path: 'earlyEndpointOverride', message: 'required: the endpoint rule reached done early on reference batches' }]);
+        }
+        if (!early && override !== undefined) {
+          throw new HttpProblem(422, 'Nothing to override', `earlyEndpointOverride given, but ${check ? 'the endpoint check shows no reference batch called early' : `model version ${m.name} v${m.version} carries no endpoint check`}; approve without it`, 'nothing-to-override', [{ path: 'earlyEndpointOverride', message: 'not needed' }]);
+        }
         if (ctx.auth && req.user) {
-          await ctx.auth.sign({ user: req.user, password: body.password ?? '', meaning: 'approved', objectType: 'model', objectId: m.id, objectHash: m.sha256, reason: body.reason, address: req.ip }, () => {
+          await ctx.auth.sign({ user: req.user, password: body.password ?? '', meaning: 'approved', objectType: 'model', objectId: m.id, objectHash: m.sha256, reason: body.reason, ...(override !== undefined ? { override } : {}), address: req.ip }, () => {
             // Synchronous inside the signature's transaction: if the version is no longer a draft, the throw rolls the signature back too.
             try {
               (ctx.storage as unknown as SqliteStorage).approveModelVersionSync(m.id, by, ctx.now(), body.reason);
@@ -96,7 +111,7 @@ export function addModelRoutes(t: RouteTable, ctx: ServerContext) {
           });
         } else {
           await ctx.storage.approveModelVersion(m.id, by, ctx.now(), body.reason);
-          await recordAudit(ctx, { user: by, action: 'model.approve', object: `model:${m.name}@${m.version}`, after: { id: m.id, sha256: m.sha256 }, reason: body.reason });
+          await recordAudit(ctx, { user: by, action: 'model.approve', object: `model:${m.name}@${m.version}`, after: { id: m.id, sha256: m.sha256, ...(override !== undefined ? { override } : {}) }, reason: body.reason });
         }
         return modelVersionSummary(ctx.storage, (await ctx.storage.getModelVersion(m.id))!);
       }),

@@ -360,6 +360,7 @@ export class AuthService implements Auth {
     if (!(SIGNATURE_MEANINGS as readonly string[]).includes(req.meaning)) throw new SignatureError(`unknown signature meaning ${String(req.meaning)}`, 400);
     if (typeof req.reason !== 'string' || req.reason.trim().length === 0) throw new SignatureError('a signature needs a reason', 400);
     if (req.reason.length > 2000) throw new SignatureError('reason longer than 2000 characters', 400);
+    if (req.override !== undefined && (typeof req.override !== 'string' || req.override.trim().length === 0 || req.override.length > 2000)) throw new SignatureError('an override needs its reason (1 to 2000 characters)', 400);
     if (typeof req.objectHash !== 'string' || !/^[0-9a-f]{64}$/i.test(req.objectHash))
       throw new SignatureError('the signed object needs its SHA-256 (64 hex digits)', 400);
     if (typeof req.password !== 'string' || req.password.length === 0)
@@ -391,7 +392,7 @@ export class AuthService implements Auth {
         user: user.name,
         action: `signature.${req.meaning}`,
         object,
-        after: { meaning: req.meaning, objectHash: req.objectHash, signer: user.fullName, role: user.role },
+        after: { meaning: req.meaning, objectHash: req.objectHash, signer: user.fullName, role: user.role, ...(req.override !== undefined ? { override: req.override } : {}) },
         reason: req.reason,
       });
       const signature = this.signatures.insert({
@@ -404,6 +405,7 @@ export class AuthService implements Auth {
         objectId: req.objectId,
         objectHash: req.objectHash,
         reason: req.reason,
+        override: req.override ?? null,
         signedAt: rec.at,
         auditSeq: rec.seq,
       });

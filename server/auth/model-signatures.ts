@@ -29,6 +29,7 @@ export function modelSignatures(db: unknown, versionId: string): ModelSignature[
     meaning: s.meaning,
     modelSha256: s.objectHash,
     reason: s.reason,
+    override: s.override,
     signedAt: Date.parse(s.signedAt),
     auditSeq: s.auditSeq,
   }));

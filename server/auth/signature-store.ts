@@ -13,6 +13,7 @@ interface Row {
   object_id: string;
   object_hash: string;
   reason: string;
+  override: string | null;
   signed_at: string;
   audit_seq: number;
 }
@@ -28,6 +29,7 @@ function view(r: Row): SignatureRecord {
     objectId: r.object_id,
     objectHash: r.object_hash,
     reason: r.reason,
+    override: r.override ?? null,
     signedAt: r.signed_at,
     auditSeq: r.audit_seq,
   };
@@ -39,9 +41,9 @@ export class SignatureStore {
   insert(s: Omit<SignatureRecord, 'id'> & { userId: number }): SignatureRecord {
     const info = this.db
       .prepare(
-        'INSERT INTO auth_signatures (user_id, user_name, full_name, role, meaning, object_type, object_id, object_hash, reason, signed_at, audit_seq) VALUES (?,?,?,?,?,?,?,?,?,?,?)',
+        'INSERT INTO auth_signatures (user_id, user_name, full_name, role, meaning, object_type, object_id, object_hash, reason, override, signed_at, audit_seq) VALUES (?,?,?,?,?,?,?,?,?,?,?,?)',
       )
-      .run(s.userId, s.userName, s.fullName, s.role, s.meaning, s.objectType, s.objectId, s.objectHash, s.reason, s.signedAt, s.auditSeq);
+      .run(s.userId, s.userName, s.fullName, s.role, s.meaning, s.objectType, s.objectId, s.objectHash, s.reason, s.override, s.signedAt, s.auditSeq);
     return view(this.db.prepare('SELECT * FROM auth_signatures WHERE id = ?').get(Number(info.lastInsertRowid)) as Row);
   }
 

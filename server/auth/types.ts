@@ -64,6 +64,12 @@ export interface SignatureRequest {
   objectHash: string;
   /** Why; required, not blank. */
   reason: string;
+  /**
+   * An override the signer states and signs with this signature (e.g. approving a model version
+   * whose endpoint rule reached done early on reference batches): stored in the signature record
+   * and the audit entry beside the reason. Not blank when given.
+   */
+  override?: string;
   /** Client address, for throttling (req.ip). */
   address?: string;
 }
@@ -78,6 +84,8 @@ export interface SignatureRecord {
   objectId: string;
   objectHash: string;
   reason: string;
+  /** The override signed with it (SignatureRequest.override), or null. */
+  override: string | null;
   /** UTC ISO time. */
   signedAt: string;
   /** seq of the audit record written with the signature. */

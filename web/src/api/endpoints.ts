@@ -39,7 +39,8 @@ export const api = {
   references: (v: string) => get<ModelReferencesView>(`/api/models/versions/${enc(v)}/references`),
   build: (req: BuildModelRequest) => post<ModelVersionSummary>('/api/models/build', req),
   evaluate: (v: string, batches: string[]) => post<EvaluationResult>(`/api/models/versions/${enc(v)}/evaluate`, { batches }),
-  approve: (v: string, reason: string, password?: string) => post<ModelVersionSummary>(`/api/models/versions/${enc(v)}/approve`, { reason, password }),
+  approve: (v: string, reason: string, password?: string, earlyEndpointOverride?: string) =>
+    post<ModelVersionSummary>(`/api/models/versions/${enc(v)}/approve`, { reason, password, ...(earlyEndpointOverride !== undefined ? { earlyEndpointOverride } : {}) }),
   deployments: (f: { unit?: string; active?: boolean } = {}) => get<Page<Deployment>>(`/api/deployments${query(f)}`),
   deploy: (unit: string, versionId: string, reason?: string) => post<Deployment>('/api/deployments', { unit, versionId, reason }),
   alarms: (f: { unit?: string; batch?: string; state?: string; active?: boolean; limit?: number; offset?: number } = {}) =>

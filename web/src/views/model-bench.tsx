@@ -668,7 +668,11 @@ function Evaluation({ d, onDone }: { d: ModelVersionDetail; onDone: () => void }
 
 function Approve({ d, me, onDone }: { d: ModelVersionDetail; me: Me | null; onDone: () => void }) {
   const [reason, setReason] = useState('');
+  const [override, setOverride] = useState('');
   const [password, setPassword] = useState('');
+  // The leave-one-batch-out endpoint check: a rule that reached done early on a reference batch
+  // needs a signed override reason.
+  const early = (d.endpointCheck?.rows ?? []).filter((r) => r.verdict === 'early');
   const [error, setError] = useState<string | null>(null);
   const [busy, setBusy] = useState(false);
   if (d.status !== 'draft')
@@ -689,7 +693,7 @@ function Approve({ d, me, onDone }: { d: ModelVersionDetail; me: Me | null; onDo
         setBusy(true);
         setError(null);
         try {
-          await api.approve(d.versionId, reason, password || undefined);
+          await api.approve(d.versionId, reason, password || undefined, early.length ? override : undefined);
           onDone();
         } catch (err) {
           setError(errorText(err));
@@ -706,10 +710,24 @@ function Approve({ d, me, onDone }: { d: ModelVersionDetail; me: Me | null; onDo
         Reason (required){' '}
         <textarea rows={2} required value={reason} onInput={(e) => setReason((e.target as HTMLTextAreaElement).value)} placeholder="e.g. evaluated on 4 held-out good and 2 faulty batches; no false alarms" />
       </label>
+      {early.length > 0 && (
+        <div class="early-endpoint" data-testid="early-endpoint">
+          <p class="small">
+            <Badge tone="warn">early endpoint</Badge> Replayed leave-one-batch-out, the endpoint rule reached done before the known endpoint on {early.length} of{' '}
+            {d.endpointCheck!.rows.length} reference batches:{' '}
+            {early.map((r) => `${r.batch} ${-r.intervals!} interval${r.intervals === -1 ? '' : 's'} (${fixed(-r.minutes!, 1)} min) early`).join('; ')}. An endpoint signal may stop the unit:
+            approving this rule needs your reason, signed with the approval.
+          </p>
+          <label class="block">
+            Override reason (required){' '}
+            <textarea rows={2} required value={override} onInput={(e) => setOverride((e.target as HTMLTextAreaElement).value)} placeholder="why this rule may be used although it fires early on reference batches" />
+          </label>
+        </div>
+      )}
       <label class="block">
         Password (re-enter to sign) <input type="password" autocomplete="current-password" value={password} onInput={(e) => setPassword((e.target as HTMLInputElement).value)} />
       </label>
-      <button class="btn primary" type="submit" disabled={busy || !reason.trim()}>
+      <button class="btn primary" type="submit" disabled={busy || !reason.trim() || (early.length > 0 && !override.trim())}>
         Approve
       </button>
       {error && <ErrorBox message={error} />}
