@@ -122,10 +122,13 @@ export async function importBatches(storage: Storage, req: ImportRequest, now: n
     if (await storage.getBatch(b.id)) throw new ImportError(b.source.file, b.source.firstLine, `batch ${b.id} is already in the record; it was not imported again`);
   }
   if (!(await storage.getAnalyzer(IMPORT_ANALYZER))) {
-    await storage.createAnalyzer({ id: IMPORT_ANALYZER, name: 'historical batches imported from files', createdAt: now });
+    try {
+      await storage.createAnalyzer({ id: IMPORT_ANALYZER, name: 'historical batches imported from files', createdAt: now });
+    } catch (e) {
+      // Another import created it meanwhile.
+      if (!(await storage.getAnalyzer(IMPORT_ANALYZER))) throw e;
+    }
   }
-  const w = emptyIngestWrite();
-  let seq = 0;
   const summary: ImportSummary = {
     importId: now,
     unit: req.unit,
@@ -134,17 +137,38 @@ export async function importBatches(storage: Storage, req: ImportRequest, now: n
     axis: { points: batches[0]!.axis.length, from: batches[0]!.axis[0]!, to: batches[0]!.axis[batches[0]!.axis.length - 1]! },
   };
   for (const b of batches) {
+    const n = b.spectra.length;
+    summary.batches.push({ id: b.id, spectra: n, file: b.source.file, from: b.times[0]!, to: b.times[n - 1]!, resampled: resampled.has(b.id) });
+  }
+  // The import's entries are numbered (file-import, boot, seq) like an analyzer's. Two imports that
+  // start in the same millisecond (two command-line imports at once, two uploads) would share the
+  // boot and clash on seq: the transaction then stores nothing, and the import is tried again with
+  // the next boot number.
+  for (let attempt = 0; ; attempt++) {
+    try {
+      await storage.commitIngest(importWrite(batches, req, now + attempt, now));
+      summary.importId = now + attempt;
+      return summary;
+    } catch (e) {
+      if (attempt < 50 && /UNIQUE constraint failed: spectra\.analyzer, spectra\.boot, spectra\.seq/.test((e as Error).message)) continue;
+      throw e;
+    }
+  }
+}
+
+function importWrite(batches: ImportedBatch[], req: ImportRequest, boot: number, now: number) {
+  const w = emptyIngestWrite();
+  let seq = 0;
+  for (const b of batches) {
     const startSeq = seq++;
     const n = b.spectra.length;
-    w.batchStarts.push({ id: b.id, unit: req.unit, analyzer: IMPORT_ANALYZER, boot: now, product: b.product ?? req.product, startSeq, startT: b.times[0]!, axis: b.axis, modelVersion: null, createdAt: now });
+    w.batchStarts.push({ id: b.id, unit: req.unit, analyzer: IMPORT_ANALYZER, boot, product: b.product ?? req.product, startSeq, startT: b.times[0]!, axis: b.axis, modelVersion: null, createdAt: now });
     b.spectra.forEach((values, idx) => {
-      w.spectra.push({ batch: b.id, idx, seq: seq++, t: b.times[idx]!, values, analyzer: IMPORT_ANALYZER, boot: now, receivedAt: now });
+      w.spectra.push({ batch: b.id, idx, seq: seq++, t: b.times[idx]!, values, analyzer: IMPORT_ANALYZER, boot, receivedAt: now });
     });
     const endSeq = seq++;
     w.batchProgress.push({ batch: b.id, spectrumCount: n, lastSeq: endSeq - 1, lastT: b.times[n - 1]!, endpointState: null, endpointAt: null });
     w.batchEnds.push({ batch: b.id, endSeq, endT: b.times[n - 1]!, endReason: `imported from ${b.source.file} by ${req.user}` });
-    summary.batches.push({ id: b.id, spectra: n, file: b.source.file, from: b.times[0]!, to: b.times[n - 1]!, resampled: resampled.has(b.id) });
   }
-  await storage.commitIngest(w);
-  return summary;
+  return w;
 }
