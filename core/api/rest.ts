@@ -381,8 +381,11 @@ export interface PropertyModelView {
   /** Range of the lab values used (the calibration range), and the range the calibration was restricted to (null: none). */
   calibrationRange: [number, number];
   restrictedTo: [number, number] | null;
-  /** Limits of the prediction's X-space T² and Q beyond which it is flagged as outside its calibration. */
-  extrapolation: { confidence: number; t2Limit: number; qLimit: number; t2Method: string; qMethod: string };
+  /**
+   * The flag "prediction outside its calibration": limits of the prediction's X-space T² and Q
+   * (beyond either: flagged), their overall confidence and how they were calibrated.
+   */
+  extrapolation: { confidence: number; t2Limit: number; qLimit: number; t2Method: string; qMethod: string; method: string };
 }
 
 export interface ReferenceEndpointView {

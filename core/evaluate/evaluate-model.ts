@@ -21,6 +21,11 @@
  *   0.033, so the interval says what the count can and cannot show.
  * - eta_error: |estimated − true time to endpoint| in minutes over the last quarter of the span
  *   from batch start to the true endpoint, on good batches.
+ * - prediction_extrapolating_rate: on good batches, the fraction of spectra whose property
+ *   prediction is flagged as outside its calibration (X-space T² or Q of the PLS beyond its limit);
+ *   calibrated at a stated confidence, it should be near 1 − confidence: compare with the same
+ *   binomial tolerance as the false-alarm point rate (spectra of one batch are not independent,
+ *   so read it as a guide, not a test of exact size).
  */
 import type { MonitoringModel } from '../model/monitoring-model.ts';
 import { createBatchMonitor } from '../monitor/batch-monitor.ts';
@@ -70,6 +75,9 @@ export interface BatchOutcome {
   etaErrors: number[];
   maxT2: number;
   maxQ: number;
+  /** Spectra with a property prediction, and of those flagged as extrapolating (outside the calibration). */
+  predictions: number;
+  extrapolating: number;
 }
 
 export interface GroupFigures {
@@ -101,6 +109,16 @@ export interface EvaluationFigures {
   endpoint_late_max: number | null;
   endpoint_missed: number;
   eta_error_median: number | null;
+  /**
+   * On good batches, the fraction of spectra whose property prediction is flagged as outside its
+   * calibration (extrapolating), with the flag's confidence and the binomial bound
+   * (1 − confidence) + 3·√(α(1−α)/N); null without a property model.
+   */
+  prediction_extrapolating_rate: number | null;
+  prediction_extrapolating_confidence: number | null;
+  prediction_extrapolating_rate_bound: number | null;
+  /** The largest per-batch rate among the good batches. */
+  prediction_extrapolating_batch_max: number | null;
   batches: BatchOutcome[];
 }
 
@@ -134,6 +152,7 @@ export function evaluateBatch(model: MonitoringModel, b: EvalBatch, opts: Evalua
   const out: BatchOutcome = {
     id: b.id, group: b.group, spectra: 0, pointsOutsideT2: 0, pointsOutsideQ: 0, suspects: 0, alarms: 0, firstAlarm: null, detection: null,
     falseAlarmsBeforeOnset: 0, endpointIndex: b.endpointIndex, detectedEndpointIndex: null, endpointError: null, propertyAtCall: null, etaErrors: [], maxT2: 0, maxQ: 0,
+    predictions: 0, extrapolating: 0,
   };
   const onset = b.faultOnsetIndex;
   const etaFrom = b.endpointIndex !== null ? Math.floor(0.75 * b.endpointIndex) : Infinity;
@@ -164,6 +183,10 @@ export function evaluateBatch(model: MonitoringModel, b: EvalBatch, opts: Evalua
     if (r.t2 > lim.t2) out.pointsOutsideT2++;
     if (r.q > lim.q) out.pointsOutsideQ++;
     if (r.suspect) out.suspects++;
+    if (r.prediction) {
+      out.predictions++;
+      if (r.prediction.extrapolating) out.extrapolating++;
+    }
     if (r.t2 > out.maxT2) out.maxT2 = r.t2;
     if (r.q > out.maxQ) out.maxQ = r.q;
     for (const c of r.conditionChanges) if (c.active) noteAlarm(i, c.kind, c.key, t);
@@ -210,6 +233,9 @@ export function evaluateModel(model: MonitoringModel, batches: EvalBatch[], opts
   const errsMin = outcomes.flatMap((o, i) => (o.group === 'good' && o.endpointError !== null ? [(o.endpointError * batches[i].intervalS) / 60] : []));
   const atCall = good.flatMap((o) => (o.propertyAtCall !== null && Number.isFinite(o.propertyAtCall) ? [o.propertyAtCall] : []));
   const goodAlarmed = good.filter((o) => o.alarms > 0).length;
+  const nPred = good.reduce((s, o) => s + o.predictions, 0);
+  const xConf = model.pls ? model.pls.limits.confidence : null;
+  const xAlpha = xConf === null ? NaN : 1 - xConf;
   return {
     modelId: model.id,
     confidence: conf,
@@ -230,6 +256,10 @@ export function evaluateModel(model: MonitoringModel, batches: EvalBatch[], opts
     endpoint_late_max: errs.length ? Math.max(...errs) : null,
     endpoint_missed: good.filter((o) => o.endpointIndex !== null && o.detectedEndpointIndex === null).length,
     eta_error_median: median(eta),
+    prediction_extrapolating_rate: nPred ? good.reduce((s, o) => s + o.extrapolating, 0) / nPred : null,
+    prediction_extrapolating_confidence: xConf,
+    prediction_extrapolating_rate_bound: nPred && xConf !== null ? xAlpha + 3 * Math.sqrt((xAlpha * (1 - xAlpha)) / nPred) : null,
+    prediction_extrapolating_batch_max: nPred ? Math.max(...good.filter((o) => o.predictions > 0).map((o) => o.extrapolating / o.predictions)) : null,
     batches: outcomes,
   };
 }
@@ -252,6 +282,7 @@ export function evaluationMarkdown(f: EvaluationFigures): string {
     `| endpoint_missed (batches) | ${f.endpoint_missed} | reported |`,
     `| true property at the call (median, min–max) | ${f.endpoint_property_at_call ? `${n(f.endpoint_property_at_call.median, 3)} (${n(f.endpoint_property_at_call.min, 3)}–${n(f.endpoint_property_at_call.max, 3)})` : '—'} | reported |`,
     `| eta_error_median (min, last quarter) | ${n(f.eta_error_median, 2)} | reported |`,
+    `| prediction_extrapolating_rate | ${n(f.prediction_extrapolating_rate, 4)} (largest batch ${n(f.prediction_extrapolating_batch_max, 3)}) | ${f.prediction_extrapolating_rate_bound === null ? 'reported' : `≤ ${n(f.prediction_extrapolating_rate_bound, 4)} (flag at ${n((f.prediction_extrapolating_confidence ?? NaN) * 100, 1)} %)`} |`,
     '',
     '| fault | batches | detected | detection_delay_median (spectra) | max |',
     '| --- | --- | --- | --- | --- |',

@@ -30,6 +30,7 @@ export const buildSettingsSchema = z.object({
       direction: z.enum(['below', 'above']).optional(),
       chain: chainSpecSchema.optional(),
       range: z.tuple([z.number().finite(), z.number().finite()]).optional(),
+      extrapolationConfidence: z.number().gt(0.5).lt(1).optional(),
     })
     .optional(),
   excludeSpectra: z.array(z.object({ batch: z.string(), index: z.number().int().min(0) })).optional(),
@@ -82,8 +83,13 @@ export interface BuildSettings {
    * batch otherwise sits inside its envelope. Default off (models built before it keep their meaning).
    */
   alarms: { onDelay: number; onWindow: number; offDelay: number; deadband: number; limits?: 'global' | 'local'; startupMin?: number; confidence?: number; pace?: boolean };
-  /** chain: the property model's own preprocessing (default: the model's chain); range: calibrate on reference spectra with the property in [lo, hi] only. */
-  property?: { name: string; unit: string; components: number | 'auto'; target?: number; direction?: 'below' | 'above'; chain?: ChainSpec; range?: [number, number] };
+  /**
+   * chain: the property model's own preprocessing (default: the model's chain); range: calibrate on
+   * lab values in [lo, hi] only; extrapolationConfidence: confidence of the flag "prediction outside
+   * its calibration" (default: the model's confidence), calibrated over the whole batch range so
+   * that it fires on about 1 − this of the spectra of good batches.
+   */
+  property?: { name: string; unit: string; components: number | 'auto'; target?: number; direction?: 'below' | 'above'; chain?: ChainSpec; range?: [number, number]; extrapolationConfidence?: number };
   excludeSpectra?: { batch: string; index: number }[];
   /**
    * Endpoints of reference batches marked by the model owner (core/model/reference-endpoints.ts):

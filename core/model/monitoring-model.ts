@@ -194,7 +194,11 @@ export function buildMonitoringModel(batches: ReferenceBatch[], settingsInput: u
     batches.forEach((b, bi) => {
       for (const i of kept[bi]) y[r++] = b.property ? b.property[i] : NaN;
     });
-    const fit = fitPropertyModel({ axis: batches[0].axis, rows, y, batchOfRow: origin.map((o) => o.batch), batchIds: batches.map((b) => b.id) }, settings.property, settings.chain);
+    const fit = fitPropertyModel(
+      { axis: batches[0].axis, rows, y, batchOfRow: origin.map((o) => o.batch), batchIds: batches.map((b) => b.id) },
+      { ...settings.property, extrapolationConfidence: settings.property.extrapolationConfidence ?? conf },
+      settings.chain,
+    );
     pls = fit.model;
     propertyFit = fit;
     const ev = fit.model.evidence!;

@@ -19,6 +19,9 @@ import { fitChain, loadChain, type ChainSpec, type FittedChain } from '../prepro
 import { kernelCrossValidatePls1, type KernelCv } from './pls-kernel-cv.ts';
 import { oneStandardErrorRule } from './parsimony.ts';
 import { createPls1Predictor, fitPls1, loadPls1, type Pls1Model } from '../pls/index.ts';
+import { makePls1Model } from '../pls/pls-model.ts';
+import { sampleQuantile } from '../stats/sample-quantile.ts';
+import { momentLimit } from '../envelope/moment-limit.ts';
 
 export interface PropertyPredictionValue {
   y: number;
@@ -49,6 +52,11 @@ export interface PropertyEvidence {
   batchesWithoutLab: string[];
   /** Range of the lab values used. */
   labRange: [number, number];
+  /**
+   * The extrapolation flag (prediction outside its calibration): limits of the PLS X-space T² and
+   * Q calibrated over the whole batch range (absent in older files).
+   */
+  extrapolation?: { confidence: number; perStatistic: number; nSpectra: number; t2Limit: number; qLimit: number; method: string };
 }
 
 export interface PropertyModel {
@@ -85,6 +93,8 @@ export interface PropertySpec {
   components: number | 'auto';
   chain?: ChainSpec;
   range?: [number, number];
+  /** Confidence of the extrapolation flag (default 0.99): on good batches it should fire on about 1 − this of the spectra. */
+  extrapolationConfidence?: number;
 }
 
 /** Least lab values, and least batches carrying them, a property model is calibrated from. */
@@ -146,6 +156,41 @@ export interface PropertyFit {
    * (score variances of the fold's training rows) and Q (residual of the fold's loadings).
    */
   cvAll: { y: Float64Array; t2: Float64Array; q: Float64Array };
+}
+
+/** Least spectra expected beyond each limit for an empirical quantile (common practice, no published source). */
+export const MIN_BEYOND_LIMIT = 10;
+
+/**
+ * Limits of the extrapolation flag from the batch-left-out T² and Q of all reference spectra: the
+ * flag fires when T² or Q is beyond its limit, so each limit is at 1 − α/2, α = 1 − confidence
+ * (Bonferroni over the two): on batches like the reference batches the flag fires on at most
+ * about α of the spectra. Each limit is the sample quantile (Hyndman & Fan 1996 type 7) of its
+ * statistic — over a whole batch the statistics are far from F or χ² forms (early, wet spectra lie
+ * far from a calibration near the endpoint) — when at least MIN_BEYOND_LIMIT spectra are expected
+ * beyond it (N·α/2 ≥ 10); with fewer spectra the quantile is poorly determined, and g·χ²_h matched
+ * to the mean and variance of the statistic is used instead (Box 1954; Nomikos & MacGregor 1995),
+ * which the method text says.
+ */
+export function extrapolationLimits(t2: ArrayLike<number>, q: ArrayLike<number>, confidence: number): NonNullable<PropertyEvidence['extrapolation']> {
+  if (!(confidence > 0.5 && confidence < 1)) throw new RangeError(`property model: extrapolation confidence ${confidence} must lie in (0.5, 1)`);
+  const N = t2.length;
+  if (N < 2 || q.length !== N) throw new RangeError(`property model: ${N} T² and ${q.length} Q values to calibrate the extrapolation flag; at least 2 of each are needed`);
+  const per = 1 - (1 - confidence) / 2;
+  const pct = +(per * 100).toFixed(4);
+  const empirical = N * (1 - per) >= MIN_BEYOND_LIMIT;
+  const what = `over all ${N} reference spectra, each seen by the PLS calibrated without its batch (whole batch range, not only the lab rows)`;
+  const after = `T² or Q beyond its limit flags the prediction as outside its calibration, on about ${+((1 - confidence) * 100).toFixed(3)} % of the spectra of batches like the reference batches (Bonferroni over the two statistics)`;
+  return {
+    confidence,
+    perStatistic: per,
+    nSpectra: N,
+    t2Limit: empirical ? sampleQuantile(t2, per) : momentLimit(t2, per),
+    qLimit: empirical ? sampleQuantile(q, per) : momentLimit(q, per),
+    method: empirical
+      ? `T² and Q of the PLS X model: each limit is the ${pct} % sample quantile (Hyndman & Fan 1996, type 7) of the statistic ${what}; ${after}`
+      : `T² and Q of the PLS X model: each limit is g·χ²_h at ${pct} % matched to the mean and variance of the statistic ${what} (Box 1954, as Nomikos & MacGregor 1995 use it) — too few spectra for an empirical ${pct} % quantile (at least ${Math.ceil(MIN_BEYOND_LIMIT / (1 - per))} give ${MIN_BEYOND_LIMIT} beyond it); ${after}`,
+  };
 }
 
 /** Per-row prediction, T² and Q of every input row from the model that left out its batch (see PropertyFit.cvAll). */
@@ -319,9 +364,16 @@ export function fitPropertyModel(input: PropertyCalibrationInput, spec: Property
     batchesWithoutLab: without,
     labRange: [lo, hi],
   };
-  const pls = fitPls1(X, yy, { components: A, center: true });
+  const fitted = fitPls1(X, yy, { components: A, center: true });
+  const cvAll = crossValidatedRows(input, chain, cv, labBatches, fitted);
+  // The extrapolation flag calibrated over the whole batch range: limits of T² and Q from every
+  // reference spectrum (not only the lab rows), each seen by the model without its batch.
+  const xc = spec.extrapolationConfidence ?? 0.99;
+  const x = extrapolationLimits(cvAll.t2, cvAll.q, xc);
+  evidence.extrapolation = x;
+  const pls = makePls1Model({ ...fitted, limits: { confidence: xc, t2Limit: x.t2Limit, t2Method: 't2-cv-quantile', qLimit: x.qLimit, qMethod: 'q-cv-quantile' } });
   const model = wrap(spec.name, spec.unit, rmsecv, spec.range ?? null, n, evidence, chain, pls);
-  return { model, calibrationRows: keep, cv, foldBatch: labBatches, chain, cvAll: crossValidatedRows(input, chain, cv, labBatches, pls) };
+  return { model, calibrationRows: keep, cv, foldBatch: labBatches, chain, cvAll };
 }
 
 const finite = z.number().refine(Number.isFinite, { message: 'must be a finite number' });
@@ -338,6 +390,7 @@ const evidenceSchema = z.object({
   nBatches: z.number().int().min(1),
   batchesWithoutLab: z.array(z.string()),
   labRange: z.tuple([finite, finite]),
+  extrapolation: z.object({ confidence: finite, perStatistic: finite, nSpectra: z.number().int().min(1), t2Limit: finite, qLimit: finite, method: z.string() }).optional(),
 });
 
 export function loadPropertyModel(json: unknown): PropertyModel {

@@ -26,6 +26,11 @@ describe('evaluation on simulated reactor batches (evaluation targets)', () => {
     // z(0.99) = 2.326348 (NIST/SEMATECH handbook 1.3.6.7.1, normal table)
     expect(c.margin!).toBeCloseTo(2.326348 * rmsecv, 5);
   });
+  it('the extrapolation flag fires on about 1 − confidence of good spectra (within 3 binomial sd of 1 %)', () => {
+    // measured 0.0082 on these 30 batches
+    const a = 1 - f.prediction_extrapolating_confidence!;
+    expect(Math.abs(f.prediction_extrapolating_rate! - a)).toBeLessThanOrEqual(3 * Math.sqrt((a * (1 - a)) / f.good_spectra));
+  });
   it('false alarms on good batches: point rate within 1 % + binomial tolerance', () => {
     expect(f.good_batches).toBe(30);
     expect(f.false_alarm_point_rate).toBeLessThanOrEqual(f.false_alarm_point_rate_bound);

@@ -53,11 +53,24 @@ describe('evaluation on simulated dryer batches (evaluation targets)', () => {
     expect(f.endpoint_early_max!).toBeLessThanOrEqual(1);
     expect(f.endpoint_missed).toBe(0);
   });
+  it('the extrapolation flag fires on about 1 − confidence of good spectra (within 3 binomial sd of 1 %)', () => {
+    // measured 0.0098 on these 30 batches (0.59 with the limits of the lab rows alone, before
+    // the flag was calibrated over the whole batch range)
+    const a = 1 - f.prediction_extrapolating_confidence!;
+    expect(a).toBeCloseTo(0.01, 12);
+    const tol = 3 * Math.sqrt((a * (1 - a)) / f.good_spectra);
+    expect(f.prediction_extrapolating_rate_bound!).toBeCloseTo(a + tol, 12);
+    expect(Math.abs(f.prediction_extrapolating_rate! - a)).toBeLessThanOrEqual(tol);
+    // and it means something: most spectra of a wrong-material batch after onset are flagged
+    const wrong = f.batches.filter((b) => b.group === 'wrong-material');
+    expect(wrong.reduce((s, b) => s + b.extrapolating, 0) / wrong.reduce((s, b) => s + b.predictions, 0)).toBeGreaterThan(0.3);
+  });
   it('reports the time-to-endpoint error and a markdown summary', () => {
     expect(f.eta_error_median).not.toBeNull();
     expect(Number.isFinite(f.eta_error_median!)).toBe(true);
     const md = evaluationMarkdown(f);
     expect(md).toContain('false_alarm_point_rate');
+    expect(md).toContain('prediction_extrapolating_rate');
     expect(md).toContain('| spikes |');
     expect(md).toContain('Tideline advises');
   });
