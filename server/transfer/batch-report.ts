@@ -5,7 +5,7 @@
  * acknowledged it, when the endpoint was called and signalled, where the batch departed from the golden
  * batches and which wavelength regions drove it — and the advisory caution.
  */
-import type { Alarm, BatchDetail, EndpointEventRecord, ModelEnvelopeView, ModelVersionSummary } from '../../core/api/rest.ts';
+import type { Alarm, BatchDetail, EndpointCheckView, EndpointEventRecord, EndpointRuleView, ModelEnvelopeView, ModelVersionSummary, PropertyModelView } from '../../core/api/rest.ts';
 import type { MonitorResult } from '../../core/monitor/types.ts';
 import { barChart, escapeXml as esc, lineChart, OKABE_ITO } from './svg-chart.ts';
 
@@ -51,6 +51,49 @@ export interface BatchReportData {
   departure: ReportDeparture | null;
   /** Property name and unit when the model predicts one (e.g. moisture, % w/w). */
   property: { name: string; unit: string } | null;
+  /** The model version's evidence (version detail): its endpoint rule, property model and endpoint check. */
+  evidence?: { endpoint: EndpointRuleView | null; property: PropertyModelView | null; endpointCheck: EndpointCheckView | null } | null;
+}
+
+/** The version's endpoint rule, property model and leave-one-batch-out check, as printed. */
+function evidenceSection(d: BatchReportData): string {
+  const ev = d.evidence;
+  if (!d.model) return '';
+  if (!ev) return '<h2>The model\'s endpoint rule and its check</h2><p class="empty">Not available for this model version.</p>';
+  const parts: string[] = ['<h2>The model\'s endpoint rule and its check</h2>'];
+  if (ev.endpoint) {
+    parts.push(`<p>Rule: ${ev.endpoint.combine === 'all' ? 'all' : 'any'} of the criteria below, confirmed over ${ev.endpoint.confirm} spectra.</p>`);
+    parts.push(table(['criterion', 'threshold', 'how it was obtained'], ev.endpoint.criteria.map((c) => [c.text, num(c.threshold, 4), c.method])));
+  }
+  const p = ev.property;
+  if (p) {
+    const a = p.components;
+    parts.push(
+      table(['property model', 'value'], [
+        ['property', `${p.name} (${p.unit})${p.target !== null ? `, target ${num(p.target, 4)} ${p.direction}` : ''}`],
+        ['latent variables', `${a} — ${p.componentsRule}`],
+        ['RMSECV / bias at that count', `${num(p.rmsecv[a - 1], 3)} / ${num(p.bias[a - 1], 3)} ${p.unit} (${p.cvMethod})`],
+        ['lab values', `${p.nLabValues} on ${p.nBatchesWithLab} of ${p.nBatches} reference batches, ${num(p.calibrationRange[0], 4)}–${num(p.calibrationRange[1], 4)} ${p.unit}${p.batchesWithoutLab.length ? `; none on ${p.batchesWithoutLab.join(', ')}` : ''}`],
+        ['outside its calibration when', `T² > ${num(p.extrapolation.t2Limit, 4)} or Q > ${num(p.extrapolation.qLimit, 4)} (${num(p.extrapolation.confidence * 100, 4)} %): ${p.extrapolation.method}`],
+      ]),
+    );
+  }
+  const c = ev.endpointCheck;
+  if (c) {
+    parts.push(
+      `<p>Leave-one-batch-out check on the reference batches: ${c.early} early${c.early ? ` (at most ${c.earlyMaxIntervals} intervals, ${num(c.earlyMaxMinutes, 3)} min)` : ''}, ${c.onTime} on time, ${c.late} late, ${c.notReached} not reached, ${c.noEndpoint} without a known endpoint; median ${c.medianIntervals === null ? '—' : `${num(c.medianIntervals, 3)} intervals`} from the known endpoint.</p>`,
+    );
+    parts.push(
+      table(
+        ['reference batch', 'known endpoint (min)', 'from', 'rule reached done (min)', 'intervals', 'minutes', 'verdict'],
+        c.rows.map((r) => [r.batch, r.knownMin === null ? '—' : `${num(r.knownMin, 4)}${r.bracketMin ? ` (lab bracket ${num(r.bracketMin[0], 4)}–${num(r.bracketMin[1], 4)})` : ''}`, r.knownSource ?? '—', r.firedMin === null ? 'not reached' : num(r.firedMin, 4), r.intervals ?? '—', r.minutes === null ? '—' : num(r.minutes, 3), r.verdict]),
+      ),
+    );
+    parts.push(`<p class="small">${esc(c.method)}</p>`);
+  } else parts.push('<p class="empty">This version carries no endpoint check (built before it was made).</p>');
+  const overrides = (d.model.signatures ?? []).filter((s) => s.override);
+  for (const o of overrides) parts.push(`<p><strong>Approved with an override of the endpoint check</strong> by ${esc(o.signerFullName)} (${esc(o.signer)}), ${esc(utc(o.signedAt))}: “${esc(o.override!)}”</p>`);
+  return parts.join('\n');
 }
 
 /** The listed regions and one row for the rest, so each share column adds up to 100 %. */
@@ -161,6 +204,7 @@ export function renderBatchReport(d: BatchReportData): string {
   th { background: #eee; } .meta td:first-child { width: 28%; font-weight: bold; }
   .caution { border: 2px solid #D55E00; padding: 8px 10px; margin: 12px 0; background: #fff7f0; }
   .empty { color: #555; font-style: italic; } .chart { page-break-inside: avoid; margin: 8px 0; }
+  .small { font-size: 8.5pt; color: #333; }
   .hash { font-family: "DejaVu Sans Mono", monospace; font-size: 8.5pt; word-break: break-all; }
   @media print { body { margin: 0; } h2 { page-break-after: avoid; } }
 </style></head><body>
@@ -184,6 +228,7 @@ export function renderBatchReport(d: BatchReportData): string {
 </tbody></table>
 ${table(['criterion', 'met', 'value', 'threshold', 'detail'], endpointCriteria.map((c) => [c.criterion, c.met ? 'yes' : 'no', num(c.value), num(c.threshold), c.text]))}
 ${table(['time (UTC)', 'seq', 'from', 'to', 'reason'], d.endpointEvents.map((e) => [utc(e.t), e.seq, e.from, e.to, e.reason]))}
+${evidenceSection(d)}
 <h2>Trajectory and limits</h2>
 ${charts.map((c) => `<div class="chart">${c}</div>`).join('\n') || '<p class="empty">No monitor results were recorded for this batch.</p>'}
 <h2>Alarms</h2>

@@ -13,6 +13,7 @@ import type { ServerContext } from '../context.ts';
 import { envelopeView } from '../models/model-service.ts';
 import type { BatchRow } from '../storage/storage.ts';
 import type { BatchReportData, ReportDeparture } from './batch-report.ts';
+import { endpointCheckView, endpointRuleView, propertyModelView } from '../../core/model/version-evidence.ts';
 
 export async function loadBatch(ctx: ServerContext, id: string): Promise<BatchRow> {
   const b = await ctx.storage.getBatch(id);
@@ -107,5 +108,13 @@ export async function reportData(ctx: ServerContext, batchId: string, user: stri
     endpointEvents: detail.endpointEvents,
     departure,
     property,
+    evidence: mrow ? await evidenceOf(ctx, mrow.id) : null,
   };
+}
+
+/** The version's endpoint rule, property model and endpoint check, as the version detail shows them. */
+async function evidenceOf(ctx: ServerContext, versionId: string): Promise<BatchReportData['evidence']> {
+  const m = (await ctx.ingest.loadModel(versionId)) as unknown as MonitoringModel | null;
+  if (!m) return null;
+  return { endpoint: endpointRuleView(m), property: propertyModelView(m), endpointCheck: endpointCheckView(m) };
 }

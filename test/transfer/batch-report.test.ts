@@ -43,6 +43,33 @@ describe('batch report', () => {
     expect(html).not.toMatch(/<script/i);
   });
 
+  it("prints the version's endpoint rule, property model and leave-one-batch-out check, and a signed override", () => {
+    const d = data();
+    d.model = {
+      versionId: 'v1', name: 'dryer-A', version: 3, product: 'granule-A', sha256: 'a'.repeat(64), status: 'approved', createdAt: 0, createdBy: 'mona',
+      approvedAt: Date.UTC(2026, 0, 1), approvedBy: 'mona', approvalReason: 'checked', retiredAt: null, retiredBy: null, retireReason: null,
+      referenceBatches: ['R1', 'R2'], components: 3, confidence: 0.99, deployedTo: ['dryer-1'],
+      signatures: [{ signer: 'mona', signerFullName: 'Mona Owner', signerRole: 'model-owner', meaning: 'approved', modelSha256: 'a'.repeat(64), reason: 'checked', override: 'exhaust-temperature interlock stops the dryer', signedAt: Date.UTC(2026, 0, 1), auditSeq: 7 }],
+    };
+    d.evidence = {
+      endpoint: { criteria: [{ kind: 'property', text: 'predicted moisture ≤ 1.990 % w/w (target 2.000 − margin 0.0100)', threshold: 1.99, method: 'target set by the model owner; margin z(0.7)·RMSECV' }], combine: 'all', confirm: 2, nearingMin: 10, caution: 'Tideline advises' },
+      property: {
+        name: 'moisture', unit: '% w/w', target: 2, direction: 'below', components: 3, componentsRule: 'one-standard-error rule …', atSearchLimit: false, cvMethod: 'leave-one-batch-out: 2 folds',
+        rmsecv: [0.3, 0.05, 0.02], rmsecv0: 1, bias: [0.1, 0.01, -0.004], nLabValues: 24, nBatchesWithLab: 2, nBatches: 2, batchesWithoutLab: [], calibrationRange: [1.2, 14], restrictedTo: null,
+        extrapolation: { confidence: 0.99, t2Limit: 369, qLimit: 0.0061, t2Method: 't2-cv-quantile', qMethod: 'q-cv-quantile', method: '99.5 % sample quantile' },
+      },
+      endpointCheck: {
+        method: 'leave-one-batch-out replay', early: 1, earlyMaxIntervals: 2, earlyMaxMinutes: 0.333, late: 1, onTime: 0, notReached: 0, noEndpoint: 0, medianIntervals: 0.5,
+        rows: [
+          { batch: 'R1', knownIndex: 300, knownMin: 50, knownSource: 'lab', bracketMin: [45, 55], firedIndex: 298, firedMin: 49.667, intervals: -2, minutes: -0.333, propertyAtFire: 1.98, verdict: 'early' },
+          { batch: 'R2', knownIndex: 310, knownMin: 51.7, knownSource: 'marked', bracketMin: null, firedIndex: 313, firedMin: 52.2, intervals: 3, minutes: 0.5, propertyAtFire: 1.97, verdict: 'late' },
+        ],
+      },
+    };
+    const html = renderBatchReport(d);
+    for (const s of ["The model's endpoint rule and its check", 'predicted moisture ≤ 1.990 % w/w', 'margin z(0.7)·RMSECV', '1 early (at most 2 intervals, 0.333 min)', 'lab bracket 45–55', 'verdict', 'RMSECV / bias at that count', '0.02 / -0.004 % w/w', 'T² &gt; 369 or Q &gt; 0.0061', 'Approved with an override of the endpoint check', 'exhaust-temperature interlock stops the dryer']) expect(html).toContain(s);
+  });
+
   it('escapes text taken from the record', () => {
     const d = data();
     d.alarms[0]!.acknowledgeComment = '<img src=x onerror=alert(1)>';
