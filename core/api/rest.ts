@@ -410,12 +410,15 @@ export interface EndpointCheckRowView {
   minutes: number | null;
   propertyAtFire: number | null;
   verdict: 'early' | 'on time' | 'late' | 'not reached' | 'no known endpoint';
+  /** An early call inside the lab bracket of the known endpoint: early against the placed endpoint, not provably before the true crossing. */
+  withinBracket: boolean;
 }
 
 export interface EndpointCheckView {
   method: string;
   rows: EndpointCheckRowView[];
   early: number;
+  earlyWithinBracket: number;
   earlyMaxIntervals: number;
   earlyMaxMinutes: number;
   late: number;

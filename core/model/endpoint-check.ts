@@ -16,7 +16,9 @@
  * is not earlier there.
  *
  * A call counts as early when it comes before the known endpoint (any interval); approval of a rule
- * that is early on a reference batch needs a signed override (contract of the approval route).
+ * that is early on a reference batch needs a signed override (the approval route). With a lab
+ * endpoint, placed late within its bracket on purpose, an early call may still lie inside the
+ * bracket — not provably before the true crossing — and is marked so (withinBracket).
  */
 import { EndpointTracker, type EndpointInputs } from '../endpoint/endpoint-tracker.ts';
 import type { EndpointRuleSpec, ResolvedEndpointRule } from '../endpoint/spec.ts';
@@ -43,6 +45,12 @@ export interface EndpointCheckRow {
   /** The predicted property where the rule fired (property models only). */
   propertyAtFire: number | null;
   verdict: 'early' | 'on time' | 'late' | 'not reached' | 'no known endpoint';
+  /**
+   * An early call that still lies inside the lab bracket of the known endpoint (after the last lab
+   * value not yet past the target): early against the placed endpoint, not provably before the
+   * true crossing. False otherwise (and for marked endpoints, which have no bracket).
+   */
+  withinBracket: boolean;
 }
 
 export interface EndpointCheck {
@@ -50,6 +58,8 @@ export interface EndpointCheck {
   rows: EndpointCheckRow[];
   /** Batches called early, and the most intervals / minutes early among them (0 when none). */
   early: number;
+  /** Of the early ones, those inside the lab bracket of their known endpoint. */
+  earlyWithinBracket: number;
   earlyMaxIntervals: number;
   earlyMaxMinutes: number;
   late: number;
@@ -133,6 +143,7 @@ export function checkEndpointRule(spec: EndpointRuleSpec, batches: CheckBatch[],
       minutes,
       propertyAtFire: k !== null && b.predicted ? b.predicted[k]! : null,
       verdict,
+      withinBracket: verdict === 'early' && !!e?.bracket && firedIndex! > e.bracket.fromIndex,
     };
   });
   const early = rows.filter((r) => r.verdict === 'early');
@@ -140,6 +151,7 @@ export function checkEndpointRule(spec: EndpointRuleSpec, batches: CheckBatch[],
     method: ENDPOINT_CHECK_METHOD,
     rows,
     early: early.length,
+    earlyWithinBracket: early.filter((r) => r.withinBracket).length,
     earlyMaxIntervals: early.reduce((m, r) => Math.max(m, -r.intervals!), 0),
     earlyMaxMinutes: early.reduce((m, r) => Math.max(m, -r.minutes!), 0),
     late: rows.filter((r) => r.verdict === 'late').length,
@@ -156,6 +168,6 @@ export function earlyBatchesText(c: EndpointCheck): string {
   if (early.length === 0) return 'the rule reached done before the known endpoint on no reference batch';
   const fmt = (v: number) => v.toFixed(1);
   return `the rule reached done before the known endpoint on ${early.length} of ${c.rows.length} reference batches: ${early
-    .map((r) => `"${r.batch}" ${-r.intervals!} interval${r.intervals === -1 ? '' : 's'} (${fmt(-r.minutes!)} min) early`)
+    .map((r) => `"${r.batch}" ${-r.intervals!} interval${r.intervals === -1 ? '' : 's'} (${fmt(-r.minutes!)} min) early${r.withinBracket ? ' (inside its lab bracket)' : ''}`)
     .join(', ')}`;
 }

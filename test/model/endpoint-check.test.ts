@@ -43,8 +43,16 @@ describe('checkEndpointRule on hand-worked batches', () => {
       ['never', null, null, 'not reached'],
       ['unknown', 2, null, 'no known endpoint'],
     ]);
+    // inside the bracket: a known endpoint at 5 with the bracket from 2 — the call at 3 is early, but not provably
+    const inside = { ...batches[0]!, endpoint: { ...batches[0]!.endpoint!, bracket: { fromIndex: 2, toIndex: 5, fromMin: 1, toMin: 2.5 } } };
+    const c2 = checkEndpointRule(spec, [inside, batches[1]!], endValuesOf(spec, [inside, batches[1]!], ['early', 'late']), { A: 1, confidence: 0.99, property });
+    expect(c2.rows[0]).toMatchObject({ verdict: 'early', withinBracket: true });
+    expect(c2.earlyWithinBracket).toBe(1);
+    expect(earlyBatchesText(c2)).toContain('"early" 2 intervals (1.0 min) early (inside its lab bracket)');
     expect(c.rows[0]).toMatchObject({ firedMin: 1.5, knownMin: 2.5, minutes: -1, propertyAtFire: 1.85, bracketMin: [2, 2.5], knownSource: 'lab' });
-    expect(c).toMatchObject({ early: 1, earlyMaxIntervals: 2, earlyMaxMinutes: 1, late: 1, onTime: 1, notReached: 1, noEndpoint: 1, medianIntervals: 0 });
+    // the early call at spectrum 3 lies before the bracket (4, 5]: provably early
+    expect(c.rows[0]!.withinBracket).toBe(false);
+    expect(c).toMatchObject({ early: 1, earlyWithinBracket: 0, earlyMaxIntervals: 2, earlyMaxMinutes: 1, late: 1, onTime: 1, notReached: 1, noEndpoint: 1, medianIntervals: 0 });
     expect(earlyBatchesText(c)).toBe('the rule reached done before the known endpoint on 1 of 5 reference batches: "early" 2 intervals (1.0 min) early');
     expect(c.method).toMatch(/^leave-one-batch-out replay through the endpoint tracker/);
   });

@@ -59,15 +59,15 @@ describe('batch report', () => {
         extrapolation: { confidence: 0.99, t2Limit: 369, qLimit: 0.0061, t2Method: 't2-cv-quantile', qMethod: 'q-cv-quantile', method: '99.5 % sample quantile' },
       },
       endpointCheck: {
-        method: 'leave-one-batch-out replay', early: 1, earlyMaxIntervals: 2, earlyMaxMinutes: 0.333, late: 1, onTime: 0, notReached: 0, noEndpoint: 0, medianIntervals: 0.5,
+        method: 'leave-one-batch-out replay', early: 1, earlyWithinBracket: 1, earlyMaxIntervals: 2, earlyMaxMinutes: 0.333, late: 1, onTime: 0, notReached: 0, noEndpoint: 0, medianIntervals: 0.5,
         rows: [
-          { batch: 'R1', knownIndex: 300, knownMin: 50, knownSource: 'lab', bracketMin: [45, 55], firedIndex: 298, firedMin: 49.667, intervals: -2, minutes: -0.333, propertyAtFire: 1.98, verdict: 'early' },
-          { batch: 'R2', knownIndex: 310, knownMin: 51.7, knownSource: 'marked', bracketMin: null, firedIndex: 313, firedMin: 52.2, intervals: 3, minutes: 0.5, propertyAtFire: 1.97, verdict: 'late' },
+          { batch: 'R1', knownIndex: 300, knownMin: 50, knownSource: 'lab', bracketMin: [45, 55], firedIndex: 298, firedMin: 49.667, intervals: -2, minutes: -0.333, propertyAtFire: 1.98, verdict: 'early', withinBracket: true },
+          { batch: 'R2', knownIndex: 310, knownMin: 51.7, knownSource: 'marked', bracketMin: null, firedIndex: 313, firedMin: 52.2, intervals: 3, minutes: 0.5, propertyAtFire: 1.97, verdict: 'late', withinBracket: false },
         ],
       },
     };
     const html = renderBatchReport(d);
-    for (const s of ["The model's endpoint rule and its check", 'predicted moisture ≤ 1.990 % w/w', 'margin z(0.7)·RMSECV', '1 early (at most 2 intervals, 0.333 min)', 'lab bracket 45–55', 'verdict', 'RMSECV / bias at that count', '0.02 / -0.004 % w/w', 'T² &gt; 369 or Q &gt; 0.0061', 'Approved with an override of the endpoint check', 'exhaust-temperature interlock stops the dryer']) expect(html).toContain(s);
+    for (const s of ["The model's endpoint rule and its check", 'predicted moisture ≤ 1.990 % w/w', 'margin z(0.7)·RMSECV', '1 early (at most 2 intervals, 0.333 min; 1 inside the lab bracket of their endpoint)', 'early (inside the lab bracket)', 'lab bracket 45–55', 'verdict', 'RMSECV / bias at that count', '0.02 / -0.004 % w/w', 'T² &gt; 369 or Q &gt; 0.0061', 'Approved with an override of the endpoint check', 'exhaust-temperature interlock stops the dryer']) expect(html).toContain(s);
   });
 
   it('escapes text taken from the record', () => {
