@@ -121,8 +121,15 @@ function main(): void {
   console.log(
     `\n${plan.kind}: ${plan.reference} reference batches (seed ${plan.seed}), ${plan.good} good, ${plan.perFault} per fault type; model ${model.pca.nComponents} PCs${model.pls ? `, PLS ${model.pls.components} LV` : ''}, build ${buildMs.toFixed(0)} ms.`,
   );
+  const check = model.meta.endpointCheck;
+  if (check) {
+    console.log(
+      `endpoint check at build (leave one batch out, against the reference batches' known endpoints): ${check.early} early (at most ${check.earlyMaxIntervals} intervals), ${check.onTime} on time, ${check.late} late, ${check.notReached} not reached; median ${check.medianIntervals ?? '—'} intervals.`,
+    );
+  }
   if (json) {
-    writeFileSync(json, JSON.stringify({ plan, model: { id: model.id, components: model.pca.nComponents, sha256: model.sha256 }, ...figures }, null, 2));
+    const endpointCheck = check ? { early: check.early, earlyWithinBracket: check.earlyWithinBracket, earlyMaxIntervals: check.earlyMaxIntervals, onTime: check.onTime, late: check.late, notReached: check.notReached, medianIntervals: check.medianIntervals } : null;
+    writeFileSync(json, JSON.stringify({ plan, model: { id: model.id, components: model.pca.nComponents, sha256: model.sha256, plsComponents: model.pls?.components ?? null, endpointCheck }, ...figures }, null, 2));
     console.log(`figures written to ${json}`);
   }
 }
