@@ -356,6 +356,9 @@ export interface EndpointRuleView {
   combine: 'all' | 'any';
   confirm: number;
   nearingMin: number;
+  /** No 'done' before this many minutes from the batch start (0: none), and how it was obtained ('none' when not set). */
+  minElapsedMin: number;
+  minElapsedMethod: string;
   /** The caution shown with every endpoint rule. */
   caution: string;
 }

@@ -1,8 +1,8 @@
 /**
  * The endpoint state machine: running → nearing → settling → done (→ signalled, set by the
  * server once the signal has gone out). 'settling' while the rule holds but is not yet confirmed
- * over N consecutive spectra; a break in confirmation goes back to 'nearing'; 'done' and
- * 'signalled' are final for the batch.
+ * over N consecutive spectra, or is confirmed before the rule's minimum time (minElapsedMin); a
+ * break in confirmation goes back to 'nearing'; 'done' and 'signalled' are final for the batch.
  */
 import type { DomainEvent, EndpointCriterionStatus, EndpointState, EndpointStatus } from '../monitor/types.ts';
 import type { ResolvedEndpointRule } from './spec.ts';
@@ -15,6 +15,8 @@ export interface EndpointInputs {
   slopes: (number | null)[];
   goldenEndDistance: number | null;
   eta: { median: number; low: number; high: number } | null;
+  /** Minutes since the batch start (for the rule's minimum time; omitted: not judged). */
+  elapsedMin?: number | null;
 }
 
 function fmt(x: number): string {
@@ -73,7 +75,14 @@ export class EndpointTracker {
     const from = this.state;
     let reason = '';
     if (from !== 'done' && from !== 'signalled') {
-      if (met) {
+      const minMin = rule.minElapsedMin ?? 0;
+      const early = minMin > 0 && inp.elapsedMin !== undefined && inp.elapsedMin !== null && inp.elapsedMin < minMin;
+      if (met && early && this.confirmCount + 1 >= rule.confirm) {
+        // Met and confirmed, but before the rule's minimum time: not done yet.
+        this.confirmCount = rule.confirm;
+        this.state = 'settling';
+        reason = `rule met and confirmed; no endpoint before ${fmt(minMin)} min from the batch start (${fmt(inp.elapsedMin!)} min now)`;
+      } else if (met) {
         this.confirmCount++;
         if (this.confirmCount >= rule.confirm) {
           this.state = 'done';

@@ -37,6 +37,13 @@ export const endpointRuleSpecSchema = z.object({
   confirm: z.number().int().min(1).max(100),
   /** 'nearing' once the estimated time to endpoint is at most this many minutes. */
   nearingMin: z.number().nonnegative(),
+  /**
+   * No 'done' before this many minutes from the batch start: a number, or 'auto' — resolved at
+   * build from the reference batches' known endpoints (core/model/endpoint-calibration.ts
+   * autoMinElapsed: a lower one-sided prediction bound on the endpoint time, never above the
+   * shortest known endpoint). Omitted: no minimum.
+   */
+  minElapsedMin: z.union([z.number().finite().min(0).max(100_000), z.literal('auto')]).optional(),
 });
 export type EndpointRuleSpec = z.infer<typeof endpointRuleSpecSchema>;
 
@@ -51,6 +58,9 @@ export interface ResolvedEndpointRule {
   combine: 'all' | 'any';
   confirm: number;
   nearingMin: number;
+  /** No 'done' before this many minutes from the batch start, and how the figure was obtained (absent in older files: none). */
+  minElapsedMin?: number;
+  minElapsedMethod?: string;
 }
 
 export function validateEndpointRuleSpec(spec: unknown): EndpointRuleSpec {

@@ -19,6 +19,7 @@ import type { EndpointRuleSpec, ResolvedCriterion } from '../endpoint/spec.ts';
 import { goldenEndRegion, type Envelope } from '../envelope/envelope.ts';
 import { movingBlockSd } from '../envelope/mbsd.ts';
 import { plateauSlope } from '../endpoint/plateau.ts';
+import { newObservationMultiplier } from '../envelope/band.ts';
 
 /** Per reference batch, what the automatic thresholds are calibrated from (null: no known endpoint, or too few spectra before it). */
 export interface EndValues {
@@ -26,6 +27,8 @@ export interface EndValues {
   perCriterion: ((number | null)[] | null)[];
   /** PCA scores at each batch's endpoint. */
   endScores: (number[] | null)[];
+  /** Minutes from each batch's first spectrum to its known endpoint. */
+  endMin: (number | null)[];
   batchIds: string[];
 }
 
@@ -58,7 +61,8 @@ export function endValuesOf(rule: EndpointRuleSpec, batches: CalibrationBatch[],
     return null;
   });
   const endScores = batches.map((b) => (b.endIndex === null ? null : b.scores.map((s) => s[b.endIndex!]!)));
-  return { perCriterion, endScores, batchIds };
+  const endMin = batches.map((b) => (b.endIndex === null ? null : b.elapsedMin[b.endIndex]!));
+  return { perCriterion, endScores, endMin, batchIds };
 }
 
 const sig = (v: number) => (Math.abs(v) >= 100 ? v.toFixed(1) : v.toPrecision(3));
@@ -77,7 +81,11 @@ export interface PropertyContext {
  * The rule's criteria with every threshold a number and how it was obtained. `exclude`: a batch
  * index left out (the leave-one-batch-out check); null for the model itself.
  */
-export function resolveCriteria(rule: EndpointRuleSpec, ev: EndValues, opts: { A: number; confidence: number; property: PropertyContext | null; exclude: number | null }): { criteria: ResolvedCriterion[]; endRegion: Envelope['endRegion'] } {
+export function resolveCriteria(
+  rule: EndpointRuleSpec,
+  ev: EndValues,
+  opts: { A: number; confidence: number; property: PropertyContext | null; exclude: number | null },
+): { criteria: ResolvedCriterion[]; endRegion: Envelope['endRegion']; minElapsed: { value: number; method: string } | null } {
   const { A, confidence, property, exclude } = opts;
   const keep = (b: number) => b !== exclude;
   let endRegion: Envelope['endRegion'] = null;
@@ -120,5 +128,39 @@ export function resolveCriteria(rule: EndpointRuleSpec, ev: EndValues, opts: { A
       }
     }
   });
-  return { criteria, endRegion };
+  let minElapsed: { value: number; method: string } | null = null;
+  if (typeof rule.minElapsedMin === 'number') minElapsed = { value: rule.minElapsedMin, method: 'set by the model owner' };
+  else if (rule.minElapsedMin === 'auto') {
+    const ends = ev.endMin.filter((v, b): v is number => v !== null && keep(b));
+    minElapsed = autoMinElapsed(ends, confidence);
+  }
+  return { criteria, endRegion, minElapsed };
+}
+
+/**
+ * The automatic minimum time before an endpoint may be called (endpoint rule `minElapsedMin:
+ * 'auto'`), from the known endpoint times T_i of the reference batches (minutes from their first
+ * spectrum): the lower one-sided prediction bound for one new batch's endpoint time at the model's
+ * confidence, taken on ln T (endpoint times are positive and skewed to the right) —
+ * exp(mean(ln T) − t(confidence; I − 1)·s·√(1 + 1/I)), s the sd of ln T (n − 1), the
+ * prediction interval for a single future observation from a normal sample (as the envelope's
+ * prediction band, core/envelope/band.ts) — and never above the shortest known endpoint, so that
+ * no reference batch would be held past its own endpoint by it.
+ */
+export function autoMinElapsed(endMin: number[], confidence: number): { value: number; method: string } {
+  const I = endMin.length;
+  if (I < 2) throw new RangeError(`minimum time 'auto': needs the known endpoints of at least 2 reference batches (got ${I})`);
+  for (const t of endMin) if (!(t > 0) || !Number.isFinite(t)) throw new RangeError(`minimum time 'auto': a known endpoint at ${t} min; every endpoint must lie after the batch start`);
+  const logs = endMin.map(Math.log);
+  const m = logs.reduce((a, b) => a + b, 0) / I;
+  const s = Math.sqrt(logs.reduce((a, b) => a + (b - m) ** 2, 0) / (I - 1));
+  const k = newObservationMultiplier(confidence, I);
+  const bound = Math.exp(m - k * s);
+  const shortest = Math.min(...endMin);
+  const value = Math.min(bound, shortest);
+  const f = (v: number) => v.toFixed(1);
+  return {
+    value,
+    method: `'auto': lower one-sided ${+(confidence * 100).toFixed(3)} % prediction bound for one new batch's endpoint time from the ${I} known endpoints, on ln(time): exp(mean − t(${confidence}; ${I - 1})·s·√(1 + 1/${I})) = ${f(bound)} min${bound > shortest ? `, capped at the shortest known endpoint ${f(shortest)} min` : ` (shortest known endpoint ${f(shortest)} min)`}`,
+  };
 }

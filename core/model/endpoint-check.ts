@@ -5,8 +5,9 @@
  *
  * For each reference batch, as for a batch the model has not seen:
  * - refitted without the batch: the property predictions (the PLS calibrated without that batch's
- *   lab values, same LV count), and every automatic threshold (MBSD, plateau, golden end region:
- *   re-resolved from the other batches' known endpoints, core/model/endpoint-calibration.ts);
+ *   lab values, same LV count), and every automatic threshold (MBSD, plateau, golden end region,
+ *   the minimum time: re-resolved from the other batches' known endpoints,
+ *   core/model/endpoint-calibration.ts);
  * - not refitted: the preprocessing chains and the PCA (loadings from all reference batches: one
  *   batch in many moves them little, and refitting the PCA per batch would rotate and re-sign the
  *   scores the plateau and golden end criteria compare), the LV count, and the automatic property
@@ -71,7 +72,7 @@ export interface EndpointCheck {
 }
 
 export const ENDPOINT_CHECK_METHOD =
-  'leave-one-batch-out replay through the endpoint tracker: for each reference batch, property predictions from the PLS calibrated without its lab values and automatic thresholds re-resolved from the other batches\u2019 known endpoints; the preprocessing, the PCA, the LV count and the automatic property margin are those of the model (not refitted per batch); run-time holds (alarms, predictions outside calibration) are not replayed — they can only delay a call. Early: the rule reached done before the known endpoint.';
+  'leave-one-batch-out replay through the endpoint tracker: for each reference batch, property predictions from the PLS calibrated without its lab values and automatic thresholds and minimum time re-resolved from the other batches\u2019 known endpoints; the preprocessing, the PCA, the LV count and the automatic property margin are those of the model (not refitted per batch); run-time holds (alarms, predictions outside calibration) are not replayed — they can only delay a call. Early: the rule reached done before the known endpoint.';
 
 export interface CheckBatch extends CalibrationBatch {
   id: string;
@@ -113,6 +114,7 @@ function replay(rule: ResolvedEndpointRule, b: CheckBatch, endRegion: { mean: nu
       }
       inputs.goldenEndDistance = d;
     }
+    inputs.elapsedMin = b.elapsedMin[k]!;
     events.length = 0;
     const st = tracker.update(k, b.elapsedMin[k]!, inputs, events);
     if (st.state === 'done' || st.state === 'signalled') return k;
@@ -122,8 +124,8 @@ function replay(rule: ResolvedEndpointRule, b: CheckBatch, endRegion: { mean: nu
 
 export function checkEndpointRule(spec: EndpointRuleSpec, batches: CheckBatch[], endValues: EndValues, opts: { A: number; confidence: number; property: PropertyContext | null }): EndpointCheck {
   const rows: EndpointCheckRow[] = batches.map((b, bi) => {
-    const { criteria, endRegion } = resolveCriteria(spec, endValues, { ...opts, exclude: bi });
-    const rule: ResolvedEndpointRule = { criteria, combine: spec.combine, confirm: spec.confirm, nearingMin: spec.nearingMin };
+    const { criteria, endRegion, minElapsed } = resolveCriteria(spec, endValues, { ...opts, exclude: bi });
+    const rule: ResolvedEndpointRule = { criteria, combine: spec.combine, confirm: spec.confirm, nearingMin: spec.nearingMin, ...(minElapsed ? { minElapsedMin: minElapsed.value, minElapsedMethod: minElapsed.method } : {}) };
     const k = replay(rule, b, endRegion);
     const e = b.endpoint;
     const firedIndex = k === null ? null : b.kept[k]!;

@@ -279,7 +279,7 @@ export function buildMonitoringModel(batches: ReferenceBatch[], settingsInput: u
   const propertyContext: PropertyContext | null = settings.property
     ? { name: settings.property.name, unit: settings.property.unit, target: settings.property.target, direction: settings.property.direction, rmsecv: pls?.rmsecv?.[pls.components - 1] ?? null }
     : null;
-  const { criteria } = resolveCriteria(settings.endpoint, endValues, { A, confidence: conf, property: propertyContext, exclude: null });
+  const { criteria, minElapsed } = resolveCriteria(settings.endpoint, endValues, { A, confidence: conf, property: propertyContext, exclude: null });
   // The rule replayed leave-one-batch-out on the reference batches against their known endpoints.
   let po = 0;
   const replayBatches: CheckBatch[] = calib.map((c, bi) => {
@@ -290,7 +290,10 @@ export function buildMonitoringModel(batches: ReferenceBatch[], settingsInput: u
   });
   const endpointCheck = checkEndpointRule(settings.endpoint, replayBatches, endValues, { A, confidence: conf, property: propertyContext });
   if (endpointCheck.early > 0) notes.push(`Endpoint check (leave one batch out): ${earlyBatchesText(endpointCheck)}. Approval needs a signed override.`);
-  const endpoint: ResolvedEndpointRule = { criteria, combine: settings.endpoint.combine, confirm: settings.endpoint.confirm, nearingMin: settings.endpoint.nearingMin };
+  const endpoint: ResolvedEndpointRule = {
+    criteria, combine: settings.endpoint.combine, confirm: settings.endpoint.confirm, nearingMin: settings.endpoint.nearingMin,
+    ...(minElapsed ? { minElapsedMin: minElapsed.value, minElapsedMethod: minElapsed.method } : {}),
+  };
 
   if (ends.missing.size) {
     notes.push(`No known endpoint on ${ends.missing.size} reference batch${ends.missing.size === 1 ? '' : 'es'}: ${[...ends.missing.entries()].map(([b, why]) => `"${b}" (${why})`).join(', ')}. They take no part in the time-to-endpoint estimate or the golden end progress; give their endpoints (lab values crossing the target, or settings.referenceEndpoints) to include them.`);
@@ -380,7 +383,7 @@ const bodySchema = z.object({
   limits: z.object({ t2: limitSchema, q: limitSchema, combined: limitSchema }),
   alarmLimits: z.object({ confidence: z.number().gt(0).lt(1), t2: limitSchema, q: limitSchema, combined: limitSchema, envelopeK: num.positive(), envelopeKMethod: z.string() }).optional(),
   envelope: envelopeSchema,
-  endpoint: z.object({ criteria: z.array(criterionSchema).min(1), combine: z.enum(['all', 'any']), confirm: z.number().int().min(1), nearingMin: num }),
+  endpoint: z.object({ criteria: z.array(criterionSchema).min(1), combine: z.enum(['all', 'any']), confirm: z.number().int().min(1), nearingMin: num, minElapsedMin: num.nonnegative().optional(), minElapsedMethod: z.string().optional() }),
   pls: z.unknown().optional(),
   meta: z.object({
     batches: z.array(z.object({ id: z.string(), spectra: z.number().int(), excluded: z.number().int(), durationMin: num, endMin: num.nullable() })),

@@ -145,6 +145,7 @@ export function partsNeedingEndpoints(settings: BuildSettings): string[] {
     if (c.kind === 'plateau' && c.tolerance === 'auto') parts.push("the plateau tolerance 'auto'");
     if (c.kind === 'golden-end') parts.push('the golden end region');
   }
+  if (settings.endpoint.minElapsedMin === 'auto') parts.push("the minimum time 'auto'");
   return parts;
 }
 

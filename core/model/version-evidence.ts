@@ -28,7 +28,11 @@ export function endpointRuleView(m: Pick<MonitoringModel, 'endpoint'>): Endpoint
         return { kind: 'golden-end', text: `distance to the golden end region ≤ ${num(c.limit)}`, threshold: c.limit, method: c.method ?? 'not recorded (model built before thresholds carried their method)' };
     }
   });
-  return { criteria, combine: m.endpoint.combine, confirm: m.endpoint.confirm, nearingMin: m.endpoint.nearingMin, caution: ENDPOINT_CAUTION };
+  return {
+    criteria, combine: m.endpoint.combine, confirm: m.endpoint.confirm, nearingMin: m.endpoint.nearingMin,
+    minElapsedMin: m.endpoint.minElapsedMin ?? 0, minElapsedMethod: m.endpoint.minElapsedMethod ?? 'none',
+    caution: ENDPOINT_CAUTION,
+  };
 }
 
 export function propertyModelView(m: Pick<MonitoringModel, 'pls' | 'settings'>): PropertyModelView | null {

@@ -213,6 +213,7 @@ export function createBatchMonitor(model: MonitoringModel, batchStartT: number):
       inputs.goldenEndDistance = d;
     }
     inputs.eta = endpoint.state === 'done' || endpoint.state === 'signalled' ? null : eta.estimate(k, elapsedMin);
+    inputs.elapsedMin = elapsedMin;
     const ep = endpoint.update(seq, t, inputs, events);
     lastSeq = seq;
     lastT = t;

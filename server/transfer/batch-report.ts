@@ -62,7 +62,8 @@ function evidenceSection(d: BatchReportData): string {
   if (!ev) return '<h2>The model\'s endpoint rule and its check</h2><p class="empty">Not available for this model version.</p>';
   const parts: string[] = ['<h2>The model\'s endpoint rule and its check</h2>'];
   if (ev.endpoint) {
-    parts.push(`<p>Rule: ${ev.endpoint.combine === 'all' ? 'all' : 'any'} of the criteria below, confirmed over ${ev.endpoint.confirm} spectra.</p>`);
+    const minText = ev.endpoint.minElapsedMin > 0 ? `; no endpoint before ${num(ev.endpoint.minElapsedMin, 4)} min from the batch start (${ev.endpoint.minElapsedMethod})` : '';
+    parts.push(`<p>Rule: ${ev.endpoint.combine === 'all' ? 'all' : 'any'} of the criteria below, confirmed over ${ev.endpoint.confirm} spectra${esc(minText)}.</p>`);
     parts.push(table(['criterion', 'threshold', 'how it was obtained'], ev.endpoint.criteria.map((c) => [c.text, num(c.threshold, 4), c.method])));
   }
   const p = ev.property;

@@ -53,3 +53,25 @@ describe('endpoint state machine (running → nearing → settling → done → 
     expect(() => validateEndpointRuleSpec({ criteria: [{ kind: 'property', margin: 'auto', marginConfidence: 0.4 }], combine: 'all', confirm: 3, nearingMin: 5 })).toThrow(/criteria\.0\.marginConfidence/);
   });
 });
+
+describe('minimum time before done (rule minElapsedMin)', () => {
+  it('met and confirmed before the minimum time stays settling, then done at the first spectrum past it', async () => {
+    const { EndpointTracker } = await import('../../core/endpoint/endpoint-tracker.ts');
+    const tr = new EndpointTracker({ criteria: [{ kind: 'property', target: 2, direction: 'below', name: 'moisture', unit: '% w/w' }], combine: 'all', confirm: 2, nearingMin: 0, minElapsedMin: 30, minElapsedMethod: 'set by the model owner' });
+    const events: import('../../core/monitor/types.ts').DomainEvent[] = [];
+    const inp = (elapsedMin: number) => ({ property: 1.5, mbsd: null, slopes: [], goldenEndDistance: null, eta: null, elapsedMin });
+    expect(tr.update(1, 0, inp(20), events).state).toBe('settling');
+    const st = tr.update(2, 0, inp(25), events);
+    expect(st.state).toBe('settling');
+    expect(st.confirmCount).toBe(2);
+    expect(tr.update(3, 0, inp(29.9), events).state).toBe('settling');
+    const done = tr.update(4, 0, inp(30), events);
+    expect(done.state).toBe('done');
+    expect(done.doneAt!.seq).toBe(4);
+    // one event into settling (confirmation counting), one to done; none while waiting
+    expect(events.map((e) => (e.type === 'endpoint-state' ? e.to : ''))).toEqual(['settling', 'done']);
+    // without elapsed time given, the minimum is not judged (older callers)
+    const old = new EndpointTracker({ criteria: [{ kind: 'property', target: 2, direction: 'below', name: 'moisture', unit: '% w/w' }], combine: 'all', confirm: 1, nearingMin: 0, minElapsedMin: 30 });
+    expect(old.update(1, 0, { property: 1.5, mbsd: null, slopes: [], goldenEndDistance: null, eta: null }, []).state).toBe('done');
+  });
+});

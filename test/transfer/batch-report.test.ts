@@ -52,7 +52,7 @@ describe('batch report', () => {
       signatures: [{ signer: 'mona', signerFullName: 'Mona Owner', signerRole: 'model-owner', meaning: 'approved', modelSha256: 'a'.repeat(64), reason: 'checked', override: 'exhaust-temperature interlock stops the dryer', signedAt: Date.UTC(2026, 0, 1), auditSeq: 7 }],
     };
     d.evidence = {
-      endpoint: { criteria: [{ kind: 'property', text: 'predicted moisture ≤ 1.990 % w/w (target 2.000 − margin 0.0100)', threshold: 1.99, method: 'target set by the model owner; margin z(0.7)·RMSECV' }], combine: 'all', confirm: 2, nearingMin: 10, caution: 'Tideline advises' },
+      endpoint: { criteria: [{ kind: 'property', text: 'predicted moisture ≤ 1.990 % w/w (target 2.000 − margin 0.0100)', threshold: 1.99, method: 'target set by the model owner; margin z(0.7)·RMSECV' }], combine: 'all', confirm: 2, nearingMin: 10, minElapsedMin: 41.5, minElapsedMethod: "'auto': lower one-sided 99 % prediction bound", caution: 'Tideline advises' },
       property: {
         name: 'moisture', unit: '% w/w', target: 2, direction: 'below', components: 3, componentsRule: 'one-standard-error rule …', atSearchLimit: false, cvMethod: 'leave-one-batch-out: 2 folds',
         rmsecv: [0.3, 0.05, 0.02], rmsecv0: 1, bias: [0.1, 0.01, -0.004], nLabValues: 24, nBatchesWithLab: 2, nBatches: 2, batchesWithoutLab: [], calibrationRange: [1.2, 14], restrictedTo: null,
@@ -67,7 +67,7 @@ describe('batch report', () => {
       },
     };
     const html = renderBatchReport(d);
-    for (const s of ["The model's endpoint rule and its check", 'predicted moisture ≤ 1.990 % w/w', 'margin z(0.7)·RMSECV', '1 early (at most 2 intervals, 0.333 min; 1 inside the lab bracket of their endpoint)', 'early (inside the lab bracket)', 'lab bracket 45–55', 'verdict', 'RMSECV / bias at that count', '0.02 / -0.004 % w/w', 'T² &gt; 369 or Q &gt; 0.0061', 'Approved with an override of the endpoint check', 'exhaust-temperature interlock stops the dryer']) expect(html).toContain(s);
+    for (const s of ["The model's endpoint rule and its check", 'predicted moisture ≤ 1.990 % w/w', 'margin z(0.7)·RMSECV', '1 early (at most 2 intervals, 0.333 min; 1 inside the lab bracket of their endpoint)', 'early (inside the lab bracket)', 'lab bracket 45–55', 'verdict', 'RMSECV / bias at that count', '0.02 / -0.004 % w/w', 'T² &gt; 369 or Q &gt; 0.0061', 'Approved with an override of the endpoint check', 'no endpoint before 41.5 min from the batch start', 'exhaust-temperature interlock stops the dryer']) expect(html).toContain(s);
   });
 
   it('escapes text taken from the record', () => {
