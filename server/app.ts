@@ -21,7 +21,7 @@ import { verifyAnalyzerToken } from './ingest/analyzer-tokens.ts';
 import { IngestConnection } from './ingest/ingest-socket.ts';
 import { IngestPipeline } from './ingest/pipeline.ts';
 import { LiveHub } from './live/live-hub.ts';
-import { createLogger } from './logger.ts';
+import { createLogger, type Logger } from './logger.ts';
 import { createMetrics } from './metrics.ts';
 import { SqliteStorage } from './storage/sqlite-storage.ts';
 import { HttpProblem, problemHandler } from './api/problem.ts';
@@ -49,10 +49,12 @@ export interface StartOptions {
   dbFile?: string;
   /** Replace the clock (tests). */
   now?: () => number;
+  /** Replace the logger (tests that read what the server says). */
+  log?: Logger;
 }
 
 export async function startServer(config: ServerConfig, opts: StartOptions = {}): Promise<TidelineServer> {
-  const log = createLogger(config.logLevel);
+  const log = opts.log ?? createLogger(config.logLevel);
   const now = opts.now ?? Date.now;
   const storage = new SqliteStorage({ file: opts.dbFile ?? join(config.dataDir, 'tideline.db'), synchronous: config.synchronous, checkpointInWorker: config.walCheckpoint === 'worker' });
   const metrics = createMetrics();

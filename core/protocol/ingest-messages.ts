@@ -25,6 +25,14 @@ export const MAX_MESSAGE_BYTES = 256 * 1024;
 export const MAX_SPECTRUM_POINTS = 16384;
 
 const seqSchema = z.number().int().nonnegative().max(Number.MAX_SAFE_INTEGER);
+
+/** A seq is an integer 0 … 2^53 − 1. Only such a number may ever become a stream position. */
+export function isValidSeq(n: unknown): n is number {
+  return typeof n === 'number' && Number.isSafeInteger(n) && n >= 0;
+}
+
+/** The entry types of the analyzer's log, and hello. A message of another type consumes no seq. */
+export const ANALYZER_MESSAGE_TYPES = ['hello', 'batch-start', 'spectrum', 'batch-end', 'analyzer-status'] as const;
 /** Milliseconds since the Unix epoch, UTC. */
 const timeSchema = z.number().finite().nonnegative();
 const idSchema = z.string().min(1).max(128).regex(/^[A-Za-z0-9._:-]+$/, 'use letters, digits and . _ : - only');
@@ -191,12 +199,21 @@ export function parseAnalyzerText(text: string): HelloMessage | LogEntry {
       );
     }
   }
+  const type = raw && typeof raw === 'object' && !Array.isArray(raw) ? (raw as { type?: unknown }).type : undefined;
+  if (typeof type !== 'string' || !(ANALYZER_MESSAGE_TYPES as readonly string[]).includes(type)) {
+    // Not an entry of the log: whatever seq it carries is not consumed.
+    throw new IngestProtocolError(
+      'bad-message',
+      `type: ${type === undefined ? 'missing' : `unknown message type ${JSON.stringify(type).slice(0, 40)}`}; expected one of ${ANALYZER_MESSAGE_TYPES.join(', ')}`,
+    );
+  }
   const parsed = analyzerMessageSchema.safeParse(raw);
   if (!parsed.success) {
     const issue = parsed.error.issues[0]!;
     const where = issue.path.length ? issue.path.join('.') : 'message';
-    const seq = typeof (raw as { seq?: unknown })?.seq === 'number' ? (raw as { seq: number }).seq : undefined;
-    throw new IngestProtocolError('bad-message', `${where}: ${issue.message}`, seq);
+    // Only a valid seq is named (and may be consumed): 1.5, 1e300 or 2^53 never become a position.
+    const rawSeq = (raw as { seq?: unknown }).seq;
+    throw new IngestProtocolError('bad-message', `${where}: ${issue.message}`, isValidSeq(rawSeq) ? rawSeq : undefined);
   }
   const m = parsed.data;
   if (m.type === 'hello') {

@@ -16,7 +16,7 @@ import { DEFAULT_ALARM_SETTINGS, type SuppressionReason } from '../../core/alarm
 import type { Alarm, AnalyzerStatusView, ModelRef } from '../../core/api/rest.ts';
 import type { LivePoint, LiveUnitStatus } from '../../core/api/live.ts';
 import type { AlarmKind, AlarmPriority, AlarmState, ConditionKind, EndpointState, EndpointStatus, MonitorResult } from '../../core/monitor/types.ts';
-import { IngestProtocolError, type AnalyzerStatusMessage, type BatchEndMessage, type BatchStartMessage, type IngestErrorCode, type LogEntry, type SpectrumEntry } from '../../core/protocol/ingest-messages.ts';
+import { IngestProtocolError, isValidSeq, type AnalyzerStatusMessage, type BatchEndMessage, type BatchStartMessage, type IngestErrorCode, type LogEntry, type SpectrumEntry } from '../../core/protocol/ingest-messages.ts';
 import type { AuditEntry } from '../audit/types.ts';
 import type { ServerConfig } from '../config.ts';
 import type { Logger } from '../logger.ts';
@@ -153,6 +153,13 @@ export class IngestPipeline {
 
   /** (Re)build the in-memory state from storage. */
   private async load(): Promise<void> {
+    for (const r of await this.storage.repairStreamPositions()) {
+      this.log.warn(
+        `analyzer ${r.analyzer} boot ${r.boot}: the stored stream position ${String(r.was)} is not a valid seq (an earlier version adopted a refused entry's seq); ` +
+          `repaired to ${r.now}, the highest seq stored for it, so the analyzer resends from ${r.now + 1}` +
+          (r.invalidRejectedRows ? ` (${r.invalidRejectedRows} refused-entry record(s) with an invalid seq are kept as they are)` : ''),
+      );
+    }
     this.units.clear();
     for (const u of await this.storage.listUnits()) this.units.set(u.id, u);
     this.batchIds = new Set(await this.storage.batchIds());
@@ -307,6 +314,8 @@ export class IngestPipeline {
 
   /** Validate and take one log entry. Throws IngestProtocolError naming the problem. */
   accept(st: StreamState, e: LogEntry, receivedAt: number): AcceptOutcome {
+    // The codecs only pass valid seqs; checked here as well, since a position is never anything else.
+    if (!isValidSeq(e.seq)) throw new IngestProtocolError('bad-message', `seq ${e.seq} is not an integer 0 … 2^53 − 1`);
     if (e.seq <= st.lastAccepted) {
       this.metrics.duplicates.inc();
       return e.seq <= st.lastCommitted ? 'duplicate-committed' : 'duplicate-pending';
@@ -338,7 +347,8 @@ export class IngestPipeline {
    * the refusal and move the stream on. Returns true when consumed.
    */
   refuse(st: StreamState | null, err: IngestProtocolError): boolean {
-    if (!st || err.seq === undefined || !CONSUMING.has(err.code)) return false;
+    // Only a valid seq is consumed: an invalid one (1.5, 1e300, > 2^53 − 1) never moves the position.
+    if (!st || !isValidSeq(err.seq) || !CONSUMING.has(err.code)) return false;
     if (err.seq <= st.lastAccepted) return false;
     if (st.lastAccepted >= 0 && err.seq !== st.lastAccepted + 1) return false;
     this.uow.rejected.push({ analyzer: st.analyzer, boot: st.boot, seq: err.seq, code: err.code, message: err.message, receivedAt: this.now() });
@@ -349,6 +359,7 @@ export class IngestPipeline {
   }
 
   private advance(st: StreamState, seq: number) {
+    if (!isValidSeq(seq)) throw new Error(`internal: stream position ${seq} is not a valid seq`);
     st.lastAccepted = seq;
     this.post.acks.set(st, seq);
     this.pendingEntries++;

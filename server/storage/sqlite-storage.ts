@@ -24,6 +24,7 @@ import type {
   OutboxRow,
   SpectrumRow,
   Storage,
+  StreamPositionRepair,
   UnitRow,
 } from './storage.ts';
 
@@ -255,6 +256,32 @@ export class SqliteStorage implements Storage {
   async latestAnalyzerBoot(analyzer: string) {
     const r = this.st.latestBoot.get(analyzer) as Row | undefined;
     return r ? bootFromRow(r) : null;
+  }
+
+  async repairStreamPositions(): Promise<StreamPositionRepair[]> {
+    const bad = this.db
+      .prepare(`SELECT analyzer, boot, last_seq FROM analyzer_boots
+        WHERE typeof(last_seq) != 'integer' OR last_seq < -1 OR last_seq > ${Number.MAX_SAFE_INTEGER}`)
+      .all() as Row[];
+    if (!bad.length) return [];
+    const valid = `typeof(s) = 'integer' AND s >= 0 AND s <= ${Number.MAX_SAFE_INTEGER}`;
+    const highest = this.db.prepare(`SELECT MAX(s) AS m FROM (
+        SELECT seq AS s FROM spectra WHERE analyzer = @a AND boot = @b
+        UNION ALL SELECT start_seq FROM batches WHERE analyzer = @a AND boot = @b
+        UNION ALL SELECT end_seq FROM batches WHERE analyzer = @a AND boot = @b AND end_seq IS NOT NULL
+        UNION ALL SELECT seq FROM analyzer_status WHERE analyzer = @a AND boot = @b
+        UNION ALL SELECT seq FROM rejected_entries WHERE analyzer = @a AND boot = @b
+      ) WHERE ${valid}`);
+    const invalidRejected = this.db.prepare(`SELECT COUNT(*) AS n FROM (SELECT seq AS s FROM rejected_entries WHERE analyzer = @a AND boot = @b) WHERE NOT (${valid})`);
+    const set = this.db.prepare('UPDATE analyzer_boots SET last_seq = ? WHERE analyzer = ? AND boot = ?');
+    return this.db.transaction(() =>
+      bad.map((r): StreamPositionRepair => {
+        const args = { a: r.analyzer, b: r.boot };
+        const now = ((highest.get(args) as Row).m as number | null) ?? -1;
+        set.run(now, r.analyzer, r.boot);
+        return { analyzer: r.analyzer, boot: r.boot, was: r.last_seq, now, invalidRejectedRows: (invalidRejected.get(args) as Row).n as number };
+      }),
+    )();
   }
 
   async commitIngest(w: IngestWrite) {

@@ -113,6 +113,18 @@ export interface AnalyzerStatusRow {
   receivedAt: number;
 }
 
+/** A stored stream position that was not a valid seq, and what it was repaired to. */
+export interface StreamPositionRepair {
+  analyzer: string;
+  boot: number;
+  /** What was stored (as SQLite held it). */
+  was: number | string | null;
+  /** The highest valid seq stored for the (analyzer, boot), -1 when none. */
+  now: number;
+  /** Refused-entry rows of the (analyzer, boot) whose seq is not a valid seq (kept for the record). */
+  invalidRejectedRows: number;
+}
+
 export interface OutboxRow {
   id: string;
   unit: string;
@@ -190,6 +202,12 @@ export interface Storage {
   upsertAnalyzerBoot(row: Omit<AnalyzerBootRow, 'lastSeq'>): Promise<AnalyzerBootRow>;
   getAnalyzerBoot(analyzer: string, boot: number): Promise<AnalyzerBootRow | null>;
   latestAnalyzerBoot(analyzer: string): Promise<AnalyzerBootRow | null>;
+  /**
+   * Stream positions (analyzer_boots.last_seq) that are not an integer -1 … 2^53 − 1 (an older
+   * version could adopt a refused entry's invalid seq): set each to the highest valid seq stored for
+   * its (analyzer, boot). Returns what was repaired (empty on a sound database).
+   */
+  repairStreamPositions(): Promise<StreamPositionRepair[]>;
 
   // ingest
   commitIngest(w: IngestWrite): Promise<void>;

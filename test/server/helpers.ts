@@ -7,6 +7,16 @@ import { loadConfig, type ServerConfigInput } from '../../server/config.ts';
 import { startServer, type TidelineServer } from '../../server/app.ts';
 import { createAnalyzerToken } from '../../server/ingest/analyzer-tokens.ts';
 import { encodeSpectrumFrame } from '../../core/protocol/binary-frame.ts';
+import type { Logger } from '../../server/logger.ts';
+
+/** A logger that keeps every line (level and text) for the test to read. */
+export function capturingLogger(): Logger & { lines: { level: string; text: string }[] } {
+  const lines: { level: string; text: string }[] = [];
+  const at = (level: string) => (text: string, extra?: unknown) => {
+    lines.push({ level, text: extra === undefined ? text : `${text} ${extra instanceof Error ? extra.message : JSON.stringify(extra)}` });
+  };
+  return { lines, error: at('error'), warn: at('warn'), info: at('info'), debug: at('debug') };
+}
 
 export interface TestServer {
   server: TidelineServer;
@@ -16,7 +26,7 @@ export interface TestServer {
   stop(): Promise<void>;
 }
 
-export async function startTestServer(overrides: ServerConfigInput = {}, opts: { dir?: string; units?: string[]; analyzer?: string; now?: () => number } = {}): Promise<TestServer> {
+export async function startTestServer(overrides: ServerConfigInput = {}, opts: { dir?: string; units?: string[]; analyzer?: string; now?: () => number; log?: Logger } = {}): Promise<TestServer> {
   const dir = opts.dir ?? mkdtempSync(join(tmpdir(), 'tideline-test-'));
   const config = loadConfig({
     overrides: {
@@ -26,7 +36,7 @@ export async function startTestServer(overrides: ServerConfigInput = {}, opts: {
       ...overrides,
     },
   });
-  const server = await startServer(config, opts.now ? { now: opts.now } : {});
+  const server = await startServer(config, { ...(opts.now ? { now: opts.now } : {}), ...(opts.log ? { log: opts.log } : {}) });
   const token = await createAnalyzerToken(server.ctx.storage, opts.analyzer ?? 'nir-1', Date.now());
   return {
     server, dir, token, wsUrl: server.url.replace('http', 'ws'),
