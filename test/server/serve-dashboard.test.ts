@@ -15,10 +15,8 @@ const tmp = mkdtempSync(join(tmpdir(), 'tideline-serve-'));
 const running: ChildProcess[] = [];
 
 afterAll(async () => {
-  for (const p of running) if (p.exitCode === null) {
-    p.kill('SIGTERM');
-    await new Promise((r) => p.once('exit', r));
-  }
+  // a child ended by a signal has exitCode null and signalCode set: only one with neither still runs
+  for (const p of running) if (p.exitCode === null && p.signalCode === null) await stop(p);
   rmSync(tmp, { recursive: true, force: true });
 });
 
@@ -45,8 +43,13 @@ async function serve(webDir: string, dataDir: string): Promise<{ url: string; ou
 }
 
 async function stop(p: ChildProcess): Promise<void> {
+  if (p.exitCode !== null || p.signalCode !== null) return;
+  const exited = new Promise((r) => p.once('exit', r));
   p.kill('SIGTERM');
-  await new Promise((r) => p.once('exit', r));
+  // a serve that does not end within 20 s of SIGTERM is killed, so the suite never hangs on it
+  const t = setTimeout(() => p.kill('SIGKILL'), 20_000);
+  await exited;
+  clearTimeout(t);
 }
 
 describe('the served dashboard after npm install', () => {
