@@ -109,6 +109,7 @@ export class EndpointTracker {
       confirmNeeded: rule.confirm,
       etaMin: done ? null : inp.eta,
       doneAt: this.doneAt,
+      holds: [],
     };
   }
 

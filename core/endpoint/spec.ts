@@ -44,6 +44,20 @@ export const endpointRuleSpecSchema = z.object({
    * shortest known endpoint). Omitted: no minimum.
    */
   minElapsedMin: z.union([z.number().finite().min(0).max(100_000), z.literal('auto')]).optional(),
+  /**
+   * Run-time guards that hold a met and confirmed rule in 'held' instead of 'done' (both on when
+   * omitted): `alarms` — while a confirmed T², Q, combined-index or envelope condition of the
+   * monitor stands; `extrapolation` — while the property prediction is outside its calibration
+   * (rules with a property criterion). See core/endpoint/endpoint-tracker.ts.
+   */
+  hold: z.object({ alarms: z.boolean().optional(), extrapolation: z.boolean().optional() }).strict().optional(),
+  /**
+   * Hysteresis of the endpoint state, in consecutive spectra (default 3; 1: every spectrum
+   * decides): a state steps back (settling or held → nearing) only after this many spectra in a
+   * row fail the rule, 'running' becomes 'nearing' only after this many say so, and the
+   * extrapolation hold is released only after this many predictions in a row inside calibration.
+   */
+  hysteresis: z.number().int().min(1).max(100).optional(),
 });
 export type EndpointRuleSpec = z.infer<typeof endpointRuleSpecSchema>;
 
@@ -61,6 +75,18 @@ export interface ResolvedEndpointRule {
   /** No 'done' before this many minutes from the batch start, and how the figure was obtained (absent in older files: none). */
   minElapsedMin?: number;
   minElapsedMethod?: string;
+  /** Guards that hold a confirmed rule (absent in older files: both on). */
+  hold?: { alarms: boolean; extrapolation: boolean };
+  /** Consecutive spectra before a state change against the trend (absent in older files: DEFAULT_HYSTERESIS). */
+  hysteresis?: number;
+}
+
+/** Hysteresis of the endpoint state when the rule does not set it, in spectra (common practice, no source: a short run that one noisy spectrum cannot make). */
+export const DEFAULT_HYSTERESIS = 3;
+
+/** The run-time parts of a rule spec, as stored in the resolved rule. */
+export function resolvedGuards(spec: EndpointRuleSpec): Pick<ResolvedEndpointRule, 'hold' | 'hysteresis'> {
+  return { hold: { alarms: spec.hold?.alarms ?? true, extrapolation: spec.hold?.extrapolation ?? true }, hysteresis: spec.hysteresis ?? DEFAULT_HYSTERESIS };
 }
 
 export function validateEndpointRuleSpec(spec: unknown): EndpointRuleSpec {

@@ -22,7 +22,7 @@
  * bracket — not provably before the true crossing — and is marked so (withinBracket).
  */
 import { EndpointTracker, type EndpointInputs } from '../endpoint/endpoint-tracker.ts';
-import type { EndpointRuleSpec, ResolvedEndpointRule } from '../endpoint/spec.ts';
+import { resolvedGuards, type EndpointRuleSpec, type ResolvedEndpointRule } from '../endpoint/spec.ts';
 import { PlateauWindow } from '../endpoint/plateau.ts';
 import { MovingBlockSd } from '../envelope/mbsd.ts';
 import type { DomainEvent } from '../monitor/types.ts';
@@ -125,7 +125,7 @@ function replay(rule: ResolvedEndpointRule, b: CheckBatch, endRegion: { mean: nu
 export function checkEndpointRule(spec: EndpointRuleSpec, batches: CheckBatch[], endValues: EndValues, opts: { A: number; confidence: number; property: PropertyContext | null }): EndpointCheck {
   const rows: EndpointCheckRow[] = batches.map((b, bi) => {
     const { criteria, endRegion, minElapsed } = resolveCriteria(spec, endValues, { ...opts, exclude: bi });
-    const rule: ResolvedEndpointRule = { criteria, combine: spec.combine, confirm: spec.confirm, nearingMin: spec.nearingMin, ...(minElapsed ? { minElapsedMin: minElapsed.value, minElapsedMethod: minElapsed.method } : {}) };
+    const rule: ResolvedEndpointRule = { criteria, combine: spec.combine, confirm: spec.confirm, nearingMin: spec.nearingMin, ...(minElapsed ? { minElapsedMin: minElapsed.value, minElapsedMethod: minElapsed.method } : {}), ...resolvedGuards(spec) };
     const k = replay(rule, b, endRegion);
     const e = b.endpoint;
     const firedIndex = k === null ? null : b.kept[k]!;

@@ -19,7 +19,7 @@ import { t2Limit, modelQLimit, combinedLimit, type Limit } from '../limits/index
 import { buildEnvelope, type Envelope, type ReferenceTrajectory } from '../envelope/envelope.ts';
 import { newObservationMultiplier } from '../envelope/band.ts';
 import { progressOf, type ProgressAxis } from '../envelope/progress.ts';
-import type { ResolvedEndpointRule } from '../endpoint/spec.ts';
+import { resolvedGuards, type ResolvedEndpointRule } from '../endpoint/spec.ts';
 import { readModelFile, writeModelFile } from './model-file.ts';
 import { parseStoredSettings, resolveBuildSettings, type BuildSettings } from './build-settings.ts';
 import { fitPropertyModel, loadPropertyModel, type PropertyFit, type PropertyModel } from './property-model.ts';
@@ -293,6 +293,7 @@ export function buildMonitoringModel(batches: ReferenceBatch[], settingsInput: u
   const endpoint: ResolvedEndpointRule = {
     criteria, combine: settings.endpoint.combine, confirm: settings.endpoint.confirm, nearingMin: settings.endpoint.nearingMin,
     ...(minElapsed ? { minElapsedMin: minElapsed.value, minElapsedMethod: minElapsed.method } : {}),
+    ...resolvedGuards(settings.endpoint),
   };
 
   if (ends.missing.size) {
@@ -383,7 +384,7 @@ const bodySchema = z.object({
   limits: z.object({ t2: limitSchema, q: limitSchema, combined: limitSchema }),
   alarmLimits: z.object({ confidence: z.number().gt(0).lt(1), t2: limitSchema, q: limitSchema, combined: limitSchema, envelopeK: num.positive(), envelopeKMethod: z.string() }).optional(),
   envelope: envelopeSchema,
-  endpoint: z.object({ criteria: z.array(criterionSchema).min(1), combine: z.enum(['all', 'any']), confirm: z.number().int().min(1), nearingMin: num, minElapsedMin: num.nonnegative().optional(), minElapsedMethod: z.string().optional() }),
+  endpoint: z.object({ criteria: z.array(criterionSchema).min(1), combine: z.enum(['all', 'any']), confirm: z.number().int().min(1), nearingMin: num, minElapsedMin: num.nonnegative().optional(), minElapsedMethod: z.string().optional(), hold: z.object({ alarms: z.boolean(), extrapolation: z.boolean() }).optional(), hysteresis: z.number().int().min(1).optional() }),
   pls: z.unknown().optional(),
   meta: z.object({
     batches: z.array(z.object({ id: z.string(), spectra: z.number().int(), excluded: z.number().int(), durationMin: num, endMin: num.nullable() })),

@@ -6,9 +6,22 @@
  * Times are ms since the Unix epoch (UTC) unless a name says otherwise (…Min = minutes).
  */
 
-/** Endpoint states, in order. 'signalled' is set by the server once the signal has gone out. */
-export const ENDPOINT_STATES = ['running', 'nearing', 'settling', 'done', 'signalled'] as const;
+/**
+ * Endpoint states, in order. 'held': the rule is met and confirmed but a guard stands (minimum
+ * time not reached, a confirmed alarm standing, the property prediction outside its calibration);
+ * never signalled as done. 'signalled' is set by the server once the signal has gone out.
+ */
+export const ENDPOINT_STATES = ['running', 'nearing', 'settling', 'held', 'done', 'signalled'] as const;
 export type EndpointState = (typeof ENDPOINT_STATES)[number];
+
+/** Why a met and confirmed endpoint is held (state 'held'). */
+export const ENDPOINT_HOLD_CODES = ['min-elapsed', 'alarm', 'extrapolating'] as const;
+export type EndpointHoldCode = (typeof ENDPOINT_HOLD_CODES)[number];
+export interface EndpointHold {
+  code: EndpointHoldCode;
+  /** Plain words, e.g. 'T² above its limit (alarm standing since 10:42)'. */
+  text: string;
+}
 
 /** Conditions the monitor itself raises (on-delay / off-delay applied in core). */
 export const CONDITION_KINDS = ['t2', 'q', 'combined', 'envelope', 'property'] as const;
@@ -74,6 +87,8 @@ export interface EndpointStatus {
   etaMin: { median: number; low: number; high: number } | null;
   /** Set once state reaches 'done': the time and seq of the spectrum that completed confirmation. */
   doneAt: { t: number; seq: number; reason: string } | null;
+  /** The guards holding the endpoint: non-empty exactly when state is 'held'. Absent in results stored before holds existed (none). */
+  holds?: EndpointHold[];
 }
 
 export interface PropertyPrediction {
@@ -140,5 +155,5 @@ export interface Contributions {
 
 /** Events emitted by core for the outbox (server adds id and per-unit sequence). */
 export type DomainEvent =
-  | { type: 'endpoint-state'; from: EndpointState; to: EndpointState; t: number; seq: number; reason: string }
+  | { type: 'endpoint-state'; from: EndpointState; to: EndpointState; t: number; seq: number; reason: string; holds?: EndpointHold[] }
   | { type: 'condition'; change: ConditionChange; t: number; seq: number };

@@ -7,6 +7,7 @@ export const ENDPOINT_WORDS: Record<EndpointState, { text: string; tone: StatusT
   running: { text: 'running', tone: 'info', help: 'endpoint criteria not yet met' },
   nearing: { text: 'nearing', tone: 'info', help: 'approaching the endpoint; time to endpoint estimated' },
   settling: { text: 'settling', tone: 'warn', help: 'criteria met; waiting for confirmation over consecutive spectra' },
+  held: { text: 'held', tone: 'warn', help: 'endpoint rule met and confirmed, but not released: a guard stands (see its reasons)' },
   done: { text: 'done', tone: 'ok', help: 'endpoint confirmed' },
   signalled: { text: 'signalled', tone: 'ok', help: 'endpoint confirmed and sent to the control system' },
 };

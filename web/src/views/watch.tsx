@@ -342,7 +342,7 @@ export function EndpointPanel({ ep, s }: { ep: EndpointStatus | null; s: LiveSta
         </Badge>
       </div>
       <ol class="states" aria-label="endpoint states">
-        {(['running', 'nearing', 'settling', 'done', 'signalled'] as const).map((st) => (
+        {(['running', 'nearing', 'settling', 'held', 'done', 'signalled'] as const).map((st) => (
           <li key={st} class={st === ep.state ? 'current' : ''} aria-current={st === ep.state ? 'step' : undefined}>
             {st}
           </li>
