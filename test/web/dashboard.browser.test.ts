@@ -196,38 +196,77 @@ describe.skipIf(!haveChromium)('dashboard in headless Chromium', () => {
     await shot('watch-alarm-acknowledged');
   }, 300_000);
 
-  it('builds and approves a model in Model bench', async () => {
+  it('builds a model with an endpoint rule in Model bench, shows its leave-one-batch-out check and refuses an early rule without a signed reason', async () => {
     await page.getByRole('link', { name: 'Model bench' }).click();
     await page.getByTestId('builder').waitFor();
     await page.getByLabel('Product').selectOption('granule A');
-    const refs = page.locator('[data-testid^="ref-dryer"]');
+    // three of the demo's simulated reference batches; their stored spectra carry no lab values, so
+    // their endpoints are marked: two early in the drying, one late — the rule calibrated on the
+    // other two then reaches done early on the late one when it is left out
+    const refs = page.locator('[data-testid^="ref-dryer-s"]');
     await expect.poll(() => refs.count(), { timeout: 60_000 }).toBeGreaterThanOrEqual(3);
-    for (let i = 0; i < 3; i++) await refs.nth(i).check();
-    // The demo's stored batches carry no lab values: the endpoint of each reference batch is marked
-    // (the default rule's automatic MBSD threshold is calibrated there; never the last spectrum by assumption).
-    for (let i = 0; i < 3; i++) {
+    const ids: string[] = [];
+    for (const [i, mark] of ['20', '20', '55'].entries()) {
+      await refs.nth(i).check();
       const id = (await refs.nth(i).getAttribute('data-testid'))!.slice('ref-'.length);
-      await page.getByTestId(`end-${id}`).fill('50');
+      ids.push(id);
+      await page.getByTestId(`end-${id}`).fill(mark);
     }
     await page.getByLabel('Model name').fill('dryer-test-model');
     await page.getByLabel('Components').selectOption('2');
+    // a property model needs lab values: the build's refusal is a sentence beside the property field
+    const prop = page.getByTestId('property-fields');
+    await prop.getByRole('checkbox').check();
+    await prop.getByRole('textbox').first().fill('moisture');
+    await prop.getByLabel('Unit').fill('% w/w');
+    await page.getByTestId('criterion-property').waitFor();
+    // a target left out is found before anything is sent, beside the target field
+    await page.getByTestId('build').click();
+    await prop.getByTestId('field-error').getByText('The endpoint rule watches the predicted moisture: give its target, e.g. 2.').waitFor();
+    await prop.getByLabel('target value').fill('2');
+    await page.getByTestId('build').click();
+    await prop.getByTestId('field-error').getByText(/has lab values of moisture/).waitFor({ timeout: 120_000 });
+    await shot('bench-property-refused');
+    await prop.getByRole('checkbox').uncheck();
+    const rule = page.getByTestId('endpoint-rule-fields');
+    await rule.getByLabel('confirm over spectra').fill('0');
+    await page.getByTestId('build').click();
+    await rule.getByText('Confirm over: a whole number of consecutive spectra from 1 to 100.').waitFor();
+    await rule.getByLabel('confirm over spectra').fill('2');
+    await rule.getByText(/Tideline advises/).waitFor();
     await page.getByTestId('build').click();
     await page.getByTestId('version-detail').waitFor({ timeout: 120_000 });
     await page.getByTestId('explained-chart').locator('canvas').waitFor();
     await page.getByTestId('envelope-preview').locator('canvas').first().waitFor();
     // built with the form's default alarm confidence, 99.9 % over the 99 % limits drawn
     await page.getByTestId('alarm-limits').getByText(/T² alarm limit \(99\.9 %\)/).waitFor();
+    // the resolved rule with its threshold and how it was obtained, the minimum time, the caution
+    const ruleView = page.getByTestId('endpoint-rule');
+    await ruleView.getByText(/moving-block SD over 5 spectra/).waitFor();
+    await ruleView.getByText(/^'auto'/).waitFor();
+    await ruleView.getByTestId('min-elapsed').getByText(/'auto'/).waitFor();
+    await ruleView.getByText(/Tideline advises/).waitFor();
+    // the leave-one-batch-out table: one row per reference batch, the late-marked one early
+    const check = page.getByTestId('endpoint-check-table');
+    for (const id of ids) await check.getByTestId(`check-${id}`).waitFor();
+    await check.getByTestId(`check-${ids[2]}`).locator('.badge', { hasText: 'early' }).waitFor();
+    await expect(check.getByTestId(`check-${ids[2]}`).textContent()).resolves.toMatch(/55\.0.*marked.*\d+ intervals \([\d.]+ min\) early/);
     await shot('bench-draft');
+    // approval without the override reason is refused, with the sentence beside the field
     const approve = page.getByTestId('approve');
+    await approve.getByTestId('early-endpoint').waitFor();
     await approve.getByLabel(/^Reason/).fill('browser test: evaluated on the demo reference set');
-    // where the leave-one-batch-out endpoint check calls a reference batch early, approval needs a signed override reason
-    if (await approve.getByTestId('early-endpoint').count()) await approve.getByLabel(/Override reason/).fill('browser test: the demo endpoint only advises');
     await approve.getByLabel(/Password/).fill(password);
     await approve.getByRole('button', { name: 'Approve' }).click();
+    await approve.getByTestId('field-error').getByText(/^▲ Not approved: the rule reached done early on 1 reference batch/).waitFor();
+    expect(await page.getByTestId('version-detail').locator('.panel-head h2 .badge').first().textContent()).toContain('draft');
+    await approve.getByLabel(/Override reason/).fill('browser test: the demo endpoint only advises');
+    await approve.getByRole('button', { name: 'Approve' }).click();
     await page.getByTestId('version-detail').locator('.panel-head h2 .badge', { hasText: 'approved' }).first().waitFor({ timeout: 30_000 });
+    await page.getByTestId('signed-override').getByText(/the demo endpoint only advises/).waitFor();
     await shot('bench-approved');
     expect(pageErrors.join("\n")).toBe("");
-  }, 240_000);
+  }, 360_000);
 
   it('opens a finished batch in Review', async () => {
     await page.getByRole('link', { name: 'Review' }).click();

@@ -4,7 +4,7 @@ import type { Route } from './router.ts';
 import { VIEW_TITLES, href, parseHash } from './router.ts';
 import { Floor } from './views/floor.tsx';
 import { Watch } from './views/watch.tsx';
-import { ModelBench } from './views/model-bench.tsx';
+import { ModelBench } from './views/bench/index.tsx';
 import { Review } from './views/review.tsx';
 import { Ledger } from './views/ledger.tsx';
 import { Empty, ErrorBox } from './components/status.tsx';

@@ -1,0 +1,91 @@
+/** Version page: approval with an electronic signature; an early-firing endpoint rule needs a signed override reason. */
+import { useState } from 'preact/hooks';
+import type { ModelVersionDetail } from '../../../../core/api/rest.ts';
+import { api } from '../../api/endpoints.ts';
+import { errorText } from '../../api/problem.ts';
+import type { Me } from '../../api/session.ts';
+import { Badge, ErrorBox } from '../../components/status.tsx';
+import { fixed } from '../../format/number-format.ts';
+import { StatusBadge } from './model-list.tsx';
+import { FieldError } from './field-error.tsx';
+
+export function Approve({ d, me, onDone }: { d: ModelVersionDetail; me: Me | null; onDone: () => void }) {
+  const [reason, setReason] = useState('');
+  const [override, setOverride] = useState('');
+  const [password, setPassword] = useState('');
+  // The leave-one-batch-out endpoint check: a rule that reached done early on a reference batch
+  // needs a signed override reason.
+  const early = (d.endpointCheck?.rows ?? []).filter((r) => r.verdict === 'early');
+  const [error, setError] = useState<string | null>(null);
+  const [overrideError, setOverrideError] = useState<string | null>(null);
+  const [busy, setBusy] = useState(false);
+  if (d.status !== 'draft')
+    return (
+      <div class="panel">
+        <h3>Approval</h3>
+        <p>
+          This version is <StatusBadge status={d.status} />. An approved version cannot change; build a new version to change anything.
+        </p>
+      </div>
+    );
+  return (
+    <form
+      class="panel"
+      data-testid="approve"
+      onSubmit={async (e) => {
+        e.preventDefault();
+        setError(null);
+        setOverrideError(null);
+        if (early.length > 0 && !override.trim()) {
+          setOverrideError(
+            `Not approved: the rule reached done early on ${early.length} reference batch${early.length === 1 ? '' : 'es'}. Give the reason it may be used all the same; it is signed with the approval.`,
+          );
+          return;
+        }
+        setBusy(true);
+        try {
+          await api.approve(d.versionId, reason, password || undefined, early.length ? override : undefined);
+          onDone();
+        } catch (err) {
+          const t = errorText(err);
+          if (/override/i.test(t)) setOverrideError(t);
+          else setError(t);
+        } finally {
+          setBusy(false);
+        }
+      }}
+    >
+      <h3>Approve this version</h3>
+      <p class="small">
+        Approving signs the version (hash {d.sha256.slice(0, 12)}…) as {me ? `${me.user.fullName} (${me.user.role})` : 'the signed-in user'}. It then cannot change.
+      </p>
+      <label class="block">
+        Reason (required){' '}
+        <textarea rows={2} required value={reason} onInput={(e) => setReason((e.target as HTMLTextAreaElement).value)} placeholder="e.g. evaluated on 4 held-out good and 2 faulty batches; no false alarms" />
+      </label>
+      {early.length > 0 && (
+        <div class="early-endpoint" data-testid="early-endpoint">
+          <p class="small">
+            <Badge tone="warn">early endpoint</Badge> Replayed leave-one-batch-out, the endpoint rule reached done before the known endpoint on {early.length} of{' '}
+            {d.endpointCheck!.rows.length} reference batches:{' '}
+            {early.map((r) => `${r.batch} ${-r.intervals!} interval${r.intervals === -1 ? '' : 's'} (${fixed(-r.minutes!, 1)} min) early${r.withinBracket ? ', inside its lab bracket' : ''}`).join('; ')}. An endpoint signal may stop the unit:
+            approving this rule needs your reason, signed with the approval.
+          </p>
+          <label class="block">
+            Override reason (required){' '}
+            <textarea rows={2} value={override} onInput={(e) => setOverride((e.target as HTMLTextAreaElement).value)} placeholder="why this rule may be used although it fires early on reference batches" />
+          </label>
+          <FieldError text={overrideError ?? undefined} />
+        </div>
+      )}
+      <label class="block">
+        Password (re-enter to sign) <input type="password" autocomplete="current-password" value={password} onInput={(e) => setPassword((e.target as HTMLInputElement).value)} />
+      </label>
+      <button class="btn primary" type="submit" disabled={busy || !reason.trim()}>
+        Approve
+      </button>
+      {error && <ErrorBox message={error} />}
+      <p class="muted small">A model must be validated under the site's quality system before it is used for release decisions.</p>
+    </form>
+  );
+}

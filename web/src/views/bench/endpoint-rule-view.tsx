@@ -1,0 +1,53 @@
+/** Version page: the endpoint rule as resolved at build — every threshold and how it was obtained. */
+import type { EndpointRuleView } from '../../../../core/api/rest.ts';
+import { Advisory } from '../../components/status.tsx';
+import { sig } from '../../format/number-format.ts';
+import { CRITERION_LABEL } from './form-data.ts';
+
+export function EndpointRulePanel({ rule }: { rule: EndpointRuleView | null }) {
+  return (
+    <div class="panel" data-testid="endpoint-rule">
+      <h3>Endpoint rule</h3>
+      {!rule ? (
+        <p class="muted">This server could not read the model's endpoint rule.</p>
+      ) : (
+        <>
+          <p>
+            Done when {rule.combine === 'all' ? 'every criterion holds' : 'any one criterion holds'} on {rule.confirm} consecutive spectr{rule.confirm === 1 ? 'um' : 'a'}; "nearing" from{' '}
+            {sig(rule.nearingMin)} min before the estimated endpoint.
+          </p>
+          <p data-testid="min-elapsed">
+            {rule.minElapsedMin > 0 ? (
+              <>
+                No "done" before {sig(rule.minElapsedMin)} min from the batch start — {rule.minElapsedMethod}.
+              </>
+            ) : (
+              <>No minimum time before "done" ({rule.minElapsedMethod}).</>
+            )}
+          </p>
+          <table class="criteria">
+            <thead>
+              <tr>
+                <th scope="col">criterion</th>
+                <th scope="col">rule</th>
+                <th scope="col" class="num">threshold</th>
+                <th scope="col">how the threshold was obtained</th>
+              </tr>
+            </thead>
+            <tbody>
+              {rule.criteria.map((c) => (
+                <tr key={c.kind}>
+                  <td>{CRITERION_LABEL[c.kind]}</td>
+                  <td>{c.text}</td>
+                  <td class="num">{sig(c.threshold, 4)}</td>
+                  <td class="small">{c.method}</td>
+                </tr>
+              ))}
+            </tbody>
+          </table>
+        </>
+      )}
+      <Advisory text={rule?.caution} />
+    </div>
+  );
+}
