@@ -35,6 +35,8 @@
  * | POST   | /api/alarms/:alarm/shelve                         | Alarm (ShelveAlarmRequest)   |
  * | POST   | /api/alarms/:alarm/unshelve                       | Alarm                        |
  * | GET    | /api/batches/:batch/endpoint-events               | Page<EndpointEventRecord>    |
+ * | GET    | /api/batches/:batch/lab-values                    | BatchLabValues               |
+ * | POST   | /api/batches/:batch/lab-values                    | LabValueView (AddLabValueRequest) |
  */
 import type {
   AlarmKind,
@@ -223,6 +225,80 @@ export interface BatchDetail extends BatchSummary {
   endpoint: EndpointStatus | null;
   endpointEvents: EndpointEventRecord[];
   alarms: Alarm[];
+  /** The batch's laboratory values, every one ever entered (corrected ones too, marked), oldest first. */
+  labValues: LabValueView[];
+}
+
+// ---- laboratory values ------------------------------------------------------------------------
+
+/** Where a lab value came from: a column of an imported spectra file, or entered later (REST, CLI, Review). */
+export type LabValueSource = 'import' | 'entry';
+
+/**
+ * One laboratory (reference-method) value of a batch, as stored. Append-only: a value is never
+ * changed; a correction is a new value that `supersedes` it, with a `reason`.
+ */
+export interface LabValueRecord {
+  id: string;
+  batch: string;
+  /** Normalised property name, e.g. `moisture`. */
+  property: string;
+  value: number;
+  /** e.g. `% w/w`; '' when the property has no unit. */
+  unit: string;
+  /** When the sample was taken, ms epoch. */
+  sampleT: number;
+  /** Index (0-based) of the batch's spectrum nearest the sample time. */
+  spectrumIdx: number;
+  /** |sampleT − that spectrum's time|, ms. */
+  spectrumDtMs: number;
+  /** Reference method, e.g. `LOD`; null when not given. */
+  method: string | null;
+  enteredBy: string;
+  enteredAt: number;
+  source: LabValueSource;
+  /** Id of the earlier value this one corrects, or null. */
+  supersedes: string | null;
+  /** Why (required for a correction). */
+  reason: string | null;
+}
+
+export interface LabValueView extends LabValueRecord {
+  /** Time of the matched spectrum, ms epoch. */
+  spectrumT: number;
+  /** Sample time in minutes after the batch start. */
+  elapsedMin: number;
+  /** The value in force: not superseded by a later correction. */
+  effective: boolean;
+  /** Id of the correction that superseded this value, or null. */
+  supersededBy: string | null;
+}
+
+/** Answer of GET /api/batches/:batch/lab-values. */
+export interface BatchLabValues {
+  batch: string;
+  /** Longest allowed distance between a sample time and its spectrum, ms (configuration lab.matchToleranceMs). */
+  matchToleranceMs: number;
+  /** Every value ever entered, oldest first (see LabValueView.effective). */
+  items: LabValueView[];
+  /** Per property: its unit and the number of effective values. */
+  properties: { name: string; unit: string; values: number }[];
+}
+
+/**
+ * Body of POST /api/batches/:batch/lab-values. The sample time is given once: `sampleT` (ms epoch
+ * or ISO 8601) or `elapsedMin` (minutes after the batch start).
+ */
+export interface AddLabValueRequest {
+  property: string;
+  value: number;
+  unit: string;
+  sampleT?: number | string;
+  elapsedMin?: number;
+  method?: string;
+  /** Id of the value this one corrects; needs `reason`. */
+  supersedes?: string;
+  reason?: string;
 }
 
 export interface SpectrumRecord {

@@ -1,5 +1,6 @@
 /** Builds the REST/live view objects (core/api) from storage rows and pipeline state. */
-import type { AnalyzerSummary, BatchDetail, BatchSummary, Deployment, ModelRef, ModelVersionSummary } from '../../core/api/rest.ts';
+import type { AnalyzerSummary, BatchDetail, BatchSummary, Deployment, LabValueView, ModelRef, ModelVersionSummary } from '../../core/api/rest.ts';
+import { labValueViews } from '../../core/lab/lab-values.ts';
 import type { IngestPipeline } from '../ingest/pipeline.ts';
 import { modelSignatures } from '../auth/model-signatures.ts';
 import type { AnalyzerRow, BatchRow, DeploymentRow, ModelVersionRow, Storage } from '../storage/storage.ts';
@@ -28,6 +29,13 @@ export async function batchSummary(storage: Storage, pipeline: IngestPipeline, r
   };
 }
 
+/** A batch's lab values as the API serves them (with their spectrum's time and whether each is in force). */
+export async function batchLabValueViews(storage: Storage, row: BatchRow): Promise<LabValueView[]> {
+  const rows = await storage.listLabValues(row.id);
+  if (rows.length === 0) return [];
+  return labValueViews(rows, await storage.spectrumTimes(row.id), row.startT);
+}
+
 export async function batchDetail(storage: Storage, pipeline: IngestPipeline, row: BatchRow): Promise<BatchDetail> {
   const s = await batchSummary(storage, pipeline, row);
   const ob = row.status === 'open' ? pipeline.openBatchById(row.id) : null;
@@ -41,6 +49,7 @@ export async function batchDetail(storage: Storage, pipeline: IngestPipeline, ro
     endpoint: latest ? { ...latest.endpoint, state: s.endpointState ?? latest.endpoint.state } : null,
     endpointEvents: events,
     alarms: pipeline.withActivity(alarms.items),
+    labValues: await batchLabValueViews(storage, row),
   };
 }
 

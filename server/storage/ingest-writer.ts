@@ -38,6 +38,8 @@ export const INGEST_SQL = {
   insertEndpointEvent: `INSERT INTO endpoint_events (id, unit, batch, from_state, to_state, t, seq, reason, recorded_at)
         VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?)`,
   insertOutbox: 'INSERT INTO outbox (id, unit, unit_seq, type, payload, created_at) VALUES (?, ?, ?, ?, ?, ?)',
+  insertLabValue: `INSERT INTO lab_values (id, batch, property, value, unit, sample_t, spectrum_idx, spectrum_dt_ms, method, entered_by, entered_at, source, supersedes, reason)
+        VALUES (@id, @batch, @property, @value, @unit, @sampleT, @spectrumIdx, @spectrumDtMs, @method, @enteredBy, @enteredAt, @source, @supersedes, @reason)`,
   bootSeq: 'UPDATE analyzer_boots SET last_seq = MAX(last_seq, ?), last_seen = ? WHERE analyzer = ? AND boot = ?',
 } as const;
 
@@ -57,6 +59,7 @@ const commit = db.transaction((w) => {
   for (const b of w.batchStarts) s.insertBatch.run(b.id, b.unit, b.analyzer, b.boot, b.product, b.startSeq, b.startT, blob(Float64Array.from(b.axis)), b.modelVersion, b.createdAt);
   for (const r of w.rejected) s.insertRejected.run(r.analyzer, r.boot, r.seq, r.code, r.message, r.receivedAt);
   for (const x of w.spectra) s.insertSpectrum.run(x.batch, x.idx, x.analyzer, x.boot, x.seq, x.t, blob(x.values), x.receivedAt);
+  for (const v of (w.labValues || [])) s.insertLabValue.run(v);
   for (const r of w.results) s.insertResult.run(r.batch, r.idx, r.result.seq, r.result.t, r.modelVersion, r.result.t2, r.result.q, JSON.stringify(r.result));
   for (const p of w.batchProgress) s.batchProgress.run(p.spectrumCount, p.lastSeq, p.lastT, p.endpointState, p.endpointAt, p.batch);
   for (const e of w.batchEnds) s.batchEnd.run(e.endSeq, e.endT, e.endReason, e.batch);

@@ -6,6 +6,7 @@ import Database from 'better-sqlite3';
 import { mkdirSync } from 'node:fs';
 import { dirname } from 'node:path';
 import type { Alarm, EvaluationResult } from '../../core/api/rest.ts';
+import { checkLabValueAdditions } from '../../core/lab/lab-values.ts';
 import type { MonitorResult } from '../../core/monitor/types.ts';
 import { migrate } from './migrate.ts';
 import { startCheckpointer, type Checkpointer } from './checkpointer.ts';
@@ -20,6 +21,7 @@ import type {
   DeploymentRow,
   EndpointEventRow,
   IngestWrite,
+  LabValueRow,
   ModelVersionRow,
   OutboxRow,
   SpectrumRow,
@@ -76,6 +78,13 @@ function alarmFromRow(r: Row): Alarm {
     suppressedBy: r.suppressed_by ? (String(r.suppressed_by).split(',') as Alarm['suppressedBy']) : [],
   };
 }
+function labValueFromRow(r: Row): LabValueRow {
+  return {
+    id: r.id, batch: r.batch, property: r.property, value: r.value, unit: r.unit, sampleT: r.sample_t, spectrumIdx: r.spectrum_idx,
+    spectrumDtMs: r.spectrum_dt_ms, method: r.method, enteredBy: r.entered_by, enteredAt: r.entered_at, source: r.source,
+    supersedes: r.supersedes, reason: r.reason,
+  };
+}
 function deploymentFromRow(r: Row): DeploymentRow {
   return { id: r.id, unit: r.unit, modelVersion: r.model_version, deployedAt: r.deployed_at, deployedBy: r.deployed_by, reason: r.reason, endedAt: r.ended_at };
 }
@@ -103,6 +112,7 @@ export class SqliteStorage implements Storage {
   private readonly st: Record<string, Database.Statement>;
   private readonly commitTx: (w: IngestWrite) => void;
   private readonly saveAlarmTx: (a: Alarm, o?: OutboxRow) => void;
+  private readonly addLabTx: Database.Transaction<(rows: LabValueRow[], within?: (rows: LabValueRow[]) => void) => void>;
   private checkpointer: Checkpointer | null = null;
   private writer: IngestWriter | null = null;
 
@@ -177,6 +187,9 @@ export class SqliteStorage implements Storage {
       getAlarm: p('SELECT * FROM alarms WHERE id = ?'),
       liveAlarms: p(`SELECT * FROM alarms WHERE state != 'normal' OR shelved_until IS NOT NULL OR (active = 1 AND suppressed_by != '')`),
       endpointEvents: p('SELECT * FROM endpoint_events WHERE batch = ? ORDER BY t, seq'),
+      insertLabValue: p(INGEST_SQL.insertLabValue),
+      labValues: p('SELECT * FROM lab_values WHERE batch = ? ORDER BY rowid'),
+      spectrumTimes: p('SELECT t FROM spectra WHERE batch = ? ORDER BY idx'),
       insertAudit: p('INSERT INTO audit (at, user, action, object, before, after, reason) VALUES (?, ?, ?, ?, ?, ?, ?)'),
     };
     const s = this.st;
@@ -186,6 +199,7 @@ export class SqliteStorage implements Storage {
       }
       for (const r of w.rejected) s.insertRejected.run(r.analyzer, r.boot, r.seq, r.code, r.message, r.receivedAt);
       for (const x of w.spectra) s.insertSpectrum.run(x.batch, x.idx, x.analyzer, x.boot, x.seq, x.t, f32Blob(x.values), x.receivedAt);
+      for (const v of w.labValues ?? []) s.insertLabValue.run(v);
       for (const r of w.results) {
         s.insertResult.run(r.batch, r.idx, r.result.seq, r.result.t, r.modelVersion, r.result.t2, r.result.q, JSON.stringify(r.result));
       }
@@ -196,6 +210,13 @@ export class SqliteStorage implements Storage {
       for (const e of w.endpointEvents) s.insertEndpointEvent.run(e.id, e.unit, e.batch, e.from, e.to, e.t, e.seq, e.reason, e.recordedAt);
       for (const o of w.outbox) s.insertOutbox.run(o.id, o.unit, o.unitSeq, o.type, JSON.stringify(o.payload), o.createdAt);
       for (const b of w.boots) s.bootSeq.run(b.lastSeq, b.lastSeen, b.analyzer, b.boot);
+    });
+    this.addLabTx = this.db.transaction((rows: LabValueRow[], within?: (rows: LabValueRow[]) => void) => {
+      const existing: LabValueRow[] = [];
+      for (const b of new Set(rows.map((r) => r.batch))) existing.push(...(s.labValues.all(b) as Row[]).map(labValueFromRow));
+      checkLabValueAdditions(existing, rows);
+      for (const v of rows) s.insertLabValue.run(v);
+      within?.(rows);
     });
     this.saveAlarmTx = this.db.transaction((a: Alarm, o?: OutboxRow) => {
       s.upsertAlarm.run(alarmParams(a));
@@ -332,6 +353,9 @@ export class SqliteStorage implements Storage {
   async readSpectra(batch: string, fromSeq: number, toSeq: number, limit: number) {
     return (this.st.readSpectra.all(batch, fromSeq, toSeq, limit) as Row[]).map(spectrumFromRow);
   }
+  async spectrumTimes(batch: string) {
+    return Float64Array.from((this.st.spectrumTimes.all(batch) as Row[]).map((r) => r.t as number));
+  }
   async *iterateSpectra(batch: string, pageSize = 2000): AsyncIterable<SpectrumRow> {
     let idx = 0;
     for (;;) {
@@ -446,6 +470,15 @@ export class SqliteStorage implements Storage {
     return (this.st.endpointEvents.all(batch) as Row[]).map(
       (r): EndpointEventRow => ({ id: r.id, unit: r.unit, batch: r.batch, from: r.from_state, to: r.to_state, t: r.t, seq: r.seq, reason: r.reason, recordedAt: r.recorded_at }),
     );
+  }
+  async addLabValues(rows: LabValueRow[], within?: (rows: LabValueRow[]) => void) {
+    if (rows.length === 0) return;
+    // BEGIN IMMEDIATE: a second process (the CLI beside the server) waits for the write lock
+    // instead of checking against values that are about to change.
+    this.addLabTx.immediate(rows, within);
+  }
+  async listLabValues(batch: string) {
+    return (this.st.labValues.all(batch) as Row[]).map(labValueFromRow);
   }
   async appendAudit(r: AuditRow) {
     this.st.insertAudit.run(r.at, r.user, r.action, r.object, r.before === undefined ? null : JSON.stringify(r.before),

@@ -5,7 +5,7 @@
  *
  * Raw spectra are the record: nothing here changes or deletes them.
  */
-import type { Alarm, EndpointEventRecord, EvaluationResult, ModelVersionStatus } from '../../core/api/rest.ts';
+import type { Alarm, EndpointEventRecord, EvaluationResult, LabValueRecord, ModelVersionStatus } from '../../core/api/rest.ts';
 import type { EndpointState, MonitorResult } from '../../core/monitor/types.ts';
 import type { Ne107Category } from '../../core/protocol/ingest-messages.ts';
 
@@ -95,6 +95,9 @@ export interface DeploymentRow {
   endedAt: number | null;
 }
 
+/** Stored lab values have exactly the shape the API serves (core/api/rest.ts LabValueRecord). */
+export type LabValueRow = LabValueRecord;
+
 /** Stored endpoint events have exactly the shape the API serves. */
 export type EndpointEventRow = EndpointEventRecord;
 
@@ -157,10 +160,16 @@ export interface IngestWrite {
   alarms: Alarm[];
   endpointEvents: EndpointEventRow[];
   outbox: OutboxRow[];
+  /**
+   * Lab values of spectra written in this commit (an import's property columns), after the spectra.
+   * The caller checks them first (core/lab/lab-values.ts checkLabValueAdditions); the table's own
+   * constraints (spectrum exists, a value corrected once, append-only) still hold.
+   */
+  labValues: LabValueRow[];
 }
 
 export function emptyIngestWrite(): IngestWrite {
-  return { boots: [], rejected: [], batchStarts: [], spectra: [], results: [], batchProgress: [], batchEnds: [], analyzerStatus: [], alarms: [], endpointEvents: [], outbox: [] };
+  return { boots: [], rejected: [], batchStarts: [], spectra: [], results: [], batchProgress: [], batchEnds: [], analyzerStatus: [], alarms: [], endpointEvents: [], outbox: [], labValues: [] };
 }
 
 export interface BatchFilter {
@@ -223,6 +232,8 @@ export interface Storage {
   listBatches(f: BatchFilter): Promise<{ items: BatchRow[]; total: number }>;
   openBatches(): Promise<BatchRow[]>;
   readSpectra(batch: string, fromSeq: number, toSeq: number, limit: number): Promise<SpectrumRow[]>;
+  /** The times of a batch's spectra by index (ms epoch), without their values. */
+  spectrumTimes(batch: string): Promise<Float64Array>;
   /** Every spectrum of a batch in order, as a stream of pages (for replay). */
   iterateSpectra(batch: string, pageSize?: number): AsyncIterable<SpectrumRow>;
   getSpectrumBySeq(batch: string, seq: number): Promise<SpectrumRow | null>;
@@ -252,6 +263,17 @@ export interface Storage {
   liveAlarms(): Promise<Alarm[]>;
   saveAlarm(a: Alarm, outbox?: OutboxRow): Promise<void>;
   listEndpointEvents(batch: string): Promise<EndpointEventRow[]>;
+
+  // laboratory values (append-only; core/lab/lab-values.ts has the rules)
+  /**
+   * Add lab values in one transaction, checked against the stored ones (never overwriting: a value
+   * on a spectrum that has one is refused unless it supersedes it; a correction needs a reason).
+   * Throws LabValueError. `within` runs inside the same transaction after the rows are written (the
+   * audit record): if it throws, nothing is stored.
+   */
+  addLabValues(rows: LabValueRow[], within?: (rows: LabValueRow[]) => void): Promise<void>;
+  /** Every lab value of a batch, oldest first (corrections after what they correct). */
+  listLabValues(batch: string): Promise<LabValueRow[]>;
 
   // audit (plain rows until server/audit takes over)
   appendAudit(r: AuditRow): Promise<void>;

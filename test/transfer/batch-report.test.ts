@@ -25,7 +25,7 @@ function data(): BatchReportData {
     batch: {
       id: 'D-0042', unit: 'dryer-1', product: 'granule-A', analyzer: 'nir-1', status: 'ended', startedAt: results[0]!.t, endedAt: results[59]!.t,
       endReason: 'operator', spectrumCount: 60, firstSeq: 0, lastSeq: 59, lastT: results[59]!.t, model: null, endpointState: 'done', endpointAt: null,
-      alarmCount: 1, activeAlarms: 0, axis: [1000, 1010], latestResult: results[59]!, endpoint: null, endpointEvents: [], alarms: [],
+      alarmCount: 1, activeAlarms: 0, axis: [1000, 1010], latestResult: results[59]!, endpoint: null, endpointEvents: [], alarms: [], labValues: [],
     },
     model: null,
     envelope: { versionId: 'v', progressKind: 'time', progressUnit: 'min', progress, scores: [{ pc: 1, expected: progress.map((p) => 10 - 1.8 * p), lower: progress.map((p) => 8 - 1.8 * p), upper: progress.map((p) => 12 - 1.8 * p) }], local: null, limits: { t2: 11.3, q: 1.1, combined: null, confidence: 0.99 }, references: [] },
