@@ -277,6 +277,8 @@ describe.skipIf(!haveChromium)('dashboard in headless Chromium', () => {
     await review.waitFor();
     await page.getByTestId('overlay').locator('canvas').first().waitFor({ timeout: 60_000 });
     await page.getByTestId('timeline').getByText('batch start').waitFor();
+    // the batch's lab values (or, on a server without the route, a sentence saying it stores none)
+    await page.getByTestId('lab-values').getByRole('heading', { name: 'Lab values' }).waitFor({ timeout: 60_000 });
     await shot('review');
     expect(pageErrors.join("\n")).toBe("");
   }, 180_000);

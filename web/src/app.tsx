@@ -100,7 +100,7 @@ function View({ route, now, me }: { route: Route; now: number; me: Me | null }) 
     case 'bench':
       return <ModelBench version={route.version} me={me} />;
     case 'review':
-      return <Review batch={route.batch} compare={route.compare} />;
+      return <Review batch={route.batch} compare={route.compare} me={me} />;
     case 'ledger':
       return <Ledger filter={route.filter} />;
     case 'not-found':

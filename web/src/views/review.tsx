@@ -16,6 +16,9 @@ import { alignedLine, comparisonWindow, departureWindow, meanContributions, samp
 import { topShares } from './contribution-data.ts';
 import { RegionShareTable } from './region-share-table.tsx';
 import { PropertyOverTime } from './review-property.tsx';
+import { LabValues } from './review-lab.tsx';
+import { batchLab, labPoints, type BatchLab } from './review-lab-data.ts';
+import type { Me } from '../api/session.ts';
 import type { TimelineEvent } from './review-data.ts';
 import { contributionSeries } from './contribution-data.ts';
 import { ENDPOINT_WORDS } from '../format/status-words.ts';
@@ -36,6 +39,16 @@ async function allResults(batch: string): Promise<ResultRecord[]> {
   return out;
 }
 
+/** The batch's lab values; null when this server has no lab-values route. */
+async function labValuesOf(batch: string): Promise<BatchLab | null> {
+  try {
+    return batchLab(await get<unknown>(`/api/batches/${encodeURIComponent(batch)}/lab-values`));
+  } catch (e) {
+    if (e instanceof ApiError && e.status === 404 && /no API route/.test(e.problem.detail ?? '')) return null;
+    throw e;
+  }
+}
+
 async function comparison(batch: string): Promise<ComparisonResponse | null> {
   try {
     return await get<ComparisonResponse>(`/api/batches/${encodeURIComponent(batch)}/comparison`);
@@ -45,7 +58,7 @@ async function comparison(batch: string): Promise<ComparisonResponse | null> {
   }
 }
 
-export function Review({ batch, compare }: { batch: string | null; compare: string[] }) {
+export function Review({ batch, compare, me = null }: { batch: string | null; compare: string[]; me?: Me | null }) {
   return (
     <section class="view review">
       <header class="view-head no-print">
@@ -55,7 +68,7 @@ export function Review({ batch, compare }: { batch: string | null; compare: stri
         <aside class="no-print">
           <BatchPicker current={batch} compare={compare} />
         </aside>
-        <div>{batch ? <BatchReview key={batch} id={batch} compare={compare} /> : <Empty>Pick a finished batch on the left.</Empty>}</div>
+        <div>{batch ? <BatchReview key={batch} id={batch} compare={compare} me={me} /> : <Empty>Pick a finished batch on the left.</Empty>}</div>
       </div>
     </section>
   );
@@ -106,13 +119,14 @@ function BatchPicker({ current, compare }: { current: string | null; compare: st
   );
 }
 
-function BatchReview({ id, compare }: { id: string; compare: string[] }) {
+function BatchReview({ id, compare, me }: { id: string; compare: string[]; me: Me | null }) {
   const detail = useAsync(() => api.batch(id), [id]);
   const results = useAsync(() => allResults(id), [id]);
   const versionId = detail.data?.model?.versionId ?? null;
   const env = useAsync(() => (versionId ? api.envelope(versionId) : Promise.resolve(null)), [versionId]);
   const cmp = useAsync(() => comparison(id), [id]);
   const version = useAsync(() => (versionId ? api.modelVersion(versionId) : Promise.resolve(null)), [versionId]);
+  const lab = useAsync(() => labValuesOf(id), [id]);
   const others = useAsync(() => Promise.all(compare.map(async (c) => ({ id: c, results: await allResults(c) }))), [compare.join(',')]);
   const d = detail.data;
   if (detail.loading && !d) return <Loading what={`batch ${id}`} />;
@@ -120,6 +134,7 @@ function BatchReview({ id, compare }: { id: string; compare: string[] }) {
   if (!d) return null;
   const rs = results.data ?? [];
   const c = cmp.data?.comparison ?? null;
+  const predicted = rs.find((r) => r.prediction)?.prediction ?? null;
   const win = (c ? comparisonWindow(c, rs) : null) ?? (c && !c.departureWindow ? null : departureWindow(rs));
   return (
     <div class="batch-review" data-testid="batch-review">
@@ -179,7 +194,16 @@ function BatchReview({ id, compare }: { id: string; compare: string[] }) {
         />
       )}
       {results.data && <StatsOverTime rs={rs} win={win} />}
-      {results.data && <PropertyOverTime rs={rs} version={version.data ?? null} endpointMin={d.endpointAt !== null ? (d.endpointAt - d.startedAt) / 60000 : null} lab={[]} />}
+      {results.data && (
+        <PropertyOverTime
+          rs={rs}
+          version={version.data ?? null}
+          endpointMin={d.endpointAt !== null ? (d.endpointAt - d.startedAt) / 60000 : null}
+          lab={predicted ? labPoints(lab.data?.rows ?? [], predicted.name, d.startedAt) : []}
+        />
+      )}
+      {lab.error && <ErrorBox message={`Lab values: ${lab.error}`} onRetry={lab.reload} />}
+      {!lab.error && (lab.data !== null || !lab.loading) && <LabValues batch={d.id} startedAt={d.startedAt} rows={lab.data?.rows ?? null} toleranceMs={lab.data?.toleranceMs ?? null} property={predicted} me={me} onAdded={lab.reload} />}
       {results.data && win && <DepartureContributions batch={d.id} results={rs} win={win} regions={c?.regions ?? null} />}
       {results.data && !win && <Empty>The batch never left the golden batches by the alarm rule (a run of points outside the envelope or above a limit): there is no departure window.</Empty>}
       <Advisory />
