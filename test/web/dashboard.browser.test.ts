@@ -139,11 +139,17 @@ describe.skipIf(!haveChromium)('dashboard in headless Chromium', () => {
     // Limit lines in the palette's limit colour in the T² and Q charts, named with their confidence.
     expect(await countColour('[data-testid="stat-chart-t2"]', rgba(STYLE.limit.stroke), 30)).toBeGreaterThan(100);
     expect(await countColour('[data-testid="stat-chart-q"]', rgba(STYLE.limit.stroke), 30)).toBeGreaterThan(100);
-    // with per-point limits in force, the constant line is named the overall limit
-    await page.getByTestId('stat-chart-t2').getByText(/^T² overall limit \(\d+(\.\d+)? %\)$/).first().waitFor();
-    await page.getByTestId('stat-chart-q').getByText(/^Q overall limit \(\d+(\.\d+)? %\)$/).first().waitFor();
+    // with per-point limits in force, the constant line is named the global limit, the others local,
+    // and a note under the charts says what each is
+    await page.getByTestId('stat-chart-t2').getByText(/^T² global limit \(\d+(\.\d+)? %\)$/).first().waitFor();
+    await page.getByTestId('stat-chart-q').getByText(/^Q global limit \(\d+(\.\d+)? %\)$/).first().waitFor();
+    await page.getByTestId('stat-chart-q').getByText(/^Q local limit \(\d+(\.\d+)? %\)$/).first().waitFor();
+    await page.getByTestId('limit-scope-note').getByText(/A global limit is one value for the whole batch/).waitFor();
     // the demo models raise alarms at 99.9 % action limits, drawn and named beside the 99 % limits
-    await page.getByTestId('stat-chart-t2').getByText('T² alarm limit (99.9 %)').waitFor();
+    await page.getByTestId('stat-chart-t2').getByText(/^T² (local|global) alarm limit \(99\.9 %\)$/).waitFor();
+    // the navigation marks Watch, not Floor, as the page shown
+    expect(await page.getByTestId('nav-watch').getAttribute('aria-current')).toBe('page');
+    expect(await page.locator('nav.topnav a', { hasText: /^Floor$/ }).getAttribute('aria-current')).toBeNull();
     const ep = page.getByTestId('endpoint-panel');
     await ep.getByText(/consecutive spectra/).waitFor();
     // pace against the golden batches, once the batch has moved on from its first progress point
@@ -163,6 +169,13 @@ describe.skipIf(!haveChromium)('dashboard in headless Chromium', () => {
     await spectrum.getByText('reference mean (raw)').waitFor();
     await expect.poll(() => countColour('[data-testid="spectrum-panel"]', rgba(STYLE.envelope.fill!), 8), { timeout: 30_000 }).toBeGreaterThan(1000);
     await shot('watch-dryer');
+    // following the latest keeps up while spectra arrive faster than the panel refreshes (the demo
+    // sends several a second): the spectrum shown moves on
+    const specHead = spectrum.locator('h2');
+    const specSeq = async () => Number(/#(\d+)/.exec((await specHead.textContent()) ?? '')?.[1] ?? NaN);
+    await expect.poll(specSeq, { timeout: 30_000 }).toBeGreaterThan(0);
+    const seq0 = await specSeq();
+    await expect.poll(specSeq, { timeout: 30_000 }).toBeGreaterThan(seq0);
     // Click a point on the T² chart: contributions by wavelength appear.
     const box = (await page.getByTestId('stat-chart-t2').locator('.u-over').boundingBox())!;
     await page.mouse.click(box.x + box.width * 0.5, box.y + box.height * 0.5);
@@ -293,7 +306,7 @@ describe.skipIf(!haveChromium)('dashboard in headless Chromium', () => {
   it("opens the reactor's Watch: conversion as progress, alarm limits and pace", async () => {
     await page.goto(`${url}/#/watch/reactor-1`);
     await page.getByTestId('point-count').waitFor({ timeout: 120_000 });
-    await page.getByTestId('stat-chart-q').getByText('Q alarm limit (99.9 %)').waitFor({ timeout: 60_000 });
+    await page.getByTestId('stat-chart-q').getByText(/^Q (local|global) alarm limit \(99\.9 %\)$/).waitFor({ timeout: 60_000 });
     await page.getByTestId('endpoint-panel').getByText(/Predicted conversion/).waitFor({ timeout: 60_000 });
     await page.getByTestId('score-chart-pc1').getByText('golden envelope', { exact: true }).waitFor({ timeout: 60_000 });
     await page.getByTestId('plane-chart').getByText('reference batches').waitFor({ timeout: 60_000 });

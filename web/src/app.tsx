@@ -1,4 +1,5 @@
 /** The dashboard shell: navigation, hash routing, sign-in, a clock for ages. */
+import { Fragment } from 'preact';
 import { useEffect, useState } from 'preact/hooks';
 import type { Route } from './router.ts';
 import { VIEW_TITLES, href, parseHash } from './router.ts';
@@ -65,11 +66,19 @@ export function App() {
         </a>
         {(['floor', 'bench', 'review', 'ledger'] as const).map((v) => {
           const target: Route = v === 'floor' ? { view: 'floor' } : v === 'bench' ? { view: 'bench', version: null } : v === 'review' ? { view: 'review', batch: null, compare: [] } : { view: 'ledger', filter: {} };
-          const current = route.view === v || (v === 'floor' && route.view === 'watch');
+          const current = route.view === v;
           return (
-            <a key={v} href={href(target)} class={current ? 'current' : ''} aria-current={current ? 'page' : undefined}>
-              {VIEW_TITLES[v]}
-            </a>
+            <Fragment key={v}>
+              <a href={href(target)} class={current ? 'current' : ''} aria-current={current ? 'page' : undefined}>
+                {VIEW_TITLES[v]}
+              </a>
+              {/* Watch is opened from a Floor tile; while it is open it has its own entry, marked current */}
+              {v === 'floor' && route.view === 'watch' && (
+                <a href={href(route)} class="current" aria-current="page" data-testid="nav-watch">
+                  {VIEW_TITLES.watch} · {route.unit}
+                </a>
+              )}
+            </Fragment>
           );
         })}
         <span class="spacer" />

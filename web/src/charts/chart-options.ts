@@ -49,6 +49,28 @@ export function tickLabels(splits: number[]): string[] {
   });
 }
 
+/**
+ * Tick labels of a log axis, whatever splits uPlot gives (it may give 1, 2, 3, … 9 within each
+ * decade, which look evenly spaced at the start and must not be read as a linear axis): decades
+ * are labelled ("10⁻⁴", "0.01", "1", "100"), and 2 and 5 within them where the axis spans two
+ * decades or less; the other ticks stay unlabelled so labels never crowd.
+ */
+export function logTickLabels(splits: number[]): string[] {
+  const pos = splits.filter((v) => v !== null && Number.isFinite(v) && v > 0);
+  if (pos.length === 0) return splits.map(() => '');
+  const decades = Math.log10(Math.max(...pos) / Math.min(...pos));
+  return splits.map((v) => {
+    if (v === null || !Number.isFinite(v) || v <= 0) return '';
+    const e = Math.floor(Math.log10(v) + 1e-9);
+    const m = Math.round((v / 10 ** e) * 100) / 100;
+    if (m !== 1 && !(decades <= 2 && (m === 2 || m === 5))) return '';
+    if (v >= 1e-2 && v < 1e5) return String(Number(v.toPrecision(2)));
+    return m === 1 ? `10${superscript(e)}` : `${m}×10${superscript(e)}`;
+  });
+}
+
+const logValues = (_u: uPlot, splits: number[]) => logTickLabels(splits);
+
 function fixedTick(v: number, dec: number): string {
   return v.toFixed(dec).replace('-', '−');
 }
@@ -163,7 +185,7 @@ export function statChartOptions(
     y: b.log
       ? { distr: 3, log: 10, range: (_u, min, max) => logRange(min, max, b.getLines()) }
       : { range: (_u, _min, max) => [0, Math.max(max, ...b.getLines().map((l) => l.value).filter(Number.isFinite)) * 1.1 || 1] },
-  });
+  }, b.log ? { values: logValues } : {});
 }
 
 /** Range for a log axis covering data and limits, at least one decade. */
@@ -275,6 +297,7 @@ export function linesOptions(b: Base & { series: { style: SeriesStyle; label: st
     [{ label: b.xLabel }, ...b.series.map((s) => line(s.style, s.label, s.points ? { points: { show: true, size: 7, fill: s.style.stroke } } : {}))],
     plugins,
     { x: { time: false }, y: b.yLog ? { distr: 3, log: 10 } : { auto: true } },
+    b.yLog ? { values: logValues } : {},
   );
   // Component counts are whole numbers: ticks at 1, 2, 5, … steps only.
   if (b.integerX) o.axes![0] = { ...o.axes![0], incrs: [1, 2, 5, 10, 20, 50] };

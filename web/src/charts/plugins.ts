@@ -102,6 +102,8 @@ export function limitLinesPlugin(getLines: () => LimitLine[], yKey = 'y'): uPlot
         const ctx = u.ctx;
         const { left, top, width, height } = u.bbox;
         ctx.save();
+        // labels sit above their line, or under it where an earlier label already takes that place
+        const placed: [number, number][] = [];
         for (const l of getLines()) {
           if (!Number.isFinite(l.value)) continue;
           const y = px(u, l.value, yKey);
@@ -119,7 +121,11 @@ export function limitLinesPlugin(getLines: () => LimitLine[], yKey = 'y'): uPlot
           ctx.font = `600 ${fs}px system-ui, sans-serif`;
           const tw = ctx.measureText(l.label).width;
           const tx = left + width - tw - 6 * uPlot.pxRatio;
-          const ty = y - 4 * uPlot.pxRatio;
+          const above = y - 4 * uPlot.pxRatio;
+          const below = y + fs + 4 * uPlot.pxRatio;
+          const clash = (t: number) => placed.some(([a, b]) => t > a - 2 && t - fs < b + 2);
+          const ty = (clash(above) || above - fs < top) && below <= top + height && !clash(below) ? below : above;
+          placed.push([ty - fs, ty]);
           ctx.fillStyle = 'rgba(255,255,255,0.85)';
           ctx.fillRect(tx - 3 * uPlot.pxRatio, ty - fs, tw + 6 * uPlot.pxRatio, fs + 3 * uPlot.pxRatio);
           ctx.fillStyle = l.style.stroke;

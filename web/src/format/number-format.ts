@@ -47,8 +47,12 @@ export function confidence(c: number | null | undefined): string {
   return `${s} %`;
 }
 
-/** The name of a limit line as drawn on charts: "T² limit (99 %)". */
-export function limitName(stat: 'T²' | 'Q' | 'combined' | string, c: number, kind: 'limit' | 'overall limit' | 'local limit' | 'alarm limit' = 'limit'): string {
+/**
+ * The name of a limit line as drawn on charts: "T² limit (99 %)". Where per-point limits are drawn
+ * too, the names say which is which: a global limit is one value for the whole batch (from all the
+ * reference spectra), a local one is the limit at this point of the golden course.
+ */
+export function limitName(stat: 'T²' | 'Q' | 'combined' | string, c: number, kind: 'limit' | 'global limit' | 'local limit' | 'alarm limit' | 'global alarm limit' | 'local alarm limit' = 'limit'): string {
   return `${stat} ${kind} (${confidence(c)})`;
 }
 

@@ -55,7 +55,8 @@ export function AlarmList({ alarms, now, title = 'Alarms', currentBatch = null }
               <div class="alarm-msg">{a.message}</div>
               <div class="alarm-meta muted small">
                 {alarmTimes(a)}
-                {a.value !== null && a.limit !== null && ` · value ${sig(a.value)} / limit ${sig(a.limit)}`}
+                {/* pace is judged on log time; its message gives the minutes, the one pace figure shown */}
+                {a.value !== null && a.limit !== null && a.key !== 'pace' && ` · value ${sig(a.value)} / limit ${sig(a.limit)}`}
                 {a.acknowledgedBy && ` · acknowledged by ${a.acknowledgedBy} ${clock(a.acknowledgedAt)}`}
                 {a.shelvedUntil && a.shelvedUntil > now && ` · shelved by ${a.shelvedBy ?? '?'} until ${clock(a.shelvedUntil)}: ${a.shelveReason ?? ''}`}
               </div>

@@ -4,7 +4,9 @@ import { useLive } from '../live/use-live.ts';
 import { Badge, Empty, Loading } from '../components/status.tsx';
 import { AnalyzerStatusBadge } from '../components/analyzer-status.tsx';
 import { ENDPOINT_WORDS, UNIT_STATUS_WORDS, limitStatus, PRIORITY_WORDS } from '../format/status-words.ts';
-import { age, eta, fixed, minutes, ofLimitPct, percent, sig, withUnit } from '../format/number-format.ts';
+import { age, fixed, ofLimitPct, sig, withUnit } from '../format/number-format.ts';
+import { activeAlarmsText, etaText, progressText, stallAlarm } from './floor-data.ts';
+import type { Alarm } from '../../../core/api/rest.ts';
 import { href } from '../router.ts';
 
 export function Floor({ now }: { now: number }) {
@@ -22,7 +24,7 @@ export function Floor({ now }: { now: number }) {
       {snapshotSeen && units.length === 0 && <Empty>No units are configured. Add a unit (POST /api/units) or start the demo.</Empty>}
       <div class="tiles">
         {units.map((u) => (
-          <UnitTile key={u.id} u={u} now={live.state.serverTime ?? now} />
+          <UnitTile key={u.id} u={u} now={live.state.serverTime ?? now} alarms={[...live.state.alarms.values()]} />
         ))}
       </div>
     </section>
@@ -35,13 +37,16 @@ export function ConnectionNote({ state }: { state: 'connecting' | 'open' | 'clos
   return <Badge tone="warn">connection lost, reconnecting</Badge>;
 }
 
-function UnitTile({ u, now }: { u: LiveUnitStatus; now: number }) {
+function UnitTile({ u, now, alarms }: { u: LiveUnitStatus; now: number; alarms: Alarm[] }) {
   const st = UNIT_STATUS_WORDS[u.status];
   const ep = u.endpoint ? ENDPOINT_WORDS[u.endpoint.state] : null;
   const p = u.latest;
   const t2 = limitStatus(p?.t2, p?.t2Limit);
   const q = limitStatus(p?.q, p?.qLimit);
   const stale = u.status === 'stale' || u.status === 'offline';
+  const stall = stallAlarm(alarms, u.id, u.openBatch?.id ?? null);
+  const etaWords = etaText(u.endpoint, stall);
+  const alarmWords = activeAlarmsText(alarms, u.id);
   return (
     <a class={`tile${stale ? ' tile-stale' : ''}${u.unacknowledgedAlarms ? ' tile-alarm' : ''}`} href={href({ view: 'watch', unit: u.id })} data-testid={`tile-${u.id}`}>
       <div class="tile-head">
@@ -60,14 +65,19 @@ function UnitTile({ u, now }: { u: LiveUnitStatus; now: number }) {
           <div class="progress" role="progressbar" aria-valuemin={0} aria-valuemax={100} aria-valuenow={Math.round((p?.progressFraction ?? 0) * 100)}>
             <div class="progress-fill" style={{ width: `${Math.min(100, Math.max(0, (p?.progressFraction ?? 0) * 100))}%` }} />
             <span class="progress-text">
-              {percent(p?.progressFraction)} of golden course · {minutes(p?.elapsedMin)} elapsed
+              {progressText(p?.progressFraction, u.endpoint, p?.elapsedMin)}
             </span>
           </div>
           <dl class="tile-facts">
             <dt>Endpoint</dt>
             <dd>
               {ep ? <Badge tone={ep.tone} title={ep.help}>{ep.text}</Badge> : <span class="muted">no model deployed</span>}
-              {u.endpoint?.etaMin && <span class="eta"> {eta(u.endpoint.etaMin)}</span>}
+              {etaWords && (
+                <span class="eta" data-testid="eta">
+                  {' '}
+                  {etaWords}
+                </span>
+              )}
             </dd>
             <dt>T²</dt>
             <dd>
@@ -99,9 +109,9 @@ function UnitTile({ u, now }: { u: LiveUnitStatus; now: number }) {
       <div class="tile-foot">
         {u.activeAlarms > 0 ? (
           <Badge tone={u.unacknowledgedAlarms ? 'alarm' : 'warn'}>
-            {u.activeAlarms} active alarm{u.activeAlarms === 1 ? '' : 's'}
+            {/* the alarms themselves when this view has them, else the unit's counts */}
+            {alarmWords ?? `${u.activeAlarms} active alarm${u.activeAlarms === 1 ? '' : 's'}${u.highestPriority ? ` · ${PRIORITY_WORDS[u.highestPriority]}` : ''}`}
             {u.unacknowledgedAlarms ? ` · ${u.unacknowledgedAlarms} to acknowledge` : ''}
-            {u.highestPriority ? ` · ${PRIORITY_WORDS[u.highestPriority]}` : ''}
           </Badge>
         ) : u.unacknowledgedAlarms > 0 ? (
           <Badge tone="info">{u.unacknowledgedAlarms} cleared alarm{u.unacknowledgedAlarms === 1 ? '' : 's'} to acknowledge</Badge>

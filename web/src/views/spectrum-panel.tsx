@@ -19,20 +19,39 @@ const FOLLOW_EVERY_MS = 3000;
 
 type Loaded = { kind: 'view'; v: SpectrumView } | { kind: 'raw'; seq: number; t: number; axis: number[]; values: number[]; note: string };
 
-export function SpectrumPanel({ batch, seq, following, latestT }: { batch: string; seq: number | null; following: boolean; latestT: number | null }) {
+export function SpectrumPanel({ batch, seq, following }: { batch: string; seq: number | null; following: boolean; latestT?: number | null }) {
   const [loaded, setLoaded] = useState<Loaded | null>(null);
   const [error, setError] = useState<string | null>(null);
   const [wanted, setWanted] = useState<number | null>(seq);
-  // Follow the latest spectrum at most every few seconds; a selected point is fetched at once.
+  // Follow the latest spectrum at most once every few seconds, whatever the rate spectra arrive at:
+  // a fetch waits for the rest of the interval and then takes the newest spectrum (a debounce that
+  // restarted at each new spectrum never fired while spectra came faster than the interval). A
+  // selected point is fetched at once.
+  const latest = useRef(seq);
+  latest.current = seq;
+  const pending = useRef<ReturnType<typeof setTimeout> | null>(null);
+  const lastAt = useRef(0);
   useEffect(() => {
     if (!following) {
+      if (pending.current !== null) clearTimeout(pending.current);
+      pending.current = null;
       setWanted(seq);
       return;
     }
-    const t = setTimeout(() => setWanted(seq), wanted === null ? 0 : FOLLOW_EVERY_MS);
-    return () => clearTimeout(t);
-    // eslint-disable-next-line react-hooks/exhaustive-deps
-  }, [seq, following, latestT === null]);
+    if (pending.current !== null || seq === null) return;
+    const wait = Math.max(0, lastAt.current + FOLLOW_EVERY_MS - Date.now());
+    pending.current = setTimeout(() => {
+      pending.current = null;
+      lastAt.current = Date.now();
+      setWanted(latest.current);
+    }, wait);
+  }, [seq, following]);
+  useEffect(
+    () => () => {
+      if (pending.current !== null) clearTimeout(pending.current);
+    },
+    [],
+  );
   useEffect(() => {
     if (wanted === null) return;
     let live = true;
@@ -52,7 +71,7 @@ export function SpectrumPanel({ batch, seq, following, latestT }: { batch: strin
           Spectrum {loaded ? `#${loaded.kind === 'view' ? loaded.v.seq : loaded.seq}` : ''}
           {loaded && <span class="sub"> {clock(loaded.kind === 'view' ? loaded.v.t : loaded.t)}</span>}
         </h2>
-        <span class="muted small">{following ? 'following the latest' : 'selected point'}</span>
+        <span class="muted small">{following ? 'following the latest (refreshed every 3 s)' : 'selected point'}</span>
       </div>
       {error && <ErrorBox message={error} />}
       {!loaded && !error && <Loading what="spectrum" />}

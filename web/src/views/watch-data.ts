@@ -1,5 +1,5 @@
 /** Pure helpers for the Watch view: envelope bands per PC, chart data from the live series, axis labels. */
-import type { ModelEnvelopeView } from '../../../core/api/rest.ts';
+import type { Alarm, ModelEnvelopeView } from '../../../core/api/rest.ts';
 import type { Band } from '../charts/envelope-band.ts';
 import type { LimitLine } from '../charts/plugins.ts';
 import type { LiveState } from '../live/live-state.ts';
@@ -29,13 +29,13 @@ export function availablePcs(env: ModelEnvelopeView | null, latestScores: number
 
 /**
  * Named limit lines of T² or Q for the latest result's limits. Where per-progress-point limits are
- * drawn too, the constant line is the overall limit (not the one in force), and is named so.
+ * drawn too, the constant line is the global limit (not the one in force), and is named so.
  */
 export function statLines(s: LiveState, stat: 'T²' | 'Q'): LimitLine[] {
   const r = s.latest;
   if (!r) return [];
   const value = stat === 'T²' ? r.limits.t2 : r.limits.q;
-  return [{ value, label: limitName(stat, r.limits.confidence, hasLocal(s, stat) ? 'overall limit' : 'limit'), style: STYLE.limit }];
+  return [{ value, label: limitName(stat, r.limits.confidence, hasLocal(s, stat) ? 'global limit' : 'limit'), style: STYLE.limit }];
 }
 
 export function scoreData(s: LiveState, pc: number): [Float64Array, Float64Array] {
@@ -60,6 +60,23 @@ function recentFinite(v: Float64Array): boolean {
 /** Whether any local limit values are present in the series. */
 export function hasLocal(s: LiveState, stat: 'T²' | 'Q'): boolean {
   return recentFinite(s.series.view(stat === 'T²' ? 'localT2' : 'localQ'));
+}
+
+/**
+ * Whether the alarm limits in the series are local (they change along the batch, as per-point
+ * limits do) or one global value.
+ */
+export function alarmLimitScope(s: LiveState, stat: 'T²' | 'Q'): 'local' | 'global' {
+  const v = s.series.view(stat === 'T²' ? 'alarmT2' : 'alarmQ');
+  let lo = Infinity;
+  let hi = -Infinity;
+  for (let i = 0; i < v.length; i++) {
+    const x = v[i]!;
+    if (!Number.isFinite(x)) continue;
+    if (x < lo) lo = x;
+    if (x > hi) hi = x;
+  }
+  return hi > lo * (1 + 1e-9) ? 'local' : 'global';
 }
 
 /** Whether the model has alarm (action) limits above the drawn ones, present in the series. */
@@ -91,4 +108,14 @@ export function referencePaths(env: ModelEnvelopeView | null, a: number, b: numb
     } else if (r.scores.length >= Math.max(a, b)) out.push([r.scores[a - 1], r.scores[b - 1]]);
   }
   return out;
+}
+
+/** PCs with an envelope alarm open (not back to normal) in the given batch. */
+export function alarmedPcsOf(alarms: Alarm[], batch: string): number[] {
+  const out = new Set<number>();
+  for (const a of alarms) {
+    const m = /^pc(\d+)$/.exec(a.key);
+    if (m && a.kind === 'envelope' && a.batch === batch && a.state !== 'normal') out.add(Number(m[1]));
+  }
+  return [...out].sort((x, y) => x - y);
 }

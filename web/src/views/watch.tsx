@@ -14,10 +14,11 @@ import { ConnectionNote } from './floor.tsx';
 import { AlarmList } from './alarm-list.tsx';
 import { ContributionsPanel } from './contributions-panel.tsx';
 import { SpectrumPanel } from './spectrum-panel.tsx';
+import { etaText, stallAlarm } from './floor-data.ts';
 import { useEnvelope } from './use-envelope.ts';
-import { availablePcs, goldenPath, hasAlarmLimit, hasLocal, progressLabel, referencePaths, scoreBand, scoreData, statData, statLines } from './watch-data.ts';
+import { alarmedPcsOf, alarmLimitScope, availablePcs, goldenPath, hasAlarmLimit, hasLocal, progressLabel, referencePaths, scoreBand, scoreData, statData, statLines } from './watch-data.ts';
 import { ENDPOINT_WORDS } from '../format/status-words.ts';
-import { clock, eta, limitName, minutes, percent, sig, withUnit } from '../format/number-format.ts';
+import { clock, limitName, minutes, percent, sig, withUnit } from '../format/number-format.ts';
 import { STYLE } from '../theme/palette.ts';
 import { href } from '../router.ts';
 
@@ -67,6 +68,9 @@ export function Watch({ unit, now }: { unit: string; now: number }) {
   const batchId = s.batch.id;
   const pickedSeq = pickedIn && pickedIn.batch === batchId ? pickedIn.seq : null;
   const setPicked = (seq: number | null) => setPickedIn(seq === null ? null : { batch: batchId, seq });
+  // a PC with an envelope alarm standing in this batch is drawn whatever is ticked
+  const alarmedPcs = alarmedPcsOf([...s.alarms.values()], batchId).filter((pc) => pcChoices.includes(pc));
+  const shownPcs = [...new Set([...pcs, ...alarmedPcs])].filter((pc) => pcChoices.includes(pc)).sort((a, b) => a - b);
   return (
     <section class="view watch">
       <WatchHead unit={unit} s={s} connection={live.connection} />
@@ -79,21 +83,24 @@ export function Watch({ unit, now }: { unit: string; now: number }) {
               <h2>Scores on the golden envelope</h2>
               <fieldset class="pc-pick">
                 <legend class="sr-only">principal components shown</legend>
-                {pcChoices.map((pc) => (
-                  <label key={pc}>
-                    <input
-                      type="checkbox"
-                      checked={pcs.includes(pc)}
-                      onChange={(e) => setPcs((old) => ((e.target as HTMLInputElement).checked ? [...old, pc].sort() : old.filter((x) => x !== pc)))}
-                    />{' '}
-                    PC{pc}
-                  </label>
-                ))}
+                {pcChoices.map((pc) => {
+                  const alarmed = alarmedPcs.includes(pc);
+                  return (
+                    <label key={pc} title={alarmed ? `PC${pc} has an alarm standing in this batch: it is drawn until the alarm is cleared` : undefined} data-testid={`pc-pick-${pc}`}>
+                      <input
+                        type="checkbox"
+                        checked={alarmed || pcs.includes(pc)}
+                        disabled={alarmed}
+                        onChange={(e) => setPcs((old) => ((e.target as HTMLInputElement).checked ? [...old, pc].sort((a, b) => a - b) : old.filter((x) => x !== pc)))}
+                      />{' '}
+                      PC{pc}
+                      {alarmed && <span class="alarm-mark"> ▲ alarm</span>}
+                    </label>
+                  );
+                })}
               </fieldset>
             </div>
-            {pcs
-              .filter((pc) => pcChoices.includes(pc))
-              .map((pc) => (
+            {shownPcs.map((pc) => (
                 <ScoreChart key={`${pc}-${envData?.versionId}`} live={live} pc={pc} env={envData} picked={pickedSeq} onPick={setPicked} />
               ))}
           </div>
@@ -108,7 +115,10 @@ export function Watch({ unit, now }: { unit: string; now: number }) {
               <StatChart live={live} stat="T²" log={log} picked={pickedSeq} onPick={setPicked} env={envData} />
               <StatChart live={live} stat="Q" log={log} picked={pickedSeq} onPick={setPicked} env={envData} />
             </div>
-            <p class="hint">Click a point on any chart to see its contributions by wavelength.</p>
+            <p class="hint" data-testid="limit-scope-note">
+              A global limit is one value for the whole batch, from all the reference spectra; a local limit is the limit at this point of the golden course,
+              which changes along the batch. Click a point on any chart to see its contributions by wavelength.
+            </p>
           </div>
           <div class="two-col">
             <div class="panel">
@@ -239,9 +249,9 @@ export function StatChart({ live, stat, log, picked, onPick, env }: { live: Retu
       data={statData(s, stat, local, alarm)}
       legend={[
         { style: STYLE.batch, label: stat },
-        { style: STYLE.limit, label: limitName(stat, conf, local ? 'overall limit' : 'limit') },
+        { style: STYLE.limit, label: limitName(stat, conf, local ? 'global limit' : 'limit') },
         ...(local ? [{ style: STYLE.warnLimit, label: limitName(stat, conf, 'local limit') }] : []),
-        ...(alarm ? [{ style: STYLE.alarmLimit, label: limitName(stat, alarmConf, 'alarm limit') }] : []),
+        ...(alarm ? [{ style: STYLE.alarmLimit, label: limitName(stat, alarmConf, local || alarmLimitScope(s, stat) === 'local' ? `${alarmLimitScope(s, stat)} alarm limit` : 'alarm limit') }] : []),
         { style: { ...STYLE.outside, label: 'above limit ▲' } },
       ]}
       make={(w, h) =>
@@ -350,7 +360,7 @@ export function EndpointPanel({ ep, s }: { ep: EndpointStatus | null; s: LiveSta
       </ol>
       <dl class="facts">
         <dt>Time to endpoint</dt>
-        <dd data-testid="eta">{ep.state === 'done' || ep.state === 'signalled' ? 'reached' : eta(ep.etaMin)}</dd>
+        <dd data-testid="eta">{etaText(ep, stallAlarm(s.alarms.values(), s.batch?.unit ?? '', s.batch?.id ?? null), '') ?? '—'}</dd>
         <dt>Confirmation</dt>
         <dd data-testid="confirm">
           {ep.confirmCount} of {ep.confirmNeeded} consecutive spectra

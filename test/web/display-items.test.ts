@@ -1,0 +1,82 @@
+/**
+ * Screen texts that must agree with what they describe: Floor's progress, time to endpoint and the
+ * alarms a tile names; Watch's PCs drawn for a standing alarm and its global/local limit names; the
+ * tick labels of a log axis.
+ */
+import { describe, expect, it } from 'vitest';
+import type { Alarm } from '../../core/api/rest.ts';
+import type { MonitorResult } from '../../core/monitor/types.ts';
+import { activeAlarmsText, alarmTitle, etaText, progressText, stallAlarm } from '../../web/src/views/floor-data.ts';
+import { alarmedPcsOf, alarmLimitScope } from '../../web/src/views/watch-data.ts';
+import { logTickLabels, tickLabels } from '../../web/src/charts/chart-options.ts';
+import { appendResult, createLiveState } from '../../web/src/live/live-state.ts';
+import { limitName } from '../../web/src/format/number-format.ts';
+
+function alarm(o: Partial<Alarm>): Alarm {
+  return {
+    id: 'a1', unit: 'dryer-1', batch: 'b1', kind: 'envelope', key: 'pc3', state: 'active-unacknowledged', priority: 3, message: '', value: null, limit: null, active: true,
+    raisedAt: 1000, clearedAt: null, acknowledgedAt: null, acknowledgedBy: null, acknowledgeComment: null, shelvedUntil: null, shelvedBy: null, shelveReason: null, seq: 4,
+    ...o,
+  } as Alarm;
+}
+
+describe('Floor tile texts', () => {
+  it('names the alarms that stand, highest priority first', () => {
+    const list = [alarm({ id: 'x', key: 'pc3', priority: 3 }), alarm({ id: 'y', kind: 't2', key: 't2', priority: 2 }), alarm({ id: 'z', unit: 'reactor-1', key: 'q', priority: 1 }), alarm({ id: 'w', key: 'pace', active: false, state: 'cleared-unacknowledged' })];
+    expect(activeAlarmsText(list, 'dryer-1')).toBe('2 active alarms: Hotelling T² (P2 high), PC3 score (P3 medium)');
+    expect(activeAlarmsText([alarm({})], 'dryer-1')).toBe('1 active alarm: PC3 score (P3 medium)');
+    expect(activeAlarmsText(list, 'other')).toBeNull();
+    expect(alarmTitle({ kind: 'stale', key: 'stale' })).toBe('no data from the analyzer');
+  });
+  it('gives no time to endpoint for a stalled batch, "due now" instead of zeros, and says when it is reached', () => {
+    const pace = alarm({ kind: 'envelope', key: 'pace' });
+    const zero = { median: 0, low: 0, high: 0 };
+    expect(etaText({ state: 'nearing', etaMin: zero }, null)).toBe('due now by the golden batches, not yet reached');
+    expect(etaText({ state: 'running', etaMin: { median: 300, low: 200, high: 420 } }, stallAlarm([pace], 'dryer-1', 'b1'))).toBe('stalled: no estimate while the batch is not progressing (pace alarm)');
+    expect(stallAlarm([pace], 'dryer-1', 'b2')).toBeNull();
+    expect(etaText({ state: 'running', etaMin: { median: 12, low: 8, high: 17 } }, null)).toBe('≈ 12 min (8.0 min – 17 min) to endpoint');
+    expect(etaText({ state: 'done', etaMin: null }, null)).toBe('endpoint reached');
+    expect(etaText({ state: 'running', etaMin: null }, null)).toBeNull();
+  });
+  it('does not call a batch at 100 % of the golden course while its endpoint is not reached', () => {
+    expect(progressText(1, { state: 'nearing' }, 125)).toBe('at the end of the golden course · 2 h 05 min elapsed');
+    expect(progressText(1, { state: 'done' }, 125)).toBe('100 % of golden course · 2 h 05 min elapsed');
+    expect(progressText(0.42, { state: 'running' }, 30)).toBe('42 % of golden course · 30 min elapsed');
+    expect(progressText(null, null, 3)).toBe('progress not judged · 3.0 min elapsed');
+  });
+});
+
+describe('Watch', () => {
+  it('draws the PCs with an alarm open in this batch', () => {
+    const list = [alarm({ key: 'pc3' }), alarm({ id: 'b', key: 'pc5', batch: 'earlier' }), alarm({ id: 'c', key: 'pc4', state: 'normal', active: false }), alarm({ id: 'd', kind: 't2', key: 't2' })];
+    expect(alarmedPcsOf(list, 'b1')).toEqual([3]);
+  });
+  it('names an alarm limit that changes along the batch local, a constant one global', () => {
+    const r = (seq: number, alarmT2: number): MonitorResult =>
+      ({ seq, t: seq, elapsedMin: seq, progress: seq, progressFraction: 0, scores: [0], t2: 1, q: 0.1, combined: 0, limits: { t2: 10, q: 1, combined: 2, confidence: 0.99 }, localLimits: null,
+        alarmLimits: { t2: alarmT2, q: 2, envelopeK: 3, confidence: 0.999 }, envelope: [], prediction: null, suspect: false, conditionChanges: [], activeConditions: [],
+        endpoint: { state: 'running', criteria: [], combine: 'all', confirmCount: 0, confirmNeeded: 2, etaMin: null, doneAt: null }, events: [] }) as unknown as MonitorResult;
+    const s = createLiveState();
+    appendResult(s, r(1, 20));
+    appendResult(s, r(2, 20));
+    expect(alarmLimitScope(s, 'T²')).toBe('global');
+    expect(alarmLimitScope(s, 'Q')).toBe('global');
+    appendResult(s, r(3, 24));
+    expect(alarmLimitScope(s, 'T²')).toBe('local');
+    expect(limitName('Q', 0.99, 'global limit')).toBe('Q global limit (99 %)');
+    expect(limitName('Q', 0.999, 'local alarm limit')).toBe('Q local alarm limit (99.9 %)');
+  });
+});
+
+describe('log axis tick labels', () => {
+  it('labels decades however uPlot splits a decade (1…9 within it look evenly spaced at first)', () => {
+    const splits = [1e-7, 2e-7, 3e-7, 5e-7, 1e-6, 1e-5, 1e-4, 1e-3, 1e-2, 0.1, 1];
+    expect(logTickLabels(splits)).toEqual(['10⁻⁷', '', '', '', '10⁻⁶', '10⁻⁵', '10⁻⁴', '10⁻³', '0.01', '0.1', '1']);
+    // the linear labeller reads the same splits as an evenly spaced axis and prints zeros: the fault this replaces
+    expect(tickLabels(splits).filter((x) => x === '0' || /^0\.0+$/.test(x)).length).toBeGreaterThan(0);
+  });
+  it('labels 2 and 5 where the axis spans two decades or less', () => {
+    expect(logTickLabels([1e-4, 2e-4, 3e-4, 5e-4, 1e-3, 2e-3])).toEqual(['10⁻⁴', '2×10⁻⁴', '', '5×10⁻⁴', '10⁻³', '2×10⁻³']);
+    expect(logTickLabels([1, 2, 5, 10, 20, 50, 100])).toEqual(['1', '2', '5', '10', '20', '50', '100']);
+  });
+});

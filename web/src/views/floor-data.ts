@@ -1,0 +1,72 @@
+/**
+ * Floor tile texts that must agree with each other: progress along the golden course, time to the
+ * endpoint (or why there is none: reached, due now, stalled) and which alarms stand. Pure.
+ */
+import type { Alarm } from '../../../core/api/rest.ts';
+import type { EndpointStatus } from '../../../core/monitor/types.ts';
+import { eta, minutes, percent } from '../format/number-format.ts';
+import { PRIORITY_WORDS } from '../format/status-words.ts';
+
+/** A pace alarm standing for the unit's open batch: the batch has stopped moving along the golden course. */
+export function stallAlarm(alarms: Iterable<Alarm>, unit: string, batch: string | null): Alarm | null {
+  for (const a of alarms) if (a.unit === unit && a.key === 'pace' && a.active && (batch === null || a.batch === batch)) return a;
+  return null;
+}
+
+/**
+ * Time to the endpoint in words. Reached and held states say so; a stalled batch (pace alarm
+ * standing) gets no estimate, as the golden batches' pace does not apply; an estimate that has run
+ * down to nothing while the endpoint is not reached says "due now" instead of "≈ 0 s (0 s – 0 s)".
+ */
+export function etaText(ep: Pick<EndpointStatus, 'state' | 'etaMin'> | null, stall: Alarm | null, suffix = ' to endpoint'): string | null {
+  if (!ep) return null;
+  if (ep.state === 'done' || ep.state === 'signalled') return 'endpoint reached';
+  if (ep.state === 'held') return 'endpoint met, held by a guard';
+  if (stall) return 'stalled: no estimate while the batch is not progressing (pace alarm)';
+  const e = ep.etaMin;
+  if (!e || !Number.isFinite(e.median)) return null;
+  // under half a minute to go (and the spread as small): the estimate says nothing more than "now"
+  if (e.high < 0.5) return ep.state === 'settling' ? 'criteria met, confirming' : 'due now by the golden batches, not yet reached';
+  return `${eta(e)}${suffix}`;
+}
+
+/**
+ * Progress along the golden course. The fraction stops at 100 % at the golden batches' end of
+ * course; a batch there whose endpoint is not reached is said to be past it, not "100 %".
+ */
+export function progressText(fraction: number | null | undefined, ep: Pick<EndpointStatus, 'state'> | null, elapsedMin: number | null | undefined): string {
+  const reached = ep && (ep.state === 'done' || ep.state === 'signalled');
+  const f = fraction ?? null;
+  const head =
+    f === null || !Number.isFinite(f)
+      ? 'progress not judged'
+      : f >= 0.995 && ep && !reached
+        ? 'at the end of the golden course'
+        : `${percent(Math.min(f, 1))} of golden course`;
+  return `${head} · ${minutes(elapsedMin)} elapsed`;
+}
+
+const KEY_NAMES: Readonly<Record<string, string>> = {
+  t2: 'Hotelling T²',
+  q: 'Q (SPE)',
+  combined: 'combined index',
+  pace: 'pace',
+  stale: 'no data from the analyzer',
+  property: 'predicted property',
+};
+
+/** The name of an alarm on screens: 'pc3' → 'PC3 score', 't2' → 'Hotelling T²' (codes stay in the API). */
+export function alarmTitle(a: Pick<Alarm, 'key' | 'kind'>): string {
+  const pc = /^pc(\d+)$/i.exec(a.key);
+  if (pc) return `PC${pc[1]} score`;
+  return KEY_NAMES[a.key] ?? a.key.replace(/-/g, ' ');
+}
+
+/** "1 active alarm: PC3 score (P3 medium)" — which alarms stand, highest priority first, at most three named. */
+export function activeAlarmsText(alarms: Iterable<Alarm>, unit: string): string | null {
+  const list = [...alarms].filter((a) => a.unit === unit && a.active).sort((x, y) => x.priority - y.priority || x.raisedAt - y.raisedAt);
+  if (list.length === 0) return null;
+  const named = list.slice(0, 3).map((a) => `${alarmTitle(a)} (${PRIORITY_WORDS[a.priority]})`);
+  const more = list.length > 3 ? ` and ${list.length - 3} more` : '';
+  return `${list.length} active alarm${list.length === 1 ? '' : 's'}: ${named.join(', ')}${more}`;
+}
