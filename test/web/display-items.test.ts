@@ -80,3 +80,23 @@ describe('log axis tick labels', () => {
     expect(logTickLabels([1, 2, 5, 10, 20, 50, 100])).toEqual(['1', '2', '5', '10', '20', '50', '100']);
   });
 });
+
+describe('Model bench batch pickers', async () => {
+  const { suspectReasons, endpointAsRun } = await import('../../web/src/views/bench/batch-suspect.ts');
+  const model = { versionId: 'v', name: 'm', version: 1, sha256: 'x' };
+  it('says why a finished batch may not be good', () => {
+    expect(suspectReasons({ alarmCount: 0, endpointState: 'done', endReason: 'stopped after the endpoint', model, status: 'ended' })).toEqual([]);
+    expect(suspectReasons({ alarmCount: 8, endpointState: 'running', endReason: 'stopped at the maximum batch time', model, status: 'ended' })).toEqual([
+      '8 alarms raised while it ran',
+      'endpoint not reached (running at the end)',
+      'ended: stopped at the maximum batch time',
+    ]);
+    // a batch no model judged has no endpoint to miss
+    expect(suspectReasons({ alarmCount: 0, endpointState: null, endReason: 'imported from a.csv by qa', model: null, status: 'ended' })).toEqual([]);
+  });
+  it('gives the endpoint as run', () => {
+    expect(endpointAsRun({ model, endpointState: 'done', endpointAt: 60_000 * 52, startedAt: 0 })).toBe('reached at 52 min');
+    expect(endpointAsRun({ model, endpointState: 'nearing', endpointAt: null, startedAt: 0 })).toBe('nearing, not reached');
+    expect(endpointAsRun({ model: null, endpointState: null, endpointAt: null, startedAt: 0 })).toBe('not judged');
+  });
+});

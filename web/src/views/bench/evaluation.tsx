@@ -7,6 +7,7 @@ import { useAsync } from '../../components/use-async.ts';
 import { Badge, ErrorBox } from '../../components/status.tsx';
 import { dateTime, fixed, minutes, percent, sig } from '../../format/number-format.ts';
 import { summariseEvaluation } from '../bench-data.ts';
+import { endpointAsRun, suspectReasons } from './batch-suspect.ts';
 
 export function Evaluation({ d, onDone }: { d: ModelVersionDetail; onDone: () => void }) {
   const batches = useAsync(() => api.batches({ status: 'ended', product: d.product, limit: 500 }), [d.product]);
@@ -43,21 +44,40 @@ export function Evaluation({ d, onDone }: { d: ModelVersionDetail; onDone: () =>
               <th scope="col">batch</th>
               <th scope="col">known faulty</th>
               <th scope="col" class="num">spectra</th>
+              <th scope="col" class="num">alarms</th>
+              <th scope="col">end reason</th>
+              <th scope="col">endpoint as run</th>
             </tr>
           </thead>
           <tbody>
-            {held.map((b) => (
-              <tr key={b.id}>
+            {held.map((b) => {
+              const why = suspectReasons(b);
+              return (
+              <tr key={b.id} class={why.length ? 'row-suspect' : ''}>
                 <td>
                   <input type="checkbox" aria-label={`evaluate ${b.id}`} checked={chosen.includes(b.id)} onChange={(e) => setChosen((c) => ((e.target as HTMLInputElement).checked ? [...c, b.id] : c.filter((x) => x !== b.id)))} />
                 </td>
-                <td>{b.id}</td>
                 <td>
-                  <input type="checkbox" aria-label={`${b.id} is known faulty`} checked={faulty.has(b.id)} onChange={() => setFaulty((f) => ((n) => (n.has(b.id) ? n.delete(b.id) : n.add(b.id), n))(new Set(f)))} />
+                  {b.id}
+                  {why.length > 0 && (
+                    <div class="suspect-why small">
+                      <Badge tone="warn">⚠ suspect</Badge> {why.join('; ')}
+                    </div>
+                  )}
+                </td>
+                <td>
+                  <label>
+                    <input type="checkbox" aria-label={`${b.id} is known faulty`} checked={faulty.has(b.id)} onChange={() => setFaulty((f) => ((n) => (n.has(b.id) ? n.delete(b.id) : n.add(b.id), n))(new Set(f)))} />
+                    {why.length > 0 && !faulty.has(b.id) && <span class="small muted"> (suggested)</span>}
+                  </label>
                 </td>
                 <td class="num">{b.spectrumCount}</td>
+                <td class="num">{b.alarmCount > 0 ? <Badge tone="warn">{b.alarmCount}</Badge> : '0'}</td>
+                <td class="small">{b.endReason ?? '—'}</td>
+                <td class="small">{endpointAsRun(b)}</td>
               </tr>
-            ))}
+              );
+            })}
           </tbody>
         </table>
       )}

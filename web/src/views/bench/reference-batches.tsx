@@ -6,6 +6,7 @@ import type { BatchSummary } from '../../../../core/api/rest.ts';
 import { Badge } from '../../components/status.tsx';
 import { dateTime } from '../../format/number-format.ts';
 import { FieldError } from './field-error.tsx';
+import { endpointAsRun, suspectReasons } from './batch-suspect.ts';
 
 /** Batch ids a refusal names in quotes ("b1" (no lab values), …), so their rows can be marked. */
 export function batchesNamed(text: string | undefined, among: string[]): Set<string> {
@@ -46,28 +47,43 @@ export function ReferenceBatches({
             <th scope="col">started</th>
             <th scope="col" class="num">spectra</th>
             <th scope="col" class="num">alarms</th>
+            <th scope="col">endpoint as run</th>
             <th scope="col">endpoint</th>
             <th scope="col">preview</th>
           </tr>
         </thead>
         <tbody>
-          {shown.map((b) => (
-            <tr key={b.id} class={named.has(b.id) || errors.marks[b.id] ? 'row-alarm' : ''}>
+          {shown.map((b) => {
+            const why = suspectReasons(b);
+            return (
+            <tr key={b.id} class={named.has(b.id) || errors.marks[b.id] ? 'row-alarm' : why.length ? 'row-suspect' : ''} data-testid={`ref-row-${b.id}`}>
               <td>
-                <input
-                  type="checkbox"
-                  aria-label={`use ${b.id}`}
-                  data-testid={`ref-${b.id}`}
-                  checked={chosen.includes(b.id)}
-                  onChange={(e) => onChosen((e.target as HTMLInputElement).checked ? [...chosen, b.id] : chosen.filter((x) => x !== b.id))}
-                />
+                {/* a batch whose record says it may be faulty is taken as good only on purpose */}
+                <label class={why.length ? 'suspect-pick' : ''}>
+                  <input
+                    type="checkbox"
+                    aria-label={why.length ? `use ${b.id} anyway (suspect: ${why.join('; ')})` : `use ${b.id}`}
+                    data-testid={`ref-${b.id}`}
+                    checked={chosen.includes(b.id)}
+                    onChange={(e) => onChosen((e.target as HTMLInputElement).checked ? [...chosen, b.id] : chosen.filter((x) => x !== b.id))}
+                  />
+                  {why.length > 0 && <span class="small"> anyway</span>}
+                </label>
               </td>
-              <td>{b.id}</td>
+              <td>
+                {b.id}
+                {why.length > 0 && (
+                  <div class="suspect-why small" data-testid="suspect-why">
+                    <Badge tone="warn">⚠ suspect</Badge> {why.join('; ')}
+                  </div>
+                )}
+              </td>
               <td>{b.unit}</td>
               <td>{b.product}</td>
               <td>{dateTime(b.startedAt)}</td>
               <td class="num">{b.spectrumCount}</td>
               <td class="num">{b.alarmCount > 0 ? <Badge tone="warn">{b.alarmCount}</Badge> : '0'}</td>
+              <td class="small">{endpointAsRun(b)}</td>
               <td>
                 <input
                   class="endpoint-mark"
@@ -86,7 +102,8 @@ export function ReferenceBatches({
                 </button>
               </td>
             </tr>
-          ))}
+            );
+          })}
         </tbody>
       </table>
       <FieldError text={errors.referenceEndpoints} id="reference-endpoints-error" />
