@@ -12,9 +12,13 @@
  *
  * Time columns: `time_ms` (ms since the Unix epoch), `time_s` / `time` / `seconds` (seconds),
  * `time_min` / `minutes`, or `timestamp` / `time_utc` (ISO 8601); with several, the most precise
- * wins. Relative times are placed after `origin`. Columns `seq` and `index` are read past; any other
- * named column must hold numbers and is kept as a per-spectrum property (e.g. laboratory moisture).
+ * wins. Relative times are placed after `origin`. Columns `seq` and `index` are read past. Every
+ * other column of numbers is a per-spectrum property (e.g. laboratory moisture), its name and unit
+ * read from the header (core/lab/property-header.ts: `moisture [% w/w]`, `moisture_pct`, …); an
+ * empty cell is no value (lab values are sparse). Text and empty columns are not used, with a warning.
  */
+import { parsePropertyHeader, propertyHeader } from '../lab/property-header.ts';
+import { cellNumber, classifyColumn, detectDelimiter, splitLine } from './csv-cells.ts';
 import { ImportError, normalizeAxis, wavenumberToNm, type ImportedBatch } from './imported-batch.ts';
 
 export interface CsvReadOptions {
@@ -26,6 +30,8 @@ export interface CsvReadOptions {
   origin?: number;
   /** Batch id for a file without a batch column. */
   batch?: string;
+  /** Columns the reader does not use are named here (text, empty, a second time column, …). */
+  warnings?: string[];
 }
 
 type TimeKind = 'ms' | 's' | 'min' | 'iso';
@@ -52,46 +58,10 @@ const IGNORED_COLUMNS = new Set(['seq', 'index', 'idx', 'row']);
 const TEXT_COLUMNS = new Set(['product', 'unit']);
 const TIME_FACTOR: Record<Exclude<TimeKind, 'iso'>, number> = { ms: 1, s: 1000, min: 60_000 };
 
-const NUMBER_RE = /^[+-]?(\d+\.?\d*|\.\d+)([eE][+-]?\d+)?$/;
-
-function splitLine(line: string, delimiter: string): string[] {
-  if (!line.includes('"')) return line.split(delimiter).map((c) => c.trim());
-  // Quoted fields (RFC 4180): a quote doubles inside quotes.
-  const out: string[] = [];
-  let cur = '';
-  let inQ = false;
-  for (let i = 0; i < line.length; i++) {
-    const ch = line[i]!;
-    if (inQ) {
-      if (ch === '"' && line[i + 1] === '"') {
-        cur += '"';
-        i++;
-      } else if (ch === '"') inQ = false;
-      else cur += ch;
-    } else if (ch === '"') inQ = true;
-    else if (ch === delimiter) {
-      out.push(cur.trim());
-      cur = '';
-    } else cur += ch;
-  }
-  out.push(cur.trim());
-  return out;
-}
-
-function detectDelimiter(header: string): ',' | ';' | '\t' {
-  const count = (c: string) => header.split(c).length - 1;
-  const counts: [',' | ';' | '\t', number][] = [
-    ['\t', count('\t')],
-    [';', count(';')],
-    [',', count(',')],
-  ];
-  counts.sort((a, b) => b[1] - a[1]);
-  return counts[0]![1] > 0 ? counts[0]![0] : ',';
-}
-
 /** Read one or more batches from CSV text. Throws ImportError naming file, line and reason. */
 export function readBatchCsv(text: string, opts: CsvReadOptions = {}): ImportedBatch[] {
   const file = opts.file ?? 'CSV';
+  const warn = (w: string) => opts.warnings?.push(w);
   const src = text.charCodeAt(0) === 0xfeff ? text.slice(1) : text;
   const lines = src.split(/\r?\n/);
   let h = 0;
@@ -110,20 +80,20 @@ export function readBatchCsv(text: string, opts: CsvReadOptions = {}): ImportedB
     const cells = [...header, ...(firstData ? splitLine(firstData, delimiter) : [])];
     decimal = delimiter !== ',' && cells.some((c) => /^[+-]?\d+,\d+$/.test(c)) ? ',' : '.';
   }
-  const toNumber = (cell: string): number | null => {
-    const s = decimal === ',' ? cell.replace(',', '.') : cell;
-    return NUMBER_RE.test(s) ? Number(s) : null;
-  };
+  const dec = decimal;
+  const toNumber = (cell: string): number | null => cellNumber(cell, dec);
 
   // Classify the header.
   let batchCol = -1;
   let timeCol = -1;
   let timeKind = 's' as TimeKind;
+  const timeCols: number[] = [];
   const textCols: { name: string; col: number }[] = [];
-  const propCols: { name: string; col: number }[] = [];
+  const candidates: number[] = [];
   const axisCols: number[] = [];
   const axisRaw: number[] = [];
   let axisUnit = opts.axisUnit;
+  const column = (col: number) => `column ${col + 1} "${header[col]}"`;
   header.forEach((cellRaw, col) => {
     const cell = cellRaw.replace(/^"|"$/g, '');
     // A wavelength: "1450", "1450.5 nm", "nm_1450.5" (as Tideline's batch export writes), or a wavenumber "7000 cm-1".
@@ -144,17 +114,19 @@ export function readBatchCsv(text: string, opts: CsvReadOptions = {}): ImportedB
     else if (name in TIME_COLUMNS) {
       const kind = TIME_COLUMNS[name]!;
       if (timeCol >= 0 && kind === timeKind) throw new ImportError(file, headerLine, `two time columns of the same kind ("${header[timeCol]}" and "${cell}")`);
+      timeCols.push(col);
       if (timeCol < 0 || TIME_PRECEDENCE.indexOf(kind) < TIME_PRECEDENCE.indexOf(timeKind)) {
         timeCol = col;
         timeKind = kind;
       }
-    } else if (IGNORED_COLUMNS.has(name)) return;
+    } else if (IGNORED_COLUMNS.has(name)) warn(`${file}: ${column(col)} is a row count; not used`);
     else if (TEXT_COLUMNS.has(name)) textCols.push({ name, col });
-    else propCols.push({ name, col });
+    else candidates.push(col);
   });
   if (axisCols.length < 2) throw new ImportError(file, headerLine, `the header has ${axisCols.length} wavelength column(s); expected a row of wavelengths in nm`);
   if (timeCol < 0) throw new ImportError(file, headerLine, `no time column (expected one of ${Object.keys(TIME_COLUMNS).join(', ')})`);
   if (batchCol < 0 && !opts.batch) throw new ImportError(file, headerLine, 'no batch column and no batch id given');
+  for (const c of timeCols) if (c !== timeCol) warn(`${file}: ${column(c)} is a time column; not used ("${header[timeCol]}" is more precise)`);
   for (let i = 1; i < axisCols.length; i++) {
     if (axisCols[i] !== axisCols[i - 1]! + 1) throw new ImportError(file, headerLine, `the wavelength columns are not contiguous (column ${axisCols[i - 1]! + 2} is "${header[axisCols[i - 1]! + 1]}")`);
   }
@@ -163,16 +135,47 @@ export function readBatchCsv(text: string, opts: CsvReadOptions = {}): ImportedB
   const p = axis.length;
   const a0 = axisCols[0]!;
 
-  const batches = new Map<string, ImportedBatch>();
-  const order: string[] = [];
+  // The rows, then the columns that are neither axis, time, batch nor bookkeeping: a column of
+  // numbers (empty cells allowed) is a property; text, empty columns and headers that name no
+  // property are not used (warned); numbers with a stray text cell are refused.
+  const rows: { line: number; cells: string[] }[] = [];
   for (let li = h + 1; li < lines.length; li++) {
     const raw = lines[li]!;
     if (raw.trim() === '' || raw.startsWith('#')) continue;
-    const lineNo = li + 1;
     const cells = splitLine(raw, delimiter);
-    if (cells.length !== header.length) {
-      throw new ImportError(file, lineNo, `${cells.length} fields, but the header has ${header.length}`);
+    if (cells.length !== header.length) throw new ImportError(file, li + 1, `${cells.length} fields, but the header has ${header.length}`);
+    rows.push({ line: li + 1, cells });
+  }
+  if (rows.length === 0) throw new ImportError(file, 0, 'the file has a header but no spectra');
+  const propCols: { name: string; unit: string; col: number }[] = [];
+  for (const col of candidates) {
+    const k = classifyColumn(rows.map((r) => r.cells[col]!), dec);
+    if (k.kind === 'empty') warn(`${file}: ${column(col)} has no value in any row; not used`);
+    else if (k.kind === 'text') warn(`${file}: ${column(col)} holds ${k.numbers ? 'mostly ' : ''}text (e.g. "${k.example}"), not numbers; not used`);
+    else if (k.kind === 'stray') {
+      const r = rows[k.row]!;
+      throw new ImportError(file, r.line, `${column(col)} holds "${r.cells[col]}", which is not a number, among ${k.numbers} numbers; leave the cell empty where there is no lab value`);
+    } else {
+      const ph = parsePropertyHeader(header[col]!);
+      if ('problem' in ph) {
+        warn(`${file}: ${column(col)} holds numbers but ${ph.problem}; not used`);
+        continue;
+      }
+      const prev = propCols.find((q) => q.name === ph.name);
+      if (prev) throw new ImportError(file, headerLine, `${column(prev.col)} and ${column(col)} both name the property ${ph.name}`);
+      propCols.push({ ...ph, col });
     }
+  }
+  if ((timeKind === 'ms' || timeKind === 'iso') && opts.origin !== undefined) {
+    warn(`${file}: the origin given is not used: the times in "${header[timeCol]}" are absolute`);
+  }
+  if ((timeKind === 's' || timeKind === 'min') && opts.origin === undefined) {
+    warn(`${file}: times are elapsed ${timeKind === 's' ? 'seconds' : 'minutes'} ("${header[timeCol]}") and no origin was given: the batches are placed after 1970-01-01T00:00:00Z; give the batch start (import --origin) to store real times`);
+  }
+
+  const batches = new Map<string, ImportedBatch>();
+  const order: string[] = [];
+  for (const { line: lineNo, cells } of rows) {
     const id = batchCol >= 0 ? cells[batchCol]! : opts.batch!;
     if (!id) throw new ImportError(file, lineNo, 'the batch column is empty');
     const tCell = cells[timeCol]!;
@@ -197,8 +200,11 @@ export function readBatchCsv(text: string, opts: CsvReadOptions = {}): ImportedB
     }
     let b = batches.get(id);
     if (!b) {
-      b = { id, axis, times: [], spectra: [], properties: {}, source: { file, firstLine: lineNo, lastLine: lineNo } };
-      for (const pc of propCols) b.properties[pc.name] = [];
+      b = { id, axis, times: [], spectra: [], properties: {}, propertyUnits: {}, source: { file, firstLine: lineNo, lastLine: lineNo } };
+      for (const pc of propCols) {
+        b.properties[pc.name] = [];
+        b.propertyUnits![pc.name] = pc.unit;
+      }
       for (const tc of textCols) {
         const v = cells[tc.col]!;
         if (v) (b as unknown as Record<string, string>)[tc.name] = v;
@@ -212,15 +218,12 @@ export function readBatchCsv(text: string, opts: CsvReadOptions = {}): ImportedB
     }
     for (const pc of propCols) {
       const cell = cells[pc.col]!;
-      const v = cell === '' ? NaN : toNumber(cell);
-      if (v === null) throw new ImportError(file, lineNo, `column "${header[pc.col]}" holds "${cell}", which is not a number`);
-      b.properties[pc.name]!.push(v);
+      b.properties[pc.name]!.push(cell === '' ? NaN : toNumber(cell)!);
     }
     b.times.push(t);
     b.spectra.push(values);
     b.source.lastLine = lineNo;
   }
-  if (order.length === 0) throw new ImportError(file, 0, 'the file has a header but no spectra');
   return order.map((id) => batches.get(id)!);
 }
 
@@ -229,16 +232,40 @@ export function formatFloat32(v: number): string {
   return Number(Math.fround(v).toPrecision(9)).toString();
 }
 
-/** Write batches (same axis) as CSV in the layout readBatchCsv reads first: batch, time_ms, properties, wavelengths. */
-export function writeBatchCsv(batches: Pick<ImportedBatch, 'id' | 'axis' | 'times' | 'spectra' | 'properties'>[]): string {
+/** A CSV cell, quoted when it holds the delimiter, a quote or leading/trailing blanks (RFC 4180). */
+function csvCell(s: string): string {
+  return /[",\n\r]|^\s|\s$/.test(s) ? `"${s.replace(/"/g, '""')}"` : s;
+}
+
+/** The header a property is written under, read back to the same name and unit. */
+export function propertyColumnHeader(name: string, unit: string): string {
+  const h = propertyHeader(name, unit);
+  const back = parsePropertyHeader(h);
+  return 'problem' in back || back.name !== name || back.unit !== unit ? `${name} [${unit}]` : h;
+}
+
+/**
+ * Write batches (same axis) as CSV in the layout readBatchCsv reads first: batch, time_ms, properties
+ * (`name [unit]`, empty where a spectrum has no value), wavelengths.
+ */
+export function writeBatchCsv(batches: Pick<ImportedBatch, 'id' | 'axis' | 'times' | 'spectra' | 'properties' | 'propertyUnits'>[]): string {
   if (batches.length === 0) throw new RangeError('no batches to write');
   const axis = batches[0]!.axis;
-  const props = Object.keys(batches[0]!.properties);
-  const rows: string[] = [['batch', 'time_ms', ...props, ...Array.from(axis, (x) => String(x))].join(',')];
+  const units = new Map<string, string>();
+  for (const b of batches) {
+    for (const k of Object.keys(b.properties)) {
+      const u = b.propertyUnits?.[k] ?? '';
+      const prev = units.get(k);
+      if (prev !== undefined && prev !== u) throw new RangeError(`property ${k} is in "${prev}" in one batch and "${u}" in batch ${b.id}; write them to separate files`);
+      units.set(k, u);
+    }
+  }
+  const props = [...units.keys()];
+  const rows: string[] = [['batch', 'time_ms', ...props.map((k) => csvCell(propertyColumnHeader(k, units.get(k)!))), ...Array.from(axis, (x) => String(x))].join(',')];
   for (const b of batches) {
     if (b.axis.length !== axis.length || b.axis.some((x, i) => x !== axis[i])) throw new RangeError(`batch ${b.id} has a different axis; write it to its own file`);
     for (let i = 0; i < b.spectra.length; i++) {
-      const cells = [b.id, String(b.times[i])];
+      const cells = [csvCell(b.id), String(b.times[i])];
       for (const k of props) {
         const v = b.properties[k]?.[i];
         cells.push(v === undefined || Number.isNaN(v) ? '' : String(v));

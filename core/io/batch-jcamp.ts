@@ -6,7 +6,9 @@
  * (##DATA TYPE=LINK with ##BLOCKS=n) holding one block per spectrum. The time of each spectrum is
  * taken from the user label ##$TIME MS (ms since the Unix epoch, written by Tideline), else from
  * ##LONGDATE (YYYY/MM/DD HH:MM:SS[.sss], UTC assumed); the batch id from ##$BATCH, else the
- * title of the link block, else the fallback given (the file name).
+ * title of the link block, else the fallback given (the file name). Lab values ride in user labels of
+ * the spectrum's block: `##$LAB moisture=1.9` with `##$LAB moisture UNIT=% w/w` (a block without the
+ * label has no value of that property: sparse).
  *
  * Writing produces a compound LINK file; each block carries ##XUNITS=NANOMETERS,
  * ##YUNITS=ABSORBANCE and the data as ##XYDATA=(X++(Y..Y)) when the axis is equidistant, else as
@@ -14,6 +16,7 @@
  * differ on them) with 9 significant digits, which round-trips Float32 exactly.
  */
 import { convert } from 'jcampconverter';
+import { normalisePropertyName, PROPERTY_NAME_RE } from '../lab/lab-values.ts';
 import { ImportError, normalizeAxis, wavenumberToNm, type ImportedBatch } from './imported-batch.ts';
 
 interface JcampEntry {
@@ -77,9 +80,10 @@ export function readBatchJcamp(text: string, opts: { file?: string; batch?: stri
     const t = Number.isFinite(tMs) ? tMs : parseLongDate(String(blk.info?.LONGDATE ?? ''));
     if (!Number.isFinite(t)) throw new ImportError(file, 0, `${where}: no time (neither ##$TIME MS nor a ##LONGDATE)`);
     const id = String(meta['BATCH'] ?? linkTitle ?? opts.batch ?? file.replace(/\.[^.]*$/, ''));
+    const lab = labLabels(meta, file, where);
     let b = batches.get(id);
     if (!b) {
-      b = { id, axis, times: [], spectra: [], properties: {}, source: { file, firstLine: 0, lastLine: 0 } };
+      b = { id, axis, times: [], spectra: [], properties: {}, propertyUnits: {}, source: { file, firstLine: 0, lastLine: 0 } };
       batches.set(id, b);
       order.push(id);
     } else if (b.axis.length !== axis.length || b.axis.some((x, i) => Math.abs(x - axis[i]!) > 1e-6 * Math.abs(x))) {
@@ -87,10 +91,45 @@ export function readBatchJcamp(text: string, opts: { file?: string; batch?: stri
     }
     const prev = b.times[b.times.length - 1];
     if (prev !== undefined && !(t > prev)) throw new ImportError(file, 0, `${where}: time does not increase within batch ${id}`);
+    const units = b.propertyUnits!;
+    for (const [name, { value, unit }] of lab) {
+      if (!(name in b.properties)) {
+        b.properties[name] = new Array<number>(b.times.length).fill(NaN);
+        units[name] = unit;
+      } else if (units[name] !== unit) {
+        throw new ImportError(file, 0, `${where}: ##$LAB ${name} UNIT=${unit || '(none)'}, but earlier blocks of batch ${id} give ${name} in "${units[name]}"; one property has one unit`);
+      }
+    }
+    for (const [name, arr] of Object.entries(b.properties)) arr.push(lab.get(name)?.value ?? NaN);
     b.times.push(t);
     b.spectra.push(values);
   });
   return order.map((id) => batches.get(id)!);
+}
+
+/** The lab values of a block: `##$LAB name=value` and `##$LAB name UNIT=unit` (labels as jcampconverter keeps them). */
+function labLabels(meta: Record<string, unknown>, file: string, where: string): Map<string, { value: number; unit: string }> {
+  const out = new Map<string, { value: number; unit: string }>();
+  const units = new Map<string, string>();
+  for (const [key, raw] of Object.entries(meta)) {
+    const m = /^LAB\s+(.+?)(\s+UNIT)?$/i.exec(key.trim());
+    if (!m) continue;
+    const name = normalisePropertyName(m[1]!);
+    if (!PROPERTY_NAME_RE.test(name)) throw new ImportError(file, 0, `${where}: ##$${key}: "${name}" is not a property name (it must start with a letter; letters, digits, _ . - up to 64)`);
+    if (m[2]) {
+      units.set(name, String(raw ?? '').trim());
+      continue;
+    }
+    const v = typeof raw === 'number' ? raw : Number(String(raw).trim());
+    if (String(raw).trim() === '' || !Number.isFinite(v)) throw new ImportError(file, 0, `${where}: ##$${key}=${String(raw)} is not a number`);
+    out.set(name, { value: v, unit: '' });
+  }
+  for (const [name, unit] of units) {
+    const e = out.get(name);
+    if (!e) throw new ImportError(file, 0, `${where}: ##$LAB ${name} UNIT is given without a ##$LAB ${name} value`);
+    e.unit = unit;
+  }
+  return out;
 }
 
 /** Fixed-notation decimal with 9 significant digits (never an exponent). */
@@ -118,7 +157,7 @@ function longDate(t: number): string {
 }
 
 /** Write one batch as a compound JCAMP-DX 4.24 file, one block per spectrum. Lines stay within 80 characters. */
-export function writeBatchJcamp(batch: Pick<ImportedBatch, 'id' | 'axis' | 'times' | 'spectra'> & { product?: string; unit?: string }): string {
+export function writeBatchJcamp(batch: Pick<ImportedBatch, 'id' | 'axis' | 'times' | 'spectra'> & Partial<Pick<ImportedBatch, 'properties' | 'propertyUnits'>> & { product?: string; unit?: string }): string {
   const out: string[] = [
     `##TITLE=${batch.id}`,
     '##JCAMP-DX=4.24',
@@ -142,6 +181,13 @@ export function writeBatchJcamp(batch: Pick<ImportedBatch, 'id' | 'axis' | 'time
     );
     if (batch.product) out.push(`##$PRODUCT=${batch.product}`);
     if (batch.unit) out.push(`##$UNIT=${batch.unit}`);
+    for (const [name, values] of Object.entries(batch.properties ?? {})) {
+      const v = values[k];
+      if (v === undefined || Number.isNaN(v)) continue;
+      out.push(`##$LAB ${name}=${v}`);
+      const u = batch.propertyUnits?.[name];
+      if (u) out.push(`##$LAB ${name} UNIT=${u}`);
+    }
     out.push('##XUNITS=NANOMETERS', '##YUNITS=ABSORBANCE', '##XFACTOR=1', '##YFACTOR=1', `##FIRSTX=${axis[0]}`, `##LASTX=${axis[n - 1]}`, `##NPOINTS=${n}`, `##FIRSTY=${fixed9(s[0]!)}`);
     if (equi) {
       out.push('##XYDATA=(X++(Y..Y))');

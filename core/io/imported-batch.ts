@@ -9,8 +9,13 @@ export interface ImportedBatch {
   /** ms since the Unix epoch (or since an origin the importer was given), one per spectrum. */
   times: number[];
   spectra: Float32Array[];
-  /** Per-spectrum numeric columns by name, e.g. { moisture_pct: [...] }. */
+  /**
+   * Per-spectrum properties (laboratory values) by normalised name, e.g. { moisture: [NaN, 6.3, NaN, …] }:
+   * NaN where the spectrum has no value (sparse).
+   */
   properties: Record<string, number[]>;
+  /** Unit of each property ('' when the file gives none), e.g. { moisture: '% w/w' }. */
+  propertyUnits?: Record<string, string>;
   product?: string;
   unit?: string;
   source: { file: string; firstLine: number; lastLine: number };

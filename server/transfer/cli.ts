@@ -1,7 +1,7 @@
 /**
  * Command-line import and export (called from server/cli.ts):
  *
- *   import --unit U --product P [--by NAME] [--delimiter ';'] [--decimal ,] [--axis-unit cm-1] FILE|DIR …
+ *   import --unit U --product P [--by NAME] [--delimiter ';'] [--decimal ,] [--axis-unit cm-1] [--origin ISO] FILE|DIR …
  *   export BATCH --format csv|jcamp|html|pdf [--out FILE]
  *
  * Import works on the database directly (server stopped or running: SQLite WAL allows both; a running
@@ -15,7 +15,8 @@ import { writeBatchJcamp } from '../../core/io/batch-jcamp.ts';
 import { ImportError } from '../../core/io/imported-batch.ts';
 import { ConfigError } from '../config.ts';
 import type { Storage } from '../storage/storage.ts';
-import { importBatches, type ImportFile } from './import-batches.ts';
+import { parseSampleTime } from '../../core/lab/match.ts';
+import { importBatches, type ImportFile, type ImportSummary } from './import-batches.ts';
 
 const IMPORTABLE = /\.(csv|txt|tsv|jdx|dx|jcamp)$/i;
 
@@ -31,6 +32,17 @@ export function collectFiles(paths: string[]): ImportFile[] {
   return files;
 }
 
+/** The import summary's lab properties and warnings as lines, as the command line prints them. */
+export function importPropertyLines(s: ImportSummary): string[] {
+  const lines: string[] = [];
+  if (s.properties.length === 0) lines.push('lab properties: none found (no column of numbers besides time, batch and the wavelengths)\n');
+  for (const p of s.properties) {
+    lines.push(`lab property ${p.name}${p.unit ? ` [${p.unit}]` : ' (no unit)'}: ${p.values} value(s) on ${p.batches.length} batch(es): ${p.batches.join(', ')}\n`);
+  }
+  for (const w of s.warnings) lines.push(`warning: ${w}\n`);
+  return lines;
+}
+
 export async function runTransferCli(cmd: 'import' | 'export', positional: string[], flags: Record<string, string>, storage: Storage, out: (s: string) => void): Promise<number> {
   if (cmd === 'import') {
     if (!flags.unit || !flags.product || positional.length === 0) throw new ConfigError('usage: import --unit U --product P FILE|DIR …');
@@ -38,6 +50,14 @@ export async function runTransferCli(cmd: 'import' | 'export', positional: strin
     if (delimiter !== undefined && ![',', ';', '\t'].includes(delimiter)) throw new ConfigError(`--delimiter must be , ; or tab, not "${flags.delimiter}"`);
     if (flags.decimal !== undefined && !['.', ','].includes(flags.decimal)) throw new ConfigError(`--decimal must be . or , not "${flags.decimal}"`);
     if (flags['axis-unit'] !== undefined && !['nm', 'cm-1'].includes(flags['axis-unit'])) throw new ConfigError(`--axis-unit must be nm or cm-1`);
+    let origin: number | undefined;
+    if (flags.origin !== undefined) {
+      try {
+        origin = parseSampleTime(flags.origin);
+      } catch (e) {
+        throw new ConfigError(`--origin: ${(e as Error).message.replace(/^sample time/, 'the batch start')}`);
+      }
+    }
     try {
       const s = await importBatches(
         storage,
@@ -45,13 +65,14 @@ export async function runTransferCli(cmd: 'import' | 'export', positional: strin
           files: collectFiles(positional),
           unit: flags.unit,
           product: flags.product,
-          csv: { delimiter: delimiter as ',' | ';' | '\t' | undefined, decimal: flags.decimal as '.' | ',' | undefined, axisUnit: flags['axis-unit'] as 'nm' | 'cm-1' | undefined },
+          csv: { delimiter: delimiter as ',' | ';' | '\t' | undefined, decimal: flags.decimal as '.' | ',' | undefined, axisUnit: flags['axis-unit'] as 'nm' | 'cm-1' | undefined, origin },
           user: flags.by ?? process.env.USER ?? 'cli',
         },
         Date.now(),
       );
-      for (const b of s.batches) out(`imported ${b.id}: ${b.spectra} spectra from ${b.file}\n`);
+      for (const b of s.batches) out(`imported ${b.id}: ${b.spectra} spectra${b.labValues ? `, ${b.labValues} lab values` : ''} from ${b.file}\n`);
       out(`${s.batches.length} batch(es) on a ${s.axis.points}-point axis ${s.axis.from}–${s.axis.to} nm, unit ${s.unit}\n`);
+      out(importPropertyLines(s).join(''));
       return 0;
     } catch (e) {
       if (e instanceof ImportError) {

@@ -8,12 +8,13 @@
  * interpolation (core/preprocess 'resample' step, which refuses to extrapolate); a file whose range
  * does not cover the target is refused with its name.
  */
+import { randomUUID } from 'node:crypto';
 import { readBatchCsv, type CsvReadOptions } from '../../core/io/batch-csv.ts';
 import { readBatchJcamp } from '../../core/io/batch-jcamp.ts';
 import { ImportError, type ImportedBatch } from '../../core/io/imported-batch.ts';
 import { matrixFromRows } from '../../core/linalg/dense-matrix.ts';
 import { fitChain } from '../../core/preprocess/index.ts';
-import { emptyIngestWrite, type Storage } from '../storage/storage.ts';
+import { emptyIngestWrite, type LabValueRow, type Storage } from '../storage/storage.ts';
 
 export const IMPORT_ANALYZER = 'file-import';
 
@@ -39,8 +40,15 @@ export interface ImportSummary {
   importId: number;
   unit: string;
   product: string;
-  batches: { id: string; spectra: number; file: string; from: number; to: number; resampled: boolean }[];
+  batches: { id: string; spectra: number; file: string; from: number; to: number; resampled: boolean; labValues: number }[];
   axis: { points: number; from: number; to: number };
+  /**
+   * Lab properties found in the files' columns (CSV) or labels (JCAMP-DX), stored as lab values
+   * (source 'import') on their spectra: name, unit, how many values, on which batches.
+   */
+  properties: { name: string; unit: string; values: number; batches: string[] }[];
+  /** What the import read past: columns it does not use, times without an origin, … */
+  warnings: string[];
 }
 
 export function formatOf(file: ImportFile): ImportFormat {
@@ -52,12 +60,29 @@ export function formatOf(file: ImportFile): ImportFormat {
 }
 
 /** Parse the files (pure). Throws ImportError naming file, line and reason. */
-export function parseImportFiles(req: Pick<ImportRequest, 'files' | 'csv' | 'targetAxis'>): { batches: ImportedBatch[]; resampled: Set<string> } {
+export function parseImportFiles(req: Pick<ImportRequest, 'files' | 'csv' | 'targetAxis'>): { batches: ImportedBatch[]; resampled: Set<string>; warnings: string[] } {
   if (req.files.length === 0) throw new ImportError('import', 0, 'no files were given');
   const batches: ImportedBatch[] = [];
+  const warnings: string[] = [];
   for (const f of req.files) {
-    const got = formatOf(f) === 'jcamp' ? readBatchJcamp(f.content, { file: f.name, batch: fileStem(f.name) }) : readBatchCsv(f.content, { ...req.csv, file: f.name, batch: fileStem(f.name) });
+    const got = formatOf(f) === 'jcamp' ? readBatchJcamp(f.content, { file: f.name, batch: fileStem(f.name) }) : readBatchCsv(f.content, { ...req.csv, file: f.name, batch: fileStem(f.name), warnings });
     batches.push(...got);
+  }
+  // One property, one unit across the import: values in two units must not meet in one calibration.
+  const unitOf = new Map<string, { unit: string; file: string; batch: string }>();
+  for (const b of batches) {
+    for (const name of Object.keys(b.properties)) {
+      const unit = b.propertyUnits?.[name] ?? '';
+      const prev = unitOf.get(name);
+      if (prev && prev.unit !== unit) {
+        throw new ImportError(
+          b.source.file,
+          b.source.firstLine,
+          `batch ${b.id} gives ${name} in "${unit}", but ${prev.file} (batch ${prev.batch}) gives it in "${prev.unit}"; one property has one unit — convert one of them, or name them apart`,
+        );
+      }
+      if (!prev) unitOf.set(name, { unit, file: b.source.file, batch: b.id });
+    }
   }
   const seen = new Map<string, string>();
   for (const b of batches) {
@@ -97,7 +122,7 @@ export function parseImportFiles(req: Pick<ImportRequest, 'files' | 'csv' | 'tar
       }
     }
   }
-  return { batches, resampled };
+  return { batches, resampled, warnings };
 }
 
 /** A file without a batch column or label names its batch by the file name: "D-0042.csv" → "D-0042". */
@@ -116,7 +141,7 @@ export async function importBatches(storage: Storage, req: ImportRequest, now: n
   const unit = await storage.getUnit(req.unit);
   if (!unit) throw new ImportError('import', 0, `unit "${req.unit}" is not known; create it first (npm run tideline -- unit add ${req.unit})`);
   if (!req.product.trim()) throw new ImportError('import', 0, 'the product must be named');
-  const { batches, resampled } = parseImportFiles(req);
+  const { batches, resampled, warnings } = parseImportFiles(req);
   for (const b of batches) {
     if (!/^[A-Za-z0-9._:-]{1,128}$/.test(b.id)) throw new ImportError(b.source.file, b.source.firstLine, `batch id "${b.id}" must be 1–128 letters, digits or . _ : -`);
     if (await storage.getBatch(b.id)) throw new ImportError(b.source.file, b.source.firstLine, `batch ${b.id} is already in the record; it was not imported again`);
@@ -135,10 +160,25 @@ export async function importBatches(storage: Storage, req: ImportRequest, now: n
     product: req.product,
     batches: [],
     axis: { points: batches[0]!.axis.length, from: batches[0]!.axis[0]!, to: batches[0]!.axis[batches[0]!.axis.length - 1]! },
+    properties: [],
+    warnings,
   };
+  const labValues = importedLabValues(batches, req.user, now);
+  const props = new Map<string, ImportSummary['properties'][number]>();
+  for (const v of labValues) {
+    let p = props.get(v.property);
+    if (!p) props.set(v.property, (p = { name: v.property, unit: v.unit, values: 0, batches: [] }));
+    p.values++;
+    if (p.batches[p.batches.length - 1] !== v.batch) p.batches.push(v.batch);
+  }
+  summary.properties = [...props.values()];
   for (const b of batches) {
     const n = b.spectra.length;
-    summary.batches.push({ id: b.id, spectra: n, file: b.source.file, from: b.times[0]!, to: b.times[n - 1]!, resampled: resampled.has(b.id) });
+    const lab = labValues.filter((v) => v.batch === b.id).length;
+    summary.batches.push({ id: b.id, spectra: n, file: b.source.file, from: b.times[0]!, to: b.times[n - 1]!, resampled: resampled.has(b.id), labValues: lab });
+    for (const [name, values] of Object.entries(b.properties)) {
+      if (!values.some((v) => !Number.isNaN(v))) warnings.push(`${b.source.file}: batch ${b.id} has no ${name} value (the column is empty on all its rows)`);
+    }
   }
   // The import's entries are numbered (file-import, boot, seq) like an analyzer's. Two imports that
   // start in the same millisecond (two command-line imports at once, two uploads) would share the
@@ -146,7 +186,7 @@ export async function importBatches(storage: Storage, req: ImportRequest, now: n
   // the next boot number.
   for (let attempt = 0; ; attempt++) {
     try {
-      await storage.commitIngest(importWrite(batches, req, now + attempt, now));
+      await storage.commitIngest(importWrite(batches, req, now + attempt, now, labValues));
       summary.importId = now + attempt;
       return summary;
     } catch (e) {
@@ -156,8 +196,30 @@ export async function importBatches(storage: Storage, req: ImportRequest, now: n
   }
 }
 
-function importWrite(batches: ImportedBatch[], req: ImportRequest, boot: number, now: number) {
+/**
+ * The files' property values as lab values (source 'import'), each on its own spectrum (the sample
+ * time is the spectrum's time: the file pairs them row by row).
+ */
+function importedLabValues(batches: ImportedBatch[], user: string, now: number): LabValueRow[] {
+  const out: LabValueRow[] = [];
+  for (const b of batches) {
+    for (const [name, values] of Object.entries(b.properties)) {
+      const unit = b.propertyUnits?.[name] ?? '';
+      values.forEach((value, idx) => {
+        if (Number.isNaN(value)) return;
+        out.push({
+          id: randomUUID(), batch: b.id, property: name, value, unit, sampleT: b.times[idx]!, spectrumIdx: idx, spectrumDtMs: 0,
+          method: null, enteredBy: user, enteredAt: now, source: 'import', supersedes: null, reason: null,
+        });
+      });
+    }
+  }
+  return out;
+}
+
+function importWrite(batches: ImportedBatch[], req: ImportRequest, boot: number, now: number, labValues: LabValueRow[]) {
   const w = emptyIngestWrite();
+  w.labValues = labValues;
   let seq = 0;
   for (const b of batches) {
     const startSeq = seq++;

@@ -82,7 +82,10 @@ export function install(ctx: ServerContext): void {
           user: userName(req),
           action: 'batch.import',
           object: `unit:${body.unit}`,
-          after: { files: body.files.map((f) => f.name), batches: summary.batches.map((b) => b.id), resampledToModel: body.resampleToModel ?? null },
+          after: {
+            files: body.files.map((f) => f.name), batches: summary.batches.map((b) => b.id), resampledToModel: body.resampleToModel ?? null,
+            labProperties: summary.properties.map((p) => ({ name: p.name, unit: p.unit, values: p.values })),
+          },
         });
         return summary;
       } catch (e) {
