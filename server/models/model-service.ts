@@ -13,6 +13,7 @@ import { BuildBusyError, BuildFailedError, ModelBuildRunner, packReferenceBatch,
 import type { PackedReferenceBatch } from './build-worker.ts';
 import type { MonitoringModel } from '../../core/model/monitoring-model.ts';
 import { endpointCheckView, endpointRuleView, propertyModelView, referenceEndpointsView } from '../../core/model/version-evidence.ts';
+import { labPropertyArray, LabValueError, normalisePropertyName } from '../../core/lab/lab-values.ts';
 
 export class ModelRequestError extends Error {
   /** `title` and `kind` (problem type slug) default by status in routes-models.ts. */
@@ -49,7 +50,13 @@ export async function registerModelFile(ctx: ServerContext, file: BuiltModelFile
   return row;
 }
 
-export async function loadReferenceBatch(ctx: ServerContext, id: string): Promise<ReferenceBatchInput> {
+/**
+ * A stored batch as a reference batch for a build. With `property` (the build's property model,
+ * settings.property), `property` is filled from the batch's effective lab values of that property:
+ * one entry per spectrum, NaN where the spectrum has no lab value (sparse; a batch without any has
+ * all NaN). A lab value in another unit than the build's is refused (422), naming it.
+ */
+export async function loadReferenceBatch(ctx: ServerContext, id: string, property?: { name: string; unit?: string }): Promise<ReferenceBatchInput> {
   const b = await ctx.storage.getBatch(id);
   if (!b) throw new ModelRequestError(404, `reference batch "${id}" does not exist`);
   if (b.status !== 'ended') throw new ModelRequestError(409, `reference batch "${id}" is still open; only ended batches can be references`);
@@ -59,7 +66,15 @@ export async function loadReferenceBatch(ctx: ServerContext, id: string): Promis
     times.push(s.t);
     spectra.push(s.values);
   }
-  return { id, axis: b.axis, times, spectra };
+  if (!property) return { id, axis: b.axis, times, spectra };
+  const name = normalisePropertyName(property.name);
+  try {
+    const { values } = labPropertyArray(await ctx.storage.listLabValues(id), name, spectra.length, property.unit);
+    return { id, axis: b.axis, times, spectra, property: values };
+  } catch (e) {
+    if (e instanceof LabValueError) throw new ModelRequestError(422, `reference batch "${id}": ${e.message}`, 'Lab values in another unit', 'lab-unit-mismatch');
+    throw e;
+  }
 }
 
 const runners = new WeakMap<ServerContext, ModelBuildRunner>();
@@ -97,7 +112,9 @@ export async function buildFromStored(
   }
   try {
     const batches: PackedReferenceBatch[] = [];
-    for (const id of req.referenceBatches) batches.push(packReferenceBatch(await loadReferenceBatch(ctx, id)));
+    const property = (req.settings as { property?: { name?: unknown; unit?: unknown } } | undefined)?.property;
+    const wanted = property && typeof property.name === 'string' ? { name: property.name, unit: typeof property.unit === 'string' ? property.unit : undefined } : undefined;
+    for (const id of req.referenceBatches) batches.push(packReferenceBatch(await loadReferenceBatch(ctx, id, wanted)));
     let file: BuiltModelFile;
     try {
       file = await runner.build(info, batches, { ...(req.settings ?? {}), name: req.name, product: req.product, author: user, createdAt: ctx.now() });
