@@ -7,6 +7,13 @@
  * result object. Deterministic: replaying the stored spectra of a batch through a new monitor
  * rebuilds the exact state.
  *
+ * Bad pixels (core/quality/pixel-quality.ts) are found on the raw spectrum first. A spectrum with a
+ * few is bridged for the chain (core/quality/bad-pixels.ts) and projected with the model variables
+ * its bad pixels reach treated as missing, by trimmed score regression (core/pca/tsr-projector.ts);
+ * its result carries `quality`. One with more than the allowed share of bad pixels is not judged:
+ * its result says so and no condition, progress or endpoint state moves. Bad pixels on `onDelay` of
+ * `onWindow` spectra raise the analyzer-quality condition (kind 'analyzer', key 'pixel-quality').
+ *
  * Tideline advises: the site's validated control strategy, interlocks and procedures decide what
  * an alarm or an endpoint signal may do.
  */
@@ -24,7 +31,18 @@ import type { MonitoringModel } from '../model/monitoring-model.ts';
 import { ConditionFilter } from './condition-filter.ts';
 import { EtaEstimator } from './eta.ts';
 import { PaceCheck, type PaceStatus } from './pace.ts';
-import type { AlarmPriority, ConditionChange, ConditionKind, Contributions, DomainEvent, EnvelopeCheck, MonitorResult } from './types.ts';
+import { createTsrProjector } from '../pca/tsr-projector.ts';
+import { createPixelQualityChecker, resolvePixelQuality, type PixelQualitySettings } from '../quality/pixel-quality.ts';
+import { bridgeBadPixels, ChainFootprint } from '../quality/bad-pixels.ts';
+import type { AlarmPriority, ConditionChange, ConditionKind, Contributions, DomainEvent, EndpointStatus, EnvelopeCheck, MonitorResult, SpectrumQuality } from './types.ts';
+
+export interface BatchMonitorOptions {
+  /** Pixel-quality settings (defaults: DEFAULT_PIXEL_QUALITY), or false to judge every spectrum as sent. */
+  pixelQuality?: Partial<PixelQualitySettings> | false;
+}
+
+/** Key of the analyzer-quality condition the monitor raises on repeated bad pixels. */
+export const PIXEL_QUALITY_KEY = 'pixel-quality';
 
 export interface BatchMonitor {
   push(seq: number, t: number, values: Float32Array | ArrayLike<number>): MonitorResult;
@@ -45,7 +63,7 @@ function fmt(x: number): string {
   return a >= 100 ? x.toFixed(0) : a >= 10 ? x.toFixed(1) : a >= 1 ? x.toFixed(2) : x.toPrecision(3);
 }
 
-export function createBatchMonitor(model: MonitoringModel, batchStartT: number): BatchMonitor {
+export function createBatchMonitor(model: MonitoringModel, batchStartT: number, opts: BatchMonitorOptions = {}): BatchMonitor {
   if (!Number.isFinite(batchStartT)) throw new RangeError(`batch start ${batchStartT} is not a time`);
   const { chain, pca, envelope: env, limits } = model;
   const pIn = chain.inputAxis.length;
@@ -111,6 +129,75 @@ export function createBatchMonitor(model: MonitoringModel, batchStartT: number):
   const inputs: EndpointInputs = { property: null, mbsd: null, slopes: plateaus.map(() => null), goldenEndDistance: null, eta: null };
   let lastSeq = -1;
   let lastT = batchStartT;
+  // Pixel quality: checker with its history, bridged spectrum, missing-variable mask, TSR projector.
+  const pqSettings = opts.pixelQuality === false ? null : resolvePixelQuality(opts.pixelQuality ?? {});
+  const checker = pqSettings ? createPixelQualityChecker(pIn, pqSettings) : null;
+  const bridged = new Float64Array(pIn);
+  const missing = new Uint8Array(p);
+  const footprint = new ChainFootprint(chain);
+  const tsr = createTsrProjector(pca);
+  const qualityFilter = new ConditionFilter(alarmSpec);
+  let lastProgress = 0;
+  let lastProgressFraction = 0;
+  let lastEndpoint: EndpointStatus | null = null;
+
+  function flagText(qy: SpectrumQuality): string {
+    return Object.entries(qy.flags).filter(([, n]) => n > 0).map(([f, n]) => `${f} ${n}`).join(', ');
+  }
+
+  /** The analyzer-quality condition for this spectrum (bad pixel count against 0.5). */
+  function qualityCondition(bad: number, qy: SpectrumQuality | undefined, seq: number, t: number, changes: ConditionChange[], events: DomainEvent[]): void {
+    const u = qualityFilter.update(bad, 0.5);
+    if (!u.changed) return;
+    const message = u.active
+      ? `analyzer pixel quality: bad pixels on ${alarmSpec.onDelay} of the last ${alarmSpec.onWindow} spectra (now ${bad}: ${qy ? flagText(qy) : ''}); spectra with a few bad pixels are judged with them missing, more than ${+((pqSettings?.maxBadFraction ?? 0) * 100).toFixed(2)} % bad are not judged`
+      : `analyzer pixel quality back to normal: no bad pixels on ${alarmSpec.offDelay} spectra in a row`;
+    const change: ConditionChange = { kind: 'analyzer', key: PIXEL_QUALITY_KEY, active: u.active, message, value: bad, limit: 0.5, priority: 3 };
+    changes.push(change);
+    events.push({ type: 'condition', change, t, seq });
+  }
+
+  function activeKeys(): string[] {
+    const keys: string[] = [];
+    for (const c of conds) if (c.filter.active) keys.push(c.key);
+    if (qualityFilter.active) keys.push(PIXEL_QUALITY_KEY);
+    return keys;
+  }
+
+  /** The result of a spectrum too damaged to judge: nothing but the analyzer-quality condition moves. */
+  function notJudged(seq: number, t: number, quality: SpectrumQuality): MonitorResult {
+    const changes: ConditionChange[] = [];
+    const events: DomainEvent[] = [];
+    qualityCondition(quality.badPixels, quality, seq, t, changes, events);
+    lastSeq = seq;
+    lastT = t;
+    const nan = (): number[] => new Array<number>(A).fill(NaN);
+    const ep: EndpointStatus = lastEndpoint
+      ? { ...lastEndpoint, criteria: lastEndpoint.criteria, etaMin: lastEndpoint.etaMin ? { ...lastEndpoint.etaMin } : null }
+      : { state: endpoint.state, criteria: [], combine: rule.combine, confirmCount: 0, confirmNeeded: rule.confirm, etaMin: null, doneAt: null };
+    return {
+      seq,
+      t,
+      elapsedMin: (t - batchStartT) / 60000,
+      progress: lastProgress,
+      progressFraction: lastProgressFraction,
+      scores: nan(),
+      t2: NaN,
+      q: NaN,
+      combined: NaN,
+      limits: { t2: t2Lim, q: qLim, combined: cLim, confidence: conf },
+      localLimits: null,
+      alarmLimits: { t2: NaN, q: NaN, envelopeK: aK, confidence: aConf },
+      envelope: [],
+      prediction: null,
+      suspect: false,
+      conditionChanges: changes,
+      activeConditions: activeKeys(),
+      endpoint: ep,
+      events,
+      quality,
+    };
+  }
 
   function check(values: ArrayLike<number>): void {
     if (values.length !== pIn) throw new RangeError(`spectrum has ${values.length} values; the model ${model.id} expects ${pIn} on its axis`);
@@ -119,16 +206,53 @@ export function createBatchMonitor(model: MonitoringModel, batchStartT: number):
   function push(seq: number, t: number, values: Float32Array | ArrayLike<number>): MonitorResult {
     check(values);
     if (!Number.isFinite(t)) throw new RangeError(`spectrum ${seq}: time ${t} is not a number`);
-    chain.apply(values, xp);
-    const proj = projector.project(xp);
-    const t2 = proj.t2;
-    const q = proj.q;
-    const scores = Array.from(proj.scores);
+    let src: ArrayLike<number> = values;
+    let quality: SpectrumQuality | undefined;
+    let bad = 0;
+    if (checker && pqSettings) {
+      const pq = checker.check(values);
+      bad = pq.bad;
+      if (bad > 0) {
+        const pixels: number[] = [];
+        for (let j = 0; j < pIn && pixels.length < 32; j++) if (pq.mask[j]) pixels.push(j);
+        quality = { flags: { ...pq.counts }, badPixels: bad, badFraction: pq.badFraction, pixels, missingVariables: 0, judged: false, scoredBy: null };
+        if (pq.badFraction > pqSettings.maxBadFraction) {
+          quality.reason = `${bad} of ${pIn} pixels are bad (${flagText(quality)}); more than ${+(pqSettings.maxBadFraction * 100).toFixed(2)} % are not judged`;
+          return notJudged(seq, t, quality);
+        }
+        bridgeBadPixels(values, pq.mask, bridged);
+        src = bridged;
+        quality.missingVariables = footprint.missingVariables(pq.mask, bridged, missing);
+      }
+    }
+    chain.apply(src, xp);
+    let t2: number;
+    let q: number;
+    let scoreVec: Float64Array;
+    if (quality && quality.missingVariables > 0) {
+      const r = tsr.project(xp, missing);
+      if (!r.ok) {
+        quality.reason = `the model cannot estimate its ${A} scores with ${quality.missingVariables} of its ${p} variables missing`;
+        return notJudged(seq, t, quality);
+      }
+      t2 = r.t2;
+      q = r.q;
+      scoreVec = r.scores;
+      quality.scoredBy = 'tsr';
+    } else {
+      const r = projector.project(xp);
+      t2 = r.t2;
+      q = r.q;
+      scoreVec = r.scores;
+      if (quality) quality.scoredBy = 'full';
+    }
+    if (quality) quality.judged = true;
+    const scores = Array.from(scoreVec);
     const combined = combinedIndex(t2, q, t2Lim, qLim);
     const elapsedMin = (t - batchStartT) / 60000;
     let prediction: MonitorResult['prediction'] = null;
     if (pls) {
-      const r = pls.predict(values);
+      const r = pls.predict(src);
       prediction = { name: pls.name, unit: pls.unit, value: r.y, t2: r.t2, q: r.q, extrapolating: r.extrapolating };
     }
     const indicator = env.axis.kind === 'indicator' ? (env.axis.source === 'property' ? (prediction ? prediction.value : NaN) : scores[0]) : 0;
@@ -200,6 +324,9 @@ export function createBatchMonitor(model: MonitoringModel, batchStartT: number):
       }
     }
 
+    if (checker) qualityCondition(bad, quality, seq, t, changes, events);
+    if (qualityFilter.active) active.push(PIXEL_QUALITY_KEY);
+
     // Endpoint.
     inputs.property = prediction ? prediction.value : null;
     inputs.mbsd = mbsd ? mbsd.push(xp) : null;
@@ -217,13 +344,18 @@ export function createBatchMonitor(model: MonitoringModel, batchStartT: number):
     const ep = endpoint.update(seq, t, inputs, events);
     lastSeq = seq;
     lastT = t;
+    lastProgress = prog;
+    const fraction = progressFraction(env, prog, endProgress);
+    lastProgressFraction = fraction;
+    const endpointStatus: EndpointStatus = { ...ep, criteria: ep.criteria, etaMin: ep.etaMin ? { ...ep.etaMin } : null };
+    lastEndpoint = endpointStatus;
 
     return {
       seq,
       t,
       elapsedMin,
       progress: prog,
-      progressFraction: progressFraction(env, prog, endProgress),
+      progressFraction: fraction,
       scores,
       t2,
       q,
@@ -237,8 +369,9 @@ export function createBatchMonitor(model: MonitoringModel, batchStartT: number):
       suspect,
       conditionChanges: changes,
       activeConditions: active,
-      endpoint: { ...ep, criteria: ep.criteria, etaMin: ep.etaMin ? { ...ep.etaMin } : null },
+      endpoint: endpointStatus,
       events,
+      ...(quality ? { quality } : {}),
     };
   }
 
@@ -259,8 +392,8 @@ export function createBatchMonitor(model: MonitoringModel, batchStartT: number):
 }
 
 /** Replay stored spectra through a new monitor (state rebuild after a restart, review, evaluation). */
-export function replayBatch(model: MonitoringModel, batchStartT: number, spectra: { seq: number; t: number; values: ArrayLike<number> }[]): { monitor: BatchMonitor; results: MonitorResult[] } {
-  const monitor = createBatchMonitor(model, batchStartT);
+export function replayBatch(model: MonitoringModel, batchStartT: number, spectra: { seq: number; t: number; values: ArrayLike<number> }[], opts: BatchMonitorOptions = {}): { monitor: BatchMonitor; results: MonitorResult[] } {
+  const monitor = createBatchMonitor(model, batchStartT, opts);
   const results = spectra.map((s) => monitor.push(s.seq, s.t, s.values));
   return { monitor, results };
 }

@@ -23,8 +23,12 @@ export interface EndpointHold {
   text: string;
 }
 
-/** Conditions the monitor itself raises (on-delay / off-delay applied in core). */
-export const CONDITION_KINDS = ['t2', 'q', 'combined', 'envelope', 'property'] as const;
+/**
+ * Conditions the monitor itself raises (on-delay / off-delay applied in core). 'analyzer': the
+ * analyzer-quality condition (repeated bad pixels, core/quality/pixel-quality.ts); the server
+ * raises other analyzer alarms of the same kind.
+ */
+export const CONDITION_KINDS = ['t2', 'q', 'combined', 'envelope', 'property', 'analyzer'] as const;
 export type ConditionKind = (typeof CONDITION_KINDS)[number];
 
 /** Alarm kinds known to the whole system: the monitor's conditions plus server-side ones. */
@@ -101,6 +105,32 @@ export interface PropertyPrediction {
   extrapolating: boolean;
 }
 
+/**
+ * Pixel quality of a spectrum with bad pixels (absent on a clean spectrum): the named flags
+ * (core/quality/pixel-quality.ts), how the spectrum was judged. judged false: too damaged to judge
+ * — stored, but scores, T², Q, envelope and prediction are NaN/empty and no condition or endpoint
+ * state moved.
+ */
+export interface SpectrumQuality {
+  /** Bad pixels per named flag (a pixel can carry several flags). */
+  flags: { 'non-finite': number; saturated: number; dead: number; stuck: number; spike: number };
+  /** Pixels with any flag, and their share of the spectrum. */
+  badPixels: number;
+  badFraction: number;
+  /** Indices (raw axis) of the first bad pixels, at most 32. */
+  pixels: number[];
+  /** Model variables (after preprocessing) treated as missing. */
+  missingVariables: number;
+  judged: boolean;
+  /**
+   * 'tsr': projected with the missing variables by trimmed score regression; 'full': the bad pixels
+   * reach no model variable, ordinary projection; null when not judged.
+   */
+  scoredBy: 'tsr' | 'full' | null;
+  /** Why a spectrum was not judged. */
+  reason?: string;
+}
+
 export interface MonitorResult {
   seq: number;
   t: number;
@@ -136,6 +166,8 @@ export interface MonitorResult {
   endpoint: EndpointStatus;
   /** Domain events caused by this spectrum, for the outbox. */
   events: DomainEvent[];
+  /** Present when the spectrum had bad pixels. */
+  quality?: SpectrumQuality;
 }
 
 /** Contributions of each variable (after preprocessing, on the model axis) for one spectrum. */
