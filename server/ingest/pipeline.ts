@@ -210,7 +210,10 @@ export class IngestPipeline {
         try {
           ob.monitor = this.core.createBatchMonitor(model, row.startT);
           let last: MonitorResult | null = null;
-          for await (const s of this.storage.iterateSpectra(row.id)) last = ob.monitor.push(s.seq, s.t, s.values);
+          for await (const s of this.storage.iterateSpectra(row.id)) {
+            const r = ob.monitor.push(s.seq, s.t, s.values);
+            if (r.quality?.judged !== false) last = r;
+          }
           ob.latest = last;
           ob.endpoint = last?.endpoint ?? null;
           if (ob.endpoint && ob.endpointState === 'signalled') {
@@ -398,8 +401,12 @@ export class IngestPipeline {
       return;
     }
     this.uow.results.push({ batch: ob.id, idx, modelVersion: ob.modelVersion!, result: r });
-    ob.latest = r;
-    ob.endpoint = r.endpoint;
+    // A spectrum too damaged to judge (docs/bad-pixels.md) is stored with its result row; the views keep the last judged one.
+    const judged = r.quality?.judged !== false;
+    if (judged) {
+      ob.latest = r;
+      ob.endpoint = r.endpoint;
+    }
     for (const c of r.conditionChanges) {
       this.applyCondition(ob.unit, ob.id, { kind: c.kind, key: c.key, active: c.active, message: c.message, value: c.value, limit: c.limit, priority: c.priority, spectrumT: e.t }, e.seq, now);
     }
@@ -418,7 +425,7 @@ export class IngestPipeline {
       }
     }
     if (ob.endpointState === null) ob.endpointState = r.endpoint.state;
-    this.post.events.push(['result', { unit: ob.unit, batch: ob.id, result: r }]);
+    if (judged) this.post.events.push(['result', { unit: ob.unit, batch: ob.id, result: r }]);
   }
 
   private acceptBatchStart(st: StreamState, e: BatchStartMessage) {

@@ -18,7 +18,7 @@ export const INGEST_SQL = {
         VALUES (?, ?, ?, ?, ?, 'open', ?, ?, ?, ?, ?)`,
   insertRejected: 'INSERT OR IGNORE INTO rejected_entries (analyzer, boot, seq, code, message, received_at) VALUES (?, ?, ?, ?, ?, ?)',
   insertSpectrum: 'INSERT INTO spectra (batch, idx, analyzer, boot, seq, t, vals, received_at) VALUES (?, ?, ?, ?, ?, ?, ?, ?)',
-  insertResult: 'INSERT OR REPLACE INTO results (batch, idx, seq, t, model_version, t2, q, body) VALUES (?, ?, ?, ?, ?, ?, ?, ?)',
+  insertResult: 'INSERT OR REPLACE INTO results (batch, idx, seq, t, model_version, t2, q, body, quality) VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?)',
   batchProgress: 'UPDATE batches SET spectrum_count = ?, last_seq = ?, last_t = ?, endpoint_state = ?, endpoint_at = ? WHERE id = ?',
   batchEnd: `UPDATE batches SET status = 'ended', end_seq = ?, end_t = ?, end_reason = ? WHERE id = ?`,
   upsertAlarm: `INSERT INTO alarms (id, unit, batch, kind, key, state, priority, message, value, limit_value, active, raised_at, cleared_at,
@@ -60,7 +60,7 @@ const commit = db.transaction((w) => {
   for (const r of w.rejected) s.insertRejected.run(r.analyzer, r.boot, r.seq, r.code, r.message, r.receivedAt);
   for (const x of w.spectra) s.insertSpectrum.run(x.batch, x.idx, x.analyzer, x.boot, x.seq, x.t, blob(x.values), x.receivedAt);
   for (const v of (w.labValues || [])) s.insertLabValue.run(v);
-  for (const r of w.results) s.insertResult.run(r.batch, r.idx, r.result.seq, r.result.t, r.modelVersion, r.result.t2, r.result.q, JSON.stringify(r.result));
+  for (const r of w.results) s.insertResult.run(r.batch, r.idx, r.result.seq, r.result.t, r.modelVersion, r.result.t2, r.result.q, JSON.stringify(r.result), r.result.quality ? JSON.stringify(r.result.quality) : null);
   for (const p of w.batchProgress) s.batchProgress.run(p.spectrumCount, p.lastSeq, p.lastT, p.endpointState, p.endpointAt, p.batch);
   for (const e of w.batchEnds) s.batchEnd.run(e.endSeq, e.endT, e.endReason, e.batch);
   for (const x of (w.analyzerStatus || [])) s.insertAnalyzerStatus.run(x.analyzer, x.boot, x.seq, x.t, x.status, x.code, x.detail, x.unit, x.receivedAt);

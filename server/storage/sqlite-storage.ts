@@ -201,7 +201,7 @@ export class SqliteStorage implements Storage {
       for (const x of w.spectra) s.insertSpectrum.run(x.batch, x.idx, x.analyzer, x.boot, x.seq, x.t, f32Blob(x.values), x.receivedAt);
       for (const v of w.labValues ?? []) s.insertLabValue.run(v);
       for (const r of w.results) {
-        s.insertResult.run(r.batch, r.idx, r.result.seq, r.result.t, r.modelVersion, r.result.t2, r.result.q, JSON.stringify(r.result));
+        s.insertResult.run(r.batch, r.idx, r.result.seq, r.result.t, r.modelVersion, r.result.t2, r.result.q, JSON.stringify(r.result), r.result.quality ? JSON.stringify(r.result.quality) : null);
       }
       for (const p of w.batchProgress) s.batchProgress.run(p.spectrumCount, p.lastSeq, p.lastT, p.endpointState, p.endpointAt, p.batch);
       for (const e of w.batchEnds) s.batchEnd.run(e.endSeq, e.endT, e.endReason, e.batch);
