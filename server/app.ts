@@ -28,6 +28,7 @@ import { HttpProblem, problemHandler } from './api/problem.ts';
 import { RouteTable } from './api/route-table.ts';
 import { addPlantRoutes, remoteAddresses } from './api/routes-plant.ts';
 import { addBatchRoutes } from './api/routes-batches.ts';
+import { addLabRoutes } from './api/routes-lab.ts';
 import { addModelRoutes } from './api/routes-models.ts';
 import { addViewRoutes } from './api/routes-views.ts';
 
@@ -93,6 +94,7 @@ export async function startServer(config: ServerConfig, opts: StartOptions = {})
   const startedAt = now();
   addPlantRoutes(routes, ctx, startedAt, VERSION);
   addBatchRoutes(routes, ctx);
+  addLabRoutes(routes, ctx);
   addModelRoutes(routes, ctx);
   addViewRoutes(routes, ctx);
   routes.add({

@@ -8,6 +8,7 @@
  *   config                        print the effective configuration
  *   (security commands: user …, token …, audit … — see docs/security.md)
  *   import … | export …           historical batches in and out (server/transfer/cli.ts)
+ *   lab add … | lab import … | lab list …  lab results after a batch (server/transfer/lab-cli.ts)
  *
  * Flags set configuration values by name: --port 0 --data-dir ./data --ingest.stale-after-ms 5000
  * --config tideline.json. Run with --help for this text.
@@ -27,8 +28,12 @@ commands:
   config                             print the effective configuration
   user … | token … | audit …         access control and audit trail (docs/security.md)
   import --unit U --product P FILE|DIR …  import historical batches, CSV or JCAMP-DX, in one transaction
-         [--delimiter , | ; | tab] [--decimal . | ,] [--axis-unit nm|cm-1] [--by NAME]
-  export BATCH --format csv|jcamp [--out FILE]  a batch's raw spectra (reports: GET /api/batches/ID/report.pdf)
+         [--delimiter , | ; | tab] [--decimal . | ,] [--axis-unit nm|cm-1] [--origin TIME] [--by NAME]
+  export BATCH --format csv|jcamp [--out FILE]  a batch's raw spectra and lab values (reports: GET /api/batches/ID/report.pdf)
+  lab add BATCH --property P --value X --unit U --at TIME [--method M] [--supersedes ID --reason R] [--by NAME]
+                                     attach a lab result to the spectrum nearest its sample time (audited, never overwriting)
+  lab import FILE.csv [--by NAME]    attach a lab results file (batch, sample time, property columns), all or nothing
+  lab list BATCH                     a batch's lab values, corrections marked
 
 configuration flags (override file and environment):
   --config FILE  --host H  --port P (0 = free port)  --data-dir DIR  --web-dir DIR|none
@@ -90,6 +95,19 @@ async function main(argv: string[]): Promise<number> {
     try {
       const { runTransferCli } = await import('./transfer/cli.ts');
       return await runTransferCli(cmd, positional, flags, storage, (s) => process.stdout.write(s));
+    } finally {
+      await storage.close();
+    }
+  }
+  if (cmd === 'lab') {
+    const { positional, flags } = parseFlags(argv.slice(1));
+    const own: Record<string, string> = {};
+    for (const k of ['config', 'data-dir']) if (k in flags) ((own[k === 'config' ? 'config' : 'dataDir'] = flags[k]!), delete flags[k]);
+    const config = loadConfig({ env: process.env, flags: own });
+    const storage = new SqliteStorage({ file: join(config.dataDir, 'tideline.db') });
+    try {
+      const { runLabCli } = await import('./transfer/lab-cli.ts');
+      return await runLabCli(positional, flags, storage, config, (s) => process.stdout.write(s));
     } finally {
       await storage.close();
     }

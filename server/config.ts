@@ -70,6 +70,18 @@ export const configSchema = z
         maxHeapMb: z.number().int().min(16).nullable().default(null),
       })
       .prefault({}),
+    /** Laboratory values attached after a batch (POST /api/batches/:batch/lab-values, lab add / lab import). */
+    lab: z
+      .object({
+        /**
+         * Longest distance between a sample's time and the spectrum it is matched to (the nearest), ms.
+         * A sample further from every spectrum is refused, naming both times. Default 5 min: a
+         * common-practice value (no published source) — wide enough for a sample drawn while a few
+         * spectra were missing, narrow enough to refuse a sample time outside the batch or a wrong hour.
+         */
+        matchToleranceMs: z.number().int().min(0).max(86_400_000).default(300_000),
+      })
+      .prefault({}),
     /** Units created at start when missing. */
     units: z
       .array(z.object({ id: z.string().regex(/^[A-Za-z0-9._:-]{1,128}$/), name: z.string().optional(), kind: z.enum(['dryer', 'reactor', 'other']).default('other') }))
@@ -109,6 +121,7 @@ export const ENV_VARS: Record<string, string> = {
   TIDELINE_FUNCTION_CHECK_MAX_MS: 'ingest.functionCheckMaxMs',
   TIDELINE_GROUP_COMMIT_MS: 'ingest.groupCommitMs',
   TIDELINE_LOG_LEVEL: 'logLevel',
+  TIDELINE_LAB_MATCH_TOLERANCE_MS: 'lab.matchToleranceMs',
 };
 
 function setPath(obj: Record<string, unknown>, path: string, value: unknown) {
