@@ -233,7 +233,7 @@ export function formatFloat32(v: number): string {
 }
 
 /** A CSV cell, quoted when it holds the delimiter, a quote or leading/trailing blanks (RFC 4180). */
-function csvCell(s: string): string {
+export function csvCell(s: string): string {
   return /[",\n\r]|^\s|\s$/.test(s) ? `"${s.replace(/"/g, '""')}"` : s;
 }
 

@@ -147,3 +147,19 @@ export function labPropertySummary(rows: readonly LabValueRecord[]): { name: str
   }
   return [...m.values()].sort((a, b) => a.name.localeCompare(b.name));
 }
+
+/**
+ * Every property of a batch as per-spectrum columns, for an export: the effective value on each
+ * spectrum that has one, NaN elsewhere, with each property's unit (as ImportedBatch holds them, so
+ * the file readers give the same values back).
+ */
+export function labPropertyColumns(rows: readonly LabValueRecord[], spectra: number): { properties: Record<string, number[]>; propertyUnits: Record<string, string> } {
+  const properties: Record<string, number[]> = {};
+  const propertyUnits: Record<string, string> = {};
+  for (const p of labPropertySummary(rows)) {
+    const { values, unit } = labPropertyArray(rows, p.name, spectra);
+    properties[p.name] = Array.from(values);
+    propertyUnits[p.name] = unit ?? '';
+  }
+  return { properties, propertyUnits };
+}

@@ -1,5 +1,7 @@
 /** REST: batches — list and filter, detail, spectra and results by seq range, contributions, CSV export. */
 import { z } from 'zod';
+import { csvCell, propertyColumnHeader } from '../../core/io/batch-csv.ts';
+import { labPropertyColumns } from '../../core/lab/lab-values.ts';
 import type { BatchSummary, ContributionsResponse, Page, ResultsRange, SpectraRange } from '../../core/api/rest.ts';
 import type { ServerContext } from '../context.ts';
 import { notFound, HttpProblem } from './problem.ts';
@@ -89,9 +91,19 @@ export function addBatchRoutes(t: RouteTable, ctx: ServerContext) {
       const b = await load(params.batch);
       res.status(200).type('text/csv; charset=utf-8').setHeader('Content-Disposition', `attachment; filename="${b.id}-${query.what}.csv"`);
       if (query.what === 'spectra') {
-        res.write(['seq', 't_ms', 'time_utc', ...Array.from(b.axis, (nm) => `nm_${nm}`)].join(',') + '\r\n');
+        // The lab values in force ride in a `name [unit]` column each, empty where a spectrum has none.
+        const lab = labPropertyColumns(await ctx.storage.listLabValues(b.id), (await ctx.storage.spectrumTimes(b.id)).length);
+        const props = Object.keys(lab.properties);
+        const labHeaders = props.map((k) => csvCell(propertyColumnHeader(k, lab.propertyUnits[k]!)));
+        res.write(['seq', 't_ms', 'time_utc', ...labHeaders, ...Array.from(b.axis, (nm) => `nm_${nm}`)].join(',') + '\r\n');
+        let i = 0;
         for await (const s of ctx.storage.iterateSpectra(b.id)) {
-          res.write(`${s.seq},${s.t},${new Date(s.t).toISOString()},${Array.from(s.values).join(',')}\r\n`);
+          const labCells = props.map((k) => {
+            const v = lab.properties[k]![i];
+            return v === undefined || Number.isNaN(v) ? '' : String(v);
+          });
+          res.write(`${s.seq},${s.t},${new Date(s.t).toISOString()},${labCells.map((c) => c + ',').join('')}${Array.from(s.values).join(',')}\r\n`);
+          i++;
         }
       } else {
         let header = false;

@@ -2,7 +2,7 @@
  * Command-line import and export (called from server/cli.ts):
  *
  *   import --unit U --product P [--by NAME] [--delimiter ';'] [--decimal ,] [--axis-unit cm-1] [--origin ISO] FILE|DIR …
- *   export BATCH --format csv|jcamp|html|pdf [--out FILE]
+ *   export BATCH --format csv|jcamp|html|pdf [--out FILE]   (raw spectra with the lab values in force)
  *
  * Import works on the database directly (server stopped or running: SQLite WAL allows both; a running
  * server sees imported batches as ended batches). A folder imports every .csv, .txt, .jdx and .dx file in
@@ -15,6 +15,7 @@ import { writeBatchJcamp } from '../../core/io/batch-jcamp.ts';
 import { ImportError } from '../../core/io/imported-batch.ts';
 import { ConfigError } from '../config.ts';
 import type { Storage } from '../storage/storage.ts';
+import { labPropertyColumns } from '../../core/lab/lab-values.ts';
 import { parseSampleTime } from '../../core/lab/match.ts';
 import { importBatches, type ImportFile, type ImportSummary } from './import-batches.ts';
 
@@ -94,7 +95,8 @@ export async function runTransferCli(cmd: 'import' | 'export', positional: strin
     times.push(s.t);
     spectra.push(s.values);
   }
-  const text = format === 'csv' ? writeBatchCsv([{ id, axis: b.axis, times, spectra, properties: {} }]) : writeBatchJcamp({ id, axis: b.axis, times, spectra, product: b.product, unit: b.unit });
+  const lab = labPropertyColumns(await storage.listLabValues(id), spectra.length);
+  const text = format === 'csv' ? writeBatchCsv([{ id, axis: b.axis, times, spectra, ...lab }]) : writeBatchJcamp({ id, axis: b.axis, times, spectra, product: b.product, unit: b.unit, ...lab });
   if (flags.out) {
     writeFileSync(flags.out, text);
     out(`${id}: ${spectra.length} spectra written to ${flags.out}\n`);

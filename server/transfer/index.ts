@@ -5,7 +5,7 @@
  * | ------ | -------------------------------------------- | ----------- | ---- |
  * | POST   | /api/import                                  | model-owner | import CSV / JCAMP-DX files (JSON body, see ImportBody) in one transaction |
  * | GET    | /api/batches/:batch/comparison?version=      | viewer      | DTW comparison with the golden batches (core compareBatch) |
- * | GET    | /api/batches/:batch/export.jdx               | viewer      | the batch's raw spectra as a JCAMP-DX compound file |
+ * | GET    | /api/batches/:batch/export.jdx               | viewer      | the batch's raw spectra (and lab values, ##$LAB labels) as a JCAMP-DX compound file |
  * | GET    | /api/batches/:batch/report.html              | viewer      | printable report |
  * | GET    | /api/batches/:batch/report.pdf               | viewer      | the same report as PDF (headless Chromium) |
  * | GET    | /api/models/versions/:version/model.json     | viewer      | the model file exactly as stored (hash inside) |
@@ -19,6 +19,7 @@ import express, { type Request } from 'express';
 import { z } from 'zod';
 import { writeBatchJcamp } from '../../core/io/batch-jcamp.ts';
 import { ImportError } from '../../core/io/imported-batch.ts';
+import { labPropertyColumns } from '../../core/lab/lab-values.ts';
 import { HttpProblem, notFound } from '../api/problem.ts';
 import type { ServerContext } from '../context.ts';
 import { renderBatchReport } from './batch-report.ts';
@@ -123,7 +124,7 @@ export function install(ctx: ServerContext): void {
       res
         .type('chemical/x-jcamp-dx')
         .attachment(`${b.id}.jdx`)
-        .send(writeBatchJcamp({ id: b.id, axis: b.axis, times, spectra, product: b.product, unit: b.unit }));
+        .send(writeBatchJcamp({ id: b.id, axis: b.axis, times, spectra, product: b.product, unit: b.unit, ...labPropertyColumns(await ctx.storage.listLabValues(b.id), spectra.length) }));
       return undefined;
     },
   });

@@ -6,9 +6,10 @@
  * or above, every stored value audited.
  */
 import { spawnSync } from 'node:child_process';
-import { writeFileSync } from 'node:fs';
+import { readFileSync, writeFileSync } from 'node:fs';
 import { join } from 'node:path';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import { readBatchCsv } from '../../core/io/batch-csv.ts';
 import { login, startTestServer, type Session, type TestServer } from '../server/helpers.ts';
 
 let ts: TestServer;
@@ -99,6 +100,31 @@ describe('POST /api/batches/:batch/lab-values', () => {
   }, 120_000);
 });
 
+describe('exports carry the lab values', () => {
+  it('CSV and JCAMP-DX exports import back with the same values on the same spectra', async () => {
+    const inForce = async (batch: string) =>
+      ((await viewer.get(`/api/batches/${batch}/lab-values`)).body.items as any[]).filter((v) => v.effective).map((v) => [v.property, v.spectrumIdx, v.value, v.unit]).sort();
+    const want = await inForce('L-1');
+    expect(want).toEqual([['moisture', 20, 6.0, '% w/w'], ['moisture', 21, 5.9, '% w/w']]);
+
+    const csv = (await viewer.get('/api/batches/L-1/export.csv')).body as string;
+    expect(csv.split('\r\n')[0]!.startsWith('seq,t_ms,time_utc,moisture [% w/w],nm_1100.01')).toBe(true);
+    let r = await owner.post('/api/import', { unit: 'dryer-1', product: 'granule', files: [{ name: 'L-1-csv.csv', content: csv }] });
+    expect(r.status, JSON.stringify(r.body)).toBe(201);
+    expect(r.body.properties).toEqual([{ name: 'moisture', unit: '% w/w', values: 2, batches: ['L-1-csv'] }]);
+    expect(await inForce('L-1-csv')).toEqual(want);
+
+    const jdx = (await viewer.get('/api/batches/L-1/export.jdx')).body as string;
+    expect(jdx).toContain('##$LAB moisture=6\n##$LAB moisture UNIT=% w/w\n');
+    r = await owner.post('/api/import', { unit: 'dryer-1', product: 'granule', files: [{ name: 'rt.jdx', content: jdx.replaceAll('L-1', 'L-1-jdx') }] });
+    expect(r.status, JSON.stringify(r.body)).toBe(201);
+    expect(await inForce('L-1-jdx')).toEqual(want);
+    // The record keeps what the export cannot: the original sample time and method stay with L-1.
+    const back = ((await viewer.get('/api/batches/L-1-jdx/lab-values')).body.items as any[])[0];
+    expect(back).toMatchObject({ source: 'import', spectrumDtMs: 0, method: null });
+  }, 120_000);
+});
+
 describe('lab add / lab import / lab list on the command line', () => {
   const cli = (args: string[]) => spawnSync(process.execPath, ['--import', 'tsx', 'server/cli.ts', ...args, '--data-dir', ts.dir], { encoding: 'utf8', env: { ...process.env, TIDELINE_LAB_MATCH_TOLERANCE_MS: '60000' } });
   it('adds, imports a lab sheet whole or not at all, and lists', () => {
@@ -135,6 +161,13 @@ describe('lab add / lab import / lab list on the command line', () => {
       `moisture 2.1 % w/w  sampled ${iso(T0 + 540_000)} (9.0 min)  spectrum 18  entry LOD by lab.analyst`,
       'moisture [% w/w]: 3 value(s) in force',
     ]);
+    // The command line's export carries them too, and imports back with the same values.
+    const out = join(ts.dir, 'L-2-out.csv');
+    r = cli(['export', 'L-2', '--format', 'csv', '--out', out]);
+    expect(r.status, r.stdout + r.stderr).toBe(0);
+    const [back] = readBatchCsv(readFileSync(out, 'utf8'), { file: 'L-2-out.csv' });
+    expect(back!.propertyUnits).toEqual({ moisture: '% w/w' });
+    expect(back!.properties.moisture!.flatMap((v, i) => (Number.isNaN(v) ? [] : [[i, v]]))).toEqual([[4, 8.8], [10, 3.4], [18, 2.1]]);
     r = cli(['lab', 'add', 'L-2', '--property', 'moisture', '--value', 'dry', '--unit', '%', '--at', iso(T0)]);
     expect(r.status).toBe(2);
     expect(r.stderr).toContain('lab add: --value "dry" is not a number');
