@@ -45,4 +45,6 @@ export interface ServerContext {
   onClose(fn: () => void | Promise<void>): void;
   /** Clock (ms epoch); tests may replace it. */
   now(): number;
+  /** Set by the demo (scripts/demo.ts): its units are simulated and replayed faster than real time. */
+  simulation?: import('../core/api/rest.ts').SimulationInfo | null;
 }

@@ -272,11 +272,14 @@ export class AnalyzerClient {
       this.counters.spectra++;
       sent++;
     }
+    // The simulated control system's own words: it stops the batch when the simulated process
+    // reaches its target (or at the maximum time). It cannot know whether Tideline called the
+    // endpoint, so it does not claim one; the server states the end against its endpoint record.
     const reason = stopped
       ? 'stopped by operator'
       : batch.truth.endpointIndex === null
         ? 'stopped at the maximum batch time'
-        : 'stopped after the endpoint';
+        : 'stopped by the control system (the simulated process reached its target)';
     const end: BatchEndMessage = { type: 'batch-end', seq: 0, t: tOf(last), batch: id, reason };
     const endSeq = this.enqueue((seq) => JSON.stringify({ ...end, seq }), end.t);
     if (!original) this.processClock = tOf(last) + 1;

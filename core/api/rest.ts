@@ -48,6 +48,7 @@ import type {
   MonitorResult,
 } from '../monitor/types.ts';
 import type { SuppressionReason } from '../alarms/types.ts';
+import type { BatchEndStatement } from '../monitor/batch-end.ts';
 import type { Ne107Category } from '../protocol/ingest-messages.ts';
 
 export const API_VERSION = 1;
@@ -85,6 +86,16 @@ export interface ServerInfo {
   startedAt: number;
   /** The advisory notice to show wherever endpoints and alarms are configured or shown. */
   advisory: string;
+  /** Set when this server is fed by the demo's simulator: say so wherever its data are shown. Null (or absent) for real data. */
+  simulation?: SimulationInfo | null;
+}
+
+/** The demo marks itself: its units' batches are simulated and replayed faster than real time. */
+export interface SimulationInfo {
+  /** The units fed by simulated analyzers, each with its replay speed-up (×N real time). */
+  units: { unit: string; speedUp: number }[];
+  /** One sentence to show with the data. */
+  note: string;
 }
 
 /** A model version as referred to from elsewhere. */
@@ -204,7 +215,16 @@ export interface BatchSummary {
   status: BatchStatus;
   startedAt: number;
   endedAt: number | null;
+  /**
+   * How the batch ended, in words that agree with its endpoint record (core/monitor/batch-end.ts):
+   * "stopped by the control system, after the endpoint was reached" only when it was; null while
+   * the batch runs. The analyzer's own words are in reportedEndReason.
+   */
   endReason: string | null;
+  /** The end reason as the analyzer sent it with batch-end, verbatim (kept in the record); null when it sent none. */
+  reportedEndReason?: string | null;
+  /** The end and the endpoint together, with a disagreement named where the reported reason claims an endpoint the record lacks. */
+  end?: BatchEndStatement | null;
   spectrumCount: number;
   firstSeq: number | null;
   lastSeq: number | null;
@@ -216,6 +236,8 @@ export interface BatchSummary {
   endpointAt: number | null;
   alarmCount: number;
   activeAlarms: number;
+  /** Suspect scans: single spectra beyond a limit that raised no alarm on their own (MonitorResult.suspect); absent where not counted. */
+  suspectCount?: number;
 }
 
 export interface BatchDetail extends BatchSummary {

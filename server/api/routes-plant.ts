@@ -32,7 +32,7 @@ export function addPlantRoutes(t: RouteTable, ctx: ServerContext, startedAt: num
     method: 'get', path: '/info', summary: 'Server version, protocol versions and the advisory notice', role: 'viewer', response: 'ServerInfo',
     handler: async (): Promise<ServerInfo> => ({
       name: 'tideline', version, apiVersion: API_VERSION, ingestProtocol: PROTOCOL_VERSION, liveProtocol: LIVE_PROTOCOL_VERSION,
-      serverTime: ctx.now(), startedAt, advisory: ADVISORY,
+      serverTime: ctx.now(), startedAt, advisory: ADVISORY, simulation: ctx.simulation ?? null,
     }),
   });
 

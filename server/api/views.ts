@@ -3,6 +3,7 @@ import type { AnalyzerSummary, BatchDetail, BatchSummary, Deployment, LabValueVi
 import { labValueViews } from '../../core/lab/lab-values.ts';
 import type { IngestPipeline } from '../ingest/pipeline.ts';
 import { modelSignatures } from '../auth/model-signatures.ts';
+import { batchEndStatement } from '../../core/monitor/batch-end.ts';
 import type { AnalyzerRow, BatchRow, DeploymentRow, ModelVersionRow, Storage } from '../storage/storage.ts';
 
 export function modelRef(m: ModelVersionRow): ModelRef {
@@ -14,9 +15,10 @@ export async function batchSummary(storage: Storage, pipeline: IngestPipeline, r
   const all = await storage.listAlarms({ batch: row.id, limit: 0, offset: 0 });
   const active = await storage.listAlarms({ batch: row.id, active: true, limit: 0, offset: 0 });
   const ob = row.status === 'open' ? pipeline.openBatchById(row.id) : null;
+  const end = batchEndStatement({ status: row.status, reportedReason: row.endReason, endpointState: ob ? ob.endpointState : row.endpointState, judged: row.modelVersion !== null });
   return {
     id: row.id, unit: row.unit, product: row.product, analyzer: row.analyzer, status: row.status, startedAt: row.startT,
-    endedAt: row.endT, endReason: row.endReason,
+    endedAt: row.endT, endReason: end.code === 'open' ? null : end.text, reportedEndReason: row.endReason, end: end.code === 'open' ? null : end,
     spectrumCount: ob ? ob.nextIdx : row.spectrumCount,
     firstSeq: (ob ? ob.nextIdx : row.spectrumCount) > 0 ? row.startSeq + 1 : null,
     lastSeq: ob ? (ob.nextIdx ? ob.lastSeq : null) : row.spectrumCount ? row.lastSeq : null,

@@ -8,6 +8,9 @@
 import type { Alarm, BatchDetail, EndpointCheckView, EndpointEventRecord, EndpointRuleView, ModelEnvelopeView, ModelVersionSummary, PropertyModelView } from '../../core/api/rest.ts';
 import type { MonitorResult } from '../../core/monitor/types.ts';
 import { barChart, escapeXml as esc, lineChart, OKABE_ITO } from './svg-chart.ts';
+import { alarmName, alarmStateName, assignmentName, criterionName, endpointStateName, plainText } from '../../core/vocabulary/plain-names.ts';
+import { batchEndStatement } from '../../core/monitor/batch-end.ts';
+import { RECEIVED_DIFFERS_MS, REPORT_TIME_ZONE, formatReportTime, receivedDiffers } from '../../core/vocabulary/report-time.ts';
 
 export const ADVISORY_TEXT =
   'Tideline advises. An endpoint signal or alarm must be used within the site’s validated control strategy; ' +
@@ -51,6 +54,8 @@ export interface BatchReportData {
   departure: ReportDeparture | null;
   /** Property name and unit when the model predicts one (e.g. moisture, % w/w). */
   property: { name: string; unit: string } | null;
+  /** Set when the batch comes from the demo's simulator: how much faster than real time it was replayed. */
+  simulation?: { speedUp: number | null; note: string } | null;
   /** The model version's evidence (version detail): its endpoint rule, property model and endpoint check. */
   evidence?: { endpoint: EndpointRuleView | null; property: PropertyModelView | null; endpointCheck: EndpointCheckView | null } | null;
 }
@@ -63,8 +68,8 @@ function evidenceSection(d: BatchReportData): string {
   const parts: string[] = ['<h2>The model\'s endpoint rule and its check</h2>'];
   if (ev.endpoint) {
     const minText = ev.endpoint.minElapsedMin > 0 ? `; no endpoint before ${num(ev.endpoint.minElapsedMin, 4)} min from the batch start (${ev.endpoint.minElapsedMethod})` : '';
-    parts.push(`<p>Rule: ${ev.endpoint.combine === 'all' ? 'all' : 'any'} of the criteria below, confirmed over ${ev.endpoint.confirm} spectra${esc(minText)}.</p>`);
-    parts.push(table(['criterion', 'threshold', 'how it was obtained'], ev.endpoint.criteria.map((c) => [c.text, num(c.threshold, 4), c.method])));
+    parts.push(`<p>Rule: ${ev.endpoint.combine === 'all' ? 'all' : 'any'} of the criteria below, confirmed over ${ev.endpoint.confirm} spectra${esc(plainText(minText))}.</p>`);
+    parts.push(table(['criterion', 'threshold', 'how it was obtained'], ev.endpoint.criteria.map((c) => [`${criterionName(c.kind)}: ${plainText(c.text)}`, num(c.threshold, 4), plainText(c.method)])));
   }
   const p = ev.property;
   if (p) {
@@ -72,10 +77,10 @@ function evidenceSection(d: BatchReportData): string {
     parts.push(
       table(['property model', 'value'], [
         ['property', `${p.name} (${p.unit})${p.target !== null ? `, target ${num(p.target, 4)} ${p.direction}` : ''}`],
-        ['latent variables', `${a} — ${p.componentsRule}`],
-        ['RMSECV / bias at that count', `${num(p.rmsecv[a - 1], 3)} / ${num(p.bias[a - 1], 3)} ${p.unit} (${p.cvMethod})`],
+        ['latent variables', `${a} — ${plainText(p.componentsRule)}`],
+        ['RMSECV / bias at that count', `${num(p.rmsecv[a - 1], 3)} / ${num(p.bias[a - 1], 3)} ${p.unit} (${plainText(p.cvMethod)})`],
         ['lab values', `${p.nLabValues} on ${p.nBatchesWithLab} of ${p.nBatches} reference batches, ${num(p.calibrationRange[0], 4)}–${num(p.calibrationRange[1], 4)} ${p.unit}${p.batchesWithoutLab.length ? `; none on ${p.batchesWithoutLab.join(', ')}` : ''}`],
-        ['outside its calibration when', `T² > ${num(p.extrapolation.t2Limit, 4)} or Q > ${num(p.extrapolation.qLimit, 4)} (${num(p.extrapolation.confidence * 100, 4)} %): ${p.extrapolation.method}`],
+        ['outside its calibration when', `T² > ${num(p.extrapolation.t2Limit, 4)} or Q > ${num(p.extrapolation.qLimit, 4)} (${num(p.extrapolation.confidence * 100, 4)} %): ${plainText(p.extrapolation.method)}`],
       ]),
     );
   }
@@ -90,7 +95,7 @@ function evidenceSection(d: BatchReportData): string {
         c.rows.map((r) => [r.batch, r.knownMin === null ? '—' : `${num(r.knownMin, 4)}${r.bracketMin ? ` (lab bracket ${num(r.bracketMin[0], 4)}–${num(r.bracketMin[1], 4)})` : ''}`, r.knownSource ?? '—', r.firedMin === null ? 'not reached' : num(r.firedMin, 4), r.intervals ?? '—', r.minutes === null ? '—' : num(r.minutes, 3), r.withinBracket ? `${r.verdict} (inside the lab bracket)` : r.verdict]),
       ),
     );
-    parts.push(`<p class="small">${esc(c.method)}</p>`);
+    parts.push(`<p class="small">${esc(plainText(c.method))}</p>`);
   } else parts.push('<p class="empty">This version carries no endpoint check (built before it was made).</p>');
   const overrides = (d.model.signatures ?? []).filter((s) => s.override);
   for (const o of overrides) parts.push(`<p><strong>Approved with an override of the endpoint check</strong> by ${esc(o.signerFullName)} (${esc(o.signer)}), ${esc(utc(o.signedAt))}: “${esc(o.override!)}”</p>`);
@@ -99,7 +104,7 @@ function evidenceSection(d: BatchReportData): string {
 
 /** The listed regions and one row for the rest, so each share column adds up to 100 %. */
 function regionRows(regions: ReportRegion[]): string[][] {
-  const rows = regions.map((r) => [`${nm(r.from)}–${nm(r.to)}`, r.assignment, `${num(r.t2Share * 100, 3)} %`, `${num(r.qShare * 100, 3)} %`]);
+  const rows = regions.map((r) => [`${nm(r.from)}–${nm(r.to)}`, assignmentName(r.assignment), `${num(r.t2Share * 100, 3)} %`, `${num(r.qShare * 100, 3)} %`]);
   if (regions.length === 0) return rows;
   const t2 = Math.max(0, 1 - regions.reduce((a, r) => a + r.t2Share, 0));
   const q = Math.max(0, 1 - regions.reduce((a, r) => a + r.qShare, 0));
@@ -107,7 +112,12 @@ function regionRows(regions: ReportRegion[]): string[][] {
   return rows;
 }
 
-const utc = (t: number | null | undefined) => (t === null || t === undefined ? '—' : new Date(t).toISOString().replace('T', ' ').replace(/\.\d+Z$/, ' UTC'));
+const utc = formatReportTime;
+/** A process time, with the server's receipt time beside it where the two differ by more than RECEIVED_DIFFERS_MS. */
+const at = (t: number | null | undefined, received?: number | null) => {
+  const r = receivedDiffers(t, received);
+  return r === null ? utc(t) : `${utc(t)} (received ${utc(r)})`;
+};
 const nm = (v: number) => v.toFixed(0);
 const num = (v: number | null | undefined, digits = 3) => (v === null || v === undefined || !Number.isFinite(v) ? '—' : Number(v.toPrecision(digits)).toString());
 
@@ -136,7 +146,7 @@ export function renderBatchReport(d: BatchReportData): string {
       lineChart({
         title: `PC${sc.pc} score on the golden envelope`,
         xLabel,
-        yLabel: `t${sc.pc} (score)`,
+        yLabel: `PC${sc.pc} score`,
         bands: [{ name: 'golden envelope', x: d.envelope!.progress, lower: sc.lower, upper: sc.upper, color: OKABE_ITO.skyBlue }],
         series: [
           { name: 'golden mean', x: d.envelope!.progress, y: sc.expected, color: OKABE_ITO.blue, dash: '5 3' },
@@ -172,11 +182,19 @@ export function renderBatchReport(d: BatchReportData): string {
           xLabel: 'elapsed time (min)',
           yLabel: `${d.property.name} (${d.property.unit})`,
           series: [{ name: `predicted ${d.property.name}`, x: elapsed, y: res.map((r) => r.prediction?.value ?? null), color: OKABE_ITO.purple, width: 1.5 }],
+          limits: d.evidence?.property?.target !== null && d.evidence?.property?.target !== undefined
+            ? [{ name: `target ${num(d.evidence.property.target, 4)} ${d.property.unit}`, y: d.evidence.property.target, color: OKABE_ITO.black, dash: '2 3' }]
+            : [],
         }),
       );
     }
   }
 
+  const end = b.end ?? batchEndStatement({ status: b.status, reportedReason: b.reportedEndReason !== undefined ? b.reportedEndReason : b.endReason, endpointState: b.endpointState, judged: b.model !== null });
+  // Every time printed below, to check it against the generation time: a time after it means the
+  // analyzer's clock runs ahead of the server's, and the report says so.
+  const shown: number[] = [b.startedAt, b.endedAt ?? NaN, b.lastT ?? NaN, ...d.endpointEvents.map((e) => e.t), ...d.alarms.flatMap((a) => [a.raisedSpectrumT ?? a.raisedAt, a.spectrumT ?? NaN])].filter((t) => Number.isFinite(t));
+  const ahead = shown.filter((t) => t > d.generatedAt);
   const done = d.endpointEvents.find((e) => e.to === 'done');
   const signalled = d.endpointEvents.find((e) => e.to === 'signalled');
   const endpointCriteria = b.endpoint?.criteria ?? [];
@@ -186,7 +204,7 @@ export function renderBatchReport(d: BatchReportData): string {
       ? barChart({
           title: 'Wavelength regions that drove T² and Q over the departure window',
           valueLabel: 'share of the summed contribution (%)',
-          rows: dep.regions.map((r) => ({ label: `${nm(r.from)}–${nm(r.to)} nm · ${r.assignment}`, values: [100 * r.t2Share, 100 * r.qShare] })),
+          rows: dep.regions.map((r) => ({ label: `${nm(r.from)}–${nm(r.to)} nm · ${assignmentName(r.assignment)}`, values: [100 * r.t2Share, 100 * r.qShare] })),
           series: [
             { name: 'T² share', color: OKABE_ITO.blue, pattern: 'solid' },
             { name: 'Q share', color: OKABE_ITO.vermillion, pattern: 'hatched' },
@@ -211,12 +229,16 @@ export function renderBatchReport(d: BatchReportData): string {
 </style></head><body>
 <h1>Batch report — ${esc(b.id)}</h1>
 <p>Unit ${esc(d.unitName)} (${esc(b.unit)}) · product ${esc(b.product)} · generated ${esc(utc(d.generatedAt))} by ${esc(d.generatedBy)}</p>
+<p class="small">All times are ${REPORT_TIME_ZONE}. Process times (batch start and end, spectra, endpoint, alarms raised and cleared) are the analyzer's time of the spectrum; the server's time of receipt is added in brackets only where it differs by more than ${RECEIVED_DIFFERS_MS / 1000} s. The times people acted (acknowledged, approved, this report generated) are the server's clock.</p>
+${d.simulation ? `<div class="caution"><strong>Simulated data.</strong> ${esc(d.simulation.note)}${d.simulation.speedUp ? ` Replayed ${num(d.simulation.speedUp, 4)}× faster than real time, each batch dated so that its last spectrum fell at the wall clock when it was sent.` : ''}</div>` : ''}
+${ahead.length ? `<div class="caution"><strong>Clock.</strong> ${ahead.length} process time${ahead.length === 1 ? '' : 's'} in this report lie after its generation time (latest ${esc(utc(Math.max(...ahead)))}): the analyzer's clock runs ahead of this server's. Check the analyzer's time synchronisation before relying on these times.</div>` : ''}
 <div class="caution"><strong>Caution.</strong> ${esc(ADVISORY_TEXT)}</div>
 <h2>Batch and model</h2>
 <table class="meta"><tbody>
-<tr><td>Batch</td><td>${esc(b.id)} (${esc(b.status)})</td></tr>
-<tr><td>Started / ended</td><td>${esc(utc(b.startedAt))} / ${esc(utc(b.endedAt))}${b.endReason ? ` (${esc(b.endReason)})` : ''}</td></tr>
-<tr><td>Analyzer</td><td>${esc(b.analyzer)} · ${b.spectrumCount} spectra, seq ${b.firstSeq ?? '—'}…${b.lastSeq ?? '—'}</td></tr>
+<tr><td>Batch</td><td>${esc(b.id)} (${b.status === 'open' ? 'running' : 'ended'})</td></tr>
+<tr><td>Started / ended</td><td>${esc(utc(b.startedAt))} / ${esc(utc(b.endedAt))}</td></tr>
+<tr><td>End</td><td>${esc(end.text)}${end.disagreement ? `<br><strong>Record disagrees:</strong> ${esc(end.disagreement)}.` : ''}</td></tr>
+<tr><td>Analyzer</td><td>${esc(b.analyzer)} · ${b.spectrumCount} spectra, seq ${b.firstSeq ?? '—'}…${b.lastSeq ?? '—'}${b.suspectCount !== undefined ? ` · ${b.suspectCount} suspect scan${b.suspectCount === 1 ? '' : 's'} (single points beyond a limit that raised no alarm on their own)` : ''}</td></tr>
 <tr><td>Model</td><td>${d.model ? `${esc(d.model.name)} version ${d.model.version} (${esc(d.model.status)}) · ${d.model.components} PCs · limits at ${num(d.model.confidence * 100, 4)} %` : 'none deployed: the batch was recorded but not judged'}</td></tr>
 <tr><td>Model SHA-256</td><td class="hash">${esc(d.model?.sha256 ?? '—')}</td></tr>
 <tr><td>Approved</td><td>${d.model?.approvedAt ? `${esc(utc(d.model.approvedAt))} by ${esc(d.model.approvedBy ?? '?')}: ${esc(d.model.approvalReason ?? '')}` : 'not approved'}</td></tr>
@@ -224,31 +246,33 @@ export function renderBatchReport(d: BatchReportData): string {
 </tbody></table>
 <h2>Endpoint</h2>
 <table class="meta"><tbody>
-<tr><td>Endpoint reached (done)</td><td>${done ? `${esc(utc(done.t))} at seq ${done.seq}: ${esc(done.reason)}` : 'not reached'}</td></tr>
-<tr><td>Signalled to the control system</td><td>${signalled ? `${esc(utc(signalled.t))}: ${esc(signalled.reason)}` : 'not signalled'}</td></tr>
+<tr><td>Endpoint state at the end</td><td>${esc(endpointStateName(b.endpointState))}</td></tr>
+<tr><td>Endpoint reached</td><td>${done ? `${esc(at(done.t, done.recordedAt))} at seq ${done.seq}: ${esc(plainText(done.reason))}` : 'not reached'}</td></tr>
+<tr><td>Signalled to the control system</td><td>${signalled ? `${esc(utc(signalled.t))} (server time the signal went out): ${esc(plainText(signalled.reason))}` : 'not signalled'}</td></tr>
 </tbody></table>
-${table(['criterion', 'met', 'value', 'threshold', 'detail'], endpointCriteria.map((c) => [c.criterion, c.met ? 'yes' : 'no', num(c.value), num(c.threshold), c.text]))}
-${table(['time (UTC)', 'seq', 'from', 'to', 'reason'], d.endpointEvents.map((e) => [utc(e.t), e.seq, e.from, e.to, e.reason]))}
+${table(['criterion', 'met', 'value', 'threshold', 'detail'], endpointCriteria.map((c) => [criterionName(c.criterion), c.met ? 'yes' : 'no', num(c.value), num(c.threshold), plainText(c.text)]))}
+${table(['time', 'seq', 'from', 'to', 'reason'], d.endpointEvents.map((e) => [e.to === 'signalled' ? `${utc(e.t)} (server)` : at(e.t, e.recordedAt), e.seq, endpointStateName(e.from), endpointStateName(e.to), plainText(e.reason)]))}
 ${evidenceSection(d)}
 <h2>Trajectory and limits</h2>
 ${charts.map((c) => `<div class="chart">${c}</div>`).join('\n') || '<p class="empty">No monitor results were recorded for this batch.</p>'}
 <h2>Alarms</h2>
 ${table(
-  ['raised (UTC)', 'kind', 'priority', 'message', 'cleared', 'acknowledged', 'shelved'],
+  ['raised', 'alarm', 'priority', 'state', 'message', 'cleared', 'acknowledged', 'shelved'],
   d.alarms.map((a) => [
-    utc(a.raisedAt),
-    a.key,
-    a.priority,
-    a.message,
-    utc(a.clearedAt),
-    a.acknowledgedAt ? `${utc(a.acknowledgedAt)} by ${a.acknowledgedBy ?? '?'}${a.acknowledgeComment ? ` — ${a.acknowledgeComment}` : ''}` : 'no',
+    at(a.raisedSpectrumT ?? a.raisedAt, a.raisedSpectrumT ? a.raisedAt : null),
+    alarmName(a.key),
+    `P${a.priority}`,
+    alarmStateName(a.state),
+    plainText(a.message),
+    a.active ? 'not cleared' : a.clearedAt === null ? '—' : a.spectrumT ? at(a.spectrumT, a.clearedAt) : `${utc(a.clearedAt)} (server)`,
+    a.acknowledgedAt ? `${utc(a.acknowledgedAt)} by ${a.acknowledgedBy ?? '?'}${a.acknowledgeComment ? ` — ${a.acknowledgeComment}` : ''}` : 'not acknowledged',
     a.shelvedUntil ? `until ${utc(a.shelvedUntil)} by ${a.shelvedBy ?? '?'}: ${a.shelveReason ?? ''}` : '—',
   ]),
 )}
 <h2>Departure from the golden batches</h2>
 ${
   dep
-    ? `<p>${dep.firstExitT ? `First left the golden batches (alarm rule) at ${esc(utc(dep.firstExitT))} (seq ${dep.firstExitSeq}): ${esc(dep.firstExitWhat ?? '')}.` : 'The batch never left the golden batches by the alarm rule: no departure window.'}${dep.firstOutside ? ` A single point was outside at ${esc(utc(dep.firstOutside.t))} (seq ${dep.firstOutside.seq}): ${esc(dep.firstOutside.what)} (possibly a suspect scan).` : ''}</p>
+    ? `<p>${dep.firstExitT ? `First left the golden batches (alarm rule) at ${esc(utc(dep.firstExitT))} (seq ${dep.firstExitSeq}): ${esc(plainText(dep.firstExitWhat ?? ''))}.` : 'The batch never left the golden batches by the alarm rule: no departure window.'}${dep.firstOutside ? ` A single point was outside at ${esc(utc(dep.firstOutside.t))} (seq ${dep.firstOutside.seq}): ${esc(plainText(dep.firstOutside.what))} (possibly a suspect scan).` : ''}</p>
 ${table(['PC', 'mean |deviation| after DTW', 'max |deviation|'], dep.alignedDeviation.map((a) => [`PC${a.pc}`, num(a.meanAbs), num(a.maxAbs)]))}
 ${dep.window ? `<p>Departure window: seq ${dep.window.fromSeq}…${dep.window.toSeq}.</p>` : ''}
 ${dep.regions.length ? `${table(['region (nm)', 'assignment', 'share of T²', 'share of Q'], regionRows(dep.regions))}

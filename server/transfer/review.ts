@@ -109,6 +109,7 @@ export async function reportData(ctx: ServerContext, batchId: string, user: stri
     departure,
     property,
     evidence: mrow ? await evidenceOf(ctx, mrow.id) : null,
+    simulation: simulationOf(ctx, b.unit),
   };
 }
 
@@ -117,4 +118,11 @@ async function evidenceOf(ctx: ServerContext, versionId: string): Promise<BatchR
   const m = (await ctx.ingest.loadModel(versionId)) as unknown as MonitoringModel | null;
   if (!m) return null;
   return { endpoint: endpointRuleView(m), property: propertyModelView(m), endpointCheck: endpointCheckView(m) };
+}
+
+/** The demo's simulation flag for a unit's batches, as the report prints it; null for real data. */
+function simulationOf(ctx: ServerContext, unit: string): BatchReportData['simulation'] {
+  const sim = ctx.simulation;
+  const u = sim?.units.find((x) => x.unit === unit);
+  return sim && u ? { speedUp: u.speedUp, note: sim.note } : null;
 }

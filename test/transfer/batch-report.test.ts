@@ -5,6 +5,7 @@ import { renderBatchReport, ADVISORY_TEXT, type BatchReportData } from '../../se
 import { chromiumPath, htmlToPdf } from '../../server/transfer/report-pdf.ts';
 import { lineChart, niceTicks } from '../../server/transfer/svg-chart.ts';
 import type { MonitorResult } from '../../core/monitor/types.ts';
+import { INTERNAL_CODE_WORDS } from '../../core/vocabulary/plain-names.ts';
 
 function result(i: number): MonitorResult {
   const t2 = 2 + (i > 30 ? (i - 30) * 0.8 : 0);
@@ -70,6 +71,29 @@ describe('batch report', () => {
     for (const s of ["The model's endpoint rule and its check", 'predicted moisture ≤ 1.990 % w/w', 'margin z(0.7)·RMSECV', '1 early (at most 2 intervals, 0.333 min; 1 inside the lab bracket of their endpoint)', 'early (inside the lab bracket)', 'lab bracket 45–55', 'verdict', 'RMSECV / bias at that count', '0.02 / -0.004 % w/w', 'T² &gt; 369 or Q &gt; 0.0061', 'Approved with an override of the endpoint check', 'no endpoint before 41.5 min from the batch start', 'exhaust-temperature interlock stops the dryer']) expect(html).toContain(s);
   });
 
+  it('states the end from the endpoint record: a stalled batch is never "stopped after the endpoint"', () => {
+    const d = data();
+    d.batch.endpointState = 'running';
+    d.batch.endReason = 'stopped after the endpoint';
+    d.model = { versionId: 'v1', name: 'reactor-C', version: 1, product: 'amide C', sha256: 'b'.repeat(64), status: 'approved', createdAt: 0, createdBy: 'x', approvedAt: 0, approvedBy: 'x', approvalReason: 'ok', retiredAt: null, retiredBy: null, retireReason: null, referenceBatches: [], components: 2, confidence: 0.99, deployedTo: [] };
+    d.batch.model = { versionId: 'v1', name: 'reactor-C', version: 1, sha256: 'b'.repeat(64) } as never;
+    const html = renderBatchReport(d);
+    expect(html).toContain('ended without reaching the endpoint (endpoint running)');
+    expect(html).toContain('Record disagrees:');
+    expect(html).not.toMatch(/<td>End<\/td><td>[^<]*stopped after the endpoint/);
+    // a reached endpoint keeps the reported words
+    d.batch.endpointState = 'done';
+    expect(renderBatchReport(d)).toContain('<td>End</td><td>stopped after the endpoint</td>');
+  });
+
+  it('prints no time after its generation time without saying so, and names its zone', () => {
+    const d = data();
+    expect(renderBatchReport(d)).toContain('All times are UTC');
+    expect(renderBatchReport(d)).not.toContain('lie after its generation time');
+    d.generatedAt = d.batch.startedAt - 1;
+    expect(renderBatchReport(d)).toContain('lie after its generation time');
+  });
+
   it('escapes text taken from the record', () => {
     const d = data();
     d.alarms[0]!.acknowledgeComment = '<img src=x onerror=alert(1)>';
@@ -92,6 +116,8 @@ describe('batch report', () => {
     expect(text).toContain('Batch report');
     expect(text).toContain('D-0042');
     expect(text).toContain('Tideline advises');
+    // no internal code word reaches the reader (each has a plain name in core/vocabulary/plain-names.ts)
+    for (const w of INTERNAL_CODE_WORDS) expect(text, w).not.toMatch(new RegExp(`(?<![\\w-])${w}(?![\\w-])`));
     const info = execFileSync('pdfinfo', ['test-results/report-unit.pdf']).toString();
     const pages = Number(/Pages:\s+(\d+)/.exec(info)![1]);
     expect(pages).toBeGreaterThanOrEqual(1);
