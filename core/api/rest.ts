@@ -620,10 +620,60 @@ export interface Deployment {
   active: boolean;
 }
 
+/** One thing that changes when a version replaces the one deployed on a unit. */
+export interface DeployChange {
+  /** What changes, in words: "endpoint rule", "property model", "T² limit", "components", … */
+  what: string;
+  /** As deployed now, and as it will be; null where one side has none. */
+  before: string | null;
+  after: string | null;
+}
+
+/**
+ * What a deployment changes against the version it replaces (GET /api/deployments/preview, and the
+ * answer and audit entry of POST /api/deployments).
+ */
+export interface DeployComparison {
+  /** The version deployed on the unit now; null when none is. */
+  replaces: ModelRef | null;
+  /** Only what differs: endpoint rule, property model, limits (T², Q, alarm limits), components, preprocessing axis, product. */
+  changes: DeployChange[];
+  /** Plain sentences to show before the user confirms (e.g. the endpoint property is dropped). */
+  warnings: string[];
+  /** The new version has no property model (or no property endpoint criterion) where the old one had. */
+  dropsEndpointProperty: boolean;
+}
+
+/** Why a version cannot judge a unit's batches (each names both sides). */
+export interface DeployMismatch {
+  /** 'axis' (wavelength count or range), 'product', 'kind' (the reference batches' unit kind). */
+  what: 'axis' | 'product' | 'kind';
+  /** e.g. "model dryer-A v3 expects 256 points, 1100–2498 nm; reactor-1's analyzer nir-reactor-1 sends 601 points, 1000–2200 nm". */
+  text: string;
+}
+
+/** GET /api/deployments/preview?unit=…&versionId=…: whether a version fits a unit, and what would change. */
+export interface DeployPreview {
+  unit: string;
+  model: ModelRef;
+  /** Empty when the version fits the unit; otherwise POST /api/deployments refuses (422 model-does-not-fit). */
+  mismatches: DeployMismatch[];
+  comparison: DeployComparison;
+  /** True when POST must carry confirmEndpointLoss (the comparison drops the endpoint property). */
+  needsEndpointLossConfirmation: boolean;
+}
+
+/** The answer of POST /api/deployments: the deployment and what it changed. */
+export interface DeployResult extends Deployment {
+  comparison: DeployComparison;
+}
+
 export interface DeployModelRequest {
   unit: string;
   versionId: string;
   reason?: string;
+  /** Required (a reason, kept in the audit entry) when the deployment drops the endpoint property; refused otherwise. */
+  confirmEndpointLoss?: string;
 }
 
 // ---- alarms -----------------------------------------------------------------------------------

@@ -1,6 +1,7 @@
 /** REST: server info, units, analyzers, deployments, alarms. */
 import { z } from 'zod';
-import type { Alarm, CreateAnalyzerResponse, Page, ServerInfo, UnitSummary } from '../../core/api/rest.ts';
+import type { Alarm, CreateAnalyzerResponse, DeployResult, Page, ServerInfo, UnitSummary } from '../../core/api/rest.ts';
+import { deployPreview } from '../models/deploy-check.ts';
 import { API_VERSION } from '../../core/api/rest.ts';
 import { LIVE_PROTOCOL_VERSION } from '../../core/api/live.ts';
 import { PROTOCOL_VERSION } from '../../core/protocol/ingest-messages.ts';
@@ -95,21 +96,45 @@ export function addPlantRoutes(t: RouteTable, ctx: ServerContext, startedAt: num
       return { items, total: items.length, limit: items.length, offset: 0 };
     },
   });
+  const loadForDeploy = async (unit: string, versionId: string) => {
+    if (!ctx.ingest.units.has(unit)) throw notFound(`unit "${unit}" does not exist`);
+    const m = await ctx.storage.getModelVersion(versionId);
+    if (!m) throw notFound(`model version "${versionId}" does not exist`);
+    return m;
+  };
   t.add({
-    method: 'post', path: '/deployments', summary: 'Deploy an approved model version to a unit (batches started afterwards use it)', role: 'model-owner',
-    response: 'Deployment', status: 201,
-    body: z.object({ unit: idSchema, versionId: z.string().min(1).max(128), reason: z.string().max(2000).optional() }).strict(),
-    handler: async ({ body, req }) => {
-      if (!ctx.ingest.units.has(body.unit)) throw notFound(`unit "${body.unit}" does not exist`);
-      const m = await ctx.storage.getModelVersion(body.versionId);
-      if (!m) throw notFound(`model version "${body.versionId}" does not exist`);
+    method: 'get', path: '/deployments/preview',
+    summary: 'Whether a version fits a unit (analyzer axis, product, unit kind) and what deploying it changes against the version deployed there now',
+    role: 'viewer', response: 'DeployPreview',
+    query: z.object({ unit: idSchema, versionId: z.string().min(1).max(128) }),
+    handler: async ({ query }) => deployPreview(ctx, query.unit, await loadForDeploy(query.unit, query.versionId)),
+  });
+  t.add({
+    method: 'post', path: '/deployments',
+    summary: 'Deploy an approved model version to a unit (batches started afterwards use it). Refused (422 model-does-not-fit) when the version cannot judge the unit (analyzer axis, product, unit kind); when it drops the endpoint property of the version it replaces, confirmEndpointLoss (a reason) is required (422 endpoint-would-be-lost). The answer and the audit entry carry the comparison.',
+    role: 'model-owner',
+    response: 'DeployResult', status: 201,
+    body: z.object({ unit: idSchema, versionId: z.string().min(1).max(128), reason: z.string().max(2000).optional(), confirmEndpointLoss: z.string().trim().min(1, 'give the reason for dropping the endpoint property').max(2000).optional() }).strict(),
+    handler: async ({ body, req }): Promise<DeployResult> => {
+      const m = await loadForDeploy(body.unit, body.versionId);
       if (m.status !== 'approved') throw conflict(`model version ${m.name} v${m.version} is ${m.status}; only an approved version can be deployed`);
+      const preview = await deployPreview(ctx, body.unit, m);
+      if (preview.mismatches.length) {
+        throw new HttpProblem(422, 'Model does not fit the unit', `${m.name} v${m.version} cannot judge the batches of ${body.unit}: ${preview.mismatches.map((x) => x.text).join('; ')}. Nothing was deployed.`, 'model-does-not-fit', preview.mismatches.map((x) => ({ path: 'versionId', message: x.text })));
+      }
+      if (preview.comparison.dropsEndpointProperty && body.confirmEndpointLoss === undefined) {
+        throw new HttpProblem(422, 'Endpoint property would be lost', `${preview.comparison.warnings[0] ?? 'the endpoint property would be lost'} Deploy with confirmEndpointLoss giving your reason (kept in the audit trail), or choose a version that keeps it. Nothing was deployed.`, 'endpoint-would-be-lost', [{ path: 'confirmEndpointLoss', message: 'required: this deployment drops the endpoint property' }]);
+      }
       const before = ctx.ingest.deploymentRef(body.unit);
       const d = { id: randomUUID(), unit: body.unit, modelVersion: m.id, deployedAt: ctx.now(), deployedBy: userOf(req), reason: body.reason ?? null, endedAt: null };
       await ctx.storage.deploy(d);
       await ctx.ingest.refreshDeployment(body.unit);
-      await recordAudit(ctx, { user: userOf(req), action: 'model.deploy', object: `unit:${body.unit}`, before, after: { versionId: m.id, name: m.name, version: m.version, sha256: m.sha256 }, reason: body.reason ?? null });
-      return deploymentView(ctx.storage, d);
+      await recordAudit(ctx, {
+        user: userOf(req), action: 'model.deploy', object: `unit:${body.unit}`, before,
+        after: { versionId: m.id, name: m.name, version: m.version, sha256: m.sha256, comparison: preview.comparison, ...(body.confirmEndpointLoss !== undefined ? { confirmEndpointLoss: body.confirmEndpointLoss } : {}) },
+        reason: body.reason ?? null,
+      });
+      return { ...(await deploymentView(ctx.storage, d)), comparison: preview.comparison };
     },
   });
 

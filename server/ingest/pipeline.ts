@@ -263,6 +263,14 @@ export class IngestPipeline {
     this.events.emit('unit-changed', u.id);
   }
 
+  /** The axis the unit's analyzer sends now: its open batch's analyzer, else the connected analyzer that last served it; null when none is connected. */
+  unitAnalyzerAxis(unit: string): { analyzer: string; axis: Float64Array } | null {
+    const ob = this.openByUnit.get(unit);
+    const analyzer = ob?.analyzer ?? [...this.lastUnitOf].filter(([, u]) => u === unit).map(([a]) => a).find((a) => this.streams.has(a)) ?? null;
+    const st = analyzer ? this.streams.get(analyzer) : undefined;
+    return st ? { analyzer: st.analyzer, axis: st.axis } : null;
+  }
+
   deploymentRef(unit: string): ModelRef | null {
     return this.deployments.get(unit)?.ref ?? null;
   }
