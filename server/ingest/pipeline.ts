@@ -506,6 +506,7 @@ export class IngestPipeline {
     if (this.openByUnit.get(ob.unit) === ob) this.openByUnit.delete(ob.unit);
     this.addOutbox(ob.unit, 'batch-end', { unit: ob.unit, batch: ob.id, t: end.t, reason: end.reason, endpointState: ob.endpointState, endpointAt: ob.endpointAt });
     this.post.events.push(['batch', { event: 'ended', batch: ob.id, unit: ob.unit }]);
+    this.returnBatchAlarms(ob, end.seq, end.t);
     this.applySuppression(ob.unit, end.seq, `batch ${ob.id} ended${end.reason ? ` (${end.reason})` : ''}`);
     this.schedule();
   }
@@ -583,6 +584,9 @@ export class IngestPipeline {
     const now = this.now();
     for (const cur of [...this.alarmsById.values()]) {
       if (cur.unit !== unit) continue;
+      // An ended batch's alarms are past suppression: their conditions ended with the batch
+      // (returnBatchAlarms), and an unacknowledged one stays to be acknowledged.
+      if (cur.batch !== null && this.batchIds.has(cur.batch) && !this.openBatchById(cur.batch)) continue;
       const before = cur.suppressedBy ?? [];
       const sup = this.suppressionOf(unit, cur.batch, cur.kind);
       if (sup.join(',') === before.join(',')) continue;
@@ -611,6 +615,44 @@ export class IngestPipeline {
     }
     this.updateAlarmGauge();
     this.schedule();
+  }
+
+  /**
+   * A batch ended: the conditions of its alarms end with it (ISA-18.2 return to normal). An alarm
+   * nobody acknowledged returns unacknowledged (cleared-unacknowledged) and stays listed, with its
+   * batch, until someone acknowledges it; it is never suppressed or cleared by the system. An
+   * acknowledged one returns to normal. Each change goes to the outbox and the audit trail.
+   */
+  private returnBatchAlarms(ob: OpenBatch, seq: number | null, t: number) {
+    const now = this.now();
+    for (const cur of [...this.alarmsById.values()]) {
+      if (cur.batch !== ob.id) continue;
+      const suppressed = (cur.suppressedBy ?? []).length > 0;
+      const unacknowledged = !suppressed && (cur.state === 'active-unacknowledged' || cur.state === 'cleared-unacknowledged');
+      if (!cur.active && (unacknowledged || cur.state === 'normal') && !suppressed) continue;
+      const next: Alarm = {
+        ...cur,
+        state: unacknowledged ? 'cleared-unacknowledged' : 'normal',
+        active: false,
+        suppressedBy: [],
+        clearedAt: cur.active ? now : cur.clearedAt,
+        spectrumT: cur.active ? t : (cur.spectrumT ?? null),
+        seq: cur.active && seq !== null ? seq : cur.seq,
+        message: cur.active ? `${cur.message} — batch ${ob.id} ended` : cur.message,
+        updatedAt: now,
+      };
+      this.indexAlarm(next);
+      const row = this.outboxRow(ob.unit, 'alarm', { alarm: next, previousState: cur.state });
+      this.uow.alarms.push(next);
+      this.uow.outbox.push(row);
+      this.post.events.push(['alarm', { alarm: next, previousState: cur.state }]);
+      this.post.audits.push({
+        user: 'system', action: 'alarm.return', object: `alarm:${cur.id}`,
+        before: { state: cur.state, active: cur.active }, after: { state: next.state, active: false },
+        reason: `batch ${ob.id} ended: the condition ended with it${unacknowledged ? '; returned unacknowledged (ISA-18.2), it stays to be acknowledged' : ''}`,
+      });
+    }
+    this.updateAlarmGauge();
   }
 
   /** The signal channel has delivered the endpoint: done → signalled. Returns false when not applicable. */
