@@ -581,6 +581,9 @@ export interface BatchEvaluation {
   endpointAt: number | null;
   maxT2: number;
   maxQ: number;
+  /** Spectra with T² above the version's T² limit, and with Q above its Q limit (absent in evaluations stored before they were counted). */
+  t2Beyond?: number;
+  qBeyond?: number;
 }
 
 export interface EvaluationResult {
@@ -589,6 +592,60 @@ export interface EvaluationResult {
   createdAt: number;
   createdBy: string;
   batches: BatchEvaluation[];
+  /** The batches the evaluator marked as known faulty (stored with the evaluation, so the approver sees what the builder saw). */
+  faulty?: string[];
+  /** The approval evidence computed from this evaluation (core/evaluate/approval-evidence.ts). */
+  evidence?: ApprovalEvidence;
+}
+
+/** A share of points beyond a limit on held-out good batches, with its exact binomial interval. */
+export interface RateEvidence {
+  /** 'T²' or 'Q'. */
+  name: string;
+  beyond: number;
+  points: number;
+  rate: number;
+  /** Clopper–Pearson two-sided 95 % interval of the rate. */
+  interval: [number, number];
+  /** Far above the nominal rate (blocks approval without evidenceOverride). */
+  farAbove: boolean;
+  /** Far below the nominal rate (limit may be too wide; a warning). */
+  farBelow: boolean;
+}
+
+export interface ApprovalWarning {
+  /** 't2-rate' | 'q-rate' (blocking), 't2-rate-low' | 'q-rate-low' | 'worst-batch' | 'good-batch-alarmed' | 'endpoint-not-reached' | 'early-endpoint' | 'no-held-out'. */
+  code: string;
+  /** Approval needs evidenceOverride (a reason, signed) while a blocking warning stands. */
+  blocking: boolean;
+  text: string;
+}
+
+/**
+ * What the approver sees: the version's latest evaluation on held-out good batches
+ * (GET /api/models/versions/:version/approval-evidence; also in EvaluationResult.evidence).
+ */
+export interface ApprovalEvidence {
+  evaluationId: string;
+  evaluatedAt: number;
+  /** The version's limit confidence (e.g. 0.99) and the nominal share of points beyond a limit (1 − confidence). */
+  confidence: number;
+  nominalRate: number;
+  heldOutGood: string[];
+  /** Evaluated batches left out of the rates, and why (marked faulty; a reference batch of this version). */
+  excluded: { batch: string; why: string }[];
+  /** Spectra of the held-out good batches. */
+  points: number;
+  t2: RateEvidence;
+  q: RateEvidence;
+  /** The good batch with the largest share of points beyond a limit. */
+  worst: { batch: string; spectra: number; beyond: number; share: number } | null;
+  alarmedGood: { batch: string; alarms: number; firstKind: string | null }[];
+  endpoint: { reached: number; of: number; notReached: string[] };
+  /** Early calls of the leave-one-batch-out endpoint check on the reference batches. */
+  earlyCalls: { count: number; text: string | null };
+  warnings: ApprovalWarning[];
+  method: string;
 }
 
 export interface ApproveModelRequest {
@@ -600,6 +657,18 @@ export interface ApproveModelRequest {
    * nothing to override. Signed with the approval and kept in the signature and the audit record.
    */
   earlyEndpointOverride?: string;
+  /**
+   * Required when the approval evidence (the version's latest evaluation on held-out good batches)
+   * shows a point rate far above nominal: the reason for approving anyway. Refused (422) when the
+   * evidence shows nothing to override. Signed with the approval and kept with its evidence.
+   */
+  evidenceOverride?: string;
+}
+
+export interface EvaluateModelRequest {
+  batches: string[];
+  /** Batches known to be faulty: replayed and shown, left out of the approval evidence's rates. */
+  faulty?: string[];
 }
 
 export interface RetireModelRequest {

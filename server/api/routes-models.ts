@@ -3,7 +3,7 @@ import { z } from 'zod';
 import type { ModelSummary, Page } from '../../core/api/rest.ts';
 import type { ServerContext } from '../context.ts';
 import { SignatureError } from '../auth/types.ts';
-import { ModelRequestError, buildFromStored, envelopeView, evaluateVersion, referencesView, versionDetail } from '../models/model-service.ts';
+import { ModelRequestError, buildFromStored, envelopeView, evaluateVersion, latestApprovalEvidence, referencesView, versionDetail } from '../models/model-service.ts';
 import { HttpProblem, conflict, notFound } from './problem.ts';
 import type { RouteTable } from './route-table.ts';
 import type { SqliteStorage } from '../storage/sqlite-storage.ts';
@@ -75,11 +75,20 @@ export function addModelRoutes(t: RouteTable, ctx: ServerContext) {
   });
   t.add({
     method: 'post', path: '/models/versions/:version/evaluate', summary: 'Replay chosen stored batches through a model version', role: 'model-owner', response: 'EvaluationResult',
-    params: versionParams, body: z.object({ batches: z.array(idSchema).min(1).max(200) }).strict(),
-    handler: async ({ params, body, req }) => guard(async () => evaluateVersion(ctx, (await load(params.version)).id, body.batches, userOf(req))),
+    params: versionParams, body: z.object({ batches: z.array(idSchema).min(1).max(200), faulty: z.array(idSchema).max(200).optional() }).strict(),
+    handler: async ({ params, body, req }) => guard(async () => evaluateVersion(ctx, (await load(params.version)).id, body.batches, userOf(req), body.faulty ?? [])),
+  });
+  t.add({
+    method: 'get', path: '/models/versions/:version/approval-evidence',
+    summary: "The approval evidence of a version: its latest evaluation on held-out good batches (point rates beyond the T² and Q limits against nominal with exact binomial intervals, worst batch, alarmed good batches, endpoint reached n of m, early endpoint calls) and its warnings; null when it has not been evaluated",
+    role: 'viewer', response: 'ApprovalEvidence',
+    params: versionParams, handler: async ({ params }) => guard(async () => latestApprovalEvidence(ctx, (await load(params.version)).id)),
   });
   const signBody = z.object({ reason: z.string().trim().min(1, 'give a reason').max(2000), password: z.string().max(1024).optional() }).strict();
-  const approveBody = signBody.extend({ earlyEndpointOverride: z.string().trim().min(1, 'give the reason for the override').max(2000).optional() }).strict();
+  const approveBody = signBody.extend({
+    earlyEndpointOverride: z.string().trim().min(1, 'give the reason for the override').max(2000).optional(),
+    evidenceOverride: z.string().trim().min(1, 'give the reason for approving against the evidence').max(2000).optional(),
+  }).strict();
   t.add({
     method: 'post', path: '/models/versions/:version/approve',
     summary: 'Approve a draft version (electronic signature: password and reason). When the leave-one-batch-out endpoint check shows the rule reaching done early on a reference batch, approval needs earlyEndpointOverride (a reason, signed with the approval); without it 422',
@@ -94,14 +103,34 @@ export function addModelRoutes(t: RouteTable, ctx: ServerContext) {
         const check = parseMonitoringModel(m.body).meta.endpointCheck;
         const early = check !== undefined && check.early > 0;
         const override = body.earlyEndpointOverride;
+        // The evidence on held-out good batches: a point rate far above nominal needs a signed override.
+        const evidence = await latestApprovalEvidence(ctx, m.id);
+        const blocking = evidence?.warnings.filter((w) => w.blocking) ?? [];
+        const evidenceOverride = body.evidenceOverride;
+        if (early && override === undefined && blocking.length && evidenceOverride === undefined) {
+          throw new HttpProblem(422, 'Approval needs two overrides', `approval of ${m.name} v${m.version} refused: ${earlyBatchesText(check!)}; and ${blocking.map((w) => w.text).join(' ')} Rebuild the version, or approve with earlyEndpointOverride and evidenceOverride giving your reasons (signed with the approval and kept in the audit trail)`, 'overrides-needed', [
+            { path: 'earlyEndpointOverride', message: 'required: the endpoint rule reached done early on reference batches' },
+            { path: 'evidenceOverride', message: 'required: the point rate on held-out good batches is far above nominal' },
+          ]);
+        }
         if (early && override === undefined) {
           throw new HttpProblem(422, 'Endpoint rule fires early', `approval of ${m.name} v${m.version} refused: ${earlyBatchesText(check!)}. Change the rule and rebuild, or approve with earlyEndpointOverride giving your reason (it is signed with the approval and kept in the audit trail)`, 'early-endpoint', [{ path: 'earlyEndpointOverride', message: 'required: the endpoint rule reached done early on reference batches' }]);
         }
         if (!early && override !== undefined) {
           throw new HttpProblem(422, 'Nothing to override', `earlyEndpointOverride given, but ${check ? 'the endpoint check shows no reference batch called early' : `model version ${m.name} v${m.version} carries no endpoint check`}; approve without it`, 'nothing-to-override', [{ path: 'earlyEndpointOverride', message: 'not needed' }]);
         }
+        if (blocking.length && evidenceOverride === undefined) {
+          throw new HttpProblem(422, 'Evidence far from the limits', `approval of ${m.name} v${m.version} refused: ${blocking.map((w) => w.text).join(' ')} Rebuild the version (components, preprocessing, reference batches), or approve with evidenceOverride giving your reason (it is signed with the approval and kept with the evidence in the audit trail)`, 'evidence-far-off', [{ path: 'evidenceOverride', message: 'required: the point rate on held-out good batches is far above nominal' }]);
+        }
+        if (!blocking.length && evidenceOverride !== undefined) {
+          throw new HttpProblem(422, 'Nothing to override', `evidenceOverride given, but ${evidence ? 'the evidence on held-out good batches shows no rate far above nominal' : `model version ${m.name} v${m.version} has not been evaluated on held-out good batches`}; approve without it`, 'nothing-to-override', [{ path: 'evidenceOverride', message: 'not needed' }]);
+        }
+        const signedOverride = [override, evidenceOverride !== undefined ? `approval evidence: ${evidenceOverride}` : undefined].filter((x): x is string => x !== undefined).join(' · ') || undefined;
+        const evidenceSummary = evidence
+          ? { evaluationId: evidence.evaluationId, heldOutGood: evidence.heldOutGood.length, points: evidence.points, t2Rate: evidence.t2.rate, qRate: evidence.q.rate, nominalRate: evidence.nominalRate, endpointReached: `${evidence.endpoint.reached} of ${evidence.endpoint.of}`, warnings: evidence.warnings.map((w) => w.code) }
+          : { evaluationId: null };
         if (ctx.auth && req.user) {
-          await ctx.auth.sign({ user: req.user, password: body.password ?? '', meaning: 'approved', objectType: 'model', objectId: m.id, objectHash: m.sha256, reason: body.reason, ...(override !== undefined ? { override } : {}), address: req.ip }, () => {
+          await ctx.auth.sign({ user: req.user, password: body.password ?? '', meaning: 'approved', objectType: 'model', objectId: m.id, objectHash: m.sha256, reason: body.reason, ...(signedOverride !== undefined ? { override: signedOverride } : {}), evidence: evidenceSummary, address: req.ip }, () => {
             // Synchronous inside the signature's transaction: if the version is no longer a draft, the throw rolls the signature back too.
             try {
               (ctx.storage as unknown as SqliteStorage).approveModelVersionSync(m.id, by, ctx.now(), body.reason);
@@ -111,7 +140,7 @@ export function addModelRoutes(t: RouteTable, ctx: ServerContext) {
           });
         } else {
           await ctx.storage.approveModelVersion(m.id, by, ctx.now(), body.reason);
-          await recordAudit(ctx, { user: by, action: 'model.approve', object: `model:${m.name}@${m.version}`, after: { id: m.id, sha256: m.sha256, ...(override !== undefined ? { override } : {}) }, reason: body.reason });
+          await recordAudit(ctx, { user: by, action: 'model.approve', object: `model:${m.name}@${m.version}`, after: { id: m.id, sha256: m.sha256, ...(signedOverride !== undefined ? { override: signedOverride } : {}), evidence: evidenceSummary }, reason: body.reason });
         }
         return modelVersionSummary(ctx.storage, (await ctx.storage.getModelVersion(m.id))!);
       }),

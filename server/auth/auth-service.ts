@@ -392,7 +392,7 @@ export class AuthService implements Auth {
         user: user.name,
         action: `signature.${req.meaning}`,
         object,
-        after: { meaning: req.meaning, objectHash: req.objectHash, signer: user.fullName, role: user.role, ...(req.override !== undefined ? { override: req.override } : {}) },
+        after: { meaning: req.meaning, objectHash: req.objectHash, signer: user.fullName, role: user.role, ...(req.override !== undefined ? { override: req.override } : {}), ...(req.evidence !== undefined ? { evidence: req.evidence } : {}) },
         reason: req.reason,
       });
       const signature = this.signatures.insert({

@@ -72,6 +72,8 @@ export interface SignatureRequest {
   override?: string;
   /** Client address, for throttling (req.ip). */
   address?: string;
+  /** What the signer saw when signing (e.g. the approval evidence): kept in the signature's audit record, so it is hash-chained with it. */
+  evidence?: Record<string, unknown>;
 }
 
 export interface SignatureRecord {

@@ -3,7 +3,7 @@
  * in a worker thread by build-runner.ts), register an immutable version with its hash, evaluate a version by replaying stored batches.
  */
 import { randomUUID } from 'node:crypto';
-import type { BatchEvaluation, EvaluationResult, ModelEnvelopeView, ModelReferencesView, ModelVersionDetail } from '../../core/api/rest.ts';
+import type { ApprovalEvidence, BatchEvaluation, EvaluationResult, ModelEnvelopeView, ModelReferencesView, ModelVersionDetail } from '../../core/api/rest.ts';
 import type { ServerContext } from '../context.ts';
 import type { MonitoringModelLike, ReferenceBatchInput } from '../monitor/core-monitor.ts';
 import type { ModelVersionRow } from '../storage/storage.ts';
@@ -12,6 +12,8 @@ import { spreadIndices } from '../../core/stats/spread-indices.ts';
 import { BuildBusyError, BuildFailedError, ModelBuildRunner, packReferenceBatch, type BuildInfo, type BuiltModelFile } from './build-runner.ts';
 import type { PackedReferenceBatch } from './build-worker.ts';
 import type { MonitoringModel } from '../../core/model/monitoring-model.ts';
+import { approvalEvidence } from '../../core/evaluate/approval-evidence.ts';
+import { earlyBatchesText } from '../../core/model/endpoint-check.ts';
 import { endpointCheckView, endpointRuleView, propertyModelView, referenceEndpointsView } from '../../core/model/version-evidence.ts';
 import { labPropertyArray, LabValueError, normalisePropertyName } from '../../core/lab/lab-values.ts';
 
@@ -129,7 +131,10 @@ export async function buildFromStored(
   }
 }
 
-export async function evaluateVersion(ctx: ServerContext, versionId: string, batchIds: string[], user: string): Promise<EvaluationResult> {
+export async function evaluateVersion(ctx: ServerContext, versionId: string, batchIds: string[], user: string, faulty: string[] = []): Promise<EvaluationResult> {
+  const unknownFaulty = faulty.filter((f) => !batchIds.includes(f));
+  if (unknownFaulty.length) throw new ModelRequestError(400, `faulty lists ${unknownFaulty.join(', ')}, which ${unknownFaulty.length === 1 ? 'is' : 'are'} not among the batches evaluated`);
+  const row = await ctx.storage.getModelVersion(versionId);
   const core = await ctx.ingest.getCore();
   const model = (await ctx.ingest.loadModel(versionId)) as ModelShape | null;
   if (!model) throw new ModelRequestError(404, `model version "${versionId}" does not exist`);
@@ -141,11 +146,13 @@ export async function evaluateVersion(ctx: ServerContext, versionId: string, bat
       throw new ModelRequestError(422, `batch "${id}" has ${b.axis.length} wavelengths; the model expects ${model.chain.inputAxis.length}`);
     }
     const mon = core.createBatchMonitor(model, b.startT);
-    const ev: BatchEvaluation = { batch: id, spectra: 0, pointsOutside: 0, alarms: 0, firstAlarmAt: null, firstAlarmKind: null, endpointAt: null, maxT2: 0, maxQ: 0 };
+    const ev: BatchEvaluation = { batch: id, spectra: 0, pointsOutside: 0, alarms: 0, firstAlarmAt: null, firstAlarmKind: null, endpointAt: null, maxT2: 0, maxQ: 0, t2Beyond: 0, qBeyond: 0 };
     for await (const s of ctx.storage.iterateSpectra(id)) {
       const r = mon.push(s.seq, s.t, s.values);
       ev.spectra++;
       if (r.t2 > r.limits.t2 || r.q > r.limits.q) ev.pointsOutside++;
+      if (r.t2 > r.limits.t2) ev.t2Beyond!++;
+      if (r.q > r.limits.q) ev.qBeyond!++;
       for (const c of r.conditionChanges) {
         if (!c.active) continue;
         ev.alarms++;
@@ -160,9 +167,28 @@ export async function evaluateVersion(ctx: ServerContext, versionId: string, bat
     }
     out.push(ev);
   }
-  const result: EvaluationResult = { id: randomUUID(), versionId, createdAt: ctx.now(), createdBy: user, batches: out };
+  const result: EvaluationResult = { id: randomUUID(), versionId, createdAt: ctx.now(), createdBy: user, batches: out, faulty: [...new Set(faulty)] };
+  result.evidence = evidenceOf(result, model, row?.referenceBatches ?? []);
   await ctx.storage.insertEvaluation(result);
   return result;
+}
+
+function evidenceOf(e: EvaluationResult, model: ModelShape, references: string[]): ApprovalEvidence {
+  const check = (model as unknown as MonitoringModel).meta?.endpointCheck;
+  return approvalEvidence({
+    evaluationId: e.id, createdAt: e.createdAt, confidence: model.limits.t2.confidence, batches: e.batches, faulty: e.faulty ?? [], references,
+    earlyCalls: { count: check?.early ?? 0, text: check && check.early > 0 ? earlyBatchesText(check) : null },
+  });
+}
+
+/**
+ * The approval evidence of a version: from its latest evaluation that carries one (evaluations
+ * stored before point counts per limit were kept have none); null when it has none.
+ */
+export async function latestApprovalEvidence(ctx: ServerContext, versionId: string): Promise<ApprovalEvidence | null> {
+  const evals = (await ctx.storage.listEvaluations(versionId)).filter((e) => e.evidence);
+  if (!evals.length) return null;
+  return evals.reduce((a, b) => (b.createdAt >= a.createdAt ? b : a)).evidence!;
 }
 
 export async function versionDetail(ctx: ServerContext, row: ModelVersionRow): Promise<ModelVersionDetail> {
