@@ -9,8 +9,16 @@
  * 3. Streams accelerated dryer and reactor batches from simulated analyzers, now and then a faulty
  *    one, until Ctrl-C; serves the dashboard and prints its URL and the demo login.
  *
- * Flags: --speed N (×N real time for the dryer, ×4N for the reactor; default 60), --seed N, and
- * every server configuration flag (see docs/configuration.md).
+ * Flags: --speed N (×N real time for the dryer, ×4N for the reactor; default 60), --history-days N
+ * (how far back the simulated process clock starts, default 7 for the dryer, ×4 for the reactor),
+ * --seed N, and every server configuration flag (see docs/configuration.md).
+ *
+ * Time in the demo (docs/dashboard.md, "Time"): each simulated analyzer stamps its spectra with a
+ * process clock that starts --history-days before now and runs ×speed, so batches replay quickly
+ * and are dated in the past; a spectrum is never sent before the wall clock reaches its time stamp,
+ * so when the process clock catches up with the present (after history / speed of wall time) the
+ * demo goes on in real time and no time is ever dated in the future. The server's /api/info and
+ * every report mark the data as simulated with the speed-up.
  *
  * Tideline advises; the site's validated control strategy, interlocks and procedures decide what a
  * signal may do. The demo models are approved automatically and are not validated.
@@ -45,7 +53,7 @@ const LINES: Line[] = [
   { kind: 'reactor', unit: 'reactor-1', unitName: 'Batch reactor 1', analyzer: 'nir-reactor-1', product: 'amide C', refSeed: 4301, refCount: 30, speedFactor: 4 },
 ];
 
-function parseArgs(argv: string[]): { speed: number; seed: number; flags: Record<string, string> } {
+function parseArgs(argv: string[]): { speed: number; seed: number; historyDays: number; flags: Record<string, string> } {
   const flags: Record<string, string> = {};
   for (let i = 0; i < argv.length; i++) {
     const a = argv[i]!;
@@ -58,11 +66,14 @@ function parseArgs(argv: string[]): { speed: number; seed: number; flags: Record
   }
   const speed = Number(flags.speed ?? 60);
   const seed = Number(flags.seed ?? Date.now() % 100000);
+  const historyDays = Number(flags['history-days'] ?? 7);
   delete flags.speed;
   delete flags.seed;
+  delete flags['history-days'];
+  if (!(historyDays >= 0 && historyDays <= 365)) throw new ConfigError(`--history-days must be a number in [0, 365], got "${historyDays}"`);
   if (!(speed > 0 && speed <= 10000)) throw new ConfigError(`--speed must be a number in (0, 10000], got "${speed}"`);
   if (!Number.isInteger(seed) || seed < 0) throw new ConfigError(`--seed must be a non-negative integer`);
-  return { speed, seed, flags };
+  return { speed, seed, historyDays, flags };
 }
 
 async function start(config: ServerConfig): Promise<TidelineServer> {
@@ -77,7 +88,7 @@ async function start(config: ServerConfig): Promise<TidelineServer> {
   }
 }
 
-async function setUpLine(s: TidelineServer, line: Line, url: string, log: (l: string) => void): Promise<AnalyzerClient> {
+async function setUpLine(s: TidelineServer, line: Line, url: string, log: (l: string) => void, processClockStart: number): Promise<AnalyzerClient> {
   const ctx = s.ctx;
   if (!ctx.ingest.units.has(line.unit)) {
     const row = { id: line.unit, name: line.unitName, kind: line.kind, description: `demo ${line.kind} (simulated)`, createdAt: ctx.now() };
@@ -87,7 +98,7 @@ async function setUpLine(s: TidelineServer, line: Line, url: string, log: (l: st
   if (!(await ctx.storage.getAnalyzer(line.analyzer))) await ctx.storage.createAnalyzer({ id: line.analyzer, name: `${line.kind} NIR probe`, createdAt: ctx.now() });
   const { token } = ctx.auth!.createAnalyzerToken(line.analyzer, `demo ${new Date().toISOString()}`, 'demo');
   const refs = simulateReferenceSet(line.kind, line.refCount, line.refSeed, { unit: line.unit, product: line.product });
-  const client = new AnalyzerClient({ url, token, analyzer: line.analyzer, axis: refs[0]!.axis, instrument: `simulated ${line.kind} NIR analyzer (demo)` });
+  const client = new AnalyzerClient({ url, token, analyzer: line.analyzer, axis: refs[0]!.axis, instrument: `simulated ${line.kind} NIR analyzer (demo)`, processClockStart, log: (l) => log(`  ${line.analyzer}: ${l}`) });
   await client.start();
   if (!ctx.ingest.deploymentRef(line.unit)) {
     log(`  first start: streaming ${refs.length} simulated reference batches for ${line.unit} …`);
@@ -127,8 +138,9 @@ async function setUpLine(s: TidelineServer, line: Line, url: string, log: (l: st
 }
 
 /** Every 4th batch carries a fault that fits the process. */
-function nextBatch(line: Line, seed: number, k: number): SimulatedBatch {
-  const stamp = new Date().toISOString().slice(0, 16).replace(/[-:T]/g, '');
+function nextBatch(line: Line, seed: number, k: number, processT: number): SimulatedBatch {
+  // the id carries the batch's own (process) start time, as a site's batch ids carry their date
+  const stamp = new Date(processT).toISOString().slice(0, 16).replace(/[-:T]/g, '');
   let faults: FaultSpec[] | undefined;
   if (k % 4 === 3) {
     const fitting = FAULT_TYPES.filter((f) => FAULT_INFO[f].kinds.includes(line.kind) && f !== 'dropout');
@@ -142,7 +154,7 @@ function nextBatch(line: Line, seed: number, k: number): SimulatedBatch {
 let stopping = false;
 
 async function main() {
-  const { speed, seed, flags } = parseArgs(process.argv.slice(2));
+  const { speed, seed, historyDays, flags } = parseArgs(process.argv.slice(2));
   const config = loadConfig({ env: process.env, flags });
   console.log('Tideline demo — invented data from simulated analyzers.');
   console.log("Tideline advises; the site's validated control strategy, interlocks and procedures decide what a signal may do.\n");
@@ -165,23 +177,29 @@ async function main() {
   process.once('SIGINT', () => void stop());
   process.once('SIGTERM', () => void stop());
 
-  for (const line of LINES) clients.push(await setUpLine(s, line, wsUrl, log));
+  const startedAt = Date.now();
+  s.ctx.simulation = {
+    units: LINES.map((l) => ({ unit: l.unit, speedUp: speed * l.speedFactor })),
+    note: `Demo data from simulated analyzers, replayed faster than real time (dryer ×${speed}, reactor ×${speed * 4}). Each analyzer's process clock started ${historyDays * 1} day(s) (dryer) and ${historyDays * 4} day(s) (reactor) before the demo started, so batches are dated in the past; once a clock reaches the present the demo runs in real time. Times shown are the simulated process times in UTC; alarm acknowledgements, signatures and reports carry the real time.`,
+  };
+  for (const line of LINES) clients.push(await setUpLine(s, line, wsUrl, log, startedAt - historyDays * line.speedFactor * 86_400_000));
   const admin = await ensureDemoAdministrator(s.ctx);
   console.log(admin.notice);
   console.log(`  Dashboard:  ${s.url}/`);
   console.log(`  REST API:   ${s.url}/api/openapi.json    Metrics: ${s.url}/metrics`);
-  console.log(`  Streaming:  dryer ×${speed}, reactor ×${speed * 4} (every 4th batch has a fault). Ctrl-C stops.\n`);
+  console.log(`  Streaming:  dryer ×${speed}, reactor ×${speed * 4} (every 4th batch has a fault). Ctrl-C stops.`);
+  console.log(`  Time:       simulated process clocks start ${historyDays} d (dryer) and ${historyDays * 4} d (reactor) ago and replay at that speed until they reach now, then run in real time; nothing is dated in the future.\n`);
 
   LINES.forEach((line, i) => {
     const client = clients[i]!;
     loops.push(
       (async () => {
         for (let k = 0; !stopping; k++) {
-          const b = nextBatch(line, seed + i, k);
+          const b = nextBatch(line, seed + i, k, client.nextProcessTime());
           const fault = b.truth.faults.map((f) => f.type).join(', ');
           log(`  ${line.unit}: batch ${b.id} (${b.spectra.length} spectra${fault ? `, fault: ${fault}` : ''})`);
           try {
-            await client.sendBatch(b, { speed: speed * line.speedFactor, unit: line.unit });
+            await client.sendBatch(b, { speed: speed * line.speedFactor, unit: line.unit, notAheadOfWallClock: true });
           } catch (e) {
             if (stopping) return;
             log(`  ${line.unit}: streaming stopped: ${(e as Error).message}`);

@@ -36,6 +36,8 @@ export interface AnalyzerClientOptions {
   binary?: boolean;
   /** Boot epoch; defaults to the wall-clock time at construction, ms. */
   boot?: number;
+  /** Where the process clock starts (ms epoch) for 'process' timestamps; default: the wall clock at the first batch. */
+  processClockStart?: number;
   /** Maximum entries sent but not yet acked (default 64). */
   window?: number;
   instrument?: string;
@@ -67,6 +69,12 @@ export interface SendBatchOptions {
    * process in a minute, stamped as an hour). 'original': the simulated batch's own times.
    */
   timestamps?: 'process' | 'original';
+  /**
+   * With 'process' timestamps: never send a spectrum before the wall clock reaches its time stamp,
+   * so no time is dated in the future. A process clock started in the past (processClockStart)
+   * replays at ×speed until it reaches the present, then in real time.
+   */
+  notAheadOfWallClock?: boolean;
   /** When aborted, no more spectra are sent: the batch ends at once ("stopped by operator") and is flushed. */
   signal?: AbortSignal;
   /**
@@ -226,8 +234,12 @@ export class AnalyzerClient {
   private async sendBatchInner(batch: SimulatedBatch, opts: SendBatchOptions): Promise<SentBatch> {
     await this.start();
     const original = opts.timestamps === 'original';
-    if (this.processClock === null) this.processClock = Date.now();
+    if (this.processClock === null) this.processClock = this.opts.processClockStart ?? Date.now();
     const base = Math.max(this.processClock, this.lastT + 1);
+    if (opts.notAheadOfWallClock && !original && base > Date.now() + 1000) {
+      this.log(`process clock ${new Date(base).toISOString()} is ahead of the wall clock (earlier data dated ahead); waiting until the wall clock reaches it before batch ${batch.id}`);
+    }
+    if (opts.notAheadOfWallClock && !original && base > Date.now()) await sleep(base - Date.now(), opts.signal);
     const tOf = (i: number) => (original ? batch.times[i]! : base + (batch.times[i]! - batch.start));
     const id = opts.batchId ?? batch.id;
     const dropped = new Set(batch.truth.dropped);
@@ -240,8 +252,9 @@ export class AnalyzerClient {
     const windows = (opts.statusWindows ?? []).map((w) => ({ ...w, state: 0 as 0 | 1 | 2 }));
     for (let i = 0; i < batch.spectra.length; i++) {
       this.throwIfFailed();
-      if (opts.speed > 0) {
-        const due = wallStart + (batch.times[i]! - batch.start) / opts.speed;
+      if (opts.speed > 0 || (opts.notAheadOfWallClock && !original)) {
+        const paced = opts.speed > 0 ? wallStart + (batch.times[i]! - batch.start) / opts.speed : 0;
+        const due = opts.notAheadOfWallClock && !original ? Math.max(paced, tOf(i)) : paced;
         const wait = due - Date.now();
         if (wait > 0) await sleep(wait, opts.signal);
         this.throwIfFailed();
@@ -285,6 +298,11 @@ export class AnalyzerClient {
     if (!original) this.processClock = tOf(last) + 1;
     await this.flush(endSeq);
     return { batch: id, spectra: sent, stopped, endSeq };
+  }
+
+  /** The time stamp the next batch sent with 'process' timestamps starts at (ms epoch). */
+  nextProcessTime(): number {
+    return Math.max(this.processClock ?? this.opts.processClockStart ?? Date.now(), this.lastT + 1);
   }
 
   /** Resolves when every entry up to `seq` (default: all so far) has been acked. */

@@ -39,4 +39,29 @@ describe('AnalyzerClient → real server /ingest', () => {
       expect(Array.from(r.values)).toEqual(Array.from(sent[k]!.s));
     });
   });
+  it('a process clock started in the past replays fast and dates nothing ahead of the wall clock; one started ahead waits for it', async () => {
+    const c = new AnalyzerClient({ url: ts.wsUrl + '/ingest', token: ts.token, analyzer: 'sim-dryer-1', axis: simulateDryerBatch({ seed: 1, id: 'x' }).axis, processClockStart: Date.now() - 10 * 86_400_000 });
+    await c.start();
+    const past = simulateDryerBatch({ seed: 13, intervalS: 60, id: 'SIM-CLOCK-PAST' });
+    const t0 = Date.now();
+    await c.sendBatch(past, { speed: 600, notAheadOfWallClock: true });
+    const row = (await ts.server.ctx.storage.getBatch('SIM-CLOCK-PAST'))!;
+    // dated in the past, by process time, and never after its receipt
+    expect(row.startT).toBeLessThan(t0);
+    expect(row.endT!).toBeLessThanOrEqual(Date.now());
+    expect(row.startT).toBeLessThanOrEqual(row.createdAt);
+    expect(row.endT! - row.startT).toBe(past.times[past.times.length - 1]! - past.start);
+    await c.close();
+
+    // A clock 1.5 s ahead: without the option every time would be dated ahead of its receipt.
+    const c2 = new AnalyzerClient({ url: ts.wsUrl + '/ingest', token: ts.token, analyzer: 'sim-dryer-1', axis: past.axis, processClockStart: Date.now() + 1500 });
+    await c2.start();
+    const short = simulateDryerBatch({ seed: 14, intervalS: 0.1, id: 'SIM-CLOCK-AHEAD' });
+    const first = { ...short, spectra: short.spectra.slice(0, 10), times: short.times.slice(0, 10), truth: { ...short.truth, dropped: [], endpointIndex: null } };
+    await c2.sendBatch(first, { speed: 0, notAheadOfWallClock: true });
+    const row2 = (await ts.server.ctx.storage.getBatch('SIM-CLOCK-AHEAD'))!;
+    expect(row2.startT).toBeLessThanOrEqual(row2.createdAt);
+    expect(row2.endT!).toBeLessThanOrEqual(Date.now());
+    await c2.close();
+  }, 120_000);
 });
