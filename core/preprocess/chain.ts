@@ -12,7 +12,7 @@ import { denseMatrix, type DenseMatrix } from '../linalg/dense-matrix.ts';
 import { PreprocessSpecError, stepSpecSchema, validateChainSpec, type ChainSpec, type StepSpec } from './spec.ts';
 import type { Stage, StageState } from './stage.ts';
 import { compileRangeStep } from './steps/range-select.ts';
-import { compileResample } from './steps/resample.ts';
+import { compileResample, evenGrid } from './steps/resample.ts';
 import { compileSnv } from './steps/snv.ts';
 import { compileMsc, mscReferenceFromCalibration } from './steps/msc.ts';
 import { compileDetrend } from './steps/detrend.ts';
@@ -66,7 +66,7 @@ function compileStep(s: StepSpec, i: number, axis: Float64Array, state: StageSta
     case 'exclude':
       return compileRangeStep(i, s.step, s.ranges, axis);
     case 'resample':
-      return compileResample(i, s.axis, axis);
+      return compileResample(i, s.axis ?? evenGrid(axis, s.points ?? axis.length), axis);
     case 'snv':
       return compileSnv(i, axis);
     case 'detrend':

@@ -13,7 +13,18 @@ const ranges = z.array(range);
 
 export const selectStepSchema = z.strictObject({ step: z.literal('select'), ranges });
 export const excludeStepSchema = z.strictObject({ step: z.literal('exclude'), ranges });
-export const resampleStepSchema = z.strictObject({ step: z.literal('resample'), axis: z.array(finite) });
+/**
+ * Resample by linear interpolation: onto the wavelengths given (`axis`), or onto an even grid
+ * (`even: true`) from the first to the last wavelength entering the step with the same number of
+ * points (or `points`) — for axes written rounded (e.g. to 0.01 nm) or uneven like a diode array's,
+ * before a Savitzky–Golay step.
+ */
+export const resampleStepSchema = z.strictObject({
+  step: z.literal('resample'),
+  axis: z.array(finite).optional(),
+  even: z.literal(true).optional(),
+  points: z.number().int().min(2).max(100_000).optional(),
+});
 export const snvStepSchema = z.strictObject({ step: z.literal('snv') });
 export const mscStepSchema = z.strictObject({ step: z.literal('msc') });
 export const detrendStepSchema = z.strictObject({ step: z.literal('detrend'), order: z.number().int().min(0).max(10) });
@@ -113,6 +124,9 @@ export function validateStepSpec(value: unknown, i: number): StepSpec {
       checkRanges(i, s.step, s.ranges);
       break;
     case 'resample': {
+      if ((s.axis === undefined) === (s.even === undefined)) throw new PreprocessSpecError(i, s.step, 'axis', 'give the target wavelengths (axis) or even: true (an even grid over the axis entering the step), one of them');
+      if (s.points !== undefined && !s.even) throw new PreprocessSpecError(i, s.step, 'points', 'points goes with even: true');
+      if (!s.axis) break;
       if (s.axis.length < 2) throw new PreprocessSpecError(i, s.step, 'axis', 'needs at least 2 wavelengths');
       for (let k = 1; k < s.axis.length; k++) {
         if (!(s.axis[k]! > s.axis[k - 1]!)) throw new PreprocessSpecError(i, s.step, 'axis', `must increase strictly; value ${k} (${s.axis[k]}) is not above value ${k - 1} (${s.axis[k - 1]})`);

@@ -1,4 +1,19 @@
 /** Linear interpolation onto a new axis (nm); refuses points outside the measured axis. */
+
+/**
+ * `points` evenly spaced wavelengths from the first to the last of `axis` (the two ends exactly as
+ * given, so nothing is extrapolated).
+ */
+export function evenGrid(axis: ArrayLike<number>, points: number): number[] {
+  const n = axis.length;
+  if (n < 2 || points < 2) return Array.from(axis);
+  const lo = axis[0]!;
+  const hi = axis[n - 1]!;
+  const step = (hi - lo) / (points - 1);
+  const out = Array.from({ length: points }, (_, k) => lo + k * step);
+  out[points - 1] = hi;
+  return out;
+}
 import { PreprocessSpecError } from '../spec.ts';
 import type { Stage } from '../stage.ts';
 

@@ -5,13 +5,18 @@
  * polynomial fitted to the first (last) full window is evaluated at those points — the same
  * treatment as scipy.signal.savgol_filter(mode='interp'). Derivatives are per nm: the per-step
  * coefficients are divided by Δλ^d, Δλ the axis step in nm. The axis entering the step must be
- * evenly spaced (each step within 0.1 % of the mean step); otherwise add a resample step first.
+ * evenly spaced: each step within 0.1 % of the mean step, or within 0.01 nm of it, whichever is
+ * larger — an axis written rounded to 0.01 nm (each wavelength off by up to 0.005 nm, so a step by
+ * up to 0.01 nm) counts as even. Otherwise add a resample step first ({ step: 'resample', even: true }).
  */
 import { PreprocessSpecError } from '../spec.ts';
 import type { Stage } from '../stage.ts';
 import { savgolAllPositions } from '../savgol-coefficients.ts';
 
+/** Relative tolerance of a step against the mean step. */
 export const SAVGOL_SPACING_TOLERANCE = 1e-3;
+/** Absolute tolerance of a step against the mean step, nm: the rounding of an axis written to 0.01 nm. */
+export const SAVGOL_SPACING_TOLERANCE_NM = 0.01;
 
 export function compileSavgol(index: number, window: number, polyorder: number, deriv: 0 | 1 | 2, axis: Float64Array): Stage {
   const n = axis.length;
@@ -22,8 +27,14 @@ export function compileSavgol(index: number, window: number, polyorder: number, 
     if (!(step > 0)) throw new PreprocessSpecError(index, 'savgol', null, 'the axis entering the step must increase');
     for (let j = 1; j < n; j++) {
       const d = axis[j]! - axis[j - 1]!;
-      if (Math.abs(d - step) > SAVGOL_SPACING_TOLERANCE * step) {
-        throw new PreprocessSpecError(index, 'savgol', null, `the axis entering the step is not evenly spaced (step ${d} nm at ${axis[j - 1]} nm, mean ${step} nm); resample it first`);
+      // 1e-9 nm of slack: the two rounded values' difference is itself a rounded binary number.
+      if (Math.abs(d - step) > Math.max(SAVGOL_SPACING_TOLERANCE * step, SAVGOL_SPACING_TOLERANCE_NM + 1e-9)) {
+        throw new PreprocessSpecError(
+          index,
+          'savgol',
+          null,
+          `the axis entering the step is not evenly spaced (step ${d} nm at ${axis[j - 1]} nm, mean ${step} nm; allowed: within ${SAVGOL_SPACING_TOLERANCE * 100} % or ${SAVGOL_SPACING_TOLERANCE_NM} nm of the mean); add { "step": "resample", "even": true } before it`,
+        );
       }
     }
   }
