@@ -49,6 +49,7 @@ import type {
 } from '../monitor/types.ts';
 import type { SuppressionReason } from '../alarms/types.ts';
 import type { BatchEndStatement } from '../monitor/batch-end.ts';
+import type { BatchSuspectReason } from '../monitor/batch-suspect.ts';
 import type { Ne107Category } from '../protocol/ingest-messages.ts';
 
 export const API_VERSION = 1;
@@ -236,6 +237,11 @@ export interface BatchSummary {
   endpointAt: number | null;
   alarmCount: number;
   activeAlarms: number;
+  /**
+   * Why this batch may not be a good batch (core/monitor/batch-suspect.ts): alarms raised, endpoint
+   * not reached, an abnormal reported end; empty when its record shows none. For the batch pickers.
+   */
+  suspect?: BatchSuspectReason[];
   /** Suspect scans: single spectra beyond a limit that raised no alarm on their own (MonitorResult.suspect); absent where not counted. */
   suspectCount?: number;
 }

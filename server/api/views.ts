@@ -4,6 +4,7 @@ import { labValueViews } from '../../core/lab/lab-values.ts';
 import type { IngestPipeline } from '../ingest/pipeline.ts';
 import { modelSignatures } from '../auth/model-signatures.ts';
 import { batchEndStatement } from '../../core/monitor/batch-end.ts';
+import { batchSuspectReasons } from '../../core/monitor/batch-suspect.ts';
 import type { AnalyzerRow, BatchRow, DeploymentRow, ModelVersionRow, Storage } from '../storage/storage.ts';
 
 export function modelRef(m: ModelVersionRow): ModelRef {
@@ -28,6 +29,7 @@ export async function batchSummary(storage: Storage, pipeline: IngestPipeline, r
     endpointAt: ob ? ob.endpointAt : row.endpointAt,
     alarmCount: all.total,
     activeAlarms: active.total,
+    suspect: batchSuspectReasons({ status: row.status, alarmCount: all.total, endpointState: ob ? ob.endpointState : row.endpointState, judged: row.modelVersion !== null, reportedEndReason: row.endReason }),
   };
 }
 

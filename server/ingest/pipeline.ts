@@ -459,7 +459,7 @@ export class IngestPipeline {
       if (!sameAxis(inAxis, st.axis)) {
         this.applyCondition(e.unit, e.batch, {
           kind: 'analyzer', key: 'model-axis', active: true, priority: 2, value: st.axis.length, limit: inAxis.length,
-          message: `analyzer ${st.analyzer} axis (${st.axis.length} points) does not match the axis of model ${dep.ref.name} v${dep.ref.version} (${inAxis.length} points); batch ${e.batch} is stored but not judged`,
+          message: `model does not fit the analyzer: ${dep.ref.name} v${dep.ref.version} deployed to ${e.unit} expects ${axisWords(inAxis)}, analyzer ${st.analyzer} sends ${axisWords(st.axis)}; batch ${e.batch} is stored but not judged — deploy a version built for this analyzer`,
         }, e.seq, now);
       } else {
         try {
@@ -1050,6 +1050,12 @@ function fmtMin(min: number): string {
 
 function alarmKey(unit: string, batch: string | null, key: string) {
   return `${unit}\u0000${batch ?? ''}\u0000${key}`;
+}
+
+/** "601 points, 1000–2200 nm" */
+function axisWords(a: ArrayLike<number>): string {
+  const f = (v: number) => Number(v.toPrecision(5)).toString();
+  return a.length ? `${a.length} points, ${f(a[0]!)}–${f(a[a.length - 1]!)} nm` : 'no points';
 }
 
 function sameAxis(a: ArrayLike<number>, b: ArrayLike<number>): boolean {

@@ -79,6 +79,13 @@ describe('an ended batch keeps its unacknowledged alarms, and its record agrees 
     expect(r.body.reportedEndReason).toBe('stopped after the endpoint');
     expect(r.body.end.code).toBe('without-endpoint');
     expect(r.body.end.disagreement).toContain('stopped after the endpoint');
+    // the batch pickers' data: why this batch is no good batch
+    const list = await admin.get('/api/batches?unit=dryer-1');
+    const row = list.body.items.find((b: { id: string }) => b.id === 'stalled-1');
+    const codes = row.suspect.map((x: { code: string }) => x.code);
+    expect(codes).toEqual(['alarms', 'endpoint-not-reached']);
+    expect(row.suspect[0].text).toBe(`${row.alarmCount} alarms raised while it ran`);
+    expect(row.suspect[1].text).toMatch(/^endpoint not reached \((running|nearing|settling)/);
   });
 
   const haveTools = chromiumPath() !== null && spawnSync('pdftotext', ['-v']).status === 0;
