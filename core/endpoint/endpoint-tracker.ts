@@ -1,11 +1,23 @@
 /**
- * The endpoint state machine: running → nearing → settling → done (→ signalled, set by the
- * server once the signal has gone out). 'settling' while the rule holds but is not yet confirmed
- * over N consecutive spectra, or is confirmed before the rule's minimum time (minElapsedMin); a
- * break in confirmation goes back to 'nearing'; 'done' and 'signalled' are final for the batch.
+ * The endpoint state machine: running → nearing → settling → (held) → done (→ signalled, set by
+ * the server once the signal has gone out).
+ * - 'nearing' once the estimated time to endpoint is within the rule's nearingMin, or a criterion
+ *   is met, for `hysteresis` spectra in a row.
+ * - 'settling' while the rule is met but not yet confirmed over `confirm` consecutive spectra.
+ * - 'held' when the rule is met and confirmed but a guard stands: the batch is younger than the
+ *   rule's minimum time (minElapsedMin), a confirmed T², Q, combined-index or envelope alarm stands
+ *   (hold.alarms), or the property prediction is outside its calibration (hold.extrapolation; for
+ *   rules with a property criterion; released only after `hysteresis` predictions in a row inside
+ *   it). Every standing guard is listed in EndpointStatus.holds.
+ * - 'done' when the rule is met and confirmed and no guard stands — from 'held' only once every
+ *   guard has cleared while the rule is still met. 'done' and 'signalled' are final for the batch.
+ * Hysteresis: a spectrum failing the rule restarts the confirmation count, but 'settling' or
+ * 'held' steps back to 'nearing' only after `hysteresis` spectra in a row fail it, so a noisy
+ * prediction near its threshold does not flap the state (and every channel) back and forth.
+ * While held, a change of its reasons is an event of its own (from 'held' to 'held').
  */
-import type { DomainEvent, EndpointCriterionStatus, EndpointState, EndpointStatus } from '../monitor/types.ts';
-import type { ResolvedEndpointRule } from './spec.ts';
+import type { DomainEvent, EndpointCriterionStatus, EndpointHold, EndpointState, EndpointStatus } from '../monitor/types.ts';
+import { DEFAULT_HYSTERESIS, type ResolvedEndpointRule } from './spec.ts';
 
 /** Per-spectrum inputs the monitor computes for the rule (null = not available yet). */
 export interface EndpointInputs {
@@ -17,6 +29,14 @@ export interface EndpointInputs {
   eta: { median: number; low: number; high: number } | null;
   /** Minutes since the batch start (for the rule's minimum time; omitted: not judged). */
   elapsedMin?: number | null;
+  /** Confirmed alarms standing, in words, one per alarm (omitted: not judged). */
+  standingAlarms?: string[];
+  /** Whether the property prediction is outside its calibration on this spectrum (omitted / null: not judged). */
+  extrapolating?: boolean | null;
+}
+
+function sameHolds(a: EndpointHold[], b: EndpointHold[]): boolean {
+  return a.length === b.length && a.every((h, i) => h.code === b[i]!.code && h.text === b[i]!.text);
 }
 
 function fmt(x: number): string {
@@ -27,7 +47,16 @@ export class EndpointTracker {
   state: EndpointState = 'running';
   private confirmCount = 0;
   private doneAt: EndpointStatus['doneAt'] = null;
-  constructor(private readonly rule: ResolvedEndpointRule) {}
+  /** Consecutive spectra failing the rule (settling / held), saying 'near' (running). */
+  private failCount = 0;
+  private nearCount = 0;
+  /** Consecutive predictions inside calibration (release of the extrapolation guard); starts released. */
+  private inCalibration = Number.POSITIVE_INFINITY;
+  private lastHolds: EndpointHold[] = [];
+  private readonly hasProperty: boolean;
+  constructor(private readonly rule: ResolvedEndpointRule) {
+    this.hasProperty = rule.criteria.some((c) => c.kind === 'property');
+  }
 
   update(seq: number, t: number, inp: EndpointInputs, events: DomainEvent[]): EndpointStatus {
     const rule = this.rule;
@@ -73,32 +102,62 @@ export class EndpointTracker {
     }
     const met = rule.combine === 'all' ? allMet : anyMet;
     const from = this.state;
+    const hyst = Math.max(1, rule.hysteresis ?? DEFAULT_HYSTERESIS);
+    const hold = rule.hold ?? { alarms: true, extrapolation: true };
     let reason = '';
+    let holds: EndpointHold[] = [];
     if (from !== 'done' && from !== 'signalled') {
-      const minMin = rule.minElapsedMin ?? 0;
-      const early = minMin > 0 && inp.elapsedMin !== undefined && inp.elapsedMin !== null && inp.elapsedMin < minMin;
-      if (met && early && this.confirmCount + 1 >= rule.confirm) {
-        // Met and confirmed, but before the rule's minimum time: not done yet.
-        this.confirmCount = rule.confirm;
-        this.state = 'settling';
-        reason = `rule met and confirmed; no endpoint before ${fmt(minMin)} min from the batch start (${fmt(inp.elapsedMin!)} min now)`;
-      } else if (met) {
-        this.confirmCount++;
+      // Release count of the extrapolation guard: predictions in a row inside calibration.
+      if (inp.extrapolating === true) this.inCalibration = 0;
+      else if (inp.extrapolating === false) this.inCalibration++;
+      if (met) {
+        this.failCount = 0;
+        this.nearCount = 0;
+        if (this.confirmCount < rule.confirm) this.confirmCount++;
         if (this.confirmCount >= rule.confirm) {
-          this.state = 'done';
-          reason = `${criteria.filter((c) => c.met).map((c) => c.text).join('; ')} — confirmed over ${rule.confirm} spectra`;
-          this.doneAt = { t, seq, reason };
+          holds = this.guards(inp, hold, hyst);
+          if (holds.length) {
+            this.state = 'held';
+            if (from !== 'held') reason = `rule met and confirmed over ${rule.confirm} spectra${inp.elapsedMin != null ? ` at ${fmt(inp.elapsedMin)} min` : ''}; held: ${holds.map((h) => h.text).join('; ')}`;
+          } else {
+            this.state = 'done';
+            reason = `${criteria.filter((c) => c.met).map((c) => c.text).join('; ')} — confirmed over ${rule.confirm} spectra${from === 'held' ? '; every guard cleared' : ''}`;
+            this.doneAt = { t, seq, reason };
+          }
+        } else if (from === 'held' && (holds = this.guards(inp, hold, hyst)).length) {
+          // Held, the rule met again after a dip: confirmation counts again within 'held'.
+          this.state = 'held';
         } else {
           this.state = 'settling';
           reason = `rule met (${this.confirmCount} of ${rule.confirm})`;
         }
       } else {
+        // Confirmation needs consecutive spectra: it starts again. The state steps back only after
+        // `hyst` spectra in a row fail the rule (hysteresis), so one noisy spectrum does not flap it.
         this.confirmCount = 0;
-        const near = (inp.eta !== null && inp.eta.median <= rule.nearingMin) || anyMet;
-        if (from === 'settling') { this.state = 'nearing'; reason = 'confirmation broken'; }
-        else if (from === 'running' && near) { this.state = 'nearing'; reason = inp.eta !== null && inp.eta.median <= rule.nearingMin ? `about ${fmt(inp.eta.median)} min to endpoint` : 'a criterion is met'; }
+        this.failCount++;
+        if (from === 'settling' || from === 'held') {
+          if (this.failCount >= hyst) {
+            this.state = 'nearing';
+            reason = `rule no longer met (${this.failCount} spectra in a row)`;
+          } else if (from === 'held') {
+            holds = this.guards(inp, hold, hyst);
+            // The guards cleared while the rule dipped: no longer held, confirmation starts again.
+            if (!holds.length) { this.state = 'settling'; reason = 'guards cleared; rule not met on this spectrum, confirmation starts again'; }
+          }
+        } else if (from === 'running') {
+          const etaNear = inp.eta !== null && inp.eta.median <= rule.nearingMin;
+          if (etaNear || anyMet) this.nearCount++;
+          else this.nearCount = 0;
+          if (this.nearCount >= hyst) { this.state = 'nearing'; reason = etaNear ? `about ${fmt(inp.eta!.median)} min to endpoint` : 'a criterion is met'; }
+        }
       }
-      if (this.state !== from) events.push({ type: 'endpoint-state', from, to: this.state, t, seq, reason });
+      if (this.state !== from) events.push({ type: 'endpoint-state', from, to: this.state, t, seq, reason, ...(this.state === 'held' ? { holds } : {}) });
+      else if (this.state === 'held' && !sameHolds(this.lastHolds, holds)) {
+        // Held for other reasons now (a guard cleared, another came up): a change of its own on every channel.
+        events.push({ type: 'endpoint-state', from, to: this.state, t, seq, reason: `held: ${holds.map((h) => h.text).join('; ')}`, holds });
+      }
+      this.lastHolds = this.state === 'held' ? holds : [];
     }
     const done = this.state === 'done' || this.state === 'signalled';
     return {
@@ -109,8 +168,25 @@ export class EndpointTracker {
       confirmNeeded: rule.confirm,
       etaMin: done ? null : inp.eta,
       doneAt: this.doneAt,
-      holds: [],
+      holds: this.state === 'held' ? holds : [],
     };
+  }
+
+  /** The guards standing on this spectrum (empty: none). */
+  private guards(inp: EndpointInputs, hold: { alarms: boolean; extrapolation: boolean }, hyst: number): EndpointHold[] {
+    const rule = this.rule;
+    const out: EndpointHold[] = [];
+    const minMin = rule.minElapsedMin ?? 0;
+    if (minMin > 0 && inp.elapsedMin !== undefined && inp.elapsedMin !== null && inp.elapsedMin < minMin) {
+      out.push({ code: 'min-elapsed', text: `no endpoint before ${fmt(minMin)} min from the batch start${rule.minElapsedMethod ? ` (${rule.minElapsedMethod})` : ''}` });
+    }
+    if (hold.alarms && inp.standingAlarms) for (const a of inp.standingAlarms) out.push({ code: 'alarm', text: a });
+    if (hold.extrapolation && this.hasProperty && inp.extrapolating !== undefined && inp.extrapolating !== null && (inp.extrapolating || this.inCalibration < hyst)) {
+      // Held from a flagged prediction until `hyst` predictions in a row are inside calibration.
+      const prop = rule.criteria.find((c) => c.kind === 'property');
+      out.push({ code: 'extrapolating', text: `${prop && prop.kind === 'property' ? prop.name : 'property'} prediction outside its calibration (leverage or residual beyond its limit); released after ${hyst} predictions in a row inside it` });
+    }
+    return out;
   }
 
   /** done → signalled (the server calls this after the signal went out). */

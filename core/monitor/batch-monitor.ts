@@ -126,7 +126,9 @@ export function createBatchMonitor(model: MonitoringModel, batchStartT: number, 
   const endMean = env.endRegion?.mean ?? [];
   const endSd = env.endRegion?.sd ?? [];
   const needsEnd = rule.criteria.some((c) => c.kind === 'golden-end');
-  const inputs: EndpointInputs = { property: null, mbsd: null, slopes: plateaus.map(() => null), goldenEndDistance: null, eta: null };
+  const inputs: EndpointInputs = { property: null, mbsd: null, slopes: plateaus.map(() => null), goldenEndDistance: null, eta: null, standingAlarms: [] };
+  // Per condition, while it stands: how it came up, in words (for the endpoint's alarm guard).
+  const standing: (string | null)[] = conds.map(() => null);
   let lastSeq = -1;
   let lastT = batchStartT;
   // Pixel quality: checker with its history, bridged spectrum, missing-variable mask, TSR projector.
@@ -277,9 +279,10 @@ export function createBatchMonitor(model: MonitoringModel, batchStartT: number, 
       envelope[a] = { pc: a + 1, score: s, expected, lower: pc.lower[k], upper: pc.upper[k], status, sd: z };
     }
 
-    // Pace: judged after start-up, before the endpoint and the golden end progress.
+    // Pace: judged after start-up, up to the golden end progress — after 'done' too (a batch called
+    // done early that then dries slowly is still slow).
     let paceStatus: PaceStatus | null = null;
-    if (pace && elapsedMin >= startupMin && endpoint.state !== 'done' && endpoint.state !== 'signalled' && prog < endProgress) paceStatus = pace.update(k, elapsedMin);
+    if (pace && elapsedMin >= startupMin && prog < endProgress) paceStatus = pace.update(k, elapsedMin);
 
     // Conditions.
     const events: DomainEvent[] = [];
@@ -319,6 +322,7 @@ export function createBatchMonitor(model: MonitoringModel, batchStartT: number, 
           what = `${cd.label} score ${fmt(e.score)} is ${fmt(e.sd!)} sd from the golden path (alarm at ±${fmt(aK)} sd, ${confPct})`;
         } else what = `${cd.label} ${fmt(value)} ${u.active ? 'above' : 'below'} its ${confPct} limit ${fmt(limit)}`;
         const change: ConditionChange = { kind: cd.kind, key: cd.key, active: u.active, message: u.active ? what : `${cd.label} back within limits: ${what}`, value, limit, priority: cd.priority };
+        standing[c] = u.active ? `${cd.label} alarm standing since ${fmt(elapsedMin)} min (${what})` : null;
         changes.push(change);
         events.push({ type: 'condition', change, t, seq });
       }
@@ -341,6 +345,12 @@ export function createBatchMonitor(model: MonitoringModel, batchStartT: number, 
     }
     inputs.eta = endpoint.state === 'done' || endpoint.state === 'signalled' ? null : eta.estimate(k, elapsedMin);
     inputs.elapsedMin = elapsedMin;
+    // Guards: the confirmed alarms standing (T², Q, combined index, envelope; not pace — a slow
+    // batch that reaches its endpoint is done), and the prediction's calibration flag.
+    const alarmsNow = inputs.standingAlarms!;
+    alarmsNow.length = 0;
+    for (let c = 0; c < conds.length; c++) if (c !== paceCond && conds[c].filter.active && standing[c] !== null) alarmsNow.push(standing[c]!);
+    inputs.extrapolating = prediction ? prediction.extrapolating : null;
     const ep = endpoint.update(seq, t, inputs, events);
     lastSeq = seq;
     lastT = t;
