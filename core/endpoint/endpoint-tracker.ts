@@ -152,7 +152,7 @@ export class EndpointTracker {
           if (this.nearCount >= hyst) { this.state = 'nearing'; reason = etaNear ? `about ${fmt(inp.eta!.median)} min to endpoint` : 'a criterion is met'; }
         }
       }
-      if (this.state !== from) events.push({ type: 'endpoint-state', from, to: this.state, t, seq, reason, ...(this.state === 'held' ? { holds } : {}) });
+      if (this.state !== from) events.push({ type: 'endpoint-state', from, to: this.state, t, seq, reason, holds: this.state === 'held' ? holds : [] });
       else if (this.state === 'held' && !sameHolds(this.lastHolds, holds)) {
         // Held for other reasons now (a guard cleared, another came up): a change of its own on every channel.
         events.push({ type: 'endpoint-state', from, to: this.state, t, seq, reason: `held: ${holds.map((h) => h.text).join('; ')}`, holds });
@@ -193,6 +193,6 @@ export class EndpointTracker {
   markSignalled(t: number, seq: number): DomainEvent | null {
     if (this.state !== 'done') return null;
     this.state = 'signalled';
-    return { type: 'endpoint-state', from: 'done', to: 'signalled', t, seq, reason: 'endpoint signal sent' };
+    return { type: 'endpoint-state', from: 'done', to: 'signalled', t, seq, reason: 'endpoint signal sent', holds: [] };
   }
 }

@@ -187,5 +187,6 @@ export interface Contributions {
 
 /** Events emitted by core for the outbox (server adds id and per-unit sequence). */
 export type DomainEvent =
+  /** holds: the guards holding the endpoint when `to` is 'held' (empty otherwise; absent in events stored before holds existed). from = to = 'held' when the reasons changed. */
   | { type: 'endpoint-state'; from: EndpointState; to: EndpointState; t: number; seq: number; reason: string; holds?: EndpointHold[] }
   | { type: 'condition'; change: ConditionChange; t: number; seq: number };

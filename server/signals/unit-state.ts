@@ -4,7 +4,7 @@
  * state, alarms, analyzer status) and the latest monitor result (live values: progress, T², Q,
  * prediction). Pure reducers: the caller passes the time.
  */
-import type { AlarmPriority, AlarmState, EndpointState, MonitorResult } from '../../core/monitor/types.ts';
+import { ENDPOINT_HOLD_CODES, type AlarmPriority, type AlarmState, type EndpointHold, type EndpointState, type MonitorResult } from '../../core/monitor/types.ts';
 import type { SignalEnvelope } from './outbox-store.ts';
 
 /** NAMUR NE 107 status signal categories, plus 'good' when none applies. */
@@ -49,6 +49,8 @@ export interface UnitSignalState {
     t: number | null;
     reason: string | null;
     etaMin: number | null;
+    /** Why the endpoint is held (state 'held': the rule is met and confirmed but a guard stands); empty otherwise. */
+    holds: EndpointHold[];
   };
   t2: number | null;
   q: number | null;
@@ -82,7 +84,7 @@ export function emptyUnitState(unit: string, now: number): UnitSignalState {
     modelVersion: null,
     progress: null,
     elapsedMin: null,
-    endpoint: { state: null, reached: false, t: null, reason: null, etaMin: null },
+    endpoint: { state: null, reached: false, t: null, reason: null, etaMin: null, holds: [] },
     t2: null,
     q: null,
     t2Limit: null,
@@ -137,7 +139,7 @@ export function applyResult(prev: UnitSignalState, r: MonitorResult, meta: { bat
   const s: UnitSignalState = { ...prev, endpoint: { ...prev.endpoint }, updatedAt: now };
   if (meta.batch) {
     if (meta.batch !== s.batch) {
-      s.endpoint = { state: null, reached: false, t: null, reason: null, etaMin: null };
+      s.endpoint = { state: null, reached: false, t: null, reason: null, etaMin: null, holds: [] };
     }
     s.batch = meta.batch;
     s.batchActive = true;
@@ -153,6 +155,7 @@ export function applyResult(prev: UnitSignalState, r: MonitorResult, meta: { bat
   s.prediction = r.prediction ? { name: r.prediction.name, unit: r.prediction.unit, value: r.prediction.value, extrapolating: r.prediction.extrapolating } : null;
   s.endpoint.state = s.endpoint.state === 'signalled' && r.endpoint.state === 'done' ? 'signalled' : r.endpoint.state;
   s.endpoint.etaMin = r.endpoint.etaMin?.median ?? null;
+  s.endpoint.holds = r.endpoint.state === 'held' ? (r.endpoint.holds ?? []).map((h) => ({ ...h })) : [];
   s.resultT = r.t;
   s.stale = false;
   return withQuality(s);
@@ -171,6 +174,16 @@ function shelfOf(a: Obj): UnitAlarmSummary['shelf'] {
   return null;
 }
 
+/** The holds of an endpoint-state payload (invalid entries dropped). */
+function holdsOf(v: unknown): EndpointHold[] {
+  if (!Array.isArray(v)) return [];
+  return v.flatMap((h) => {
+    const o = (h && typeof h === 'object' ? h : {}) as Obj;
+    const code = str(o.code);
+    return code && (ENDPOINT_HOLD_CODES as readonly string[]).includes(code) ? [{ code: code as EndpointHold['code'], text: str(o.text) ?? '' }] : [];
+  });
+}
+
 /** Fold in one delivered outbox event. Unknown types only advance lastEventSeq. */
 export function applyEvent(prev: UnitSignalState, e: SignalEnvelope, now: number): UnitSignalState {
   const s: UnitSignalState = { ...prev, endpoint: { ...prev.endpoint }, alarms: [...prev.alarms], lastEventSeq: Math.max(prev.lastEventSeq, e.seq), updatedAt: now };
@@ -183,13 +196,16 @@ export function applyEvent(prev: UnitSignalState, e: SignalEnvelope, now: number
     s.batchActive = true;
     const model = (p.model && typeof p.model === 'object' ? p.model : null) as Obj | null;
     s.modelVersion = model ? `${str(model.name) ?? str(model.versionId) ?? '?'} v${num(model.version) ?? '?'}` : (str(b.modelVersion) ?? str(p.modelVersion) ?? null);
-    s.endpoint = { state: 'running', reached: false, t: null, reason: null, etaMin: null };
+    s.endpoint = { state: 'running', reached: false, t: null, reason: null, etaMin: null, holds: [] };
     s.progress = 0;
   } else if (type === 'batch-end' || type === 'batch-ended' || (type === 'batch' && p.event === 'ended')) {
     s.batchActive = false;
   } else if (type === 'endpoint-state' || type === 'endpoint') {
     const to = str(p.to) as EndpointState | null;
-    if (to) s.endpoint.state = to;
+    if (to) {
+      s.endpoint.state = to;
+      s.endpoint.holds = to === 'held' ? holdsOf(p.holds) : [];
+    }
     if (str(p.batch)) s.batch = str(p.batch);
     if (to === 'done' || (to === 'signalled' && !s.endpoint.reached)) {
       if (!s.endpoint.reached || to === 'done') {

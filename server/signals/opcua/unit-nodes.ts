@@ -38,6 +38,8 @@ type Vars = {
   endpointTime: UAVariable;
   endpointReason: UAVariable;
   endpointEta: UAVariable;
+  endpointHeld: UAVariable;
+  endpointHoldReasons: UAVariable;
   property: UAVariable;
   propertyName: UAVariable;
   t2: UAVariable;
@@ -97,7 +99,7 @@ export class UnitNodes {
       batchActive: v('BatchActive', DataType.Boolean, false, 'True while a batch runs'),
       product: v('Product', DataType.String, '', 'Product of the current batch'),
       progress,
-      endpointState: v('EndpointState', DataType.String, '', 'running, nearing, settling, done, signalled'),
+      endpointState: v('EndpointState', DataType.String, '', 'running, nearing, settling, held, done, signalled'),
       endpointReached: v('EndpointReached', DataType.Boolean, false, 'Latched true when the endpoint is reached, until the DCS writes EndpointAcknowledge = true'),
       endpointAck: ns.addVariable({
         componentOf: o,
@@ -119,6 +121,8 @@ export class UnitNodes {
       endpointTime: v('EndpointTime', DataType.DateTime, null, 'When the endpoint was reached (UTC, the spectrum time)'),
       endpointReason: v('EndpointReason', DataType.String, '', 'Why: the endpoint criteria that were met'),
       endpointEta: v('EndpointEtaMin', DataType.Double, 0, 'Estimated minutes to the endpoint (median); Bad when unknown'),
+      endpointHeld: v('EndpointHeld', DataType.Boolean, false, 'True while the endpoint rule is met and confirmed but a guard holds it (minimum time, a standing alarm, a prediction outside its calibration): not an endpoint'),
+      endpointHoldReasons: v('EndpointHoldReasons', DataType.String, '', 'While held: every guard that holds the endpoint, one per line as code: text (codes min-elapsed, alarm, extrapolating); empty otherwise'),
       property,
       propertyName: v('PropertyName', DataType.String, '', 'Name and unit of the predicted property'),
       t2: v('T2', DataType.Double, 0, "Hotelling's T² of the latest spectrum"),
@@ -164,6 +168,9 @@ export class UnitNodes {
     this.set(V.endpointTime, DataType.DateTime, latch.t === null ? null : new Date(latch.t), latch.t === null ? StatusCodes.BadWaitingForInitialData : StatusCodes.Good);
     this.set(V.endpointReason, DataType.String, latch.reason ?? '');
     this.set(V.endpointEta, DataType.Double, s.endpoint.etaMin ?? 0, s.endpoint.etaMin === null ? StatusCodes.BadWaitingForInitialData : live, t);
+    const holds = s.endpoint.state === 'held' ? s.endpoint.holds : [];
+    this.set(V.endpointHeld, DataType.Boolean, holds.length > 0);
+    this.set(V.endpointHoldReasons, DataType.String, holds.map((h) => `${h.code}: ${h.text}`).join('\n'));
     const pred = s.prediction;
     this.set(V.property, DataType.Double, pred ? pred.value : 0, pred ? (pred.extrapolating && live === StatusCodes.Good ? StatusCodes.UncertainSubNormal : live) : StatusCodes.BadWaitingForInitialData, t);
     this.set(V.propertyName, DataType.String, pred ? `${pred.name} (${pred.unit})` : '');
