@@ -1,6 +1,6 @@
 /** Words and tones for states shown on the dashboard. Pure. */
 import type { Alarm, UnitSummary } from '../../../core/api/rest.ts';
-import type { EndpointState } from '../../../core/monitor/types.ts';
+import type { EndpointHoldCode, EndpointState } from '../../../core/monitor/types.ts';
 import type { StatusTone } from '../theme/palette.ts';
 
 export const ENDPOINT_WORDS: Record<EndpointState, { text: string; tone: StatusTone; help: string }> = {
@@ -10,6 +10,13 @@ export const ENDPOINT_WORDS: Record<EndpointState, { text: string; tone: StatusT
   held: { text: 'held', tone: 'warn', help: 'endpoint rule met and confirmed, but not released: a guard stands (see its reasons)' },
   done: { text: 'done', tone: 'ok', help: 'endpoint confirmed' },
   signalled: { text: 'signalled', tone: 'ok', help: 'endpoint confirmed and sent to the control system' },
+};
+
+/** What holds a met and confirmed endpoint (state 'held'), in short words. */
+export const HOLD_WORDS: Record<EndpointHoldCode, { label: string; help: string }> = {
+  'min-elapsed': { label: 'before the minimum time', help: "the batch is younger than the rule's minimum time from the batch start" },
+  alarm: { label: 'alarm standing', help: 'a confirmed T², Q, combined-index or envelope alarm stands' },
+  extrapolating: { label: 'prediction outside calibration', help: "the property prediction's leverage or residual is beyond its limit" },
 };
 
 export const ALARM_STATE_WORDS: Record<Alarm['state'], { text: string; tone: StatusTone }> = {

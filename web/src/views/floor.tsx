@@ -7,6 +7,7 @@ import { ENDPOINT_WORDS, UNIT_STATUS_WORDS, limitStatus, PRIORITY_WORDS } from '
 import { age, fixed, ofLimitPct, sig, withUnit } from '../format/number-format.ts';
 import { activeAlarmsText, etaText, progressText, stallAlarm } from './floor-data.ts';
 import type { Alarm } from '../../../core/api/rest.ts';
+import { HELD_CAUTION, holdLabels } from './endpoint-holds.tsx';
 import { href } from '../router.ts';
 
 export function Floor({ now }: { now: number }) {
@@ -79,6 +80,14 @@ function UnitTile({ u, now, alarms }: { u: LiveUnitStatus; now: number; alarms: 
                 </span>
               )}
             </dd>
+            {u.endpoint?.state === 'held' && (
+              <>
+                <dt>Held by</dt>
+                <dd data-testid={`held-${u.id}`} title={`${(u.endpoint.holds ?? []).map((h) => h.text).join('\n')}\n${HELD_CAUTION}`}>
+                  {holdLabels(u.endpoint.holds)} <span class="muted small">— not an endpoint; Tideline advises, the site's control strategy decides</span>
+                </dd>
+              </>
+            )}
             <dt>T²</dt>
             <dd>
               <Badge tone={t2.tone}>{t2.text}</Badge> <span class="num" title={`T² ${sig(p?.t2)}, limit ${sig(p?.t2Limit)}`}>{ofLimitPct(p?.t2, p?.t2Limit)}</span>

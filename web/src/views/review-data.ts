@@ -100,7 +100,7 @@ export function timeline(b: BatchDetail, results: MonitorResult[], alarms: Alarm
     ev.push({ tMin: at(a.seq, a.raisedAt), kind: 'alarm', label: `alarm P${a.priority}: ${a.message}` });
     if (a.clearedAt !== null && a.seq === null) ev.push({ tMin: (a.clearedAt - b.startedAt) / 60000, kind: 'alarm-cleared', label: `alarm cleared (${a.key})` });
   }
-  for (const e of b.endpointEvents) ev.push({ tMin: at(e.seq, e.t), kind: 'endpoint', label: `endpoint ${e.from} → ${e.to}` });
+  for (const e of b.endpointEvents) ev.push({ tMin: at(e.seq, e.t), kind: 'endpoint', label: e.to === 'held' ? `endpoint ${e.from === 'held' ? 'still held' : `${e.from} → held`}: ${e.reason}` : `endpoint ${e.from} → ${e.to}` });
   if (b.endedAt !== null) ev.push({ tMin: (b.endedAt - b.startedAt) / 60000, kind: 'end', label: `batch end${b.endReason ? ` (${b.endReason})` : ''}` });
   return ev.sort((a, b2) => a.tMin - b2.tMin);
 }

@@ -3,6 +3,7 @@ import { useMemo, useState } from 'preact/hooks';
 import type uPlot from 'uplot';
 import type { BatchDetail, ModelEnvelopeView, ResultRecord } from '../../../core/api/rest.ts';
 import { api } from '../api/endpoints.ts';
+import { EndpointHolds } from './endpoint-holds.tsx';
 import { get } from '../api/http.ts';
 import { ApiError } from '../api/problem.ts';
 import type { ComparisonResponse } from './review-data.ts';
@@ -166,7 +167,12 @@ function BatchReview({ id, compare, me }: { id: string; compare: string[]; me: M
           <dt>Judged by</dt>
           <dd>{d.model ? `${d.model.name} v${d.model.version} (${d.model.sha256.slice(0, 12)}…)` : 'no model'}</dd>
           <dt>Endpoint</dt>
-          <dd>{d.endpointState ? <Badge tone={ENDPOINT_WORDS[d.endpointState].tone}>{d.endpointState}</Badge> : '—'} {d.endpointAt && `at ${minutes((d.endpointAt - d.startedAt) / 60000)}`}</dd>
+          <dd>
+            {d.endpointState ? <Badge tone={ENDPOINT_WORDS[d.endpointState].tone} title={ENDPOINT_WORDS[d.endpointState].help}>{d.endpointState}</Badge> : '—'} {d.endpointAt && `at ${minutes((d.endpointAt - d.startedAt) / 60000)}`}
+            {d.endpointState === 'held' && <EndpointHolds holds={[...rs].reverse().find((r) => r.endpoint.state === 'held')?.endpoint.holds} />}
+          </dd>
+          <dt>Duration</dt>
+          <dd data-testid="golden-duration">{goldenDurationText(d, version.data?.referenceEndpoints ?? [])}</dd>
           <dt>Alarms</dt>
           <dd>{d.alarmCount}</dd>
           <dt>Spectra</dt>
@@ -209,6 +215,23 @@ function BatchReview({ id, compare, me }: { id: string; compare: string[]; me: M
       <Advisory />
     </div>
   );
+}
+
+/**
+ * The batch's time to its endpoint (or its run time, without one) against the time the reference
+ * batches took to their known endpoints (the version's referenceEndpoints).
+ */
+export function goldenDurationText(d: { startedAt: number; endedAt: number | null; endpointAt: number | null }, refs: { elapsedMin: number }[]): string {
+  const ran = d.endedAt !== null ? (d.endedAt - d.startedAt) / 60000 : null;
+  const at = d.endpointAt !== null ? (d.endpointAt - d.startedAt) / 60000 : null;
+  const mins = refs.map((r) => r.elapsedMin).filter((x) => Number.isFinite(x));
+  const own = at !== null ? `endpoint at ${minutes(at)}` : `no endpoint${ran !== null ? `; ran ${minutes(ran)}` : ''}`;
+  if (!mins.length) return `${own}; the model knows no reference endpoints to compare with`;
+  const lo = Math.min(...mins);
+  const hi = Math.max(...mins);
+  const x = at ?? ran;
+  const verdict = x === null ? '' : x > hi ? (at !== null ? ' — later than every golden batch' : ' — longer than every golden batch took to its endpoint') : x < lo ? (at !== null ? ' — earlier than every golden batch' : '') : at !== null ? ' — within the golden range' : '';
+  return `${own}; the ${mins.length} golden batches reached theirs at ${minutes(lo)}–${minutes(hi)}${verdict}`;
 }
 
 function Timeline({ events, durationMin }: { events: TimelineEvent[]; durationMin: number }) {

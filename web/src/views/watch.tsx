@@ -9,6 +9,7 @@ import { envCol } from '../live/live-state.ts';
 import { Chart } from '../charts/chart.tsx';
 import { planeOptions, scoreChartOptions, statChartOptions } from '../charts/chart-options.ts';
 import { Advisory, Badge, Empty, ErrorBox, Loading } from '../components/status.tsx';
+import { EndpointHolds } from './endpoint-holds.tsx';
 import { AnalyzerStatusBadge } from '../components/analyzer-status.tsx';
 import { ConnectionNote } from './floor.tsx';
 import { AlarmList } from './alarm-list.tsx';
@@ -358,6 +359,7 @@ export function EndpointPanel({ ep, s }: { ep: EndpointStatus | null; s: LiveSta
           </li>
         ))}
       </ol>
+      {ep.state === 'held' && <EndpointHolds holds={ep.holds} />}
       <dl class="facts">
         <dt>Time to endpoint</dt>
         <dd data-testid="eta">{etaText(ep, stallAlarm(s.alarms.values(), s.batch?.unit ?? '', s.batch?.id ?? null), '') ?? '—'}</dd>
