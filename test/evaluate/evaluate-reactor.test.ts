@@ -66,7 +66,10 @@ describe('evaluation on simulated reactor batches (evaluation targets)', () => {
     expect(f.endpoint_error_median!).toBeGreaterThanOrEqual(0);
     // One batch (good-8: 35 spectra of overrun after its true endpoint) ends before the guarded
     // prediction clears the target: the conservative rule's price, reported as endpoint_missed.
-    expect(f.endpoint_missed).toBeLessThanOrEqual(1);
+    // A second one ends held: its rule is met and confirmed, but a run-time guard (a confirmed alarm
+    // standing, or its prediction outside calibration) stands to its end, so it is never called done
+    // (measured 2 of 30 without a call, none early).
+    expect(f.endpoint_missed).toBeLessThanOrEqual(2);
     // In the property's own units: every call lands with the true conversion at or past 99 %, less
     // at most one interval's rise (~0.007 % near 99 %, from the simulated kinetics).
     expect(f.endpoint_property_at_call!.min).toBeGreaterThanOrEqual(99 - 0.01);
