@@ -153,7 +153,28 @@ function nextBatch(line: Line, seed: number, k: number, processT: number): Simul
 
 let stopping = false;
 
+const HELP = `npm start [-- options]   Tideline demo: server, simulated dryer and reactor, dashboard
+
+Invented data from simulated analyzers. Models are approved automatically as a demo and are not
+validated. Tideline advises; the site's validated control strategy, interlocks and procedures decide.
+
+Options:
+  --speed N          replay speed: dryer ×N, reactor ×4N real time (default 60; at most 10000)
+  --history-days N   the simulated process clocks start N days (dryer) and 4N days (reactor) before
+                     now and replay at that speed until they reach the present, then run in real
+                     time; nothing is dated in the future (default 7; 0 starts at now)
+  --seed N           seed of the simulated batches (default: from the clock)
+  --help             this text
+  and every server option (--port, --host, --data-dir, --web-dir, …; docs/configuration.md)
+
+Time: process times (spectra, batch start and end, alarms) are the simulated analyzers' clocks in
+UTC; acknowledgements, signatures and reports carry the real time (docs/dashboard.md, "Time").`;
+
 async function main() {
+  if (process.argv.slice(2).some((a) => a === '--help' || a === '-h')) {
+    console.log(HELP);
+    return;
+  }
   const { speed, seed, historyDays, flags } = parseArgs(process.argv.slice(2));
   const config = loadConfig({ env: process.env, flags });
   console.log('Tideline demo — invented data from simulated analyzers.');
