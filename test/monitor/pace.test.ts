@@ -112,6 +112,29 @@ describe('pace in the batch monitor', () => {
     }
   });
 
+  it('pace is still judged after done: a batch called done early that then dries slowly is flagged', () => {
+    // A rule that calls done early on purpose (any of: the property target, or a moving-block SD
+    // threshold so wide that it is met from the start; guards off), then the drying rate drops to a
+    // fifth: the pace alarm still comes up, after the endpoint call.
+    const early = buildMonitoringModel(ref.map((b) => ({ id: b.id, axis: b.axis, times: b.times, spectra: b.spectra, property: b.truth.property.values })), {
+      ...settings, endpoint: { criteria: [{ kind: 'property' }, { kind: 'mbsd', block: 5, threshold: 1e6 }], combine: 'any', confirm: 2, nearingMin: 10, hold: { alarms: false, extrapolation: false } },
+    });
+    const slow = simulateBatch('dryer', { seed: 90_001, intervalS: 30, faults: [{ type: 'slow-drying', onsetS: 900, params: { rateFactor: 0.2 } }] });
+    const mon = createBatchMonitor(early, slow.times[0]!);
+    let doneAt = -1;
+    let paceAt = -1;
+    let judgedAfterDone = 0;
+    slow.spectra.forEach((s, i) => {
+      const r = mon.push(i, slow.times[i]!, s);
+      if (doneAt < 0 && r.endpoint.state === 'done') doneAt = i;
+      if (doneAt >= 0 && r.pace) judgedAfterDone++;
+      if (paceAt < 0 && r.conditionChanges.some((c) => c.key === 'pace' && c.active)) paceAt = i;
+    });
+    expect(doneAt).toBeGreaterThan(0);
+    expect(judgedAfterDone).toBeGreaterThan(0);
+    expect(paceAt).toBeGreaterThan(doneAt);
+  });
+
   it('models without alarms.pace have no pace condition (an approved model keeps its meaning)', () => {
     const m = buildMonitoringModel(ref.map((b) => ({ id: b.id, axis: b.axis, times: b.times, spectra: b.spectra, property: b.truth.property.values })), { ...settings, alarms: { ...settings.alarms, pace: undefined } });
     const r = createBatchMonitor(m, ref[0]!.times[0]!).push(0, ref[0]!.times[0]!, ref[0]!.spectra[0]!);
