@@ -4,6 +4,14 @@
  * the evaluation (core/evaluate/evaluate-model.ts defines them). `-- --json FILE` also writes them as JSON.
  * Options: --kind dryer|reactor, --reference N, --good N, --per-fault N, --seed S, --components A|auto.
  *
+ * Beside these, the site-style set (simulators/site-set.ts: another instrument and axis, elapsed
+ * seconds, loss-on-drying moisture on a few spectra per batch, operators stopping late) is taken
+ * through the public paths by scripts/site-check.ts — CLI import, REST build/approve/deploy, /ingest,
+ * REST read-back on a server started as a child process — and reported as the site_* keys:
+ * site_endpoint_early_max, site_endpoint_error_median (minutes; good batches),
+ * site_done_while_alarm (batches called done while a confirmed T²/Q condition stood), and the others
+ * docs/evaluation.md lists. Options: --no-site, --site-reference N, --site-good N, --site-per-fault N.
+ *
  * Tideline advises: the site's validated control strategy, interlocks and procedures decide what an
  * alarm or endpoint signal may do.
  */
@@ -14,6 +22,10 @@ import { buildMonitoringModel, type MonitoringModel, type ReferenceBatch } from 
 import { defaultBuildSettings } from '../core/model/default-settings.ts';
 import type { BuildSettings } from '../core/model/build-settings.ts';
 import { evaluateModel, evaluationMarkdown, type EvalBatch, type EvaluationFigures } from '../core/evaluate/evaluate-model.ts';
+import { mkdtempSync, rmSync } from 'node:fs';
+import { tmpdir } from 'node:os';
+import { join } from 'node:path';
+import { prepareSiteSet, runSiteCheck, type SiteCheckResult, type SiteFigures } from './site-check.ts';
 
 export interface EvaluationPlan {
   kind: ProcessKind;
@@ -77,8 +89,43 @@ export function runEvaluation(plan: EvaluationPlan): { model: MonitoringModel; f
   return { model, figures: evaluateModel(model, judged), buildMs };
 }
 
-function parseArgs(argv: string[]): { plan: EvaluationPlan; json: string | null } {
+export interface SitePlan {
+  reference: number;
+  good: number;
+  perFault: number;
+  seed: number;
+}
+
+/** The site-style figures as a Markdown table, with the goals the end-to-end test asserts. */
+export function siteMarkdown(f: SiteFigures, r: Pick<SiteCheckResult, 'approval' | 'detail' | 'timings'>): string {
+  const n = (v: number | null, d = 1) => (v === null ? '—' : v.toFixed(d));
+  const prop = r.detail.property as { components: number; rmsecv: number[]; bias: number[]; nLabValues: number; nBatchesWithLab: number } | null;
+  const check = r.detail.endpointCheck as { early: number; onTime: number; late: number; notReached: number; medianIntervals: number | null } | null;
+  return [
+    `Site-style set (simulators/site-set.ts) through the public paths: ${f.site_reference_batches} reference batches, ${f.site_test_batches} test batches, a spectrum every ${f.site_interval_s} s.`,
+    '',
+    '| figure | value | goal |',
+    '| --- | --- | --- |',
+    `| site_endpoint_early_max (min; good batches; ≤ 0: never early) | ${n(f.site_endpoint_early_max, 2)} (${n(f.site_endpoint_early_max_intervals, 0)} intervals) | ≤ 1 interval |`,
+    `| site_endpoint_error_median (min; good batches; > 0: late) | ${n(f.site_endpoint_error_median, 2)} (${n(f.site_endpoint_error_median_intervals, 1)} intervals) | reported |`,
+    `| site_endpoint_error_abs_max_intervals (every done without a hold) | ${n(f.site_endpoint_error_abs_max_intervals, 0)} | reported (issue target ≤ 5) |`,
+    `| site_endpoint_vs_rule_abs_max_intervals (from the rule's threshold crossing) | ${n(f.site_endpoint_vs_rule_abs_max_intervals, 0)} | ≤ 5 |`,
+    `| site_done_while_alarm (batches) | ${f.site_done_while_alarm} | 0 |`,
+    `| site_done_without_endpoint (batches) | ${f.site_done_without_endpoint} | 0 |`,
+    `| site_endpoint_missed (good batches never done) | ${f.site_endpoint_missed} | 0 |`,
+    `| site_pace_detected (slow drying flagged by pace) | ${f.site_pace_detected} of ${f.site_pace_batches} | all |`,
+    `| site_pace_lost_at_done (slow drying done, pace flag gone) | ${f.site_pace_lost_at_done} | 0 |`,
+    `| site_pace_false (good batches with a pace alarm) | ${f.site_pace_false} | reported |`,
+    `| site_held_batches (endpoint held before done) | ${f.site_held_batches} | reported |`,
+    `| true moisture at the call (good; median, min–max, % w/w) | ${f.site_moisture_at_done ? `${n(f.site_moisture_at_done.median, 3)} (${n(f.site_moisture_at_done.min, 3)}–${n(f.site_moisture_at_done.max, 3)})` : '—'} | reported |`,
+    '',
+    `Property model: ${prop ? `${prop.components} LV, RMSECV ${prop.rmsecv[prop.components - 1]!.toPrecision(3)} % w/w, bias ${prop.bias[prop.components - 1]!.toPrecision(2)} % w/w, from ${prop.nLabValues} lab values in ${prop.nBatchesWithLab} batches` : 'none'}. Endpoint check at build (leave one batch out): ${check ? `${check.early} early, ${check.onTime} on time, ${check.late} late, ${check.notReached} not reached, median ${check.medianIntervals ?? '—'} intervals` : '—'}. Approval: ${r.approval.firstStatus === 200 ? 'signed without an override' : `refused first (${r.approval.firstStatus}: ${r.approval.firstDetail}); signed with an early-endpoint override`}. Stages (ms): ${JSON.stringify(r.timings)}.`,
+  ].join('\n');
+}
+
+function parseArgs(argv: string[]): { plan: EvaluationPlan; json: string | null; site: SitePlan | null } {
   const plan: EvaluationPlan = { kind: 'dryer', reference: 30, good: 30, perFault: 8, seed: 2026 };
+  let site: SitePlan | null = { reference: 16, good: 20, perFault: 2, seed: 2026 };
   let json: string | null = null;
   for (let i = 0; i < argv.length; i++) {
     const a = argv[i];
@@ -102,12 +149,19 @@ function parseArgs(argv: string[]): { plan: EvaluationPlan; json: string | null 
     else if (a === '--per-fault') plan.perFault = int(a);
     else if (a === '--seed') plan.seed = int(a);
     else if (a === '--components') plan.settings = { ...(plan.settings ?? {}), components: v === 'auto' ? (i++, 'auto') : int(a) };
-    else throw new Error(`unknown option "${a}" (known: --json FILE, --kind, --reference, --good, --per-fault, --seed, --components)`);
+    else if (a === '--no-site') site = null;
+    else if (a === '--site-reference' || a === '--site-good' || a === '--site-per-fault') {
+      if (!site) throw new Error(`${a} does not go with --no-site`);
+      const k = a === '--site-reference' ? 'reference' : a === '--site-good' ? 'good' : 'perFault';
+      site[k] = int(a);
+      if (k === 'reference' && site.reference < 2) throw new Error('--site-reference needs at least 2 batches');
+    } else throw new Error(`unknown option "${a}" (known: --json FILE, --kind, --reference, --good, --per-fault, --seed, --components, --no-site, --site-reference, --site-good, --site-per-fault)`);
   }
-  return { plan, json };
+  if (site) site.seed = plan.seed;
+  return { plan, json, site };
 }
 
-function main(): void {
+async function main(): Promise<void> {
   let args;
   try {
     args = parseArgs(process.argv.slice(2));
@@ -115,7 +169,7 @@ function main(): void {
     console.error(`evaluate: ${(e as Error).message}`);
     process.exit(2);
   }
-  const { plan, json } = args;
+  const { plan, json, site } = args;
   const { model, figures, buildMs } = runEvaluation(plan);
   console.log(evaluationMarkdown(figures));
   console.log(
@@ -127,11 +181,34 @@ function main(): void {
       `endpoint check at build (leave one batch out, against the reference batches' known endpoints): ${check.early} early (at most ${check.earlyMaxIntervals} intervals), ${check.onTime} on time, ${check.late} late, ${check.notReached} not reached; median ${check.medianIntervals ?? '—'} intervals.`,
     );
   }
+  let siteOut: Record<string, unknown> = {};
+  if (site) {
+    const dir = mkdtempSync(join(tmpdir(), 'tideline-evaluate-site-'));
+    try {
+      const prepared = prepareSiteSet(dir, { seed: site.seed, reference: site.reference, good: site.good, perFault: site.perFault });
+      const r = await runSiteCheck({ dir, prepared, log: (l) => console.error(`site: ${l}`) });
+      console.log('\n' + siteMarkdown(r.figures, r));
+      siteOut = { ...r.figures, site: { plan: site, version: r.version, approval: r.approval, timings: r.timings, outcomes: r.outcomes } };
+    } catch (e) {
+      // The site run goes through a real server and the public paths; when a step is refused the
+      // figures cannot be measured. Say which step and why, and fail the run.
+      console.error(`\nsite-style set: the run stopped: ${(e as Error).message}`);
+      siteOut = { site_error: (e as Error).message };
+      process.exitCode = 1;
+    } finally {
+      rmSync(dir, { recursive: true, force: true });
+    }
+  }
   if (json) {
     const endpointCheck = check ? { early: check.early, earlyWithinBracket: check.earlyWithinBracket, earlyMaxIntervals: check.earlyMaxIntervals, onTime: check.onTime, late: check.late, notReached: check.notReached, medianIntervals: check.medianIntervals } : null;
-    writeFileSync(json, JSON.stringify({ plan, model: { id: model.id, components: model.pca.nComponents, sha256: model.sha256, plsComponents: model.pls?.components ?? null, endpointCheck }, ...figures }, null, 2));
+    writeFileSync(json, JSON.stringify({ plan, model: { id: model.id, components: model.pca.nComponents, sha256: model.sha256, plsComponents: model.pls?.components ?? null, endpointCheck }, ...figures, ...siteOut }, null, 2));
     console.log(`figures written to ${json}`);
   }
 }
 
-if (process.argv[1] && import.meta.url === pathToFileURL(process.argv[1]).href) main();
+if (process.argv[1] && import.meta.url === pathToFileURL(process.argv[1]).href) {
+  main().catch((e) => {
+    console.error(`evaluate: ${(e as Error).stack ?? e}`);
+    process.exit(1);
+  });
+}

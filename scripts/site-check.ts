@@ -10,7 +10,8 @@
  *    reference file (lab moisture column and all).
  * 5. REST: sign in, build a model with a property model and an endpoint rule, read the version,
  *    approve it with an electronic signature, deploy it to the unit.
- * 6. /ingest: the test batches are streamed by simulators/stream-client.ts with their own times.
+ * 6. /ingest: the test batches are read from their files (start from the batch record) and
+ *    streamed with their own times by a client written from docs/protocol.md (DocsIngestClient).
  * 7. REST: endpoint events, results and alarms of every test batch are read back and judged
  *    against the truth files.
  *
@@ -23,8 +24,8 @@
 import { spawn, spawnSync, type ChildProcess } from 'node:child_process';
 import { mkdirSync, readFileSync, writeFileSync } from 'node:fs';
 import { join } from 'node:path';
-import { simulateSiteSet, writeSiteSet, SITE_DEFAULTS, type SiteBatch, type SiteSet, type SiteSetOptions } from '../simulators/site-set.ts';
-import { AnalyzerClient } from '../simulators/stream-client.ts';
+import WebSocket from 'ws';
+import { simulateSiteSet, writeSiteSet, SITE_DEFAULTS, type SiteSet, type SiteSetOptions } from '../simulators/site-set.ts';
 
 const ROOT = join(import.meta.dirname, '..');
 const CLI = join(ROOT, 'server', 'cli.ts');
@@ -145,6 +146,138 @@ export class Rest {
   }
 }
 
+// ---- an analyzer client written from docs/protocol.md ---------------------------------------------
+
+/**
+ * The site's own streaming code, written from docs/protocol.md alone (no Tideline module): one
+ * WebSocket to /ingest with the analyzer's token at the upgrade, `hello` → `welcome`, then the
+ * log — `batch-start`, spectra as binary frames laid out as the document's table says, `batch-end`
+ * — with seqs counting up from `welcome.resumeAfter + 1`, at most `window` entries unacknowledged.
+ * Any `error` frame fails the stream: a site's own clean data must be taken whole.
+ */
+export class DocsIngestClient {
+  private ws: WebSocket | null = null;
+  private seq = 0;
+  private acked = -1;
+  private failure: Error | null = null;
+  private wake: (() => void) | null = null;
+
+  constructor(private readonly o: { url: string; token: string; analyzer: string; axis: number[]; window?: number }) {}
+
+  async connect(): Promise<void> {
+    const ws = new WebSocket(this.o.url, { headers: { authorization: `Bearer ${this.o.token}` } });
+    this.ws = ws;
+    const boot = 1_700_000_000_000;
+    const welcome = new Promise<number>((resolve, reject) => {
+      ws.once('open', () => ws.send(JSON.stringify({ type: 'hello', protocol: 1, analyzer: this.o.analyzer, boot, axis: this.o.axis, instrument: 'site NIR analyzer' })));
+      ws.once('unexpected-response', (_req, res) => reject(new Error(`/ingest refused the upgrade: HTTP ${res.statusCode}`)));
+      ws.on('error', (e) => {
+        this.fail(e);
+        reject(e);
+      });
+      ws.on('close', (code, reason) => this.fail(new Error(`/ingest closed the connection: ${code} ${reason}`)));
+      ws.on('message', (data, isBinary) => {
+        if (isBinary) return this.fail(new Error('the server sent a binary frame; docs/protocol.md lists none'));
+        const m = JSON.parse(String(data)) as { type: string; resumeAfter?: number; seq?: number; code?: string; message?: string };
+        if (m.type === 'welcome') resolve(m.resumeAfter!);
+        else if (m.type === 'ack') {
+          this.acked = Math.max(this.acked, m.seq!);
+          this.poke();
+        } else if (m.type === 'error') {
+          const e = new Error(`/ingest error ${m.code}${m.seq === undefined ? '' : ` at seq ${m.seq}`}: ${m.message}`);
+          this.fail(e);
+          reject(e);
+        }
+      });
+    });
+    this.seq = (await welcome) + 1;
+    this.acked = this.seq - 1;
+  }
+
+  private fail(e: Error): void {
+    this.failure ??= e;
+    this.poke();
+  }
+
+  private poke(): void {
+    const w = this.wake;
+    this.wake = null;
+    w?.();
+  }
+
+  /** Wait until at most `inFlight` entries are unacknowledged. */
+  private async drain(inFlight: number): Promise<void> {
+    while (this.seq - 1 - this.acked > inFlight) {
+      if (this.failure) throw this.failure;
+      await new Promise<void>((r) => (this.wake = r));
+    }
+    if (this.failure) throw this.failure;
+  }
+
+  private async send(data: string | Buffer): Promise<void> {
+    await this.drain((this.o.window ?? 128) - 1);
+    this.ws!.send(data);
+    this.seq++;
+  }
+
+  /** The binary spectrum frame of docs/protocol.md: a 32-byte little-endian header, then float32 values. */
+  static frame(seq: number, t: number, values: ArrayLike<number>): Buffer {
+    const buf = Buffer.alloc(32 + 4 * values.length);
+    const v = new DataView(buf.buffer, buf.byteOffset, buf.byteLength);
+    buf.write('TDL1', 0, 'ascii');
+    v.setUint16(4, 1, true);
+    v.setUint16(6, 0, true);
+    v.setFloat64(8, seq, true);
+    v.setFloat64(16, t, true);
+    v.setUint32(24, values.length, true);
+    v.setUint32(28, 0, true);
+    for (let i = 0; i < values.length; i++) v.setFloat32(32 + 4 * i, values[i]!, true);
+    return buf;
+  }
+
+  /** One batch: start, spectra (t: ms epoch), end; resolves when the server has acknowledged all of it. */
+  async sendBatch(b: { unit: string; batch: string; product: string; times: number[]; spectra: ArrayLike<number>[] }): Promise<void> {
+    if (!this.ws) throw new Error('connect() first');
+    await this.send(JSON.stringify({ type: 'batch-start', seq: this.seq, t: b.times[0], unit: b.unit, batch: b.batch, product: b.product }));
+    for (let i = 0; i < b.times.length; i++) await this.send(DocsIngestClient.frame(this.seq, b.times[i]!, b.spectra[i]!));
+    await this.send(JSON.stringify({ type: 'batch-end', seq: this.seq, t: b.times[b.times.length - 1], batch: b.batch, reason: 'stopped by the operator' }));
+    await this.drain(0);
+  }
+
+  close(): Promise<void> {
+    const ws = this.ws;
+    if (!ws || ws.readyState === WebSocket.CLOSED) return Promise.resolve();
+    this.failure ??= new Error('closed');
+    return new Promise((r) => {
+      ws.once('close', () => r());
+      ws.close(1000);
+    });
+  }
+}
+
+/**
+ * A site spectra file as the site's streaming code reads it: `batch,time_s,<property>,<nm>…`;
+ * the times are the batch start (from the batch record) plus the elapsed seconds.
+ */
+export function readSiteFile(text: string, startMs: number): { batch: string; axis: number[]; times: number[]; spectra: Float64Array[] } {
+  const lines = text.trimEnd().split('\n');
+  const head = lines[0]!.split(',');
+  if (head[0] !== 'batch' || head[1] !== 'time_s') throw new Error(`not a site spectra file: header starts "${head.slice(0, 3).join(',')}"`);
+  const axis = head.slice(3).map(Number);
+  const times: number[] = [];
+  const spectra: Float64Array[] = [];
+  let batch = '';
+  for (let k = 1; k < lines.length; k++) {
+    const c = lines[k]!.split(',');
+    batch = c[0]!;
+    times.push(startMs + Math.round(Number(c[1]) * 1000));
+    const s = new Float64Array(axis.length);
+    for (let j = 0; j < axis.length; j++) s[j] = Number(c[j + 3]);
+    spectra.push(s);
+  }
+  return { batch, axis, times, spectra };
+}
+
 // ---- the site's choices ------------------------------------------------------------------------
 
 export const SITE_UNIT = SITE_DEFAULTS.unit;
@@ -214,7 +347,14 @@ export interface SiteBatchOutcome {
   doneIndex: number | null;
   /** doneIndex − true endpoint index, in spectrum intervals (null when either is missing). */
   doneError: number | null;
-  /** The same in minutes. */
+  /**
+   * First spectrum whose true moisture is at or below the approved rule's resolved threshold
+   * (target − margin), and done − that index in intervals: how far the call lies from where the
+   * rule, given the true moisture, says it should be.
+   */
+  ruleIndex: number | null;
+  doneVsRule: number | null;
+  /** The same in minutes of batch time (scan times of the two spectra). */
   doneErrorMin: number | null;
   /** True moisture at the call, % w/w. */
   moistureAtDone: number | null;
@@ -230,11 +370,32 @@ export interface SiteBatchOutcome {
   firstT2QIndex: number | null;
   /** Alarm keys raised during the batch (REST /api/alarms?batch=…). */
   alarmKeys: string[];
+  /** T² at the spectrum where 'done' was called beyond the limit its alarm uses (null: never done). */
+  t2OverLimitAtDone: boolean | null;
+  /** The pace condition stands at or after the spectrum where 'done' was called (null: never done). */
+  paceAtOrAfterDone: boolean | null;
+  /** Every hold reason code the endpoint gave during the batch. */
+  holdCodes: string[];
 }
 
-/** Read one streamed batch back through REST and judge it against its truth. */
-export async function judgeBatch(api: Rest, sb: SiteBatch, intervalS: number): Promise<SiteBatchOutcome> {
-  const b = sb.batch;
+/** What a truth file (truth/<batch>.truth.json, simulators/site-set.ts) says of a batch. */
+export interface SiteTruth {
+  id: string;
+  group: string;
+  /** Every scan time, ms epoch (drop-outs included: indices are into this list). */
+  times: number[];
+  moisture: { values: number[]; target: number };
+  endpoint: { index: number } | null;
+  faults: { type: string; onsetIndex: number }[];
+}
+
+export function readTruth(setDir: string, batch: string): SiteTruth {
+  return JSON.parse(readFileSync(join(setDir, 'truth', `${batch}.truth.json`), 'utf8')) as SiteTruth;
+}
+
+/** Read one streamed batch back through REST and judge it against its truth file. */
+export async function judgeBatch(api: Rest, truth: SiteTruth, ruleThreshold: number | null = null): Promise<SiteBatchOutcome> {
+  const b = { id: truth.id, times: truth.times };
   const indexOfT = new Map(b.times.map((t, i) => [t, i]));
   const idx = (t: number) => {
     const i = indexOfT.get(t);
@@ -242,7 +403,15 @@ export async function judgeBatch(api: Rest, sb: SiteBatch, intervalS: number): P
     return i;
   };
   const events = (await api.ok<{ items: EndpointEvent[] }>(`/api/batches/${encodeURIComponent(b.id)}/endpoint-events`)).items;
-  const results: { t: number; activeConditions: string[]; endpoint: { state: string } }[] = [];
+  const results: {
+    t: number;
+    t2: number;
+    limits: { t2: number };
+    localLimits: { t2: number } | null;
+    alarmLimits?: { t2: number };
+    activeConditions: string[];
+    endpoint: { state: string; holds?: { code: string }[] };
+  }[] = [];
   for (let from = 0; ; ) {
     const page = await api.ok<{ items: typeof results; nextSeq: number | null }>(`/api/batches/${encodeURIComponent(b.id)}/results?fromSeq=${from}&limit=5000`);
     results.push(...page.items);
@@ -258,8 +427,10 @@ export async function judgeBatch(api: Rest, sb: SiteBatch, intervalS: number): P
   const byIndex = new Map(results.map((r) => [idx(r.t), r]));
   const doneEvent = events.find((e) => e.to === 'done');
   const doneIndex = doneEvent ? idx(doneEvent.t) : null;
-  const truth = b.truth.endpointIndex;
-  const doneError = doneIndex !== null && truth !== null ? doneIndex - truth : null;
+  const trueEp = truth.endpoint?.index ?? null;
+  const ruleIdx = ruleThreshold === null ? -1 : truth.moisture.values.findIndex((v) => v <= ruleThreshold);
+  const ruleIndex = ruleIdx < 0 ? null : ruleIdx;
+  const doneError = doneIndex !== null && trueEp !== null ? doneIndex - trueEp : null;
   const atDone = doneIndex !== null ? byIndex.get(doneIndex) : undefined;
   const firstWith = (keys: string[]) => {
     for (const r of results) if (r.activeConditions.some((k) => keys.includes(k))) return idx(r.t);
@@ -267,42 +438,59 @@ export async function judgeBatch(api: Rest, sb: SiteBatch, intervalS: number): P
   };
   return {
     id: b.id,
-    group: sb.group,
+    group: truth.group,
     spectra: results.length,
-    trueEndpointIndex: truth,
-    faultOnsetIndex: b.truth.faults[0]?.onsetIndex ?? null,
+    trueEndpointIndex: trueEp,
+    faultOnsetIndex: truth.faults[0]?.onsetIndex ?? null,
     doneIndex,
     doneError,
-    doneErrorMin: doneError === null ? null : (doneError * intervalS) / 60,
-    moistureAtDone: doneIndex === null ? null : b.truth.property.values[doneIndex]!,
+    ruleIndex,
+    doneVsRule: doneIndex !== null && ruleIndex !== null ? doneIndex - ruleIndex : null,
+    doneErrorMin: doneIndex === null || trueEp === null ? null : (b.times[doneIndex]! - b.times[trueEp]!) / 60_000,
+    moistureAtDone: doneIndex === null ? null : truth.moisture.values[doneIndex]!,
     held: events.filter((e) => e.to === 'held').map((e) => ({ index: idx(e.t), reason: e.reason })),
     alarmsAtDone: atDone ? atDone.activeConditions.filter((k) => k === 't2' || k === 'q') : [],
     states: events.map((e) => e.to),
     paceIndex: firstWith(['pace']),
     firstT2QIndex: firstWith(['t2', 'q']),
     alarmKeys: [...new Set(alarms.map((a) => a.key))].sort(),
+    t2OverLimitAtDone: atDone ? atDone.t2 > (atDone.alarmLimits ?? atDone.localLimits ?? atDone.limits).t2 : null,
+    paceAtOrAfterDone: doneIndex === null ? null : results.some((r) => idx(r.t) >= doneIndex && r.activeConditions.includes('pace')),
+    holdCodes: [...new Set(results.flatMap((r) => (r.endpoint.holds ?? []).map((h) => h.code)))].sort(),
   };
 }
 
 // ---- figures -------------------------------------------------------------------------------------
 
 export interface SiteFigures {
-  /** Largest (true − done) over good test batches, spectrum intervals (≤ 0: never early). */
+  /**
+   * Largest (true − done) over the good test batches, in minutes of batch time (≤ 0: never early),
+   * and the same in spectrum intervals.
+   */
   site_endpoint_early_max: number | null;
-  /** Median (done − true) over good test batches, intervals; and the same in minutes. */
+  site_endpoint_early_max_intervals: number | null;
+  /** Median (done − true) over the good test batches, in minutes (> 0: late); and in intervals. */
   site_endpoint_error_median: number | null;
-  site_endpoint_error_median_min: number | null;
+  site_endpoint_error_median_intervals: number | null;
   /** Largest |done − true| over every batch called done without a hold, intervals. */
-  site_endpoint_error_abs_max: number | null;
-  /** Batches called done while a confirmed T² or Q condition stood. */
+  site_endpoint_error_abs_max_intervals: number | null;
+  /**
+   * Largest |done − rule crossing| over every batch called done without a hold first, intervals:
+   * the rule crossing is the first spectrum whose true moisture is at or below the approved
+   * rule's resolved threshold (target − margin).
+   */
+  site_endpoint_vs_rule_abs_max_intervals: number | null;
+  /** Batches (any group) called done while a confirmed T² or Q condition stood. */
   site_done_while_alarm: number;
   /** Good test batches never called done. */
   site_endpoint_missed: number;
   /** Batches called done although their true endpoint was never reached. */
   site_done_without_endpoint: number;
-  /** Slow-drying batches flagged by pace / slow-drying batches. */
+  /** Slow-drying batches flagged by pace at or after the fault's onset / slow-drying batches. */
   site_pace_detected: number;
   site_pace_batches: number;
+  /** Slow-drying batches called done whose pace flag did not stand at or after the call. */
+  site_pace_lost_at_done: number;
   /** Good test batches with a pace alarm. */
   site_pace_false: number;
   /** True moisture at the calls on good batches, % w/w. */
@@ -328,16 +516,20 @@ export function siteFigures(outcomes: SiteBatchOutcome[], intervalS: number, ref
   const atCall = good.flatMap((o) => (o.moistureAtDone === null ? [] : [o.moistureAtDone]));
   const slow = outcomes.filter((o) => o.group === 'slow-drying');
   const medianErr = median(goodErr);
+  const goodMin = good.flatMap((o) => (o.doneErrorMin === null ? [] : [o.doneErrorMin]));
   return {
-    site_endpoint_early_max: goodErr.length ? Math.max(...goodErr.map((e) => -e)) : null,
-    site_endpoint_error_median: medianErr,
-    site_endpoint_error_median_min: medianErr === null ? null : (medianErr * intervalS) / 60,
-    site_endpoint_error_abs_max: unheld.length ? Math.max(...unheld.map((o) => Math.abs(o.doneError!))) : null,
+    site_endpoint_early_max: goodMin.length ? Math.max(...goodMin.map((e) => -e)) : null,
+    site_endpoint_early_max_intervals: goodErr.length ? Math.max(...goodErr.map((e) => -e)) : null,
+    site_endpoint_error_median: median(goodMin),
+    site_endpoint_error_median_intervals: medianErr,
+    site_endpoint_error_abs_max_intervals: unheld.length ? Math.max(...unheld.map((o) => Math.abs(o.doneError!))) : null,
+    site_endpoint_vs_rule_abs_max_intervals: unheld.some((o) => o.doneVsRule !== null) ? Math.max(...unheld.flatMap((o) => (o.doneVsRule === null ? [] : [Math.abs(o.doneVsRule)]))) : null,
     site_done_while_alarm: outcomes.filter((o) => o.alarmsAtDone.length > 0).length,
     site_endpoint_missed: good.filter((o) => o.trueEndpointIndex !== null && o.doneIndex === null).length,
     site_done_without_endpoint: outcomes.filter((o) => o.trueEndpointIndex === null && o.doneIndex !== null).length,
     site_pace_detected: slow.filter((o) => o.paceIndex !== null && (o.faultOnsetIndex === null || o.paceIndex >= o.faultOnsetIndex)).length,
     site_pace_batches: slow.length,
+    site_pace_lost_at_done: slow.filter((o) => o.paceAtOrAfterDone === false).length,
     site_pace_false: good.filter((o) => o.paceIndex !== null).length,
     site_moisture_at_done: atCall.length ? { median: median(atCall)!, min: Math.min(...atCall), max: Math.max(...atCall) } : null,
     site_held_batches: outcomes.filter((o) => o.held.length > 0).length,
@@ -503,18 +695,31 @@ export async function runSiteCheck(opts: SiteCheckOptions): Promise<SiteCheckRes
     if (deploy.status !== 201) throw new Error(`POST /api/deployments answered ${deploy.status}: ${JSON.stringify(deploy.body)}`);
     lap('approve-deploy');
 
-    const client = new AnalyzerClient({ url: server.url.replace(/^http/, 'ws') + '/ingest', token, analyzer: SITE_ANALYZER, axis: set.axis, instrument: 'site NIR analyzer (site-style set)' });
+    // The test batches as the analyzer would send them: read from the site's files (spectra file,
+    // batch start from the batch record), streamed by the client written from docs/protocol.md.
+    const record = batchRecord(setDir);
+    const client = new DocsIngestClient({ url: server.url.replace(/^http/, 'ws') + '/ingest', token, analyzer: SITE_ANALYZER, axis: set.axis });
     try {
-      await client.start();
-      for (const sb of set.test) await client.sendBatch(sb.batch, { speed: 0, unit: SITE_UNIT, timestamps: 'original' });
+      await client.connect();
+      for (const f of files.test) {
+        const id = f.replace(/^.*[\\/]/, '').replace(/\.csv$/, '');
+        const start = record.get(id)?.start;
+        if (!start) throw new Error(`batch ${id} is not in the batch record`);
+        const b = readSiteFile(readFileSync(f, 'utf8'), Date.parse(start));
+        if (b.axis.join() !== set.axis.join()) throw new Error(`${f}: the wavelength header is not the analyzer's axis`);
+        await client.sendBatch({ unit: SITE_UNIT, batch: b.batch, product: SITE_PRODUCT, times: b.times, spectra: b.spectra });
+      }
     } finally {
       await client.close();
     }
     lap('stream');
-    log(`streamed ${set.test.length} test batches through /ingest`);
+    log(`streamed ${files.test.length} test batches through /ingest`);
 
     const outcomes: SiteBatchOutcome[] = [];
-    for (const sb of set.test) outcomes.push(await judgeBatch(api, sb, set.intervalS));
+    // The approved rule's resolved moisture threshold (target − margin), as the version states it.
+    const crit = (detail.endpoint?.criteria ?? []).find((c: { kind: string }) => c.kind === 'property') as { threshold: number } | undefined;
+    const threshold = crit && detail.property?.direction === 'below' ? crit.threshold : null;
+    for (const sb of set.test) outcomes.push(await judgeBatch(api, readTruth(setDir, sb.batch.id), threshold));
     lap('read-back');
     return { set, version, detail, approval, outcomes, figures: siteFigures(outcomes, set.intervalS, set.reference.length), timings, serverLog: server.log() };
   } finally {
