@@ -3,9 +3,13 @@
  *
  * 1. Starts the server (port from config/env/flags, default 8470, or a free port if that is taken;
  *    SQLite in ./data).
- * 2. On first start: simulates reference batches for a fluid-bed dryer and a batch reactor, streams
- *    them into the server over the public ingest protocol, builds a monitoring model for each,
- *    approves it (marked as a demo approval, not a validated model) and deploys it.
+ * 2. On first start: simulates reference batches for a fluid-bed dryer and a batch reactor and
+ *    builds each unit's first model the way a site would: the batches are streamed into the server
+ *    over the public ingest protocol, lab results for a few spectra per batch (LOD moisture for the
+ *    dryer, HPLC conversion for the reactor; simulators/lab-samples.ts) are attached through the
+ *    lab-values REST API, and the model is built by the same service the build route uses, from
+ *    those lab values — not from the simulator's truth on every spectrum. It is approved (marked as
+ *    a demo approval, not a validated model) and deployed.
  * 3. Streams accelerated dryer and reactor batches from simulated analyzers, now and then a faulty
  *    one, until Ctrl-C; serves the dashboard and prints its URL and the demo login.
  *
@@ -27,12 +31,13 @@ import { randomUUID } from 'node:crypto';
 import { ConfigError, loadConfig, type ServerConfig } from '../server/config.ts';
 import { startServer, type TidelineServer } from '../server/app.ts';
 import { ensureDemoAdministrator } from '../server/auth/index.ts';
-import { buildRunnerOf, registerModelFile } from '../server/models/model-service.ts';
-import { packReferenceBatch } from '../server/models/build-runner.ts';
+import { buildFromStored } from '../server/models/model-service.ts';
 import { parseMonitoringModel } from '../core/model/monitoring-model.ts';
 import { earlyBatchesText } from '../core/model/endpoint-check.ts';
 import { recordAudit } from '../server/api/audit-helper.ts';
 import { simulateBatch, simulateReferenceSet, FAULT_INFO, FAULT_TYPES, type FaultSpec, type SimulatedBatch } from '../simulators/batch.ts';
+import { drawLabSamples, LAB_METHODS } from '../simulators/lab-samples.ts';
+import { deriveSeed, Rng } from '../simulators/prng.ts';
 import { AnalyzerClient } from '../simulators/stream-client.ts';
 import { defaultSettings } from './evaluate.ts';
 
@@ -88,7 +93,43 @@ async function start(config: ServerConfig): Promise<TidelineServer> {
   }
 }
 
-async function setUpLine(s: TidelineServer, line: Line, url: string, log: (l: string) => void, processClockStart: number): Promise<AnalyzerClient> {
+/** A session on the demo's own REST API (cookie and CSRF token, docs/security.md). */
+class DemoSession {
+  private cookie = '';
+  private csrf = '';
+  constructor(private readonly base: string) {}
+  async login(name: string, password: string): Promise<void> {
+    const r = await fetch(`${this.base}/api/auth/login`, { method: 'POST', headers: { 'content-type': 'application/json' }, body: JSON.stringify({ name, password }) });
+    if (!r.ok) throw new Error(`demo: login as ${name} failed (HTTP ${r.status}): ${await r.text()}`);
+    this.csrf = ((await r.json()) as { csrfToken: string }).csrfToken;
+    this.cookie = r.headers.getSetCookie().map((c) => c.split(';')[0]!).join('; ');
+  }
+  async post(path: string, body: unknown): Promise<{ status: number; text: string }> {
+    const r = await fetch(`${this.base}${path}`, { method: 'POST', headers: { cookie: this.cookie, 'x-csrf-token': this.csrf, 'content-type': 'application/json' }, body: JSON.stringify(body) });
+    return { status: r.status, text: await r.text() };
+  }
+}
+
+/**
+ * Attach the lab results of each reference batch through POST /api/batches/:batch/lab-values, as a
+ * lab would enter them after the batch. A result already there (a restart during the first start)
+ * is kept: lab values are never overwritten.
+ */
+async function attachLabValues(api: DemoSession, line: Line, refs: SimulatedBatch[]): Promise<number> {
+  const m = LAB_METHODS[line.kind];
+  let n = 0;
+  for (const b of refs) {
+    for (const l of drawLabSamples(b, new Rng(deriveSeed(line.refSeed, `lab:${b.id}`)))) {
+      const r = await api.post(`/api/batches/${encodeURIComponent(b.id)}/lab-values`, { property: m.property, value: l.value, unit: m.unit, sampleT: l.sampleT, method: m.method });
+      if (r.status === 409) continue;
+      if (r.status !== 201 && r.status !== 200) throw new Error(`demo: lab value for ${b.id} refused (HTTP ${r.status}): ${r.text}`);
+      n++;
+    }
+  }
+  return n;
+}
+
+async function setUpLine(s: TidelineServer, line: Line, url: string, api: DemoSession, log: (l: string) => void, processClockStart: number): Promise<AnalyzerClient> {
   const ctx = s.ctx;
   if (!ctx.ingest.units.has(line.unit)) {
     const row = { id: line.unit, name: line.unitName, kind: line.kind, description: `demo ${line.kind} (simulated)`, createdAt: ctx.now() };
@@ -104,26 +145,20 @@ async function setUpLine(s: TidelineServer, line: Line, url: string, log: (l: st
     log(`  first start: streaming ${refs.length} simulated reference batches for ${line.unit} …`);
     const known = new Set(await ctx.storage.batchIds());
     for (const b of refs) if (!known.has(b.id)) await client.sendBatch(b, { speed: 0, unit: line.unit, timestamps: 'original' });
-    log(`  building the ${line.kind} monitoring model from ${refs.length} reference batches …`);
-    // In a worker thread (server/models/build-runner.ts), as the API's builds run: the dashboard,
-    // ingest and signals stay responsive while the model is computed.
-    const runner = buildRunnerOf(ctx);
-    // The settings the evaluation uses (scripts/evaluate.ts): property-indexed progress,
-    // local limits, MSC for the property model only.
-    const settings = { ...defaultSettings(line.kind), name: `${line.kind}-${line.product.replace(/\s+/g, '-')}`, product: line.product, author: 'demo-setup', createdAt: ctx.now() };
-    const info = { name: settings.name, product: line.product, startedBy: 'demo-setup', startedAt: ctx.now(), referenceBatches: refs.length };
-    const release = runner.acquire(info);
-    let file;
-    try {
-      file = await runner.build(info, refs.map((b) => packReferenceBatch({ id: b.id, axis: b.axis, times: b.times, spectra: b.spectra, property: b.truth.property.values })), settings);
-    } finally {
-      release();
-    }
-    const row = await registerModelFile(ctx, file, { createdBy: 'demo-setup', referenceBatches: refs.map((b) => b.id) });
+    const m = LAB_METHODS[line.kind];
+    const n = await attachLabValues(api, line, refs);
+    log(`  attached ${n} ${m.method} ${m.property} results (a few per batch) through the lab-values API`);
+    log(`  building the ${line.kind} monitoring model from ${refs.length} reference batches and their lab values …`);
+    // The service the build route (POST /api/models/build) uses: a worker thread, so the dashboard,
+    // ingest and signals stay responsive while the model is computed; the reference batches and their
+    // lab values are read from the record. The settings are the evaluation's (scripts/evaluate.ts).
+    const { name: _n, product: _p, author: _a, createdAt: _c, ...settings } = defaultSettings(line.kind);
+    const row = await buildFromStored(ctx, { name: `${line.kind}-${line.product.replace(/\s+/g, '-')}`, product: line.product, referenceBatches: refs.map((b) => b.id), settings: settings as Record<string, unknown> }, 'demo-setup');
+    await recordAudit(ctx, { user: 'demo-setup', action: 'model.build', object: `model:${row.name}@${row.version}`, after: { id: row.id, sha256: row.sha256, referenceBatches: row.referenceBatches } });
     const reason = 'demo: approved automatically at first start; NOT a validated model';
     // The leave-one-batch-out endpoint check: where the rule fires early on a reference batch the
     // API refuses approval without a signed override; the demo records that it overrides it.
-    const check = parseMonitoringModel(file.body).meta.endpointCheck;
+    const check = parseMonitoringModel(row.body).meta.endpointCheck;
     const early = check && check.early > 0 ? earlyBatchesText(check) : null;
     const override = early ? `demo: ${early}; approved anyway for the demonstration only` : undefined;
     if (early) log(`  endpoint check: ${early} (demo override recorded)`);
@@ -132,7 +167,7 @@ async function setUpLine(s: TidelineServer, line: Line, url: string, log: (l: st
     await ctx.storage.deploy({ id: randomUUID(), unit: line.unit, modelVersion: row.id, deployedAt: ctx.now(), deployedBy: 'demo-setup', reason: 'demo', endedAt: null });
     await recordAudit(ctx, { user: 'demo-setup', action: 'model.deploy', object: `unit:${line.unit}`, after: { versionId: row.id }, reason: 'demo' });
     await ctx.ingest.refreshDeployment(line.unit);
-    log(`  ${row.name} v${row.version} (${file.components} PCs, sha256 ${row.sha256.slice(0, 12)}…) deployed to ${line.unit}`);
+    log(`  ${row.name} v${row.version} (${row.components} PCs, sha256 ${row.sha256.slice(0, 12)}…) deployed to ${line.unit}`);
   }
   return client;
 }
@@ -203,8 +238,10 @@ async function main() {
     units: LINES.map((l) => ({ unit: l.unit, speedUp: speed * l.speedFactor })),
     note: `Demo data from simulated analyzers, replayed faster than real time (dryer ×${speed}, reactor ×${speed * 4}). Each analyzer's process clock started ${historyDays * 1} day(s) (dryer) and ${historyDays * 4} day(s) (reactor) before the demo started, so batches are dated in the past; once a clock reaches the present the demo runs in real time. Times shown are the simulated process times in UTC; alarm acknowledgements, signatures and reports carry the real time.`,
   };
-  for (const line of LINES) clients.push(await setUpLine(s, line, wsUrl, log, startedAt - historyDays * line.speedFactor * 86_400_000));
   const admin = await ensureDemoAdministrator(s.ctx);
+  const api = new DemoSession(s.url);
+  await api.login(admin.name, admin.password);
+  for (const line of LINES) clients.push(await setUpLine(s, line, wsUrl, api, log, startedAt - historyDays * line.speedFactor * 86_400_000));
   console.log(admin.notice);
   console.log(`  Dashboard:  ${s.url}/`);
   console.log(`  REST API:   ${s.url}/api/openapi.json    Metrics: ${s.url}/metrics`);
