@@ -62,7 +62,7 @@ function toReference(b: SimulatedBatch): ReferenceBatch {
 
 function toEval(b: SimulatedBatch, group: string, intervalS: number): EvalBatch {
   const f = b.truth.faults[0];
-  return { id: b.id, group, times: b.times, spectra: b.spectra, dropped: b.truth.dropped, endpointIndex: b.truth.endpointIndex, faultOnsetIndex: f ? f.onsetIndex : null, intervalS, property: b.truth.property.values };
+  return { id: b.id, group, times: b.times, spectra: b.spectra, dropped: b.truth.dropped, endpointIndex: b.truth.endpointIndex, faultOnsetIndex: f ? f.onsetIndex : null, intervalS, property: b.truth.property.values, ...(f?.pixels ? { badPixels: f.pixels } : {}) };
 }
 
 export function runEvaluation(plan: EvaluationPlan): { model: MonitoringModel; figures: EvaluationFigures; buildMs: number } {

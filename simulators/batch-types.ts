@@ -9,8 +9,10 @@ export interface TruthFault {
   /** Requested onset, s after batch start. */
   onsetS: number;
   params: Record<string, number>;
-  /** Scans hit by a random-event fault (spikes, bad scans). */
+  /** Scans hit by a random-event fault (spikes, bad scans, pixel spikes). */
   indices?: number[];
+  /** Pixel faults (stuck, dead, spikes, saturation): the damaged pixels of each damaged scan. */
+  pixels?: { index: number; pixels: number[] }[];
 }
 
 export interface StateTrace {

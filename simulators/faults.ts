@@ -16,6 +16,10 @@ export const FAULT_TYPES = [
   'dropout',
   'lamp-ageing',
   'bad-scans',
+  'stuck-pixels',
+  'dead-pixels',
+  'pixel-spikes',
+  'saturation',
 ] as const;
 export type FaultType = (typeof FAULT_TYPES)[number];
 
@@ -100,6 +104,30 @@ export const FAULT_INFO: Record<FaultType, FaultInfo> = {
     kinds: ['dryer', 'reactor'],
     description: 'occasional corrupt scans (a block of dark pixels from a readout fault), the first at onset',
     params: { probability: { default: 0.02, min: 0, max: 1, description: 'chance of a bad scan after onset' } },
+  },
+  'stuck-pixels': {
+    kinds: ['dryer', 'reactor'],
+    description: 'detector elements stick from onset: each affected pixel holds a fixed reading near its value at onset, 0.01–0.02 absorbance off (pixels drawn at random, not at the ends of the axis)',
+    params: { count: { default: 3, min: 1, max: 64, description: 'pixels that stick' } },
+  },
+  'dead-pixels': {
+    kinds: ['dryer', 'reactor'],
+    description: 'detector elements die from onset: each affected pixel reads 0 (pixels drawn at random)',
+    params: { count: { default: 3, min: 1, max: 64, description: 'pixels that die' } },
+  },
+  'pixel-spikes': {
+    kinds: ['dryer', 'reactor'],
+    description: 'single-pixel spikes (a cosmic ray or electrical interference on one detector element) in some scans from onset, the first at onset; each spike raises one random pixel',
+    params: {
+      probability: { default: 0.3, min: 0, max: 1, description: 'chance of spikes in each scan after onset' },
+      count: { default: 2, min: 1, max: 16, description: 'spiked pixels in a scan with spikes' },
+      magnitude: { default: 0.1, min: 0.02, max: 3, description: 'typical spike height, absorbance (0.5–1.5 times this)' },
+    },
+  },
+  saturation: {
+    kinds: ['dryer', 'reactor'],
+    description: 'the detector saturates from onset in its brightest part (too much light after a lamp or window change): a run of adjacent pixels at the middle of the axis reads the lowest absorbance of the scan, a flat clipped run',
+    params: { count: { default: 6, min: 3, max: 128, description: 'adjacent pixels that saturate' } },
   },
 };
 

@@ -51,9 +51,13 @@ interface FaultState {
   rng: Rng;
   started: boolean;
   layer?: Float64Array;
+  /** Pixel faults: the affected pixels (fixed for stuck/dead/saturation) and the stuck values. */
+  pixels?: number[];
+  frozen?: Float32Array;
 }
 
-const SPECTRAL_FAULTS = new Set(['wrong-material', 'probe-fouling', 'spikes', 'lamp-ageing', 'bad-scans']);
+const SPECTRAL_FAULTS = new Set(['wrong-material', 'probe-fouling', 'spikes', 'lamp-ageing', 'bad-scans', 'stuck-pixels', 'dead-pixels', 'pixel-spikes', 'saturation']);
+const PIXEL_FAULTS = new Set(['stuck-pixels', 'dead-pixels', 'pixel-spikes', 'saturation']);
 
 export class Instrument {
   private readonly axis: Float64Array;
@@ -66,6 +70,8 @@ export class Instrument {
   private swapped: { list: PureComponent[]; impurity: PureComponent } | null = null;
   /** Scan indices where a spike or bad scan happened, by fault ordinal. */
   readonly events = new Map<number, number[]>();
+  /** Pixel faults: per damaged scan, the damaged pixels, by fault ordinal. */
+  readonly pixelEvents = new Map<number, { index: number; pixels: number[] }[]>();
 
   constructor(
     private readonly settings: InstrumentSettings,
@@ -107,6 +113,7 @@ export class Instrument {
     let lampLoss = 0;
     let lampTiltAge = 0;
     let badScan: FaultState | null = null;
+    const pixelFaults: FaultState[] = [];
 
     for (const st of this.faults) {
       const f = st.fault;
@@ -150,6 +157,8 @@ export class Instrument {
           }
           break;
         }
+        default:
+          if (PIXEL_FAULTS.has(f.type)) pixelFaults.push(st);
       }
     }
 
@@ -197,7 +206,67 @@ export class Instrument {
       // With the ideal instrument and no lamp fault this is exactly chem[i] up to rounding.
       out[i] = ideal && lamp === w ? chem[i]! : -Math.log10(Math.max(s, 1e-7) / w);
     }
+    for (const st of pixelFaults) this.pixelFault(st, index, out);
     return out;
+  }
+
+  /** Distinct random pixels 1…p−2 (not at the ends of the axis). */
+  private pickPixels(st: FaultState, count: number): number[] {
+    const p = this.axis.length;
+    const set = new Set<number>();
+    while (set.size < Math.min(count, p - 2)) set.add(1 + Math.floor(st.rng.uniform() * (p - 2)));
+    return [...set].sort((a, b) => a - b);
+  }
+
+  private pixelFault(st: FaultState, index: number, out: Float32Array): void {
+    const f = st.fault;
+    const p = this.axis.length;
+    let hit: number[] = [];
+    switch (f.type) {
+      case 'stuck-pixels': {
+        if (!st.pixels) {
+          st.pixels = this.pickPixels(st, f.params.count!);
+          // a stuck element holds a fixed reading near its value at onset (0.01–0.02 absorbance off)
+          st.frozen = Float32Array.from(st.pixels, (j) => out[j]! + (st.rng.uniform() < 0.5 ? -1 : 1) * (0.01 + 0.01 * st.rng.uniform()));
+        }
+        st.pixels.forEach((j, k) => { out[j] = st.frozen![k]!; });
+        hit = st.pixels;
+        break;
+      }
+      case 'dead-pixels': {
+        if (!st.pixels) st.pixels = this.pickPixels(st, f.params.count!);
+        for (const j of st.pixels) out[j] = 0;
+        hit = st.pixels;
+        break;
+      }
+      case 'pixel-spikes': {
+        const u = st.rng.uniform();
+        if (st.frozen === undefined || u < f.params.probability!) {
+          st.frozen = new Float32Array(0); // marks the first scan as done
+          hit = this.pickPixels(st, f.params.count!);
+          for (const j of hit) out[j] = out[j]! + f.params.magnitude! * (0.5 + st.rng.uniform());
+          this.noteEvent(f.ordinal, index);
+        }
+        break;
+      }
+      case 'saturation': {
+        const n = Math.min(f.params.count!, p);
+        const from = Math.max(0, Math.floor(p / 2 - n / 2));
+        let low = Infinity;
+        for (let j = 0; j < p; j++) if (out[j]! < low) low = out[j]!;
+        hit = [];
+        for (let j = from; j < from + n; j++) {
+          out[j] = low;
+          hit.push(j);
+        }
+        break;
+      }
+    }
+    if (hit.length) {
+      let list = this.pixelEvents.get(f.ordinal);
+      if (!list) this.pixelEvents.set(f.ordinal, (list = []));
+      list.push({ index, pixels: hit.slice() });
+    }
   }
 
   private noteEvent(ordinal: number, index: number): void {

@@ -101,7 +101,9 @@ export function runBatch(
     }
     const entry: TruthFault = { type: f.type, onsetIndex: first, onsetT: times[first]!, onsetS: f.onsetS, params: { ...f.params } };
     const events = inst.events.get(f.ordinal);
-    if (events) entry.indices = events.slice();
+    if (events) entry.indices = events.filter((i) => i < n);
+    const px = inst.pixelEvents.get(f.ordinal);
+    if (px) entry.pixels = px.filter((e) => e.index < n);
     if (f.type === 'dropout') {
       for (let i = first; i < n && (i - first) * intervalS < f.params.durationS!; i++) dropped.add(i);
     }

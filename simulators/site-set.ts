@@ -50,8 +50,12 @@ export const SITE_TRUTH_FORMAT = 'tideline-site-truth';
 export const SITE_SET_FORMAT = 'tideline-site-set';
 export const SITE_FORMAT_VERSION = 1;
 
-/** The dryer faults a site set can carry (every fault type the dryer simulator has). */
-export const SITE_FAULTS: FaultType[] = FAULT_TYPES.filter((f) => FAULT_INFO[f].kinds.includes('dryer'));
+/**
+ * The dryer faults a site set carries: every fault type the dryer simulator has except the pixel
+ * faults (stuck, dead, spikes, saturation), which `npm run evaluate` and the simulator CLI cover.
+ */
+const PIXEL_FAULTS: readonly FaultType[] = ['stuck-pixels', 'dead-pixels', 'pixel-spikes', 'saturation'];
+export const SITE_FAULTS: FaultType[] = FAULT_TYPES.filter((f) => FAULT_INFO[f].kinds.includes('dryer') && !PIXEL_FAULTS.includes(f));
 
 export const SITE_DEFAULTS = {
   axis: { from: 1101.37, to: 2098.81, points: 397 },

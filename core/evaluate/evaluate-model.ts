@@ -26,9 +26,23 @@
  *   calibrated at a stated confidence, it should be near 1 − confidence: compare with the same
  *   binomial tolerance as the false-alarm point rate (spectra of one batch are not independent,
  *   so read it as a guide, not a test of exact size).
+ * - Bad pixels (docs/bad-pixels.md), over the batches whose truth names damaged pixels (the pixel
+ *   faults of the simulators: stuck, dead, spikes, saturation):
+ *   bad_pixel_detected_rate: damaged spectra whose every damaged pixel is flagged, over all damaged
+ *   spectra (a stuck pixel cannot be found before it has repeated over `stuckSpectra` spectra: those
+ *   first spectra count as missed);
+ *   bad_pixel_false_alarm_batch_rate: batches with damaged pixels (the process itself good) that
+ *   raised a confirmed process alarm (any condition but the analyzer-quality one): what the pixels
+ *   would cost without their handling; compare with false_alarm_batch_rate;
+ *   bad_pixel_false_alarm_batch_rate_without_check: the same batches judged with the pixel check
+ *   off (every pixel as sent): batches with any confirmed alarm;
+ *   bad_pixel_analyzer_alarm_batch_rate: those batches that raised the analyzer-quality alarm;
+ *   bad_pixel_unjudged_rate: damaged spectra not judged (too damaged);
+ *   bad_pixel_flagged_good_rate: spectra of good batches with any pixel flagged (false flags).
  */
 import type { MonitoringModel } from '../model/monitoring-model.ts';
 import { createBatchMonitor } from '../monitor/batch-monitor.ts';
+import { createPixelQualityChecker } from '../quality/pixel-quality.ts';
 import { staleAlarmTime } from './stale.ts';
 import { betaInv } from '../stats/quantiles.ts';
 
@@ -44,6 +58,8 @@ export interface EvalBatch {
   endpointIndex: number | null;
   /** Onset index of the injected fault (null for good batches). */
   faultOnsetIndex: number | null;
+  /** Pixel faults: the damaged pixels of each damaged spectrum (truth). */
+  badPixels?: { index: number; pixels: number[] }[];
   /** Nominal seconds between spectra. */
   intervalS: number;
   /** True property per spectrum (optional): gives endpoint_property_at_call. */
@@ -78,6 +94,17 @@ export interface BatchOutcome {
   /** Spectra with a property prediction, and of those flagged as extrapolating (outside the calibration). */
   predictions: number;
   extrapolating: number;
+  /** Spectra with any pixel flagged; not judged (too damaged). */
+  flaggedSpectra: number;
+  unjudged: number;
+  /** Truth-damaged spectra, and of those with every damaged pixel flagged. */
+  damagedSpectra: number;
+  damagedDetected: number;
+  /** Confirmed alarms of the process conditions (all but the analyzer-quality one) and of the analyzer-quality one. */
+  processAlarms: number;
+  analyzerAlarms: number;
+  /** Batches with damaged pixels: confirmed alarms of the same batch judged with the pixel check off (null otherwise). */
+  alarmsWithoutCheck: number | null;
 }
 
 export interface GroupFigures {
@@ -119,6 +146,15 @@ export interface EvaluationFigures {
   prediction_extrapolating_rate_bound: number | null;
   /** The largest per-batch rate among the good batches. */
   prediction_extrapolating_batch_max: number | null;
+  /** Bad-pixel figures (null when no batch has damaged pixels), defined in the header. */
+  bad_pixel_detected_rate: number | null;
+  bad_pixel_false_alarm_batch_rate: number | null;
+  /** The same batches judged with the pixel check off (every pixel as sent): batches with any confirmed alarm. */
+  bad_pixel_false_alarm_batch_rate_without_check: number | null;
+  bad_pixel_analyzer_alarm_batch_rate: number | null;
+  bad_pixel_unjudged_rate: number | null;
+  bad_pixel_batches: number;
+  bad_pixel_flagged_good_rate: number;
   batches: BatchOutcome[];
 }
 
@@ -152,8 +188,14 @@ export function evaluateBatch(model: MonitoringModel, b: EvalBatch, opts: Evalua
   const out: BatchOutcome = {
     id: b.id, group: b.group, spectra: 0, pointsOutsideT2: 0, pointsOutsideQ: 0, suspects: 0, alarms: 0, firstAlarm: null, detection: null,
     falseAlarmsBeforeOnset: 0, endpointIndex: b.endpointIndex, detectedEndpointIndex: null, endpointError: null, propertyAtCall: null, etaErrors: [], maxT2: 0, maxQ: 0,
-    predictions: 0, extrapolating: 0,
+    predictions: 0, extrapolating: 0, flaggedSpectra: 0, unjudged: 0, damagedSpectra: 0, damagedDetected: 0, processAlarms: 0, analyzerAlarms: 0, alarmsWithoutCheck: null,
   };
+  // A batch with damaged pixels is also judged with the check off: what the pixels cost without it.
+  const unchecked = (b.badPixels?.length ?? 0) > 0 ? createBatchMonitor(model, t0, { pixelQuality: false }) : null;
+  if (unchecked) out.alarmsWithoutCheck = 0;
+  const pixelCheck = createPixelQualityChecker(model.chain.inputAxis.length);
+  const damage = new Map<number, number[]>();
+  for (const d of b.badPixels ?? []) damage.set(d.index, d.pixels);
   const onset = b.faultOnsetIndex;
   const etaFrom = b.endpointIndex !== null ? Math.floor(0.75 * b.endpointIndex) : Infinity;
   const trueEndT = b.endpointIndex !== null ? b.times[b.endpointIndex] : null;
@@ -179,6 +221,7 @@ export function evaluateBatch(model: MonitoringModel, b: EvalBatch, opts: Evalua
     prevT = t;
     const r = mon.push(i, t, b.spectra[i]);
     out.spectra++;
+    if (unchecked) for (const c of unchecked.push(i, t, b.spectra[i]).conditionChanges) if (c.active) out.alarmsWithoutCheck!++;
     const lim = r.localLimits ?? r.limits;
     if (r.t2 > lim.t2) out.pointsOutsideT2++;
     if (r.q > lim.q) out.pointsOutsideQ++;
@@ -189,7 +232,24 @@ export function evaluateBatch(model: MonitoringModel, b: EvalBatch, opts: Evalua
     }
     if (r.t2 > out.maxT2) out.maxT2 = r.t2;
     if (r.q > out.maxQ) out.maxQ = r.q;
-    for (const c of r.conditionChanges) if (c.active) noteAlarm(i, c.kind, c.key, t);
+    for (const c of r.conditionChanges) {
+      if (!c.active) continue;
+      noteAlarm(i, c.kind, c.key, t);
+      if (c.kind === 'analyzer') out.analyzerAlarms++;
+      else out.processAlarms++;
+    }
+    const qy = r.quality;
+    if (qy) {
+      out.flaggedSpectra++;
+      if (!qy.judged) out.unjudged++;
+    }
+    // The monitor's own check, replayed beside it (same settings, same history): which pixels it flagged.
+    const flagged = pixelCheck.check(b.spectra[i]).mask;
+    const dmg = damage.get(i);
+    if (dmg && dmg.length) {
+      out.damagedSpectra++;
+      if (dmg.every((j) => flagged[j] !== 0)) out.damagedDetected++;
+    }
     if (out.detectedEndpointIndex === null && r.endpoint.doneAt) out.detectedEndpointIndex = r.endpoint.doneAt.seq;
     if (trueEndT !== null && i >= etaFrom && i < b.endpointIndex! && r.endpoint.etaMin) {
       out.etaErrors.push(Math.abs(r.endpoint.etaMin.median - (trueEndT - t) / 60000));
@@ -236,6 +296,9 @@ export function evaluateModel(model: MonitoringModel, batches: EvalBatch[], opts
   const nPred = good.reduce((s, o) => s + o.predictions, 0);
   const xConf = model.pls ? model.pls.limits.confidence : null;
   const xAlpha = xConf === null ? NaN : 1 - xConf;
+  const px = outcomes.filter((o, i) => (batches[i].badPixels?.length ?? 0) > 0);
+  const dmg = px.reduce((s, o) => s + o.damagedSpectra, 0);
+  const goodFlagged = good.reduce((s, o) => s + o.flaggedSpectra, 0);
   return {
     modelId: model.id,
     confidence: conf,
@@ -260,6 +323,13 @@ export function evaluateModel(model: MonitoringModel, batches: EvalBatch[], opts
     prediction_extrapolating_confidence: xConf,
     prediction_extrapolating_rate_bound: nPred && xConf !== null ? xAlpha + 3 * Math.sqrt((xAlpha * (1 - xAlpha)) / nPred) : null,
     prediction_extrapolating_batch_max: nPred ? Math.max(...good.filter((o) => o.predictions > 0).map((o) => o.extrapolating / o.predictions)) : null,
+    bad_pixel_detected_rate: dmg ? px.reduce((s, o) => s + o.damagedDetected, 0) / dmg : null,
+    bad_pixel_false_alarm_batch_rate: px.length ? px.filter((o) => o.processAlarms > 0).length / px.length : null,
+    bad_pixel_false_alarm_batch_rate_without_check: px.length ? px.filter((o) => (o.alarmsWithoutCheck ?? 0) > 0).length / px.length : null,
+    bad_pixel_analyzer_alarm_batch_rate: px.length ? px.filter((o) => o.analyzerAlarms > 0).length / px.length : null,
+    bad_pixel_unjudged_rate: dmg ? px.reduce((s, o) => s + o.unjudged, 0) / dmg : null,
+    bad_pixel_batches: px.length,
+    bad_pixel_flagged_good_rate: N ? goodFlagged / N : NaN,
     batches: outcomes,
   };
 }
@@ -283,6 +353,12 @@ export function evaluationMarkdown(f: EvaluationFigures): string {
     `| true property at the call (median, min–max) | ${f.endpoint_property_at_call ? `${n(f.endpoint_property_at_call.median, 3)} (${n(f.endpoint_property_at_call.min, 3)}–${n(f.endpoint_property_at_call.max, 3)})` : '—'} | reported |`,
     `| eta_error_median (min, last quarter) | ${n(f.eta_error_median, 2)} | reported |`,
     `| prediction_extrapolating_rate | ${n(f.prediction_extrapolating_rate, 4)} (largest batch ${n(f.prediction_extrapolating_batch_max, 3)}) | ${f.prediction_extrapolating_rate_bound === null ? 'reported' : `≤ ${n(f.prediction_extrapolating_rate_bound, 4)} (flag at ${n((f.prediction_extrapolating_confidence ?? NaN) * 100, 1)} %)`} |`,
+    `| bad_pixel_detected_rate (damaged spectra, ${f.bad_pixel_batches} batches) | ${n(f.bad_pixel_detected_rate, 3)} | reported |`,
+    `| bad_pixel_false_alarm_batch_rate (process alarms) | ${n(f.bad_pixel_false_alarm_batch_rate, 3)} | near false_alarm_batch_rate |`,
+    `| bad_pixel_false_alarm_batch_rate_without_check (pixels judged as sent) | ${n(f.bad_pixel_false_alarm_batch_rate_without_check, 3)} | reported |`,
+    `| bad_pixel_analyzer_alarm_batch_rate | ${n(f.bad_pixel_analyzer_alarm_batch_rate, 3)} | reported |`,
+    `| bad_pixel_unjudged_rate (damaged spectra) | ${n(f.bad_pixel_unjudged_rate, 3)} | reported |`,
+    `| bad_pixel_flagged_good_rate (good spectra) | ${n(f.bad_pixel_flagged_good_rate, 5)} | 0 |`,
     '',
     '| fault | batches | detected | detection_delay_median (spectra) | max |',
     '| --- | --- | --- | --- | --- |',
