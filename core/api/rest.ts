@@ -463,6 +463,9 @@ export interface EndpointRuleView {
   /** No 'done' before this many minutes from the batch start (0: none), and how it was obtained ('none' when not set). */
   minElapsedMin: number;
   minElapsedMethod: string;
+  /** Run-time guards that hold a met and confirmed rule ('held'), and the hysteresis of its states in spectra (absent from servers before holds existed). */
+  hold?: { alarms: boolean; extrapolation: boolean };
+  hysteresis?: number;
   /** The caution shown with every endpoint rule. */
   caution: string;
 }

@@ -21,6 +21,15 @@ function ruleText(m: ComparableModel): string {
   return `${crit}; confirmed over ${r.confirm} spectra${r.minElapsedMin > 0 ? `; not before ${num(r.minElapsedMin)} min` : ''}`;
 }
 
+/** The run-time guards that hold a met rule ('held'), in words; switching one off is a change a deployment names. */
+function guardText(m: ComparableModel): string {
+  const r = endpointRuleView(m);
+  if (r.criteria.length === 0) return 'none';
+  const hold = r.hold ?? { alarms: true, extrapolation: true };
+  const on = [hold.alarms ? 'standing alarm' : null, hold.extrapolation && hasPropertyEndpoint(m) ? 'prediction outside its calibration' : null].filter((g) => g !== null);
+  return `${on.length ? `held for ${on.join(' and ')}` : 'no alarm or calibration hold'}; hysteresis ${r.hysteresis ?? 3} spectra`;
+}
+
 function propertyText(m: ComparableModel): string | null {
   const p = propertyModelView(m);
   if (!p) return null;
@@ -50,6 +59,7 @@ export function compareDeployment(current: { ref: ModelRef; model: ComparableMod
   diff('product', String(a.settings.product ?? ''), String(b.settings.product ?? ''));
   diff('analyzer axis', axisText(a), axisText(b));
   diff('endpoint rule', ruleText(a), ruleText(b));
+  diff('endpoint guards', guardText(a), guardText(b));
   diff('property model', propertyText(a), propertyText(b));
   diff('components', String(a.pca.nComponents), String(b.pca.nComponents));
   diff('limit confidence', `${num(a.limits.t2.confidence * 100)} %`, `${num(b.limits.t2.confidence * 100)} %`);
@@ -72,6 +82,9 @@ export function compareDeployment(current: { ref: ModelRef; model: ComparableMod
     );
   }
   if (b.endpoint.criteria.length === 0 && a.endpoint.criteria.length > 0) warnings.push(`${next.ref.name} v${next.ref.version} has no endpoint rule: no endpoint is called or signalled on this unit.`);
+  const holdOff = (key: 'alarms' | 'extrapolation') => a.endpoint.criteria.length > 0 && b.endpoint.criteria.length > 0 && (a.endpoint.hold?.[key] ?? true) && !(b.endpoint.hold?.[key] ?? true);
+  if (holdOff('alarms')) warnings.push(`${next.ref.name} v${next.ref.version} switches off the alarm guard: its endpoint may be called done while a confirmed T², Q or envelope alarm stands.`);
+  if (holdOff('extrapolation') && hasPropertyEndpoint(b)) warnings.push(`${next.ref.name} v${next.ref.version} switches off the calibration guard: its endpoint may be called done on a prediction outside its calibration.`);
   if (a.pca.nComponents !== b.pca.nComponents) warnings.push(`The number of components changes from ${a.pca.nComponents} to ${b.pca.nComponents}: the Floor and Watch score charts change with it.`);
   return { replaces: current.ref, changes, warnings, dropsEndpointProperty };
 }

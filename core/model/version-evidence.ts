@@ -5,6 +5,7 @@
  */
 import type { EndpointCheckView, EndpointCriterionView, EndpointRuleView, PropertyModelView, ReferenceEndpointView } from '../api/rest.ts';
 import type { MonitoringModel } from './monitoring-model.ts';
+import { DEFAULT_HYSTERESIS } from '../endpoint/spec.ts';
 
 export const ENDPOINT_CAUTION = "Tideline advises: an endpoint signal is used within the site's validated control strategy; interlocks and operating procedures decide what it may do.";
 
@@ -31,6 +32,7 @@ export function endpointRuleView(m: Pick<MonitoringModel, 'endpoint'>): Endpoint
   return {
     criteria, combine: m.endpoint.combine, confirm: m.endpoint.confirm, nearingMin: m.endpoint.nearingMin,
     minElapsedMin: m.endpoint.minElapsedMin ?? 0, minElapsedMethod: m.endpoint.minElapsedMethod ?? 'none',
+    hold: m.endpoint.hold ?? { alarms: true, extrapolation: true }, hysteresis: m.endpoint.hysteresis ?? DEFAULT_HYSTERESIS,
     caution: ENDPOINT_CAUTION,
   };
 }

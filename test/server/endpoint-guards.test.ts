@@ -175,8 +175,20 @@ describe.skipIf(!mosquittoPath)('endpoint guards through /ingest', () => {
     // with four reference batches this batch carries a standing PC1 envelope alarm from 30 min on,
     // which would hold it to the end.
     const model = buildMonitoringModel(data, { ...base, name: 'dryer-guards-min', product: 'granule A', endpoint: { criteria: [{ kind: 'property' }], combine: 'all', confirm: 3, nearingMin: 10, minElapsedMin, hold: { alarms: false } } });
-    await installModel(ts.server.ctx.storage, serializeMonitoringModel(model), model, 'dryer-2');
+    const versionId = await installModel(ts.server.ctx.storage, serializeMonitoringModel(model), model, 'dryer-2');
     await ts.server.ctx.ingest.refreshDeployment('dryer-2');
+    // the version page's rule names its guards and hysteresis
+    const detail = await (await login(ts, 'viewer')).get(`/api/models/versions/${versionId}`);
+    expect(detail.status).toBe(200);
+    expect(detail.body.endpoint).toMatchObject({ minElapsedMin, minElapsedMethod: 'set by the model owner', hold: { alarms: false, extrapolation: true }, hysteresis: 3 });
+    // deploying it where a version with both guards runs (dryer-1, the test above) names the switched-off guard
+    const preview = await (await login(ts, 'administrator')).get(`/api/deployments/preview?unit=dryer-1&versionId=${versionId}`);
+    expect(preview.status).toBe(200);
+    expect(preview.body.comparison.changes.find((c: { what: string }) => c.what === 'endpoint guards')).toMatchObject({
+      before: 'held for standing alarm and prediction outside its calibration; hysteresis 3 spectra',
+      after: 'held for prediction outside its calibration; hysteresis 3 spectra',
+    });
+    expect(preview.body.comparison.warnings).toContain('dryer-guards-min v1 switches off the alarm guard: its endpoint may be called done while a confirmed T², Q or envelope alarm stands.');
     await stream('dryer-2', 'nir-2', probe);
 
     const ev = endpointEvents('dryer-2');

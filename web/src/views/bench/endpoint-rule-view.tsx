@@ -25,6 +25,7 @@ export function EndpointRulePanel({ rule }: { rule: EndpointRuleView | null }) {
               <>No minimum time before "done" ({rule.minElapsedMethod}).</>
             )}
           </p>
+          {rule.hold && <RuleGuards rule={rule} />}
           <table class="criteria">
             <thead>
               <tr>
@@ -49,5 +50,22 @@ export function EndpointRulePanel({ rule }: { rule: EndpointRuleView | null }) {
       )}
       <Advisory text={rule?.caution} />
     </div>
+  );
+}
+
+/** The run-time guards of the rule in words (state 'held'), with its hysteresis. */
+function RuleGuards({ rule }: { rule: EndpointRuleView }) {
+  const hold = rule.hold ?? { alarms: true, extrapolation: true };
+  const guards = [
+    rule.minElapsedMin > 0 ? 'the minimum time has not passed' : null,
+    hold.alarms ? 'a confirmed T², Q or envelope alarm stands' : null,
+    hold.extrapolation && rule.criteria.some((c) => c.kind === 'property') ? 'the property prediction is outside its calibration' : null,
+  ].filter((g): g is string => g !== null);
+  return (
+    <p data-testid="rule-guards">
+      {guards.length ? <>Held — not done — while {guards.join(', or while ')}.</> : <>No run-time guard holds this rule's "done".</>}
+      {!hold.alarms && <> The alarm guard is switched off.</>}
+      {!hold.extrapolation && <> The calibration guard is switched off.</>} States change against the trend only after {rule.hysteresis ?? 3} spectra in a row.
+    </p>
   );
 }
