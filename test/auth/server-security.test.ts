@@ -1,5 +1,5 @@
 /**
- * Issue 8 checks against the running server (server/app.ts startServer on 127.0.0.1:0):
+ * Security checks against the running server (server/app.ts startServer on 127.0.0.1:0):
  * ingest without a valid token is refused; a viewer cannot acknowledge, approve or deploy; every
  * state-changing route refuses anonymous callers; approval without the right password fails and
  * is audited; an edited or deleted audit row makes verify fail at that row; oversized and

@@ -4,7 +4,7 @@ import type { EvaluationFigures } from '../../core/evaluate/evaluate-model.ts';
 import type { MonitoringModel } from '../../core/model/monitoring-model.ts';
 import { defaultBuildSettings } from '../../core/model/default-settings.ts';
 
-// Issue 4 targets on simulated reactor batches (A + B → C, endpoint conversion ≥ 99 %), fixed
+// The evaluation targets of docs/evaluation.md on simulated reactor batches (A + B → C, endpoint conversion ≥ 99 %), fixed
 // seeds, with the per-kind defaults of core/model/default-settings.ts (99 % limits drawn, alarms at
 // 99.9 %). Fewer fault batches than `npm run evaluate -- --kind reactor` so the test stays near a
 // minute; the same 30 good batches.

@@ -5,7 +5,7 @@ import { clopperPearson, evaluationMarkdown, type EvaluationFigures } from '../.
 import { scipyNamed } from '../limits/scipy.ts';
 import { staleAlarmTime } from '../../core/evaluate/stale.ts';
 
-// Issue 4 targets, asserted on a fixed seed set (smaller than `npm run evaluate`'s default run so the
+// The evaluation targets of docs/evaluation.md, asserted on a fixed seed set (smaller than `npm run evaluate`'s default run so the
 // test stays near a minute; the same 30 good batches as the script, fewer fault batches).
 let f: EvaluationFigures;
 let model: MonitoringModel;
