@@ -846,3 +846,86 @@ export interface CalibrationView {
   samples: { batch: string; index: number; t2: number; q: number; excluded: boolean }[];
   limits: { t2: number; q: number; confidence: number };
 }
+
+/** Statistics of one way of judging the held-out transfer samples (core/calibration-transfer/transfer-model.ts). */
+export interface TransferSideStats {
+  /** Spectra beyond the version's T² limit, its Q limit, either; with the exact 95 % interval of the share beyond either. */
+  t2Beyond: number;
+  qBeyond: number;
+  beyond: number;
+  rate: number;
+  interval: [number, number];
+  t2Median: number;
+  qMedian: number;
+  t2Max: number;
+  qMax: number;
+}
+
+/** The property predicted on the held-out transfer samples: RMS differences, in the property's unit. */
+export interface TransferPropertyStats {
+  name: string;
+  unit: string;
+  /** RMS of (prediction − the old analyzer's prediction of the same sample), before and after transfer. */
+  vsOld: { before: number; after: number };
+  /** RMS of (prediction − lab value) where the transfer samples carry lab values (null: none). */
+  vsLab: { n: number; old: number; before: number; after: number } | null;
+}
+
+/** How a transferred version was judged on held-out transfer samples, stored in its (hashed) model file. */
+export interface TransferJudgement {
+  spectra: number;
+  confidence: number;
+  t2Limit: number;
+  qLimit: number;
+  /** The old analyzer's spectra of the same samples, judged by the source version. */
+  old: TransferSideStats;
+  /** The new analyzer's spectra interpolated linearly onto the old axis (no transfer). */
+  before: TransferSideStats;
+  /** The new analyzer's spectra through the transform. */
+  after: TransferSideStats;
+  /** RMS spectral difference from the old analyzer's spectrum (absorbance units), before and after. */
+  spectralRms: { before: number; after: number };
+  property: TransferPropertyStats | null;
+  /** After transfer, far above both nominal and the old analyzer's own rate on the same samples: approval needs evidenceOverride. */
+  farAbove: boolean;
+  method: string;
+}
+
+/** One transfer set: the same samples measured on the old analyzer (a batch) and on the new one (a batch), row for row. */
+export interface TransferPairView {
+  old: string;
+  new: string;
+  spectra: number;
+}
+
+/** The calibration transfer a version carries (null on a version built from reference batches). */
+export interface CalibrationTransferView {
+  method: 'ds' | 'pds';
+  /** PDS window (slave pixels), null for DS. */
+  window: number | null;
+  rcond: number;
+  maxRank: number | null;
+  /** Rank kept: DS the one pseudo-inverse, PDS the smallest and largest over the windows. */
+  rank: { min: number; max: number };
+  oldAxis: { points: number; from: number; to: number };
+  newAxis: { points: number; from: number; to: number };
+  source: { modelId: string; sha256: string; name: string; version: number | null; versionId: string | null };
+  fit: TransferPairView[];
+  heldOut: TransferPairView[];
+  judgement: TransferJudgement;
+  createdAt: number;
+  author: string;
+  caution: string;
+}
+
+/** POST /api/models/versions/:version/transfer */
+export interface TransferModelRequest {
+  method: 'ds' | 'pds';
+  window?: number;
+  rcond?: number;
+  maxRank?: number;
+  /** Transfer sets the transform is fitted on. */
+  fit: { old: string; new: string }[];
+  /** Transfer sets kept out of the fit and used only to judge it. */
+  heldOut: { old: string; new: string }[];
+}

@@ -28,11 +28,15 @@ import { crossValidatedStatistics } from './group-cv-statistics.ts';
 import { oneStandardErrorRule } from './parsimony.ts';
 import { missingEndpointsMessage, partsNeedingEndpoints, resolveReferenceEndpoints, type ReferenceEndpoint } from './reference-endpoints.ts';
 import { endValuesOf, resolveCriteria, type CalibrationBatch, type PropertyContext } from './endpoint-calibration.ts';
+import { transferredChain, transferredPredictor } from '../calibration-transfer/transfer-chain.ts';
+import { transferRecordFromJSON, transferRecordToJSON, type ModelTransfer } from '../calibration-transfer/transfer-model.ts';
 
 export { resolveBuildSettings, DEFAULT_SETTINGS, type BuildSettings, type BuildSettingsInput } from './build-settings.ts';
 
 export const MONITORING_MODEL_FORMAT = 'tideline-monitoring-model';
 export const MONITORING_MODEL_VERSION = 1;
+/** The file version of a model that carries a calibration transfer (a version-1 reader refuses it). */
+export const MONITORING_MODEL_VERSION_TRANSFER = 2;
 
 export interface ReferenceBatch {
   id: string;
@@ -93,7 +97,8 @@ export interface ModelMeta {
 
 export interface MonitoringModel {
   format: 'tideline-monitoring-model';
-  version: 1;
+  /** 2 when the model carries a calibration transfer. */
+  version: 1 | 2;
   /** 'mm-' + first 16 hex digits of the content hash. */
   id: string;
   settings: BuildSettings;
@@ -106,6 +111,12 @@ export interface MonitoringModel {
   endpoint: ResolvedEndpointRule;
   pls?: PropertyModel;
   meta: ModelMeta;
+  /**
+   * A calibration transfer onto a new analyzer (core/calibration-transfer/transfer-model.ts): then
+   * `chain` reads the new analyzer's axis (the transform, then the model's own chain) and `pls`
+   * predicts from the new analyzer's spectra; the file stores the inner chain and the transform apart.
+   */
+  transfer?: ModelTransfer;
   sha256: string;
 }
 
@@ -386,6 +397,7 @@ const bodySchema = z.object({
   envelope: envelopeSchema,
   endpoint: z.object({ criteria: z.array(criterionSchema).min(1), combine: z.enum(['all', 'any']), confirm: z.number().int().min(1), nearingMin: num, minElapsedMin: num.nonnegative().optional(), minElapsedMethod: z.string().optional(), hold: z.object({ alarms: z.boolean(), extrapolation: z.boolean() }).optional(), hysteresis: z.number().int().min(1).optional() }),
   pls: z.unknown().optional(),
+  transfer: z.unknown().optional(),
   meta: z.object({
     batches: z.array(z.object({ id: z.string(), spectra: z.number().int(), excluded: z.number().int(), durationMin: num, endMin: num.nullable() })),
     referenceEndpoints: z
@@ -438,14 +450,26 @@ const bodySchema = z.object({
 type Body = z.infer<typeof bodySchema>;
 
 export function serializeMonitoringModel(m: MonitoringModel): string {
-  const body = { settings: m.settings, chain: m.chain.toJSON(), pca: pcaToJSON(m.pca), limits: m.limits, ...(m.alarmLimits ? { alarmLimits: m.alarmLimits } : {}), envelope: m.envelope, endpoint: m.endpoint, pls: m.pls?.toJSON(), meta: m.meta };
-  return writeModelFile(MONITORING_MODEL_FORMAT, MONITORING_MODEL_VERSION, body);
+  const body = {
+    settings: m.settings, chain: m.chain.toJSON(), pca: pcaToJSON(m.pca), limits: m.limits, ...(m.alarmLimits ? { alarmLimits: m.alarmLimits } : {}), envelope: m.envelope, endpoint: m.endpoint, pls: m.pls?.toJSON(), meta: m.meta,
+    ...(m.transfer ? { transfer: transferRecordToJSON(m.transfer) } : {}),
+  };
+  return writeModelFile(MONITORING_MODEL_FORMAT, m.transfer ? MONITORING_MODEL_VERSION_TRANSFER : MONITORING_MODEL_VERSION, body);
+}
+
+/** The source model with a calibration transfer in front of it, as a new model (new file, new hash). */
+export function withTransfer(source: MonitoringModel, transfer: ModelTransfer): MonitoringModel {
+  if (source.transfer) throw new RangeError(`model ${source.settings.name} already carries a calibration transfer`);
+  return parseMonitoringModel(serializeMonitoringModel({ ...source, transfer }));
 }
 
 export function parseMonitoringModel(text: string): MonitoringModel {
-  const { body, sha256 } = readModelFile<Body>(text, MONITORING_MODEL_FORMAT, [MONITORING_MODEL_VERSION], bodySchema as unknown as z.ZodType<Body>);
+  const { body, sha256, version } = readModelFile<Body>(text, MONITORING_MODEL_FORMAT, [MONITORING_MODEL_VERSION, MONITORING_MODEL_VERSION_TRANSFER], bodySchema as unknown as z.ZodType<Body>);
+  if ((version === MONITORING_MODEL_VERSION_TRANSFER) !== (body.transfer !== undefined)) {
+    throw new RangeError(`monitoring model: a version-${version} file ${version === MONITORING_MODEL_VERSION_TRANSFER ? 'must carry a calibration transfer' : 'cannot carry a calibration transfer'}`);
+  }
   const settings = parseStoredSettings(body.settings);
-  const chain = loadChain(body.chain);
+  const innerChain = loadChain(body.chain);
   const pca = pcaFromJSON(body.pca);
   const env = body.envelope as Envelope;
   const A = pca.nComponents;
@@ -454,11 +478,14 @@ export function parseMonitoringModel(text: string): MonitoringModel {
   for (const [a, pc] of env.pcs.entries()) for (const key of ['mean', 'sd', 'lower', 'upper'] as const) if (pc[key].length !== P) throw new RangeError(`monitoring model: envelope.pcs.${a}.${key} has ${pc[key].length} points, the grid ${P}`);
   if (env.t2Limit.length !== P || env.qLimit.length !== P || env.count.length !== P) throw new RangeError('monitoring model: per-point limits do not match the envelope grid');
   if (body.alarmLimits && (env.t2AlarmLimit?.length !== P || env.qAlarmLimit?.length !== P)) throw new RangeError('monitoring model: alarmLimits needs per-point alarm limits (envelope.t2AlarmLimit, qAlarmLimit) on the envelope grid');
-  if (chain.outputAxis.length !== pca.nVariables) throw new RangeError(`monitoring model: the chain gives ${chain.outputAxis.length} variables, the PCA expects ${pca.nVariables}`);
-  const pls = body.pls !== undefined && body.pls !== null ? loadPropertyModel(body.pls) : undefined;
+  if (innerChain.outputAxis.length !== pca.nVariables) throw new RangeError(`monitoring model: the chain gives ${innerChain.outputAxis.length} variables, the PCA expects ${pca.nVariables}`);
+  const innerPls = body.pls !== undefined && body.pls !== null ? loadPropertyModel(body.pls) : undefined;
+  const transfer = body.transfer !== undefined ? transferRecordFromJSON(body.transfer) : undefined;
+  const chain = transfer ? transferredChain(innerChain, transfer.transform) : innerChain;
+  const pls = innerPls && transfer ? transferredPredictor(innerPls, transfer.transform) : innerPls;
   return {
     format: MONITORING_MODEL_FORMAT,
-    version: 1,
+    version: transfer ? 2 : 1,
     id: `mm-${sha256.slice(0, 16)}`,
     settings,
     chain,
@@ -469,6 +496,7 @@ export function parseMonitoringModel(text: string): MonitoringModel {
     endpoint: body.endpoint as ResolvedEndpointRule,
     pls,
     meta: body.meta,
+    ...(transfer ? { transfer } : {}),
     sha256,
   };
 }
