@@ -1,0 +1,101 @@
+/**
+ * End to end, through the public paths only, the trial a new user made with their own history: a
+ * site's dryer batches (the site-style set of simulators/site-set.ts — another instrument and axis,
+ * wavelengths rounded to 0.01 nm, elapsed seconds, LOD moisture on a few spectra per batch,
+ * operators stopping 5–15 min after the true endpoint) are imported with the command line
+ * (`tideline import --origin`, a child process), a model with a property model and an endpoint rule
+ * is built, approved (electronic signature; with the signed early-endpoint override when the build's
+ * check asks for it) and deployed through REST, the test batches are read from their files and
+ * streamed through /ingest by a client written from docs/protocol.md alone, and what the server did
+ * is read back through REST (scripts/site-check.ts does the walking; this file asserts).
+ *
+ * Asserted, against each batch's truth file (true moisture per spectrum; target 2 % w/w):
+ * - no good batch is called done more than 1 spectrum interval (15 s) before its true endpoint;
+ * - every 'done' lies within 5 intervals of where the true moisture crosses the approved rule's
+ *   resolved threshold (target − margin, as the version states it) — later only when a guard held
+ *   the endpoint first (state 'held', with its reasons), which is what a hold is for — and no batch
+ *   whose true endpoint never came is called done;
+ * - 'done' is never called while a confirmed T² or Q condition stands; on the wrong-material batch
+ *   the endpoint is held while its T² alarm stands;
+ * - slow drying is flagged by pace, and the pace alarm is still listed after the batch was done.
+ * The same reference files without their lab column: test/e2e/site-no-lab.test.ts.
+ */
+import { mkdtempSync, rmSync } from 'node:fs';
+import { tmpdir } from 'node:os';
+import { join } from 'node:path';
+import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import { prepareSiteSet, runSiteCheck, type PreparedSiteSet } from '../../scripts/site-check.ts';
+
+const dir = mkdtempSync(join(tmpdir(), 'tideline-site-e2e-'));
+afterAll(() => rmSync(dir, { recursive: true, force: true }));
+const log = (l: string) => console.log(`  [site e2e] ${l}`);
+
+let prepared: PreparedSiteSet;
+beforeAll(() => {
+  // 16 reference batches; 6 good test batches, 2 slow-drying and 1 of every other dryer fault.
+  prepared = prepareSiteSet(dir, { seed: 14, reference: 16, good: 6, perFault: 1, perFaultByType: { 'slow-drying': 2 } });
+});
+
+describe("a site's dryer batches to an endpoint, through the public paths", () => {
+  it('imports, builds with the lab moisture, approves, deploys, streams; the endpoint calls hold against the truth', async () => {
+    const t0 = performance.now();
+    const run = await runSiteCheck({ dir, prepared, log });
+    const f = run.figures;
+    // The figures of the run, for the record (the assertions follow).
+    console.log(
+      `site e2e: ${f.site_reference_batches} reference, ${f.site_test_batches} test batches; early max ${f.site_endpoint_early_max_intervals} intervals (${f.site_endpoint_early_max?.toFixed(2)} min), ` +
+        `error median ${f.site_endpoint_error_median_intervals} intervals (${f.site_endpoint_error_median?.toFixed(2)} min), |error| max ${f.site_endpoint_error_abs_max_intervals} intervals, ` +
+        `done while alarm ${f.site_done_while_alarm}, pace ${f.site_pace_detected}/${f.site_pace_batches} (false ${f.site_pace_false}), held ${f.site_held_batches}; ` +
+        `approval ${run.approval.firstStatus}${run.approval.overrideUsed ? ' (override used)' : ''}; stages ${JSON.stringify(run.timings)}; ${Math.round(performance.now() - t0)} ms`,
+    );
+    for (const o of run.outcomes) {
+      console.log(
+        `  ${o.id} ${o.group}: true ${o.trueEndpointIndex}, done ${o.doneIndex} (${o.doneError}; rule crossing ${o.ruleIndex}, ${o.doneVsRule}; true moisture ${o.moistureAtDone?.toFixed(3)} % w/w), held ${o.held.length} [${o.holdCodes}], ` +
+          `alarms at done [${o.alarmsAtDone}], onset ${o.faultOnsetIndex}, first T²/Q ${o.firstT2QIndex}, pace ${o.paceIndex} (after done ${o.paceAtOrAfterDone}), states ${o.states.join('>')}`,
+      );
+    }
+
+    // The version shows the property model and the resolved endpoint rule.
+    expect(run.detail.property?.name).toBe('moisture');
+    expect(run.detail.endpoint?.criteria?.[0]?.kind).toBe('property');
+
+    const good = run.outcomes.filter((o) => o.group === 'good');
+    expect(good.length).toBe(6);
+    for (const o of good) {
+      expect(o.doneIndex, `${o.id}: a good batch must be called done`).not.toBeNull();
+      expect(o.doneError!, `${o.id}: done ${-o.doneError!} intervals early`).toBeGreaterThanOrEqual(-1);
+    }
+    for (const o of run.outcomes) {
+      if (o.doneIndex === null) continue;
+      expect(o.trueEndpointIndex, `${o.id} (${o.group}) was called done but never reached its endpoint`).not.toBeNull();
+      expect(o.doneError!, `${o.id} (${o.group}): done ${-o.doneError!} intervals early`).toBeGreaterThanOrEqual(-5);
+      // Late side: within 5 intervals of where the approved rule's resolved threshold (target −
+      // margin) is crossed by the true moisture — later only after a hold. (Against the 2 % target
+      // itself the calls are later by the margin: site_endpoint_error_* report it.)
+      expect(o.ruleIndex, `${o.id} (${o.group}): done although the true moisture never crossed the rule's threshold`).not.toBeNull();
+      if (o.held.length === 0) expect(Math.abs(o.doneVsRule!), `${o.id} (${o.group}): done ${o.doneVsRule} intervals from the rule's crossing without a hold`).toBeLessThanOrEqual(5);
+      expect(o.alarmsAtDone, `${o.id} (${o.group}): done while ${o.alarmsAtDone.join(', ')} stood`).toEqual([]);
+    }
+    // Wrong material: T² far beyond its limit from the fault on. The endpoint must not be called
+    // while it stands; where the moisture rule was met meanwhile, the endpoint was held (with the
+    // standing alarm, or the prediction outside its calibration, as its reason).
+    const wrong = run.outcomes.filter((o) => o.group === 'wrong-material');
+    expect(wrong).toHaveLength(1);
+    for (const o of wrong) {
+      expect(o.firstT2QIndex, `${o.id}: wrong material not caught by T²/Q`).not.toBeNull();
+      expect(o.t2OverLimitAtDone, `${o.id}: done at a spectrum whose T² is beyond its limit`).not.toBe(true);
+      if (o.doneIndex !== null || o.states.includes('held')) {
+        expect(o.holdCodes.filter((c) => c === 'alarm' || c === 'extrapolating'), `${o.id}: reached the rule without a hold for its alarm (states ${o.states.join('>')})`).not.toEqual([]);
+      }
+    }
+    // Slow drying: flagged by pace after the heater faltered, and still flagged once the batch is
+    // done and ended: the pace alarm is in the batch's alarm list read back after the batch.
+    const slow = run.outcomes.filter((o) => o.group === 'slow-drying');
+    expect(slow).toHaveLength(2);
+    for (const o of slow) {
+      expect(o.paceIndex, `${o.id}: slow drying not flagged by pace`).not.toBeNull();
+      expect(o.paceIndex!).toBeGreaterThanOrEqual(o.faultOnsetIndex!);
+      expect(o.alarmKeys, `${o.id}: no pace alarm listed for the batch after it ended`).toContain('pace');
+    }
+  }, 15 * 60_000);
+});
