@@ -24,6 +24,7 @@ import { LiveHub } from './live/live-hub.ts';
 import { createLogger, type Logger } from './logger.ts';
 import { createMetrics } from './metrics.ts';
 import { SqliteStorage } from './storage/sqlite-storage.ts';
+import { StartupError } from './startup-error.ts';
 import { HttpProblem, problemHandler } from './api/problem.ts';
 import { RouteTable } from './api/route-table.ts';
 import { addPlantRoutes, remoteAddresses } from './api/routes-plant.ts';
@@ -57,12 +58,15 @@ export interface StartOptions {
 export async function startServer(config: ServerConfig, opts: StartOptions = {}): Promise<TidelineServer> {
   const log = opts.log ?? createLogger(config.logLevel);
   const now = opts.now ?? Date.now;
+  const app = express();
+  app.disable('x-powered-by');
+  // https (and wss) when tls.cert/tls.key are configured (docs/security.md); made first, so that a
+  // certificate that cannot be used stops the start before the database is opened
+  const http = createWebServer(app, config.tls);
   const storage = new SqliteStorage({ file: opts.dbFile ?? join(config.dataDir, 'tideline.db'), synchronous: config.synchronous, checkpointInWorker: config.walCheckpoint === 'worker' });
   const metrics = createMetrics();
   const events = new EventEmitter();
   events.setMaxListeners(100);
-  const app = express();
-  app.disable('x-powered-by');
   const api = express.Router();
   const closers: (() => void | Promise<void>)[] = [];
   const pipeline = new IngestPipeline(storage, config, events, metrics, log, now);
@@ -127,8 +131,6 @@ export async function startServer(config: ServerConfig, opts: StartOptions = {})
   }
   app.use(problemHandler(log));
 
-  // https (and wss) when tls.cert/tls.key are configured (docs/security.md)
-  const http = createWebServer(app, config.tls);
   const ingestWss = new WebSocketServer({ noServer: true, maxPayload: MAX_MESSAGE_BYTES, perMessageDeflate: false });
   const liveWss = new WebSocketServer({ noServer: true, maxPayload: 64 * 1024, perMessageDeflate: false });
   const conns = new Set<IngestConnection>();
@@ -179,18 +181,6 @@ export async function startServer(config: ServerConfig, opts: StartOptions = {})
   }, config.ingest.heartbeatMs);
   heartbeat.unref();
 
-  await new Promise<void>((res, rej) => {
-    http.once('error', rej);
-    http.listen(config.port, config.host, () => {
-      http.off('error', rej);
-      res();
-    });
-  });
-  const addr = http.address();
-  const port = typeof addr === 'object' && addr ? addr.port : config.port;
-  const host = config.host.includes(':') ? `[${config.host}]` : config.host;
-  log.info(`Tideline ${VERSION} listening on ${schemes(config.tls).http}://${host}:${port} (data: ${opts.dbFile ?? join(config.dataDir, 'tideline.db')})`);
-
   let closing: Promise<void> | null = null;
   const close = () =>
     (closing ??= (async () => {
@@ -207,6 +197,27 @@ export async function startServer(config: ServerConfig, opts: StartOptions = {})
       for (const fn of closers.reverse()) await fn();
       await storage.close();
     })());
+
+  try {
+    await new Promise<void>((res, rej) => {
+      http.once('error', rej);
+      http.listen(config.port, config.host, () => {
+        http.off('error', rej);
+        res();
+      });
+    });
+  } catch (e) {
+    await close().catch(() => undefined);
+    const code = (e as { code?: string }).code;
+    if (code === 'EADDRINUSE') throw new StartupError(`port ${config.port} on ${config.host} is already in use (setting port; 0 picks a free port)`);
+    if (code === 'EACCES') throw new StartupError(`port ${config.port} on ${config.host} may not be opened by this user (setting port: use one above 1023, or a proxy)`);
+    if (code === 'EADDRNOTAVAIL') throw new StartupError(`address ${config.host} is not an address of this machine (setting host)`);
+    throw e;
+  }
+  const addr = http.address();
+  const port = typeof addr === 'object' && addr ? addr.port : config.port;
+  const host = config.host.includes(':') ? `[${config.host}]` : config.host;
+  log.info(`Tideline ${VERSION} listening on ${schemes(config.tls).http}://${host}:${port} (data: ${opts.dbFile ?? join(config.dataDir, 'tideline.db')})`);
 
   return { ctx, http, port, url: `${schemes(config.tls).http}://${host}:${port}`, routes, close };
 }

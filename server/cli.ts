@@ -17,6 +17,7 @@ import { join } from 'node:path';
 import { ConfigError, ENV_VARS, loadConfig } from './config.ts';
 import { SqliteStorage } from './storage/sqlite-storage.ts';
 import { createAnalyzerToken } from './ingest/analyzer-tokens.ts';
+import { StartupError } from './startup-error.ts';
 
 const HELP = `usage: npm run tideline -- <command> [--flag value …]
 
@@ -131,12 +132,26 @@ async function main(argv: string[]): Promise<number> {
       const { startServer } = await import('./app.ts');
       const s = await startServer(config);
       process.stdout.write(`Tideline is running at ${s.url}/  (Ctrl-C stops it)\n`);
-      await new Promise<void>((res) => {
-        const stop = () => res();
-        process.once('SIGINT', stop);
-        process.once('SIGTERM', stop);
+      const signal = await new Promise<string>((res) => {
+        process.once('SIGINT', () => res('SIGINT'));
+        process.once('SIGTERM', () => res('SIGTERM'));
       });
+      // Shutdown is bounded: a signal channel waiting on a broker or receiver that is gone must not
+      // keep the process alive. Every acked spectrum is already committed; an event whose delivery
+      // is cut short is sent again after the restart (the channel's cursor had not moved).
+      const limit = config.shutdownTimeoutMs;
+      const deadline = setTimeout(() => {
+        process.stderr.write(`tideline: shutdown after ${signal} did not finish within ${limit} ms (setting shutdownTimeoutMs); exiting now\n`);
+        process.exit(1);
+      }, limit);
+      const again = () => {
+        process.stderr.write('tideline: second stop signal; exiting now\n');
+        process.exit(1);
+      };
+      process.once('SIGINT', again);
+      process.once('SIGTERM', again);
       await s.close();
+      clearTimeout(deadline);
       return 0;
     }
     case 'migrate': {
@@ -179,7 +194,7 @@ async function main(argv: string[]): Promise<number> {
 main(process.argv.slice(2)).then(
   (code) => process.exit(code),
   (e) => {
-    process.stderr.write(e instanceof ConfigError ? `tideline: ${e.message}\n` : `tideline: ${(e as Error).stack ?? e}\n`);
+    process.stderr.write(e instanceof StartupError ? `tideline: ${e.message}\n` : `tideline: ${(e as Error).stack ?? e}\n`);
     process.exit(2);
   },
 );

@@ -5,6 +5,8 @@
 import { readFileSync } from 'node:fs';
 import { z } from 'zod';
 import { authConfigSchema, tlsConfigSchema } from './auth/security-config.ts';
+import { parseSignalsConfig } from './signals/config.ts';
+import { StartupError } from './startup-error.ts';
 
 export const configSchema = z
   .object({
@@ -95,13 +97,18 @@ export const configSchema = z
     /** Import/export settings (server/transfer validates this part). */
     transfer: z.unknown().optional(),
     logLevel: z.enum(['silent', 'error', 'warn', 'info', 'debug']).default('info'),
+    /**
+     * After SIGTERM/SIGINT, the longest `serve` waits for a clean stop (signal channels finishing a
+     * delivery, the last group commit) before it exits anyway, ms.
+     */
+    shutdownTimeoutMs: z.number().int().min(1000).max(600_000).default(15_000),
   })
   .strict();
 
 export type ServerConfig = z.infer<typeof configSchema>;
 export type ServerConfigInput = z.input<typeof configSchema>;
 
-export class ConfigError extends Error {
+export class ConfigError extends StartupError {
   override name = 'ConfigError';
 }
 
@@ -181,8 +188,16 @@ export function loadConfig(opts: { env?: NodeJS.ProcessEnv; flags?: Record<strin
     setPath(merged, path, coerce(path, v, `flag --${k}`));
   }
   if (opts.overrides) deepAssign(merged, opts.overrides as Record<string, unknown>);
+  const source = file ? `configuration (file ${file})` : 'configuration';
   const res = configSchema.safeParse(merged);
-  if (!res.success) throw new ConfigError(describe(res.error, 'configuration'));
+  if (!res.success) throw new ConfigError(describe(res.error, source));
+  // The signal channels validate their own part; checked here too, so that a mistake there stops
+  // the server before it starts with a sentence naming the file and the setting.
+  try {
+    parseSignalsConfig(res.data.signals);
+  } catch (e) {
+    throw new ConfigError((e as Error).message.split('\n').map((l) => `${source}: ${l}`).join('\n'));
+  }
   return res.data;
 }
 

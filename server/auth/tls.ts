@@ -6,6 +6,7 @@
 import { readFileSync } from 'node:fs';
 import http from 'node:http';
 import https from 'node:https';
+import { StartupError } from '../startup-error.ts';
 import type { TlsConfig } from './security-config.ts';
 
 function readPem(path: string, what: string): Buffer {
@@ -13,9 +14,9 @@ function readPem(path: string, what: string): Buffer {
   try {
     b = readFileSync(path);
   } catch (e) {
-    throw new Error(`tls.${what}: cannot read ${path} (${(e as Error).message})`);
+    throw new StartupError(`tls.${what}: cannot read the file ${path} (${(e as Error).message})`);
   }
-  if (!b.toString('latin1').includes('-----BEGIN ')) throw new Error(`tls.${what}: ${path} is not a PEM file`);
+  if (!b.toString('latin1').includes('-----BEGIN ')) throw new StartupError(`tls.${what}: the file ${path} is not a PEM file (no -----BEGIN line)`);
   return b;
 }
 
@@ -36,7 +37,7 @@ export function createWebServer(handler: http.RequestListener, tls: TlsConfig | 
   try {
     return https.createServer(opts, handler);
   } catch (e) {
-    throw new Error(`tls: certificate or key not usable (${(e as Error).message})`);
+    throw new StartupError(`tls.cert ${tls.cert} and tls.key ${tls.key}: the certificate or key is not usable (${(e as Error).message})${tls.passphrase ? '' : '; an encrypted key needs tls.passphrase'}`);
   }
 }
 

@@ -110,7 +110,14 @@ export async function install(ctx: ServerContext): Promise<SignalsHandle> {
   addSignalRoutes(ctx.routes, ctx, store, dispatchers, opcua);
 
   ctx.onClose(async () => {
-    for (const d of dispatchers) await d.stop();
+    // A delivery in flight to a receiver that has gone silent may wait its whole timeout (per
+    // channel settings, up to minutes): shutdown waits at most 3 s for it, then stops the channels.
+    // Its event was not marked delivered, so it is sent again after the restart.
+    const stopped = Promise.all(dispatchers.map((d) => d.stop()));
+    let timer: NodeJS.Timeout | undefined;
+    const waited = await Promise.race([stopped.then(() => true), new Promise<boolean>((r) => (timer = setTimeout(() => r(false), 3000)))]);
+    clearTimeout(timer);
+    if (!waited) ctx.log.warn('signals: a delivery was still in flight at shutdown; it will be sent again after the restart');
     await mqtt?.stop();
     await opcua?.stop();
   });

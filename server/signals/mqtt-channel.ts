@@ -132,14 +132,33 @@ export class MqttChannel implements SignalChannel {
     return this.states.get(unit);
   }
 
-  /** Publish 'offline' (retained) and disconnect. */
+  /**
+   * Publish 'offline' (retained) and disconnect, in bounded time: with the broker gone (or gone
+   * silent) neither the offline message nor mqtt.js's wait for in-flight PUBACKs may hold the
+   * shutdown. Each wait is capped at publishTimeoutMs (at most 2 s), then the connection is
+   * dropped; events not acknowledged are sent again after a restart (the cursor had not moved), and
+   * the last will tells subscribers the server went offline.
+   */
   async stop(): Promise<void> {
     const client = this.client;
     if (!client) return;
     this.client = null;
+    const capMs = Math.min(this.cfg.publishTimeoutMs, 2000);
+    const within = (p: Promise<unknown>) =>
+      new Promise<boolean>((resolve) => {
+        const timer = setTimeout(() => resolve(false), capMs);
+        p.then(
+          () => (clearTimeout(timer), resolve(true)),
+          () => (clearTimeout(timer), resolve(false)),
+        );
+      });
     if (client.connected) {
-      await new Promise<void>((resolve) => client.publish(this.topics.status, this.statusPayload(false), { qos: 1, retain: true }, () => resolve()));
+      await within(new Promise<void>((resolve) => client.publish(this.topics.status, this.statusPayload(false), { qos: 1, retain: true }, () => resolve())));
     }
-    await client.endAsync();
+    // A clean DISCONNECT only when connected with nothing in flight; else drop the connection.
+    const inFlight = Object.keys(client.outgoing).length > 0;
+    if (client.connected && !inFlight && (await within(client.endAsync(false)))) return;
+    if (!client.disconnecting) await within(client.endAsync(true));
+    client.stream?.destroy();
   }
 }

@@ -9,6 +9,7 @@ import type { Alarm, EvaluationResult } from '../../core/api/rest.ts';
 import { checkLabValueAdditions } from '../../core/lab/lab-values.ts';
 import type { MonitorResult } from '../../core/monitor/types.ts';
 import { migrate } from './migrate.ts';
+import { checkDatabaseFile, describeOpenError } from './open-check.ts';
 import { startCheckpointer, type Checkpointer } from './checkpointer.ts';
 import { INGEST_SQL, startIngestWriter, type IngestWriter } from './ingest-writer.ts';
 import type {
@@ -117,13 +118,27 @@ export class SqliteStorage implements Storage {
   private writer: IngestWriter | null = null;
 
   constructor(opts: SqliteOptions) {
-    if (opts.file !== ':memory:') mkdirSync(dirname(opts.file), { recursive: true });
-    this.db = new Database(opts.file);
-    this.db.pragma('journal_mode = WAL');
-    this.db.pragma(`synchronous = ${opts.synchronous ?? 'FULL'}`);
-    this.db.pragma('foreign_keys = ON');
-    this.db.pragma('busy_timeout = 5000');
-    migrate(this.db);
+    if (opts.file !== ':memory:') {
+      mkdirSync(dirname(opts.file), { recursive: true });
+      checkDatabaseFile(opts.file);
+    }
+    try {
+      this.db = new Database(opts.file);
+    } catch (e) {
+      throw describeOpenError(opts.file, e);
+    }
+    try {
+      this.db.pragma('busy_timeout = 5000');
+      this.db.pragma(`synchronous = ${opts.synchronous ?? 'FULL'}`);
+      this.db.pragma('foreign_keys = ON');
+      // migrate() checks the database before writing anything; WAL mode (which rewrites the
+      // header) is set only on a database that passed.
+      migrate(this.db, undefined, opts.file);
+      this.db.pragma('journal_mode = WAL');
+    } catch (e) {
+      this.db.close();
+      throw describeOpenError(opts.file, e);
+    }
     if (opts.file !== ':memory:' && opts.checkpointInWorker !== false) {
       this.db.pragma('wal_autocheckpoint = 0');
       this.db.pragma('journal_size_limit = 67108864');
