@@ -2,6 +2,7 @@
  * Builds and starts a Tideline server: storage, ingest pipeline, live hub, REST API, metrics,
  * the dashboard, and the parts other engineers install through ServerContext.
  */
+import { createHash, timingSafeEqual } from 'node:crypto';
 import { EventEmitter } from 'node:events';
 import { existsSync, readFileSync } from 'node:fs';
 import type { IncomingMessage, Server } from 'node:http';
@@ -114,7 +115,22 @@ export async function startServer(config: ServerConfig, opts: StartOptions = {})
   api.use(problemHandler(log));
   app.use('/api', api);
 
-  app.get('/metrics', async (_req, res) => {
+  // /metrics as the metrics.access setting says: off (404), token (Bearer, compared in constant
+  // time) or open. Metrics name units, batches' counts and error codes: not for everyone by default.
+  const metricsToken = config.metrics.token === null ? null : createHash('sha256').update(config.metrics.token).digest();
+  app.get('/metrics', async (req, res) => {
+    if (config.metrics.access === 'off') {
+      res.status(404).type('text/plain').send('metrics are off (setting metrics.access: off | token | open)\n');
+      return;
+    }
+    if (config.metrics.access === 'token') {
+      const m = /^Bearer (.+)$/.exec(req.get('authorization') ?? '');
+      const given = m ? createHash('sha256').update(m[1]!).digest() : null;
+      if (!given || !metricsToken || !timingSafeEqual(given, metricsToken)) {
+        res.status(401).set('WWW-Authenticate', 'Bearer realm="tideline-metrics"').type('text/plain').send('metrics need Authorization: Bearer <metrics.token>\n');
+        return;
+      }
+    }
     res.type(metrics.registry.contentType).send(await metrics.registry.metrics());
   });
   app.get('/healthz', (_req, res) => void res.json({ ok: true }));

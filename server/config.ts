@@ -96,6 +96,19 @@ export const configSchema = z
     signals: z.unknown().optional(),
     /** Import/export settings (server/transfer validates this part). */
     transfer: z.unknown().optional(),
+    /**
+     * Who may read Prometheus metrics at /metrics: 'off' (404, the default), 'token' (a request must
+     * send `Authorization: Bearer <metrics.token>`) or 'open' (anyone who reaches the port).
+     */
+    metrics: z
+      .object({
+        access: z.enum(['off', 'token', 'open']).default('off'),
+        /** For access 'token': at least 32 characters (e.g. `openssl rand -hex 24`). */
+        token: z.string().min(32, 'must be at least 32 characters (e.g. openssl rand -hex 24)').max(512).nullable().default(null),
+      })
+      .strict()
+      .prefault({})
+      .refine((m) => m.access !== 'token' || m.token !== null, { message: "access 'token' needs metrics.token (at least 32 characters)" }),
     logLevel: z.enum(['silent', 'error', 'warn', 'info', 'debug']).default('info'),
     /**
      * After SIGTERM/SIGINT, the longest `serve` waits for a clean stop (signal channels finishing a
@@ -129,6 +142,8 @@ export const ENV_VARS: Record<string, string> = {
   TIDELINE_GROUP_COMMIT_MS: 'ingest.groupCommitMs',
   TIDELINE_LOG_LEVEL: 'logLevel',
   TIDELINE_LAB_MATCH_TOLERANCE_MS: 'lab.matchToleranceMs',
+  TIDELINE_METRICS_ACCESS: 'metrics.access',
+  TIDELINE_METRICS_TOKEN: 'metrics.token',
 };
 
 function setPath(obj: Record<string, unknown>, path: string, value: unknown) {
@@ -141,7 +156,7 @@ function setPath(obj: Record<string, unknown>, path: string, value: unknown) {
   o[parts[parts.length - 1]!] = value;
 }
 
-const TEXT = new Set(['host', 'dataDir', 'webDir', 'synchronous', 'logLevel', 'walCheckpoint', 'tls.cert', 'tls.key', 'tls.ca', 'tls.passphrase']);
+const TEXT = new Set(['host', 'dataDir', 'webDir', 'synchronous', 'logLevel', 'walCheckpoint', 'tls.cert', 'tls.key', 'tls.ca', 'tls.passphrase', 'metrics.access', 'metrics.token']);
 
 function coerce(path: string, raw: string, source: string): unknown {
   if (path === 'webDir' && (raw === '' || raw === 'none')) return null;
@@ -199,6 +214,23 @@ export function loadConfig(opts: { env?: NodeJS.ProcessEnv; flags?: Record<strin
     throw new ConfigError((e as Error).message.split('\n').map((l) => `${source}: ${l}`).join('\n'));
   }
   return res.data;
+}
+
+/** Keys whose values are secrets: never printed, never logged. */
+export const SECRET_KEY_RE = /secret|password|passphrase|token|apikey|api_key|privatekey/i;
+
+/**
+ * A copy of the configuration for printing: every value under a secret-looking key is replaced by
+ * "(hidden, N characters)", so `tideline config` output can be pasted into a ticket.
+ */
+export function redactConfig<T>(value: T): T {
+  const walk = (v: unknown, key: string): unknown => {
+    if (typeof v === 'string' && SECRET_KEY_RE.test(key)) return `(hidden, ${v.length} characters)`;
+    if (Array.isArray(v)) return v.map((x) => walk(x, key));
+    if (v && typeof v === 'object') return Object.fromEntries(Object.entries(v).map(([k, x]) => [k, walk(x, SECRET_KEY_RE.test(key) ? key : k)]));
+    return v;
+  };
+  return walk(value, '') as T;
 }
 
 function deepAssign(target: Record<string, unknown>, src: Record<string, unknown>) {

@@ -15,6 +15,7 @@
  * check, out of specification, maintenance required). It is a log entry like `batch-start`: it
  * carries a seq, is persisted and acked, and may come at any time, with or without an open batch.
  */
+import { nameSchema } from '../io/names.ts';
 import { z } from 'zod';
 
 export const PROTOCOL_VERSION = 1;
@@ -45,7 +46,7 @@ export const helloSchema = z.object({
   /** Wavelength axis in nm, strictly increasing. */
   axis: z.array(z.number().finite()).min(2).max(MAX_SPECTRUM_POINTS),
   /** Optional free text for the record: vendor, model, serial, firmware. */
-  instrument: z.string().max(256).optional(),
+  instrument: nameSchema({ max: 256, empty: true }).optional(),
 });
 
 export const batchStartSchema = z.object({
@@ -54,7 +55,7 @@ export const batchStartSchema = z.object({
   t: timeSchema,
   unit: idSchema,
   batch: idSchema,
-  product: z.string().min(1).max(128),
+  product: nameSchema({ max: 128 }),
 });
 
 export const batchEndSchema = z.object({
@@ -80,9 +81,9 @@ export const analyzerStatusSchema = z.object({
   t: timeSchema,
   status: z.enum(NE107_CATEGORIES),
   /** The analyzer's own diagnostic code, e.g. a vendor code or 'probe-cleaning'. */
-  code: z.string().min(1).max(64).optional(),
+  code: nameSchema({ max: 64 }).optional(),
   /** Free text for the operator and the record. */
-  detail: z.string().max(256).optional(),
+  detail: nameSchema({ max: 256, empty: true }).optional(),
   /** The unit the analyzer serves; default: the unit of its open batch, else of its last batch. */
   unit: idSchema.optional(),
 });

@@ -9,6 +9,7 @@ import type { RouteTable } from './route-table.ts';
 import type { SqliteStorage } from '../storage/sqlite-storage.ts';
 import { modelVersionSummary } from './views.ts';
 import { idSchema } from './routes-plant.ts';
+import { nameSchema } from '../../core/io/names.ts';
 import { recordAudit, userOf } from './audit-helper.ts';
 import { parseMonitoringModel } from '../../core/model/monitoring-model.ts';
 import { earlyBatchesText } from '../../core/model/endpoint-check.ts';
@@ -61,7 +62,7 @@ export function addModelRoutes(t: RouteTable, ctx: ServerContext) {
     method: 'post', path: '/models/build', summary: 'Build a draft model version from ended reference batches and settings (computed in a worker thread; answered when done; 409 while another build runs)', role: 'model-owner',
     response: 'ModelVersionSummary', status: 201,
     body: z.object({
-      name: idSchema, product: z.string().min(1).max(128),
+      name: idSchema, product: nameSchema({ max: 128 }),
       referenceBatches: z.array(idSchema).min(2, 'choose at least 2 reference batches').max(200),
       settings: z.record(z.string(), z.unknown()).optional(),
     }).strict(),
@@ -84,10 +85,10 @@ export function addModelRoutes(t: RouteTable, ctx: ServerContext) {
     role: 'viewer', response: 'ApprovalEvidence',
     params: versionParams, handler: async ({ params }) => guard(async () => latestApprovalEvidence(ctx, (await load(params.version)).id)),
   });
-  const signBody = z.object({ reason: z.string().trim().min(1, 'give a reason').max(2000), password: z.string().max(1024).optional() }).strict();
+  const signBody = z.object({ reason: z.string().trim().min(1, 'give a reason').pipe(nameSchema({ max: 2000, multiline: true })), password: z.string().max(1024).optional() }).strict();
   const approveBody = signBody.extend({
-    earlyEndpointOverride: z.string().trim().min(1, 'give the reason for the override').max(2000).optional(),
-    evidenceOverride: z.string().trim().min(1, 'give the reason for approving against the evidence').max(2000).optional(),
+    earlyEndpointOverride: z.string().trim().min(1, 'give the reason for the override').pipe(nameSchema({ max: 2000, multiline: true })).optional(),
+    evidenceOverride: z.string().trim().min(1, 'give the reason for approving against the evidence').pipe(nameSchema({ max: 2000, multiline: true })).optional(),
   }).strict();
   t.add({
     method: 'post', path: '/models/versions/:version/approve',

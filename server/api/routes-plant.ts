@@ -14,6 +14,7 @@ import type { RouteTable } from './route-table.ts';
 import { analyzerSummary, deploymentView } from './views.ts';
 import { recordAudit, userOf } from './audit-helper.ts';
 import { DEFAULT_ALARM_SETTINGS } from '../../core/alarms/types.ts';
+import { nameSchema } from '../../core/io/names.ts';
 
 /** The longest shelve an operator may ask for (core/alarms default: 8 h, one shift). */
 const MAX_SHELVE_MIN = DEFAULT_ALARM_SETTINGS.maxShelveMs / 60_000;
@@ -40,6 +41,7 @@ export function addPlantRoutes(t: RouteTable, ctx: ServerContext, startedAt: num
   t.add({
     method: 'get', path: '/units', summary: 'All units with their status now', role: 'viewer', response: 'Page<UnitSummary>',
     handler: async (): Promise<Page<UnitSummary>> => {
+      await ctx.ingest.refreshUnits();
       const items = [...ctx.ingest.units.keys()].sort().map((u) => strip(ctx.ingest.unitStatus(u)!));
       return { items, total: items.length, limit: items.length, offset: 0 };
     },
@@ -48,6 +50,7 @@ export function addPlantRoutes(t: RouteTable, ctx: ServerContext, startedAt: num
     method: 'get', path: '/units/:unit', summary: 'One unit with its status now', role: 'viewer', response: 'UnitSummary',
     params: z.object({ unit: idSchema }),
     handler: async ({ params }) => {
+      if (!ctx.ingest.units.has(params.unit)) await ctx.ingest.refreshUnits();
       const s = ctx.ingest.unitStatus(params.unit);
       if (!s) throw notFound(`unit "${params.unit}" does not exist`);
       return strip(s);
@@ -55,9 +58,10 @@ export function addPlantRoutes(t: RouteTable, ctx: ServerContext, startedAt: num
   });
   t.add({
     method: 'post', path: '/units', summary: 'Create a unit', role: 'administrator', response: 'UnitSummary', status: 201,
-    body: z.object({ id: idSchema, name: z.string().min(1).max(200).optional(), kind: z.enum(['dryer', 'reactor', 'other']).default('other'), description: z.string().max(2000).default('') }).strict(),
+    body: z.object({ id: idSchema, name: nameSchema().optional(), kind: z.enum(['dryer', 'reactor', 'other']).default('other'), description: nameSchema({ max: 2000, multiline: true, empty: true }).default('') }).strict(),
     handler: async ({ body, req }) => {
-      if (ctx.ingest.units.has(body.id)) throw conflict(`unit "${body.id}" already exists`);
+      // A unit created by the command line beside the running server is in the database only.
+      if (ctx.ingest.units.has(body.id) || (await ctx.ingest.refreshUnits()).includes(body.id)) throw conflict(`unit "${body.id}" already exists`);
       const row = { id: body.id, name: body.name ?? body.id, kind: body.kind, description: body.description, createdAt: ctx.now() };
       await ctx.storage.createUnit(row);
       ctx.ingest.addUnit(row);
@@ -76,7 +80,7 @@ export function addPlantRoutes(t: RouteTable, ctx: ServerContext, startedAt: num
   });
   t.add({
     method: 'post', path: '/analyzers', summary: 'Register an analyzer and issue its token (shown once)', role: 'administrator', response: 'CreateAnalyzerResponse', status: 201,
-    body: z.object({ id: idSchema, name: z.string().min(1).max(200).optional() }).strict(),
+    body: z.object({ id: idSchema, name: nameSchema().optional() }).strict(),
     handler: async ({ body, req }): Promise<CreateAnalyzerResponse> => {
       if (await ctx.storage.getAnalyzer(body.id)) throw conflict(`analyzer "${body.id}" already exists`);
       await ctx.storage.createAnalyzer({ id: body.id, name: body.name ?? body.id, createdAt: ctx.now() });
@@ -97,6 +101,7 @@ export function addPlantRoutes(t: RouteTable, ctx: ServerContext, startedAt: num
     },
   });
   const loadForDeploy = async (unit: string, versionId: string) => {
+    if (!ctx.ingest.units.has(unit)) await ctx.ingest.refreshUnits();
     if (!ctx.ingest.units.has(unit)) throw notFound(`unit "${unit}" does not exist`);
     const m = await ctx.storage.getModelVersion(versionId);
     if (!m) throw notFound(`model version "${versionId}" does not exist`);
@@ -114,7 +119,7 @@ export function addPlantRoutes(t: RouteTable, ctx: ServerContext, startedAt: num
     summary: 'Deploy an approved model version to a unit (batches started afterwards use it). Refused (422 model-does-not-fit) when the version cannot judge the unit (analyzer axis, product, unit kind); when it drops the endpoint property of the version it replaces, confirmEndpointLoss (a reason) is required (422 endpoint-would-be-lost). The answer and the audit entry carry the comparison.',
     role: 'model-owner',
     response: 'DeployResult', status: 201,
-    body: z.object({ unit: idSchema, versionId: z.string().min(1).max(128), reason: z.string().max(2000).optional(), confirmEndpointLoss: z.string().trim().min(1, 'give the reason for dropping the endpoint property').max(2000).optional() }).strict(),
+    body: z.object({ unit: idSchema, versionId: z.string().min(1).max(128), reason: nameSchema({ max: 2000, multiline: true, empty: true }).optional(), confirmEndpointLoss: z.string().trim().min(1, 'give the reason for dropping the endpoint property').pipe(nameSchema({ max: 2000, multiline: true })).optional() }).strict(),
     handler: async ({ body, req }): Promise<DeployResult> => {
       const m = await loadForDeploy(body.unit, body.versionId);
       if (m.status !== 'approved') throw conflict(`model version ${m.name} v${m.version} is ${m.status}; only an approved version can be deployed`);
@@ -161,7 +166,7 @@ export function addPlantRoutes(t: RouteTable, ctx: ServerContext, startedAt: num
   };
   t.add({
     method: 'post', path: '/alarms/:alarm/acknowledge', summary: 'Acknowledge an alarm (ISA-18.2)', role: 'operator', response: 'Alarm',
-    params: alarmParams, body: z.object({ comment: z.string().max(2000).optional() }).strict(),
+    params: alarmParams, body: z.object({ comment: nameSchema({ max: 2000, multiline: true, empty: true }).optional() }).strict(),
     handler: async ({ params, body, req }) => {
       const before = await ctx.storage.getAlarm(params.alarm);
       const a = await wrap(() => ctx.ingest.acknowledgeAlarm(params.alarm, userOf(req), body.comment ?? null));
@@ -172,7 +177,7 @@ export function addPlantRoutes(t: RouteTable, ctx: ServerContext, startedAt: num
   t.add({
     method: 'post', path: '/alarms/:alarm/shelve', summary: 'Shelve an alarm for a while, with a reason (ISA-18.2 shelving)', role: 'operator', response: 'Alarm',
     params: alarmParams,
-    body: z.object({ minutes: z.number().int().min(1, 'shelve for at least 1 minute').max(MAX_SHELVE_MIN, `shelve for at most ${MAX_SHELVE_MIN} minutes (one shift)`), reason: z.string().trim().min(1, 'give a reason').max(2000) }).strict(),
+    body: z.object({ minutes: z.number().int().min(1, 'shelve for at least 1 minute').max(MAX_SHELVE_MIN, `shelve for at most ${MAX_SHELVE_MIN} minutes (one shift)`), reason: z.string().trim().min(1, 'give a reason').pipe(nameSchema({ max: 2000, multiline: true })) }).strict(),
     handler: async ({ params, body, req }) => {
       const a = await wrap(() => ctx.ingest.shelveAlarm(params.alarm, userOf(req), body.minutes, body.reason));
       await recordAudit(ctx, { user: userOf(req), action: 'alarm.shelve', object: `alarm:${a.id}`, after: { shelvedUntil: a.shelvedUntil }, reason: body.reason });

@@ -15,7 +15,7 @@ import type { Auth } from '../auth/types.ts';
 import { RouteTable } from '../api/route-table.ts';
 import { authValidate } from '../auth/auth-routes.ts';
 import { HttpError, problemErrorHandler } from '../auth/http-problem.ts';
-import { AuditInputError, MAX_LIST, type SqliteAuditTrail } from './audit-trail.ts';
+import { AuditInputError, MAX_LIST, formatAnchor, parseAnchors, type SqliteAuditTrail } from './audit-trail.ts';
 import type { AuditFilter, AuditRecord } from './types.ts';
 
 /** Answer of GET /api/audit. */
@@ -77,9 +77,16 @@ export function auditRoutes(trail: SqliteAuditTrail, now: () => number): RouteTa
   });
 
   t.add({
-    method: 'get', path: '/verify', summary: 'Check the hash chain of the whole trail (200 either way; ok says)', role: 'viewer',
+    method: 'get', path: '/verify', summary: 'Check the hash chain of the whole trail, and against anchors kept outside (anchor=SEQ:HASH, repeatable; 200 either way; ok says)', role: 'viewer',
+    query: z.object({ anchor: z.union([z.string().max(200), z.array(z.string().max(200)).max(100)]).optional() }),
     response: 'AuditVerifyResult', responseSource: 'server/audit/types.ts',
-    handler: async () => trail.verify(),
+    handler: async ({ query }) => {
+      const given = query.anchor === undefined ? [] : Array.isArray(query.anchor) ? query.anchor : [query.anchor];
+      const anchors = guard(() => given.flatMap((a) => parseAnchors(a, 'anchor')));
+      const v = trail.verify(anchors);
+      const head = v.ok ? trail.anchor() : null;
+      return head ? { ...v, anchor: formatAnchor(head) } : v;
+    },
   });
 
   t.add({

@@ -8,6 +8,7 @@ import { GENESIS_HASH, recordHash } from './record-hash.ts';
 import { auditToCsv, auditToJson } from './audit-export.ts';
 import {
   SYSTEM_ACTOR,
+  type AuditAnchor,
   type AuditActor,
   type AuditEntry,
   type AuditFilter,
@@ -128,7 +129,49 @@ export class SqliteAuditTrail implements AuditTrail {
     return { ...fields, hash };
   }
 
-  verify(): AuditVerifyResult {
+  anchor(): AuditAnchor | null {
+    const last = this.lastStmt.get() as { seq: number; hash: string } | undefined;
+    return last ? { seq: last.seq, hash: last.hash } : null;
+  }
+
+  verify(anchors: AuditAnchor[] = []): AuditVerifyResult {
+    const chain = this.verifyChain();
+    if (!chain.ok) return chain;
+    // Anchors: each names a record and its hash as they were when the anchor was taken outside.
+    const byseq = this.db.prepare('SELECT hash FROM audit_trail WHERE seq = ?');
+    for (const a of [...anchors].sort((x, y) => x.seq - y.seq)) {
+      const r = byseq.get(a.seq) as { hash: string } | undefined;
+      if (!r) {
+        return {
+          ok: false,
+          count: chain.count,
+          brokenSeq: chain.count + 1,
+          problem: `the anchor ${formatAnchor(a)} names record ${a.seq}, but the trail ends at record ${chain.count}: records were removed from the end (and the head rewritten)`,
+        };
+      }
+      if (r.hash !== a.hash) {
+        return {
+          ok: false,
+          count: chain.count,
+          brokenSeq: a.seq,
+          problem: `record ${a.seq} has hash ${r.hash.slice(0, 12)}…, but the anchor ${formatAnchor(a)} says ${a.hash.slice(0, 12)}…: the chain was rewritten at or before record ${a.seq}`,
+        };
+      }
+    }
+    if (chain.count === 0) {
+      // An empty trail in a database that holds users: every user's creation is audited, so the
+      // records were deleted (with the head) rather than never written.
+      const users = this.db.prepare("SELECT name FROM sqlite_master WHERE type = 'table' AND name = 'auth_users'").get()
+        ? (this.db.prepare('SELECT count(*) AS n FROM auth_users').get() as { n: number }).n
+        : 0;
+      if (users > 0) {
+        return { ok: false, count: 0, brokenSeq: 1, problem: `the trail is empty, but the database holds ${users} user(s) whose creation is audited: the records and the chain head were deleted` };
+      }
+    }
+    return chain;
+  }
+
+  private verifyChain(): AuditVerifyResult {
     const it = this.db.prepare('SELECT * FROM audit_trail ORDER BY seq').iterate() as IterableIterator<Row>;
     let expected = 1;
     let prevHash = GENESIS_HASH;
@@ -247,4 +290,20 @@ export class SqliteAuditTrail implements AuditTrail {
   exportJson(filter: AuditFilter = {}): string {
     return auditToJson(this.all(filter), this.verify(), new Date(this.now()).toISOString());
   }
+}
+
+/** `SEQ:HASH`, the written form of an anchor. */
+export function formatAnchor(a: AuditAnchor): string {
+  return `${a.seq}:${a.hash}`;
+}
+
+/**
+ * Anchors found in text: every `SEQ:HASH` (HASH = 64 hex digits) — a pasted anchor, a file of them,
+ * a saved webhook body or a report's text all work. Throws when the text holds none.
+ */
+export function parseAnchors(text: string, what = 'anchor'): AuditAnchor[] {
+  const out: AuditAnchor[] = [];
+  for (const m of text.matchAll(/\b(\d{1,15}):([0-9a-fA-F]{64})\b/g)) out.push({ seq: Number(m[1]), hash: m[2]!.toLowerCase() });
+  if (out.length === 0) throw new AuditInputError(`${what}: no anchor of the form SEQ:HASH (a record number, a colon and 64 hex digits) in ${JSON.stringify(text.slice(0, 80))}`);
+  return out;
 }

@@ -52,7 +52,7 @@ export interface AuditFilter {
 }
 
 export type AuditVerifyResult =
-  | { ok: true; count: number; headSeq: number; headHash: string }
+  | { ok: true; count: number; headSeq: number; headHash: string; /** `SEQ:HASH` of the head, to keep outside the server. */ anchor?: string }
   | {
       ok: false;
       count: number;
@@ -62,14 +62,29 @@ export type AuditVerifyResult =
       problem: string;
     };
 
+/**
+ * A chain head kept outside the database: record `seq` had hash `hash`. Printed on batch reports,
+ * sent over the signal channels, shown by `audit verify`; written `SEQ:HASH` (64 hex digits).
+ */
+export interface AuditAnchor {
+  seq: number;
+  hash: string;
+}
+
 export interface AuditTrail {
   /**
    * Append one record. Synchronous (better-sqlite3); may be called inside the caller's own
    * db.transaction(), so a state change and its audit record commit together.
    */
   record(entry: AuditEntry): AuditRecord;
-  /** Walk the chain from the first record and name the first broken one. */
-  verify(): AuditVerifyResult;
+  /**
+   * Walk the chain from the first record and name the first broken one; with anchors, also check
+   * that each anchored record is still there with the anchored hash (a trail cut back or rewritten
+   * as a whole no longer matches a head kept outside the database).
+   */
+  verify(anchors?: AuditAnchor[]): AuditVerifyResult;
+  /** The current chain head as an anchor (null while the trail is empty). */
+  anchor(): AuditAnchor | null;
   list(filter?: AuditFilter): AuditRecord[];
   /** Whole trail (or filtered) as CSV text (RFC 4180) or JSON text. */
   exportCsv(filter?: AuditFilter): string;

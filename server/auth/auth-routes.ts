@@ -15,6 +15,7 @@
  * | DELETE | /api/auth/tokens/:id          | administrator | → 204, 404 when unknown or already revoked |
  * | GET    | /api/auth/signatures?objectType=&objectId= | viewer | → {items: SignatureRecord[]} |
  */
+import { nameSchema } from '../../core/io/names.ts';
 import express, { type Request, type Router } from 'express';
 import { z } from 'zod';
 import { RouteTable, type RouteValidator } from '../api/route-table.ts';
@@ -45,7 +46,7 @@ const passwordBody = z.object({ currentPassword: z.string().min(1).max(256), new
 const createUserBody = z
   .object({
     name: z.string().min(1).max(64),
-    fullName: z.string().max(200).optional(),
+    fullName: nameSchema({ empty: true }).optional(),
     role: z.enum(ROLES),
     password: z.string().min(1).max(256),
     mustChangePassword: z.boolean().optional(),
@@ -54,14 +55,14 @@ const createUserBody = z
 const updateUserBody = z
   .object({
     role: z.enum(ROLES).optional(),
-    fullName: z.string().max(200).optional(),
+    fullName: nameSchema({ empty: true }).optional(),
     disabled: z.boolean().optional(),
     password: z.string().min(1).max(256).optional(),
     mustChangePassword: z.boolean().optional(),
     reason: z.string().max(2000).optional(),
   })
   .strict();
-const tokenBody = z.object({ analyzer: z.string().min(1).max(64), label: z.string().max(200).optional() }).strict();
+const tokenBody = z.object({ analyzer: z.string().min(1).max(64), label: nameSchema({ empty: true }).optional() }).strict();
 const signaturesQuery = z.object({ objectType: z.string().min(1).max(64), objectId: z.string().min(1).max(200) });
 
 export function parseWith<T>(schema: z.ZodType<T>, value: unknown, what: string): T {

@@ -2,6 +2,7 @@
  * Access control: users and roles, login with throttling, sessions with CSRF tokens, analyzer
  * tokens, electronic signatures. Every change is written to the audit trail.
  */
+import { textProblem } from '../../core/io/names.ts';
 import type Database from 'better-sqlite3';
 import type { IncomingMessage } from 'node:http';
 import type { NextFunction, Request, RequestHandler, Response } from 'express';
@@ -110,7 +111,8 @@ export class AuthService implements Auth {
     const pp = passwordProblem(u.password);
     if (pp) throw new HttpError(400, 'bad-password', 'Password not accepted', pp);
     const fullName = (u.fullName ?? u.name).trim() || u.name;
-    if (fullName.length > 200) throw new HttpError(400, 'bad-user', 'Bad user', 'full name longer than 200 characters');
+    const fp = textProblem(fullName);
+    if (fp) throw new HttpError(400, 'bad-user', 'Bad user', `full name ${fp}`);
     if (this.users.byName(u.name)) throw new HttpError(409, 'user-exists', 'User exists', `a user named ${u.name} already exists`);
     const hash = await hashPassword(u.password, this.scryptLog2N);
     const at = this.iso();
@@ -137,6 +139,10 @@ export class AuthService implements Auth {
     const row = this.users.byName(name);
     if (!row) throw new HttpError(404, 'no-such-user', 'No such user', `no user named ${name}`);
     if (change.role !== undefined && !isRole(change.role)) throw new HttpError(400, 'bad-user', 'Bad user', `unknown role ${String(change.role)}`);
+    if (change.fullName !== undefined && change.fullName.trim() !== '') {
+      const fp = textProblem(change.fullName);
+      if (fp) throw new HttpError(400, 'bad-user', 'Bad user', `full name ${fp}`);
+    }
     if (change.password !== undefined) {
       const pp = passwordProblem(change.password);
       if (pp) throw new HttpError(400, 'bad-password', 'Password not accepted', pp);
@@ -333,6 +339,8 @@ export class AuthService implements Auth {
   }
 
   createAnalyzerToken(analyzer: string, label: string, createdBy: string): { id: string; token: string } {
+    const lp = label === '' ? null : textProblem(label);
+    if (lp) throw new HttpError(400, 'bad-token', 'Bad token request', `label ${lp}`);
     return this.db.transaction(() => {
       const t = this.tokens.create(analyzer, label, createdBy);
       this.audit.record({ user: createdBy, action: 'analyzer-token.create', object: `analyzer:${analyzer}`, after: { tokenId: t.id, label } });

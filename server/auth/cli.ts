@@ -11,7 +11,9 @@
  * change it (POST /api/auth/password). Every change is audited with the user `cli:<operating-system user>`.
  */
 import type Database from 'better-sqlite3';
-import { writeFileSync } from 'node:fs';
+import { readFileSync, writeFileSync } from 'node:fs';
+import { formatAnchor, parseAnchors } from '../audit/audit-trail.ts';
+import type { AuditAnchor } from '../audit/types.ts';
 import { userInfo } from 'node:os';
 import { parseArgs } from 'node:util';
 import { HttpError } from './http-problem.ts';
@@ -47,7 +49,7 @@ const USAGE = `usage:
   token add [--label TEXT] ANALYZER
   token list
   token revoke ID
-  audit verify
+  audit verify [--anchor SEQ:HASH …] [--anchor-file FILE …]
   audit export [--format csv|json] [--out FILE] [--from TIME] [--to TIME]`;
 
 function cliActor(): string {
@@ -83,6 +85,8 @@ export async function runSecurityCli(
         out: { type: 'string' },
         from: { type: 'string' },
         to: { type: 'string' },
+        anchor: { type: 'string', multiple: true },
+        'anchor-file': { type: 'string', multiple: true },
       },
     });
   } catch (e) {
@@ -163,9 +167,28 @@ export async function runSecurityCli(
       return 0;
     }
     if (group === 'audit' && verb === 'verify') {
-      const v = audit.verify();
+      if (pos.length) {
+        io.err(`audit verify: unexpected argument "${pos[0]}" (anchors go after --anchor)\n${USAGE}`);
+        return 2;
+      }
+      const anchors: AuditAnchor[] = [];
+      for (const a of o.anchor ?? []) anchors.push(...parseAnchors(a, '--anchor'));
+      for (const f of o['anchor-file'] ?? []) {
+        let text: string;
+        try {
+          text = readFileSync(f, 'utf8');
+        } catch (e) {
+          io.err(`audit verify: --anchor-file ${f}: cannot read it (${(e as Error).message})`);
+          return 2;
+        }
+        anchors.push(...parseAnchors(text, `--anchor-file ${f}`));
+      }
+      const v = audit.verify(anchors);
       if (v.ok) {
-        io.out(`audit trail intact: ${v.count} records, head ${v.headSeq} ${v.headHash}`);
+        const head = audit.anchor();
+        io.out(`audit trail intact: ${v.count} records, head ${v.headSeq} ${v.headHash}` + (anchors.length ? `; matches ${anchors.length} anchor(s)` : ''));
+        if (head) io.out(`anchor (keep it outside the server): ${formatAnchor(head)}`);
+        if (anchors.length === 0) io.out('without --anchor, a trail cut back at its end or rewritten as a whole cannot be told from an intact one');
         return 0;
       }
       io.out(`audit trail BROKEN at record ${v.brokenSeq}: ${v.problem} (${v.count} records verified before it)`);

@@ -271,6 +271,25 @@ export class IngestPipeline {
     return st ? { analyzer: st.analyzer, axis: st.axis } : null;
   }
 
+  private unitsReadAt = 0;
+
+  /**
+   * Learn units created beside the running server (`tideline unit add` writes to the same database):
+   * returns the ids that were new. Called from the ticker every few seconds and by the REST routes
+   * when they meet a unit id they do not know, so such a unit is usable without a restart.
+   */
+  async refreshUnits(): Promise<string[]> {
+    this.unitsReadAt = this.now();
+    const added: string[] = [];
+    for (const u of await this.storage.listUnits()) {
+      if (this.units.has(u.id)) continue;
+      this.addUnit(u);
+      added.push(u.id);
+    }
+    if (added.length) this.log.info(`unit(s) created outside this server picked up: ${added.join(', ')}`);
+    return added;
+  }
+
   deploymentRef(unit: string): ModelRef | null {
     return this.deployments.get(unit)?.ref ?? null;
   }
@@ -875,6 +894,7 @@ export class IngestPipeline {
   /** Periodic: stale data, shelve expiry. */
   private async tick() {
     const now = this.now();
+    if (now - this.unitsReadAt >= 2000) await this.refreshUnits();
     let overdue = false;
     for (const ob of [...this.openByUnit.values()]) overdue = this.checkFunctionCheckOverdue(ob, now) || overdue;
     if (overdue) await this.flush();

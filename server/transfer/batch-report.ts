@@ -44,6 +44,8 @@ export interface ReportDeparture {
 export interface BatchReportData {
   generatedAt: number;
   generatedBy: string;
+  /** The audit trail's head when the report was made: printed so a filed report anchors the trail. */
+  auditAnchor?: { seq: number; hash: string } | null;
   batch: BatchDetail;
   unitName: string;
   model: ModelVersionSummary | null;
@@ -282,6 +284,13 @@ ${regionsChart ? `<div class="chart">${regionsChart}</div>` : ''}`
 }
 <h2>Record</h2>
 <p>Raw spectra and per-spectrum results are kept unchanged in the Tideline record; this report is derived from them. Band assignments are common practice (Workman &amp; Weyer, Practical Guide to Interpretive Near-Infrared Spectroscopy, 2008).</p>
+${
+  d.auditAnchor
+    ? `<p>Audit trail anchor when this report was generated (record ${d.auditAnchor.seq} and its SHA-256):</p>
+<p class="hash">${esc(`${d.auditAnchor.seq}:${d.auditAnchor.hash}`)}</p>
+<p class="small">A filed report keeps the trail honest: <code>npm run tideline -- audit verify --anchor ${esc(`${d.auditAnchor.seq}:${d.auditAnchor.hash}`)}</code> (or <code>--anchor-file</code> with this report's text) fails if records were removed from the end of the trail or the trail was rewritten since.</p>`
+    : '<p class="small">No audit trail anchor: the audit trail was empty or not installed when this report was generated.</p>'
+}
 </body></html>
 `;
 }

@@ -16,6 +16,7 @@ import { ImportError } from '../../core/io/imported-batch.ts';
 import { ConfigError } from '../config.ts';
 import type { Storage } from '../storage/storage.ts';
 import { labPropertyColumns } from '../../core/lab/lab-values.ts';
+import type { AuditTrail } from '../audit/types.ts';
 import { parseSampleTime } from '../../core/lab/match.ts';
 import { importBatches, type ImportFile, type ImportSummary } from './import-batches.ts';
 
@@ -44,9 +45,19 @@ export function importPropertyLines(s: ImportSummary): string[] {
   return lines;
 }
 
-export async function runTransferCli(cmd: 'import' | 'export', positional: string[], flags: Record<string, string>, storage: Storage, out: (s: string) => void): Promise<number> {
+export async function runTransferCli(
+  cmd: 'import' | 'export',
+  positional: string[],
+  flags: Record<string, string>,
+  storage: Storage,
+  out: (s: string) => void,
+  record?: { audit: AuditTrail; actor: string },
+): Promise<number> {
   if (cmd === 'import') {
-    if (!flags.unit || !flags.product || positional.length === 0) throw new ConfigError('usage: import --unit U --product P FILE|DIR …');
+    if (!flags.unit || !flags.product || positional.length === 0) {
+      const missing = [!flags.unit && '--unit', !flags.product && '--product', positional.length === 0 && 'a FILE or DIR'].filter(Boolean).join(', ');
+      throw new ConfigError(`import: missing ${missing}\nusage: import --unit U --product P FILE|DIR …`);
+    }
     const delimiter = flags.delimiter === 'tab' ? '\t' : flags.delimiter;
     if (delimiter !== undefined && ![',', ';', '\t'].includes(delimiter)) throw new ConfigError(`--delimiter must be , ; or tab, not "${flags.delimiter}"`);
     if (flags.decimal !== undefined && !['.', ','].includes(flags.decimal)) throw new ConfigError(`--decimal must be . or , not "${flags.decimal}"`);
@@ -67,10 +78,17 @@ export async function runTransferCli(cmd: 'import' | 'export', positional: strin
           unit: flags.unit,
           product: flags.product,
           csv: { delimiter: delimiter as ',' | ';' | '\t' | undefined, decimal: flags.decimal as '.' | ',' | undefined, axisUnit: flags['axis-unit'] as 'nm' | 'cm-1' | undefined, origin },
-          user: flags.by ?? process.env.USER ?? 'cli',
+          user: flags.by ?? record?.actor ?? 'cli',
         },
         Date.now(),
       );
+      // Audited as POST /api/import is (batch.import).
+      record?.audit.record({
+        user: record.actor,
+        action: 'batch.import',
+        object: `unit:${flags.unit}`,
+        after: { files: s.batches.map((b) => b.file), batches: s.batches.map((b) => b.id), product: s.product, ...(flags.by ? { by: flags.by } : {}) },
+      });
       for (const b of s.batches) out(`imported ${b.id}: ${b.spectra} spectra${b.labValues ? `, ${b.labValues} lab values` : ''} from ${b.file}\n`);
       out(`${s.batches.length} batch(es) on a ${s.axis.points}-point axis ${s.axis.from}–${s.axis.to} nm, unit ${s.unit}\n`);
       out(importPropertyLines(s).join(''));
@@ -83,9 +101,10 @@ export async function runTransferCli(cmd: 'import' | 'export', positional: strin
       throw e;
     }
   }
-  const [id] = positional;
+  const [id, extra] = positional;
   const format = flags.format ?? 'csv';
-  if (!id) throw new ConfigError('usage: export BATCH --format csv|jcamp [--out FILE]');
+  if (!id) throw new ConfigError('export: the batch id is missing\nusage: export BATCH --format csv|jcamp [--out FILE]');
+  if (extra !== undefined) throw new ConfigError(`export: unexpected argument "${extra}" (one batch per export)\nusage: export BATCH --format csv|jcamp [--out FILE]`);
   if (!['csv', 'jcamp'].includes(format)) throw new ConfigError(`--format must be csv or jcamp (reports: GET /api/batches/${id}/report.pdf)`);
   const b = await storage.getBatch(id);
   if (!b) throw new ConfigError(`batch "${id}" does not exist`);

@@ -12,6 +12,7 @@ import { randomUUID } from 'node:crypto';
 import { readBatchCsv, type CsvReadOptions } from '../../core/io/batch-csv.ts';
 import { readBatchJcamp } from '../../core/io/batch-jcamp.ts';
 import { ImportError, type ImportedBatch } from '../../core/io/imported-batch.ts';
+import { textProblem } from '../../core/io/names.ts';
 import { matrixFromRows } from '../../core/linalg/dense-matrix.ts';
 import { fitChain } from '../../core/preprocess/index.ts';
 import { emptyIngestWrite, type LabValueRow, type Storage } from '../storage/storage.ts';
@@ -140,9 +141,12 @@ function sameAxis(a: ArrayLike<number>, b: ArrayLike<number>): boolean {
 export async function importBatches(storage: Storage, req: ImportRequest, now: number): Promise<ImportSummary> {
   const unit = await storage.getUnit(req.unit);
   if (!unit) throw new ImportError('import', 0, `unit "${req.unit}" is not known; create it first (npm run tideline -- unit add ${req.unit})`);
-  if (!req.product.trim()) throw new ImportError('import', 0, 'the product must be named');
+  const pp = textProblem(req.product, { max: 128 });
+  if (pp) throw new ImportError('import', 0, `the product name ${pp}`);
   const { batches, resampled, warnings } = parseImportFiles(req);
   for (const b of batches) {
+    const bp = b.product === undefined ? null : textProblem(b.product, { max: 128 });
+    if (bp) throw new ImportError(b.source.file, b.source.firstLine, `batch ${b.id}: the product name ${bp}`);
     if (!/^[A-Za-z0-9._:-]{1,128}$/.test(b.id)) throw new ImportError(b.source.file, b.source.firstLine, `batch id "${b.id}" must be 1–128 letters, digits or . _ : -`);
     if (await storage.getBatch(b.id)) throw new ImportError(b.source.file, b.source.firstLine, `batch ${b.id} is already in the record; it was not imported again`);
   }

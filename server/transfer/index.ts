@@ -20,6 +20,7 @@ import { z } from 'zod';
 import { writeBatchJcamp } from '../../core/io/batch-jcamp.ts';
 import { ImportError } from '../../core/io/imported-batch.ts';
 import { labPropertyColumns } from '../../core/lab/lab-values.ts';
+import { nameSchema } from '../../core/io/names.ts';
 import { HttpProblem, notFound } from '../api/problem.ts';
 import type { ServerContext } from '../context.ts';
 import { renderBatchReport } from './batch-report.ts';
@@ -34,7 +35,7 @@ const idSchema = z.string().min(1).max(128).regex(/^[A-Za-z0-9._:-]+$/, 'use let
 
 export const importBodySchema = z.object({
   unit: idSchema,
-  product: z.string().min(1).max(128),
+  product: nameSchema({ max: 128 }),
   files: z
     .array(z.object({ name: z.string().min(1).max(256), content: z.string().max(60 * 1024 * 1024), format: z.enum(['csv', 'jcamp']).optional() }))
     .min(1)

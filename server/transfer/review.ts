@@ -98,6 +98,7 @@ export async function reportData(ctx: ServerContext, batchId: string, user: stri
   return {
     generatedAt: ctx.now(),
     generatedBy: user,
+    auditAnchor: ctx.audit?.anchor() ?? null,
     batch: detail,
     unitName: unit?.name ?? b.unit,
     model: mrow ? await modelVersionSummary(ctx.storage, mrow) : null,

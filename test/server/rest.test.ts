@@ -21,7 +21,7 @@ async function stream(p: Peer, firstSeq: number, unit: string, b: { id: string; 
 }
 
 beforeAll(async () => {
-  ts = await startTestServer({ ingest: { staleAfterMs: 400 } }, { units: ['dryer-1', 'dryer-2'] });
+  ts = await startTestServer({ ingest: { staleAfterMs: 400 }, metrics: { access: 'open' } }, { units: ['dryer-1', 'dryer-2'] });
   admin = await login(ts, 'administrator');
   viewer = await login(ts, 'viewer');
   const p = new Peer(ts.wsUrl, ts.token);
