@@ -244,7 +244,7 @@ async function main() {
   for (const line of LINES) clients.push(await setUpLine(s, line, wsUrl, api, log, startedAt - historyDays * line.speedFactor * 86_400_000));
   console.log(admin.notice);
   console.log(`  Dashboard:  ${s.url}/`);
-  console.log(`  REST API:   ${s.url}/api/openapi.json    Metrics: ${s.url}/metrics`);
+  console.log(`  REST API:   ${s.url}/api/openapi.json    Metrics: ${config.metrics.access === 'off' ? 'off (--metrics.access open|token)' : `${s.url}/metrics`}`);
   console.log(`  Streaming:  dryer ×${speed}, reactor ×${speed * 4} (every 4th batch has a fault). Ctrl-C stops.`);
   console.log(`  Time:       simulated process clocks start ${historyDays} d (dryer) and ${historyDays * 4} d (reactor) ago and replay at that speed until they reach now, then run in real time; nothing is dated in the future.\n`);
 

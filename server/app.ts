@@ -87,6 +87,17 @@ export async function startServer(config: ServerConfig, opts: StartOptions = {})
   await pipeline.start();
 
   installAuth(ctx);
+  // A broken audit trail does not stop monitoring (the plant needs it), but it is said at every
+  // start, naming the database and the first broken record.
+  if (ctx.audit) {
+    const v = ctx.audit.verify();
+    if (!v.ok) {
+      log.error(
+        `the audit trail in ${opts.dbFile ?? join(config.dataDir, 'tideline.db')} is BROKEN at record ${v.brokenSeq}: ${v.problem}. ` +
+          'The server starts, and new records are chained on; report this under your quality system and compare with a kept anchor (npm run tideline -- audit verify --anchor SEQ:HASH).',
+      );
+    }
+  }
   // alarm actions the server takes itself (suppression by state) go to the same audit trail
   pipeline.audit = ctx.audit ?? null;
   for (const part of ['signals', 'transfer']) {

@@ -13,6 +13,7 @@
  * Flags set configuration values by name: --port 0 --data-dir ./data --ingest.stale-after-ms 5000
  * --config tideline.json. Run with --help for this text.
  */
+import { readFileSync } from 'node:fs';
 import { join } from 'node:path';
 import { userInfo } from 'node:os';
 import { ConfigError, configSchema, ENV_VARS, loadConfig, redactConfig } from './config.ts';
@@ -117,7 +118,7 @@ function splitFlags(cmd: string, flags: Record<string, string>): { own: Record<s
   const topKeys = new Set(Object.keys(configSchema.shape));
   for (const [k, v] of Object.entries(flags)) {
     if (spec.own.includes(k)) own[k] = v;
-    else if (k === 'config' || k === 'data-dir') config[k === 'config' ? 'config' : 'dataDir'] = v;
+    else if (k === 'config' || k === 'data-dir' || k === 'dataDir') config[k === 'config' ? 'config' : 'dataDir'] = v;
     else if (spec.config === 'all' && topKeys.has(camel(k).split('.')[0]!)) config[k] = v;
     else throw new UsageError(`${cmd}: unknown flag --${k}\nusage: ${spec.usage}`);
   }
@@ -204,6 +205,12 @@ async function main(argv: string[]): Promise<number> {
         const { ensureDashboard } = await import('./web-dashboard.ts');
         const r = await ensureDashboard(config.webDir, (line) => process.stdout.write(`${line}\n`));
         process.stdout.write(`${r.note}\n`);
+      }
+      // Secrets in files readable by others are named at every start (server/secret-files.ts).
+      const configFile = configFlags.config ?? process.env.TIDELINE_CONFIG;
+      const { secretFileWarnings } = await import('./secret-files.ts');
+      for (const w of secretFileWarnings({ configFile, configJson: configFile ? JSON.parse(readFileSync(configFile, 'utf8')) : undefined, tlsKey: config.tls?.key ?? null })) {
+        process.stderr.write(`tideline: warning: ${w}\n`);
       }
       // Loaded here, not at the top: the server pulls in every channel (OPC UA, MQTT, …), which
       // the other commands do not need and which would slow each of them by seconds.

@@ -3,7 +3,7 @@
  * Commits are durable when they return: GMP records must survive a power cut.
  */
 import Database from 'better-sqlite3';
-import { mkdirSync } from 'node:fs';
+import { chmodSync, existsSync, mkdirSync } from 'node:fs';
 import { dirname } from 'node:path';
 import type { Alarm, EvaluationResult } from '../../core/api/rest.ts';
 import { checkLabValueAdditions } from '../../core/lab/lab-values.ts';
@@ -118,12 +118,17 @@ export class SqliteStorage implements Storage {
   private writer: IngestWriter | null = null;
 
   constructor(opts: SqliteOptions) {
+    const fresh = opts.file !== ':memory:' && !existsSync(opts.file);
     if (opts.file !== ':memory:') {
-      mkdirSync(dirname(opts.file), { recursive: true });
+      // The database holds password and token hashes and the audit trail: a folder Tideline
+      // creates is the service user's only (0700), and so is a new database file (0600; SQLite
+      // gives its -wal and -shm files the database's mode).
+      mkdirSync(dirname(opts.file), { recursive: true, mode: 0o700 });
       checkDatabaseFile(opts.file);
     }
     try {
       this.db = new Database(opts.file);
+      if (fresh) chmodSync(opts.file, 0o600);
     } catch (e) {
       throw describeOpenError(opts.file, e);
     }
