@@ -19,7 +19,7 @@
  */
 import { parsePropertyHeader, propertyHeader } from '../lab/property-header.ts';
 import { cellNumber, classifyColumn, detectDelimiter, splitLine } from './csv-cells.ts';
-import { ImportError, normalizeAxis, wavenumberToNm, type ImportedBatch } from './imported-batch.ts';
+import { ImportError, checkImportTime, checkImportValue, normalizeAxis, wavenumberToNm, type ImportedBatch } from './imported-batch.ts';
 
 export interface CsvReadOptions {
   file?: string;
@@ -32,6 +32,29 @@ export interface CsvReadOptions {
   batch?: string;
   /** Columns the reader does not use are named here (text, empty, a second time column, …). */
   warnings?: string[];
+  /** The importer's clock (ms since the epoch): a time more than 5 min ahead of it is refused. */
+  now?: number;
+}
+
+/**
+ * ISO 8601 date and time, strictly: 2026-01-05T08:00:00Z, 2026-01-05 08:00:00.250+01:00. Without an
+ * offset the time is taken as UTC (never as the importing computer's local time). Free forms such
+ * as "Dec 1" or "1/12/2026" are refused: a reader guesses their year and day order.
+ */
+const ISO_RE = /^(\d{4})-(\d{2})-(\d{2})[T ](\d{2}):(\d{2})(?::(\d{2})(\.\d{1,9})?)?(Z|[+-]\d{2}:?\d{2})?$/;
+
+/** ms since the epoch for a strict ISO 8601 date-time, else NaN. */
+export function parseIsoTime(s: string): number {
+  const m = ISO_RE.exec(s.trim());
+  if (!m) return NaN;
+  const [, y, mo, d, h, mi, sec, frac, zone] = m;
+  if (+mo! < 1 || +mo! > 12 || +d! < 1 || +d! > 31 || +h! > 23 || +mi! > 59 || +(sec ?? 0) > 59) return NaN;
+  const base = Date.UTC(+y!, +mo! - 1, +d!, +h!, +mi!, +(sec ?? 0), frac ? Math.round(Number(frac) * 1000) : 0);
+  // A day that does not exist in that month (31 April) rolls over in Date.UTC: refuse it.
+  if (new Date(base).getUTCDate() !== +d!) return NaN;
+  if (!zone || zone === 'Z') return base;
+  const zm = /^([+-])(\d{2}):?(\d{2})$/.exec(zone)!;
+  return base - (zm[1] === '-' ? -1 : 1) * (+zm[2]! * 60 + +zm[3]!) * 60_000;
 }
 
 type TimeKind = 'ms' | 's' | 'min' | 'iso';
@@ -63,7 +86,8 @@ export function readBatchCsv(text: string, opts: CsvReadOptions = {}): ImportedB
   const file = opts.file ?? 'CSV';
   const warn = (w: string) => opts.warnings?.push(w);
   const src = text.charCodeAt(0) === 0xfeff ? text.slice(1) : text;
-  const lines = src.split(/\r?\n/);
+  // Line ends: LF, CRLF, or a lone CR (older Mac and some instrument software).
+  const lines = src.split(/\r\n|\r|\n/);
   let h = 0;
   while (h < lines.length && (lines[h]!.trim() === '' || lines[h]!.startsWith('#'))) h++;
   if (h >= lines.length) throw new ImportError(file, 0, 'the file is empty');
@@ -181,13 +205,15 @@ export function readBatchCsv(text: string, opts: CsvReadOptions = {}): ImportedB
     const tCell = cells[timeCol]!;
     let t: number;
     if (timeKind === 'iso') {
-      t = Date.parse(tCell);
-      if (!Number.isFinite(t)) throw new ImportError(file, lineNo, `time "${tCell}" is not an ISO 8601 date-time`);
+      t = parseIsoTime(tCell);
+      if (!Number.isFinite(t)) throw new ImportError(file, lineNo, `time "${tCell}" is not an ISO 8601 date-time such as 2026-01-05T08:00:00Z`);
     } else {
       const v = toNumber(tCell);
       if (v === null || !Number.isFinite(v)) throw new ImportError(file, lineNo, `time "${tCell}" in column "${header[timeCol]}" is not a number`);
+      if (timeKind !== 'ms' && v < 0) throw new ImportError(file, lineNo, `time "${tCell}" in column "${header[timeCol]}" is negative; elapsed times start at 0`);
       t = v * TIME_FACTOR[timeKind] + (timeKind === 'ms' ? 0 : (opts.origin ?? 0));
     }
+    checkImportTime(t, opts.now, file, lineNo, `column "${header[timeCol]}": `);
     const values = new Float32Array(p);
     for (let j = 0; j < p; j++) {
       const cell = cells[a0 + j]!;
@@ -196,6 +222,8 @@ export function readBatchCsv(text: string, opts: CsvReadOptions = {}): ImportedB
         const what = cell === '' ? 'is empty' : /^nan$/i.test(cell) ? 'is NaN' : `"${cell}" is not a number`;
         throw new ImportError(file, lineNo, `the value at ${axisRaw[j]} (column ${a0 + j + 1}) ${what}`);
       }
+      // 1e39 is a finite double but +Infinity as the float32 a spectrum is stored as.
+      checkImportValue(v, file, lineNo, `the value at ${axisRaw[j]} (column ${a0 + j + 1})`);
       values[reversed ? p - 1 - j : j] = v;
     }
     let b = batches.get(id);

@@ -17,7 +17,7 @@
  */
 import { convert } from 'jcampconverter';
 import { normalisePropertyName, PROPERTY_NAME_RE } from '../lab/lab-values.ts';
-import { ImportError, normalizeAxis, wavenumberToNm, type ImportedBatch } from './imported-batch.ts';
+import { ImportError, checkImportTime, checkImportValue, normalizeAxis, wavenumberToNm, type ImportedBatch } from './imported-batch.ts';
 
 interface JcampEntry {
   title?: string;
@@ -35,11 +35,71 @@ function parseLongDate(s: string): number {
   return Date.UTC(+m[1]!, +m[2]! - 1, +m[3]!, +(m[4] ?? 0), +(m[5] ?? 0), Math.floor(sec), Math.round((sec % 1) * 1000));
 }
 
+const DATA_LABELS = new Set(['XYDATA', 'PEAKTABLE', 'XYPOINTS', 'DATATABLE', 'RADATA', 'NTUPLES']);
+
+/**
+ * The file's block structure, checked before parsing: every ##TITLE= block closed by its ##END=,
+ * a LINK block holding as many blocks as its ##BLOCKS= says, each other block holding data, and
+ * ##XFACTOR= / ##YFACTOR= numbers. (The parser drops an empty block and takes an unreadable factor
+ * as 1, so a truncated file would otherwise import as a partial batch.) Returns the first line of
+ * each data block, in file order.
+ */
+function checkStructure(text: string, file: string): number[] {
+  const lines = text.split(/\r\n|\r|\n/);
+  type Block = { line: number; link: boolean; declared: number | null; children: number; data: boolean };
+  const stack: Block[] = [];
+  const dataLines: number[] = [];
+  let closedTop = 0;
+  for (let i = 0; i < lines.length; i++) {
+    const m = /^\s*##([^=]*)=(.*)$/.exec(lines[i]!);
+    if (!m) continue;
+    const label = m[1]!.trim().toUpperCase().replace(/[\s_\-/]/g, '');
+    const value = m[2]!.replace(/\$\$.*$/, '').trim();
+    const line = i + 1;
+    const top = stack[stack.length - 1];
+    if (label === 'TITLE') {
+      if (!top && closedTop > 0) throw new ImportError(file, line, 'a second top-level ##TITLE= after the file\'s final ##END=; one file holds one block or one LINK block');
+      stack.push({ line, link: false, declared: null, children: 0, data: false });
+      continue;
+    }
+    if (!top) throw new ImportError(file, line, `##${m[1]}= outside any block (before the first ##TITLE= or after the final ##END=)`);
+    if (label === 'END') {
+      stack.pop();
+      if (top.link) {
+        if (top.declared !== null && top.children !== top.declared) {
+          throw new ImportError(file, top.line, `the LINK block says ##BLOCKS=${top.declared} but holds ${top.children} block(s): the file is truncated or was cut`);
+        }
+      } else if (!top.data) throw new ImportError(file, top.line, 'the block starting here has no data (no ##XYDATA=, ##PEAK TABLE= or ##XYPOINTS=)');
+      const parent = stack[stack.length - 1];
+      if (parent) parent.children++;
+      else closedTop++;
+    } else if (label === 'DATATYPE' && value.toUpperCase() === 'LINK') top.link = true;
+    else if (label === 'BLOCKS') {
+      const n = Number(value);
+      if (!/^\d+$/.test(value) || n < 1) throw new ImportError(file, line, `##BLOCKS=${value} is not a positive whole number`);
+      top.declared = n;
+    } else if (label === 'XFACTOR' || label === 'YFACTOR') {
+      const f = Number(value.replace(',', '.'));
+      if (value === '' || !/^[+-]?(\d+\.?\d*|\.\d+)([eE][+-]?\d+)?$/.test(value.replace(',', '.')) || !Number.isFinite(f) || f === 0) {
+        throw new ImportError(file, line, `##${m[1]!.trim()}=${value} is not a usable factor (a finite number other than 0)`);
+      }
+    } else if (DATA_LABELS.has(label)) {
+      if (!top.data) dataLines.push(top.line);
+      top.data = true;
+    }
+  }
+  if (stack.length > 0) {
+    throw new ImportError(file, stack[stack.length - 1]!.line, `the file ends inside the block starting here: no ##END= (the file is truncated)`);
+  }
+  return dataLines;
+}
+
 /** Read one JCAMP-DX file (single spectrum or compound LINK file) into batches. */
-export function readBatchJcamp(text: string, opts: { file?: string; batch?: string } = {}): ImportedBatch[] {
+export function readBatchJcamp(text: string, opts: { file?: string; batch?: string; now?: number } = {}): ImportedBatch[] {
   const file = opts.file ?? 'JCAMP-DX';
   if (text.trim() === '') throw new ImportError(file, 0, 'the file is empty');
   if (!/^\s*##TITLE=/m.test(text)) throw new ImportError(file, 1, 'not a JCAMP-DX file: no ##TITLE= label');
+  const blockLines = checkStructure(text, file);
   let result: { flatten: JcampEntry[] };
   try {
     result = convert(text, { keepRecordsRegExp: /.*/ }) as unknown as { flatten: JcampEntry[] };
@@ -52,33 +112,39 @@ export function readBatchJcamp(text: string, opts: { file?: string; batch?: stri
 
   const batches = new Map<string, ImportedBatch>();
   const order: string[] = [];
+  if (blocks.length !== blockLines.length) {
+    throw new ImportError(file, 0, `${blockLines.length} block(s) hold data, but ${blocks.length} could be read as spectra`);
+  }
   blocks.forEach((blk, k) => {
     const where = `block ${k + 1}${blk.title ? ` ("${blk.title}")` : ''}`;
+    const at = blockLines[k]!;
     const sp = blk.spectra![0]!;
     const xu = (sp.xUnits ?? String(blk.info?.XUNITS ?? '')).toUpperCase().replace(/\s+/g, '');
     let xs = sp.data.x;
     const ys = sp.data.y;
-    if (xs.length !== ys.length) throw new ImportError(file, 0, `${where}: ${xs.length} x values but ${ys.length} y values`);
+    if (xs.length !== ys.length) throw new ImportError(file, at, `${where}: ${xs.length} x values but ${ys.length} y values`);
     const npoints = Number(blk.info?.NPOINTS);
     if (Number.isFinite(npoints) && npoints !== ys.length) {
-      throw new ImportError(file, 0, `${where}: ##NPOINTS=${npoints} but ${ys.length} values were read`);
+      throw new ImportError(file, at, `${where}: ##NPOINTS=${npoints} but ${ys.length} values were read`);
     }
     if (xu === '1/CM' || xu === 'CM-1' || xu === 'CM^-1') xs = xs.map(wavenumberToNm);
     else if (xu === 'MICROMETERS') xs = xs.map((x) => x * 1000);
     else if (xu !== 'NANOMETERS' && xu !== 'NM') {
-      throw new ImportError(file, 0, `${where}: ##XUNITS=${xu || '(missing)'}; expected NANOMETERS, MICROMETERS or 1/CM`);
+      throw new ImportError(file, at, `${where}: ##XUNITS=${xu || '(missing)'}; expected NANOMETERS, MICROMETERS or 1/CM`);
     }
     const { axis, reversed } = normalizeAxis(xs, `${file} ${where}`, 0);
     const values = new Float32Array(ys.length);
     for (let j = 0; j < ys.length; j++) {
       const v = ys[j]!;
-      if (!Number.isFinite(v)) throw new ImportError(file, 0, `${where}: y value ${j + 1} is not a finite number`);
+      if (!Number.isFinite(v)) throw new ImportError(file, at, `${where}: y value ${j + 1} is not a finite number`);
+      checkImportValue(v, file, at, `${where}: y value ${j + 1}`);
       values[reversed ? ys.length - 1 - j : j] = v;
     }
     const meta = blk.meta ?? {};
     const tMs = Number(meta['TIME MS']);
     const t = Number.isFinite(tMs) ? tMs : parseLongDate(String(blk.info?.LONGDATE ?? ''));
-    if (!Number.isFinite(t)) throw new ImportError(file, 0, `${where}: no time (neither ##$TIME MS nor a ##LONGDATE)`);
+    if (!Number.isFinite(t)) throw new ImportError(file, at, `${where}: no time (neither ##$TIME MS nor a ##LONGDATE)`);
+    checkImportTime(t, opts.now, file, at, `${where}: `);
     const id = String(meta['BATCH'] ?? linkTitle ?? opts.batch ?? file.replace(/\.[^.]*$/, ''));
     const lab = labLabels(meta, file, where);
     let b = batches.get(id);
@@ -87,10 +153,10 @@ export function readBatchJcamp(text: string, opts: { file?: string; batch?: stri
       batches.set(id, b);
       order.push(id);
     } else if (b.axis.length !== axis.length || b.axis.some((x, i) => Math.abs(x - axis[i]!) > 1e-6 * Math.abs(x))) {
-      throw new ImportError(file, 0, `${where}: its wavelength axis differs from the batch's first spectrum (mixed axes)`);
+      throw new ImportError(file, at, `${where}: its wavelength axis differs from the batch's first spectrum (mixed axes)`);
     }
     const prev = b.times[b.times.length - 1];
-    if (prev !== undefined && !(t > prev)) throw new ImportError(file, 0, `${where}: time does not increase within batch ${id}`);
+    if (prev !== undefined && !(t > prev)) throw new ImportError(file, at, `${where}: time does not increase within batch ${id}`);
     const units = b.propertyUnits!;
     for (const [name, { value, unit }] of lab) {
       if (!(name in b.properties)) {
@@ -156,6 +222,15 @@ function longDate(t: number): string {
   return `${d.getUTCFullYear()}/${p(d.getUTCMonth() + 1)}/${p(d.getUTCDate())} ${p(d.getUTCHours())}:${p(d.getUTCMinutes())}:${p(d.getUTCSeconds())}.${p(d.getUTCMilliseconds(), 3)}`;
 }
 
+/**
+ * A label's value is one line (JCAMP-DX 4.24: a label runs to the end of its line). Names are
+ * checked when they enter Tideline (core/io/names.ts), but one stored by an older version may hold a
+ * line break: it is written as a space, so that the file can always be read back.
+ */
+function labelValue(v: string): string {
+  return v.replace(/[\u0000-\u001f\u007f-\u009f]/g, ' ');
+}
+
 /** Write one batch as a compound JCAMP-DX 4.24 file, one block per spectrum. Lines stay within 80 characters. */
 export function writeBatchJcamp(batch: Pick<ImportedBatch, 'id' | 'axis' | 'times' | 'spectra'> & Partial<Pick<ImportedBatch, 'properties' | 'propertyUnits'>> & { product?: string; unit?: string }): string {
   const out: string[] = [
@@ -179,14 +254,14 @@ export function writeBatchJcamp(batch: Pick<ImportedBatch, 'id' | 'axis' | 'time
       `##$BATCH=${batch.id}`,
       `##$TIME MS=${batch.times[k]}`,
     );
-    if (batch.product) out.push(`##$PRODUCT=${batch.product}`);
-    if (batch.unit) out.push(`##$UNIT=${batch.unit}`);
+    if (batch.product) out.push(`##$PRODUCT=${labelValue(batch.product)}`);
+    if (batch.unit) out.push(`##$UNIT=${labelValue(batch.unit)}`);
     for (const [name, values] of Object.entries(batch.properties ?? {})) {
       const v = values[k];
       if (v === undefined || Number.isNaN(v)) continue;
       out.push(`##$LAB ${name}=${v}`);
       const u = batch.propertyUnits?.[name];
-      if (u) out.push(`##$LAB ${name} UNIT=${u}`);
+      if (u) out.push(`##$LAB ${name} UNIT=${labelValue(u)}`);
     }
     out.push('##XUNITS=NANOMETERS', '##YUNITS=ABSORBANCE', '##XFACTOR=1', '##YFACTOR=1', `##FIRSTX=${axis[0]}`, `##LASTX=${axis[n - 1]}`, `##NPOINTS=${n}`, `##FIRSTY=${fixed9(s[0]!)}`);
     if (equi) {

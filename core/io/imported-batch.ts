@@ -1,3 +1,5 @@
+import { DEFAULT_TIME_WINDOW, MAX_DATE_MS, float32Problem, fmtSpan, fmtTime, timeProblem } from '../protocol/plausibility.ts';
+
 /**
  * What an import yields: whole batches of raw spectra on one wavelength axis (nm), with their
  * times and any per-spectrum property columns (e.g. laboratory moisture for a PLS model).
@@ -70,4 +72,31 @@ export function normalizeAxis(axisNm: number[], file: string, line: number): { a
 /** Convert wavenumbers (cm⁻¹) to nm: λ[nm] = 10⁷ / ν̃[cm⁻¹]. */
 export function wavenumberToNm(wn: number): number {
   return 1e7 / wn;
+}
+
+/**
+ * Times of imported spectra: never before 1970 (negative ms), never beyond what a date can hold,
+ * and — when the importer passes the clock as `now` — never more than the protocol's default
+ * clock-skew allowance (5 min) ahead of it. Historical batches may be of any age. The same checks
+ * as /ingest (core/protocol/plausibility.ts), with no bound behind.
+ */
+export const IMPORT_TIME_WINDOW = { maxAheadMs: DEFAULT_TIME_WINDOW.maxAheadMs, maxBehindMs: null };
+
+/** Throws ImportError (file, line) when `t` is not a time an imported spectrum may have. */
+export function checkImportTime(t: number, now: number | undefined, file: string, line: number, where = ''): void {
+  const window = now === undefined ? { maxAheadMs: null, maxBehindMs: null } : IMPORT_TIME_WINDOW;
+  const p = timeProblem(t, now ?? 0, window);
+  if (!p) return;
+  let why: string;
+  if (p.kind === 'non-finite') why = `the time is ${t}, not a finite number`;
+  else if (t < 0) why = `the time ${t} ms lies before 1970 (times are ms since 1970-01-01 UTC; a negative time is never accepted)`;
+  else if (t > MAX_DATE_MS) why = `the time ${t} ms is beyond the largest time a date can hold (${MAX_DATE_MS} ms, the year 275760)`;
+  else why = `the time ${fmtTime(t)} is ${fmtSpan(t - now!)} ahead of this computer's clock (${fmtTime(now!)}); an imported spectrum cannot come from the future (at most ${fmtSpan(IMPORT_TIME_WINDOW.maxAheadMs!)} of clock difference is allowed)`;
+  throw new ImportError(file, line, `${where}${why}`);
+}
+
+/** Throws ImportError (file, line) when `v` is not a value a spectrum can hold (finite float32). */
+export function checkImportValue(v: number, file: string, line: number, what: string): void {
+  const p = float32Problem(v);
+  if (p) throw new ImportError(file, line, `${what} ${p}`);
 }

@@ -287,7 +287,15 @@ export class IngestPipeline {
       added.push(u.id);
     }
     if (added.length) this.log.info(`unit(s) created outside this server picked up: ${added.join(', ')}`);
+    // Batches imported beside the running server (tideline import): their ids are taken, so a
+    // batch-start naming one is refused as used instead of failing the group commit it joins.
+    for (const id of await this.storage.batchIds()) this.batchIds.add(id);
     return added;
+  }
+
+  /** Batch ids stored by another path (an import): a batch-start naming one is refused as used. */
+  noteBatchIds(ids: Iterable<string>): void {
+    for (const id of ids) this.batchIds.add(id);
   }
 
   deploymentRef(unit: string): ModelRef | null {

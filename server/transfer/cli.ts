@@ -22,14 +22,61 @@ import { importBatches, type ImportFile, type ImportSummary } from './import-bat
 
 const IMPORTABLE = /\.(csv|txt|tsv|jdx|dx|jcamp)$/i;
 
+/**
+ * Largest file one import reads, and largest import: 64 MiB each, as POST /api/import takes (a
+ * batch of 500 spectra × 1,000 points is about 5 MB of CSV). A larger file is refused before it is
+ * read, naming it and its size.
+ */
+export const MAX_IMPORT_BYTES = 64 * 1024 * 1024;
+
+/**
+ * Text of an import file: UTF-8 (a BOM is dropped), or UTF-16 with its BOM (as some Windows
+ * programs save "Unicode text"). Anything else that is not valid UTF-8 — Latin-1 or Windows-1252
+ * from an old export — is refused with the line of the first bad byte, not read as garbled names.
+ */
+export function decodeImportFile(buf: Buffer, name: string): string {
+  if (buf.length >= 2 && buf[0] === 0xff && buf[1] === 0xfe) return buf.subarray(2).toString('utf16le');
+  if (buf.length >= 2 && buf[0] === 0xfe && buf[1] === 0xff) {
+    const le = Buffer.from(buf.subarray(2));
+    le.swap16();
+    return le.toString('utf16le');
+  }
+  try {
+    return new TextDecoder('utf-8', { fatal: true }).decode(buf);
+  } catch {
+    let bad = 0;
+    for (let lo = 0, hi = buf.length; lo < hi; ) {
+      // the longest valid prefix, by bisection
+      const mid = (lo + hi + 1) >> 1;
+      try {
+        new TextDecoder('utf-8', { fatal: true }).decode(buf.subarray(0, mid));
+        lo = mid;
+      } catch {
+        hi = mid - 1;
+      }
+      bad = lo;
+    }
+    // (a valid prefix ends at a character boundary: a fatal decoder refuses a cut character)
+    const line = buf.subarray(0, bad).toString('utf8').split(/\r\n|\r|\n/).length;
+    throw new ImportError(name, line, `byte 0x${buf[bad]!.toString(16).toUpperCase().padStart(2, '0')} is not UTF-8 text (an export in Latin-1 or Windows-1252?); save the file as UTF-8`);
+  }
+}
+
 export function collectFiles(paths: string[]): ImportFile[] {
   const files: ImportFile[] = [];
+  let total = 0;
   for (const p of paths) {
     const st = statSync(p, { throwIfNoEntry: false });
     if (!st) throw new ImportError(p, 0, 'no such file or folder');
     const names = st.isDirectory() ? readdirSync(p).filter((n) => IMPORTABLE.test(n)).sort().map((n) => join(p, n)) : [p];
     if (st.isDirectory() && names.length === 0) throw new ImportError(p, 0, 'the folder holds no .csv, .txt, .jdx or .dx file');
-    for (const f of names) files.push({ name: basename(f), content: readFileSync(f, 'utf8') });
+    for (const f of names) {
+      const size = statSync(f).size;
+      total += size;
+      if (size > MAX_IMPORT_BYTES) throw new ImportError(basename(f), 0, `the file is ${(size / 1048576).toFixed(1)} MiB; one import reads at most ${MAX_IMPORT_BYTES / 1048576} MiB: split it by batch`);
+      if (total > MAX_IMPORT_BYTES) throw new ImportError(basename(f), 0, `with this file the import reaches ${(total / 1048576).toFixed(1)} MiB; one import reads at most ${MAX_IMPORT_BYTES / 1048576} MiB: import the files in several runs`);
+      files.push({ name: basename(f), content: decodeImportFile(readFileSync(f), basename(f)) });
+    }
   }
   return files;
 }

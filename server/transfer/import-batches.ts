@@ -61,12 +61,17 @@ export function formatOf(file: ImportFile): ImportFormat {
 }
 
 /** Parse the files (pure). Throws ImportError naming file, line and reason. */
-export function parseImportFiles(req: Pick<ImportRequest, 'files' | 'csv' | 'targetAxis'>): { batches: ImportedBatch[]; resampled: Set<string>; warnings: string[] } {
+export function parseImportFiles(req: Pick<ImportRequest, 'files' | 'csv' | 'targetAxis'>, now?: number): { batches: ImportedBatch[]; resampled: Set<string>; warnings: string[] } {
   if (req.files.length === 0) throw new ImportError('import', 0, 'no files were given');
   const batches: ImportedBatch[] = [];
   const warnings: string[] = [];
   for (const f of req.files) {
-    const got = formatOf(f) === 'jcamp' ? readBatchJcamp(f.content, { file: f.name, batch: fileStem(f.name) }) : readBatchCsv(f.content, { ...req.csv, file: f.name, batch: fileStem(f.name), warnings });
+    const nul = f.content.indexOf('\u0000');
+    if (nul >= 0) {
+      const line = f.content.slice(0, nul).split(/\r\n|\r|\n/).length;
+      throw new ImportError(f.name, line, 'the file holds NUL characters: it is binary, or text in UTF-16 or UTF-32; save it as UTF-8 text');
+    }
+    const got = formatOf(f) === 'jcamp' ? readBatchJcamp(f.content, { file: f.name, batch: fileStem(f.name), now }) : readBatchCsv(f.content, { ...req.csv, file: f.name, batch: fileStem(f.name), warnings, now });
     batches.push(...got);
   }
   // One property, one unit across the import: values in two units must not meet in one calibration.
@@ -143,7 +148,7 @@ export async function importBatches(storage: Storage, req: ImportRequest, now: n
   if (!unit) throw new ImportError('import', 0, `unit "${req.unit}" is not known; create it first (npm run tideline -- unit add ${req.unit})`);
   const pp = textProblem(req.product, { max: 128 });
   if (pp) throw new ImportError('import', 0, `the product name ${pp}`);
-  const { batches, resampled, warnings } = parseImportFiles(req);
+  const { batches, resampled, warnings } = parseImportFiles(req, now);
   for (const b of batches) {
     const bp = b.product === undefined ? null : textProblem(b.product, { max: 128 });
     if (bp) throw new ImportError(b.source.file, b.source.firstLine, `batch ${b.id}: the product name ${bp}`);

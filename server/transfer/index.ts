@@ -80,6 +80,7 @@ export function install(ctx: ServerContext): void {
       }
       try {
         const summary = await importBatches(ctx.storage, { ...body, targetAxis, user: userName(req) }, ctx.now());
+        ctx.ingest.noteBatchIds(summary.batches.map((b) => b.id));
         ctx.audit?.record({
           user: userName(req),
           action: 'batch.import',
