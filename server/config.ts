@@ -7,6 +7,7 @@ import { z } from 'zod';
 import { authConfigSchema, tlsConfigSchema } from './auth/security-config.ts';
 import { parseSignalsConfig } from './signals/config.ts';
 import { StartupError } from './startup-error.ts';
+import { DEFAULT_AXIS_RANGE, DEFAULT_TIME_WINDOW } from '../core/protocol/plausibility.ts';
 
 export const configSchema = z
   .object({
@@ -33,6 +34,20 @@ export const configSchema = z
         maxErrorsPer10s: z.number().int().min(1).default(200),
         /** WebSocket ping interval, ms; a peer that misses one pong is dropped. */
         heartbeatMs: z.number().int().min(100).default(10000),
+        /**
+         * Plausibility window for an entry's `t` against the server clock, ms: at most this far ahead
+         * (default 5 min: NTP keeps plant clocks within a second; 5 min is the usual clock-skew
+         * allowance between networked hosts, a common-practice value) and at most `maxBehindMs`
+         * behind (default 5 years: buffered entries and replays of older batches pass; a clock reset
+         * to 1970 or 2000, or a GPS week-number rollover of 19.6 years, does not). null = no bound
+         * on that side (not recommended ahead: one entry stamped in the future makes every correctly
+         * stamped entry after it in the batch time-backwards).
+         */
+        maxAheadMs: z.number().int().min(1000).nullable().default(DEFAULT_TIME_WINDOW.maxAheadMs),
+        maxBehindMs: z.number().int().min(60_000).nullable().default(DEFAULT_TIME_WINDOW.maxBehindMs),
+        /** Hello axis: every wavelength within [axisMinNm, axisMaxNm] (default 350 nm … 25 µm: Vis-NIR through mid-IR). */
+        axisMinNm: z.number().positive().default(DEFAULT_AXIS_RANGE.minNm),
+        axisMaxNm: z.number().positive().finite().default(DEFAULT_AXIS_RANGE.maxNm),
         /** An open batch whose analyzer sends nothing for this long raises a stale-data alarm. */
         staleAfterMs: z.number().int().min(100).default(60000),
         /**
@@ -50,6 +65,7 @@ export const configSchema = z
             message: 'must be 0 or null (no limit, not recommended) or at least 1000 ms',
           }),
       })
+      .refine((i) => i.axisMinNm < i.axisMaxNm, { message: 'axisMinNm must be below axisMaxNm', path: ['axisMinNm'] })
       .prefault({}),
     live: z
       .object({
@@ -140,6 +156,10 @@ export const ENV_VARS: Record<string, string> = {
   TIDELINE_STALE_AFTER_MS: 'ingest.staleAfterMs',
   TIDELINE_FUNCTION_CHECK_MAX_MS: 'ingest.functionCheckMaxMs',
   TIDELINE_GROUP_COMMIT_MS: 'ingest.groupCommitMs',
+  TIDELINE_MAX_AHEAD_MS: 'ingest.maxAheadMs',
+  TIDELINE_MAX_BEHIND_MS: 'ingest.maxBehindMs',
+  TIDELINE_AXIS_MIN_NM: 'ingest.axisMinNm',
+  TIDELINE_AXIS_MAX_NM: 'ingest.axisMaxNm',
   TIDELINE_LOG_LEVEL: 'logLevel',
   TIDELINE_LAB_MATCH_TOLERANCE_MS: 'lab.matchToleranceMs',
   TIDELINE_METRICS_ACCESS: 'metrics.access',
@@ -158,8 +178,12 @@ function setPath(obj: Record<string, unknown>, path: string, value: unknown) {
 
 const TEXT = new Set(['host', 'dataDir', 'webDir', 'synchronous', 'logLevel', 'walCheckpoint', 'tls.cert', 'tls.key', 'tls.ca', 'tls.passphrase', 'metrics.access', 'metrics.token']);
 
+/** Settings that take `none` (from the environment or a flag) for null: no bound. */
+const NO_BOUND = new Set(['ingest.maxAheadMs', 'ingest.maxBehindMs', 'ingest.functionCheckMaxMs']);
+
 function coerce(path: string, raw: string, source: string): unknown {
   if (path === 'webDir' && (raw === '' || raw === 'none')) return null;
+  if (NO_BOUND.has(path) && raw === 'none') return null;
   if (TEXT.has(path)) return raw;
   const n = Number(raw);
   if (raw.trim() === '' || !Number.isFinite(n)) throw new ConfigError(`${source}: ${path} must be a number, got "${raw}"`);

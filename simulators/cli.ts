@@ -70,7 +70,9 @@ Options (stream):
   --speed X           pace at X times real time: 1 = real time (a spectrum every 10 s for the
                       dryer), 60 = an hour of process per minute; 0 = as fast as acks allow
                       (default 1). Timestamps always advance by process time from the moment
-                      streaming starts.
+                      streaming starts, so above ×1 they run ahead of the wall clock: start the
+                      server with a wider window (--ingest.max-ahead-ms none) or it refuses them
+                      as time-implausible.
   --json              send spectra as JSON messages instead of binary frames
   --status SPEC       analyzer status window (NAMUR NE 107): STATUS@FROM-TO[:code], minutes after
                       batch start, e.g. function-check@20-25:probe-cleaning (no spectra inside a

@@ -83,7 +83,9 @@ async function connect(url: string, token: string, analyzer: string, boot: numbe
 
 /** Stream `count` spectra per peer as fast as the window allows; returns spectra per second. */
 async function flat(peers: Peer[], units: string[], spectra: Float32Array[], count: number, json: boolean, tag: string): Promise<number> {
-  const t0 = Date.now() * 1000 + Math.floor(Math.random() * 1000);
+  // Stamped 1 s apart and ending before now: the server refuses times beyond its window (ingest.maxAheadMs).
+  const t0 = Date.now() - (count + 2) * 1000;
+  const runId = Date.now() * 1000 + Math.floor(Math.random() * 1000);
   const start = performance.now();
   let lastProgress = performance.now();
   let total = -1;
@@ -107,8 +109,8 @@ async function flat(peers: Peer[], units: string[], spectra: Float32Array[], cou
           const send = () => {
             while (next <= last && next - p.acked <= WINDOW) {
               const seq = next++;
-              if (seq === 0) p.ws.send(JSON.stringify({ type: 'batch-start', seq, t: t0, unit: units[i], batch: `${tag}-${i}-${t0}`, product: 'bench' }));
-              else if (seq === last) p.ws.send(JSON.stringify({ type: 'batch-end', seq, t: t0 + seq * 1000, batch: `${tag}-${i}-${t0}` }));
+              if (seq === 0) p.ws.send(JSON.stringify({ type: 'batch-start', seq, t: t0, unit: units[i], batch: `${tag}-${i}-${runId}`, product: 'bench' }));
+              else if (seq === last) p.ws.send(JSON.stringify({ type: 'batch-end', seq, t: t0 + seq * 1000, batch: `${tag}-${i}-${runId}` }));
               else {
                 const v = spectra[seq % spectra.length]!;
                 p.ws.send(json ? encodeSpectrumJson(seq, t0 + seq * 1000, v) : encodeSpectrumFrame(seq, t0 + seq * 1000, v));
@@ -129,9 +131,10 @@ async function flat(peers: Peer[], units: string[], spectra: Float32Array[], cou
 
 /** Steady rate: every peer sends `perPeerHz` spectra/s for `seconds`; returns latency percentiles in ms. */
 async function steady(peers: Peer[], units: string[], spectra: Float32Array[], perPeerHz: number, seconds: number): Promise<{ p50: number; p99: number; max: number; n: number }> {
-  const t0 = Date.now();
-  const lat: number[] = [];
   const total = Math.round(perPeerHz * seconds);
+  // stamped 1 s apart and ending before now (the server's time window, ingest.maxAheadMs)
+  const t0 = Date.now() - (total + 2) * 1000;
+  const lat: number[] = [];
   await Promise.all(
     peers.map(
       (p, i) =>

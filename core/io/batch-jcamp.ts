@@ -18,6 +18,7 @@
 import { convert } from 'jcampconverter';
 import { normalisePropertyName, PROPERTY_NAME_RE } from '../lab/lab-values.ts';
 import { ImportError, checkImportTime, checkImportValue, normalizeAxis, wavenumberToNm, type ImportedBatch } from './imported-batch.ts';
+import { isoTimeOrNull } from '../protocol/plausibility.ts';
 
 interface JcampEntry {
   title?: string;
@@ -217,6 +218,8 @@ function isEquidistant(axis: ArrayLike<number>): boolean {
 }
 
 function longDate(t: number): string {
+  // A batch stored by an older version may hold a time no date can hold: say so rather than NaN.
+  if (isoTimeOrNull(t) === null) return `(not a valid time: ${t} ms)`;
   const d = new Date(t);
   const p = (x: number, w = 2) => String(x).padStart(w, '0');
   return `${d.getUTCFullYear()}/${p(d.getUTCMonth() + 1)}/${p(d.getUTCDate())} ${p(d.getUTCHours())}:${p(d.getUTCMinutes())}:${p(d.getUTCSeconds())}.${p(d.getUTCMilliseconds(), 3)}`;

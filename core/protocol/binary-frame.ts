@@ -5,11 +5,11 @@
  * | ------ | ----- | ------- | -------------------------------------------------- |
  * | 0      | 4     | ASCII   | magic "TDL1"                                       |
  * | 4      | 2     | uint16  | protocol version (1)                               |
- * | 6      | 2     | uint16  | flags (0; reserved)                                |
+ * | 6      | 2     | uint16  | flags (reserved: must be 0)                        |
  * | 8      | 8     | float64 | seq (an integer ≤ 2^53 − 1)                        |
  * | 16     | 8     | float64 | t, ms since the Unix epoch, UTC                    |
  * | 24     | 4     | uint32  | n, number of points                                |
- * | 28     | 4     | uint32  | reserved (0)                                       |
+ * | 28     | 4     | uint32  | reserved (must be 0)                               |
  * | 32     | 4·n   | float32 | values, in the order of the hello axis             |
  *
  * The 32-byte header keeps the values 4-byte aligned.
@@ -52,8 +52,13 @@ export function decodeSpectrumFrame(bytes: Uint8Array): SpectrumEntry {
   }
   const seq = dv.getFloat64(8, true);
   if (!Number.isSafeInteger(seq) || seq < 0) throw new IngestProtocolError('bad-frame', `binary frame seq ${seq} is not a non-negative integer`);
+  const flags = dv.getUint16(6, true);
+  if (flags !== 0) throw new IngestProtocolError('bad-frame', `binary frame seq ${seq}: flags (bytes 6–7) are 0x${flags.toString(16)}; they are reserved and must be 0`, seq);
+  const reserved = dv.getUint32(28, true);
+  if (reserved !== 0) throw new IngestProtocolError('bad-frame', `binary frame seq ${seq}: bytes 28–31 are 0x${reserved.toString(16)}; they are reserved and must be 0`, seq);
   const t = dv.getFloat64(16, true);
-  if (!Number.isFinite(t) || t < 0) throw new IngestProtocolError('bad-frame', `binary frame seq ${seq}: time ${t} is not a valid epoch in ms`, seq);
+  // A finite t is judged by the server against its clock (the plausibility window).
+  if (!Number.isFinite(t)) throw new IngestProtocolError('non-finite', `binary frame seq ${seq}: t is ${t}, not a finite time`, seq);
   const n = dv.getUint32(24, true);
   if (n < 2 || n > MAX_SPECTRUM_POINTS) {
     throw new IngestProtocolError('bad-frame', `binary frame seq ${seq}: point count ${n} is outside 2…${MAX_SPECTRUM_POINTS}`, seq);

@@ -17,6 +17,7 @@
  */
 import { nameSchema } from '../io/names.ts';
 import { z } from 'zod';
+import { axisProblem, float32Problem } from './plausibility.ts';
 
 export const PROTOCOL_VERSION = 1;
 
@@ -34,8 +35,12 @@ export function isValidSeq(n: unknown): n is number {
 
 /** The entry types of the analyzer's log, and hello. A message of another type consumes no seq. */
 export const ANALYZER_MESSAGE_TYPES = ['hello', 'batch-start', 'spectrum', 'batch-end', 'analyzer-status'] as const;
-/** Milliseconds since the Unix epoch, UTC. */
-const timeSchema = z.number().finite().nonnegative();
+/**
+ * Milliseconds since the Unix epoch, UTC. Any JSON number here (JSON.parse turns 1e999 into
+ * Infinity): a non-finite time is refused as `non-finite` by parseAnalyzerText, and the server
+ * judges a finite one against its own clock (the plausibility window of docs/protocol.md).
+ */
+const timeSchema = z.custom<number>((v) => typeof v === 'number' && !Number.isNaN(v), { message: 'expected a number (ms since the Unix epoch, UTC)' });
 const idSchema = z.string().min(1).max(128).regex(/^[A-Za-z0-9._:-]+$/, 'use letters, digits and . _ : - only');
 
 export const helloSchema = z.object({
@@ -92,7 +97,8 @@ export const spectrumJsonSchema = z.object({
   type: z.literal('spectrum'),
   seq: seqSchema,
   t: timeSchema,
-  values: z.array(z.number()).min(2).max(MAX_SPECTRUM_POINTS),
+  /** Checked one by one in parseAnalyzerText: a number (else bad-message), finite as float32 (else non-finite). */
+  values: z.array(z.unknown()).min(2).max(MAX_SPECTRUM_POINTS),
 });
 
 export const analyzerMessageSchema = z.discriminatedUnion('type', [
@@ -150,6 +156,9 @@ export const INGEST_ERROR_CODES = [
   'axis-mismatch',
   'wrong-length',
   'non-finite',
+  'time-implausible',
+  'bad-axis',
+  'model-mismatch',
   'seq-gap',
   'time-backwards',
   'no-open-batch',
@@ -217,20 +226,25 @@ export function parseAnalyzerText(text: string): HelloMessage | LogEntry {
     throw new IngestProtocolError('bad-message', `${where}: ${issue.message}`, isValidSeq(rawSeq) ? rawSeq : undefined);
   }
   const m = parsed.data;
+  if (m.type !== 'hello' && !Number.isFinite(m.t)) {
+    throw new IngestProtocolError('non-finite', `${m.type} seq ${m.seq}: t is ${m.t}, not a finite time`, m.seq);
+  }
   if (m.type === 'hello') {
-    for (let i = 1; i < m.axis.length; i++) {
-      if (!(m.axis[i]! > m.axis[i - 1]!)) {
-        throw new IngestProtocolError('bad-message', `hello.axis must increase strictly; axis[${i}] = ${m.axis[i]} follows ${m.axis[i - 1]}`);
-      }
-    }
+    // Order only here; the range (ingest.axisMinNm … axisMaxNm) is the server's to check.
+    const p = axisProblem(m.axis, { minNm: -Infinity, maxNm: Infinity });
+    if (p) throw new IngestProtocolError('bad-axis', `hello.${p.message}`);
     return m;
   }
   if (m.type === 'spectrum') {
-    const values = new Float32Array(m.values.length);
+    const raw = m.values;
+    const values = new Float32Array(raw.length);
     for (let i = 0; i < values.length; i++) {
-      const v = m.values[i]!;
-      if (!Number.isFinite(v)) throw new IngestProtocolError('non-finite', `spectrum seq ${m.seq}: values[${i}] is not a finite number`, m.seq);
-      values[i] = v;
+      const v = raw[i];
+      if (typeof v !== 'number') throw new IngestProtocolError('bad-message', `values.${i}: expected a number, got ${v === null ? 'null' : typeof v}`, m.seq);
+      // Checked as the float32 it is stored as: 1e39 is a finite double but +Infinity as float32.
+      const f = Math.fround(v);
+      if (!Number.isFinite(f)) throw new IngestProtocolError('non-finite', `spectrum seq ${m.seq}: values[${i}] ${float32Problem(v)}`, m.seq);
+      values[i] = f;
     }
     return { type: 'spectrum', seq: m.seq, t: m.t, values };
   }

@@ -8,6 +8,7 @@ import { notFound, HttpProblem } from './problem.ts';
 import type { RouteTable } from './route-table.ts';
 import { batchDetail, batchSummary, modelRef } from './views.ts';
 import { idSchema, pageQuery } from './routes-plant.ts';
+import { isoTimeOrNull } from '../../core/protocol/plausibility.ts';
 
 const batchParams = z.object({ batch: idSchema });
 const rangeQuery = z.object({
@@ -102,7 +103,7 @@ export function addBatchRoutes(t: RouteTable, ctx: ServerContext) {
             const v = lab.properties[k]![i];
             return v === undefined || Number.isNaN(v) ? '' : String(v);
           });
-          res.write(`${s.seq},${s.t},${new Date(s.t).toISOString()},${labCells.map((c) => c + ',').join('')}${Array.from(s.values).join(',')}\r\n`);
+          res.write(`${s.seq},${s.t},${isoTimeOrNull(s.t) ?? ''},${labCells.map((c) => c + ',').join('')}${Array.from(s.values).join(',')}\r\n`);
           i++;
         }
       } else {
@@ -115,7 +116,7 @@ export function addBatchRoutes(t: RouteTable, ctx: ServerContext) {
               header = true;
               res.write(['seq', 't_ms', 'time_utc', 'elapsed_min', 'progress', 't2', 't2_limit', 'q', 'q_limit', 'combined', ...r.scores.map((_, i) => `pc${i + 1}`), 'endpoint', 'prediction', 'suspect', 'active_conditions'].join(',') + '\r\n');
             }
-            res.write([r.seq, r.t, new Date(r.t).toISOString(), r.elapsedMin, r.progress, r.t2, r.limits.t2, r.q, r.limits.q, r.combined, ...r.scores, r.endpoint.state, r.prediction?.value ?? '', r.suspect, `"${r.activeConditions.join(' ')}"`].join(',') + '\r\n');
+            res.write([r.seq, r.t, isoTimeOrNull(r.t) ?? '', r.elapsedMin, r.progress, r.t2, r.limits.t2, r.q, r.limits.q, r.combined, ...r.scores, r.endpoint.state, r.prediction?.value ?? '', r.suspect, `"${r.activeConditions.join(' ')}"`].join(',') + '\r\n');
           }
           if (rows.length < 2000) break;
           from = rows[rows.length - 1]!.seq + 1;

@@ -17,6 +17,7 @@ import type { Alarm, AnalyzerStatusView, ModelRef } from '../../core/api/rest.ts
 import type { LivePoint, LiveUnitStatus } from '../../core/api/live.ts';
 import type { AlarmKind, AlarmPriority, AlarmState, ConditionKind, EndpointState, EndpointStatus, MonitorResult } from '../../core/monitor/types.ts';
 import { IngestProtocolError, isValidSeq, type AnalyzerStatusMessage, type BatchEndMessage, type BatchStartMessage, type IngestErrorCode, type LogEntry, type SpectrumEntry } from '../../core/protocol/ingest-messages.ts';
+import { axisProblem, fmtTime, isoTimeOrNull, timeProblem } from '../../core/protocol/plausibility.ts';
 import type { AuditEntry } from '../audit/types.ts';
 import type { ServerConfig } from '../config.ts';
 import type { Logger } from '../logger.ts';
@@ -71,8 +72,8 @@ interface DeployedModel {
 
 /** Codes whose entry consumes its seq when refused (the analyzer goes on with the next one). */
 const CONSUMING: ReadonlySet<IngestErrorCode> = new Set([
-  'bad-message', 'bad-frame', 'wrong-length', 'non-finite', 'time-backwards', 'no-open-batch',
-  'batch-already-open', 'batch-mismatch', 'unknown-unit',
+  'bad-message', 'bad-frame', 'wrong-length', 'non-finite', 'time-implausible', 'time-backwards', 'no-open-batch',
+  'batch-already-open', 'batch-mismatch', 'unknown-unit', 'model-mismatch',
 ]);
 
 export type AcceptOutcome = 'accepted' | 'duplicate-committed' | 'duplicate-pending';
@@ -204,16 +205,37 @@ export class IngestPipeline {
     if (overdueId && this.alarmsById.get(overdueId)?.active && this.analyzerStatus.get(row.analyzer)?.status === 'function-check') {
       this.functionCheckOverdue.add(row.analyzer);
     }
+    if (!row.modelVersion && isoTimeOrNull(ob.lastT) === null) {
+      // stored by an older version: a last time no date holds would make every later entry time-backwards
+      let prevT = row.startT;
+      for await (const s of this.storage.iterateSpectra(row.id)) if (isoTimeOrNull(s.t) !== null && s.t > prevT) prevT = s.t;
+      this.log.warn(`batch ${row.id}: its stored last time ${ob.lastT} is not a valid time; the batch goes on after ${fmtTime(prevT)}`);
+      ob.lastT = prevT;
+    }
     if (row.modelVersion) {
       const model = await this.loadModel(row.modelVersion);
       if (model) {
         try {
           ob.monitor = this.core.createBatchMonitor(model, row.startT);
           let last: MonitorResult | null = null;
+          let prevT = -Infinity;
+          const skipped: string[] = [];
           for await (const s of this.storage.iterateSpectra(row.id)) {
+            // An older version may have stored a spectrum with a time no date holds or not after the
+            // one before: it is left out, as it was never judged, instead of failing the rebuild.
+            // (Bad pixels, non-finite ones included, are the monitor's to flag: docs/bad-pixels.md.)
+            const why = isoTimeOrNull(s.t) === null ? `time ${s.t} ms is not a valid time` : !(s.t > prevT) ? 'time not after the spectrum before it' : null;
+            if (why) {
+              skipped.push(`seq ${s.seq}: ${why}`);
+              continue;
+            }
+            prevT = s.t;
             const r = ob.monitor.push(s.seq, s.t, s.values);
             if (r.quality?.judged !== false) last = r;
           }
+          // the batch goes on after its last spectrum that could be judged (never after t = 1e300)
+          if (skipped.length) ob.lastT = Math.max(prevT, row.startT);
+          if (skipped.length) this.log.warn(`batch ${row.id}: ${skipped.length} stored spectra cannot be judged and are left out of the rebuilt monitor (${skipped.slice(0, 3).join('; ')}${skipped.length > 3 ? '; …' : ''})`);
           ob.latest = last;
           ob.endpoint = last?.endpoint ?? null;
           if (ob.endpoint && ob.endpointState === 'signalled') {
@@ -309,6 +331,9 @@ export class IngestPipeline {
    * IngestProtocolError('axis-mismatch') when the (analyzer, boot) announced a different axis before.
    */
   async openStream(analyzer: string, boot: number, axis: number[], instrument: string | null, conn: AckSink): Promise<StreamState> {
+    const { axisMinNm, axisMaxNm } = this.config.ingest;
+    const bad = axisProblem(axis, { minNm: axisMinNm, maxNm: axisMaxNm });
+    if (bad) throw new IngestProtocolError('bad-axis', `hello.${bad.message}`);
     const now = this.now();
     if (!(await this.storage.getAnalyzer(analyzer))) await this.storage.createAnalyzer({ id: analyzer, name: analyzer, createdAt: now });
     const prev = await this.storage.getAnalyzerBoot(analyzer, boot);
@@ -361,6 +386,7 @@ export class IngestPipeline {
     if (st.lastAccepted >= 0 && e.seq !== st.lastAccepted + 1) {
       throw new IngestProtocolError('seq-gap', `expected seq ${st.lastAccepted + 1}, got ${e.seq}; resend from ${st.lastAccepted + 1}`, e.seq);
     }
+    this.checkTime(e);
     switch (e.type) {
       case 'spectrum':
         this.acceptSpectrum(st, e, receivedAt);
@@ -378,6 +404,16 @@ export class IngestPipeline {
     this.advance(st, e.seq);
     this.metrics.entries.inc({ type: e.type });
     return 'accepted';
+  }
+
+  /**
+   * The plausibility window of `t` against the server clock (ingest.maxAheadMs, ingest.maxBehindMs).
+   * An entry outside it is refused as time-implausible (its seq is consumed): one entry stamped in
+   * the future would otherwise make every correctly stamped entry after it time-backwards.
+   */
+  private checkTime(e: LogEntry) {
+    const p = timeProblem(e.t, this.now(), this.config.ingest);
+    if (p) throw new IngestProtocolError(p.kind === 'non-finite' ? 'non-finite' : 'time-implausible', `${e.type} seq ${e.seq}: ${p.message}`, e.seq);
   }
 
   /**
@@ -413,7 +449,7 @@ export class IngestPipeline {
     if (e.t < ob.startT || (ob.nextIdx > 0 && e.t <= ob.lastT)) {
       throw new IngestProtocolError(
         'time-backwards',
-        `spectrum seq ${e.seq}: time ${new Date(e.t).toISOString()} is not after the previous entry of batch ${ob.id} (${new Date(ob.lastT).toISOString()})`,
+        `spectrum seq ${e.seq}: time ${fmtTime(e.t)} is not after the previous entry of batch ${ob.id} (${fmtTime(ob.lastT)})`,
         e.seq,
       );
     }
@@ -481,21 +517,30 @@ export class IngestPipeline {
     const now = this.now();
     const dep = this.deployments.get(e.unit) ?? null;
     let monitor: BatchMonitorLike | null = null;
-    if (dep?.model) {
-      const inAxis = dep.model.chain.inputAxis;
+    if (dep) {
+      // A model is deployed: the batch is judged by it or not started at all (never acked and
+      // silently unjudged). No deployment at all is the normal case of collecting reference batches.
+      const refuse = (why: string): never => {
+        const message = `batch-start seq ${e.seq}: batch ${e.batch} cannot be judged on unit ${e.unit}: ${why}; the batch is not started. Deploy a model for this analyzer's axis, or retire the deployment to collect unjudged batches`;
+        this.applyCondition(e.unit, null, { kind: 'analyzer', key: MODEL_MISMATCH, active: true, priority: 1, value: st.axis.length, limit: dep.model?.chain.inputAxis.length ?? null, message }, e.seq, now);
+        this.post.events.push(['unit-changed', e.unit]);
+        throw new IngestProtocolError('model-mismatch', message, e.seq);
+      };
+      if (!dep.model) refuse(`the model deployed to it (${dep.ref.name} v${dep.ref.version}) cannot be read`);
+      const inAxis = dep.model!.chain.inputAxis;
       if (!sameAxis(inAxis, st.axis)) {
-        this.applyCondition(e.unit, e.batch, {
-          kind: 'analyzer', key: 'model-axis', active: true, priority: 2, value: st.axis.length, limit: inAxis.length,
-          message: `model does not fit the analyzer: ${dep.ref.name} v${dep.ref.version} deployed to ${e.unit} expects ${axisWords(inAxis)}, analyzer ${st.analyzer} sends ${axisWords(st.axis)}; batch ${e.batch} is stored but not judged — deploy a version built for this analyzer`,
-        }, e.seq, now);
-      } else {
-        try {
-          monitor = this.core.createBatchMonitor(dep.model, e.t);
-        } catch (err) {
-          this.log.error(`creating the monitor for batch ${e.batch} failed`, err);
-        }
+        refuse(
+          `model does not fit the analyzer: ${dep.ref.name} v${dep.ref.version} deployed to ${e.unit} expects ${axisWords(inAxis)}, analyzer ${st.analyzer} sends ${axisWords(st.axis)}`,
+        );
+      }
+      try {
+        monitor = this.core.createBatchMonitor(dep.model!, e.t);
+      } catch (err) {
+        this.log.error(`creating the monitor for batch ${e.batch} failed`, err);
+        refuse(`its monitor cannot be created from model ${dep.ref.name} v${dep.ref.version} (${(err as Error)?.message ?? String(err)})`);
       }
     }
+    this.clearModelMismatch(e.unit, e.seq, `batch ${e.batch} started and is judged${dep ? ` by ${dep.ref.name} v${dep.ref.version}` : ''}`);
     const ob: OpenBatch = {
       id: e.batch, unit: e.unit, analyzer: st.analyzer, boot: st.boot, product: e.product, startT: e.t, startSeq: e.seq,
       axisLength: st.axis.length, modelVersion: monitor ? dep!.ref.versionId : null, nextIdx: 0, lastSeq: e.seq, lastT: e.t,
@@ -519,7 +564,7 @@ export class IngestPipeline {
     if (!ob) throw new IngestProtocolError('no-open-batch', `batch-end seq ${e.seq}: analyzer ${st.analyzer} has no open batch`, e.seq);
     if (ob.id !== e.batch) throw new IngestProtocolError('batch-mismatch', `batch-end seq ${e.seq} names batch ${e.batch}, but the open batch is ${ob.id}`, e.seq);
     if (e.t < ob.lastT) {
-      throw new IngestProtocolError('time-backwards', `batch-end seq ${e.seq}: time ${new Date(e.t).toISOString()} is before the last spectrum of batch ${ob.id}`, e.seq);
+      throw new IngestProtocolError('time-backwards', `batch-end seq ${e.seq}: time ${fmtTime(e.t)} is before the last spectrum of batch ${ob.id}`, e.seq);
     }
     this.endBatch(ob, { seq: e.seq, t: e.t, reason: e.reason ?? null });
   }
@@ -548,6 +593,16 @@ export class IngestPipeline {
     }
     const now = this.now();
     const unit = e.unit ?? ob?.unit ?? this.lastUnitOf.get(st.analyzer) ?? null;
+    const other = unit !== null && !ob ? this.openByUnit.get(unit) : undefined;
+    if (other && other.analyzer !== st.analyzer) {
+      // Only the analyzer of a running batch speaks for its unit: another one can neither raise nor
+      // clear the unit's alarms (its analyzer-failure alarm stands for the analyzer that raised it).
+      throw new IngestProtocolError(
+        'batch-mismatch',
+        `analyzer-status seq ${e.seq}: unit ${unit} runs batch ${other.id} of analyzer ${other.analyzer}; analyzer ${st.analyzer} has no batch there and cannot report status for it`,
+        e.seq,
+      );
+    }
     const prev = this.analyzerStatus.get(st.analyzer) ?? null;
     const view: AnalyzerStatusView = { analyzer: st.analyzer, status: e.status, code: e.code ?? null, detail: e.detail ?? null, t: e.t, receivedAt: now };
     this.analyzerStatus.set(st.analyzer, view);
@@ -566,12 +621,24 @@ export class IngestPipeline {
     }
     if (view.status !== 'function-check' && ob) this.clearFunctionCheckOverdue(ob, e.seq, `analyzer ${st.analyzer} reports ${view.status}`);
     const failed = view.status === 'failure';
-    if (failed !== (prev?.status === 'failure')) {
+    // One failure alarm per analyzer on the unit (key analyzer-failure:<analyzer>): a report of one
+    // analyzer never raises or clears the alarm of another.
+    const key = `${ANALYZER_FAILURE}:${st.analyzer}`;
+    const standing = this.alarmIdByKey.get(alarmKey(unit, null, key));
+    if (failed !== (prev?.status === 'failure') || (!failed && standing && this.alarmsById.get(standing)?.active)) {
       const what = [view.code, view.detail].filter(Boolean).join(': ');
       this.applyCondition(unit, null, {
-        kind: 'analyzer', key: 'analyzer-failure', active: failed, priority: 2, value: failed ? 1 : 0, limit: 0,
+        kind: 'analyzer', key, active: failed, priority: 2, value: failed ? 1 : 0, limit: 0,
         message: failed ? `analyzer ${st.analyzer} reports failure (NE 107 F)${what ? `: ${what}` : ''}` : `analyzer ${st.analyzer} reports ${view.status} (no longer failure)`,
       }, e.seq, now);
+    }
+    if (!failed) {
+      // an alarm an earlier version raised under the shared key, if it was this analyzer's
+      const legacy = this.alarmIdByKey.get(alarmKey(unit, null, ANALYZER_FAILURE));
+      const la = legacy ? this.alarmsById.get(legacy) : undefined;
+      if (la?.active && la.message.startsWith(`analyzer ${st.analyzer} `)) {
+        this.applyCondition(unit, null, { kind: 'analyzer', key: ANALYZER_FAILURE, active: false, priority: 2, value: 0, limit: 0, message: `analyzer ${st.analyzer} reports ${view.status} (no longer failure)` }, e.seq, now);
+      }
     }
     this.applySuppression(unit, e.seq, `analyzer ${st.analyzer} reports ${view.status}${view.code ? ` (${view.code})` : ''}`);
     this.post.events.push(['unit-changed', unit]);
@@ -800,6 +867,14 @@ export class IngestPipeline {
     ob.stale = false;
     this.applyCondition(ob.unit, ob.id, { kind: 'stale', key: 'stale', active: false, priority: 2, value: 0, limit: this.config.ingest.staleAfterMs / 1000, message: `data from analyzer ${ob.analyzer} arrives again`, spectrumT }, seq, this.now());
     this.events.emit('unit-changed', ob.unit);
+  }
+
+  /** The unit's model-mismatch alarm (a batch-start refused because the deployment cannot judge it) is over. */
+  private clearModelMismatch(unit: string, seq: number | null, why: string) {
+    const id = this.alarmIdByKey.get(alarmKey(unit, null, MODEL_MISMATCH));
+    const cur = id ? this.alarmsById.get(id) : undefined;
+    if (!cur?.active) return;
+    this.applyCondition(unit, null, { kind: 'analyzer', key: MODEL_MISMATCH, active: false, priority: 1, value: null, limit: null, message: `model mismatch over: ${why}` }, seq, this.now());
   }
 
   /** ingest.functionCheckMaxMs, null when function check has no time limit (0 or null). */
@@ -1068,6 +1143,12 @@ export class AlarmRequestError extends Error {
 function newPost(): PostCommit {
   return { events: [], audits: [], acks: new Map(), latencies: [], spectra: 0 };
 }
+
+/** Key prefix of the unit alarm raised while an analyzer reports NE 107 failure (analyzer-failure:<analyzer>). */
+export const ANALYZER_FAILURE = 'analyzer-failure';
+
+/** Key of the unit alarm raised when a batch-start is refused because the deployed model cannot judge the batch. */
+export const MODEL_MISMATCH = 'model-mismatch';
 
 /** Key of Tideline's own alarm when an analyzer stays in function check beyond ingest.functionCheckMaxMs. */
 export const FUNCTION_CHECK_OVERDUE = 'function-check-overdue';

@@ -58,6 +58,8 @@ export interface BatchComparisonView {
   batch: string;
   versionId: string;
   comparison: Awaited<ReturnType<typeof compareStoredBatch>>['comparison'];
+  /** Stored spectra left out because they cannot be judged (stored by an older version: non-finite values, an impossible time). */
+  leftOut: { seq: number; why: string }[];
 }
 
 const userName = (req: Request) => req.user?.name ?? 'anonymous';
@@ -106,8 +108,8 @@ export function install(ctx: ServerContext): void {
     response: 'BatchComparisonView', responseSource: 'server/transfer/index.ts',
     handler: async ({ params, query }): Promise<BatchComparisonView> => {
       const b = await loadBatch(ctx, params.batch);
-      const { versionId, comparison } = await compareStoredBatch(ctx, b, query.version);
-      return { batch: b.id, versionId, comparison };
+      const { versionId, comparison, leftOut } = await compareStoredBatch(ctx, b, query.version);
+      return { batch: b.id, versionId, comparison, leftOut };
     },
   });
 

@@ -3,6 +3,7 @@
  * first exit, contributing regions) of the batch's stored spectra under the model that judged it,
  * and the data of the printable report.
  */
+import { storedSpectrumProblem } from '../../core/protocol/plausibility.ts';
 import type { BatchComparison } from '../../core/compare/compare-batch.ts';
 import { compareBatch } from '../../core/compare/compare-batch.ts';
 import type { MonitoringModel } from '../../core/model/monitoring-model.ts';
@@ -35,18 +36,32 @@ export async function modelFor(ctx: ServerContext, b: BatchRow, versionId?: stri
   return { id, model };
 }
 
-export async function compareStoredBatch(ctx: ServerContext, b: BatchRow, versionId?: string): Promise<{ versionId: string; comparison: BatchComparison; seqs: number[] }> {
+export async function compareStoredBatch(
+  ctx: ServerContext,
+  b: BatchRow,
+  versionId?: string,
+): Promise<{ versionId: string; comparison: BatchComparison; seqs: number[]; leftOut: { seq: number; why: string }[] }> {
   const { id, model } = await modelFor(ctx, b, versionId);
   const times: number[] = [];
   const seqs: number[] = [];
   const spectra: Float32Array[] = [];
+  // /ingest refuses such spectra now; an older version (or import) may have stored them. They are
+  // left out of the comparison and named, rather than failing the whole Review or report.
+  const leftOut: { seq: number; why: string }[] = [];
   for await (const s of ctx.storage.iterateSpectra(b.id)) {
+    const why = storedSpectrumProblem(s.t, s.values, times.length ? times[times.length - 1]! : -Infinity);
+    if (why) {
+      leftOut.push({ seq: s.seq, why });
+      continue;
+    }
     times.push(s.t);
     seqs.push(s.seq);
     spectra.push(s.values);
   }
-  if (spectra.length === 0) throw new HttpProblem(409, 'No spectra', `batch ${b.id} has no spectra yet`, 'no-spectra');
-  return { versionId: id, comparison: compareBatch(model, { times, spectra }), seqs };
+  if (spectra.length === 0) {
+    throw new HttpProblem(409, 'No spectra', `batch ${b.id} has no spectra ${leftOut.length ? `that can be judged (${leftOut.length} cannot: ${leftOut[0]!.why}, …)` : 'yet'}`, 'no-spectra');
+  }
+  return { versionId: id, comparison: compareBatch(model, { times, spectra }), seqs, leftOut };
 }
 
 async function allResults(ctx: ServerContext, batch: string): Promise<MonitorResult[]> {

@@ -98,7 +98,7 @@ describe('analyzer status on a live server', () => {
     // failure: analyzer alarm; then restart: the last status is known again
     p.send({ type: 'analyzer-status', seq: 5, t: t0 + 4000, status: 'failure', code: 'E17', detail: 'lamp' });
     await p.waitAck(5);
-    const failure = (await viewer.get('/api/alarms?unit=dryer-1')).body.items.find((x: any) => x.key === 'analyzer-failure');
+    const failure = (await viewer.get('/api/alarms?unit=dryer-1')).body.items.find((x: any) => x.key === 'analyzer-failure:nir-1');
     expect(failure).toMatchObject({ kind: 'analyzer', active: true, state: 'active-unacknowledged' });
     expect(failure.message).toMatch(/E17: lamp/);
     p.close();

@@ -93,7 +93,7 @@ describe('ingest: bad input names the problem; the connection and the server go 
     p.send({ type: 'hello', protocol: 1, analyzer: 'someone-else', boot: b, axis: AX });
     expect((await p.waitError('analyzer-mismatch')).message).toMatch(/someone-else/);
     p.send({ type: 'hello', protocol: 1, analyzer: 'nir-1', boot: b, axis: [1100, 1000] });
-    expect((await p.waitError('bad-message')).message).toMatch(/increase/);
+    expect((await p.waitError('bad-axis')).message).toMatch(/increase strictly.*cm⁻¹/);
     expect((await p.hello('nir-1', b, AX)).type).toBe('welcome');
 
     p.send({ type: 'batch-start', seq: 0, t: T0, unit: 'no-such-unit', batch: 'B-x', product: 'x' });

@@ -79,7 +79,7 @@ describe('REST: units, analyzers, batches', () => {
     expect(r.status).toBe(201);
     const p = new Peer(ts.wsUrl, r.body.token);
     await p.open();
-    expect((await p.hello('nir-9', 5, [1, 2, 3])).type).toBe('welcome');
+    expect((await p.hello('nir-9', 5, [1100, 1102, 1104])).type).toBe('welcome');
     p.close();
     r = await viewer.get('/api/analyzers');
     expect(r.body.items.map((a: any) => a.id)).toEqual(['nir-1', 'nir-9']);

@@ -10,7 +10,8 @@ import { startTestServer, type TestServer } from '../server/helpers.ts';
 
 let ts: TestServer;
 beforeAll(async () => {
-  ts = await startTestServer({}, { units: ['dryer-1'], analyzer: 'sim-dryer-1' });
+  // The simulator stamps process time, ahead of the wall clock when it streams faster than real time.
+  ts = await startTestServer({ ingest: { maxAheadMs: null } }, { units: ['dryer-1'], analyzer: 'sim-dryer-1' });
 });
 afterAll(async () => {
   await ts?.stop();

@@ -76,15 +76,22 @@ export function eta(e: { median: number; low: number; high: number } | null | un
   return `≈ ${minutes(e.median)} (${minutes(e.low)} – ${minutes(e.high)})`;
 }
 
+/** A time a Date can hold (|t| ≤ 8.64e15 ms); a batch stored by an older version may hold others. */
+function isDateMs(t: number): boolean {
+  return Math.abs(t) <= 8.64e15;
+}
+
 /** A clock time "14:03:27" in the given time zone (default: the browser's). */
 export function clock(t: number | null | undefined, timeZone?: string): string {
   if (!isNum(t)) return NO_VALUE;
+  if (!isDateMs(t)) return String(t);
   return new Intl.DateTimeFormat('en-GB', { hour: '2-digit', minute: '2-digit', second: '2-digit', hour12: false, timeZone }).format(new Date(t));
 }
 
 /** "2026-12-02 14:03" in the given time zone. */
 export function dateTime(t: number | null | undefined, timeZone?: string): string {
   if (!isNum(t)) return NO_VALUE;
+  if (!isDateMs(t)) return String(t);
   const parts = new Intl.DateTimeFormat('en-CA', { year: 'numeric', month: '2-digit', day: '2-digit', hour: '2-digit', minute: '2-digit', hour12: false, timeZone })
     .formatToParts(new Date(t));
   const get = (k: string) => parts.find((p) => p.type === k)?.value ?? '';
