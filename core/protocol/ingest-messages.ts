@@ -159,6 +159,7 @@ export const INGEST_ERROR_CODES = [
   'time-implausible',
   'bad-axis',
   'model-mismatch',
+  'conflict',
   'seq-gap',
   'time-backwards',
   'no-open-batch',

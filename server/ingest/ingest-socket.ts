@@ -141,10 +141,20 @@ export class IngestConnection implements AckSink {
         entry = msg;
       }
       if (!this.stream) throw new IngestProtocolError('hello-required', 'send hello before any other message', entry.seq);
-      const out = this.pipeline.accept(this.stream, entry, m.rt);
-      if (out === 'duplicate-committed') {
-        this.lastAckSent = -2; // always answer a duplicate with an ack
-        this.sendAck(this.stream.lastCommitted);
+      const st = this.stream;
+      const out = this.pipeline.accept(st, entry, m.rt);
+      if (out !== 'accepted') {
+        // A resend: acked again only when it is the entry stored under its seq, else a conflict.
+        const dup = entry;
+        void this.pipeline.checkResend(st, dup).then(
+          (conflict) => {
+            if (conflict) return this.fail(conflict);
+            if (this.stream !== st) return;
+            this.lastAckSent = -2; // always answer a duplicate with an ack
+            this.sendAck(st.lastCommitted);
+          },
+          (e) => this.fail(e),
+        );
       }
     } catch (e) {
       this.fail(e);

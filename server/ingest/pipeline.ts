@@ -23,7 +23,7 @@ import type { ServerConfig } from '../config.ts';
 import type { Logger } from '../logger.ts';
 import type { Metrics } from '../metrics.ts';
 import { coreMonitoring, type BatchMonitorLike, type CoreMonitoring, type MonitoringModelLike } from '../monitor/core-monitor.ts';
-import { emptyIngestWrite, type BatchRow, type IngestWrite, type OutboxRow, type Storage, type UnitRow } from '../storage/storage.ts';
+import { emptyIngestWrite, type BatchRow, type IngestWrite, type OutboxRow, type Storage, type StoredEntry, type UnitRow } from '../storage/storage.ts';
 
 /** What the pipeline needs from a connection to answer it. */
 export interface AckSink {
@@ -404,6 +404,26 @@ export class IngestPipeline {
     this.advance(st, e.seq);
     this.metrics.entries.inc({ type: e.type });
     return 'accepted';
+  }
+
+  /**
+   * A resend of an entry at or below the stream position (a duplicate): compared with what is stored
+   * under the same (analyzer, boot, seq) once pending commits are done. Resolves null when it is the
+   * same entry (ack it again), or a `conflict` error naming the difference: an entry with other
+   * content under a seq already taken is never acked as if it were stored. A refused entry's content
+   * is not kept, so its resend is acked as before.
+   */
+  async checkResend(st: StreamState, e: LogEntry): Promise<IngestProtocolError | null> {
+    await this.flush();
+    const stored = await this.storage.storedEntry(st.analyzer, st.boot, e.seq);
+    if (stored === null || stored === 'refused') return null;
+    const diff = entryDifference(stored, e);
+    if (!diff) return null;
+    return new IngestProtocolError(
+      'conflict',
+      `${e.type} seq ${e.seq} (boot ${st.boot}) differs from the ${stored.type} stored under that seq: ${diff}. A seq names one entry; the stored one stands. Resend it unchanged, or send new entries with new seqs (a new boot epoch starts the numbering afresh)`,
+      e.seq,
+    );
   }
 
   /**
@@ -1165,6 +1185,38 @@ function alarmKey(unit: string, batch: string | null, key: string) {
 function axisWords(a: ArrayLike<number>): string {
   const f = (v: number) => Number(v.toPrecision(5)).toString();
   return a.length ? `${a.length} points, ${f(a[0]!)}–${f(a[a.length - 1]!)} nm` : 'no points';
+}
+
+/** How a resent entry differs from the stored one, or null when it is the same. */
+function entryDifference(stored: StoredEntry, e: LogEntry): string | null {
+  if (stored.type !== e.type) return `a ${e.type} where a ${stored.type} is stored`;
+  if (stored.t !== e.t) return `t is ${fmtTime(e.t)}, stored ${fmtTime(stored.t)}`;
+  switch (e.type) {
+    case 'spectrum': {
+      const v = (stored as Extract<StoredEntry, { type: 'spectrum' }>).values;
+      if (v.length !== e.values.length) return `${e.values.length} values, stored ${v.length}`;
+      for (let i = 0; i < v.length; i++) if (!Object.is(v[i], e.values[i])) return `values[${i}] is ${e.values[i]}, stored ${v[i]}`;
+      return null;
+    }
+    case 'batch-start': {
+      const b = stored as Extract<StoredEntry, { type: 'batch-start' }>;
+      for (const k of ['unit', 'batch', 'product'] as const) if (b[k] !== e[k]) return `${k} is "${e[k]}", stored "${b[k]}"`;
+      return null;
+    }
+    case 'batch-end': {
+      const b = stored as Extract<StoredEntry, { type: 'batch-end' }>;
+      if (b.batch !== e.batch) return `batch is "${e.batch}", stored "${b.batch}"`;
+      if (b.reason !== (e.reason ?? null)) return `reason is ${JSON.stringify(e.reason ?? null)}, stored ${JSON.stringify(b.reason)}`;
+      return null;
+    }
+    case 'analyzer-status': {
+      const a = stored as Extract<StoredEntry, { type: 'analyzer-status' }>;
+      if (a.status !== e.status) return `status is ${e.status}, stored ${a.status}`;
+      if (a.code !== (e.code ?? null)) return `code is ${JSON.stringify(e.code ?? null)}, stored ${JSON.stringify(a.code)}`;
+      if (a.detail !== (e.detail ?? null)) return `detail differs from the stored one`;
+      return null;
+    }
+  }
 }
 
 function sameAxis(a: ArrayLike<number>, b: ArrayLike<number>): boolean {

@@ -27,6 +27,7 @@ import type {
   OutboxRow,
   SpectrumRow,
   Storage,
+  StoredEntry,
   StreamPositionRepair,
   UnitRow,
 } from './storage.ts';
@@ -384,6 +385,18 @@ export class SqliteStorage implements Storage {
       if (rows.length < pageSize) return;
       idx = (rows[rows.length - 1]!.idx as number) + 1;
     }
+  }
+  async storedEntry(analyzer: string, boot: number, seq: number): Promise<StoredEntry | 'refused' | null> {
+    const sp = this.db.prepare('SELECT t, vals FROM spectra WHERE analyzer = ? AND boot = ? AND seq = ?').get(analyzer, boot, seq) as Row | undefined;
+    if (sp) return { type: 'spectrum', t: sp.t, values: blobF32(sp.vals) };
+    const bs = this.db.prepare('SELECT id, unit, product, start_t FROM batches WHERE analyzer = ? AND boot = ? AND start_seq = ?').get(analyzer, boot, seq) as Row | undefined;
+    if (bs) return { type: 'batch-start', t: bs.start_t, unit: bs.unit, batch: bs.id, product: bs.product };
+    const be = this.db.prepare('SELECT id, end_t, end_reason FROM batches WHERE analyzer = ? AND boot = ? AND end_seq = ?').get(analyzer, boot, seq) as Row | undefined;
+    if (be) return { type: 'batch-end', t: be.end_t, batch: be.id, reason: be.end_reason ?? null };
+    const as = this.db.prepare('SELECT t, status, code, detail FROM analyzer_status WHERE analyzer = ? AND boot = ? AND seq = ?').get(analyzer, boot, seq) as Row | undefined;
+    if (as) return { type: 'analyzer-status', t: as.t, status: as.status, code: as.code ?? null, detail: as.detail ?? null };
+    const rj = this.db.prepare('SELECT 1 FROM rejected_entries WHERE analyzer = ? AND boot = ? AND seq = ?').get(analyzer, boot, seq);
+    return rj ? 'refused' : null;
   }
   async getSpectrumBySeq(batch: string, seq: number) {
     const r = this.st.spectrumBySeq.get(batch, seq) as Row | undefined;

@@ -218,6 +218,12 @@ export interface Storage {
    */
   repairStreamPositions(): Promise<StreamPositionRepair[]>;
 
+  /**
+   * What is stored under (analyzer, boot, seq): the entry as it was accepted, 'refused' when it was
+   * refused and its seq consumed (its content is not kept), or null when nothing is.
+   */
+  storedEntry(analyzer: string, boot: number, seq: number): Promise<StoredEntry | 'refused' | null>;
+
   // ingest
   commitIngest(w: IngestWrite): Promise<void>;
   maxOutboxSeqByUnit(): Promise<Map<string, number>>;
@@ -278,3 +284,10 @@ export interface Storage {
   // audit (plain rows until server/audit takes over)
   appendAudit(r: AuditRow): Promise<void>;
 }
+
+/** An accepted log entry as stored, to compare a resend of the same (analyzer, boot, seq) with. */
+export type StoredEntry =
+  | { type: 'spectrum'; t: number; values: Float32Array }
+  | { type: 'batch-start'; t: number; unit: string; batch: string; product: string }
+  | { type: 'batch-end'; t: number; batch: string; reason: string | null }
+  | { type: 'analyzer-status'; t: number; status: string; code: string | null; detail: string | null };
