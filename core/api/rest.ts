@@ -518,6 +518,8 @@ export interface EndpointCheckRowView {
   /** fired − known (negative: early), spectrum intervals and minutes. */
   intervals: number | null;
   minutes: number | null;
+  /** No known endpoint, lab values never past the target: the first spectrum after the last of them (the endpoint is no earlier) and that lab value in words; a call before it is early, counted from it. */
+  notBefore?: { index: number; min: number; text: string } | null;
   propertyAtFire: number | null;
   verdict: 'early' | 'on time' | 'late' | 'not reached' | 'no known endpoint';
   /** An early call inside the lab bracket of the known endpoint: early against the placed endpoint, not provably before the true crossing. */

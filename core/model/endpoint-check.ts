@@ -43,6 +43,12 @@ export interface EndpointCheckRow {
   /** fired − known, in spectrum intervals and in minutes (negative: early). */
   intervals: number | null;
   minutes: number | null;
+  /**
+   * A batch without a known endpoint whose lab values never cross the target: the first spectrum
+   * after its last lab value (not yet past the target) — the endpoint is no earlier — and that lab
+   * value in words. A call before it is early (intervals and minutes are then counted from it).
+   */
+  notBefore?: { index: number; min: number; text: string } | null;
   /** The predicted property where the rule fired (property models only). */
   propertyAtFire: number | null;
   verdict: 'early' | 'on time' | 'late' | 'not reached' | 'no known endpoint';
@@ -72,7 +78,7 @@ export interface EndpointCheck {
 }
 
 export const ENDPOINT_CHECK_METHOD =
-  'leave-one-batch-out replay through the endpoint tracker: for each reference batch, property predictions from the PLS calibrated without its lab values and automatic thresholds and minimum time re-resolved from the other batches\u2019 known endpoints; the preprocessing, the PCA, the LV count and the automatic property margin are those of the model (not refitted per batch); run-time holds (alarms, predictions outside calibration) are not replayed — they can only delay a call. Early: the rule reached done before the known endpoint.';
+  'leave-one-batch-out replay through the endpoint tracker: for each reference batch, property predictions from the PLS calibrated without its lab values and automatic thresholds and minimum time re-resolved from the other batches\u2019 known endpoints; the preprocessing, the PCA, the LV count and the automatic property margin are those of the model (not refitted per batch); run-time holds (alarms, predictions outside calibration) are not replayed — they can only delay a call. Early: the rule reached done before the known endpoint — or, on a batch without one whose lab values never cross the target, at or before its last lab value (not yet past the target).';
 
 export interface CheckBatch extends CalibrationBatch {
   id: string;
@@ -81,6 +87,8 @@ export interface CheckBatch extends CalibrationBatch {
   /** Property prediction of each kept spectrum from the model without this batch (null: no property model). */
   predicted: ArrayLike<number> | null;
   endpoint: ReferenceEndpoint | null;
+  /** Without a known endpoint: the first spectrum after the last lab value not yet past the target (see EndpointCheckRow.notBefore). */
+  notBefore?: { index: number; min: number; text: string } | null;
 }
 
 function median(xs: number[]): number | null {
@@ -130,9 +138,11 @@ export function checkEndpointRule(spec: EndpointRuleSpec, batches: CheckBatch[],
     const e = b.endpoint;
     const firedIndex = k === null ? null : b.kept[k]!;
     const firedMin = k === null ? null : b.elapsedMin[k]!;
-    const intervals = e && firedIndex !== null ? firedIndex - e.index : null;
-    const minutes = e && firedMin !== null ? firedMin - e.elapsedMin : null;
-    const verdict: EndpointCheckRow['verdict'] = !e ? 'no known endpoint' : intervals === null ? 'not reached' : intervals < 0 ? 'early' : intervals === 0 ? 'on time' : 'late';
+    // Without a known endpoint, a call before a lab value that was not yet past the target is early all the same.
+    const nb = !e && b.notBefore && firedIndex !== null && firedIndex < b.notBefore.index ? b.notBefore : null;
+    const intervals = e && firedIndex !== null ? firedIndex - e.index : nb ? firedIndex! - nb.index : null;
+    const minutes = e && firedMin !== null ? firedMin - e.elapsedMin : nb ? firedMin! - nb.min : null;
+    const verdict: EndpointCheckRow['verdict'] = nb ? 'early' : !e ? 'no known endpoint' : intervals === null ? 'not reached' : intervals < 0 ? 'early' : intervals === 0 ? 'on time' : 'late';
     return {
       batch: b.id,
       knownIndex: e ? e.index : null,
@@ -143,6 +153,7 @@ export function checkEndpointRule(spec: EndpointRuleSpec, batches: CheckBatch[],
       firedMin,
       intervals,
       minutes,
+      ...(!e && b.notBefore ? { notBefore: b.notBefore } : {}),
       propertyAtFire: k !== null && b.predicted ? b.predicted[k]! : null,
       verdict,
       withinBracket: verdict === 'early' && !!e?.bracket && firedIndex! > e.bracket.fromIndex,
@@ -160,7 +171,7 @@ export function checkEndpointRule(spec: EndpointRuleSpec, batches: CheckBatch[],
     onTime: rows.filter((r) => r.verdict === 'on time').length,
     notReached: rows.filter((r) => r.verdict === 'not reached').length,
     noEndpoint: rows.filter((r) => r.verdict === 'no known endpoint').length,
-    medianIntervals: median(rows.filter((r) => r.intervals !== null).map((r) => r.intervals!)),
+    medianIntervals: median(rows.filter((r) => r.intervals !== null && r.knownIndex !== null).map((r) => r.intervals!)),
   };
 }
 
@@ -170,6 +181,10 @@ export function earlyBatchesText(c: EndpointCheck): string {
   if (early.length === 0) return 'the rule reached done before the known endpoint on no reference batch';
   const fmt = (v: number) => v.toFixed(1);
   return `the rule reached done before the known endpoint on ${early.length} of ${c.rows.length} reference batches: ${early
-    .map((r) => `"${r.batch}" ${-r.intervals!} interval${r.intervals === -1 ? '' : 's'} (${fmt(-r.minutes!)} min) early${r.withinBracket ? ' (inside its lab bracket)' : ''}`)
+    .map((r) =>
+      r.knownIndex === null && r.notBefore
+        ? `"${r.batch}" at least ${-r.intervals!} interval${r.intervals === -1 ? '' : 's'} (${fmt(-r.minutes!)} min) early (no known endpoint, but done before its ${r.notBefore.text})`
+        : `"${r.batch}" ${-r.intervals!} interval${r.intervals === -1 ? '' : 's'} (${fmt(-r.minutes!)} min) early${r.withinBracket ? ' (inside its lab bracket)' : ''}`,
+    )
     .join(', ')}`;
 }

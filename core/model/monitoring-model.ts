@@ -26,7 +26,7 @@ import { fitPropertyModel, loadPropertyModel, type PropertyFit, type PropertyMod
 import { checkEndpointRule, earlyBatchesText, type CheckBatch, type EndpointCheck } from './endpoint-check.ts';
 import { crossValidatedStatistics } from './group-cv-statistics.ts';
 import { oneStandardErrorRule } from './parsimony.ts';
-import { missingEndpointsMessage, partsNeedingEndpoints, resolveReferenceEndpoints, type ReferenceEndpoint } from './reference-endpoints.ts';
+import { labNotYetPast, missingEndpointsMessage, partsNeedingEndpoints, resolveReferenceEndpoints, type ReferenceEndpoint } from './reference-endpoints.ts';
 import { endValuesOf, resolveCriteria, type CalibrationBatch, type PropertyContext } from './endpoint-calibration.ts';
 import { transferredChain, transferredPredictor } from '../calibration-transfer/transfer-chain.ts';
 import { transferRecordFromJSON, transferRecordToJSON, type ModelTransfer } from '../calibration-transfer/transfer-model.ts';
@@ -297,7 +297,16 @@ export function buildMonitoringModel(batches: ReferenceBatch[], settingsInput: u
     const m = kept[bi].length;
     const pred = propertyFit ? propertyFit.cvAll.y.subarray(po, po + m) : null;
     po += m;
-    return { ...c, id: batches[bi].id, kept: kept[bi], predicted: pred, endpoint: ends.endpoints[bi] };
+    // No known endpoint, lab values that never cross the target: the endpoint is after the last of them.
+    const nyp = ends.endpoints[bi] === null ? labNotYetPast(batches[bi], settings) : null;
+    let notBefore: CheckBatch['notBefore'] = null;
+    if (nyp) {
+      const t = batches[bi].times;
+      const at = nyp.index + 1;
+      const tMs = at < t.length ? t[at] : t[t.length - 1] + (t.length > 1 ? t[t.length - 1] - t[t.length - 2] : 0);
+      notBefore = { index: at, min: (tMs - t[0]) / 60000, text: nyp.text };
+    }
+    return { ...c, id: batches[bi].id, kept: kept[bi], predicted: pred, endpoint: ends.endpoints[bi], notBefore };
   });
   const endpointCheck = checkEndpointRule(settings.endpoint, replayBatches, endValues, { A, confidence: conf, property: propertyContext });
   if (endpointCheck.early > 0) notes.push(`Endpoint check (leave one batch out): ${earlyBatchesText(endpointCheck)}. Approval needs a signed override.`);
@@ -429,6 +438,7 @@ const bodySchema = z.object({
             firedMin: num.nullable(),
             intervals: z.number().int().nullable(),
             minutes: num.nullable(),
+            notBefore: z.object({ index: z.number().int().min(0), min: num, text: z.string() }).nullable().optional(),
             propertyAtFire: num.nullable(),
             verdict: z.enum(['early', 'on time', 'late', 'not reached', 'no known endpoint']),
             withinBracket: z.boolean(),

@@ -99,6 +99,29 @@ function labEndpoint(b: BatchLike, tgt: NonNullable<ReturnType<typeof endpointTa
 }
 
 /**
+ * For a batch whose lab values never cross the target (and that has no mark): where its last lab
+ * value, not yet past the target, says the endpoint had not come — the endpoint lies after that
+ * spectrum, so a rule calling done at or before it is early. Null when the batch has no lab values,
+ * when one crosses the target, or when there is no property target.
+ */
+export function labNotYetPast(b: BatchLike, settings: BuildSettings): { index: number; value: number; text: string } | null {
+  const tgt = endpointTarget(settings);
+  if (!tgt || !b.property) return null;
+  const past = (v: number) => (tgt.direction === 'below' ? v <= tgt.target : v >= tgt.target);
+  let last = -1;
+  for (let i = 0; i < b.property.length; i++) {
+    const v = b.property[i]!;
+    if (!Number.isFinite(v)) continue;
+    if (past(v)) return null;
+    last = i;
+  }
+  if (last < 0) return null;
+  const u = tgt.unit ? ` ${tgt.unit}` : '';
+  const v = b.property[last]!;
+  return { index: last, value: v, text: `lab ${tgt.name} ${sig(v)}${u} at ${fmt((b.times[last]! - b.times[0]!) / 60000)} min, not yet past the ${sig(tgt.target)}${u} target` };
+}
+
+/**
  * One entry per reference batch: its endpoint, or null with the reason in `missing`. Marks naming
  * an unknown batch, given twice, or outside the batch are refused with a sentence naming them.
  */

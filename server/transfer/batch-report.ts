@@ -94,7 +94,7 @@ function evidenceSection(d: BatchReportData): string {
     parts.push(
       table(
         ['reference batch', 'known endpoint (min)', 'from', 'rule reached done (min)', 'intervals', 'minutes', 'verdict'],
-        c.rows.map((r) => [r.batch, r.knownMin === null ? '—' : `${num(r.knownMin, 4)}${r.bracketMin ? ` (lab bracket ${num(r.bracketMin[0], 4)}–${num(r.bracketMin[1], 4)})` : ''}`, r.knownSource ?? '—', r.firedMin === null ? 'not reached' : num(r.firedMin, 4), r.intervals ?? '—', r.minutes === null ? '—' : num(r.minutes, 3), r.withinBracket ? `${r.verdict} (inside the lab bracket)` : r.verdict]),
+        c.rows.map((r) => [r.batch, r.knownMin === null ? (r.notBefore ? `none; not before ${num(r.notBefore.min, 4)} (${r.notBefore.text})` : '—') : `${num(r.knownMin, 4)}${r.bracketMin ? ` (lab bracket ${num(r.bracketMin[0], 4)}–${num(r.bracketMin[1], 4)})` : ''}`, r.knownSource ?? '—', r.firedMin === null ? 'not reached' : num(r.firedMin, 4), r.intervals ?? '—', r.minutes === null ? '—' : num(r.minutes, 3), r.withinBracket ? `${r.verdict} (inside the lab bracket)` : r.verdict]),
       ),
     );
     parts.push(`<p class="small">${esc(plainText(c.method))}</p>`);

@@ -97,3 +97,44 @@ describe('the leave-one-batch-out check agrees with the live monitor of a model 
     expect(check.rows[bi]!.firedIndex).toBe(done);
   }, 60_000);
 });
+
+describe('a reference batch without a known endpoint is still judged by its lab values', () => {
+  // A site's reference batch can end with its last lab result still above the target (the dryer was
+  // stopped for another reason, or the final result was never taken): it has no known endpoint,
+  // but a call before that result is early all the same — worked by hand here.
+  const spec = validateEndpointRuleSpec({ criteria: [{ kind: 'property', target: 2, margin: 0.1 }], combine: 'all', confirm: 2, nearingMin: 5 });
+  const property = { name: 'moisture', unit: '% w/w', target: 2, direction: 'below' as const, rmsecv: null };
+  const wet = { ...handBatch('wet-at-lab', [5, 1.8, 1.8, 1.7, 1.6, 1.5], null), notBefore: { index: 4, min: 2, text: 'lab moisture 2.30 % w/w at 1.5 min, not yet past the 2.00 % w/w target' } };
+  const after = { ...handBatch('after-lab', [5, 1.8, 1.8, 1.7], null), notBefore: { index: 2, min: 1, text: 'lab moisture 2.10 % w/w at 0.5 min, not yet past the 2.00 % w/w target' } };
+  const c = checkEndpointRule(spec, [wet, after], endValuesOf(spec, [wet, after], ['wet-at-lab', 'after-lab']), { A: 1, confidence: 0.99, property });
+  it('counts a call before the last lab value not yet past the target as early, from the spectrum after it', () => {
+    // done at spectrum 2 (1.8, 1.8); the endpoint is not before spectrum 4 (1 min later)
+    expect(c.rows[0]).toMatchObject({ verdict: 'early', firedIndex: 2, intervals: -2, minutes: -1, knownIndex: null, notBefore: wet.notBefore });
+    // done at spectrum 2, which is where the endpoint may be: not judged
+    expect(c.rows[1]).toMatchObject({ verdict: 'no known endpoint', firedIndex: 2, intervals: null });
+    expect(c).toMatchObject({ early: 1, earlyMaxIntervals: 2, earlyMaxMinutes: 1, noEndpoint: 1, medianIntervals: null });
+    expect(earlyBatchesText(c)).toBe('the rule reached done before the known endpoint on 1 of 2 reference batches: "wet-at-lab" at least 2 intervals (1.0 min) early (no known endpoint, but done before its lab moisture 2.30 % w/w at 1.5 min, not yet past the 2.00 % w/w target)');
+  });
+
+  it('in a build: the batch whose last lab result is still wet makes the rule early, so approval needs an override', () => {
+    const sim = simulateReferenceSet('dryer', 5, 303, { intervalS: 30 });
+    const refs: ReferenceBatch[] = sim.map((b, bi) => ({ id: b.id, axis: b.axis, times: b.times, spectra: b.spectra, property: Array.from(b.truth.property.values, (v, i) => ((i + bi) % 6 === 0 ? v : NaN)) }));
+    // batch 0: lab values only while it was wet, and a last one — still 2.4 % w/w — at its last spectrum
+    const last = refs[0]!.times.length - 1;
+    refs[0] = { ...refs[0]!, property: Array.from(refs[0]!.property!, (v, i) => (i === last ? 2.4 : v > 2.5 ? v : NaN)) };
+    const settings = {
+      name: 'wet-lab', product: 'p', author: 't', createdAt: 0, components: 3, chain: [{ step: 'scale', center: true, scaling: 'none' }],
+      property: { name: 'moisture', unit: '% w/w', components: 3, target: 2, direction: 'below' },
+      endpoint: { criteria: [{ kind: 'property', margin: 0.05 }], combine: 'all', confirm: 2, nearingMin: 5 },
+    };
+    const model = buildMonitoringModel(refs, settings);
+    const row = model.meta.endpointCheck!.rows[0]!;
+    expect(row).toMatchObject({ batch: refs[0]!.id, knownIndex: null, verdict: 'early', notBefore: { index: last + 1 } });
+    expect(row.notBefore!.text).toBe(`lab moisture 2.40 % w/w at ${((refs[0]!.times[last]! - refs[0]!.times[0]!) / 60000).toFixed(1)} min, not yet past the 2.00 % w/w target`);
+    expect(row.firedIndex).toBeLessThan(last);
+    expect(model.meta.endpointCheck!.early).toBeGreaterThanOrEqual(1);
+    expect(model.meta.notes!.some((n) => n.startsWith('Endpoint check (leave one batch out): ') && n.includes(`"${refs[0]!.id}" at least`))).toBe(true);
+    // the row round-trips in the model file
+    expect(parseMonitoringModel(serializeMonitoringModel(model)).meta.endpointCheck).toEqual(model.meta.endpointCheck);
+  });
+});

@@ -87,5 +87,7 @@ describe('Model bench: reference endpoints, lab values and the endpoint check in
     expect(offsetText(rows[0]!)).toBe('2 intervals (3.0 min) late');
     expect(offsetText(rows[3]!)).toBe('at the known endpoint');
     expect(offsetText(row('e', 'not reached', null, null))).toBe('—');
+    // no known endpoint: counted from the first spectrum after a lab value not yet past the target
+    expect(offsetText({ ...row('f', 'early', -3, -1), knownIndex: null })).toBe('at least 3 intervals (1.0 min) early');
   });
 });

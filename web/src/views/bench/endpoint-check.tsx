@@ -17,11 +17,13 @@ export function orderCheckRows(rows: EndpointCheckRowView[]): EndpointCheckRowVi
 }
 
 /** "3 intervals (4.5 min) early", "on time", "2 intervals (3.0 min) late". */
-export function offsetText(r: Pick<EndpointCheckRowView, 'intervals' | 'minutes'>): string {
+export function offsetText(r: Pick<EndpointCheckRowView, 'intervals' | 'minutes'> & Partial<Pick<EndpointCheckRowView, 'knownIndex'>>): string {
   if (r.intervals === null || r.minutes === null) return '—';
   if (r.intervals === 0) return 'at the known endpoint';
   const n = Math.abs(r.intervals);
-  return `${n} interval${n === 1 ? '' : 's'} (${fixed(Math.abs(r.minutes), 1)} min) ${r.intervals < 0 ? 'early' : 'late'}`;
+  // without a known endpoint, counted from the first spectrum after a lab value not yet past the target
+  const atLeast = r.knownIndex === null ? 'at least ' : '';
+  return `${atLeast}${n} interval${n === 1 ? '' : 's'} (${fixed(Math.abs(r.minutes), 1)} min) ${r.intervals < 0 ? 'early' : 'late'}`;
 }
 
 export function EndpointCheckPanel({ check, ends }: { check: EndpointCheckView | null; ends: ReferenceEndpointView[] }) {
@@ -64,7 +66,7 @@ export function EndpointCheckPanel({ check, ends }: { check: EndpointCheckView |
                 <tr key={r.batch} class={r.verdict === 'early' ? 'row-alarm' : ''} data-testid={`check-${r.batch}`}>
                   <td>{r.batch}</td>
                   <td class="num">
-                    {r.knownMin === null ? '—' : fixed(r.knownMin, 1)}
+                    {r.knownMin === null ? (r.notBefore ? <span title={r.notBefore.text}>none; not before {fixed(r.notBefore.min, 1)}</span> : '—') : fixed(r.knownMin, 1)}
                     {r.knownIndex !== null && <span class="muted small"> #{r.knownIndex}</span>}
                     {r.bracketMin && <span class="muted small"> (lab bracket {fixed(r.bracketMin[0], 1)}–{fixed(r.bracketMin[1], 1)})</span>}
                   </td>
@@ -80,6 +82,7 @@ export function EndpointCheckPanel({ check, ends }: { check: EndpointCheckView |
                   <td>
                     <Badge tone={VERDICT_TONE[r.verdict]}>{r.verdict}</Badge>
                     {r.withinBracket && <span class="small muted"> inside the lab bracket</span>}
+                    {r.verdict === 'early' && r.knownIndex === null && r.notBefore && <span class="small muted"> before its {r.notBefore.text}</span>}
                   </td>
                 </tr>
               ))}
