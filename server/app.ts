@@ -158,9 +158,22 @@ export async function startServer(config: ServerConfig, opts: StartOptions = {})
   }
   app.use(problemHandler(log));
 
-  const ingestWss = new WebSocketServer({ noServer: true, maxPayload: MAX_MESSAGE_BYTES, perMessageDeflate: false });
+  // ws closes beyond its maxPayload with 1009 and no word; the connection refuses a message above
+  // MAX_MESSAGE_BYTES itself first, with a too-large error frame (ws's limit is the hard cap on memory).
+  const ingestWss = new WebSocketServer({ noServer: true, maxPayload: 2 * MAX_MESSAGE_BYTES, perMessageDeflate: false });
   const liveWss = new WebSocketServer({ noServer: true, maxPayload: 64 * 1024, perMessageDeflate: false });
   const conns = new Set<IngestConnection>();
+  /** The token each ingest connection authenticated with: re-checked every heartbeat, so a revoked token ends its open connections too. */
+  const tokens = new Map<IngestConnection, string>();
+  const recheckTokens = async () => {
+    for (const [c, token] of [...tokens]) {
+      const analyzer = ctx.auth?.verifyAnalyzerToken(token) ?? (await verifyAnalyzerToken(storage, token));
+      if (analyzer !== c.analyzer) {
+        tokens.delete(c);
+        c.revoked();
+      }
+    }
+  };
 
   const refuse = (socket: Duplex, status: number, text: string, message: string) => {
     socket.write(`HTTP/1.1 ${status} ${text}\r\nContent-Type: text/plain\r\nConnection: close\r\nContent-Length: ${Buffer.byteLength(message)}\r\n\r\n${message}`);
@@ -184,7 +197,11 @@ export async function startServer(config: ServerConfig, opts: StartOptions = {})
           metrics.ingestConnections.inc();
           const c = new IngestConnection(ws, analyzer, addr, pipeline, config, metrics, log);
           conns.add(c);
-          ws.on('close', () => conns.delete(c));
+          tokens.set(c, token);
+          ws.on('close', () => {
+            conns.delete(c);
+            tokens.delete(c);
+          });
         });
       })().catch((e) => {
         log.error('ingest upgrade failed', e);
@@ -193,6 +210,12 @@ export async function startServer(config: ServerConfig, opts: StartOptions = {})
       return;
     }
     if (path === LIVE_PATH) {
+      // A browser sends the page's Origin with every WebSocket; a page of another site must not ride
+      // on the session cookie (cross-site WebSocket hijacking). A client without Origin is no browser.
+      const origin = req.headers.origin;
+      if (origin !== undefined && !sameOrigin(origin, req.headers.host)) {
+        return refuse(socket, 403, 'Forbidden', `Origin ${origin.slice(0, 100)} is not this server (${req.headers.host ?? '?'}); /live accepts only pages served by Tideline itself`);
+      }
       if (ctx.auth && !ctx.auth.userFromRequest(req)) return refuse(socket, 401, 'Unauthorized', 'log in first (POST /api/auth/login)');
       liveWss.handleUpgrade(req, socket, head, (ws) => {
         live.attach(ws);
@@ -205,6 +228,7 @@ export async function startServer(config: ServerConfig, opts: StartOptions = {})
 
   const heartbeat = setInterval(() => {
     for (const c of conns) c.heartbeat();
+    void recheckTokens().catch((e) => log.error('re-checking analyzer tokens failed', e));
   }, config.ingest.heartbeatMs);
   heartbeat.unref();
 
@@ -247,4 +271,14 @@ export async function startServer(config: ServerConfig, opts: StartOptions = {})
   log.info(`Tideline ${VERSION} listening on ${schemes(config.tls).http}://${host}:${port} (data: ${opts.dbFile ?? join(config.dataDir, 'tideline.db')})`);
 
   return { ctx, http, port, url: `${schemes(config.tls).http}://${host}:${port}`, routes, close };
+}
+
+/** The Origin header names the host (and port) the request was sent to. */
+function sameOrigin(origin: string, host: string | undefined): boolean {
+  if (!host) return false;
+  try {
+    return new URL(origin).host.toLowerCase() === host.toLowerCase();
+  } catch {
+    return false;
+  }
 }

@@ -22,8 +22,12 @@ import { axisProblem, float32Problem } from './plausibility.ts';
 export const PROTOCOL_VERSION = 1;
 
 /** Upper bound on one WebSocket message, bytes (server maxPayload). */
-export const MAX_MESSAGE_BYTES = 256 * 1024;
-/** Upper bound on points in one spectrum (fits MAX_MESSAGE_BYTES as Float32 with room to spare). */
+export const MAX_MESSAGE_BYTES = 512 * 1024;
+/**
+ * Upper bound on points in one spectrum. A JSON spectrum of this many points, each written as the
+ * longest JSON number a float32 needs (about 25 characters, e.g. -1.1754943508222875e-38), fits
+ * MAX_MESSAGE_BYTES; as a binary frame it takes 64 KiB.
+ */
 export const MAX_SPECTRUM_POINTS = 16384;
 
 const seqSchema = z.number().int().nonnegative().max(Number.MAX_SAFE_INTEGER);
@@ -160,6 +164,7 @@ export const INGEST_ERROR_CODES = [
   'bad-axis',
   'model-mismatch',
   'conflict',
+  'token-revoked',
   'seq-gap',
   'time-backwards',
   'no-open-batch',

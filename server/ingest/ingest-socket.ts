@@ -8,6 +8,7 @@ import type { WebSocket } from 'ws';
 import { decodeSpectrumFrame } from '../../core/protocol/binary-frame.ts';
 import {
   IngestProtocolError,
+  MAX_MESSAGE_BYTES,
   PROTOCOL_VERSION,
   parseAnalyzerText,
   type ErrorMessage,
@@ -28,8 +29,10 @@ export class IngestConnection implements AckSink {
   private stream: StreamState | null = null;
   private busy = false;
   private readonly backlog: Raw[] = [];
-  private tokens: number;
-  private lastRefill = performance.now();
+  /** Messages per 100 ms step over the last second (a sliding window of ten steps). */
+  private readonly steps = new Uint32Array(10);
+  private stepAt = Math.floor(performance.now() / 100);
+  private inWindow = 0;
   private errorTimes: number[] = [];
   private alive = true;
   private closed = false;
@@ -44,7 +47,6 @@ export class IngestConnection implements AckSink {
     private readonly metrics: Metrics,
     private readonly log: Logger,
   ) {
-    this.tokens = config.ingest.maxMessagesPerSecond * 2;
     ws.on('message', (data: Buffer, isBinary: boolean) => this.onMessage(data, isBinary));
     ws.on('pong', () => (this.alive = true));
     ws.on('close', () => this.onClose());
@@ -75,6 +77,9 @@ export class IngestConnection implements AckSink {
   close(code: number, reason: string): void {
     if (this.closed) return;
     this.ws.close(code, reason.slice(0, 120));
+    // Nothing more is taken from a connection being closed (replaced by a newer one of the same
+    // analyzer, server shutting down): what it still sends is not acked and is resent on the new one.
+    this.closed = true;
   }
 
   private onClose() {
@@ -91,26 +96,49 @@ export class IngestConnection implements AckSink {
     this.ws.send(JSON.stringify(m));
   }
 
+  /**
+   * At most ingest.maxMessagesPerSecond messages within any second, counted in 100 ms steps (a
+   * sliding window: a burst cannot borrow from the second before it).
+   */
   private takeToken(): boolean {
-    const now = performance.now();
-    const rate = this.config.ingest.maxMessagesPerSecond;
-    this.tokens = Math.min(rate * 2, this.tokens + ((now - this.lastRefill) / 1000) * rate);
-    this.lastRefill = now;
-    if (this.tokens < 1) return false;
-    this.tokens -= 1;
+    const step = Math.floor(performance.now() / 100);
+    const gone = Math.min(10, step - this.stepAt);
+    for (let k = 1; k <= gone; k++) {
+      const i = (this.stepAt + k) % 10;
+      this.inWindow -= this.steps[i]!;
+      this.steps[i] = 0;
+    }
+    this.stepAt = Math.max(this.stepAt, step);
+    if (this.inWindow >= this.config.ingest.maxMessagesPerSecond) return false;
+    this.steps[this.stepAt % 10]!++;
+    this.inWindow++;
     return true;
   }
 
-  private abusive(code: 'rate-limited' | 'too-large', message: string) {
+  /** The token of this connection was revoked: refuse everything from now on and close. */
+  revoked(): void {
+    if (this.closed) return;
+    const msg = 'the analyzer token of this connection was revoked; nothing more is accepted on it';
+    this.sendError(new IngestProtocolError('token-revoked', msg));
+    this.log.warn(`ingest ${this.analyzer} (${this.remoteAddress}): closing: ${msg}`);
+    this.ws.close(4401, 'analyzer token revoked');
+    this.closed = true;
+  }
+
+  private abusive(code: 'rate-limited' | 'too-large', message: string, closeCode = 1008) {
     this.sendError(new IngestProtocolError(code, message));
     this.log.warn(`ingest ${this.analyzer} (${this.remoteAddress}): closing: ${message}`);
-    this.ws.close(1008, message.slice(0, 120));
+    this.ws.close(closeCode, message.slice(0, 120));
     this.closed = true;
   }
 
   private onMessage(data: Buffer, binary: boolean) {
     if (this.closed) return;
     const rt = performance.now();
+    if (data.byteLength > MAX_MESSAGE_BYTES) {
+      this.abusive('too-large', `message of ${data.byteLength} bytes; at most ${MAX_MESSAGE_BYTES} bytes (${MAX_MESSAGE_BYTES / 1024} KiB) are accepted`, 1009);
+      return;
+    }
     if (!this.takeToken()) {
       this.abusive('rate-limited', `more than ${this.config.ingest.maxMessagesPerSecond} messages per second`);
       return;

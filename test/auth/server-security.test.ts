@@ -224,7 +224,7 @@ describe('bad requests', () => {
     expect(up.opened).toBe(true);
     const code = await new Promise<number>((resolve) => {
       up.ws!.on('close', (c) => resolve(c));
-      up.ws!.send(Buffer.alloc(300 * 1024));
+      up.ws!.send(Buffer.alloc(600 * 1024)); // above the 512 KiB message limit
     });
     expect(code).toBe(1009);
   });

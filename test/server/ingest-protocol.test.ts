@@ -1,7 +1,7 @@
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import WebSocket from 'ws';
 import { Peer, axis, spectrum, startTestServer, type TestServer } from './helpers.ts';
-import { encodeSpectrumJson } from '../../core/protocol/ingest-messages.ts';
+import { MAX_MESSAGE_BYTES, encodeSpectrumJson } from '../../core/protocol/ingest-messages.ts';
 import { encodeSpectrumFrame } from '../../core/protocol/binary-frame.ts';
 
 const AX = axis(64);
@@ -150,12 +150,13 @@ describe('ingest: bad input names the problem; the connection and the server go 
     q.close();
   });
 
-  it('an oversized frame closes the peer (1009), and the server goes on', async () => {
+  it('an oversized frame gets too-large and closes the peer (1009), and the server goes on', async () => {
     const p = await connected();
     await p.hello('nir-1', ++boot, AX);
-    p.ws.send(Buffer.alloc(300 * 1024));
+    p.ws.send(Buffer.alloc(MAX_MESSAGE_BYTES + 1));
     const c = await p.waitClose();
     expect(c.code).toBe(1009);
+    expect(p.messages.find((m) => m.type === 'error' && m.code === 'too-large')?.message).toMatch(/524289 bytes; at most 524288/);
     const q = await connected();
     expect((await q.hello('nir-1', ++boot, AX)).type).toBe('welcome');
     q.close();

@@ -1,0 +1,125 @@
+/**
+ * Connections and access on /ingest and /live, as a site's analyzer, a browser and a hostile client
+ * would meet them: a revoked token ends its open connection, a largest legal JSON spectrum fits and
+ * an oversized message gets an error frame, the message rate holds within any second, a takeover by
+ * a newer connection refuses nothing already stored, and /live refuses a foreign Origin.
+ */
+import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import WebSocket from 'ws';
+import { LivePeer, Peer, axis, login, spectrum, startTestServer, type TestServer } from './helpers.ts';
+import { MAX_MESSAGE_BYTES, MAX_SPECTRUM_POINTS } from '../../core/protocol/ingest-messages.ts';
+
+let ts: TestServer;
+
+beforeAll(async () => {
+  ts = await startTestServer({ ingest: { heartbeatMs: 300, maxMessagesPerSecond: 500, maxErrorsPer10s: 100_000 } }, { units: ['u1', 'u2', 'u3'] });
+});
+afterAll(async () => {
+  await ts?.stop();
+});
+
+describe('analyzer token revocation', () => {
+  it('closes the connection that authenticated with it, with token-revoked; nothing is acked after', async () => {
+    const admin = await login(ts, 'administrator');
+    const made = await admin.post('/api/auth/tokens', { analyzer: 'nir-rev', label: 'test' });
+    expect(made.status).toBe(201);
+    const p = new Peer(ts.wsUrl, made.body.token);
+    await p.open();
+    await p.hello('nir-rev', 1, axis(16));
+    const t0 = Date.now() - 60_000;
+    p.send({ type: 'batch-start', seq: 0, t: t0, unit: 'u1', batch: 'B-rev', product: 'p' });
+    p.sendFrame(1, t0 + 1000, spectrum(16, 1));
+    await p.waitAck(1);
+    const del = await fetch(ts.server.url + `/api/auth/tokens/${made.body.id}`, { method: 'DELETE', headers: { cookie: admin.cookie, 'x-csrf-token': admin.csrf } });
+    expect(del.status).toBeLessThan(300);
+    const e = await p.waitError('token-revoked');
+    expect(e.message).toMatch(/revoked/);
+    expect((await p.waitClose()).code).toBe(4401);
+    expect((await ts.server.ctx.storage.readSpectra('B-rev', 0, 10, 10)).map((r) => r.seq)).toEqual([1]);
+    // and a new connection with it is refused at the upgrade
+    await expect(new Peer(ts.wsUrl, made.body.token).open()).rejects.toThrow(/401/);
+  });
+});
+
+describe('message size', () => {
+  it(`a ${MAX_SPECTRUM_POINTS}-point JSON spectrum with the longest float32 numbers is taken`, async () => {
+    const n = MAX_SPECTRUM_POINTS;
+    const p = new Peer(ts.wsUrl, ts.token);
+    await p.open();
+    const ax = Array.from({ length: n }, (_, i) => 1000 + i * 0.1);
+    expect((await p.hello('nir-1', 11, ax)).type).toBe('welcome');
+    const t0 = Date.now() - 60_000;
+    p.send({ type: 'batch-start', seq: 0, t: t0, unit: 'u2', batch: 'B-big', product: 'p' });
+    const v = Array.from({ length: n }, (_, i) => -1.1754943508222875e-38 * (1 + (i % 7) / 1e7));
+    const text = JSON.stringify({ type: 'spectrum', seq: 1, t: t0 + 1000, values: v });
+    expect(text.length).toBeGreaterThan(256 * 1024);
+    expect(text.length).toBeLessThanOrEqual(MAX_MESSAGE_BYTES);
+    p.send(text);
+    await p.waitAck(1);
+    expect(p.messages.filter((m) => m.type === 'error')).toEqual([]);
+    // beyond the limit: a too-large error frame naming it, then close 1009
+    p.send('{"type":"spectrum","seq":2,"t":1,"values":[' + '0,'.repeat(MAX_MESSAGE_BYTES / 2) + '0]}');
+    const e = await p.waitError('too-large');
+    expect(e.message).toMatch(/at most 524288 bytes/);
+    expect((await p.waitClose()).code).toBe(1009);
+  });
+});
+
+describe('message rate', () => {
+  it('a burst above maxMessagesPerSecond within one second is refused with rate-limited', async () => {
+    const p = new Peer(ts.wsUrl, ts.token);
+    await p.open();
+    await p.hello('nir-1', 12, axis(4));
+    // 2 × the rate sent at once: a bucket that allowed a 2-second burst would take them all
+    for (let i = 0; i < 1000; i++) p.send({ type: 'nothing', i });
+    const e = await p.waitError('rate-limited');
+    expect(e.message).toMatch(/more than 500 messages per second/);
+    expect((await p.waitClose()).code).toBe(1008);
+  });
+});
+
+describe('takeover by a newer connection of the same analyzer', () => {
+  it('refuses nothing that is stored: the old connection stops, the new one resends, every spectrum stored once', async () => {
+    const old = new Peer(ts.wsUrl, ts.token);
+    await old.open();
+    await old.hello('nir-1', 13, axis(8));
+    const t0 = Date.now() - 600_000;
+    old.send({ type: 'batch-start', seq: 0, t: t0, unit: 'u3', batch: 'B-take', product: 'p' });
+    for (let k = 1; k <= 200; k++) old.sendFrame(k, t0 + k * 1000, spectrum(8, k));
+    // the new connection says hello while the old one is still sending
+    const neu = new Peer(ts.wsUrl, ts.token);
+    await neu.open();
+    const w = await neu.hello('nir-1', 13, axis(8));
+    expect(w.type).toBe('welcome');
+    for (let k = w.resumeAfter + 1; k <= 300; k++) neu.sendFrame(k, t0 + k * 1000, spectrum(8, k));
+    neu.send({ type: 'batch-end', seq: 301, t: t0 + 301_000, batch: 'B-take' });
+    await neu.waitAck(301);
+    expect(neu.messages.filter((m) => m.type === 'error')).toEqual([]);
+    const rows = await ts.server.ctx.storage.readSpectra('B-take', 0, 1000, 1000);
+    expect(rows.map((r) => r.seq)).toEqual(Array.from({ length: 300 }, (_, i) => i + 1));
+    const rejected = ts.server.ctx.storage.db.prepare('SELECT COUNT(*) AS n FROM rejected_entries WHERE analyzer = ? AND boot = ?').get('nir-1', 13) as { n: number };
+    expect(rejected.n).toBe(0);
+  });
+});
+
+describe('/live and the Origin header', () => {
+  it('refuses a page of another site carrying the session cookie; the server own origin is taken', async () => {
+    const viewer = await login(ts, 'viewer');
+    const foreign = new WebSocket(ts.wsUrl + '/live', { headers: { cookie: viewer.cookie, origin: 'https://evil.example' } });
+    const status = await new Promise<number>((resolve) => {
+      foreign.on('unexpected-response', (_q, r) => resolve(r.statusCode ?? 0));
+      foreign.on('open', () => resolve(101));
+      foreign.on('error', () => undefined);
+    });
+    expect(status).toBe(403);
+    const own = new LivePeer(ts.wsUrl, viewer.cookie);
+    await own.open();
+    own.ws.close();
+    const same = new WebSocket(ts.wsUrl + '/live', { headers: { cookie: viewer.cookie, origin: ts.server.url } });
+    await new Promise<void>((resolve, reject) => {
+      same.on('open', () => resolve());
+      same.on('unexpected-response', (_q, r) => reject(new Error(`refused ${r.statusCode}`)));
+    });
+    same.close();
+  });
+});
