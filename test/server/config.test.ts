@@ -28,4 +28,11 @@ describe('configuration: defaults < file < environment < flags, validated', () =
     expect(() => loadConfig({ flags: { config: join(dir, 'bad.json') } })).toThrow(/not valid JSON/);
     expect(() => loadConfig({ flags: { config: join(dir, 'missing.json') } })).toThrow(ConfigError);
   });
+  it('the time window and the axis range of ingest: defaults, none for no bound, and refusals', () => {
+    expect(loadConfig().ingest).toMatchObject({ maxAheadMs: 300_000, maxBehindMs: 157_788_000_000, axisMinNm: 350, axisMaxNm: 25_000 });
+    const c = loadConfig({ env: { TIDELINE_MAX_AHEAD_MS: 'none', TIDELINE_AXIS_MAX_NM: '2600' }, flags: { 'ingest.maxBehindMs': 'none' } });
+    expect(c.ingest).toMatchObject({ maxAheadMs: null, maxBehindMs: null, axisMaxNm: 2600 });
+    expect(() => loadConfig({ flags: { 'ingest.maxAheadMs': '10' } })).toThrow(/maxAheadMs/);
+    expect(() => loadConfig({ flags: { 'ingest.axisMinNm': '3000', 'ingest.axisMaxNm': '2000' } })).toThrow(/axisMinNm must be below axisMaxNm/);
+  });
 });
