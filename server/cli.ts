@@ -9,6 +9,7 @@
  *   (security commands: user …, token …, audit … — see docs/security.md)
  *   import … | export …           historical batches in and out (server/transfer/cli.ts)
  *   lab add … | lab import … | lab list …  lab results after a batch (server/transfer/lab-cli.ts)
+ *   model transfer VERSION …      carry a version over to a new analyzer (server/models/transfer-cli.ts)
  *
  * Flags set configuration values by name: --port 0 --data-dir ./data --ingest.stale-after-ms 5000
  * --config tideline.json. Run with --help for this text.
@@ -48,6 +49,8 @@ commands:
                                      attach a lab result to the spectrum nearest its sample time (audited, never overwriting)
   lab import FILE.csv [--by NAME]    attach a lab results file (batch, sample time, property columns), all or nothing
   lab list BATCH                     a batch's lab values, corrections marked
+  model transfer VERSION --method ds|pds [--window W] --fit OLD=NEW[,…] --held-out OLD=NEW[,…] [--by NAME]
+                                     carry a version over to a new analyzer (calibration transfer, docs/calibration-transfer.md)
 
   <command> --help                   that command's options
 
@@ -77,6 +80,13 @@ const COMMANDS: Record<string, { usage: string; own: string[]; config: 'all' | '
       'lab add BATCH --property P --value X --unit U (--at TIME | --elapsed-min M) [--method M] [--supersedes ID --reason R] [--by NAME]\n' +
       '  | lab import FILE.csv [--delimiter , | ; | tab] [--decimal . | ,] [--by NAME] | lab list BATCH   [--data-dir DIR | --config FILE]',
     own: ['property', 'value', 'unit', 'at', 'elapsed-min', 'method', 'supersedes', 'reason', 'by', 'delimiter', 'decimal'],
+    config: 'database',
+  },
+  model: {
+    usage:
+      'model transfer VERSION --method ds|pds [--window W] --fit OLD=NEW[,OLD=NEW…] --held-out OLD=NEW[,…] [--rcond X] [--max-rank N] [--by NAME] [--data-dir DIR | --config FILE]\n' +
+      '  a new draft version carrying a calibration transfer onto a new analyzer; refused (exit 3) with nothing stored',
+    own: ['method', 'window', 'fit', 'held-out', 'rcond', 'max-rank', 'by'],
     config: 'database',
   },
 };
@@ -181,6 +191,15 @@ async function main(argv: string[]): Promise<number> {
     try {
       const { runLabCli } = await import('./transfer/lab-cli.ts');
       return await runLabCli(positional, own, storage, config, (s) => process.stdout.write(s));
+    } finally {
+      await storage.close();
+    }
+  }
+  if (cmd === 'model') {
+    const storage = new SqliteStorage({ file: dbFile });
+    try {
+      const { runModelCli } = await import('./models/transfer-cli.ts');
+      return await runModelCli(positional, own, storage, (s) => process.stdout.write(s));
     } finally {
       await storage.close();
     }

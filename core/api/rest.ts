@@ -442,6 +442,8 @@ export interface ModelVersionDetail extends ModelVersionSummary {
   referenceEndpoints: ReferenceEndpointView[];
   /** The endpoint rule replayed leave-one-batch-out on the reference batches (null in models built before it). */
   endpointCheck: EndpointCheckView | null;
+  /** The calibration transfer onto a new analyzer this version carries, with its judgement on held-out transfer sets (null: none). */
+  transfer?: CalibrationTransferView | null;
 }
 
 /** One criterion of a resolved endpoint rule, in words and numbers. */
@@ -869,8 +871,12 @@ export interface TransferPropertyStats {
   unit: string;
   /** RMS of (prediction − the old analyzer's prediction of the same sample), before and after transfer. */
   vsOld: { before: number; after: number };
-  /** RMS of (prediction − lab value) where the transfer samples carry lab values (null: none). */
+  /** RMS of (prediction − lab value) where the transfer samples carry lab values within the property model's range (null: none). */
   vsLab: { n: number; old: number; before: number; after: number } | null;
+  /** The property model's own RMSECV (null: not known); the transfer's error is judged against it. */
+  rmsecv: number | null;
+  /** The prediction after transfer differs from the old analyzer's by more than the model's RMSECV: approval needs evidenceOverride. */
+  off: boolean;
 }
 
 /** How a transferred version was judged on held-out transfer samples, stored in its (hashed) model file. */

@@ -15,7 +15,7 @@
  * where lab values exist, from the lab value.
  */
 import { z } from 'zod';
-import type { CalibrationTransferView, TransferJudgement, TransferSideStats } from '../api/rest.ts';
+import type { ApprovalWarning, CalibrationTransferView, TransferJudgement, TransferSideStats } from '../api/rest.ts';
 import { matrixFromRows } from '../linalg/dense-matrix.ts';
 import { createProjector } from '../pca/projector.ts';
 import { clopperPearson, FAR_ABOVE_FACTOR } from '../evaluate/approval-evidence.ts';
@@ -180,7 +180,8 @@ export function judgeTransfer(source: MonitoringModel, t: Standardisation, heldO
         prop.before.push(yb - yo);
         prop.after.push(ya - yo);
         const lab = s.property?.[i];
-        if (lab !== undefined && Number.isFinite(lab)) {
+        // Lab values outside the property model's calibration range say nothing about the transfer.
+        if (lab !== undefined && Number.isFinite(lab) && (!pls.range || (lab >= pls.range[0] && lab <= pls.range[1]))) {
           prop.labOld.push(yo - lab);
           prop.labBefore.push(yb - lab);
           prop.labAfter.push(ya - lab);
@@ -199,6 +200,7 @@ export function judgeTransfer(source: MonitoringModel, t: Standardisation, heldO
   const reference = Math.max(nominal, old.rate);
   const farAbove = aft.interval[0] > reference && aft.rate > FAR_ABOVE_FACTOR * reference;
   const n = stats.old.t2.length;
+  const rmsecv = pls?.rmsecv?.[pls.components - 1] ?? null;
   return {
     spectra: n,
     confidence: conf,
@@ -214,13 +216,16 @@ export function judgeTransfer(source: MonitoringModel, t: Standardisation, heldO
           unit: pls.unit,
           vsOld: { before: rms(prop.before), after: rms(prop.after) },
           vsLab: prop.labOld.length ? { n: prop.labOld.length, old: rms(prop.labOld), before: rms(prop.labBefore), after: rms(prop.labAfter) } : null,
+          rmsecv,
+          off: rmsecv !== null && rms(prop.after) > rmsecv,
         }
       : null,
     farAbove,
     method:
       `${n} held-out transfer samples judged by the source version at its ${pct(conf)} T² and Q limits: the old analyzer's spectra; the new analyzer's interpolated linearly onto the old axis (before); ` +
       `and through the transform (after). Share beyond either limit with the exact (Clopper–Pearson) 95 % interval; nominal at most ${pct(nominal)}. ` +
-      `"Far above" (approval needs evidenceOverride): the interval lies above the larger of nominal and the old analyzer's own share (${pct(reference)}) and the share is more than ${FAR_ABOVE_FACTOR} times it (common practice, no published source).`,
+      `"Far above" (approval needs evidenceOverride): the interval lies above the larger of nominal and the old analyzer's own share (${pct(reference)}) and the share is more than ${FAR_ABOVE_FACTOR} times it (common practice, no published source).` +
+      (pls ? ` The ${pls.name} prediction after transfer is judged against the property model's own RMSECV: an RMS difference from the old analyzer's prediction above it needs evidenceOverride too (common practice, no published source).` : ''),
   };
 }
 
@@ -273,4 +278,16 @@ export function calibrationTransferView(t: ModelTransfer): CalibrationTransferVi
     source: { ...t.source }, fit: t.fit.map((f) => ({ ...f })), heldOut: t.heldOut.map((f) => ({ ...f })), judgement: t.judgement,
     createdAt: t.createdAt, author: t.author, caution: TRANSFER_CAUTION,
   };
+}
+
+/** The approval warning of a transfer judged far above its reference rate (blocks approval without evidenceOverride), else null. */
+export function transferBlockingWarning(t: ModelTransfer | undefined): ApprovalWarning | null {
+  if (!t) return null;
+  const j = t.judgement;
+  const parts: string[] = [];
+  if (j.farAbove) parts.push(`${pct(j.after.rate)} of the transferred spectra are beyond the T² or Q limit (exact 95 % interval ${pct(j.after.interval[0])}–${pct(j.after.interval[1])}), where the old analyzer has ${pct(j.old.rate)} on the same samples`);
+  const p = j.property;
+  if (p?.off) parts.push(`the predicted ${p.name} differs from the old analyzer's by ${p.vsOld.after.toPrecision(3)} ${p.unit} RMS, more than the property model's RMSECV (${p.rmsecv!.toPrecision(3)} ${p.unit})`);
+  if (!parts.length) return null;
+  return { code: 'transfer-far-off', blocking: true, text: `On the ${j.spectra} held-out transfer samples ${parts.join('; and ')}: the transfer does not carry the model over.` };
 }

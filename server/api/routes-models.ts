@@ -13,6 +13,8 @@ import { nameSchema } from '../../core/io/names.ts';
 import { recordAudit, userOf } from './audit-helper.ts';
 import { parseMonitoringModel } from '../../core/model/monitoring-model.ts';
 import { earlyBatchesText } from '../../core/model/endpoint-check.ts';
+import { transferAuditAfter, transferVersion } from '../models/transfer-service.ts';
+import { transferBlockingWarning } from '../../core/calibration-transfer/transfer-model.ts';
 
 const versionParams = z.object({ version: z.string().min(1).max(128) });
 
@@ -85,6 +87,27 @@ export function addModelRoutes(t: RouteTable, ctx: ServerContext) {
     role: 'viewer', response: 'ApprovalEvidence',
     params: versionParams, handler: async ({ params }) => guard(async () => latestApprovalEvidence(ctx, (await load(params.version)).id)),
   });
+  const transferSet = z.object({ old: idSchema, new: idSchema }).strict();
+  t.add({
+    method: 'post', path: '/models/versions/:version/transfer',
+    summary: "Carry a version over to a new analyzer: fit a DS or PDS calibration transfer on transfer sets (the same samples as a batch from the old analyzer and one from the new, row for row, imported like batches), judge it on held-out sets (T², Q and property error before and after), and store it as a new draft version whose model file carries the transform and the judgement under its hash",
+    role: 'model-owner', response: 'ModelVersionSummary', status: 201, params: versionParams,
+    body: z.object({
+      method: z.enum(['ds', 'pds']),
+      window: z.number().int().min(1).max(99).refine((w) => w % 2 === 1, 'the PDS window is an odd number of new-analyzer pixels').optional(),
+      rcond: z.number().min(0).lt(1).optional(),
+      maxRank: z.number().int().min(1).max(10000).optional(),
+      fit: z.array(transferSet).min(1, 'give at least one transfer set to fit on').max(100),
+      heldOut: z.array(transferSet).min(1, 'give at least one held-out transfer set: the transfer is judged on it before it may be approved').max(100),
+    }).strict(),
+    handler: async ({ params, body, req }) =>
+      guard(async () => {
+        const src = await load(params.version);
+        const row = await transferVersion(ctx.storage, src, body, userOf(req), ctx.now());
+        await recordAudit(ctx, { user: userOf(req), action: 'model.transfer', object: `model:${row.name}@${row.version}`, after: transferAuditAfter(row, src, body) });
+        return modelVersionSummary(ctx.storage, row);
+      }),
+  });
   const signBody = z.object({ reason: z.string().trim().min(1, 'give a reason').pipe(nameSchema({ max: 2000, multiline: true })), password: z.string().max(1024).optional() }).strict();
   const approveBody = signBody.extend({
     earlyEndpointOverride: z.string().trim().min(1, 'give the reason for the override').pipe(nameSchema({ max: 2000, multiline: true })).optional(),
@@ -106,7 +129,8 @@ export function addModelRoutes(t: RouteTable, ctx: ServerContext) {
         const override = body.earlyEndpointOverride;
         // The evidence on held-out good batches: a point rate far above nominal needs a signed override.
         const evidence = await latestApprovalEvidence(ctx, m.id);
-        const blocking = evidence?.warnings.filter((w) => w.blocking) ?? [];
+        const transferWarning = transferBlockingWarning(parseMonitoringModel(m.body).transfer);
+        const blocking = [...(evidence?.warnings.filter((w) => w.blocking) ?? []), ...(transferWarning ? [transferWarning] : [])];
         const evidenceOverride = body.evidenceOverride;
         if (early && override === undefined && blocking.length && evidenceOverride === undefined) {
           throw new HttpProblem(422, 'Approval needs two overrides', `approval of ${m.name} v${m.version} refused: ${earlyBatchesText(check!)}; and ${blocking.map((w) => w.text).join(' ')} Rebuild the version, or approve with earlyEndpointOverride and evidenceOverride giving your reasons (signed with the approval and kept in the audit trail)`, 'overrides-needed', [

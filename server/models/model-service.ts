@@ -16,6 +16,7 @@ import { approvalEvidence } from '../../core/evaluate/approval-evidence.ts';
 import { earlyBatchesText } from '../../core/model/endpoint-check.ts';
 import { endpointCheckView, endpointRuleView, propertyModelView, referenceEndpointsView } from '../../core/model/version-evidence.ts';
 import { labPropertyArray, LabValueError, normalisePropertyName } from '../../core/lab/lab-values.ts';
+import { calibrationTransferView } from '../../core/calibration-transfer/transfer-model.ts';
 
 export class ModelRequestError extends Error {
   /** `title` and `kind` (problem type slug) default by status in routes-models.ts. */
@@ -213,6 +214,7 @@ export async function versionDetail(ctx: ServerContext, row: ModelVersionRow): P
     property: full ? propertyModelView(full) : null,
     referenceEndpoints: full ? referenceEndpointsView(full) : [],
     endpointCheck: full ? endpointCheckView(full) : null,
+    transfer: full?.transfer ? calibrationTransferView(full.transfer) : null,
   };
 }
 

@@ -1,4 +1,4 @@
-/** Model bench version page: facts, the endpoint rule and its check, the property model, diagnostics, evaluation, approval, deployment. */
+/** Model bench version page: facts, the calibration transfer it carries, the endpoint rule and its check, the property model, diagnostics, evaluation, approval, deployment. */
 import type { Me } from '../../api/session.ts';
 import { api } from '../../api/endpoints.ts';
 import { useAsync } from '../../components/use-async.ts';
@@ -15,6 +15,7 @@ import { Evaluation } from './evaluation.tsx';
 import { ExplainedChart } from './explained.tsx';
 import { StatusBadge } from './model-list.tsx';
 import { PropertyEvidencePanel } from './property-evidence.tsx';
+import { TransferPanel } from './transfer-panel.tsx';
 
 export function VersionDetail({ version, me }: { version: string; me: Me | null }) {
   const detail = useAsync(() => api.modelVersion(version), [version]);
@@ -98,6 +99,7 @@ export function VersionDetail({ version, me }: { version: string; me: Me | null 
           </ul>
         </div>
       )}
+      <TransferPanel t={d.transfer} />
       <EndpointRulePanel rule={d.endpoint} />
       <EndpointCheckPanel check={d.endpointCheck} ends={d.referenceEndpoints} />
       <PropertyEvidencePanel p={d.property} />
