@@ -205,16 +205,20 @@ describe('alarm list helpers', () => {
     expect(orderAlarms(list, 'b2').map((a) => a.id)).toEqual(['cur-active', 'cur-cleared', 'none', 'old-unack']);
     expect(orderAlarms(list, null).map((a) => a.id)).toEqual(['none', 'old-unack', 'cur-active', 'cur-cleared']);
   });
-  it("gives the spectrum's time beside the time received, with the date when the day differs", () => {
+  it("gives the spectrum's time, the time received only where it differs by more than a minute, the date when the day differs", () => {
     const recv = Date.UTC(2026, 11, 5, 13, 30, 7);
     const taken = Date.UTC(2026, 11, 5, 11, 2, 33);
     const a = alarm('a', 'b', { raisedAt: recv, raisedSpectrumT: taken, seq: 11579, spectrumT: taken });
-    expect(alarmTimes(a)).toBe(`raised ${clock(recv)} (spectrum taken ${clock(taken)}) · spectrum #11579`);
-    const c = alarmTimes({ ...a, clearedAt: recv + 60_000, seq: 11590, spectrumT: taken + 600_000 });
-    expect(c).toBe(`raised ${clock(recv)} (spectrum taken ${clock(taken)}) · cleared ${clock(recv + 60_000)} (spectrum taken ${clock(taken + 600_000)}, #11590)`);
-    const yesterday = taken - 86_400_000;
-    expect(alarmTimes({ ...a, raisedSpectrumT: yesterday })).toContain(`(spectrum taken ${dateTime(yesterday)})`);
-    expect(alarmTimes(alarm('s', 'b', { raisedAt: recv }))).toBe(`raised ${clock(recv)}`);
+    expect(alarmTimes(a, recv)).toBe(`raised: spectrum taken ${clock(taken)} (#11579) · received ${clock(recv)}`);
+    // received within a minute of the spectrum: one time only
+    expect(alarmTimes({ ...a, raisedAt: taken + 2_000 }, recv)).toBe(`raised: spectrum taken ${clock(taken)} (#11579)`);
+    const c = alarmTimes({ ...a, clearedAt: recv + 60_000, seq: 11590, spectrumT: taken + 600_000 }, recv);
+    expect(c).toBe(`raised: spectrum taken ${clock(taken)} · received ${clock(recv)} · cleared: spectrum #11590 taken ${clock(taken + 600_000)} · received ${clock(recv + 60_000)}`);
+    // a spectrum of another day than today carries its date, with the seconds
+    const weekAgo = taken - 7 * 86_400_000;
+    expect(alarmTimes({ ...a, raisedSpectrumT: weekAgo, spectrumT: weekAgo }, recv)).toMatch(new RegExp(`^raised: spectrum taken ${dateTime(weekAgo).slice(0, 10)} \\d\\d:\\d\\d:\\d\\d \\(#11579\\)`));
+    // an alarm the server raised itself (no spectrum behind it): the server's time
+    expect(alarmTimes(alarm('s', 'b', { raisedAt: recv }), recv)).toBe(`raised ${clock(recv)}`);
   });
 });
 

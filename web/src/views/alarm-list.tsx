@@ -54,7 +54,7 @@ export function AlarmList({ alarms, now, title = 'Alarms', currentBatch = null }
               </div>
               <div class="alarm-msg">{a.message}</div>
               <div class="alarm-meta muted small">
-                {alarmTimes(a)}
+                {alarmTimes(a, now)}
                 {/* pace is judged on log time; its message gives the minutes, the one pace figure shown */}
                 {a.value !== null && a.limit !== null && a.key !== 'pace' && ` · value ${sig(a.value)} / limit ${sig(a.limit)}`}
                 {a.acknowledgedBy && ` · acknowledged by ${a.acknowledgedBy} ${clock(a.acknowledgedAt)}`}
