@@ -100,3 +100,25 @@ describe('Model bench batch pickers', async () => {
     expect(endpointAsRun({ model: null, endpointState: null, endpointAt: null, startedAt: 0 })).toBe('not judged');
   });
 });
+
+describe('deploy preview', async () => {
+  const { deployPreviewOf } = await import('../../web/src/views/bench/deploy-data.ts');
+  it('reads what the server says a deployment changes, and leaves out what it cannot read', () => {
+    const p = deployPreviewOf({
+      unit: 'dryer-1',
+      model: { versionId: 'v2', name: 'dryer-A', version: 2, sha256: 'x' },
+      mismatches: [],
+      comparison: {
+        replaces: { versionId: 'v1', name: 'dryer-A', version: 1, sha256: 'y' },
+        changes: [{ what: 'property model', before: 'moisture (% w/w), 3 latent variables', after: null }, { what: 5 }],
+        warnings: ['The endpoint property moisture is dropped.'],
+        dropsEndpointProperty: true,
+      },
+      needsEndpointLossConfirmation: true,
+    });
+    expect(p.replaces).toEqual({ name: 'dryer-A', version: 1 });
+    expect(p.changes).toEqual([{ what: 'property model', before: 'moisture (% w/w), 3 latent variables', after: null }]);
+    expect(p.needsEndpointLossConfirmation).toBe(true);
+    expect(deployPreviewOf({ unit: 'reactor-1', mismatches: [{ what: 'axis', text: '256 points against 601' }], comparison: { replaces: null, changes: [], warnings: [] } }).mismatches).toEqual([{ what: 'axis', text: '256 points against 601' }]);
+  });
+});
