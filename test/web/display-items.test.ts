@@ -122,3 +122,21 @@ describe('deploy preview', async () => {
     expect(deployPreviewOf({ unit: 'reactor-1', mismatches: [{ what: 'axis', text: '256 points against 601' }], comparison: { replaces: null, changes: [], warnings: [] } }).mismatches).toEqual([{ what: 'axis', text: '256 points against 601' }]);
   });
 });
+
+describe('approval evidence', async () => {
+  const { evidenceOf } = await import('../../web/src/views/bench/approval-evidence.tsx');
+  it('reads the evidence and its warnings; null when the version was not evaluated', () => {
+    const ev = evidenceOf({
+      evaluationId: 'e', evaluatedAt: 5, confidence: 0.99, nominalRate: 0.01, heldOutGood: ['g1', 'g2'], excluded: [{ batch: 'f1', why: 'marked faulty' }], points: 794,
+      t2: { name: 'T²', beyond: 117, points: 794, rate: 0.147, interval: [0.123, 0.174], farAbove: true, farBelow: false },
+      q: { name: 'Q', beyond: 6, points: 794, rate: 0.0076, interval: [0.0028, 0.016], farAbove: false, farBelow: false },
+      worst: { batch: 'g2', spectra: 397, beyond: 303, share: 0.763 }, alarmedGood: [{ batch: 'g2', alarms: 3, firstKind: 't2' }],
+      endpoint: { reached: 1, of: 2, notReached: ['g2'] }, earlyCalls: { count: 0, text: null },
+      warnings: [{ code: 't2-rate', blocking: true, text: '14.7 % of points beyond the T² limit against 1 % expected.' }], method: 'Clopper–Pearson',
+    })!;
+    expect(ev.rates.map((r) => [r.name, r.farAbove])).toEqual([['T²', true], ['Q', false]]);
+    expect(ev.warnings.filter((w) => w.blocking)).toHaveLength(1);
+    expect(ev.endpoint).toEqual({ reached: 1, of: 2, notReached: ['g2'] });
+    expect(evidenceOf(null)).toBeNull();
+  });
+});

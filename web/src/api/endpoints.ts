@@ -38,9 +38,14 @@ export const api = {
   envelope: (v: string) => get<ModelEnvelopeView>(`/api/models/versions/${enc(v)}/envelope`),
   references: (v: string) => get<ModelReferencesView>(`/api/models/versions/${enc(v)}/references`),
   build: (req: BuildModelRequest) => post<ModelVersionSummary>('/api/models/build', req),
-  evaluate: (v: string, batches: string[]) => post<EvaluationResult>(`/api/models/versions/${enc(v)}/evaluate`, { batches }),
-  approve: (v: string, reason: string, password?: string, earlyEndpointOverride?: string) =>
-    post<ModelVersionSummary>(`/api/models/versions/${enc(v)}/approve`, { reason, password, ...(earlyEndpointOverride !== undefined ? { earlyEndpointOverride } : {}) }),
+  evaluate: (v: string, batches: string[], faulty: string[] = []) => post<EvaluationResult>(`/api/models/versions/${enc(v)}/evaluate`, { batches, ...(faulty.length ? { faulty } : {}) }),
+  approve: (v: string, reason: string, password?: string, earlyEndpointOverride?: string, evidenceOverride?: string) =>
+    post<ModelVersionSummary>(`/api/models/versions/${enc(v)}/approve`, {
+      reason,
+      password,
+      ...(earlyEndpointOverride !== undefined ? { earlyEndpointOverride } : {}),
+      ...(evidenceOverride !== undefined ? { evidenceOverride } : {}),
+    }),
   deployments: (f: { unit?: string; active?: boolean } = {}) => get<Page<Deployment>>(`/api/deployments${query(f)}`),
   deploy: (unit: string, versionId: string, reason?: string) => post<Deployment>('/api/deployments', { unit, versionId, reason }),
   alarms: (f: { unit?: string; batch?: string; state?: string; active?: boolean; limit?: number; offset?: number } = {}) =>

@@ -8,6 +8,8 @@ import { Badge, ErrorBox } from '../../components/status.tsx';
 import { fixed } from '../../format/number-format.ts';
 import { StatusBadge } from './model-list.tsx';
 import { FieldError } from './field-error.tsx';
+import { ApprovalEvidence, loadEvidence } from './approval-evidence.tsx';
+import { useAsync } from '../../components/use-async.ts';
 
 export function Approve({ d, me, onDone }: { d: ModelVersionDetail; me: Me | null; onDone: () => void }) {
   const [reason, setReason] = useState('');
@@ -19,6 +21,14 @@ export function Approve({ d, me, onDone }: { d: ModelVersionDetail; me: Me | nul
   const [error, setError] = useState<string | null>(null);
   const [overrideError, setOverrideError] = useState<string | null>(null);
   const [busy, setBusy] = useState(false);
+  const [evidenceReason, setEvidenceReason] = useState('');
+  const [evidenceError, setEvidenceError] = useState<string | null>(null);
+  // the evidence of the latest evaluation; it changes when the version is evaluated again
+  const lastEval = d.evaluations[d.evaluations.length - 1]?.id ?? '';
+  const evidence = useAsync(() => loadEvidence(d.versionId), [d.versionId, lastEval]);
+  const ev = evidence.data;
+  const blocking = ev && ev !== 'unsupported' ? ev.warnings.filter((w) => w.blocking) : [];
+  const warned = ev && ev !== 'unsupported' ? ev.warnings.length > 0 : false;
   if (d.status !== 'draft')
     return (
       <div class="panel">
@@ -36,20 +46,29 @@ export function Approve({ d, me, onDone }: { d: ModelVersionDetail; me: Me | nul
         e.preventDefault();
         setError(null);
         setOverrideError(null);
+        setEvidenceError(null);
+        let stop = false;
         if (early.length > 0 && !override.trim()) {
           setOverrideError(
             `Not approved: the rule reached done early on ${early.length} reference batch${early.length === 1 ? '' : 'es'}. Give the reason it may be used all the same; it is signed with the approval.`,
           );
-          return;
+          stop = true;
         }
+        if (blocking.length > 0 && !evidenceReason.trim()) {
+          setEvidenceError('Not approved: the evidence on held-out good batches is far from what the limits promise. Give the reason to approve all the same; it is signed with the approval.');
+          stop = true;
+        }
+        if (stop) return;
         setBusy(true);
         try {
-          await api.approve(d.versionId, reason, password || undefined, early.length ? override : undefined);
+          await api.approve(d.versionId, reason, password || undefined, early.length ? override : undefined, blocking.length ? evidenceReason : undefined);
           onDone();
         } catch (err) {
           const t = errorText(err);
-          if (/override/i.test(t)) setOverrideError(t);
+          if (/evidenceOverride|evidence/i.test(t)) setEvidenceError(t);
+          else if (/override/i.test(t)) setOverrideError(t);
           else setError(t);
+          evidence.reload();
         } finally {
           setBusy(false);
         }
@@ -63,6 +82,18 @@ export function Approve({ d, me, onDone }: { d: ModelVersionDetail; me: Me | nul
         Reason (required){' '}
         <textarea rows={2} required value={reason} onInput={(e) => setReason((e.target as HTMLTextAreaElement).value)} placeholder="e.g. evaluated on 4 held-out good and 2 faulty batches; no false alarms" />
       </label>
+      {evidence.error && <ErrorBox message={`The approval evidence could not be read: ${evidence.error}`} onRetry={evidence.reload} />}
+      {ev !== undefined && ev !== null && ev !== 'unsupported' ? <ApprovalEvidence ev={ev} /> : evidence.data === null && !evidence.loading && !evidence.error ? <ApprovalEvidence ev={null} /> : null}
+      {blocking.length > 0 && (
+        <div data-testid="evidence-override">
+          <label class="block">
+            Reason to approve against the evidence (required, signed){' '}
+            <textarea rows={2} value={evidenceReason} onInput={(e) => setEvidenceReason((e.target as HTMLTextAreaElement).value)} placeholder="why this version may be used although its held-out good batches say otherwise" />
+          </label>
+          <FieldError text={evidenceError ?? undefined} />
+        </div>
+      )}
+      {warned && blocking.length === 0 && <p class="small">The evidence above carries warnings: say in your reason how you weighed them.</p>}
       {early.length > 0 && (
         <div class="early-endpoint" data-testid="early-endpoint">
           <p class="small">

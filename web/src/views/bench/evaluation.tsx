@@ -13,7 +13,8 @@ export function Evaluation({ d, onDone }: { d: ModelVersionDetail; onDone: () =>
   const batches = useAsync(() => api.batches({ status: 'ended', product: d.product, limit: 500 }), [d.product]);
   const held = (batches.data?.items ?? []).filter((b) => !d.referenceBatches.includes(b.id));
   const [chosen, setChosen] = useState<string[]>([]);
-  const [faulty, setFaulty] = useState<Set<string>>(new Set());
+  // the known-faulty marks are stored with the evaluation (where the server keeps them): reopening shows what the evaluator marked
+  const [faulty, setFaulty] = useState<Set<string>>(new Set((d.evaluations[d.evaluations.length - 1] as { faulty?: string[] } | undefined)?.faulty ?? []));
   const [result, setResult] = useState<EvaluationResult | null>(d.evaluations[d.evaluations.length - 1] ?? null);
   const [error, setError] = useState<string | null>(null);
   const [busy, setBusy] = useState(false);
@@ -22,7 +23,7 @@ export function Evaluation({ d, onDone }: { d: ModelVersionDetail; onDone: () =>
     setBusy(true);
     setError(null);
     try {
-      setResult(await api.evaluate(d.versionId, chosen));
+      setResult(await api.evaluate(d.versionId, chosen, chosen.filter((b) => faulty.has(b))));
       onDone();
     } catch (e) {
       setError(errorText(e));
