@@ -279,6 +279,20 @@ describe.skipIf(!haveChromium)('dashboard in headless Chromium', () => {
     await page.getByTestId('version-detail').locator('.panel-head h2 .badge', { hasText: 'approved' }).first().waitFor({ timeout: 30_000 });
     await page.getByTestId('signed-override').getByText(/the demo endpoint only advises/).waitFor();
     await shot('bench-approved');
+    // deploying this dryer version onto the reactor is refused before anything is sent, the
+    // mismatch named; onto the dryer the form shows what changes against the version deployed
+    // there, and asks for a reason as the demo's moisture endpoint would be lost (not deployed here)
+    const dep = page.getByTestId('deploy');
+    await dep.getByLabel('Unit').selectOption('reactor-1');
+    await dep.getByTestId('deploy-mismatch').getByText(/cannot judge the batches of reactor-1/).waitFor({ timeout: 60_000 });
+    expect(await dep.getByTestId('deploy-button').isDisabled()).toBe(true);
+    await dep.scrollIntoViewIfNeeded();
+    await shot('bench-deploy-refused');
+    await dep.getByLabel('Unit').selectOption('dryer-1');
+    await dep.getByTestId('deploy-preview').getByText(/^Replaces /).waitFor({ timeout: 60_000 });
+    await dep.getByTestId('deploy-changes').getByText('endpoint rule').waitFor();
+    await dep.getByTestId('endpoint-loss-reason').waitFor();
+    await shot('bench-deploy-compare');
     expect(pageErrors.join("\n")).toBe("");
   }, 360_000);
 
@@ -291,8 +305,38 @@ describe.skipIf(!haveChromium)('dashboard in headless Chromium', () => {
     await review.waitFor();
     await page.getByTestId('overlay').locator('canvas').first().waitFor({ timeout: 60_000 });
     await page.getByTestId('timeline').getByText('batch start').waitFor();
-    // the batch's lab values (or, on a server without the route, a sentence saying it stores none)
-    await page.getByTestId('lab-values').getByRole('heading', { name: 'Lab values' }).waitFor({ timeout: 60_000 });
+    // attach a lab result that arrived after the batch: matched to the nearest spectrum, entered by
+    // the signed-in user; a second value on the same spectrum is refused in words; a correction
+    // names the value it replaces, with a reason, and both stay listed
+    const lab = page.getByTestId('lab-values');
+    await lab.getByRole('heading', { name: 'Lab values' }).waitFor({ timeout: 60_000 });
+    const form = page.getByTestId('lab-form');
+    await form.getByLabel('Property').fill('moisture');
+    await form.getByLabel('Unit').fill('% w/w');
+    await form.getByLabel('Value').fill('abc');
+    await form.getByRole('textbox', { name: 'minutes after the batch start' }).fill('30');
+    await page.getByTestId('lab-submit').click();
+    await form.getByTestId('field-error').getByText('The value "abc" is not a number.').waitFor();
+    await form.getByLabel('Value').fill('4,2');
+    await form.getByLabel('Method').fill('LOD');
+    await page.getByTestId('lab-submit').click();
+    await page.getByTestId('lab-done').getByText(/^moisture 4\.2 % w\/w sampled .* \(30 min from the start\) attached\.$/).waitFor({ timeout: 60_000 });
+    const row = lab.getByTestId('lab-row').filter({ hasText: '4.2 % w/w' });
+    await row.getByText('in force').waitFor({ timeout: 30_000 });
+    await row.getByText(/^no\. \d+ at \d\d:\d\d:\d\d \([\d.]+ s from the sample\)$/).waitFor();
+    await row.getByText(/entered by demo-admin/).waitFor();
+    await form.getByLabel('Value').fill('4.3');
+    await form.getByRole('textbox', { name: 'minutes after the batch start' }).fill('30');
+    await page.getByTestId('lab-submit').click();
+    await form.getByRole('alert').getByText(/already/i).first().waitFor({ timeout: 60_000 });
+    await row.getByRole('button', { name: 'Correct…' }).click();
+    await form.getByLabel('Value').fill('3.9');
+    await page.getByTestId('lab-submit').click();
+    await form.getByTestId('field-error').getByText(/Say why the earlier value is corrected/).waitFor();
+    await form.getByLabel(/Reason for the correction/).fill('balance out of calibration; re-weighed');
+    await page.getByTestId('lab-submit').click();
+    await lab.getByTestId('lab-row').filter({ hasText: '3.9 % w/w' }).getByText(/corrects 4\.2 % w\/w: “balance out of calibration; re-weighed”/).waitFor({ timeout: 60_000 });
+    await lab.getByText('corrected to 3.9 % w/w').waitFor();
     await shot('review');
     expect(pageErrors.join("\n")).toBe("");
   }, 180_000);

@@ -9,11 +9,14 @@ import { post } from '../api/http.ts';
 import { ApiError, errorText } from '../api/problem.ts';
 import type { Me } from '../api/session.ts';
 import { ErrorBox } from '../components/status.tsx';
-import { dateTime, minutes, sig, withUnit } from '../format/number-format.ts';
+import { dateTime, minutes, sig } from '../format/number-format.ts';
 import { FieldError } from './bench/field-error.tsx';
 import { fieldOf, labBody, localTimeText, type LabForm, type LabValueRow } from './review-lab-data.ts';
 
 const ZONE = Intl.DateTimeFormat().resolvedOptions().timeZone;
+
+/** A lab value as the lab reported it (no padding zeros): "4.2 % w/w". */
+const labValue = (v: number, unit: string) => `${String(Number(v.toPrecision(6))).replace('-', '−')}${unit ? ` ${unit}` : ''}`;
 
 function clockSec(t: number): string {
   return new Intl.DateTimeFormat('en-GB', { hour: '2-digit', minute: '2-digit', second: '2-digit', hour12: false }).format(new Date(t));
@@ -68,7 +71,7 @@ export function LabValues({
     try {
       await post(`/api/batches/${encodeURIComponent(batch)}/lab-values`, out.body);
       const b = out.body;
-      setDone(`${b.property} ${withUnit(b.value, b.unit)} sampled ${dateTime(b.sampleT)} (${minutes((b.sampleT - startedAt) / 60000)} from the start) ${b.supersedes ? 'now replaces the corrected value' : 'attached'}.`);
+      setDone(`${b.property} ${labValue(b.value, b.unit)} sampled ${dateTime(b.sampleT)} (${minutes((b.sampleT - startedAt) / 60000)} from the start) ${b.supersedes ? 'now replaces the corrected value' : 'attached'}.`);
       setForm({ ...blank(), property: b.property, unit: b.unit, method: b.method ?? '' });
       onAdded();
     } catch (err) {
@@ -81,6 +84,8 @@ export function LabValues({
           f[shown] = f[shown] ? `${f[shown]} ${x.message}` : x.message;
         }
         if (!f.form && err.problem.detail && !Object.values(f).includes(err.problem.detail)) f.form = err.problem.detail;
+        // a value already on that spectrum: the way to change it on this screen is "Correct…" on its row
+        if (err.status === 409 && !form.supersedes && f.form) f.form = `${f.form.replace(/;?\s*—?\s*to correct it, give supersedes=\S+ and a reason\.?/, '.').replace(/\.\.$/, '.')} To change it, use “Correct…” on its row and give the reason.`;
       } else if (err instanceof ApiError && err.status === 404 && /no API route/.test(err.problem.detail ?? '')) {
         f.form = 'This server does not accept lab results for a batch (it has no lab-values route): update the server.';
       } else if (err instanceof ApiError && err.status === 403) {
@@ -120,7 +125,7 @@ export function LabValues({
                 <td>{dateTime(r.sampleT)}:{String(new Date(r.sampleT).getSeconds()).padStart(2, '0')}</td>
                 <td class="num">{minutes((r.sampleT - startedAt) / 60000)}</td>
                 <td>{r.property}</td>
-                <td class="num">{withUnit(r.value, r.unit, 4)}</td>
+                <td class="num">{labValue(r.value, r.unit)}</td>
                 <td>{r.method ?? '—'}</td>
                 <td class="small">
                   {r.spectrumIdx === null ? '—' : `no. ${r.spectrumIdx + 1}`}
@@ -133,11 +138,11 @@ export function LabValues({
                   {r.enteredAt ? `, ${dateTime(r.enteredAt)}` : ''}
                 </td>
                 <td class="small">
-                  {r.effective ? <strong>in force</strong> : <span>corrected{r.supersededBy && byId.get(r.supersededBy) ? ` to ${withUnit(byId.get(r.supersededBy)!.value, byId.get(r.supersededBy)!.unit, 4)}` : ''}</span>}
+                  {r.effective ? <strong>in force</strong> : <span>corrected{r.supersededBy && byId.get(r.supersededBy) ? ` to ${labValue(byId.get(r.supersededBy)!.value, byId.get(r.supersededBy)!.unit)}` : ''}</span>}
                   {r.supersedes && (
                     <span>
                       {' '}
-                      — corrects {byId.get(r.supersedes) ? withUnit(byId.get(r.supersedes)!.value, byId.get(r.supersedes)!.unit, 4) : 'an earlier value'}: “{r.reason}”
+                      — corrects {byId.get(r.supersedes) ? labValue(byId.get(r.supersedes)!.value, byId.get(r.supersedes)!.unit) : 'an earlier value'}: “{r.reason}”
                     </span>
                   )}
                 </td>
@@ -157,7 +162,7 @@ export function LabValues({
       )}
       {rows !== null && canEnter && (
         <form class="lab-form" id="lab-form" onSubmit={submit} data-testid="lab-form" noValidate>
-          <h4>{correcting ? `Correct ${correcting.property} ${withUnit(correcting.value, correcting.unit, 4)} sampled ${dateTime(correcting.sampleT)}` : 'Attach a lab result'}</h4>
+          <h4>{correcting ? `Correct ${correcting.property} ${labValue(correcting.value, correcting.unit)} sampled ${dateTime(correcting.sampleT)}` : 'Attach a lab result'}</h4>
           <div class="form-row">
             <label>
               Property <input size={10} value={form.property} onInput={set('property')} placeholder="moisture" disabled={!!correcting} />

@@ -14,7 +14,7 @@ export function Evaluation({ d, onDone }: { d: ModelVersionDetail; onDone: () =>
   const held = (batches.data?.items ?? []).filter((b) => !d.referenceBatches.includes(b.id));
   const [chosen, setChosen] = useState<string[]>([]);
   // the known-faulty marks are stored with the evaluation (where the server keeps them): reopening shows what the evaluator marked
-  const [faulty, setFaulty] = useState<Set<string>>(new Set((d.evaluations[d.evaluations.length - 1] as { faulty?: string[] } | undefined)?.faulty ?? []));
+  const [faulty, setFaulty] = useState<Set<string>>(new Set(d.evaluations[d.evaluations.length - 1]?.faulty ?? []));
   const [result, setResult] = useState<EvaluationResult | null>(d.evaluations[d.evaluations.length - 1] ?? null);
   const [error, setError] = useState<string | null>(null);
   const [busy, setBusy] = useState(false);
