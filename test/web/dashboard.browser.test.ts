@@ -275,6 +275,13 @@ describe.skipIf(!haveChromium)('dashboard in headless Chromium', () => {
     await approve.getByTestId('field-error').getByText(/^▲ Not approved: the rule reached done early on 1 reference batch/).waitFor();
     expect(await page.getByTestId('version-detail').locator('.panel-head h2 .badge').first().textContent()).toContain('draft');
     await approve.getByLabel(/Override reason/).fill('browser test: the demo endpoint only advises');
+    // a mistyped signature password is refused beside the field; the session and the form stay
+    await approve.getByLabel(/Password/).fill(`${password}-mistyped`);
+    await approve.getByRole('button', { name: 'Approve' }).click();
+    await approve.getByTestId('field-error').getByText(/The password does not match your account/).waitFor({ timeout: 30_000 });
+    await expect(approve.getByLabel(/^Reason/).inputValue()).resolves.toBe('browser test: evaluated on the demo reference set');
+    expect(await page.getByRole('button', { name: 'Sign out' }).count()).toBe(1);
+    await approve.getByLabel(/Password/).fill(password);
     await approve.getByRole('button', { name: 'Approve' }).click();
     await page.getByTestId('version-detail').locator('.panel-head h2 .badge', { hasText: 'approved' }).first().waitFor({ timeout: 30_000 });
     await page.getByTestId('signed-override').getByText(/the demo endpoint only advises/).waitFor();

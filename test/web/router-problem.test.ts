@@ -2,7 +2,7 @@ import { describe, expect, it } from 'vitest';
 import { href, parseHash } from '../../web/src/router.ts';
 import type { Route } from '../../web/src/router.ts';
 import { problemText, toProblem } from '../../web/src/api/problem.ts';
-import { query } from '../../web/src/api/http.ts';
+import { query, sessionEnded } from '../../web/src/api/http.ts';
 import { normaliseMe } from '../../web/src/api/session.ts';
 
 describe('hash routes', () => {
@@ -48,5 +48,15 @@ describe('problem details shown plainly', () => {
     expect(normaliseMe({ user: { id: 1, name: 'al', fullName: 'Al B', role: 'operator' }, csrfToken: 'x' })?.user.role).toBe('operator');
     expect(normaliseMe({ id: 2, name: 'bo', role: 'viewer' })?.user.fullName).toBe('bo');
     expect(normaliseMe(null)).toBeNull();
+  });
+});
+
+describe('a 401 and the session', () => {
+  it('ends the session on a missing session, not on a password refused in a form', () => {
+    expect(sessionEnded(401, '/problems/login-required')).toBe(true);
+    expect(sessionEnded(401, 'about:blank')).toBe(true);
+    expect(sessionEnded(401, '/problems/signature-refused')).toBe(false);
+    expect(sessionEnded(401, '/problems/wrong-password')).toBe(false);
+    expect(sessionEnded(403, '/problems/forbidden')).toBe(false);
   });
 });

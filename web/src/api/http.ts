@@ -16,6 +16,15 @@ export function onUnauthorized(fn: () => void): () => void {
   return () => unauthorizedListeners.delete(fn);
 }
 
+/**
+ * A 401 means the session is gone, except where the server refused a password typed into a form
+ * (an e-signature, a password change, a sign-in): that form says so beside the field and keeps
+ * what was typed, and the session goes on.
+ */
+export function sessionEnded(status: number, problemType: string): boolean {
+  return status === 401 && !/\/(signature-refused|wrong-password|login-failed)$/.test(problemType);
+}
+
 export async function request<T>(method: string, path: string, body?: unknown, signal?: AbortSignal): Promise<T> {
   const headers: Record<string, string> = { accept: 'application/json, application/problem+json' };
   if (body !== undefined) headers['content-type'] = 'application/json';
@@ -26,8 +35,9 @@ export async function request<T>(method: string, path: string, body?: unknown, s
   const res = await fetch(path, { method, headers, body: body === undefined ? undefined : JSON.stringify(body), credentials: 'same-origin', signal });
   const text = await res.text();
   if (!res.ok) {
-    if (res.status === 401) unauthorizedListeners.forEach((f) => f());
-    throw new ApiError(res.status, toProblem(res.status, res.statusText, res.headers.get('content-type'), text));
+    const problem = toProblem(res.status, res.statusText, res.headers.get('content-type'), text);
+    if (sessionEnded(res.status, problem.type)) unauthorizedListeners.forEach((f) => f());
+    throw new ApiError(res.status, problem);
   }
   if (!text) return undefined as T;
   return JSON.parse(text) as T;

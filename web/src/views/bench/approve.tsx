@@ -2,7 +2,7 @@
 import { useState } from 'preact/hooks';
 import type { ModelVersionDetail } from '../../../../core/api/rest.ts';
 import { api } from '../../api/endpoints.ts';
-import { errorText } from '../../api/problem.ts';
+import { ApiError, errorText } from '../../api/problem.ts';
 import type { Me } from '../../api/session.ts';
 import { Badge, ErrorBox } from '../../components/status.tsx';
 import { fixed } from '../../format/number-format.ts';
@@ -15,6 +15,7 @@ export function Approve({ d, me, onDone }: { d: ModelVersionDetail; me: Me | nul
   const [reason, setReason] = useState('');
   const [override, setOverride] = useState('');
   const [password, setPassword] = useState('');
+  const [passwordError, setPasswordError] = useState<string | null>(null);
   // The leave-one-batch-out endpoint check: a rule that reached done early on a reference batch
   // needs a signed override reason.
   const early = (d.endpointCheck?.rows ?? []).filter((r) => r.verdict === 'early');
@@ -47,6 +48,7 @@ export function Approve({ d, me, onDone }: { d: ModelVersionDetail; me: Me | nul
         setError(null);
         setOverrideError(null);
         setEvidenceError(null);
+        setPasswordError(null);
         let stop = false;
         if (early.length > 0 && !override.trim()) {
           setOverrideError(
@@ -65,7 +67,14 @@ export function Approve({ d, me, onDone }: { d: ModelVersionDetail; me: Me | nul
           onDone();
         } catch (err) {
           const t = errorText(err);
-          if (/evidenceOverride|evidence/i.test(t)) setEvidenceError(t);
+          if (err instanceof ApiError && /\/signature-refused$/.test(err.problem.type) && (err.status === 401 || err.status === 429)) {
+            setPasswordError(
+              err.status === 401
+                ? 'The password does not match your account: the signature was refused (the attempt is kept in the audit trail). Type it again; the rest of the form is kept.'
+                : `Too many signature attempts: ${err.problem.detail ?? 'wait a moment and try again'}.`,
+            );
+            setPassword('');
+          } else if (/evidenceOverride|evidence/i.test(t)) setEvidenceError(t);
           else if (/override/i.test(t)) setOverrideError(t);
           else setError(t);
           evidence.reload();
@@ -112,6 +121,7 @@ export function Approve({ d, me, onDone }: { d: ModelVersionDetail; me: Me | nul
       <label class="block">
         Password (re-enter to sign) <input type="password" autocomplete="current-password" value={password} onInput={(e) => setPassword((e.target as HTMLInputElement).value)} />
       </label>
+      <FieldError text={passwordError ?? undefined} />
       <button class="btn primary" type="submit" disabled={busy || !reason.trim()}>
         Approve
       </button>
