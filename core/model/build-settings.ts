@@ -135,6 +135,8 @@ export function resolveBuildSettings(input: unknown): BuildSettings {
   if (s.alarms.confidence !== undefined && s.alarms.confidence < s.confidence) throw new RangeError(`build settings: alarms.confidence (${s.alarms.confidence}) must not be below confidence (${s.confidence}): alarm limits are at least as wide as the limits drawn`);
   if (s.alarms.onDelay > s.alarms.onWindow) throw new RangeError(`build settings: alarms.onDelay (${s.alarms.onDelay}) must not exceed alarms.onWindow (${s.alarms.onWindow})`);
   if (s.progress.kind === 'indicator' && s.progress.source === 'property' && !s.property) throw new RangeError('build settings: progress.source "property" needs a property model (settings.property)');
+  // Asked for and silently not done would leave slow batches unflagged: refuse instead.
+  if (s.alarms.pace === true && s.progress.kind !== 'indicator') throw new RangeError('build settings: alarms.pace needs progress on an indicator variable (progress: {"kind": "indicator", "source": "property"} or "pc1"): with progress as time every batch is where the golden batches were at that time, so its pace cannot be judged');
   for (const c of s.endpoint.criteria) {
     if (c.kind === 'property' && !s.property) throw new RangeError('build settings: endpoint criterion "property" needs a property model (settings.property)');
     if (c.kind === 'property' && c.target === undefined && s.property?.target === undefined) throw new RangeError('build settings: endpoint criterion "property" needs a target (criterion.target or property.target)');

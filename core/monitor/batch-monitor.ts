@@ -280,7 +280,7 @@ export function createBatchMonitor(model: MonitoringModel, batchStartT: number, 
     }
 
     // Pace: judged after start-up, up to the golden end progress — after 'done' too (a batch called
-    // done early that then dries slowly is still slow).
+    // done early that then dries slowly is still slow); a pace alarm standing there stays standing.
     let paceStatus: PaceStatus | null = null;
     if (pace && elapsedMin >= startupMin && prog < endProgress) paceStatus = pace.update(k, elapsedMin);
 
@@ -296,7 +296,16 @@ export function createBatchMonitor(model: MonitoringModel, batchStartT: number, 
       if (c === 0) { value = t2; limit = alarmT2; }
       else if (c === 1) { value = q; limit = alarmQ; }
       else if (c < firstEnv) { value = al ? combinedIndex(t2, q, aT2, aQ) : combined; limit = aC; }
-      else if (c === paceCond) { value = paceStatus && paceStatus.z > 0 ? paceStatus.z : 0; limit = paceK; }
+      else if (c === paceCond) {
+        // Unjudged pace (past the golden end progress, or too few golden batches for the stretch)
+        // says nothing about it: a slow batch stays flagged to its end, past its endpoint call too.
+        if (paceStatus === null) {
+          if (cd.filter.active) active.push(cd.key);
+          continue;
+        }
+        value = paceStatus.z > 0 ? paceStatus.z : 0;
+        limit = paceK;
+      }
       else {
         // An unjudged point says nothing about the condition: it neither raises nor clears it (a
         // batch running past the golden batches' course keeps a standing envelope alarm).
@@ -314,9 +323,7 @@ export function createBatchMonitor(model: MonitoringModel, batchStartT: number, 
       if (u.changed) {
         let what: string;
         if (c === paceCond) {
-          what = paceStatus
-            ? `pace: ${fmt(paceStatus.tookMin)} min without reaching the next progress point; the golden batches took ${fmt(paceStatus.expectedMin)} min (alarm beyond ${fmt(paceStatus.upperMin)} min, ${confPct})`
-            : 'pace no longer judged (endpoint or golden end reached)';
+          what = `pace: ${fmt(paceStatus!.tookMin)} min without reaching the next progress point; the golden batches took ${fmt(paceStatus!.expectedMin)} min (alarm beyond ${fmt(paceStatus!.upperMin)} min, ${confPct})`;
         } else if (c >= firstEnv) {
           const e = envelope[condPc[c]];
           what = `${cd.label} score ${fmt(e.score)} is ${fmt(e.sd!)} sd from the golden path (alarm at ±${fmt(aK)} sd, ${confPct})`;

@@ -10,6 +10,7 @@ import type { Envelope } from '../../core/envelope/envelope.ts';
 import { simulateBatch, simulateReferenceSet, type SimulatedBatch } from '../../simulators/batch.ts';
 import { buildMonitoringModel, type MonitoringModel } from '../../core/model/monitoring-model.ts';
 import { createBatchMonitor } from '../../core/monitor/batch-monitor.ts';
+import { resolveBuildSettings } from '../../core/model/build-settings.ts';
 import { DRYER_TEST_SETTINGS } from './settings-fixture.ts';
 
 // Five reference batches on a 6-point grid: minutes at which each reached each point (null: never /
@@ -133,6 +134,38 @@ describe('pace in the batch monitor', () => {
     expect(doneAt).toBeGreaterThan(0);
     expect(judgedAfterDone).toBeGreaterThan(0);
     expect(paceAt).toBeGreaterThan(doneAt);
+  });
+
+  it('a slow batch stays flagged past the golden end progress: the pace alarm stands at done and at the batch end', () => {
+    // the drying rate drops to about a third: the batch still reaches its endpoint, late, and runs on past the golden end
+    const slow = simulateBatch('dryer', { seed: 90_002, intervalS: 30, faults: [{ type: 'slow-drying', onsetS: 900, params: { rateFactor: 0.35 } }] });
+    const mon = createBatchMonitor(model, slow.times[0]!);
+    let paceAt = -1;
+    let doneAt = -1;
+    let unjudgedAfterPace = 0;
+    let last: ReturnType<typeof mon.push> | null = null;
+    const cleared: string[] = [];
+    slow.spectra.forEach((s, i) => {
+      const r = mon.push(i, slow.times[i]!, s);
+      if (paceAt < 0 && r.conditionChanges.some((c) => c.key === 'pace' && c.active)) paceAt = i;
+      if (paceAt >= 0 && !r.pace) unjudgedAfterPace++;
+      if (doneAt < 0 && r.endpoint.state === 'done') doneAt = i;
+      for (const c of r.conditionChanges) if (c.key === 'pace' && !c.active) cleared.push(c.message);
+      if (doneAt === i) expect(r.activeConditions).toContain('pace');
+      last = r;
+    });
+    expect(paceAt).toBeGreaterThan(0);
+    expect(doneAt).toBeGreaterThan(paceAt);
+    expect(unjudgedAfterPace).toBeGreaterThan(0); // it did run past where pace can be judged
+    expect(cleared).toEqual([]);
+    expect(last!.activeConditions).toContain('pace');
+  });
+
+  it('alarms.pace on a time axis is refused at build, naming the field, instead of being silently left out', () => {
+    const given = { ...settings, progress: { kind: 'time' } };
+    expect(() => resolveBuildSettings(given)).toThrow(/^build settings: alarms\.pace needs progress on an indicator variable .* its pace cannot be judged$/);
+    expect(resolveBuildSettings({ ...given, alarms: { ...settings.alarms, pace: false } }).alarms.pace).toBe(false);
+    expect(resolveBuildSettings(settings).alarms.pace).toBe(true);
   });
 
   it('models without alarms.pace have no pace condition (an approved model keeps its meaning)', () => {
