@@ -7,6 +7,7 @@
  *   npm run bench -- --json out.json   also write the figures
  *   npm run bench -- --quick           smaller sizes (figures then say so)
  *   npm run bench -- --only core-pca   one section (repeatable)
+ *   npm run bench -- --history-size 100x500x1024   plant-history size (default 500x500x1024)
  *
  * Ratios are measured in the same run on the same machine; no timing is asserted anywhere.
  */
@@ -19,6 +20,8 @@ import { fileURLToPath, pathToFileURL } from 'node:url';
 export interface BenchContext {
   quick: boolean;
   log(line: string): void;
+  /** Plant-history size BATCHESxSPECTRAxPOINTS (bench/sections/plant-history.ts). */
+  historySize?: string;
 }
 export type Figures = Record<string, number | string | null>;
 interface Section {
@@ -26,8 +29,9 @@ interface Section {
   run(ctx: BenchContext): Promise<Figures>;
 }
 
-function parseArgs(argv: string[]): { json: string | null; quick: boolean; only: string[] } {
+function parseArgs(argv: string[]): { json: string | null; quick: boolean; only: string[]; historySize?: string } {
   let json: string | null = null;
+  let historySize: string | undefined;
   let quick = false;
   const only: string[] = [];
   for (let i = 0; i < argv.length; i++) {
@@ -40,9 +44,12 @@ function parseArgs(argv: string[]): { json: string | null; quick: boolean; only:
       const v = argv[++i];
       if (!v) throw new Error('--only needs a section name');
       only.push(v);
-    } else throw new Error(`unknown argument '${a}' (use --json FILE, --quick, --only NAME)`);
+    } else if (a === '--history-size') {
+      historySize = argv[++i];
+      if (!historySize) throw new Error('--history-size needs BATCHESxSPECTRAxPOINTS, e.g. 500x500x1024');
+    } else throw new Error(`unknown argument '${a}' (use --json FILE, --quick, --only NAME, --history-size BxSxP)`);
   }
-  return { json, quick, only };
+  return { json, quick, only, ...(historySize ? { historySize } : {}) };
 }
 
 function python(code: string): string | null {
@@ -102,7 +109,7 @@ async function main(): Promise<void> {
     console.log(`\n[${sectionName}]`);
     const t0 = performance.now();
     try {
-      const figures = await mod.run!({ quick: args.quick, log: (line) => console.log(`  ${line}`) });
+      const figures = await mod.run!({ quick: args.quick, log: (line) => console.log(`  ${line}`), ...(args.historySize ? { historySize: args.historySize } : {}) });
       results[sectionName] = figures;
       for (const [k, v] of Object.entries(figures)) console.log(`  ${k} = ${typeof v === 'number' ? formatNumber(v) : String(v)}`);
     } catch (err) {
