@@ -46,6 +46,9 @@ export function Builder({ me }: { me: Me | null }) {
   const [alarmConf, setAlarmConf] = useState(0.999);
   const [qMethod, setQMethod] = useState<'jackson-mudholkar' | 'box'>('jackson-mudholkar');
   const [progress, setProgress] = useState<Progress>('time');
+  // pace against the golden batches: judged only with progress on an indicator variable (a stalled
+  // or slowly drying batch sits inside its envelope otherwise)
+  const [pace, setPace] = useState(true);
   const [ends, setEnds] = useState<Record<string, string>>({});
   const [prop, setProp] = useState<PropertyForm>({ on: false, name: '', unit: '', lvs: 'auto', target: '', direction: 'below' });
   const [rule, setRule] = useState<RuleForm>({ criteria: [NEW_CRITERION.mbsd()], combine: 'all', confirm: '2', nearingMin: '10', minElapsed: 'auto' });
@@ -110,12 +113,15 @@ export function Builder({ me }: { me: Me | null }) {
     const prod = product || shown.find((b) => chosen.includes(b.id))?.product || '';
     setBusy(true);
     try {
+      const base = buildSettingsFromForm({ chain: chainResult.chain, components, confidence: conf, alarmConfidence: Math.max(alarmConf, conf), referenceEndpoints: marks });
+      const judgePace = pace && progress !== 'time';
       const v = await api.build({
         name: modelName(name || `${prod}-model`),
         product: prod,
         referenceBatches: chosen,
         settings: {
-          ...buildSettingsFromForm({ chain: chainResult.chain, components, confidence: conf, alarmConfidence: Math.max(alarmConf, conf), referenceEndpoints: marks }),
+          ...base,
+          ...(judgePace ? { alarms: { ...((base.alarms as Record<string, unknown> | undefined) ?? {}), pace: true } } : {}),
           ...form.settings,
           progress: PROGRESS_SETTINGS[progress],
         },
@@ -227,6 +233,10 @@ export function Builder({ me }: { me: Me | null }) {
               </option>
               <option value="pc1">the PC1 score</option>
             </select>
+          </label>
+          <label title="With progress on the predicted property or PC1: the time the batch takes to each progress point against the golden batches (a slowly drying or stalled batch sits inside its envelope otherwise). Not possible with progress as elapsed time.">
+            <input type="checkbox" checked={pace && progress !== 'time'} disabled={progress === 'time'} onChange={(e) => setPace((e.target as HTMLInputElement).checked)} data-testid="judge-pace" /> judge the pace
+            {progress === 'time' && <span class="muted small"> (needs progress on the property or PC1)</span>}
           </label>
         </div>
         {limitErrs.map((t) => (
