@@ -135,7 +135,8 @@ export async function startServer(config: ServerConfig, opts: StartOptions = {})
       return;
     }
     if (config.metrics.access === 'token') {
-      const m = /^Bearer (.+)$/.exec(req.get('authorization') ?? '');
+      // the scheme name is case-insensitive (RFC 9110 §11.1)
+      const m = /^Bearer +(\S+) *$/i.exec(req.get('authorization') ?? '');
       const given = m ? createHash('sha256').update(m[1]!).digest() : null;
       if (!given || !metricsToken || !timingSafeEqual(given, metricsToken)) {
         res.status(401).set('WWW-Authenticate', 'Bearer realm="tideline-metrics"').type('text/plain').send('metrics need Authorization: Bearer <metrics.token>\n');

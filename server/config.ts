@@ -20,8 +20,8 @@ export const configSchema = z
     synchronous: z.enum(['FULL', 'NORMAL']).default('FULL'),
     /** Where WAL checkpoints run: a worker thread (default) or SQLite's automatic ones on the committing thread. */
     walCheckpoint: z.enum(['worker', 'sqlite']).default('worker'),
-    /** Folder with the built dashboard (served at /), or null. */
-    webDir: z.string().nullable().default('web/dist'),
+    /** Folder with the built dashboard (served at /), or null ('none' or '' in a file say the same). */
+    webDir: z.preprocess((v) => (v === 'none' || v === '' ? null : v), z.string().nullable()).default('web/dist'),
     ingest: z
       .object({
         /** Group commit window, ms: spectra arriving within it share one durable commit. */

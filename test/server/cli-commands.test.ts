@@ -170,6 +170,9 @@ describe('/metrics as metrics.access says', () => {
       r = await fetch(on.server.url + '/metrics', { headers: { authorization: `Bearer ${token}` } });
       expect(r.status).toBe(200);
       expect(await r.text()).toMatch(/tideline_ingest_spectra_total \d+/);
+      // the scheme name is case-insensitive (RFC 9110 §11.1): Prometheus and curl users write either
+      r = await fetch(on.server.url + '/metrics', { headers: { authorization: `bearer ${token}` } });
+      expect(r.status).toBe(200);
     } finally {
       await on.stop();
     }

@@ -19,6 +19,15 @@ describe('configuration: defaults < file < environment < flags, validated', () =
     const d = loadConfig({ env: { TIDELINE_CONFIG: file }, flags: { port: '3000', 'ingest.staleAfterMs': '500' } });
     expect(d).toMatchObject({ port: 3000, ingest: { staleAfterMs: 500 } });
   });
+  it('reads webDir "none" as no dashboard from a file, the environment and a flag alike', () => {
+    writeFileSync(join(dir, 'noweb.json'), JSON.stringify({ webDir: 'none' }));
+    expect(loadConfig({ flags: { config: join(dir, 'noweb.json') } }).webDir).toBeNull();
+    expect(loadConfig({ env: { TIDELINE_WEB_DIR: 'none' } }).webDir).toBeNull();
+    expect(loadConfig({ flags: { webDir: 'none' } }).webDir).toBeNull();
+    expect(loadConfig().webDir).toBe('web/dist');
+    writeFileSync(join(dir, 'web.json'), JSON.stringify({ webDir: '/srv/tideline-web' }));
+    expect(loadConfig({ flags: { config: join(dir, 'web.json') } }).webDir).toBe('/srv/tideline-web');
+  });
   it('names the setting and its source when a value is wrong', () => {
     expect(() => loadConfig({ flags: { port: 'http' } })).toThrow(/flag --port: port must be a number, got "http"/);
     expect(() => loadConfig({ env: { TIDELINE_PORT: '70000' } })).toThrow(/port: Too big/);
