@@ -70,6 +70,11 @@ export const signalsConfigSchema = z
     replayHistory: z.boolean().default(false),
     /** Idle poll interval of the delivery loops, ms. */
     pollMs: z.number().int().min(10).max(60_000).default(500),
+    /**
+     * How often the audit trail's head (SEQ:HASH) goes to the log and every channel, ms; 0 = never.
+     * Hourly: common practice for such checkpoints, no published source.
+     */
+    auditAnchorEveryMs: z.number().int().min(0).max(7 * 24 * 3600_000).default(3_600_000),
   })
   .strict();
 

@@ -10,6 +10,7 @@
 import type Database from 'better-sqlite3';
 import type { MonitorResult } from '../../core/monitor/types.ts';
 import type { ServerContext } from '../context.ts';
+import { startAnchorPublisher, type AnchorSink } from './audit-anchor.ts';
 import { parseSignalsConfig } from './config.ts';
 import { SignalDispatcher, type SignalChannel } from './dispatcher.ts';
 import type { MqttChannel } from './mqtt-channel.ts';
@@ -32,13 +33,19 @@ export async function install(ctx: ServerContext): Promise<SignalsHandle> {
   const db = ctx.storage.db as unknown as Database.Database;
   const store = new OutboxStore(db);
   const channels: SignalChannel[] = [];
-  for (const w of cfg.webhooks) channels.push(new WebhookChannel(w, ctx.now));
+  const anchorSinks: AnchorSink[] = [];
+  for (const w of cfg.webhooks) {
+    const ch = new WebhookChannel(w, ctx.now);
+    channels.push(ch);
+    anchorSinks.push(ch);
+  }
   let mqtt: MqttChannel | null = null;
   // node-opcua and mqtt are loaded only when their channel is configured (node-opcua takes seconds to load)
   if (cfg.mqtt) {
     const { MqttChannel } = await import('./mqtt-channel.ts');
     mqtt = new MqttChannel(cfg.mqtt, store, ctx.now);
     channels.push(mqtt);
+    anchorSinks.push(mqtt);
   }
   let opcua: OpcuaChannel | null = null;
   if (cfg.opcua) {
@@ -61,6 +68,7 @@ export async function install(ctx: ServerContext): Promise<SignalsHandle> {
       },
     });
     channels.push(opcua);
+    anchorSinks.push(opcua);
   }
 
   // done → signalled once any channel has delivered the 'done' event
@@ -109,7 +117,14 @@ export async function install(ctx: ServerContext): Promise<SignalsHandle> {
 
   addSignalRoutes(ctx.routes, ctx, store, dispatchers, opcua);
 
+  // the audit trail's head, to the log and every channel, at start and then every auditAnchorEveryMs
+  const audit = ctx.audit;
+  const anchors = audit
+    ? startAnchorPublisher({ everyMs: cfg.auditAnchorEveryMs, now: ctx.now, head: () => audit.anchor(), sinks: anchorSinks, log: ctx.log })
+    : null;
+
   ctx.onClose(async () => {
+    anchors?.stop();
     // A delivery in flight to a receiver that has gone silent may wait its whole timeout (per
     // channel settings, up to minutes): shutdown waits at most 3 s for it, then stops the channels.
     // Its event was not marked delivered, so it is sent again after the restart.

@@ -6,6 +6,8 @@
  *                                    offline message is also the connection's last will
  *   <prefix>/v1/units/<unit>/events  QoS 1, not retained: every outbox event {id, unit, seq, type, createdAt, payload}
  *   <prefix>/v1/units/<unit>/state   retained, QoS 1: the unit's current state (UnitSignalState)
+ *   <prefix>/v1/audit/anchor         retained, QoS 1: the audit trail's head {type, anchor, seq, hash, t},
+ *                                    at signals.auditAnchorEveryMs (audit-anchor.ts)
  *
  * An event counts as delivered when the broker acknowledged it (PUBACK); the channel never
  * dead-letters, it waits for the broker. Subscribers deduplicate by event id (a restart between
@@ -13,6 +15,7 @@
  */
 import mqtt, { type MqttClient } from 'mqtt';
 import type { MonitorResult } from '../../core/monitor/types.ts';
+import type { AnchorMessage, AnchorSink } from './audit-anchor.ts';
 import type { SignalChannel } from './dispatcher.ts';
 import { deliveredRows, envelopeOf, type OutboxStore, type SignalEnvelope } from './outbox-store.ts';
 import { applyEvent, applyResult, emptyUnitState, type UnitSignalState } from './unit-state.ts';
@@ -37,10 +40,11 @@ export function mqttTopics(prefix: string) {
     status: `${prefix}/v1/status`,
     events: (unit: string) => `${prefix}/v1/units/${unit}/events`,
     state: (unit: string) => `${prefix}/v1/units/${unit}/state`,
+    anchor: `${prefix}/v1/audit/anchor`,
   };
 }
 
-export class MqttChannel implements SignalChannel {
+export class MqttChannel implements SignalChannel, AnchorSink {
   readonly name = MQTT_CHANNEL;
   readonly maxAttempts = Number.POSITIVE_INFINITY;
   readonly backoff = { baseMs: 500, capMs: 10_000 };
@@ -48,6 +52,7 @@ export class MqttChannel implements SignalChannel {
   private readonly states = new Map<string, UnitSignalState>();
   private readonly lastStateAt = new Map<string, number>();
   private readonly topics;
+  private lastAnchor: AnchorMessage | null = null;
   /** Called when the broker connection comes up (the dispatcher should look at once). */
   onReady: () => void = () => undefined;
 
@@ -85,6 +90,7 @@ export class MqttChannel implements SignalChannel {
     client.on('connect', () => {
       client.publish(this.topics.status, this.statusPayload(true), { qos: 1, retain: true });
       for (const [unit, s] of this.states) this.publishState(unit, s).catch(() => undefined);
+      if (this.lastAnchor) this.publish(this.topics.anchor, JSON.stringify(this.lastAnchor), true).catch(() => undefined);
       this.onReady();
     });
     client.on('error', () => undefined); // reconnects on its own; delivery waits through isReady()
@@ -118,6 +124,16 @@ export class MqttChannel implements SignalChannel {
     const s = applyEvent(this.states.get(event.unit) ?? emptyUnitState(event.unit, this.now()), event, this.now());
     this.states.set(event.unit, s);
     await this.publishState(event.unit, s);
+  }
+
+  /**
+   * The audit trail's anchor, retained: a subscriber that comes later still finds the latest. While
+   * the broker is away the latest one waits and goes out when the connection comes up.
+   */
+  async sendAnchor(m: AnchorMessage): Promise<void> {
+    this.lastAnchor = m;
+    if (!this.isReady()) return;
+    await this.publish(this.topics.anchor, JSON.stringify(m), true);
   }
 
   /** Live values from a new monitor result; the retained state is republished at most every stateEveryMs. */

@@ -3,6 +3,8 @@
  * with the event id as idempotency key. Only a 2xx answer counts as delivered; anything else (or
  * no answer within the timeout) is retried with backoff, and dead-lettered after maxAttempts.
  */
+import { randomUUID } from 'node:crypto';
+import type { AnchorMessage, AnchorSink } from './audit-anchor.ts';
 import type { BackoffPolicy } from './backoff.ts';
 import type { SignalChannel } from './dispatcher.ts';
 import type { SignalEnvelope } from './outbox-store.ts';
@@ -20,7 +22,7 @@ export interface WebhookConfig {
   timeoutMs: number;
 }
 
-export class WebhookChannel implements SignalChannel {
+export class WebhookChannel implements SignalChannel, AnchorSink {
   readonly name: string;
   readonly maxAttempts: number;
   readonly backoff: BackoffPolicy;
@@ -38,14 +40,27 @@ export class WebhookChannel implements SignalChannel {
 
   async deliver(event: SignalEnvelope): Promise<void> {
     if (this.cfg.types && !this.cfg.types.includes(event.type)) return; // filtered out: counts as done
-    const body = JSON.stringify(event);
+    await this.post(event.id, JSON.stringify(event));
+  }
+
+  /**
+   * The audit trail's anchor (audit-anchor.ts), in the envelope's shape with `unit` and `seq` null:
+   * it is no outbox event (no per-unit sequence, no retry; the next anchor replaces it).
+   */
+  async sendAnchor(m: AnchorMessage): Promise<void> {
+    if (this.cfg.types && !this.cfg.types.includes(m.type)) return;
+    const id = randomUUID();
+    await this.post(id, JSON.stringify({ id, unit: null, seq: null, type: m.type, createdAt: m.t, payload: { anchor: m.anchor, seq: m.seq, hash: m.hash } }));
+  }
+
+  private async post(id: string, body: string): Promise<void> {
     const res = await fetch(this.cfg.url, {
       method: 'POST',
       headers: {
         'content-type': 'application/json',
         [SIGNATURE_HEADER]: signatureHeader(this.cfg.secret, body, this.now()),
-        [IDEMPOTENCY_HEADER]: event.id,
-        [EVENT_ID_HEADER]: event.id,
+        [IDEMPOTENCY_HEADER]: id,
+        [EVENT_ID_HEADER]: id,
         'user-agent': 'tideline-signals',
       },
       body,

@@ -15,16 +15,21 @@ import { mkdirSync } from 'node:fs';
 import { createServer } from 'node:net';
 import { join } from 'node:path';
 import {
+  DataType,
   MessageSecurityMode,
   OPCUACertificateManager,
   OPCUAServer,
   SecurityPolicy,
+  StatusCodes,
+  Variant,
   nodesets,
   type Namespace,
   type UAObject,
+  type UAVariable,
 } from 'node-opcua';
 import type Database from 'better-sqlite3';
 import type { MonitorResult } from '../../../core/monitor/types.ts';
+import type { AnchorMessage, AnchorSink } from '../audit-anchor.ts';
 import type { OpcuaSettings } from '../config.ts';
 import type { SignalChannel } from '../dispatcher.ts';
 import { deliveredRows, envelopeOf, type OutboxStore, type SignalEnvelope } from '../outbox-store.ts';
@@ -62,7 +67,7 @@ const POLICY: Record<OpcuaSettings['securityPolicies'][number], SecurityPolicy> 
   Aes256_Sha256_RsaPss: SecurityPolicy.Aes256_Sha256_RsaPss,
 };
 
-export class OpcuaChannel implements SignalChannel {
+export class OpcuaChannel implements SignalChannel, AnchorSink {
   readonly name = OPCUA_CHANNEL;
   readonly maxAttempts = Number.POSITIVE_INFINITY;
   readonly backoff = { baseMs: 200, capMs: 5000 };
@@ -70,6 +75,7 @@ export class OpcuaChannel implements SignalChannel {
   private ns: Namespace | null = null;
   private root: UAObject | null = null;
   private notifier: UAObject | null = null;
+  private anchorVar: UAVariable | null = null;
   private readonly units = new Map<string, UnitNodes>();
   private readonly states = new Map<string, UnitSignalState>();
   private readonly latches: EndpointLatchStore;
@@ -126,6 +132,15 @@ export class OpcuaChannel implements SignalChannel {
     const ns = addressSpace.getOwnNamespace();
     this.notifier = addressSpace.rootFolder.objects.server;
     this.root = ns.addObject({ browseName: 'Tideline', organizedBy: addressSpace.rootFolder.objects, notifierOf: this.notifier, eventNotifier: 1, description: 'Tideline advises; the site control strategy decides' });
+    // Tideline/AuditAnchor: the audit trail's head SEQ:HASH, set at signals.auditAnchorEveryMs
+    this.anchorVar = ns.addVariable({
+      componentOf: this.root,
+      browseName: 'AuditAnchor',
+      dataType: 'String',
+      description: 'The audit trail head as SEQ:HASH, for a historian to keep outside the server (tideline audit verify --anchor)',
+      minimumSamplingInterval: 1000,
+    });
+    this.anchorVar.setValueFromSource(new Variant({ dataType: DataType.String, value: '' }), StatusCodes.BadWaitingForInitialData);
     this.ns = ns;
     this.server = server;
     for (const unit of this.store.units()) {
@@ -139,6 +154,11 @@ export class OpcuaChannel implements SignalChannel {
     await server.start();
     this.timer = setInterval(() => this.beat(), this.cfg.heartbeatMs);
     this.timer.unref();
+  }
+
+  async sendAnchor(m: AnchorMessage): Promise<void> {
+    if (!this.anchorVar) throw new Error('OPC UA server not started');
+    this.anchorVar.setValueFromSource(new Variant({ dataType: DataType.String, value: m.anchor }), StatusCodes.Good, new Date(m.t));
   }
 
   private beat(): void {
