@@ -100,7 +100,7 @@ export async function startServer(config: ServerConfig, opts: StartOptions = {})
   }
   // alarm actions the server takes itself (suppression by state) go to the same audit trail
   pipeline.audit = ctx.audit ?? null;
-  for (const part of ['signals', 'transfer']) {
+  for (const part of ['signals', 'transfer', 'model-life']) {
     const file = join(here, part, 'index.ts');
     if (!existsSync(file)) continue;
     const mod = (await import(`./${part}/index.ts`)) as { install?: (c: ServerContext) => void | Promise<void> };

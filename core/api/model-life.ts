@@ -132,3 +132,11 @@ export interface ModelHealth {
   testAlpha: number;
   method: string;
 }
+
+/** GET /api/shadow-runs: every run asked for, newest first (not paged: a site has few). */
+export interface ShadowRunList {
+  items: ShadowRun[];
+  total: number;
+  limit: number;
+  offset: number;
+}

@@ -403,7 +403,7 @@ export interface ModelSignature {
   signer: string;
   signerFullName: string;
   signerRole: string;
-  meaning: 'approved' | 'retired';
+  meaning: 'approved' | 'retired' | 'deployed';
   /** The sha256 of the model file the signature is bound to. */
   modelSha256: string;
   reason: string;
@@ -676,6 +676,8 @@ export interface ApproveModelRequest {
    * evidence shows nothing to override. Signed with the approval and kept with its evidence.
    */
   evidenceOverride?: string;
+  /** Days from approval to the periodic review of the version (default 365; docs/model-life.md). Signed with the approval. */
+  reviewIntervalDays?: number;
 }
 
 export interface EvaluateModelRequest {

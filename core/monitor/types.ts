@@ -31,8 +31,11 @@ export interface EndpointHold {
 export const CONDITION_KINDS = ['t2', 'q', 'combined', 'envelope', 'property', 'analyzer'] as const;
 export type ConditionKind = (typeof CONDITION_KINDS)[number];
 
-/** Alarm kinds known to the whole system: the monitor's conditions plus server-side ones. */
-export type AlarmKind = ConditionKind | 'stale' | 'analyzer';
+/**
+ * Alarm kinds known to the whole system: the monitor's conditions plus server-side ones.
+ * 'model-health': a test of the deployed version's health failed (docs/model-life.md); low priority, unit-level.
+ */
+export type AlarmKind = ConditionKind | 'stale' | 'analyzer' | 'model-health';
 
 /** ISA-18.2 alarm states; shelving is a separate flag with an expiry. */
 export const ALARM_STATES = ['normal', 'active-unacknowledged', 'active-acknowledged', 'cleared-unacknowledged'] as const;

@@ -15,6 +15,7 @@ import { parseMonitoringModel } from '../../core/model/monitoring-model.ts';
 import { earlyBatchesText } from '../../core/model/endpoint-check.ts';
 import { transferAuditAfter, transferVersion } from '../models/transfer-service.ts';
 import { transferBlockingWarning } from '../../core/calibration-transfer/transfer-model.ts';
+import { DEFAULT_REVIEW_DAYS, modelLifeOf } from '../model-life/service.ts';
 
 const versionParams = z.object({ version: z.string().min(1).max(128) });
 
@@ -112,6 +113,7 @@ export function addModelRoutes(t: RouteTable, ctx: ServerContext) {
   const approveBody = signBody.extend({
     earlyEndpointOverride: z.string().trim().min(1, 'give the reason for the override').pipe(nameSchema({ max: 2000, multiline: true })).optional(),
     evidenceOverride: z.string().trim().min(1, 'give the reason for approving against the evidence').pipe(nameSchema({ max: 2000, multiline: true })).optional(),
+    reviewIntervalDays: z.number().int('whole days').min(1, 'at least 1 day').max(3650, 'at most 3650 days (10 years)').optional(),
   }).strict();
   t.add({
     method: 'post', path: '/models/versions/:version/approve',
@@ -154,18 +156,24 @@ export function addModelRoutes(t: RouteTable, ctx: ServerContext) {
         const evidenceSummary = evidence
           ? { evaluationId: evidence.evaluationId, heldOutGood: evidence.heldOutGood.length, points: evidence.points, t2Rate: evidence.t2.rate, qRate: evidence.q.rate, nominalRate: evidence.nominalRate, endpointReached: `${evidence.endpoint.reached} of ${evidence.endpoint.of}`, warnings: evidence.warnings.map((w) => w.code) }
           : { evaluationId: null };
+        // The periodic review (docs/model-life.md): due this many days after approval.
+        const reviewDays = body.reviewIntervalDays ?? DEFAULT_REVIEW_DAYS;
+        const at = ctx.now();
+        const review = { intervalDays: reviewDays, dueAt: new Date(at + reviewDays * 86_400_000).toISOString() };
         if (ctx.auth && req.user) {
-          await ctx.auth.sign({ user: req.user, password: body.password ?? '', meaning: 'approved', objectType: 'model', objectId: m.id, objectHash: m.sha256, reason: body.reason, ...(signedOverride !== undefined ? { override: signedOverride } : {}), evidence: evidenceSummary, address: req.ip }, () => {
+          await ctx.auth.sign({ user: req.user, password: body.password ?? '', meaning: 'approved', objectType: 'model', objectId: m.id, objectHash: m.sha256, reason: body.reason, ...(signedOverride !== undefined ? { override: signedOverride } : {}), evidence: { ...evidenceSummary, review }, address: req.ip }, () => {
             // Synchronous inside the signature's transaction: if the version is no longer a draft, the throw rolls the signature back too.
             try {
-              (ctx.storage as unknown as SqliteStorage).approveModelVersionSync(m.id, by, ctx.now(), body.reason);
+              (ctx.storage as unknown as SqliteStorage).approveModelVersionSync(m.id, by, at, body.reason);
             } catch {
               throw conflict(`model version ${m.name} v${m.version} stopped being a draft while it was being signed; nothing was signed or changed`);
             }
+            modelLifeOf(ctx).setReview(m.id, reviewDays, at, by);
           });
         } else {
-          await ctx.storage.approveModelVersion(m.id, by, ctx.now(), body.reason);
-          await recordAudit(ctx, { user: by, action: 'model.approve', object: `model:${m.name}@${m.version}`, after: { id: m.id, sha256: m.sha256, ...(signedOverride !== undefined ? { override: signedOverride } : {}), evidence: evidenceSummary }, reason: body.reason });
+          await ctx.storage.approveModelVersion(m.id, by, at, body.reason);
+          modelLifeOf(ctx).setReview(m.id, reviewDays, at, by);
+          await recordAudit(ctx, { user: by, action: 'model.approve', object: `model:${m.name}@${m.version}`, after: { id: m.id, sha256: m.sha256, ...(signedOverride !== undefined ? { override: signedOverride } : {}), evidence: evidenceSummary, review }, reason: body.reason });
         }
         return modelVersionSummary(ctx.storage, (await ctx.storage.getModelVersion(m.id))!);
       }),

@@ -47,7 +47,7 @@ declare global {
 }
 
 /** What an electronic signature means (21 CFR 11.50: the meaning is part of the signature). */
-export const SIGNATURE_MEANINGS = ['approved', 'retired'] as const;
+export const SIGNATURE_MEANINGS = ['approved', 'retired', 'deployed'] as const;
 export type SignatureMeaning = (typeof SIGNATURE_MEANINGS)[number];
 
 export interface SignatureRequest {

@@ -63,6 +63,8 @@ export interface OpenBatch {
   /** Server clock (ms) of the last entry received for this batch. */
   lastDataAt: number;
   stale: boolean;
+  /** A candidate version judging this batch in shadow (docs/model-life.md): results stored apart, never signalled or annunciated. */
+  shadow?: { run: string; versionId: string; monitor: BatchMonitorLike } | null;
 }
 
 interface DeployedModel {
@@ -92,6 +94,8 @@ export class IngestPipeline {
   readonly openByUnit = new Map<string, OpenBatch>();
   readonly units = new Map<string, UnitRow>();
   private readonly deployments = new Map<string, DeployedModel>();
+  /** Active shadow run per unit: batches started while it runs are judged by its version too. */
+  private readonly shadowRuns = new Map<string, { id: string; versionId: string }>();
   private readonly models = new Map<string, MonitoringModelLike>();
   private batchIds = new Set<string>();
   private readonly alarmsById = new Map<string, Alarm>();
@@ -182,6 +186,11 @@ export class IngestPipeline {
     for (const a of await this.storage.liveAlarms()) this.indexAlarm(a);
     this.deployments.clear();
     for (const u of this.units.keys()) await this.refreshDeployment(u);
+    this.shadowRuns.clear();
+    for (const r of await this.storage.activeShadowRuns()) {
+      this.shadowRuns.set(r.unit, { id: r.id, versionId: r.modelVersion });
+      await this.loadModel(r.modelVersion).catch((e) => this.log.error(`model ${r.modelVersion} of shadow run ${r.id} cannot be read`, e));
+    }
     this.openByAnalyzer.clear();
     this.openByUnit.clear();
     for (const row of await this.storage.openBatches()) {
@@ -211,6 +220,24 @@ export class IngestPipeline {
       for await (const s of this.storage.iterateSpectra(row.id)) if (isoTimeOrNull(s.t) !== null && s.t > prevT) prevT = s.t;
       this.log.warn(`batch ${row.id}: its stored last time ${ob.lastT} is not a valid time; the batch goes on after ${fmtTime(prevT)}`);
       ob.lastT = prevT;
+    }
+    const sr = await this.storage.shadowRunOfBatch(row.id);
+    if (sr && this.shadowRuns.get(row.unit)?.id === sr.id) {
+      try {
+        const sm = await this.loadModel(sr.modelVersion);
+        if (sm) {
+          const monitor = this.core.createBatchMonitor(sm, row.startT);
+          let prevT = -Infinity;
+          for await (const s of this.storage.iterateSpectra(row.id)) {
+            if (isoTimeOrNull(s.t) === null || !(s.t > prevT)) continue; // as the deployed monitor's replay below
+            prevT = s.t;
+            monitor.push(s.seq, s.t, s.values);
+          }
+          ob.shadow = { run: sr.id, versionId: sr.modelVersion, monitor };
+        }
+      } catch (e) {
+        this.log.error(`rebuilding the shadow monitor of batch ${row.id} failed; the shadow run skips the rest of it`, e);
+      }
     }
     if (row.modelVersion) {
       const model = await this.loadModel(row.modelVersion);
@@ -483,6 +510,7 @@ export class IngestPipeline {
     this.post.spectra++;
     this.touched.add(ob);
     if (ob.stale) this.clearStale(ob, e.seq, e.t);
+    if (ob.shadow) this.judgeInShadow(ob, idx, e);
     if (!ob.monitor) return;
     let r: MonitorResult;
     try {
@@ -517,6 +545,52 @@ export class IngestPipeline {
     }
     if (ob.endpointState === null) ob.endpointState = r.endpoint.state;
     if (judged) this.post.events.push(['result', { unit: ob.unit, batch: ob.id, result: r }]);
+  }
+
+  /**
+   * The shadow run's candidate judges the spectrum too: its result is stored apart (shadow_results);
+   * its conditions and endpoint never reach the alarm life cycle, the outbox or /live.
+   */
+  private judgeInShadow(ob: OpenBatch, idx: number, e: SpectrumEntry) {
+    const sh = ob.shadow!;
+    try {
+      const r = sh.monitor.push(e.seq, e.t, e.values);
+      (this.uow.shadowResults ??= []).push({ run: sh.run, batch: ob.id, idx, result: r });
+    } catch (err) {
+      this.log.error(`shadow monitor (${sh.versionId}) of batch ${ob.id} failed on seq ${e.seq}; the shadow run skips the rest of the batch`, err);
+      ob.shadow = null;
+    }
+  }
+
+  /** A shadow run started or stopped on a unit: batches started from now on follow it; a stopped run stops judging at once. */
+  setShadowRun(unit: string, run: { id: string; versionId: string } | null): void {
+    if (run) this.shadowRuns.set(unit, run);
+    else {
+      this.shadowRuns.delete(unit);
+      const ob = this.openByUnit.get(unit);
+      if (ob) ob.shadow = null;
+    }
+  }
+
+  /**
+   * The health of the version deployed on a unit (docs/model-life.md): a low-priority unit-level
+   * alarm through the usual life cycle while a health test fails. Written only when it changes.
+   */
+  async setModelHealth(unit: string, active: boolean, message: string, value: number, limit: number): Promise<void> {
+    const id = this.alarmIdByKey.get(alarmKey(unit, null, MODEL_HEALTH));
+    const cur = id ? this.alarmsById.get(id) : undefined;
+    if (!cur?.active && !active) return;
+    // The text after ' — ' carries figures that change with every batch: rewritten only when what precedes it (the failing tests) changes.
+    const head = (m: string) => m.split(' — ')[0];
+    if (cur && cur.active === active && head(cur.message) === head(message)) return;
+    this.applyCondition(unit, null, { kind: 'model-health', key: MODEL_HEALTH, active, priority: 4, message, value, limit }, null, this.now());
+    this.post.events.push(['unit-changed', unit]);
+    await this.flush();
+  }
+
+  /** Active shadow run of a unit. */
+  shadowRun(unit: string): { id: string; versionId: string } | null {
+    return this.shadowRuns.get(unit) ?? null;
   }
 
   private acceptBatchStart(st: StreamState, e: BatchStartMessage) {
@@ -565,7 +639,18 @@ export class IngestPipeline {
       id: e.batch, unit: e.unit, analyzer: st.analyzer, boot: st.boot, product: e.product, startT: e.t, startSeq: e.seq,
       axisLength: st.axis.length, modelVersion: monitor ? dep!.ref.versionId : null, nextIdx: 0, lastSeq: e.seq, lastT: e.t,
       monitor, latest: null, endpoint: null, endpointState: monitor ? 'running' : null, endpointAt: null, lastDataAt: now, stale: false,
+      shadow: null,
     };
+    const sr = this.shadowRuns.get(e.unit);
+    const sm = sr ? this.models.get(sr.versionId) : undefined;
+    if (sr && sm && sameAxis(sm.chain.inputAxis, st.axis)) {
+      try {
+        ob.shadow = { run: sr.id, versionId: sr.versionId, monitor: this.core.createBatchMonitor(sm, e.t) };
+        (this.uow.shadowBatches ??= []).push({ run: sr.id, batch: ob.id });
+      } catch (err) {
+        this.log.error(`creating the shadow monitor (${sr.versionId}) for batch ${e.batch} failed; the batch is not judged in shadow`, err);
+      }
+    }
     this.uow.batchStarts.push({
       id: ob.id, unit: ob.unit, analyzer: ob.analyzer, boot: ob.boot, product: ob.product, startSeq: e.seq, startT: e.t,
       axis: st.axis, modelVersion: ob.modelVersion, createdAt: now,
@@ -1169,6 +1254,9 @@ export const ANALYZER_FAILURE = 'analyzer-failure';
 
 /** Key of the unit alarm raised when a batch-start is refused because the deployed model cannot judge the batch. */
 export const MODEL_MISMATCH = 'model-mismatch';
+
+/** Key of the model-health alarm of a unit (one per unit: the health of the version deployed there). */
+export const MODEL_HEALTH = 'model-health';
 
 /** Key of Tideline's own alarm when an analyzer stays in function check beyond ingest.functionCheckMaxMs. */
 export const FUNCTION_CHECK_OVERDUE = 'function-check-overdue';

@@ -40,6 +40,8 @@ export const INGEST_SQL = {
   insertOutbox: 'INSERT INTO outbox (id, unit, unit_seq, type, payload, created_at) VALUES (?, ?, ?, ?, ?, ?)',
   insertLabValue: `INSERT INTO lab_values (id, batch, property, value, unit, sample_t, spectrum_idx, spectrum_dt_ms, method, entered_by, entered_at, source, supersedes, reason)
         VALUES (@id, @batch, @property, @value, @unit, @sampleT, @spectrumIdx, @spectrumDtMs, @method, @enteredBy, @enteredAt, @source, @supersedes, @reason)`,
+  insertShadowBatch: 'INSERT OR IGNORE INTO shadow_batches (run, batch) VALUES (?, ?)',
+  insertShadowResult: 'INSERT OR REPLACE INTO shadow_results (run, batch, idx, seq, t, t2, q, body) VALUES (?, ?, ?, ?, ?, ?, ?, ?)',
   bootSeq: 'UPDATE analyzer_boots SET last_seq = MAX(last_seq, ?), last_seen = ? WHERE analyzer = ? AND boot = ?',
 } as const;
 
@@ -61,6 +63,8 @@ const commit = db.transaction((w) => {
   for (const x of w.spectra) s.insertSpectrum.run(x.batch, x.idx, x.analyzer, x.boot, x.seq, x.t, blob(x.values), x.receivedAt);
   for (const v of (w.labValues || [])) s.insertLabValue.run(v);
   for (const r of w.results) s.insertResult.run(r.batch, r.idx, r.result.seq, r.result.t, r.modelVersion, r.result.t2, r.result.q, JSON.stringify(r.result), r.result.quality ? JSON.stringify(r.result.quality) : null);
+  for (const x of (w.shadowBatches || [])) s.insertShadowBatch.run(x.run, x.batch);
+  for (const r of (w.shadowResults || [])) s.insertShadowResult.run(r.run, r.batch, r.idx, r.result.seq, r.result.t, Number.isFinite(r.result.t2) ? r.result.t2 : null, Number.isFinite(r.result.q) ? r.result.q : null, JSON.stringify(r.result));
   for (const p of w.batchProgress) s.batchProgress.run(p.spectrumCount, p.lastSeq, p.lastT, p.endpointState, p.endpointAt, p.batch);
   for (const e of w.batchEnds) s.batchEnd.run(e.endSeq, e.endT, e.endReason, e.batch);
   for (const x of (w.analyzerStatus || [])) s.insertAnalyzerStatus.run(x.analyzer, x.boot, x.seq, x.t, x.status, x.code, x.detail, x.unit, x.receivedAt);

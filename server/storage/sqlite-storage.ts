@@ -175,6 +175,8 @@ export class SqliteStorage implements Storage {
       batchIds: p('SELECT id FROM batches'),
       insertSpectrum: p(INGEST_SQL.insertSpectrum),
       insertResult: p(INGEST_SQL.insertResult),
+      insertShadowBatch: p(INGEST_SQL.insertShadowBatch),
+      insertShadowResult: p(INGEST_SQL.insertShadowResult),
       batchProgress: p(INGEST_SQL.batchProgress),
       batchEnd: p(INGEST_SQL.batchEnd),
       upsertAlarm: p(INGEST_SQL.upsertAlarm),
@@ -224,6 +226,8 @@ export class SqliteStorage implements Storage {
       for (const r of w.results) {
         s.insertResult.run(r.batch, r.idx, r.result.seq, r.result.t, r.modelVersion, r.result.t2, r.result.q, JSON.stringify(r.result), r.result.quality ? JSON.stringify(r.result.quality) : null);
       }
+      for (const x of w.shadowBatches ?? []) s.insertShadowBatch.run(x.run, x.batch);
+      for (const r of w.shadowResults ?? []) s.insertShadowResult.run(r.run, r.batch, r.idx, r.result.seq, r.result.t, Number.isFinite(r.result.t2) ? r.result.t2 : null, Number.isFinite(r.result.q) ? r.result.q : null, JSON.stringify(r.result));
       for (const p of w.batchProgress) s.batchProgress.run(p.spectrumCount, p.lastSeq, p.lastT, p.endpointState, p.endpointAt, p.batch);
       for (const e of w.batchEnds) s.batchEnd.run(e.endSeq, e.endT, e.endReason, e.batch);
       for (const x of w.analyzerStatus) s.insertAnalyzerStatus.run(x.analyzer, x.boot, x.seq, x.t, x.status, x.code, x.detail, x.unit, x.receivedAt);
@@ -455,6 +459,10 @@ export class SqliteStorage implements Storage {
     return (this.st.listEvals.all(versionId) as Row[]).map((r) => JSON.parse(r.body) as EvaluationResult);
   }
   async deploy(d: DeploymentRow) {
+    this.deploySync(d);
+  }
+  /** The same, synchronously: inside another transaction (an electronic signature). */
+  deploySync(d: DeploymentRow): void {
     this.db.transaction(() => {
       this.st.endUnitDeployments.run(d.deployedAt, d.unit);
       this.st.insertDeployment.run(d.id, d.unit, d.modelVersion, d.deployedAt, d.deployedBy, d.reason);
@@ -512,6 +520,13 @@ export class SqliteStorage implements Storage {
   }
   async listLabValues(batch: string) {
     return (this.st.labValues.all(batch) as Row[]).map(labValueFromRow);
+  }
+  async activeShadowRuns() {
+    return (this.db.prepare('SELECT id, unit, model_version FROM shadow_runs WHERE ended_at IS NULL ORDER BY unit').all() as Row[]).map((r) => ({ id: r.id as string, unit: r.unit as string, modelVersion: r.model_version as string }));
+  }
+  async shadowRunOfBatch(batch: string) {
+    const r = this.db.prepare('SELECT r.id, r.model_version FROM shadow_batches b JOIN shadow_runs r ON r.id = b.run WHERE b.batch = ? LIMIT 1').get(batch) as Row | undefined;
+    return r ? { id: r.id as string, modelVersion: r.model_version as string } : null;
   }
   async appendAudit(r: AuditRow) {
     this.st.insertAudit.run(r.at, r.user, r.action, r.object, r.before === undefined ? null : JSON.stringify(r.before),

@@ -166,10 +166,13 @@ export interface IngestWrite {
    * constraints (spectrum exists, a value corrected once, append-only) still hold.
    */
   labValues: LabValueRow[];
+  /** Batches a shadow run judges (with their batch start), and the shadow run's results (with their spectra); never signalled (docs/model-life.md). */
+  shadowBatches?: { run: string; batch: string }[];
+  shadowResults?: { run: string; batch: string; idx: number; result: MonitorResult }[];
 }
 
 export function emptyIngestWrite(): IngestWrite {
-  return { boots: [], rejected: [], batchStarts: [], spectra: [], results: [], batchProgress: [], batchEnds: [], analyzerStatus: [], alarms: [], endpointEvents: [], outbox: [], labValues: [] };
+  return { boots: [], rejected: [], batchStarts: [], spectra: [], results: [], batchProgress: [], batchEnds: [], analyzerStatus: [], alarms: [], endpointEvents: [], outbox: [], labValues: [], shadowBatches: [], shadowResults: [] };
 }
 
 export interface BatchFilter {
@@ -280,6 +283,12 @@ export interface Storage {
   addLabValues(rows: LabValueRow[], within?: (rows: LabValueRow[]) => void): Promise<void>;
   /** Every lab value of a batch, oldest first (corrections after what they correct). */
   listLabValues(batch: string): Promise<LabValueRow[]>;
+
+  // shadow runs (docs/model-life.md; the rest of their store is server/model-life/store.ts)
+  /** The active shadow run of each unit that has one. */
+  activeShadowRuns(): Promise<{ id: string; unit: string; modelVersion: string }[]>;
+  /** The shadow run that judges a batch, with its version; null when none. */
+  shadowRunOfBatch(batch: string): Promise<{ id: string; modelVersion: string } | null>;
 
   // audit (plain rows until server/audit takes over)
   appendAudit(r: AuditRow): Promise<void>;

@@ -1,0 +1,206 @@
+/**
+ * A model's life after approval, server side (docs/model-life.md): shadow runs of a candidate version
+ * beside the deployed one, their comparison per batch, and the health of each deployed version —
+ * shown on the Model bench and the Floor, exported to /metrics and raised as a low-priority alarm.
+ * The computations are core's (core/shadow/compare.ts, core/health/model-health.ts); this file reads
+ * storage and keeps per-batch figures of ended batches (they never change) in memory.
+ */
+import client from 'prom-client';
+import type { ModelHealth, ShadowComparison, ShadowRun } from '../../core/api/model-life.ts';
+import type { MonitoringModel } from '../../core/model/monitoring-model.ts';
+import { createBatchMonitor } from '../../core/monitor/batch-monitor.ts';
+import type { MonitorResult } from '../../core/monitor/types.ts';
+import { healthBatchFigures, modelHealth, type HealthBatch } from '../../core/health/model-health.ts';
+import { compareBatch, shadowComparison, type LabPoint } from '../../core/shadow/compare.ts';
+import type { ServerContext } from '../context.ts';
+import { latestApprovalEvidence } from '../models/model-service.ts';
+import type { LabValueRow, ModelVersionRow } from '../storage/storage.ts';
+import { ModelLifeStore, type ShadowRunRow } from './store.ts';
+
+/** Default periodic-review interval set at approval when the approver gives none (common practice: yearly review of a model; no published source). */
+export const DEFAULT_REVIEW_DAYS = 365;
+const DAY_MS = 86_400_000;
+
+/** Effective lab values of a batch for one property: the latest of each chain of corrections. */
+export function effectiveLab(rows: LabValueRow[], property: string): { idx: number; value: number }[] {
+  const superseded = new Set(rows.map((r) => r.supersedes).filter((x): x is string => !!x));
+  return rows.filter((r) => r.property === property && !superseded.has(r.id)).map((r) => ({ idx: r.spectrumIdx, value: r.value }));
+}
+
+export class ModelLife {
+  readonly store: ModelLifeStore;
+  private readonly figures = new Map<string, HealthBatch>();
+  private readonly refScores = new Map<string, Promise<number[][]>>();
+  private refreshing: Promise<void> = Promise.resolve();
+  private readonly gauges;
+
+  constructor(private readonly ctx: ServerContext) {
+    this.store = new ModelLifeStore(ctx.storage.db);
+    const reg = ctx.metrics.registry;
+    const g = (name: string, help: string) => new client.Gauge({ name, help, labelNames: ['unit', 'model', 'version'], registers: [reg] });
+    this.gauges = {
+      failed: g('tideline_model_health_failed', 'Health tests of the version deployed on the unit that fail now (0: healthy)'),
+      t2Rate: g('tideline_model_health_t2_beyond_ratio', 'Share of judged spectra beyond the drawn T² limit over the health window'),
+      qRate: g('tideline_model_health_q_beyond_ratio', 'Share of judged spectra beyond the drawn Q limit over the health window'),
+      nominal: g('tideline_model_health_nominal_ratio', 'Nominal share beyond a drawn limit (1 − confidence)'),
+      alarms: g('tideline_model_health_alarms_per_batch', 'Confirmed alarms per batch over the health window'),
+      expected: g('tideline_model_health_alarms_per_batch_at_approval', 'Confirmed alarms per held-out good batch at approval'),
+      drift: g('tideline_model_health_drift_ratio', 'Largest |EWMA| / limit of the batch-mean scores at the latest batch (above 1: drift)'),
+      review: g('tideline_model_health_review_due_seconds', 'Seconds until the periodic review is due (negative: overdue)'),
+    };
+  }
+
+  // ---- shadow runs -------------------------------------------------------------------------
+
+  async runView(r: ShadowRunRow): Promise<ShadowRun> {
+    const v = await this.ctx.storage.getModelVersion(r.modelVersion);
+    return {
+      id: r.id, unit: r.unit, versionId: r.modelVersion, name: v?.name ?? '?', version: v?.version ?? 0, deployedVersionId: r.deployedVersion,
+      startedAt: r.startedAt, startedBy: r.startedBy, reason: r.reason, endedAt: r.endedAt, endedBy: r.endedBy, endReason: r.endReason,
+      batches: this.store.batchCount(r.id),
+    };
+  }
+
+  async comparison(r: ShadowRunRow): Promise<ShadowComparison> {
+    const candidate = (await this.ctx.ingest.loadModel(r.modelVersion)) as unknown as MonitoringModel | null;
+    const compared = [];
+    for (const b of this.store.runBatches(r.id)) {
+      if (b.status !== 'ended') continue;
+      const shadow = this.store.shadowResults(r.id, b.id);
+      const primary = this.store.results(b.id);
+      const seqOf = new Map<number, number>();
+      for (const x of [...primary, ...shadow]) seqOf.set(x.idx, x.result.seq);
+      const deployedModel = b.modelVersion ? ((await this.ctx.ingest.loadModel(b.modelVersion)) as unknown as MonitoringModel | null) : null;
+      const property = candidate?.pls?.name ?? deployedModel?.pls?.name ?? null;
+      const lab: LabPoint[] = property
+        ? effectiveLab(await this.ctx.storage.listLabValues(b.id), property).flatMap((l) => (seqOf.has(l.idx) ? [{ seq: seqOf.get(l.idx)!, value: l.value }] : []))
+        : [];
+      compared.push(compareBatch({ id: b.id, startT: b.startT }, { versionId: b.modelVersion, results: primary.map((x) => x.result) }, { versionId: r.modelVersion, results: shadow.map((x) => x.result) }, lab));
+    }
+    return shadowComparison(await this.runView(r), compared);
+  }
+
+  // ---- health ------------------------------------------------------------------------------
+
+  private async batchFigures(batch: { id: string; startT: number }, model: MonitoringModel): Promise<HealthBatch> {
+    const hit = this.figures.get(`${model.id}\u0000${batch.id}`);
+    if (hit) return hit;
+    const rows = this.store.results(batch.id);
+    const f = healthBatchFigures(rows.map((x) => x.result));
+    let alarms = 0;
+    for (const x of rows) for (const c of x.result.conditionChanges) if (c.active && c.kind !== 'analyzer') alarms++;
+    const labResiduals: number[] = [];
+    if (model.pls) {
+      const pred = new Map<number, number>();
+      for (const x of rows) if (x.result.prediction && Number.isFinite(x.result.prediction.value)) pred.set(x.idx, x.result.prediction.value);
+      for (const l of effectiveLab(await this.ctx.storage.listLabValues(batch.id), model.pls.name)) {
+        const p = pred.get(l.idx);
+        if (p !== undefined) labResiduals.push(p - l.value);
+      }
+    }
+    const out: HealthBatch = { id: batch.id, startT: batch.startT, ...f, alarms, labResiduals };
+    // Lab values may still be attached to an ended batch: keep figures only once the batch has some, or has no property to compare.
+    if (!model.pls || labResiduals.length) this.figures.set(`${model.id}\u0000${batch.id}`, out);
+    return out;
+  }
+
+  /** Batch-mean scores of the version's reference batches, replayed once per version through its own monitor. */
+  private referenceMeanScores(row: ModelVersionRow, model: MonitoringModel): Promise<number[][]> {
+    let p = this.refScores.get(row.id);
+    if (!p) {
+      p = (async () => {
+        const out: number[][] = [];
+        for (const id of row.referenceBatches) {
+          const b = await this.ctx.storage.getBatch(id);
+          if (!b || b.axis.length !== model.chain.inputAxis.length) continue;
+          const mon = createBatchMonitor(model, b.startT);
+          const results: MonitorResult[] = [];
+          for await (const sp of this.ctx.storage.iterateSpectra(id)) results.push(mon.push(sp.seq, sp.t, sp.values));
+          const f = healthBatchFigures(results);
+          if (f.spectra) out.push(f.meanScores);
+        }
+        return out;
+      })();
+      this.refScores.set(row.id, p);
+      p.catch(() => this.refScores.delete(row.id));
+    }
+    return p;
+  }
+
+  async health(row: ModelVersionRow): Promise<ModelHealth> {
+    const model = (await this.ctx.ingest.loadModel(row.id)) as unknown as MonitoringModel | null;
+    if (!model) throw new Error(`model version ${row.id} cannot be read`);
+    const batches: HealthBatch[] = [];
+    for (const b of this.store.batchesJudgedBy(row.id)) batches.push(await this.batchFigures(b, model));
+    const evidence = await latestApprovalEvidence(this.ctx, row.id);
+    const review = this.store.review(row.id);
+    const units = (await this.ctx.storage.listDeployments({ active: true })).filter((d) => d.modelVersion === row.id).map((d) => d.unit).sort();
+    return modelHealth({
+      version: { id: row.id, name: row.name, version: row.version, confidence: model.limits.t2.confidence },
+      units,
+      batches,
+      approval: evidence ? { alarms: evidence.alarmedGood.reduce((a, b) => a + b.alarms, 0), heldOut: evidence.heldOutGood.length } : null,
+      referenceMeanScores: await this.referenceMeanScores(row, model),
+      property: model.pls ? { name: model.pls.name, unit: model.pls.unit } : null,
+      review: { dueAt: review?.dueAt ?? null, intervalDays: review?.intervalDays ?? null },
+      now: this.ctx.now(),
+    });
+  }
+
+  /** Health of the version deployed on a unit: metrics and the unit's health alarm. Serialised. */
+  refreshUnit(unit: string): Promise<void> {
+    const next = this.refreshing.then(() => this.refreshNow(unit)).catch((e) => this.ctx.log.error(`model health of unit ${unit} failed`, e));
+    this.refreshing = next;
+    return next;
+  }
+
+  private async refreshNow(unit: string): Promise<void> {
+    const ref = this.ctx.ingest.deploymentRef(unit);
+    if (!ref) {
+      await this.ctx.ingest.setModelHealth(unit, false, `no version deployed on ${unit}: no model health to judge`, 0, 0);
+      return;
+    }
+    const row = await this.ctx.storage.getModelVersion(ref.versionId);
+    if (!row) return;
+    const h = await this.health(row);
+    const labels = { unit, model: row.name, version: String(row.version) };
+    const failed = h.tests.filter((t) => t.failed);
+    this.gauges.failed.set(labels, failed.length);
+    if (h.t2) this.gauges.t2Rate.set(labels, h.t2.rate);
+    if (h.q) this.gauges.qRate.set(labels, h.q.rate);
+    this.gauges.nominal.set(labels, 1 - row.confidence);
+    this.gauges.alarms.set(labels, h.alarms.perBatch);
+    if (h.alarms.expectedPerBatch !== null) this.gauges.expected.set(labels, h.alarms.expectedPerBatch);
+    if (h.drift?.charts.length) {
+      const last = (c: { ewma: number[]; limit: number[] }) => (c.ewma.length ? Math.abs(c.ewma[c.ewma.length - 1]!) / c.limit[c.limit.length - 1]! : 0);
+      this.gauges.drift.set(labels, Math.max(...h.drift.charts.map(last)));
+    }
+    if (h.review.dueAt !== null) this.gauges.review.set(labels, (h.review.dueAt - this.ctx.now()) / 1000);
+    const what = `${row.name} v${row.version} on ${unit}`;
+    const message = failed.length
+      ? `model health of ${what}: ${failed.map((t) => t.text).join(' ')} Review the version (Model bench); Tideline advises, the site's procedures decide.`
+      : `model health of ${what}: every test passes again`;
+    // The message changes with the figures every batch: the alarm is rewritten only when the failing tests change.
+    await this.ctx.ingest.setModelHealth(unit, failed.length > 0, failed.length ? `model health of ${what}: ${failed.map((t) => t.code).join(', ')} — ${message.slice(message.indexOf(': ') + 2)}` : message, failed.length, 0);
+  }
+
+  /** Resolves when the refreshes asked for so far are done. */
+  drain(): Promise<void> {
+    return this.refreshing;
+  }
+
+  /** Set the periodic-review due date of a version (synchronously: inside the approval's signature transaction). */
+  setReview(versionId: string, intervalDays: number, at: number, by: string): number {
+    const due = at + intervalDays * DAY_MS;
+    this.store.setReview(versionId, intervalDays, due, at, by);
+    return due;
+  }
+}
+
+const instances = new WeakMap<ServerContext, ModelLife>();
+
+export function modelLifeOf(ctx: ServerContext): ModelLife {
+  let m = instances.get(ctx);
+  if (!m) instances.set(ctx, (m = new ModelLife(ctx)));
+  return m;
+}
