@@ -86,6 +86,8 @@ interface PostCommit {
   acks: Map<StreamState, number>;
   latencies: number[];
   spectra: number;
+  /** Callers waiting for this commit (an operator's alarm change): settled when it is durable or failed. */
+  waiters: { resolve: () => void; reject: (e: unknown) => void }[];
 }
 
 export class IngestPipeline {
@@ -881,7 +883,6 @@ export class IngestPipeline {
     c: { kind: AlarmKind; key: string; active: boolean; message: string; value: number | null; limit: number | null; priority: AlarmPriority; spectrumT?: number | null },
     seq: number | null,
     now: number,
-    direct = false,
   ): Alarm | null {
     const k = alarmKey(unit, batch, c.key);
     const id = this.alarmIdByKey.get(k);
@@ -922,19 +923,9 @@ export class IngestPipeline {
     Object.assign(next, this.alarmActivity(next.id, now));
     this.indexAlarm(next);
     const row = this.outboxRow(unit, 'alarm', { alarm: next, previousState: prevState });
-    if (direct) {
-      void this.storage
-        .saveAlarm(next, row)
-        .then(() => {
-          this.events.emit('outbox', [row]);
-          this.events.emit('alarm', { alarm: next, previousState: prevState });
-        })
-        .catch((e) => this.log.error('saving an alarm failed', e));
-    } else {
-      this.uow.alarms.push(next);
-      this.uow.outbox.push(row);
-      this.post.events.push(['alarm', { alarm: next, previousState: prevState }]);
-    }
+    this.uow.alarms.push(next);
+    this.uow.outbox.push(row);
+    this.post.events.push(['alarm', { alarm: next, previousState: prevState }]);
     this.updateAlarmGauge();
     return next;
   }
@@ -1058,19 +1049,23 @@ export class IngestPipeline {
     return next;
   }
 
+  /**
+   * An operator's change (acknowledge, shelve, unshelve, shelve expiry) commits with the group commit,
+   * never beside it: outbox rows of a unit are numbered from one counter, so committing one row
+   * ahead of the rows numbered before it would let a dispatcher move its cursor past rows that are
+   * not yet committed, and those would never be delivered. Resolves once the change is durable.
+   */
   private async saveAlarmChange(cur: Alarm, next: Alarm) {
     const row = this.outboxRow(next.unit, 'alarm', { alarm: next, previousState: cur.state });
-    try {
-      await this.storage.saveAlarm(next, row);
-    } catch (e) {
-      this.outboxSeq.set(next.unit, row.unitSeq - 1);
-      throw e;
-    }
     this.indexAlarm(next);
     this.updateAlarmGauge();
-    this.events.emit('outbox', [row]);
-    this.events.emit('alarm', { alarm: next, previousState: cur.state });
-    this.events.emit('unit-changed', next.unit);
+    this.uow.alarms.push(next);
+    this.uow.outbox.push(row);
+    this.post.events.push(['alarm', { alarm: next, previousState: cur.state }]);
+    this.post.events.push(['unit-changed', next.unit]);
+    const durable = new Promise<void>((resolve, reject) => this.post.waiters.push({ resolve, reject }));
+    void this.flush().catch(() => undefined);
+    await durable;
   }
 
   private updateAlarmGauge() {
@@ -1093,8 +1088,9 @@ export class IngestPipeline {
         this.applyCondition(ob.unit, ob.id, {
           kind: 'stale', key: 'stale', active: true, priority: 2, value: silentS, limit: this.config.ingest.staleAfterMs / 1000,
           message: `no data from analyzer ${ob.analyzer} for ${silentS.toFixed(0)} s during batch ${ob.id} (limit ${(this.config.ingest.staleAfterMs / 1000).toFixed(0)} s)`,
-        }, null, now, true);
-        this.events.emit('unit-changed', ob.unit);
+        }, null, now);
+        this.post.events.push(['unit-changed', ob.unit]);
+        this.schedule();
       }
     }
     for (const a of [...this.alarmsById.values()]) {
@@ -1166,6 +1162,7 @@ export class IngestPipeline {
     } catch (e) {
       this.log.error(`group commit of ${entries} entries failed; dropping their connections and reloading state from storage`, e);
       await this.recover();
+      for (const w of post.waiters) w.reject(e);
       return;
     }
     const t1 = performance.now();
@@ -1182,6 +1179,7 @@ export class IngestPipeline {
     for (const [name, payload] of post.events) this.events.emit(name, payload);
     for (const ob of touched) this.events.emit('unit-changed', ob.unit);
     for (const a of post.audits) this.recordAudit(a);
+    for (const w of post.waiters) w.resolve();
   }
 
   private recordAudit(a: AuditEntry) {
@@ -1246,7 +1244,7 @@ export class AlarmRequestError extends Error {
 }
 
 function newPost(): PostCommit {
-  return { events: [], audits: [], acks: new Map(), latencies: [], spectra: 0 };
+  return { events: [], audits: [], acks: new Map(), latencies: [], spectra: 0, waiters: [] };
 }
 
 /** Key prefix of the unit alarm raised while an analyzer reports NE 107 failure (analyzer-failure:<analyzer>). */
