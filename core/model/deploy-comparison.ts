@@ -30,6 +30,13 @@ function guardText(m: ComparableModel): string {
   return `${on.length ? `held for ${on.join(' and ')}` : 'no alarm or calibration hold'}; hysteresis ${r.hysteresis ?? 3} spectra`;
 }
 
+/** The progress axis and whether the batch's pace is judged on it. */
+function progressText(m: ComparableModel): string {
+  const p = m.settings.progress;
+  const axis = p.kind === 'time' ? 'elapsed time' : p.source === 'property' ? 'the predicted property' : 'the PC1 score';
+  return `${axis}; pace ${m.settings.alarms.pace === true && p.kind === 'indicator' ? 'judged' : 'not judged'}`;
+}
+
 function propertyText(m: ComparableModel): string | null {
   const p = propertyModelView(m);
   if (!p) return null;
@@ -61,6 +68,7 @@ export function compareDeployment(current: { ref: ModelRef; model: ComparableMod
   diff('endpoint rule', ruleText(a), ruleText(b));
   diff('endpoint guards', guardText(a), guardText(b));
   diff('property model', propertyText(a), propertyText(b));
+  diff('progress', progressText(a), progressText(b));
   diff('components', String(a.pca.nComponents), String(b.pca.nComponents));
   diff('limit confidence', `${num(a.limits.t2.confidence * 100)} %`, `${num(b.limits.t2.confidence * 100)} %`);
   diff('T² limit', `${num(a.limits.t2.value)} (${limitMethodName(a.limits.t2.method)})`, `${num(b.limits.t2.value)} (${limitMethodName(b.limits.t2.method)})`);
@@ -85,6 +93,7 @@ export function compareDeployment(current: { ref: ModelRef; model: ComparableMod
   const holdOff = (key: 'alarms' | 'extrapolation') => a.endpoint.criteria.length > 0 && b.endpoint.criteria.length > 0 && (a.endpoint.hold?.[key] ?? true) && !(b.endpoint.hold?.[key] ?? true);
   if (holdOff('alarms')) warnings.push(`${next.ref.name} v${next.ref.version} switches off the alarm guard: its endpoint may be called done while a confirmed T², Q or envelope alarm stands.`);
   if (holdOff('extrapolation') && hasPropertyEndpoint(b)) warnings.push(`${next.ref.name} v${next.ref.version} switches off the calibration guard: its endpoint may be called done on a prediction outside its calibration.`);
+  if (progressText(a).endsWith('pace judged') && !progressText(b).endsWith('pace judged')) warnings.push(`${next.ref.name} v${next.ref.version} does not judge the batch's pace: a slowly drying or stalled batch that stays inside its envelope is no longer flagged.`);
   if (a.pca.nComponents !== b.pca.nComponents) warnings.push(`The number of components changes from ${a.pca.nComponents} to ${b.pca.nComponents}: the Floor and Watch score charts change with it.`);
   return { replaces: current.ref, changes, warnings, dropsEndpointProperty };
 }
