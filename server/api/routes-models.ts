@@ -14,6 +14,7 @@ import { recordAudit, userOf } from './audit-helper.ts';
 import { parseMonitoringModel } from '../../core/model/monitoring-model.ts';
 import { earlyBatchesText } from '../../core/model/endpoint-check.ts';
 import { transferAuditAfter, transferVersion } from '../models/transfer-service.ts';
+import { historyJob, startHistoryJob } from '../models/history-jobs.ts';
 import { transferBlockingWarning } from '../../core/calibration-transfer/transfer-model.ts';
 import { DEFAULT_REVIEW_DAYS, modelLifeOf } from '../model-life/service.ts';
 
@@ -87,6 +88,32 @@ export function addModelRoutes(t: RouteTable, ctx: ServerContext) {
     summary: "The approval evidence of a version: its latest evaluation on held-out good batches (point rates beyond the T² and Q limits against nominal with exact binomial intervals, worst batch, alarmed good batches, endpoint reached n of m, early endpoint calls) and its warnings; null when it has not been evaluated",
     role: 'viewer', response: 'ApprovalEvidence',
     params: versionParams, handler: async ({ params }) => guard(async () => latestApprovalEvidence(ctx, (await load(params.version)).id)),
+  });
+  t.add({
+    method: 'post', path: '/models/history-pca',
+    summary: 'Start a plant-history decomposition: the PCA of hundreds of stored reference batches streamed from the database by worker threads (memory bounded by the wavelengths, not the spectra), cross-validated by groups of batches; answered at once with the job, whose progress GET shows',
+    role: 'model-owner', response: 'HistoryJobView', responseSource: 'server/models/history-jobs.ts', status: 202,
+    body: z.object({
+      referenceBatches: z.array(idSchema).min(2, 'choose at least 2 reference batches').max(5000),
+      components: z.number().int().min(1).max(50),
+      groups: z.number().int().min(0).max(50).optional(),
+      chain: z.array(z.record(z.string(), z.unknown())).max(20).optional(),
+    }).strict(),
+    handler: async ({ body, req }) =>
+      guard(async () => {
+        const job = await startHistoryJob(ctx, body, userOf(req));
+        await recordAudit(ctx, { user: userOf(req), action: 'model.history-pca', object: `history-pca:${job.job}`, after: { batches: body.referenceBatches.length, components: body.components, groups: job.groups } });
+        return job;
+      }),
+  });
+  t.add({
+    method: 'get', path: '/models/history-pca/:job', summary: 'A plant-history decomposition: its progress while it runs (pass, batches read of all, spectra), its eigenvalues, explained variance and PRESS when done', role: 'viewer',
+    response: 'HistoryJobView', responseSource: 'server/models/history-jobs.ts', params: z.object({ job: z.string().min(1).max(64) }),
+    handler: async ({ params }) => {
+      const j = historyJob(ctx, params.job);
+      if (!j) throw notFound(`plant-history job "${params.job}" is not known to this server (jobs are kept while it runs)`);
+      return j;
+    },
   });
   const transferSet = z.object({ old: idSchema, new: idSchema }).strict();
   t.add({

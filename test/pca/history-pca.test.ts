@@ -74,3 +74,57 @@ describe('plant-history PCA from storage', () => {
     await expect(historyPca({ file: join(dir, 'tideline.db'), batches: ['NOPE', 'H-000'], components: 2, groups: 2 })).rejects.toThrow(/"NOPE" has no stored spectra/);
   });
 });
+
+describe('plant-history decomposition through REST', () => {
+  it('starts a job, shows its progress, and gives the eigenvalues of the stored spectra', async () => {
+    const { login, startTestServer } = await import('../server/helpers.ts');
+    const { fitPca } = await import('../../core/pca/fit-pca.ts');
+    const { matrixFromRows } = await import('../../core/linalg/dense-matrix.ts');
+    const ts = await startTestServer({}, { units: ['fbd-1'] });
+    try {
+      const owner = await login(ts, 'model-owner');
+      const p = 64;
+      const per = 40;
+      const axis = Float64Array.from({ length: p }, (_, j) => 1100 + 4 * j);
+      const ids = Array.from({ length: 9 }, (_, b) => `R-${b}`);
+      const X = syntheticSpectra(ids.length * per, p, 9);
+      const files = ids.map((id, b) => ({
+        name: `${id}.csv`,
+        content: writeBatchCsv([{ id, axis, times: Array.from({ length: per }, (_, i) => Date.UTC(2026, 2, 1 + b) + 30_000 * i), spectra: Array.from({ length: per }, (_, i) => Float32Array.from(X.data.subarray((b * per + i) * p, (b * per + i + 1) * p))), properties: {} }]),
+      }));
+      expect((await owner.post('/api/import', { unit: 'fbd-1', product: 'P', files })).status).toBe(201);
+      const bad = await owner.post('/api/models/history-pca', { referenceBatches: ['R-0', 'NOPE'], components: 3 });
+      expect(bad.status).toBe(404);
+      expect(bad.body.detail).toContain('"NOPE"');
+      const r = await owner.post('/api/models/history-pca', { referenceBatches: ids, components: 3, groups: 3, chain: [{ step: 'snv' }] });
+      expect(r.status, JSON.stringify(r.body)).toBe(202);
+      expect(r.body).toMatchObject({ status: 'running', batches: 9, components: 3, groups: 3 });
+      let j = r.body;
+      const seen = new Set<string>();
+      for (let k = 0; k < 600 && j.status === 'running'; k++) {
+        await new Promise((res) => setTimeout(res, 200));
+        j = (await owner.get(`/api/models/history-pca/${j.job}`)).body;
+        if (j.progress) seen.add(`${j.progress.pass}:${j.progress.batches}`);
+      }
+      expect(j.status, j.error).toBe('done');
+      expect(j.progress).toEqual({ pass: 'cross-validation', batches: 9, of: 9, spectra: 9 * per });
+      expect(j.result).toMatchObject({ spectra: 9 * per, variables: p, leastPress: expect.any(Number) });
+      expect(j.result.chain).toMatch(/^snv, learned state fitted on \d+ spectra/);
+      // The same spectra through SNV, in memory: the same eigenvalues.
+      const rows: Float64Array[] = [];
+      for (const id of ids) {
+        const s = (await owner.get(`/api/batches/${id}/spectra?limit=1000`)).body as { items: { values: number[] }[] };
+        for (const it of s.items) {
+          const v = Float64Array.from(it.values);
+          const m = v.reduce((a, b) => a + b, 0) / p;
+          const sd = Math.sqrt(v.reduce((a, b) => a + (b - m) ** 2, 0) / (p - 1));
+          rows.push(v.map((x) => (x - m) / sd));
+        }
+      }
+      const full = fitPca(matrixFromRows(rows), { components: 3 });
+      for (let a = 0; a < 3; a++) expect(Math.abs(j.result.eigenvalues[a] / full.eigenvalues[a]! - 1)).toBeLessThan(1e-6);
+    } finally {
+      await ts.stop();
+    }
+  }, 180_000);
+});
