@@ -137,7 +137,7 @@ async function setUpLine(s: TidelineServer, line: Line, url: string, api: DemoSe
     ctx.ingest.addUnit(row);
   }
   if (!(await ctx.storage.getAnalyzer(line.analyzer))) await ctx.storage.createAnalyzer({ id: line.analyzer, name: `${line.kind} NIR probe`, createdAt: ctx.now() });
-  const { token } = ctx.auth!.createAnalyzerToken(line.analyzer, `demo ${new Date().toISOString()}`, 'demo');
+  const { token } = await ctx.auth!.createAnalyzerToken(line.analyzer, `demo ${new Date().toISOString()}`, 'demo');
   const refs = simulateReferenceSet(line.kind, line.refCount, line.refSeed, { unit: line.unit, product: line.product });
   const client = new AnalyzerClient({ url, token, analyzer: line.analyzer, axis: refs[0]!.axis, instrument: `simulated ${line.kind} NIR analyzer (demo)`, processClockStart, log: (l) => log(`  ${line.analyzer}: ${l}`) });
   await client.start();

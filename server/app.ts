@@ -90,7 +90,7 @@ export async function startServer(config: ServerConfig, opts: StartOptions = {})
   // A broken audit trail does not stop monitoring (the plant needs it), but it is said at every
   // start, naming the database and the first broken record.
   if (ctx.audit) {
-    const v = ctx.audit.verify();
+    const v = await ctx.audit.verify();
     if (!v.ok) {
       log.error(
         `the audit trail in ${opts.dbFile ?? join(config.dataDir, 'tideline.db')} is BROKEN at record ${v.brokenSeq}: ${v.problem}. ` +
@@ -98,8 +98,10 @@ export async function startServer(config: ServerConfig, opts: StartOptions = {})
       );
     }
   }
-  // alarm actions the server takes itself (suppression by state) go to the same audit trail
-  pipeline.audit = ctx.audit ?? null;
+  // alarm actions the server takes itself (suppression by state) go to the same audit trail; the
+  // pipeline records them after its commit and does not wait, so a failure is logged here
+  const audit = ctx.audit;
+  pipeline.audit = audit ? { record: (e) => void audit.record(e).catch((err: Error) => log.error(`audit record ${e.action} ${e.object} failed`, err)) } : null;
   for (const part of ['signals', 'transfer', 'model-life']) {
     const file = join(here, part, 'index.ts');
     if (!existsSync(file)) continue;

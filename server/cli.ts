@@ -22,7 +22,7 @@ import { SqliteStorage } from './storage/sqlite-storage.ts';
 import { createAnalyzerToken } from './ingest/analyzer-tokens.ts';
 import { ANALYZER_ID_RE } from './auth/analyzer-tokens.ts';
 import { StartupError } from './startup-error.ts';
-import { SqliteAuditTrail } from './audit/audit-trail.ts';
+import { ChainedAuditTrail } from './audit/audit-trail.ts';
 import { idProblem, textProblem } from '../core/io/names.ts';
 
 /** Exit codes: 0 done; 1 a check failed (audit verify); 2 usage, configuration or start-up error; 3 import refused. */
@@ -168,7 +168,7 @@ async function main(argv: string[]): Promise<number> {
     const config = loadConfig({ env: process.env, flags: own });
     const storage = new SqliteStorage({ file: join(config.dataDir, 'tideline.db') });
     try {
-      return await sec.runSecurityCli(rest, { db: storage.db, config });
+      return await sec.runSecurityCli(rest, { storage, config });
     } finally {
       await storage.close();
     }
@@ -208,7 +208,7 @@ async function main(argv: string[]): Promise<number> {
     const storage = new SqliteStorage({ file: dbFile });
     try {
       const { runTransferCli } = await import('./transfer/cli.ts');
-      const audit = new SqliteAuditTrail(storage.db);
+      const audit = new ChainedAuditTrail(storage);
       return await runTransferCli(cmd, positional, own, storage, (s) => process.stdout.write(s), { audit, actor: cliActor() });
     } finally {
       await storage.close();
@@ -285,20 +285,20 @@ async function main(argv: string[]): Promise<number> {
       if (cmd === 'unit' && !['dryer', 'reactor', 'other'].includes(kind)) throw new UsageError(`unit add: --kind must be dryer, reactor or other, got "${kind}"`);
       const st = new SqliteStorage({ file: dbFile });
       try {
-        const audit = new SqliteAuditTrail(st.db);
+        const audit = new ChainedAuditTrail(st);
         const actor = cliActor();
         if (cmd === 'unit') {
           if (await st.getUnit(id)) throw new UsageError(`unit "${id}" already exists`);
           const row = { id, name: own.name ?? id, kind: kind as 'dryer' | 'reactor' | 'other', description: '', createdAt: Date.now() };
           await st.createUnit(row);
           // Audited as its REST equivalent is (unit.create), by the operating-system user.
-          audit.record({ user: actor, action: 'unit.create', object: `unit:${id}`, after: row });
+          await audit.record({ user: actor, action: 'unit.create', object: `unit:${id}`, after: row });
           process.stdout.write(`unit ${id} created (a running server picks it up within a few seconds)\n`);
         } else {
           if (await st.getAnalyzer(id)) throw new UsageError(`analyzer "${id}" already exists; issue another token with: token add ${id}`);
           await st.createAnalyzer({ id, name: own.name ?? id, createdAt: Date.now() });
           const token = await createAnalyzerToken(st, id, Date.now());
-          audit.record({ user: actor, action: 'analyzer.create', object: `analyzer:${id}`, after: { id, name: own.name ?? id, tokenIssued: true } });
+          await audit.record({ user: actor, action: 'analyzer.create', object: `analyzer:${id}`, after: { id, name: own.name ?? id, tokenIssued: true } });
           process.stdout.write(`analyzer ${id} created; its token (shown once, store it in the analyzer's configuration):\n${token}\n`);
         }
       } finally {

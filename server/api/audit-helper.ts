@@ -11,7 +11,7 @@ export async function recordAudit(
   e: { user: string; action: string; object: string; before?: unknown; after?: unknown; reason?: string | null },
 ): Promise<void> {
   if (ctx.audit) {
-    ctx.audit.record({ user: e.user, action: e.action, object: e.object, before: e.before, after: e.after, reason: e.reason ?? null });
+    await ctx.audit.record({ user: e.user, action: e.action, object: e.object, before: e.before, after: e.after, reason: e.reason ?? null });
     return;
   }
   await ctx.storage.appendAudit({ at: ctx.now(), user: e.user, action: e.action, object: e.object, before: e.before, after: e.after, reason: e.reason ?? undefined });

@@ -6,7 +6,6 @@ import { SignatureError } from '../auth/types.ts';
 import { ModelRequestError, buildFromStored, envelopeView, evaluateVersion, latestApprovalEvidence, referencesView, versionDetail } from '../models/model-service.ts';
 import { HttpProblem, conflict, notFound } from './problem.ts';
 import type { RouteTable } from './route-table.ts';
-import type { SqliteStorage } from '../storage/sqlite-storage.ts';
 import { modelVersionSummary } from './views.ts';
 import { idSchema } from './routes-plant.ts';
 import { nameSchema } from '../../core/io/names.ts';
@@ -188,10 +187,10 @@ export function addModelRoutes(t: RouteTable, ctx: ServerContext) {
         const at = ctx.now();
         const review = { intervalDays: reviewDays, dueAt: new Date(at + reviewDays * 86_400_000).toISOString() };
         if (ctx.auth && req.user) {
-          await ctx.auth.sign({ user: req.user, password: body.password ?? '', meaning: 'approved', objectType: 'model', objectId: m.id, objectHash: m.sha256, reason: body.reason, ...(signedOverride !== undefined ? { override: signedOverride } : {}), evidence: { ...evidenceSummary, review }, address: req.ip }, () => {
-            // Synchronous inside the signature's transaction: if the version is no longer a draft, the throw rolls the signature back too.
+          await ctx.auth.sign({ user: req.user, password: body.password ?? '', meaning: 'approved', objectType: 'model', objectId: m.id, objectHash: m.sha256, reason: body.reason, ...(signedOverride !== undefined ? { override: signedOverride } : {}), evidence: { ...evidenceSummary, review }, address: req.ip }, async (_sig, uow) => {
+            // In the signature's unit of work: if the version is no longer a draft, the throw rolls the signature and its audit record back too.
             try {
-              (ctx.storage as unknown as SqliteStorage).approveModelVersionSync(m.id, by, at, body.reason);
+              await uow.models.approve(m.id, by, at, body.reason);
             } catch {
               throw conflict(`model version ${m.name} v${m.version} stopped being a draft while it was being signed; nothing was signed or changed`);
             }
@@ -215,9 +214,9 @@ export function addModelRoutes(t: RouteTable, ctx: ServerContext) {
         const units = (await ctx.storage.listDeployments({ active: true })).filter((d) => d.modelVersion === m.id).map((d) => d.unit);
         const by = userOf(req);
         if (ctx.auth && req.user) {
-          await ctx.auth.sign({ user: req.user, password: body.password ?? '', meaning: 'retired', objectType: 'model', objectId: m.id, objectHash: m.sha256, reason: body.reason, address: req.ip }, () => {
+          await ctx.auth.sign({ user: req.user, password: body.password ?? '', meaning: 'retired', objectType: 'model', objectId: m.id, objectHash: m.sha256, reason: body.reason, address: req.ip }, async (_sig, uow) => {
             try {
-              (ctx.storage as unknown as SqliteStorage).retireModelVersionSync(m.id, by, ctx.now(), body.reason);
+              await uow.models.retire(m.id, by, ctx.now(), body.reason);
             } catch {
               throw conflict(`model version ${m.name} v${m.version} was retired by someone else while it was being signed; nothing was signed or changed`);
             }

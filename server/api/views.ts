@@ -76,7 +76,7 @@ export async function modelVersionSummary(storage: Storage, m: ModelVersionRow):
     approvedAt: m.approvedAt, approvedBy: m.approvedBy, approvalReason: m.approvalReason, retiredAt: m.retiredAt,
     retiredBy: m.retiredBy, retireReason: m.retireReason, referenceBatches: m.referenceBatches, components: m.components,
     confidence: m.confidence, deployedTo: deps.filter((d) => d.modelVersion === m.id).map((d) => d.unit),
-    signatures: modelSignatures(storage.db, m.id),
+    signatures: await modelSignatures(storage.signatures, m.id),
   };
 }
 

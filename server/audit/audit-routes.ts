@@ -15,8 +15,8 @@ import type { Auth } from '../auth/types.ts';
 import { RouteTable } from '../api/route-table.ts';
 import { authValidate } from '../auth/auth-routes.ts';
 import { HttpError, problemErrorHandler } from '../auth/http-problem.ts';
-import { AuditInputError, MAX_LIST, formatAnchor, parseAnchors, type SqliteAuditTrail } from './audit-trail.ts';
-import type { AuditFilter, AuditRecord } from './types.ts';
+import { AuditInputError, MAX_LIST, formatAnchor, parseAnchors } from './audit-trail.ts';
+import type { AuditFilter, AuditRecord, AuditTrail } from './types.ts';
 
 /** Answer of GET /api/audit. */
 export interface AuditPage {
@@ -52,9 +52,9 @@ function toFilter(q: z.infer<typeof filterQuery>): AuditFilter {
   };
 }
 
-function guard<T>(fn: () => T): T {
+async function guard<T>(fn: () => Promise<T>): Promise<T> {
   try {
-    return fn();
+    return await fn();
   } catch (e) {
     if (e instanceof AuditInputError) throw new HttpError(400, 'validation', 'Invalid request', e.message);
     throw e;
@@ -62,7 +62,7 @@ function guard<T>(fn: () => T): T {
 }
 
 /** The /api/audit routes as a table (paths relative to /api/audit). */
-export function auditRoutes(trail: SqliteAuditTrail, now: () => number): RouteTable {
+export function auditRoutes(trail: AuditTrail, now: () => number): RouteTable {
   const t = new RouteTable({ validate: authValidate });
 
   t.add({
@@ -70,8 +70,8 @@ export function auditRoutes(trail: SqliteAuditTrail, now: () => number): RouteTa
     response: 'AuditPage', responseSource: 'server/audit/audit-routes.ts',
     handler: async ({ query }): Promise<AuditPage> => {
       const f = toFilter(query);
-      const items = guard(() => trail.list(f));
-      const total = guard(() => trail.count({ ...f, afterSeq: undefined }));
+      const items = await guard(() => trail.list(f));
+      const total = await guard(() => trail.count({ ...f, afterSeq: undefined }));
       return { items, total, limit: f.limit ?? 200 };
     },
   });
@@ -82,9 +82,9 @@ export function auditRoutes(trail: SqliteAuditTrail, now: () => number): RouteTa
     response: 'AuditVerifyResult', responseSource: 'server/audit/types.ts',
     handler: async ({ query }) => {
       const given = query.anchor === undefined ? [] : Array.isArray(query.anchor) ? query.anchor : [query.anchor];
-      const anchors = guard(() => given.flatMap((a) => parseAnchors(a, 'anchor')));
-      const v = trail.verify(anchors);
-      const head = v.ok ? trail.anchor() : null;
+      const anchors = await guard(async () => given.flatMap((a) => parseAnchors(a, 'anchor')));
+      const v = await trail.verify(anchors);
+      const head = v.ok ? await trail.anchor() : null;
       return head ? { ...v, anchor: formatAnchor(head) } : v;
     },
   });
@@ -96,11 +96,11 @@ export function auditRoutes(trail: SqliteAuditTrail, now: () => number): RouteTa
       const f = { ...toFilter(query), limit: undefined, descending: false };
       const stamp = new Date(now()).toISOString().replace(/[:.]/g, '-');
       if ((query.format ?? 'json') === 'csv') {
-        const text = guard(() => trail.exportCsv(f));
+        const text = await guard(() => trail.exportCsv(f));
         res.setHeader('Content-Disposition', `attachment; filename="tideline-audit-${stamp}.csv"`);
         res.type('text/csv; charset=utf-8').send(text);
       } else {
-        const text = guard(() => trail.exportJson(f));
+        const text = await guard(() => trail.exportJson(f));
         res.setHeader('Content-Disposition', `attachment; filename="tideline-audit-${stamp}.json"`);
         res.type('application/json; charset=utf-8').send(text);
       }
@@ -111,7 +111,7 @@ export function auditRoutes(trail: SqliteAuditTrail, now: () => number): RouteTa
   return t;
 }
 
-export function auditRouter(trail: SqliteAuditTrail, auth: Auth, now: () => number, table: RouteTable = auditRoutes(trail, now)): Router {
+export function auditRouter(trail: AuditTrail, auth: Auth, now: () => number, table: RouteTable = auditRoutes(trail, now)): Router {
   const r = express.Router();
   table.mount(r, (role) => auth.requireRole(role));
   r.use(problemErrorHandler('16 KiB'));

@@ -1,8 +1,9 @@
 /**
- * SQLite audit trail: append-only, hash-chained (see record-hash.ts), UTC times.
- * Tables from server/storage/migrations/200-audit-trail.sql.
+ * The audit trail: append-only, hash-chained (see record-hash.ts), UTC times. It seals records
+ * and checks the chain; the records are stored behind the storage seam (server/storage
+ * repositories.ts AuditRepository; SQLite: sqlite-audit.ts).
  */
-import type Database from 'better-sqlite3';
+import type { AuditQuery, AuditRepository, UnitOfWork, UnitOfWorkRunner } from '../storage/repositories.ts';
 import { canonicalJson } from './canonical-json.ts';
 import { GENESIS_HASH, recordHash } from './record-hash.ts';
 import { auditToCsv, auditToJson } from './audit-export.ts';
@@ -16,19 +17,6 @@ import {
   type AuditTrail,
   type AuditVerifyResult,
 } from './types.ts';
-
-interface Row {
-  seq: number;
-  at: string;
-  user: string;
-  action: string;
-  object: string;
-  before: string | null;
-  after: string | null;
-  reason: string | null;
-  prev_hash: string;
-  hash: string;
-}
 
 const ACTION_RE = /^[a-z0-9][a-z0-9._-]*$/;
 export const MAX_LIST = 10_000;
@@ -47,21 +35,6 @@ function actorName(u: AuditActor | null | undefined): string {
   throw new AuditInputError('audit record: user must be a name or an object with a name');
 }
 
-function fromRow(r: Row): AuditRecord {
-  return {
-    seq: r.seq,
-    at: r.at,
-    user: r.user,
-    action: r.action,
-    object: r.object,
-    before: r.before,
-    after: r.after,
-    reason: r.reason,
-    prevHash: r.prev_hash,
-    hash: r.hash,
-  };
-}
-
 /** ISO string or ms epoch → ISO string comparable with the stored `at`. */
 export function toIsoTime(t: string | number, what: string): string {
   const ms = typeof t === 'number' ? t : /^\d+$/.test(t) ? Number(t) : Date.parse(t);
@@ -69,101 +42,91 @@ export function toIsoTime(t: string | number, what: string): string {
   return new Date(ms).toISOString();
 }
 
-export interface SqliteAuditTrailOptions {
+export interface ChainedAuditTrailOptions {
   /** Clock (ms epoch); default Date.now. */
   now?: () => number;
+  /**
+   * How many users the storage holds (every user's creation is audited): an empty trail beside
+   * users means the records were deleted with the head, not never written. Absent: not checked.
+   */
+  countUsers?: () => Promise<number>;
 }
 
-export class SqliteAuditTrail implements AuditTrail {
+/** Where the trail is stored: its repository, and units of work to append in. */
+export interface AuditStorage extends UnitOfWorkRunner {
+  readonly audit: AuditRepository;
+}
+
+export class ChainedAuditTrail implements AuditTrail {
   private readonly now: () => number;
-  private readonly lastStmt;
-  private readonly insertStmt;
-  private readonly headStmt;
-  private readonly readHeadStmt;
-  private readonly append: Database.Transaction<(e: AuditEntry) => AuditRecord>;
+  private readonly countUsers: (() => Promise<number>) | null;
 
   constructor(
-    readonly db: Database.Database,
-    opts: SqliteAuditTrailOptions = {},
+    private readonly storage: AuditStorage,
+    opts: ChainedAuditTrailOptions = {},
   ) {
     this.now = opts.now ?? Date.now;
-    this.lastStmt = db.prepare('SELECT seq, hash FROM audit_trail ORDER BY seq DESC LIMIT 1');
-    this.insertStmt = db.prepare(
-      'INSERT INTO audit_trail (seq, at, user, action, object, before, after, reason, prev_hash, hash) VALUES (?,?,?,?,?,?,?,?,?,?)',
-    );
-    this.headStmt = db.prepare(
-      'INSERT INTO audit_head (id, seq, hash) VALUES (1, ?, ?) ON CONFLICT(id) DO UPDATE SET seq = excluded.seq, hash = excluded.hash',
-    );
-    this.readHeadStmt = db.prepare('SELECT seq, hash FROM audit_head WHERE id = 1');
-    this.append = db.transaction((e: AuditEntry) => this.appendInTx(e));
+    this.countUsers = opts.countUsers ?? null;
   }
 
-  record(entry: AuditEntry): AuditRecord {
-    // On its own: BEGIN IMMEDIATE, so a second process (the CLI beside the server) waits for the
-    // write lock instead of reading the same chain head. Inside the caller's transaction: a savepoint.
-    return this.db.inTransaction ? this.append(entry) : this.append.immediate(entry);
+  record(entry: AuditEntry, uow?: UnitOfWork): Promise<AuditRecord> {
+    let checked: ReturnType<typeof check>;
+    try {
+      checked = check(entry);
+    } catch (e) {
+      return Promise.reject(e);
+    }
+    // The chain head is read and moved under the unit's write lock, so a second process (the CLI
+    // beside the server) waits instead of reading the same head.
+    return uow ? this.append(checked, uow) : this.storage.unitOfWork((u) => this.append(checked, u));
   }
 
-  private appendInTx(e: AuditEntry): AuditRecord {
-    const user = actorName(e.user);
-    if (typeof e.action !== 'string' || !ACTION_RE.test(e.action) || e.action.length > 200)
-      throw new AuditInputError(`audit record: action must be dotted lower-case words (a-z 0-9 . _ -), got ${JSON.stringify(e.action)}`);
-    if (typeof e.object !== 'string' || e.object.length === 0 || e.object.length > 500)
-      throw new AuditInputError('audit record: object must be a non-empty string of at most 500 characters');
-    if (user.length > 200) throw new AuditInputError('audit record: user name longer than 200 characters');
-    if (e.reason !== undefined && e.reason !== null && typeof e.reason !== 'string')
-      throw new AuditInputError('audit record: reason must be a string');
-    const reason = e.reason === undefined || e.reason === null || e.reason === '' ? null : e.reason;
-    if (reason !== null && reason.length > 4000) throw new AuditInputError('audit record: reason longer than 4000 characters');
-    const before = e.before === undefined ? null : canonicalJson(e.before);
-    const after = e.after === undefined ? null : canonicalJson(e.after);
-
-    const last = this.lastStmt.get() as { seq: number; hash: string } | undefined;
+  private async append(e: ReturnType<typeof check>, uow: UnitOfWork): Promise<AuditRecord> {
+    const last = await uow.audit.last();
     const seq = last ? last.seq + 1 : 1;
     const prevHash = last ? last.hash : GENESIS_HASH;
     const at = new Date(this.now()).toISOString();
-    const fields = { seq, at, user, action: e.action, object: e.object, before, after, reason, prevHash };
-    const hash = recordHash(fields);
-    this.insertStmt.run(seq, at, user, e.action, e.object, before, after, reason, prevHash, hash);
-    this.headStmt.run(seq, hash);
-    return { ...fields, hash };
+    const fields = { seq, at, ...e, prevHash };
+    const rec = { ...fields, hash: recordHash(fields) };
+    await uow.audit.append(rec);
+    return rec;
   }
 
-  anchor(): AuditAnchor | null {
-    const last = this.lastStmt.get() as { seq: number; hash: string } | undefined;
-    return last ? { seq: last.seq, hash: last.hash } : null;
+  async anchor(): Promise<AuditAnchor | null> {
+    return this.storage.audit.last();
   }
 
-  verify(anchors: AuditAnchor[] = []): AuditVerifyResult {
-    const chain = this.verifyChain();
-    if (!chain.ok) return chain;
-    // Anchors: each names a record and its hash as they were when the anchor was taken outside.
-    const byseq = this.db.prepare('SELECT hash FROM audit_trail WHERE seq = ?');
-    for (const a of [...anchors].sort((x, y) => x.seq - y.seq)) {
-      const r = byseq.get(a.seq) as { hash: string } | undefined;
-      if (!r) {
-        return {
-          ok: false,
-          count: chain.count,
-          brokenSeq: chain.count + 1,
-          problem: `the anchor ${formatAnchor(a)} names record ${a.seq}, but the trail ends at record ${chain.count}: records were removed from the end (and the head rewritten)`,
-        };
+  /** The chain, then the anchors, read in one unit of work so that the trail and its head are one state. */
+  async verify(anchors: AuditAnchor[] = []): Promise<AuditVerifyResult> {
+    const chain = await this.storage.unitOfWork(async (u) => {
+      const c = await verifyChain(u.audit);
+      if (!c.ok) return c;
+      // Anchors: each names a record and its hash as they were when the anchor was taken outside.
+      for (const a of [...anchors].sort((x, y) => x.seq - y.seq)) {
+        const hash = await u.audit.hashAt(a.seq);
+        if (hash === null) {
+          return {
+            ok: false as const,
+            count: c.count,
+            brokenSeq: c.count + 1,
+            problem: `the anchor ${formatAnchor(a)} names record ${a.seq}, but the trail ends at record ${c.count}: records were removed from the end (and the head rewritten)`,
+          };
+        }
+        if (hash !== a.hash) {
+          return {
+            ok: false as const,
+            count: c.count,
+            brokenSeq: a.seq,
+            problem: `record ${a.seq} has hash ${hash.slice(0, 12)}…, but the anchor ${formatAnchor(a)} says ${a.hash.slice(0, 12)}…: the chain was rewritten at or before record ${a.seq}`,
+          };
+        }
       }
-      if (r.hash !== a.hash) {
-        return {
-          ok: false,
-          count: chain.count,
-          brokenSeq: a.seq,
-          problem: `record ${a.seq} has hash ${r.hash.slice(0, 12)}…, but the anchor ${formatAnchor(a)} says ${a.hash.slice(0, 12)}…: the chain was rewritten at or before record ${a.seq}`,
-        };
-      }
-    }
-    if (chain.count === 0) {
+      return c;
+    });
+    if (chain.ok && chain.count === 0 && this.countUsers) {
       // An empty trail in a database that holds users: every user's creation is audited, so the
       // records were deleted (with the head) rather than never written.
-      const users = this.db.prepare("SELECT name FROM sqlite_master WHERE type = 'table' AND name = 'auth_users'").get()
-        ? (this.db.prepare('SELECT count(*) AS n FROM auth_users').get() as { n: number }).n
-        : 0;
+      const users = await this.countUsers();
       if (users > 0) {
         return { ok: false, count: 0, brokenSeq: 1, problem: `the trail is empty, but the database holds ${users} user(s) whose creation is audited: the records and the chain head were deleted` };
       }
@@ -171,125 +134,94 @@ export class SqliteAuditTrail implements AuditTrail {
     return chain;
   }
 
-  private verifyChain(): AuditVerifyResult {
-    const it = this.db.prepare('SELECT * FROM audit_trail ORDER BY seq').iterate() as IterableIterator<Row>;
-    let expected = 1;
-    let prevHash = GENESIS_HASH;
-    let count = 0;
-    for (const r of it) {
-      if (r.seq !== expected) {
-        // Stop the iterator before returning (frees the statement).
-        it.return?.();
-        return r.seq > expected
-          ? { ok: false, count, brokenSeq: expected, problem: `record ${expected} is missing (the next record found is ${r.seq}): deleted` }
-          : { ok: false, count, brokenSeq: r.seq, problem: `record ${r.seq} is out of order (expected ${expected})` };
-      }
-      if (r.prev_hash !== prevHash) {
-        it.return?.();
-        return {
-          ok: false,
-          count,
-          brokenSeq: r.seq,
-          problem: `record ${r.seq}: prev_hash does not match the hash of record ${r.seq - 1} (that record or this link was changed)`,
-        };
-      }
-      const h = recordHash({
-        seq: r.seq,
-        at: r.at,
-        user: r.user,
-        action: r.action,
-        object: r.object,
-        before: r.before,
-        after: r.after,
-        reason: r.reason,
-        prevHash: r.prev_hash,
-      });
-      if (h !== r.hash) {
-        it.return?.();
-        return { ok: false, count, brokenSeq: r.seq, problem: `record ${r.seq}: content does not match its hash (the record was edited)` };
-      }
-      prevHash = r.hash;
-      expected++;
-      count++;
-    }
-    const head = this.readHeadStmt.get() as { seq: number; hash: string } | undefined;
-    const lastSeq = expected - 1;
-    if (head && (head.seq !== lastSeq || head.hash !== prevHash)) {
-      if (head.seq > lastSeq)
-        return {
-          ok: false,
-          count,
-          brokenSeq: lastSeq + 1,
-          problem: `records ${lastSeq + 1}…${head.seq} are missing from the end of the trail (the chain head says ${head.seq})`,
-        };
-      return { ok: false, count, brokenSeq: head.seq, problem: `the chain head (record ${head.seq}) does not match record ${head.seq} in the trail` };
-    }
-    if (!head && count > 0) return { ok: false, count, brokenSeq: lastSeq, problem: 'the chain head record is missing' };
-    return { ok: true, count, headSeq: lastSeq, headHash: prevHash };
-  }
-
-  private where(f: AuditFilter): { sql: string; args: unknown[] } {
-    const conds: string[] = [];
-    const args: unknown[] = [];
-    if (f.from !== undefined) {
-      conds.push('at >= ?');
-      args.push(toIsoTime(f.from, 'from'));
-    }
-    if (f.to !== undefined) {
-      conds.push('at < ?');
-      args.push(toIsoTime(f.to, 'to'));
-    }
-    if (f.user) {
-      conds.push('user = ?');
-      args.push(f.user);
-    }
-    // 'model.' matches every model action and 'batch:' every batch; anything else matches exactly.
-    const prefixOrExact = (column: 'action' | 'object', value: string | undefined, prefixEnd: string) => {
-      if (!value) return;
-      if (value.endsWith(prefixEnd)) {
-        conds.push(`substr(${column}, 1, ?) = ?`);
-        args.push(value.length, value);
-      } else {
-        conds.push(`${column} = ?`);
-        args.push(value);
-      }
+  private query(f: AuditFilter): AuditQuery {
+    return {
+      from: f.from !== undefined ? toIsoTime(f.from, 'from') : undefined,
+      to: f.to !== undefined ? toIsoTime(f.to, 'to') : undefined,
+      user: f.user,
+      action: f.action,
+      object: f.object,
+      afterSeq: f.afterSeq,
     };
-    prefixOrExact('action', f.action, '.');
-    prefixOrExact('object', f.object, ':');
-    if (f.afterSeq !== undefined) {
-      conds.push('seq > ?');
-      args.push(f.afterSeq);
-    }
-    return { sql: conds.length ? ' WHERE ' + conds.join(' AND ') : '', args };
   }
 
-  list(filter: AuditFilter = {}): AuditRecord[] {
+  async list(filter: AuditFilter = {}): Promise<AuditRecord[]> {
     const limit = filter.limit ?? 200;
     if (!Number.isInteger(limit) || limit < 1 || limit > MAX_LIST)
       throw new AuditInputError(`limit must be an integer 1…${MAX_LIST}, got ${String(filter.limit)}`);
-    const w = this.where(filter);
-    const order = filter.descending ? 'DESC' : 'ASC';
-    const rows = this.db.prepare(`SELECT * FROM audit_trail${w.sql} ORDER BY seq ${order} LIMIT ?`).all(...w.args, limit) as Row[];
-    return rows.map(fromRow);
+    return this.storage.audit.list({ ...this.query(filter), limit, descending: !!filter.descending });
   }
 
-  count(filter: AuditFilter = {}): number {
-    const w = this.where(filter);
-    return (this.db.prepare(`SELECT count(*) AS n FROM audit_trail${w.sql}`).get(...w.args) as { n: number }).n;
+  async count(filter: AuditFilter = {}): Promise<number> {
+    return this.storage.audit.count(this.query(filter));
   }
 
-  private all(filter: AuditFilter): AuditRecord[] {
-    const w = this.where(filter);
-    return (this.db.prepare(`SELECT * FROM audit_trail${w.sql} ORDER BY seq`).all(...w.args) as Row[]).map(fromRow);
+  async exportCsv(filter: AuditFilter = {}): Promise<string> {
+    return auditToCsv(await this.storage.audit.list(this.query(filter)));
   }
 
-  exportCsv(filter: AuditFilter = {}): string {
-    return auditToCsv(this.all(filter));
+  async exportJson(filter: AuditFilter = {}): Promise<string> {
+    const rows = await this.storage.audit.list(this.query(filter));
+    return auditToJson(rows, await this.verify(), new Date(this.now()).toISOString());
   }
+}
 
-  exportJson(filter: AuditFilter = {}): string {
-    return auditToJson(this.all(filter), this.verify(), new Date(this.now()).toISOString());
+/** An entry checked and in the form it is stored (canonical JSON, null for what is absent). */
+function check(e: AuditEntry) {
+  const user = actorName(e.user);
+  if (typeof e.action !== 'string' || !ACTION_RE.test(e.action) || e.action.length > 200)
+    throw new AuditInputError(`audit record: action must be dotted lower-case words (a-z 0-9 . _ -), got ${JSON.stringify(e.action)}`);
+  if (typeof e.object !== 'string' || e.object.length === 0 || e.object.length > 500)
+    throw new AuditInputError('audit record: object must be a non-empty string of at most 500 characters');
+  if (user.length > 200) throw new AuditInputError('audit record: user name longer than 200 characters');
+  if (e.reason !== undefined && e.reason !== null && typeof e.reason !== 'string')
+    throw new AuditInputError('audit record: reason must be a string');
+  const reason = e.reason === undefined || e.reason === null || e.reason === '' ? null : e.reason;
+  if (reason !== null && reason.length > 4000) throw new AuditInputError('audit record: reason longer than 4000 characters');
+  const before = e.before === undefined ? null : canonicalJson(e.before);
+  const after = e.after === undefined ? null : canonicalJson(e.after);
+  return { user, action: e.action, object: e.object, before, after, reason };
+}
+
+/** Walk the chain from the first record and name the first broken one; then check the stored head. */
+async function verifyChain(repo: AuditRepository): Promise<AuditVerifyResult> {
+  let expected = 1;
+  let prevHash = GENESIS_HASH;
+  let count = 0;
+  for await (const r of repo.scan()) {
+    if (r.seq !== expected) {
+      return r.seq > expected
+        ? { ok: false, count, brokenSeq: expected, problem: `record ${expected} is missing (the next record found is ${r.seq}): deleted` }
+        : { ok: false, count, brokenSeq: r.seq, problem: `record ${r.seq} is out of order (expected ${expected})` };
+    }
+    if (r.prevHash !== prevHash) {
+      return {
+        ok: false,
+        count,
+        brokenSeq: r.seq,
+        problem: `record ${r.seq}: prev_hash does not match the hash of record ${r.seq - 1} (that record or this link was changed)`,
+      };
+    }
+    const h = recordHash({ seq: r.seq, at: r.at, user: r.user, action: r.action, object: r.object, before: r.before, after: r.after, reason: r.reason, prevHash: r.prevHash });
+    if (h !== r.hash) return { ok: false, count, brokenSeq: r.seq, problem: `record ${r.seq}: content does not match its hash (the record was edited)` };
+    prevHash = r.hash;
+    expected++;
+    count++;
   }
+  const head = await repo.head();
+  const lastSeq = expected - 1;
+  if (head && (head.seq !== lastSeq || head.hash !== prevHash)) {
+    if (head.seq > lastSeq)
+      return {
+        ok: false,
+        count,
+        brokenSeq: lastSeq + 1,
+        problem: `records ${lastSeq + 1}…${head.seq} are missing from the end of the trail (the chain head says ${head.seq})`,
+      };
+    return { ok: false, count, brokenSeq: head.seq, problem: `the chain head (record ${head.seq}) does not match record ${head.seq} in the trail` };
+  }
+  if (!head && count > 0) return { ok: false, count, brokenSeq: lastSeq, problem: 'the chain head record is missing' };
+  return { ok: true, count, headSeq: lastSeq, headHash: prevHash };
 }
 
 /** `SEQ:HASH`, the written form of an anchor. */

@@ -17,5 +17,5 @@ export function install(ctx: SecurityHost): void {
   ctx.routes?.include('/audit', table);
 }
 
-export { SqliteAuditTrail } from './audit-trail.ts';
+export { ChainedAuditTrail } from './audit-trail.ts';
 export * from './types.ts';

@@ -8,6 +8,7 @@
  */
 
 import type { AuditRecord } from '../../core/api/audit.ts';
+import type { UnitOfWork } from '../storage/repositories.ts';
 
 /** Who did it: a user name, or an object carrying one (an AuthUser, `req.user`). */
 export type AuditActor = string | { name: string };
@@ -73,20 +74,22 @@ export interface AuditAnchor {
 
 export interface AuditTrail {
   /**
-   * Append one record. Synchronous (better-sqlite3); may be called inside the caller's own
-   * db.transaction(), so a state change and its audit record commit together.
+   * Append one record. With `uow`, inside the caller's unit of work, so that a state change and its
+   * audit record commit together (or neither does); without, in a unit of its own.
    */
-  record(entry: AuditEntry): AuditRecord;
+  record(entry: AuditEntry, uow?: UnitOfWork): Promise<AuditRecord>;
   /**
    * Walk the chain from the first record and name the first broken one; with anchors, also check
    * that each anchored record is still there with the anchored hash (a trail cut back or rewritten
    * as a whole no longer matches a head kept outside the database).
    */
-  verify(anchors?: AuditAnchor[]): AuditVerifyResult;
+  verify(anchors?: AuditAnchor[]): Promise<AuditVerifyResult>;
   /** The current chain head as an anchor (null while the trail is empty). */
-  anchor(): AuditAnchor | null;
-  list(filter?: AuditFilter): AuditRecord[];
+  anchor(): Promise<AuditAnchor | null>;
+  list(filter?: AuditFilter): Promise<AuditRecord[]>;
+  /** How many records match (limit, paging and order ignored). */
+  count(filter?: AuditFilter): Promise<number>;
   /** Whole trail (or filtered) as CSV text (RFC 4180) or JSON text. */
-  exportCsv(filter?: AuditFilter): string;
-  exportJson(filter?: AuditFilter): string;
+  exportCsv(filter?: AuditFilter): Promise<string>;
+  exportJson(filter?: AuditFilter): Promise<string>;
 }

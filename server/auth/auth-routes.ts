@@ -101,7 +101,7 @@ export function authRoutes(auth: AuthService): RouteTable {
     method: 'post', path: '/logout', summary: 'End the session', role: 'viewer', response: '', status: 204,
     handler: async ({ req, res }) => {
       const s = auth.session(req.headers.cookie);
-      if (s) auth.logout(s.token, s.user);
+      if (s) await auth.logout(s.token, s.user);
       auth.clearSessionCookies(res);
       return undefined;
     },
@@ -157,7 +157,7 @@ export function authRoutes(auth: AuthService): RouteTable {
     handler: async ({ body, req }): Promise<CreatedAnalyzerToken> => {
       let t: { id: string; token: string };
       try {
-        t = auth.createAnalyzerToken(body.analyzer, body.label ?? '', req.user!.name);
+        t = await auth.createAnalyzerToken(body.analyzer, body.label ?? '', req.user!.name);
       } catch (e) {
         throw new HttpError(400, 'validation', 'Invalid request', (e as Error).message);
       }
@@ -169,7 +169,7 @@ export function authRoutes(auth: AuthService): RouteTable {
     method: 'delete', path: '/tokens/:id', summary: 'Revoke an analyzer token (404 when unknown or already revoked)', role: 'administrator',
     params: idParam, response: '', status: 204,
     handler: async ({ params, req }) => {
-      if (!auth.revokeAnalyzerToken(params.id, req.user!.name))
+      if (!(await auth.revokeAnalyzerToken(params.id, req.user!.name)))
         throw new HttpError(404, 'no-such-token', 'No such token', `no active analyzer token with id ${params.id}`);
       return undefined;
     },
@@ -178,7 +178,7 @@ export function authRoutes(auth: AuthService): RouteTable {
   t.add({
     method: 'get', path: '/signatures', summary: 'Electronic signatures on one object', role: 'viewer', query: signaturesQuery, subject: 'signature query',
     response: 'Items<SignatureRecord>', responseSource: SOURCE,
-    handler: async ({ query }) => ({ items: auth.signaturesFor(query.objectType, query.objectId) }),
+    handler: async ({ query }) => ({ items: await auth.signaturesFor(query.objectType, query.objectId) }),
   });
 
   return t;

@@ -8,13 +8,13 @@ import type { IncomingMessage } from 'node:http';
 import type { NextFunction, Request, RequestHandler, Response } from 'express';
 import { timingSafeEqual } from 'node:crypto';
 import type { AuditTrail } from '../audit/types.ts';
+import type { SignatureRepository, UnitOfWork, UnitOfWorkRunner } from '../storage/repositories.ts';
 import { AnalyzerTokenStore } from './analyzer-tokens.ts';
 import { readCookie } from './cookies.ts';
 import { HttpError, sendHttpError } from './http-problem.ts';
 import { DEFAULT_THROTTLE, LoginThrottle, addressKey, userKey, type ThrottlePolicy } from './login-throttle.ts';
 import { DEFAULT_SCRYPT_LOG2N, hashPassword, needsRehash, passwordProblem, verifyPassword } from './password.ts';
 import { DEFAULT_SESSION_TIMES, SessionStore, type SessionTimes } from './session-store.ts';
-import { SignatureStore } from './signature-store.ts';
 import {
   CSRF_COOKIE,
   CSRF_HEADER,
@@ -74,7 +74,6 @@ export class AuthService implements Auth {
   readonly sessions: SessionStore;
   readonly throttle: LoginThrottle;
   readonly tokens: AnalyzerTokenStore;
-  readonly signatures: SignatureStore;
   readonly now: () => number;
   readonly scryptLog2N: number;
   readonly secureCookies: boolean;
@@ -82,6 +81,7 @@ export class AuthService implements Auth {
 
   constructor(
     readonly db: Database.Database,
+    private readonly storage: UnitOfWorkRunner & { readonly signatures: SignatureRepository },
     readonly audit: AuditTrail,
     opts: AuthOptions = {},
   ) {
@@ -92,7 +92,6 @@ export class AuthService implements Auth {
     this.sessions = new SessionStore(db, { ...DEFAULT_SESSION_TIMES, ...opts.session }, this.now);
     this.throttle = new LoginThrottle(db, { ...DEFAULT_THROTTLE, ...opts.throttle }, this.now);
     this.tokens = new AnalyzerTokenStore(db, this.now);
-    this.signatures = new SignatureStore(db);
   }
 
   private iso(): string {
@@ -116,11 +115,11 @@ export class AuthService implements Auth {
     if (this.users.byName(u.name)) throw new HttpError(409, 'user-exists', 'User exists', `a user named ${u.name} already exists`);
     const hash = await hashPassword(u.password, this.scryptLog2N);
     const at = this.iso();
-    const row = this.db.transaction(() => {
+    const row = await this.storage.unitOfWork(async (uow) => {
       const r = this.users.insert({ name: u.name, fullName, role: u.role, passwordHash: hash, mustChange: !!u.mustChangePassword, createdBy: by, at });
-      this.audit.record({ user: by, action: 'user.create', object: `user:${r.name}`, after: { name: r.name, fullName, role: u.role } });
+      await this.audit.record({ user: by, action: 'user.create', object: `user:${r.name}`, after: { name: r.name, fullName, role: u.role } }, uow);
       return r;
-    }).immediate();
+    });
     return toUserView(row);
   }
 
@@ -153,7 +152,7 @@ export class AuthService implements Auth {
       throw new HttpError(409, 'last-administrator', 'Last administrator', 'this is the last active administrator: create another one first');
     const hash = change.password !== undefined ? await hashPassword(change.password, this.scryptLog2N) : null;
     const at = this.iso();
-    const after = this.db.transaction(() => {
+    const after = await this.storage.unitOfWork(async (uow) => {
       const before = { role: row.role, fullName: row.full_name, disabled: row.disabled_at !== null };
       if (change.role !== undefined) this.users.setRole(row.id, change.role);
       if (change.fullName !== undefined) this.users.setFullName(row.id, change.fullName.trim() || row.name);
@@ -163,9 +162,9 @@ export class AuthService implements Auth {
       const afterState = { role: r.role, fullName: r.full_name, disabled: r.disabled_at !== null, ...(hash ? { passwordReset: true } : {}) };
       // Role change, disabling and password reset end the user's sessions.
       if (change.role !== undefined || change.disabled || hash) this.sessions.deleteForUser(row.id);
-      this.audit.record({ user: byName, action: 'user.update', object: `user:${r.name}`, before, after: afterState, reason: reason ?? null });
+      await this.audit.record({ user: byName, action: 'user.update', object: `user:${r.name}`, before, after: afterState, reason: reason ?? null }, uow);
       return r;
-    }).immediate();
+    });
     return toUserView(after);
   }
 
@@ -174,18 +173,18 @@ export class AuthService implements Auth {
     if (!row) throw new HttpError(401, 'login-required', 'Login required', 'user no longer exists');
     this.checkThrottle(row.name, address);
     if (!(await verifyPassword(String(current ?? ''), row.password_hash))) {
-      this.recordFailure(row.name, address, 'password.change', 'current password wrong');
+      await this.recordFailure(row.name, address, 'password.change', 'current password wrong');
       throw new HttpError(401, 'wrong-password', 'Wrong password', 'the current password is wrong');
     }
     const pp = passwordProblem(next);
     if (pp) throw new HttpError(400, 'bad-password', 'Password not accepted', pp);
     if (current === next) throw new HttpError(400, 'bad-password', 'Password not accepted', 'the new password must differ from the current one');
     const hash = await hashPassword(next, this.scryptLog2N);
-    this.db.transaction(() => {
+    await this.storage.unitOfWork(async (uow) => {
       this.users.setPassword(row.id, hash, false, this.iso());
       this.sessions.deleteForUser(row.id, keepToken);
-      this.audit.record({ user: row.name, action: 'user.password-change', object: `user:${row.name}` });
-    }).immediate();
+      await this.audit.record({ user: row.name, action: 'user.password-change', object: `user:${row.name}` }, uow);
+    });
   }
 
   // ---- login ------------------------------------------------------------------------------------
@@ -200,12 +199,12 @@ export class AuthService implements Auth {
   }
 
   /** Count a failure, audit it, and audit a lock when one engages. */
-  private recordFailure(name: string, address: string, action: string, why: string): void {
+  private async recordFailure(name: string, address: string, action: string, why: string): Promise<void> {
     const states = this.throttle.fail([userKey(name), addressKey(address)]);
-    this.audit.record({ user: 'anonymous', action: `${action}.failed`, object: `user:${clip(name)}`, after: { address }, reason: why });
+    await this.audit.record({ user: 'anonymous', action: `${action}.failed`, object: `user:${clip(name)}`, after: { address }, reason: why });
     for (const s of states) {
       if (s.lockedUntil > 0)
-        this.audit.record({
+        await this.audit.record({
           user: SYSTEM_USER,
           action: 'auth.throttle',
           object: s.key.startsWith('addr:') ? `address:${clip(s.key.slice(5))}` : `user:${clip(s.key.slice(5))}`,
@@ -229,23 +228,23 @@ export class AuthService implements Auth {
     const row = this.users.byName(name);
     const ok = row ? await verifyPassword(password, row.password_hash) : (await verifyPassword(password, await this.dummy()), false);
     if (!row || !ok) {
-      this.recordFailure(name, address, 'auth.login', row ? 'wrong password' : 'unknown user');
+      await this.recordFailure(name, address, 'auth.login', row ? 'wrong password' : 'unknown user');
       throw new HttpError(401, 'login-failed', 'Login failed', 'user name or password is wrong');
     }
     if (row.disabled_at) {
-      this.audit.record({ user: row.name, action: 'auth.login.failed', object: `user:${row.name}`, after: { address }, reason: 'account disabled' });
+      await this.audit.record({ user: row.name, action: 'auth.login.failed', object: `user:${row.name}`, after: { address }, reason: 'account disabled' });
       throw new HttpError(403, 'account-disabled', 'Account disabled', 'this account is disabled; ask an administrator');
     }
     this.throttle.clear(userKey(name));
     if (needsRehash(row.password_hash, this.scryptLog2N)) this.users.replaceHash(row.id, await hashPassword(password, this.scryptLog2N));
     const s = this.sessions.create(row.id, address);
-    this.audit.record({ user: row.name, action: 'auth.login', object: `user:${row.name}`, after: { address } });
+    await this.audit.record({ user: row.name, action: 'auth.login', object: `user:${row.name}`, after: { address } });
     return { user: toAuthUser(row), token: s.token, csrfToken: s.csrf, expiresAt: s.expiresAt, mustChangePassword: row.must_change_password === 1 };
   }
 
-  logout(token: string, user: AuthUser): void {
+  async logout(token: string, user: AuthUser): Promise<void> {
     this.sessions.delete(token);
-    this.audit.record({ user: user.name, action: 'auth.logout', object: `user:${user.name}` });
+    await this.audit.record({ user: user.name, action: 'auth.logout', object: `user:${user.name}` });
   }
 
   // ---- sessions and middleware ----------------------------------------------------------------
@@ -338,32 +337,32 @@ export class AuthService implements Auth {
     return this.tokens.verify(token);
   }
 
-  createAnalyzerToken(analyzer: string, label: string, createdBy: string): { id: string; token: string } {
+  createAnalyzerToken(analyzer: string, label: string, createdBy: string): Promise<{ id: string; token: string }> {
     const lp = label === '' ? null : textProblem(label);
-    if (lp) throw new HttpError(400, 'bad-token', 'Bad token request', `label ${lp}`);
-    return this.db.transaction(() => {
+    if (lp) return Promise.reject(new HttpError(400, 'bad-token', 'Bad token request', `label ${lp}`));
+    return this.storage.unitOfWork(async (uow) => {
       const t = this.tokens.create(analyzer, label, createdBy);
-      this.audit.record({ user: createdBy, action: 'analyzer-token.create', object: `analyzer:${analyzer}`, after: { tokenId: t.id, label } });
+      await this.audit.record({ user: createdBy, action: 'analyzer-token.create', object: `analyzer:${analyzer}`, after: { tokenId: t.id, label } }, uow);
       return { id: t.id, token: t.token };
-    }).immediate();
+    });
   }
 
   listAnalyzerTokens(): AnalyzerTokenInfo[] {
     return this.tokens.list();
   }
 
-  revokeAnalyzerToken(id: string, revokedBy: string): boolean {
-    return this.db.transaction(() => {
+  revokeAnalyzerToken(id: string, revokedBy: string): Promise<boolean> {
+    return this.storage.unitOfWork(async (uow) => {
       const info = this.tokens.get(id);
       if (!info || !this.tokens.revoke(id, revokedBy)) return false;
-      this.audit.record({ user: revokedBy, action: 'analyzer-token.revoke', object: `analyzer:${info.analyzer}`, before: { tokenId: id, revoked: false }, after: { tokenId: id, revoked: true } });
+      await this.audit.record({ user: revokedBy, action: 'analyzer-token.revoke', object: `analyzer:${info.analyzer}`, before: { tokenId: id, revoked: false }, after: { tokenId: id, revoked: true } }, uow);
       return true;
-    }).immediate();
+    });
   }
 
   // ---- electronic signatures ----------------------------------------------------------------
 
-  async sign<T = void>(req: SignatureRequest, apply?: (sig: SignatureRecord) => T): Promise<{ signature: SignatureRecord; result: T }> {
+  async sign<T = void>(req: SignatureRequest, apply?: (sig: SignatureRecord, uow: UnitOfWork) => Promise<T>): Promise<{ signature: SignatureRecord; result: T }> {
     const object = `${req.objectType}:${req.objectId}`;
     if (!(SIGNATURE_MEANINGS as readonly string[]).includes(req.meaning)) throw new SignatureError(`unknown signature meaning ${String(req.meaning)}`, 400);
     if (typeof req.reason !== 'string' || req.reason.trim().length === 0) throw new SignatureError('a signature needs a reason', 400);
@@ -384,7 +383,7 @@ export class AuthService implements Auth {
     }
     if (!(await verifyPassword(req.password, row.password_hash))) {
       this.throttle.fail([userKey(row.name), addressKey(address)]);
-      this.audit.record({
+      await this.audit.record({
         user: row.name,
         action: 'signature.failed',
         object,
@@ -395,15 +394,15 @@ export class AuthService implements Auth {
     }
     this.throttle.clear(userKey(row.name));
     const user = toAuthUser(row);
-    return this.db.transaction(() => {
-      const rec = this.audit.record({
+    return this.storage.unitOfWork(async (uow) => {
+      const rec = await this.audit.record({
         user: user.name,
         action: `signature.${req.meaning}`,
         object,
         after: { meaning: req.meaning, objectHash: req.objectHash, signer: user.fullName, role: user.role, ...(req.override !== undefined ? { override: req.override } : {}), ...(req.evidence !== undefined ? { evidence: req.evidence } : {}) },
         reason: req.reason,
-      });
-      const signature = this.signatures.insert({
+      }, uow);
+      const signature = await uow.signatures.insert({
         userId: user.id,
         userName: user.name,
         fullName: user.fullName,
@@ -417,13 +416,13 @@ export class AuthService implements Auth {
         signedAt: rec.at,
         auditSeq: rec.seq,
       });
-      const result = apply ? apply(signature) : (undefined as T);
+      const result = apply ? await apply(signature, uow) : (undefined as T);
       return { signature, result };
-    }).immediate();
+    });
   }
 
-  signaturesFor(objectType: string, objectId: string): SignatureRecord[] {
-    return this.signatures.forObject(objectType, objectId);
+  signaturesFor(objectType: string, objectId: string): Promise<SignatureRecord[]> {
+    return this.storage.signatures.forObject(objectType, objectId);
   }
 }
 

@@ -18,7 +18,7 @@ import { userInfo } from 'node:os';
 import { parseArgs } from 'node:util';
 import { HttpError } from './http-problem.ts';
 import { generatePassword } from './password.ts';
-import { createSecurity } from './security-setup.ts';
+import { createSecurity, type SecurityStorage } from './security-setup.ts';
 import { isRole, ROLES } from './types.ts';
 
 export const SECURITY_COMMANDS = ['user', 'token', 'audit'] as const;
@@ -65,11 +65,11 @@ function cliActor(): string {
 /** Run one security command; returns the process exit code (0 ok, 1 failed check, 2 usage/input error). */
 export async function runSecurityCli(
   argv: string[],
-  host: { db: Database.Database; config?: unknown; now?: () => number },
+  host: { storage: SecurityStorage; config?: unknown; now?: () => number },
   io: CliIo = defaultIo,
 ): Promise<number> {
   const [group, verb, ...rest] = argv;
-  const { audit, auth } = createSecurity(host.db, host.config, host.now ?? Date.now);
+  const { audit, auth } = createSecurity(host.storage, host.config, host.now ?? Date.now);
   const actor = cliActor();
   let parsed;
   try {
@@ -148,7 +148,7 @@ export async function runSecurityCli(
     }
     if (group === 'token' && verb === 'add') {
       if (!need(1, 'one analyzer id')) return 2;
-      const t = auth.createAnalyzerToken(pos[0], o.label ?? '', actor);
+      const t = await auth.createAnalyzerToken(pos[0], o.label ?? '', actor);
       io.out(`token ${t.id} for analyzer ${pos[0]}:\n${t.token}\n(shown once; the server keeps only its hash)`);
       return 0;
     }
@@ -159,7 +159,7 @@ export async function runSecurityCli(
     }
     if (group === 'token' && verb === 'revoke') {
       if (!need(1, 'one token id')) return 2;
-      if (!auth.revokeAnalyzerToken(pos[0], actor)) {
+      if (!(await auth.revokeAnalyzerToken(pos[0], actor))) {
         io.err(`token revoke: no active token with id ${pos[0]}`);
         return 1;
       }
@@ -183,9 +183,9 @@ export async function runSecurityCli(
         }
         anchors.push(...parseAnchors(text, `--anchor-file ${f}`));
       }
-      const v = audit.verify(anchors);
+      const v = await audit.verify(anchors);
       if (v.ok) {
-        const head = audit.anchor();
+        const head = await audit.anchor();
         io.out(`audit trail intact: ${v.count} records, head ${v.headSeq} ${v.headHash}` + (anchors.length ? `; matches ${anchors.length} anchor(s)` : ''));
         if (head) io.out(`anchor (keep it outside the server): ${formatAnchor(head)}`);
         if (anchors.length === 0) io.out('without --anchor, a trail cut back at its end or rewritten as a whole cannot be told from an intact one');
@@ -201,7 +201,7 @@ export async function runSecurityCli(
         return 2;
       }
       const f = { from: o.from, to: o.to };
-      const text = format === 'csv' ? audit.exportCsv(f) : audit.exportJson(f);
+      const text = format === 'csv' ? await audit.exportCsv(f) : await audit.exportJson(f);
       if (o.out) {
         writeFileSync(o.out, text);
         io.out(`wrote ${o.out}`);

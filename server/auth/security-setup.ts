@@ -5,15 +5,16 @@
 import type Database from 'better-sqlite3';
 import type { RequestHandler, Router } from 'express';
 import type { RouteTable } from '../api/route-table.ts';
-import { SqliteAuditTrail } from '../audit/audit-trail.ts';
+import { ChainedAuditTrail } from '../audit/audit-trail.ts';
 import type { AuditTrail } from '../audit/types.ts';
+import type { AuditRepository, SignatureRepository, UnitOfWorkRunner } from '../storage/repositories.ts';
 import { AuthService } from './auth-service.ts';
 import { readSecurityConfig } from './security-config.ts';
 import type { Auth } from './types.ts';
 
 /** The part of the server context (server/context.ts) that auth and audit use. */
 export interface SecurityHost {
-  storage: { db: Database.Database };
+  storage: SecurityStorage;
   /** Router mounted at /api. */
   api: Router;
   /** The server's route table (server/api/route-table.ts): the auth and audit tables are included for the OpenAPI document. */
@@ -27,10 +28,18 @@ export interface SecurityHost {
   onClose?(fn: () => void | Promise<void>): void;
 }
 
-export function createSecurity(db: Database.Database, config: unknown, now: () => number = Date.now): { audit: SqliteAuditTrail; auth: AuthService } {
+/** What auth and audit need of the storage (SQLite: SqliteStorage). */
+export interface SecurityStorage extends UnitOfWorkRunner {
+  readonly db: Database.Database;
+  readonly audit: AuditRepository;
+  readonly signatures: SignatureRepository;
+}
+
+export function createSecurity(storage: SecurityStorage, config: unknown, now: () => number = Date.now): { audit: ChainedAuditTrail; auth: AuthService } {
   const { auth: ac, tls } = readSecurityConfig(config);
-  const audit = new SqliteAuditTrail(db, { now });
-  const auth = new AuthService(db, audit, {
+  // An empty trail beside stored users was deleted (every user's creation is audited).
+  const audit = new ChainedAuditTrail(storage, { now, countUsers: async () => auth.users.count() });
+  const auth: AuthService = new AuthService(storage.db, storage, audit, {
     now,
     scryptLog2N: ac.scryptLog2N,
     secureCookies: tls !== null,
@@ -46,11 +55,11 @@ export function createSecurity(db: Database.Database, config: unknown, now: () =
 }
 
 /** ctx.audit and ctx.auth, created on first use and set on the context. */
-export function ensureSecurity(host: SecurityHost): { audit: SqliteAuditTrail; auth: AuthService } {
-  if (host.audit instanceof SqliteAuditTrail && host.auth instanceof AuthService) return { audit: host.audit, auth: host.auth };
+export function ensureSecurity(host: SecurityHost): { audit: ChainedAuditTrail; auth: AuthService } {
+  if (host.audit instanceof ChainedAuditTrail && host.auth instanceof AuthService) return { audit: host.audit, auth: host.auth };
   const now = host.now ? () => host.now!() : Date.now;
-  const made = createSecurity(host.storage.db, host.config, now);
-  const audit = host.audit instanceof SqliteAuditTrail ? host.audit : made.audit;
+  const made = createSecurity(host.storage, host.config, now);
+  const audit = host.audit instanceof ChainedAuditTrail ? host.audit : made.audit;
   const auth = host.auth instanceof AuthService ? host.auth : made.auth;
   host.audit = audit;
   host.auth = auth;

@@ -10,6 +10,7 @@
  */
 import type { IncomingMessage } from 'node:http';
 import type { RequestHandler } from 'express';
+import type { UnitOfWork } from '../storage/repositories.ts';
 
 export const ROLES = ['viewer', 'operator', 'model-owner', 'administrator'] as const;
 export type Role = (typeof ROLES)[number];
@@ -129,15 +130,16 @@ export interface Auth {
   /** For the /ingest upgrade: the analyzer id the token belongs to, or null (unknown or revoked). */
   verifyAnalyzerToken(token: string): string | null;
   /** Create an analyzer token; the plain token is returned once and stored only hashed. */
-  createAnalyzerToken(analyzer: string, label: string, createdBy: string): { id: string; token: string };
+  createAnalyzerToken(analyzer: string, label: string, createdBy: string): Promise<{ id: string; token: string }>;
   listAnalyzerTokens(): AnalyzerTokenInfo[];
-  revokeAnalyzerToken(id: string, revokedBy: string): boolean;
+  revokeAnalyzerToken(id: string, revokedBy: string): Promise<boolean>;
   /**
    * Electronic signature: checks the re-entered password, writes the signature and its audit
-   * record, then runs `apply` (e.g. the state change approve/retire) in the same transaction.
+   * record, then runs `apply` (e.g. the state change approve/retire) in the same unit of work: if
+   * `apply` throws, neither the signature, nor its audit record, nor the change is written.
    * A wrong password is audited and throws SignatureError(401).
    */
-  sign<T = void>(req: SignatureRequest, apply?: (sig: SignatureRecord) => T): Promise<{ signature: SignatureRecord; result: T }>;
+  sign<T = void>(req: SignatureRequest, apply?: (sig: SignatureRecord, uow: UnitOfWork) => Promise<T>): Promise<{ signature: SignatureRecord; result: T }>;
   /** Signatures on one object, oldest first — show them wherever the object is shown. */
-  signaturesFor(objectType: string, objectId: string): SignatureRecord[];
+  signaturesFor(objectType: string, objectId: string): Promise<SignatureRecord[]>;
 }

@@ -110,7 +110,8 @@ export function addModelLifeRoutes(t: RouteTable, ctx: ServerContext) {
       const at = ctx.now();
       const d = { id: randomUUID(), unit: r.unit, modelVersion: m.id, deployedAt: at, deployedBy: by, reason: body.reason, endedAt: null };
       const sqlite = ctx.storage as unknown as SqliteStorage;
-      const apply = () => {
+      // In the signature's unit of work when signed (SQLite: its transaction), so a refusal rolls the signature back.
+      const apply = async () => {
         sqlite.deploySync(d);
         if (!life.store.endRun(r.id, at, by, `promoted: ${body.reason}`)) throw conflict(`shadow run ${r.id} has ended already; nothing was signed or deployed`);
       };
@@ -122,7 +123,7 @@ export function addModelLifeRoutes(t: RouteTable, ctx: ServerContext) {
           throw e;
         }
       } else {
-        apply();
+        await apply();
       }
       ctx.ingest.setShadowRun(r.unit, null);
       await ctx.ingest.refreshDeployment(r.unit);

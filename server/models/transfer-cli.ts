@@ -6,7 +6,7 @@
 import { userInfo } from 'node:os';
 import type { TransferModelRequest } from '../../core/api/rest.ts';
 import { parseMonitoringModel } from '../../core/model/monitoring-model.ts';
-import { SqliteAuditTrail } from '../audit/audit-trail.ts';
+import { ChainedAuditTrail } from '../audit/audit-trail.ts';
 import { ConfigError } from '../config.ts';
 import type { SqliteStorage } from '../storage/sqlite-storage.ts';
 import { ModelRequestError } from './model-service.ts';
@@ -65,7 +65,7 @@ export async function runModelCli(positional: string[], flags: Record<string, st
   }
   try {
     const row = await transferVersion(storage, src, req, by, Date.now());
-    new SqliteAuditTrail(storage.db).record({ user: by, action: 'model.transfer', object: `model:${row.name}@${row.version}`, before: undefined, after: transferAuditAfter(row, src, req), reason: null });
+    await new ChainedAuditTrail(storage).record({ user: by, action: 'model.transfer', object: `model:${row.name}@${row.version}`, before: undefined, after: transferAuditAfter(row, src, req), reason: null });
     const j = parseMonitoringModel(row.body).transfer!.judgement;
     out(`${row.name} v${row.version} (${row.id}, draft) carries a ${method.toUpperCase()} transfer from v${src.version}; sha256 ${row.sha256}\n`);
     out(`held-out transfer samples: ${j.spectra}; beyond the T² or Q limit: old analyzer ${j.old.beyond} (${pct(j.old.rate)}), new without transfer ${j.before.beyond} (${pct(j.before.rate)}), new with transfer ${j.after.beyond} (${pct(j.after.rate)})\n`);

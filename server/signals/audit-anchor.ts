@@ -33,7 +33,7 @@ export interface AnchorPublisherOptions {
   everyMs: number;
   now: () => number;
   /** The current head, or null while the trail is empty. */
-  head: () => AuditAnchor | null;
+  head: () => Promise<AuditAnchor | null>;
   sinks: AnchorSink[];
   log: { info(msg: string): void; warn(msg: string): void };
 }
@@ -49,7 +49,7 @@ export function startAnchorPublisher(o: AnchorPublisherOptions): { publishNow():
     if (stopped) return;
     let head: AuditAnchor | null;
     try {
-      head = o.head();
+      head = await o.head();
     } catch (e) {
       o.log.warn(`audit anchor: the chain head could not be read: ${(e as Error).message}`);
       return;

@@ -56,14 +56,16 @@ export async function install(ctx: ServerContext): Promise<SignalsHandle> {
       onAlarmAcknowledged: (unit, alarmId, comment) => {
         ctx.ingest
           .acknowledgeAlarm(alarmId, 'opcua-client', comment ? `over OPC UA: ${comment}` : 'acknowledged over OPC UA')
-          .then((after) => {
-            ctx.audit?.record({ user: 'opcua-client', action: 'alarm.acknowledge', object: `alarm:${alarmId}`, after: { state: after.state }, reason: comment || 'acknowledged over OPC UA' });
+          .then(async (after) => {
+            await ctx.audit?.record({ user: 'opcua-client', action: 'alarm.acknowledge', object: `alarm:${alarmId}`, after: { state: after.state }, reason: comment || 'acknowledged over OPC UA' });
             ctx.log.info(`alarm ${alarmId} on ${unit} acknowledged over OPC UA`);
           })
           .catch((e: Error) => ctx.log.warn(`OPC UA acknowledge of alarm ${alarmId} on ${unit} not applied: ${e.message}`));
       },
       onEndpointAcknowledged: (unit, latch, by, at) => {
-        ctx.audit?.record({ user: by, action: 'endpoint.acknowledge', object: `unit:${unit}`, before: latch, after: { reached: false, acknowledgedAt: at }, reason: 'endpoint reached acknowledged by the control system' });
+        ctx.audit
+          ?.record({ user: by, action: 'endpoint.acknowledge', object: `unit:${unit}`, before: latch, after: { reached: false, acknowledgedAt: at }, reason: 'endpoint reached acknowledged by the control system' })
+          .catch((e: Error) => ctx.log.error(`audit record of the endpoint acknowledge on ${unit} failed`, e));
         ctx.log.info(`endpoint of ${latch.batch ?? '?'} on ${unit} acknowledged by ${by}`);
       },
     });

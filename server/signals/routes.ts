@@ -144,7 +144,7 @@ export function addSignalRoutes(t: RouteTable, ctx: ServerContext, store: Outbox
       const before = store.deadLetter(channel, event);
       if (!before) throw notFound(`no dead letter ${event} on channel ${channel}`);
       store.requeue(channel, event, ctx.now());
-      ctx.audit?.record({ user: req.user ?? 'system', action: 'signal.requeue', object: `signal:${channel}/${event}`, before, reason: body?.reason ?? null });
+      await ctx.audit?.record({ user: req.user ?? 'system', action: 'signal.requeue', object: `signal:${channel}/${event}`, before, reason: body?.reason ?? null });
       for (const d of dispatchers) d.wake();
       return { channel, eventId: event, requeuedAt: store.deadLetter(channel, event)?.requeued_at ?? null };
     },

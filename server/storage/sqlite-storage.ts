@@ -12,6 +12,9 @@ import { migrate } from './migrate.ts';
 import { checkDatabaseFile, describeOpenError } from './open-check.ts';
 import { startCheckpointer, type Checkpointer } from './checkpointer.ts';
 import { INGEST_SQL, startIngestWriter, type IngestWriter } from './ingest-writer.ts';
+import type { ModelApprovalRepository, UnitOfWork } from './repositories.ts';
+import { SqliteAuditRepository } from './sqlite-audit.ts';
+import { SqliteSignatureRepository } from './sqlite-signatures.ts';
 import type {
   AlarmFilter,
   AnalyzerBootRow,
@@ -110,11 +113,18 @@ export interface SqliteOptions {
 }
 
 export class SqliteStorage implements Storage {
+  /** The connection, for this folder's other SQLite repositories and for tests; not part of Storage. */
   readonly db: Database.Database;
+  readonly audit: SqliteAuditRepository;
+  readonly signatures: SqliteSignatureRepository;
+  private readonly models: ModelApprovalRepository;
+  private readonly uow: UnitOfWork;
+  /** The tail of the queue of units of work (they run one after another on the one connection). */
+  private uowTail: Promise<unknown> = Promise.resolve();
   private readonly st: Record<string, Database.Statement>;
   private readonly commitTx: (w: IngestWrite) => void;
   private readonly saveAlarmTx: (a: Alarm, o?: OutboxRow) => void;
-  private readonly addLabTx: Database.Transaction<(rows: LabValueRow[], within?: (rows: LabValueRow[]) => void) => void>;
+  private readonly addLabTx: Database.Transaction<(rows: LabValueRow[]) => void>;
   private checkpointer: Checkpointer | null = null;
   private writer: IngestWriter | null = null;
 
@@ -236,17 +246,54 @@ export class SqliteStorage implements Storage {
       for (const o of w.outbox) s.insertOutbox.run(o.id, o.unit, o.unitSeq, o.type, JSON.stringify(o.payload), o.createdAt);
       for (const b of w.boots) s.bootSeq.run(b.lastSeq, b.lastSeen, b.analyzer, b.boot);
     });
-    this.addLabTx = this.db.transaction((rows: LabValueRow[], within?: (rows: LabValueRow[]) => void) => {
+    this.addLabTx = this.db.transaction((rows: LabValueRow[]) => {
       const existing: LabValueRow[] = [];
       for (const b of new Set(rows.map((r) => r.batch))) existing.push(...(s.labValues.all(b) as Row[]).map(labValueFromRow));
       checkLabValueAdditions(existing, rows);
       for (const v of rows) s.insertLabValue.run(v);
-      within?.(rows);
     });
     this.saveAlarmTx = this.db.transaction((a: Alarm, o?: OutboxRow) => {
       s.upsertAlarm.run(alarmParams(a));
       if (o) s.insertOutbox.run(o.id, o.unit, o.unitSeq, o.type, JSON.stringify(o.payload), o.createdAt);
     });
+    this.audit = new SqliteAuditRepository(this.db);
+    this.models = {
+      approve: async (id, by, at, reason) => this.approveModelVersionSync(id, by, at, reason),
+      retire: async (id, by, at, reason) => this.retireModelVersionSync(id, by, at, reason),
+    };
+    this.signatures = new SqliteSignatureRepository(this.db);
+    this.uow = { audit: this.audit, signatures: this.signatures, models: this.models };
+  }
+
+  /**
+   * One transaction (BEGIN IMMEDIATE … COMMIT) around `work`; units queue behind one another. The
+   * repositories answer synchronously, so the work runs to its end within one turn of the event
+   * loop and nothing else writes on the connection meanwhile; a unit that yields to the event loop
+   * (awaits real I/O) is rolled back and refused, since other writes could have joined it.
+   */
+  unitOfWork<T>(work: (uow: UnitOfWork) => Promise<T>): Promise<T> {
+    const run = async (): Promise<T> => {
+      if (this.db.inTransaction) throw new Error('a unit of work cannot start inside another SQLite transaction');
+      this.db.exec('BEGIN IMMEDIATE');
+      let yielded = false;
+      const guard = setImmediate(() => {
+        yielded = true;
+      });
+      try {
+        const out = await work(this.uow);
+        if (yielded) throw new Error('a unit of work awaited something outside its repositories (I/O): rolled back, since other writes could have joined its transaction');
+        this.db.exec('COMMIT');
+        return out;
+      } catch (e) {
+        if (this.db.inTransaction) this.db.exec('ROLLBACK');
+        throw e;
+      } finally {
+        clearImmediate(guard);
+      }
+    };
+    const p = this.uowTail.then(run, run);
+    this.uowTail = p.catch(() => undefined);
+    return p;
   }
 
   async close(): Promise<void> {
@@ -512,11 +559,14 @@ export class SqliteStorage implements Storage {
       (r): EndpointEventRow => ({ id: r.id, unit: r.unit, batch: r.batch, from: r.from_state, to: r.to_state, t: r.t, seq: r.seq, reason: r.reason, recordedAt: r.recorded_at }),
     );
   }
-  async addLabValues(rows: LabValueRow[], within?: (rows: LabValueRow[]) => void) {
+  async addLabValues(rows: LabValueRow[], within?: (rows: LabValueRow[], uow: UnitOfWork) => Promise<void>) {
     if (rows.length === 0) return;
-    // BEGIN IMMEDIATE: a second process (the CLI beside the server) waits for the write lock
-    // instead of checking against values that are about to change.
-    this.addLabTx.immediate(rows, within);
+    // In a unit of work (BEGIN IMMEDIATE): a second process (the CLI beside the server) waits for
+    // the write lock instead of checking against values that are about to change.
+    await this.unitOfWork(async (uow) => {
+      this.addLabTx(rows);
+      if (within) await within(rows, uow);
+    });
   }
   async listLabValues(batch: string) {
     return (this.st.labValues.all(batch) as Row[]).map(labValueFromRow);

@@ -8,6 +8,7 @@
 import type { Alarm, EndpointEventRecord, EvaluationResult, LabValueRecord, ModelVersionStatus } from '../../core/api/rest.ts';
 import type { EndpointState, MonitorResult } from '../../core/monitor/types.ts';
 import type { Ne107Category } from '../../core/protocol/ingest-messages.ts';
+import type { AuditRepository, SignatureRepository, UnitOfWork, UnitOfWorkRunner } from './repositories.ts';
 
 export interface UnitRow {
   id: string;
@@ -197,10 +198,13 @@ export interface AlarmFilter {
   offset: number;
 }
 
-export interface Storage {
-  /** The underlying handle, for other parts' own small stores (SQLite: better-sqlite3 Database). */
-  readonly db: unknown;
+export interface Storage extends UnitOfWorkRunner {
   close(): Promise<void>;
+
+  /** The hash-chained audit trail's records (server/audit seals them; appends only in a unit of work). */
+  readonly audit: AuditRepository;
+  /** Electronic signatures (written by server/auth in the unit of work of what they sign). */
+  readonly signatures: SignatureRepository;
 
   // units, analyzers, tokens
   createUnit(u: UnitRow): Promise<void>;
@@ -277,10 +281,10 @@ export interface Storage {
   /**
    * Add lab values in one transaction, checked against the stored ones (never overwriting: a value
    * on a spectrum that has one is refused unless it supersedes it; a correction needs a reason).
-   * Throws LabValueError. `within` runs inside the same transaction after the rows are written (the
-   * audit record): if it throws, nothing is stored.
+   * Throws LabValueError. `within` runs in the same unit of work after the rows are written (the
+   * audit records): if it throws, nothing is stored.
    */
-  addLabValues(rows: LabValueRow[], within?: (rows: LabValueRow[]) => void): Promise<void>;
+  addLabValues(rows: LabValueRow[], within?: (rows: LabValueRow[], uow: UnitOfWork) => Promise<void>): Promise<void>;
   /** Every lab value of a batch, oldest first (corrections after what they correct). */
   listLabValues(batch: string): Promise<LabValueRow[]>;
 

@@ -130,7 +130,7 @@ export async function runTransferCli(
         Date.now(),
       );
       // Audited as POST /api/import is (batch.import).
-      record?.audit.record({
+      await record?.audit.record({
         user: record.actor,
         action: 'batch.import',
         object: `unit:${flags.unit}`,

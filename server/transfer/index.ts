@@ -83,7 +83,7 @@ export function install(ctx: ServerContext): void {
       try {
         const summary = await importBatches(ctx.storage, { ...body, targetAxis, user: userName(req) }, ctx.now());
         ctx.ingest.noteBatchIds(summary.batches.map((b) => b.id));
-        ctx.audit?.record({
+        await ctx.audit?.record({
           user: userName(req),
           action: 'batch.import',
           object: `unit:${body.unit}`,
@@ -149,7 +149,7 @@ export function install(ctx: ServerContext): void {
       const html = renderBatchReport(await reportData(ctx, id, userName(req)));
       try {
         const pdf = await htmlToPdf(html, { title: `Batch report ${id}` });
-        ctx.audit?.record({ user: userName(req), action: 'batch.report', object: `batch:${id}`, after: { format: 'pdf', bytes: pdf.length } });
+        await ctx.audit?.record({ user: userName(req), action: 'batch.report', object: `batch:${id}`, after: { format: 'pdf', bytes: pdf.length } });
         res.type('application/pdf').attachment(`${id}-report.pdf`).send(pdf);
       } catch (e) {
         if (e instanceof PdfUnavailableError) throw new HttpProblem(503, 'PDF unavailable', e.message, 'pdf-unavailable');

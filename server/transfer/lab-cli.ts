@@ -19,7 +19,7 @@ import { userInfo } from 'node:os';
 import { ImportError } from '../../core/io/imported-batch.ts';
 import { readLabResultsCsv } from '../../core/lab/lab-file.ts';
 import { labPropertySummary, labValueViews } from '../../core/lab/lab-values.ts';
-import { SqliteAuditTrail } from '../audit/audit-trail.ts';
+import { ChainedAuditTrail } from '../audit/audit-trail.ts';
 import { ConfigError, type ServerConfig } from '../config.ts';
 import type { SqliteStorage } from '../storage/sqlite-storage.ts';
 import { attachLabValues, LabEntryError, type LabEntry } from './lab-entry.ts';
@@ -44,7 +44,7 @@ const fmtTime = (t: number) => new Date(t).toISOString();
 export async function runLabCli(positional: string[], flags: Record<string, string>, storage: SqliteStorage, config: ServerConfig, out: (s: string) => void): Promise<number> {
   const [verb, arg] = positional;
   const now = Date.now();
-  const opts = { toleranceMs: config.lab.matchToleranceMs, user: cliUser(flags.by), now, audit: new SqliteAuditTrail(storage.db) };
+  const opts = { toleranceMs: config.lab.matchToleranceMs, user: cliUser(flags.by), now, audit: new ChainedAuditTrail(storage) };
   if (verb === 'list') {
     if (!arg) throw new ConfigError(LAB_USAGE);
     const b = await storage.getBatch(arg);

@@ -9,6 +9,7 @@ import type { LabValueRecord, LabValueView } from '../../core/api/rest.ts';
 import { checkLabValueAdditions, labValueViews, LabValueError, normalisePropertyName, sameUnit } from '../../core/lab/lab-values.ts';
 import { elapsedToTime, nearestSpectrum, parseSampleTime, SampleMatchError } from '../../core/lab/match.ts';
 import type { AuditTrail } from '../audit/types.ts';
+import type { UnitOfWork } from '../storage/repositories.ts';
 import type { BatchRow, Storage } from '../storage/storage.ts';
 
 /** One lab result to attach. The sample time is given once: `sampleT` (ms epoch or ISO 8601) or `elapsedMin`. */
@@ -46,7 +47,7 @@ export interface AttachOptions {
   /** Who entered the values (the session's user, or the command line's --by). */
   user: string;
   now: number;
-  /** The audit trail on the storage's database: each value's record is written in the values' transaction. */
+  /** The audit trail on the same storage: each value's record is written in the values' unit of work. */
   audit?: AuditTrail;
   /** Audit action for new values ('lab-value.add', or 'lab-value.import' for a lab file); corrections are 'lab-value.correct'. */
   action?: string;
@@ -120,18 +121,18 @@ export async function attachLabValues(storage: Storage, entries: LabEntry[], opt
       throw err;
     }
   }
-  const record = (stored: LabValueRecord[]) => {
+  const record = async (stored: LabValueRecord[], uow: UnitOfWork) => {
     if (!opts.audit) return;
     for (const r of stored) {
       const corrected = r.supersedes ? before.get(r.supersedes) ?? stored.find((x) => x.id === r.supersedes) : undefined;
-      opts.audit.record({
+      await opts.audit.record({
         user: opts.user,
         action: r.supersedes ? 'lab-value.correct' : opts.action ?? 'lab-value.add',
         object: `batch:${r.batch}`,
         before: corrected ? auditView(corrected) : undefined,
         after: { ...auditView(r), ...(opts.via ? { via: opts.via } : {}) },
         reason: r.reason,
-      });
+      }, uow);
     }
   };
   try {

@@ -113,7 +113,7 @@ export async function reportData(ctx: ServerContext, batchId: string, user: stri
   return {
     generatedAt: ctx.now(),
     generatedBy: user,
-    auditAnchor: ctx.audit?.anchor() ?? null,
+    auditAnchor: (await ctx.audit?.anchor()) ?? null,
     batch: detail,
     unitName: unit?.name ?? b.unit,
     model: mrow ? await modelVersionSummary(ctx.storage, mrow) : null,

@@ -21,9 +21,9 @@ const cli = (args: string[]) => spawnSync(process.execPath, ['--import', 'tsx', 
 async function seededDir(n: number): Promise<string> {
   const dir = mkdtempSync(join(tmpdir(), 'tideline-anchor-'));
   const st = new SqliteStorage({ file: join(dir, 'tideline.db') });
-  const { audit, auth } = createSecurity(st.db, { auth: { scryptLog2N: 10 } });
+  const { audit, auth } = createSecurity(st, { auth: { scryptLog2N: 10 } });
   await auth.createUser({ name: 'ada', role: 'administrator', password: 'correct horse battery staple 42' }, 'test');
-  for (let i = 2; i <= n; i++) audit.record({ user: 'ada', action: 'unit.create', object: `unit:u${i}`, after: { i } });
+  for (let i = 2; i <= n; i++) await audit.record({ user: 'ada', action: 'unit.create', object: `unit:u${i}`, after: { i } });
   await st.close();
   return dir;
 }
@@ -79,8 +79,8 @@ describe('audit trail anchored outside the database', () => {
   it('a whole chain rewritten and re-hashed is caught by an anchor read from a file', async () => {
     const dir = await seededDir(5);
     const before = new SqliteStorage({ file: join(dir, 'tideline.db') });
-    const { audit } = createSecurity(before.db, {});
-    const head = audit.anchor()!;
+    const { audit } = createSecurity(before, {});
+    const head = (await audit.anchor())!;
     await before.close();
     tamper(dir, (db) => {
       db.prepare("UPDATE audit_trail SET after = '{\"i\":99}' WHERE seq = 3").run();

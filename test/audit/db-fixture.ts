@@ -1,23 +1,12 @@
-/** A real SQLite database with the auth and audit migrations (200–299) applied, for standalone tests. */
-import Database from 'better-sqlite3';
-import { mkdtempSync, readdirSync, readFileSync } from 'node:fs';
+/** A real SQLite storage in a temporary folder (every migration applied), for standalone auth and audit tests. */
+import { mkdtempSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
+import { SqliteStorage } from '../../server/storage/sqlite-storage.ts';
 
-export const MIGRATIONS_DIR = new URL('../../server/storage/migrations/', import.meta.url).pathname;
-
-export function securityMigrationFiles(): string[] {
-  return readdirSync(MIGRATIONS_DIR)
-    .filter((f) => /^2\d\d-.*\.sql$/.test(f))
-    .sort();
-}
-
-export function openTestDb(): { db: Database.Database; file: string } {
+export function openTestDb(): { storage: SqliteStorage; db: SqliteStorage['db']; file: string } {
   const dir = mkdtempSync(join(tmpdir(), 'tideline-sec-'));
   const file = join(dir, 'test.sqlite');
-  const db = new Database(file);
-  db.pragma('journal_mode = WAL');
-  db.pragma('foreign_keys = ON');
-  for (const f of securityMigrationFiles()) db.exec(readFileSync(join(MIGRATIONS_DIR, f), 'utf8'));
-  return { db, file };
+  const storage = new SqliteStorage({ file, checkpointInWorker: false });
+  return { storage, db: storage.db, file };
 }

@@ -35,7 +35,7 @@ describe('login, sessions and CSRF', () => {
     const replay = new Client(h.base);
     replay.cookies.set('tideline_session', token);
     expect((await replay.req('GET', '/api/auth/me')).status).toBe(401);
-    const actions = h.audit.list().map((x) => x.action);
+    const actions = (await h.audit.list()).map((x) => x.action);
     expect(actions).toEqual(['user.create', 'auth.login', 'auth.logout']);
   });
 
@@ -49,7 +49,7 @@ describe('login, sessions and CSRF', () => {
     expect(b.status).toBe(401);
     expect(a.json.detail).toBe(b.json.detail);
     expect(a.headers.get('content-type')).toMatch(/application\/problem\+json/);
-    const failed = h.audit.list({ action: 'auth.login.failed' });
+    const failed = (await h.audit.list({ action: 'auth.login.failed' }));
     expect(failed.map((x) => [x.object, x.reason])).toEqual([
       ['user:olga', 'wrong password'],
       ['user:nobody', 'unknown user'],
@@ -69,10 +69,10 @@ describe('login, sessions and CSRF', () => {
     const wrong = await c.req('POST', '/api/alarms/1/acknowledge', { comment: 'x' });
     expect(wrong.status).toBe(403);
     c.csrf = good;
-    expect(h.audit.list({ action: 'alarm.acknowledge' })).toHaveLength(0);
+    expect((await h.audit.list({ action: 'alarm.acknowledge' }))).toHaveLength(0);
     const ok = await c.req('POST', '/api/alarms/1/acknowledge', { comment: 'probe wiped' });
     expect(ok.status).toBe(200);
-    expect(h.audit.list({ action: 'alarm.acknowledge' })[0]).toMatchObject({ user: 'olga', reason: 'probe wiped' });
+    expect((await h.audit.list({ action: 'alarm.acknowledge' }))[0]).toMatchObject({ user: 'olga', reason: 'probe wiped' });
   });
 
   it('sessions end after the idle time', async () => {
@@ -107,7 +107,7 @@ describe('roles on state-changing routes', () => {
     }
     const m = h.host.storage.db.prepare('SELECT status FROM test_models').get() as { status: string };
     expect(m.status).toBe('draft');
-    expect(h.auth.signaturesFor('model', 'dryer-a@1')).toEqual([]);
+    expect(await h.auth.signaturesFor('model', 'dryer-a@1')).toEqual([]);
   });
 
   it('an operator may acknowledge but not approve or deploy; a model owner may deploy', async () => {
@@ -136,7 +136,7 @@ describe('electronic signatures', () => {
     expect(bad.status).toBe(401);
     expect(bad.json.detail).toMatch(/password does not match/);
     expect((h.host.storage.db.prepare('SELECT status FROM test_models').get() as { status: string }).status).toBe('draft');
-    const failed = h.audit.list({ action: 'signature.failed' });
+    const failed = (await h.audit.list({ action: 'signature.failed' }));
     expect(failed).toHaveLength(1);
     expect(failed[0]).toMatchObject({ user: 'mona', object: 'model:dryer-a@1', reason: 'wrong password' });
     expect(JSON.parse(failed[0].after!)).toEqual({ meaning: 'approved', objectHash: MODEL_HASH });
@@ -151,10 +151,10 @@ describe('electronic signatures', () => {
     expect((h.host.storage.db.prepare('SELECT status FROM test_models').get() as { status: string }).status).toBe('approved');
     const list = await c.req('GET', '/api/auth/signatures?objectType=model&objectId=dryer-a@1');
     expect(list.json.items).toHaveLength(1);
-    const sigAudit = h.audit.list({ action: 'signature.approved' })[0];
+    const sigAudit = (await h.audit.list({ action: 'signature.approved' }))[0];
     expect(sigAudit.seq).toBe(good.json.signature.auditSeq);
-    expect(h.audit.list({ action: 'model.approve' })[0].seq).toBe(sigAudit.seq + 1);
-    expect(h.audit.verify().ok).toBe(true);
+    expect((await h.audit.list({ action: 'model.approve' }))[0].seq).toBe(sigAudit.seq + 1);
+    expect((await h.audit.verify()).ok).toBe(true);
     // signatures cannot be altered in the database
     expect(() => h!.host.storage.db.prepare("UPDATE auth_signatures SET reason = 'x'").run()).toThrow(/append-only/);
   });
@@ -168,8 +168,8 @@ describe('electronic signatures', () => {
         throw new Error('model is deployed');
       }),
     ).rejects.toThrow('model is deployed');
-    expect(h.auth.signaturesFor('model', 'm')).toEqual([]);
-    expect(h.audit.list({ action: 'signature.' })).toEqual([]);
+    expect(await h.auth.signaturesFor('model', 'm')).toEqual([]);
+    expect((await h.audit.list({ action: 'signature.' }))).toEqual([]);
   });
 });
 
@@ -185,7 +185,7 @@ describe('login throttling', () => {
     expect(locked.status).toBe(429);
     expect(locked.headers.get('retry-after')).toBe('60');
     expect(locked.json.detail).toMatch(/too many failed attempts for this user: try again in 60 s/);
-    expect(h.audit.list({ action: 'auth.throttle' })[0]).toMatchObject({ object: 'user:olga' });
+    expect((await h.audit.list({ action: 'auth.throttle' }))[0]).toMatchObject({ object: 'user:olga' });
     // another user from the same address is not locked out by olga's lock
     const pw2 = await addUser(h, 'otto', 'operator');
     expect((await new Client(h.base).login('otto', pw2)).status).toBe(200);
@@ -246,7 +246,7 @@ describe('administration over HTTP', () => {
     expect(up.json.role).toBe('model-owner');
     // the role change ended omar's session
     expect((await o.req('GET', '/api/auth/me')).status).toBe(401);
-    const rec = h.audit.list({ action: 'user.update' })[0];
+    const rec = (await h.audit.list({ action: 'user.update' }))[0];
     expect(JSON.parse(rec.before!)).toMatchObject({ role: 'operator' });
     expect(JSON.parse(rec.after!)).toMatchObject({ role: 'model-owner' });
     expect(rec.reason).toBe('now owns the dryer model');
@@ -266,7 +266,7 @@ describe('administration over HTTP', () => {
     expect((await a.req('DELETE', `/api/auth/tokens/${tok.json.id}`)).status).toBe(204);
     expect(h.auth.verifyAnalyzerToken(tok.json.token)).toBeNull();
     expect((await a.req('DELETE', `/api/auth/tokens/${tok.json.id}`)).status).toBe(404);
-    expect(h.audit.list({ object: 'analyzer:nir-7' }).map((x) => x.action)).toEqual(['analyzer-token.create', 'analyzer-token.revoke']);
+    expect((await h.audit.list({ object: 'analyzer:nir-7' })).map((x) => x.action)).toEqual(['analyzer-token.create', 'analyzer-token.revoke']);
   });
 
   it('a user changes their own password with the current one; other sessions end', async () => {
@@ -288,7 +288,7 @@ describe('audit API', () => {
   it('lists with filters, verifies, exports CSV and JSON, and names the broken record after tampering', async () => {
     h = await startHarness();
     const pw = await addUser(h, 'vera', 'viewer');
-    for (let i = 1; i <= 4; i++) h.audit.record({ user: 'olga', action: 'alarm.acknowledge', object: `alarm:${i}`, reason: `c${i}` });
+    for (let i = 1; i <= 4; i++) await h.audit.record({ user: 'olga', action: 'alarm.acknowledge', object: `alarm:${i}`, reason: `c${i}` });
     const c = new Client(h.base);
     expect((await c.req('GET', '/api/audit')).status).toBe(401);
     await c.login('vera', pw);

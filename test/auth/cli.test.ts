@@ -15,66 +15,67 @@ function io(stdin = ''): CliIo & { lines: string[]; errors: string[] } {
 
 describe('security CLI', () => {
   it('user add creates the first administrator with a printed one-time password that logs in', async () => {
-    const { db } = openTestDb();
+    const { db, storage } = openTestDb();
     const o = io();
-    expect(await runSecurityCli(['user', 'add', '--role', 'administrator', '--full-name', 'Ada L.', 'ada'], { db, config }, o)).toBe(0);
+    expect(await runSecurityCli(['user', 'add', '--role', 'administrator', '--full-name', 'Ada L.', 'ada'], { storage, config }, o)).toBe(0);
     expect(o.lines[0]).toBe('created user ada (administrator)');
     const pw = /password: (\S+)/.exec(o.lines.join('\n'))![1];
-    const { auth, audit } = createSecurity(db, config);
+    const { auth, audit } = createSecurity(storage, config);
     const r = await auth.login('ada', pw, '127.0.0.1');
     expect(r.user).toMatchObject({ name: 'ada', role: 'administrator', fullName: 'Ada L.' });
     expect(r.mustChangePassword).toBe(true);
-    expect(audit.list()[0]).toMatchObject({ action: 'user.create', object: 'user:ada' });
-    expect(audit.list()[0].user).toMatch(/^cli:/);
+    const first = (await audit.list())[0]!;
+    expect(first).toMatchObject({ action: 'user.create', object: 'user:ada' });
+    expect(first.user).toMatch(/^cli:/);
   });
 
   it('takes the password from stdin, refuses bad input with exit code 2', async () => {
-    const { db } = openTestDb();
-    expect(await runSecurityCli(['user', 'add', '--role', 'operator', '--password-stdin', 'olga'], { db, config }, io('olga-secret-pw\n'))).toBe(0);
-    const { auth } = createSecurity(db, config);
+    const { db, storage } = openTestDb();
+    expect(await runSecurityCli(['user', 'add', '--role', 'operator', '--password-stdin', 'olga'], { storage, config }, io('olga-secret-pw\n'))).toBe(0);
+    const { auth } = createSecurity(storage, config);
     expect((await auth.login('olga', 'olga-secret-pw', 'x')).user.role).toBe('operator');
     const e1 = io();
-    expect(await runSecurityCli(['user', 'add', '--role', 'king', 'x1'], { db, config }, e1)).toBe(2);
+    expect(await runSecurityCli(['user', 'add', '--role', 'king', 'x1'], { storage, config }, e1)).toBe(2);
     expect(e1.errors[0]).toMatch(/--role must be one of/);
     const e2 = io('short\n');
-    expect(await runSecurityCli(['user', 'add', '--role', 'viewer', '--password-stdin', 'x2'], { db, config }, e2)).toBe(2);
+    expect(await runSecurityCli(['user', 'add', '--role', 'viewer', '--password-stdin', 'x2'], { storage, config }, e2)).toBe(2);
     expect(e2.errors[0]).toMatch(/at least 10/);
     const e3 = io();
-    expect(await runSecurityCli(['user', 'frobnicate'], { db, config }, e3)).toBe(2);
+    expect(await runSecurityCli(['user', 'frobnicate'], { storage, config }, e3)).toBe(2);
     expect(e3.errors[0]).toMatch(/usage/);
   });
 
   it('token add/list/revoke and audit verify/export', async () => {
-    const { db } = openTestDb();
+    const { db, storage } = openTestDb();
     const a = io();
-    expect(await runSecurityCli(['token', 'add', '--label', 'probe 1', 'nir-1'], { db, config }, a)).toBe(0);
+    expect(await runSecurityCli(['token', 'add', '--label', 'probe 1', 'nir-1'], { storage, config }, a)).toBe(0);
     const token = /^(tla_\S+)$/m.exec(a.lines.join('\n'))![1];
-    const { auth } = createSecurity(db, config);
+    const { auth } = createSecurity(storage, config);
     expect(auth.verifyAnalyzerToken(token)).toBe('nir-1');
     const l = io();
-    await runSecurityCli(['token', 'list'], { db, config }, l);
+    await runSecurityCli(['token', 'list'], { storage, config }, l);
     const id = l.lines[0].split('\t')[0];
     expect(l.lines[0]).toMatch(/nir-1\tactive/);
-    expect(await runSecurityCli(['token', 'revoke', id], { db, config }, io())).toBe(0);
+    expect(await runSecurityCli(['token', 'revoke', id], { storage, config }, io())).toBe(0);
     expect(auth.verifyAnalyzerToken(token)).toBeNull();
 
     const v = io();
-    expect(await runSecurityCli(['audit', 'verify'], { db, config }, v)).toBe(0);
+    expect(await runSecurityCli(['audit', 'verify'], { storage, config }, v)).toBe(0);
     expect(v.lines[0]).toMatch(/intact: 2 records/);
     const x = io();
-    expect(await runSecurityCli(['audit', 'export', '--format', 'csv'], { db, config }, x)).toBe(0);
+    expect(await runSecurityCli(['audit', 'export', '--format', 'csv'], { storage, config }, x)).toBe(0);
     expect(x.lines[0].split('\r\n')).toHaveLength(4);
 
     db.exec('DROP TRIGGER audit_trail_no_delete');
     db.prepare('DELETE FROM audit_trail WHERE seq = 1').run();
     const b = io();
-    expect(await runSecurityCli(['audit', 'verify'], { db, config }, b)).toBe(1);
+    expect(await runSecurityCli(['audit', 'verify'], { storage, config }, b)).toBe(1);
     expect(b.lines[0]).toMatch(/BROKEN at record 1: record 1 is missing/);
   });
 
   it('the demo administrator is created with a random password and a plain warning, renewed on the next start', async () => {
-    const { db } = openTestDb();
-    const host = { storage: { db }, api: express.Router(), config };
+    const { db, storage } = openTestDb();
+    const host = { storage, api: express.Router(), config };
     const d1 = await ensureDemoAdministrator(host);
     expect(d1.name).toBe('demo-admin');
     expect(d1.password).toHaveLength(20);
@@ -83,7 +84,7 @@ describe('security CLI', () => {
     expect(d1.notice).toMatch(/A real site must not use them/);
     const d2 = await ensureDemoAdministrator(host);
     expect(d2.password).not.toBe(d1.password);
-    const { auth } = createSecurity(db, config);
+    const { auth } = createSecurity(storage, config);
     await expect(auth.login('demo-admin', d1.password, 'a')).rejects.toThrow(/wrong/);
     expect((await auth.login('demo-admin', d2.password, 'a')).user.role).toBe('administrator');
   });

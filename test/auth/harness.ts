@@ -10,7 +10,7 @@ import { install as installAuth } from '../../server/auth/index.ts';
 import { install as installAudit } from '../../server/audit/index.ts';
 import type { SecurityHost } from '../../server/auth/security-setup.ts';
 import { AuthService } from '../../server/auth/auth-service.ts';
-import { SqliteAuditTrail } from '../../server/audit/audit-trail.ts';
+import { ChainedAuditTrail } from '../../server/audit/audit-trail.ts';
 import { SignatureError } from '../../server/auth/types.ts';
 import { openTestDb } from '../audit/db-fixture.ts';
 
@@ -18,7 +18,7 @@ export interface Harness {
   base: string;
   host: SecurityHost;
   auth: AuthService;
-  audit: SqliteAuditTrail;
+  audit: ChainedAuditTrail;
   clock: { t: number };
   close(): Promise<void>;
 }
@@ -26,14 +26,14 @@ export interface Harness {
 export const MODEL_HASH = 'a'.repeat(64);
 
 export async function startHarness(authConfig: Record<string, unknown> = {}): Promise<Harness> {
-  const { db } = openTestDb();
+  const { db, storage } = openTestDb();
   // A stand-in for the server's model table, so approval has a state to change.
   db.exec("CREATE TABLE test_models (id TEXT PRIMARY KEY, sha256 TEXT NOT NULL, status TEXT NOT NULL DEFAULT 'draft')");
   db.prepare('INSERT INTO test_models (id, sha256) VALUES (?, ?)').run('dryer-a@1', MODEL_HASH);
   const clock = { t: Date.UTC(2026, 5, 1, 6, 0, 0) };
   const api = express.Router();
   const host: SecurityHost = {
-    storage: { db },
+    storage,
     api,
     config: { auth: { scryptLog2N: 12, ...authConfig } },
     now: () => clock.t,
@@ -41,15 +41,15 @@ export async function startHarness(authConfig: Record<string, unknown> = {}): Pr
   installAuth(host);
   installAudit(host);
   const auth = host.auth as AuthService;
-  const audit = host.audit as SqliteAuditTrail;
+  const audit = host.audit as ChainedAuditTrail;
 
   api.use(express.json({ limit: '16kb' }));
-  api.post('/alarms/:id/acknowledge', auth.requireRole('operator'), (req, res) => {
-    audit.record({ user: req.user, action: 'alarm.acknowledge', object: `alarm:${String(req.params.id)}`, reason: req.body?.comment });
+  api.post('/alarms/:id/acknowledge', auth.requireRole('operator'), async (req, res) => {
+    await audit.record({ user: req.user, action: 'alarm.acknowledge', object: `alarm:${String(req.params.id)}`, reason: req.body?.comment });
     res.json({ ok: true });
   });
-  api.post('/deployments', auth.requireRole('model-owner'), (req, res) => {
-    audit.record({ user: req.user, action: 'model.deploy', object: `unit:${String(req.body?.unit)}` });
+  api.post('/deployments', auth.requireRole('model-owner'), async (req, res) => {
+    await audit.record({ user: req.user, action: 'model.deploy', object: `unit:${String(req.body?.unit)}` });
     res.status(201).json({ ok: true });
   });
   api.post('/models/versions/:v/approve', auth.requireRole('model-owner'), async (req, res) => {
@@ -58,9 +58,9 @@ export async function startHarness(authConfig: Record<string, unknown> = {}): Pr
     try {
       const out = await auth.sign(
         { user: req.user!, password: req.body?.password, reason: req.body?.reason, meaning: 'approved', objectType: 'model', objectId: m.id, objectHash: m.sha256, address: req.ip },
-        () => {
+        async (_sig, uow) => {
           db.prepare("UPDATE test_models SET status = 'approved' WHERE id = ?").run(m.id);
-          audit.record({ user: req.user, action: 'model.approve', object: `model:${m.id}`, before: { status: m.status }, after: { status: 'approved' }, reason: req.body?.reason });
+          await audit.record({ user: req.user, action: 'model.approve', object: `model:${m.id}`, before: { status: m.status }, after: { status: 'approved' }, reason: req.body?.reason }, uow);
         },
       );
       res.json({ status: 'approved', signature: out.signature });
@@ -83,7 +83,10 @@ export async function startHarness(authConfig: Record<string, unknown> = {}): Pr
     auth,
     audit,
     clock,
-    close: () => new Promise<void>((r) => server.close(() => r())),
+    close: async () => {
+      await new Promise<void>((r) => server.close(() => r()));
+      await storage.close();
+    },
   };
 }
 

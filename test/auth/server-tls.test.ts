@@ -39,7 +39,7 @@ describe('server over TLS', () => {
       const cookies = login.headers['set-cookie'] ?? [];
       expect(cookies.find((c) => c.startsWith('tideline_session='))).toMatch(/; Secure/);
       expect(login.headers['strict-transport-security']).toMatch(/max-age=/);
-      const token = srv.ctx.auth!.createAnalyzerToken('nir-tls', 'tls test', 'test').token;
+      const token = (await srv.ctx.auth!.createAnalyzerToken('nir-tls', 'tls test', 'test')).token;
       const opened = await new Promise<boolean>((resolve) => {
         const ws = new WebSocket(`wss://127.0.0.1:${srv.port}/ingest`, { ca, headers: { authorization: `Bearer ${token}` } });
         ws.on('open', () => {

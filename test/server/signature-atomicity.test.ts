@@ -29,11 +29,11 @@ describe('approval and retirement signatures', () => {
     await expect(
       auth.sign(
         { user: { id: user.id, name: 'signer', fullName: 'signer', role: 'model-owner' }, password: 'correct horse battery staple 42', meaning: 'approved', objectType: 'model', objectId: id, objectHash: fixture.model.sha256, reason: 'second approval', address: '127.0.0.1' },
-        () => storage.approveModelVersionSync(id, 'signer', Date.now(), 'second approval'),
+        (_sig, uow) => uow.models.approve(id, 'signer', Date.now(), 'second approval'),
       ),
     ).rejects.toThrow(/not a draft/);
     expect(count()).toBe(before);
-    expect(ts.server.ctx.audit!.verify().ok).toBe(true);
+    expect((await ts.server.ctx.audit!.verify()).ok).toBe(true);
   });
 });
 

@@ -15,8 +15,8 @@ describe('start-up warnings', () => {
   it('a broken audit trail is named at start, with the database file and the first broken record', async () => {
     const dir = mkdtempSync(join(tmpdir(), 'tideline-warn-'));
     const first = await startTestServer({}, { dir });
-    first.server.ctx.audit!.record({ user: 'ada', action: 'unit.create', object: 'unit:x', after: { a: 1 } });
-    first.server.ctx.audit!.record({ user: 'ada', action: 'unit.create', object: 'unit:y', after: { a: 2 } });
+    await first.server.ctx.audit!.record({ user: 'ada', action: 'unit.create', object: 'unit:x', after: { a: 1 } });
+    await first.server.ctx.audit!.record({ user: 'ada', action: 'unit.create', object: 'unit:y', after: { a: 2 } });
     await first.server.close();
     const db = new Database(join(dir, 'tideline.db'));
     db.exec('DROP TRIGGER audit_trail_no_update');

@@ -9,10 +9,10 @@ import { createServer, type Server } from 'node:http';
 import type { AddressInfo } from 'node:net';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
-import Database from 'better-sqlite3';
 import mqtt from 'mqtt';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { SqliteAuditTrail } from '../../server/audit/audit-trail.ts';
+import { ChainedAuditTrail } from '../../server/audit/audit-trail.ts';
+import { SqliteStorage } from '../../server/storage/sqlite-storage.ts';
 import { verifySignature } from '../../server/signals/webhook-signature.ts';
 import { login, startTestServer, type TestServer } from '../server/helpers.ts';
 import { mosquittoPath, startMosquitto, type Broker } from './helpers/mosquitto.ts';
@@ -74,11 +74,11 @@ describe.skipIf(!mosquittoPath)('the audit anchor through the signal channels', 
 
   it('sends the chain head to every channel, and the next record moves it on', async () => {
     const audit = ts.server.ctx.audit!;
-    const head = () => {
-      const a = audit.anchor()!;
+    const head = async () => {
+      const a = (await audit.anchor())!;
       return `${a.seq}:${a.hash}`;
     };
-    const first = head();
+    const first = await head();
 
     // webhook: the envelope's shape with unit and seq null, signed like every delivery
     const hook = await until(() => hooks.find((h) => JSON.parse(h.body).payload?.anchor === first), `a webhook anchor ${first}`);
@@ -98,7 +98,7 @@ describe.skipIf(!mosquittoPath)('the audit anchor through the signal channels', 
     // an audited action (a unit created over REST) moves the head; the next anchor carries it
     const admin = await login(ts, 'administrator');
     expect((await admin.post('/api/units', { id: 'dryer-7', kind: 'dryer', name: 'Dryer 7' })).status).toBe(201);
-    const second = head();
+    const second = await head();
     expect(second).not.toBe(first);
     await until(() => hooks.some((h) => JSON.parse(h.body).payload?.anchor === second), `a webhook anchor ${second}`);
 
@@ -115,18 +115,19 @@ describe.skipIf(!mosquittoPath)('the audit anchor through the signal channels', 
     await ua.close();
     ua = undefined as never;
     await ts.stop();
-    const db = new Database(file);
-    const trail = new SqliteAuditTrail(db);
-    expect(trail.verify([{ seq: Number(second.split(':')[0]), hash: second.split(':')[1]! }])).toMatchObject({ ok: true });
+    const storage = new SqliteStorage({ file, checkpointInWorker: false });
+    const db = storage.db;
+    const trail = new ChainedAuditTrail(storage);
+    expect(await trail.verify([{ seq: Number(second.split(':')[0]), hash: second.split(':')[1]! }])).toMatchObject({ ok: true });
     db.exec('DROP TRIGGER audit_trail_no_delete');
     const last = Number(second.split(':')[0]);
     db.prepare('DELETE FROM audit_trail WHERE seq = ?').run(last);
     const prev = db.prepare('SELECT seq, hash FROM audit_trail ORDER BY seq DESC LIMIT 1').get() as { seq: number; hash: string };
     db.prepare('UPDATE audit_head SET seq = ?, hash = ?').run(prev.seq, prev.hash);
-    expect(trail.verify()).toMatchObject({ ok: true }); // the chain alone cannot tell
-    const v = trail.verify([{ seq: last, hash: second.split(':')[1]! }]);
+    expect(await trail.verify()).toMatchObject({ ok: true }); // the chain alone cannot tell
+    const v = await trail.verify([{ seq: last, hash: second.split(':')[1]! }]);
     expect(v).toMatchObject({ ok: false, brokenSeq: last });
-    db.close();
+    await storage.close();
     ts = undefined as never;
   }, 120_000);
 });

@@ -1,6 +1,7 @@
-/** Electronic signature records (table auth_signatures, append-only). */
+/** Electronic signature records on SQLite (table auth_signatures, append-only; migrations 201, 202). */
 import type Database from 'better-sqlite3';
-import type { Role, SignatureMeaning, SignatureRecord } from './types.ts';
+import type { Role, SignatureMeaning, SignatureRecord } from '../auth/types.ts';
+import type { NewSignature, SignatureRepository } from './repositories.ts';
 
 interface Row {
   id: number;
@@ -35,10 +36,10 @@ function view(r: Row): SignatureRecord {
   };
 }
 
-export class SignatureStore {
+export class SqliteSignatureRepository implements SignatureRepository {
   constructor(private readonly db: Database.Database) {}
 
-  insert(s: Omit<SignatureRecord, 'id'> & { userId: number }): SignatureRecord {
+  async insert(s: NewSignature): Promise<SignatureRecord> {
     const info = this.db
       .prepare(
         'INSERT INTO auth_signatures (user_id, user_name, full_name, role, meaning, object_type, object_id, object_hash, reason, override, signed_at, audit_seq) VALUES (?,?,?,?,?,?,?,?,?,?,?,?)',
@@ -47,13 +48,13 @@ export class SignatureStore {
     return view(this.db.prepare('SELECT * FROM auth_signatures WHERE id = ?').get(Number(info.lastInsertRowid)) as Row);
   }
 
-  forObject(objectType: string, objectId: string): SignatureRecord[] {
+  async forObject(objectType: string, objectId: string): Promise<SignatureRecord[]> {
     return (
       this.db.prepare('SELECT * FROM auth_signatures WHERE object_type = ? AND object_id = ? ORDER BY id').all(objectType, objectId) as Row[]
     ).map(view);
   }
 
-  list(limit = 500): SignatureRecord[] {
+  async list(limit = 500): Promise<SignatureRecord[]> {
     return (this.db.prepare('SELECT * FROM auth_signatures ORDER BY id DESC LIMIT ?').all(limit) as Row[]).map(view);
   }
 }
