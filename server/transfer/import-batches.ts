@@ -9,6 +9,10 @@
  * does not cover the target is refused with its name.
  */
 import { randomUUID } from 'node:crypto';
+import { createRequire } from 'node:module';
+import { dirname, join } from 'node:path';
+import { pathToFileURL } from 'node:url';
+import { Worker } from 'node:worker_threads';
 import { readBatchCsv, type CsvReadOptions } from '../../core/io/batch-csv.ts';
 import { readBatchJcamp } from '../../core/io/batch-jcamp.ts';
 import { ImportError, type ImportedBatch } from '../../core/io/imported-batch.ts';
@@ -131,6 +135,44 @@ export function parseImportFiles(req: Pick<ImportRequest, 'files' | 'csv' | 'tar
   return { batches, resampled, warnings };
 }
 
+const TSX_API = pathToFileURL(join(dirname(createRequire(import.meta.url).resolve('tsx/package.json')), 'dist/esm/api/index.mjs')).href;
+const WORKER_ENTRY = new URL('./import-worker.ts', import.meta.url).href;
+const WORKER_BOOTSTRAP = `
+const { workerData } = require('node:worker_threads');
+import(workerData.tsxApi)
+  .then((api) => api.tsImport(workerData.entry, workerData.entry))
+  .then((m) => m.serveImportWorker());
+`;
+
+/**
+ * parseImportFiles in a worker thread of its own (import-worker.ts): the server's main thread stays
+ * free for analyzers' acks and the monitor while a large import is parsed (a 46 MB CSV takes seconds),
+ * and the parser's garbage goes with the worker. The same checks and errors as parseImportFiles.
+ */
+export function parseImportFilesInWorker(req: Pick<ImportRequest, 'files' | 'csv' | 'targetAxis'>, now: number): Promise<ReturnType<typeof parseImportFiles>> {
+  type Reply = import('./import-worker.ts').ImportParseReply;
+  return new Promise((resolve, reject) => {
+    const w = new Worker(WORKER_BOOTSTRAP, { eval: true, workerData: { tsxApi: TSX_API, entry: WORKER_ENTRY } });
+    let done = false;
+    const finish = (f: () => void) => {
+      if (done) return;
+      done = true;
+      void w.terminate();
+      f();
+    };
+    w.once('message', (m: Reply) =>
+      finish(() => {
+        if (m.ok) resolve({ batches: m.batches, resampled: new Set(m.resampled), warnings: m.warnings });
+        else if ('importError' in m) reject(new ImportError(m.importError.file, m.importError.line, m.importError.reason));
+        else reject(new Error(`the import parser failed: ${m.error}`));
+      }),
+    );
+    w.once('error', (e) => finish(() => reject(new Error(`the import parser thread failed: ${e.message}`))));
+    w.once('exit', (code) => finish(() => reject(new Error(`the import parser thread exited (${code}) before it answered`))));
+    w.postMessage({ files: req.files, csv: req.csv, targetAxis: req.targetAxis ? Float64Array.from(req.targetAxis) : undefined, now });
+  });
+}
+
 /** A file without a batch column or label names its batch by the file name: "D-0042.csv" → "D-0042". */
 function fileStem(name: string): string {
   return name.replace(/^.*[\\/]/, '').replace(/\.[^.]*$/, '');
@@ -142,13 +184,16 @@ function sameAxis(a: ArrayLike<number>, b: ArrayLike<number>): boolean {
   return true;
 }
 
-/** Parse, check against the store, and write everything in one transaction. */
-export async function importBatches(storage: Storage, req: ImportRequest, now: number): Promise<ImportSummary> {
+/**
+ * Parse, check against the store, and write everything in one transaction. `opts.parseInWorker`:
+ * parse in a worker thread (the server does; the command line parses inline).
+ */
+export async function importBatches(storage: Storage, req: ImportRequest, now: number, opts: { parseInWorker?: boolean } = {}): Promise<ImportSummary> {
   const unit = await storage.getUnit(req.unit);
   if (!unit) throw new ImportError('import', 0, `unit "${req.unit}" is not known; create it first (npm run tideline -- unit add ${req.unit})`);
   const pp = textProblem(req.product, { max: 128 });
   if (pp) throw new ImportError('import', 0, `the product name ${pp}`);
-  const { batches, resampled, warnings } = parseImportFiles(req, now);
+  const { batches, resampled, warnings } = opts.parseInWorker ? await parseImportFilesInWorker(req, now) : parseImportFiles(req, now);
   for (const b of batches) {
     const bp = b.product === undefined ? null : textProblem(b.product, { max: 128 });
     if (bp) throw new ImportError(b.source.file, b.source.firstLine, `batch ${b.id}: the product name ${bp}`);

@@ -30,6 +30,8 @@ import { compareStoredBatch, loadBatch, reportData } from './review.ts';
 
 /** Imports can be large (a batch of 500 spectra × 1,000 points is about 5 MB of CSV). */
 export const IMPORT_BODY_LIMIT = '64mb';
+/** From this many characters of files on, POST /api/import parses in a worker thread. */
+export const IMPORT_WORKER_MIN_CHARS = 1_000_000;
 
 const idSchema = z.string().min(1).max(128).regex(/^[A-Za-z0-9._:-]+$/, 'use letters, digits and . _ : - only');
 
@@ -81,7 +83,11 @@ export function install(ctx: ServerContext): void {
         targetAxis = m.chain.inputAxis;
       }
       try {
-        const summary = await importBatches(ctx.storage, { ...body, targetAxis, user: userName(req) }, ctx.now());
+        const summary = await importBatches(ctx.storage, { ...body, targetAxis, user: userName(req) }, ctx.now(), {
+          // a large import is parsed in a worker thread, off the thread that acks analyzers; a small
+          // one inline (starting the worker costs more than parsing it)
+          parseInWorker: body.files.reduce((n, f) => n + f.content.length, 0) >= IMPORT_WORKER_MIN_CHARS,
+        });
         ctx.ingest.noteBatchIds(summary.batches.map((b) => b.id));
         await ctx.audit?.record({
           user: userName(req),
