@@ -732,7 +732,10 @@ export class IngestPipeline {
     // analyzer never raises or clears the alarm of another.
     const key = `${ANALYZER_FAILURE}:${st.analyzer}`;
     const standing = this.alarmIdByKey.get(alarmKey(unit, null, key));
-    if (failed !== (prev?.status === 'failure') || (!failed && standing && this.alarmsById.get(standing)?.active)) {
+    // Raised or cleared when the alarm on this unit does not say what the analyzer reports (a failing
+    // analyzer that moves to another unit raises it there too).
+    const standingActive = !!standing && !!this.alarmsById.get(standing)?.active;
+    if (failed !== standingActive) {
       const what = [view.code, view.detail].filter(Boolean).join(': ');
       this.applyCondition(unit, null, {
         kind: 'analyzer', key, active: failed, priority: 2, value: failed ? 1 : 0, limit: 0,

@@ -10,6 +10,7 @@ import { join } from 'node:path';
 import { afterAll, describe, expect, it } from 'vitest';
 import { parseAnalyzerText, IngestProtocolError } from '../../core/protocol/ingest-messages.ts';
 import { Peer, axis, login, spectrum, startTestServer, type TestServer } from './helpers.ts';
+import { createAnalyzerToken } from '../../server/ingest/analyzer-tokens.ts';
 
 const dir = mkdtempSync(join(tmpdir(), 'tideline-status-'));
 let ts: TestServer | null = null;
@@ -109,5 +110,45 @@ describe('analyzer status on a live server', () => {
     expect(unit.analyzerStatus).toMatchObject({ status: 'failure', code: 'E17', detail: 'lamp' });
     const stored = ts.server.ctx.storage.db.prepare('SELECT seq, status FROM analyzer_status ORDER BY id').all();
     expect(stored).toEqual([{ seq: 3, status: 'function-check' }, { seq: 4, status: 'good' }, { seq: 5, status: 'failure' }]);
+  }, 120_000);
+});
+
+describe('failure alarms are per analyzer and per unit', () => {
+  it('a failing analyzer reporting for another unit raises it there; another analyzer never clears it', async () => {
+    const t2 = await startTestServer({}, { units: ['dryer-1', 'dryer-2'] });
+    try {
+      const tok2 = await createAnalyzerToken(t2.server.ctx.storage, 'nir-2', Date.now());
+      const viewer = await login(t2, 'viewer');
+      const failureOn = async (unit: string, analyzer: string) =>
+        (await viewer.get(`/api/alarms?unit=${unit}`)).body.items.find((x: any) => x.key === `analyzer-failure:${analyzer}`) ?? null;
+      const t0 = Date.now() - 60_000;
+      const a = new Peer(t2.wsUrl, t2.token);
+      await a.open();
+      await a.hello('nir-1', 1, axis(16));
+      a.send({ type: 'analyzer-status', seq: 0, t: t0, status: 'failure', code: 'E17', unit: 'dryer-1' });
+      await a.waitAck(0);
+      expect(await failureOn('dryer-1', 'nir-1')).toMatchObject({ active: true, state: 'active-unacknowledged' });
+      // still failing, it now reports for dryer-2: raised there too (its status did not change)
+      a.send({ type: 'analyzer-status', seq: 1, t: t0 + 1000, status: 'failure', code: 'E17', unit: 'dryer-2' });
+      await a.waitAck(1);
+      expect(await failureOn('dryer-2', 'nir-1')).toMatchObject({ active: true, state: 'active-unacknowledged' });
+      // another analyzer, no batch anywhere, reports good for dryer-1: nir-1's alarm stands
+      const b = new Peer(t2.wsUrl, tok2);
+      await b.open();
+      await b.hello('nir-2', 1, axis(16));
+      b.send({ type: 'analyzer-status', seq: 0, t: t0 + 2000, status: 'good', unit: 'dryer-1' });
+      await b.waitAck(0);
+      expect(await failureOn('dryer-1', 'nir-1')).toMatchObject({ active: true });
+      expect(await failureOn('dryer-1', 'nir-2')).toBeNull();
+      // nir-1 itself reports good for dryer-1: cleared there (returned unacknowledged), dryer-2's stands
+      a.send({ type: 'analyzer-status', seq: 2, t: t0 + 3000, status: 'good', unit: 'dryer-1' });
+      await a.waitAck(2);
+      expect(await failureOn('dryer-1', 'nir-1')).toMatchObject({ active: false, state: 'cleared-unacknowledged' });
+      expect(await failureOn('dryer-2', 'nir-1')).toMatchObject({ active: true });
+      a.close();
+      b.close();
+    } finally {
+      await t2.stop();
+    }
   }, 120_000);
 });
