@@ -96,6 +96,8 @@ describe("a site's dryer batches to an endpoint, through the public paths", () =
       expect(o.paceIndex, `${o.id}: slow drying not flagged by pace`).not.toBeNull();
       expect(o.paceIndex!).toBeGreaterThanOrEqual(o.faultOnsetIndex!);
       expect(o.alarmKeys, `${o.id}: no pace alarm listed for the batch after it ended`).toContain('pace');
+      // called done: the pace flag still stands at the call or after it (pace is judged after done)
+      if (o.doneIndex !== null) expect(o.paceAtOrAfterDone, `${o.id}: done at ${o.doneIndex} with no pace flag standing then or after`).toBe(true);
     }
   }, 15 * 60_000);
 });
