@@ -939,3 +939,31 @@ export interface TransferModelRequest {
   /** Transfer sets kept out of the fit and used only to judge it. */
   heldOut: { old: string; new: string }[];
 }
+
+/** A plant-history decomposition job (POST /api/models/history-pca, GET /api/models/history-pca/:job; docs/plant-history-builds.md). */
+export interface HistoryJobView {
+  job: string;
+  status: 'running' | 'done' | 'failed';
+  startedAt: number;
+  startedBy: string;
+  batches: number;
+  components: number;
+  groups: number;
+  /** While running: the pass, batches read of all, spectra read (server/models/history-pca.ts). */
+  progress: { pass: 'scatter' | 'cross-validation'; batches: number; of: number; spectra: number } | null;
+  result: {
+    spectra: number;
+    variables: number;
+    workers: number;
+    eigenvalues: number[];
+    explained: number[];
+    cumulative: number[];
+    press: number[] | null;
+    /** Component count of least PRESS (null without cross-validation). */
+    leastPress: number | null;
+    seconds: { scatter: number; decomposition: number; crossValidation: number; total: number };
+    chain: string;
+  } | null;
+  error: string | null;
+}
+

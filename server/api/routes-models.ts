@@ -91,7 +91,7 @@ export function addModelRoutes(t: RouteTable, ctx: ServerContext) {
   t.add({
     method: 'post', path: '/models/history-pca',
     summary: 'Start a plant-history decomposition: the PCA of hundreds of stored reference batches streamed from the database by worker threads (memory bounded by the wavelengths, not the spectra), cross-validated by groups of batches; answered at once with the job, whose progress GET shows',
-    role: 'model-owner', response: 'HistoryJobView', responseSource: 'server/models/history-jobs.ts', status: 202,
+    role: 'model-owner', response: 'HistoryJobView', status: 202,
     body: z.object({
       referenceBatches: z.array(idSchema).min(2, 'choose at least 2 reference batches').max(5000),
       components: z.number().int().min(1).max(50),
@@ -107,7 +107,7 @@ export function addModelRoutes(t: RouteTable, ctx: ServerContext) {
   });
   t.add({
     method: 'get', path: '/models/history-pca/:job', summary: 'A plant-history decomposition: its progress while it runs (pass, batches read of all, spectra), its eigenvalues, explained variance and PRESS when done', role: 'viewer',
-    response: 'HistoryJobView', responseSource: 'server/models/history-jobs.ts', params: z.object({ job: z.string().min(1).max(64) }),
+    response: 'HistoryJobView', params: z.object({ job: z.string().min(1).max(64) }),
     handler: async ({ params }) => {
       const j = historyJob(ctx, params.job);
       if (!j) throw notFound(`plant-history job "${params.job}" is not known to this server (jobs are kept while it runs)`);

@@ -8,38 +8,14 @@
  * the server (the last 20).
  */
 import { randomUUID } from 'node:crypto';
+import type { HistoryJobView } from '../../core/api/rest.ts';
 import type { ServerContext } from '../context.ts';
 import { matrixFromRows } from '../../core/linalg/dense-matrix.ts';
 import { fitChain } from '../../core/preprocess/index.ts';
 import type { ChainSpec } from '../../core/preprocess/spec.ts';
 import type { SqliteStorage } from '../storage/sqlite-storage.ts';
-import { historyPca, type HistoryProgress } from './history-pca.ts';
+import { historyPca } from './history-pca.ts';
 import { ModelRequestError } from './model-service.ts';
-
-export interface HistoryJobView {
-  job: string;
-  status: 'running' | 'done' | 'failed';
-  startedAt: number;
-  startedBy: string;
-  batches: number;
-  components: number;
-  groups: number;
-  progress: HistoryProgress | null;
-  result: {
-    spectra: number;
-    variables: number;
-    workers: number;
-    eigenvalues: number[];
-    explained: number[];
-    cumulative: number[];
-    press: number[] | null;
-    /** Component count of least PRESS (null without cross-validation). */
-    leastPress: number | null;
-    seconds: { scatter: number; decomposition: number; crossValidation: number; total: number };
-    chain: string;
-  } | null;
-  error: string | null;
-}
 
 /** Spectra the chain's learned state (MSC reference, scaling) is fitted on, spread evenly over the batches. */
 export const CHAIN_SAMPLE = 2000;

@@ -1,5 +1,6 @@
 /** Every REST call the dashboard makes, in one place (paths and shapes from core/api/rest.ts). */
 import type {
+  HistoryJobView,
   Alarm,
   BatchDetail,
   BatchSummary,
@@ -38,6 +39,8 @@ export const api = {
   envelope: (v: string) => get<ModelEnvelopeView>(`/api/models/versions/${enc(v)}/envelope`),
   references: (v: string) => get<ModelReferencesView>(`/api/models/versions/${enc(v)}/references`),
   build: (req: BuildModelRequest) => post<ModelVersionSummary>('/api/models/build', req),
+  historyPca: (req: { referenceBatches: string[]; components: number; groups?: number; chain?: unknown[] }) => post<HistoryJobView>('/api/models/history-pca', req),
+  historyJob: (job: string) => get<HistoryJobView>(`/api/models/history-pca/${enc(job)}`),
   evaluate: (v: string, batches: string[], faulty: string[] = []) => post<EvaluationResult>(`/api/models/versions/${enc(v)}/evaluate`, { batches, ...(faulty.length ? { faulty } : {}) }),
   approve: (v: string, reason: string, password?: string, earlyEndpointOverride?: string, evidenceOverride?: string) =>
     post<ModelVersionSummary>(`/api/models/versions/${enc(v)}/approve`, {

@@ -21,6 +21,7 @@ import { NEW_CRITERION, fieldOfBuildError, settingsFromForm, type FieldKey, type
 import { labOfBatches } from './lab-data.ts';
 import { PropertyFields } from './property-fields.tsx';
 import { ReferenceBatches } from './reference-batches.tsx';
+import { HistoryPanel } from './history-panel.tsx';
 
 /** Model names are ids: letters, digits and . _ : - only. */
 export function modelName(s: string): string {
@@ -259,6 +260,7 @@ export function Builder({ me }: { me: Me | null }) {
       </div>
       {error && <ErrorBox message={error} />}
       {preview && 'chain' in chainResult && <ChainPreview batch={preview} chain={chainResult.chain} />}
+      <HistoryPanel chosen={chosen} chain={'chain' in chainResult ? chainResult.chain : null} components={components} />
     </div>
   );
 }
