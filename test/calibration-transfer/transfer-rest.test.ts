@@ -14,7 +14,7 @@ import { simulateBatch } from '../../simulators/batch.ts';
 import { simulateOnSecondAnalyzer } from '../../simulators/second-analyzer.ts';
 import { writeBatchCsv } from '../../core/io/batch-csv.ts';
 import type { SimulatedBatch } from '../../simulators/batch-types.ts';
-import { login, startTestServer, type Session, type TestServer } from '../server/helpers.ts';
+import { Peer, login, startTestServer, type Session, type TestServer } from '../server/helpers.ts';
 import { DRYER_TEST_SETTINGS } from '../monitor/settings-fixture.ts';
 
 let ts: TestServer;
@@ -39,7 +39,7 @@ const HELD = [961, 962];
 const GOOD = [971, 972, 973, 974, 975, 976, 977, 978];
 
 beforeAll(async () => {
-  ts = await startTestServer({}, { units: ['dryer-1'] });
+  ts = await startTestServer({}, { units: ['dryer-1', 'dryer-2'] });
   owner = await login(ts, 'model-owner');
   // The version in use on the old analyzer: built through REST from imported reference batches with lab moisture.
   await importFiles(REFERENCE.map((s) => csvOf(simulateBatch('dryer', { seed: s, intervalS: 60 }), `REF-${s}`, 1, true)));
@@ -118,6 +118,45 @@ describe('analyzer replacement through REST and the command line', () => {
     expect(without.outside / without.points).toBeGreaterThan(0.5);
     expect(withPds.alarmed).toBeLessThanOrEqual(old.alarmed + 1);
     expect(withPds.outside / withPds.points).toBeLessThan(Math.max(0.05, 2 * (old.outside / old.points)));
+  }, 300_000);
+
+  it('approved and deployed on the unit the new analyzer feeds, it judges a live batch over /ingest', async () => {
+    const d = (await owner.get(`/api/models/versions/${movedId}`)).body;
+    const early = (d.endpointCheck?.early ?? 0) > 0;
+    // The evaluation above on the new analyzer's good batches is this version's approval evidence: a
+    // ten-batch model's Q limit is as tight on them as the source version's on the old analyzer's.
+    const ev = (await owner.get(`/api/models/versions/${movedId}/approval-evidence`)).body as { warnings: { blocking: boolean }[] };
+    const far = ev.warnings.some((w) => w.blocking);
+    const a = await owner.post(`/api/models/versions/${movedId}/approve`, {
+      reason: 'new analyzer on dryer-2', password: 'correct horse battery staple 42',
+      ...(early ? { earlyEndpointOverride: 'as for the source version' } : {}),
+      ...(far ? { evidenceOverride: 'the source version has the same rate on the old analyzer' } : {}),
+    });
+    expect(a.status, JSON.stringify(a.body)).toBe(200);
+    const dep = await owner.post('/api/deployments', { unit: 'dryer-2', versionId: movedId, reason: 'analyzer replaced' });
+    expect(dep.status, JSON.stringify(dep.body)).toBe(201);
+    const b = simulateOnSecondAnalyzer('dryer', { seed: 981, intervalS: 60 });
+    const peer = new Peer(ts.wsUrl, ts.token);
+    await peer.open();
+    await peer.hello('nir-1', 11, b.axis);
+    let seq = 0;
+    peer.send({ type: 'batch-start', seq: seq++, t: b.times[0]!, unit: 'dryer-2', batch: 'LIVE-NEW-1', product: 'granule A' });
+    for (let i = 0; i < b.spectra.length; i++) peer.sendFrame(seq++, b.times[i]!, b.spectra[i]!);
+    peer.send({ type: 'batch-end', seq: seq++, t: b.times[b.times.length - 1]! + 1, batch: 'LIVE-NEW-1' });
+    await peer.waitAck(seq - 1, 60_000);
+    peer.close();
+    const r = (await owner.get('/api/batches/LIVE-NEW-1/results?limit=5000')).body as { model: { versionId: string }; items: { t2: number; q: number; limits: { t2: number; q: number } }[] };
+    expect(r.model.versionId).toBe(movedId);
+    expect(r.items).toHaveLength(b.spectra.length);
+    const beyond = r.items.filter((x) => x.t2 > x.limits.t2 || x.q > x.limits.q).length;
+    console.log(`live batch of the new analyzer judged by the transferred version: ${beyond} of ${r.items.length} spectra beyond the 99 % T² or Q limit`);
+    expect(beyond / r.items.length).toBeLessThan(0.1);
+    // The version built on the old analyzer does not fit dryer-2: the deploy preview names both axes.
+    const old = await owner.get(`/api/deployments/preview?unit=dryer-2&versionId=${sourceId}`);
+    expect(old.status).toBe(200);
+    const axis = (old.body.mismatches as { what: string; text: string }[]).find((m) => m.what === 'axis')!;
+    expect(axis.text).toContain('256 points');
+    expect(axis.text).toContain('241 points');
   }, 300_000);
 
   it('refuses bad requests, naming the problem', async () => {
