@@ -81,7 +81,10 @@ export async function startHistoryJob(ctx: ServerContext, req: { referenceBatche
   }
   const file = (ctx.storage as unknown as SqliteStorage).db.name;
   const t = performance.now();
-  void historyPca({ file, batches: ids, components: req.components, groups, chain: chainJson, onProgress: (p) => (job.progress = p) }).then(
+  // The server's close stops the workers (a job is not resumed after a restart).
+  const abort = new AbortController();
+  ctx.onClose(() => abort.abort());
+  void historyPca({ file, batches: ids, components: req.components, groups, chain: chainJson, onProgress: (p) => (job.progress = p), signal: abort.signal }).then(
     (h) => {
       const lam = Array.from(h.model.eigenvalues);
       const explained = lam.map((v) => v / h.model.totalVariance);

@@ -55,6 +55,8 @@ export interface HistoryPcaOptions {
   workers?: number;
   seed?: number;
   onProgress?: (p: HistoryProgress) => void;
+  /** Aborting stops the workers; the promise then rejects. */
+  signal?: AbortSignal;
 }
 
 export interface HistoryPca {
@@ -78,15 +80,23 @@ function ask(w: Worker, req: HistoryRequest, onProgress: (batches: number, spect
       if (m.kind === 'progress') return onProgress(m.batches, m.spectra);
       w.off('message', onMsg);
       w.off('error', onErr);
+      w.off('exit', onExit);
       if (m.kind === 'error') reject(new RangeError(m.message));
       else resolve(m);
     };
     const onErr = (e: Error) => {
       w.off('message', onMsg);
+      w.off('exit', onExit);
       reject(new Error(`plant-history worker failed: ${e.message}`));
+    };
+    const onExit = (code: number) => {
+      w.off('message', onMsg);
+      w.off('error', onErr);
+      reject(new Error(`plant-history worker stopped (exit code ${code}) before it answered`));
     };
     w.on('message', onMsg);
     w.once('error', onErr);
+    w.once('exit', onExit);
     w.postMessage(req);
   });
 }
@@ -113,7 +123,12 @@ export async function historyPca(o: HistoryPcaOptions): Promise<HistoryPca> {
   const groups = Math.max(G, 1);
   const shares: HistoryJob[] = Array.from({ length: W }, () => ({ file: o.file, batches: [], groups, chain: o.chain ?? null, pIn: first.length, centre }));
   o.batches.forEach((id, i) => shares[i % W]!.batches.push({ id, group: G ? i % G : 0 }));
+  if (o.signal?.aborted) throw new Error('the plant-history decomposition was stopped before it started');
   const workers = shares.map(() => startWorker());
+  const stop = () => {
+    for (const w of workers) void w.terminate();
+  };
+  o.signal?.addEventListener('abort', stop, { once: true });
   const done = new Array<{ batches: number; spectra: number }>(W).fill({ batches: 0, spectra: 0 });
   const report = (pass: HistoryProgress['pass']) => (k: number) => (batches: number, spectra: number) => {
     done[k] = { batches, spectra };
@@ -143,6 +158,7 @@ export async function historyPca(o: HistoryPcaOptions): Promise<HistoryPca> {
     }
     return { model, spectra: total.n, variables: p, workers: W, press, seconds: { scatter: tScatter, decomposition: tEig, crossValidation: tCv } };
   } finally {
+    o.signal?.removeEventListener('abort', stop);
     await Promise.all(workers.map((w) => w.terminate()));
   }
 }

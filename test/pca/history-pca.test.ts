@@ -69,6 +69,13 @@ describe('plant-history PCA from storage', () => {
     for (let a = 0; a < maxA; a++) expect(Math.abs(h.press![a]! / ref.press[a]! - 1)).toBeLessThan(1e-8);
   }, 120_000);
 
+  it('stops its workers when aborted (the server closing)', async () => {
+    const ids = Array.from({ length: 12 }, (_, b) => `H-${String(b).padStart(3, '0')}`);
+    const abort = new AbortController();
+    const run = historyPca({ file: join(dir, 'tideline.db'), batches: ids, components: 2, workers: 2, signal: abort.signal, onProgress: () => abort.abort() });
+    await expect(run).rejects.toThrow(/stopped|exit code/);
+  }, 120_000);
+
   it('names what it cannot do', async () => {
     await expect(historyPca({ file: join(dir, 'tideline.db'), batches: ['H-000'], components: 2 })).rejects.toThrow(/at least 2 batches/);
     await expect(historyPca({ file: join(dir, 'tideline.db'), batches: ['NOPE', 'H-000'], components: 2, groups: 2 })).rejects.toThrow(/"NOPE" has no stored spectra/);
