@@ -4,7 +4,7 @@
  * start; a correction needs a reason) and where a problem's field error goes.
  */
 import { describe, expect, it } from 'vitest';
-import { batchLab, fieldOf, labBody, labPoints, localTimeMs, localTimeText, type LabForm } from '../../web/src/views/review-lab-data.ts';
+import { batchLab, fieldOf, labBody, labPoints, fieldTimeMs, fieldTimeText, type LabForm } from '../../web/src/views/review-lab-data.ts';
 
 const START = Date.UTC(2026, 11, 5, 8, 0, 0);
 const item = (o: Record<string, unknown>) => ({
@@ -55,9 +55,11 @@ describe('the form to attach a lab result', () => {
   it('sends minutes after the start as a sample time in ms epoch', () => {
     expect(labBody(f({}), START)).toEqual({ body: { property: 'moisture', value: 1.9, unit: '% w/w', sampleT: START + 42.5 * 60000, method: 'LOD' } });
   });
-  it('sends a clock time typed in the browser zone as that instant', () => {
-    const at = localTimeText(START + 3_723_000);
-    expect(localTimeMs(at)).toBe(START + 3_723_000);
+  it("sends a clock time typed in the dashboard's zone (UTC) as that instant", () => {
+    const at = fieldTimeText(START + 3_723_000);
+    expect(at).toBe(new Date(START + 3_723_000).toISOString().slice(0, 19));
+    expect(fieldTimeMs('2026-12-05T13:27')).toBe(Date.UTC(2026, 11, 5, 13, 27));
+    expect(fieldTimeMs(at)).toBe(START + 3_723_000);
     const out = labBody(f({ timeAs: 'clock', at, method: ' ' }), START);
     expect(out).toEqual({ body: { property: 'moisture', value: 1.9, unit: '% w/w', sampleT: START + 3_723_000 } });
   });

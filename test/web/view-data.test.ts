@@ -2,7 +2,7 @@ import { describe, expect, it } from 'vitest';
 import type { Alarm, BatchDetail, EvaluationResult, ModelEnvelopeView, ModelVersionDetail, ResultRecord } from '../../core/api/rest.ts';
 import { propertyChartData, propertyTarget } from '../../web/src/views/review-property-data.ts';
 import type { Contributions, MonitorResult } from '../../core/monitor/types.ts';
-import { departureWindow, firstExit, meanContributions, regionShares, sampleSeqs, timeline, withRemainder } from '../../web/src/views/review-data.ts';
+import { departureWindow, endpointRecordText, firstExit, meanContributions, regionShares, sampleSeqs, suspectScansText, timeline, withRemainder } from '../../web/src/views/review-data.ts';
 import { ledgerQuery, summariseChange } from '../../web/src/views/ledger-data.ts';
 import { CHAIN_PRESETS, buildSettingsFromForm, parseEndpointMark, spreadIndices, summariseEvaluation } from '../../web/src/views/bench-data.ts';
 import { availablePcs, goldenPath, progressLabel, referencePaths, scoreBand } from '../../web/src/views/watch-data.ts';
@@ -60,6 +60,13 @@ describe('Review helpers', () => {
     expect(t[2]!.tMin).toBe(3.5);
     expect(t[4]!.tMin).toBe(5);
     expect(t[5]!.tMin).toBe(9);
+    // an alarm of a replayed batch, returned when the batch ended: received days after its
+    // spectra were taken, it sits at its spectra's times on the batch clock, not days later
+    const week = 7 * 86_400_000;
+    const ended = [{ priority: 3, message: 'PC4 out', kind: 'envelope', key: 'pc4', raisedAt: week + 6 * 60_000, raisedSpectrumT: 6 * 60_000, clearedAt: week + 12 * 60_000, spectrumT: 12 * 60_000, seq: 99 }] as never;
+    const t2 = timeline(b, rs, ended).filter((e) => e.kind.startsWith('alarm'));
+    expect(t2.map((e) => [e.kind, e.tMin])).toEqual([['alarm', 6], ['alarm-cleared', 12]]);
+    expect(t2[1]!.label).toBe('alarm cleared (PC4 score)');
   });
   it('averages contributions and their region sums; samples seqs in the window', () => {
     const c = (k: number): Contributions => ({ axis: [1, 2], t2: [k, 2 * k], q: [k, 0], rbcT2: [0, 0], rbcQ: [k, k], regions: [{ name: 'O–H', from: 1, to: 2, assignment: 'water', t2: 3 * k, q: k, t2Abs: 3 * k }] });
@@ -83,6 +90,8 @@ describe('Ledger helpers', () => {
   it('builds the audit query with ISO times and newest first', () => {
     const q = ledgerQuery({ user: 'al', action: '', object: 'model:', from: '2026-12-02T10:00:00Z', to: '' }, 500);
     expect(q).toEqual({ user: 'al', action: undefined, object: 'model:', from: '2026-12-02T10:00:00.000Z', to: undefined, limit: 500, order: 'desc' });
+    // a datetime-local field's text (no zone) is read in UTC, the zone the Ledger shows
+    expect(ledgerQuery({ user: '', action: '', object: '', from: '2026-12-02T10:00', to: '2026-12-02T11:30:15' }, 10)).toMatchObject({ from: '2026-12-02T10:00:00.000Z', to: '2026-12-02T11:30:15.000Z' });
   });
 });
 
@@ -244,5 +253,22 @@ describe('predicted property in Review', () => {
     expect(propertyTarget(v, [res(1, 0, 15)])).toEqual({ target: 2, threshold: 1.99, text: 'The endpoint rule asks for the prediction at or below 1.99: the target cleared by a margin for the prediction error.' });
     expect(propertyTarget(v, [res(1, 0, 15, 2)]).text).toBe('The endpoint rule asks for the prediction at or below 2.00.');
     expect(propertyTarget(null, [])).toEqual({ target: null, threshold: null, text: '' });
+  });
+});
+
+describe('the endpoint as the record states it', () => {
+  const m = { name: 'm', version: 1, sha256: 'x', id: 'v' } as never;
+  it('an ended batch whose endpoint was not reached never reads "running"', () => {
+    expect(endpointRecordText({ status: 'ended', endpointState: 'running', model: m })).toEqual({ text: 'endpoint not reached (running at the end)', tone: 'warn', reached: false });
+    expect(endpointRecordText({ status: 'ended', endpointState: 'held', model: m }).text).toBe('endpoint not reached (held by a guard at the end)');
+    expect(endpointRecordText({ status: 'ended', endpointState: 'done', model: m })).toEqual({ text: 'endpoint reached', tone: 'ok', reached: true });
+    expect(endpointRecordText({ status: 'open', endpointState: 'running', model: m }).text).toBe('endpoint running');
+    expect(endpointRecordText({ status: 'ended', endpointState: null, model: null }).text).toBe('not judged by a model');
+  });
+  it('counts suspect scans in words', () => {
+    expect(suspectScansText(undefined)).toBeNull();
+    expect(suspectScansText(0)).toBe('no suspect scans');
+    expect(suspectScansText(1)).toBe('1 suspect scan');
+    expect(suspectScansText(17)).toBe('17 suspect scans');
   });
 });

@@ -13,6 +13,9 @@ import { onUnauthorized } from './api/http.ts';
 import type { Me } from './api/session.ts';
 import { session } from './api/session.ts';
 import { ApiError, errorText } from './api/problem.ts';
+import { api } from './api/endpoints.ts';
+import type { SimulationInfo } from '../../core/api/rest.ts';
+import { clock, TIME_ZONE } from './format/number-format.ts';
 
 function useRoute(): Route {
   const [route, setRoute] = useState(() => parseHash(location.hash));
@@ -53,6 +56,17 @@ export function App() {
     return onUnauthorized(() => setAuth({ kind: 'out', message: 'Your session has ended; please sign in again.' }));
   }, []);
 
+  const [simulation, setSimulation] = useState<SimulationInfo | null>(null);
+  const signedIn = auth.kind === 'in';
+  useEffect(() => {
+    // the demo marks its data as simulated, with its speed-up (GET /api/info, for signed-in users)
+    if (!signedIn) return;
+    api.info().then(
+      (i) => setSimulation(i.simulation ?? null),
+      () => setSimulation(null),
+    );
+  }, [signedIn]);
+
   useEffect(() => {
     const t = route.view === 'not-found' ? 'Tideline' : `${VIEW_TITLES[route.view]} — Tideline`;
     document.title = t;
@@ -82,6 +96,9 @@ export function App() {
           );
         })}
         <span class="spacer" />
+        <span class="zone" title="Every time on the dashboard, in its reports and in the Ledger is in this one zone. Process times are the analyzer's time of the spectrum.">
+          {clock(now)} {TIME_ZONE} · times in {TIME_ZONE}
+        </span>
         {auth.kind === 'in' && auth.me && (
           <span class="who">
             {auth.me.user.fullName} · {auth.me.user.role}{' '}
@@ -91,6 +108,11 @@ export function App() {
           </span>
         )}
       </nav>
+      {simulation && (
+        <div class="simulated-banner" role="note" data-testid="simulated">
+          <strong>Simulated data</strong> ({simulation.units.map((u) => `${u.unit} ×${u.speedUp}`).join(', ')}). {simulation.note}
+        </div>
+      )}
       <main>
         {auth.kind === 'checking' && <Empty>Connecting to the server…</Empty>}
         {auth.kind === 'out' && <SignIn message={auth.message} onIn={(me) => setAuth({ kind: 'in', me })} />}

@@ -81,15 +81,21 @@ function isDateMs(t: number): boolean {
   return Math.abs(t) <= 8.64e15;
 }
 
-/** A clock time "14:03:27" in the given time zone (default: the browser's). */
-export function clock(t: number | null | undefined, timeZone?: string): string {
+/**
+ * The one zone every time on the dashboard is shown in (docs/dashboard.md, "Time"), the zone the
+ * batch report and the Ledger use too; the navigation bar says it.
+ */
+export const TIME_ZONE = 'UTC';
+
+/** A clock time "14:03:27" (default: the dashboard's zone, UTC). */
+export function clock(t: number | null | undefined, timeZone: string = TIME_ZONE): string {
   if (!isNum(t)) return NO_VALUE;
   if (!isDateMs(t)) return String(t);
   return new Intl.DateTimeFormat('en-GB', { hour: '2-digit', minute: '2-digit', second: '2-digit', hour12: false, timeZone }).format(new Date(t));
 }
 
-/** "2026-12-02 14:03" in the given time zone. */
-export function dateTime(t: number | null | undefined, timeZone?: string): string {
+/** "2026-12-02 14:03" (default: the dashboard's zone, UTC). */
+export function dateTime(t: number | null | undefined, timeZone: string = TIME_ZONE): string {
   if (!isNum(t)) return NO_VALUE;
   if (!isDateMs(t)) return String(t);
   const parts = new Intl.DateTimeFormat('en-CA', { year: 'numeric', month: '2-digit', day: '2-digit', hour: '2-digit', minute: '2-digit', hour12: false, timeZone })
@@ -97,6 +103,23 @@ export function dateTime(t: number | null | undefined, timeZone?: string): strin
   const get = (k: string) => parts.find((p) => p.type === k)?.value ?? '';
   const hour = get('hour') === '24' ? '00' : get('hour');
   return `${get('year')}-${get('month')}-${get('day')} ${hour}:${get('minute')}`;
+}
+
+/** "2026-12-02 14:03:27" (default: the dashboard's zone, UTC). */
+export function dateTimeSec(t: number | null | undefined, timeZone: string = TIME_ZONE): string {
+  if (!isNum(t)) return NO_VALUE;
+  return `${dateTime(t, timeZone).slice(0, 10)} ${clock(t, timeZone)}`;
+}
+
+/** A time of day with seconds, its date before it when it is not the day of `ref`. */
+export function clockOrDate(t: number | null | undefined, ref: number, timeZone: string = TIME_ZONE): string {
+  if (!isNum(t)) return NO_VALUE;
+  return dateTime(t, timeZone).slice(0, 10) === dateTime(ref, timeZone).slice(0, 10) ? clock(t, timeZone) : dateTimeSec(t, timeZone);
+}
+
+/** A process time as people read it on a live screen: the time of day, with its date when not today. */
+export function processTime(t: number | null | undefined): string {
+  return clockOrDate(t, Date.now());
 }
 
 /** "3 s ago", "4 min ago" — ages of data for stale warnings. `now` is passed in. */

@@ -1,7 +1,18 @@
 /** Pure helpers for the alarm list: order (the running batch's alarms first) and times in words. */
 import type { Alarm } from '../../../core/api/rest.ts';
 import { sortAlarms } from '../live/live-state.ts';
-import { clock, dateTime } from '../format/number-format.ts';
+import { clockOrDate } from '../format/number-format.ts';
+import { ALARM_KIND_NAMES, alarmName } from '../../../core/vocabulary/plain-names.ts';
+
+/**
+ * An alarm's name as a person reads it ('PC3 score', 'Q (SPE)', 'pace', 'analyzer'): the key's
+ * name where the vocabulary knows it, else its kind's; the codes stay in the API and exports.
+ */
+export function alarmTitle(a: Pick<Alarm, 'kind' | 'key'>): string {
+  const byKey = alarmName(a.key);
+  const known = byKey !== a.key.replace(/-/g, ' ');
+  return known ? byKey : (ALARM_KIND_NAMES[a.kind] ?? byKey);
+}
 
 /**
  * The running batch's alarms first, then the unit's other alarms (earlier batches, none); within
@@ -13,10 +24,7 @@ export function orderAlarms(alarms: Iterable<Alarm>, currentBatch: string | null
   return [...sorted.filter((a) => a.batch === currentBatch), ...sorted.filter((a) => a.batch !== currentBatch)];
 }
 
-/** A time of day with seconds, the date before it when it is not the same day as `ref`. */
-function when(t: number, ref: number): string {
-  return new Date(t).toDateString() === new Date(ref).toDateString() ? clock(t) : `${dateTime(t).slice(0, 10)} ${clock(t)}`;
-}
+const when = (t: number, ref: number) => clockOrDate(t, ref);
 
 /** Beyond this the server's time of receipt is worth showing beside the spectrum's time. */
 const RECEIPT_SHOWN_MS = 60_000;

@@ -3,14 +3,35 @@ import { useState } from 'preact/hooks';
 import type { Alarm } from '../../../core/api/rest.ts';
 import { api } from '../api/endpoints.ts';
 import { errorText } from '../api/problem.ts';
-import { alarmTimes, orderAlarms } from './alarm-data.ts';
+import { alarmTimes, alarmTitle, orderAlarms } from './alarm-data.ts';
 import { Advisory, Badge, ErrorBox } from '../components/status.tsx';
 import { PRIORITY_WORDS, alarmWords } from '../format/status-words.ts';
 import { clock, sig } from '../format/number-format.ts';
 import { DEFAULT_ALARM_SETTINGS } from '../../../core/alarms/types.ts';
 
-export function AlarmList({ alarms, now, title = 'Alarms', currentBatch = null }: { alarms: Alarm[]; now: number; title?: string; currentBatch?: string | null }) {
+export function AlarmList({
+  alarms,
+  now,
+  title = 'Alarms',
+  currentBatch = null,
+  onChanged,
+}: {
+  alarms: Alarm[];
+  now: number;
+  title?: string;
+  currentBatch?: string | null;
+  /** Called after an acknowledge or shelve where the list is not fed live (Review). */
+  onChanged?: () => void;
+}) {
   const list = orderAlarms(alarms, currentBatch);
+  // one group per batch, in the order of the list (the running batch first)
+  const groups: { batch: string | null; alarms: Alarm[]; unacked: Alarm[] }[] = [];
+  for (const a of list) {
+    let g = groups.find((x) => x.batch === a.batch);
+    if (!g) groups.push((g = { batch: a.batch, alarms: [], unacked: [] }));
+    g.alarms.push(a);
+    if (a.state === 'active-unacknowledged' || a.state === 'cleared-unacknowledged') g.unacked.push(a);
+  }
   const [error, setError] = useState<string | null>(null);
   const [shelving, setShelving] = useState<string | null>(null);
   const [busy, setBusy] = useState<string | null>(null);
@@ -19,6 +40,7 @@ export function AlarmList({ alarms, now, title = 'Alarms', currentBatch = null }
     setError(null);
     try {
       await f();
+      onChanged?.();
     } catch (e) {
       setError(errorText(e));
     } finally {
@@ -33,66 +55,89 @@ export function AlarmList({ alarms, now, title = 'Alarms', currentBatch = null }
       </div>
       {error && <ErrorBox message={error} />}
       {list.length === 0 && <p class="muted">No alarms.</p>}
-      <ul class="alarm-rows">
-        {list.map((a) => {
-          const w = alarmWords(a, now);
-          const unack = a.state === 'active-unacknowledged' || a.state === 'cleared-unacknowledged';
-          return (
-            <li key={a.id} class={`alarm-row state-${a.state}`} data-testid={`alarm-${a.id}`}>
-              <div class="alarm-line">
-                <Badge tone={w.tone}>{w.text}</Badge>
-                <span class="prio">{PRIORITY_WORDS[a.priority]}</span>
-                <b>{a.kind === 'envelope' ? a.key.toUpperCase() : a.kind.toUpperCase()}</b>
-                <span class="alarm-batch small" data-testid="alarm-batch">
-                  {a.batch === null ? 'no batch' : a.batch === currentBatch ? `this batch (${a.batch})` : `earlier batch ${a.batch}`}
-                </span>
-                {a.chattering && (
-                  <Badge tone="warn" title={`${a.recentActivations ?? 3} activations within the last minute (ANSI/ISA-18.2: ≥ 3 a minute is chattering)`}>
-                    chattering ×{a.recentActivations}
-                  </Badge>
-                )}
-              </div>
-              <div class="alarm-msg">{a.message}</div>
-              <div class="alarm-meta muted small">
-                {alarmTimes(a, now)}
-                {/* pace is judged on log time; its message gives the minutes, the one pace figure shown */}
-                {a.value !== null && a.limit !== null && a.key !== 'pace' && ` · value ${sig(a.value)} / limit ${sig(a.limit)}`}
-                {a.acknowledgedBy && ` · acknowledged by ${a.acknowledgedBy} ${clock(a.acknowledgedAt)}`}
-                {a.shelvedUntil && a.shelvedUntil > now && ` · shelved by ${a.shelvedBy ?? '?'} until ${clock(a.shelvedUntil)}: ${a.shelveReason ?? ''}`}
-              </div>
-              <div class="alarm-actions">
-                {unack && (
-                  <button type="button" class="btn small primary" disabled={busy === a.id} onClick={() => act(a.id, () => api.acknowledge(a.id))}>
-                    Acknowledge
-                  </button>
-                )}
-                {a.shelvedUntil && a.shelvedUntil > now ? (
-                  <button type="button" class="btn small" disabled={busy === a.id} onClick={() => act(a.id, () => api.unshelve(a.id))}>
-                    Unshelve
-                  </button>
-                ) : (
-                  a.state !== 'normal' && (
-                    <button type="button" class="btn small" onClick={() => setShelving(shelving === a.id ? null : a.id)}>
-                      Shelve…
-                    </button>
-                  )
-                )}
-              </div>
-              {shelving === a.id && (
-                <ShelveForm
-                  onCancel={() => setShelving(null)}
-                  onShelve={(minutes, reason) =>
-                    act(a.id, async () => {
-                      await api.shelve(a.id, minutes, reason);
-                      setShelving(null);
-                    })
-                  }
-                />
+      {groups.map((g) => (
+        <div class="alarm-group" key={g.batch ?? '-'} data-testid={`alarm-group-${g.batch ?? 'none'}`}>
+          {groups.length > 1 || g.unacked.length > 1 ? (
+            <div class="alarm-group-head small">
+              <b>{g.batch === null ? 'No batch' : g.batch === currentBatch ? `This batch (${g.batch})` : `Earlier batch ${g.batch}`}</b>
+              {` · ${g.alarms.length} alarm${g.alarms.length === 1 ? '' : 's'}`}
+              {g.unacked.length > 0 && ` · ${g.unacked.length} to acknowledge`}
+              {g.unacked.length > 1 && (
+                <button
+                  type="button"
+                  class="btn small"
+                  disabled={busy !== null}
+                  onClick={() => act(`group:${g.batch}`, async () => {
+                    for (const a of g.unacked) await api.acknowledge(a.id);
+                  })}
+                >
+                  Acknowledge these {g.unacked.length}
+                </button>
               )}
-            </li>
-          );
-        })}
-      </ul>
+            </div>
+          ) : null}
+          <ul class="alarm-rows">
+            {g.alarms.map((a) => {
+              const w = alarmWords(a, now);
+              const unack = a.state === 'active-unacknowledged' || a.state === 'cleared-unacknowledged';
+              return (
+                <li key={a.id} class={`alarm-row state-${a.state}`} data-testid={`alarm-${a.id}`}>
+                  <div class="alarm-line">
+                    <Badge tone={w.tone}>{w.text}</Badge>
+                    <span class="prio">{PRIORITY_WORDS[a.priority]}</span>
+                    <b data-testid="alarm-name">{alarmTitle(a)}</b>
+                    <span class="alarm-batch small" data-testid="alarm-batch">
+                      {a.batch === null ? 'no batch' : a.batch === currentBatch ? `this batch (${a.batch})` : `earlier batch ${a.batch}`}
+                    </span>
+                    {a.chattering && (
+                      <Badge tone="warn" title={`${a.recentActivations ?? 3} activations within the last minute (ANSI/ISA-18.2: ≥ 3 a minute is chattering)`}>
+                        chattering ×{a.recentActivations}
+                      </Badge>
+                    )}
+                  </div>
+                  <div class="alarm-msg">{a.message}</div>
+                  <div class="alarm-meta muted small">
+                    {alarmTimes(a, now)}
+                    {/* pace is judged on log time; its message gives the minutes, the one pace figure shown */}
+                    {a.value !== null && a.limit !== null && a.key !== 'pace' && ` · value ${sig(a.value)} / limit ${sig(a.limit)}`}
+                    {a.acknowledgedBy && ` · acknowledged by ${a.acknowledgedBy} ${clock(a.acknowledgedAt)}`}
+                    {a.shelvedUntil && a.shelvedUntil > now && ` · shelved by ${a.shelvedBy ?? '?'} until ${clock(a.shelvedUntil)}: ${a.shelveReason ?? ''}`}
+                  </div>
+                  <div class="alarm-actions">
+                    {unack && (
+                      <button type="button" class="btn small primary" disabled={busy === a.id} onClick={() => act(a.id, () => api.acknowledge(a.id))}>
+                        Acknowledge
+                      </button>
+                    )}
+                    {a.shelvedUntil && a.shelvedUntil > now ? (
+                      <button type="button" class="btn small" disabled={busy === a.id} onClick={() => act(a.id, () => api.unshelve(a.id))}>
+                        Unshelve
+                      </button>
+                    ) : (
+                      a.state !== 'normal' && (
+                        <button type="button" class="btn small" onClick={() => setShelving(shelving === a.id ? null : a.id)}>
+                          Shelve…
+                        </button>
+                      )
+                    )}
+                  </div>
+                  {shelving === a.id && (
+                    <ShelveForm
+                      onCancel={() => setShelving(null)}
+                      onShelve={(minutes, reason) =>
+                        act(a.id, async () => {
+                          await api.shelve(a.id, minutes, reason);
+                          setShelving(null);
+                        })
+                      }
+                    />
+                  )}
+                </li>
+              );
+            })}
+          </ul>
+        </div>
+      ))}
       <Advisory />
     </div>
   );

@@ -6,7 +6,7 @@ import { useAsync } from '../components/use-async.ts';
 import { Chart } from '../charts/chart.tsx';
 import { contributionOptions } from '../charts/chart-options.ts';
 import { ErrorBox, Loading } from '../components/status.tsx';
-import { clock } from '../format/number-format.ts';
+import { processTime } from '../format/number-format.ts';
 import { STYLE } from '../theme/palette.ts';
 import { contributionSeries, topShares } from './contribution-data.ts';
 import { RegionShareTable } from './region-share-table.tsx';
@@ -21,7 +21,7 @@ export function ContributionsPanel({ batch, seq, onClose }: { batch: string; seq
       <div class="panel-head">
         <h2>
           Contributions · spectrum #{seq}
-          {res.data && <span class="sub"> at {clock(res.data.t)}</span>}
+          {res.data && <span class="sub"> at {processTime(res.data.t)}</span>}
         </h2>
         <span>
           {(['q', 't2', 'rbcQ', 'rbcT2'] as const).map((k) => (

@@ -2,6 +2,7 @@
  * Floor tile texts that must agree with each other: progress along the golden course, time to the
  * endpoint (or why there is none: reached, due now, stalled) and which alarms stand. Pure.
  */
+import { alarmTitle } from './alarm-data.ts';
 import type { Alarm } from '../../../core/api/rest.ts';
 import type { EndpointStatus } from '../../../core/monitor/types.ts';
 import { eta, minutes, percent } from '../format/number-format.ts';
@@ -46,21 +47,8 @@ export function progressText(fraction: number | null | undefined, ep: Pick<Endpo
   return `${head} · ${minutes(elapsedMin)} elapsed`;
 }
 
-const KEY_NAMES: Readonly<Record<string, string>> = {
-  t2: 'Hotelling T²',
-  q: 'Q (SPE)',
-  combined: 'combined index',
-  pace: 'pace',
-  stale: 'no data from the analyzer',
-  property: 'predicted property',
-};
-
-/** The name of an alarm on screens: 'pc3' → 'PC3 score', 't2' → 'Hotelling T²' (codes stay in the API). */
-export function alarmTitle(a: Pick<Alarm, 'key' | 'kind'>): string {
-  const pc = /^pc(\d+)$/i.exec(a.key);
-  if (pc) return `PC${pc[1]} score`;
-  return KEY_NAMES[a.key] ?? a.key.replace(/-/g, ' ');
-}
+/** The name of an alarm on screens (one vocabulary, core/vocabulary/plain-names.ts). */
+export { alarmTitle };
 
 /** "1 active alarm: PC3 score (P3 medium)" — which alarms stand, highest priority first, at most three named. */
 export function activeAlarmsText(alarms: Iterable<Alarm>, unit: string): string | null {

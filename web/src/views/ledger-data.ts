@@ -9,16 +9,16 @@ export interface LedgerFilter {
   user: string;
   action: string;
   object: string;
-  /** datetime-local values (browser local time) or ISO strings. */
+  /** datetime-local values (read in UTC, the zone the Ledger shows) or ISO strings. */
   from: string;
   to: string;
 }
 
-/** Query parameters for /api/audit: local datetimes converted to ISO UTC; newest first. */
+/** Query parameters for /api/audit: datetimes without a zone read as UTC, sent as ISO; newest first. */
 export function ledgerQuery(f: LedgerFilter, limit: number | undefined): Record<string, string | number | undefined> {
   const iso = (v: string) => {
     if (!v) return undefined;
-    const d = new Date(v);
+    const d = new Date(/^\d{4}-\d\d-\d\dT\d\d:\d\d(:\d\d(\.\d+)?)?$/.test(v.trim()) ? `${v.trim()}Z` : v);
     return Number.isNaN(d.getTime()) ? v : d.toISOString();
   };
   return { user: f.user || undefined, action: f.action || undefined, object: f.object || undefined, from: iso(f.from), to: iso(f.to), limit, order: 'desc' };

@@ -44,10 +44,10 @@ export function Ledger({ filter }: { filter: Record<string, string> }) {
           object <input value={draft.object} onInput={set('object')} placeholder="e.g. model: or alarm:42" />
         </label>
         <label>
-          from <input type="datetime-local" value={draft.from} onInput={set('from')} />
+          from (UTC) <input type="datetime-local" value={draft.from} onInput={set('from')} />
         </label>
         <label>
-          to <input type="datetime-local" value={draft.to} onInput={set('to')} />
+          to (UTC) <input type="datetime-local" value={draft.to} onInput={set('to')} />
         </label>
         <button class="btn primary" type="submit">
           Filter

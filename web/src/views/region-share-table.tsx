@@ -1,6 +1,7 @@
 /** The wavelength regions with their band assignments and shares of T² and Q, as a table that adds up to 100 %. */
 import { percent, sig } from '../format/number-format.ts';
 import { withRemainder } from './review-data.ts';
+import { assignmentName } from '../../../core/vocabulary/plain-names.ts';
 
 export interface RegionShareRow {
   name: string;
@@ -34,7 +35,7 @@ export function RegionShareTable({ caption, rows, totalRegions }: { caption: str
           <tr key={r.name}>
             <td>{r.name}</td>
             <td>{r.from === null || r.to === null ? '' : `${sig(r.from, 4)}–${sig(r.to, 4)}`}</td>
-            <td>{r.assignment}</td>
+            <td>{assignmentName(r.assignment)}</td>
             <td class="num">{percent(r.t2Share)}</td>
             <td class="num">{percent(r.qShare)}</td>
           </tr>

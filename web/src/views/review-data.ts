@@ -1,5 +1,7 @@
 /** Pure helpers for Review: departure timeline, first exit from results, contribution averaging. */
-import type { Alarm, BatchDetail } from '../../../core/api/rest.ts';
+import type { Alarm, BatchDetail, BatchSummary } from '../../../core/api/rest.ts';
+import { endpointStateName } from '../../../core/vocabulary/plain-names.ts';
+import { alarmTitle } from './alarm-data.ts';
 import type { Contributions, MonitorResult } from '../../../core/monitor/types.ts';
 import type { BatchComparison } from '../../../core/compare/compare-batch.ts';
 
@@ -96,9 +98,16 @@ export function timeline(b: BatchDetail, results: MonitorResult[], alarms: Alarm
     const fe = firstExit(results);
     if (fe) ev.push({ tMin: fe.result.elapsedMin, kind: 'first-exit', label: `first exit: ${fe.what}` });
   }
+  // An alarm's times on the batch's clock: the analyzer's time of the spectrum that raised (and
+  // cleared) it where the server kept it; `seq` names the spectrum of the latest change only.
+  const onClock = (t: number) => (t - b.startedAt) / 60000;
   for (const a of alarms) {
-    ev.push({ tMin: at(a.seq, a.raisedAt), kind: 'alarm', label: `alarm P${a.priority}: ${a.message}` });
-    if (a.clearedAt !== null && a.seq === null) ev.push({ tMin: (a.clearedAt - b.startedAt) / 60000, kind: 'alarm-cleared', label: `alarm cleared (${a.key})` });
+    const raised = a.raisedSpectrumT != null ? onClock(a.raisedSpectrumT) : a.clearedAt === null ? at(a.seq, a.raisedAt) : onClock(a.raisedAt);
+    ev.push({ tMin: raised, kind: 'alarm', label: `alarm P${a.priority}: ${a.message}` });
+    if (a.clearedAt !== null) {
+      const cleared = a.spectrumT != null ? onClock(a.spectrumT) : at(a.seq, a.clearedAt);
+      ev.push({ tMin: cleared, kind: 'alarm-cleared', label: `alarm cleared (${alarmTitle(a)})` });
+    }
   }
   for (const e of b.endpointEvents) ev.push({ tMin: at(e.seq, e.t), kind: 'endpoint', label: e.to === 'held' ? `endpoint ${e.from === 'held' ? 'still held' : `${e.from} → held`}: ${e.reason}` : `endpoint ${e.from} → ${e.to}` });
   if (b.endedAt !== null) ev.push({ tMin: (b.endedAt - b.startedAt) / 60000, kind: 'end', label: `batch end${b.endReason ? ` (${b.endReason})` : ''}` });
@@ -156,4 +165,22 @@ export function sampleSeqs(results: MonitorResult[], fromSeq: number, toSeq: num
   const inWin = results.filter((r) => r.seq >= fromSeq && r.seq <= toSeq).map((r) => r.seq);
   if (inWin.length <= n) return inWin;
   return Array.from({ length: n }, (_, k) => inWin[Math.round((k * (inWin.length - 1)) / (n - 1))]);
+}
+
+/**
+ * A batch's endpoint as its record states it, in words that agree with the end: a batch that
+ * ended before its endpoint was reached says "not reached", never "running".
+ */
+export function endpointRecordText(b: Pick<BatchSummary, 'status' | 'endpointState' | 'model'>): { text: string; tone: 'ok' | 'warn' | 'info' | 'muted'; reached: boolean } {
+  if (b.endpointState === null) return { text: b.model ? 'no endpoint rule' : 'not judged by a model', tone: 'muted', reached: false };
+  const reached = b.endpointState === 'done' || b.endpointState === 'signalled';
+  if (reached) return { text: b.endpointState === 'signalled' ? 'endpoint reached and signalled' : 'endpoint reached', tone: 'ok', reached };
+  if (b.status === 'ended') return { text: b.endpointState === 'held' ? 'endpoint not reached (held by a guard at the end)' : `endpoint not reached (${endpointStateName(b.endpointState)} at the end)`, tone: 'warn', reached };
+  return { text: `endpoint ${endpointStateName(b.endpointState)}`, tone: 'info', reached };
+}
+
+/** "3 suspect scans" — single spectra beyond a limit that raised no alarm on their own; null when not counted. */
+export function suspectScansText(n: number | null | undefined): string | null {
+  if (n === undefined || n === null) return null;
+  return n === 0 ? 'no suspect scans' : `${n} suspect scan${n === 1 ? '' : 's'}`;
 }

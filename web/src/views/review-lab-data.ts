@@ -87,18 +87,19 @@ export function labPoints(rows: LabValueRow[], property: string, startedAt: numb
   return rows.filter((r) => r.effective && norm(r.property) === p).map((r) => ({ elapsedMin: (r.sampleT - startedAt) / 60000, value: r.value }));
 }
 
-/** A datetime-local field's text ("2026-12-05T13:27" or with seconds) as ms epoch in the browser's zone; null when not a time. */
-export function localTimeMs(text: string): number | null {
+/**
+ * A datetime-local field's text ("2026-12-05T13:27" or with seconds) as ms epoch, read in the
+ * dashboard's one zone (UTC, docs/dashboard.md "Time"), not the browser's; null when not a time.
+ */
+export function fieldTimeMs(text: string): number | null {
   if (!/^\d{4}-\d{2}-\d{2}T\d{2}:\d{2}(:\d{2}(\.\d+)?)?$/.test(text.trim())) return null;
-  const t = new Date(text.trim()).getTime();
+  const t = new Date(`${text.trim()}Z`).getTime();
   return Number.isFinite(t) ? t : null;
 }
 
-/** ms epoch as a datetime-local field's text to the second, in the browser's zone. */
-export function localTimeText(t: number): string {
-  const d = new Date(t);
-  const p = (n: number) => String(n).padStart(2, '0');
-  return `${d.getFullYear()}-${p(d.getMonth() + 1)}-${p(d.getDate())}T${p(d.getHours())}:${p(d.getMinutes())}:${p(d.getSeconds())}`;
+/** ms epoch as a datetime-local field's text to the second, in the dashboard's zone (UTC). */
+export function fieldTimeText(t: number): string {
+  return new Date(t).toISOString().slice(0, 19);
 }
 
 /** What the form holds (all text, as typed). */
@@ -139,7 +140,7 @@ export function labBody(f: LabForm, startedAt: number): { body: LabValueBody } |
   if (!f.unit.trim()) errors.unit = 'Give the unit the lab reports, e.g. % w/w.';
   let sampleT: number | null = null;
   if (f.timeAs === 'clock') {
-    sampleT = localTimeMs(f.at);
+    sampleT = fieldTimeMs(f.at);
     if (sampleT === null) errors.sampleT = 'Give the date and time the sample was taken.';
   } else {
     const m = parseNumber(f.elapsedMin);

@@ -9,18 +9,13 @@ import { post } from '../api/http.ts';
 import { ApiError, errorText } from '../api/problem.ts';
 import type { Me } from '../api/session.ts';
 import { ErrorBox } from '../components/status.tsx';
-import { dateTime, minutes, sig } from '../format/number-format.ts';
+import { clock, dateTime, dateTimeSec, minutes, sig, TIME_ZONE } from '../format/number-format.ts';
 import { FieldError } from './bench/field-error.tsx';
-import { fieldOf, labBody, localTimeText, type LabForm, type LabValueRow } from './review-lab-data.ts';
-
-const ZONE = Intl.DateTimeFormat().resolvedOptions().timeZone;
+import { fieldOf, labBody, fieldTimeText, type LabForm, type LabValueRow } from './review-lab-data.ts';
 
 /** A lab value as the lab reported it (no padding zeros): "4.2 % w/w". */
 const labValue = (v: number, unit: string) => `${String(Number(v.toPrecision(6))).replace('-', '−')}${unit ? ` ${unit}` : ''}`;
 
-function clockSec(t: number): string {
-  return new Intl.DateTimeFormat('en-GB', { hour: '2-digit', minute: '2-digit', second: '2-digit', hour12: false }).format(new Date(t));
-}
 
 export function LabValues({
   batch,
@@ -41,7 +36,7 @@ export function LabValues({
   me: Me | null;
   onAdded: () => void;
 }) {
-  const blank = (): LabForm => ({ property: property?.name ?? '', value: '', unit: property?.unit ?? '', timeAs: 'elapsed', at: localTimeText(startedAt), elapsedMin: '', method: '', supersedes: null, reason: '' });
+  const blank = (): LabForm => ({ property: property?.name ?? '', value: '', unit: property?.unit ?? '', timeAs: 'elapsed', at: fieldTimeText(startedAt), elapsedMin: '', method: '', supersedes: null, reason: '' });
   const [form, setForm] = useState<LabForm>(blank);
   const [errors, setErrors] = useState<Record<string, string>>({});
   const [busy, setBusy] = useState(false);
@@ -54,7 +49,7 @@ export function LabValues({
   const correct = (r: LabValueRow) => {
     setDone(null);
     setErrors({});
-    setForm({ property: r.property, value: '', unit: r.unit, timeAs: 'clock', at: localTimeText(r.sampleT), elapsedMin: sig((r.sampleT - startedAt) / 60000, 6), method: r.method ?? '', supersedes: r.id, reason: '' });
+    setForm({ property: r.property, value: '', unit: r.unit, timeAs: 'clock', at: fieldTimeText(r.sampleT), elapsedMin: sig((r.sampleT - startedAt) / 60000, 6), method: r.method ?? '', supersedes: r.id, reason: '' });
     document.getElementById('lab-form')?.scrollIntoView({ block: 'nearest' });
   };
 
@@ -108,7 +103,7 @@ export function LabValues({
         <table class="batch-table" data-testid="lab-table">
           <thead>
             <tr>
-              <th scope="col">sampled ({ZONE})</th>
+              <th scope="col">sampled ({TIME_ZONE})</th>
               <th scope="col" class="num">from start</th>
               <th scope="col">property</th>
               <th scope="col" class="num">value</th>
@@ -122,14 +117,14 @@ export function LabValues({
           <tbody>
             {rows.map((r) => (
               <tr key={r.id} class={r.effective ? '' : 'muted'} data-testid="lab-row">
-                <td>{dateTime(r.sampleT)}:{String(new Date(r.sampleT).getSeconds()).padStart(2, '0')}</td>
+                <td>{dateTimeSec(r.sampleT)}</td>
                 <td class="num">{minutes((r.sampleT - startedAt) / 60000)}</td>
                 <td>{r.property}</td>
                 <td class="num">{labValue(r.value, r.unit)}</td>
                 <td>{r.method ?? '—'}</td>
                 <td class="small">
                   {r.spectrumIdx === null ? '—' : `no. ${r.spectrumIdx + 1}`}
-                  {r.spectrumT !== null && ` at ${clockSec(r.spectrumT)}`}
+                  {r.spectrumT !== null && ` at ${clock(r.spectrumT)}`}
                   {r.spectrumDtMs !== null && ` (${sig(r.spectrumDtMs / 1000, 3)} s from the sample)`}
                 </td>
                 <td class="small">
@@ -187,7 +182,7 @@ export function LabValues({
               <input type="radio" name="lab-time-as" checked={form.timeAs === 'elapsed'} onChange={() => setForm({ ...form, timeAs: 'elapsed' })} /> minutes after the batch start
             </label>
             <label>
-              <input type="radio" name="lab-time-as" checked={form.timeAs === 'clock'} onChange={() => setForm({ ...form, timeAs: 'clock' })} /> at a date and time ({ZONE})
+              <input type="radio" name="lab-time-as" checked={form.timeAs === 'clock'} onChange={() => setForm({ ...form, timeAs: 'clock' })} /> at a date and time ({TIME_ZONE})
             </label>
             {form.timeAs === 'elapsed' ? (
               <label>

@@ -4,6 +4,7 @@ import type uPlot from 'uplot';
 import type { BatchDetail, ModelEnvelopeView, ResultRecord } from '../../../core/api/rest.ts';
 import { api } from '../api/endpoints.ts';
 import { EndpointHolds } from './endpoint-holds.tsx';
+import { AlarmList } from './alarm-list.tsx';
 import { get } from '../api/http.ts';
 import { ApiError } from '../api/problem.ts';
 import type { ComparisonResponse } from './review-data.ts';
@@ -13,7 +14,7 @@ import { Advisory, Badge, Empty, ErrorBox, Loading } from '../components/status.
 import { Chart } from '../charts/chart.tsx';
 import { contributionOptions, scoreChartOptions, statChartOptions } from '../charts/chart-options.ts';
 import { progressLabel, scoreBand } from './watch-data.ts';
-import { alignedLine, comparisonWindow, departureWindow, meanContributions, sampleSeqs, timeline } from './review-data.ts';
+import { alignedLine, comparisonWindow, departureWindow, endpointRecordText, meanContributions, sampleSeqs, suspectScansText, timeline } from './review-data.ts';
 import { topShares } from './contribution-data.ts';
 import { RegionShareTable } from './region-share-table.tsx';
 import { PropertyOverTime } from './review-property.tsx';
@@ -97,7 +98,8 @@ function BatchPicker({ current, compare }: { current: string | null; compare: st
               </span>
               <br />
               <span class="small">
-                {dateTime(b.startedAt)} · {b.alarmCount ? `${b.alarmCount} alarms` : 'no alarms'} · {b.endpointState ?? 'no endpoint'}
+                {dateTime(b.startedAt)} · {b.alarmCount ? `${b.alarmCount} alarm${b.alarmCount === 1 ? '' : 's'}` : 'no alarms'} · {endpointRecordText(b).text}
+                {b.suspectCount ? ` · ${suspectScansText(b.suspectCount)}` : ''}
               </span>
             </a>
             {current && b.id !== current && (
@@ -168,20 +170,44 @@ function BatchReview({ id, compare, me }: { id: string; compare: string[]; me: M
           <dd>{d.model ? `${d.model.name} v${d.model.version} (${d.model.sha256.slice(0, 12)}…)` : 'no model'}</dd>
           <dt>Endpoint</dt>
           <dd>
-            {d.endpointState ? <Badge tone={ENDPOINT_WORDS[d.endpointState].tone} title={ENDPOINT_WORDS[d.endpointState].help}>{d.endpointState}</Badge> : '—'} {d.endpointAt && `at ${minutes((d.endpointAt - d.startedAt) / 60000)}`}
+            <span data-testid="endpoint-record">
+              <Badge tone={endpointRecordText(d).tone} title={d.endpointState ? ENDPOINT_WORDS[d.endpointState].help : undefined}>
+                {endpointRecordText(d).text}
+              </Badge>{' '}
+              {d.endpointAt && `at ${minutes((d.endpointAt - d.startedAt) / 60000)} from the start`}
+            </span>
             {d.endpointState === 'held' && <EndpointHolds holds={[...rs].reverse().find((r) => r.endpoint.state === 'held')?.endpoint.holds} />}
+          </dd>
+          <dt>Ended</dt>
+          <dd data-testid="end-statement">
+            {d.endReason ?? (d.status === 'open' ? 'still running' : '—')}
+            {d.end?.disagreement && (
+              <span class="field-error small">
+                {' '}
+                <span aria-hidden="true">▲ </span>
+                {d.end.disagreement}
+              </span>
+            )}
           </dd>
           <dt>Duration</dt>
           <dd data-testid="golden-duration">{goldenDurationText(d, version.data?.referenceEndpoints ?? [])}</dd>
           <dt>Alarms</dt>
           <dd>{d.alarmCount}</dd>
           <dt>Spectra</dt>
-          <dd>{d.spectrumCount}</dd>
+          <dd>
+            {d.spectrumCount}
+            {d.suspectCount != null && ` (${suspectScansText(d.suspectCount)}: single spectra beyond a limit that raised no alarm on their own)`}
+          </dd>
         </dl>
       </div>
       {results.error && <ErrorBox message={results.error} onRetry={results.reload} />}
       {results.loading && !results.data && <Loading what="results" />}
       {results.data && <Timeline events={timeline(d, rs, d.alarms, c)} durationMin={d.endedAt ? (d.endedAt - d.startedAt) / 60000 : (rs[rs.length - 1]?.elapsedMin ?? 0)} />}
+      {d.alarms.some((a) => a.state !== 'normal') && (
+        <div class="review-alarms" data-testid="review-alarms">
+          <AlarmList alarms={d.alarms} now={Date.now()} title="This batch's alarms still to attend to" currentBatch={d.id} onChanged={detail.reload} />
+        </div>
+      )}
       {cmp.error && <ErrorBox message={`Comparison: ${cmp.error}`} />}
       {results.data && (
         <Overlay

@@ -9,7 +9,7 @@ import { Chart } from '../charts/chart.tsx';
 import { spectrumOptions } from '../charts/chart-options.ts';
 import type { Band } from '../charts/envelope-band.ts';
 import { ErrorBox, Loading } from '../components/status.tsx';
-import { clock, sig } from '../format/number-format.ts';
+import { processTime, sig } from '../format/number-format.ts';
 import { STYLE } from '../theme/palette.ts';
 import type { SeriesStyle } from '../theme/palette.ts';
 import { sortedByAxis } from './spectrum-data.ts';
@@ -69,7 +69,7 @@ export function SpectrumPanel({ batch, seq, following }: { batch: string; seq: n
       <div class="panel-head">
         <h2>
           Spectrum {loaded ? `#${loaded.kind === 'view' ? loaded.v.seq : loaded.seq}` : ''}
-          {loaded && <span class="sub"> {clock(loaded.kind === 'view' ? loaded.v.t : loaded.t)}</span>}
+          {loaded && <span class="sub"> {processTime(loaded.kind === 'view' ? loaded.v.t : loaded.t)}</span>}
         </h2>
         <span class="muted small">{following ? 'following the latest (refreshed every 3 s)' : 'selected point'}</span>
       </div>

@@ -19,7 +19,7 @@ import { etaText, stallAlarm } from './floor-data.ts';
 import { useEnvelope } from './use-envelope.ts';
 import { alarmedPcsOf, alarmLimitScope, availablePcs, goldenPath, hasAlarmLimit, hasLocal, progressLabel, referencePaths, scoreBand, scoreData, statData, statLines } from './watch-data.ts';
 import { ENDPOINT_WORDS } from '../format/status-words.ts';
-import { clock, limitName, minutes, percent, sig, withUnit } from '../format/number-format.ts';
+import { limitName, processTime, minutes, percent, sig, withUnit } from '../format/number-format.ts';
 import { STYLE } from '../theme/palette.ts';
 import { href } from '../router.ts';
 
@@ -154,7 +154,7 @@ function WatchHead({ unit, s, connection }: { unit: string; s: LiveState; connec
       </h1>
       <div class="head-facts">
         {b && <span>product {b.product}</span>}
-        {b && <span>started {clock(b.startedAt)}</span>}
+        {b && <span>started {processTime(b.startedAt)}</span>}
         {r && <span>{minutes(r.elapsedMin)} elapsed</span>}
         {r && <span>{percent(r.progressFraction)} of golden course</span>}
         {s.model && (
@@ -371,7 +371,7 @@ export function EndpointPanel({ ep, s }: { ep: EndpointStatus | null; s: LiveSta
           <>
             <dt>Reached</dt>
             <dd>
-              {clock(ep.doneAt.t)} (spectrum #{ep.doneAt.seq}) — {ep.doneAt.reason}
+              {processTime(ep.doneAt.t)} (spectrum #{ep.doneAt.seq}) — {ep.doneAt.reason}
             </dd>
           </>
         )}
