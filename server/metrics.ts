@@ -30,6 +30,7 @@ export function createMetrics() {
     }),
     ingestConnections: new client.Gauge({ name: 'tideline_ingest_connections', help: 'Open analyzer connections', registers: [registry] }),
     liveConnections: new client.Gauge({ name: 'tideline_live_connections', help: 'Open live (browser) connections', registers: [registry] }),
+    signalGaps: new client.Counter({ name: 'tideline_signal_gaps_total', help: 'Gaps in a unit\'s outbox seq that a signal channel went past after waiting (never expected: rows commit in seq order)', labelNames: ['channel'], registers: [registry] }),
     liveDropped: new client.Counter({ name: 'tideline_live_results_dropped_total', help: 'Live result messages dropped for slow clients (replaced by gap notices)', registers: [registry] }),
     activeAlarms: new client.Gauge({ name: 'tideline_alarms_active', help: 'Alarms not in state normal', labelNames: ['state'], registers: [registry] }),
   };

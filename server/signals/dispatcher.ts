@@ -5,6 +5,12 @@
  * with backoff; after `maxAttempts` the row is dead-lettered and the queue moves on. Units are
  * independent: one unit's failing row does not hold up another unit.
  *
+ * A unit's rows are delivered without a gap: when the next row above the cursor is not the one right
+ * after it, delivery of that unit waits (a row numbered before it may still be on its way to the
+ * outbox) and goes on past the gap only when it has stood for `gapWaitMs`, reporting it through
+ * `onGap`. The server commits a unit's rows in seq order, so a gap is a fault to look into, never
+ * the normal case.
+ *
  * After a restart the loop resumes from the stored cursors. A row confirmed by the receiver but
  * not yet marked when the process died is sent again with the same id and seq: receivers
  * deduplicate by id.
@@ -35,6 +41,10 @@ export interface DispatcherOptions {
   onError?: (channel: string, event: SignalEnvelope, error: Error, attempts: number, dead: boolean) => void;
   /** Called after the receiver confirmed an event and the cursor moved past it. */
   onDelivered?: (channel: string, event: SignalEnvelope) => void;
+  /** How long a gap in a unit's seq may stand before delivery goes on past it, ms (default 5000: many group commits). */
+  gapWaitMs?: number;
+  /** Called when delivery goes on past a gap (seqs `from`…`to` missing) that stood for `waitedMs`. */
+  onGap?: (channel: string, unit: string, from: number, to: number, waitedMs: number) => void;
   /** A channel running for the first time starts at the end of the outbox instead of replaying it (default false: replay). */
   startAtEnd?: boolean;
 }
@@ -43,6 +53,8 @@ export interface DispatcherStats {
   delivered: number;
   failed: number;
   dead: number;
+  /** Gaps in a unit's seq that delivery went past after gapWaitMs. */
+  gaps: number;
 }
 
 export class SignalDispatcher {
@@ -53,7 +65,9 @@ export class SignalDispatcher {
   private readonly batchSize: number;
   private readonly now: () => number;
   private readonly random: () => number;
-  readonly stats: DispatcherStats = { delivered: 0, failed: 0, dead: 0 };
+  readonly stats: DispatcherStats = { delivered: 0, failed: 0, dead: 0, gaps: 0 };
+  /** Per unit: the first missing seq of a gap seen and since when. */
+  private readonly gapSeen = new Map<string, { seq: number; since: number }>();
 
   constructor(
     private readonly store: OutboxStore,
@@ -126,11 +140,14 @@ export class SignalDispatcher {
     const name = this.channel.name;
     let worked = false;
     while (!this.stopped) {
+      let expected = this.store.cursor(name, unit) + 1;
       const rows = this.store.pending(name, unit, this.batchSize);
       if (rows.length === 0) return worked;
       for (const row of rows) {
         if (this.stopped) return worked;
         if (this.channel.isReady && !this.channel.isReady()) return worked;
+        if (row.unit_seq > expected && !this.passGap(unit, expected, row.unit_seq - 1)) return worked;
+        expected = row.unit_seq + 1;
         const prev = this.store.attempt(name, row.id);
         if (prev && prev.next_at > this.now()) return worked; // backing off: keep order, try later
         const env = envelopeOf(row);
@@ -164,6 +181,22 @@ export class SignalDispatcher {
       }
     }
     return worked;
+  }
+
+  /** True when delivery may go on past the missing seqs from…to of a unit (the gap stood gapWaitMs). */
+  private passGap(unit: string, from: number, to: number): boolean {
+    const now = this.now();
+    const seen = this.gapSeen.get(unit);
+    if (!seen || seen.seq !== from) {
+      this.gapSeen.set(unit, { seq: from, since: now });
+      return false;
+    }
+    const waited = now - seen.since;
+    if (waited < (this.opts.gapWaitMs ?? 5000)) return false;
+    this.gapSeen.delete(unit);
+    this.stats.gaps++;
+    this.opts.onGap?.(this.channel.name, unit, from, to, waited);
+    return true;
   }
 
   private async retryRequeued(): Promise<boolean> {

@@ -88,6 +88,10 @@ export async function install(ctx: ServerContext): Promise<SignalsHandle> {
         now: ctx.now,
         startAtEnd: !cfg.replayHistory,
         onDelivered,
+        onGap: (channel, unit, from, to, waitedMs) => {
+          ctx.metrics.signalGaps.inc({ channel });
+          ctx.log.error(`signals/${channel}: unit ${unit} has no outbox row${from === to ? ` #${from}` : `s #${from}–${to}`} after ${(waitedMs / 1000).toFixed(1)} s; delivery goes on past the gap — those events were never committed (look for a failed commit in this log)`);
+        },
         onError: (channel, e, err, attempts, dead) => {
           const text = `signals/${channel}: event ${e.id} (${e.unit} #${e.seq}) attempt ${attempts} failed: ${err.message}${dead ? ' — dead-lettered' : ''}`;
           if (dead) ctx.log.warn(text);
