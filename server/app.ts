@@ -14,6 +14,7 @@ import { WebSocketServer } from 'ws';
 import { MAX_MESSAGE_BYTES } from '../core/protocol/ingest-messages.ts';
 import { LIVE_PATH } from '../core/api/live.ts';
 import { install as installAuth } from './auth/index.ts';
+import { applyIdleLimit, serverOptions } from './http-limits.ts';
 import { createWebServer, schemes } from './auth/tls.ts';
 import type { Role } from './auth/types.ts';
 import type { ServerConfig } from './config.ts';
@@ -63,7 +64,8 @@ export async function startServer(config: ServerConfig, opts: StartOptions = {})
   app.disable('x-powered-by');
   // https (and wss) when tls.cert/tls.key are configured (docs/security.md); made first, so that a
   // certificate that cannot be used stops the start before the database is opened
-  const http = createWebServer(app, config.tls);
+  const http = createWebServer(app, config.tls, serverOptions(config.http));
+  applyIdleLimit(http, config.http);
   const storage = new SqliteStorage({ file: opts.dbFile ?? join(config.dataDir, 'tideline.db'), synchronous: config.synchronous, checkpointInWorker: config.walCheckpoint === 'worker' });
   const metrics = createMetrics();
   const events = new EventEmitter();

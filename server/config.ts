@@ -125,6 +125,16 @@ export const configSchema = z
       .strict()
       .prefault({})
       .refine((m) => m.access !== 'token' || m.token !== null, { message: "access 'token' needs metrics.token (at least 32 characters)" }),
+    /** HTTP connection limits (server/http-limits.ts): a silent or trickling client cannot hold sockets. */
+    http: z
+      .object({
+        /** The request head (and the TLS handshake) must arrive within this, ms. */
+        headersTimeoutMs: z.number().int().min(1000).max(300_000).default(10_000),
+        /** A connection with nothing in flight and no byte moving for this long is closed, ms. */
+        idleTimeoutMs: z.number().int().min(1000).max(3_600_000).default(30_000),
+      })
+      .strict()
+      .prefault({}),
     logLevel: z.enum(['silent', 'error', 'warn', 'info', 'debug']).default('info'),
     /**
      * After SIGTERM/SIGINT, the longest `serve` waits for a clean stop (signal channels finishing a

@@ -31,11 +31,11 @@ export function loadTlsOptions(cfg: TlsConfig): https.ServerOptions {
 }
 
 /** An https server when `tls` is given (files read now; a bad cert/key throws naming the file), else http. */
-export function createWebServer(handler: http.RequestListener, tls: TlsConfig | null): http.Server | https.Server {
-  if (!tls) return http.createServer(handler);
+export function createWebServer(handler: http.RequestListener, tls: TlsConfig | null, serverOptions: http.ServerOptions & { handshakeTimeout?: number } = {}): http.Server | https.Server {
+  if (!tls) return http.createServer(serverOptions, handler);
   const opts = loadTlsOptions(tls);
   try {
-    return https.createServer(opts, handler);
+    return https.createServer({ ...serverOptions, ...opts }, handler);
   } catch (e) {
     throw new StartupError(`tls.cert ${tls.cert} and tls.key ${tls.key}: the certificate or key is not usable (${(e as Error).message})${tls.passphrase ? '' : '; an encrypted key needs tls.passphrase'}`);
   }
