@@ -16,7 +16,7 @@ import { Worker } from 'node:worker_threads';
 import { readBatchCsv, type CsvReadOptions } from '../../core/io/batch-csv.ts';
 import { readBatchJcamp } from '../../core/io/batch-jcamp.ts';
 import { ImportError, type ImportedBatch } from '../../core/io/imported-batch.ts';
-import { textProblem } from '../../core/io/names.ts';
+import { idProblem, textProblem } from '../../core/io/names.ts';
 import { matrixFromRows } from '../../core/linalg/dense-matrix.ts';
 import { fitChain } from '../../core/preprocess/index.ts';
 import { emptyIngestWrite, type LabValueRow, type Storage } from '../storage/storage.ts';
@@ -173,6 +173,12 @@ export function parseImportFilesInWorker(req: Pick<ImportRequest, 'files' | 'csv
   });
 }
 
+/** `s` with every character outside printable ASCII as \uXXXX, at most 80 of them. */
+function printable(s: string): string {
+  const t = s.length > 80 ? s.slice(0, 80) + '…' : s;
+  return t.replace(/[^\x20-\x7e…]/g, (c) => '\\u' + c.charCodeAt(0).toString(16).padStart(4, '0'));
+}
+
 /** A file without a batch column or label names its batch by the file name: "D-0042.csv" → "D-0042". */
 function fileStem(name: string): string {
   return name.replace(/^.*[\\/]/, '').replace(/\.[^.]*$/, '');
@@ -197,7 +203,10 @@ export async function importBatches(storage: Storage, req: ImportRequest, now: n
   for (const b of batches) {
     const bp = b.product === undefined ? null : textProblem(b.product, { max: 128 });
     if (bp) throw new ImportError(b.source.file, b.source.firstLine, `batch ${b.id}: the product name ${bp}`);
-    if (!/^[A-Za-z0-9._:-]{1,128}$/.test(b.id)) throw new ImportError(b.source.file, b.source.firstLine, `batch id "${b.id}" must be 1–128 letters, digits or . _ : -`);
+    const ip = idProblem(b.id);
+    // the id is shown escaped: a bidirectional or escape character in it would otherwise act on
+    // the terminal or page that shows the message
+    if (ip) throw new ImportError(b.source.file, b.source.firstLine, `the batch id "${printable(b.id)}" ${ip}`);
     if (await storage.getBatch(b.id)) throw new ImportError(b.source.file, b.source.firstLine, `batch ${b.id} is already in the record; it was not imported again`);
   }
   if (!(await storage.getAnalyzer(IMPORT_ANALYZER))) {

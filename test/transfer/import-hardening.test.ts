@@ -106,6 +106,10 @@ describe('what sites write still imports', () => {
 });
 
 describe('names that would break a file are refused at the door', () => {
+  it('a batch id with a bidirectional override or markup: refused, and shown escaped in the message', async () => {
+    await refused([{ name: 'bidi.csv', content: csv([`B\u202eX,${T0},1,2`]) }], /^bidi\.csv:2$/, /^the batch id "B\\u202eX" holds U\+202E; use 1–128 letters/);
+    await refused([{ name: 'tag.csv', content: csv([`<b>x</b>,${T0},1,2`]) }], /^tag\.csv:2$/, /^the batch id "<b>x<\/b>" holds "<"/);
+  });
   it('a product name with a line break (REST)', async () => {
     const r = await admin.post('/api/import', { unit: 'dryer-1', product: 'granule\n##END=', files: [{ name: 'n.csv', content: csv([`N-1,${T0},1,2`]) }] });
     expect(r.status).toBe(400);
