@@ -40,8 +40,9 @@ export const endpointRuleSpecSchema = z.object({
   /**
    * No 'done' before this many minutes from the batch start: a number, or 'auto' — resolved at
    * build from the reference batches' known endpoints (core/model/endpoint-calibration.ts
-   * autoMinElapsed: a lower one-sided prediction bound on the endpoint time, never above the
-   * shortest known endpoint). Omitted: no minimum.
+   * autoMinElapsed: a lower one-sided prediction bound on the endpoint time from the earliest each
+   * reference batch can have reached its endpoint — for a lab-placed endpoint the last lab value not
+   * yet past the target — never above the shortest of them). Omitted: no minimum.
    */
   minElapsedMin: z.union([z.number().finite().min(0).max(100_000), z.literal('auto')]).optional(),
   /**

@@ -29,6 +29,11 @@ export interface EndValues {
   endScores: (number[] | null)[];
   /** Minutes from each batch's first spectrum to its known endpoint. */
   endMin: (number | null)[];
+  /**
+   * Minutes from each batch's first spectrum to the earliest its endpoint can have come (see
+   * CalibrationBatch.earliestEndMin); the basis of the automatic minimum time.
+   */
+  earliestMin: (number | null)[];
   batchIds: string[];
 }
 
@@ -40,6 +45,13 @@ export interface CalibrationBatch {
   scores: ArrayLike<number>[];
   /** Kept-spectrum index of the known endpoint, or null. */
   endIndex: number | null;
+  /**
+   * Minutes from the first spectrum to the earliest the endpoint can have come: for an endpoint
+   * placed from lab values, the time of the last lab value not yet past the target before the
+   * crossing (0 when the first lab value was already past it); for a marked endpoint, the mark.
+   * Absent: the known endpoint's own time.
+   */
+  earliestEndMin?: number | null;
 }
 
 export function endValuesOf(rule: EndpointRuleSpec, batches: CalibrationBatch[], batchIds: string[]): EndValues {
@@ -62,7 +74,8 @@ export function endValuesOf(rule: EndpointRuleSpec, batches: CalibrationBatch[],
   });
   const endScores = batches.map((b) => (b.endIndex === null ? null : b.scores.map((s) => s[b.endIndex!]!)));
   const endMin = batches.map((b) => (b.endIndex === null ? null : b.elapsedMin[b.endIndex]!));
-  return { perCriterion, endScores, endMin, batchIds };
+  const earliestMin = batches.map((b, bi) => (b.endIndex === null ? null : Math.min(b.earliestEndMin ?? endMin[bi]!, endMin[bi]!)));
+  return { perCriterion, endScores, endMin, earliestMin, batchIds };
 }
 
 const sig = (v: number) => (Math.abs(v) >= 100 ? v.toFixed(1) : v.toPrecision(3));
@@ -131,36 +144,48 @@ export function resolveCriteria(
   let minElapsed: { value: number; method: string } | null = null;
   if (typeof rule.minElapsedMin === 'number') minElapsed = { value: rule.minElapsedMin, method: 'set by the model owner' };
   else if (rule.minElapsedMin === 'auto') {
-    const ends = ev.endMin.filter((v, b): v is number => v !== null && keep(b));
-    minElapsed = autoMinElapsed(ends, confidence);
+    const idx = ev.earliestMin.flatMap((v, b) => (v !== null && keep(b) ? [b] : []));
+    minElapsed = autoMinElapsed(idx.map((b) => ev.earliestMin[b]!), confidence, idx.map((b) => ev.batchIds[b]!));
   }
   return { criteria, endRegion, minElapsed };
 }
 
 /**
  * The automatic minimum time before an endpoint may be called (endpoint rule `minElapsedMin:
- * 'auto'`), from the known endpoint times T_i of the reference batches (minutes from their first
- * spectrum): the lower one-sided prediction bound for one new batch's endpoint time at the model's
- * confidence, taken on ln T (endpoint times are positive and skewed to the right) —
- * exp(mean(ln T) − t(confidence; I − 1)·s·√(1 + 1/I)), s the sd of ln T (n − 1), the
+ * 'auto'`), from E_i, the EARLIEST each reference batch can have reached its endpoint (minutes from
+ * its first spectrum; EndValues.earliestMin). Endpoints placed from lab values lie at or after the
+ * true crossing (the first lab value past the target comes after it, and on a flattening drying
+ * curve the interpolation between two lab values does too), so a bound taken from them holds good
+ * batches past their true endpoint; the last lab value not yet past the target comes before the
+ * crossing (up to the lab error), so a bound from it does not. The bound is the lower one-sided
+ * prediction bound for one new batch at the model's confidence, taken on ln E (positive, skewed to
+ * the right) — exp(mean(ln E) − t(confidence; I − 1)·s·√(1 + 1/I)), s the sd of ln E (n − 1), the
  * prediction interval for a single future observation from a normal sample (as the envelope's
- * prediction band, core/envelope/band.ts) — and never above the shortest known endpoint, so that
- * no reference batch would be held past its own endpoint by it.
+ * prediction band, core/envelope/band.ts) — and never above the shortest E_i, so that no reference
+ * batch would be held past the earliest its endpoint can have come. When a batch's endpoint can have
+ * come at its start (its first lab value already past the target), the minimum is 0 and says why.
+ * `batchIds` (same order) name the batches in the method text.
  */
-export function autoMinElapsed(endMin: number[], confidence: number): { value: number; method: string } {
-  const I = endMin.length;
+export function autoMinElapsed(earliestMin: number[], confidence: number, batchIds?: string[]): { value: number; method: string } {
+  const I = earliestMin.length;
   if (I < 2) throw new RangeError(`minimum time 'auto': needs the known endpoints of at least 2 reference batches (got ${I})`);
-  for (const t of endMin) if (!(t > 0) || !Number.isFinite(t)) throw new RangeError(`minimum time 'auto': a known endpoint at ${t} min; every endpoint must lie after the batch start`);
-  const logs = endMin.map(Math.log);
+  for (const t of earliestMin) if (!(t >= 0) || !Number.isFinite(t)) throw new RangeError(`minimum time 'auto': an earliest endpoint at ${t} min; every endpoint must lie at or after the batch start`);
+  const basis = `the earliest each of the ${I} reference batches can have reached its endpoint (lab-placed: the last lab value not yet past the target; marked: the mark)`;
+  const zero = earliestMin.findIndex((t) => t === 0);
+  if (zero >= 0) {
+    const who = batchIds?.[zero] !== undefined ? `reference batch "${batchIds[zero]}"` : 'a reference batch';
+    return { value: 0, method: `'auto' from ${basis}: 0 min — ${who} can have reached its endpoint at its start (its first lab value was already past the target), so no minimum is known` };
+  }
+  const logs = earliestMin.map(Math.log);
   const m = logs.reduce((a, b) => a + b, 0) / I;
   const s = Math.sqrt(logs.reduce((a, b) => a + (b - m) ** 2, 0) / (I - 1));
   const k = newObservationMultiplier(confidence, I);
   const bound = Math.exp(m - k * s);
-  const shortest = Math.min(...endMin);
+  const shortest = Math.min(...earliestMin);
   const value = Math.min(bound, shortest);
   const f = (v: number) => v.toFixed(1);
   return {
     value,
-    method: `'auto': lower one-sided ${+(confidence * 100).toFixed(3)} % prediction bound for one new batch's endpoint time from the ${I} known endpoints, on ln(time): exp(mean − t(${confidence}; ${I - 1})·s·√(1 + 1/${I})) = ${f(bound)} min${bound > shortest ? `, capped at the shortest known endpoint ${f(shortest)} min` : ` (shortest known endpoint ${f(shortest)} min)`}`,
+    method: `'auto': lower one-sided ${+(confidence * 100).toFixed(3)} % prediction bound for one new batch's endpoint time from ${basis}, on ln(time): exp(mean − t(${confidence}; ${I - 1})·s·√(1 + 1/${I})) = ${f(bound)} min${bound > shortest ? `, capped at the shortest of them ${f(shortest)} min` : ` (shortest of them ${f(shortest)} min)`}`,
   };
 }

@@ -283,7 +283,11 @@ export function buildMonitoringModel(batches: ReferenceBatch[], settingsInput: u
     const m = kept[bi].length;
     const rowsB: Float64Array[] = [];
     for (let r = 0; r < m; r++) rowsB.push(X.data.subarray((o + r) * X.cols, (o + r + 1) * X.cols));
-    calib.push({ rows: rowsB, elapsedMin: tr.elapsedMin, scores: tr.scores, endIndex: tr.endIndex });
+    // The earliest the endpoint can have come: before a lab-placed endpoint, the last lab value not
+    // yet past the target (the bracket's start); a mark is taken as given.
+    const e = ends.endpoints[bi];
+    const earliestEndMin = !e ? null : e.bracket ? e.bracket.fromMin : e.elapsedMin;
+    calib.push({ rows: rowsB, elapsedMin: tr.elapsedMin, scores: tr.scores, endIndex: tr.endIndex, earliestEndMin });
     o += m;
   }
   const endValues = endValuesOf(settings.endpoint, calib, batches.map((b) => b.id));
