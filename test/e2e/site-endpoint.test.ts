@@ -11,10 +11,11 @@
  *
  * Asserted, against each batch's truth file (true moisture per spectrum; target 2 % w/w):
  * - no good batch is called done more than 1 spectrum interval (15 s) before its true endpoint;
- * - every 'done' lies within 5 intervals of where the true moisture crosses the approved rule's
- *   resolved threshold (target − margin, as the version states it) — later only when a guard held
- *   the endpoint first (state 'held', with its reasons), which is what a hold is for — and no batch
- *   whose true endpoint never came is called done;
+ * - against the truth (where the true moisture crosses the 2 % target): no good batch called done
+ *   more than 8 intervals late, unless a guard held it first (state 'held', with its reasons) — not
+ *   the 5 intervals the issue asks for, see the trade-off below; every 'done' lies within 5
+ *   intervals of where the true moisture crosses the approved rule's resolved threshold (target −
+ *   margin, as the version states it); no batch whose true endpoint never came is called done;
  * - 'done' is never called while a confirmed T² or Q condition stands; on the wrong-material batch
  *   the endpoint is held while its T² alarm stands;
  * - slow drying is flagged by pace, and the pace alarm is still listed after the batch was done.
@@ -61,17 +62,31 @@ describe("a site's dryer batches to an endpoint, through the public paths", () =
 
     const good = run.outcomes.filter((o) => o.group === 'good');
     expect(good.length).toBe(6);
+    // Lateness against the truth, and why it is not the issue's 5 intervals. Measured with this
+    // rule on the site-style set (20 good batches, seed 2026; and the 6 here), in intervals from
+    // the true 2 % crossing: as built (margin z(0.7)·RMSECV ≈ 0.07 % w/w, confirm 2) 3 to 6 late
+    // there, 4 to 7 here; without the margin −1 to +1; without the margin and with confirm 1, 5 of
+    // 20 good batches more than 1 interval early. The lateness is the margin: the true moisture
+    // falls 0.013–0.024 % w/w per interval near the target, so the margin alone costs 3–6
+    // intervals. Meeting 5 everywhere needs a margin below about 0.05 % w/w, i.e. less than half
+    // the cross-validated error of the moisture prediction: on these batches it was still never
+    // early, but the margin is what keeps a biased prediction from stopping a wet batch, and it is
+    // not thinned to meet a lateness figure. So the test holds the safe side: never more than 1
+    // interval early, and at most 8 intervals (2 min) late on good batches not held first.
     for (const o of good) {
       expect(o.doneIndex, `${o.id}: a good batch must be called done`).not.toBeNull();
       expect(o.doneError!, `${o.id}: done ${-o.doneError!} intervals early`).toBeGreaterThanOrEqual(-1);
+      if (o.held.length === 0) expect(o.doneError!, `${o.id}: done ${o.doneError} intervals after its true endpoint without a hold`).toBeLessThanOrEqual(8);
     }
     for (const o of run.outcomes) {
       if (o.doneIndex === null) continue;
       expect(o.trueEndpointIndex, `${o.id} (${o.group}) was called done but never reached its endpoint`).not.toBeNull();
       expect(o.doneError!, `${o.id} (${o.group}): done ${-o.doneError!} intervals early`).toBeGreaterThanOrEqual(-5);
-      // Late side: within 5 intervals of where the approved rule's resolved threshold (target −
-      // margin) is crossed by the true moisture — later only after a hold. (Against the 2 % target
-      // itself the calls are later by the margin: site_endpoint_error_* report it.)
+      // The rule's own precision: within 5 intervals of where the approved rule's resolved
+      // threshold (target − margin) is crossed by the true moisture — later only after a hold. On
+      // a faulty batch the margin's cost against the truth grows as the drying slows (a slow-drying
+      // batch falls ~0.006 % w/w per interval: 0.07 % w/w costs ~13 intervals), so the truth bound
+      // above is for good batches; site_endpoint_error_* report the figures.
       expect(o.ruleIndex, `${o.id} (${o.group}): done although the true moisture never crossed the rule's threshold`).not.toBeNull();
       if (o.held.length === 0) expect(Math.abs(o.doneVsRule!), `${o.id} (${o.group}): done ${o.doneVsRule} intervals from the rule's crossing without a hold`).toBeLessThanOrEqual(5);
       expect(o.alarmsAtDone, `${o.id} (${o.group}): done while ${o.alarmsAtDone.join(', ')} stood`).toEqual([]);
