@@ -110,11 +110,17 @@ export async function fuzzRound(opts: { wsUrl: string; token: string; analyzer: 
     const from = log.length;
     send(msg);
     let answer: (typeof log)[number] | undefined;
+    const what = () => {
+      const text = msg instanceof Uint8Array ? `binary frame ${Buffer.from(msg).subarray(0, 32).toString('hex')}…` : typeof msg === 'string' ? msg : JSON.stringify(msg);
+      return `an answer to ${text.slice(0, 160)} (seq ${s}${resend ? ', a resend' : ''}; last from the server: ${JSON.stringify(log.slice(-3))})`;
+    };
     await until(() => {
       // a resend is answered with an ack (the same entry) or a conflict
       answer = log.slice(from).find((m) => m.type === 'error' || (m.type === 'ack' && (resend || (s !== null && m.seq! >= s))));
       return !!answer;
-    }, 'an answer');
+    }, 'an answer').catch((e: Error) => {
+      throw new Error(e.message.replace('an answer', what()));
+    });
     if (answer!.type === 'ack') return !resend;
     return s !== null && answer!.seq === s && !NOT_CONSUMING.has(answer!.code!);
   };
@@ -160,7 +166,10 @@ export async function fuzzRound(opts: { wsUrl: string; token: string; analyzer: 
         const f = new Uint8Array(encodeSpectrumFrame(seq, t + 1, valuesOf()));
         const at = int(f.length);
         f[at] = f[at]! ^ (1 << int(8));
-        if (await exchange(f, seq)) {
+        // a flip in the seq field makes it another seq: a resend of an earlier one (acked again or a
+        // conflict), a seq ahead (seq-gap) or no valid seq at all; ours is then not consumed
+        const other = new DataView(f.buffer, f.byteOffset).getFloat64(8, true) !== seq;
+        if (await exchange(f, other ? null : seq, other)) {
           // a flip in a value can leave a valid spectrum: it is stored, its time taken
           t += 1;
           seq++;
