@@ -86,7 +86,7 @@ export type OpcuaSettings = z.infer<typeof opcuaSchema>;
 export function parseSignalsConfig(raw: unknown): SignalsConfig {
   const r = signalsConfigSchema.safeParse(raw ?? {});
   if (!r.success) {
-    throw new Error(r.error.issues.map((i) => `signals.${i.path.join('.')}: ${i.message}`).join('\n'));
+    throw new Error(r.error.issues.map((i) => `${['signals', ...i.path].join('.')}: ${i.message}`).join('\n'));
   }
   const names = new Set<string>();
   for (const w of r.data.webhooks) {

@@ -3,6 +3,7 @@ import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { describe, expect, it } from 'vitest';
 import { ConfigError, loadConfig } from '../../server/config.ts';
+import { parseSignalsConfig } from '../../server/signals/config.ts';
 
 describe('configuration: defaults < file < environment < flags, validated', () => {
   const dir = mkdtempSync(join(tmpdir(), 'tideline-cfg-'));
@@ -27,6 +28,10 @@ describe('configuration: defaults < file < environment < flags, validated', () =
     expect(loadConfig().webDir).toBe('web/dist');
     writeFileSync(join(dir, 'web.json'), JSON.stringify({ webDir: '/srv/tideline-web' }));
     expect(loadConfig({ flags: { config: join(dir, 'web.json') } }).webDir).toBe('/srv/tideline-web');
+  });
+  it('names an unknown signals key at the top as signals, not "signals."', () => {
+    expect(() => parseSignalsConfig({ bogus: 1 })).toThrow(/^signals: Unrecognized key: "bogus"$/);
+    expect(() => parseSignalsConfig({ mqtt: { url: 'http://x' } })).toThrow(/^signals\.mqtt\.url: must be an mqtt:\/\//);
   });
   it('names the setting and its source when a value is wrong', () => {
     expect(() => loadConfig({ flags: { port: 'http' } })).toThrow(/flag --port: port must be a number, got "http"/);
