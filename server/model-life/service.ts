@@ -29,7 +29,8 @@ export function effectiveLab(rows: LabValueRow[], property: string): { idx: numb
 
 export class ModelLife {
   readonly store: ModelLifeStore;
-  private readonly figures = new Map<string, HealthBatch>();
+  /** Per (version, ended batch): its figures and its predictions by spectrum index (a few kB). */
+  private readonly figures = new Map<string, { figures: HealthBatch; predictions: Float64Array }>();
   private readonly refScores = new Map<string, Promise<number[][]>>();
   private refreshing: Promise<void> = Promise.resolve();
   private readonly gauges;
@@ -83,25 +84,27 @@ export class ModelLife {
   // ---- health ------------------------------------------------------------------------------
 
   private async batchFigures(batch: { id: string; startT: number }, model: MonitoringModel): Promise<HealthBatch> {
-    const hit = this.figures.get(`${model.id}\u0000${batch.id}`);
-    if (hit) return hit;
-    const rows = this.store.results(batch.id);
-    const f = healthBatchFigures(rows.map((x) => x.result));
-    let alarms = 0;
-    for (const x of rows) for (const c of x.result.conditionChanges) if (c.active && c.kind !== 'analyzer') alarms++;
+    // The results of an ended batch never change: read them once; lab values may be attached later, so they are read each time.
+    const key = `${model.id}\u0000${batch.id}`;
+    let hit = this.figures.get(key);
+    if (!hit) {
+      const rows = this.store.results(batch.id);
+      const f = healthBatchFigures(rows.map((x) => x.result));
+      let alarms = 0;
+      for (const x of rows) for (const c of x.result.conditionChanges) if (c.active && c.kind !== 'analyzer') alarms++;
+      const predictions = new Float64Array(rows.length ? rows[rows.length - 1]!.idx + 1 : 0).fill(NaN);
+      for (const x of rows) if (x.result.prediction && Number.isFinite(x.result.prediction.value)) predictions[x.idx] = x.result.prediction.value;
+      hit = { figures: { id: batch.id, startT: batch.startT, ...f, alarms, labResiduals: [] }, predictions };
+      this.figures.set(key, hit);
+    }
     const labResiduals: number[] = [];
     if (model.pls) {
-      const pred = new Map<number, number>();
-      for (const x of rows) if (x.result.prediction && Number.isFinite(x.result.prediction.value)) pred.set(x.idx, x.result.prediction.value);
       for (const l of effectiveLab(await this.ctx.storage.listLabValues(batch.id), model.pls.name)) {
-        const p = pred.get(l.idx);
-        if (p !== undefined) labResiduals.push(p - l.value);
+        const p = hit.predictions[l.idx];
+        if (p !== undefined && Number.isFinite(p)) labResiduals.push(p - l.value);
       }
     }
-    const out: HealthBatch = { id: batch.id, startT: batch.startT, ...f, alarms, labResiduals };
-    // Lab values may still be attached to an ended batch: keep figures only once the batch has some, or has no property to compare.
-    if (!model.pls || labResiduals.length) this.figures.set(`${model.id}\u0000${batch.id}`, out);
-    return out;
+    return { ...hit.figures, labResiduals };
   }
 
   /** Batch-mean scores of the version's reference batches, replayed once per version through its own monitor. */
