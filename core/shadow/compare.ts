@@ -107,7 +107,11 @@ export function shadowComparison(run: ShadowRun, compared: ReturnType<typeof com
     t.push(`${n} batch${n === 1 ? '' : 'es'} judged by both: ${s.deployedAlarmsPerBatch.toFixed(2)} confirmed alarms per batch deployed, ${s.candidateAlarmsPerBatch.toFixed(2)} candidate.`);
     if (s.batchesOnlyDeployed) t.push(`On ${s.batchesOnlyDeployed} batch(es) the deployed version caught a condition the candidate did not.`);
     if (s.batchesOnlyCandidate) t.push(`On ${s.batchesOnlyCandidate} batch(es) the candidate caught a condition the deployed version did not.`);
-    if (s.endpointBoth) t.push(`Endpoint called by both on ${s.endpointBoth} batch(es): candidate ${s.endpointMeanDifferenceMin! >= 0 ? 'later' : 'earlier'} by ${f1(Math.abs(s.endpointMeanDifferenceMin!))} min on average (largest difference ${f1(s.endpointMaxAbsDifferenceMin!)} min).`);
+    if (s.endpointBoth) {
+      const m = s.endpointMeanDifferenceMin!;
+      const when = Math.abs(m) < 0.05 ? 'at the same time on average' : `candidate ${m > 0 ? 'later' : 'earlier'} by ${f1(Math.abs(m))} min on average`;
+      t.push(`Endpoint called by both on ${s.endpointBoth} batch(es): ${when} (largest difference ${f1(s.endpointMaxAbsDifferenceMin!)} min).`);
+    }
     if (s.endpointOnlyDeployed) t.push(`Endpoint called by the deployed version only on ${s.endpointOnlyDeployed} batch(es).`);
     if (s.endpointOnlyCandidate) t.push(`Endpoint called by the candidate only on ${s.endpointOnlyCandidate} batch(es).`);
     if (labDeployed || labCandidate) t.push(`Against ${Math.max(labDeployed?.n ?? 0, labCandidate?.n ?? 0)} lab value(s): RMSE deployed ${labDeployed ? labDeployed.rmse.toPrecision(3) : '—'}, candidate ${labCandidate ? labCandidate.rmse.toPrecision(3) : '—'}.`);

@@ -20,6 +20,8 @@ import { ModelLifeStore, type ShadowRunRow } from './store.ts';
 /** Default periodic-review interval set at approval when the approver gives none (common practice: yearly review of a model; no published source). */
 export const DEFAULT_REVIEW_DAYS = 365;
 const DAY_MS = 86_400_000;
+/** Spectra replayed between two yields to the event loop. */
+const YIELD_EVERY = 100;
 
 /** Effective lab values of a batch for one property: the latest of each chain of corrections. */
 export function effectiveLab(rows: LabValueRow[], property: string): { idx: number; value: number }[] {
@@ -118,7 +120,12 @@ export class ModelLife {
           if (!b || b.axis.length !== model.chain.inputAxis.length) continue;
           const mon = createBatchMonitor(model, b.startT);
           const results: MonitorResult[] = [];
-          for await (const sp of this.ctx.storage.iterateSpectra(id)) results.push(mon.push(sp.seq, sp.t, sp.values));
+          let n = 0;
+          for await (const sp of this.ctx.storage.iterateSpectra(id)) {
+            results.push(mon.push(sp.seq, sp.t, sp.values));
+            // yield to ingest and the sockets now and then: a version's first health replays all its reference batches
+            if (++n % YIELD_EVERY === 0) await new Promise((r) => setImmediate(r));
+          }
           const f = healthBatchFigures(results);
           if (f.spectra) out.push(f.meanScores);
         }
@@ -134,7 +141,11 @@ export class ModelLife {
     const model = (await this.ctx.ingest.loadModel(row.id)) as unknown as MonitoringModel | null;
     if (!model) throw new Error(`model version ${row.id} cannot be read`);
     const batches: HealthBatch[] = [];
-    for (const b of this.store.batchesJudgedBy(row.id)) batches.push(await this.batchFigures(b, model));
+    let k = 0;
+    for (const b of this.store.batchesJudgedBy(row.id)) {
+      batches.push(await this.batchFigures(b, model));
+      if (++k % 20 === 0) await new Promise((r) => setImmediate(r));
+    }
     const evidence = await latestApprovalEvidence(this.ctx, row.id);
     const review = this.store.review(row.id);
     const units = (await this.ctx.storage.listDeployments({ active: true })).filter((d) => d.modelVersion === row.id).map((d) => d.unit).sort();

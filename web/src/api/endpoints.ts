@@ -19,6 +19,7 @@ import type {
   SpectraRange,
   UnitSummary,
 } from '../../../core/api/rest.ts';
+import type { ModelHealth, ShadowComparison, ShadowRun, ShadowRunList } from '../../../core/api/model-life.ts';
 import { get, post, query } from './http.ts';
 
 const enc = encodeURIComponent;
@@ -42,13 +43,21 @@ export const api = {
   historyPca: (req: { referenceBatches: string[]; components: number; groups?: number; chain?: unknown[] }) => post<HistoryJobView>('/api/models/history-pca', req),
   historyJob: (job: string) => get<HistoryJobView>(`/api/models/history-pca/${enc(job)}`),
   evaluate: (v: string, batches: string[], faulty: string[] = []) => post<EvaluationResult>(`/api/models/versions/${enc(v)}/evaluate`, { batches, ...(faulty.length ? { faulty } : {}) }),
-  approve: (v: string, reason: string, password?: string, earlyEndpointOverride?: string, evidenceOverride?: string) =>
+  approve: (v: string, reason: string, password?: string, earlyEndpointOverride?: string, evidenceOverride?: string, reviewIntervalDays?: number) =>
     post<ModelVersionSummary>(`/api/models/versions/${enc(v)}/approve`, {
       reason,
       password,
       ...(earlyEndpointOverride !== undefined ? { earlyEndpointOverride } : {}),
       ...(evidenceOverride !== undefined ? { evidenceOverride } : {}),
+      ...(reviewIntervalDays !== undefined ? { reviewIntervalDays } : {}),
     }),
+  health: (v: string) => get<ModelHealth>(`/api/models/versions/${enc(v)}/health`),
+  shadowRuns: (f: { unit?: string; versionId?: string; active?: boolean } = {}) => get<ShadowRunList>(`/api/shadow-runs${query(f)}`),
+  startShadow: (unit: string, versionId: string, reason: string) => post<ShadowRun>('/api/shadow-runs', { unit, versionId, reason }),
+  stopShadow: (run: string, reason: string) => post<ShadowRun>(`/api/shadow-runs/${enc(run)}/stop`, { reason }),
+  shadowComparison: (run: string) => get<ShadowComparison>(`/api/shadow-runs/${enc(run)}/comparison`),
+  promoteShadow: (run: string, reason: string, password?: string, confirmEndpointLoss?: string) =>
+    post<Deployment>(`/api/shadow-runs/${enc(run)}/promote`, { reason, password, ...(confirmEndpointLoss !== undefined ? { confirmEndpointLoss } : {}) }),
   deployments: (f: { unit?: string; active?: boolean } = {}) => get<Page<Deployment>>(`/api/deployments${query(f)}`),
   deploy: (unit: string, versionId: string, reason?: string) => post<Deployment>('/api/deployments', { unit, versionId, reason }),
   alarms: (f: { unit?: string; batch?: string; state?: string; active?: boolean; limit?: number; offset?: number } = {}) =>

@@ -9,6 +9,9 @@ import { activeAlarmsText, etaText, progressText, stallAlarm } from './floor-dat
 import type { Alarm } from '../../../core/api/rest.ts';
 import { HELD_CAUTION, holdLabels } from './endpoint-holds.tsx';
 import { href } from '../router.ts';
+import { api } from '../api/endpoints.ts';
+import { useAsync } from '../components/use-async.ts';
+import { healthLine } from './bench/model-life-data.ts';
 
 export function Floor({ now }: { now: number }) {
   const live = useLive({ kind: 'plant' });
@@ -48,6 +51,11 @@ function UnitTile({ u, now, alarms }: { u: LiveUnitStatus; now: number; alarms: 
   const stall = stallAlarm(alarms, u.id, u.openBatch?.id ?? null);
   const etaWords = etaText(u.endpoint, stall);
   const alarmWords = activeAlarmsText(alarms, u.id);
+  // The deployed version's health, read again when a batch starts or ends or the unit's health alarm changes.
+  const healthAlarm = alarms.find((a) => a.unit === u.id && a.kind === 'model-health');
+  const versionId = u.deployment?.versionId ?? null;
+  const health = useAsync(() => (versionId ? api.health(versionId) : Promise.resolve(null)), [versionId, u.openBatch?.id ?? null, healthAlarm?.state ?? null, healthAlarm?.message ?? null]);
+  const hl = healthLine(health.data);
   return (
     <a class={`tile${stale ? ' tile-stale' : ''}${u.unacknowledgedAlarms ? ' tile-alarm' : ''}`} href={href({ view: 'watch', unit: u.id })} data-testid={`tile-${u.id}`}>
       <div class="tile-head">
@@ -132,6 +140,11 @@ function UnitTile({ u, now, alarms }: { u: LiveUnitStatus; now: number; alarms: 
         {u.deployment && (
           <span class="muted small">
             model {u.deployment.name} v{u.deployment.version}
+          </span>
+        )}
+        {hl && (
+          <span class="small" data-testid={`health-line-${u.id}`}>
+            <Badge tone={hl.tone}>{hl.text}</Badge>
           </span>
         )}
         {u.openBatch && <span class="muted small">{fixed(u.openBatch.spectrumCount, 0)} spectra</span>}

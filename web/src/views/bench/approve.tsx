@@ -24,6 +24,7 @@ export function Approve({ d, me, onDone }: { d: ModelVersionDetail; me: Me | nul
   const [busy, setBusy] = useState(false);
   const [evidenceReason, setEvidenceReason] = useState('');
   const [evidenceError, setEvidenceError] = useState<string | null>(null);
+  const [reviewDays, setReviewDays] = useState('365');
   // the evidence of the latest evaluation; it changes when the version is evaluated again
   const lastEval = d.evaluations[d.evaluations.length - 1]?.id ?? '';
   const evidence = useAsync(() => loadEvidence(d.versionId), [d.versionId, lastEval]);
@@ -63,7 +64,8 @@ export function Approve({ d, me, onDone }: { d: ModelVersionDetail; me: Me | nul
         if (stop) return;
         setBusy(true);
         try {
-          await api.approve(d.versionId, reason, password || undefined, early.length ? override : undefined, blocking.length ? evidenceReason : undefined);
+          const days = Number(reviewDays);
+          await api.approve(d.versionId, reason, password || undefined, early.length ? override : undefined, blocking.length ? evidenceReason : undefined, Number.isInteger(days) && days > 0 ? days : undefined);
           onDone();
         } catch (err) {
           const t = errorText(err);
@@ -118,6 +120,10 @@ export function Approve({ d, me, onDone }: { d: ModelVersionDetail; me: Me | nul
           <FieldError text={overrideError ?? undefined} />
         </div>
       )}
+      <label class="block">
+        Periodic review after{' '}
+        <input type="number" min={1} max={3650} step={1} value={reviewDays} onInput={(e) => setReviewDays((e.target as HTMLInputElement).value)} data-testid="review-days" /> days (signed with the approval; the version's health shows the due date)
+      </label>
       <label class="block">
         Password (re-enter to sign) <input type="password" autocomplete="current-password" value={password} onInput={(e) => setPassword((e.target as HTMLInputElement).value)} />
       </label>

@@ -16,6 +16,8 @@ import { ExplainedChart } from './explained.tsx';
 import { StatusBadge } from './model-list.tsx';
 import { PropertyEvidencePanel } from './property-evidence.tsx';
 import { TransferPanel } from './transfer-panel.tsx';
+import { ModelHealthPanel } from './health.tsx';
+import { ShadowPanel } from './shadow.tsx';
 
 export function VersionDetail({ version, me }: { version: string; me: Me | null }) {
   const detail = useAsync(() => api.modelVersion(version), [version]);
@@ -113,6 +115,8 @@ export function VersionDetail({ version, me }: { version: string; me: Me | null 
         <Approve d={d} me={me} onDone={detail.reload} />
         <Deploy d={d} onDone={detail.reload} />
       </div>
+      <ShadowPanel d={d} onDone={detail.reload} />
+      {d.status !== 'draft' && <ModelHealthPanel versionId={d.versionId} reloadKey={d.deployedTo.join(',')} />}
     </div>
   );
 }
