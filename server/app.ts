@@ -15,11 +15,11 @@ import { MAX_MESSAGE_BYTES } from '../core/protocol/ingest-messages.ts';
 import { LIVE_PATH } from '../core/api/live.ts';
 import { install as installAuth } from './auth/index.ts';
 import { applyIdleLimit, serverOptions } from './http-limits.ts';
+import { createSecurity } from './auth/security-setup.ts';
 import { createWebServer, schemes } from './auth/tls.ts';
 import type { Role } from './auth/types.ts';
 import type { ServerConfig } from './config.ts';
 import type { ServerContext } from './context.ts';
-import { verifyAnalyzerToken } from './ingest/analyzer-tokens.ts';
 import { IngestConnection } from './ingest/ingest-socket.ts';
 import { IngestPipeline } from './ingest/pipeline.ts';
 import { LiveHub } from './live/live-hub.ts';
@@ -77,8 +77,10 @@ export async function startServer(config: ServerConfig, opts: StartOptions = {})
   // Every /api route is in this table (or in a table included in it): validated by its zod
   // schemas, guarded by its role, listed in /api/openapi.json. Parts add theirs when installed.
   const routes = new RouteTable();
+  // Access control and the audit trail are part of every server: no route, socket or action runs without them.
+  const { audit, auth } = createSecurity(storage, config, now);
   const ctx: ServerContext = {
-    config, storage, app, api, routes, live, ingest: pipeline, metrics, log, events,
+    config, storage, app, api, routes, live, ingest: pipeline, metrics, log, events, audit, auth,
     onClose: (fn) => closers.push(fn),
     now,
   };
@@ -91,19 +93,16 @@ export async function startServer(config: ServerConfig, opts: StartOptions = {})
   installAuth(ctx);
   // A broken audit trail does not stop monitoring (the plant needs it), but it is said at every
   // start, naming the database and the first broken record.
-  if (ctx.audit) {
-    const v = await ctx.audit.verify();
-    if (!v.ok) {
-      log.error(
-        `the audit trail in ${opts.dbFile ?? join(config.dataDir, 'tideline.db')} is BROKEN at record ${v.brokenSeq}: ${v.problem}. ` +
-          'The server starts, and new records are chained on; report this under your quality system and compare with a kept anchor (npm run tideline -- audit verify --anchor SEQ:HASH).',
-      );
-    }
+  const verified = await audit.verify();
+  if (!verified.ok) {
+    log.error(
+      `the audit trail in ${opts.dbFile ?? join(config.dataDir, 'tideline.db')} is BROKEN at record ${verified.brokenSeq}: ${verified.problem}. ` +
+        'The server starts, and new records are chained on; report this under your quality system and compare with a kept anchor (npm run tideline -- audit verify --anchor SEQ:HASH).',
+    );
   }
   // alarm actions the server takes itself (suppression by state) go to the same audit trail; the
   // pipeline records them after its commit and does not wait, so a failure is logged here
-  const audit = ctx.audit;
-  pipeline.audit = audit ? { record: (e) => void audit.record(e).catch((err: Error) => log.error(`audit record ${e.action} ${e.object} failed`, err)) } : null;
+  pipeline.audit = { record: (e) => void audit.record(e).catch((err: Error) => log.error(`audit record ${e.action} ${e.object} failed`, err)) };
   for (const part of ['signals', 'transfer', 'model-life']) {
     const file = join(here, part, 'index.ts');
     if (!existsSync(file)) continue;
@@ -122,10 +121,9 @@ export async function startServer(config: ServerConfig, opts: StartOptions = {})
     response: 'application/json',
     handler: async () => routes.openapi({ version: VERSION }),
   });
-  const pass: express.RequestHandler = (_req, _res, next) => next();
   // JSON bodies up to 1 MB, read after the role check; a route may bring its own parser
   // (POST /api/import: larger file imports). /api/auth/* has its own 16 KiB parser.
-  routes.mount(api, (role: Role) => (ctx.auth ? ctx.auth.requireRole(role) : pass), { bodyParser: express.json({ limit: '1mb' }) });
+  routes.mount(api, (role: Role) => auth.requireRole(role), { bodyParser: express.json({ limit: '1mb' }) });
   api.use((req, _res, next) => next(new HttpProblem(404, 'Not found', `no API route ${req.method} ${req.baseUrl}${req.path}; see /api/openapi.json`, 'not-found')));
   api.use(problemHandler(log));
   app.use('/api', api);
@@ -172,7 +170,7 @@ export async function startServer(config: ServerConfig, opts: StartOptions = {})
   const tokens = new Map<IngestConnection, string>();
   const recheckTokens = async () => {
     for (const [c, token] of [...tokens]) {
-      const analyzer = ctx.auth?.verifyAnalyzerToken(token) ?? (await verifyAnalyzerToken(storage, token));
+      const analyzer = await auth.verifyAnalyzerToken(token);
       if (analyzer !== c.analyzer) {
         tokens.delete(c);
         c.revoked();
@@ -189,12 +187,12 @@ export async function startServer(config: ServerConfig, opts: StartOptions = {})
     socket.on('error', () => undefined);
     const path = (req.url ?? '/').split('?')[0];
     if (path === '/ingest') {
-      const auth = req.headers.authorization ?? '';
-      const m = /^Bearer\s+(\S+)$/i.exec(auth);
+      const header = req.headers.authorization ?? '';
+      const m = /^Bearer\s+(\S+)$/i.exec(header);
       if (!m) return refuse(socket, 401, 'Unauthorized', 'send the analyzer token as Authorization: Bearer <token>');
       const token = m[1]!;
       void (async () => {
-        const analyzer = ctx.auth?.verifyAnalyzerToken(token) ?? (await verifyAnalyzerToken(storage, token));
+        const analyzer = await auth.verifyAnalyzerToken(token);
         if (!analyzer) return refuse(socket, 401, 'Unauthorized', 'unknown or revoked analyzer token');
         ingestWss.handleUpgrade(req, socket, head, (ws) => {
           const addr = `${req.socket.remoteAddress ?? '?'}:${req.socket.remotePort ?? '?'}`;
@@ -221,10 +219,15 @@ export async function startServer(config: ServerConfig, opts: StartOptions = {})
       if (origin !== undefined && !sameOrigin(origin, req.headers.host)) {
         return refuse(socket, 403, 'Forbidden', `Origin ${origin.slice(0, 100)} is not this server (${req.headers.host ?? '?'}); /live accepts only pages served by Tideline itself`);
       }
-      if (ctx.auth && !ctx.auth.userFromRequest(req)) return refuse(socket, 401, 'Unauthorized', 'log in first (POST /api/auth/login)');
-      liveWss.handleUpgrade(req, socket, head, (ws) => {
-        live.attach(ws);
-        ctx.auth?.closeWhenSessionEnds?.(req, ws);
+      void (async () => {
+        if (!(await auth.userFromRequest(req))) return refuse(socket, 401, 'Unauthorized', 'log in first (POST /api/auth/login)');
+        liveWss.handleUpgrade(req, socket, head, (ws) => {
+          live.attach(ws);
+          void auth.closeWhenSessionEnds(req, ws).catch((e) => log.error('watching a /live session failed', e));
+        });
+      })().catch((e) => {
+        log.error('live upgrade failed', e);
+        refuse(socket, 500, 'Internal Server Error', 'internal error');
       });
       return;
     }

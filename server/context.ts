@@ -25,6 +25,11 @@ import type { Logger } from './logger.ts';
  */
 export interface ServerContext {
   config: ServerConfig;
+  /**
+   * The storage. `db` (the SQLite connection) is still here for the two parts whose tables have
+   * not moved behind the seam yet: server/signals (outbox, channels, endpoint latch) and
+   * server/model-life (shadow runs); everything else uses the interface.
+   */
   storage: Storage & { db: SqliteStorage['db'] };
   app: Express;
   /** Express router mounted at /api. */
@@ -39,8 +44,10 @@ export interface ServerContext {
   metrics: Metrics;
   log: Logger;
   events: EventEmitter;
-  audit?: AuditTrail;
-  auth?: Auth;
+  /** The hash-chained audit trail (server/audit); always there. */
+  audit: AuditTrail;
+  /** Access control (server/auth); always there: every /api route, /live and /ingest goes through it. */
+  auth: Auth;
   /** Called on shutdown, last registered first. */
   onClose(fn: () => void | Promise<void>): void;
   /** Clock (ms epoch); tests may replace it. */

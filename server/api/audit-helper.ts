@@ -1,4 +1,4 @@
-/** Writes audit records through server/audit when installed, else as plain rows in `audit`. */
+/** Audit records of the REST routes, through the server's audit trail (server/audit). */
 import type { Request } from 'express';
 import type { ServerContext } from '../context.ts';
 
@@ -10,9 +10,5 @@ export async function recordAudit(
   ctx: ServerContext,
   e: { user: string; action: string; object: string; before?: unknown; after?: unknown; reason?: string | null },
 ): Promise<void> {
-  if (ctx.audit) {
-    await ctx.audit.record({ user: e.user, action: e.action, object: e.object, before: e.before, after: e.after, reason: e.reason ?? null });
-    return;
-  }
-  await ctx.storage.appendAudit({ at: ctx.now(), user: e.user, action: e.action, object: e.object, before: e.before, after: e.after, reason: e.reason ?? undefined });
+  await ctx.audit.record({ user: e.user, action: e.action, object: e.object, before: e.before, after: e.after, reason: e.reason ?? null });
 }

@@ -2,7 +2,8 @@
 import { z } from 'zod';
 import type { ModelSummary, Page } from '../../core/api/rest.ts';
 import type { ServerContext } from '../context.ts';
-import { SignatureError } from '../auth/types.ts';
+import { SignatureError, type AuthUser } from '../auth/types.ts';
+import type { Request } from 'express';
 import { ModelRequestError, buildFromStored, envelopeView, evaluateVersion, latestApprovalEvidence, referencesView, versionDetail } from '../models/model-service.ts';
 import { HttpProblem, conflict, notFound } from './problem.ts';
 import type { RouteTable } from './route-table.ts';
@@ -186,21 +187,15 @@ export function addModelRoutes(t: RouteTable, ctx: ServerContext) {
         const reviewDays = body.reviewIntervalDays ?? DEFAULT_REVIEW_DAYS;
         const at = ctx.now();
         const review = { intervalDays: reviewDays, dueAt: new Date(at + reviewDays * 86_400_000).toISOString() };
-        if (ctx.auth && req.user) {
-          await ctx.auth.sign({ user: req.user, password: body.password ?? '', meaning: 'approved', objectType: 'model', objectId: m.id, objectHash: m.sha256, reason: body.reason, ...(signedOverride !== undefined ? { override: signedOverride } : {}), evidence: { ...evidenceSummary, review }, address: req.ip }, async (_sig, uow) => {
-            // In the signature's unit of work: if the version is no longer a draft, the throw rolls the signature and its audit record back too.
-            try {
-              await uow.models.approve(m.id, by, at, body.reason);
-            } catch {
-              throw conflict(`model version ${m.name} v${m.version} stopped being a draft while it was being signed; nothing was signed or changed`);
-            }
-            modelLifeOf(ctx).setReview(m.id, reviewDays, at, by);
-          });
-        } else {
-          await ctx.storage.approveModelVersion(m.id, by, at, body.reason);
+        await ctx.auth.sign({ user: signer(req), password: body.password ?? '', meaning: 'approved', objectType: 'model', objectId: m.id, objectHash: m.sha256, reason: body.reason, ...(signedOverride !== undefined ? { override: signedOverride } : {}), evidence: { ...evidenceSummary, review }, address: req.ip }, async (_sig, uow) => {
+          // In the signature's unit of work: if the version is no longer a draft, the throw rolls the signature and its audit record back too.
+          try {
+            await uow.models.approve(m.id, by, at, body.reason);
+          } catch {
+            throw conflict(`model version ${m.name} v${m.version} stopped being a draft while it was being signed; nothing was signed or changed`);
+          }
           modelLifeOf(ctx).setReview(m.id, reviewDays, at, by);
-          await recordAudit(ctx, { user: by, action: 'model.approve', object: `model:${m.name}@${m.version}`, after: { id: m.id, sha256: m.sha256, ...(signedOverride !== undefined ? { override: signedOverride } : {}), evidence: evidenceSummary, review }, reason: body.reason });
-        }
+        });
         return modelVersionSummary(ctx.storage, (await ctx.storage.getModelVersion(m.id))!);
       }),
   });
@@ -213,20 +208,21 @@ export function addModelRoutes(t: RouteTable, ctx: ServerContext) {
         if (m.status === 'retired') throw conflict(`model version ${m.name} v${m.version} is already retired`);
         const units = (await ctx.storage.listDeployments({ active: true })).filter((d) => d.modelVersion === m.id).map((d) => d.unit);
         const by = userOf(req);
-        if (ctx.auth && req.user) {
-          await ctx.auth.sign({ user: req.user, password: body.password ?? '', meaning: 'retired', objectType: 'model', objectId: m.id, objectHash: m.sha256, reason: body.reason, address: req.ip }, async (_sig, uow) => {
-            try {
-              await uow.models.retire(m.id, by, ctx.now(), body.reason);
-            } catch {
-              throw conflict(`model version ${m.name} v${m.version} was retired by someone else while it was being signed; nothing was signed or changed`);
-            }
-          });
-        } else {
-          await ctx.storage.retireModelVersion(m.id, by, ctx.now(), body.reason);
-          await recordAudit(ctx, { user: by, action: 'model.retire', object: `model:${m.name}@${m.version}`, after: { id: m.id }, reason: body.reason });
-        }
+        await ctx.auth.sign({ user: signer(req), password: body.password ?? '', meaning: 'retired', objectType: 'model', objectId: m.id, objectHash: m.sha256, reason: body.reason, address: req.ip }, async (_sig, uow) => {
+          try {
+            await uow.models.retire(m.id, by, ctx.now(), body.reason);
+          } catch {
+            throw conflict(`model version ${m.name} v${m.version} was retired by someone else while it was being signed; nothing was signed or changed`);
+          }
+        });
         for (const u of units) await ctx.ingest.refreshDeployment(u);
         return modelVersionSummary(ctx.storage, (await ctx.storage.getModelVersion(m.id))!);
       }),
   });
+}
+
+/** The signing user: the route's role check has set it (there is no way to a signed change without a session). */
+function signer(req: Request): AuthUser {
+  if (!req.user) throw new HttpProblem(401, 'Login required', 'a signature needs a logged-in user: log in with POST /api/auth/login', 'login-required');
+  return req.user;
 }

@@ -100,7 +100,7 @@ export function authRoutes(auth: AuthService): RouteTable {
   t.add({
     method: 'post', path: '/logout', summary: 'End the session', role: 'viewer', response: '', status: 204,
     handler: async ({ req, res }) => {
-      const s = auth.session(req.headers.cookie);
+      const s = await auth.session(req.headers.cookie);
       if (s) await auth.logout(s.token, s.user);
       auth.clearSessionCookies(res);
       return undefined;
@@ -111,7 +111,7 @@ export function authRoutes(auth: AuthService): RouteTable {
     method: 'get', path: '/me', summary: "The session's user and CSRF token (401 without a valid session)", role: 'public',
     response: 'LoginResponse', responseSource: 'server/auth/auth-routes.ts',
     handler: async ({ req }): Promise<LoginResponse> => {
-      const s = auth.session(req.headers.cookie);
+      const s = await auth.session(req.headers.cookie);
       if (!s) throw new HttpError(401, 'login-required', 'Login required', 'no valid session: log in with POST /api/auth/login');
       return { user: s.user, csrfToken: s.csrfToken, expiresAt: s.expiresAt, mustChangePassword: s.mustChangePassword };
     },
@@ -120,7 +120,7 @@ export function authRoutes(auth: AuthService): RouteTable {
   t.add({
     method: 'post', path: '/password', summary: 'Change your own password', role: 'viewer', body: passwordBody, subject: 'password change', response: '', status: 204,
     handler: async ({ body, req }) => {
-      const s = auth.session(req.headers.cookie);
+      const s = await auth.session(req.headers.cookie);
       await auth.changeOwnPassword(req.user!, body.currentPassword, body.newPassword, s?.token, clientAddress(req));
       return undefined;
     },
@@ -128,7 +128,7 @@ export function authRoutes(auth: AuthService): RouteTable {
 
   t.add({
     method: 'get', path: '/users', summary: 'All users', role: 'administrator', response: 'Items<UserView>', responseSource: 'server/auth/user-store.ts',
-    handler: async () => ({ items: auth.listUsers() }),
+    handler: async () => ({ items: await auth.listUsers() }),
   });
 
   t.add({
@@ -148,7 +148,7 @@ export function authRoutes(auth: AuthService): RouteTable {
 
   t.add({
     method: 'get', path: '/tokens', summary: 'Analyzer tokens (never the token itself)', role: 'administrator', response: 'Items<AnalyzerTokenInfo>', responseSource: SOURCE,
-    handler: async () => ({ items: auth.listAnalyzerTokens() }),
+    handler: async () => ({ items: await auth.listAnalyzerTokens() }),
   });
 
   t.add({

@@ -3,12 +3,11 @@
  * tokens, electronic signatures. Every change is written to the audit trail.
  */
 import { textProblem } from '../../core/io/names.ts';
-import type Database from 'better-sqlite3';
 import type { IncomingMessage } from 'node:http';
 import type { NextFunction, Request, RequestHandler, Response } from 'express';
 import { timingSafeEqual } from 'node:crypto';
 import type { AuditTrail } from '../audit/types.ts';
-import type { SignatureRepository, UnitOfWork, UnitOfWorkRunner } from '../storage/repositories.ts';
+import type { AuthRepositories, SignatureRepository, UnitOfWork, UnitOfWorkRunner, UserRepository } from '../storage/repositories.ts';
 import { AnalyzerTokenStore } from './analyzer-tokens.ts';
 import { readCookie } from './cookies.ts';
 import { HttpError, sendHttpError } from './http-problem.ts';
@@ -30,7 +29,7 @@ import {
   type SignatureRecord,
   type SignatureRequest,
 } from './types.ts';
-import { USER_NAME_RE, UserStore, toAuthUser, toUserView, type UserRow, type UserView } from './user-store.ts';
+import { USER_NAME_RE, toAuthUser, toUserView, type UserRow, type UserView } from './user-store.ts';
 
 export interface AuthOptions {
   now?: () => number;
@@ -69,8 +68,15 @@ function clip(s: string, n = 64): string {
   return s.length > n ? s.slice(0, n) + '…' : s;
 }
 
+/** What access control needs of the storage (SQLite: SqliteStorage). */
+export interface AuthStorage extends UnitOfWorkRunner, AuthRepositories {
+  readonly signatures: SignatureRepository;
+  /** The server core's analyzer tokens (`tdl_…`), accepted beside this part's own. */
+  findAnalyzerByTokenHash(tokenSha256: string): Promise<string | null>;
+}
+
 export class AuthService implements Auth {
-  readonly users: UserStore;
+  readonly users: UserRepository;
   readonly sessions: SessionStore;
   readonly throttle: LoginThrottle;
   readonly tokens: AnalyzerTokenStore;
@@ -80,18 +86,17 @@ export class AuthService implements Auth {
   private dummyHash: Promise<string> | null = null;
 
   constructor(
-    readonly db: Database.Database,
-    private readonly storage: UnitOfWorkRunner & { readonly signatures: SignatureRepository },
+    private readonly storage: AuthStorage,
     readonly audit: AuditTrail,
     opts: AuthOptions = {},
   ) {
     this.now = opts.now ?? Date.now;
     this.scryptLog2N = opts.scryptLog2N ?? DEFAULT_SCRYPT_LOG2N;
     this.secureCookies = opts.secureCookies ?? false;
-    this.users = new UserStore(db);
-    this.sessions = new SessionStore(db, { ...DEFAULT_SESSION_TIMES, ...opts.session }, this.now);
-    this.throttle = new LoginThrottle(db, { ...DEFAULT_THROTTLE, ...opts.throttle }, this.now);
-    this.tokens = new AnalyzerTokenStore(db, this.now);
+    this.users = storage.users;
+    this.sessions = new SessionStore(storage.sessions, { ...DEFAULT_SESSION_TIMES, ...opts.session }, this.now);
+    this.throttle = new LoginThrottle(storage.loginFailures, { ...DEFAULT_THROTTLE, ...opts.throttle }, this.now);
+    this.tokens = new AnalyzerTokenStore(storage.analyzerTokens, (h) => storage.findAnalyzerByTokenHash(h), this.now);
   }
 
   private iso(): string {
@@ -112,19 +117,19 @@ export class AuthService implements Auth {
     const fullName = (u.fullName ?? u.name).trim() || u.name;
     const fp = textProblem(fullName);
     if (fp) throw new HttpError(400, 'bad-user', 'Bad user', `full name ${fp}`);
-    if (this.users.byName(u.name)) throw new HttpError(409, 'user-exists', 'User exists', `a user named ${u.name} already exists`);
+    if (await this.users.byName(u.name)) throw new HttpError(409, 'user-exists', 'User exists', `a user named ${u.name} already exists`);
     const hash = await hashPassword(u.password, this.scryptLog2N);
     const at = this.iso();
     const row = await this.storage.unitOfWork(async (uow) => {
-      const r = this.users.insert({ name: u.name, fullName, role: u.role, passwordHash: hash, mustChange: !!u.mustChangePassword, createdBy: by, at });
+      const r = await uow.users.insert({ name: u.name, fullName, role: u.role, passwordHash: hash, mustChange: !!u.mustChangePassword, createdBy: by, at });
       await this.audit.record({ user: by, action: 'user.create', object: `user:${r.name}`, after: { name: r.name, fullName, role: u.role } }, uow);
       return r;
     });
     return toUserView(row);
   }
 
-  listUsers(): UserView[] {
-    return this.users.list().map(toUserView);
+  async listUsers(): Promise<UserView[]> {
+    return (await this.users.list()).map(toUserView);
   }
 
   /** Administrator changes to another user: role, full name, disabled, password reset. */
@@ -135,7 +140,7 @@ export class AuthService implements Auth {
     reason?: string,
   ): Promise<UserView> {
     const byName = typeof by === 'string' ? by : by.name;
-    const row = this.users.byName(name);
+    const row = await this.users.byName(name);
     if (!row) throw new HttpError(404, 'no-such-user', 'No such user', `no user named ${name}`);
     if (change.role !== undefined && !isRole(change.role)) throw new HttpError(400, 'bad-user', 'Bad user', `unknown role ${String(change.role)}`);
     if (change.fullName !== undefined && change.fullName.trim() !== '') {
@@ -148,20 +153,20 @@ export class AuthService implements Auth {
     }
     const losesAdmin =
       row.role === 'administrator' && !row.disabled_at && ((change.role && change.role !== 'administrator') || change.disabled === true);
-    if (losesAdmin && this.users.activeAdministrators() <= 1)
+    if (losesAdmin && (await this.users.activeAdministrators()) <= 1)
       throw new HttpError(409, 'last-administrator', 'Last administrator', 'this is the last active administrator: create another one first');
     const hash = change.password !== undefined ? await hashPassword(change.password, this.scryptLog2N) : null;
     const at = this.iso();
     const after = await this.storage.unitOfWork(async (uow) => {
       const before = { role: row.role, fullName: row.full_name, disabled: row.disabled_at !== null };
-      if (change.role !== undefined) this.users.setRole(row.id, change.role);
-      if (change.fullName !== undefined) this.users.setFullName(row.id, change.fullName.trim() || row.name);
-      if (change.disabled !== undefined) this.users.setDisabled(row.id, change.disabled ? (row.disabled_at ?? at) : null);
-      if (hash) this.users.setPassword(row.id, hash, change.mustChangePassword ?? true, at);
-      const r = this.users.byId(row.id)!;
+      if (change.role !== undefined) await uow.users.setRole(row.id, change.role);
+      if (change.fullName !== undefined) await uow.users.setFullName(row.id, change.fullName.trim() || row.name);
+      if (change.disabled !== undefined) await uow.users.setDisabled(row.id, change.disabled ? (row.disabled_at ?? at) : null);
+      if (hash) await uow.users.setPassword(row.id, hash, change.mustChangePassword ?? true, at);
+      const r = (await uow.users.byId(row.id))!;
       const afterState = { role: r.role, fullName: r.full_name, disabled: r.disabled_at !== null, ...(hash ? { passwordReset: true } : {}) };
       // Role change, disabling and password reset end the user's sessions.
-      if (change.role !== undefined || change.disabled || hash) this.sessions.deleteForUser(row.id);
+      if (change.role !== undefined || change.disabled || hash) await this.sessions.deleteForUser(row.id, undefined, uow.sessions);
       await this.audit.record({ user: byName, action: 'user.update', object: `user:${r.name}`, before, after: afterState, reason: reason ?? null }, uow);
       return r;
     });
@@ -169,9 +174,9 @@ export class AuthService implements Auth {
   }
 
   async changeOwnPassword(user: AuthUser, current: string, next: string, keepToken: string | undefined, address: string): Promise<void> {
-    const row = this.users.byId(user.id);
+    const row = await this.users.byId(user.id);
     if (!row) throw new HttpError(401, 'login-required', 'Login required', 'user no longer exists');
-    this.checkThrottle(row.name, address);
+    await this.checkThrottle(row.name, address);
     if (!(await verifyPassword(String(current ?? ''), row.password_hash))) {
       await this.recordFailure(row.name, address, 'password.change', 'current password wrong');
       throw new HttpError(401, 'wrong-password', 'Wrong password', 'the current password is wrong');
@@ -181,16 +186,16 @@ export class AuthService implements Auth {
     if (current === next) throw new HttpError(400, 'bad-password', 'Password not accepted', 'the new password must differ from the current one');
     const hash = await hashPassword(next, this.scryptLog2N);
     await this.storage.unitOfWork(async (uow) => {
-      this.users.setPassword(row.id, hash, false, this.iso());
-      this.sessions.deleteForUser(row.id, keepToken);
+      await uow.users.setPassword(row.id, hash, false, this.iso());
+      await this.sessions.deleteForUser(row.id, keepToken, uow.sessions);
       await this.audit.record({ user: row.name, action: 'user.password-change', object: `user:${row.name}` }, uow);
     });
   }
 
   // ---- login ------------------------------------------------------------------------------------
 
-  private checkThrottle(name: string, address: string): void {
-    const c = this.throttle.check([userKey(name), addressKey(address)]);
+  private async checkThrottle(name: string, address: string): Promise<void> {
+    const c = await this.throttle.check([userKey(name), addressKey(address)]);
     if (c.waitMs > 0) {
       const s = Math.ceil(c.waitMs / 1000);
       const what = c.key?.startsWith('addr:') ? 'from this address' : 'for this user';
@@ -200,7 +205,7 @@ export class AuthService implements Auth {
 
   /** Count a failure, audit it, and audit a lock when one engages. */
   private async recordFailure(name: string, address: string, action: string, why: string): Promise<void> {
-    const states = this.throttle.fail([userKey(name), addressKey(address)]);
+    const states = await this.throttle.fail([userKey(name), addressKey(address)]);
     await this.audit.record({ user: 'anonymous', action: `${action}.failed`, object: `user:${clip(name)}`, after: { address }, reason: why });
     for (const s of states) {
       if (s.lockedUntil > 0)
@@ -224,8 +229,8 @@ export class AuthService implements Auth {
       throw new HttpError(400, 'bad-request', 'Bad request', 'name must be a non-empty string of at most 64 characters');
     if (typeof password !== 'string' || password.length === 0 || password.length > 256)
       throw new HttpError(400, 'bad-request', 'Bad request', 'password must be a non-empty string of at most 256 characters');
-    this.checkThrottle(name, address);
-    const row = this.users.byName(name);
+    await this.checkThrottle(name, address);
+    const row = await this.users.byName(name);
     const ok = row ? await verifyPassword(password, row.password_hash) : (await verifyPassword(password, await this.dummy()), false);
     if (!row || !ok) {
       await this.recordFailure(name, address, 'auth.login', row ? 'wrong password' : 'unknown user');
@@ -235,33 +240,33 @@ export class AuthService implements Auth {
       await this.audit.record({ user: row.name, action: 'auth.login.failed', object: `user:${row.name}`, after: { address }, reason: 'account disabled' });
       throw new HttpError(403, 'account-disabled', 'Account disabled', 'this account is disabled; ask an administrator');
     }
-    this.throttle.clear(userKey(name));
-    if (needsRehash(row.password_hash, this.scryptLog2N)) this.users.replaceHash(row.id, await hashPassword(password, this.scryptLog2N));
-    const s = this.sessions.create(row.id, address);
+    await this.throttle.clear(userKey(name));
+    if (needsRehash(row.password_hash, this.scryptLog2N)) await this.users.replaceHash(row.id, await hashPassword(password, this.scryptLog2N));
+    const s = await this.sessions.create(row.id, address);
     await this.audit.record({ user: row.name, action: 'auth.login', object: `user:${row.name}`, after: { address } });
     return { user: toAuthUser(row), token: s.token, csrfToken: s.csrf, expiresAt: s.expiresAt, mustChangePassword: row.must_change_password === 1 };
   }
 
   async logout(token: string, user: AuthUser): Promise<void> {
-    this.sessions.delete(token);
+    await this.sessions.delete(token);
     await this.audit.record({ user: user.name, action: 'auth.logout', object: `user:${user.name}` });
   }
 
   // ---- sessions and middleware ----------------------------------------------------------------
 
   /** The session behind a Cookie header, or null. */
-  session(cookieHeader: string | undefined): (SessionInfo & { token: string }) | null {
+  async session(cookieHeader: string | undefined): Promise<(SessionInfo & { token: string }) | null> {
     const token = readCookie(cookieHeader, SESSION_COOKIE);
     if (!token || token.length > 100) return null;
-    const s = this.sessions.lookup(token);
+    const s = await this.sessions.lookup(token);
     if (!s) return null;
-    const row: UserRow | undefined = this.users.byId(s.user_id);
+    const row: UserRow | null = await this.users.byId(s.user_id);
     if (!row || row.disabled_at) return null;
     return { token, user: toAuthUser(row), csrfToken: s.csrf_token, expiresAt: s.expires_at, mustChangePassword: row.must_change_password === 1 };
   }
 
-  userFromRequest(req: IncomingMessage): AuthUser | null {
-    return this.session(req.headers.cookie)?.user ?? null;
+  async userFromRequest(req: IncomingMessage): Promise<AuthUser | null> {
+    return (await this.session(req.headers.cookie))?.user ?? null;
   }
 
   /**
@@ -269,36 +274,42 @@ export class AuthService implements Auth {
    * (logout, expiry, role change, disabled user, password reset). Checks every `everyMs`; the
    * check does not count as activity, so an open dashboard does not keep an idle session alive.
    */
-  closeWhenSessionEnds(req: IncomingMessage, ws: { close(code?: number, reason?: string): void; once(ev: 'close', fn: () => void): unknown }, everyMs = 30_000): void {
+  async closeWhenSessionEnds(req: IncomingMessage, ws: { close(code?: number, reason?: string): void; once(ev: 'close', fn: () => void): unknown }, everyMs = 30_000): Promise<void> {
     const token = readCookie(req.headers.cookie, SESSION_COOKIE);
-    const userId = token ? this.sessions.lookup(token)?.user_id : undefined;
+    const userId = token ? (await this.sessions.lookup(token))?.user_id : undefined;
     if (!token || userId === undefined) {
       ws.close(4401, 'session ended: log in again');
       return;
     }
-    const timer = setInterval(() => {
-      const row = this.users.byId(userId);
-      if (!this.sessions.isLive(token) || !row || row.disabled_at) {
+    let ended = false;
+    const check = async () => {
+      const row = await this.users.byId(userId);
+      if (!ended && (!(await this.sessions.isLive(token)) || !row || row.disabled_at)) {
+        ended = true;
         clearInterval(timer);
         ws.close(4401, 'session ended: log in again');
       }
-    }, everyMs);
+    };
+    const timer = setInterval(() => void check().catch(() => undefined), everyMs);
     timer.unref();
-    ws.once('close', () => clearInterval(timer));
+    ws.once('close', () => {
+      ended = true;
+      clearInterval(timer);
+    });
   }
 
   identify(): RequestHandler {
     return (req: Request, _res: Response, next: NextFunction) => {
-      const s = this.session(req.headers.cookie);
-      if (s) req.user = s.user;
-      next();
+      this.session(req.headers.cookie).then((s) => {
+        if (s) req.user = s.user;
+        next();
+      }, next);
     };
   }
 
   requireRole(role: Role): RequestHandler {
     if (!isRole(role)) throw new Error(`requireRole: unknown role ${String(role)}`);
-    return (req: Request, res: Response, next: NextFunction) => {
-      const s = this.session(req.headers.cookie);
+    return (req: Request, res: Response, next: NextFunction) => void this.session(req.headers.cookie).then((s) => {
       if (!s) return sendHttpError(res, new HttpError(401, 'login-required', 'Login required', 'no valid session: log in with POST /api/auth/login'));
       if (!roleAtLeast(s.user.role, role))
         return sendHttpError(
@@ -315,7 +326,7 @@ export class AuthService implements Auth {
       }
       req.user = s.user;
       next();
-    };
+    }, next);
   }
 
   /** Set the session and CSRF cookies after login. */
@@ -333,7 +344,7 @@ export class AuthService implements Auth {
 
   // ---- analyzer tokens --------------------------------------------------------------------------
 
-  verifyAnalyzerToken(token: string): string | null {
+  verifyAnalyzerToken(token: string): Promise<string | null> {
     return this.tokens.verify(token);
   }
 
@@ -341,20 +352,20 @@ export class AuthService implements Auth {
     const lp = label === '' ? null : textProblem(label);
     if (lp) return Promise.reject(new HttpError(400, 'bad-token', 'Bad token request', `label ${lp}`));
     return this.storage.unitOfWork(async (uow) => {
-      const t = this.tokens.create(analyzer, label, createdBy);
+      const t = await this.tokens.create(analyzer, label, createdBy, uow.analyzerTokens);
       await this.audit.record({ user: createdBy, action: 'analyzer-token.create', object: `analyzer:${analyzer}`, after: { tokenId: t.id, label } }, uow);
       return { id: t.id, token: t.token };
     });
   }
 
-  listAnalyzerTokens(): AnalyzerTokenInfo[] {
+  listAnalyzerTokens(): Promise<AnalyzerTokenInfo[]> {
     return this.tokens.list();
   }
 
   revokeAnalyzerToken(id: string, revokedBy: string): Promise<boolean> {
     return this.storage.unitOfWork(async (uow) => {
-      const info = this.tokens.get(id);
-      if (!info || !this.tokens.revoke(id, revokedBy)) return false;
+      const info = await this.tokens.get(id, uow.analyzerTokens);
+      if (!info || !(await this.tokens.revoke(id, revokedBy, uow.analyzerTokens))) return false;
       await this.audit.record({ user: revokedBy, action: 'analyzer-token.revoke', object: `analyzer:${info.analyzer}`, before: { tokenId: id, revoked: false }, after: { tokenId: id, revoked: true } }, uow);
       return true;
     });
@@ -373,16 +384,16 @@ export class AuthService implements Auth {
     if (typeof req.password !== 'string' || req.password.length === 0)
       throw new SignatureError('re-enter your password to sign', 400);
     const address = req.address ?? 'unknown';
-    const row = this.users.byId(req.user.id);
+    const row = await this.users.byId(req.user.id);
     if (!row || row.disabled_at) throw new SignatureError('the signing user does not exist or is disabled', 403);
     try {
-      this.checkThrottle(row.name, address);
+      await this.checkThrottle(row.name, address);
     } catch (e) {
       if (e instanceof HttpError) throw new SignatureError(e.message, 429);
       throw e;
     }
     if (!(await verifyPassword(req.password, row.password_hash))) {
-      this.throttle.fail([userKey(row.name), addressKey(address)]);
+      await this.throttle.fail([userKey(row.name), addressKey(address)]);
       await this.audit.record({
         user: row.name,
         action: 'signature.failed',
@@ -392,7 +403,7 @@ export class AuthService implements Auth {
       });
       throw new SignatureError('password does not match: signature refused (this attempt is in the audit trail)', 401);
     }
-    this.throttle.clear(userKey(row.name));
+    await this.throttle.clear(userKey(row.name));
     const user = toAuthUser(row);
     return this.storage.unitOfWork(async (uow) => {
       const rec = await this.audit.record({

@@ -10,7 +10,6 @@
  * Without --password-stdin a random password is generated and printed once, and the user must
  * change it (POST /api/auth/password). Every change is audited with the user `cli:<operating-system user>`.
  */
-import type Database from 'better-sqlite3';
 import { readFileSync, writeFileSync } from 'node:fs';
 import { formatAnchor, parseAnchors } from '../audit/audit-trail.ts';
 import type { AuditAnchor } from '../audit/types.ts';
@@ -118,7 +117,7 @@ export async function runSecurityCli(
       return 0;
     }
     if (group === 'user' && verb === 'list') {
-      for (const u of auth.listUsers())
+      for (const u of await auth.listUsers())
         io.out(`${u.name}\t${u.role}\t${u.fullName}\t${u.disabledAt ? 'disabled ' + u.disabledAt : 'active'}\tcreated ${u.createdAt} by ${u.createdBy}`);
       return 0;
     }
@@ -153,7 +152,7 @@ export async function runSecurityCli(
       return 0;
     }
     if (group === 'token' && verb === 'list') {
-      for (const t of auth.listAnalyzerTokens())
+      for (const t of await auth.listAnalyzerTokens())
         io.out(`${t.id}\t${t.analyzer}\t${t.revokedAt ? 'revoked ' + t.revokedAt : 'active'}\tcreated ${t.createdAt}\t${t.label}`);
       return 0;
     }

@@ -18,7 +18,7 @@ export async function ensureDemoAdministrator(ctx: SecurityHost, opts: { name?: 
   const { auth } = ensureSecurity(ctx);
   const name = opts.name ?? DEMO_ADMIN_NAME;
   const password = opts.password ?? generatePassword(20);
-  if (auth.users.byName(name)) {
+  if (await auth.users.byName(name)) {
     await auth.updateUser(name, { password, role: 'administrator', disabled: false, mustChangePassword: true }, 'system', 'demo start: new demo password');
   } else {
     await auth.createUser({ name, fullName: 'Demo Administrator', role: 'administrator', password, mustChangePassword: true }, 'system');

@@ -7,7 +7,7 @@
  * login. While a key is locked every attempt is refused without checking the password.
  * (Common practice, cf. NIST SP 800-63B §5.2.2 "rate limiting"; the numbers are our choice.)
  */
-import type Database from 'better-sqlite3';
+import type { LoginFailureRepository } from '../storage/repositories.ts';
 
 export interface ThrottlePolicy {
   userFreeFailures: number;
@@ -39,37 +39,26 @@ export function addressKey(address: string): string {
 }
 
 export class LoginThrottle {
-  private readonly getStmt;
-  private readonly putStmt;
-  private readonly clearStmt;
-
   constructor(
-    db: Database.Database,
+    private readonly repo: LoginFailureRepository,
     readonly policy: ThrottlePolicy = DEFAULT_THROTTLE,
     private readonly now: () => number = Date.now,
-  ) {
-    this.getStmt = db.prepare('SELECT failures, last_failure_at, locked_until FROM auth_login_failures WHERE key = ?');
-    this.putStmt = db.prepare(
-      'INSERT INTO auth_login_failures (key, failures, last_failure_at, locked_until) VALUES (?,?,?,?) ' +
-        'ON CONFLICT(key) DO UPDATE SET failures = excluded.failures, last_failure_at = excluded.last_failure_at, locked_until = excluded.locked_until',
-    );
-    this.clearStmt = db.prepare('DELETE FROM auth_login_failures WHERE key = ?');
-  }
+  ) {}
 
-  private state(key: string): { failures: number; lockedUntil: number } {
-    const r = this.getStmt.get(key) as { failures: number; last_failure_at: number; locked_until: number } | undefined;
+  private async state(key: string): Promise<{ failures: number; lockedUntil: number }> {
+    const r = await this.repo.get(key);
     if (!r) return { failures: 0, lockedUntil: 0 };
     const t = this.now();
-    if (t - r.last_failure_at > this.policy.forgetAfterMs && r.locked_until <= t) return { failures: 0, lockedUntil: 0 };
-    return { failures: r.failures, lockedUntil: r.locked_until };
+    if (t - r.lastFailureAt > this.policy.forgetAfterMs && r.lockedUntil <= t) return { failures: 0, lockedUntil: 0 };
+    return { failures: r.failures, lockedUntil: r.lockedUntil };
   }
 
   /** ms to wait before the next attempt on any of these keys (0 = allowed now), and which key locks. */
-  check(keys: string[]): { waitMs: number; key: string | null } {
+  async check(keys: string[]): Promise<{ waitMs: number; key: string | null }> {
     const t = this.now();
     let worst = { waitMs: 0, key: null as string | null };
     for (const k of keys) {
-      const s = this.state(k);
+      const s = await this.state(k);
       const w = s.lockedUntil - t;
       if (w > worst.waitMs) worst = { waitMs: w, key: k };
     }
@@ -81,19 +70,21 @@ export class LoginThrottle {
   }
 
   /** Count one failure on each key; returns the resulting lock (ms) per key. */
-  fail(keys: string[]): ThrottleState[] {
+  async fail(keys: string[]): Promise<ThrottleState[]> {
     const t = this.now();
-    return keys.map((k) => {
-      const s = this.state(k);
+    const out: ThrottleState[] = [];
+    for (const k of keys) {
+      const s = await this.state(k);
       const failures = s.failures + 1;
       const beyond = failures - this.free(k);
       const lockedUntil = beyond > 0 ? t + Math.min(this.policy.baseDelayMs * 2 ** (beyond - 1), this.policy.maxDelayMs) : 0;
-      this.putStmt.run(k, failures, t, lockedUntil);
-      return { key: k, failures, lockedUntil };
-    });
+      await this.repo.put(k, { failures, lastFailureAt: t, lockedUntil });
+      out.push({ key: k, failures, lockedUntil });
+    }
+    return out;
   }
 
-  clear(key: string): void {
-    this.clearStmt.run(key);
+  clear(key: string): Promise<void> {
+    return this.repo.clear(key);
   }
 }

@@ -1,14 +1,13 @@
 /**
  * Creates the audit trail and the auth service for a server (once per server context), from the
- * shared SQLite handle and the `auth`/`tls` parts of the configuration.
+ * storage (its repositories and units of work) and the `auth`/`tls` parts of the configuration.
  */
-import type Database from 'better-sqlite3';
 import type { RequestHandler, Router } from 'express';
 import type { RouteTable } from '../api/route-table.ts';
 import { ChainedAuditTrail } from '../audit/audit-trail.ts';
 import type { AuditTrail } from '../audit/types.ts';
-import type { AuditRepository, SignatureRepository, UnitOfWorkRunner } from '../storage/repositories.ts';
-import { AuthService } from './auth-service.ts';
+import type { AuditRepository } from '../storage/repositories.ts';
+import { AuthService, type AuthStorage } from './auth-service.ts';
 import { readSecurityConfig } from './security-config.ts';
 import type { Auth } from './types.ts';
 
@@ -29,17 +28,15 @@ export interface SecurityHost {
 }
 
 /** What auth and audit need of the storage (SQLite: SqliteStorage). */
-export interface SecurityStorage extends UnitOfWorkRunner {
-  readonly db: Database.Database;
+export interface SecurityStorage extends AuthStorage {
   readonly audit: AuditRepository;
-  readonly signatures: SignatureRepository;
 }
 
 export function createSecurity(storage: SecurityStorage, config: unknown, now: () => number = Date.now): { audit: ChainedAuditTrail; auth: AuthService } {
   const { auth: ac, tls } = readSecurityConfig(config);
   // An empty trail beside stored users was deleted (every user's creation is audited).
   const audit = new ChainedAuditTrail(storage, { now, countUsers: async () => auth.users.count() });
-  const auth: AuthService = new AuthService(storage.db, storage, audit, {
+  const auth: AuthService = new AuthService(storage, audit, {
     now,
     scryptLog2N: ac.scryptLog2N,
     secureCookies: tls !== null,
@@ -54,18 +51,27 @@ export function createSecurity(storage: SecurityStorage, config: unknown, now: (
   return { audit, auth };
 }
 
-/** ctx.audit and ctx.auth, created on first use and set on the context. */
+const purging = new WeakSet<AuthService>();
+
+/** ctx.audit and ctx.auth, created on first use and set on the context; expired sessions purged while it runs. */
 export function ensureSecurity(host: SecurityHost): { audit: ChainedAuditTrail; auth: AuthService } {
-  if (host.audit instanceof ChainedAuditTrail && host.auth instanceof AuthService) return { audit: host.audit, auth: host.auth };
-  const now = host.now ? () => host.now!() : Date.now;
-  const made = createSecurity(host.storage, host.config, now);
-  const audit = host.audit instanceof ChainedAuditTrail ? host.audit : made.audit;
-  const auth = host.auth instanceof AuthService ? host.auth : made.auth;
+  let audit = host.audit instanceof ChainedAuditTrail ? host.audit : null;
+  let auth = host.auth instanceof AuthService ? host.auth : null;
+  if (!audit || !auth) {
+    const now = host.now ? () => host.now!() : Date.now;
+    const made = createSecurity(host.storage, host.config, now);
+    audit ??= made.audit;
+    auth ??= made.auth;
+  }
   host.audit = audit;
   host.auth = auth;
-  // Expired sessions are refused on lookup anyway; this keeps the table small.
-  const timer = setInterval(() => auth.sessions.purgeExpired(), 10 * 60_000);
-  timer.unref();
-  host.onClose?.(() => clearInterval(timer));
+  if (!purging.has(auth)) {
+    purging.add(auth);
+    // Expired sessions are refused on lookup anyway; this keeps the table small.
+    const a = auth;
+    const timer = setInterval(() => void a.sessions.purgeExpired().catch(() => undefined), 10 * 60_000);
+    timer.unref();
+    host.onClose?.(() => clearInterval(timer));
+  }
   return { audit, auth };
 }

@@ -124,14 +124,14 @@ export interface Auth {
   /** Express middleware: sets req.user when a valid session is present; never refuses. */
   identify(): RequestHandler;
   /** For WebSocket upgrades (/live): the user of the session cookie on this request, or null. */
-  userFromRequest(req: IncomingMessage): AuthUser | null;
+  userFromRequest(req: IncomingMessage): Promise<AuthUser | null>;
   /** For /live sockets: close the socket (code 4401) once the session behind `req` ends. */
-  closeWhenSessionEnds?(req: IncomingMessage, ws: { close(code?: number, reason?: string): void; once(ev: 'close', fn: () => void): unknown }, everyMs?: number): void;
+  closeWhenSessionEnds(req: IncomingMessage, ws: { close(code?: number, reason?: string): void; once(ev: 'close', fn: () => void): unknown }, everyMs?: number): Promise<void>;
   /** For the /ingest upgrade: the analyzer id the token belongs to, or null (unknown or revoked). */
-  verifyAnalyzerToken(token: string): string | null;
+  verifyAnalyzerToken(token: string): Promise<string | null>;
   /** Create an analyzer token; the plain token is returned once and stored only hashed. */
   createAnalyzerToken(analyzer: string, label: string, createdBy: string): Promise<{ id: string; token: string }>;
-  listAnalyzerTokens(): AnalyzerTokenInfo[];
+  listAnalyzerTokens(): Promise<AnalyzerTokenInfo[]>;
   revokeAnalyzerToken(id: string, revokedBy: string): Promise<boolean>;
   /**
    * Electronic signature: checks the re-entered password, writes the signature and its audit

@@ -1,5 +1,5 @@
 /**
- * The repositories of the server's parts beside ingest (audit now; auth and signals join them), and
+ * The repositories of the server's parts beside ingest (audit, signatures, access control), and
  * the unit of work that makes several of their writes one transaction.
  *
  * Every method returns a Promise so that a backend with a network round trip (PostgreSQL) can
@@ -76,6 +76,18 @@ export interface UnitOfWork {
   readonly audit: AuditRepository;
   readonly signatures: SignatureRepository;
   readonly models: ModelApprovalRepository;
+  readonly users: UserRepository;
+  readonly sessions: SessionRepository;
+  readonly loginFailures: LoginFailureRepository;
+  readonly analyzerTokens: AnalyzerTokenRepository;
+}
+
+/** The access-control repositories, as Storage carries them. */
+export interface AuthRepositories {
+  readonly users: UserRepository;
+  readonly sessions: SessionRepository;
+  readonly loginFailures: LoginFailureRepository;
+  readonly analyzerTokens: AnalyzerTokenRepository;
 }
 
 export interface UnitOfWorkRunner {
@@ -86,4 +98,122 @@ export interface UnitOfWorkRunner {
    * database's write lock while it runs, and a unit that yields to the event loop is rolled back.
    */
   unitOfWork<T>(work: (uow: UnitOfWork) => Promise<T>): Promise<T>;
+}
+
+// ---- access control (server/auth) ------------------------------------------------------------
+
+/** A stored user. Passwords only as scrypt hashes (server/auth/password.ts). */
+export interface UserRow {
+  id: number;
+  name: string;
+  full_name: string;
+  role: string;
+  password_hash: string;
+  must_change_password: number;
+  created_at: string;
+  created_by: string;
+  password_changed_at: string;
+  disabled_at: string | null;
+}
+
+export interface NewUser {
+  name: string;
+  fullName: string;
+  role: string;
+  passwordHash: string;
+  mustChange: boolean;
+  createdBy: string;
+  /** UTC ISO time. */
+  at: string;
+}
+
+export interface UserRepository {
+  /** By login name, case-insensitive. */
+  byName(name: string): Promise<UserRow | null>;
+  byId(id: number): Promise<UserRow | null>;
+  /** Every user, by name. */
+  list(): Promise<UserRow[]>;
+  count(): Promise<number>;
+  /** Throws when the name is taken. */
+  insert(u: NewUser): Promise<UserRow>;
+  setPassword(id: number, passwordHash: string, mustChange: boolean, at: string): Promise<void>;
+  /** A rehash at a higher cost; not a password change. */
+  replaceHash(id: number, passwordHash: string): Promise<void>;
+  setRole(id: number, role: string): Promise<void>;
+  setFullName(id: number, fullName: string): Promise<void>;
+  setDisabled(id: number, at: string | null): Promise<void>;
+  /** Administrators not disabled. */
+  activeAdministrators(): Promise<number>;
+}
+
+/** A login session; only the SHA-256 of its token is stored. Times in ms since the epoch. */
+export interface SessionRow {
+  token_hash: string;
+  user_id: number;
+  csrf_token: string;
+  created_at: number;
+  last_seen_at: number;
+  expires_at: number;
+  address: string | null;
+}
+
+export interface SessionRepository {
+  insert(s: SessionRow): Promise<void>;
+  get(tokenHash: string): Promise<SessionRow | null>;
+  touch(tokenHash: string, at: number): Promise<void>;
+  delete(tokenHash: string): Promise<void>;
+  /** Every session of a user except the one with `keepTokenHash`; returns how many ended. */
+  deleteForUser(userId: number, keepTokenHash?: string): Promise<number>;
+  /** Sessions expired by `now` or last seen at or before `idleBefore`; returns how many. */
+  purge(now: number, idleBefore: number): Promise<number>;
+}
+
+/** Failed login attempts counted on one key (a user name or an address). Times in ms since the epoch. */
+export interface LoginFailureRow {
+  failures: number;
+  lastFailureAt: number;
+  lockedUntil: number;
+}
+
+export interface LoginFailureRepository {
+  get(key: string): Promise<LoginFailureRow | null>;
+  put(key: string, row: LoginFailureRow): Promise<void>;
+  clear(key: string): Promise<void>;
+}
+
+/** An analyzer token of the access-control store (`tla_…`); times UTC ISO. */
+export interface AnalyzerTokenRow {
+  id: string;
+  analyzer: string;
+  label: string;
+  tokenHash: string;
+  createdAt: string;
+  createdBy: string;
+  revokedAt: string | null;
+  revokedBy: string | null;
+  lastUsedAt: string | null;
+}
+
+/** A token of the server core's own table (`tdl_…`, made with POST /api/analyzers); times ms since the epoch. */
+export interface CoreAnalyzerTokenRow {
+  id: number;
+  analyzer: string;
+  createdAt: number;
+  revokedAt: number | null;
+}
+
+export interface AnalyzerTokenRepository {
+  insert(t: Omit<AnalyzerTokenRow, 'revokedAt' | 'revokedBy' | 'lastUsedAt'>): Promise<void>;
+  /** The token with this hash when not revoked. */
+  findActive(tokenHash: string): Promise<AnalyzerTokenRow | null>;
+  touch(id: string, at: string): Promise<void>;
+  get(id: string): Promise<AnalyzerTokenRow | null>;
+  /** Oldest first. */
+  list(): Promise<AnalyzerTokenRow[]>;
+  /** true when revoked now; false when unknown or revoked already. */
+  revoke(id: string, at: string, by: string): Promise<boolean>;
+  /** The server core's tokens, by id. */
+  listCore(): Promise<CoreAnalyzerTokenRow[]>;
+  /** true when revoked now; false when unknown or revoked already. */
+  revokeCore(id: number, at: number): Promise<boolean>;
 }

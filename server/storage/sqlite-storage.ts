@@ -12,9 +12,10 @@ import { migrate } from './migrate.ts';
 import { checkDatabaseFile, describeOpenError } from './open-check.ts';
 import { startCheckpointer, type Checkpointer } from './checkpointer.ts';
 import { INGEST_SQL, startIngestWriter, type IngestWriter } from './ingest-writer.ts';
-import type { ModelApprovalRepository, UnitOfWork } from './repositories.ts';
+import type { AnalyzerTokenRepository, LoginFailureRepository, ModelApprovalRepository, SessionRepository, UnitOfWork, UserRepository } from './repositories.ts';
 import { SqliteAuditRepository } from './sqlite-audit.ts';
 import { SqliteSignatureRepository } from './sqlite-signatures.ts';
+import { sqliteAuthRepositories } from './sqlite-auth.ts';
 import type {
   AlarmFilter,
   AnalyzerBootRow,
@@ -117,6 +118,10 @@ export class SqliteStorage implements Storage {
   readonly db: Database.Database;
   readonly audit: SqliteAuditRepository;
   readonly signatures: SqliteSignatureRepository;
+  readonly users: UserRepository;
+  readonly sessions: SessionRepository;
+  readonly loginFailures: LoginFailureRepository;
+  readonly analyzerTokens: AnalyzerTokenRepository;
   private readonly models: ModelApprovalRepository;
   private readonly uow: UnitOfWork;
   /** The tail of the queue of units of work (they run one after another on the one connection). */
@@ -262,7 +267,12 @@ export class SqliteStorage implements Storage {
       retire: async (id, by, at, reason) => this.retireModelVersionSync(id, by, at, reason),
     };
     this.signatures = new SqliteSignatureRepository(this.db);
-    this.uow = { audit: this.audit, signatures: this.signatures, models: this.models };
+    const auth = sqliteAuthRepositories(this.db);
+    this.users = auth.users;
+    this.sessions = auth.sessions;
+    this.loginFailures = auth.loginFailures;
+    this.analyzerTokens = auth.analyzerTokens;
+    this.uow = { audit: this.audit, signatures: this.signatures, models: this.models, ...auth };
   }
 
   /**

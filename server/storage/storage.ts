@@ -8,7 +8,7 @@
 import type { Alarm, EndpointEventRecord, EvaluationResult, LabValueRecord, ModelVersionStatus } from '../../core/api/rest.ts';
 import type { EndpointState, MonitorResult } from '../../core/monitor/types.ts';
 import type { Ne107Category } from '../../core/protocol/ingest-messages.ts';
-import type { AuditRepository, SignatureRepository, UnitOfWork, UnitOfWorkRunner } from './repositories.ts';
+import type { AuditRepository, AuthRepositories, SignatureRepository, UnitOfWork, UnitOfWorkRunner } from './repositories.ts';
 
 export interface UnitRow {
   id: string;
@@ -198,7 +198,7 @@ export interface AlarmFilter {
   offset: number;
 }
 
-export interface Storage extends UnitOfWorkRunner {
+export interface Storage extends UnitOfWorkRunner, AuthRepositories {
   close(): Promise<void>;
 
   /** The hash-chained audit trail's records (server/audit seals them; appends only in a unit of work). */

@@ -24,7 +24,7 @@ describe('login, sessions and CSRF', () => {
     expect(r.json.csrfToken).toBe(c.cookies.get('tideline_csrf'));
     // the database holds only the hash of the session token
     const token = c.cookies.get('tideline_session')!;
-    const rows = h.host.storage.db.prepare('SELECT token_hash FROM auth_sessions').all() as { token_hash: string }[];
+    const rows = h.db.prepare('SELECT token_hash FROM auth_sessions').all() as { token_hash: string }[];
     expect(rows.map((x) => x.token_hash)).not.toContain(token);
 
     const me = await c.req('GET', '/api/auth/me');
@@ -105,7 +105,7 @@ describe('roles on state-changing routes', () => {
       expect(r.json.detail).toMatch(/role .* or above; vera has the role viewer/);
       expect((await anon.req('POST', path, body)).status, path).toBe(401);
     }
-    const m = h.host.storage.db.prepare('SELECT status FROM test_models').get() as { status: string };
+    const m = h.db.prepare('SELECT status FROM test_models').get() as { status: string };
     expect(m.status).toBe('draft');
     expect(await h.auth.signaturesFor('model', 'dryer-a@1')).toEqual([]);
   });
@@ -135,7 +135,7 @@ describe('electronic signatures', () => {
     const bad = await c.req('POST', '/api/models/versions/dryer-a@1/approve', { password: 'guess-guess-guess', reason: 'validated per protocol VP-12' });
     expect(bad.status).toBe(401);
     expect(bad.json.detail).toMatch(/password does not match/);
-    expect((h.host.storage.db.prepare('SELECT status FROM test_models').get() as { status: string }).status).toBe('draft');
+    expect((h.db.prepare('SELECT status FROM test_models').get() as { status: string }).status).toBe('draft');
     const failed = (await h.audit.list({ action: 'signature.failed' }));
     expect(failed).toHaveLength(1);
     expect(failed[0]).toMatchObject({ user: 'mona', object: 'model:dryer-a@1', reason: 'wrong password' });
@@ -148,7 +148,7 @@ describe('electronic signatures', () => {
     const good = await c.req('POST', '/api/models/versions/dryer-a@1/approve', { password: pw, reason: 'validated per protocol VP-12' });
     expect(good.status).toBe(200);
     expect(good.json.signature).toMatchObject({ userName: 'mona', fullName: 'MONA', role: 'model-owner', meaning: 'approved', objectHash: MODEL_HASH, reason: 'validated per protocol VP-12' });
-    expect((h.host.storage.db.prepare('SELECT status FROM test_models').get() as { status: string }).status).toBe('approved');
+    expect((h.db.prepare('SELECT status FROM test_models').get() as { status: string }).status).toBe('approved');
     const list = await c.req('GET', '/api/auth/signatures?objectType=model&objectId=dryer-a@1');
     expect(list.json.items).toHaveLength(1);
     const sigAudit = (await h.audit.list({ action: 'signature.approved' }))[0];
@@ -156,13 +156,13 @@ describe('electronic signatures', () => {
     expect((await h.audit.list({ action: 'model.approve' }))[0].seq).toBe(sigAudit.seq + 1);
     expect((await h.audit.verify()).ok).toBe(true);
     // signatures cannot be altered in the database
-    expect(() => h!.host.storage.db.prepare("UPDATE auth_signatures SET reason = 'x'").run()).toThrow(/append-only/);
+    expect(() => h!.db.prepare("UPDATE auth_signatures SET reason = 'x'").run()).toThrow(/append-only/);
   });
 
   it('a failing state change rolls the signature back', async () => {
     h = await startHarness();
     const pw = await addUser(h, 'mona', 'model-owner');
-    const user = h.auth.users.byName('mona')!;
+    const user = (await h.auth.users.byName('mona'))!;
     await expect(
       h.auth.sign({ user: { id: user.id, name: 'mona', fullName: 'MONA', role: 'model-owner' }, password: pw, reason: 'r', meaning: 'retired', objectType: 'model', objectId: 'm', objectHash: MODEL_HASH }, () => {
         throw new Error('model is deployed');
@@ -256,15 +256,15 @@ describe('administration over HTTP', () => {
     const tok = await a.req('POST', '/api/auth/tokens', { analyzer: 'nir-7', label: 'dryer 1 probe' });
     expect(tok.status).toBe(201);
     expect(tok.json.token).toMatch(/^tla_/);
-    expect(h.auth.verifyAnalyzerToken(tok.json.token)).toBe('nir-7');
-    expect(h.auth.verifyAnalyzerToken(tok.json.token + 'x')).toBeNull();
-    const stored = h.host.storage.db.prepare('SELECT token_hash FROM auth_analyzer_tokens').all() as { token_hash: string }[];
+    expect(await h.auth.verifyAnalyzerToken(tok.json.token)).toBe('nir-7');
+    expect(await h.auth.verifyAnalyzerToken(tok.json.token + 'x')).toBeNull();
+    const stored = h.db.prepare('SELECT token_hash FROM auth_analyzer_tokens').all() as { token_hash: string }[];
     expect(JSON.stringify(stored)).not.toContain(tok.json.token);
     const list = await a.req('GET', '/api/auth/tokens');
     expect(list.json.items).toHaveLength(1);
     expect(JSON.stringify(list.json)).not.toContain(tok.json.token);
     expect((await a.req('DELETE', `/api/auth/tokens/${tok.json.id}`)).status).toBe(204);
-    expect(h.auth.verifyAnalyzerToken(tok.json.token)).toBeNull();
+    expect(await h.auth.verifyAnalyzerToken(tok.json.token)).toBeNull();
     expect((await a.req('DELETE', `/api/auth/tokens/${tok.json.id}`)).status).toBe(404);
     expect((await h.audit.list({ object: 'analyzer:nir-7' })).map((x) => x.action)).toEqual(['analyzer-token.create', 'analyzer-token.revoke']);
   });
@@ -309,7 +309,7 @@ describe('audit API', () => {
     expect(js.json.format).toBe('tideline-audit-export');
     expect(js.json.records).toHaveLength(6);
 
-    const db = h.host.storage.db;
+    const db = h.db;
     db.exec('DROP TRIGGER audit_trail_no_update');
     db.prepare("UPDATE audit_trail SET reason = 'edited' WHERE seq = 4").run();
     const v = await c.req('GET', '/api/audit/verify');

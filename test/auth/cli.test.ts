@@ -51,13 +51,13 @@ describe('security CLI', () => {
     expect(await runSecurityCli(['token', 'add', '--label', 'probe 1', 'nir-1'], { storage, config }, a)).toBe(0);
     const token = /^(tla_\S+)$/m.exec(a.lines.join('\n'))![1];
     const { auth } = createSecurity(storage, config);
-    expect(auth.verifyAnalyzerToken(token)).toBe('nir-1');
+    expect(await auth.verifyAnalyzerToken(token)).toBe('nir-1');
     const l = io();
     await runSecurityCli(['token', 'list'], { storage, config }, l);
     const id = l.lines[0].split('\t')[0];
     expect(l.lines[0]).toMatch(/nir-1\tactive/);
     expect(await runSecurityCli(['token', 'revoke', id], { storage, config }, io())).toBe(0);
-    expect(auth.verifyAnalyzerToken(token)).toBeNull();
+    expect(await auth.verifyAnalyzerToken(token)).toBeNull();
 
     const v = io();
     expect(await runSecurityCli(['audit', 'verify'], { storage, config }, v)).toBe(0);

@@ -17,6 +17,8 @@ import { openTestDb } from '../audit/db-fixture.ts';
 export interface Harness {
   base: string;
   host: SecurityHost;
+  /** The SQLite connection under the harness (for the stand-in model table and for tampering). */
+  db: ReturnType<typeof openTestDb>['db'];
   auth: AuthService;
   audit: ChainedAuditTrail;
   clock: { t: number };
@@ -80,6 +82,7 @@ export async function startHarness(authConfig: Record<string, unknown> = {}): Pr
   return {
     base: `http://127.0.0.1:${port}`,
     host,
+    db,
     auth,
     audit,
     clock,

@@ -160,7 +160,7 @@ export interface Session {
 export async function login(ts: TestServer, role: 'viewer' | 'operator' | 'model-owner' | 'administrator' = 'administrator', name = `u-${role}`): Promise<Session> {
   const password = 'correct horse battery staple 42';
   const auth = ts.server.ctx.auth!;
-  if (!(auth as any).users.byName(name)) await (auth as any).createUser({ name, role, password }, 'test');
+  if (!(await (auth as any).users.byName(name))) await (auth as any).createUser({ name, role, password }, 'test');
   const r = await fetch(ts.server.url + '/api/auth/login', { method: 'POST', headers: { 'content-type': 'application/json' }, body: JSON.stringify({ name, password }) });
   if (r.status !== 200) throw new Error(`login failed: ${r.status} ${await r.text()}`);
   const cookie = r.headers.getSetCookie().map((c) => c.split(';')[0]).join('; ');

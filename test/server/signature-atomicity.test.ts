@@ -22,7 +22,7 @@ describe('approval and retirement signatures', () => {
     const id = await installModel(ts.server.ctx.storage, fixture.text, fixture.model, 'dryer-1'); // approved already
     await login(ts, 'model-owner', 'signer');
     const auth = ts.server.ctx.auth!;
-    const user = (auth as any).users.byName('signer');
+    const user = await (auth as any).users.byName('signer');
     const storage = ts.server.ctx.storage as unknown as SqliteStorage;
     const count = () => (storage.db.prepare('SELECT COUNT(*) AS n FROM auth_signatures').get() as { n: number }).n;
     const before = count();

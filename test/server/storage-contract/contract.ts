@@ -13,11 +13,10 @@ import type { NewSignature } from '../../../server/storage/repositories.ts';
 export interface ContractBackend {
   /** A fresh, empty storage (every migration applied). */
   open(): Promise<Storage>;
-  /** Add a user who may sign (signatures name a stored user); returns its id. */
-  addSigner(st: Storage, name: string): Promise<number>;
 }
 
 const h = (c: string) => c.repeat(64);
+const T0 = '2026-01-05T08:00:00.000Z';
 
 /** A sealed record as server/audit would write it (the contract does not check hashes: server/audit does). */
 function rec(seq: number, over: Partial<AuditRecord> = {}): AuditRecord {
@@ -46,7 +45,7 @@ export function storageContract(name: string, backend: ContractBackend): void {
   const withStorage = (fn: (st: Storage, signer: number) => Promise<void>) => async () => {
     const st = await backend.open();
     try {
-      await fn(st, await backend.addSigner(st, 'signer'));
+      await fn(st, (await st.unitOfWork((u) => u.users.insert({ name: 'signer', fullName: 'S. Igner', role: 'model-owner', passwordHash: 'scrypt$x', mustChange: false, createdBy: 'test', at: T0 }))).id);
     } finally {
       await st.close();
     }
@@ -187,6 +186,99 @@ export function storageContract(name: string, backend: ContractBackend): void {
       await expect(st.unitOfWork(async () => Promise.reject(new Error('first fails')))).rejects.toThrow('first fails');
       await st.unitOfWork(async (u) => u.audit.append(rec(1)));
       expect(await st.audit.count({})).toBe(1);
+    }));
+  });
+}
+
+export function authContract(name: string, backend: ContractBackend): void {
+  const withStorage = (fn: (st: Storage) => Promise<void>) => async () => {
+    const st = await backend.open();
+    try {
+      await fn(st);
+    } finally {
+      await st.close();
+    }
+  };
+
+  describe(`storage contract (${name}): access control`, () => {
+    it('users: names unique regardless of case; changes read back; administrators counted', withStorage(async (st) => {
+      const ada = await st.users.insert({ name: 'Ada', fullName: 'Ada L.', role: 'administrator', passwordHash: 'scrypt$a', mustChange: true, createdBy: 'cli:root', at: T0 });
+      expect(ada).toMatchObject({ name: 'Ada', full_name: 'Ada L.', role: 'administrator', must_change_password: 1, created_by: 'cli:root', password_changed_at: T0, disabled_at: null });
+      expect((await st.users.byName('ada'))?.id).toBe(ada.id);
+      await expect(st.users.insert({ name: 'ADA', fullName: 'x', role: 'viewer', passwordHash: 'h', mustChange: false, createdBy: 't', at: T0 })).rejects.toThrow();
+      await st.users.insert({ name: 'bob', fullName: 'Bob', role: 'administrator', passwordHash: 'scrypt$b', mustChange: false, createdBy: 't', at: T0 });
+      expect(await st.users.activeAdministrators()).toBe(2);
+      await st.users.setDisabled(ada.id, '2026-01-06T00:00:00.000Z');
+      await st.users.setRole(ada.id, 'operator');
+      await st.users.setFullName(ada.id, 'Ada Lovelace');
+      await st.users.setPassword(ada.id, 'scrypt$a2', false, '2026-01-07T00:00:00.000Z');
+      expect(await st.users.byId(ada.id)).toMatchObject({ role: 'operator', full_name: 'Ada Lovelace', password_hash: 'scrypt$a2', must_change_password: 0, password_changed_at: '2026-01-07T00:00:00.000Z', disabled_at: '2026-01-06T00:00:00.000Z' });
+      await st.users.replaceHash(ada.id, 'scrypt$a3');
+      expect((await st.users.byId(ada.id))?.password_changed_at).toBe('2026-01-07T00:00:00.000Z');
+      expect(await st.users.activeAdministrators()).toBe(1);
+      expect((await st.users.list()).map((u) => u.name)).toEqual(['Ada', 'bob']);
+      expect(await st.users.count()).toBe(2);
+      expect(await st.users.byId(999)).toBeNull();
+    }));
+
+    it('sessions: stored by token hash, touched, ended per user except one, purged when old', withStorage(async (st) => {
+      const u = await st.users.insert({ name: 'olga', fullName: 'O', role: 'operator', passwordHash: 'h', mustChange: false, createdBy: 't', at: T0 });
+      const row = (hash: string, t: number) => ({ token_hash: hash, user_id: u.id, csrf_token: `c-${hash}`, created_at: t, last_seen_at: t, expires_at: t + 1000, address: '10.0.0.1' });
+      await st.sessions.insert(row('a', 100));
+      await st.sessions.insert(row('b', 100));
+      await st.sessions.insert(row('c', 500));
+      await st.sessions.touch('a', 150);
+      expect(await st.sessions.get('a')).toEqual({ ...row('a', 100), last_seen_at: 150 });
+      expect(await st.sessions.deleteForUser(u.id, 'a')).toBe(2);
+      expect(await st.sessions.get('b')).toBeNull();
+      await st.sessions.insert(row('d', 2000));
+      // expired by 1200 (a: expires 1100) or idle since 1500 or before (none else)
+      expect(await st.sessions.purge(1200, 140)).toBe(1);
+      expect(await st.sessions.get('d')).not.toBeNull();
+      await st.sessions.delete('d');
+      expect(await st.sessions.get('d')).toBeNull();
+    }));
+
+    it('login failures: put, read back, clear', withStorage(async (st) => {
+      expect(await st.loginFailures.get('user:ada')).toBeNull();
+      await st.loginFailures.put('user:ada', { failures: 3, lastFailureAt: 10, lockedUntil: 0 });
+      await st.loginFailures.put('user:ada', { failures: 4, lastFailureAt: 20, lockedUntil: 2020 });
+      expect(await st.loginFailures.get('user:ada')).toEqual({ failures: 4, lastFailureAt: 20, lockedUntil: 2020 });
+      await st.loginFailures.clear('user:ada');
+      expect(await st.loginFailures.get('user:ada')).toBeNull();
+    }));
+
+    it('analyzer tokens: found by hash while not revoked; revoked once; the core tokens listed and revocable', withStorage(async (st) => {
+      await st.analyzerTokens.insert({ id: 't1', analyzer: 'nir-1', label: 'probe', tokenHash: h('e'), createdAt: T0, createdBy: 'ada' });
+      expect(await st.analyzerTokens.findActive(h('e'))).toMatchObject({ id: 't1', analyzer: 'nir-1', label: 'probe', revokedAt: null, lastUsedAt: null });
+      await st.analyzerTokens.touch('t1', '2026-01-05T09:00:00.000Z');
+      expect((await st.analyzerTokens.get('t1'))?.lastUsedAt).toBe('2026-01-05T09:00:00.000Z');
+      expect(await st.analyzerTokens.revoke('t1', '2026-01-06T00:00:00.000Z', 'ada')).toBe(true);
+      expect(await st.analyzerTokens.revoke('t1', '2026-01-07T00:00:00.000Z', 'bob')).toBe(false);
+      expect(await st.analyzerTokens.findActive(h('e'))).toBeNull();
+      expect(await st.analyzerTokens.list()).toMatchObject([{ id: 't1', revokedBy: 'ada' }]);
+      await st.createAnalyzer({ id: 'nir-2', name: 'nir-2', createdAt: 5 });
+      await st.addAnalyzerToken('nir-2', h('f'), 5);
+      const [core] = await st.analyzerTokens.listCore();
+      expect(core).toMatchObject({ analyzer: 'nir-2', createdAt: 5, revokedAt: null });
+      expect(await st.findAnalyzerByTokenHash(h('f'))).toBe('nir-2');
+      expect(await st.analyzerTokens.revokeCore(core!.id, 9)).toBe(true);
+      expect(await st.analyzerTokens.revokeCore(core!.id, 10)).toBe(false);
+      expect(await st.findAnalyzerByTokenHash(h('f'))).toBeNull();
+    }));
+
+    it('a unit of work that fails leaves no user, session or token behind', withStorage(async (st) => {
+      await expect(
+        st.unitOfWork(async (u) => {
+          const usr = await u.users.insert({ name: 'eve', fullName: 'E', role: 'viewer', passwordHash: 'h', mustChange: false, createdBy: 't', at: T0 });
+          await u.sessions.insert({ token_hash: 's', user_id: usr.id, csrf_token: 'c', created_at: 1, last_seen_at: 1, expires_at: 2, address: null });
+          await u.analyzerTokens.insert({ id: 't9', analyzer: 'nir-9', label: '', tokenHash: h('9'), createdAt: T0, createdBy: 'eve' });
+          throw new Error('injected failure');
+        }),
+      ).rejects.toThrow('injected failure');
+      expect(await st.users.byName('eve')).toBeNull();
+      expect(await st.sessions.get('s')).toBeNull();
+      expect(await st.analyzerTokens.get('t9')).toBeNull();
     }));
   });
 }

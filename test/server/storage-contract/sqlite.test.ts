@@ -8,15 +8,12 @@ import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { describe, expect, it } from 'vitest';
 import { SqliteStorage } from '../../../server/storage/sqlite-storage.ts';
-import { storageContract } from './contract.ts';
+import { authContract, storageContract } from './contract.ts';
 
 const open = async () => new SqliteStorage({ file: join(mkdtempSync(join(tmpdir(), 'tideline-contract-')), 'tideline.db'), checkpointInWorker: false });
 
-storageContract('SQLite', {
-  open,
-  addSigner: async (st, name) =>
-    Number((st as SqliteStorage).db.prepare("INSERT INTO auth_users (name, full_name, role, password_hash, created_at, created_by, password_changed_at) VALUES (?, ?, 'model-owner', 'x', '2026-01-05T08:00:00.000Z', 'test', '2026-01-05T08:00:00.000Z')").run(name, name).lastInsertRowid),
-});
+storageContract('SQLite', { open });
+authContract('SQLite', { open });
 
 describe('SQLite units of work', () => {
   it('keeps the durable settings: WAL and synchronous=FULL', async () => {
