@@ -298,6 +298,10 @@ describe.skipIf(!haveChromium)('dashboard in headless Chromium', () => {
     await check.getByTestId(`check-${ids[2]}`).locator('.badge', { hasText: 'early' }).waitFor();
     await expect(check.getByTestId(`check-${ids[2]}`).textContent()).resolves.toMatch(/55\.0.*marked.*\d+ intervals \([\d.]+ min\) early/);
     await shot('bench-draft');
+    // codes stay in the API: the page names limit methods and criteria in words
+    expect(await page.getByTestId('version-detail').textContent()).not.toMatch(/t2-f-new|q-jackson-mudholkar|\bmbsd\b|\bMBSD\b|from memory/);
+    // a version never evaluated on held-out batches says so where it is approved
+    await page.getByTestId('approve').getByTestId('approval-evidence').getByText(/has not been evaluated on held-out batches/).waitFor({ timeout: 60_000 });
     // approval without the override reason is refused, with the sentence beside the field
     const approve = page.getByTestId('approve');
     await approve.getByTestId('early-endpoint').waitFor();
@@ -397,6 +401,27 @@ describe.skipIf(!haveChromium)('dashboard in headless Chromium', () => {
     await shot('watch-reactor');
     expect(pageErrors.join("\n")).toBe("");
   }, 180_000);
+
+  it('keeps a screenshot of every view at 1,600 × 1,000 beside those at 1,280 × 800', async () => {
+    await page.setViewportSize({ width: 1600, height: 1000 });
+    const views: [string, string, () => Promise<void>][] = [
+      ['floor', '#/floor', () => page.getByTestId('tile-dryer-1').getByText('of golden course').waitFor({ timeout: 120_000 })],
+      ['watch-dryer', '#/watch/dryer-1', () => page.getByTestId('plane-chart').getByText('reference batches').waitFor({ timeout: 60_000 })],
+      ['bench', '#/bench', () => page.getByTestId('builder').waitFor()],
+      ['review', '#/review', async () => {
+        await page.locator('[data-testid^="review-dryer-1-"]').first().click();
+        await page.getByTestId('timeline').getByText('batch start').waitFor({ timeout: 60_000 });
+      }],
+      ['ledger', '#/ledger', () => page.getByTestId('ledger-table').waitFor()],
+    ];
+    for (const [name, hash, ready] of views) {
+      await page.goto(`${url}/${hash}`);
+      await ready();
+      await page.screenshot({ path: join(SHOTS, `${name}-1600x1000.png`) });
+    }
+    await page.setViewportSize({ width: 1280, height: 800 });
+    expect(pageErrors.join("\n")).toBe("");
+  }, 300_000);
 });
 
 describe.skipIf(haveChromium)('dashboard in headless Chromium (skipped)', () => {

@@ -22,6 +22,7 @@ import { ENDPOINT_WORDS } from '../format/status-words.ts';
 import { limitName, processTime, minutes, percent, sig, withUnit } from '../format/number-format.ts';
 import { STYLE } from '../theme/palette.ts';
 import { href } from '../router.ts';
+import { criterionName, plainText } from '../../../core/vocabulary/plain-names.ts';
 
 export function Watch({ unit, now }: { unit: string; now: number }) {
   const live = useLive({ kind: 'unit', unit }, 20_000);
@@ -407,8 +408,8 @@ export function EndpointPanel({ ep, s }: { ep: EndpointStatus | null; s: LiveSta
           {ep.criteria.map((c) => (
             <tr key={c.criterion}>
               <td>{c.met ? <Badge tone="ok">yes</Badge> : <Badge tone="muted">not yet</Badge>}</td>
-              <td>{c.criterion}</td>
-              <td>{c.text || `${sig(c.value)} vs ${sig(c.threshold)}`}</td>
+              <td>{criterionName(c.criterion)}</td>
+              <td>{c.text ? plainText(c.text) : `${sig(c.value)} vs ${sig(c.threshold)}`}</td>
             </tr>
           ))}
         </tbody>

@@ -9,6 +9,7 @@ import { get } from '../../api/http.ts';
 import { ApiError } from '../../api/problem.ts';
 import { Badge } from '../../components/status.tsx';
 import { dateTime, percent } from '../../format/number-format.ts';
+import { plainText } from '../../../../core/vocabulary/plain-names.ts';
 
 export interface RateView {
   name: string;
@@ -157,7 +158,7 @@ export function ApprovalEvidence({ ev }: { ev: EvidenceView | null | 'unsupporte
           ))}
         </ul>
       )}
-      {ev.method && <p class="muted small">{ev.method}</p>}
+      {ev.method && <p class="muted small">{plainText(ev.method)}</p>}
     </div>
   );
 }

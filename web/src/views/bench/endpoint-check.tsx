@@ -6,6 +6,7 @@ import type { EndpointCheckRowView, EndpointCheckView, ReferenceEndpointView } f
 import { Badge } from '../../components/status.tsx';
 import { fixed, sig } from '../../format/number-format.ts';
 import type { StatusTone } from '../../theme/palette.ts';
+import { plainText } from '../../../../core/vocabulary/plain-names.ts';
 
 const VERDICT_TONE: Record<EndpointCheckRowView['verdict'], StatusTone> = { early: 'alarm', 'on time': 'ok', late: 'info', 'not reached': 'warn', 'no known endpoint': 'muted' };
 const SOURCE_WORDS: Record<NonNullable<EndpointCheckRowView['knownSource']>, string> = { lab: 'lab values crossing the target', marked: 'marked', 'marked-last': 'marked: the last spectrum' };
@@ -35,7 +36,7 @@ export function EndpointCheckPanel({ check, ends }: { check: EndpointCheckView |
         <p class="muted">This version was built before the endpoint check: how its rule fires on the reference batches is not known.</p>
       ) : (
         <>
-          <p class="small">{check.method}</p>
+          <p class="small">{plainText(check.method)}</p>
           <p data-testid="endpoint-check-summary">
             {check.early > 0 ? (
               <Badge tone="alarm">

@@ -3,6 +3,7 @@ import type { EndpointRuleView } from '../../../../core/api/rest.ts';
 import { Advisory } from '../../components/status.tsx';
 import { sig } from '../../format/number-format.ts';
 import { CRITERION_LABEL } from './form-data.ts';
+import { plainText } from '../../../../core/vocabulary/plain-names.ts';
 
 export function EndpointRulePanel({ rule }: { rule: EndpointRuleView | null }) {
   return (
@@ -41,7 +42,7 @@ export function EndpointRulePanel({ rule }: { rule: EndpointRuleView | null }) {
                   <td>{CRITERION_LABEL[c.kind]}</td>
                   <td>{c.text}</td>
                   <td class="num">{sig(c.threshold, 4)}</td>
-                  <td class="small">{c.method}</td>
+                  <td class="small">{plainText(c.method)}</td>
                 </tr>
               ))}
             </tbody>

@@ -6,6 +6,7 @@ import { Chart } from '../../charts/chart.tsx';
 import { linesOptions } from '../../charts/chart-options.ts';
 import { confidence, sig, withUnit } from '../../format/number-format.ts';
 import { OKABE_ITO, STYLE } from '../../theme/palette.ts';
+import { limitMethodName, plainText } from '../../../../core/vocabulary/plain-names.ts';
 
 export function PropertyEvidencePanel({ p }: { p: PropertyModelView | null }) {
   if (!p) {
@@ -63,8 +64,8 @@ export function PropertyEvidencePanel({ p }: { p: PropertyModelView | null }) {
         )}
         <dt>Outside calibration</dt>
         <dd>
-          flagged beyond the prediction's T² {sig(p.extrapolation.t2Limit)} or Q {sig(p.extrapolation.qLimit)} at {confidence(p.extrapolation.confidence)} overall — {p.extrapolation.method} (
-          {p.extrapolation.t2Method}; {p.extrapolation.qMethod})
+          flagged beyond the prediction's T² {sig(p.extrapolation.t2Limit)} or Q {sig(p.extrapolation.qLimit)} at {confidence(p.extrapolation.confidence)} overall — {plainText(p.extrapolation.method)} (
+          {limitMethodName(p.extrapolation.t2Method)}; {limitMethodName(p.extrapolation.qMethod)})
         </dd>
       </dl>
       {lvs.length > 0 && (

@@ -18,6 +18,7 @@ import { PropertyEvidencePanel } from './property-evidence.tsx';
 import { TransferPanel } from './transfer-panel.tsx';
 import { ModelHealthPanel } from './health.tsx';
 import { ShadowPanel } from './shadow.tsx';
+import { limitMethodName, plainText } from '../../../../core/vocabulary/plain-names.ts';
 
 export function VersionDetail({ version, me }: { version: string; me: Me | null }) {
   const detail = useAsync(() => api.modelVersion(version), [version]);
@@ -50,13 +51,13 @@ export function VersionDetail({ version, me }: { version: string; me: Me | null 
           <dd>{d.components}</dd>
           <dt>Limits</dt>
           <dd>
-            {limitName('T²', d.limits.confidence)} = {sig(d.limits.t2)} ({d.limits.t2Method}); {limitName('Q', d.limits.confidence)} = {sig(d.limits.q)} ({d.limits.qMethod})
+            {limitName('T²', d.limits.confidence)} = {sig(d.limits.t2)} ({limitMethodName(d.limits.t2Method)}); {limitName('Q', d.limits.confidence)} = {sig(d.limits.q)} ({limitMethodName(d.limits.qMethod)})
           </dd>
           {d.alarmLimits && (
             <>
               <dt>Alarm limits</dt>
               <dd data-testid="alarm-limits">
-                {limitName('T²', d.alarmLimits.confidence, 'alarm limit')} = {sig(d.alarmLimits.t2)}; {limitName('Q', d.alarmLimits.confidence, 'alarm limit')} = {sig(d.alarmLimits.q)}; envelope alarm at ±{sig(d.alarmLimits.envelopeK)} sd — {d.alarmLimits.envelopeKMethod}. The charts draw the {confidence(d.limits.confidence)} limits; alarms are raised at these.
+                {limitName('T²', d.alarmLimits.confidence, 'alarm limit')} = {sig(d.alarmLimits.t2)}; {limitName('Q', d.alarmLimits.confidence, 'alarm limit')} = {sig(d.alarmLimits.q)}; envelope alarm at ±{sig(d.alarmLimits.envelopeK)} sd — {plainText(d.alarmLimits.envelopeKMethod)}. The charts draw the {confidence(d.limits.confidence)} limits; alarms are raised at these.
               </dd>
             </>
           )}
@@ -96,7 +97,7 @@ export function VersionDetail({ version, me }: { version: string; me: Me | null 
           <h3>What the build decided on its own</h3>
           <ul>
             {d.notes.map((n) => (
-              <li key={n}>{n}</li>
+              <li key={n}>{plainText(n)}</li>
             ))}
           </ul>
         </div>
