@@ -4,6 +4,7 @@
  * supersedes and why) and stored with their audit records in one transaction — the same for the
  * REST route (server/api/routes-lab.ts), `lab add` and `lab import` on the command line.
  */
+import { textProblem } from '../../core/io/names.ts';
 import { randomUUID } from 'node:crypto';
 import type { LabValueRecord, LabValueView } from '../../core/api/rest.ts';
 import { checkLabValueAdditions, labValueViews, LabValueError, normalisePropertyName, sameUnit } from '../../core/lab/lab-values.ts';
@@ -59,6 +60,8 @@ export interface AttachOptions {
 export async function resolveLabEntries(storage: Storage, entries: LabEntry[], opts: AttachOptions): Promise<{ rows: LabValueRecord[]; batches: Map<string, { row: BatchRow; times: Float64Array }> }> {
   const batches = new Map<string, { row: BatchRow; times: Float64Array }>();
   const rows: LabValueRecord[] = [];
+  const userProblem = textProblem(opts.user, { max: 200 });
+  if (userProblem) throw new LabEntryError(422, 'lab-value-invalid', `the name of who entered the values ${userProblem}`);
   for (const e of entries) {
     const where = e.where ?? null;
     let b = batches.get(e.batch);
@@ -86,6 +89,16 @@ export async function resolveLabEntries(storage: Storage, entries: LabEntry[], o
     }
     const method = e.method?.trim() || null;
     const reason = e.reason?.trim() || null;
+    // unit, method and reason are shown in views, reports, exports and the audit trail: one line
+    // (reasons may have several) of printable text, no control or bidirectional characters
+    for (const [field, text, rule] of [
+      ['unit', e.unit, { max: 64, empty: true }],
+      ['method', method, { max: 200 }],
+      ['reason', reason, { max: 2000, multiline: true }],
+    ] as const) {
+      const p = text === null ? null : textProblem(text, rule);
+      if (p) throw new LabEntryError(422, 'lab-value-invalid', `the ${field} ${p}`, where);
+    }
     rows.push({
       id: randomUUID(), batch: e.batch, property: normalisePropertyName(e.property), value: e.value, unit: e.unit.trim().replace(/\s+/g, ' '),
       sampleT, spectrumIdx: m.idx, spectrumDtMs: m.dtMs, method, enteredBy: opts.user, enteredAt: opts.now, source: 'entry',

@@ -98,6 +98,24 @@ describe('POST /api/batches/:batch/lab-values', () => {
     expect(JSON.parse(audit.body.items[2].before).id).toBe(first);
     expect(audit.body.items[2].reason).toBe('transcription error: the balance read 6.0');
   }, 120_000);
+
+  it('refuses a unit, method or reason holding a bidirectional override or an escape, naming the field; nothing stored', async () => {
+    const url = '/api/batches/L-2/lab-values';
+    const before = (await viewer.get(url)).body.items.length as number;
+    const base = { property: 'moisture', value: 4.1, unit: '% w/w', sampleT: iso(T0 + 300_000) };
+    for (const [body, field, what] of [
+      [{ ...base, unit: '%\u202e w/w' }, 'unit', /bidirectional control character \(U\+202E\)/],
+      [{ ...base, method: 'LOD\u001b[2J' }, 'method', /escape character \(U\+001B\)/],
+      [{ ...base, method: 'LOD\u2066' }, 'method', /bidirectional control character \(U\+2066\)/],
+    ] as const) {
+      const r = await operator.post(url, body);
+      expect(r.status, JSON.stringify(r.body)).toBe(422);
+      expect(JSON.stringify(r.body)).toMatch(new RegExp(`the ${field} holds`));
+      expect(JSON.stringify(r.body)).toMatch(what);
+    }
+    const after = (await viewer.get(url)).body.items.length as number;
+    expect(after).toBe(before);
+  }, 60_000);
 });
 
 describe('exports carry the lab values', () => {
