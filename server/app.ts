@@ -1,6 +1,7 @@
 /**
  * Builds and starts a Tideline server: storage, ingest pipeline, live hub, REST API, metrics,
- * the dashboard, and the parts other engineers install through ServerContext.
+ * the dashboard, access control and the audit trail, and the parts that install themselves through
+ * ServerContext.
  */
 import { createHash, timingSafeEqual } from 'node:crypto';
 import { EventEmitter } from 'node:events';

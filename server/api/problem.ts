@@ -4,15 +4,21 @@ import { z } from 'zod';
 import type { Problem } from '../../core/api/rest.ts';
 import type { Logger } from '../logger.ts';
 
+/** The one error that knows its HTTP answer (RFC 9457 problem details), for every route of the server. */
 export class HttpProblem extends Error {
   constructor(
     readonly status: number,
     readonly title: string,
     readonly detail: string,
+    /** The problem type's last segment: `/problems/<kind>`. */
     readonly kind = slug(title),
+    /** The offending fields, each with what is wrong with it. */
     readonly errors?: { path: string; message: string }[],
+    /** Seconds to wait before trying again (sent as Retry-After), e.g. for 429. */
+    readonly retryAfterS?: number,
   ) {
     super(detail);
+    this.name = 'HttpProblem';
   }
 }
 
@@ -42,6 +48,7 @@ export function problemHandler(log: Logger): ErrorRequestHandler {
       return;
     }
     if (err instanceof HttpProblem) {
+      if (err.retryAfterS !== undefined) res.setHeader('Retry-After', String(err.retryAfterS));
       const p: Problem = { type: `/problems/${err.kind}`, title: err.title, status: err.status, detail: err.detail };
       if (err.errors) p.errors = err.errors;
       sendProblem(res, req, p);

@@ -14,7 +14,8 @@ import { z } from 'zod';
 import type { Auth } from '../auth/types.ts';
 import { RouteTable } from '../api/route-table.ts';
 import { authValidate } from '../auth/auth-routes.ts';
-import { HttpError, problemErrorHandler } from '../auth/http-problem.ts';
+import { HttpProblem } from '../api/problem.ts';
+import { problemErrorHandler } from '../auth/http-problem.ts';
 import { AuditInputError, MAX_LIST, formatAnchor, parseAnchors } from './audit-trail.ts';
 import type { AuditFilter, AuditRecord, AuditTrail } from './types.ts';
 
@@ -56,7 +57,7 @@ async function guard<T>(fn: () => Promise<T>): Promise<T> {
   try {
     return await fn();
   } catch (e) {
-    if (e instanceof AuditInputError) throw new HttpError(400, 'validation', 'Invalid request', e.message);
+    if (e instanceof AuditInputError) throw new HttpProblem(400, 'Invalid request', e.message, 'validation');
     throw e;
   }
 }

@@ -20,7 +20,8 @@ import express, { type Request, type Router } from 'express';
 import { z } from 'zod';
 import { RouteTable, type RouteValidator } from '../api/route-table.ts';
 import type { AuthService } from './auth-service.ts';
-import { HttpError, problemErrorHandler, validationError } from './http-problem.ts';
+import { HttpProblem } from '../api/problem.ts';
+import { problemErrorHandler, validationError } from './http-problem.ts';
 import { ROLES, type AuthUser } from './types.ts';
 
 export const AUTH_BODY_LIMIT = '16kb';
@@ -66,7 +67,7 @@ const tokenBody = z.object({ analyzer: z.string().min(1).max(64), label: nameSch
 const signaturesQuery = z.object({ objectType: z.string().min(1).max(64), objectId: z.string().min(1).max(200) });
 
 export function parseWith<T>(schema: z.ZodType<T>, value: unknown, what: string): T {
-  if (value === undefined) throw new HttpError(400, 'validation', 'Invalid request', `${what}: send a JSON object with Content-Type: application/json`);
+  if (value === undefined) throw new HttpProblem(400, 'Invalid request', `${what}: send a JSON object with Content-Type: application/json`, 'validation');
   const r = schema.safeParse(value);
   if (!r.success) throw validationError(what, r.error.issues);
   return r.data;
@@ -112,7 +113,7 @@ export function authRoutes(auth: AuthService): RouteTable {
     response: 'LoginResponse', responseSource: 'server/auth/auth-routes.ts',
     handler: async ({ req }): Promise<LoginResponse> => {
       const s = await auth.session(req.headers.cookie);
-      if (!s) throw new HttpError(401, 'login-required', 'Login required', 'no valid session: log in with POST /api/auth/login');
+      if (!s) throw new HttpProblem(401, 'Login required', 'no valid session: log in with POST /api/auth/login', 'login-required');
       return { user: s.user, csrfToken: s.csrfToken, expiresAt: s.expiresAt, mustChangePassword: s.mustChangePassword };
     },
   });
@@ -159,7 +160,7 @@ export function authRoutes(auth: AuthService): RouteTable {
       try {
         t = await auth.createAnalyzerToken(body.analyzer, body.label ?? '', req.user!.name);
       } catch (e) {
-        throw new HttpError(400, 'validation', 'Invalid request', (e as Error).message);
+        throw new HttpProblem(400, 'Invalid request', (e as Error).message, 'validation');
       }
       return { id: t.id, analyzer: body.analyzer, token: t.token, notice: 'The token is shown once; the server keeps only its hash.' };
     },
@@ -170,7 +171,7 @@ export function authRoutes(auth: AuthService): RouteTable {
     params: idParam, response: '', status: 204,
     handler: async ({ params, req }) => {
       if (!(await auth.revokeAnalyzerToken(params.id, req.user!.name)))
-        throw new HttpError(404, 'no-such-token', 'No such token', `no active analyzer token with id ${params.id}`);
+        throw new HttpProblem(404, 'No such token', `no active analyzer token with id ${params.id}`, 'no-such-token');
       return undefined;
     },
   });

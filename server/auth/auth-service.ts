@@ -10,7 +10,8 @@ import type { AuditTrail } from '../audit/types.ts';
 import type { AuthRepositories, SignatureRepository, UnitOfWork, UnitOfWorkRunner, UserRepository } from '../storage/repositories.ts';
 import { AnalyzerTokenStore } from './analyzer-tokens.ts';
 import { readCookie } from './cookies.ts';
-import { HttpError, sendHttpError } from './http-problem.ts';
+import { HttpProblem } from '../api/problem.ts';
+import { sendHttpProblem } from './http-problem.ts';
 import { DEFAULT_THROTTLE, LoginThrottle, addressKey, userKey, type ThrottlePolicy } from './login-throttle.ts';
 import { DEFAULT_SCRYPT_LOG2N, hashPassword, needsRehash, passwordProblem, verifyPassword } from './password.ts';
 import { DEFAULT_SESSION_TIMES, SessionStore, type SessionTimes } from './session-store.ts';
@@ -110,14 +111,14 @@ export class AuthService implements Auth {
     by: string,
   ): Promise<UserView> {
     if (typeof u.name !== 'string' || !USER_NAME_RE.test(u.name))
-      throw new HttpError(400, 'bad-user', 'Bad user', 'user name must be 2–64 characters of A-Z a-z 0-9 . _ - starting with a letter or digit');
-    if (!isRole(u.role)) throw new HttpError(400, 'bad-user', 'Bad user', `role must be one of viewer, operator, model-owner, administrator (got ${String(u.role)})`);
+      throw new HttpProblem(400, 'Bad user', 'user name must be 2–64 characters of A-Z a-z 0-9 . _ - starting with a letter or digit', 'bad-user');
+    if (!isRole(u.role)) throw new HttpProblem(400, 'Bad user', `role must be one of viewer, operator, model-owner, administrator (got ${String(u.role)})`, 'bad-user');
     const pp = passwordProblem(u.password);
-    if (pp) throw new HttpError(400, 'bad-password', 'Password not accepted', pp);
+    if (pp) throw new HttpProblem(400, 'Password not accepted', pp, 'bad-password');
     const fullName = (u.fullName ?? u.name).trim() || u.name;
     const fp = textProblem(fullName);
-    if (fp) throw new HttpError(400, 'bad-user', 'Bad user', `full name ${fp}`);
-    if (await this.users.byName(u.name)) throw new HttpError(409, 'user-exists', 'User exists', `a user named ${u.name} already exists`);
+    if (fp) throw new HttpProblem(400, 'Bad user', `full name ${fp}`, 'bad-user');
+    if (await this.users.byName(u.name)) throw new HttpProblem(409, 'User exists', `a user named ${u.name} already exists`, 'user-exists');
     const hash = await hashPassword(u.password, this.scryptLog2N);
     const at = this.iso();
     const row = await this.storage.unitOfWork(async (uow) => {
@@ -141,20 +142,20 @@ export class AuthService implements Auth {
   ): Promise<UserView> {
     const byName = typeof by === 'string' ? by : by.name;
     const row = await this.users.byName(name);
-    if (!row) throw new HttpError(404, 'no-such-user', 'No such user', `no user named ${name}`);
-    if (change.role !== undefined && !isRole(change.role)) throw new HttpError(400, 'bad-user', 'Bad user', `unknown role ${String(change.role)}`);
+    if (!row) throw new HttpProblem(404, 'No such user', `no user named ${name}`, 'no-such-user');
+    if (change.role !== undefined && !isRole(change.role)) throw new HttpProblem(400, 'Bad user', `unknown role ${String(change.role)}`, 'bad-user');
     if (change.fullName !== undefined && change.fullName.trim() !== '') {
       const fp = textProblem(change.fullName);
-      if (fp) throw new HttpError(400, 'bad-user', 'Bad user', `full name ${fp}`);
+      if (fp) throw new HttpProblem(400, 'Bad user', `full name ${fp}`, 'bad-user');
     }
     if (change.password !== undefined) {
       const pp = passwordProblem(change.password);
-      if (pp) throw new HttpError(400, 'bad-password', 'Password not accepted', pp);
+      if (pp) throw new HttpProblem(400, 'Password not accepted', pp, 'bad-password');
     }
     const losesAdmin =
       row.role === 'administrator' && !row.disabled_at && ((change.role && change.role !== 'administrator') || change.disabled === true);
     if (losesAdmin && (await this.users.activeAdministrators()) <= 1)
-      throw new HttpError(409, 'last-administrator', 'Last administrator', 'this is the last active administrator: create another one first');
+      throw new HttpProblem(409, 'Last administrator', 'this is the last active administrator: create another one first', 'last-administrator');
     const hash = change.password !== undefined ? await hashPassword(change.password, this.scryptLog2N) : null;
     const at = this.iso();
     const after = await this.storage.unitOfWork(async (uow) => {
@@ -175,15 +176,15 @@ export class AuthService implements Auth {
 
   async changeOwnPassword(user: AuthUser, current: string, next: string, keepToken: string | undefined, address: string): Promise<void> {
     const row = await this.users.byId(user.id);
-    if (!row) throw new HttpError(401, 'login-required', 'Login required', 'user no longer exists');
+    if (!row) throw new HttpProblem(401, 'Login required', 'user no longer exists', 'login-required');
     await this.checkThrottle(row.name, address);
     if (!(await verifyPassword(String(current ?? ''), row.password_hash))) {
       await this.recordFailure(row.name, address, 'password.change', 'current password wrong');
-      throw new HttpError(401, 'wrong-password', 'Wrong password', 'the current password is wrong');
+      throw new HttpProblem(401, 'Wrong password', 'the current password is wrong', 'wrong-password');
     }
     const pp = passwordProblem(next);
-    if (pp) throw new HttpError(400, 'bad-password', 'Password not accepted', pp);
-    if (current === next) throw new HttpError(400, 'bad-password', 'Password not accepted', 'the new password must differ from the current one');
+    if (pp) throw new HttpProblem(400, 'Password not accepted', pp, 'bad-password');
+    if (current === next) throw new HttpProblem(400, 'Password not accepted', 'the new password must differ from the current one', 'bad-password');
     const hash = await hashPassword(next, this.scryptLog2N);
     await this.storage.unitOfWork(async (uow) => {
       await uow.users.setPassword(row.id, hash, false, this.iso());
@@ -199,7 +200,7 @@ export class AuthService implements Auth {
     if (c.waitMs > 0) {
       const s = Math.ceil(c.waitMs / 1000);
       const what = c.key?.startsWith('addr:') ? 'from this address' : 'for this user';
-      throw new HttpError(429, 'too-many-attempts', 'Too many failed attempts', `too many failed attempts ${what}: try again in ${s} s`, s);
+      throw new HttpProblem(429, 'Too many failed attempts', `too many failed attempts ${what}: try again in ${s} s`, 'too-many-attempts', undefined, s);
     }
   }
 
@@ -226,19 +227,19 @@ export class AuthService implements Auth {
 
   async login(name: unknown, password: unknown, address: string): Promise<LoginResult> {
     if (typeof name !== 'string' || name.length === 0 || name.length > 64)
-      throw new HttpError(400, 'bad-request', 'Bad request', 'name must be a non-empty string of at most 64 characters');
+      throw new HttpProblem(400, 'Bad request', 'name must be a non-empty string of at most 64 characters', 'bad-request');
     if (typeof password !== 'string' || password.length === 0 || password.length > 256)
-      throw new HttpError(400, 'bad-request', 'Bad request', 'password must be a non-empty string of at most 256 characters');
+      throw new HttpProblem(400, 'Bad request', 'password must be a non-empty string of at most 256 characters', 'bad-request');
     await this.checkThrottle(name, address);
     const row = await this.users.byName(name);
     const ok = row ? await verifyPassword(password, row.password_hash) : (await verifyPassword(password, await this.dummy()), false);
     if (!row || !ok) {
       await this.recordFailure(name, address, 'auth.login', row ? 'wrong password' : 'unknown user');
-      throw new HttpError(401, 'login-failed', 'Login failed', 'user name or password is wrong');
+      throw new HttpProblem(401, 'Login failed', 'user name or password is wrong', 'login-failed');
     }
     if (row.disabled_at) {
       await this.audit.record({ user: row.name, action: 'auth.login.failed', object: `user:${row.name}`, after: { address }, reason: 'account disabled' });
-      throw new HttpError(403, 'account-disabled', 'Account disabled', 'this account is disabled; ask an administrator');
+      throw new HttpProblem(403, 'Account disabled', 'this account is disabled; ask an administrator', 'account-disabled');
     }
     await this.throttle.clear(userKey(name));
     if (needsRehash(row.password_hash, this.scryptLog2N)) await this.users.replaceHash(row.id, await hashPassword(password, this.scryptLog2N));
@@ -310,18 +311,18 @@ export class AuthService implements Auth {
   requireRole(role: Role): RequestHandler {
     if (!isRole(role)) throw new Error(`requireRole: unknown role ${String(role)}`);
     return (req: Request, res: Response, next: NextFunction) => void this.session(req.headers.cookie).then((s) => {
-      if (!s) return sendHttpError(res, new HttpError(401, 'login-required', 'Login required', 'no valid session: log in with POST /api/auth/login'));
+      if (!s) return sendHttpProblem(res, new HttpProblem(401, 'Login required', 'no valid session: log in with POST /api/auth/login', 'login-required'));
       if (!roleAtLeast(s.user.role, role))
-        return sendHttpError(
+        return sendHttpProblem(
           res,
-          new HttpError(403, 'forbidden', 'Forbidden', `this needs the role ${role} or above; ${s.user.name} has the role ${s.user.role}`),
+          new HttpProblem(403, 'Forbidden', `this needs the role ${role} or above; ${s.user.name} has the role ${s.user.role}`, 'forbidden'),
         );
       if (UNSAFE.has(req.method)) {
         const h = req.get(CSRF_HEADER);
         if (!h || !sameSecret(h, s.csrfToken))
-          return sendHttpError(
+          return sendHttpProblem(
             res,
-            new HttpError(403, 'csrf', 'CSRF token missing or wrong', `send the header ${CSRF_HEADER} with the csrfToken from login or GET /api/auth/me`),
+            new HttpProblem(403, 'CSRF token missing or wrong', `send the header ${CSRF_HEADER} with the csrfToken from login or GET /api/auth/me`, 'csrf'),
           );
       }
       req.user = s.user;
@@ -350,7 +351,7 @@ export class AuthService implements Auth {
 
   createAnalyzerToken(analyzer: string, label: string, createdBy: string): Promise<{ id: string; token: string }> {
     const lp = label === '' ? null : textProblem(label);
-    if (lp) return Promise.reject(new HttpError(400, 'bad-token', 'Bad token request', `label ${lp}`));
+    if (lp) return Promise.reject(new HttpProblem(400, 'Bad token request', `label ${lp}`, 'bad-token'));
     return this.storage.unitOfWork(async (uow) => {
       const t = await this.tokens.create(analyzer, label, createdBy, uow.analyzerTokens);
       await this.audit.record({ user: createdBy, action: 'analyzer-token.create', object: `analyzer:${analyzer}`, after: { tokenId: t.id, label } }, uow);
@@ -389,7 +390,7 @@ export class AuthService implements Auth {
     try {
       await this.checkThrottle(row.name, address);
     } catch (e) {
-      if (e instanceof HttpError) throw new SignatureError(e.message, 429);
+      if (e instanceof HttpProblem) throw new SignatureError(e.message, 429);
       throw e;
     }
     if (!(await verifyPassword(req.password, row.password_hash))) {

@@ -15,7 +15,6 @@ import { formatAnchor, parseAnchors } from '../audit/audit-trail.ts';
 import type { AuditAnchor } from '../audit/types.ts';
 import { userInfo } from 'node:os';
 import { parseArgs } from 'node:util';
-import { HttpError } from './http-problem.ts';
 import { generatePassword } from './password.ts';
 import { createSecurity, type SecurityStorage } from './security-setup.ts';
 import { isRole, ROLES } from './types.ts';
@@ -208,7 +207,7 @@ export async function runSecurityCli(
       return 0;
     }
   } catch (e) {
-    io.err(`${group} ${verb}: ${e instanceof HttpError || e instanceof Error ? e.message : String(e)}`);
+    io.err(`${group} ${verb}: ${e instanceof Error ? e.message : String(e)}`);
     return 2;
   }
   io.err(USAGE);

@@ -1,5 +1,12 @@
-/** RFC 9457 problem details for the auth and audit routes (same shape as core/api Problem). */
+/**
+ * Answers of the auth and audit routers (RFC 9457 problem details, the same shape as core/api
+ * Problem): the error they throw is the server's one HttpProblem; this adds their own body limit's
+ * wording and the validation helper.
+ */
 import type { Response } from 'express';
+import { HttpProblem } from '../api/problem.ts';
+
+export { HttpProblem };
 
 export interface ProblemBody {
   type: string;
@@ -14,40 +21,26 @@ export function sendProblem(res: Response, status: number, kind: string, title: 
   res.status(status).type('application/problem+json').send(JSON.stringify(body));
 }
 
-/** An error that knows its HTTP answer. */
-export class HttpError extends Error {
-  constructor(
-    readonly status: number,
-    readonly kind: string,
-    readonly title: string,
-    detail: string,
-    readonly retryAfterS?: number,
-    readonly errors?: { path: string; message: string }[],
-  ) {
-    super(detail);
-    this.name = 'HttpError';
-  }
-}
-
-export function sendHttpError(res: Response, e: HttpError): void {
+/** Answer with the problem an HttpProblem (server/api/problem.ts) describes. */
+export function sendHttpProblem(res: Response, e: HttpProblem): void {
   if (e.retryAfterS !== undefined) res.setHeader('Retry-After', String(e.retryAfterS));
   sendProblem(res, e.status, e.kind, e.title, e.message, e.errors ? { errors: e.errors } : undefined);
 }
 
-/** zod-style issues → HttpError 400 naming each offending field. */
-export function validationError(what: string, issues: { path: PropertyKey[]; message: string }[]): HttpError {
+/** zod-style issues → a 400 HttpProblem naming each offending field. */
+export function validationError(what: string, issues: { path: PropertyKey[]; message: string }[]): HttpProblem {
   const errors = issues.map((i) => ({ path: i.path.map(String).join('.') || '(body)', message: i.message }));
-  return new HttpError(400, 'validation', 'Invalid request', `${what}: ` + errors.map((e) => `${e.path}: ${e.message}`).join('; '), undefined, errors);
+  return new HttpProblem(400, 'Invalid request', `${what}: ` + errors.map((e) => `${e.path}: ${e.message}`).join('; '), 'validation', errors);
 }
 
 /**
- * Error handler for a router: body-parser errors (too large, malformed JSON) and HttpErrors
+ * Error handler for a router: body-parser errors (too large, malformed JSON) and HttpProblems
  * become problem details naming the problem; anything else is a 500 without internals.
  */
 export function problemErrorHandler(limitText: string) {
   return (err: unknown, _req: import('express').Request, res: Response, next: import('express').NextFunction): void => {
     if (res.headersSent) return next(err);
-    if (err instanceof HttpError) return sendHttpError(res, err);
+    if (err instanceof HttpProblem) return sendHttpProblem(res, err);
     const e = err as { type?: string; status?: number; message?: string };
     if (e && e.type === 'entity.too.large')
       return sendProblem(res, 413, 'payload-too-large', 'Request body too large', `the request body is larger than ${limitText}`);

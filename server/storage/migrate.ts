@@ -1,7 +1,8 @@
 /**
  * Applies the numbered SQL migrations in server/storage/migrations/ (NNN_name.sql) in order and
  * records each in `schema_migrations` with the SHA-256 of its file. Every part of the server has its
- * own number range (D 001–099, F 100–199, G 200–299, H 300–399); all are applied here.
+ * own number range (001–099 server core, 100–199 signals, 200–299 auth and audit, 300–399 transfer);
+ * all are applied here.
  *
  * Before applying anything the database is checked against this version of Tideline (a refusal is
  * a StorageOpenError naming the file and what differs):

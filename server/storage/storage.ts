@@ -294,7 +294,8 @@ export interface Storage extends UnitOfWorkRunner, AuthRepositories {
   /** The shadow run that judges a batch, with its version; null when none. */
   shadowRunOfBatch(batch: string): Promise<{ id: string; modelVersion: string } | null>;
 
-  // audit (plain rows until server/audit takes over)
+  // the older, unchained `audit` table, still written by the ingest pipeline when it has no audit
+  // trail; everything else records through server/audit (the hash-chained `audit` repository above)
   appendAudit(r: AuditRow): Promise<void>;
 }
 
