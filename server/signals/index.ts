@@ -7,7 +7,6 @@
  * Tideline advises; the site's validated control strategy, interlocks and procedures decide what a
  * signal may do.
  */
-import type Database from 'better-sqlite3';
 import type { MonitorResult } from '../../core/monitor/types.ts';
 import type { ServerContext } from '../context.ts';
 import { startAnchorPublisher, type AnchorSink } from './audit-anchor.ts';
@@ -30,8 +29,8 @@ export interface SignalsHandle {
 
 export async function install(ctx: ServerContext): Promise<SignalsHandle> {
   const cfg = parseSignalsConfig((ctx.config as { signals?: unknown }).signals);
-  const db = ctx.storage.db as unknown as Database.Database;
-  const store = new OutboxStore(db);
+  // The outbox bookkeeping is still on the SQLite connection itself (not yet behind a repository).
+  const store = new OutboxStore(ctx.storage.db);
   const channels: SignalChannel[] = [];
   const anchorSinks: AnchorSink[] = [];
   for (const w of cfg.webhooks) {
