@@ -132,7 +132,7 @@ describe.skipIf(!haveChromium)('dashboard in headless Chromium', () => {
     const apart = Math.abs(Number(hh) * 60 + Number(mm) - (d.getUTCHours() * 60 + d.getUTCMinutes()));
     expect(Math.min(apart, 1440 - apart)).toBeLessThanOrEqual(2);
     await page.getByTestId('simulated').getByText(/Simulated data/).waitFor();
-    expect(await page.getByTestId('simulated').textContent()).toMatch(/dryer-1 ×\d+/);
+    expect(await page.getByTestId('simulated').textContent()).toMatch(/dryer ×\d+/);
     await shot('floor');
     expect(pageErrors.join("\n")).toBe("");
   }, 180_000);
@@ -238,6 +238,8 @@ describe.skipIf(!haveChromium)('dashboard in headless Chromium', () => {
     await expect(page.getByTestId(id).getByTestId('alarm-batch').textContent()).resolves.toMatch(/^(this batch \(dryer-1-|earlier batch dryer-1-)/);
     // (the demo's process clock runs in the past, so the spectrum's time carries its date)
     await page.getByTestId('alarm-list').getByText(/spectrum taken (\d{4}-\d\d-\d\d )?\d\d:\d\d:\d\d/).first().waitFor();
+    // the alarms are grouped by batch
+    await page.getByTestId('alarm-list').locator('[data-testid^="alarm-group-dryer-1-"]').first().waitFor();
     await page.getByTestId(id).scrollIntoViewIfNeeded();
     await shot('watch-alarm-acknowledged');
   }, 300_000);
@@ -348,6 +350,11 @@ describe.skipIf(!haveChromium)('dashboard in headless Chromium', () => {
     await review.waitFor();
     await page.getByTestId('overlay').locator('canvas').first().waitFor({ timeout: 60_000 });
     await page.getByTestId('timeline').getByText('batch start').waitFor();
+    // a finished batch's endpoint is stated as its record has it, and the end agrees with it
+    const endpointRecord = (await page.getByTestId('endpoint-record').textContent())!;
+    expect(endpointRecord).toMatch(/^[^a-z]*(endpoint reached|endpoint not reached|no endpoint rule|not judged by a model)/);
+    const endStatement = (await page.getByTestId('end-statement').textContent())!;
+    if (/endpoint not reached/.test(endpointRecord)) expect(endStatement).not.toMatch(/after the endpoint/);
     // attach a lab result that arrived after the batch: matched to the nearest spectrum, entered by
     // the signed-in user; a second value on the same spectrum is refused in words; a correction
     // names the value it replaces, with a reason, and both stay listed

@@ -110,7 +110,7 @@ export function App() {
       </nav>
       {simulation && (
         <div class="simulated-banner" role="note" data-testid="simulated">
-          <strong>Simulated data</strong> ({simulation.units.map((u) => `${u.unit} ×${u.speedUp}`).join(', ')}). {simulation.note}
+          <strong>Simulated data.</strong> {simulation.note || `Replayed faster than real time: ${simulation.units.map((u) => `${u.unit} ×${u.speedUp}`).join(', ')}.`}
         </div>
       )}
       <main>

@@ -60,8 +60,10 @@ export function AlarmList({
           {groups.length > 1 || g.unacked.length > 1 ? (
             <div class="alarm-group-head small">
               <b>{g.batch === null ? 'No batch' : g.batch === currentBatch ? `This batch (${g.batch})` : `Earlier batch ${g.batch}`}</b>
-              {` · ${g.alarms.length} alarm${g.alarms.length === 1 ? '' : 's'}`}
-              {g.unacked.length > 0 && ` · ${g.unacked.length} to acknowledge`}
+              <span>
+                {g.alarms.length} alarm{g.alarms.length === 1 ? '' : 's'}
+                {g.unacked.length > 0 && `, ${g.unacked.length} to acknowledge`}
+              </span>
               {g.unacked.length > 1 && (
                 <button
                   type="button"
