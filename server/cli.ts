@@ -235,11 +235,15 @@ async function main(argv: string[]): Promise<number> {
       // the other commands do not need and which would slow each of them by seconds.
       const { startServer } = await import('./app.ts');
       const s = await startServer(config);
-      process.stdout.write(`Tideline is running at ${s.url}/  (Ctrl-C stops it)\n`);
-      const signal = await new Promise<string>((res) => {
+      // The stop handlers go in before the line that says the server runs: a supervisor that reads
+      // that line and stops the server at once must find them there (the child can be preempted
+      // between the write and the next statement, and SIGTERM's default action kills it unclean).
+      const stopSignal = new Promise<string>((res) => {
         process.once('SIGINT', () => res('SIGINT'));
         process.once('SIGTERM', () => res('SIGTERM'));
       });
+      process.stdout.write(`Tideline is running at ${s.url}/  (Ctrl-C stops it)\n`);
+      const signal = await stopSignal;
       // Shutdown is bounded: a signal channel waiting on a broker or receiver that is gone must not
       // keep the process alive. Every acked spectrum is already committed; an event whose delivery
       // is cut short is sent again after the restart (the channel's cursor had not moved).
