@@ -128,7 +128,6 @@ export class SqliteStorage implements Storage {
   private uowTail: Promise<unknown> = Promise.resolve();
   private readonly st: Record<string, Database.Statement>;
   private readonly commitTx: (w: IngestWrite) => void;
-  private readonly saveAlarmTx: (a: Alarm, o?: OutboxRow) => void;
   private readonly addLabTx: Database.Transaction<(rows: LabValueRow[]) => void>;
   private checkpointer: Checkpointer | null = null;
   private writer: IngestWriter | null = null;
@@ -256,10 +255,6 @@ export class SqliteStorage implements Storage {
       for (const b of new Set(rows.map((r) => r.batch))) existing.push(...(s.labValues.all(b) as Row[]).map(labValueFromRow));
       checkLabValueAdditions(existing, rows);
       for (const v of rows) s.insertLabValue.run(v);
-    });
-    this.saveAlarmTx = this.db.transaction((a: Alarm, o?: OutboxRow) => {
-      s.upsertAlarm.run(alarmParams(a));
-      if (o) s.insertOutbox.run(o.id, o.unit, o.unitSeq, o.type, JSON.stringify(o.payload), o.createdAt);
     });
     this.audit = new SqliteAuditRepository(this.db);
     this.models = {
@@ -560,9 +555,6 @@ export class SqliteStorage implements Storage {
   }
   async liveAlarms() {
     return (this.st.liveAlarms.all() as Row[]).map(alarmFromRow);
-  }
-  async saveAlarm(a: Alarm, o?: OutboxRow) {
-    this.saveAlarmTx(a, o);
   }
   async listEndpointEvents(batch: string) {
     return (this.st.endpointEvents.all(batch) as Row[]).map(

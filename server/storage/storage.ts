@@ -274,7 +274,6 @@ export interface Storage extends UnitOfWorkRunner, AuthRepositories {
   getAlarm(id: string): Promise<Alarm | null>;
   /** Alarms not in state 'normal' (for rebuilding the alarm book at start). */
   liveAlarms(): Promise<Alarm[]>;
-  saveAlarm(a: Alarm, outbox?: OutboxRow): Promise<void>;
   listEndpointEvents(batch: string): Promise<EndpointEventRow[]>;
 
   // laboratory values (append-only; core/lab/lab-values.ts has the rules)
