@@ -15,7 +15,7 @@
  * Pure: no I/O.
  */
 import type { ApprovalEvidence, ApprovalWarning, BatchEvaluation, RateEvidence } from '../api/rest.ts';
-import { betaInv } from '../stats/quantiles.ts';
+import { clopperPearson as exactInterval } from '../stats/clopper-pearson.ts';
 
 /** A point rate more than this many times the nominal rate (and outside its interval) is far above it. */
 export const FAR_ABOVE_FACTOR = 2;
@@ -24,13 +24,9 @@ export const FAR_BELOW_FACTOR = 4;
 /** Confidence of the exact binomial interval shown. */
 export const INTERVAL_CONFIDENCE = 0.95;
 
-/** Clopper–Pearson exact interval for k successes in n trials at the given two-sided confidence. */
+/** Clopper–Pearson exact interval (core/stats/clopper-pearson.ts), at INTERVAL_CONFIDENCE unless told. */
 export function clopperPearson(k: number, n: number, confidence = INTERVAL_CONFIDENCE): [number, number] {
-  if (!(Number.isInteger(k) && Number.isInteger(n) && n > 0 && k >= 0 && k <= n)) throw new RangeError(`binomial interval: need integers 0 ≤ k ≤ n, n > 0 (got k = ${k}, n = ${n})`);
-  const a = (1 - confidence) / 2;
-  const lo = k === 0 ? 0 : betaInv(a, k, n - k + 1);
-  const hi = k === n ? 1 : betaInv(1 - a, k + 1, n - k);
-  return [lo, hi];
+  return exactInterval(k, n, confidence);
 }
 
 const pct = (v: number) => `${Number((v * 100).toPrecision(3))} %`;

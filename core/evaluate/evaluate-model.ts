@@ -44,7 +44,7 @@ import type { MonitoringModel } from '../model/monitoring-model.ts';
 import { createBatchMonitor } from '../monitor/batch-monitor.ts';
 import { createPixelQualityChecker } from '../quality/pixel-quality.ts';
 import { staleAlarmTime } from './stale.ts';
-import { betaInv } from '../stats/quantiles.ts';
+import { clopperPearson } from '../stats/clopper-pearson.ts';
 
 export interface EvalBatch {
   id: string;
@@ -165,18 +165,7 @@ export function median(xs: number[]): number | null {
   return s.length % 2 ? s[m] : (s[m - 1] + s[m]) / 2;
 }
 
-/**
- * Exact (Clopper & Pearson 1934) two-sided interval for a binomial proportion k/n:
- * [Beta(α/2; k, n−k+1), Beta(1−α/2; k+1, n−k)], with 0 and 1 at the ends.
- */
-export function clopperPearson(k: number, n: number, confidence = 0.95): [number, number] {
-  if (!Number.isInteger(k) || !Number.isInteger(n) || n < 1 || k < 0 || k > n) throw new RangeError(`clopperPearson: need integers 0 ≤ k ≤ n, n ≥ 1 (got k=${k}, n=${n})`);
-  if (!(confidence > 0 && confidence < 1)) throw new RangeError(`clopperPearson: confidence must be in (0, 1), got ${confidence}`);
-  const a = 1 - confidence;
-  const lo = k === 0 ? 0 : betaInv(a / 2, k, n - k + 1);
-  const hi = k === n ? 1 : betaInv(1 - a / 2, k + 1, n - k);
-  return [lo, hi];
-}
+export { clopperPearson };
 
 /** Replay one batch and score it against its truth. */
 export function evaluateBatch(model: MonitoringModel, b: EvalBatch, opts: EvaluateOptions = {}): BatchOutcome {
