@@ -18,7 +18,7 @@
  * empty cell is no value (lab values are sparse). Text and empty columns are not used, with a warning.
  */
 import { parsePropertyHeader, propertyHeader } from '../lab/property-header.ts';
-import { cellNumber, classifyColumn, detectDelimiter, splitLine } from './csv-cells.ts';
+import { cellNumber, classifyColumn, csvRows, csvTable, splitLine } from './csv-cells.ts';
 import { ImportError, checkImportTime, checkImportValue, normalizeAxis, wavenumberToNm, type ImportedBatch } from './imported-batch.ts';
 
 export interface CsvReadOptions {
@@ -85,15 +85,9 @@ const TIME_FACTOR: Record<Exclude<TimeKind, 'iso'>, number> = { ms: 1, s: 1000, 
 export function readBatchCsv(text: string, opts: CsvReadOptions = {}): ImportedBatch[] {
   const file = opts.file ?? 'CSV';
   const warn = (w: string) => opts.warnings?.push(w);
-  const src = text.charCodeAt(0) === 0xfeff ? text.slice(1) : text;
   // Line ends: LF, CRLF, or a lone CR (older Mac and some instrument software).
-  const lines = src.split(/\r\n|\r|\n/);
-  let h = 0;
-  while (h < lines.length && (lines[h]!.trim() === '' || lines[h]!.startsWith('#'))) h++;
-  if (h >= lines.length) throw new ImportError(file, 0, 'the file is empty');
-  const delimiter = opts.delimiter ?? detectDelimiter(lines[h]!);
-  const header = splitLine(lines[h]!, delimiter);
-  const headerLine = h + 1;
+  const table = csvTable(text, file, opts.delimiter);
+  const { lines, h, delimiter, header, headerLine } = table;
 
   // Decimal comma: only possible when the delimiter is not a comma; detect from the header's axis cells
   // or, failing that, from the first data row.
@@ -162,15 +156,7 @@ export function readBatchCsv(text: string, opts: CsvReadOptions = {}): ImportedB
   // The rows, then the columns that are neither axis, time, batch nor bookkeeping: a column of
   // numbers (empty cells allowed) is a property; text, empty columns and headers that name no
   // property are not used (warned); numbers with a stray text cell are refused.
-  const rows: { line: number; cells: string[] }[] = [];
-  for (let li = h + 1; li < lines.length; li++) {
-    const raw = lines[li]!;
-    if (raw.trim() === '' || raw.startsWith('#')) continue;
-    const cells = splitLine(raw, delimiter);
-    if (cells.length !== header.length) throw new ImportError(file, li + 1, `${cells.length} fields, but the header has ${header.length}`);
-    rows.push({ line: li + 1, cells });
-  }
-  if (rows.length === 0) throw new ImportError(file, 0, 'the file has a header but no spectra');
+  const rows = csvRows(table, 'spectra');
   const propCols: { name: string; unit: string; col: number }[] = [];
   for (const col of candidates) {
     const k = classifyColumn(rows.map((r) => r.cells[col]!), dec);

@@ -1,4 +1,5 @@
 /** CSV cells as instruments, spreadsheets and LIMS write them: splitting, delimiters, numbers, column kinds. */
+import { ImportError } from './imported-batch.ts';
 
 export const NUMBER_RE = /^[+-]?(\d+\.?\d*|\.\d+)([eE][+-]?\d+)?$/;
 
@@ -70,4 +71,43 @@ export function classifyColumn(cells: readonly string[], decimal: '.' | ','): Co
   if (texts > numbers) return { kind: 'text', numbers, texts, example: cells[first]! };
   if (texts > 0) return { kind: 'stray', row: first, numbers };
   return { kind: 'numbers', numbers };
+}
+
+/** A delimited text's header: the first line that is neither empty nor a # comment. */
+export interface CsvTable {
+  file: string;
+  lines: string[];
+  /** Index of the header line in `lines` (0-based); `headerLine` is its 1-based line number. */
+  h: number;
+  headerLine: number;
+  delimiter: ',' | ';' | '\t';
+  header: string[];
+}
+
+/**
+ * Split a file into lines (LF, CRLF or a lone CR; a leading byte-order mark dropped) and find its
+ * header. An empty file is an ImportError naming the file.
+ */
+export function csvTable(text: string, file: string, delimiter?: ',' | ';' | '\t'): CsvTable {
+  const src = text.charCodeAt(0) === 0xfeff ? text.slice(1) : text;
+  const lines = src.split(/\r\n|\r|\n/);
+  let h = 0;
+  while (h < lines.length && (lines[h]!.trim() === '' || lines[h]!.startsWith('#'))) h++;
+  if (h >= lines.length) throw new ImportError(file, 0, 'the file is empty');
+  const d = delimiter ?? detectDelimiter(lines[h]!);
+  return { file, lines, h, headerLine: h + 1, delimiter: d, header: splitLine(lines[h]!, d) };
+}
+
+/** The data rows after the header, each with its 1-based line number; every row as wide as the header. */
+export function csvRows(t: CsvTable, noun: string): { line: number; cells: string[] }[] {
+  const rows: { line: number; cells: string[] }[] = [];
+  for (let li = t.h + 1; li < t.lines.length; li++) {
+    const raw = t.lines[li]!;
+    if (raw.trim() === '' || raw.startsWith('#')) continue;
+    const cells = splitLine(raw, t.delimiter);
+    if (cells.length !== t.header.length) throw new ImportError(t.file, li + 1, `${cells.length} fields, but the header has ${t.header.length}`);
+    rows.push({ line: li + 1, cells });
+  }
+  if (rows.length === 0) throw new ImportError(t.file, 0, `the file has a header but no ${noun}`);
+  return rows;
 }

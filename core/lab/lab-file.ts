@@ -17,7 +17,7 @@
  *   number column with a stray text cell is refused with file, line and reason.
  * Delimiter `,` `;` or tab and decimal comma are detected as for spectra files.
  */
-import { cellNumber, classifyColumn, detectDelimiter, splitLine } from '../io/csv-cells.ts';
+import { cellNumber, classifyColumn, csvRows, csvTable } from '../io/csv-cells.ts';
 import { ImportError } from '../io/imported-batch.ts';
 import { parsePropertyHeader } from './property-header.ts';
 
@@ -63,23 +63,9 @@ export interface LabFile {
 
 export function readLabResultsCsv(text: string, opts: { file?: string; delimiter?: ',' | ';' | '\t'; decimal?: '.' | ',' } = {}): LabFile {
   const file = opts.file ?? 'lab results';
-  const src = text.charCodeAt(0) === 0xfeff ? text.slice(1) : text;
-  const lines = src.split(/\r?\n/);
-  let h = 0;
-  while (h < lines.length && (lines[h]!.trim() === '' || lines[h]!.startsWith('#'))) h++;
-  if (h >= lines.length) throw new ImportError(file, 0, 'the file is empty');
-  const delimiter = opts.delimiter ?? detectDelimiter(lines[h]!);
-  const header = splitLine(lines[h]!, delimiter);
-  const headerLine = h + 1;
-  const rows: { line: number; cells: string[] }[] = [];
-  for (let li = h + 1; li < lines.length; li++) {
-    const raw = lines[li]!;
-    if (raw.trim() === '' || raw.startsWith('#')) continue;
-    const cells = splitLine(raw, delimiter);
-    if (cells.length !== header.length) throw new ImportError(file, li + 1, `${cells.length} fields, but the header has ${header.length}`);
-    rows.push({ line: li + 1, cells });
-  }
-  if (rows.length === 0) throw new ImportError(file, 0, 'the file has a header but no results');
+  const table = csvTable(text, file, opts.delimiter);
+  const { delimiter, header, headerLine } = table;
+  const rows = csvRows(table, 'results');
   let decimal = opts.decimal;
   if (decimal === ',' && delimiter === ',') throw new ImportError(file, headerLine, 'decimal comma and comma delimiter cannot be used together');
   decimal ??= delimiter !== ',' && rows[0]!.cells.some((c) => /^[+-]?\d+,\d+$/.test(c)) ? ',' : '.';
