@@ -129,6 +129,10 @@ export interface OpenBatchRef {
   lastSeq: number | null;
   lastT: number | null;
   spectrumCount: number;
+  /** Spectra so far judged suspect: single points beyond a limit that raised no alarm on their own. */
+  suspectCount?: number;
+  /** Spectra so far refused as too damaged to judge (pixel quality, docs/bad-pixels.md). */
+  unjudgedCount?: number;
 }
 
 export interface UnitSummary {
@@ -244,6 +248,8 @@ export interface BatchSummary {
   suspect?: BatchSuspectReason[];
   /** Suspect scans: single spectra beyond a limit that raised no alarm on their own (MonitorResult.suspect); absent where not counted. */
   suspectCount?: number;
+  /** Spectra stored but not judged, too damaged (pixel quality, docs/bad-pixels.md); absent where not counted. */
+  unjudgedCount?: number;
 }
 
 export interface BatchDetail extends BatchSummary {

@@ -16,6 +16,8 @@ export async function batchSummary(storage: Storage, pipeline: IngestPipeline, r
   const all = await storage.listAlarms({ batch: row.id, limit: 0, offset: 0 });
   const active = await storage.listAlarms({ batch: row.id, active: true, limit: 0, offset: 0 });
   const ob = row.status === 'open' ? pipeline.openBatchById(row.id) : null;
+  // Suspect and unjudged scans: the open batch's running counts, else counted from its stored results.
+  const counted = ob ? { suspect: ob.suspectCount, unjudged: ob.unjudgedCount } : (await storage.scanCounts([row.id])).get(row.id);
   const end = batchEndStatement({ status: row.status, reportedReason: row.endReason, endpointState: ob ? ob.endpointState : row.endpointState, judged: row.modelVersion !== null });
   return {
     id: row.id, unit: row.unit, product: row.product, analyzer: row.analyzer, status: row.status, startedAt: row.startT,
@@ -30,6 +32,7 @@ export async function batchSummary(storage: Storage, pipeline: IngestPipeline, r
     alarmCount: all.total,
     activeAlarms: active.total,
     suspect: batchSuspectReasons({ status: row.status, alarmCount: all.total, endpointState: ob ? ob.endpointState : row.endpointState, judged: row.modelVersion !== null, reportedEndReason: row.endReason }),
+    ...(row.modelVersion !== null ? { suspectCount: counted?.suspect ?? 0, unjudgedCount: counted?.unjudged ?? 0 } : {}),
   };
 }
 

@@ -60,6 +60,9 @@ export interface OpenBatch {
   endpoint: EndpointStatus | null;
   endpointState: EndpointState | null;
   endpointAt: number | null;
+  /** Spectra judged suspect (single points beyond a limit) and spectra too damaged to judge, so far. */
+  suspectCount: number;
+  unjudgedCount: number;
   /** Server clock (ms) of the last entry received for this batch. */
   lastDataAt: number;
   stale: boolean;
@@ -208,8 +211,13 @@ export class IngestPipeline {
       id: row.id, unit: row.unit, analyzer: row.analyzer, boot: row.boot, product: row.product, startT: row.startT,
       startSeq: row.startSeq, axisLength: row.axis.length, modelVersion: row.modelVersion, nextIdx: row.spectrumCount,
       lastSeq: row.lastSeq ?? row.startSeq, lastT: row.lastT ?? row.startT, monitor: null, latest: null, endpoint: null,
-      endpointState: row.endpointState, endpointAt: row.endpointAt, lastDataAt: this.now(), stale: false,
+      endpointState: row.endpointState, endpointAt: row.endpointAt, suspectCount: 0, unjudgedCount: 0, lastDataAt: this.now(), stale: false,
     };
+    const counted = (await this.storage.scanCounts([row.id])).get(row.id);
+    if (counted) {
+      ob.suspectCount = counted.suspect;
+      ob.unjudgedCount = counted.unjudged;
+    }
     const staleId = this.alarmIdByKey.get(alarmKey(row.unit, row.id, 'stale'));
     if (staleId && this.alarmsById.get(staleId)?.active) ob.stale = true;
     const overdueId = this.alarmIdByKey.get(alarmKey(row.unit, row.id, FUNCTION_CHECK_OVERDUE));
@@ -524,6 +532,8 @@ export class IngestPipeline {
     this.uow.results.push({ batch: ob.id, idx, modelVersion: ob.modelVersion!, result: r });
     // A spectrum too damaged to judge (docs/bad-pixels.md) is stored with its result row; the views keep the last judged one.
     const judged = r.quality?.judged !== false;
+    if (!judged) ob.unjudgedCount++;
+    else if (r.suspect) ob.suspectCount++;
     if (judged) {
       ob.latest = r;
       ob.endpoint = r.endpoint;
@@ -640,7 +650,7 @@ export class IngestPipeline {
     const ob: OpenBatch = {
       id: e.batch, unit: e.unit, analyzer: st.analyzer, boot: st.boot, product: e.product, startT: e.t, startSeq: e.seq,
       axisLength: st.axis.length, modelVersion: monitor ? dep!.ref.versionId : null, nextIdx: 0, lastSeq: e.seq, lastT: e.t,
-      monitor, latest: null, endpoint: null, endpointState: monitor ? 'running' : null, endpointAt: null, lastDataAt: now, stale: false,
+      monitor, latest: null, endpoint: null, endpointState: monitor ? 'running' : null, endpointAt: null, suspectCount: 0, unjudgedCount: 0, lastDataAt: now, stale: false,
       shadow: null,
     };
     const sr = this.shadowRuns.get(e.unit);
@@ -1224,7 +1234,7 @@ export class IngestPipeline {
     return {
       id: u.id, name: u.name, kind: u.kind, description: u.description, createdAt: u.createdAt, status,
       analyzer: ob?.analyzer ?? null, analyzerConnected: connected, deployment: this.deploymentRef(unitId),
-      openBatch: ob ? { id: ob.id, product: ob.product, startedAt: ob.startT, lastSeq: ob.nextIdx ? ob.lastSeq : null, lastT: ob.nextIdx ? ob.lastT : null, spectrumCount: ob.nextIdx } : null,
+      openBatch: ob ? { id: ob.id, product: ob.product, startedAt: ob.startT, lastSeq: ob.nextIdx ? ob.lastSeq : null, lastT: ob.nextIdx ? ob.lastT : null, spectrumCount: ob.nextIdx, suspectCount: ob.suspectCount, unjudgedCount: ob.unjudgedCount } : null,
       endpoint: ob?.endpoint ? { ...ob.endpoint, state: ob.endpointState ?? ob.endpoint.state } : null,
       activeAlarms: active, unacknowledgedAlarms: unack, highestPriority: prio,
       silentForMs: ob ? now - ob.lastDataAt : null,

@@ -208,6 +208,8 @@ export class SqliteStorage implements Storage {
       readResults: p('SELECT body FROM results WHERE batch = ? AND seq >= ? AND seq <= ? ORDER BY idx LIMIT ?'),
       lastResult: p('SELECT body FROM results WHERE batch = ? ORDER BY idx DESC LIMIT 1'),
       resultCount: p('SELECT COUNT(*) AS n FROM results WHERE batch = ?'),
+      scanCounts: p(`SELECT COALESCE(SUM(json_extract(body, '$.suspect') = 1), 0) AS suspect, COALESCE(SUM(json_extract(quality, '$.judged') = 0), 0) AS unjudged, COUNT(*) AS n
+        FROM results WHERE batch = ?`),
       nextVersion: p('SELECT COALESCE(MAX(version), 0) + 1 AS v FROM model_versions WHERE name = ?'),
       insertModel: p(`INSERT INTO model_versions (id, name, version, product, sha256, body, settings, reference_batches, components, confidence,
           status, created_at, created_by) VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, 'draft', ?, ?)`),
@@ -467,6 +469,14 @@ export class SqliteStorage implements Storage {
   }
   async resultCount(batch: string) {
     return (this.st.resultCount.get(batch) as Row).n as number;
+  }
+  async scanCounts(batches: string[]) {
+    const out = new Map<string, { suspect: number; unjudged: number }>();
+    for (const b of new Set(batches)) {
+      const r = this.st.scanCounts.get(b) as Row;
+      if ((r.n as number) > 0) out.set(b, { suspect: r.suspect as number, unjudged: r.unjudged as number });
+    }
+    return out;
   }
 
   async nextModelVersion(name: string) {

@@ -254,6 +254,12 @@ export interface Storage extends UnitOfWorkRunner, AuthRepositories {
   lastResult(batch: string): Promise<MonitorResult | null>;
   /** Ids of the batch's results, to know which results are missing after a crash. */
   resultCount(batch: string): Promise<number>;
+  /**
+   * Per batch: spectra judged suspect (a single point beyond a limit that raised no alarm on its
+   * own, MonitorResult.suspect) and spectra refused as too damaged to judge (pixel quality); batches
+   * without results are absent.
+   */
+  scanCounts(batches: string[]): Promise<Map<string, { suspect: number; unjudged: number }>>;
 
   // models and deployments
   nextModelVersion(name: string): Promise<number>;

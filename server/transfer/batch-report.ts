@@ -240,7 +240,7 @@ ${ahead.length ? `<div class="caution"><strong>Clock.</strong> ${ahead.length} p
 <tr><td>Batch</td><td>${esc(b.id)} (${b.status === 'open' ? 'running' : 'ended'})</td></tr>
 <tr><td>Started / ended</td><td>${esc(utc(b.startedAt))} / ${esc(utc(b.endedAt))}</td></tr>
 <tr><td>End</td><td>${esc(end.text)}${end.disagreement ? `<br><strong>Record disagrees:</strong> ${esc(end.disagreement)}.` : ''}</td></tr>
-<tr><td>Analyzer</td><td>${esc(b.analyzer)} · ${b.spectrumCount} spectra, seq ${b.firstSeq ?? '—'}…${b.lastSeq ?? '—'}${b.suspectCount !== undefined ? ` · ${b.suspectCount} suspect scan${b.suspectCount === 1 ? '' : 's'} (single points beyond a limit that raised no alarm on their own)` : ''}</td></tr>
+<tr><td>Analyzer</td><td>${esc(b.analyzer)} · ${b.spectrumCount} spectra, seq ${b.firstSeq ?? '—'}…${b.lastSeq ?? '—'}${b.suspectCount !== undefined ? ` · ${b.suspectCount} suspect scan${b.suspectCount === 1 ? '' : 's'} (single points beyond a limit that raised no alarm on their own)` : ''}${b.unjudgedCount ? ` · ${b.unjudgedCount} spectr${b.unjudgedCount === 1 ? 'um' : 'a'} not judged (too damaged to judge)` : ''}</td></tr>
 <tr><td>Model</td><td>${d.model ? `${esc(d.model.name)} version ${d.model.version} (${esc(d.model.status)}) · ${d.model.components} PCs · limits at ${num(d.model.confidence * 100, 4)} %` : 'none deployed: the batch was recorded but not judged'}</td></tr>
 <tr><td>Model SHA-256</td><td class="hash">${esc(d.model?.sha256 ?? '—')}</td></tr>
 <tr><td>Approved</td><td>${d.model?.approvedAt ? `${esc(utc(d.model.approvedAt))} by ${esc(d.model.approvedBy ?? '?')}: ${esc(d.model.approvalReason ?? '')}` : 'not approved'}</td></tr>

@@ -2,7 +2,7 @@ import { describe, expect, it } from 'vitest';
 import type { Alarm, BatchDetail, EvaluationResult, ModelEnvelopeView, ModelVersionDetail, ResultRecord } from '../../core/api/rest.ts';
 import { propertyChartData, propertyTarget } from '../../web/src/views/review-property-data.ts';
 import type { Contributions, MonitorResult } from '../../core/monitor/types.ts';
-import { departureWindow, endpointRecordText, firstExit, meanContributions, regionShares, sampleSeqs, suspectScansText, timeline, withRemainder } from '../../web/src/views/review-data.ts';
+import { departureWindow, endpointRecordText, firstExit, meanContributions, regionShares, sampleSeqs, scanCountsText, suspectScansText, timeline, withRemainder } from '../../web/src/views/review-data.ts';
 import { ledgerQuery, summariseChange } from '../../web/src/views/ledger-data.ts';
 import { CHAIN_PRESETS, buildSettingsFromForm, parseEndpointMark, spreadIndices, summariseEvaluation } from '../../web/src/views/bench-data.ts';
 import { availablePcs, goldenPath, progressLabel, referencePaths, scoreBand } from '../../web/src/views/watch-data.ts';
@@ -270,5 +270,9 @@ describe('the endpoint as the record states it', () => {
     expect(suspectScansText(0)).toBe('no suspect scans');
     expect(suspectScansText(1)).toBe('1 suspect scan');
     expect(suspectScansText(17)).toBe('17 suspect scans');
+    expect(scanCountsText({})).toBeNull();
+    expect(scanCountsText({ suspectCount: 17, unjudgedCount: 0 })).toBe('17 suspect scans');
+    expect(scanCountsText({ suspectCount: 0, unjudgedCount: 1 })).toBe('no suspect scans · 1 spectrum not judged (too damaged)');
+    expect(scanCountsText({ suspectCount: 2, unjudgedCount: 3 })).toBe('2 suspect scans · 3 spectra not judged (too damaged)');
   });
 });

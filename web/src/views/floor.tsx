@@ -12,6 +12,7 @@ import { href } from '../router.ts';
 import { api } from '../api/endpoints.ts';
 import { useAsync } from '../components/use-async.ts';
 import { healthLine } from './bench/model-life-data.ts';
+import { scanCountsText } from './review-data.ts';
 
 export function Floor({ now }: { now: number }) {
   const live = useLive({ kind: 'plant' });
@@ -147,7 +148,12 @@ function UnitTile({ u, now, alarms }: { u: LiveUnitStatus; now: number; alarms: 
             <Badge tone={hl.tone}>{hl.text}</Badge>
           </span>
         )}
-        {u.openBatch && <span class="muted small">{fixed(u.openBatch.spectrumCount, 0)} spectra</span>}
+        {u.openBatch && (
+          <span class={u.openBatch.suspectCount || u.openBatch.unjudgedCount ? 'small' : 'muted small'} data-testid={`scans-${u.id}`}>
+            {fixed(u.openBatch.spectrumCount, 0)} spectra
+            {u.openBatch.suspectCount !== undefined && ` · ${scanCountsText(u.openBatch)}`}
+          </span>
+        )}
       </div>
     </a>
   );

@@ -184,3 +184,15 @@ export function suspectScansText(n: number | null | undefined): string | null {
   if (n === undefined || n === null) return null;
   return n === 0 ? 'no suspect scans' : `${n} suspect scan${n === 1 ? '' : 's'}`;
 }
+
+/**
+ * A batch's scan counts in words, as Floor, Review and the report give them: "17 suspect scans ·
+ * 2 spectra not judged (too damaged)". The second part only when there are any; null when the
+ * server did not count (a batch no model judged).
+ */
+export function scanCountsText(c: { suspectCount?: number | null; unjudgedCount?: number | null }): string | null {
+  const s = suspectScansText(c.suspectCount);
+  if (s === null) return null;
+  const u = c.unjudgedCount ?? 0;
+  return u > 0 ? `${s} · ${u} spectr${u === 1 ? 'um' : 'a'} not judged (too damaged)` : s;
+}

@@ -14,7 +14,7 @@ import { Advisory, Badge, Empty, ErrorBox, Loading } from '../components/status.
 import { Chart } from '../charts/chart.tsx';
 import { contributionOptions, scoreChartOptions, statChartOptions } from '../charts/chart-options.ts';
 import { progressLabel, scoreBand } from './watch-data.ts';
-import { alignedLine, comparisonWindow, departureWindow, endpointRecordText, meanContributions, sampleSeqs, suspectScansText, timeline } from './review-data.ts';
+import { alignedLine, comparisonWindow, departureWindow, endpointRecordText, meanContributions, sampleSeqs, scanCountsText, timeline } from './review-data.ts';
 import { topShares } from './contribution-data.ts';
 import { RegionShareTable } from './region-share-table.tsx';
 import { PropertyOverTime } from './review-property.tsx';
@@ -99,7 +99,7 @@ function BatchPicker({ current, compare }: { current: string | null; compare: st
               <br />
               <span class="small">
                 {dateTime(b.startedAt)} · {b.alarmCount ? `${b.alarmCount} alarm${b.alarmCount === 1 ? '' : 's'}` : 'no alarms'} · {endpointRecordText(b).text}
-                {b.suspectCount ? ` · ${suspectScansText(b.suspectCount)}` : ''}
+                {b.suspectCount || b.unjudgedCount ? ` · ${scanCountsText(b)}` : ''}
               </span>
             </a>
             {current && b.id !== current && (
@@ -196,7 +196,11 @@ function BatchReview({ id, compare, me }: { id: string; compare: string[]; me: M
           <dt>Spectra</dt>
           <dd>
             {d.spectrumCount}
-            {d.suspectCount != null && ` (${suspectScansText(d.suspectCount)}: single spectra beyond a limit that raised no alarm on their own)`}
+            {d.suspectCount != null && (
+              <span data-testid="scan-counts">
+                {` (${scanCountsText(d)}; a suspect scan is a single spectrum beyond a limit that raised no alarm on its own)`}
+              </span>
+            )}
           </dd>
         </dl>
       </div>
