@@ -131,6 +131,8 @@ export class ChainedAuditTrail implements AuditTrail {
         return { ok: false, count: 0, brokenSeq: 1, problem: `the trail is empty, but the database holds ${users} user(s) whose creation is audited: the records and the chain head were deleted` };
       }
     }
+    // No record: nothing was checked. Said in words, so that it is never read as a verified trail.
+    if (chain.ok && chain.count === 0) return { ...chain, empty: true, note: EMPTY_TRAIL_NOTE };
     return chain;
   }
 
@@ -223,6 +225,9 @@ async function verifyChain(repo: AuditRepository): Promise<AuditVerifyResult> {
   if (!head && count > 0) return { ok: false, count, brokenSeq: lastSeq, problem: 'the chain head record is missing' };
   return { ok: true, count, headSeq: lastSeq, headHash: prevHash };
 }
+
+/** What verify() says of a trail with no record (and no user in the database). */
+export const EMPTY_TRAIL_NOTE = 'nothing to verify: the audit trail holds 0 records, so no chain was checked; this is no evidence of an intact trail';
 
 /** `SEQ:HASH`, the written form of an anchor. */
 export function formatAnchor(a: AuditAnchor): string {

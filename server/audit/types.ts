@@ -53,7 +53,20 @@ export interface AuditFilter {
 }
 
 export type AuditVerifyResult =
-  | { ok: true; count: number; headSeq: number; headHash: string; /** `SEQ:HASH` of the head, to keep outside the server. */ anchor?: string }
+  | {
+      ok: true;
+      count: number;
+      headSeq: number;
+      headHash: string;
+      /** `SEQ:HASH` of the head, to keep outside the server. */
+      anchor?: string;
+      /**
+       * True when the trail holds no record (and the database no user): nothing was verified, so
+       * this is no evidence of an intact trail; `note` says so in words.
+       */
+      empty?: true;
+      note?: string;
+    }
   | {
       ok: false;
       count: number;

@@ -182,6 +182,10 @@ export async function runSecurityCli(
         anchors.push(...parseAnchors(text, `--anchor-file ${f}`));
       }
       const v = await audit.verify(anchors);
+      if (v.ok && v.empty) {
+        io.out(`audit trail empty: ${v.note ?? '0 records, nothing to verify'}`);
+        return 0;
+      }
       if (v.ok) {
         const head = await audit.anchor();
         io.out(`audit trail intact: ${v.count} records, head ${v.headSeq} ${v.headHash}` + (anchors.length ? `; matches ${anchors.length} anchor(s)` : ''));

@@ -38,9 +38,18 @@ describe('audit trail', () => {
     expect((await trail.verify())).toEqual({ ok: true, count: 3, headSeq: 3, headHash: rows[2].hash });
   });
 
-  it('an empty trail verifies', async () => {
+  it('an empty trail (no record, no user) is not reported intact: it says there is nothing to verify', async () => {
     const { storage } = openTestDb();
-    expect(await new ChainedAuditTrail(storage).verify()).toEqual({ ok: true, count: 0, headSeq: 0, headHash: GENESIS_HASH });
+    const v = await new ChainedAuditTrail(storage, { countUsers: async () => 0 }).verify();
+    expect(v).toMatchObject({ ok: true, count: 0, headSeq: 0, headHash: GENESIS_HASH, empty: true });
+    expect(v.ok && v.note).toMatch(/^nothing to verify: the audit trail holds 0 records.*no evidence of an intact trail/);
+    // one record later it is a verified trail again, with no such note
+    const trail = new ChainedAuditTrail(storage, { now: fixedClock() });
+    await trail.record({ user: 'alice', action: 'model.build', object: 'model:m@1' });
+    const w = await trail.verify();
+    expect(w).toMatchObject({ ok: true, count: 1, headSeq: 1 });
+    expect(w).not.toHaveProperty('empty');
+    expect(w).not.toHaveProperty('note');
   });
 
   it('the chain recomputes in Python (hashlib SHA-256, FIPS 180-4) from the JSON export', async () => {

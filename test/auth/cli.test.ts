@@ -45,6 +45,14 @@ describe('security CLI', () => {
     expect(e3.errors[0]).toMatch(/usage/);
   });
 
+  it('audit verify on an empty trail with no user says there is nothing to verify, never "intact"', async () => {
+    const { storage } = openTestDb();
+    const v = io();
+    expect(await runSecurityCli(['audit', 'verify'], { storage, config }, v)).toBe(0);
+    expect(v.lines).toEqual(['audit trail empty: nothing to verify: the audit trail holds 0 records, so no chain was checked; this is no evidence of an intact trail']);
+    expect(v.lines.join('\n')).not.toMatch(/intact:|anchor \(keep/);
+  });
+
   it('token add/list/revoke and audit verify/export', async () => {
     const { db, storage } = openTestDb();
     const a = io();

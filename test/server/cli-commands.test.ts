@@ -104,6 +104,16 @@ describe('tideline command line: what it creates is audited', () => {
   }, 240_000);
 });
 
+describe('tideline command line: audit verify on an empty trail', () => {
+  it('says there is nothing to verify (0 records), not that the trail is intact', () => {
+    const d = mkdtempSync(join(tmpdir(), 'tideline-cli-empty-audit-'));
+    const r = cli(['audit', 'verify', '--data-dir', d]);
+    expect(r.status).toBe(0);
+    expect(r.stdout).toMatch(/^audit trail empty: nothing to verify: the audit trail holds 0 records, so no chain was checked; this is no evidence of an intact trail\n$/);
+    expect(r.stdout).not.toMatch(/intact:/);
+  }, 120_000);
+});
+
 describe('tideline command line beside a running server', () => {
   let ts: TestServer;
   beforeAll(async () => {

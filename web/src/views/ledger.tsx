@@ -11,7 +11,7 @@ export function Ledger({ filter }: { filter: Record<string, string> }) {
   const f: LedgerFilter = { user: filter.user ?? '', action: filter.action ?? '', object: filter.object ?? '', from: filter.from ?? '', to: filter.to ?? '' };
   const [draft, setDraft] = useState(f);
   const rows = useAsync(() => get<{ items: AuditRow[]; total: number; limit: number }>(`/api/audit${query(ledgerQuery(f, 500))}`), [JSON.stringify(f)]);
-  const verify = useAsync(() => get<{ ok: boolean; count: number; brokenSeq?: number; problem?: string }>('/api/audit/verify'), []);
+  const verify = useAsync(() => get<{ ok: boolean; count: number; brokenSeq?: number; problem?: string; empty?: boolean; note?: string }>('/api/audit/verify'), []);
   const apply = (e: Event) => {
     e.preventDefault();
     location.hash = href({ view: 'ledger', filter: { ...draft } });
@@ -23,7 +23,11 @@ export function Ledger({ filter }: { filter: Record<string, string> }) {
         <h1>Ledger</h1>
         <div class="head-facts">
           {verify.data &&
-            (verify.data.ok ? (
+            (verify.data.ok && verify.data.empty ? (
+              <Badge tone="info" title={verify.data.note}>
+                nothing to verify · 0 records
+              </Badge>
+            ) : verify.data.ok ? (
               <Badge tone="ok">chain intact · {verify.data.count} records</Badge>
             ) : (
               <Badge tone="alarm">
