@@ -167,10 +167,11 @@ export async function startServer(config: ServerConfig, opts: StartOptions = {})
   const ingestWss = new WebSocketServer({ noServer: true, maxPayload: 2 * MAX_MESSAGE_BYTES, perMessageDeflate: false });
   const liveWss = new WebSocketServer({ noServer: true, maxPayload: 64 * 1024, perMessageDeflate: false });
   const conns = new Set<IngestConnection>();
-  /** The token each ingest connection authenticated with: re-checked every heartbeat, so a revoked token ends its open connections too. */
+  /** The token each ingest connection authenticated with: re-checked at a revocation and every heartbeat, so a revoked token ends its open connections. */
   const tokens = new Map<IngestConnection, string>();
-  const recheckTokens = async () => {
+  const recheckTokens = async (only?: string) => {
     for (const [c, token] of [...tokens]) {
+      if (only !== undefined && c.analyzer !== only) continue;
       const analyzer = await auth.verifyAnalyzerToken(token);
       if (analyzer !== c.analyzer) {
         tokens.delete(c);
@@ -178,6 +179,9 @@ export async function startServer(config: ServerConfig, opts: StartOptions = {})
       }
     }
   };
+  // A revocation through the server (REST) closes the analyzer's connections before it is answered;
+  // one written by another process (the CLI beside a running server) is found at the next heartbeat.
+  auth.onAnalyzerTokenRevoked((analyzer) => recheckTokens(analyzer));
 
   const refuse = (socket: Duplex, status: number, text: string, message: string) => {
     socket.write(`HTTP/1.1 ${status} ${text}\r\nContent-Type: text/plain\r\nConnection: close\r\nContent-Length: ${Buffer.byteLength(message)}\r\n\r\n${message}`);

@@ -363,13 +363,29 @@ export class AuthService implements Auth {
     return this.tokens.list();
   }
 
-  revokeAnalyzerToken(id: string, revokedBy: string): Promise<boolean> {
-    return this.storage.unitOfWork(async (uow) => {
+  private readonly revokeListeners: ((analyzer: string) => Promise<void> | void)[] = [];
+
+  onAnalyzerTokenRevoked(listener: (analyzer: string) => Promise<void> | void): void {
+    this.revokeListeners.push(listener);
+  }
+
+  async revokeAnalyzerToken(id: string, revokedBy: string): Promise<boolean> {
+    const analyzer = await this.storage.unitOfWork(async (uow) => {
       const info = await this.tokens.get(id, uow.analyzerTokens);
-      if (!info || !(await this.tokens.revoke(id, revokedBy, uow.analyzerTokens))) return false;
+      if (!info || !(await this.tokens.revoke(id, revokedBy, uow.analyzerTokens))) return null;
       await this.audit.record({ user: revokedBy, action: 'analyzer-token.revoke', object: `analyzer:${info.analyzer}`, before: { tokenId: id, revoked: false }, after: { tokenId: id, revoked: true } }, uow);
-      return true;
+      return info.analyzer;
     });
+    if (analyzer === null) return false;
+    // After the commit: the token no longer verifies, so open connections that used it are closed now.
+    for (const l of this.revokeListeners) {
+      try {
+        await l(analyzer);
+      } catch (e) {
+        console.error(`acting on the revocation of a token of analyzer ${analyzer} failed: ${(e as Error)?.message ?? String(e)}`);
+      }
+    }
+    return true;
   }
 
   // ---- electronic signatures ----------------------------------------------------------------

@@ -132,7 +132,14 @@ export interface Auth {
   /** Create an analyzer token; the plain token is returned once and stored only hashed. */
   createAnalyzerToken(analyzer: string, label: string, createdBy: string): Promise<{ id: string; token: string }>;
   listAnalyzerTokens(): Promise<AnalyzerTokenInfo[]>;
+  /** Revoke a token; resolves once it is revoked and every listener (onAnalyzerTokenRevoked) has acted on it. */
   revokeAnalyzerToken(id: string, revokedBy: string): Promise<boolean>;
+  /**
+   * Called after a token of `analyzer` was revoked through this service (REST, or the CLI inside the
+   * server's process): the ingest side closes that analyzer's open connections whose token no longer
+   * verifies, before the revocation is answered.
+   */
+  onAnalyzerTokenRevoked(listener: (analyzer: string) => Promise<void> | void): void;
   /**
    * Electronic signature: checks the re-entered password, writes the signature and its audit
    * record, then runs `apply` (e.g. the state change approve/retire) in the same unit of work: if

@@ -41,6 +41,38 @@ describe('analyzer token revocation', () => {
   });
 });
 
+describe('analyzer token revocation through REST, with a heartbeat far away', () => {
+  it('closes the open connection before the revocation is answered: nothing sent after the 204 is taken', async () => {
+    // A heartbeat of an hour: the heartbeat's token re-check cannot be what closes the connection.
+    const slow = await startTestServer({ ingest: { heartbeatMs: 3_600_000 } }, { units: ['u9'] });
+    try {
+      const admin = await login(slow, 'administrator');
+      const made = await admin.post('/api/auth/tokens', { analyzer: 'nir-now', label: 'test' });
+      expect(made.status).toBe(201);
+      const p = new Peer(slow.wsUrl, made.body.token);
+      await p.open();
+      expect((await p.hello('nir-now', 1, axis(16))).type).toBe('welcome');
+      const t0 = Date.now() - 60_000;
+      p.send({ type: 'batch-start', seq: 0, t: t0, unit: 'u9', batch: 'B-now', product: 'p' });
+      p.sendFrame(1, t0 + 1000, spectrum(16, 1));
+      await p.waitAck(1);
+      const del = await fetch(slow.server.url + `/api/auth/tokens/${made.body.id}`, { method: 'DELETE', headers: { cookie: admin.cookie, 'x-csrf-token': admin.csrf } });
+      expect(del.status).toBe(204);
+      p.sendFrame(2, t0 + 2000, spectrum(16, 2));
+      const e = await p.waitError('token-revoked');
+      expect(e.message).toMatch(/analyzer token of this connection was revoked/);
+      const c = await p.waitClose();
+      expect(c).toEqual({ code: 4401, reason: 'analyzer token revoked' });
+      expect(p.messages.filter((m) => m.type === 'ack').map((m) => m.seq)).toEqual([1]);
+      // what was acked before stays stored; the spectrum sent after the revocation was not taken
+      await slow.server.ctx.ingest.flush();
+      expect((await slow.server.ctx.storage.readSpectra('B-now', 0, 10, 10)).map((r) => r.seq)).toEqual([1]);
+    } finally {
+      await slow.stop();
+    }
+  });
+});
+
 describe('message size', () => {
   it(`a ${MAX_SPECTRUM_POINTS}-point JSON spectrum with the longest float32 numbers is taken`, async () => {
     const n = MAX_SPECTRUM_POINTS;
