@@ -730,7 +730,7 @@ export interface DeployComparison {
   changes: DeployChange[];
   /** Plain sentences to show before the user confirms (e.g. the endpoint property is dropped). */
   warnings: string[];
-  /** The new version has no property model (or no property endpoint criterion) where the old one had. */
+  /** The new version has no property model, no property endpoint criterion or no endpoint rule at all where the old one had: deploying it needs a signed reason. */
   dropsEndpointProperty: boolean;
 }
 

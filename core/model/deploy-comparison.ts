@@ -79,8 +79,11 @@ export function compareDeployment(current: { ref: ModelRef; model: ComparableMod
   const warnings: string[] = [];
   const lostProperty = a.pls !== undefined && b.pls === undefined;
   const lostPropertyEndpoint = hasPropertyEndpoint(a) && !hasPropertyEndpoint(b);
-  const dropsEndpointProperty = lostProperty || lostPropertyEndpoint;
-  if (dropsEndpointProperty) {
+  // A version with no endpoint rule at all where the deployed one has one drops the unit's endpoint
+  // whatever its criteria were: confirmed (and signed) like a dropped property.
+  const lostRule = a.endpoint.criteria.length > 0 && b.endpoint.criteria.length === 0;
+  const dropsEndpointProperty = lostProperty || lostPropertyEndpoint || lostRule;
+  if (lostProperty || lostPropertyEndpoint) {
     const p = propertyModelView(a);
     const name = p ? `${p.name} (${p.unit})` : 'property';
     warnings.push(

@@ -15,6 +15,8 @@ import { analyzerSummary, deploymentView } from './views.ts';
 import { recordAudit, userOf } from './audit-helper.ts';
 import { DEFAULT_ALARM_SETTINGS } from '../../core/alarms/types.ts';
 import { nameSchema } from '../../core/io/names.ts';
+import { SignatureError } from '../auth/types.ts';
+import type { SqliteStorage } from '../storage/sqlite-storage.ts';
 
 /** The longest shelve an operator may ask for (core/alarms default: 8 h, one shift). */
 const MAX_SHELVE_MIN = DEFAULT_ALARM_SETTINGS.maxShelveMs / 60_000;
@@ -116,10 +118,14 @@ export function addPlantRoutes(t: RouteTable, ctx: ServerContext, startedAt: num
   });
   t.add({
     method: 'post', path: '/deployments',
-    summary: 'Deploy an approved model version to a unit (batches started afterwards use it). Refused (422 model-does-not-fit) when the version cannot judge the unit (analyzer axis, product, unit kind); when it drops the endpoint property of the version it replaces, confirmEndpointLoss (a reason) is required (422 endpoint-would-be-lost). The answer and the audit entry carry the comparison.',
+    summary: 'Deploy an approved model version to a unit (batches started afterwards use it). Refused (422 model-does-not-fit) when the version cannot judge the unit (analyzer axis, product, unit kind). When it drops the endpoint property, property model or endpoint rule of the version it replaces, the deployment is an electronic signature (meaning "deployed"): confirmEndpointLoss (the reason for dropping it) and password are required (422 endpoint-would-be-lost naming the missing field), and the reason is signed as the signature\'s override with the comparison as its evidence. The answer and the audit entry carry the comparison.',
     role: 'model-owner',
     response: 'DeployResult', status: 201,
-    body: z.object({ unit: idSchema, versionId: z.string().min(1).max(128), reason: nameSchema({ max: 2000, multiline: true, empty: true }).optional(), confirmEndpointLoss: z.string().trim().min(1, 'give the reason for dropping the endpoint property').pipe(nameSchema({ max: 2000, multiline: true })).optional() }).strict(),
+    body: z.object({
+      unit: idSchema, versionId: z.string().min(1).max(128), reason: nameSchema({ max: 2000, multiline: true, empty: true }).optional(),
+      confirmEndpointLoss: z.string().trim().min(1, 'give the reason for dropping the endpoint property').pipe(nameSchema({ max: 2000, multiline: true })).optional(),
+      password: z.string().max(1024).optional(),
+    }).strict(),
     handler: async ({ body, req }): Promise<DeployResult> => {
       const m = await loadForDeploy(body.unit, body.versionId);
       if (m.status !== 'approved') throw conflict(`model version ${m.name} v${m.version} is ${m.status}; only an approved version can be deployed`);
@@ -127,17 +133,48 @@ export function addPlantRoutes(t: RouteTable, ctx: ServerContext, startedAt: num
       if (preview.mismatches.length) {
         throw new HttpProblem(422, 'Model does not fit the unit', `${m.name} v${m.version} cannot judge the batches of ${body.unit}: ${preview.mismatches.map((x) => x.text).join('; ')}. Nothing was deployed.`, 'model-does-not-fit', preview.mismatches.map((x) => ({ path: 'versionId', message: x.text })));
       }
-      if (preview.comparison.dropsEndpointProperty && body.confirmEndpointLoss === undefined) {
-        throw new HttpProblem(422, 'Endpoint property would be lost', `${preview.comparison.warnings[0] ?? 'the endpoint property would be lost'} Deploy with confirmEndpointLoss giving your reason (kept in the audit trail), or choose a version that keeps it. Nothing was deployed.`, 'endpoint-would-be-lost', [{ path: 'confirmEndpointLoss', message: 'required: this deployment drops the endpoint property' }]);
+      const loss = preview.comparison.dropsEndpointProperty;
+      const signed = loss && !!ctx.auth && !!req.user;
+      if (loss && (body.confirmEndpointLoss === undefined || (signed && !body.password))) {
+        const errors = [
+          ...(body.confirmEndpointLoss === undefined ? [{ path: 'confirmEndpointLoss', message: 'required: this deployment drops the endpoint property; say why' }] : []),
+          ...(signed && !body.password ? [{ path: 'password', message: 'required: dropping the endpoint property is signed; re-enter your password' }] : []),
+        ];
+        throw new HttpProblem(422, 'Endpoint property would be lost', `${preview.comparison.warnings[0] ?? 'the endpoint property would be lost'} Deploy with confirmEndpointLoss giving your reason${signed ? ' and your password: the reason is signed with the deployment (electronic signature) and kept in the audit trail' : ' (kept in the audit trail)'}, or choose a version that keeps it. Nothing was deployed.`, 'endpoint-would-be-lost', errors);
       }
       const before = ctx.ingest.deploymentRef(body.unit);
-      const d = { id: randomUUID(), unit: body.unit, modelVersion: m.id, deployedAt: ctx.now(), deployedBy: userOf(req), reason: body.reason ?? null, endedAt: null };
-      await ctx.storage.deploy(d);
+      const by = userOf(req);
+      const d = { id: randomUUID(), unit: body.unit, modelVersion: m.id, deployedAt: ctx.now(), deployedBy: by, reason: body.reason ?? null, endedAt: null };
+      let signature: { auditSeq: number; signedAt: string } | null = null;
+      if (signed) {
+        // The reason for dropping the endpoint is signed (the signature's override, bound to the
+        // model's hash) with the comparison as evidence; the deployment is written in the
+        // signature's unit of work (SQLite: its transaction), so a refused signature deploys nothing.
+        const sqlite = ctx.storage as unknown as SqliteStorage;
+        try {
+          const r = await ctx.auth!.sign({
+            user: req.user!, password: body.password!, meaning: 'deployed', objectType: 'model', objectId: m.id, objectHash: m.sha256,
+            reason: body.reason || `deployed to ${body.unit}, dropping the endpoint property`, override: body.confirmEndpointLoss!,
+            evidence: { unit: body.unit, before, endpointLoss: { reason: body.confirmEndpointLoss, warnings: preview.comparison.warnings }, comparison: preview.comparison },
+            address: req.ip,
+          }, async () => sqlite.deploySync(d));
+          signature = { auditSeq: r.signature.auditSeq, signedAt: r.signature.signedAt };
+        } catch (e) {
+          if (e instanceof SignatureError) throw new HttpProblem(e.status, 'Signature refused', `${e.message}. Nothing was deployed.`, 'signature-refused', [{ path: 'password', message: e.message }]);
+          throw e;
+        }
+      } else {
+        await ctx.storage.deploy(d);
+      }
       await ctx.ingest.refreshDeployment(body.unit);
       await recordAudit(ctx, {
-        user: userOf(req), action: 'model.deploy', object: `unit:${body.unit}`, before,
-        after: { versionId: m.id, name: m.name, version: m.version, sha256: m.sha256, comparison: preview.comparison, ...(body.confirmEndpointLoss !== undefined ? { confirmEndpointLoss: body.confirmEndpointLoss } : {}) },
-        reason: body.reason ?? null,
+        user: by, action: 'model.deploy', object: `unit:${body.unit}`, before,
+        after: {
+          versionId: m.id, name: m.name, version: m.version, sha256: m.sha256, comparison: preview.comparison,
+          ...(body.confirmEndpointLoss !== undefined && loss ? { confirmEndpointLoss: body.confirmEndpointLoss } : {}),
+          ...(signature ? { signature: { meaning: 'deployed', auditSeq: signature.auditSeq, signedAt: signature.signedAt } } : {}),
+        },
+        reason: loss && body.confirmEndpointLoss !== undefined ? `${body.reason ? `${body.reason}; ` : ''}endpoint property dropped: ${body.confirmEndpointLoss}` : body.reason ?? null,
       });
       return { ...(await deploymentView(ctx.storage, d)), comparison: preview.comparison };
     },

@@ -117,7 +117,14 @@ export function addModelLifeRoutes(t: RouteTable, ctx: ServerContext) {
       };
       if (ctx.auth && req.user) {
         try {
-          await ctx.auth.sign({ user: req.user, password: body.password ?? '', meaning: 'deployed', objectType: 'model', objectId: m.id, objectHash: m.sha256, reason: body.reason, evidence: { unit: r.unit, before, shadowComparison: evidence }, address: req.ip }, apply);
+          // A dropped endpoint property is signed too: its reason as the signature's override, the comparison as evidence.
+          const loss = preview.comparison.dropsEndpointProperty && body.confirmEndpointLoss !== undefined ? body.confirmEndpointLoss : undefined;
+          await ctx.auth.sign({
+            user: req.user, password: body.password ?? '', meaning: 'deployed', objectType: 'model', objectId: m.id, objectHash: m.sha256, reason: body.reason,
+            ...(loss !== undefined ? { override: loss } : {}),
+            evidence: { unit: r.unit, before, shadowComparison: evidence, ...(loss !== undefined ? { endpointLoss: { reason: loss, warnings: preview.comparison.warnings }, comparison: preview.comparison } : {}) },
+            address: req.ip,
+          }, apply);
         } catch (e) {
           if (e instanceof SignatureError) throw new HttpProblem(e.status, 'Signature refused', e.message, 'signature-refused');
           throw e;

@@ -29,4 +29,14 @@ describe('deploy comparison', () => {
     expect(c.warnings.filter((w) => w.includes('switches off'))).toHaveLength(2);
     expect(compareDeployment({ ref: ref(1), model }, { ref: ref(2), model }).changes).toEqual([]);
   });
+
+  it('a version without an endpoint rule drops the unit\'s endpoint: it needs the signed reason, whatever the old criteria were', () => {
+    const mbsdOnly: ComparableModel = { ...model, endpoint: { ...model.endpoint, criteria: [{ kind: 'mbsd', threshold: 0.01, window: 5 } as never] } };
+    const none: ComparableModel = { ...model, endpoint: { ...model.endpoint, criteria: [] } };
+    const c = compareDeployment({ ref: ref(1), model: mbsdOnly }, { ref: ref(2), model: none });
+    expect(c.dropsEndpointProperty).toBe(true);
+    expect(c.warnings[0]).toBe('dryer-test v2 has no endpoint rule: no endpoint is called or signalled on this unit.');
+    // the other way round (a rule where there was none) drops nothing
+    expect(compareDeployment({ ref: ref(2), model: none }, { ref: ref(3), model: mbsdOnly }).dropsEndpointProperty).toBe(false);
+  });
 });

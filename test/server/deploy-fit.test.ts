@@ -117,18 +117,51 @@ describe('REST: deploys that cannot go wrong quietly', () => {
     r = await admin.post('/api/deployments', { unit: 'dryer-1', versionId: dryerNoProperty });
     expect(r.status).toBe(422);
     expect(r.body.type).toMatch(/endpoint-would-be-lost/);
-    expect(r.body.errors[0].path).toBe('confirmEndpointLoss');
+    expect(r.body.errors.map((e: { path: string }) => e.path)).toEqual(['confirmEndpointLoss', 'password']);
     expect((await admin.get('/api/units/dryer-1')).body.deployment.versionId).toBe(dryerV1);
 
-    r = await admin.post('/api/deployments', { unit: 'dryer-1', versionId: dryerNoProperty, reason: 'trial', confirmEndpointLoss: 'moisture endpoint moves to the lab; trial of the spectral rule' });
+    // The reason alone is not enough: dropping the endpoint is signed.
+    const why = 'moisture endpoint moves to the lab; trial of the spectral rule';
+    r = await admin.post('/api/deployments', { unit: 'dryer-1', versionId: dryerNoProperty, reason: 'trial', confirmEndpointLoss: why });
+    expect(r.status).toBe(422);
+    expect(r.body.errors.map((e: { path: string }) => e.path)).toEqual(['password']);
+    r = await admin.post('/api/deployments', { unit: 'dryer-1', versionId: dryerNoProperty, reason: 'trial', confirmEndpointLoss: why, password: 'not my password' });
+    expect(r.status).toBe(401);
+    expect(r.body.type).toMatch(/signature-refused/);
+    expect(r.body.errors[0].path).toBe('password');
+    expect((await admin.get('/api/units/dryer-1')).body.deployment.versionId).toBe(dryerV1);
+
+    r = await admin.post('/api/deployments', { unit: 'dryer-1', versionId: dryerNoProperty, reason: 'trial', confirmEndpointLoss: why, password: 'correct horse battery staple 42' });
     expect(r.status).toBe(201);
     expect(r.body.comparison.dropsEndpointProperty).toBe(true);
     expect((await admin.get('/api/units/dryer-1')).body.deployment.versionId).toBe(dryerNoProperty);
+
+    // The signature on the version carries the reason as its signed override, bound to the model's hash.
+    const v = await admin.get(`/api/models/versions/${dryerNoProperty}`);
+    const sig = (v.body.signatures as { meaning: string; override: string | null; reason: string; modelSha256: string; auditSeq: number }[]).find((x) => x.meaning === 'deployed');
+    expect(sig).toBeDefined();
+    expect(sig!.override).toBe(why);
+    expect(sig!.reason).toBe('trial');
+    expect(sig!.modelSha256).toBe(v.body.sha256);
+    // Its audit record holds the reason and the comparison it was signed against ...
+    const sa = await admin.get('/api/audit?action=signature.deployed&order=desc&limit=1');
+    const sEntry = { ...sa.body.items[0], after: JSON.parse(sa.body.items[0].after) };
+    expect(sEntry.seq).toBe(sig!.auditSeq);
+    expect(sEntry.object).toBe(`model:${dryerNoProperty}`);
+    expect(sEntry.after.override).toBe(why);
+    expect(sEntry.after.evidence.endpointLoss.reason).toBe(why);
+    expect(sEntry.after.evidence.comparison.replaces.versionId).toBe(dryerV1);
+    // ... and the deployment's audit entry names the signature and gives the reason.
     const audit = await admin.get('/api/audit?action=model.deploy&order=desc&limit=1');
     const entry = { ...audit.body.items[0], after: JSON.parse(audit.body.items[0].after) };
-    expect(entry.after.confirmEndpointLoss).toBe('moisture endpoint moves to the lab; trial of the spectral rule');
+    expect(entry.after.confirmEndpointLoss).toBe(why);
+    expect(entry.after.signature.auditSeq).toBe(sig!.auditSeq);
+    expect(entry.reason).toBe(`trial; endpoint property dropped: ${why}`);
     expect(entry.after.comparison.replaces.versionId).toBe(dryerV1);
     expect(entry.after.comparison.changes.some((c: { what: string }) => c.what === 'property model')).toBe(true);
+    // A refused signature left its trace, and deployed nothing.
+    const failed = await admin.get(`/api/audit?action=signature.failed&object=model:${dryerNoProperty}&limit=5`);
+    expect(failed.body.items.length).toBe(1);
   });
 
   it('a version fits the unit it was built for and drops nothing against itself', async () => {

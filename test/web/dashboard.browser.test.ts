@@ -337,6 +337,7 @@ describe.skipIf(!haveChromium)('dashboard in headless Chromium', () => {
     await dep.getByTestId('deploy-preview').getByText(/^Replaces /).waitFor({ timeout: 60_000 });
     await dep.getByTestId('deploy-changes').getByText('endpoint rule').waitFor();
     await dep.getByTestId('endpoint-loss-reason').waitFor();
+    await dep.getByTestId('endpoint-loss-password').waitFor();
     await shot('bench-deploy-compare');
     expect(pageErrors.join("\n")).toBe("");
   }, 360_000);

@@ -2,7 +2,8 @@
  * Version page: deploy an approved version to a unit. Before anything is sent, the server's preview
  * (GET /api/deployments/preview) says whether the version can judge the unit's batches (analyzer
  * axis, product, unit kind — refused otherwise, naming both sides) and what changes against the
- * version deployed there now; a deployment that drops the endpoint property needs a reason.
+ * version deployed there now; a deployment that drops the endpoint property needs a reason, signed
+ * with the deployment (electronic signature: the password is re-entered).
  */
 import { useState } from 'preact/hooks';
 import type { ModelVersionDetail } from '../../../../core/api/rest.ts';
@@ -29,6 +30,7 @@ export function Deploy({ d, onDone }: { d: ModelVersionDetail; onDone: () => voi
   const [unit, setUnit] = useState('');
   const [reason, setReason] = useState('');
   const [lossReason, setLossReason] = useState('');
+  const [password, setPassword] = useState('');
   const [errors, setErrors] = useState<Record<string, string>>({});
   const [done, setDone] = useState<string | null>(null);
   const [busy, setBusy] = useState(false);
@@ -41,23 +43,29 @@ export function Deploy({ d, onDone }: { d: ModelVersionDetail; onDone: () => voi
   const submit = async (e: Event) => {
     e.preventDefault();
     setDone(null);
-    if (needsLoss && !lossReason.trim()) {
-      setErrors({ confirmEndpointLoss: 'This deployment drops the endpoint property: say why, or choose a version that keeps it.' });
+    if (needsLoss && (!lossReason.trim() || !password)) {
+      setErrors({
+        ...(!lossReason.trim() ? { confirmEndpointLoss: 'This deployment drops the endpoint property: say why, or choose a version that keeps it.' } : {}),
+        ...(!password ? { password: 'Dropping the endpoint property is signed: re-enter your password.' } : {}),
+      });
       return;
     }
     setErrors({});
     setBusy(true);
     try {
-      const body = { unit, versionId: d.versionId, ...(reason.trim() ? { reason: reason.trim() } : {}), ...(needsLoss ? { confirmEndpointLoss: lossReason.trim() } : {}) };
+      const body = { unit, versionId: d.versionId, ...(reason.trim() ? { reason: reason.trim() } : {}), ...(needsLoss ? { confirmEndpointLoss: lossReason.trim(), password } : {}) };
       const dep = await post<{ unit: string }>('/api/deployments', body);
-      setDone(`Deployed to ${dep.unit}; batches started from now on are judged by ${d.name} v${d.version}.`);
+      setDone(`Deployed to ${dep.unit}${needsLoss ? ', signed with your reason for dropping the endpoint property' : ''}; batches started from now on are judged by ${d.name} v${d.version}.`);
+      setPassword('');
       onDone();
       preview.reload();
     } catch (err) {
       const f: Record<string, string> = {};
       if (err instanceof ApiError) {
-        for (const x of err.problem.errors ?? []) if (x.path === 'confirmEndpointLoss') f.confirmEndpointLoss = x.message;
-        f.form = err.message;
+        for (const x of err.problem.errors ?? []) if (x.path === 'confirmEndpointLoss' || x.path === 'password') f[x.path] = x.message;
+        // a refused password is said beside the password field; the typed reason stays
+        if (err.status === 401 && f.password) f.password = 'The password does not match your account: the signature was refused (the attempt is kept in the audit trail) and nothing was deployed. Type it again; the rest of the form is kept.';
+        else f.form = err.message;
       } else f.form = errorText(err);
       setErrors(f);
       preview.reload();
@@ -87,17 +95,22 @@ export function Deploy({ d, onDone }: { d: ModelVersionDetail; onDone: () => voi
       {needsLoss && (
         <>
           <label class="block">
-            Reason for dropping the endpoint property (kept with the deployment in the audit trail){' '}
+            Reason for dropping the endpoint property (signed with the deployment and kept in the audit trail){' '}
             <textarea rows={2} cols={50} value={lossReason} onInput={(e) => setLossReason((e.target as HTMLTextAreaElement).value)} data-testid="endpoint-loss-reason" />
           </label>
           <FieldError text={errors.confirmEndpointLoss} />
+          <label class="block">
+            Password (re-enter to sign: this deployment is an electronic signature, meaning "deployed", with the reason above){' '}
+            <input type="password" autocomplete="current-password" value={password} onInput={(e) => setPassword((e.target as HTMLInputElement).value)} data-testid="endpoint-loss-password" />
+          </label>
+          <FieldError text={errors.password} />
         </>
       )}
       <label class="block">
         Reason <input value={reason} onInput={(e) => setReason((e.target as HTMLInputElement).value)} />
       </label>
       <button class="btn" type="submit" disabled={!approved || !unit || misfit || busy || (unit !== '' && preview.loading && !preview.data)} data-testid="deploy-button">
-        {misfit ? 'Cannot deploy to this unit' : needsLoss ? 'Deploy, dropping the endpoint property' : 'Deploy'}
+        {misfit ? 'Cannot deploy to this unit' : needsLoss ? 'Sign and deploy, dropping the endpoint property' : 'Deploy'}
       </button>
       {done && <p role="status">{done}</p>}
       {errors.form && <ErrorBox message={errors.form} />}

@@ -77,7 +77,7 @@ export function VersionDetail({ version, me }: { version: string; me: Me | null 
                   {d.signatures!.map((s) => (
                     <li key={s.auditSeq}>
                       {s.meaning} by {s.signerFullName} ({s.signer}, {s.signerRole}) {dateTime(s.signedAt)}: “{s.reason}”
-                      {s.override && <span data-testid="signed-override"> — override signed with it: “{s.override}”</span>}
+                      {s.override && <span data-testid="signed-override"> — {s.meaning === 'deployed' ? 'reason for dropping the endpoint property, signed with it' : 'override signed with it'}: “{s.override}”</span>}
                     </li>
                   ))}
                 </ul>
