@@ -1,8 +1,8 @@
 /**
  * The storage contract: what every storage backend must do for the parts beside ingest (audit,
  * signatures, signed model changes, units of work). Written against the interfaces in
- * server/storage/ only; sqlite.test.ts runs it on the embedded SQLite backend, and a later backend
- * runs the same function with its own `open`.
+ * server/storage/ only; sqlite.test.ts runs it on the embedded SQLite backend, pg.test.ts on
+ * PostgreSQL, each with its own `open`.
  */
 import { describe, expect, it } from 'vitest';
 import type { AuditRecord } from '../../../core/api/audit.ts';
@@ -10,9 +10,17 @@ import { ChainedAuditTrail } from '../../../server/audit/audit-trail.ts';
 import type { Storage } from '../../../server/storage/storage.ts';
 import type { NewSignature } from '../../../server/storage/repositories.ts';
 
+/** The parts of Storage this contract exercises (a backend may implement more). */
+export type ContractStorage = Pick<
+  Storage,
+  | 'close' | 'unitOfWork' | 'audit' | 'signatures' | 'users' | 'sessions' | 'loginFailures' | 'analyzerTokens'
+  | 'createUnit' | 'createAnalyzer' | 'addAnalyzerToken' | 'findAnalyzerByTokenHash'
+  | 'nextModelVersion' | 'insertModelVersion' | 'getModelVersion' | 'approveModelVersion' | 'deploy' | 'activeDeployment'
+>;
+
 export interface ContractBackend {
   /** A fresh, empty storage (every migration applied). */
-  open(): Promise<Storage>;
+  open(): Promise<ContractStorage>;
 }
 
 const h = (c: string) => c.repeat(64);
@@ -33,7 +41,7 @@ function sig(userId: number, objectId: string, auditSeq: number, over: Partial<N
   };
 }
 
-async function draftModel(st: Storage, id: string): Promise<void> {
+async function draftModel(st: ContractStorage, id: string): Promise<void> {
   await st.insertModelVersion({
     id, name: 'dryer', version: await st.nextModelVersion('dryer'), product: 'granule A', sha256: h('a'), body: '{}', settings: {}, referenceBatches: [],
     components: 2, confidence: 0.99, status: 'draft', createdAt: 0, createdBy: 'test', approvedAt: null, approvedBy: null, approvalReason: null,
@@ -42,7 +50,7 @@ async function draftModel(st: Storage, id: string): Promise<void> {
 }
 
 export function storageContract(name: string, backend: ContractBackend): void {
-  const withStorage = (fn: (st: Storage, signer: number) => Promise<void>) => async () => {
+  const withStorage = (fn: (st: ContractStorage, signer: number) => Promise<void>) => async () => {
     const st = await backend.open();
     try {
       await fn(st, (await st.unitOfWork((u) => u.users.insert({ name: 'signer', fullName: 'S. Igner', role: 'model-owner', passwordHash: 'scrypt$x', mustChange: false, createdBy: 'test', at: T0 }))).id);
@@ -191,7 +199,7 @@ export function storageContract(name: string, backend: ContractBackend): void {
 }
 
 export function authContract(name: string, backend: ContractBackend): void {
-  const withStorage = (fn: (st: Storage) => Promise<void>) => async () => {
+  const withStorage = (fn: (st: ContractStorage) => Promise<void>) => async () => {
     const st = await backend.open();
     try {
       await fn(st);
