@@ -32,6 +32,7 @@
  * | POST   | /api/deployments                                  | Deployment (DeployModelRequest) |
  * | GET    | /api/alarms?unit=&batch=&state=&active=&limit=&offset= | Page<Alarm>             |
  * | POST   | /api/alarms/:alarm/acknowledge                    | Alarm (AcknowledgeAlarmRequest) |
+ * | POST   | /api/alarms/acknowledge                           | AlarmGroupAcknowledgement (AcknowledgeAlarmsRequest) |
  * | POST   | /api/alarms/:alarm/shelve                         | Alarm (ShelveAlarmRequest)   |
  * | POST   | /api/alarms/:alarm/unshelve                       | Alarm                        |
  * | GET    | /api/batches/:batch/endpoint-events               | Page<EndpointEventRecord>    |
@@ -816,6 +817,23 @@ export interface Alarm {
 
 export interface AcknowledgeAlarmRequest {
   comment?: string;
+}
+
+/**
+ * Acknowledge a group of alarms (e.g. the alarms an ended batch left to acknowledge) in one action:
+ * each alarm still moves through its own life cycle (ISA-18.2), the action is one audit entry
+ * (`alarm.acknowledge-group`) listing them. All or none: one that has nothing to acknowledge
+ * refuses the group (409).
+ */
+export interface AcknowledgeAlarmsRequest {
+  alarms: string[];
+  comment?: string;
+}
+
+export interface AlarmGroupAcknowledgement {
+  acknowledged: number;
+  /** Each alarm after the acknowledgement. */
+  alarms: Alarm[];
 }
 
 export interface ShelveAlarmRequest {

@@ -15,6 +15,7 @@ import { analyzerSummary, deploymentView } from './views.ts';
 import { recordAudit, userOf } from './audit-helper.ts';
 import { DEFAULT_ALARM_SETTINGS } from '../../core/alarms/types.ts';
 import { nameSchema } from '../../core/io/names.ts';
+import { alarmName, alarmStateName } from '../../core/vocabulary/plain-names.ts';
 import { SignatureError } from '../auth/types.ts';
 import type { SqliteStorage } from '../storage/sqlite-storage.ts';
 
@@ -209,6 +210,45 @@ export function addPlantRoutes(t: RouteTable, ctx: ServerContext, startedAt: num
       const a = await wrap(() => ctx.ingest.acknowledgeAlarm(params.alarm, userOf(req), body.comment ?? null));
       await recordAudit(ctx, { user: userOf(req), action: 'alarm.acknowledge', object: `alarm:${a.id}`, before: before?.state, after: a.state, reason: body.comment ?? null });
       return a;
+    },
+  });
+  t.add({
+    method: 'post', path: '/alarms/acknowledge',
+    summary: 'Acknowledge a group of alarms in one action (e.g. an ended batch\'s alarms): each alarm moves through its own life cycle (ISA-18.2); the action is one audit entry listing them. Refused (409, nothing acknowledged) when one of them has nothing to acknowledge',
+    role: 'operator', response: 'AlarmGroupAcknowledgement',
+    body: z.object({
+      alarms: z.array(z.string().uuid('alarm ids are UUIDs')).min(1, 'name at least one alarm').max(500, 'at most 500 alarms in one acknowledgement')
+        .refine((a) => new Set(a).size === a.length, 'an alarm is named twice'),
+      comment: nameSchema({ max: 2000, multiline: true, empty: true }).optional(),
+    }).strict(),
+    handler: async ({ body, req }) => {
+      const user = userOf(req);
+      // Check them all first: a group is acknowledged whole or not at all.
+      const before: Alarm[] = [];
+      const problems: { path: string; message: string }[] = [];
+      for (const [i, id] of body.alarms.entries()) {
+        const a = await ctx.storage.getAlarm(id);
+        if (!a) problems.push({ path: `alarms/${i}`, message: `alarm ${id} does not exist` });
+        else if (a.state !== 'active-unacknowledged' && a.state !== 'cleared-unacknowledged') problems.push({ path: `alarms/${i}`, message: `alarm ${id} (${alarmName(a.key)}) is ${alarmStateName(a.state)}: there is nothing to acknowledge` });
+        else before.push(a);
+      }
+      if (problems.length) throw new HttpProblem(409, 'Conflict', `${problems.length} of the ${body.alarms.length} alarms cannot be acknowledged (${problems.map((x) => x.message).join('; ')}); none was acknowledged.`, 'nothing-to-acknowledge', problems);
+      const units = new Set(before.map((a) => a.unit));
+      if (units.size > 1) throw new HttpProblem(422, 'Unprocessable', `the alarms belong to ${units.size} units (${[...units].join(', ')}); acknowledge one unit's alarms at a time`, 'alarms-of-several-units', [{ path: 'alarms', message: 'alarms of more than one unit' }]);
+      const after: Alarm[] = [];
+      for (const a of before) after.push(await wrap(() => ctx.ingest.acknowledgeAlarm(a.id, user, body.comment ?? null)));
+      const batches = [...new Set(before.map((a) => a.batch))];
+      const unit = before[0]!.unit;
+      await recordAudit(ctx, {
+        user, action: 'alarm.acknowledge-group',
+        object: batches.length === 1 && batches[0] !== null ? `batch:${batches[0]}` : `unit:${unit}`,
+        after: {
+          count: after.length, unit, batches,
+          alarms: after.map((a, i) => ({ id: a.id, name: alarmName(a.key), priority: a.priority, batch: a.batch, from: before[i]!.state, to: a.state })),
+        },
+        reason: body.comment ?? null,
+      });
+      return { acknowledged: after.length, alarms: after };
     },
   });
   t.add({

@@ -108,4 +108,44 @@ describe('an ended batch keeps its unacknowledged alarms, and its record agrees 
     for (const w of INTERNAL_CODE_WORDS) expect(text, w).not.toMatch(new RegExp(`(?<![\\w-])${w}(?![\\w-])`));
   });
   if (!haveTools) it('PDF check skipped: Debian chromium or poppler-utils is not installed', () => expect(haveTools).toBe(false));
+
+  it('the rest of the batch\'s alarms are acknowledged in one action: each moves on, one audit entry lists them', async () => {
+    let r = await admin.get('/api/alarms?batch=stalled-1&open=true&limit=100');
+    const left = (r.body.items as { id: string; state: string; key: string }[]).filter((a) => a.state === 'cleared-unacknowledged' || a.state === 'active-unacknowledged');
+    expect(left.length).toBeGreaterThanOrEqual(2);
+    const ids = left.map((a) => a.id);
+    // all or none: one alarm with nothing to acknowledge refuses the group, naming it
+    const done = (await admin.get('/api/alarms?batch=stalled-1&state=normal&limit=100')).body.items as { id: string }[];
+    r = await operator.post('/api/alarms/acknowledge', { alarms: [...ids, done[0]!.id], comment: 'reviewed with QA' });
+    expect(r.status).toBe(409);
+    expect(r.body.errors).toEqual([{ path: `alarms/${ids.length}`, message: expect.stringMatching(/is normal: there is nothing to acknowledge/) }]);
+    expect(((await admin.get('/api/alarms?batch=stalled-1&open=true&limit=100')).body.items as unknown[]).length).toBe(left.length);
+    r = await operator.post('/api/alarms/acknowledge', { alarms: [ids[0], ids[0]] });
+    expect(r.status).toBe(400);
+
+    const before = (await admin.get('/api/audit?limit=1&order=desc')).body.items[0].seq as number;
+    r = await operator.post('/api/alarms/acknowledge', { alarms: ids, comment: 'reviewed with QA' });
+    expect(r.status).toBe(200);
+    expect(r.body.acknowledged).toBe(ids.length);
+    for (const a of r.body.alarms as { state: string; acknowledgedBy: string; acknowledgeComment: string }[]) {
+      expect(a.state).toBe('normal');
+      expect(a.acknowledgedBy).toBe('u-operator');
+      expect(a.acknowledgeComment).toBe('reviewed with QA');
+    }
+    r = await admin.get('/api/alarms?batch=stalled-1&open=true&limit=100');
+    expect(r.body.items).toEqual([]);
+    // one operator action in the audit trail (each alarm's own state change is the system's record)
+    const audit = await admin.get(`/api/audit?user=u-operator&order=asc&limit=100`);
+    const mine = (audit.body.items as { seq: number; action: string; object: string; after: string; reason: string }[]).filter((e) => e.seq > before);
+    expect(mine.map((e) => e.action)).toEqual(['alarm.acknowledge-group']);
+    expect(mine[0]!.object).toBe('batch:stalled-1');
+    expect(mine[0]!.reason).toBe('reviewed with QA');
+    const after = JSON.parse(mine[0]!.after);
+    expect(after.count).toBe(ids.length);
+    expect(after.alarms.map((a: { id: string }) => a.id)).toEqual(ids);
+    for (const a of after.alarms) {
+      expect(a.to).toBe('normal');
+      expect(a.name).not.toMatch(/^(t2|q|pc\d|pace)$/);
+    }
+  });
 });

@@ -3,7 +3,7 @@ import type { Alarm, BatchDetail, EvaluationResult, ModelEnvelopeView, ModelVers
 import { propertyChartData, propertyTarget } from '../../web/src/views/review-property-data.ts';
 import type { Contributions, MonitorResult } from '../../core/monitor/types.ts';
 import { departureWindow, endpointRecordText, firstExit, meanContributions, regionShares, sampleSeqs, scanCountsText, suspectScansText, timeline, withRemainder } from '../../web/src/views/review-data.ts';
-import { ledgerQuery, summariseChange } from '../../web/src/views/ledger-data.ts';
+import { groupAcknowledgeText, ledgerQuery, summariseChange } from '../../web/src/views/ledger-data.ts';
 import { CHAIN_PRESETS, buildSettingsFromForm, parseEndpointMark, spreadIndices, summariseEvaluation } from '../../web/src/views/bench-data.ts';
 import { availablePcs, goldenPath, progressLabel, referencePaths, scoreBand } from '../../web/src/views/watch-data.ts';
 import { contributionSeries, topRegions, topShares } from '../../web/src/views/contribution-data.ts';
@@ -83,6 +83,16 @@ describe('Ledger helpers', () => {
   it('summarises only what changed', () => {
     expect(summariseChange('{"status":"draft","v":1}', '{"status":"approved","v":1}')).toBe('status: draft → approved');
     expect(summariseChange(null, '{"id":"m1","n":[1,2]}')).toBe('id: m1; n: [1,2]');
+    const g = groupAcknowledgeText(JSON.stringify({ count: 2, alarms: [
+      { id: '0b6c7a52-1111-4c1e-9b1e-000000000001', name: 'Hotelling T²', priority: 1, batch: 'B-7', from: 'cleared-unacknowledged', to: 'normal' },
+      { id: '0b6c7a52-2222-4c1e-9b1e-000000000002', name: 'PC3 score', priority: 3, batch: 'B-7', from: 'active-unacknowledged', to: 'active-acknowledged' },
+    ] }));
+    expect(g).toEqual({ head: '2 alarms acknowledged in one action:', items: [
+      'Hotelling T² (P1), batch B-7: cleared, not acknowledged → normal · alarm 0b6c7a52',
+      'PC3 score (P3), batch B-7: active, not acknowledged → active, acknowledged · alarm 0b6c7a52',
+    ] });
+    expect(groupAcknowledgeText('{"status":"x"}')).toBeNull();
+    expect(groupAcknowledgeText(null)).toBeNull();
     expect(summariseChange('"a"', null)).toBe('removed a');
     expect(summariseChange(null, null)).toBe('');
     expect(summariseChange(null, 'not json')).toBe('not json');

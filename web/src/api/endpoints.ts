@@ -1,5 +1,6 @@
 /** Every REST call the dashboard makes, in one place (paths and shapes from core/api/rest.ts). */
 import type {
+  AlarmGroupAcknowledgement,
   HistoryJobView,
   Alarm,
   BatchDetail,
@@ -63,6 +64,8 @@ export const api = {
   alarms: (f: { unit?: string; batch?: string; state?: string; active?: boolean; limit?: number; offset?: number } = {}) =>
     get<Page<Alarm>>(`/api/alarms${query(f)}`),
   acknowledge: (id: string, comment?: string) => post<Alarm>(`/api/alarms/${enc(id)}/acknowledge`, { comment }),
+  /** One action for a group (one audit entry listing them); each alarm's life cycle moves as for one. */
+  acknowledgeGroup: (ids: string[], comment?: string) => post<AlarmGroupAcknowledgement>('/api/alarms/acknowledge', { alarms: ids, comment }),
   shelve: (id: string, minutes: number, reason: string) => post<Alarm>(`/api/alarms/${enc(id)}/shelve`, { minutes, reason }),
   unshelve: (id: string) => post<Alarm>(`/api/alarms/${enc(id)}/unshelve`),
 };

@@ -69,11 +69,11 @@ export function AlarmList({
                   type="button"
                   class="btn small"
                   disabled={busy !== null}
-                  onClick={() => act(`group:${g.batch}`, async () => {
-                    for (const a of g.unacked) await api.acknowledge(a.id);
-                  })}
+                  title="One acknowledgement for the group, recorded once in the Ledger with the alarms it covers; each alarm moves on as if acknowledged alone."
+                  data-testid="acknowledge-group"
+                  onClick={() => act(`group:${g.batch}`, () => api.acknowledgeGroup(g.unacked.map((a) => a.id)))}
                 >
-                  Acknowledge these {g.unacked.length}
+                  Acknowledge these {g.unacked.length} (one action)
                 </button>
               )}
             </div>

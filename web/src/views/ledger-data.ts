@@ -1,6 +1,7 @@
 /** Pure helpers for the Ledger: query building from the filter form, and a short text of a change. */
 
 import type { AuditRecord } from '../../../core/api/audit.ts';
+import { alarmStateName } from '../../../core/vocabulary/plain-names.ts';
 
 /** One audit record as /api/audit returns it. */
 export type AuditRow = AuditRecord;
@@ -56,4 +57,24 @@ export function summariseChange(before: string | null, after: string | null, max
   else if (b !== undefined) out = `removed ${short(b)}`;
   else out = '';
   return out.length > max ? `${out.slice(0, max - 1)}…` : out;
+}
+
+/**
+ * A group acknowledgement (action `alarm.acknowledge-group`) in words, every alarm it covers named:
+ * "3 alarms acknowledged in one action: Hotelling T² (P1, batch B-7: unacknowledged, returned to
+ * normal → normal); …". Null when `after` is not such a record.
+ */
+export function groupAcknowledgeText(after: string | null): { head: string; items: string[] } | null {
+  let a: unknown;
+  try {
+    a = after === null ? null : JSON.parse(after);
+  } catch {
+    return null;
+  }
+  if (typeof a !== 'object' || a === null || !Array.isArray((a as { alarms?: unknown }).alarms)) return null;
+  const list = (a as { alarms: { id: string; name?: string; priority?: number; batch?: string | null; from?: string; to?: string }[] }).alarms;
+  return {
+    head: `${list.length} alarm${list.length === 1 ? '' : 's'} acknowledged in one action:`,
+    items: list.map((x) => `${x.name ?? x.id}${x.priority ? ` (P${x.priority})` : ''}${x.batch ? `, batch ${x.batch}` : ''}: ${alarmStateName(x.from ?? '?')} → ${alarmStateName(x.to ?? '?')} · alarm ${x.id.slice(0, 8)}`),
+  };
 }

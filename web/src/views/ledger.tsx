@@ -4,7 +4,7 @@ import { get, query } from '../api/http.ts';
 import { useAsync } from '../components/use-async.ts';
 import { Badge, Empty, ErrorBox, Loading } from '../components/status.tsx';
 import { href } from '../router.ts';
-import { ledgerQuery, summariseChange } from './ledger-data.ts';
+import { groupAcknowledgeText, ledgerQuery, summariseChange } from './ledger-data.ts';
 import type { AuditRow, LedgerFilter } from './ledger-data.ts';
 
 export function Ledger({ filter }: { filter: Record<string, string> }) {
@@ -95,7 +95,9 @@ export function Ledger({ filter }: { filter: Record<string, string> }) {
                     <a href={href({ view: 'ledger', filter: { ...filter, action: r.action } })}>{r.action}</a>
                   </td>
                   <td class="mono">{r.object}</td>
-                  <td class="small">{summariseChange(r.before, r.after)}</td>
+                  <td class="small">
+                    <Change r={r} />
+                  </td>
                   <td>{r.reason ?? ''}</td>
                 </tr>
               ))}
@@ -104,5 +106,21 @@ export function Ledger({ filter }: { filter: Record<string, string> }) {
         </div>
       )}
     </section>
+  );
+}
+
+/** The change column: a group acknowledgement lists every alarm it covers; other records in short. */
+function Change({ r }: { r: AuditRow }) {
+  const g = r.action === 'alarm.acknowledge-group' ? groupAcknowledgeText(r.after) : null;
+  if (!g) return <>{summariseChange(r.before, r.after)}</>;
+  return (
+    <div data-testid="ledger-group-ack">
+      {g.head}
+      <ul class="compact">
+        {g.items.map((t, i) => (
+          <li key={i}>{t}</li>
+        ))}
+      </ul>
+    </div>
   );
 }
