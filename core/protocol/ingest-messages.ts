@@ -169,6 +169,7 @@ export const INGEST_ERROR_CODES = [
   'time-backwards',
   'no-open-batch',
   'batch-already-open',
+  'batch-id-taken',
   'batch-mismatch',
   'unknown-unit',
   'too-large',

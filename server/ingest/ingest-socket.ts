@@ -145,7 +145,7 @@ export class IngestConnection implements AckSink {
     }
     if (this.busy) {
       if (this.backlog.length >= MAX_BACKLOG) {
-        this.abusive('rate-limited', `more than ${MAX_BACKLOG} messages sent while the hello was being answered`);
+        this.abusive('rate-limited', `more than ${MAX_BACKLOG} messages sent while a hello was being answered or a batch-start committed`);
         return;
       }
       this.backlog.push({ data, binary, rt });
@@ -171,6 +171,17 @@ export class IngestConnection implements AckSink {
       if (!this.stream) throw new IngestProtocolError('hello-required', 'send hello before any other message', entry.seq);
       const st = this.stream;
       const out = this.pipeline.accept(st, entry, m.rt);
+      if (out === 'accepted' && entry.type === 'batch-start') {
+        // Nothing more is taken from this connection until the start is durable: if its commit finds
+        // the batch id taken meanwhile (an import by another process), only the start is refused.
+        this.busy = true;
+        void this.pipeline.whenStarted(st).then(
+          () => undefined,
+          // any other failure of that commit already closed the connection (the pipeline recovers)
+          (e) => (e instanceof IngestProtocolError ? this.fail(e) : undefined),
+        ).finally(() => this.drain());
+        return;
+      }
       if (out !== 'accepted') {
         // A resend: acked again only when it is the entry stored under its seq, else a conflict.
         const dup = entry;

@@ -78,13 +78,34 @@ interface DeployedModel {
 /** Codes whose entry consumes its seq when refused (the analyzer goes on with the next one). */
 const CONSUMING: ReadonlySet<IngestErrorCode> = new Set([
   'bad-message', 'bad-frame', 'wrong-length', 'non-finite', 'time-implausible', 'time-backwards', 'no-open-batch',
-  'batch-already-open', 'batch-mismatch', 'unknown-unit', 'model-mismatch',
+  'batch-already-open', 'batch-id-taken', 'batch-mismatch', 'unknown-unit', 'model-mismatch',
 ]);
 
 export type AcceptOutcome = 'accepted' | 'duplicate-committed' | 'duplicate-pending';
 
+/**
+ * A batch-start accepted and not yet durable. Its connection takes nothing more until the commit
+ * holding it is done (IngestConnection waits on `done`), so nothing else of the batch is in that commit.
+ */
+interface PendingStart {
+  ob: OpenBatch;
+  st: StreamState;
+  seq: number;
+  /** The outbox row of the start (removed, and the unit's later rows renumbered, if the start is refused at commit). */
+  row: OutboxRow;
+  /** The unit the analyzer served before this start. */
+  prevUnit: string | undefined;
+  /** What clears a standing model-mismatch alarm of the unit once the start is durable. */
+  judgedBy: string;
+  done: Promise<void>;
+  resolve: () => void;
+  reject: (e: unknown) => void;
+}
+
 interface PostCommit {
   events: [string, unknown][];
+  /** Batch-starts in this commit. */
+  starts: PendingStart[];
   audits: AuditEntry[];
   acks: Map<StreamState, number>;
   latencies: number[];
@@ -125,6 +146,8 @@ export class IngestPipeline {
 
   private uow: IngestWrite = emptyIngestWrite();
   private post: PostCommit = newPost();
+  /** The batch-start of a stream that is not yet durable (see whenStarted). */
+  private readonly startOf = new Map<StreamState, PendingStart>();
   private touched = new Set<OpenBatch>();
   private pendingEntries = 0;
   private timer: NodeJS.Timeout | null = null;
@@ -617,9 +640,7 @@ export class IngestPipeline {
     if (busy) {
       throw new IngestProtocolError('batch-already-open', `batch-start seq ${e.seq}: unit ${e.unit} already runs batch ${busy.id} (analyzer ${busy.analyzer})`, e.seq);
     }
-    if (this.batchIds.has(e.batch)) {
-      throw new IngestProtocolError('batch-already-open', `batch-start seq ${e.seq}: batch id "${e.batch}" is already used; batch ids must be unique`, e.seq);
-    }
+    if (this.batchIds.has(e.batch)) throw batchIdTaken(e.seq, e.batch);
     const now = this.now();
     const dep = this.deployments.get(e.unit) ?? null;
     let monitor: BatchMonitorLike | null = null;
@@ -646,7 +667,6 @@ export class IngestPipeline {
         refuse(`its monitor cannot be created from model ${dep.ref.name} v${dep.ref.version} (${(err as Error)?.message ?? String(err)})`);
       }
     }
-    this.clearModelMismatch(e.unit, e.seq, `batch ${e.batch} started and is judged${dep ? ` by ${dep.ref.name} v${dep.ref.version}` : ''}`);
     const ob: OpenBatch = {
       id: e.batch, unit: e.unit, analyzer: st.analyzer, boot: st.boot, product: e.product, startT: e.t, startSeq: e.seq,
       axisLength: st.axis.length, modelVersion: monitor ? dep!.ref.versionId : null, nextIdx: 0, lastSeq: e.seq, lastT: e.t,
@@ -668,12 +688,36 @@ export class IngestPipeline {
       axis: st.axis, modelVersion: ob.modelVersion, createdAt: now,
     });
     this.batchIds.add(ob.id);
+    const prevUnit = this.lastUnitOf.get(ob.analyzer);
     this.lastUnitOf.set(ob.analyzer, ob.unit);
     this.openByAnalyzer.set(ob.analyzer, ob);
     this.openByUnit.set(ob.unit, ob);
     this.touched.add(ob);
-    this.addOutbox(ob.unit, 'batch-start', { unit: ob.unit, batch: ob.id, product: ob.product, t: e.t, model: dep?.ref ?? null });
+    const row = this.outboxRow(ob.unit, 'batch-start', { unit: ob.unit, batch: ob.id, product: ob.product, t: e.t, model: dep?.ref ?? null });
+    this.uow.outbox.push(row);
     this.post.events.push(['batch', { event: 'started', batch: ob.id, unit: ob.unit }]);
+    let resolve!: () => void;
+    let reject!: (e: unknown) => void;
+    const done = new Promise<void>((res, rej) => {
+      resolve = res;
+      reject = rej;
+    });
+    done.catch(() => undefined); // settled for whoever waits; unobserved when no one does
+    const ps: PendingStart = {
+      ob, st, seq: e.seq, row, prevUnit, done, resolve, reject,
+      judgedBy: `batch ${e.batch} started and is judged${dep ? ` by ${dep.ref.name} v${dep.ref.version}` : ''}`,
+    };
+    this.post.starts.push(ps);
+    this.startOf.set(st, ps);
+  }
+
+  /**
+   * Resolves once the batch-start this stream sent last is durable; rejects with `batch-id-taken`
+   * when its commit found the id taken by another path (an import by another process that this
+   * server had not yet learnt of). Resolves at once when no start of the stream is pending.
+   */
+  whenStarted(st: StreamState): Promise<void> {
+    return this.startOf.get(st)?.done ?? Promise.resolve();
   }
 
   private acceptBatchEnd(st: StreamState, e: BatchEndMessage) {
@@ -1170,14 +1214,31 @@ export class IngestPipeline {
       w.batchProgress.push({ batch: ob.id, spectrumCount: ob.nextIdx, lastSeq: ob.lastSeq, lastT: ob.lastT, endpointState: ob.endpointState, endpointAt: ob.endpointAt });
     }
     const t0 = performance.now();
-    try {
-      await this.storage.commitIngest(w);
-    } catch (e) {
-      this.log.error(`group commit of ${entries} entries failed; dropping their connections and reloading state from storage`, e);
-      await this.recover();
-      for (const w of post.waiters) w.reject(e);
-      return;
+    for (let attempt = 1; ; attempt++) {
+      try {
+        await this.storage.commitIngest(w);
+        break;
+      } catch (e) {
+        // A batch id taken by another path since the start was accepted (an import by another
+        // process, learnt of only every few seconds): that start alone is refused and the rest of
+        // the commit, rolled back as a whole, is written again. Any other failure drops the connections.
+        const taken = attempt <= 3 ? await this.takenStarts(post).catch(() => []) : [];
+        if (taken.length) {
+          for (const ps of taken) this.refuseStart(ps, w, post, touched);
+          continue;
+        }
+        this.log.error(`group commit of ${entries} entries failed; dropping their connections and reloading state from storage`, e);
+        await this.recover();
+        for (const w of post.waiters) w.reject(e);
+        for (const ps of post.starts) this.settleStart(ps, e);
+        return;
+      }
     }
+    for (const ps of post.starts) {
+      this.settleStart(ps, null);
+      if (this.openByUnit.get(ps.ob.unit) === ps.ob) this.clearModelMismatch(ps.ob.unit, ps.seq, ps.judgedBy);
+    }
+    if (this.uow.alarms.length) this.schedule();
     const t1 = performance.now();
     this.metrics.commitSeconds.observe((t1 - t0) / 1000);
     this.metrics.commitEntries.observe(entries);
@@ -1193,6 +1254,81 @@ export class IngestPipeline {
     for (const ob of touched) this.events.emit('unit-changed', ob.unit);
     for (const a of post.audits) this.recordAudit(a);
     for (const w of post.waiters) w.resolve();
+  }
+
+  /** Batch-starts of this commit whose id is now stored by another path (not by this stream). */
+  private async takenStarts(post: PostCommit): Promise<PendingStart[]> {
+    const out: PendingStart[] = [];
+    for (const ps of post.starts) {
+      const row = await this.storage.getBatch(ps.ob.id);
+      if (row && !(row.analyzer === ps.st.analyzer && row.boot === ps.st.boot && row.startSeq === ps.seq)) out.push(ps);
+    }
+    return out;
+  }
+
+  /**
+   * Refuse a batch-start at commit time (its id was taken meanwhile): everything of its batch leaves
+   * the write `w` and the one gathering behind it, the unit's outbox rows not yet committed are
+   * numbered again without the hole, the start is recorded as refused (`batch-id-taken`, its seq
+   * consumed as at accept time) and its connection told.
+   */
+  private refuseStart(ps: PendingStart, w: IngestWrite, post: PostCommit, touched: Set<OpenBatch>) {
+    const { ob, st } = ps;
+    const id = ob.id;
+    const err = batchIdTaken(ps.seq, id, ' (stored by another path, e.g. a command-line import, while this start was being committed)');
+    this.log.warn(`analyzer ${st.analyzer} boot ${st.boot}: ${err.message}; only this batch-start is refused, the rest of the group commit is written`);
+    const gone = new Set<string>();
+    for (const x of [w, this.uow]) {
+      x.batchStarts = x.batchStarts.filter((b) => b.id !== id);
+      x.batchProgress = x.batchProgress.filter((b) => b.batch !== id);
+      x.batchEnds = x.batchEnds.filter((b) => b.batch !== id);
+      x.spectra = x.spectra.filter((b) => b.batch !== id);
+      x.results = x.results.filter((b) => b.batch !== id);
+      x.endpointEvents = x.endpointEvents.filter((b) => b.batch !== id);
+      x.alarms = x.alarms.filter((a) => a.batch !== id);
+      if (x.shadowBatches) x.shadowBatches = x.shadowBatches.filter((b) => b.batch !== id);
+      if (x.shadowResults) x.shadowResults = x.shadowResults.filter((b) => b.batch !== id);
+      x.labValues = x.labValues.filter((v) => v.batch !== id);
+      for (const o of x.outbox) if (o.id === ps.row.id || (o.unit === ob.unit && (o.payload as { batch?: unknown } | null)?.batch === id)) gone.add(o.id);
+    }
+    this.renumberOutbox(ob.unit, [w, this.uow], gone);
+    w.rejected.push({ analyzer: st.analyzer, boot: st.boot, seq: ps.seq, code: err.code, message: err.message, receivedAt: this.now() });
+    for (const a of [...this.alarmsById.values()]) if (a.batch === id) this.alarmsById.delete(a.id);
+    for (const [k, aid] of [...this.alarmIdByKey]) if (!this.alarmsById.has(aid) && k.startsWith(`${ob.unit}\u0000${id}\u0000`)) this.alarmIdByKey.delete(k);
+    const ofBatch = (p: unknown) => typeof p === 'object' && p !== null && ((p as { batch?: unknown }).batch === id || (p as { alarm?: { batch?: unknown } }).alarm?.batch === id);
+    post.events = post.events.filter(([, p]) => !ofBatch(p));
+    post.starts = post.starts.filter((x) => x !== ps);
+    touched.delete(ob);
+    this.touched.delete(ob);
+    if (this.openByAnalyzer.get(ob.analyzer) === ob) this.openByAnalyzer.delete(ob.analyzer);
+    if (this.openByUnit.get(ob.unit) === ob) this.openByUnit.delete(ob.unit);
+    if (this.lastUnitOf.get(ob.analyzer) === ob.unit) {
+      if (ps.prevUnit === undefined) this.lastUnitOf.delete(ob.analyzer);
+      else this.lastUnitOf.set(ob.analyzer, ps.prevUnit);
+    }
+    post.events.push(['unit-changed', ob.unit]);
+    this.settleStart(ps, err);
+  }
+
+  /**
+   * The unit's outbox rows not yet committed (in `writes`, oldest first) are numbered again from
+   * the first of them, leaving out `gone`: a receiver and the dispatchers see the seq without a hole.
+   */
+  private renumberOutbox(unit: string, writes: IngestWrite[], gone: Set<string>) {
+    let next = Infinity;
+    for (const x of writes) for (const o of x.outbox) if (o.unit === unit) next = Math.min(next, o.unitSeq);
+    if (next === Infinity) return;
+    for (const x of writes) {
+      x.outbox = x.outbox.filter((o) => !gone.has(o.id));
+      for (const o of x.outbox) if (o.unit === unit) o.unitSeq = next++;
+    }
+    this.outboxSeq.set(unit, next - 1);
+  }
+
+  private settleStart(ps: PendingStart, err: unknown) {
+    if (this.startOf.get(ps.st) === ps) this.startOf.delete(ps.st);
+    if (err === null) ps.resolve();
+    else ps.reject(err);
   }
 
   private recordAudit(a: AuditEntry) {
@@ -1257,7 +1393,7 @@ export class AlarmRequestError extends Error {
 }
 
 function newPost(): PostCommit {
-  return { events: [], audits: [], acks: new Map(), latencies: [], spectra: 0, waiters: [] };
+  return { events: [], starts: [], audits: [], acks: new Map(), latencies: [], spectra: 0, waiters: [] };
 }
 
 /** Key prefix of the unit alarm raised while an analyzer reports NE 107 failure (analyzer-failure:<analyzer>). */
@@ -1274,6 +1410,10 @@ export const FUNCTION_CHECK_OVERDUE = 'function-check-overdue';
 
 function fmtMin(min: number): string {
   return min >= 10 ? min.toFixed(0) : min.toFixed(1);
+}
+
+function batchIdTaken(seq: number, batch: string, how = ''): IngestProtocolError {
+  return new IngestProtocolError('batch-id-taken', `batch-start seq ${seq}: batch id "${batch}" is already used${how}; batch ids must be unique, the batch is not started`, seq);
 }
 
 function alarmKey(unit: string, batch: string | null, key: string) {

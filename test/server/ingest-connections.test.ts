@@ -63,7 +63,7 @@ describe('analyzer token revocation through REST, with a heartbeat far away', ()
       expect(e.message).toMatch(/analyzer token of this connection was revoked/);
       const c = await p.waitClose();
       expect(c).toEqual({ code: 4401, reason: 'analyzer token revoked' });
-      expect(p.messages.filter((m) => m.type === 'ack').map((m) => m.seq)).toEqual([1]);
+      expect(Math.max(...p.messages.filter((m) => m.type === 'ack').map((m) => m.seq as number))).toBe(1);
       // what was acked before stays stored; the spectrum sent after the revocation was not taken
       await slow.server.ctx.ingest.flush();
       expect((await slow.server.ctx.storage.readSpectra('B-now', 0, 10, 10)).map((r) => r.seq)).toEqual([1]);

@@ -127,7 +127,7 @@ describe('an imported batch id is taken for live analyzers too', () => {
     expect(w.type).toBe('welcome');
     const t = Date.now();
     p.send({ type: 'batch-start', seq: 0, t, unit: 'dryer-1', batch: 'L-1', product: 'granule' });
-    const e = await p.waitError('batch-already-open');
+    const e = await p.waitError('batch-id-taken');
     expect(e.message).toMatch(/batch id "L-1" is already used/);
     p.send({ type: 'batch-start', seq: 1, t: t + 1, unit: 'dryer-1', batch: 'L-2', product: 'granule' });
     await p.waitAck(1);
