@@ -90,7 +90,7 @@ async function child(file: string, batches: number, withCv: boolean): Promise<vo
   const { historyPca } = await import('../../server/models/history-pca.ts');
   const ids = Array.from({ length: batches }, (_, b) => `PH-${String(b).padStart(4, '0')}`);
   const t = performance.now();
-  const h = await historyPca({ file, batches: ids, components: 10, groups: withCv ? 7 : 0, maxComponents: 12 });
+  const h = await historyPca({ source: { kind: 'sqlite', file }, batches: ids, components: 10, groups: withCv ? 7 : 0, maxComponents: 12 });
   const wall = (performance.now() - t) / 1000;
   process.stdout.write(JSON.stringify({ wall, seconds: h.seconds, workers: h.workers, spectra: h.spectra, lam: Array.from(h.model.eigenvalues), rss_mb: process.resourceUsage().maxRSS / 1024 }));
 }

@@ -194,7 +194,7 @@ export function addModelRoutes(t: RouteTable, ctx: ServerContext) {
           } catch {
             throw conflict(`model version ${m.name} v${m.version} stopped being a draft while it was being signed; nothing was signed or changed`);
           }
-          modelLifeOf(ctx).setReview(m.id, reviewDays, at, by);
+          await modelLifeOf(ctx).setReview(m.id, reviewDays, at, by, uow.modelLife);
         });
         return modelVersionSummary(ctx.storage, (await ctx.storage.getModelVersion(m.id))!);
       }),

@@ -14,7 +14,7 @@ import { deploymentView } from '../api/views.ts';
 import { SignatureError } from '../auth/types.ts';
 import type { ServerContext } from '../context.ts';
 import { deployPreview } from '../models/deploy-check.ts';
-import type { SqliteStorage } from '../storage/sqlite-storage.ts';
+import type { UnitOfWork } from '../storage/repositories.ts';
 import { modelLifeOf } from './service.ts';
 
 const SOURCE = 'core/api/model-life.ts';
@@ -23,8 +23,8 @@ const boolQuery = z.enum(['true', 'false']).transform((v) => v === 'true');
 
 export function addModelLifeRoutes(t: RouteTable, ctx: ServerContext) {
   const life = modelLifeOf(ctx);
-  const loadRun = (id: string) => {
-    const r = life.store.getRun(id);
+  const loadRun = async (id: string) => {
+    const r = await life.store.getRun(id);
     if (!r) throw notFound(`shadow run "${id}" does not exist`);
     return r;
   };
@@ -33,7 +33,7 @@ export function addModelLifeRoutes(t: RouteTable, ctx: ServerContext) {
     method: 'get', path: '/shadow-runs', summary: 'Shadow runs, newest first', role: 'viewer', response: 'ShadowRunList', responseSource: SOURCE,
     query: z.object({ unit: idSchema.optional(), versionId: z.string().min(1).max(128).optional(), active: boolQuery.optional() }),
     handler: async ({ query }): Promise<ShadowRunList> => {
-      const items = await Promise.all(life.store.listRuns(query).map((r) => life.runView(r)));
+      const items = await Promise.all((await life.store.listRuns(query)).map((r) => life.runView(r)));
       return { items, total: items.length, limit: items.length, offset: 0 };
     },
   });
@@ -50,7 +50,7 @@ export function addModelLifeRoutes(t: RouteTable, ctx: ServerContext) {
       if (m.status === 'retired') throw conflict(`model version ${m.name} v${m.version} is retired; only a draft or approved version can run in shadow`);
       const deployed = ctx.ingest.deploymentRef(body.unit);
       if (deployed?.versionId === m.id) throw conflict(`model version ${m.name} v${m.version} is the one deployed on ${body.unit}; a shadow run compares another version with it`);
-      const active = life.store.activeRun(body.unit);
+      const active = await life.store.activeRun(body.unit);
       if (active) throw conflict(`unit ${body.unit} already has shadow run ${active.id} (version ${active.modelVersion}); stop it first`);
       const preview = await deployPreview(ctx, body.unit, m);
       if (preview.mismatches.length) {
@@ -58,7 +58,7 @@ export function addModelLifeRoutes(t: RouteTable, ctx: ServerContext) {
       }
       const row = { id: randomUUID(), unit: body.unit, modelVersion: m.id, deployedVersion: deployed?.versionId ?? null, startedAt: ctx.now(), startedBy: userOf(req), reason: body.reason, endedAt: null, endedBy: null, endReason: null };
       await ctx.ingest.loadModel(m.id);
-      life.store.insertRun(row);
+      await life.store.insertRun(row);
       ctx.ingest.setShadowRun(body.unit, { id: row.id, versionId: m.id });
       await recordAudit(ctx, { user: userOf(req), action: 'shadow.start', object: `unit:${body.unit}`, after: { run: row.id, versionId: m.id, name: m.name, version: m.version, sha256: m.sha256, deployed: deployed ?? null }, reason: body.reason });
       return life.runView(row);
@@ -69,11 +69,11 @@ export function addModelLifeRoutes(t: RouteTable, ctx: ServerContext) {
     method: 'post', path: '/shadow-runs/:run/stop', summary: 'Stop a shadow run (its stored results and comparison stay)', role: 'model-owner', response: 'ShadowRun', responseSource: SOURCE,
     params: runParams, body: z.object({ reason: z.string().trim().min(1, 'give a reason').max(2000) }).strict(),
     handler: async ({ params, body, req }): Promise<ShadowRun> => {
-      const r = loadRun(params.run);
-      if (!life.store.endRun(r.id, ctx.now(), userOf(req), body.reason)) throw conflict(`shadow run ${r.id} has ended already`);
+      const r = await loadRun(params.run);
+      if (!(await life.store.endRun(r.id, ctx.now(), userOf(req), body.reason))) throw conflict(`shadow run ${r.id} has ended already`);
       if (ctx.ingest.shadowRun(r.unit)?.id === r.id) ctx.ingest.setShadowRun(r.unit, null);
       await recordAudit(ctx, { user: userOf(req), action: 'shadow.stop', object: `unit:${r.unit}`, after: { run: r.id, versionId: r.modelVersion }, reason: body.reason });
-      return life.runView(life.store.getRun(r.id)!);
+      return life.runView((await life.store.getRun(r.id))!);
     },
   });
 
@@ -81,7 +81,7 @@ export function addModelLifeRoutes(t: RouteTable, ctx: ServerContext) {
     method: 'get', path: '/shadow-runs/:run/comparison',
     summary: "The candidate against the deployed version on every ended batch of the run: confirmed alarms per batch, conditions caught by one and not the other, endpoint calls and their difference, and each version's prediction against the lab values",
     role: 'viewer', response: 'ShadowComparison', responseSource: SOURCE, params: runParams,
-    handler: async ({ params }): Promise<ShadowComparison> => life.comparison(loadRun(params.run)),
+    handler: async ({ params }): Promise<ShadowComparison> => life.comparison(await loadRun(params.run)),
   });
 
   t.add({
@@ -91,7 +91,7 @@ export function addModelLifeRoutes(t: RouteTable, ctx: ServerContext) {
     params: runParams,
     body: z.object({ reason: z.string().trim().min(1, 'give a reason').max(2000), password: z.string().max(1024).optional(), confirmEndpointLoss: z.string().trim().min(1, 'give the reason for dropping the endpoint property').max(2000).optional() }).strict(),
     handler: async ({ params, body, req }): Promise<DeployResult & { comparison: unknown; shadowComparison: ShadowComparison['summary'] }> => {
-      const r = loadRun(params.run);
+      const r = await loadRun(params.run);
       const m = await ctx.storage.getModelVersion(r.modelVersion);
       if (!m) throw notFound(`model version "${r.modelVersion}" does not exist`);
       if (m.status !== 'approved') throw conflict(`model version ${m.name} v${m.version} is ${m.status}; approve it (signed) before promoting it`);
@@ -109,11 +109,11 @@ export function addModelLifeRoutes(t: RouteTable, ctx: ServerContext) {
       const by = userOf(req);
       const at = ctx.now();
       const d = { id: randomUUID(), unit: r.unit, modelVersion: m.id, deployedAt: at, deployedBy: by, reason: body.reason, endedAt: null };
-      const sqlite = ctx.storage as unknown as SqliteStorage;
-      // In the signature's unit of work when signed (SQLite: its transaction), so a refusal rolls the signature back.
-      const apply = async () => {
-        sqlite.deploySync(d);
-        if (!life.store.endRun(r.id, at, by, `promoted: ${body.reason}`)) throw conflict(`shadow run ${r.id} has ended already; nothing was signed or deployed`);
+      // In the signature's unit of work, so a refusal rolls the signature back with the deployment.
+      const apply = async (_sig: unknown, uow: UnitOfWork) => {
+        if (!uow.modelLife) throw new Error('this storage backend keeps no shadow runs');
+        await uow.models.deploy(d);
+        if (!(await uow.modelLife.endRun(r.id, at, by, `promoted: ${body.reason}`))) throw conflict(`shadow run ${r.id} has ended already; nothing was signed or deployed`);
       };
       if (ctx.auth && req.user) {
         try {
@@ -130,7 +130,7 @@ export function addModelLifeRoutes(t: RouteTable, ctx: ServerContext) {
           throw e;
         }
       } else {
-        await apply();
+        await ctx.storage.unitOfWork((uow) => apply(null, uow));
       }
       ctx.ingest.setShadowRun(r.unit, null);
       await ctx.ingest.refreshDeployment(r.unit);

@@ -15,7 +15,7 @@ import { compareBatch, shadowComparison, type LabPoint } from '../../core/shadow
 import type { ServerContext } from '../context.ts';
 import { latestApprovalEvidence } from '../models/model-service.ts';
 import type { LabValueRow, ModelVersionRow } from '../storage/storage.ts';
-import { ModelLifeStore, type ShadowRunRow } from './store.ts';
+import type { ModelLifeRepository, ShadowRunRow } from '../storage/repositories.ts';
 
 /** Default periodic-review interval set at approval when the approver gives none (common practice: yearly review of a model; no published source). */
 export const DEFAULT_REVIEW_DAYS = 365;
@@ -30,7 +30,7 @@ export function effectiveLab(rows: LabValueRow[], property: string): { idx: numb
 }
 
 export class ModelLife {
-  readonly store: ModelLifeStore;
+  readonly store: ModelLifeRepository;
   /** Per (version, ended batch): its figures and its predictions by spectrum index (a few kB). */
   private readonly figures = new Map<string, { figures: HealthBatch; predictions: Float64Array }>();
   private readonly refScores = new Map<string, Promise<number[][]>>();
@@ -38,7 +38,7 @@ export class ModelLife {
   private readonly gauges;
 
   constructor(private readonly ctx: ServerContext) {
-    this.store = new ModelLifeStore(ctx.storage.db);
+    this.store = ctx.storage.modelLife;
     const reg = ctx.metrics.registry;
     const g = (name: string, help: string) => new client.Gauge({ name, help, labelNames: ['unit', 'model', 'version'], registers: [reg] });
     this.gauges = {
@@ -60,17 +60,17 @@ export class ModelLife {
     return {
       id: r.id, unit: r.unit, versionId: r.modelVersion, name: v?.name ?? '?', version: v?.version ?? 0, deployedVersionId: r.deployedVersion,
       startedAt: r.startedAt, startedBy: r.startedBy, reason: r.reason, endedAt: r.endedAt, endedBy: r.endedBy, endReason: r.endReason,
-      batches: this.store.batchCount(r.id),
+      batches: await this.store.batchCount(r.id),
     };
   }
 
   async comparison(r: ShadowRunRow): Promise<ShadowComparison> {
     const candidate = (await this.ctx.ingest.loadModel(r.modelVersion)) as unknown as MonitoringModel | null;
     const compared = [];
-    for (const b of this.store.runBatches(r.id)) {
+    for (const b of await this.store.runBatches(r.id)) {
       if (b.status !== 'ended') continue;
-      const shadow = this.store.shadowResults(r.id, b.id);
-      const primary = this.store.results(b.id);
+      const shadow = await this.store.shadowResults(r.id, b.id);
+      const primary = await this.store.results(b.id);
       const seqOf = new Map<number, number>();
       for (const x of [...primary, ...shadow]) seqOf.set(x.idx, x.result.seq);
       const deployedModel = b.modelVersion ? ((await this.ctx.ingest.loadModel(b.modelVersion)) as unknown as MonitoringModel | null) : null;
@@ -90,7 +90,7 @@ export class ModelLife {
     const key = `${model.id}\u0000${batch.id}`;
     let hit = this.figures.get(key);
     if (!hit) {
-      const rows = this.store.results(batch.id);
+      const rows = await this.store.results(batch.id);
       const f = healthBatchFigures(rows.map((x) => x.result));
       let alarms = 0;
       for (const x of rows) for (const c of x.result.conditionChanges) if (c.active && c.kind !== 'analyzer') alarms++;
@@ -142,12 +142,12 @@ export class ModelLife {
     if (!model) throw new Error(`model version ${row.id} cannot be read`);
     const batches: HealthBatch[] = [];
     let k = 0;
-    for (const b of this.store.batchesJudgedBy(row.id)) {
+    for (const b of await this.store.batchesJudgedBy(row.id)) {
       batches.push(await this.batchFigures(b, model));
       if (++k % 20 === 0) await new Promise((r) => setImmediate(r));
     }
     const evidence = await latestApprovalEvidence(this.ctx, row.id);
-    const review = this.store.review(row.id);
+    const review = await this.store.review(row.id);
     const units = (await this.ctx.storage.listDeployments({ active: true })).filter((d) => d.modelVersion === row.id).map((d) => d.unit).sort();
     return modelHealth({
       version: { id: row.id, name: row.name, version: row.version, confidence: model.limits.t2.confidence },
@@ -203,10 +203,11 @@ export class ModelLife {
     return this.refreshing;
   }
 
-  /** Set the periodic-review due date of a version (synchronously: inside the approval's signature transaction). */
-  setReview(versionId: string, intervalDays: number, at: number, by: string): number {
+  /** Set the periodic-review due date of a version; `within` is the approval's unit of work (its repository), so a refused signature sets none. */
+  async setReview(versionId: string, intervalDays: number, at: number, by: string, within: ModelLifeRepository | null = this.store): Promise<number> {
+    if (!within) throw new Error('this storage backend keeps no periodic reviews');
     const due = at + intervalDays * DAY_MS;
-    this.store.setReview(versionId, intervalDays, due, at, by);
+    await within.setReview(versionId, intervalDays, due, at, by);
     return due;
   }
 }

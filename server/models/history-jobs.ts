@@ -13,7 +13,6 @@ import type { ServerContext } from '../context.ts';
 import { matrixFromRows } from '../../core/linalg/dense-matrix.ts';
 import { fitChain } from '../../core/preprocess/index.ts';
 import type { ChainSpec } from '../../core/preprocess/spec.ts';
-import type { SqliteStorage } from '../storage/sqlite-storage.ts';
 import { historyPca } from './history-pca.ts';
 import { ModelRequestError } from './model-service.ts';
 
@@ -79,12 +78,12 @@ export async function startHistoryJob(ctx: ServerContext, req: { referenceBatche
     if (!oldest) break;
     all.delete(oldest.job);
   }
-  const file = (ctx.storage as unknown as SqliteStorage).db.name;
+  const source = ctx.storage.spectrumSource();
   const t = performance.now();
   // The server's close stops the workers (a job is not resumed after a restart).
   const abort = new AbortController();
   ctx.onClose(() => abort.abort());
-  void historyPca({ file, batches: ids, components: req.components, groups, chain: chainJson, onProgress: (p) => (job.progress = p), signal: abort.signal }).then(
+  void historyPca({ source, batches: ids, components: req.components, groups, chain: chainJson, onProgress: (p) => (job.progress = p), signal: abort.signal }).then(
     (h) => {
       const lam = Array.from(h.model.eigenvalues);
       const explained = lam.map((v) => v / h.model.totalVariance);

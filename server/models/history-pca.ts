@@ -18,10 +18,11 @@ import { createRequire } from 'node:module';
 import { dirname, join } from 'node:path';
 import { pathToFileURL } from 'node:url';
 import { Worker } from 'node:worker_threads';
-import Database from 'better-sqlite3';
 import { loadChain } from '../../core/preprocess/index.ts';
 import { foldModels, mergeScatter, pcaFromScatter, type ScatterState } from '../../core/pca/streaming-pca.ts';
 import type { PcaCore } from '../../core/pca/fit-pca.ts';
+import type { SpectrumSourceRef } from '../storage/repositories.ts';
+import { openSpectrumReader } from '../storage/spectrum-reader.ts';
 import type { HistoryJob, HistoryReply, HistoryRequest } from './history-worker.ts';
 
 const TSX_API = pathToFileURL(join(dirname(createRequire(import.meta.url).resolve('tsx/package.json')), 'dist/esm/api/index.mjs')).href;
@@ -41,8 +42,8 @@ export interface HistoryProgress {
 }
 
 export interface HistoryPcaOptions {
-  /** The SQLite database file. */
-  file: string;
+  /** Where the spectra are stored (Storage.spectrumSource()); each worker opens its own reader on it. */
+  source: SpectrumSourceRef;
   batches: string[];
   components: number;
   /** Fitted chain (JSON) applied to each raw spectrum; null: the raw spectra. */
@@ -106,22 +107,21 @@ export async function historyPca(o: HistoryPcaOptions): Promise<HistoryPca> {
   const G = o.groups ?? 7;
   if (G !== 0 && (G < 2 || G > o.batches.length)) throw new RangeError(`cross-validation groups = ${G} must be 0 or from 2 to the ${o.batches.length} batches`);
   // The provisional centre and the raw length: the first stored spectrum of the first batch.
-  const db = new Database(o.file, { readonly: true, fileMustExist: true });
+  const reader = openSpectrumReader(o.source);
   let first: Float32Array;
   try {
-    const r = db.prepare('SELECT vals FROM spectra WHERE batch = ? ORDER BY idx LIMIT 1').get(o.batches[0]) as { vals: Buffer } | undefined;
+    const r = await reader.first(o.batches[0]!);
     if (!r) throw new RangeError(`batch "${o.batches[0]}" has no stored spectra`);
-    first = new Float32Array(r.vals.byteLength / 4);
-    new Uint8Array(first.buffer).set(r.vals);
+    first = r;
   } finally {
-    db.close();
+    await reader.close();
   }
   const chain = o.chain ? loadChain(o.chain) : null;
   const centre = chain ? Float64Array.from(chain.apply(first)) : Float64Array.from(first);
   const p = centre.length;
   const W = Math.max(1, Math.min(o.workers ?? availableParallelism(), o.batches.length));
   const groups = Math.max(G, 1);
-  const shares: HistoryJob[] = Array.from({ length: W }, () => ({ file: o.file, batches: [], groups, chain: o.chain ?? null, pIn: first.length, centre }));
+  const shares: HistoryJob[] = Array.from({ length: W }, () => ({ source: o.source, batches: [], groups, chain: o.chain ?? null, pIn: first.length, centre }));
   o.batches.forEach((id, i) => shares[i % W]!.batches.push({ id, group: G ? i % G : 0 }));
   if (o.signal?.aborted) throw new Error('the plant-history decomposition was stopped before it started');
   const workers = shares.map(() => startWorker());

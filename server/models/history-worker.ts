@@ -1,7 +1,7 @@
 /**
  * Runs inside a worker thread (server/models/history-pca.ts starts it): streams its share of the
- * reference batches' spectra from the SQLite file (its own read-only connection, one spectrum at a
- * time) through the model's chain into per-group scatter accumulators (core/pca/streaming-pca.ts),
+ * reference batches' spectra from the storage (its own reader, server/storage/spectrum-reader.ts:
+ * a database connection cannot cross threads; one spectrum at a time) through the model's chain into per-group scatter accumulators (core/pca/streaming-pca.ts),
  * so memory is groups × p² whatever the number of spectra. Two requests:
  *
  * - 'scatter': the group states, with progress after every batch;
@@ -9,13 +9,14 @@
  *   under the model without their group (cross-validation), again with progress.
  */
 import { parentPort } from 'node:worker_threads';
-import Database from 'better-sqlite3';
 import { loadChain, type FittedChain } from '../../core/preprocess/index.ts';
 import { residualPress, ScatterAccumulator, type ScatterState } from '../../core/pca/streaming-pca.ts';
 import type { PcaCore } from '../../core/pca/fit-pca.ts';
+import type { SpectrumSourceRef } from '../storage/repositories.ts';
+import { openSpectrumReader } from '../storage/spectrum-reader.ts';
 
 export interface HistoryJob {
-  file: string;
+  source: SpectrumSourceRef;
   /** This worker's batches, with the group each belongs to. */
   batches: { id: string; group: number }[];
   groups: number;
@@ -34,19 +35,9 @@ export type HistoryReply =
   | { kind: 'press'; press: Float64Array[]; spectra: number }
   | { kind: 'error'; message: string };
 
-function* spectraOf(db: Database.Database, batch: string, pIn: number): Generator<Float32Array> {
-  const st = db.prepare('SELECT vals FROM spectra WHERE batch = ? ORDER BY idx');
-  const x = new Float32Array(pIn);
-  const bytes = new Uint8Array(x.buffer);
-  for (const r of st.iterate(batch) as Iterable<{ vals: Buffer }>) {
-    if (r.vals.byteLength !== pIn * 4) throw new RangeError(`batch "${batch}": a spectrum has ${r.vals.byteLength / 4} values, the first batch ${pIn}`);
-    bytes.set(r.vals);
-    yield x;
-  }
-}
-
-export function runHistoryJob(req: HistoryRequest, progress: (batches: number, spectra: number) => void): HistoryReply {
-  const db = new Database(req.file, { readonly: true, fileMustExist: true });
+export async function runHistoryJob(req: HistoryRequest, progress: (batches: number, spectra: number) => void): Promise<HistoryReply> {
+  const reader = openSpectrumReader(req.source);
+  const raw = new Float32Array(req.pIn);
   try {
     const chain: FittedChain | null = req.chain ? loadChain(req.chain) : null;
     const p = chain ? chain.outputAxis.length : req.pIn;
@@ -57,7 +48,7 @@ export function runHistoryJob(req: HistoryRequest, progress: (batches: number, s
       const acc = Array.from({ length: req.groups }, () => new ScatterAccumulator(p, req.centre));
       for (const b of req.batches) {
         const a = acc[b.group]!;
-        for (const raw of spectraOf(db, b.id, req.pIn)) {
+        for await (const _ of reader.spectra(b.id, raw)) {
           if (chain) chain.apply(raw, x);
           a.add(chain ? x : raw);
           spectra++;
@@ -71,7 +62,7 @@ export function runHistoryJob(req: HistoryRequest, progress: (batches: number, s
     const work = new Float64Array(p);
     for (const b of req.batches) {
       const m = req.folds[b.group]!;
-      for (const raw of spectraOf(db, b.id, req.pIn)) {
+      for await (const _ of reader.spectra(b.id, raw)) {
         if (chain) chain.apply(raw, x);
         residualPress(m, chain ? x : raw, press[b.group]!, work);
         spectra++;
@@ -80,7 +71,7 @@ export function runHistoryJob(req: HistoryRequest, progress: (batches: number, s
     }
     return { kind: 'press', press, spectra };
   } finally {
-    db.close();
+    await reader.close();
   }
 }
 
@@ -89,12 +80,12 @@ export function serveHistoryWorker(): void {
   const port = parentPort;
   if (!port) throw new Error('serveHistoryWorker runs only inside a worker thread');
   port.on('message', (req: HistoryRequest) => {
-    try {
-      const r = runHistoryJob(req, (batches, spectra) => port.postMessage({ kind: 'progress', batches, spectra } satisfies HistoryReply));
-      const transfer = r.kind === 'scatter' ? r.states.flatMap((s) => [s.sum.buffer, s.upper.buffer]) : r.kind === 'press' ? r.press.map((v) => v.buffer) : [];
-      port.postMessage(r, transfer as ArrayBuffer[]);
-    } catch (e) {
-      port.postMessage({ kind: 'error', message: String((e as Error)?.message ?? e) } satisfies HistoryReply);
-    }
+    runHistoryJob(req, (batches, spectra) => port.postMessage({ kind: 'progress', batches, spectra } satisfies HistoryReply)).then(
+      (r) => {
+        const transfer = r.kind === 'scatter' ? r.states.flatMap((s) => [s.sum.buffer, s.upper.buffer]) : r.kind === 'press' ? r.press.map((v) => v.buffer) : [];
+        port.postMessage(r, transfer as ArrayBuffer[]);
+      },
+      (e: unknown) => port.postMessage({ kind: 'error', message: String((e as Error)?.message ?? e) } satisfies HistoryReply),
+    );
   });
 }

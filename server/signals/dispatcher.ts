@@ -16,7 +16,7 @@
  * deduplicate by id.
  */
 import { backoffDelay, DEFAULT_BACKOFF, type BackoffPolicy } from './backoff.ts';
-import { envelopeOf, type OutboxStore, type SignalEnvelope } from './outbox-store.ts';
+import { envelopeOf, type SignalEnvelope, type SignalRepository } from './outbox-store.ts';
 
 export interface SignalChannel {
   /** Cursor key, e.g. 'mqtt', 'opcua', 'webhook:historian'. */
@@ -70,7 +70,7 @@ export class SignalDispatcher {
   private readonly gapSeen = new Map<string, { seq: number; since: number }>();
 
   constructor(
-    private readonly store: OutboxStore,
+    private readonly store: SignalRepository,
     readonly channel: SignalChannel,
     private readonly opts: DispatcherOptions = {},
   ) {
@@ -83,8 +83,10 @@ export class SignalDispatcher {
   start(): void {
     if (!this.stopped) return;
     this.stopped = false;
-    this.store.registerChannel(this.channel.name, this.now(), this.opts.startAtEnd ?? false);
-    this.loop = this.run();
+    this.loop = this.store.registerChannel(this.channel.name, this.now(), this.opts.startAtEnd ?? false).then(
+      () => this.run(),
+      (e: Error) => console.error(`signals/${this.channel.name}: the channel could not be registered, nothing is delivered: ${e.message}`),
+    );
   }
 
   /** Stop after the attempt in flight (if any) has finished. */
@@ -130,7 +132,7 @@ export class SignalDispatcher {
   /** One pass over all units; true when something was delivered. */
   async pass(): Promise<boolean> {
     if (this.channel.isReady && !this.channel.isReady()) return false;
-    const units = this.store.units();
+    const units = await this.store.units();
     const results = await Promise.all(units.map((u) => this.drainUnit(u)));
     const requeued = await this.retryRequeued();
     return results.some(Boolean) || requeued;
@@ -140,20 +142,20 @@ export class SignalDispatcher {
     const name = this.channel.name;
     let worked = false;
     while (!this.stopped) {
-      let expected = this.store.cursor(name, unit) + 1;
-      const rows = this.store.pending(name, unit, this.batchSize);
+      let expected = (await this.store.cursor(name, unit)) + 1;
+      const rows = await this.store.pending(name, unit, this.batchSize);
       if (rows.length === 0) return worked;
       for (const row of rows) {
         if (this.stopped) return worked;
         if (this.channel.isReady && !this.channel.isReady()) return worked;
         if (row.unit_seq > expected && !this.passGap(unit, expected, row.unit_seq - 1)) return worked;
         expected = row.unit_seq + 1;
-        const prev = this.store.attempt(name, row.id);
+        const prev = await this.store.attempt(name, row.id);
         if (prev && prev.next_at > this.now()) return worked; // backing off: keep order, try later
         const env = envelopeOf(row);
         try {
           await this.channel.deliver(env);
-          this.store.markDelivered(name, row, this.now());
+          await this.store.markDelivered(name, row, this.now());
           this.stats.delivered++;
           worked = true;
           try {
@@ -169,10 +171,10 @@ export class SignalDispatcher {
           const dead = attempts >= this.channel.maxAttempts;
           this.stats.failed++;
           if (dead) {
-            this.store.markDead(name, row, err.message, t, attempts);
+            await this.store.markDead(name, row, err.message, t, attempts);
             this.stats.dead++;
           } else {
-            this.store.markFailed(name, row, err.message, t, t + backoffDelay(attempts, policy, this.random), attempts);
+            await this.store.markFailed(name, row, err.message, t, t + backoffDelay(attempts, policy, this.random), attempts);
           }
           this.opts.onError?.(name, env, err, attempts, dead);
           if (!dead) return worked;
@@ -201,12 +203,12 @@ export class SignalDispatcher {
 
   private async retryRequeued(): Promise<boolean> {
     let worked = false;
-    for (const d of this.store.requeued(this.channel.name)) {
-      const row = this.store.row(d.event_id);
+    for (const d of await this.store.requeued(this.channel.name)) {
+      const row = await this.store.row(d.event_id);
       if (!row) continue;
       try {
         await this.channel.deliver(envelopeOf(row));
-        this.store.markDeadDelivered(this.channel.name, d.event_id, this.now());
+        await this.store.markDeadDelivered(this.channel.name, d.event_id, this.now());
         worked = true;
       } catch {
         break;

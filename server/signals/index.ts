@@ -14,14 +14,14 @@ import { parseSignalsConfig } from './config.ts';
 import { SignalDispatcher, type SignalChannel } from './dispatcher.ts';
 import type { MqttChannel } from './mqtt-channel.ts';
 import type { OpcuaChannel } from './opcua/opcua-channel.ts';
-import { OutboxStore, type SignalEnvelope } from './outbox-store.ts';
+import type { SignalEnvelope, SignalRepository } from './outbox-store.ts';
 import { addSignalRoutes } from './routes.ts';
 import { WebhookChannel } from './webhook-channel.ts';
 
 export { SIGNALS_CAUTION } from './routes.ts';
 
 export interface SignalsHandle {
-  store: OutboxStore;
+  store: SignalRepository;
   dispatchers: SignalDispatcher[];
   opcua: OpcuaChannel | null;
   mqtt: MqttChannel | null;
@@ -29,8 +29,7 @@ export interface SignalsHandle {
 
 export async function install(ctx: ServerContext): Promise<SignalsHandle> {
   const cfg = parseSignalsConfig((ctx.config as { signals?: unknown }).signals);
-  // The outbox bookkeeping is still on the SQLite connection itself (not yet behind a repository).
-  const store = new OutboxStore(ctx.storage.db);
+  const store = ctx.storage.signals;
   const channels: SignalChannel[] = [];
   const anchorSinks: AnchorSink[] = [];
   for (const w of cfg.webhooks) {
@@ -99,11 +98,11 @@ export async function install(ctx: ServerContext): Promise<SignalsHandle> {
       }),
   );
   // register before the channels rebuild their state from what they already delivered
-  for (const ch of channels) store.registerChannel(ch.name, ctx.now(), !cfg.replayHistory);
+  for (const ch of channels) await store.registerChannel(ch.name, ctx.now(), !cfg.replayHistory);
   if (mqtt) {
     const d = dispatchers[channels.indexOf(mqtt)]!;
     mqtt.onReady = () => d.wake();
-    mqtt.start();
+    await mqtt.start();
   }
   if (opcua) {
     await opcua.start();

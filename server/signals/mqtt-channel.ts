@@ -17,7 +17,7 @@ import mqtt, { type MqttClient } from 'mqtt';
 import type { MonitorResult } from '../../core/monitor/types.ts';
 import type { AnchorMessage, AnchorSink } from './audit-anchor.ts';
 import type { SignalChannel } from './dispatcher.ts';
-import { deliveredRows, envelopeOf, type OutboxStore, type SignalEnvelope } from './outbox-store.ts';
+import { envelopeOf, type SignalEnvelope, type SignalRepository } from './outbox-store.ts';
 import { applyEvent, applyResult, emptyUnitState, type UnitSignalState } from './unit-state.ts';
 
 export interface MqttConfig {
@@ -58,7 +58,7 @@ export class MqttChannel implements SignalChannel, AnchorSink {
 
   constructor(
     private readonly cfg: MqttConfig,
-    private readonly store: OutboxStore,
+    private readonly store: SignalRepository,
     private readonly now: () => number = Date.now,
   ) {
     if (!/^(mqtts?|wss?|tcp):\/\//.test(cfg.url)) throw new Error(`mqtt.url must start with mqtt://, mqtts://, ws:// or wss://, got '${cfg.url}'`);
@@ -71,10 +71,10 @@ export class MqttChannel implements SignalChannel, AnchorSink {
   }
 
   /** Rebuild each unit's state from the events this channel already delivered, then connect. */
-  start(): void {
-    for (const unit of this.store.units()) {
+  async start(): Promise<void> {
+    for (const unit of await this.store.units()) {
       let s = emptyUnitState(unit, this.now());
-      for (const row of deliveredRows(this.store, this.name, unit)) s = applyEvent(s, envelopeOf(row), this.now());
+      for (const row of await this.store.delivered(this.name, unit)) s = applyEvent(s, envelopeOf(row), this.now());
       this.states.set(unit, s);
     }
     const client = mqtt.connect(this.cfg.url, {

@@ -21,7 +21,7 @@ import { idSchema } from '../api/routes-plant.ts';
 import type { ServerContext } from '../context.ts';
 import type { SignalDispatcher } from './dispatcher.ts';
 import type { OpcuaChannel } from './opcua/opcua-channel.ts';
-import type { OutboxStore } from './outbox-store.ts';
+import type { SignalRepository } from './outbox-store.ts';
 
 export const SIGNALS_CAUTION =
   "Tideline advises. Endpoint signals and alarms must be used within the site's validated control strategy; interlocks and operating procedures decide what a signal may do.";
@@ -87,31 +87,36 @@ const requeueParams = z.object({ channel: z.string().min(1).max(200), event: z.s
 const requeueBody = z.object({ reason: z.string().max(2000).optional() });
 const SOURCE = 'server/signals/routes.ts';
 
-export function addSignalRoutes(t: RouteTable, ctx: ServerContext, store: OutboxStore, dispatchers: SignalDispatcher[], opcua: OpcuaChannel | null): void {
+export function addSignalRoutes(t: RouteTable, ctx: ServerContext, store: SignalRepository, dispatchers: SignalDispatcher[], opcua: OpcuaChannel | null): void {
   t.add({
     method: 'get', path: '/signals', summary: 'Signal channels, their cursors and pending events per unit', role: 'viewer', response: 'SignalsStatus', responseSource: SOURCE,
     handler: async (): Promise<SignalsStatus> => {
-      const units = store.units();
-      return {
-        caution: SIGNALS_CAUTION,
-        channels: dispatchers.map((d) => ({
+      const units = await store.units();
+      const channels = await Promise.all(
+        dispatchers.map(async (d) => ({
           name: d.channel.name,
           ready: d.channel.isReady ? d.channel.isReady() : true,
           maxAttempts: Number.isFinite(d.channel.maxAttempts) ? d.channel.maxAttempts : null,
           delivered: d.stats.delivered,
           failed: d.stats.failed,
           dead: d.stats.dead,
-          units: units.map((unit) => {
-            const pending = store.pending(d.channel.name, unit, 1000);
-            const head = pending[0] ? store.attempt(d.channel.name, pending[0].id) : undefined;
-            return {
-              unit,
-              deliveredSeq: store.cursor(d.channel.name, unit),
-              pending: pending.length,
-              retrying: head ? { eventId: head.event_id, seq: head.unit_seq, attempts: head.attempts, nextAt: head.next_at, lastError: head.last_error } : null,
-            };
-          }),
+          units: await Promise.all(
+            units.map(async (unit) => {
+              const pending = await store.pending(d.channel.name, unit, 1000);
+              const head = pending[0] ? await store.attempt(d.channel.name, pending[0].id) : null;
+              return {
+                unit,
+                deliveredSeq: await store.cursor(d.channel.name, unit),
+                pending: pending.length,
+                retrying: head ? { eventId: head.event_id, seq: head.unit_seq, attempts: head.attempts, nextAt: head.next_at, lastError: head.last_error } : null,
+              };
+            }),
+          ),
         })),
+      );
+      return {
+        caution: SIGNALS_CAUTION,
+        channels,
         opcua: opcua ? { endpointUrl: opcua.endpointUrl, pkiDir: opcua.pkiDir } : null,
       };
     },
@@ -121,7 +126,7 @@ export function addSignalRoutes(t: RouteTable, ctx: ServerContext, store: Outbox
     method: 'get', path: '/signals/dead-letters', summary: 'Events a channel gave up on after its maximum attempts', role: 'viewer',
     query: deadLetterQuery, response: 'DeadLetterPage', responseSource: SOURCE,
     handler: async ({ query }): Promise<DeadLetterPage> => {
-      const items = store.deadLetters({ channel: query.channel, unit: query.unit, limit: query.limit, offset: query.offset }).map((d) => ({
+      const items = (await store.deadLetters({ channel: query.channel, unit: query.unit, limit: query.limit, offset: query.offset })).map((d) => ({
         channel: d.channel,
         eventId: d.event_id,
         unit: d.unit,
@@ -141,12 +146,12 @@ export function addSignalRoutes(t: RouteTable, ctx: ServerContext, store: Outbox
     method: 'post', path: '/signals/dead-letters/:channel/:event/requeue', summary: 'Try a dead-lettered event again (sent after its successors; audited)', role: 'administrator',
     params: requeueParams, body: requeueBody, bodyOptional: true, response: 'RequeueResult', responseSource: SOURCE,
     handler: async ({ params: { channel, event }, body, req }): Promise<RequeueResult> => {
-      const before = store.deadLetter(channel, event);
+      const before = await store.deadLetter(channel, event);
       if (!before) throw notFound(`no dead letter ${event} on channel ${channel}`);
-      store.requeue(channel, event, ctx.now());
+      await store.requeue(channel, event, ctx.now());
       await ctx.audit?.record({ user: req.user ?? 'system', action: 'signal.requeue', object: `signal:${channel}/${event}`, before, reason: body?.reason ?? null });
       for (const d of dispatchers) d.wake();
-      return { channel, eventId: event, requeuedAt: store.deadLetter(channel, event)?.requeued_at ?? null };
+      return { channel, eventId: event, requeuedAt: (await store.deadLetter(channel, event))?.requeued_at ?? null };
     },
   });
 
@@ -156,7 +161,7 @@ export function addSignalRoutes(t: RouteTable, ctx: ServerContext, store: Outbox
     handler: async ({ params: { unit }, req }): Promise<EndpointAcknowledgeResult> => {
       if (!opcua) throw conflict('the OPC UA channel is not configured: there is no endpoint latch');
       const by = req.user?.name ?? 'api';
-      if (!opcua.acknowledgeEndpoint(unit, by)) throw conflict(`unit ${unit} has no latched endpoint to acknowledge`);
+      if (!(await opcua.acknowledgeEndpoint(unit, by))) throw conflict(`unit ${unit} has no latched endpoint to acknowledge`);
       return { unit, latch: opcua.latch(unit) };
     },
   });

@@ -12,9 +12,11 @@ import { migrate } from './migrate.ts';
 import { checkDatabaseFile, describeOpenError } from './open-check.ts';
 import { startCheckpointer, type Checkpointer } from './checkpointer.ts';
 import { INGEST_SQL, startIngestWriter, type IngestWriter } from './ingest-writer.ts';
-import type { AnalyzerTokenRepository, LoginFailureRepository, ModelApprovalRepository, SessionRepository, UnitOfWork, UserRepository } from './repositories.ts';
+import type { AnalyzerTokenRepository, LoginFailureRepository, ModelApprovalRepository, SessionRepository, SpectrumSourceRef, UnitOfWork, UserRepository } from './repositories.ts';
 import { SqliteAuditRepository } from './sqlite-audit.ts';
 import { SqliteSignatureRepository } from './sqlite-signatures.ts';
+import { SqliteSignalRepository } from './sqlite-signals.ts';
+import { SqliteModelLifeRepository } from './sqlite-model-life.ts';
 import { sqliteAuthRepositories } from './sqlite-auth.ts';
 import type {
   AlarmFilter,
@@ -118,6 +120,8 @@ export class SqliteStorage implements Storage {
   readonly db: Database.Database;
   readonly audit: SqliteAuditRepository;
   readonly signatures: SqliteSignatureRepository;
+  readonly signals: SqliteSignalRepository;
+  readonly modelLife: SqliteModelLifeRepository;
   readonly users: UserRepository;
   readonly sessions: SessionRepository;
   readonly loginFailures: LoginFailureRepository;
@@ -262,14 +266,17 @@ export class SqliteStorage implements Storage {
     this.models = {
       approve: async (id, by, at, reason) => this.approveModelVersionSync(id, by, at, reason),
       retire: async (id, by, at, reason) => this.retireModelVersionSync(id, by, at, reason),
+      deploy: async (d) => this.deploySync(d),
     };
     this.signatures = new SqliteSignatureRepository(this.db);
+    this.signals = new SqliteSignalRepository(this.db);
+    this.modelLife = new SqliteModelLifeRepository(this.db);
     const auth = sqliteAuthRepositories(this.db);
     this.users = auth.users;
     this.sessions = auth.sessions;
     this.loginFailures = auth.loginFailures;
     this.analyzerTokens = auth.analyzerTokens;
-    this.uow = { audit: this.audit, signatures: this.signatures, models: this.models, ...auth };
+    this.uow = { audit: this.audit, signatures: this.signatures, models: this.models, modelLife: this.modelLife, ...auth };
   }
 
   /**
@@ -431,6 +438,10 @@ export class SqliteStorage implements Storage {
   }
   async readSpectra(batch: string, fromSeq: number, toSeq: number, limit: number) {
     return (this.st.readSpectra.all(batch, fromSeq, toSeq, limit) as Row[]).map(spectrumFromRow);
+  }
+  spectrumSource(): SpectrumSourceRef {
+    if (this.db.memory) throw new Error('an in-memory database cannot be read from another thread; use a database file');
+    return { kind: 'sqlite', file: this.db.name };
   }
   async spectrumTimes(batch: string) {
     return Float64Array.from((this.st.spectrumTimes.all(batch) as Row[]).map((r) => r.t as number));

@@ -8,7 +8,7 @@
 import type { Alarm, EndpointEventRecord, EvaluationResult, LabValueRecord, ModelVersionStatus } from '../../core/api/rest.ts';
 import type { EndpointState, MonitorResult } from '../../core/monitor/types.ts';
 import type { Ne107Category } from '../../core/protocol/ingest-messages.ts';
-import type { AuditRepository, AuthRepositories, SignatureRepository, UnitOfWork, UnitOfWorkRunner } from './repositories.ts';
+import type { AuditRepository, AuthRepositories, ModelLifeRepository, SignalRepository, SignatureRepository, SpectrumSourceRef, UnitOfWork, UnitOfWorkRunner } from './repositories.ts';
 
 export interface UnitRow {
   id: string;
@@ -205,6 +205,10 @@ export interface Storage extends UnitOfWorkRunner, AuthRepositories {
   readonly audit: AuditRepository;
   /** Electronic signatures (written by server/auth in the unit of work of what they sign). */
   readonly signatures: SignatureRepository;
+  /** The outbox as the signal channels read it, their delivery bookkeeping and the endpoint latches. */
+  readonly signals: SignalRepository;
+  /** Shadow runs, stored results for model health, periodic reviews (server/model-life). */
+  readonly modelLife: ModelLifeRepository;
 
   // units, analyzers, tokens
   createUnit(u: UnitRow): Promise<void>;
@@ -247,6 +251,8 @@ export interface Storage extends UnitOfWorkRunner, AuthRepositories {
   readSpectra(batch: string, fromSeq: number, toSeq: number, limit: number): Promise<SpectrumRow[]>;
   /** The times of a batch's spectra by index (ms epoch), without their values. */
   spectrumTimes(batch: string): Promise<Float64Array>;
+  /** Where worker threads read spectra from (their own reader: server/storage/spectrum-reader.ts). */
+  spectrumSource(): SpectrumSourceRef;
   /** Every spectrum of a batch in order, as a stream of pages (for replay). */
   iterateSpectra(batch: string, pageSize?: number): AsyncIterable<SpectrumRow>;
   getSpectrumBySeq(batch: string, seq: number): Promise<SpectrumRow | null>;
@@ -293,7 +299,7 @@ export interface Storage extends UnitOfWorkRunner, AuthRepositories {
   /** Every lab value of a batch, oldest first (corrections after what they correct). */
   listLabValues(batch: string): Promise<LabValueRow[]>;
 
-  // shadow runs (docs/model-life.md; the rest of their store is server/model-life/store.ts)
+  // shadow runs (docs/model-life.md; the rest of their store is the modelLife repository)
   /** The active shadow run of each unit that has one. */
   activeShadowRuns(): Promise<{ id: string; unit: string; modelVersion: string }[]>;
   /** The shadow run that judges a batch, with its version; null when none. */

@@ -49,7 +49,7 @@ describe('plant-history PCA from storage', () => {
     const A = 4;
     const maxA = 6;
     const seen: HistoryProgress[] = [];
-    const h = await historyPca({ file, batches: ids, components: A, groups: G, maxComponents: maxA, workers: 2, onProgress: (q) => seen.push(q) });
+    const h = await historyPca({ source: { kind: 'sqlite', file }, batches: ids, components: A, groups: G, maxComponents: maxA, workers: 2, onProgress: (q) => seen.push(q) });
     expect(h).toMatchObject({ spectra: nb * per, variables: p, workers: 2 });
     const last = (pass: string) => seen.filter((q) => q.pass === pass).at(-1);
     expect(last('scatter')).toEqual({ pass: 'scatter', batches: nb, of: nb, spectra: nb * per });
@@ -72,13 +72,13 @@ describe('plant-history PCA from storage', () => {
   it('stops its workers when aborted (the server closing)', async () => {
     const ids = Array.from({ length: 12 }, (_, b) => `H-${String(b).padStart(3, '0')}`);
     const abort = new AbortController();
-    const run = historyPca({ file: join(dir, 'tideline.db'), batches: ids, components: 2, workers: 2, signal: abort.signal, onProgress: () => abort.abort() });
+    const run = historyPca({ source: { kind: 'sqlite', file: join(dir, 'tideline.db') }, batches: ids, components: 2, workers: 2, signal: abort.signal, onProgress: () => abort.abort() });
     await expect(run).rejects.toThrow(/stopped|exit code/);
   }, 120_000);
 
   it('names what it cannot do', async () => {
-    await expect(historyPca({ file: join(dir, 'tideline.db'), batches: ['H-000'], components: 2 })).rejects.toThrow(/at least 2 batches/);
-    await expect(historyPca({ file: join(dir, 'tideline.db'), batches: ['NOPE', 'H-000'], components: 2, groups: 2 })).rejects.toThrow(/"NOPE" has no stored spectra/);
+    await expect(historyPca({ source: { kind: 'sqlite', file: join(dir, 'tideline.db') }, batches: ['H-000'], components: 2 })).rejects.toThrow(/at least 2 batches/);
+    await expect(historyPca({ source: { kind: 'sqlite', file: join(dir, 'tideline.db') }, batches: ['NOPE', 'H-000'], components: 2, groups: 2 })).rejects.toThrow(/"NOPE" has no stored spectra/);
   });
 });
 

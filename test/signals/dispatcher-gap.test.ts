@@ -3,12 +3,13 @@
  * the outbox, 3 and 4 still on their way. Delivery stops after 2; when 3 and 4 arrive, all five
  * are delivered in order. A gap that stands longer than gapWaitMs (rows that will never come, e.g.
  * from a database an older version wrote) is reported and passed, so one lost row cannot stop a
- * channel for good. Real OutboxStore on SQLite; the clock is the test's.
+ * channel for good. Real signal repository on SQLite; the clock is the test's.
  */
 import { randomUUID } from 'node:crypto';
 import { describe, expect, it } from 'vitest';
 import { SignalDispatcher, type SignalChannel } from '../../server/signals/dispatcher.ts';
-import { OutboxStore, type SignalEnvelope } from '../../server/signals/outbox-store.ts';
+import { type SignalEnvelope } from '../../server/signals/outbox-store.ts';
+import { SqliteSignalRepository } from '../../server/storage/sqlite-signals.ts';
 import { openSignalDb } from './helpers/outbox-db.ts';
 
 /** Let the dispatcher's own loop run a few more passes (it polls every 5 ms). */
@@ -28,7 +29,7 @@ function insert(db: ReturnType<typeof openSignalDb>, unit: string, seq: number) 
 
 function setup() {
   const db = openSignalDb();
-  const store = new OutboxStore(db);
+  const store = new SqliteSignalRepository(db);
   const got: [string, number][] = [];
   const channel: SignalChannel = { name: 'rec', maxAttempts: 3, deliver: async (e: SignalEnvelope) => void got.push([e.unit, e.seq]) };
   let now = 1_000_000;

@@ -11,7 +11,7 @@ import { SecurityPolicy } from 'node-opcua';
 import { afterAll, describe, expect, it } from 'vitest';
 import { parseSignalsConfig } from '../../server/signals/config.ts';
 import { OpcuaChannel } from '../../server/signals/opcua/opcua-channel.ts';
-import { OutboxStore } from '../../server/signals/outbox-store.ts';
+import { SqliteSignalRepository } from '../../server/storage/sqlite-signals.ts';
 import { connectClient } from './helpers/opcua-client.ts';
 import { openSignalDb } from './helpers/outbox-db.ts';
 
@@ -24,7 +24,7 @@ async function startChannel(opcua: Record<string, unknown>) {
   const dir = mkdtempSync(join(tmpdir(), 'tideline-opcua-sec-'));
   const db = openSignalDb(join(dir, 'tideline.db'));
   const cfg = parseSignalsConfig({ opcua: { port: 0, ...opcua } }).opcua!;
-  const channel = new OpcuaChannel(cfg, new OutboxStore(db), { dataDir: dir });
+  const channel = new OpcuaChannel(cfg, new SqliteSignalRepository(db), { dataDir: dir });
   await channel.start();
   channel.ensureUnits(['reactor-2']);
   stops.push(async () => {

@@ -14,7 +14,7 @@ import type { MonitorResult } from '../../core/monitor/types.ts';
 import { parseSignalsConfig } from '../../server/signals/config.ts';
 import { SignalDispatcher } from '../../server/signals/dispatcher.ts';
 import { OpcuaChannel } from '../../server/signals/opcua/opcua-channel.ts';
-import { OutboxStore } from '../../server/signals/outbox-store.ts';
+import { SqliteSignalRepository } from '../../server/storage/sqlite-signals.ts';
 import { connectClient, type TestClient } from './helpers/opcua-client.ts';
 import { appendOutbox, openSignalDb } from './helpers/outbox-db.ts';
 
@@ -66,7 +66,7 @@ function alarm(over: Partial<Alarm>): Alarm {
 describe('OPC UA channel', () => {
   const dir = mkdtempSync(join(tmpdir(), 'tideline-opcua-'));
   const db = openSignalDb(join(dir, 'tideline.db'));
-  const store = new OutboxStore(db);
+  const store = new SqliteSignalRepository(db);
   const acks: { unit: string; by: string }[] = [];
   const cfg = parseSignalsConfig({ opcua: { port: 0, securityModes: ['None'], allowAnonymous: true, heartbeatMs: 200 } }).opcua!;
   const alarmAcks: { unit: string; alarmId: string; comment: string }[] = [];

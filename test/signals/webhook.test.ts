@@ -9,7 +9,7 @@ import type { AddressInfo } from 'node:net';
 import { afterEach, describe, expect, it } from 'vitest';
 import { backoffDelay } from '../../server/signals/backoff.ts';
 import { SignalDispatcher } from '../../server/signals/dispatcher.ts';
-import { OutboxStore } from '../../server/signals/outbox-store.ts';
+import { SqliteSignalRepository } from '../../server/storage/sqlite-signals.ts';
 import { WebhookChannel } from '../../server/signals/webhook-channel.ts';
 import { hmacSha256Hex, verifySignature } from '../../server/signals/webhook-signature.ts';
 import { appendOutbox, openSignalDb } from './helpers/outbox-db.ts';
@@ -46,9 +46,9 @@ afterEach(async () => {
   for (const c of cleanups.splice(0).reverse()) await c();
 });
 
-async function until(cond: () => boolean, what: string, ms = 20_000): Promise<void> {
+async function until(cond: () => boolean | Promise<boolean>, what: string, ms = 20_000): Promise<void> {
   const end = Date.now() + ms;
-  while (!cond()) {
+  while (!(await cond())) {
     if (Date.now() > end) throw new Error(`timed out waiting for ${what}`);
     await new Promise((r) => setTimeout(r, 20));
   }
@@ -83,7 +83,7 @@ describe('webhook channel', () => {
   it('delivers every event after the receiver was down, in order per unit, signed', async () => {
     const db = openSignalDb();
     cleanups.push(() => { db.close(); });
-    const store = new OutboxStore(db);
+    const store = new SqliteSignalRepository(db);
     // find a free port, then leave it closed: the receiver is down (connection refused)
     const received: Received[] = [];
     let server = receiver(received, () => 200);
@@ -152,14 +152,14 @@ print(bad, len(items))
     const out = execFileSync('python3', ['-c', script], { input: JSON.stringify(received.map((r) => ({ sig: r.headers['tideline-signature'], body: r.body }))) }).toString().trim();
     expect(out).toBe(`0 ${received.length}`);
     // the cursor moves once the 2xx answer is back
-    await until(() => store.cursor('webhook:historian', 'dryer-1') === 15 && store.cursor('webhook:historian', 'dryer-2') === 15, 'cursors at the end');
+    await until(async () => (await store.cursor('webhook:historian', 'dryer-1')) === 15 && (await store.cursor('webhook:historian', 'dryer-2')) === 15, 'cursors at the end');
     expect(db.prepare('SELECT COUNT(*) AS n FROM signal_attempt').get()).toEqual({ n: 0 });
   });
 
   it('dead-letters an event after maxAttempts and goes on with the next', async () => {
     const db = openSignalDb();
     cleanups.push(() => { db.close(); });
-    const store = new OutboxStore(db);
+    const store = new SqliteSignalRepository(db);
     const received: Received[] = [];
     let failFirst = true;
     const server = createServer((req, res) => {
@@ -181,17 +181,17 @@ print(bad, len(items))
     cleanups.push(() => dispatcher.stop());
     dispatcher.start();
     await until(() => received.length === 1, 'the second event');
-    const dead = store.deadLetters({ channel: 'webhook:mes' });
+    const dead = await store.deadLetters({ channel: 'webhook:mes' });
     expect(dead).toHaveLength(1);
     expect(dead[0]).toMatchObject({ event_id: a.id, unit: 'reactor-1', unit_seq: 1, attempts: 3, last_error: expect.stringMatching(/HTTP 500/) });
     expect(JSON.parse(received[0]!.body).id).toBe(b.id);
     // requeue once the receiver is fixed
     failFirst = false;
-    expect(store.requeue('webhook:mes', a.id, Date.now())).toBe(true);
+    expect(await store.requeue('webhook:mes', a.id, Date.now())).toBe(true);
     await until(() => received.length === 2, 'the requeued event');
     // marked once the 2xx answer is back
-    await until(() => store.deadLetter('webhook:mes', a.id)!.delivered_at !== null, 'the dead letter marked delivered');
-    expect(store.requeued('webhook:mes')).toEqual([]);
+    await until(async () => (await store.deadLetter('webhook:mes', a.id))!.delivered_at !== null, 'the dead letter marked delivered');
+    expect(await store.requeued('webhook:mes')).toEqual([]);
   });
 
   it('a channel added to a server with history starts at the end; once registered it resumes, never skips', async () => {
@@ -199,7 +199,7 @@ print(bad, len(items))
     cleanups.push(() => {
       db.close();
     });
-    const store = new OutboxStore(db);
+    const store = new SqliteSignalRepository(db);
     for (let i = 0; i < 3; i++) appendOutbox(db, 'dryer-1', 'endpoint-state', { old: i }, T0 + i);
     const received: Received[] = [];
     let up = true;

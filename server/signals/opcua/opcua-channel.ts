@@ -5,8 +5,9 @@
  * receives Tideline's alarms as Alarms & Conditions events.
  *
  * Delivery: each outbox event is folded into the unit's state and written to the address space;
- * "endpoint reached" is latched in SQLite (endpoint_latch) and stays true until the DCS writes
- * EndpointAcknowledge = true. The channel never dead-letters.
+ * "endpoint reached" is latched in the storage (SignalRepository.latches; the channel keeps a copy
+ * of each unit's latch in memory, being the latch's only writer) and stays true until the DCS
+ * writes EndpointAcknowledge = true. The channel never dead-letters.
  *
  * Tideline advises; the site's validated control strategy, interlocks and procedures decide what
  * the DCS does with these signals.
@@ -27,15 +28,14 @@ import {
   type UAObject,
   type UAVariable,
 } from 'node-opcua';
-import type Database from 'better-sqlite3';
 import type { MonitorResult } from '../../../core/monitor/types.ts';
 import type { AnchorMessage, AnchorSink } from '../audit-anchor.ts';
 import type { OpcuaSettings } from '../config.ts';
 import type { SignalChannel } from '../dispatcher.ts';
-import { deliveredRows, envelopeOf, type OutboxStore, type SignalEnvelope } from '../outbox-store.ts';
+import type { LatchRow } from '../../storage/repositories.ts';
+import { envelopeOf, type SignalEnvelope, type SignalRepository } from '../outbox-store.ts';
 import { applyEvent, applyResult, emptyUnitState, type UnitSignalState } from '../unit-state.ts';
 import { MIRRORED_ALARMS } from './alarm-mirror.ts';
-import { EndpointLatchStore, type LatchRow } from './endpoint-latch.ts';
 import { UnitNodes } from './unit-nodes.ts';
 
 export const OPCUA_CHANNEL = 'opcua';
@@ -78,7 +78,8 @@ export class OpcuaChannel implements SignalChannel, AnchorSink {
   private anchorVar: UAVariable | null = null;
   private readonly units = new Map<string, UnitNodes>();
   private readonly states = new Map<string, UnitSignalState>();
-  private readonly latches: EndpointLatchStore;
+  /** Each unit's endpoint latch as stored (read at start, replaced after every write). */
+  private readonly latches = new Map<string, LatchRow>();
   private heartbeat = 0;
   private timer: NodeJS.Timeout | null = null;
   private readonly now: () => number;
@@ -86,10 +87,9 @@ export class OpcuaChannel implements SignalChannel, AnchorSink {
 
   constructor(
     private readonly cfg: OpcuaSettings,
-    private readonly store: OutboxStore,
+    private readonly store: SignalRepository,
     private readonly opts: OpcuaChannelOptions,
   ) {
-    this.latches = new EndpointLatchStore(store.db as Database.Database);
     this.now = opts.now ?? Date.now;
   }
 
@@ -143,9 +143,10 @@ export class OpcuaChannel implements SignalChannel, AnchorSink {
     this.anchorVar.setValueFromSource(new Variant({ dataType: DataType.String, value: '' }), StatusCodes.BadWaitingForInitialData);
     this.ns = ns;
     this.server = server;
-    for (const unit of this.store.units()) {
+    for (const l of await this.store.latches.all()) this.latches.set(l.unit, l);
+    for (const unit of await this.store.units()) {
       let s = emptyUnitState(unit, this.now());
-      for (const row of deliveredRows(this.store, this.name, unit)) s = applyEvent(s, envelopeOf(row), this.now());
+      for (const row of await this.store.delivered(this.name, unit)) s = applyEvent(s, envelopeOf(row), this.now());
       this.states.set(unit, s);
       const nodes = this.nodesFor(unit);
       for (const a of s.alarms) nodes.alarms.mirror(a);
@@ -179,7 +180,9 @@ export class OpcuaChannel implements SignalChannel, AnchorSink {
         propertyRange: this.cfg.propertyRange[unit] ?? { low: 0, high: 100 },
         maxTimeShelvedMs: this.cfg.maxTimeShelvedMs,
         now: this.now,
-        onAcknowledge: (u) => this.acknowledgeEndpoint(u, 'opcua-client'),
+        onAcknowledge: (u) => {
+          this.acknowledgeEndpoint(u, 'opcua-client').catch((e: Error) => console.error(`signals/opcua: the endpoint acknowledge of ${u} was not stored: ${e.message}`));
+        },
         onAlarmAcknowledge: (u, id, comment) => this.opts.onAlarmAcknowledged?.(u, id, comment),
       });
       n.beat(this.heartbeat);
@@ -210,7 +213,8 @@ export class OpcuaChannel implements SignalChannel, AnchorSink {
     if ((event.type === 'endpoint-state' || event.type === 'endpoint') && s.endpoint.reached && !(prev.endpoint.reached && prev.endpoint.t === s.endpoint.t)) {
       const p = event.payload as { to?: string };
       if (p.to === 'done' || (p.to === 'signalled' && !this.latches.get(event.unit)?.event_id)) {
-        this.latches.set(event.unit, s.batch, s.endpoint.t ?? event.createdAt, s.endpoint.reason ?? '', event.id);
+        const latched = await this.store.latches.set(event.unit, s.batch, s.endpoint.t ?? event.createdAt, s.endpoint.reason ?? '', event.id);
+        if (latched) this.latches.set(event.unit, latched);
       }
     }
     if (event.type === 'alarm' || event.type === 'condition') {
@@ -234,10 +238,12 @@ export class OpcuaChannel implements SignalChannel, AnchorSink {
   }
 
   /** The DCS (or an operator through the API) acknowledged "endpoint reached": reset the latch. */
-  acknowledgeEndpoint(unit: string, by: string): boolean {
+  async acknowledgeEndpoint(unit: string, by: string): Promise<boolean> {
     const at = this.now();
-    const prev = this.latches.acknowledge(unit, by, at);
+    const prev = await this.store.latches.acknowledge(unit, by, at);
     if (!prev) return false;
+    const now = await this.store.latches.get(unit);
+    if (now) this.latches.set(unit, now);
     const s = this.states.get(unit);
     if (s) this.nodesFor(unit).update(s, this.latchView(unit));
     this.opts.onEndpointAcknowledged?.(unit, prev, by, at);
@@ -248,6 +254,7 @@ export class OpcuaChannel implements SignalChannel, AnchorSink {
     return this.states.get(unit);
   }
 
+  /** The unit's endpoint latch as stored. */
   latch(unit: string): LatchRow | undefined {
     return this.latches.get(unit);
   }

@@ -95,6 +95,10 @@ function modelApprovals(sql: Q): ModelApprovalRepository {
       if (r.count !== 1) throw new Error(`model version ${id} is already retired`);
       await sql`UPDATE deployments SET ended_at = ${at} WHERE model_version = ${id} AND ended_at IS NULL`;
     },
+    async deploy(d) {
+      await sql`UPDATE deployments SET ended_at = ${d.deployedAt} WHERE unit = ${d.unit} AND ended_at IS NULL`;
+      await sql`INSERT INTO deployments (id, unit, model_version, deployed_at, deployed_by, reason) VALUES (${d.id}, ${d.unit}, ${d.modelVersion}, ${d.deployedAt}, ${d.deployedBy}, ${d.reason})`;
+    },
   };
 }
 
@@ -181,7 +185,8 @@ export class PgStorage implements PgStorageParts {
       let out: T | undefined;
       await this.sql.begin(async (tx) => {
         const auth = pgAuthRepositories(tx);
-        out = await work({ audit: new PgAuditRepository(tx, true), signatures: new PgSignatureRepository(tx), models: modelApprovals(tx), ...auth });
+        // modelLife: shadow runs are not on PostgreSQL yet (see the header).
+        out = await work({ audit: new PgAuditRepository(tx, true), signatures: new PgSignatureRepository(tx), models: modelApprovals(tx), modelLife: null, ...auth });
       });
       return out as T;
     };

@@ -7,8 +7,9 @@
 import { describe, expect, it } from 'vitest';
 import type { AuditRecord } from '../../../core/api/audit.ts';
 import { ChainedAuditTrail } from '../../../server/audit/audit-trail.ts';
-import type { Storage } from '../../../server/storage/storage.ts';
-import type { NewSignature } from '../../../server/storage/repositories.ts';
+import { emptyIngestWrite, type Storage } from '../../../server/storage/storage.ts';
+import type { NewSignature, ShadowRunRow } from '../../../server/storage/repositories.ts';
+import type { MonitorResult } from '../../../core/monitor/types.ts';
 
 /** The parts of Storage this contract exercises (a backend may implement more). */
 export type ContractStorage = Pick<
@@ -184,6 +185,24 @@ export function storageContract(name: string, backend: ContractBackend): void {
       expect(await st.audit.count({})).toBe(0);
     }));
 
+    it('deploy in a unit of work ends the unit\'s deployment before it; a failure keeps the old one', withStorage(async (st) => {
+      await draftModel(st, 'v1');
+      await draftModel(st, 'v2');
+      await st.createUnit({ id: 'dryer-1', name: 'dryer-1', kind: 'dryer', description: '', createdAt: 0 });
+      await st.deploy({ id: 'd1', unit: 'dryer-1', modelVersion: 'v1', deployedAt: 1, deployedBy: 'a', reason: null, endedAt: null });
+      const d2 = { id: 'd2', unit: 'dryer-1', modelVersion: 'v2', deployedAt: 2, deployedBy: 'b', reason: 'better', endedAt: null };
+      await expect(
+        st.unitOfWork(async (u) => {
+          await u.audit.append(rec(1, { action: 'model.deploy', object: 'unit:dryer-1' }));
+          await u.models.deploy(d2);
+          throw new Error('injected failure');
+        }),
+      ).rejects.toThrow('injected failure');
+      expect((await st.activeDeployment('dryer-1'))?.id).toBe('d1');
+      await st.unitOfWork(async (u) => u.models.deploy(d2));
+      expect(await st.activeDeployment('dryer-1')).toMatchObject({ id: 'd2', modelVersion: 'v2', deployedBy: 'b', reason: 'better', endedAt: null });
+    }));
+
     it('units of work started together run one after another (the chain stays whole)', withStorage(async (st) => {
       const trail = new ChainedAuditTrail(st, { now: () => Date.UTC(2026, 0, 5) });
       await Promise.all(Array.from({ length: 20 }, (_, i) => trail.record({ user: `u${i % 3}`, action: 'test.write', object: `obj:${i}` })));
@@ -287,6 +306,197 @@ export function authContract(name: string, backend: ContractBackend): void {
       expect(await st.users.byName('eve')).toBeNull();
       expect(await st.sessions.get('s')).toBeNull();
       expect(await st.analyzerTokens.get('t9')).toBeNull();
+    }));
+  });
+}
+
+/** Outbox rows as the ingest commit writes them (the signal side only reads them). */
+async function writeOutbox(st: Pick<Storage, 'commitIngest'>, rows: [unit: string, seq: number, type?: string][]): Promise<string[]> {
+  const w = emptyIngestWrite();
+  w.outbox = rows.map(([unit, seq, type]) => ({ id: `${unit}#${seq}`, unit, unitSeq: seq, type: type ?? 'endpoint-state', payload: { n: seq, text: 'ä "q"' }, createdAt: 1000 + seq }));
+  await st.commitIngest(w);
+  return w.outbox.map((o) => o.id);
+}
+
+/** What the signal-delivery contract needs of a backend. */
+export type SignalContractStorage = Pick<Storage, 'close' | 'commitIngest' | 'signals'>;
+
+export function signalContract(name: string, backend: { open(): Promise<SignalContractStorage> }): void {
+  const withStorage = (fn: (st: SignalContractStorage) => Promise<void>) => async () => {
+    const st = await backend.open();
+    try {
+      await fn(st);
+    } finally {
+      await st.close();
+    }
+  };
+
+  describe(`storage contract (${name}): signal delivery`, () => {
+    it('pending rows above the cursor in seq order; delivered rows up to it; the cursor never moves back', withStorage(async (st) => {
+      await writeOutbox(st, [['u2', 1], ['u1', 2], ['u1', 1], ['u1', 3]]);
+      const s = st.signals;
+      expect(await s.units()).toEqual(['u1', 'u2']);
+      expect(await s.cursor('web', 'u1')).toBe(0);
+      const p = await s.pending('web', 'u1');
+      expect(p.map((r) => r.unit_seq)).toEqual([1, 2, 3]);
+      expect(p[0]).toEqual({ id: 'u1#1', unit: 'u1', unit_seq: 1, type: 'endpoint-state', payload: JSON.stringify({ n: 1, text: 'ä "q"' }), created_at: 1001 });
+      expect((await s.pending('web', 'u1', 2)).length).toBe(2);
+      await s.markDelivered('web', p[1]!, 50);
+      await s.markDelivered('web', p[0]!, 60); // behind the cursor: it stays at 2
+      expect(await s.cursor('web', 'u1')).toBe(2);
+      expect(await s.cursor('mqtt', 'u1')).toBe(0);
+      expect((await s.pending('web', 'u1')).map((r) => r.unit_seq)).toEqual([3]);
+      expect((await s.delivered('web', 'u1')).map((r) => r.unit_seq)).toEqual([1, 2]);
+      expect((await s.delivered('web', 'u1', 1)).map((r) => r.unit_seq)).toEqual([2]);
+      expect((await s.row('u2#1'))?.unit).toBe('u2');
+      expect(await s.row('nope')).toBeNull();
+    }));
+
+    it('a channel registered at the end starts past the existing rows; registering again changes nothing', withStorage(async (st) => {
+      await writeOutbox(st, [['u1', 1], ['u1', 2], ['u2', 1]]);
+      expect(await st.signals.registerChannel('late', 10, true)).toBe(true);
+      expect(await st.signals.registerChannel('replay', 10, false)).toBe(true);
+      expect([await st.signals.cursor('late', 'u1'), await st.signals.cursor('late', 'u2'), await st.signals.cursor('replay', 'u1')]).toEqual([2, 1, 0]);
+      await writeOutbox(st, [['u1', 3]]);
+      expect(await st.signals.registerChannel('late', 20, true)).toBe(false);
+      expect((await st.signals.pending('late', 'u1')).map((r) => r.unit_seq)).toEqual([3]);
+    }));
+
+    it('failed attempts, a dead letter that moves the cursor, requeue and its delivery', withStorage(async (st) => {
+      const [a, b] = await writeOutbox(st, [['u1', 1], ['u1', 2]]);
+      const s = st.signals;
+      const row = (await s.pending('web', 'u1'))[0]!;
+      await s.markFailed('web', row, 'HTTP 500 '.repeat(100), 100, 300, 1);
+      await s.markFailed('web', row, 'HTTP 503', 300, 700, 2);
+      expect(await s.attempt('web', a!)).toEqual({ channel: 'web', event_id: a, unit: 'u1', unit_seq: 1, attempts: 2, next_at: 700, last_error: 'HTTP 503', last_at: 300 });
+      await s.markDead('web', row, 'x'.repeat(600), 800, 3);
+      expect(await s.attempt('web', a!)).toBeNull();
+      expect(await s.cursor('web', 'u1')).toBe(1);
+      const dead = await s.deadLetter('web', a!);
+      expect(dead).toMatchObject({ channel: 'web', event_id: a, unit: 'u1', unit_seq: 1, type: 'endpoint-state', attempts: 3, dead_at: 800, requeued_at: null, delivered_at: null });
+      expect(dead!.last_error.length).toBe(500);
+      await s.markDead('other', (await s.pending('other', 'u1'))[1]!, 'gone', 900, 1);
+      expect((await s.deadLetters()).map((d) => d.channel)).toEqual(['other', 'web']);
+      expect((await s.deadLetters({ channel: 'web', unit: 'u1' })).map((d) => d.event_id)).toEqual([a]);
+      expect(await s.deadLetters({ unit: 'u9' })).toEqual([]);
+      expect(await s.requeue('web', 'nope', 1000)).toBe(false);
+      expect(await s.requeue('web', a!, 1000)).toBe(true);
+      expect((await s.requeued('web')).map((d) => d.event_id)).toEqual([a]);
+      await s.markDeadDelivered('web', a!, 1100);
+      expect(await s.requeued('web')).toEqual([]);
+      expect(await s.deadLetter('web', a!)).toMatchObject({ requeued_at: 1000, delivered_at: 1100 });
+      expect((await s.pending('web', 'u1')).map((r) => r.id)).toEqual([b]);
+    }));
+
+    it('endpoint latches: set once per event, acknowledged once, kept per unit', withStorage(async (st) => {
+      const l = st.signals.latches;
+      expect(await l.get('u1')).toBeNull();
+      expect(await l.set('u1', 'B-1', 500, 'moisture at target', 'e1')).toEqual({ unit: 'u1', batch: 'B-1', reached: 1, reached_at: 500, reason: 'moisture at target', event_id: 'e1', acknowledged_at: null, acknowledged_by: null });
+      expect(await l.set('u1', 'B-1', 500, 'moisture at target', 'e1')).toBeNull();
+      await l.set('u2', null, 600, '', 'e2');
+      expect(await l.acknowledge('u1', 'dcs', 700)).toMatchObject({ reached: 1, event_id: 'e1' });
+      expect(await l.acknowledge('u1', 'dcs', 800)).toBeNull();
+      expect(await l.acknowledge('u9', 'dcs', 800)).toBeNull();
+      expect(await l.get('u1')).toMatchObject({ reached: 0, acknowledged_at: 700, acknowledged_by: 'dcs' });
+      expect((await l.all()).map((x) => [x.unit, x.reached])).toEqual([['u1', 0], ['u2', 1]]);
+      expect(await l.set('u1', 'B-2', 900, 'again', 'e3')).toMatchObject({ reached: 1, batch: 'B-2', acknowledged_at: null });
+    }));
+  });
+}
+
+/** What the model-life contract needs of a backend. */
+export type ModelLifeContractStorage = ContractStorage & Pick<Storage, 'modelLife' | 'commitIngest'>;
+
+export function modelLifeContract(name: string, backend: { open(): Promise<ModelLifeContractStorage> }): void {
+  const withStorage = (fn: (st: ModelLifeContractStorage) => Promise<void>) => async () => {
+    const st = await backend.open();
+    try {
+      await st.createUnit({ id: 'dryer-1', name: 'dryer-1', kind: 'dryer', description: '', createdAt: 0 });
+      await st.createAnalyzer({ id: 'nir-1', name: 'nir-1', createdAt: 0 });
+      await draftModel(st, 'v1');
+      await draftModel(st, 'v2');
+      await fn(st);
+    } finally {
+      await st.close();
+    }
+  };
+  const run = (id: string, over: Partial<ShadowRunRow> = {}): ShadowRunRow => ({
+    id, unit: 'dryer-1', modelVersion: 'v2', deployedVersion: 'v1', startedAt: 100, startedBy: 'mo', reason: 'compare', endedAt: null, endedBy: null, endReason: null, ...over,
+  });
+  /** A stored result: the contract only needs it to come back as written. */
+  const result = (seq: number, t2: number) => ({ seq, t: 1000 + seq, t2, q: 0.5, scores: [seq, -seq], conditionChanges: [] }) as unknown as MonitorResult;
+
+  describe(`storage contract (${name}): model life`, () => {
+    it('shadow runs: one listed per unit while active, ended once', withStorage(async (ml) => {
+      const s = ml.modelLife;
+      await s.insertRun(run('r1', { startedAt: 100 }));
+      expect(await s.getRun('r1')).toEqual(run('r1'));
+      expect((await s.activeRun('dryer-1'))?.id).toBe('r1');
+      expect(await s.endRun('r1', 200, 'mo', 'enough')).toBe(true);
+      expect(await s.endRun('r1', 300, 'mo', 'again')).toBe(false);
+      expect(await s.activeRun('dryer-1')).toBeNull();
+      await s.insertRun(run('r2', { startedAt: 400, modelVersion: 'v1', deployedVersion: null }));
+      expect((await s.listRuns({})).map((r) => r.id)).toEqual(['r2', 'r1']);
+      expect((await s.listRuns({ active: false })).map((r) => r.id)).toEqual(['r1']);
+      expect((await s.listRuns({ versionId: 'v1', unit: 'dryer-1' })).map((r) => r.id)).toEqual(['r2']);
+      expect(await s.getRun('r1')).toMatchObject({ endedAt: 200, endedBy: 'mo', endReason: 'enough' });
+      expect(await s.getRun('nope')).toBeNull();
+    }));
+
+    it('batches a run judged, its results and the deployed results, as the ingest commit wrote them', withStorage(async (st) => {
+      await st.modelLife.insertRun(run('r1'));
+      const w = emptyIngestWrite();
+      for (const [i, id] of ['B-2', 'B-1'].entries()) {
+        w.batchStarts.push({ id, unit: 'dryer-1', analyzer: 'nir-1', boot: 1, product: 'granule A', startSeq: i * 10, startT: 5000 - i * 1000, axis: new Float64Array([1100, 1102]), modelVersion: 'v1', createdAt: 0 });
+        w.shadowBatches!.push({ run: 'r1', batch: id });
+        for (let k = 0; k < 2; k++) {
+          w.spectra.push({ batch: id, idx: k, seq: i * 10 + k + 1, t: 1000 + k, values: new Float32Array([0.1, 0.2]), analyzer: 'nir-1', boot: 1, receivedAt: 0 });
+          w.results.push({ batch: id, idx: k, modelVersion: 'v1', result: result(i * 10 + k + 1, 1 + k) });
+          w.shadowResults!.push({ run: 'r1', batch: id, idx: k, result: result(i * 10 + k + 1, 2 + k) });
+        }
+      }
+      w.batchEnds.push({ batch: 'B-1', endSeq: 20, endT: 6000, endReason: null });
+      await st.commitIngest(w);
+      const s = st.modelLife;
+      expect(await s.batchCount('r1')).toBe(2);
+      expect(await s.runBatches('r1')).toEqual([
+        { id: 'B-1', startT: 4000, status: 'ended', modelVersion: 'v1' },
+        { id: 'B-2', startT: 5000, status: 'open', modelVersion: 'v1' },
+      ]);
+      expect(await s.shadowResults('r1', 'B-1')).toEqual([{ idx: 0, result: result(11, 2) }, { idx: 1, result: result(12, 3) }]);
+      expect((await s.results('B-1')).map((x) => [x.idx, x.result.t2])).toEqual([[0, 1], [1, 2]]);
+      expect(await s.batchesJudgedBy('v1')).toEqual([{ id: 'B-1', unit: 'dryer-1', startT: 4000 }]);
+      expect(await s.batchesJudgedBy('v2')).toEqual([]);
+    }));
+
+    it('periodic review: set, replaced, read back', withStorage(async (st) => {
+      expect(await st.modelLife.review('v1')).toBeNull();
+      await st.modelLife.setReview('v1', 365, 9000, 100, 'mo');
+      await st.modelLife.setReview('v1', 180, 7000, 200, 'qa');
+      expect(await st.modelLife.review('v1')).toEqual({ dueAt: 7000, intervalDays: 180 });
+    }));
+
+    it('promote in one unit of work: deploy + end the run + review; a failure leaves none of them', withStorage(async (st) => {
+      await st.approveModelVersion('v2', 'qa', 10, 'ok');
+      await st.modelLife.insertRun(run('r1'));
+      const d = { id: 'd1', unit: 'dryer-1', modelVersion: 'v2', deployedAt: 300, deployedBy: 'mo', reason: 'promote', endedAt: null };
+      await expect(
+        st.unitOfWork(async (u) => {
+          await u.models.deploy(d);
+          await u.modelLife!.endRun('r1', 300, 'mo', 'promoted');
+          await u.modelLife!.setReview('v2', 365, 9000, 300, 'mo');
+          throw new Error('injected failure');
+        }),
+      ).rejects.toThrow('injected failure');
+      expect(await st.activeDeployment('dryer-1')).toBeNull();
+      expect((await st.modelLife.activeRun('dryer-1'))?.id).toBe('r1');
+      expect(await st.modelLife.review('v2')).toBeNull();
+      await st.unitOfWork(async (u) => {
+        await u.models.deploy(d);
+        expect(await u.modelLife!.endRun('r1', 300, 'mo', 'promoted')).toBe(true);
+      });
+      expect((await st.activeDeployment('dryer-1'))?.modelVersion).toBe('v2');
+      expect(await st.modelLife.activeRun('dryer-1')).toBeNull();
     }));
   });
 }

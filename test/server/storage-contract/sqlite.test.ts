@@ -8,12 +8,14 @@ import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { describe, expect, it } from 'vitest';
 import { SqliteStorage } from '../../../server/storage/sqlite-storage.ts';
-import { authContract, storageContract } from './contract.ts';
+import { authContract, modelLifeContract, signalContract, storageContract } from './contract.ts';
 
 const open = async () => new SqliteStorage({ file: join(mkdtempSync(join(tmpdir(), 'tideline-contract-')), 'tideline.db'), checkpointInWorker: false });
 
 storageContract('SQLite', { open });
 authContract('SQLite', { open });
+signalContract('SQLite', { open });
+modelLifeContract('SQLite', { open });
 
 describe('SQLite units of work', () => {
   it('keeps the durable settings: WAL and synchronous=FULL', async () => {
