@@ -10,7 +10,6 @@ import type { AuditTrail } from './audit/types.ts';
 import type { ServerConfig } from './config.ts';
 import type { Metrics } from './metrics.ts';
 import type { Storage } from './storage/storage.ts';
-import type { SqliteStorage } from './storage/sqlite-storage.ts';
 import type { IngestPipeline } from './ingest/pipeline.ts';
 import type { LiveHub } from './live/live-hub.ts';
 import type { Logger } from './logger.ts';
@@ -25,12 +24,8 @@ import type { Logger } from './logger.ts';
  */
 export interface ServerContext {
   config: ServerConfig;
-  /**
-   * The storage. `db` (the SQLite connection) is still here for the two parts whose tables have
-   * not moved behind the seam yet: server/signals (outbox, channels, endpoint latch) and
-   * server/model-life (shadow runs); everything else uses the interface.
-   */
-  storage: Storage & { db: SqliteStorage['db'] };
+  /** The storage: every part reads and writes through its interface (server/storage/storage.ts). */
+  storage: Storage;
   app: Express;
   /** Express router mounted at /api. */
   api: import('express').Router;

@@ -8,7 +8,7 @@ import type { TransferModelRequest } from '../../core/api/rest.ts';
 import { parseMonitoringModel } from '../../core/model/monitoring-model.ts';
 import { ChainedAuditTrail } from '../audit/audit-trail.ts';
 import { ConfigError } from '../config.ts';
-import type { SqliteStorage } from '../storage/sqlite-storage.ts';
+import type { Storage } from '../storage/storage.ts';
 import { ModelRequestError } from './model-service.ts';
 import { transferBlockingWarning } from '../../core/calibration-transfer/transfer-model.ts';
 import { transferAuditAfter, transferVersion } from './transfer-service.ts';
@@ -37,7 +37,7 @@ function num(v: string | undefined, flag: string, int: boolean): number | undefi
 const pct = (v: number) => `${Number((v * 100).toPrecision(3))} %`;
 
 /** Exit code: 0 stored; 3 refused (nothing stored). Usage errors throw ConfigError (exit 2). */
-export async function runModelCli(positional: string[], flags: Record<string, string>, storage: SqliteStorage, out: (s: string) => void): Promise<number> {
+export async function runModelCli(positional: string[], flags: Record<string, string>, storage: Storage, out: (s: string) => void): Promise<number> {
   const [verb, ref] = positional;
   if (verb !== 'transfer' || !ref) throw new ConfigError(MODEL_USAGE);
   const method = flags.method;

@@ -5,6 +5,7 @@
  * is audited; an edited or deleted audit row makes verify fail at that row; oversized and
  * malformed requests are refused with clear errors; login throttling engages.
  */
+import { sqliteDb } from '../server/helpers.ts';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { mkdtempSync } from 'node:fs';
 import { tmpdir } from 'node:os';
@@ -259,7 +260,7 @@ describe('audit trail on the running server', () => {
     const v0 = await admin.req('GET', '/api/audit/verify');
     expect(v0.json.ok).toBe(true);
     expect(v0.json.count).toBeGreaterThan(10);
-    const db = srv.ctx.storage.db;
+    const db = sqliteDb(srv.ctx.storage);
     db.exec('DROP TRIGGER audit_trail_no_update; DROP TRIGGER audit_trail_no_delete;');
     db.prepare("UPDATE audit_trail SET user = 'mallory' WHERE seq = 5").run();
     const v1 = await admin.req('GET', '/api/audit/verify');

@@ -9,7 +9,7 @@ import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { afterAll, describe, expect, it } from 'vitest';
 import { parseAnalyzerText, IngestProtocolError } from '../../core/protocol/ingest-messages.ts';
-import { Peer, axis, login, spectrum, startTestServer, type TestServer } from './helpers.ts';
+import { Peer, axis, login, spectrum, startTestServer, type TestServer, sqliteDb } from './helpers.ts';
 import { createAnalyzerToken } from '../../server/ingest/analyzer-tokens.ts';
 
 const dir = mkdtempSync(join(tmpdir(), 'tideline-status-'));
@@ -83,7 +83,7 @@ describe('analyzer status on a live server', () => {
     expect(unit.activeAlarms).toBe(1);
 
     // outbox: two status events in the unit's sequence; alarm rows carry the suppression
-    const db = ts.server.ctx.storage.db;
+    const db = sqliteDb(ts.server.ctx.storage);
     const rows = db.prepare(`SELECT type, payload FROM outbox WHERE unit = 'dryer-1' ORDER BY unit_seq`).all() as { type: string; payload: string }[];
     const statuses = rows.filter((r) => r.type === 'analyzer-status').map((r) => JSON.parse(r.payload));
     expect(statuses.map((s) => [s.status, s.previous, s.batch])).toEqual([['function-check', null, 'st-1'], ['good', 'function-check', 'st-1']]);
@@ -108,7 +108,7 @@ describe('analyzer status on a live server', () => {
     const v2 = await login(ts, 'viewer');
     unit = (await v2.get('/api/units/dryer-1')).body;
     expect(unit.analyzerStatus).toMatchObject({ status: 'failure', code: 'E17', detail: 'lamp' });
-    const stored = ts.server.ctx.storage.db.prepare('SELECT seq, status FROM analyzer_status ORDER BY id').all();
+    const stored = sqliteDb(ts.server.ctx.storage).prepare('SELECT seq, status FROM analyzer_status ORDER BY id').all();
     expect(stored).toEqual([{ seq: 3, status: 'function-check' }, { seq: 4, status: 'good' }, { seq: 5, status: 'failure' }]);
   }, 120_000);
 });

@@ -13,7 +13,7 @@ import { connectClient, type TestClient } from '../signals/helpers/opcua-client.
 import { simulateDryerBatch, simulateReferenceSet, type SimulatedBatch } from '../../simulators/batch.ts';
 import { buildMonitoringModel, serializeMonitoringModel } from '../../core/model/monitoring-model.ts';
 import { installModel } from './model-fixture.ts';
-import { LivePeer, login, Peer, startTestServer, type TestServer } from './helpers.ts';
+import { LivePeer, login, Peer, startTestServer, type TestServer, sqliteDb } from './helpers.ts';
 import { mosquittoPath, startMosquitto, type Broker } from '../signals/helpers/mosquitto.ts';
 
 async function until(cond: () => boolean, what: string, ms = 30_000): Promise<void> {
@@ -95,7 +95,7 @@ describe.skipIf(!mosquittoPath)('endpoint guards through /ingest', () => {
   }
 
   function outbox(unit: string): Outbox[] {
-    const db = ts.server.ctx.storage.db as unknown as { prepare(s: string): { all(u: string): unknown[] } };
+    const db = sqliteDb(ts.server.ctx.storage);
     return db.prepare('SELECT unit_seq, type, payload FROM outbox WHERE unit = ? ORDER BY unit_seq').all(unit) as Outbox[];
   }
   const endpointEvents = (unit: string) => outbox(unit).filter((r) => r.type === 'endpoint-state').map((r) => JSON.parse(r.payload) as { from: string; to: string; reason: string; holds?: Hold[]; t: number });

@@ -16,7 +16,7 @@ import { afterAll, describe, expect, it } from 'vitest';
 import { simulateDryerBatch } from '../../simulators/batch.ts';
 import { loadConfig } from '../../server/config.ts';
 import { applyEvent, emptyUnitState, type UnitSignalState } from '../../server/signals/unit-state.ts';
-import { Peer, login, startTestServer, type Session, type TestServer } from './helpers.ts';
+import { Peer, login, startTestServer, type Session, type TestServer, sqliteDb } from './helpers.ts';
 import { buildSmallDryerModel, installModel } from './model-fixture.ts';
 
 const MODEL_KINDS = ['t2', 'q', 'combined', 'envelope', 'property'];
@@ -139,7 +139,7 @@ describe('function check beyond ingest.functionCheckMaxMs during a batch', () =>
     }
 
     // outbox (what OPC UA, MQTT and webhooks deliver): the overdue alarm row, then the releases
-    const rows = (ts.server.ctx.storage.db as import('better-sqlite3').Database)
+    const rows = sqliteDb(ts.server.ctx.storage)
       .prepare(`SELECT unit_seq, type, payload FROM outbox WHERE unit = 'dryer-1' ORDER BY unit_seq`)
       .all() as { unit_seq: number; type: string; payload: string }[];
     const alarmRows = rows.filter((r) => r.type === 'alarm').map((r) => ({ at: r.unit_seq, ...JSON.parse(r.payload).alarm }));
@@ -155,7 +155,7 @@ describe('function check beyond ingest.functionCheckMaxMs during a batch', () =>
     const cleared = (await alarmsOf(viewer, 'fc-1')).find((a) => a.id === overdue.id);
     expect(cleared).toMatchObject({ active: false, state: 'cleared-unacknowledged' });
     expect(cleared.message).toBe('function check of analyzer nir-1 over: analyzer nir-1 reports good');
-    const last = (ts.server.ctx.storage.db as import('better-sqlite3').Database)
+    const last = sqliteDb(ts.server.ctx.storage)
       .prepare(`SELECT payload FROM outbox WHERE unit = 'dryer-1' AND type = 'alarm' ORDER BY unit_seq DESC LIMIT 1`)
       .get() as { payload: string };
     expect(JSON.parse(last.payload).alarm).toMatchObject({ id: overdue.id, active: false, state: 'cleared-unacknowledged' });
@@ -164,7 +164,7 @@ describe('function check beyond ingest.functionCheckMaxMs during a batch', () =>
 
     // the unit state the signal channels publish (OPC UA AnalyzerStatus / AnalyzerFault, MQTT), fed
     // the unit's outbox in order: failure while the overdue alarm stands, the analyzer's report after
-    const outbox = (ts.server.ctx.storage.db as import('better-sqlite3').Database)
+    const outbox = sqliteDb(ts.server.ctx.storage)
       .prepare(`SELECT id, unit, unit_seq, type, payload, created_at FROM outbox WHERE unit = 'dryer-1' ORDER BY unit_seq`)
       .all() as { id: string; unit: string; unit_seq: number; type: string; payload: string; created_at: number }[];
     let sig: UnitSignalState = emptyUnitState('dryer-1', 0);
@@ -242,7 +242,7 @@ describe('function check beyond ingest.functionCheckMaxMs during a batch', () =>
     servers.splice(servers.indexOf(first.ts), 1);
     await first.ts.stop();
     const overdueRows = (ts: TestServer) =>
-      (ts.server.ctx.storage.db as import('better-sqlite3').Database)
+      sqliteDb(ts.server.ctx.storage)
         .prepare(`SELECT payload FROM outbox WHERE unit = 'dryer-1' AND type = 'alarm'`)
         .all()
         .map((r) => JSON.parse((r as { payload: string }).payload).alarm)

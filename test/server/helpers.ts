@@ -8,6 +8,9 @@ import { startServer, type TidelineServer } from '../../server/app.ts';
 import { createAnalyzerToken } from '../../server/ingest/analyzer-tokens.ts';
 import { encodeSpectrumFrame } from '../../core/protocol/binary-frame.ts';
 import type { Logger } from '../../server/logger.ts';
+import type Database from 'better-sqlite3';
+import { SqliteStorage } from '../../server/storage/sqlite-storage.ts';
+import type { Storage } from '../../server/storage/storage.ts';
 
 /** A logger that keeps every line (level and text) for the test to read. */
 export function capturingLogger(): Logger & { lines: { level: string; text: string }[] } {
@@ -205,4 +208,13 @@ export class LivePeer {
       await new Promise((r) => setTimeout(r, 10));
     }
   }
+}
+
+/**
+ * The SQLite connection under a server's storage, for tests that look at the stored rows
+ * themselves; refuses any other backend (the server's own code never reaches below the interface).
+ */
+export function sqliteDb(storage: Storage): Database.Database {
+  if (!(storage instanceof SqliteStorage)) throw new Error('these stored rows are read with SQL: the storage is not SQLite');
+  return storage.db;
 }

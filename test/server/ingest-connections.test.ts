@@ -6,7 +6,7 @@
  */
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import WebSocket from 'ws';
-import { LivePeer, Peer, axis, login, spectrum, startTestServer, type TestServer } from './helpers.ts';
+import { LivePeer, Peer, axis, login, spectrum, startTestServer, type TestServer, sqliteDb } from './helpers.ts';
 import { MAX_MESSAGE_BYTES, MAX_SPECTRUM_POINTS } from '../../core/protocol/ingest-messages.ts';
 
 let ts: TestServer;
@@ -129,7 +129,7 @@ describe('takeover by a newer connection of the same analyzer', () => {
     expect(neu.messages.filter((m) => m.type === 'error')).toEqual([]);
     const rows = await ts.server.ctx.storage.readSpectra('B-take', 0, 1000, 1000);
     expect(rows.map((r) => r.seq)).toEqual(Array.from({ length: 300 }, (_, i) => i + 1));
-    const rejected = ts.server.ctx.storage.db.prepare('SELECT COUNT(*) AS n FROM rejected_entries WHERE analyzer = ? AND boot = ?').get('nir-1', 13) as { n: number };
+    const rejected = sqliteDb(ts.server.ctx.storage).prepare('SELECT COUNT(*) AS n FROM rejected_entries WHERE analyzer = ? AND boot = ?').get('nir-1', 13) as { n: number };
     expect(rejected.n).toBe(0);
   });
 });

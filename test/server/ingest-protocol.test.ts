@@ -1,6 +1,6 @@
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import WebSocket from 'ws';
-import { Peer, axis, spectrum, startTestServer, type TestServer } from './helpers.ts';
+import { Peer, axis, spectrum, startTestServer, type TestServer, sqliteDb } from './helpers.ts';
 import { MAX_MESSAGE_BYTES, encodeSpectrumJson } from '../../core/protocol/ingest-messages.ts';
 import { encodeSpectrumFrame } from '../../core/protocol/binary-frame.ts';
 
@@ -133,7 +133,7 @@ describe('ingest: bad input names the problem; the connection and the server go 
     const rows = await ts.server.ctx.storage.readSpectra('B-bad', 0, 100, 100);
     expect(rows.map((r) => r.seq)).toEqual([6, 11]);
     // Refused entries are kept for the record.
-    const rej = ts.server.ctx.storage.db.prepare('SELECT seq, code FROM rejected_entries WHERE analyzer = ? AND boot = ? ORDER BY seq').all('nir-1', b);
+    const rej = sqliteDb(ts.server.ctx.storage).prepare('SELECT seq, code FROM rejected_entries WHERE analyzer = ? AND boot = ? ORDER BY seq').all('nir-1', b);
     expect(rej.map((r: any) => r.code)).toEqual(['unknown-unit', 'no-open-batch', 'wrong-length', 'bad-message', 'non-finite', 'time-backwards', 'wrong-length', 'batch-mismatch', 'batch-already-open']);
     p.close();
   });

@@ -8,7 +8,7 @@ import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { encodeSpectrumFrame } from '../../core/protocol/binary-frame.ts';
-import { Peer, axis, capturingLogger, spectrum, startTestServer, type TestServer } from './helpers.ts';
+import { Peer, axis, capturingLogger, spectrum, startTestServer, type TestServer, sqliteDb } from './helpers.ts';
 
 const AX = axis(32);
 const T0 = Date.now() - 3_600_000;
@@ -88,7 +88,7 @@ describe('an invalid seq never moves the stream position', () => {
     p.sendFrame(1, T0 + 1000, spectrum(32, 1));
     await p.waitAck(1);
     expect((await ts.server.ctx.storage.readSpectra(`B-pos-${b}`, 0, 100, 100)).map((r) => r.seq)).toEqual([1]);
-    const rejected = ts.server.ctx.storage.db.prepare('SELECT COUNT(*) AS n FROM rejected_entries WHERE analyzer = ? AND boot = ?').get('nir-1', b) as { n: number };
+    const rejected = sqliteDb(ts.server.ctx.storage).prepare('SELECT COUNT(*) AS n FROM rejected_entries WHERE analyzer = ? AND boot = ?').get('nir-1', b) as { n: number };
     expect(rejected.n).toBe(0);
     p.send({ type: 'batch-end', seq: 2, t: T0 + 2000, batch: `B-pos-${b}` });
     await p.waitAck(2);

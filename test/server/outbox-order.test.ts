@@ -9,7 +9,7 @@
 import { createServer, type Server } from 'node:http';
 import type { AddressInfo } from 'node:net';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { axis, login, Peer, startTestServer, type TestServer } from './helpers.ts';
+import { axis, login, Peer, startTestServer, type TestServer, sqliteDb } from './helpers.ts';
 
 let receiver: Server;
 let ts: TestServer;
@@ -53,7 +53,7 @@ describe('outbox rows of a unit', () => {
     // row 1: the analyzer's failure alarm (committed and acked)
     p.send({ type: 'analyzer-status', seq: 0, t: t0, status: 'failure', code: 'lamp', unit: 'dryer-1' });
     await p.waitAck(0);
-    const before = () => ts.server.ctx.storage.db.prepare('SELECT COUNT(*) AS n FROM outbox').get() as { n: number };
+    const before = () => sqliteDb(ts.server.ctx.storage).prepare('SELECT COUNT(*) AS n FROM outbox').get() as { n: number };
     const n0 = before().n; // the status change and the failure alarm
     expect(n0).toBeGreaterThanOrEqual(2);
     await until(() => got.length === n0, 'the rows so far delivered');
@@ -72,7 +72,7 @@ describe('outbox rows of a unit', () => {
     expect(ack.status).toBe(200);
     ts.server.ctx.config.ingest.groupCommitMs = 2;
     await p.waitAck(1);
-    const stored = (ts.server.ctx.storage.db.prepare('SELECT unit_seq, type FROM outbox WHERE unit = ? ORDER BY unit_seq').all('dryer-1') as { unit_seq: number; type: string }[]).map((r) => [r.unit_seq, r.type]);
+    const stored = (sqliteDb(ts.server.ctx.storage).prepare('SELECT unit_seq, type FROM outbox WHERE unit = ? ORDER BY unit_seq').all('dryer-1') as { unit_seq: number; type: string }[]).map((r) => [r.unit_seq, r.type]);
     expect(stored.map(([seq]) => seq)).toEqual(Array.from({ length: stored.length }, (_, i) => i + 1));
     expect(stored.slice(n0)).toEqual([
       [n0 + 1, 'batch-start'],

@@ -1,6 +1,6 @@
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { simulateReferenceSet, simulateDryerBatch } from '../../simulators/batch.ts';
-import { Peer, login, startTestServer, type Session, type TestServer } from './helpers.ts';
+import { Peer, login, startTestServer, type Session, type TestServer, sqliteDb } from './helpers.ts';
 import { execFileSync } from 'node:child_process';
 import { parseMonitoringModel } from '../../core/model/monitoring-model.ts';
 import { createBatchMonitor } from '../../core/monitor/batch-monitor.ts';
@@ -241,7 +241,7 @@ describe('REST: alarms — stale data, acknowledge, shelve', () => {
     expect(alarm.message).toMatch(/no data from analyzer nir-1/);
     expect((await viewer.get('/api/units/dryer-1')).body.status).toBe('stale');
     // The alarm change went into the outbox for the signal channels.
-    const rows = ts.server.ctx.storage.db.prepare(`SELECT type, payload FROM outbox WHERE unit = 'dryer-1' AND type = 'alarm'`).all() as { payload: string }[];
+    const rows = sqliteDb(ts.server.ctx.storage).prepare(`SELECT type, payload FROM outbox WHERE unit = 'dryer-1' AND type = 'alarm'`).all() as { payload: string }[];
     expect(rows.some((r) => JSON.parse(r.payload).alarm.id === alarm.id)).toBe(true);
     const operator = await login(ts, 'operator');
     let r = await viewer.post(`/api/alarms/${alarm.id}/acknowledge`, {});

@@ -6,7 +6,7 @@
  */
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { simulateDryerBatch } from '../../simulators/batch.ts';
-import { Peer, login, startTestServer, type Session, type TestServer } from './helpers.ts';
+import { Peer, login, startTestServer, type Session, type TestServer, sqliteDb } from './helpers.ts';
 import { buildSmallDryerModel, installModel } from './model-fixture.ts';
 
 let ts: TestServer;
@@ -55,7 +55,7 @@ describe('suppression by state with a model', () => {
 
     // outbox: the monitor's raw 'condition' rows carry the suppression by state of their moment, as the
     // 'alarm' rows do — function-check between the two analyzer-status rows, none before and after
-    const rows = (ts.server.ctx.storage.db as import('better-sqlite3').Database)
+    const rows = sqliteDb(ts.server.ctx.storage)
       .prepare(`SELECT unit_seq, type, payload FROM outbox WHERE unit = 'dryer-1' ORDER BY unit_seq`)
       .all() as { unit_seq: number; type: string; payload: string }[];
     const statusAt = rows.filter((r) => r.type === 'analyzer-status').map((r) => [r.unit_seq, JSON.parse(r.payload).status]);

@@ -11,7 +11,7 @@ import { join } from 'node:path';
 import { DataType, type DataValue, type NodeId } from 'node-opcua';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { simulateDryerBatch } from '../../simulators/batch.ts';
-import { login, Peer, startTestServer, type TestServer } from '../server/helpers.ts';
+import { login, Peer, startTestServer, type TestServer, sqliteDb } from '../server/helpers.ts';
 import { connectClient, type TestClient } from './helpers/opcua-client.ts';
 
 const U = 'dryer-1';
@@ -101,7 +101,7 @@ describe.skipIf(!haveMonitor)('OPC UA with the full server and a simulated dryer
     const after = await admin.get(`/api/batches/${batch.id}/endpoint-events`);
     expect((after.body.items as { to: string }[]).map((e) => e.to)).toContain('signalled');
     // ... and tells every channel so through the outbox, after 'done' in the unit's sequence.
-    const rows = (ts.server.ctx.storage.db as import('better-sqlite3').Database)
+    const rows = sqliteDb(ts.server.ctx.storage)
       .prepare("SELECT unit_seq, payload FROM outbox WHERE type = 'endpoint-state' ORDER BY unit_seq").all() as { unit_seq: number; payload: string }[];
     const tos = rows.map((r) => (JSON.parse(r.payload) as { to: string }).to);
     expect(tos.indexOf('signalled')).toBeGreaterThan(tos.indexOf('done'));

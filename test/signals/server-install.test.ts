@@ -7,7 +7,7 @@ import { createServer, type Server } from 'node:http';
 import type { AddressInfo } from 'node:net';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { verifySignature } from '../../server/signals/webhook-signature.ts';
-import { axis, login, Peer, spectrum, startTestServer, type TestServer } from '../server/helpers.ts';
+import { axis, login, Peer, spectrum, startTestServer, type TestServer, sqliteDb } from '../server/helpers.ts';
 
 const SECRET = 'server-install-secret-0123456789';
 
@@ -111,7 +111,7 @@ describe('signals installed in the server', () => {
     expect(got).toHaveLength(0);
 
     down = false;
-    const db = ts.server.ctx.storage.db as unknown as { prepare(s: string): { all(): unknown[] } };
+    const db = sqliteDb(ts.server.ctx.storage);
     const rows = db.prepare("SELECT id, unit_seq, type FROM outbox WHERE unit = 'dryer-1' AND unit_seq > 2 ORDER BY unit_seq").all() as { id: string; unit_seq: number; type: string }[];
     expect(rows.map((r) => r.type)).toContain('endpoint-state');
     await until(() => new Set(got.map((g) => g.id)).size >= rows.length, 'every event after the receiver came back');

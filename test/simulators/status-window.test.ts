@@ -5,7 +5,7 @@
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { simulateDryerBatch } from '../../simulators/dryer.ts';
 import { AnalyzerClient, parseStatusWindow } from '../../simulators/stream-client.ts';
-import { startTestServer, type TestServer } from '../server/helpers.ts';
+import { startTestServer, type TestServer, sqliteDb } from '../server/helpers.ts';
 
 let ts: TestServer;
 beforeAll(async () => {
@@ -31,7 +31,7 @@ describe('status windows', () => {
     await c.sendBatch(batch, { speed: 0, statusWindows: [parseStatusWindow('function-check@10-15:probe-cleaning')] });
     await c.close();
     expect(c.stats().errors).toEqual([]);
-    const db = ts.server.ctx.storage.db;
+    const db = sqliteDb(ts.server.ctx.storage);
     const rows = db.prepare('SELECT status, code, unit, t FROM analyzer_status ORDER BY id').all() as { status: string; code: string | null; unit: string; t: number }[];
     expect(rows.map((r) => [r.status, r.code, r.unit])).toEqual([['function-check', 'probe-cleaning', 'dryer-1'], ['good', null, 'dryer-1']]);
     const b = await ts.server.ctx.storage.getBatch('SIM-STATUS-1');
