@@ -34,8 +34,10 @@ export type ConditionKind = (typeof CONDITION_KINDS)[number];
 /**
  * Alarm kinds known to the whole system: the monitor's conditions plus server-side ones.
  * 'model-health': a test of the deployed version's health failed (docs/model-life.md); low priority, unit-level.
+ * 'signal': a signal channel went on past a hole in the unit's outbox sequence, so an event for the
+ * control system may have been lost (docs/signals.md); unit-level.
  */
-export type AlarmKind = ConditionKind | 'stale' | 'analyzer' | 'model-health';
+export type AlarmKind = ConditionKind | 'stale' | 'analyzer' | 'model-health' | 'signal';
 
 /** ISA-18.2 alarm states; shelving is a separate flag with an expiry. */
 export const ALARM_STATES = ['normal', 'active-unacknowledged', 'active-acknowledged', 'cleared-unacknowledged'] as const;

@@ -55,6 +55,7 @@ export const ALARM_KIND_NAMES: Readonly<Record<string, string>> = {
   analyzer: 'analyzer',
   'model-mismatch': 'model does not fit the analyzer',
   suspect: 'repeated suspect scans',
+  signal: 'signal may be lost',
 };
 
 /** Alarm keys that are not per PC: code → name. */

@@ -623,6 +623,28 @@ export class IngestPipeline {
     await this.flush();
   }
 
+  /**
+   * A signal channel went on past missing outbox rows `from`…`to` of a unit after waiting `waitedMs`
+   * (server/signals/dispatcher.ts): an event for the control system may never have reached it. An
+   * alarm on the unit (kind `signal`, key `signal-gap:<channel>`, priority 1, never suppressed) goes
+   * through the usual life cycle: raised and, the channel having gone on, returned at once — it
+   * stands cleared-unacknowledged until an operator acknowledges it. Resolves once it is durable.
+   */
+  async signalGap(channel: string, unit: string, from: number, to: number, waitedMs: number): Promise<void> {
+    if (!this.units.has(unit)) await this.refreshUnits();
+    const n = to - from + 1;
+    const what = n === 1 ? `outbox event #${from}` : `${n} outbox events #${from}–${to}`;
+    const message =
+      `signal channel ${channel} found no ${what} of unit ${unit} after waiting ${(waitedMs / 1000).toFixed(1)} s and went on past the gap: ` +
+      'a signal to the control system (an alarm change, an endpoint state or a batch event) may have been lost; compare with what the receiver got, and look for a failed commit in the server log';
+    const now = this.now();
+    const c = { kind: 'signal' as const, key: `${SIGNAL_GAP}:${channel}`, priority: 1 as const, value: n, limit: 0, message };
+    this.applyCondition(unit, null, { ...c, active: true }, null, now);
+    this.applyCondition(unit, null, { ...c, active: false }, null, now);
+    this.post.events.push(['unit-changed', unit]);
+    await this.flush();
+  }
+
   /** Active shadow run of a unit. */
   shadowRun(unit: string): { id: string; versionId: string } | null {
     return this.shadowRuns.get(unit) ?? null;
@@ -1401,6 +1423,9 @@ export const ANALYZER_FAILURE = 'analyzer-failure';
 
 /** Key of the unit alarm raised when a batch-start is refused because the deployed model cannot judge the batch. */
 export const MODEL_MISMATCH = 'model-mismatch';
+
+/** Key prefix of the unit alarm raised when a signal channel goes past a hole in the unit's outbox seq (signal-gap:<channel>). */
+export const SIGNAL_GAP = 'signal-gap';
 
 /** Key of the model-health alarm of a unit (one per unit: the health of the version deployed there). */
 export const MODEL_HEALTH = 'model-health';

@@ -89,6 +89,8 @@ export async function install(ctx: ServerContext): Promise<SignalsHandle> {
         onGap: (channel, unit, from, to, waitedMs) => {
           ctx.metrics.signalGaps.inc({ channel });
           ctx.log.error(`signals/${channel}: unit ${unit} has no outbox row${from === to ? ` #${from}` : `s #${from}–${to}`} after ${(waitedMs / 1000).toFixed(1)} s; delivery goes on past the gap — those events were never committed (look for a failed commit in this log)`);
+          // and an alarm on the unit, so that the operator sees a signal may have been lost
+          void ctx.ingest.signalGap(channel, unit, from, to, waitedMs).catch((err: unknown) => ctx.log.error(`raising the signal-gap alarm of unit ${unit} failed`, err));
         },
         onError: (channel, e, err, attempts, dead) => {
           const text = `signals/${channel}: event ${e.id} (${e.unit} #${e.seq}) attempt ${attempts} failed: ${err.message}${dead ? ' — dead-lettered' : ''}`;
