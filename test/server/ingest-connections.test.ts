@@ -4,15 +4,18 @@
  * an oversized message gets an error frame, the message rate holds within any second, a takeover by
  * a newer connection refuses nothing already stored, and /live refuses a foreign Origin.
  */
+import { readFileSync } from 'node:fs';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import WebSocket from 'ws';
+import { loadConfig } from '../../server/config.ts';
+import { createAnalyzerToken } from '../../server/ingest/analyzer-tokens.ts';
 import { LivePeer, Peer, axis, login, spectrum, startTestServer, type TestServer, sqliteDb } from './helpers.ts';
 import { MAX_MESSAGE_BYTES, MAX_SPECTRUM_POINTS } from '../../core/protocol/ingest-messages.ts';
 
 let ts: TestServer;
 
 beforeAll(async () => {
-  ts = await startTestServer({ ingest: { heartbeatMs: 300, maxMessagesPerSecond: 500, maxErrorsPer10s: 100_000 } }, { units: ['u1', 'u2', 'u3'] });
+  ts = await startTestServer({ ingest: { heartbeatMs: 300, maxMessagesPerSecond: 500, maxErrorsPer10s: 100_000 } }, { units: ['u1', 'u2', 'u3', 'u4', 'u5'] });
 });
 afterAll(async () => {
   await ts?.stop();
@@ -132,6 +135,74 @@ describe('takeover by a newer connection of the same analyzer', () => {
     const rejected = sqliteDb(ts.server.ctx.storage).prepare('SELECT COUNT(*) AS n FROM rejected_entries WHERE analyzer = ? AND boot = ?').get('nir-1', 13) as { n: number };
     expect(rejected.n).toBe(0);
   });
+});
+
+describe('message rate of a streaming analyzer', () => {
+  it('the documented default is the one the server runs with: 20,000 messages within any second', () => {
+    expect(loadConfig({ overrides: { dataDir: '/nonexistent' } }).ingest.maxMessagesPerSecond).toBe(20_000);
+    const doc = readFileSync(new URL('../../docs/protocol.md', import.meta.url), 'utf8');
+    expect(doc).toMatch(/at most 20,000 messages within any second\s+per connection \(`ingest\.maxMessagesPerSecond`/);
+  });
+
+  it('a burst of real spectra above the limit: rate-limited and closed (1008); every acked spectrum stored once, the rest resent; another analyzer never notices', async () => {
+    // Driven by count: the limit here is 500 messages within any second; after hello and batch-start
+    // the analyzer sends 750 spectra in one burst, which the server reads within far less than a
+    // second, so the limit is met inside the burst whatever the machine's speed.
+    const L = 500;
+    const N = 750;
+    const tokenB = await createAnalyzerToken(ts.server.ctx.storage, 'nir-calm', Date.now());
+    const b = new Peer(ts.wsUrl, tokenB);
+    await b.open();
+    await b.hello('nir-calm', 1, axis(16));
+    const t0 = Date.now() - 3_600_000;
+    b.send({ type: 'batch-start', seq: 0, t: t0, unit: 'u5', batch: 'B-calm', product: 'p' });
+    for (let k = 1; k <= 20; k++) b.sendFrame(k, t0 + k * 1000, spectrum(16, k));
+    await b.waitAck(20);
+
+    const a = new Peer(ts.wsUrl, ts.token);
+    await a.open();
+    expect((await a.hello('nir-1', 14, axis(16))).type).toBe('welcome');
+    a.send({ type: 'batch-start', seq: 0, t: t0, unit: 'u4', batch: 'B-fast', product: 'p' });
+    await a.waitAck(0);
+    for (let k = 1; k <= N; k++) a.sendFrame(k, t0 + k * 1000, spectrum(16, k));
+    for (let k = 21; k <= 40; k++) b.sendFrame(k, t0 + k * 1000, spectrum(16, k));
+    const e = await a.waitError('rate-limited');
+    expect(e.message).toBe(`more than ${L} messages per second`);
+    expect(e.seq).toBeUndefined();
+    const c = await a.waitClose();
+    expect(c.code).toBe(1008);
+    expect(c.reason).toBe(`more than ${L} messages per second`);
+    const ackedBefore = Math.max(-1, ...a.messages.filter((m) => m.type === 'ack').map((m) => m.seq as number));
+
+    // Nothing acked is lost: the new connection resumes after what is stored, which covers every ack.
+    const a2 = new Peer(ts.wsUrl, ts.token);
+    await a2.open();
+    const w = await a2.hello('nir-1', 14, axis(16));
+    expect(w.type).toBe('welcome');
+    const r = w.resumeAfter as number;
+    expect(r).toBeGreaterThanOrEqual(ackedBefore);
+    // the limit cut the burst: every spectrum before the first one over it was taken (L − 2 of them
+    // when hello and batch-start are still in the window, up to L when they are not), none after
+    expect(r).toBeGreaterThanOrEqual(L - 2);
+    expect(r).toBeLessThanOrEqual(L);
+    expect((await ts.server.ctx.storage.readSpectra('B-fast', 0, 1e15, 10_000)).map((x) => x.seq)).toEqual(Array.from({ length: r }, (_, i) => i + 1));
+    for (let k = r + 1; k <= N; k++) a2.sendFrame(k, t0 + k * 1000, spectrum(16, k));
+    a2.send({ type: 'batch-end', seq: N + 1, t: t0 + (N + 1) * 1000, batch: 'B-fast' });
+    await a2.waitAck(N + 1);
+    expect(a2.messages.filter((m) => m.type === 'error')).toEqual([]);
+    expect((await ts.server.ctx.storage.readSpectra('B-fast', 0, 1e15, 10_000)).map((x) => x.seq)).toEqual(Array.from({ length: N }, (_, i) => i + 1));
+    expect(sqliteDb(ts.server.ctx.storage).prepare('SELECT COUNT(*) AS n FROM rejected_entries WHERE analyzer = ? AND boot = ?').get('nir-1', 14)).toEqual({ n: 0 });
+
+    // the other analyzer went on throughout
+    await b.waitAck(40);
+    for (let k = 41; k <= 60; k++) b.sendFrame(k, t0 + k * 1000, spectrum(16, k));
+    await b.waitAck(60);
+    expect(b.closed).toBeNull();
+    expect(b.messages.filter((m) => m.type === 'error')).toEqual([]);
+    expect((await ts.server.ctx.storage.readSpectra('B-calm', 0, 1e15, 1000)).map((x) => x.seq)).toEqual(Array.from({ length: 60 }, (_, i) => i + 1));
+    a2.close();
+    b.close();
+  }, 60_000);
 });
 
 describe('/live and the Origin header', () => {
