@@ -4,7 +4,9 @@
  * and model tables they work on (units, analyzers and their core tokens, model versions,
  * deployments). It passes the storage contract suite (test/server/storage-contract/) as SQLite does.
  *
- * Not yet here: ingest (batches, spectra, results, alarms, endpoint events, outbox), lab values,
+ * Batches and spectra have their tables and a store (pg-spectra.ts, spectra partitioned by month),
+ * not yet wired to the Storage interface. Not yet here: the ingest commit (results, alarms, endpoint
+ * events, outbox, batch progress), lab values,
  * shadow runs and the stores still outside the seam. The server therefore refuses a PostgreSQL URL at
  * start (server/storage/postgres/backend.ts) rather than run half on one database and half on another.
  *
@@ -18,6 +20,7 @@ import type { AnalyzerTokenRepository, LoginFailureRepository, ModelApprovalRepo
 import { StorageOpenError } from '../open-check.ts';
 import { PgAuditRepository } from './pg-audit.ts';
 import { PgSignatureRepository, pgAuthRepositories } from './pg-auth.ts';
+import { PgSpectra } from './pg-spectra.ts';
 import { migratePg, redactUrl } from './pg-migrate.ts';
 import { PG_TYPES, type Q } from './pg-types.ts';
 
@@ -125,6 +128,8 @@ export class PgStorage implements PgStorageParts {
   readonly sessions: SessionRepository;
   readonly loginFailures: LoginFailureRepository;
   readonly analyzerTokens: AnalyzerTokenRepository;
+  /** Batches and spectra (partitioned by month); not used by the server yet. */
+  readonly spectra: PgSpectra;
   private readonly models: ModelApprovalRepository;
   /** The tail of this process's queue of units of work (they run one after another, as on SQLite). */
   private uowTail: Promise<unknown> = Promise.resolve();
@@ -143,6 +148,7 @@ export class PgStorage implements PgStorageParts {
     this.loginFailures = auth.loginFailures;
     this.analyzerTokens = auth.analyzerTokens;
     this.models = modelApprovals(sql);
+    this.spectra = new PgSpectra(sql);
   }
 
   /** Connects, checks the durability setting and the schema, applies pending migrations. */
@@ -150,7 +156,7 @@ export class PgStorage implements PgStorageParts {
     const where = redactUrl(opts.url);
     const tsa = sessionAttrs(opts.url);
     const url = opts.url.replace(/([?&])target_session_attrs=[^&]*&?/, '$1').replace(/[?&]$/, '');
-    const sql = postgres(url, {
+    const sql: postgres.Sql<any> = postgres(url, {
       max: opts.max ?? 10,
       connect_timeout: opts.connectTimeoutS ?? 10,
       types: PG_TYPES,
@@ -167,6 +173,7 @@ export class PgStorage implements PgStorageParts {
         );
       }
       await migratePg(sql, where);
+      await new PgSpectra(sql).ensureCurrentPartitions();
     } catch (e) {
       await sql.end({ timeout: 1 }).catch(() => undefined);
       if (e instanceof StorageOpenError) throw e;

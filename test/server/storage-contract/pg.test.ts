@@ -86,10 +86,10 @@ describe.skipIf(!installed)('PostgreSQL storage', () => {
       await a.createUnit({ id: 'dryer-1', name: 'Dryer 1', kind: 'dryer', description: '', createdAt: 1 });
       expect((await a.sql`SELECT current_setting('synchronous_commit') AS s`)[0]!.s).toBe('on');
       const applied = (await a.sql`SELECT name FROM schema_migrations ORDER BY number`).map((r) => r.name);
-      expect(applied).toEqual(['001-core.sql', '200-audit-trail.sql', '201-auth.sql']);
+      expect(applied).toEqual(['001-core.sql', '002-spectra.sql', '200-audit-trail.sql', '201-auth.sql']);
       await a.close();
       const b = await PgStorage.open({ url: cluster.url(db) });
-      expect((await b.sql`SELECT count(*)::int AS n FROM schema_migrations`)[0]!.n).toBe(3);
+      expect((await b.sql`SELECT count(*)::int AS n FROM schema_migrations`)[0]!.n).toBe(4);
       expect(await b.getUnit('dryer-1')).toMatchObject({ name: 'Dryer 1', kind: 'dryer' });
       await b.close();
     });
@@ -134,6 +134,103 @@ describe.skipIf(!installed)('PostgreSQL storage', () => {
       expect(e).toBeInstanceOf(Error);
       expect((e as Error).message).toMatch(/cannot open PostgreSQL database postgres:\/\/tideline:\*\*\*@127\.0\.0\.1/);
       expect((e as Error).message).not.toContain('s3cret');
+    });
+  });
+
+  describe('PostgreSQL: spectra, partitioned by the month of their batch', () => {
+    const JAN = Date.UTC(2026, 0, 20, 8);
+    const FEB = Date.UTC(2026, 1, 3, 6);
+    const bits = (a: Float32Array) => Array.from(new Uint32Array(a.buffer, a.byteOffset, a.length));
+    /** Values a float32 must keep bit for bit: -0, the smallest subnormal, the largest finite, a NaN payload. */
+    const odd = new Float32Array(new Uint32Array([0x80000000, 0x00000001, 0x7f7fffff, 0x7fc00abc, 0x3f800000]).buffer);
+    const axis = Float64Array.from({ length: 5 }, (_, i) => 1100 + i * 2);
+
+    async function plant(st: PgStorage): Promise<void> {
+      await st.createUnit({ id: 'dryer-1', name: 'Dryer 1', kind: 'dryer', description: '', createdAt: 1 });
+      await st.createAnalyzer({ id: 'nir-1', name: 'nir-1', createdAt: 1 });
+      for (const [id, t, seq] of [['b-jan', JAN, 0], ['b-feb', FEB, 100]] as const) {
+        await st.spectra.ensurePartition(t);
+        await st.sql.begin(async (tx) => {
+          await st.spectra.insertBatch(tx, { id, unit: 'dryer-1', analyzer: 'nir-1', boot: 1, product: 'granule A', startSeq: seq, startT: t, axis, modelVersion: null, createdAt: t });
+          await st.spectra.insertSpectra(tx, [0, 1, 2].map((i) => ({
+            batch: id, idx: i, analyzer: 'nir-1', boot: 1, seq: seq + 1 + i, t: t + i * 10_000, values: i === 1 ? odd : Float32Array.from([i, 0.1, 0.2, 0.3, 0.4]), receivedAt: t + i * 10_000 + 5,
+          })));
+        });
+      }
+    }
+
+    it('read back bit for bit, each batch from its own month partition', async () => {
+      const st = await open();
+      try {
+        await plant(st);
+        const parts = (await st.sql`SELECT c.relname AS p FROM pg_inherits i JOIN pg_class c ON c.oid = i.inhrelid WHERE i.inhparent = 'spectra'::regclass ORDER BY 1`).map((r) => r.p);
+        expect(parts).toEqual(expect.arrayContaining(['spectra_2026_01', 'spectra_2026_02']));
+        expect((await st.sql`SELECT count(*)::int AS n FROM spectra_2026_01`)[0]!.n).toBe(3);
+        expect((await st.sql`SELECT count(*)::int AS n FROM spectra_2026_02`)[0]!.n).toBe(3);
+        const jan = await st.spectra.readSpectra('b-jan', 0, 99, 10);
+        expect(jan.map((r) => [r.idx, r.seq, r.t])).toEqual([[0, 1, JAN], [1, 2, JAN + 10_000], [2, 3, JAN + 20_000]]);
+        expect(bits(jan[1]!.values)).toEqual(bits(odd));
+        const paged = [];
+        for await (const r of st.spectra.iterateSpectra('b-feb', 2)) paged.push(r.seq);
+        expect(paged).toEqual([101, 102, 103]);
+        expect(bits((await st.spectra.getSpectrumBySeq('b-feb', 102))!.values)).toEqual(bits(odd));
+        expect(Array.from(await st.spectra.spectrumTimes('b-jan'))).toEqual([JAN, JAN + 10_000, JAN + 20_000]);
+        expect(bits((await st.spectra.atPosition('nir-1', 1, 2))!.values)).toEqual(bits(odd));
+        expect(await st.spectra.atPosition('nir-1', 1, 99)).toBeNull();
+        // Reading January's batch leaves February's partition unscanned (run-time partition pruning).
+        const plan = (await st.sql.unsafe(`EXPLAIN (ANALYZE, COSTS OFF, TIMING OFF, SUMMARY OFF) SELECT * FROM spectra WHERE batch_t = (SELECT start_t FROM batches WHERE id = 'b-jan') AND batch = 'b-jan'`))
+          .map((r) => r['QUERY PLAN'] as string).join('\n');
+        expect(plan).toMatch(/spectra_2026_02.*\(never executed\)/);
+        expect(plan).not.toMatch(/spectra_2026_01.*\(never executed\)/);
+      } finally {
+        await st.close();
+      }
+    });
+
+    it('a stream position or a batch index stored twice is refused, and nothing of that commit is kept', async () => {
+      const st = await open();
+      try {
+        await plant(st);
+        const again = (over: Partial<{ batch: string; idx: number; seq: number }>) =>
+          st.sql.begin((tx) => st.spectra.insertSpectra(tx, [{ batch: 'b-feb', idx: 3, analyzer: 'nir-1', boot: 1, seq: 104, t: FEB + 30_000, values: odd, receivedAt: FEB, ...over }]));
+        await expect(again({ seq: 2 })).rejects.toThrow(/spectrum_keys_pkey/); // seq 2 is in January's batch, another partition
+        await expect(again({ idx: 0 })).rejects.toThrow(/duplicate key/);
+        expect((await st.sql`SELECT count(*)::int AS n FROM spectra`)[0]!.n).toBe(6);
+        expect((await st.sql`SELECT count(*)::int AS n FROM spectrum_keys`)[0]!.n).toBe(6);
+        // A batch whose month has no partition: its spectra are refused, not put elsewhere.
+        const MAR_2030 = Date.UTC(2030, 2, 1);
+        await expect(st.sql.begin(async (tx) => {
+          await st.spectra.insertBatch(tx, { id: 'b-late', unit: 'dryer-1', analyzer: 'nir-1', boot: 2, product: 'granule A', startSeq: 0, startT: MAR_2030, axis, modelVersion: null, createdAt: 0 });
+          await st.spectra.insertSpectra(tx, [{ batch: 'b-late', idx: 0, analyzer: 'nir-1', boot: 2, seq: 1, t: MAR_2030, values: odd, receivedAt: 0 }]);
+        })).rejects.toThrow(/no partition of relation "spectra" found/);
+        expect((await st.sql`SELECT count(*)::int AS n FROM batches`)[0]!.n).toBe(2);
+      } finally {
+        await st.close();
+      }
+    });
+
+    it('spectra are never changed or deleted: UPDATE, DELETE, TRUNCATE, DROP and DETACH of a partition are refused', async () => {
+      const st = await open();
+      try {
+        await plant(st);
+        const refused: [string, RegExp][] = [
+          [`UPDATE spectra SET t = 0`, /stored spectra are the record and are never changed or deleted: UPDATE refused/],
+          [`UPDATE spectra_2026_01 SET vals = '\\x00'`, /never changed or deleted: UPDATE refused/],
+          [`DELETE FROM spectra`, /never changed or deleted: DELETE refused/],
+          [`DELETE FROM spectra_2026_02`, /never changed or deleted: DELETE refused/],
+          [`TRUNCATE spectra CASCADE`, /never changed or deleted: TRUNCATE refused/],
+          [`TRUNCATE spectra_2026_01 CASCADE`, /never changed or deleted: TRUNCATE refused/],
+          [`DELETE FROM spectrum_keys`, /never changed or deleted: DELETE refused/],
+          [`DELETE FROM batches`, /batches are never deleted: DELETE refused/],
+          [`DROP TABLE spectra_2026_01`, /spectrum_keys|depend/],
+          [`ALTER TABLE spectra DETACH PARTITION spectra_2026_01`, /spectrum_keys/],
+        ];
+        for (const [stmt, msg] of refused) await expect(st.sql.unsafe(stmt), stmt).rejects.toThrow(msg);
+        expect((await st.sql`SELECT count(*)::int AS n FROM spectra`)[0]!.n).toBe(6);
+        expect(bits((await st.spectra.getSpectrumBySeq('b-jan', 2))!.values)).toEqual(bits(odd));
+      } finally {
+        await st.close();
+      }
     });
   });
 
