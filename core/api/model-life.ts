@@ -83,6 +83,10 @@ export interface HealthTest {
   /** Not enough data to test (e.g. no lab values, no approval evidence). */
   untested: boolean;
   text: string;
+  /** The figure the test judges and the value at which it fails (null: it cannot fail on this window), in `unit`; absent when untested. */
+  value?: number;
+  limit?: number | null;
+  unit?: string;
 }
 
 export interface HealthRate {
@@ -90,11 +94,29 @@ export interface HealthRate {
   beyond: number;
   points: number;
   rate: number;
+  /** Nominal α of the limits counted against (1 − confidence). */
   nominal: number;
-  /** Clopper–Pearson two-sided 95 % interval. */
+  /** The same share measured before deployment (null: not known). */
+  measured: { source: 'held-out' | 'reference'; batches: number; points: number; beyond: number; rate: number } | null;
+  /** The limits counted against: the monitor's alarm limits, per progress point or global, from startupMin on. */
+  confidence: number;
+  limits: 'local' | 'global';
+  startupMin: number;
+  /** Clopper–Pearson two-sided 95 % interval of the share of spectra. */
   interval: [number, number];
-  /** Exact two-sided binomial test of rate = nominal. */
-  pValue: number;
+  /**
+   * The test, on batches: those of the window that leave the limit (more than 2× nominal of their
+   * judged spectra beyond it) against those measured the same way before deployment; one-sided
+   * Fisher exact p, and the count at which the test fails. test null: no baseline, untested.
+   */
+  batches: {
+    left: number;
+    of: number;
+    share: number;
+    interval: [number, number];
+    baseline: { source: 'held-out' | 'reference'; left: number; of: number } | null;
+    test: { pValue: number; failsAt: number | null } | null;
+  };
   failed: boolean;
 }
 
@@ -118,12 +140,14 @@ export interface ModelHealth {
   /** Units the version is deployed to now. */
   units: string[];
   /** Batches judged by the version, and the window the rate tests use (the latest ones). */
-  batches: { id: string; startT: number; spectra: number; t2Beyond: number; qBeyond: number; alarms: number }[];
+  /** spectra: judged; points: judged after start-up (the rate tests' spectra); t2Beyond/qBeyond among points, beyond the alarm limits. */
+  batches: { id: string; startT: number; spectra: number; points: number; t2Beyond: number; qBeyond: number; alarms: number }[];
   window: number;
   alarms: { observed: number; batches: number; perBatch: number; expectedPerBatch: number | null; heldOut: number; pValue: number | null; failed: boolean };
   t2: HealthRate | null;
   q: HealthRate | null;
-  drift: { lambda: number; L: number; baselineBatches: number; charts: HealthDriftChart[]; failed: boolean; method: string } | null;
+  /** L: the design's width; LPerChart: each chart's (Bonferroni over the PCs). */
+  drift: { lambda: number; L: number; LPerChart: number; baselineBatches: number; charts: HealthDriftChart[]; failed: boolean; method: string } | null;
   bias: { property: string; unit: string; n: number; mean: number; interval: [number, number]; confidence: number; failed: boolean } | null;
   review: { dueAt: number | null; intervalDays: number | null; overdue: boolean };
   tests: HealthTest[];

@@ -604,6 +604,11 @@ export interface BatchEvaluation {
   /** Spectra with T² above the version's T² limit, and with Q above its Q limit (absent in evaluations stored before they were counted). */
   t2Beyond?: number;
   qBeyond?: number;
+  /**
+   * As the monitor judges: spectra from the start-up minutes on, and those beyond the limits it
+   * raises its T² and Q conditions with (its alarm limits). Absent in evaluations stored before.
+   */
+  judged?: { points: number; t2Beyond: number; qBeyond: number; confidence: number };
 }
 
 export interface EvaluationResult {
@@ -658,6 +663,8 @@ export interface ApprovalEvidence {
   points: number;
   t2: RateEvidence;
   q: RateEvidence;
+  /** The held-out good batches as the monitor judges them (BatchEvaluation.judged, summed); absent when an evaluated batch lacks it. Model health compares live batches with this. */
+  judged?: { batches: number; points: number; t2Beyond: number; qBeyond: number; t2Batches: number; qBatches: number; confidence: number };
   /** The good batch with the largest share of points beyond a limit. */
   worst: { batch: string; spectra: number; beyond: number; share: number } | null;
   alarmedGood: { batch: string; alarms: number; firstKind: string | null }[];

@@ -16,6 +16,7 @@
  */
 import type { ApprovalEvidence, ApprovalWarning, BatchEvaluation, RateEvidence } from '../api/rest.ts';
 import { clopperPearson as exactInterval } from '../stats/clopper-pearson.ts';
+import { leavesLimits } from '../health/health-reference.ts';
 
 /** A point rate more than this many times the nominal rate (and outside its interval) is far above it. */
 export const FAR_ABOVE_FACTOR = 2;
@@ -68,6 +69,15 @@ export function approvalEvidence(input: {
     const share = b.spectra ? b.pointsOutside / b.spectra : 0;
     if (!worst || share > worst.share) worst = { batch: b.batch, spectra: b.spectra, beyond: b.pointsOutside, share };
   }
+  // As the monitor judges, for model health (core/health): summed, and the batches that leave each limit.
+  const gj = good.map((b) => b.judged);
+  const conf = gj[0]?.confidence;
+  const judged = gj.length && gj.every((j) => j && j.confidence === conf)
+    ? {
+        batches: gj.length, confidence: conf!, points: gj.reduce((a, j) => a + j!.points, 0), t2Beyond: gj.reduce((a, j) => a + j!.t2Beyond, 0), qBeyond: gj.reduce((a, j) => a + j!.qBeyond, 0),
+        t2Batches: gj.filter((j) => leavesLimits(j!.t2Beyond, j!.points, conf!)).length, qBatches: gj.filter((j) => leavesLimits(j!.qBeyond, j!.points, conf!)).length,
+      }
+    : undefined;
   const notReached = good.filter((b) => b.endpointAt === null).map((b) => b.batch);
   const alarmed = good.filter((b) => b.alarms > 0).map((b) => ({ batch: b.batch, alarms: b.alarms, firstKind: b.firstAlarmKind }));
   const warnings: ApprovalWarning[] = [];
@@ -96,6 +106,7 @@ export function approvalEvidence(input: {
     points,
     t2,
     q,
+    ...(judged ? { judged } : {}),
     worst,
     alarmedGood: alarmed,
     endpoint: { reached: good.length - notReached.length, of: good.length, notReached },

@@ -74,3 +74,28 @@ export function tInterval(xs: ArrayLike<number>, confidence: number): { n: numbe
   const h = tInv(1 - (1 - confidence) / 2, n - 1) * (sd / Math.sqrt(n));
   return { n, mean: m, sd, interval: [m - h, m + h] };
 }
+
+/** log of the binomial coefficient C(n, k), summed term by term (n up to a few thousand here). */
+function logChoose(n: number, k: number): number {
+  let s = 0;
+  for (let i = 1; i <= k; i++) s += Math.log(n - k + i) - Math.log(i);
+  return s;
+}
+
+/**
+ * One-sided Fisher exact test (Fisher 1935) of a 2 × 2 table — k of n in the first group against kb
+ * of nb in the second — for a larger proportion in the first: P(X ≥ k), X hypergeometric with N = n + nb,
+ * K = k + kb successes, n drawn. Same as scipy.stats.fisher_exact([[k, n − k], [kb, nb − kb]],
+ * alternative='greater').pvalue.
+ */
+export function fisherExactGreater(k: number, n: number, kb: number, nb: number): number {
+  checkCount(k, n, 'Fisher exact test');
+  checkCount(kb, nb, 'Fisher exact test');
+  const N = n + nb;
+  const K = k + kb;
+  const hi = Math.min(n, K);
+  const lc = logChoose(N, n);
+  let sum = 0;
+  for (let x = k; x <= hi; x++) sum += Math.exp(logChoose(K, x) + logChoose(N - K, n - x) - lc);
+  return Math.min(1, sum);
+}

@@ -30,6 +30,7 @@ import { labNotYetPast, missingEndpointsMessage, partsNeedingEndpoints, resolveR
 import { endValuesOf, resolveCriteria, type CalibrationBatch, type PropertyContext } from './endpoint-calibration.ts';
 import { transferredChain, transferredPredictor } from '../calibration-transfer/transfer-chain.ts';
 import { transferRecordFromJSON, transferRecordToJSON, type ModelTransfer } from '../calibration-transfer/transfer-model.ts';
+import { healthReference, type HealthReference } from '../health/health-reference.ts';
 
 export { resolveBuildSettings, DEFAULT_SETTINGS, type BuildSettings, type BuildSettingsInput } from './build-settings.ts';
 
@@ -93,6 +94,11 @@ export interface ModelMeta {
   sampleOrigin: { batch: number; index: number }[];
   /** What the build decided on its own that the model owner should know (e.g. a Q-limit fallback). */
   notes?: string[];
+  /**
+   * The model-health baseline from the reference batches (core/health/health-reference.ts). Absent
+   * in files built before it was stored: a server then replays the reference batches for it.
+   */
+  health?: HealthReference;
 }
 
 export interface MonitoringModel {
@@ -276,6 +282,17 @@ export function buildMonitoringModel(batches: ReferenceBatch[], settingsInput: u
     ...(alarmLimits ? { alarm: { confidence: alarmLimits.confidence, globalT2Limit: alarmLimits.t2.value, globalQLimit: alarmLimits.q.value } } : {}),
   });
 
+  // Model-health baseline: what the live health test compares a version's batches with.
+  const health = healthReference(trajectories, envelope, {
+    confidence: alarmLimits?.confidence ?? conf,
+    local: (settings.alarms.limits ?? 'local') === 'local',
+    startupMin: settings.alarms.startupMin ?? 0,
+    t2: alarmLimits?.t2.value ?? t2L.value,
+    q: alarmLimits?.q.value ?? qL.value,
+    t2Local: alarmLimits && envelope.t2AlarmLimit ? envelope.t2AlarmLimit : envelope.t2Limit,
+    qLocal: alarmLimits && envelope.qAlarmLimit ? envelope.qAlarmLimit : envelope.qLimit,
+  });
+
   // Endpoint rule with 'auto' thresholds resolved from the reference batches at their known endpoints.
   const calib: CalibrationBatch[] = [];
   let o = 0;
@@ -340,6 +357,7 @@ export function buildMonitoringModel(batches: ReferenceBatch[], settingsInput: u
     pcaCv,
     sampleOrigin: origin,
     ...(notes.length ? { notes } : {}),
+    health,
   };
   const body = { settings, chain: chain.toJSON(), pca: pcaToJSON(pca), limits, ...(alarmLimits ? { alarmLimits } : {}), envelope, endpoint, pls: pls?.toJSON(), meta };
   // Hash exactly as the file will carry it: write, then read back.
@@ -428,6 +446,13 @@ const bodySchema = z.object({
     pcaCv: z.object({ press: z.array(num), recommended: z.number().int(), method: z.string(), best: z.number().int().optional(), rule: z.string().optional(), atSearchLimit: z.boolean().optional() }),
     sampleOrigin: z.array(z.object({ batch: z.number().int(), index: z.number().int() })),
     notes: z.array(z.string()).optional(),
+    health: z
+      .object({
+        meanScores: z.array(z.array(num)),
+        judged: z.object({ confidence: z.number().gt(0).lt(1), limits: z.enum(['local', 'global']), startupMin: num.nonnegative(), points: z.number().int().min(0), t2Beyond: z.number().int().min(0), qBeyond: z.number().int().min(0), batches: z.number().int().min(0), t2Batches: z.number().int().min(0), qBatches: z.number().int().min(0) }),
+        method: z.string(),
+      })
+      .optional(),
     endpointCheck: z
       .object({
         method: z.string(),

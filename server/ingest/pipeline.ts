@@ -611,7 +611,7 @@ export class IngestPipeline {
    * The health of the version deployed on a unit (docs/model-life.md): a low-priority unit-level
    * alarm through the usual life cycle while a health test fails. Written only when it changes.
    */
-  async setModelHealth(unit: string, active: boolean, message: string, value: number, limit: number): Promise<void> {
+  async setModelHealth(unit: string, active: boolean, message: string, value: number | null, limit: number | null): Promise<void> {
     const id = this.alarmIdByKey.get(alarmKey(unit, null, MODEL_HEALTH));
     const cur = id ? this.alarmsById.get(id) : undefined;
     if (!cur?.active && !active) return;

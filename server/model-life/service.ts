@@ -10,7 +10,7 @@ import type { ModelHealth, ShadowComparison, ShadowRun } from '../../core/api/mo
 import type { MonitoringModel } from '../../core/model/monitoring-model.ts';
 import { createBatchMonitor } from '../../core/monitor/batch-monitor.ts';
 import type { MonitorResult } from '../../core/monitor/types.ts';
-import { healthBatchFigures, modelHealth, type HealthBatch } from '../../core/health/model-health.ts';
+import { healthBatchFigures, modelHealth, type HealthBatch, type RateBaseline } from '../../core/health/model-health.ts';
 import { compareBatch, shadowComparison, type LabPoint } from '../../core/shadow/compare.ts';
 import type { ServerContext } from '../context.ts';
 import { latestApprovalEvidence } from '../models/model-service.ts';
@@ -91,7 +91,7 @@ export class ModelLife {
     let hit = this.figures.get(key);
     if (!hit) {
       const rows = await this.store.results(batch.id);
-      const f = healthBatchFigures(rows.map((x) => x.result));
+      const f = healthBatchFigures(rows.map((x) => x.result), judgingOf(model));
       let alarms = 0;
       for (const x of rows) for (const c of x.result.conditionChanges) if (c.active && c.kind !== 'analyzer') alarms++;
       const predictions = new Float64Array(rows.length ? rows[rows.length - 1]!.idx + 1 : 0).fill(NaN);
@@ -109,8 +109,13 @@ export class ModelLife {
     return { ...hit.figures, labResiduals };
   }
 
-  /** Batch-mean scores of the version's reference batches, replayed once per version through its own monitor. */
+  /**
+   * Batch-mean scores of the version's reference batches: stored in the model file at build; a file
+   * built before that has none, and its reference batches are replayed once per version (per server
+   * start) through its own monitor.
+   */
   private referenceMeanScores(row: ModelVersionRow, model: MonitoringModel): Promise<number[][]> {
+    if (model.meta.health) return Promise.resolve(model.meta.health.meanScores);
     let p = this.refScores.get(row.id);
     if (!p) {
       p = (async () => {
@@ -126,7 +131,7 @@ export class ModelLife {
             // yield to ingest and the sockets now and then: a version's first health replays all its reference batches
             if (++n % YIELD_EVERY === 0) await new Promise((r) => setImmediate(r));
           }
-          const f = healthBatchFigures(results);
+          const f = healthBatchFigures(results, judgingOf(model));
           if (f.spectra) out.push(f.meanScores);
         }
         return out;
@@ -151,6 +156,7 @@ export class ModelLife {
     const units = (await this.ctx.storage.listDeployments({ active: true })).filter((d) => d.modelVersion === row.id).map((d) => d.unit).sort();
     return modelHealth({
       version: { id: row.id, name: row.name, version: row.version, confidence: model.limits.t2.confidence },
+      rates: rateBaseline(model, evidence?.judged ?? null),
       units,
       batches,
       approval: evidence ? { alarms: evidence.alarmedGood.reduce((a, b) => a + b.alarms, 0), heldOut: evidence.heldOutGood.length } : null,
@@ -171,7 +177,7 @@ export class ModelLife {
   private async refreshNow(unit: string): Promise<void> {
     const ref = this.ctx.ingest.deploymentRef(unit);
     if (!ref) {
-      await this.ctx.ingest.setModelHealth(unit, false, `no version deployed on ${unit}: no model health to judge`, 0, 0);
+      await this.ctx.ingest.setModelHealth(unit, false, `no version deployed on ${unit}: no model health to judge`, null, null);
       return;
     }
     const row = await this.ctx.storage.getModelVersion(ref.versionId);
@@ -195,7 +201,9 @@ export class ModelLife {
       ? `model health of ${what}: ${failed.map((t) => t.text).join(' ')} Review the version (Model bench); Tideline advises, the site's procedures decide.`
       : `model health of ${what}: every test passes again`;
     // The message changes with the figures every batch: the alarm is rewritten only when the failing tests change.
-    await this.ctx.ingest.setModelHealth(unit, failed.length > 0, failed.length ? `model health of ${what}: ${failed.map((t) => t.code).join(', ')} — ${message.slice(message.indexOf(': ') + 2)}` : message, failed.length, 0);
+    // The alarm's value and limit: the figure of the first failing test and the value at which it fails (in the test's unit, named in the text).
+    const first = failed.find((t) => t.value !== undefined && t.limit !== undefined && t.limit !== null);
+    await this.ctx.ingest.setModelHealth(unit, failed.length > 0, failed.length ? `model health of ${what}: ${failed.map((t) => t.code).join(', ')} — ${message.slice(message.indexOf(': ') + 2)}` : message, first?.value ?? null, first?.limit ?? null);
   }
 
   /** Resolves when the refreshes asked for so far are done. */
@@ -210,6 +218,28 @@ export class ModelLife {
     await within.setReview(versionId, intervalDays, due, at, by);
     return due;
   }
+}
+
+/** Where the monitor raises its conditions, for counting spectra beyond its limits like it does. */
+function judgingOf(model: MonitoringModel): { startupMin: number; limits: 'local' | 'global' } {
+  return { startupMin: model.settings.alarms.startupMin ?? 0, limits: (model.settings.alarms.limits ?? 'local') === 'local' ? 'local' : 'global' };
+}
+
+/**
+ * What the live T² and Q rates are compared with: the monitor's alarm limits, and the same share
+ * measured before deployment — on the held-out good batches of the approval evidence when it counted
+ * them as the monitor judges, else on the reference batches at build (model file), else none.
+ */
+export function rateBaseline(model: MonitoringModel, heldOut: { batches: number; points: number; t2Beyond: number; qBeyond: number; t2Batches: number; qBatches: number; confidence: number } | null): RateBaseline {
+  const judging = judgingOf(model);
+  const confidence = model.alarmLimits?.confidence ?? model.limits.t2.confidence;
+  const ref = model.meta.health?.judged;
+  const measured: RateBaseline['measured'] = heldOut && heldOut.points > 0 && heldOut.confidence === confidence
+    ? { source: 'held-out', batches: heldOut.batches, points: heldOut.points, t2Beyond: heldOut.t2Beyond, qBeyond: heldOut.qBeyond, t2Batches: heldOut.t2Batches, qBatches: heldOut.qBatches }
+    : ref && ref.points > 0 && ref.confidence === confidence && ref.startupMin === judging.startupMin && ref.limits === judging.limits
+      ? { source: 'reference', batches: ref.batches, points: ref.points, t2Beyond: ref.t2Beyond, qBeyond: ref.qBeyond, t2Batches: ref.t2Batches, qBatches: ref.qBatches }
+      : null;
+  return { confidence, ...judging, measured };
 }
 
 const instances = new WeakMap<ServerContext, ModelLife>();

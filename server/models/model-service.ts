@@ -147,10 +147,17 @@ export async function evaluateVersion(ctx: ServerContext, versionId: string, bat
       throw new ModelRequestError(422, `batch "${id}" has ${b.axis.length} wavelengths; the model expects ${model.chain.inputAxis.length}`);
     }
     const mon = core.createBatchMonitor(model, b.startT);
-    const ev: BatchEvaluation = { batch: id, spectra: 0, pointsOutside: 0, alarms: 0, firstAlarmAt: null, firstAlarmKind: null, endpointAt: null, maxT2: 0, maxQ: 0, t2Beyond: 0, qBeyond: 0 };
+    const ev: BatchEvaluation = { batch: id, spectra: 0, pointsOutside: 0, alarms: 0, firstAlarmAt: null, firstAlarmKind: null, endpointAt: null, maxT2: 0, maxQ: 0, t2Beyond: 0, qBeyond: 0, judged: { points: 0, t2Beyond: 0, qBeyond: 0, confidence: model.alarmLimits?.confidence ?? model.limits.t2.confidence } };
+    const startupMin = (model.settings as { alarms?: { startupMin?: number } }).alarms?.startupMin ?? 0;
     for await (const s of ctx.storage.iterateSpectra(id)) {
       const r = mon.push(s.seq, s.t, s.values);
       ev.spectra++;
+      // As the monitor judges (model health compares live batches with this): its alarm limits, after start-up.
+      if (r.alarmLimits && Number.isFinite(r.t2) && r.elapsedMin >= startupMin) {
+        ev.judged!.points++;
+        if (r.t2 > r.alarmLimits.t2) ev.judged!.t2Beyond++;
+        if (r.q > r.alarmLimits.q) ev.judged!.qBeyond++;
+      }
       if (r.t2 > r.limits.t2 || r.q > r.limits.q) ev.pointsOutside++;
       if (r.t2 > r.limits.t2) ev.t2Beyond!++;
       if (r.q > r.limits.q) ev.qBeyond!++;

@@ -1,8 +1,25 @@
 import { describe, expect, it } from 'vitest';
-import { binomialTestTwoSided, poissonUpperTail, tInterval } from '../../core/health/exact-tests.ts';
+import { binomialTestTwoSided, fisherExactGreater, poissonUpperTail, tInterval } from '../../core/health/exact-tests.ts';
 import { DRIFT_EWMA, ewmaChart } from '../../core/health/ewma.ts';
 import { createPrng } from '../../core/stats/prng.ts';
 import { scipyNamed } from '../limits/scipy.ts';
+
+describe('Fisher exact test (one-sided, greater)', () => {
+  // k of n window batches leaving a limit against kb of nb baseline batches: the shapes model health uses.
+  const cases: [number, number, number, number][] = [[4, 20, 0, 30], [7, 20, 0, 30], [20, 20, 0, 30], [3, 20, 2, 40], [0, 20, 1, 30], [5, 12, 1, 25], [1, 1, 0, 1], [10, 20, 10, 20]];
+  it('matches scipy.stats.fisher_exact([[k, n − k], [kb, nb − kb]], alternative="greater").pvalue', () => {
+    const ref = scipyNamed(Object.fromEntries(cases.map(([k, n, kb, nb]) => [`${k}/${n}/${kb}/${nb}`, `print(json.dumps([stats.fisher_exact([[${k}, ${n - k}], [${kb}, ${nb - kb}]], alternative='greater').pvalue]))`])));
+    for (const [k, n, kb, nb] of cases) {
+      const want = ref[`${k}/${n}/${kb}/${nb}`]![0]!;
+      expect(Math.abs(fisherExactGreater(k, n, kb, nb) - want)).toBeLessThanOrEqual(1e-12 + 1e-9 * want);
+    }
+    // A value by hand: 4 of 20 against 0 of 30 is C(20,4)/C(50,4) = 4845/230300.
+    expect(fisherExactGreater(4, 20, 0, 30)).toBeCloseTo(4845 / 230300, 14);
+  });
+  it('names bad arguments', () => {
+    expect(() => fisherExactGreater(3, 2, 0, 5)).toThrow(/0 ≤ k ≤ n/);
+  });
+});
 
 describe('exact binomial test (two-sided)', () => {
   // k, n, p: rates of spectra beyond a 99 % limit, small and large n, both tails, ties of the pmf.

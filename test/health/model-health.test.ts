@@ -1,5 +1,7 @@
 import { describe, expect, it } from 'vitest';
-import { modelHealth, healthBatchFigures, type HealthBatch, type HealthInput } from '../../core/health/model-health.ts';
+import { bonferroniWidth, modelHealth, healthBatchFigures, type HealthBatch, type HealthInput, type RateBaseline } from '../../core/health/model-health.ts';
+import { scipyNamed } from '../limits/scipy.ts';
+import { binomialTestTwoSided } from '../../core/health/exact-tests.ts';
 import { compareBatch, shadowComparison, type ComparedResult } from '../../core/shadow/compare.ts';
 import { createPrng } from '../../core/stats/prng.ts';
 import type { ShadowRun } from '../../core/api/model-life.ts';
@@ -16,14 +18,17 @@ function batches(n: number, seed: number, shiftPerBatch = 0, from = 0): HealthBa
       if (rng.next() < 0.01) q++;
     }
     const shift = i >= from ? shiftPerBatch * (i - from + 1) : 0;
-    return { id: `b${i}`, startT: i * DAY, spectra: 300, t2Beyond: t2, qBeyond: q, alarms: rng.next() < 0.1 ? 1 : 0, meanScores: [rng.normal() * 2 + shift * 2, rng.normal()], labResiduals: [rng.normal() * 0.1] };
+    return { id: `b${i}`, startT: i * DAY, spectra: 300, points: 300, t2Beyond: t2, qBeyond: q, alarms: rng.next() < 0.1 ? 1 : 0, meanScores: [rng.normal() * 2 + shift * 2, rng.normal()], labResiduals: [rng.normal() * 0.1] };
   });
 }
+
+/** Limits at 99 %; before deployment 1 of 30 reference batches left each limit (2× nominal of its spectra beyond). */
+const RATES: RateBaseline = { confidence: 0.99, limits: 'local', startupMin: 2, measured: { source: 'reference', batches: 30, points: 9000, t2Beyond: 80, qBeyond: 95, t2Batches: 1, qBatches: 1 } };
 
 function input(b: HealthBatch[], over: Partial<HealthInput> = {}): HealthInput {
   const rng = createPrng(99);
   return {
-    version: { id: 'mm-x', name: 'dryer', version: 2, confidence: 0.99 }, units: ['dryer-1'], batches: b,
+    version: { id: 'mm-x', name: 'dryer', version: 2, confidence: 0.99 }, rates: RATES, units: ['dryer-1'], batches: b,
     approval: { alarms: 1, heldOut: 10 }, referenceMeanScores: Array.from({ length: 12 }, () => [rng.normal() * 2, rng.normal()]),
     property: { name: 'moisture', unit: '% w/w' }, review: { dueAt: 400 * DAY, intervalDays: 365 }, now: 40 * DAY, ...over,
   };
@@ -53,17 +58,49 @@ describe('model health', () => {
     expect(h.t2!.interval[0]).toBeGreaterThan(0.01);
     expect(h.failed).toBe(true);
   });
+  it('stays quiet when a few good batches carry the spectra beyond a limit, where a binomial test on spectra fails', () => {
+    // As measured on the simulated dryer (40 good batches against a 30-batch model at 99.9 %): the
+    // Q exceedances came in 2 batches (157 and 3 spectra), none in the other 38. Here 1 batch in 20
+    // has 150 of its 300 spectra beyond a 99 % limit, the rest none; before deployment 1 of 30 batches left it.
+    const b = batches(20, 5).map((x, i) => ({ ...x, t2Beyond: 0, qBeyond: i === 7 ? 150 : 0 }));
+    const h = modelHealth(input(b));
+    expect(h.q!.rate).toBeCloseTo(150 / 6000, 12);
+    expect(h.q!.batches.left).toBe(1);
+    expect(h.tests.find((t) => t.code === 'q-rate')!.failed).toBe(false);
+    // A binomial test on the spectra against the 1 % nominal (the test before) rejects it, as if the spectra were independent.
+    expect(binomialTestTwoSided(150, 6000, 0.01)).toBeLessThan(1e-10);
+    // Fewer spectra beyond, but in half of the batches (a process that has left the model): fails.
+    const spread = batches(20, 5).map((x, i) => ({ ...x, t2Beyond: 0, qBeyond: i % 2 === 0 ? 10 : 0 }));
+    const hs = modelHealth(input(spread));
+    expect(hs.q!.batches.left).toBe(10);
+    const t = hs.tests.find((x) => x.code === 'q-rate')!;
+    expect(t.failed).toBe(true);
+    expect(t.value).toBe(10);
+    expect(t.limit).toBeGreaterThan(2);
+    expect(t.limit).toBeLessThanOrEqual(10);
+  });
+  it('the drift charts share the design tail among the PCs (Bonferroni): widths match scipy.stats.norm.isf(norm.sf(L) / A)', () => {
+    const ref = scipyNamed({ w: 'print(json.dumps([stats.norm.isf(stats.norm.sf(3) / a) for a in (1, 2, 3, 5, 8)]))' }).w!;
+    [1, 2, 3, 5, 8].forEach((a, i) => expect(bonferroniWidth(3, a)).toBeCloseTo(ref[i]!, 6));
+    const h = modelHealth(input(batches(5, 7)));
+    expect(h.drift!.LPerChart).toBeCloseTo(ref[1]!, 6); // 2 PCs
+  });
   it('says what it cannot test', () => {
     const h = modelHealth(input([], { approval: null, referenceMeanScores: [], property: null, review: { dueAt: null, intervalDays: null } }));
     expect(h.tests.every((t) => t.untested && !t.failed)).toBe(true);
+    // Batches, but no like-for-like rate from before deployment (an older model file, no held-out evaluation): the rate tests say so.
+    const h2 = modelHealth(input(batches(5, 6), { rates: { ...RATES, measured: null } }));
+    expect(h2.tests.filter((t) => t.code === 't2-rate' || t.code === 'q-rate').every((t) => t.untested && !t.failed && /Not tested/.test(t.text))).toBe(true);
   });
-  it('batch figures count only judged spectra', () => {
+  it('batch figures count, like the monitor, only judged spectra after start-up, against the alarm limits', () => {
     const f = healthBatchFigures([
-      { t2: 5, q: 1, limits: { t2: 4, q: 2 }, scores: [1, 2] },
-      { t2: 1, q: 3, limits: { t2: 4, q: 2 }, scores: [3, 4] },
-      { t2: NaN, q: NaN, limits: { t2: 4, q: 2 }, scores: [], quality: { judged: false } },
-    ]);
-    expect(f).toEqual({ spectra: 2, t2Beyond: 1, qBeyond: 1, meanScores: [2, 3] });
+      { t2: 9, q: 9, elapsedMin: 1, limits: { t2: 4, q: 2 }, alarmLimits: { t2: 6, q: 3 }, scores: [1, 2] }, // in start-up: not counted against a limit
+      { t2: 5, q: 1, elapsedMin: 2, limits: { t2: 4, q: 2 }, alarmLimits: { t2: 6, q: 3 }, scores: [1, 2] }, // beyond the drawn T², within the alarm limit
+      { t2: 7, q: 4, elapsedMin: 3, limits: { t2: 4, q: 2 }, alarmLimits: { t2: 6, q: 3 }, scores: [4, 2] },
+      { t2: 1, q: 3, elapsedMin: 4, limits: { t2: 4, q: 2 }, localLimits: { t2: 0.5, q: 9 }, scores: [2, 4] }, // stored before alarm limits: local limits
+      { t2: NaN, q: NaN, elapsedMin: 5, limits: { t2: 4, q: 2 }, scores: [], quality: { judged: false } },
+    ], { startupMin: 2, limits: 'local' });
+    expect(f).toEqual({ spectra: 4, points: 3, t2Beyond: 2, qBeyond: 1, meanScores: [2, 2.5] });
   });
 });
 

@@ -5,11 +5,7 @@
  * component bands shift 0.5 nm further with every batch (the simulator's wrong-material fault at a
  * growing shift, no impurity band): the EWMA of the batch-mean scores (λ 0.2, L 3) stays quiet on the
  * good batches and turns the drift test and the unit's health alarm on within 12 batches of the onset
- * (observed: the 9th, at a 4.5 nm shift).
- *
- * Observed and left as it is: with this small fixture (4 reference batches, 99 % limits) the Q-rate
- * test fails from the first good batch — new batches leave the 4-batch Q limit far more often than
- * 1 %, as the approval evidence of the same fixture says (test/server/approval-evidence.test.ts).
+ * (each PC's chart at its Bonferroni width, core/health/model-health.ts).
  */
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { simulateDryerBatch, simulateReferenceSet } from '../../simulators/batch.ts';

@@ -2,7 +2,8 @@
  * Shadow runs and model health through the public paths: a real server, simulated dryer batches
  * streamed over /ingest, REST with sessions and an electronic signature. The candidate's figures in
  * the comparison are checked against core's batch monitor replaying the stored spectra on its own;
- * the health's exact binomial p-value against scipy.stats.binomtest run through python3.
+ * the health's rate test (one-sided Fisher exact test on batches) against scipy.stats.fisher_exact run
+ * through python3.
  */
 import { execFileSync } from 'node:child_process';
 import { randomUUID } from 'node:crypto';
@@ -178,16 +179,22 @@ describe('shadow run', () => {
 });
 
 describe('model health', () => {
-  it('reports the deployed version over its batches; the binomial p-value agrees with scipy', async () => {
+  it('reports the deployed version over its batches; the rate tests agree with scipy', async () => {
     const r = await viewer.get(`/api/models/versions/${deployedId}/health`);
     expect(r.status).toBe(200);
     const h = r.body;
     expect(h.batches.map((b: { id: string }) => b.id)).toEqual(batches);
-    expect(h.t2.points).toBe(h.batches.reduce((a: number, b: { spectra: number }) => a + b.spectra, 0));
-    const py = `from scipy.stats import binomtest\nprint(binomtest(${h.t2.beyond}, ${h.t2.points}, ${h.t2.nominal}).pvalue, binomtest(${h.q.beyond}, ${h.q.points}, ${h.q.nominal}).pvalue)`;
+    // Counted as the monitor judges: spectra after the start-up minutes, fewer than those judged.
+    expect(h.t2.points).toBe(h.batches.reduce((a: number, b: { points: number }) => a + b.points, 0));
+    expect(h.t2.points).toBeLessThan(h.batches.reduce((a: number, b: { spectra: number }) => a + b.spectra, 0));
+    expect(h.t2.startupMin).toBeGreaterThan(0);
+    // The fixture's model file carries its reference figures (built now): the baseline is its reference batches.
+    expect(h.q.batches.baseline.source).toBe('reference');
+    const fisher = (r: { batches: { left: number; of: number; baseline: { left: number; of: number } } }) => `stats.fisher_exact([[${r.batches.left}, ${r.batches.of - r.batches.left}], [${r.batches.baseline.left}, ${r.batches.baseline.of - r.batches.baseline.left}]], alternative='greater').pvalue`;
+    const py = `from scipy import stats\nprint(${fisher(h.t2)}, ${fisher(h.q)})`;
     const [p2, pq] = execFileSync('python3', ['-c', py]).toString().trim().split(/\s+/).map(Number);
-    expect(h.t2.pValue).toBeCloseTo(p2!, 9);
-    expect(h.q.pValue).toBeCloseTo(pq!, 9);
+    expect(h.t2.batches.test.pValue).toBeCloseTo(p2!, 9);
+    expect(h.q.batches.test.pValue).toBeCloseTo(pq!, 9);
     expect(h.drift.charts.length).toBeGreaterThan(0);
     expect(h.drift.baselineBatches).toBe(4);
     expect(h.drift.charts[0].ewma).toHaveLength(3);
@@ -206,7 +213,7 @@ describe('model health', () => {
     h = (await viewer.get(`/api/models/versions/${candidateId}/health`)).body;
     expect(h.review.overdue).toBe(true);
     expect(h.failed).toBe(true);
-    let alarm: { kind: string; priority: number; state: string; message: string } | undefined;
+    let alarm: { kind: string; priority: number; state: string; message: string; value: number | null; limit: number | null } | undefined;
     for (let i = 0; i < 100 && !alarm; i++) {
       alarm = (await viewer.get('/api/alarms?unit=dryer-1&limit=200')).body.items.find((a: { kind: string }) => a.kind === 'model-health');
       if (!alarm) await new Promise((res) => setTimeout(res, 100));
@@ -215,6 +222,16 @@ describe('model health', () => {
     expect(alarm!.priority).toBe(4);
     expect(alarm!.state).toBe('active-unacknowledged');
     expect(alarm!.message).toMatch(/review/);
+    // The alarm's value and limit are those of the first failing test, in its own unit (not a count
+    // of failing tests against 0); the review test's: days since approval against the interval.
+    const first = h.tests.find((t: { failed: boolean; limit?: number | null }) => t.failed && t.limit != null);
+    expect(alarm!.value).toBeCloseTo(first.value, 9);
+    expect(alarm!.limit).toBeCloseTo(first.limit, 9);
+    expect(alarm!.message).toContain(first.code);
+    const review = h.tests.find((t: { code: string }) => t.code === 'review');
+    expect(review.value).toBeGreaterThan(180);
+    expect(review.limit).toBe(180);
+    expect(review.unit).toBe('days since approval');
     const metrics = await (await fetch(ts.server.url + '/metrics', { headers: { connection: 'close', authorization: `Bearer ${METRICS_TOKEN}` } })).text();
     expect(metrics).toMatch(/tideline_model_health_failed\{unit="dryer-1",model="dryer-test",version="2"\} [1-9]/);
     expect(metrics).toMatch(/tideline_model_health_review_due_seconds\{unit="dryer-1",model="dryer-test",version="2"\} -/);
