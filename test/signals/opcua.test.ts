@@ -209,6 +209,24 @@ describe('OPC UA channel', () => {
     await new Promise((r) => setTimeout(r, 300)); // a second acked event would arrive within a few publish intervals
     expect(events.filter((e) => e.ConditionName === 'AnalyzerFault' && e['AckedState.Id'] === true)).toHaveLength(1);
   });
+  it('mirrors the unit model-health alarm as the ModelHealth condition (off-normal, priority 4 → severity 300) and ModelHealthFailing', async () => {
+    const events: Record<string, unknown>[] = [];
+    await client.watchEvents(['ConditionName', 'ActiveState.Id', 'Severity', 'Message'], (e) => events.push(e));
+    const t = T0 + 55 * 60_000;
+    const health = { key: 'model-health', kind: 'model-health' as const, priority: 4 as const, batch: null, message: 'model health of dryer v1 on D1: q-rate — 9 of 20 batches left the Q limit', value: 9, limit: 7 };
+    appendOutbox(db, U, 'alarm', { alarm: alarm({ ...health, state: 'active-unacknowledged', active: true, updatedAt: t }), previousState: null }, t);
+    dispatcher.wake();
+    await until(() => events.some((e) => e.ConditionName === 'ModelHealth' && e['ActiveState.Id'] === true), 'ModelHealth event');
+    const on = events.find((e) => e.ConditionName === 'ModelHealth' && e['ActiveState.Id'] === true)!;
+    expect(on.Severity).toBe(300);
+    expect(String((on.Message as { text?: string }).text ?? on.Message)).toMatch(/q-rate/);
+    expect((await client.read(P('ModelHealthFailing'))).value.value).toBe(true);
+    // every test passes again: the condition returns to normal
+    appendOutbox(db, U, 'alarm', { alarm: alarm({ ...health, message: 'model health of dryer v1 on D1: every test passes again', state: 'cleared-unacknowledged', active: false, updatedAt: t + 60_000 }), previousState: 'active-unacknowledged' }, t + 60_000);
+    dispatcher.wake();
+    await until(() => events.some((e) => e.ConditionName === 'ModelHealth' && e['ActiveState.Id'] === false), 'ModelHealth cleared');
+    expect((await client.read(P('ModelHealthFailing'))).value.value).toBe(false);
+  });
   it('mirrors suppression by state (SuppressedState, SuppressedOrShelved) when Tideline reports it', async () => {
     const events: Record<string, unknown>[] = [];
     await client.watchEvents(['ConditionName', 'ActiveState.Id', 'SuppressedState.Id', 'SuppressedOrShelved', 'Message'], (e) => events.push(e));

@@ -6,7 +6,9 @@
  *
  * - T2Limit, QLimit, PropertyLimit: ExclusiveLimitAlarmType, input node the T2 / Q / Property variable,
  *   HighLimit the current limit.
- * - DataStale, AnalyzerFault: OffNormalAlarmType, input node a Boolean variable that is true when off normal.
+ * - DataStale, AnalyzerFault, ModelHealth: OffNormalAlarmType, input node a Boolean variable that is
+ *   true when off normal (ModelHealth: the low-priority alarm of a failing model-health test,
+ *   docs/model-life.md).
  *
  * Shelving (IEC 62541-9 ShelvedStateMachineType, the condition's optional ShelvingState) mirrors
  * Tideline's shelve: TimedShelved while Tideline holds the alarm shelved, UnshelveTime the time left
@@ -42,6 +44,7 @@ export const MIRRORED_ALARMS = {
   property: { browseName: 'PropertyLimit', type: 'limit' },
   stale: { browseName: 'DataStale', type: 'off-normal' },
   analyzer: { browseName: 'AnalyzerFault', type: 'off-normal' },
+  'model-health': { browseName: 'ModelHealth', type: 'off-normal' },
 } as const;
 export type MirroredKind = keyof typeof MIRRORED_ALARMS;
 
@@ -86,7 +89,7 @@ export class UnitAlarmMirror {
   constructor(
     ns: Namespace,
     source: UAObject,
-    inputs: { t2: UAVariable; q: UAVariable; property: UAVariable; stale: UAVariable; analyzer: UAVariable; normal: UAVariable },
+    inputs: { t2: UAVariable; q: UAVariable; property: UAVariable; stale: UAVariable; analyzer: UAVariable; 'model-health': UAVariable; normal: UAVariable },
     maxTimeShelvedMs: number,
     unitName: string,
     /** A client acknowledged a condition over OPC UA: pass it on to Tideline's alarm (by id). */
@@ -109,7 +112,7 @@ export class UnitAlarmMirror {
       disableSelfEvaluation(alarm);
       this.alarms.set(kind, { alarm, kind, input: inputs[kind], shelf: null, suppressed: false });
     }
-    for (const kind of ['stale', 'analyzer'] as const) {
+    for (const kind of ['stale', 'analyzer', 'model-health'] as const) {
       const alarm = ns.instantiateOffNormalAlarm({
         browseName: MIRRORED_ALARMS[kind].browseName,
         conditionName: MIRRORED_ALARMS[kind].browseName,

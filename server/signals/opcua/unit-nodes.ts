@@ -53,6 +53,7 @@ type Vars = {
   quality: UAVariable;
   dataStale: UAVariable;
   analyzerFault: UAVariable;
+  modelHealth: UAVariable;
   activeAlarms: UAVariable;
 };
 
@@ -136,14 +137,15 @@ export class UnitNodes {
       quality: v('Quality', DataType.String, 'no data yet', 'Why the live values are Uncertain or Bad (empty when Good)'),
       dataStale: v('DataStale', DataType.Boolean, false, 'True while no spectrum arrives (input of the DataStale alarm)'),
       analyzerFault: v('AnalyzerFaultActive', DataType.Boolean, false, 'True while the analyzer reports a fault (input of the AnalyzerFault alarm)'),
+      modelHealth: v('ModelHealthFailing', DataType.Boolean, false, 'True while a health test of the deployed model version fails (input of the ModelHealth alarm)'),
       activeAlarms: v('ActiveAlarms', DataType.UInt32, 0, 'Number of Tideline alarms active or unacknowledged on this unit'),
     };
     for (const n of [this.vars.progress, this.vars.property, this.vars.t2, this.vars.q, this.vars.t2Limit, this.vars.qLimit]) {
       n.setValueFromSource(new Variant({ dataType: DataType.Double, value: 0 }), StatusCodes.BadWaitingForInitialData);
     }
-    const normal = ns.addVariable({ componentOf: o, browseName: 'NormalState', dataType: 'Boolean', description: 'Normal value of DataStale / AnalyzerFaultActive' });
+    const normal = ns.addVariable({ componentOf: o, browseName: 'NormalState', dataType: 'Boolean', description: 'Normal value of DataStale / AnalyzerFaultActive / ModelHealthFailing' });
     normal.setValueFromSource(new Variant({ dataType: DataType.Boolean, value: false }));
-    this.alarms = new UnitAlarmMirror(ns, o, { t2: this.vars.t2, q: this.vars.q, property: this.vars.property, stale: this.vars.dataStale, analyzer: this.vars.analyzerFault, normal }, opts.maxTimeShelvedMs, unit, (id, comment) => opts.onAlarmAcknowledge?.(unit, id, comment), opts.now);
+    this.alarms = new UnitAlarmMirror(ns, o, { t2: this.vars.t2, q: this.vars.q, property: this.vars.property, stale: this.vars.dataStale, analyzer: this.vars.analyzerFault, 'model-health': this.vars.modelHealth, normal }, opts.maxTimeShelvedMs, unit, (id, comment) => opts.onAlarmAcknowledge?.(unit, id, comment), opts.now);
   }
 
   private set(node: UAVariable, dataType: DataType, value: unknown, status: StatusCode = StatusCodes.Good, t?: number): void {
@@ -187,6 +189,7 @@ export class UnitNodes {
     this.set(V.quality, DataType.String, s.qualityReason ?? '');
     this.set(V.dataStale, DataType.Boolean, s.stale);
     this.set(V.analyzerFault, DataType.Boolean, s.analyzer === 'failure');
+    this.set(V.modelHealth, DataType.Boolean, s.alarms.some((a) => a.kind === 'model-health' && a.active));
     this.set(V.activeAlarms, DataType.UInt32, s.alarms.filter((a) => a.active || a.state !== 'normal').length);
   }
 
