@@ -8,10 +8,16 @@
  * - pg_bytea_insert_per_s, pg_real_insert_per_s and pg_bytea_vs_real_insert (ratio, > 1: bytea faster);
  * - pg_bytea_read_per_s, pg_real_read_per_s and pg_bytea_vs_real_read;
  * - pg_bytea_bytes_per_spectrum, pg_real_bytes_per_spectrum (table + TOAST + indexes / rows);
- * - pg_real_roundtrip_mismatches: values that did not come back bit-identical (0 expected for both).
+ * - pg_real_roundtrip_mismatches: values that did not come back bit-identical (0 expected for both);
+ * - pg_store_insert_per_s, pg_store_vs_bare_insert, pg_store_read_per_s, pg_store_vs_bare_read,
+ *   pg_store_bytes_per_spectrum: the same spectra through Tideline's store (server/storage/postgres/
+ *   pg-spectra.ts: bytea in a month partition, plus a spectrum_keys row each) against the bare
+ *   bytea table, in the same rounds — the cost of partitioning and of the key table.
  */
 import { loadavg } from 'node:os';
 import postgres from 'postgres';
+import type { NewSpectrum } from '../../server/storage/postgres/pg-spectra.ts';
+import { PgStorage } from '../../server/storage/postgres/pg-storage.ts';
 import { findPostgres, startCluster } from '../../test/server/storage-contract/pg-cluster.ts';
 import type { BenchContext, Figures } from '../run.ts';
 
@@ -66,7 +72,54 @@ export async function run(ctx: BenchContext): Promise<Figures> {
       },
     } as const;
     const best: Record<string, { insert: number; read: number; bytes: number; mismatches: number }> = {};
+    await sql`CREATE DATABASE bench_store`;
+    const st = await PgStorage.open({ url: cluster.url('bench_store'), max: 2 });
+    const T0 = Date.UTC(2026, 0, 5);
+    await st.createUnit({ id: 'dryer-1', name: 'Dryer 1', kind: 'dryer', description: '', createdAt: T0 });
+    await st.createAnalyzer({ id: 'nir-1', name: 'nir-1', createdAt: T0 });
+    await st.spectra.ensurePartition(T0);
+    const stored = async () =>
+      (await st.sql<{ b: number }[]>`SELECT (SELECT coalesce(sum(pg_total_relation_size(inhrelid)), 0) FROM pg_inherits WHERE inhparent = 'spectra'::regclass)::float8
+        + pg_total_relation_size('spectrum_keys')::float8 AS b`)[0]!.b;
+    /** One round through the store: batches of 1,000 spectra, commits of PER_COMMIT, then read back batch by batch. */
+    const storeRound = async (r: number) => {
+      const before = await stored();
+      const batches = Math.ceil(n / 1000);
+      await st.sql.begin(async (tx) => {
+        for (let b = 0; b < batches; b++) {
+          await st.spectra.insertBatch(tx, { id: `r${r}b${b}`, unit: 'dryer-1', analyzer: 'nir-1', boot: r, product: 'granule A', startSeq: b * 1000, startT: T0 + b, axis: new Float64Array(POINTS), modelVersion: null, createdAt: T0 });
+        }
+      });
+      const t0 = performance.now();
+      for (let i = 0; i < n; i += PER_COMMIT) {
+        const rows: NewSpectrum[] = [];
+        for (let j = i; j < Math.min(n, i + PER_COMMIT); j++) {
+          const b = Math.floor(j / 1000);
+          rows.push({ batch: `r${r}b${b}`, idx: j % 1000, analyzer: 'nir-1', boot: r, seq: b * 1000 + (j % 1000) + 1, t: T0 + j * 10_000, values: data[j]!, receivedAt: T0 });
+        }
+        await st.sql.begin((tx) => st.spectra.insertSpectra(tx, rows));
+      }
+      const insert = n / ((performance.now() - t0) / 1000);
+      const t1 = performance.now();
+      let mismatches = 0;
+      for (let b = 0; b < batches; b++) {
+        for await (const row of st.spectra.iterateSpectra(`r${r}b${b}`, 1000)) {
+          const got = new Uint32Array(row.values.buffer, row.values.byteOffset, row.values.length);
+          const want = data[b * 1000 + row.idx]!;
+          const ww = new Uint32Array(want.buffer, want.byteOffset, want.length);
+          for (let p = 0; p < POINTS; p++) if (got[p] !== ww[p]) mismatches++;
+        }
+      }
+      const read = n / ((performance.now() - t1) / 1000);
+      return { insert, read, bytes: ((await stored()) - before) / n, mismatches };
+    };
     for (let r = 0; r < rounds; r++) {
+      {
+        const x = await storeRound(r);
+        ctx.log(`round ${r + 1} store: insert ${x.insert.toFixed(0)}/s, read ${x.read.toFixed(0)}/s, ${x.bytes.toFixed(0)} B/spectrum, ${x.mismatches} mismatching values`);
+        const prev = best.store;
+        best.store = { insert: Math.max(prev?.insert ?? 0, x.insert), read: Math.max(prev?.read ?? 0, x.read), bytes: x.bytes, mismatches: (prev?.mismatches ?? 0) + x.mismatches };
+      }
       for (const [kind, k] of Object.entries(kinds)) {
         const table = `spectra_${kind}_${r}`;
         await sql.unsafe(`CREATE TABLE ${table} (batch text NOT NULL, idx integer NOT NULL, t bigint NOT NULL, vals ${k.type} NOT NULL, PRIMARY KEY (batch, idx))`);
@@ -102,8 +155,10 @@ export async function run(ctx: BenchContext): Promise<Figures> {
         await sql.unsafe(`DROP TABLE ${table}`);
       }
     }
+    await st.close();
     const b = best.bytea!;
     const a = best.real!;
+    const so = best.store!;
     return {
       pg_bytea_insert_per_s: b.insert,
       pg_real_insert_per_s: a.insert,
@@ -115,6 +170,12 @@ export async function run(ctx: BenchContext): Promise<Figures> {
       pg_real_bytes_per_spectrum: a.bytes,
       pg_bytea_roundtrip_mismatches: b.mismatches,
       pg_real_roundtrip_mismatches: a.mismatches,
+      pg_store_insert_per_s: so.insert,
+      pg_store_vs_bare_insert: so.insert / b.insert,
+      pg_store_read_per_s: so.read,
+      pg_store_vs_bare_read: so.read / b.read,
+      pg_store_bytes_per_spectrum: so.bytes,
+      pg_store_roundtrip_mismatches: so.mismatches,
     };
   } finally {
     await sql.end({ timeout: 5 });

@@ -39,6 +39,13 @@ interface SpectrumDbRow {
 const spectrumFromRow = (r: SpectrumDbRow): SpectrumRow => ({ batch: r.batch, idx: r.idx, seq: r.seq, t: r.t, values: bytesF32(r.vals) });
 
 export class PgSpectra {
+  /**
+   * Batch start times (the partition key) by batch id. A start time cannot change once it is
+   * stored with spectra (the spectra's foreign key holds it), so they are remembered; a batch
+   * not known here is looked up.
+   */
+  private readonly batchStarts = new Map<string, number>();
+
   constructor(private readonly sql: Q) {}
 
   /** The partition for batches started at `startT` (ms epoch), created when missing; its name. */
@@ -65,15 +72,16 @@ export class PgSpectra {
    */
   async insertSpectra(q: Q, rows: NewSpectrum[]): Promise<void> {
     if (rows.length === 0) return;
-    const batches = [...new Set(rows.map((r) => r.batch))];
-    const starts = new Map((await q<{ id: string; start_t: number }[]>`SELECT id, start_t FROM batches WHERE id IN ${q(batches)}`).map((b) => [b.id, b.start_t]));
+    const missing = [...new Set(rows.map((r) => r.batch))].filter((b) => !this.batchStarts.has(b));
+    if (missing.length) for (const b of await q<{ id: string; start_t: number }[]>`SELECT id, start_t FROM batches WHERE id IN ${q(missing)}`) this.batchStarts.set(b.id, b.start_t);
     const spectra = rows.map((r) => {
-      const batchT = starts.get(r.batch);
+      const batchT = this.batchStarts.get(r.batch);
       if (batchT === undefined) throw new Error(`spectrum ${r.analyzer}/${r.boot}/${r.seq}: batch ${r.batch} is not stored`);
       return { batch: r.batch, batch_t: batchT, idx: r.idx, analyzer: r.analyzer, boot: r.boot, seq: r.seq, t: r.t, vals: f32Bytes(r.values), received_at: r.receivedAt };
     });
-    await q`INSERT INTO spectra ${q(spectra)}`;
-    await q`INSERT INTO spectrum_keys ${q(spectra.map((s) => ({ analyzer: s.analyzer, boot: s.boot, seq: s.seq, batch_t: s.batch_t, batch: s.batch, idx: s.idx })))}`;
+    // One statement (one round trip): the spectra, and a key row for each.
+    await q`WITH s AS (INSERT INTO spectra ${q(spectra)} RETURNING analyzer, boot, seq, batch_t, batch, idx)
+      INSERT INTO spectrum_keys (analyzer, boot, seq, batch_t, batch, idx) SELECT analyzer, boot, seq, batch_t, batch, idx FROM s`;
   }
 
   // Reads name the batch's start time so that PostgreSQL scans the batch's partition only.
