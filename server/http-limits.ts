@@ -10,6 +10,10 @@
  *   A request being answered is never cut (a report or a model build may take a while), and a
  *   socket upgraded to a WebSocket (/ingest, /live) is out of reach of both (ws clears the socket
  *   timeout; those protocols have their own heartbeats).
+ * - keep-alive: the same idle limit is the keep-alive time the server advertises. With Node's 5 s a
+ *   client that reuses a pooled socket just as the server closes it gets ECONNRESET; fetch (undici)
+ *   drops its sockets only a margin before the advertised time, and a busy event loop can eat that
+ *   margin. A longer advertised time makes the race as rare as 30 s idle pauses are.
  */
 import type { Server as HttpServer, ServerOptions } from 'node:http';
 import type { Socket } from 'node:net';
@@ -21,7 +25,7 @@ export interface HttpLimits {
 
 /** Options for http(s).createServer. */
 export function serverOptions(l: HttpLimits): ServerOptions & { handshakeTimeout: number } {
-  return { headersTimeout: l.headersTimeoutMs, connectionsCheckingInterval: 1000, handshakeTimeout: l.headersTimeoutMs, keepAliveTimeout: Math.min(5000, l.idleTimeoutMs) };
+  return { headersTimeout: l.headersTimeoutMs, connectionsCheckingInterval: 1000, handshakeTimeout: l.headersTimeoutMs, keepAliveTimeout: l.idleTimeoutMs };
 }
 
 /** Close connections idle for idleTimeoutMs, except while a request on them is being answered. */
