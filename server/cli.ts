@@ -19,7 +19,7 @@ import { join } from 'node:path';
 import { userInfo } from 'node:os';
 import { ConfigError, configSchema, ENV_VARS, loadConfig, redactConfig } from './config.ts';
 import { SqliteStorage } from './storage/sqlite-storage.ts';
-import { createAnalyzerToken } from './ingest/analyzer-tokens.ts';
+import { AnalyzerTokenStore } from './auth/analyzer-tokens.ts';
 import { ANALYZER_ID_RE } from './auth/analyzer-tokens.ts';
 import { StartupError } from './startup-error.ts';
 import { ChainedAuditTrail } from './audit/audit-trail.ts';
@@ -301,8 +301,8 @@ async function main(argv: string[]): Promise<number> {
         } else {
           if (await st.getAnalyzer(id)) throw new UsageError(`analyzer "${id}" already exists; issue another token with: token add ${id}`);
           await st.createAnalyzer({ id, name: own.name ?? id, createdAt: Date.now() });
-          const token = await createAnalyzerToken(st, id, Date.now());
-          await audit.record({ user: actor, action: 'analyzer.create', object: `analyzer:${id}`, after: { id, name: own.name ?? id, tokenIssued: true } });
+          const { id: tokenId, token } = await new AnalyzerTokenStore(st.analyzerTokens, Date.now).create(id, '(issued with the analyzer)', actor);
+          await audit.record({ user: actor, action: 'analyzer.create', object: `analyzer:${id}`, after: { id, name: own.name ?? id, tokenIssued: true, tokenId } });
           process.stdout.write(`analyzer ${id} created; its token (shown once, store it in the analyzer's configuration):\n${token}\n`);
         }
       } finally {

@@ -21,7 +21,7 @@ import type { BenchContext, Figures } from '../run.ts';
 import { simulateReferenceSet } from '../../simulators/batch.ts';
 import { buildMonitoringModel, serializeMonitoringModel } from '../../core/model/monitoring-model.ts';
 import { SqliteStorage } from '../../server/storage/sqlite-storage.ts';
-import { createAnalyzerToken } from '../../server/ingest/analyzer-tokens.ts';
+import { AnalyzerTokenStore } from '../../server/auth/analyzer-tokens.ts';
 import { decodeSpectrumFrame, encodeSpectrumFrame } from '../../core/protocol/binary-frame.ts';
 import { encodeSpectrumJson, parseAnalyzerText } from '../../core/protocol/ingest-messages.ts';
 
@@ -199,7 +199,7 @@ export async function run(ctx: BenchContext): Promise<Figures> {
       list.push(unit);
       if (prefix === 'judged') await st.deploy({ id: randomUUID(), unit, modelVersion: versionId, deployedAt: 0, deployedBy: 'bench', reason: null, endedAt: null });
     }
-    tokens.push(await createAnalyzerToken(st, `bench-${i}`, 0));
+    tokens.push((await new AnalyzerTokenStore(st.analyzerTokens, Date.now).create(`bench-${i}`, 'bench', 'bench')).token);
   }
   await st.close();
   const { child, url } = await startServer(dir);

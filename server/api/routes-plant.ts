@@ -6,7 +6,6 @@ import { API_VERSION } from '../../core/api/rest.ts';
 import { LIVE_PROTOCOL_VERSION } from '../../core/api/live.ts';
 import { PROTOCOL_VERSION } from '../../core/protocol/ingest-messages.ts';
 import type { ServerContext } from '../context.ts';
-import { createAnalyzerToken } from '../ingest/analyzer-tokens.ts';
 import { AlarmRequestError } from '../ingest/pipeline.ts';
 import { randomUUID } from 'node:crypto';
 import { HttpProblem, conflict, notFound } from './problem.ts';
@@ -87,7 +86,7 @@ export function addPlantRoutes(t: RouteTable, ctx: ServerContext, startedAt: num
     handler: async ({ body, req }): Promise<CreateAnalyzerResponse> => {
       if (await ctx.storage.getAnalyzer(body.id)) throw conflict(`analyzer "${body.id}" already exists`);
       await ctx.storage.createAnalyzer({ id: body.id, name: body.name ?? body.id, createdAt: ctx.now() });
-      const token = await createAnalyzerToken(ctx.storage, body.id, ctx.now());
+      const { token } = await ctx.auth.createAnalyzerToken(body.id, '(issued with the analyzer)', userOf(req));
       await recordAudit(ctx, { user: userOf(req), action: 'analyzer.create', object: `analyzer:${body.id}`, after: { id: body.id, name: body.name ?? body.id } });
       const a = (await ctx.storage.getAnalyzer(body.id))!;
       return { analyzer: await analyzerSummary(ctx.storage, ctx.ingest, a, remoteAddresses), token };

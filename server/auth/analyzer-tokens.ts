@@ -1,12 +1,12 @@
 /**
- * Analyzer tokens: random 256-bit secrets prefixed `tla_`, shown once at creation and stored as
- * SHA-256 only (server/storage AnalyzerTokenRepository). A token with 256 bits of entropy cannot be
- * guessed, so a fast hash suffices (a slow password hash is for low-entropy secrets) and lets the
- * /ingest upgrade look the token up directly.
+ * Analyzer tokens, the one store /ingest checks: random 256-bit secrets prefixed `tla_`, shown once
+ * at creation and stored as SHA-256 only (server/storage AnalyzerTokenRepository). A token with 256
+ * bits of entropy cannot be guessed, so a fast hash suffices (a slow password hash is for
+ * low-entropy secrets) and lets the /ingest upgrade look the token up directly.
  *
- * The server core's own tokens (`tdl_`, made with POST /api/analyzers; SHA-256 too) are accepted
- * as well, listed with ids `interim-<n>` and can be revoked here, so they stay under the
- * administrator's control.
+ * Tokens issued by versions before migration 203 with the analyzer (`tdl_…`) were carried into the
+ * same store with their hash, so those analyzers keep connecting; they are listed with ids
+ * `interim-<n>` and revoked like any other.
  */
 import { randomUUID } from 'node:crypto';
 import type { AnalyzerTokenRepository, AnalyzerTokenRow } from '../storage/repositories.ts';
@@ -23,23 +23,8 @@ function view(r: AnalyzerTokenRow): AnalyzerTokenInfo {
 export class AnalyzerTokenStore {
   constructor(
     private readonly repo: AnalyzerTokenRepository,
-    /** The server core's token lookup (Storage.findAnalyzerByTokenHash). */
-    private readonly findCore: (tokenHash: string) => Promise<string | null>,
     private readonly now: () => number,
   ) {}
-
-  private async coreList(): Promise<AnalyzerTokenInfo[]> {
-    return (await this.repo.listCore()).map((r) => ({
-      id: `interim-${r.id}`,
-      analyzer: r.analyzer,
-      label: '(made with the analyzer)',
-      createdAt: new Date(r.createdAt).toISOString(),
-      createdBy: '',
-      revokedAt: r.revokedAt === null ? null : new Date(r.revokedAt).toISOString(),
-      revokedBy: null,
-      lastUsedAt: null,
-    }));
-  }
 
   /** A new token; through `repo` (a unit of work's) when given. */
   async create(analyzer: string, label: string, createdBy: string, repo: AnalyzerTokenRepository = this.repo): Promise<{ id: string; token: string; info: AnalyzerTokenInfo }> {
@@ -57,7 +42,7 @@ export class AnalyzerTokenStore {
     if (typeof token !== 'string' || token.length < 8 || token.length > 200) return null;
     const h = sha256Hex(token);
     const r = await this.repo.findActive(h);
-    if (!r) return this.findCore(h);
+    if (!r) return null;
     const at = new Date(this.now()).toISOString();
     // Keep writes rare: record use at most once a minute.
     if (!r.lastUsedAt || Date.parse(at) - Date.parse(r.lastUsedAt) > 60_000) await this.repo.touch(r.id, at);
@@ -65,21 +50,16 @@ export class AnalyzerTokenStore {
   }
 
   async get(id: string, repo: AnalyzerTokenRepository = this.repo): Promise<AnalyzerTokenInfo | undefined> {
-    if (id.startsWith('interim-')) return (await this.coreList()).find((t) => t.id === id);
     const r = await repo.get(id);
     return r ? view(r) : undefined;
   }
 
   async list(): Promise<AnalyzerTokenInfo[]> {
-    return [...(await this.coreList()), ...(await this.repo.list()).map(view)];
+    return (await this.repo.list()).map(view);
   }
 
   /** true when revoked now; false when unknown or already revoked. Through `repo` (a unit of work's) when given. */
   async revoke(id: string, by: string, repo: AnalyzerTokenRepository = this.repo): Promise<boolean> {
-    if (id.startsWith('interim-')) {
-      const n = Number(id.slice(8));
-      return Number.isInteger(n) ? repo.revokeCore(n, this.now()) : false;
-    }
     return repo.revoke(id, new Date(this.now()).toISOString(), by);
   }
 }

@@ -72,8 +72,6 @@ function clip(s: string, n = 64): string {
 /** What access control needs of the storage (SQLite: SqliteStorage). */
 export interface AuthStorage extends UnitOfWorkRunner, AuthRepositories {
   readonly signatures: SignatureRepository;
-  /** The server core's analyzer tokens (`tdl_…`), accepted beside this part's own. */
-  findAnalyzerByTokenHash(tokenSha256: string): Promise<string | null>;
 }
 
 export class AuthService implements Auth {
@@ -97,7 +95,7 @@ export class AuthService implements Auth {
     this.users = storage.users;
     this.sessions = new SessionStore(storage.sessions, { ...DEFAULT_SESSION_TIMES, ...opts.session }, this.now);
     this.throttle = new LoginThrottle(storage.loginFailures, { ...DEFAULT_THROTTLE, ...opts.throttle }, this.now);
-    this.tokens = new AnalyzerTokenStore(storage.analyzerTokens, (h) => storage.findAnalyzerByTokenHash(h), this.now);
+    this.tokens = new AnalyzerTokenStore(storage.analyzerTokens, this.now);
   }
 
   private iso(): string {

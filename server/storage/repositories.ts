@@ -187,7 +187,7 @@ export interface LoginFailureRepository {
   clear(key: string): Promise<void>;
 }
 
-/** An analyzer token of the access-control store (`tla_…`); times UTC ISO. */
+/** An analyzer token (`tla_…`; tokens carried over from before migration 203 keep their `tdl_…` text and an id interim-<n>); times UTC ISO. */
 export interface AnalyzerTokenRow {
   id: string;
   analyzer: string;
@@ -200,14 +200,6 @@ export interface AnalyzerTokenRow {
   lastUsedAt: string | null;
 }
 
-/** A token of the server core's own table (`tdl_…`, made with POST /api/analyzers); times ms since the epoch. */
-export interface CoreAnalyzerTokenRow {
-  id: number;
-  analyzer: string;
-  createdAt: number;
-  revokedAt: number | null;
-}
-
 export interface AnalyzerTokenRepository {
   insert(t: Omit<AnalyzerTokenRow, 'revokedAt' | 'revokedBy' | 'lastUsedAt'>): Promise<void>;
   /** The token with this hash when not revoked. */
@@ -218,10 +210,6 @@ export interface AnalyzerTokenRepository {
   list(): Promise<AnalyzerTokenRow[]>;
   /** true when revoked now; false when unknown or revoked already. */
   revoke(id: string, at: string, by: string): Promise<boolean>;
-  /** The server core's tokens, by id. */
-  listCore(): Promise<CoreAnalyzerTokenRow[]>;
-  /** true when revoked now; false when unknown or revoked already. */
-  revokeCore(id: number, at: number): Promise<boolean>;
 }
 
 // ---- signal delivery (server/signals) --------------------------------------------------------

@@ -7,7 +7,6 @@ import type {
   AnalyzerTokenRepository,
   AnalyzerTokenRow,
   AuthRepositories,
-  CoreAnalyzerTokenRow,
   LoginFailureRepository,
   LoginFailureRow,
   NewUser,
@@ -159,13 +158,6 @@ class SqliteAnalyzerTokens implements AnalyzerTokenRepository {
   }
   async revoke(id: string, at: string, by: string) {
     return this.db.prepare('UPDATE auth_analyzer_tokens SET revoked_at = ?, revoked_by = ? WHERE id = ? AND revoked_at IS NULL').run(at, by, id).changes === 1;
-  }
-  async listCore(): Promise<CoreAnalyzerTokenRow[]> {
-    const rows = this.db.prepare('SELECT id, analyzer, created_at, revoked_at FROM analyzer_tokens ORDER BY id').all() as { id: number; analyzer: string; created_at: number; revoked_at: number | null }[];
-    return rows.map((r) => ({ id: r.id, analyzer: r.analyzer, createdAt: r.created_at, revokedAt: r.revoked_at }));
-  }
-  async revokeCore(id: number, at: number) {
-    return this.db.prepare('UPDATE analyzer_tokens SET revoked_at = ? WHERE id = ? AND revoked_at IS NULL').run(at, id).changes === 1;
   }
 }
 

@@ -181,8 +181,6 @@ export class SqliteStorage implements Storage {
       insertAnalyzer: p('INSERT INTO analyzers (id, name, created_at) VALUES (?, ?, ?)'),
       getAnalyzer: p('SELECT * FROM analyzers WHERE id = ?'),
       listAnalyzers: p('SELECT * FROM analyzers ORDER BY id'),
-      insertToken: p('INSERT INTO analyzer_tokens (analyzer, token_sha256, created_at) VALUES (?, ?, ?)'),
-      findToken: p('SELECT analyzer FROM analyzer_tokens WHERE token_sha256 = ? AND revoked_at IS NULL'),
       upsertBoot: p(`INSERT INTO analyzer_boots (analyzer, boot, axis, instrument, first_seen, last_seen) VALUES (?, ?, ?, ?, ?, ?)
         ON CONFLICT (analyzer, boot) DO UPDATE SET last_seen = excluded.last_seen, instrument = excluded.instrument`),
       getBoot: p('SELECT * FROM analyzer_boots WHERE analyzer = ? AND boot = ?'),
@@ -344,13 +342,6 @@ export class SqliteStorage implements Storage {
   }
   async listAnalyzers() {
     return (this.st.listAnalyzers.all() as Row[]).map((r) => ({ id: r.id, name: r.name, createdAt: r.created_at }));
-  }
-  async addAnalyzerToken(analyzer: string, tokenSha256: string, at: number) {
-    this.st.insertToken.run(analyzer, tokenSha256, at);
-  }
-  async findAnalyzerByTokenHash(h: string) {
-    const r = this.st.findToken.get(h) as Row | undefined;
-    return r ? (r.analyzer as string) : null;
   }
   async upsertAnalyzerBoot(b: Omit<AnalyzerBootRow, 'lastSeq'>) {
     this.st.upsertBoot.run(b.analyzer, b.boot, f64Blob(b.axis), b.instrument, b.firstSeen, b.lastSeen);

@@ -210,15 +210,13 @@ export interface Storage extends UnitOfWorkRunner, AuthRepositories {
   /** Shadow runs, stored results for model health, periodic reviews (server/model-life). */
   readonly modelLife: ModelLifeRepository;
 
-  // units, analyzers, tokens
+  // units, analyzers (their tokens: the analyzerTokens repository)
   createUnit(u: UnitRow): Promise<void>;
   getUnit(id: string): Promise<UnitRow | null>;
   listUnits(): Promise<UnitRow[]>;
   createAnalyzer(a: AnalyzerRow): Promise<void>;
   getAnalyzer(id: string): Promise<AnalyzerRow | null>;
   listAnalyzers(): Promise<AnalyzerRow[]>;
-  addAnalyzerToken(analyzer: string, tokenSha256: string, at: number): Promise<void>;
-  findAnalyzerByTokenHash(tokenSha256: string): Promise<string | null>;
   upsertAnalyzerBoot(row: Omit<AnalyzerBootRow, 'lastSeq'>): Promise<AnalyzerBootRow>;
   getAnalyzerBoot(analyzer: string, boot: number): Promise<AnalyzerBootRow | null>;
   latestAnalyzerBoot(analyzer: string): Promise<AnalyzerBootRow | null>;

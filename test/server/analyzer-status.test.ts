@@ -9,8 +9,7 @@ import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { afterAll, describe, expect, it } from 'vitest';
 import { parseAnalyzerText, IngestProtocolError } from '../../core/protocol/ingest-messages.ts';
-import { Peer, axis, login, spectrum, startTestServer, type TestServer, sqliteDb } from './helpers.ts';
-import { createAnalyzerToken } from '../../server/ingest/analyzer-tokens.ts';
+import { Peer, axis, login, spectrum, startTestServer, type TestServer, sqliteDb, analyzerToken } from './helpers.ts';
 
 const dir = mkdtempSync(join(tmpdir(), 'tideline-status-'));
 let ts: TestServer | null = null;
@@ -117,7 +116,7 @@ describe('failure alarms are per analyzer and per unit', () => {
   it('a failing analyzer reporting for another unit raises it there; another analyzer never clears it', async () => {
     const t2 = await startTestServer({}, { units: ['dryer-1', 'dryer-2'] });
     try {
-      const tok2 = await createAnalyzerToken(t2.server.ctx.storage, 'nir-2', Date.now());
+      const tok2 = await analyzerToken(t2.server.ctx.storage, 'nir-2');
       const viewer = await login(t2, 'viewer');
       const failureOn = async (unit: string, analyzer: string) =>
         (await viewer.get(`/api/alarms?unit=${unit}`)).body.items.find((x: any) => x.key === `analyzer-failure:${analyzer}`) ?? null;

@@ -13,8 +13,7 @@ import { simulateDryerBatch } from '../../simulators/batch.ts';
 import { createBatchMonitor } from '../../core/monitor/batch-monitor.ts';
 import type { MonitorResult } from '../../core/monitor/types.ts';
 import { SqliteStorage } from '../../server/storage/sqlite-storage.ts';
-import { createAnalyzerToken } from '../../server/ingest/analyzer-tokens.ts';
-import { Peer } from './helpers.ts';
+import { Peer, analyzerToken } from './helpers.ts';
 import { buildSmallDryerModel, installModel } from './model-fixture.ts';
 
 const root = join(import.meta.dirname, '..', '..');
@@ -58,7 +57,7 @@ describe('crash safety', () => {
     const { model, text, axis } = buildSmallDryerModel();
     const setup = new SqliteStorage({ file: join(dir, 'tideline.db') });
     await setup.createUnit({ id: 'dryer-1', name: 'Dryer 1', kind: 'dryer', description: '', createdAt: 0 });
-    const token = await createAnalyzerToken(setup, 'nir-crash', 0);
+    const token = await analyzerToken(setup, 'nir-crash');
     await installModel(setup, text, model, 'dryer-1');
     await setup.close();
 

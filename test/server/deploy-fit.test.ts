@@ -8,9 +8,8 @@ import { randomUUID } from 'node:crypto';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { simulateReferenceSet, simulateReactorBatch } from '../../simulators/batch.ts';
 import { buildMonitoringModel, serializeMonitoringModel, type MonitoringModel } from '../../core/model/monitoring-model.ts';
-import { createAnalyzerToken } from '../../server/ingest/analyzer-tokens.ts';
 import { buildSmallDryerModel, installModel } from './model-fixture.ts';
-import { Peer, login, startTestServer, type Session, type TestServer } from './helpers.ts';
+import { Peer, login, startTestServer, type Session, type TestServer, analyzerToken } from './helpers.ts';
 
 let ts: TestServer;
 let admin: Session;
@@ -61,7 +60,7 @@ beforeAll(async () => {
   );
   dryerNoProperty = await insertApproved(noProp);
   // The reactor runs another product on another analyzer with its own axis.
-  const rTok = await createAnalyzerToken(ts.server.ctx.storage, 'nir-r', Date.now());
+  const rTok = await analyzerToken(ts.server.ctx.storage, 'nir-r');
   const r = simulateReactorBatch({ seed: 3, id: 'reactor-b1', intervalS: 120 });
   const pr = new Peer(ts.wsUrl, rTok);
   await pr.open();

@@ -13,7 +13,7 @@ import { connectClient, type TestClient } from '../signals/helpers/opcua-client.
 import { simulateDryerBatch, simulateReferenceSet, type SimulatedBatch } from '../../simulators/batch.ts';
 import { buildMonitoringModel, serializeMonitoringModel } from '../../core/model/monitoring-model.ts';
 import { installModel } from './model-fixture.ts';
-import { LivePeer, login, Peer, startTestServer, type TestServer, sqliteDb } from './helpers.ts';
+import { LivePeer, login, Peer, startTestServer, type TestServer, sqliteDb, analyzerToken } from './helpers.ts';
 import { mosquittoPath, startMosquitto, type Broker } from '../signals/helpers/mosquitto.ts';
 
 async function until(cond: () => boolean, what: string, ms = 30_000): Promise<void> {
@@ -81,8 +81,7 @@ describe.skipIf(!mosquittoPath)('endpoint guards through /ingest', () => {
   });
 
   async function stream(unit: string, analyzer: string, b: SimulatedBatch): Promise<void> {
-    const { createAnalyzerToken } = await import('../../server/ingest/analyzer-tokens.ts');
-    const token = analyzer === 'nir-1' ? ts.token : await createAnalyzerToken(ts.server.ctx.storage, analyzer, Date.now());
+    const token = analyzer === 'nir-1' ? ts.token : await analyzerToken(ts.server.ctx.storage, analyzer);
     const peer = new Peer(ts.wsUrl, token);
     await peer.open();
     expect((await peer.hello(analyzer, 1, b.axis)).type).toBe('welcome');

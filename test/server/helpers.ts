@@ -5,7 +5,7 @@ import { join } from 'node:path';
 import WebSocket from 'ws';
 import { loadConfig, type ServerConfigInput } from '../../server/config.ts';
 import { startServer, type TidelineServer } from '../../server/app.ts';
-import { createAnalyzerToken } from '../../server/ingest/analyzer-tokens.ts';
+import { AnalyzerTokenStore } from '../../server/auth/analyzer-tokens.ts';
 import { encodeSpectrumFrame } from '../../core/protocol/binary-frame.ts';
 import type { Logger } from '../../server/logger.ts';
 import type Database from 'better-sqlite3';
@@ -40,7 +40,7 @@ export async function startTestServer(overrides: ServerConfigInput = {}, opts: {
     },
   });
   const server = await startServer(config, { ...(opts.now ? { now: opts.now } : {}), ...(opts.log ? { log: opts.log } : {}) });
-  const token = await createAnalyzerToken(server.ctx.storage, opts.analyzer ?? 'nir-1', Date.now());
+  const token = await analyzerToken(server.ctx.storage, opts.analyzer ?? 'nir-1');
   return {
     server, dir, token, wsUrl: server.url.replace('http', 'ws'),
     stop: async () => {
@@ -217,4 +217,9 @@ export class LivePeer {
 export function sqliteDb(storage: Storage): Database.Database {
   if (!(storage instanceof SqliteStorage)) throw new Error('these stored rows are read with SQL: the storage is not SQLite');
   return storage.db;
+}
+
+/** Issue an analyzer token straight in the storage's one token store (as `tideline analyzer add` does); returns the token. */
+export async function analyzerToken(storage: Pick<Storage, 'analyzerTokens'>, analyzer: string): Promise<string> {
+  return (await new AnalyzerTokenStore(storage.analyzerTokens, Date.now).create(analyzer, 'test', 'test')).token;
 }

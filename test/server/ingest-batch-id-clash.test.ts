@@ -17,8 +17,7 @@ import { join } from 'node:path';
 import { promisify } from 'node:util';
 import Database from 'better-sqlite3';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { createAnalyzerToken } from '../../server/ingest/analyzer-tokens.ts';
-import { Peer, axis, capturingLogger, spectrum, startTestServer, type TestServer } from './helpers.ts';
+import { Peer, axis, capturingLogger, spectrum, startTestServer, type TestServer, analyzerToken } from './helpers.ts';
 
 const run = promisify(execFile);
 const T = Date.now();
@@ -52,7 +51,7 @@ describe('a live batch-start naming a batch just imported by the CLI', () => {
     expect(imp.stdout).toMatch(/imported B-clash: 3 spectra/);
 
     // Analyzer B starts a live batch with the same id, while A's spectra go into the same commits.
-    const tokenB = await createAnalyzerToken(ts.server.ctx.storage, 'nir-2', Date.now());
+    const tokenB = await analyzerToken(ts.server.ctx.storage, 'nir-2');
     const b = new Peer(ts.wsUrl, tokenB);
     await b.open();
     expect((await b.hello('nir-2', 7, axis(16))).type).toBe('welcome');

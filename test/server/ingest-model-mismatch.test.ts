@@ -5,9 +5,8 @@
  * analyzer's failure alarm there.
  */
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { Peer, axis, login, spectrum, startTestServer, type Session, type TestServer } from './helpers.ts';
+import { Peer, axis, login, spectrum, startTestServer, type Session, type TestServer, analyzerToken } from './helpers.ts';
 import { buildSmallDryerModel, installModel } from './model-fixture.ts';
-import { createAnalyzerToken } from '../../server/ingest/analyzer-tokens.ts';
 import { simulateDryerBatch } from '../../simulators/batch.ts';
 
 const { model, text, axis: modelAxis } = buildSmallDryerModel();
@@ -19,7 +18,7 @@ beforeAll(async () => {
   ts = await startTestServer({}, { units: ['u1', 'u2'] });
   await installModel(ts.server.ctx.storage, text, model, 'u1');
   await ts.server.ctx.ingest.refreshDeployment('u1');
-  token2 = await createAnalyzerToken(ts.server.ctx.storage, 'nir-2', Date.now());
+  token2 = await analyzerToken(ts.server.ctx.storage, 'nir-2');
   viewer = await login(ts, 'viewer');
 }, 120_000);
 afterAll(async () => {

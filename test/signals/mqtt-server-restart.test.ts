@@ -13,9 +13,8 @@ import Database from 'better-sqlite3';
 import mqtt from 'mqtt';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { simulateDryerBatch } from '../../simulators/batch.ts';
-import { createAnalyzerToken } from '../../server/ingest/analyzer-tokens.ts';
 import { SqliteStorage } from '../../server/storage/sqlite-storage.ts';
-import { Peer } from '../server/helpers.ts';
+import { Peer, analyzerToken } from '../server/helpers.ts';
 import { mosquittoPath, startMosquitto, type Broker } from './helpers/mosquitto.ts';
 
 const root = join(import.meta.dirname, '..', '..');
@@ -72,7 +71,7 @@ describe.skipIf(!mosquittoPath || !haveMonitor)('MQTT across a server kill and r
     const { model, text } = buildSmallDryerModel();
     const setup = new SqliteStorage({ file: join(dir, 'tideline.db') });
     await setup.createUnit({ id: 'dryer-1', name: 'Dryer 1', kind: 'dryer', description: '', createdAt: 0 });
-    const token = await createAnalyzerToken(setup, 'nir-mqtt', 0);
+    const token = await analyzerToken(setup, 'nir-mqtt');
     await installModel(setup, text, model, 'dryer-1');
     await setup.close();
     const configFile = join(dir, 'tideline.json');

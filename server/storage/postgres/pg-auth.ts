@@ -8,7 +8,6 @@ import type {
   AnalyzerTokenRepository,
   AnalyzerTokenRow,
   AuthRepositories,
-  CoreAnalyzerTokenRow,
   LoginFailureRepository,
   LoginFailureRow,
   NewSignature,
@@ -147,14 +146,6 @@ class PgAnalyzerTokens implements AnalyzerTokenRepository {
   }
   async revoke(id: string, at: string, by: string) {
     return (await this.sql`UPDATE auth_analyzer_tokens SET revoked_at = ${at}, revoked_by = ${by} WHERE id = ${id} AND revoked_at IS NULL`).count === 1;
-  }
-  async listCore(): Promise<CoreAnalyzerTokenRow[]> {
-    const rows = await this.sql<{ id: number; analyzer: string; created_at: number; revoked_at: number | null }[]>`
-      SELECT id, analyzer, created_at, revoked_at FROM analyzer_tokens ORDER BY id`;
-    return rows.map((r) => ({ id: r.id, analyzer: r.analyzer, createdAt: r.created_at, revokedAt: r.revoked_at }));
-  }
-  async revokeCore(id: number, at: number) {
-    return (await this.sql`UPDATE analyzer_tokens SET revoked_at = ${at} WHERE id = ${id} AND revoked_at IS NULL`).count === 1;
   }
 }
 

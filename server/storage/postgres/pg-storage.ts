@@ -1,7 +1,7 @@
 /**
  * PostgreSQL implementation of the storage seam's parts beside ingest: the audit trail, electronic
  * signatures, access control, signed model changes and the unit of work — and the plant, analyzer
- * and model tables they work on (units, analyzers and their core tokens, model versions,
+ * and model tables they work on (units, analyzers, model versions,
  * deployments). It passes the storage contract suite (test/server/storage-contract/) as SQLite does.
  *
  * Batches and spectra have their tables and a store (pg-spectra.ts, spectra partitioned by month),
@@ -41,8 +41,6 @@ export type PgStorageParts = Pick<
   | 'createAnalyzer'
   | 'getAnalyzer'
   | 'listAnalyzers'
-  | 'addAnalyzerToken'
-  | 'findAnalyzerByTokenHash'
   | 'nextModelVersion'
   | 'insertModelVersion'
   | 'getModelVersion'
@@ -225,13 +223,6 @@ export class PgStorage implements PgStorageParts {
   }
   async listAnalyzers() {
     return (await this.sql`SELECT * FROM analyzers ORDER BY id COLLATE "C"`).map((r) => ({ id: r.id as string, name: r.name as string, createdAt: r.created_at as number }));
-  }
-  async addAnalyzerToken(analyzer: string, tokenSha256: string, at: number) {
-    await this.sql`INSERT INTO analyzer_tokens (analyzer, token_sha256, created_at) VALUES (${analyzer}, ${tokenSha256}, ${at})`;
-  }
-  async findAnalyzerByTokenHash(h: string) {
-    const [r] = await this.sql`SELECT analyzer FROM analyzer_tokens WHERE token_sha256 = ${h} AND revoked_at IS NULL`;
-    return r ? (r.analyzer as string) : null;
   }
 
   async nextModelVersion(name: string) {

@@ -15,7 +15,7 @@ import type { MonitorResult } from '../../../core/monitor/types.ts';
 export type ContractStorage = Pick<
   Storage,
   | 'close' | 'unitOfWork' | 'audit' | 'signatures' | 'users' | 'sessions' | 'loginFailures' | 'analyzerTokens'
-  | 'createUnit' | 'createAnalyzer' | 'addAnalyzerToken' | 'findAnalyzerByTokenHash'
+  | 'createUnit' | 'createAnalyzer'
   | 'nextModelVersion' | 'insertModelVersion' | 'getModelVersion' | 'approveModelVersion' | 'deploy' | 'activeDeployment'
 >;
 
@@ -275,7 +275,7 @@ export function authContract(name: string, backend: ContractBackend): void {
       expect(await st.loginFailures.get('user:ada')).toBeNull();
     }));
 
-    it('analyzer tokens: found by hash while not revoked; revoked once; the core tokens listed and revocable', withStorage(async (st) => {
+    it('analyzer tokens: found by hash while not revoked; revoked once; listed oldest first', withStorage(async (st) => {
       await st.analyzerTokens.insert({ id: 't1', analyzer: 'nir-1', label: 'probe', tokenHash: h('e'), createdAt: T0, createdBy: 'ada' });
       expect(await st.analyzerTokens.findActive(h('e'))).toMatchObject({ id: 't1', analyzer: 'nir-1', label: 'probe', revokedAt: null, lastUsedAt: null });
       await st.analyzerTokens.touch('t1', '2026-01-05T09:00:00.000Z');
@@ -283,15 +283,10 @@ export function authContract(name: string, backend: ContractBackend): void {
       expect(await st.analyzerTokens.revoke('t1', '2026-01-06T00:00:00.000Z', 'ada')).toBe(true);
       expect(await st.analyzerTokens.revoke('t1', '2026-01-07T00:00:00.000Z', 'bob')).toBe(false);
       expect(await st.analyzerTokens.findActive(h('e'))).toBeNull();
-      expect(await st.analyzerTokens.list()).toMatchObject([{ id: 't1', revokedBy: 'ada' }]);
-      await st.createAnalyzer({ id: 'nir-2', name: 'nir-2', createdAt: 5 });
-      await st.addAnalyzerToken('nir-2', h('f'), 5);
-      const [core] = await st.analyzerTokens.listCore();
-      expect(core).toMatchObject({ analyzer: 'nir-2', createdAt: 5, revokedAt: null });
-      expect(await st.findAnalyzerByTokenHash(h('f'))).toBe('nir-2');
-      expect(await st.analyzerTokens.revokeCore(core!.id, 9)).toBe(true);
-      expect(await st.analyzerTokens.revokeCore(core!.id, 10)).toBe(false);
-      expect(await st.findAnalyzerByTokenHash(h('f'))).toBeNull();
+      await st.analyzerTokens.insert({ id: 'interim-3', analyzer: 'nir-2', label: '', tokenHash: h('f'), createdAt: '2026-01-04T00:00:00.000Z', createdBy: '' });
+      expect((await st.analyzerTokens.list()).map((t) => [t.id, t.revokedBy])).toEqual([['interim-3', null], ['t1', 'ada']]);
+      expect((await st.analyzerTokens.findActive(h('f')))?.analyzer).toBe('nir-2');
+      await expect(st.analyzerTokens.insert({ id: 't2', analyzer: 'nir-3', label: '', tokenHash: h('f'), createdAt: T0, createdBy: 'ada' })).rejects.toThrow();
     }));
 
     it('a unit of work that fails leaves no user, session or token behind', withStorage(async (st) => {

@@ -86,10 +86,10 @@ describe.skipIf(!installed)('PostgreSQL storage', () => {
       await a.createUnit({ id: 'dryer-1', name: 'Dryer 1', kind: 'dryer', description: '', createdAt: 1 });
       expect((await a.sql`SELECT current_setting('synchronous_commit') AS s`)[0]!.s).toBe('on');
       const applied = (await a.sql`SELECT name FROM schema_migrations ORDER BY number`).map((r) => r.name);
-      expect(applied).toEqual(['001-core.sql', '002-spectra.sql', '200-audit-trail.sql', '201-auth.sql']);
+      expect(applied).toEqual(['001-core.sql', '002-spectra.sql', '200-audit-trail.sql', '201-auth.sql', '203-analyzer-tokens-one-store.sql']);
       await a.close();
       const b = await PgStorage.open({ url: cluster.url(db) });
-      expect((await b.sql`SELECT count(*)::int AS n FROM schema_migrations`)[0]!.n).toBe(4);
+      expect((await b.sql`SELECT count(*)::int AS n FROM schema_migrations`)[0]!.n).toBe(5);
       expect(await b.getUnit('dryer-1')).toMatchObject({ name: 'Dryer 1', kind: 'dryer' });
       await b.close();
     });
