@@ -123,7 +123,7 @@ describe.skipIf(!haveChromium)('dashboard in headless Chromium', () => {
     await page.getByTestId('tile-reactor-1').waitFor();
     expect(await page.getByTestId('tile-dryer-1').getByRole('heading').textContent()).toBe('Fluid-bed dryer 1');
     // wait until the dryer runs a batch and the tile shows it
-    await page.getByTestId('tile-dryer-1').getByText('of golden course').waitFor({ timeout: 120_000 });
+    await page.getByTestId('progress-dryer-1').getByText(/of the expected time to endpoint|of golden course|endpoint reached/).waitFor({ timeout: 120_000 });
     // one clock, said on every page; the demo says its data are simulated, with its speed-up
     await page.locator('nav.topnav .zone').getByText(/^\d\d:\d\d:\d\d UTC · times in UTC$/).waitFor();
     // the clock shown is UTC's, not the browser's zone (New York, 5 h behind in December)
@@ -413,7 +413,7 @@ describe.skipIf(!haveChromium)('dashboard in headless Chromium', () => {
   it('keeps a screenshot of every view at 1,600 × 1,000 beside those at 1,280 × 800', async () => {
     await page.setViewportSize({ width: 1600, height: 1000 });
     const views: [string, string, () => Promise<void>][] = [
-      ['floor', '#/floor', () => page.getByTestId('tile-dryer-1').getByText('of golden course').waitFor({ timeout: 120_000 })],
+      ['floor', '#/floor', () => page.getByTestId('progress-dryer-1').getByText(/of the expected time to endpoint|of golden course|endpoint reached/).waitFor({ timeout: 120_000 })],
       ['watch-dryer', '#/watch/dryer-1', () => page.getByTestId('plane-chart').getByText('reference batches').waitFor({ timeout: 60_000 })],
       ['bench', '#/bench', () => page.getByTestId('builder').waitFor()],
       ['review', '#/review', async () => {

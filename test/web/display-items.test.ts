@@ -6,7 +6,7 @@
 import { describe, expect, it } from 'vitest';
 import type { Alarm } from '../../core/api/rest.ts';
 import type { MonitorResult } from '../../core/monitor/types.ts';
-import { activeAlarmsText, alarmTitle, etaText, progressText, stallAlarm } from '../../web/src/views/floor-data.ts';
+import { activeAlarmsText, alarmTitle, etaText, progressText, progressView, propertyProgressText, stallAlarm } from '../../web/src/views/floor-data.ts';
 import { alarmedPcsOf, alarmLimitScope } from '../../web/src/views/watch-data.ts';
 import { logTickLabels, tickLabels } from '../../web/src/charts/chart-options.ts';
 import { appendResult, createLiveState } from '../../web/src/live/live-state.ts';
@@ -43,6 +43,24 @@ describe('Floor tile texts', () => {
     expect(progressText(1, { state: 'done' }, 125)).toBe('100 % of golden course · 2 h 05 min elapsed');
     expect(progressText(0.42, { state: 'running' }, 30)).toBe('42 % of golden course · 30 min elapsed');
     expect(progressText(null, null, 3)).toBe('progress not judged · 3.0 min elapsed');
+    // Progress and time to endpoint from one estimate: the reactor on its conversion axis is 92 % of
+    // the golden course at 54 min while the ETA says 1 h 52 min: the elapsed share is 54 / (54 + 112).
+    const eta = { median: 112, low: 101, high: 132 };
+    expect(progressView({ progressFraction: 0.92, elapsedMin: 54 }, { state: 'running', etaMin: eta }, null)).toEqual({ text: '≈ 33 % of the expected time to endpoint · 54 min elapsed', share: 54 / 166 });
+    expect(etaText({ state: 'running', etaMin: eta }, null)).toBe('≈ 1 h 52 min (1 h 41 min – 2 h 12 min) to endpoint');
+    // a stalled batch: no share, no estimate, in both places
+    expect(progressView({ progressFraction: 0.6, elapsedMin: 200 }, { state: 'running', etaMin: eta }, stallAlarm([alarm({ kind: 'envelope', key: 'pace' })], 'dryer-1', 'b1'))).toEqual({ text: 'not progressing (pace alarm): no estimate · 3 h 20 min elapsed', share: null });
+    expect(progressView({ progressFraction: 1, elapsedMin: 125 }, { state: 'done', etaMin: null }, null)).toEqual({ text: 'endpoint reached · 2 h 05 min elapsed', share: 1 });
+    expect(progressView({ progressFraction: 0.5, elapsedMin: 30 }, { state: 'nearing', etaMin: { median: 0.1, low: 0, high: 0.3 } }, null).text).toBe('endpoint due now by the golden batches · 30 min elapsed');
+    // no ETA (no reference endpoint known): the golden-course fraction, named as such
+    expect(progressView({ progressFraction: 0.42, elapsedMin: 30 }, { state: 'running', etaMin: null }, null)).toEqual({ text: '42 % of golden course · 30 min elapsed', share: 0.42 });
+    expect(progressView(null, null, null)).toEqual({ text: 'progress not judged', share: null });
+    // the property against its endpoint threshold, the direction from the criterion
+    const crit = (met: boolean, value: number, threshold: number) => ({ criteria: [{ criterion: 'property', met, value, threshold, text: '' }] });
+    expect(propertyProgressText({ value: 90.9, unit: '%' }, crit(false, 90.9, 99.1))).toBe('90.9 % · endpoint at ≥ 99.1 %');
+    expect(propertyProgressText({ value: 3.2, unit: '% w/w' }, crit(false, 3.2, 1.99))).toBe('3.20 % w/w · endpoint at ≤ 1.99 % w/w');
+    expect(propertyProgressText({ value: 1.9, unit: '% w/w' }, crit(true, 1.9, 1.99))).toBe('1.90 % w/w · endpoint at ≤ 1.99 % w/w');
+    expect(propertyProgressText({ value: 1.9, unit: '% w/w' }, { criteria: [] })).toBe('1.90 % w/w');
   });
 });
 

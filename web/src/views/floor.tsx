@@ -5,7 +5,7 @@ import { Badge, Empty, Loading } from '../components/status.tsx';
 import { AnalyzerStatusBadge } from '../components/analyzer-status.tsx';
 import { ENDPOINT_WORDS, UNIT_STATUS_WORDS, limitStatus, PRIORITY_WORDS } from '../format/status-words.ts';
 import { age, fixed, ofLimitPct, sig, withUnit } from '../format/number-format.ts';
-import { activeAlarmsText, etaText, progressText, stallAlarm } from './floor-data.ts';
+import { activeAlarmsText, etaText, progressView, propertyProgressText, stallAlarm } from './floor-data.ts';
 import type { Alarm } from '../../../core/api/rest.ts';
 import { HELD_CAUTION, holdLabels } from './endpoint-holds.tsx';
 import { href } from '../router.ts';
@@ -51,6 +51,7 @@ function UnitTile({ u, now, alarms }: { u: LiveUnitStatus; now: number; alarms: 
   const stale = u.status === 'stale' || u.status === 'offline';
   const stall = stallAlarm(alarms, u.id, u.openBatch?.id ?? null);
   const etaWords = etaText(u.endpoint, stall);
+  const prog = progressView(p, u.endpoint, stall);
   const alarmWords = activeAlarmsText(alarms, u.id);
   // The deployed version's health, read again when a batch starts or ends or the unit's health alarm changes.
   const healthAlarm = alarms.find((a) => a.unit === u.id && a.kind === 'model-health');
@@ -72,10 +73,10 @@ function UnitTile({ u, now, alarms }: { u: LiveUnitStatus; now: number; alarms: 
             </span>
             <span>{u.openBatch.product}</span>
           </div>
-          <div class="progress" role="progressbar" aria-valuemin={0} aria-valuemax={100} aria-valuenow={Math.round((p?.progressFraction ?? 0) * 100)}>
-            <div class="progress-fill" style={{ width: `${Math.min(100, Math.max(0, (p?.progressFraction ?? 0) * 100))}%` }} />
-            <span class="progress-text">
-              {progressText(p?.progressFraction, u.endpoint, p?.elapsedMin)}
+          <div class={`progress${prog.share === null ? ' progress-unknown' : ''}`} role="progressbar" aria-valuemin={0} aria-valuemax={100} aria-valuenow={prog.share === null ? undefined : Math.round(prog.share * 100)} aria-valuetext={prog.text}>
+            {prog.share !== null && <div class="progress-fill" style={{ width: `${Math.min(100, Math.max(0, prog.share * 100))}%` }} />}
+            <span class="progress-text" data-testid={`progress-${u.id}`}>
+              {prog.text}
             </span>
           </div>
           <dl class="tile-facts">
@@ -108,7 +109,7 @@ function UnitTile({ u, now, alarms }: { u: LiveUnitStatus; now: number; alarms: 
             {p?.prediction && (
               <>
                 <dt>{p.prediction.name}</dt>
-                <dd class="num">{withUnit(p.prediction.value, p.prediction.unit)}</dd>
+                <dd class="num" data-testid={`property-${u.id}`}>{propertyProgressText(p.prediction, u.endpoint)}</dd>
               </>
             )}
             {p?.envelopeOutside && (

@@ -15,7 +15,7 @@ import { ConnectionNote } from './floor.tsx';
 import { AlarmList } from './alarm-list.tsx';
 import { ContributionsPanel } from './contributions-panel.tsx';
 import { SpectrumPanel } from './spectrum-panel.tsx';
-import { etaText, stallAlarm } from './floor-data.ts';
+import { etaText, progressView, propertyProgressText, stallAlarm } from './floor-data.ts';
 import { useEnvelope } from './use-envelope.ts';
 import { alarmedPcsOf, alarmLimitScope, availablePcs, goldenPath, hasAlarmLimit, hasLocal, progressLabel, referencePaths, scoreBand, scoreData, statData, statLines } from './watch-data.ts';
 import { ENDPOINT_WORDS } from '../format/status-words.ts';
@@ -157,7 +157,7 @@ function WatchHead({ unit, s, connection }: { unit: string; s: LiveState; connec
         {b && <span>product {b.product}</span>}
         {b && <span>started {processTime(b.startedAt)}</span>}
         {r && <span>{minutes(r.elapsedMin)} elapsed</span>}
-        {r && <span>{percent(r.progressFraction)} of golden course</span>}
+        {r && <span data-testid="watch-progress">{progressView(r, s.endpoint ?? r.endpoint, stallAlarm(s.alarms.values(), b?.unit ?? unit, b?.id ?? null)).text.replace(/ · .* elapsed$/, '')}</span>}
         {s.model && (
           <span>
             model {s.model.name} v{s.model.version}
@@ -362,6 +362,8 @@ export function EndpointPanel({ ep, s }: { ep: EndpointStatus | null; s: LiveSta
       </ol>
       {ep.state === 'held' && <EndpointHolds holds={ep.holds} />}
       <dl class="facts">
+        <dt>Progress</dt>
+        <dd data-testid="progress">{progressView(s.latest, ep, stallAlarm(s.alarms.values(), s.batch?.unit ?? '', s.batch?.id ?? null)).text}</dd>
         <dt>Time to endpoint</dt>
         <dd data-testid="eta">{etaText(ep, stallAlarm(s.alarms.values(), s.batch?.unit ?? '', s.batch?.id ?? null), '') ?? '—'}</dd>
         <dt>Confirmation</dt>
@@ -389,7 +391,7 @@ export function EndpointPanel({ ep, s }: { ep: EndpointStatus | null; s: LiveSta
           <>
             <dt>Predicted {pred.name}</dt>
             <dd>
-              {withUnit(pred.value, pred.unit)}
+              {propertyProgressText(pred, ep)}
               {pred.extrapolating && <Badge tone="warn">extrapolating — outside calibration</Badge>}
             </dd>
           </>
