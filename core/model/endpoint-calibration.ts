@@ -145,6 +145,14 @@ export function resolveCriteria(
   if (typeof rule.minElapsedMin === 'number') minElapsed = { value: rule.minElapsedMin, method: 'set by the model owner' };
   else if (rule.minElapsedMin === 'auto') {
     const idx = ev.earliestMin.flatMap((v, b) => (v !== null && keep(b) ? [b] : []));
+    // Said so the form can act on it: in the leave-one-batch-out check one batch is left out, so
+    // two reference batches with known endpoints are not enough.
+    if (idx.length < 2) {
+      const known = ev.earliestMin.filter((v) => v !== null).length;
+      throw new RangeError(
+        `minimum time 'auto' needs the known endpoints of at least 2 reference batches${exclude !== null ? ` besides "${ev.batchIds[exclude]}", which the leave-one-batch-out check of the rule leaves out` : ''}; ${known} of the ${ev.batchIds.length} have one. Give the minimum time in minutes (or none), or choose ${exclude !== null ? 'at least 3' : 'at least 2'} reference batches with a known endpoint`,
+      );
+    }
     minElapsed = autoMinElapsed(idx.map((b) => ev.earliestMin[b]!), confidence, idx.map((b) => ev.batchIds[b]!));
   }
   return { criteria, endRegion, minElapsed };

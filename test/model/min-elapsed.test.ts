@@ -106,6 +106,10 @@ describe("minElapsedMin at build", () => {
     expect(m.endpoint).toMatchObject({ minElapsedMin: 12, minElapsedMethod: 'set by the model owner' });
     const noLab = refs.map((b, i) => (i === 2 ? { ...b, property: undefined } : b));
     expect(() => buildMonitoringModel(noLab, base)).toThrow(/calibrates the minimum time 'auto' on the reference batches' known endpoints, and 1 reference batch has none/);
+    // two reference batches: the leave-one-batch-out check leaves one, and the refusal says what to do
+    const two = sim.slice(0, 2);
+    const marked = { ...base, property: undefined, endpoint: { ...base.endpoint, criteria: [{ kind: 'mbsd', block: 5, threshold: 0.01 }] }, referenceEndpoints: two.map((b) => ({ batch: b.id, index: b.truth.endpointIndex! })) };
+    expect(() => buildMonitoringModel(refs.slice(0, 2).map((b) => ({ ...b, property: undefined })), marked)).toThrow(/minimum time 'auto' needs the known endpoints of at least 2 reference batches besides "[^"]+", which the leave-one-batch-out check of the rule leaves out; 2 of the 2 have one\. Give the minimum time in minutes \(or none\), or choose at least 3 reference batches with a known endpoint$/);
     // older models (no minimum) load as none
     const plain = buildMonitoringModel(refs, { ...base, endpoint: { ...base.endpoint, minElapsedMin: undefined } });
     expect(plain.endpoint.minElapsedMin).toBeUndefined();

@@ -57,6 +57,7 @@ describe('Model bench form: property model and endpoint rule into build settings
     const msg = (t: string) => `Cannot process: the model could not be built: ${t}`;
     expect(fieldOfBuildError(msg('build settings: endpoint.criteria.1.threshold: Too small'), rule)).toEqual({ field: 'endpoint.criteria.1', text: 'Build settings: endpoint.criteria.1.threshold: Too small' });
     expect(fieldOfBuildError(msg('property model: only 7 lab values of moisture on the reference batches; at least 10 are needed'), rule).field).toBe('property');
+    expect(fieldOfBuildError(msg(`minimum time 'auto' needs the known endpoints of at least 2 reference batches besides "b1", which the leave-one-batch-out check of the rule leaves out; 2 of the 2 have one. Give the minimum time in minutes (or none), or choose at least 3 reference batches with a known endpoint`), rule).field).toBe('endpoint.minElapsedMin');
     expect(fieldOfBuildError(msg('moving-block SD criterion: no reference batch has 5 spectra up to a known endpoint'), rule).field).toBe('endpoint.criteria.1');
     expect(fieldOfBuildError(msg('endpoint criterion "property": margin "auto" needs the cross-validated error of the property model'), rule).field).toBe('endpoint.criteria.0');
     expect(fieldOfBuildError(msg('the endpoint rule calibrates the moving-block SD threshold on the reference batches\' known endpoints, and 2 reference batches have none: "b1" (no lab values), "b2" (no lab values). Give their endpoints'), rule).field).toBe('referenceEndpoints');

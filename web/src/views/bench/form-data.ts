@@ -191,6 +191,7 @@ export function fieldOfBuildError(message: string, rule: RuleForm): { field: Fie
   if (/^moving-block SD criterion/i.test(text)) return { field: criterion('mbsd'), text: cap };
   if (/^plateau criterion/i.test(text)) return { field: criterion('plateau'), text: cap };
   if (/^golden end region/i.test(text)) return { field: criterion('golden-end'), text: cap };
+  if (/^minimum time/i.test(text)) return { field: 'endpoint.minElapsedMin', text: cap };
   if (/^(build settings: )?property model|progress\.source "property"/.test(text)) return { field: 'property', text: cap };
   if (/referenceEndpoints|known endpoint|endpoints? (of|for) /i.test(text)) return { field: 'referenceEndpoints', text: cap };
   if (/^reference batch|^excludeSpectra/.test(text)) return { field: 'referenceBatches', text: cap };
