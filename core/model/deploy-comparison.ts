@@ -40,7 +40,7 @@ function progressText(m: ComparableModel): string {
 function propertyText(m: ComparableModel): string | null {
   const p = propertyModelView(m);
   if (!p) return null;
-  return `${p.name} (${p.unit}), ${p.components} latent variables${p.target !== null ? `, target ${num(p.target)} ${p.unit} ${p.direction ?? ''}`.trimEnd() : ''}`;
+  return `${p.name} (${p.unit}), ${p.components} latent variables${p.target !== null ? `, target ${p.direction === 'above' ? '≥ ' : p.direction === 'below' ? '≤ ' : ''}${num(p.target)} ${p.unit}` : ''}`;
 }
 
 function axisText(m: ComparableModel): string {

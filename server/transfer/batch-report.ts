@@ -78,7 +78,7 @@ function evidenceSection(d: BatchReportData): string {
     const a = p.components;
     parts.push(
       table(['property model', 'value'], [
-        ['property', `${p.name} (${p.unit})${p.target !== null ? `, target ${num(p.target, 4)} ${p.direction}` : ''}`],
+        ['property', `${p.name} (${p.unit})${p.target !== null ? `, endpoint target ${p.direction === 'above' ? '≥' : '≤'} ${num(p.target, 4)} ${p.unit}` : ''}`],
         ['latent variables', `${a} — ${plainText(p.componentsRule)}`],
         ['RMSECV / bias at that count', `${num(p.rmsecv[a - 1], 3)} / ${num(p.bias[a - 1], 3)} ${p.unit} (${plainText(p.cvMethod)})`],
         ['lab values', `${p.nLabValues} on ${p.nBatchesWithLab} of ${p.nBatches} reference batches, ${num(p.calibrationRange[0], 4)}–${num(p.calibrationRange[1], 4)} ${p.unit}${p.batchesWithoutLab.length ? `; none on ${p.batchesWithoutLab.join(', ')}` : ''}`],
@@ -146,9 +146,11 @@ export function renderBatchReport(d: BatchReportData): string {
   for (const sc of pcs) {
     charts.push(
       lineChart({
-        title: `PC${sc.pc} score on the golden envelope`,
+        // The score is the preprocessed spectrum's projection on the model's loading: it has the
+        // spectrum's units after preprocessing (absorbance, or its derivative), not a bare "t1".
+        title: `PC${sc.pc} score on the golden envelope: the spectrum projected on principal component ${sc.pc} of the model`,
         xLabel,
-        yLabel: `PC${sc.pc} score`,
+        yLabel: `PC${sc.pc} score (preprocessed absorbance units)`,
         bands: [{ name: 'golden envelope', x: d.envelope!.progress, lower: sc.lower, upper: sc.upper, color: OKABE_ITO.skyBlue }],
         series: [
           { name: 'golden mean', x: d.envelope!.progress, y: sc.expected, color: OKABE_ITO.blue, dash: '5 3' },

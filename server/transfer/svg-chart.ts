@@ -85,10 +85,18 @@ export function niceTicks(lo: number, hi: number, count = 5): number[] {
   return ticks;
 }
 
+const SUPERSCRIPT: Record<string, string> = { '-': '⁻', '0': '⁰', '1': '¹', '2': '²', '3': '³', '4': '⁴', '5': '⁵', '6': '⁶', '7': '⁷', '8': '⁸', '9': '⁹' };
+
+/** A tick label: plain below 10⁵ and from 10⁻³, else "5 × 10⁻⁴" (not "5.0e-4", which reads as a code). */
 export function formatTick(v: number): string {
   if (v === 0) return '0';
   const a = Math.abs(v);
-  if (a >= 1e5 || a < 1e-3) return v.toExponential(1);
+  if (a >= 1e5 || a < 1e-3) {
+    const [mant, exp] = v.toExponential(1).split('e');
+    const m = Number(mant).toString();
+    const e = String(Number(exp)).replace(/[-0-9]/g, (c) => SUPERSCRIPT[c]!);
+    return m === '1' ? `10${e}` : m === '-1' ? `−10${e}` : `${m.replace('-', '−')} × 10${e}`;
+  }
   return Number(v.toPrecision(4)).toString();
 }
 

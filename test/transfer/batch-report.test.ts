@@ -3,7 +3,7 @@ import { mkdirSync, writeFileSync } from 'node:fs';
 import { describe, expect, it } from 'vitest';
 import { renderBatchReport, ADVISORY_TEXT, type BatchReportData } from '../../server/transfer/batch-report.ts';
 import { chromiumPath, htmlToPdf } from '../../server/transfer/report-pdf.ts';
-import { lineChart, niceTicks } from '../../server/transfer/svg-chart.ts';
+import { formatTick, lineChart, niceTicks } from '../../server/transfer/svg-chart.ts';
 import type { MonitorResult } from '../../core/monitor/types.ts';
 import { INTERNAL_CODE_WORDS } from '../../core/vocabulary/plain-names.ts';
 
@@ -68,7 +68,8 @@ describe('batch report', () => {
       },
     };
     const html = renderBatchReport(d);
-    for (const s of ["The model's endpoint rule and its check", 'predicted moisture ≤ 1.990 % w/w', 'margin z(0.7)·RMSECV', '1 early (at most 2 intervals, 0.333 min; 1 inside the lab bracket of their endpoint)', 'early (inside the lab bracket)', 'lab bracket 45–55', 'verdict', 'RMSECV / bias at that count', '0.02 / -0.004 % w/w', 'T² &gt; 369 or Q &gt; 0.0061', 'Approved with an override of the endpoint check', 'no endpoint before 41.5 min from the batch start', 'exhaust-temperature interlock stops the dryer']) expect(html).toContain(s);
+    for (const s of ["The model's endpoint rule and its check", 'predicted moisture ≤ 1.990 % w/w', 'margin z(0.7)·RMSECV', '1 early (at most 2 intervals, 0.333 min; 1 inside the lab bracket of their endpoint)', 'early (inside the lab bracket)', 'lab bracket 45–55', 'verdict', 'RMSECV / bias at that count', '0.02 / -0.004 % w/w', 'T² &gt; 369 or Q &gt; 0.0061', 'Approved with an override of the endpoint check', 'no endpoint before 41.5 min from the batch start', 'exhaust-temperature interlock stops the dryer', 'moisture (% w/w), endpoint target ≤ 2 % w/w', 'PC1 score (preprocessed absorbance units)']) expect(html).toContain(s);
+    expect(html).not.toMatch(/target 2 below/);
   });
 
   it('states the end from the endpoint record: a stalled batch is never "stopped after the endpoint"', () => {
@@ -105,6 +106,8 @@ describe('batch report', () => {
     const svg = lineChart({ title: 't', xLabel: 'elapsed time (min)', yLabel: 'T²', series: [{ name: 's', x: [0, 1], y: [1, 2], color: '#000' }], limits: [{ name: 'T² limit 99 %', y: 1.5, color: '#D55E00' }] });
     expect(svg).toContain('T² limit 99 %');
     expect(svg).toContain('elapsed time (min)');
+    // tick labels of small and large values read as numbers, not as codes ("5.0e-4")
+    expect([1e-4, 5e-4, 2e-4, 0.002, 12, 2.5e6, -3e-5].map(formatTick)).toEqual(['10⁻⁴', '5 × 10⁻⁴', '2 × 10⁻⁴', '0.002', '12', '2.5 × 10⁶', '−3 × 10⁻⁵']);
   });
 
   const haveTools = chromiumPath() !== null && spawnSync('pdftotext', ['-v']).status === 0;
