@@ -8,6 +8,7 @@
 import postgres from 'postgres';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { ChainedAuditTrail } from '../../../server/audit/audit-trail.ts';
+import { SqliteStorage } from '../../../server/storage/sqlite-storage.ts';
 import { PgStorage } from '../../../server/storage/postgres/pg-storage.ts';
 import { authContract, storageContract } from './contract.ts';
 import { findPostgres, startCluster, type PgCluster } from './pg-cluster.ts';
@@ -73,6 +74,37 @@ describe.skipIf(!installed)('PostgreSQL storage', () => {
         // The life-cycle columns do move (that is how a version is approved and retired).
         await st.approveModelVersion('v1', 'ann', 5, 'fit');
         expect((await st.getModelVersion('v1'))!.status).toBe('approved');
+      } finally {
+        await st.close();
+      }
+    });
+  });
+
+  describe('PostgreSQL keeps the guards SQLite has', () => {
+    it('every table on both backends refuses on PostgreSQL what SQLite refuses (and TRUNCATE where DELETE is refused)', async () => {
+      const lite = new SqliteStorage({ file: ':memory:' });
+      const guards = (lite.db.prepare(`SELECT tbl_name AS t, sql FROM sqlite_master WHERE type = 'trigger' AND sql LIKE '%RAISE(ABORT%'`).all() as { t: string; sql: string }[]).map((g) => ({
+        table: g.t,
+        event: /BEFORE\s+(UPDATE|DELETE)/i.exec(g.sql)![1]!.toUpperCase(),
+        columns: /UPDATE\s+OF\s+(.*?)\s+ON\s/is.exec(g.sql)?.[1]!.split(',').map((c) => c.trim()).sort() ?? [],
+      }));
+      await lite.close();
+      const st = await open();
+      try {
+        const tables = new Set((await st.sql`SELECT relname FROM pg_class WHERE relkind IN ('r', 'p') AND relnamespace = 'public'::regnamespace`).map((r) => r.relname as string));
+        // Before-triggers of Tideline's own (not the ones PostgreSQL clones onto partitions): 2 = BEFORE, 8 = DELETE, 16 = UPDATE, 32 = TRUNCATE.
+        const pg = (await st.sql`SELECT c.relname AS t, tr.tgtype AS type, p.proname AS fn,
+            array(SELECT a.attname::text FROM pg_attribute a WHERE a.attrelid = tr.tgrelid AND a.attnum = ANY (tr.tgattr)) AS columns
+          FROM pg_trigger tr JOIN pg_class c ON c.oid = tr.tgrelid JOIN pg_proc p ON p.oid = tr.tgfoid
+          WHERE NOT tr.tgisinternal AND tr.tgparentid = 0`) as unknown as { t: string; type: number; fn: string; columns: string[] }[];
+        const has = (table: string, bit: number, columns: string[] = []) =>
+          pg.some((g) => g.t === table && (g.type & 2) !== 0 && (g.type & bit) !== 0 && g.fn.startsWith('tideline_') && [...g.columns].sort().join() === columns.join());
+        const shared = guards.filter((g) => tables.has(g.table));
+        expect(shared.map((g) => g.table)).toEqual(expect.arrayContaining(['audit_trail', 'audit_head', 'auth_signatures', 'model_versions', 'spectra']));
+        for (const g of shared) {
+          expect(has(g.table, g.event === 'UPDATE' ? 16 : 8, g.columns), `${g.table}: BEFORE ${g.event}${g.columns.length ? ' OF ' + g.columns.join(',') : ''}`).toBe(true);
+          if (g.event === 'DELETE') expect(has(g.table, 32), `${g.table}: BEFORE TRUNCATE`).toBe(true);
+        }
       } finally {
         await st.close();
       }
