@@ -55,7 +55,7 @@ function HealthView({ h }: { h: ModelHealth }) {
       </table>
       {(h.t2 || h.q) && (
         <p class="small" data-testid="health-rates">
-          {[h.t2, h.q].filter((r) => r !== null).map((r) => `${r!.name}: ${r!.beyond} of ${r!.points} beyond (${pct(r!.rate)}; exact 95 % interval ${pct(r!.interval[0])}–${pct(r!.interval[1])}; nominal ${pct(r!.nominal)})`).join(' · ')}
+          {[h.t2, h.q].filter((r) => r !== null).map((r) => `${r!.name} alarm limit (${pct(r!.confidence)}${r!.limits === 'local' ? ', per point' : ''}, from ${r!.startupMin} min): ${r!.beyond} of ${r!.points} spectra beyond (${pct(r!.rate)}; exact 95 % interval ${pct(r!.interval[0])}–${pct(r!.interval[1])}; nominal ${pct(r!.nominal)}); ${r!.batches.left} of ${r!.batches.of} batches left it${r!.batches.baseline ? ` (before deployment ${r!.batches.baseline.left} of ${r!.batches.baseline.of})` : ''}`).join(' · ')}
         </p>
       )}
       {h.review.dueAt !== null && (
