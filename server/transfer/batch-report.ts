@@ -148,7 +148,7 @@ export function renderBatchReport(d: BatchReportData): string {
       lineChart({
         // The score is the preprocessed spectrum's projection on the model's loading: it has the
         // spectrum's units after preprocessing (absorbance, or its derivative), not a bare "t1".
-        title: `PC${sc.pc} score on the golden envelope: the spectrum projected on principal component ${sc.pc} of the model`,
+        title: `PC${sc.pc} score on the golden envelope (the spectrum's projection on PC${sc.pc})`,
         xLabel,
         yLabel: `PC${sc.pc} score (preprocessed absorbance units)`,
         bands: [{ name: 'golden envelope', x: d.envelope!.progress, lower: sc.lower, upper: sc.upper, color: OKABE_ITO.skyBlue }],
