@@ -174,6 +174,14 @@ export function settingsFromForm(p: PropertyForm, rule: RuleForm, limits: Limits
  * of the rule, the reference batches' endpoints, or the form as a whole (''). The server answers
  * "the model could not be built: …" with core's sentence.
  */
+/** The API's ways to give an endpoint, said as the form offers them (the server's sentence names settings and routes). */
+function formWords(text: string): string {
+  return text
+    .replace(/\(settings\.property with a target, and lab values on the batches\)/, '(turn on the property model above with a target; the batches need lab values)')
+    .replace(/\(a property column in the imported file, or POST \/api\/batches\/:batch\/lab-values\)/, '(imported with the batches, or attached in Review)')
+    .replace(/marks in settings\.referenceEndpoints \(.*?\) — or leave/, 'an endpoint typed in the table for each (minutes from the start, a spectrum as #316, or last only if the batch really ended there) — or leave');
+}
+
 export function fieldOfBuildError(message: string, rule: RuleForm): { field: FieldKey; text: string } {
   const text = message.replace(/^.*?the model could not be built:\s*/i, '').trim();
   const cap = text.charAt(0).toUpperCase() + text.slice(1);
@@ -193,7 +201,7 @@ export function fieldOfBuildError(message: string, rule: RuleForm): { field: Fie
   if (/^golden end region/i.test(text)) return { field: criterion('golden-end'), text: cap };
   if (/^minimum time/i.test(text)) return { field: 'endpoint.minElapsedMin', text: cap };
   if (/^(build settings: )?property model|progress\.source "property"/.test(text)) return { field: 'property', text: cap };
-  if (/referenceEndpoints|known endpoint|endpoints? (of|for) /i.test(text)) return { field: 'referenceEndpoints', text: cap };
+  if (/referenceEndpoints|known endpoint|endpoints? (of|for) /i.test(text)) return { field: 'referenceEndpoints', text: formWords(cap) };
   if (/^reference batch|^excludeSpectra/.test(text)) return { field: 'referenceBatches', text: cap };
   return { field: '', text: cap };
 }
