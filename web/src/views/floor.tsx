@@ -1,7 +1,7 @@
 /** Floor: one tile per unit — batch, product, progress, endpoint, T²/Q, alarms, stale data. Live. */
 import type { LiveUnitStatus } from '../../../core/api/live.ts';
 import { useLive } from '../live/use-live.ts';
-import { Badge, Empty, Loading } from '../components/status.tsx';
+import { Advisory, Badge, Empty, Loading } from '../components/status.tsx';
 import { AnalyzerStatusBadge } from '../components/analyzer-status.tsx';
 import { ENDPOINT_WORDS, UNIT_STATUS_WORDS, limitStatus, PRIORITY_WORDS } from '../format/status-words.ts';
 import { age, fixed, ofLimitPct, sig, withUnit } from '../format/number-format.ts';
@@ -32,6 +32,7 @@ export function Floor({ now }: { now: number }) {
           <UnitTile key={u.id} u={u} now={live.state.serverTime ?? now} alarms={[...live.state.alarms.values()]} />
         ))}
       </div>
+      {units.length > 0 && <Advisory text="Endpoint and time to endpoint are advice: Tideline advises; the site's validated control strategy, interlocks and procedures decide what an endpoint signal or alarm may do." />}
     </section>
   );
 }
