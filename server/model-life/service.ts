@@ -43,9 +43,11 @@ export class ModelLife {
     const g = (name: string, help: string) => new client.Gauge({ name, help, labelNames: ['unit', 'model', 'version'], registers: [reg] });
     this.gauges = {
       failed: g('tideline_model_health_failed', 'Health tests of the version deployed on the unit that fail now (0: healthy)'),
-      t2Rate: g('tideline_model_health_t2_beyond_ratio', 'Share of judged spectra beyond the drawn T² limit over the health window'),
-      qRate: g('tideline_model_health_q_beyond_ratio', 'Share of judged spectra beyond the drawn Q limit over the health window'),
-      nominal: g('tideline_model_health_nominal_ratio', 'Nominal share beyond a drawn limit (1 − confidence)'),
+      t2Rate: g('tideline_model_health_t2_beyond_ratio', 'Share of spectra judged after start-up beyond the T² alarm limit the monitor judges with, over the health window'),
+      qRate: g('tideline_model_health_q_beyond_ratio', 'Share of spectra judged after start-up beyond the Q alarm limit the monitor judges with, over the health window'),
+      nominal: g('tideline_model_health_nominal_ratio', 'Nominal share beyond an alarm limit (1 − its confidence)'),
+      t2Batches: g('tideline_model_health_t2_batches_left_ratio', 'Share of the health window\'s batches that left the T² alarm limit (more than 2× nominal of their spectra beyond)'),
+      qBatches: g('tideline_model_health_q_batches_left_ratio', 'Share of the health window\'s batches that left the Q alarm limit (more than 2× nominal of their spectra beyond)'),
       alarms: g('tideline_model_health_alarms_per_batch', 'Confirmed alarms per batch over the health window'),
       expected: g('tideline_model_health_alarms_per_batch_at_approval', 'Confirmed alarms per held-out good batch at approval'),
       drift: g('tideline_model_health_drift_ratio', 'Largest |EWMA| / limit of the batch-mean scores at the latest batch (above 1: drift)'),
@@ -188,7 +190,9 @@ export class ModelLife {
     this.gauges.failed.set(labels, failed.length);
     if (h.t2) this.gauges.t2Rate.set(labels, h.t2.rate);
     if (h.q) this.gauges.qRate.set(labels, h.q.rate);
-    this.gauges.nominal.set(labels, 1 - row.confidence);
+    if (h.t2) this.gauges.t2Batches.set(labels, h.t2.batches.share);
+    if (h.q) this.gauges.qBatches.set(labels, h.q.batches.share);
+    this.gauges.nominal.set(labels, h.t2 ? h.t2.nominal : 1 - row.confidence);
     this.gauges.alarms.set(labels, h.alarms.perBatch);
     if (h.alarms.expectedPerBatch !== null) this.gauges.expected.set(labels, h.alarms.expectedPerBatch);
     if (h.drift?.charts.length) {

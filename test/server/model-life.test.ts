@@ -235,5 +235,8 @@ describe('model health', () => {
     const metrics = await (await fetch(ts.server.url + '/metrics', { headers: { connection: 'close', authorization: `Bearer ${METRICS_TOKEN}` } })).text();
     expect(metrics).toMatch(/tideline_model_health_failed\{unit="dryer-1",model="dryer-test",version="2"\} [1-9]/);
     expect(metrics).toMatch(/tideline_model_health_review_due_seconds\{unit="dryer-1",model="dryer-test",version="2"\} -/);
+    // The rates as judged: nominal of the alarm limits, and the share of the window's batches that left them.
+    expect(metrics).toMatch(new RegExp(`tideline_model_health_nominal_ratio\\{unit="dryer-1",model="dryer-test",version="2"\\} ${h.t2.nominal}`));
+    expect(metrics).toMatch(new RegExp(`tideline_model_health_q_batches_left_ratio\\{unit="dryer-1",model="dryer-test",version="2"\\} ${h.q.batches.share}`));
   }, 120_000);
 });
