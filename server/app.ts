@@ -89,6 +89,10 @@ export async function startServer(config: ServerConfig, opts: StartOptions = {})
   for (const u of config.units) {
     if (!(await storage.getUnit(u.id))) await storage.createUnit({ id: u.id, name: u.name ?? u.id, kind: u.kind, description: '', createdAt: now() });
   }
+  // alarm actions the server takes itself (suppression by state) go to the audit trail, from the
+  // first commit on (recovery at start included); the pipeline records them after its commit and
+  // does not wait, so a failure is logged here
+  pipeline.audit = { record: (e) => void audit.record(e).catch((err: Error) => log.error(`audit record ${e.action} ${e.object} failed`, err)) };
   await pipeline.start();
 
   installAuth(ctx);
@@ -101,9 +105,6 @@ export async function startServer(config: ServerConfig, opts: StartOptions = {})
         'The server starts, and new records are chained on; report this under your quality system and compare with a kept anchor (npm run tideline -- audit verify --anchor SEQ:HASH).',
     );
   }
-  // alarm actions the server takes itself (suppression by state) go to the same audit trail; the
-  // pipeline records them after its commit and does not wait, so a failure is logged here
-  pipeline.audit = { record: (e) => void audit.record(e).catch((err: Error) => log.error(`audit record ${e.action} ${e.object} failed`, err)) };
   for (const part of ['signals', 'transfer', 'model-life']) {
     const file = join(here, part, 'index.ts');
     if (!existsSync(file)) continue;

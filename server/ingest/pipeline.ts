@@ -1355,8 +1355,9 @@ export class IngestPipeline {
 
   private recordAudit(a: AuditEntry) {
     try {
-      if (this.audit) this.audit.record(a);
-      else void this.storage.appendAudit({ at: this.now(), user: String(a.user), action: a.action, object: a.object, before: a.before, after: a.after, reason: a.reason ?? undefined }).catch((e) => this.log.error('audit record failed', e));
+      // The server sets the audit trail before the pipeline starts; there is no second place to record in.
+      if (!this.audit) throw new Error('no audit trail is installed');
+      this.audit.record(a);
     } catch (e) {
       this.log.error(`audit record ${a.action} ${a.object} failed`, e);
     }

@@ -20,6 +20,7 @@ import { readdirSync, readFileSync } from 'node:fs';
 import { dirname, join } from 'node:path';
 import { fileURLToPath } from 'node:url';
 import type Database from 'better-sqlite3';
+import { recordHash } from '../audit/record-hash.ts';
 import { StorageOpenError } from './open-check.ts';
 
 export const MIGRATIONS_DIR = join(dirname(fileURLToPath(import.meta.url)), 'migrations');
@@ -141,9 +142,24 @@ export function checkAppliedMigrations(db: Database.Database, file: string, know
   }
 }
 
+/**
+ * SQL functions the migrations may call (SQLite has no SHA-256 of its own): the audit record hash
+ * exactly as server/audit seals a record, and ms since the epoch as UTC ISO 8601 with ms and 'Z'.
+ */
+function registerMigrationFunctions(db: Database.Database): void {
+  db.function('tideline_iso_time', { deterministic: true }, (ms: unknown) => new Date(Number(ms)).toISOString());
+  db.function('tideline_audit_hash', { deterministic: true }, (seq: unknown, at: unknown, user: unknown, action: unknown, object: unknown, before: unknown, after: unknown, reason: unknown, prevHash: unknown) =>
+    recordHash({
+      seq: Number(seq), at: String(at), user: String(user), action: String(action), object: String(object),
+      before: before === null ? null : String(before), after: after === null ? null : String(after), reason: reason === null ? null : String(reason), prevHash: String(prevHash),
+    }),
+  );
+}
+
 /** Applies pending migrations after checking the database (see the header); returns the names applied now. */
 export function migrate(db: Database.Database, dir = MIGRATIONS_DIR, file = db.name): string[] {
   const known = readMigrations(dir);
+  registerMigrationFunctions(db);
   checkAppliedMigrations(db, file, known);
   db.exec(`CREATE TABLE IF NOT EXISTS schema_migrations (
     name TEXT PRIMARY KEY, number INTEGER NOT NULL UNIQUE, sha256 TEXT NOT NULL, applied_at INTEGER NOT NULL)`);

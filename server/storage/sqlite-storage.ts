@@ -22,7 +22,6 @@ import type {
   AlarmFilter,
   AnalyzerBootRow,
   AnalyzerRow,
-  AuditRow,
   BatchFilter,
   BatchRow,
   DeploymentRow,
@@ -231,7 +230,6 @@ export class SqliteStorage implements Storage {
       insertLabValue: p(INGEST_SQL.insertLabValue),
       labValues: p('SELECT * FROM lab_values WHERE batch = ? ORDER BY rowid'),
       spectrumTimes: p('SELECT t FROM spectra WHERE batch = ? ORDER BY idx'),
-      insertAudit: p('INSERT INTO audit (at, user, action, object, before, after, reason) VALUES (?, ?, ?, ?, ?, ?, ?)'),
     };
     const s = this.st;
     this.commitTx = this.db.transaction((w: IngestWrite) => {
@@ -591,10 +589,6 @@ export class SqliteStorage implements Storage {
   async shadowRunOfBatch(batch: string) {
     const r = this.db.prepare('SELECT r.id, r.model_version FROM shadow_batches b JOIN shadow_runs r ON r.id = b.run WHERE b.batch = ? LIMIT 1').get(batch) as Row | undefined;
     return r ? { id: r.id as string, modelVersion: r.model_version as string } : null;
-  }
-  async appendAudit(r: AuditRow) {
-    this.st.insertAudit.run(r.at, r.user, r.action, r.object, r.before === undefined ? null : JSON.stringify(r.before),
-      r.after === undefined ? null : JSON.stringify(r.after), r.reason ?? null);
   }
 }
 

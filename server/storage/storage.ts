@@ -138,16 +138,6 @@ export interface OutboxRow {
   createdAt: number;
 }
 
-export interface AuditRow {
-  at: number;
-  user: string;
-  action: string;
-  object: string;
-  before?: unknown;
-  after?: unknown;
-  reason?: string;
-}
-
 /** Everything one group commit writes, in one transaction. Order of application: as listed. */
 export interface IngestWrite {
   boots: { analyzer: string; boot: number; lastSeq: number; lastSeen: number }[];
@@ -302,10 +292,6 @@ export interface Storage extends UnitOfWorkRunner, AuthRepositories {
   activeShadowRuns(): Promise<{ id: string; unit: string; modelVersion: string }[]>;
   /** The shadow run that judges a batch, with its version; null when none. */
   shadowRunOfBatch(batch: string): Promise<{ id: string; modelVersion: string } | null>;
-
-  // the older, unchained `audit` table, still written by the ingest pipeline when it has no audit
-  // trail; everything else records through server/audit (the hash-chained `audit` repository above)
-  appendAudit(r: AuditRow): Promise<void>;
 }
 
 /** An accepted log entry as stored, to compare a resend of the same (analyzer, boot, seq) with. */
