@@ -14,6 +14,9 @@ describe('model-life panels', () => {
     expect(testStatus({ code: 'bias', failed: false, untested: true, text: '' }).word).toBe('not tested');
     expect(healthLine(health(['drift', 'review']))).toEqual({ text: 'model health: drift of batch-mean scores, periodic review — fails', tone: 'warn' });
     expect(healthLine(health([], ['bias']))!.text).toBe('model health: 5 of 6 tests pass over 2 batches');
+    // symbols keep their case in the sentence: "T² beyond its limit", never "t²"
+    expect(healthLine(health(['t2-rate', 'q-rate']))!.text).not.toMatch(/\bt²|\bq beyond/);
+    expect(healthLine(health(['t2-rate']))!.text).toMatch(/^model health: T²/);
     expect(healthLine(null)).toBeNull();
   });
   it('words endpoint differences and lab figures', () => {

@@ -20,10 +20,15 @@ const TEST_NAMES: Record<string, string> = {
 export const testName = (code: string) => TEST_NAMES[code] ?? code;
 
 /** One line for the Floor tile: the version's health in a few words; null when there is nothing to say. */
+/** "Drift of …" → "drift of …" inside a sentence; a name that starts with a symbol or an abbreviation (T², Q, EWMA) keeps its case. */
+function lowerFirst(s: string): string {
+  return /^[A-Z][a-z]/.test(s) ? s.charAt(0).toLowerCase() + s.slice(1) : s;
+}
+
 export function healthLine(h: ModelHealth | null): { text: string; tone: StatusTone } | null {
   if (!h) return null;
   const failed = h.tests.filter((t) => t.failed);
-  if (failed.length) return { text: `model health: ${failed.map((t) => testName(t.code).toLowerCase()).join(', ')} — fails`, tone: 'warn' };
+  if (failed.length) return { text: `model health: ${failed.map((t) => lowerFirst(testName(t.code))).join(', ')} — fails`, tone: 'warn' };
   const tested = h.tests.filter((t) => !t.untested).length;
   return { text: `model health: ${tested} of ${h.tests.length} tests pass over ${h.batches.length} batch${h.batches.length === 1 ? '' : 'es'}`, tone: 'ok' };
 }
