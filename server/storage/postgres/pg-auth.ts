@@ -30,8 +30,9 @@ class PgUsers implements UserRepository {
     const [r] = await this.sql<UserRow[]>`SELECT * FROM auth_users WHERE id = ${id}`;
     return r ?? null;
   }
+  /** By name regardless of case, as SQLite's NOCASE column orders them (for ASCII names). */
   async list() {
-    return [...(await this.sql<UserRow[]>`SELECT * FROM auth_users ORDER BY name COLLATE "C"`)];
+    return [...(await this.sql<UserRow[]>`SELECT * FROM auth_users ORDER BY lower(name) COLLATE "C", name COLLATE "C"`)];
   }
   async count() {
     return (await this.sql<{ n: number }[]>`SELECT count(*) AS n FROM auth_users`)[0]!.n;

@@ -19,6 +19,7 @@ if (!installed) console.warn('PostgreSQL is not installed (initdb/pg_ctl/postgre
 let cluster: PgCluster;
 let admin: postgres.Sql;
 let n = 0;
+const T0 = '2026-01-05T08:00:00.000Z';
 
 /** A fresh, empty database of the cluster; its name. */
 async function freshDatabase(): Promise<string> {
@@ -107,6 +108,44 @@ describe.skipIf(!installed)('PostgreSQL storage', () => {
         }
       } finally {
         await st.close();
+      }
+    });
+  });
+
+  describe('PostgreSQL on a database whose collation is not bytewise', () => {
+    it('orders names and ids as SQLite does and finds users regardless of case, on an ICU en-US database', async () => {
+      const db = `icu_${++n}`;
+      await admin.unsafe(`CREATE DATABASE ${db} TEMPLATE template0 ENCODING 'UTF8' LOCALE_PROVIDER icu ICU_LOCALE 'en-US' LOCALE 'C.UTF-8'`);
+      // en-US sorts a-3 < B-1 < b-2; SQLite compares ids bytewise (B < a < b), and user names
+      // case-insensitively (their column is COLLATE NOCASE).
+      expect((await admin.unsafe(`SELECT 'ada' < 'Bob' COLLATE "en-US-x-icu" AS icu`))[0]!.icu).toBe(true);
+      const fill = async (st: Pick<PgStorage, 'users' | 'createUnit' | 'createAnalyzer' | 'analyzerTokens'>) => {
+        for (const name of ['Zed', 'ada', 'Bob']) await st.users.insert({ name, fullName: name, role: 'viewer', passwordHash: 'h', mustChange: false, createdBy: 't', at: T0 });
+        for (const id of ['b-2', 'B-1', 'a-3']) {
+          await st.createUnit({ id, name: id, kind: 'other', description: '', createdAt: 0 });
+          await st.createAnalyzer({ id, name: id, createdAt: 0 });
+          await st.analyzerTokens.insert({ id, analyzer: id, label: '', tokenHash: id.padEnd(64, 'x'), createdAt: T0, createdBy: 't' });
+        }
+      };
+      const orders = async (st: Pick<PgStorage, 'users' | 'listUnits' | 'listAnalyzers' | 'analyzerTokens'>) => ({
+        users: (await st.users.list()).map((u) => u.name),
+        units: (await st.listUnits()).map((u) => u.id),
+        analyzers: (await st.listAnalyzers()).map((a) => a.id),
+        tokens: (await st.analyzerTokens.list()).map((t) => t.id),
+        byName: (await st.users.byName('ZED'))?.name ?? null,
+      });
+      const lite = new SqliteStorage({ file: ':memory:' });
+      const pg = await PgStorage.open({ url: cluster.url(db), max: 2 });
+      try {
+        await fill(lite);
+        await fill(pg);
+        const want = await orders(lite);
+        expect(want.units).toEqual(['B-1', 'a-3', 'b-2']);
+        expect(want.users).toEqual(['ada', 'Bob', 'Zed']);
+        expect(await orders(pg)).toEqual(want);
+      } finally {
+        await lite.close();
+        await pg.close();
       }
     });
   });
