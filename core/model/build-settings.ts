@@ -114,6 +114,8 @@ export const DEFAULT_SETTINGS: Omit<BuildSettings, 'name' | 'product' | 'author'
 /** Fill defaults and validate; throws naming the first bad field. */
 export function resolveBuildSettings(input: unknown): BuildSettings {
   if (typeof input !== 'object' || input === null) throw new TypeError('build settings must be an object');
+  const unknown = unknownBuildSettingKeys(input);
+  if (unknown.length) throw new RangeError(`build settings: ${unknown.map((k) => `"${k}"`).join(', ')} ${unknown.length === 1 ? 'is not a setting' : 'are not settings'} (a misspelt setting would build the model on the default)`);
   const i = input as Record<string, unknown>;
   const property = i.property as BuildSettings['property'] | undefined;
   const endpoint: EndpointRuleSpec =
@@ -153,4 +155,29 @@ export function parseStoredSettings(input: unknown): BuildSettings {
     throw new RangeError(`monitoring model: settings.${issue.path.join('.')}: ${issue.message}`);
   }
   return r.data as BuildSettings;
+}
+
+/**
+ * Keys of a build-settings input that no setting has, as dotted paths (`alarms.confidance`), so a
+ * misspelt setting is refused instead of building a model on the default. Checked over the plain
+ * groups (top level, progress, envelope, alarms, property, excludeSpectra items); the chain and the
+ * endpoint rule are checked by their own schemas, referenceEndpoints items are strict already.
+ */
+export function unknownBuildSettingKeys(input: unknown): string[] {
+  if (typeof input !== 'object' || input === null || Array.isArray(input)) return [];
+  const shape = buildSettingsSchema.shape;
+  const known = (o: object) => new Set(Object.keys(o));
+  const out: string[] = [];
+  const check = (value: unknown, keys: Set<string>, prefix: string) => {
+    if (typeof value !== 'object' || value === null || Array.isArray(value)) return;
+    for (const k of Object.keys(value)) if (!keys.has(k)) out.push(prefix + k);
+  };
+  check(input, known(shape), '');
+  const i = input as Record<string, unknown>;
+  check(i.progress, new Set(['kind', 'source']), 'progress.');
+  check(i.envelope, known(shape.envelope.shape), 'envelope.');
+  check(i.alarms, known(shape.alarms.shape), 'alarms.');
+  check(i.property, known(shape.property.unwrap().shape), 'property.');
+  if (Array.isArray(i.excludeSpectra)) i.excludeSpectra.forEach((x, n) => check(x, known(shape.excludeSpectra.unwrap().element.shape), `excludeSpectra.${n}.`));
+  return out;
 }

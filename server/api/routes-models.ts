@@ -12,6 +12,7 @@ import { idSchema } from './routes-plant.ts';
 import { nameSchema } from '../../core/io/names.ts';
 import { recordAudit, userOf } from './audit-helper.ts';
 import { parseMonitoringModel } from '../../core/model/monitoring-model.ts';
+import { unknownBuildSettingKeys } from '../../core/model/build-settings.ts';
 import { earlyBatchesText } from '../../core/model/endpoint-check.ts';
 import { transferAuditAfter, transferVersion } from '../models/transfer-service.ts';
 import { historyJob, startHistoryJob } from '../models/history-jobs.ts';
@@ -73,6 +74,10 @@ export function addModelRoutes(t: RouteTable, ctx: ServerContext) {
     handler: async ({ body, req }) =>
       guard(async () => {
         if (new Set(body.referenceBatches).size !== body.referenceBatches.length) throw new ModelRequestError(400, 'a reference batch is listed twice');
+        const unknown = unknownBuildSettingKeys(body.settings ?? {});
+        if (unknown.length) {
+          throw new HttpProblem(400, 'Unknown setting', `settings ${unknown.map((k) => `"${k}"`).join(', ')} ${unknown.length === 1 ? 'is not a build setting' : 'are not build settings'}: nothing was built (a misspelt setting would build the model on the default; docs/model-building.md lists the settings)`, 'unknown-setting', unknown.map((k) => ({ path: `body.settings.${k}`, message: 'not a build setting' })));
+        }
         const row = await buildFromStored(ctx, body, userOf(req));
         await recordAudit(ctx, { user: userOf(req), action: 'model.build', object: `model:${row.name}@${row.version}`, after: { id: row.id, sha256: row.sha256, referenceBatches: row.referenceBatches } });
         return modelVersionSummary(ctx.storage, row);
