@@ -21,7 +21,9 @@
  *   on target 0 (the scores are centred on the reference spectra, so the reference batches' mean
  *   scores centre on 0 by construction: the target is not estimated) and standardised by the root
  *   mean square of the reference batches' own batch-level mean scores; fails while the latest EWMA
- *   is beyond its limits.
+ *   is beyond its limits. The EWMA is clipped (Huber-type, DRIFT_CLIP): each batch moves it by at
+ *   most λ·k sd, so an isolated faulty batch — which the monitor alarms on by itself — does not
+ *   raise the drift test, while a sustained or gradual shift still carries it over its limits.
  * - bias: predicted property minus the lab values attached to the version's batches, t interval at
  *   1 − testAlpha; fails when it excludes zero.
  * - review: the periodic-review due date set at approval; fails once it has passed.
@@ -230,14 +232,14 @@ export function modelHealth(input: HealthInput): ModelHealth {
     for (let a = 0; a < nPc; a++) {
       const sd = rmsAboutZero(refs.map((r) => r[a]!));
       if (!(sd > 0)) continue;
-      const c = ewmaChart(judged.map((b) => b.meanScores[a]! / sd), 0, 1, { lambda: design.lambda, L: LA });
+      const c = ewmaChart(judged.map((b) => b.meanScores[a]! / sd), 0, 1, { lambda: design.lambda, L: LA, ...(design.clip !== undefined ? { clip: design.clip } : {}) });
       const last = c.ewma.length - 1;
       charts.push({ pc: a + 1, ewma: c.ewma, limit: c.halfWidth, firstSignal: c.firstSignal, signalling: last >= 0 && Math.abs(c.ewma[last]!) > c.halfWidth[last]! });
     }
     const failed = charts.some((c) => c.signalling);
     drift = {
       lambda: design.lambda, L: design.L, LPerChart: LA, baselineBatches: refs.length, charts, failed,
-      method: `EWMA (λ = ${design.lambda}, L = ${design.L}; Lucas & Saccucci 1990, NIST/SEMATECH handbook 6.3.2.4) of each PC's batch-mean score, on target 0 (PCA scores are centred on the reference spectra) and standardised by the root mean square of the ${refs.length} reference batches' batch-mean scores; exact (time-varying) limits. ${nPc} charts, each at the Bonferroni width L = ${LA.toFixed(2)} (the per-point tail of L = ${design.L} shared among them), so the set signals on good batches about as rarely as one chart.`,
+      method: `EWMA (λ = ${design.lambda}, L = ${design.L}; Lucas & Saccucci 1990, NIST/SEMATECH handbook 6.3.2.4) of each PC's batch-mean score${design.clip !== undefined ? `, clipped (Huber-type robust EWMA): each batch's deviation from the previous EWMA value is limited to ±${design.clip} sd before smoothing, so one outlying batch moves it by at most ${Number((design.lambda * design.clip).toPrecision(3))} sd` : ''}, on target 0 (PCA scores are centred on the reference spectra) and standardised by the root mean square of the ${refs.length} reference batches' batch-mean scores; exact (time-varying) limits. ${nPc} charts, each at the Bonferroni width L = ${LA.toFixed(2)} (the per-point tail of L = ${design.L} shared among them), so the set signals on good batches about as rarely as one chart.`,
     };
     const sig = charts.filter((c) => c.signalling).map((c) => `PC${c.pc}`);
     // The chart furthest out at the latest batch: its |EWMA| and its limit (sd of the reference batch means).

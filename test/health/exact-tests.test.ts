@@ -1,6 +1,6 @@
 import { describe, expect, it } from 'vitest';
 import { binomialTestTwoSided, fisherExactGreater, poissonUpperTail, tInterval } from '../../core/health/exact-tests.ts';
-import { DRIFT_EWMA, ewmaChart } from '../../core/health/ewma.ts';
+import { DRIFT_CLIP, DRIFT_EWMA, ewmaChart } from '../../core/health/ewma.ts';
 import { createPrng } from '../../core/stats/prng.ts';
 import { scipyNamed } from '../limits/scipy.ts';
 
@@ -86,13 +86,52 @@ describe('EWMA chart', () => {
     c.ewma.forEach((v, i) => expect(v).toBeCloseTo(ref.ewma![i]!, 10));
     c.halfWidth.forEach((v, i) => expect(v).toBeCloseTo(ref.h![i]!, 10));
   });
-  it('signals a one-sigma shift within a few points with the drift design (λ 0.2, L 3)', () => {
+  it('signals a 1.5 σ shift within a few points with the drift design (λ 0.2, L 3, clipped at 1.5 σ)', () => {
     const rng = createPrng(7);
     const x = Array.from({ length: 60 }, (_, i) => rng.normal() + (i >= 30 ? 1.5 : 0));
     const c = ewmaChart(x, 0, 1, DRIFT_EWMA);
     expect(c.firstSignal).not.toBeNull();
     expect(c.firstSignal!).toBeGreaterThanOrEqual(30);
     expect(c.firstSignal!).toBeLessThan(45);
+  });
+  it('clipped (robust) EWMA: in-control signal rate on N(0,1) sequences at or below the design α, its steps limited to ±k·σ', () => {
+    // Design α per point at the asymptotic limits: 2·(1 − Φ(3)) = 0.0027 (standard normal table).
+    // Seeded Monte Carlo, 2000 sequences of 200 points (400 000 points; signals come in clusters, so
+    // the tolerance is wide): the plain EWMA within ±25 % of α, the clipped one (k = 1.5) at or below
+    // the plain one and above α/10 (its limits still mean something: 0.0012 was observed).
+    const alpha = 0.0027;
+    const rng = createPrng(2024);
+    let plain = 0;
+    let clipped = 0;
+    let points = 0;
+    for (let r = 0; r < 2000; r++) {
+      const x = Array.from({ length: 200 }, () => rng.normal());
+      const p = ewmaChart(x, 0, 1, { lambda: 0.2, L: 3 });
+      const c = ewmaChart(x, 0, 1, DRIFT_EWMA);
+      for (let i = 0; i < x.length; i++) {
+        points++;
+        if (Math.abs(p.ewma[i]!) > p.halfWidth[i]!) plain++;
+        if (Math.abs(c.ewma[i]!) > c.halfWidth[i]!) clipped++;
+      }
+    }
+    console.log(`in-control signal rate per point: plain ${(plain / points).toFixed(5)}, clipped (k = ${DRIFT_CLIP}) ${(clipped / points).toFixed(5)}, design α ${alpha}`);
+    expect(DRIFT_EWMA.clip).toBe(1.5);
+    expect(plain / points).toBeGreaterThan(alpha * 0.75);
+    expect(plain / points).toBeLessThan(alpha * 1.25);
+    expect(clipped).toBeLessThanOrEqual(plain);
+    expect(clipped / points).toBeGreaterThan(alpha / 10);
+    // One far-off point moves the clipped EWMA by λ·k·σ at most; the plain one by λ times its distance.
+    const one = ewmaChart([0, 0, 20, 0], 0, 1, DRIFT_EWMA);
+    expect(one.ewma[2]).toBeCloseTo(0.2 * 1.5, 12);
+    expect(ewmaChart([0, 0, 20, 0], 0, 1, { lambda: 0.2, L: 3 }).ewma[2]).toBeCloseTo(4, 12);
+    // A sustained 1.5 σ shift is still signalled within a few points.
+    const rng2 = createPrng(7);
+    const x = Array.from({ length: 60 }, (_, i) => rng2.normal() + (i >= 30 ? 1.5 : 0));
+    const c = ewmaChart(x, 0, 1, DRIFT_EWMA);
+    expect(c.firstSignal).not.toBeNull();
+    expect(c.firstSignal!).toBeGreaterThanOrEqual(30);
+    expect(c.firstSignal!).toBeLessThan(45);
+    expect(() => ewmaChart([1], 0, 1, { lambda: 0.2, L: 3, clip: 0 })).toThrow(/clip/);
   });
   it('names bad designs', () => {
     expect(() => ewmaChart([1], 0, 1, { lambda: 0, L: 3 })).toThrow(/λ/);

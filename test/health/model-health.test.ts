@@ -42,13 +42,41 @@ describe('model health', () => {
     expect(h.t2!.points).toBe(20 * 300);
     expect(h.drift!.charts).toHaveLength(2);
   });
-  it('a slow shift of the batch-mean score (0.1 sd per batch from batch 10) turns the drift test on within 25 batches of its onset (here after 22: the shift reached 2.2 sd)', () => {
+  it('a slow shift of the batch-mean score (0.1 sd per batch from batch 10) turns the drift test on within 25 batches of its onset, with the clipped EWMA as with the plain one', () => {
     const all = batches(40, 2, 0.1, 10);
     let on: number | null = null;
     for (let n = 1; n <= all.length && on === null; n++) if (modelHealth(input(all.slice(0, n))).tests.find((t) => t.code === 'drift')!.failed) on = n;
     expect(on).not.toBeNull();
     expect(on!).toBeGreaterThan(10);
     expect(on!).toBeLessThanOrEqual(10 + 25);
+    let plainOn: number | null = null;
+    for (let n = 1; n <= all.length && plainOn === null; n++) if (modelHealth(input(all.slice(0, n), { ewma: { lambda: 0.2, L: 3 } })).drift!.failed) plainOn = n;
+    console.log(`slow shift from batch 10: drift test on after ${on} batches (clipped EWMA), ${plainOn} (plain)`);
+  });
+  it('a 1-in-4 mix of faulty batches on a good process (isolated batches far off, as the demo runs) rarely turns the drift test on; the plain EWMA stood on it', () => {
+    // Seeded mix shaped like the demo (scripts/demo.ts: every 4th batch carries a fault, its type
+    // cycling): three fault signatures, each pushing the batch-mean scores far along its own direction
+    // (4–16 sd of the reference batch means), the other batches good.
+    const rng = createPrng(31);
+    const dirs = [[1, 0.3], [-0.4, 1], [0.7, -0.7]];
+    const mix = batches(60, 5).map((b, i) => {
+      if (i % 4 !== 3) return b;
+      const d = dirs[(5 + i) % 3]!;
+      const m = 4 + 12 * rng.next();
+      return { ...b, meanScores: [b.meanScores[0]! + 2 * m * d[0]!, b.meanScores[1]! + m * d[1]!] };
+    });
+    const fires = (over: Partial<HealthInput>, b: HealthBatch[]) => {
+      let n = 0;
+      for (let k = 1; k <= b.length; k++) if (modelHealth(input(b.slice(0, k), over)).drift!.failed) n++;
+      return n;
+    };
+    const plain = fires({ ewma: { lambda: 0.2, L: 3 } }, mix);
+    const robust = fires({}, mix);
+    const goodOnly = fires({}, mix.filter((_, i) => i % 4 !== 3));
+    console.log(`drift test failing at ${plain} of 60 batch counts with the plain EWMA, ${robust} with the clipped one (k = 1.5); ${goodOnly} of 45 on the good batches alone`);
+    expect(plain).toBeGreaterThan(15);
+    expect(robust).toBeLessThanOrEqual(3);
+    expect(goodOnly).toBe(0);
   });
   it('fails the rate test on a T² rate far above nominal, the alarm test on many alarms, bias and review', () => {
     const b = batches(20, 3).map((x) => ({ ...x, t2Beyond: 15, alarms: 2, labResiduals: [0.5 + x.labResiduals[0]! * 0.1] }));

@@ -59,6 +59,7 @@ describe('model health on a slow raw-material drift', () => {
     }
     expect(drift.slice(0, GOOD)).toEqual(new Array(GOOD).fill(false));
     const on = drift.indexOf(true);
+    console.log(`drift test on from drifting batch ${on - GOOD + 1}; failing at ${drift.filter(Boolean).length} of ${DRIFTING} drifting batch counts`);
     expect(on).toBeGreaterThanOrEqual(GOOD);
     expect(on - GOOD + 1).toBeLessThanOrEqual(12);
     expect(drift[drift.length - 1]).toBe(true);
