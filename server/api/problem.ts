@@ -22,6 +22,14 @@ export class HttpProblem extends Error {
   }
 }
 
+/**
+ * A refused request as the one problem class: the title (and with it the problem type) follows the
+ * status when not given — 404 Not found, 409 Conflict, otherwise Cannot process.
+ */
+export function requestProblem(status: number, detail: string, title?: string, kind?: string): HttpProblem {
+  return new HttpProblem(status, title ?? (status === 404 ? 'Not found' : status === 409 ? 'Conflict' : 'Cannot process'), detail, kind);
+}
+
 function slug(s: string) {
   return s.toLowerCase().replace(/[^a-z0-9]+/g, '-').replace(/^-|-$/g, '');
 }

@@ -4,8 +4,8 @@ import type { ModelSummary, Page } from '../../core/api/rest.ts';
 import type { ServerContext } from '../context.ts';
 import { SignatureError, type AuthUser } from '../auth/types.ts';
 import type { Request } from 'express';
-import { ModelRequestError, buildFromStored, envelopeView, evaluateVersion, latestApprovalEvidence, referencesView, versionDetail } from '../models/model-service.ts';
-import { HttpProblem, conflict, notFound } from './problem.ts';
+import { buildFromStored, envelopeView, evaluateVersion, latestApprovalEvidence, referencesView, versionDetail } from '../models/model-service.ts';
+import { HttpProblem, conflict, notFound, requestProblem } from './problem.ts';
 import type { RouteTable } from './route-table.ts';
 import { modelVersionSummary } from './views.ts';
 import { idSchema } from './routes-plant.ts';
@@ -25,7 +25,6 @@ async function guard<T>(f: () => Promise<T>): Promise<T> {
   try {
     return await f();
   } catch (e) {
-    if (e instanceof ModelRequestError) throw new HttpProblem(e.status, e.title ?? (e.status === 404 ? 'Not found' : e.status === 409 ? 'Conflict' : 'Cannot process'), e.message, e.kind);
     if (e instanceof SignatureError) throw new HttpProblem(e.status, 'Signature refused', e.message, 'signature-refused');
     throw e;
   }
@@ -73,7 +72,7 @@ export function addModelRoutes(t: RouteTable, ctx: ServerContext) {
     }).strict(),
     handler: async ({ body, req }) =>
       guard(async () => {
-        if (new Set(body.referenceBatches).size !== body.referenceBatches.length) throw new ModelRequestError(400, 'a reference batch is listed twice');
+        if (new Set(body.referenceBatches).size !== body.referenceBatches.length) throw requestProblem(400, 'a reference batch is listed twice');
         const unknown = unknownBuildSettingKeys(body.settings ?? {});
         if (unknown.length) {
           throw new HttpProblem(400, 'Unknown setting', `settings ${unknown.map((k) => `"${k}"`).join(', ')} ${unknown.length === 1 ? 'is not a build setting' : 'are not build settings'}: nothing was built (a misspelt setting would build the model on the default; docs/model-building.md lists the settings)`, 'unknown-setting', unknown.map((k) => ({ path: `body.settings.${k}`, message: 'not a build setting' })));

@@ -14,7 +14,7 @@ import { matrixFromRows } from '../../core/linalg/dense-matrix.ts';
 import { fitChain } from '../../core/preprocess/index.ts';
 import type { ChainSpec } from '../../core/preprocess/spec.ts';
 import { historyPca } from './history-pca.ts';
-import { ModelRequestError } from './model-service.ts';
+import { requestProblem } from '../api/problem.ts';
 
 /** Spectra the chain's learned state (MSC reference, scaling) is fitted on, spread evenly over the batches. */
 export const CHAIN_SAMPLE = 2000;
@@ -34,20 +34,20 @@ export function historyJob(ctx: ServerContext, id: string): HistoryJobView | nul
 export async function startHistoryJob(ctx: ServerContext, req: { referenceBatches: string[]; components: number; groups?: number; chain?: unknown[] }, user: string): Promise<HistoryJobView> {
   const all = jobsOf(ctx);
   const running = [...all.values()].find((j) => j.status === 'running');
-  if (running) throw new ModelRequestError(409, `a plant-history decomposition is already running (job ${running.job}, started by ${running.startedBy}); try again when it has finished`, 'Plant-history job running', 'history-busy');
+  if (running) throw requestProblem(409, `a plant-history decomposition is already running (job ${running.job}, started by ${running.startedBy}); try again when it has finished`, 'Plant-history job running', 'history-busy');
   const ids = req.referenceBatches;
-  if (new Set(ids).size !== ids.length) throw new ModelRequestError(400, 'a reference batch is listed twice');
+  if (new Set(ids).size !== ids.length) throw requestProblem(400, 'a reference batch is listed twice');
   let axis: Float64Array | null = null;
   for (const id of ids) {
     const b = await ctx.storage.getBatch(id);
-    if (!b) throw new ModelRequestError(404, `reference batch "${id}" does not exist`);
-    if (b.status !== 'ended') throw new ModelRequestError(409, `reference batch "${id}" is still open; only ended batches can be references`);
-    if (b.spectrumCount < 1) throw new ModelRequestError(422, `reference batch "${id}" has no spectra`);
+    if (!b) throw requestProblem(404, `reference batch "${id}" does not exist`);
+    if (b.status !== 'ended') throw requestProblem(409, `reference batch "${id}" is still open; only ended batches can be references`);
+    if (b.spectrumCount < 1) throw requestProblem(422, `reference batch "${id}" has no spectra`);
     if (!axis) axis = Float64Array.from(b.axis);
-    else if (b.axis.length !== axis.length || b.axis.some((v, j) => Math.abs(v - axis![j]!) > 1e-6)) throw new ModelRequestError(422, `reference batch "${id}" is on another wavelength axis than "${ids[0]}" (${b.axis.length} points); resample on import (resampleToModel) or choose batches of one analyzer`);
+    else if (b.axis.length !== axis.length || b.axis.some((v, j) => Math.abs(v - axis![j]!) > 1e-6)) throw requestProblem(422, `reference batch "${id}" is on another wavelength axis than "${ids[0]}" (${b.axis.length} points); resample on import (resampleToModel) or choose batches of one analyzer`);
   }
   const groups = req.groups ?? Math.min(7, ids.length);
-  if (groups !== 0 && (groups < 2 || groups > ids.length)) throw new ModelRequestError(422, `groups = ${groups} must be 0 (no cross-validation) or from 2 to the ${ids.length} batches`);
+  if (groups !== 0 && (groups < 2 || groups > ids.length)) throw requestProblem(422, `groups = ${groups} must be 0 (no cross-validation) or from 2 to the ${ids.length} batches`);
   // The chain's learned state from an evenly spread sample (at most CHAIN_SAMPLE spectra).
   let chainJson: unknown = null;
   let chainText = 'raw spectra (no preprocessing)';
@@ -65,7 +65,7 @@ export async function startHistoryJob(ctx: ServerContext, req: { referenceBatche
       chainJson = chain.toJSON();
       chainText = `${(req.chain as { step: string }[]).map((s) => s.step).join(' → ')}, learned state fitted on ${rows.length} spectra spread over the batches`;
     } catch (e) {
-      throw new ModelRequestError(422, `the preprocessing chain could not be fitted: ${(e as Error).message}`);
+      throw requestProblem(422, `the preprocessing chain could not be fitted: ${(e as Error).message}`);
     }
   }
   const job: HistoryJobView = {

@@ -2,6 +2,7 @@
  * Model versions on the server: build from stored reference batches (core buildMonitoringModel, run
  * in a worker thread by build-runner.ts), register an immutable version with its hash, evaluate a version by replaying stored batches.
  */
+import { requestProblem } from '../api/problem.ts';
 import { randomUUID } from 'node:crypto';
 import type { ApprovalEvidence, BatchEvaluation, EvaluationResult, ModelEnvelopeView, ModelReferencesView, ModelVersionDetail } from '../../core/api/rest.ts';
 import type { ServerContext } from '../context.ts';
@@ -17,13 +18,6 @@ import { earlyBatchesText } from '../../core/model/endpoint-check.ts';
 import { endpointCheckView, endpointRuleView, propertyModelView, referenceEndpointsView } from '../../core/model/version-evidence.ts';
 import { labPropertyArray, LabValueError, normalisePropertyName } from '../../core/lab/lab-values.ts';
 import { calibrationTransferView } from '../../core/calibration-transfer/transfer-model.ts';
-
-export class ModelRequestError extends Error {
-  /** `title` and `kind` (problem type slug) default by status in routes-models.ts. */
-  constructor(readonly status: number, message: string, readonly title?: string, readonly kind?: string) {
-    super(message);
-  }
-}
 
 interface ModelShape extends MonitoringModelLike {
   limits: { t2: { value: number; confidence: number; method: string }; q: { value: number; confidence: number; method: string; note?: string }; combined?: { value: number } };
@@ -61,8 +55,8 @@ export async function registerModelFile(ctx: ServerContext, file: BuiltModelFile
  */
 export async function loadReferenceBatch(ctx: ServerContext, id: string, property?: { name: string; unit?: string }): Promise<ReferenceBatchInput> {
   const b = await ctx.storage.getBatch(id);
-  if (!b) throw new ModelRequestError(404, `reference batch "${id}" does not exist`);
-  if (b.status !== 'ended') throw new ModelRequestError(409, `reference batch "${id}" is still open; only ended batches can be references`);
+  if (!b) throw requestProblem(404, `reference batch "${id}" does not exist`);
+  if (b.status !== 'ended') throw requestProblem(409, `reference batch "${id}" is still open; only ended batches can be references`);
   const times: number[] = [];
   const spectra: Float32Array[] = [];
   for await (const s of ctx.storage.iterateSpectra(id)) {
@@ -75,7 +69,7 @@ export async function loadReferenceBatch(ctx: ServerContext, id: string, propert
     const { values } = labPropertyArray(await ctx.storage.listLabValues(id), name, spectra.length, property.unit);
     return { id, axis: b.axis, times, spectra, property: values };
   } catch (e) {
-    if (e instanceof LabValueError) throw new ModelRequestError(422, `reference batch "${id}": ${e.message}`, 'Lab values in another unit', 'lab-unit-mismatch');
+    if (e instanceof LabValueError) throw requestProblem(422, `reference batch "${id}": ${e.message}`, 'Lab values in another unit', 'lab-unit-mismatch');
     throw e;
   }
 }
@@ -110,7 +104,7 @@ export async function buildFromStored(
   try {
     release = runner.acquire(info);
   } catch (e) {
-    if (e instanceof BuildBusyError) throw new ModelRequestError(409, e.message, 'Model build running', 'model-build-busy');
+    if (e instanceof BuildBusyError) throw requestProblem(409, e.message, 'Model build running', 'model-build-busy');
     throw e;
   }
   try {
@@ -122,8 +116,8 @@ export async function buildFromStored(
     try {
       file = await runner.build(info, batches, { ...(req.settings ?? {}), name: req.name, product: req.product, author: user, createdAt: ctx.now() });
     } catch (e) {
-      if (e instanceof BuildFailedError && e.kind === 'model') throw new ModelRequestError(422, `the model could not be built: ${e.message}`);
-      if (e instanceof BuildFailedError) throw new ModelRequestError(500, `the model could not be built: ${e.message}; the server goes on`, 'Model build failed', 'model-build-failed');
+      if (e instanceof BuildFailedError && e.kind === 'model') throw requestProblem(422, `the model could not be built: ${e.message}`);
+      if (e instanceof BuildFailedError) throw requestProblem(500, `the model could not be built: ${e.message}; the server goes on`, 'Model build failed', 'model-build-failed');
       throw e;
     }
     return await registerModelFile(ctx, file, { createdBy: user, referenceBatches: req.referenceBatches });
@@ -134,17 +128,17 @@ export async function buildFromStored(
 
 export async function evaluateVersion(ctx: ServerContext, versionId: string, batchIds: string[], user: string, faulty: string[] = []): Promise<EvaluationResult> {
   const unknownFaulty = faulty.filter((f) => !batchIds.includes(f));
-  if (unknownFaulty.length) throw new ModelRequestError(400, `faulty lists ${unknownFaulty.join(', ')}, which ${unknownFaulty.length === 1 ? 'is' : 'are'} not among the batches evaluated`);
+  if (unknownFaulty.length) throw requestProblem(400, `faulty lists ${unknownFaulty.join(', ')}, which ${unknownFaulty.length === 1 ? 'is' : 'are'} not among the batches evaluated`);
   const row = await ctx.storage.getModelVersion(versionId);
   const core = await ctx.ingest.getCore();
   const model = (await ctx.ingest.loadModel(versionId)) as ModelShape | null;
-  if (!model) throw new ModelRequestError(404, `model version "${versionId}" does not exist`);
+  if (!model) throw requestProblem(404, `model version "${versionId}" does not exist`);
   const out: BatchEvaluation[] = [];
   for (const id of batchIds) {
     const b = await ctx.storage.getBatch(id);
-    if (!b) throw new ModelRequestError(404, `batch "${id}" does not exist`);
+    if (!b) throw requestProblem(404, `batch "${id}" does not exist`);
     if (b.axis.length !== model.chain.inputAxis.length) {
-      throw new ModelRequestError(422, `batch "${id}" has ${b.axis.length} wavelengths; the model expects ${model.chain.inputAxis.length}`);
+      throw requestProblem(422, `batch "${id}" has ${b.axis.length} wavelengths; the model expects ${model.chain.inputAxis.length}`);
     }
     const mon = core.createBatchMonitor(model, b.startT);
     const ev: BatchEvaluation = { batch: id, spectra: 0, pointsOutside: 0, alarms: 0, firstAlarmAt: null, firstAlarmKind: null, endpointAt: null, maxT2: 0, maxQ: 0, t2Beyond: 0, qBeyond: 0, judged: { points: 0, t2Beyond: 0, qBeyond: 0, confidence: model.alarmLimits?.confidence ?? model.limits.t2.confidence } };
@@ -227,7 +221,7 @@ export async function versionDetail(ctx: ServerContext, row: ModelVersionRow): P
 
 export async function envelopeView(ctx: ServerContext, row: ModelVersionRow): Promise<ModelEnvelopeView> {
   const model = (await ctx.ingest.loadModel(row.id)) as ModelShape | null;
-  if (!model) throw new ModelRequestError(503, 'batch monitoring is not available on this server');
+  if (!model) throw requestProblem(503, 'batch monitoring is not available on this server');
   const progress = (model.settings as { progress?: { kind: string; source?: string } }).progress ?? { kind: 'time' };
   const env = model.envelope;
   return {
@@ -247,7 +241,7 @@ export async function envelopeView(ctx: ServerContext, row: ModelVersionRow): Pr
 /** The reference batches' paths of a version (GET /api/models/versions/:version/references). */
 export async function referencesView(ctx: ServerContext, row: ModelVersionRow): Promise<ModelReferencesView> {
   const model = (await ctx.ingest.loadModel(row.id)) as ModelShape | null;
-  if (!model) throw new ModelRequestError(503, 'batch monitoring is not available on this server');
+  if (!model) throw requestProblem(503, 'batch monitoring is not available on this server');
   return { versionId: row.id, references: await referenceTrajectories(ctx, row, model) };
 }
 

@@ -9,7 +9,7 @@ import { parseMonitoringModel } from '../../core/model/monitoring-model.ts';
 import { ChainedAuditTrail } from '../audit/audit-trail.ts';
 import { ConfigError } from '../config.ts';
 import type { Storage } from '../storage/storage.ts';
-import { ModelRequestError } from './model-service.ts';
+import { HttpProblem } from '../api/problem.ts';
 import { transferBlockingWarning } from '../../core/calibration-transfer/transfer-model.ts';
 import { transferAuditAfter, transferVersion } from './transfer-service.ts';
 
@@ -74,7 +74,7 @@ export async function runModelCli(positional: string[], flags: Record<string, st
     if (w) out(`warning: ${w.text} Approval needs evidenceOverride.\n`);
     return 0;
   } catch (e) {
-    if (e instanceof ModelRequestError) {
+    if (e instanceof HttpProblem) {
       out(`transfer refused, nothing was stored: ${e.message}\n`);
       return 3;
     }

@@ -12,12 +12,12 @@ import { fitTransfer, type TransferSet } from '../../core/calibration-transfer/t
 import { labPropertyArray, LabValueError, normalisePropertyName } from '../../core/lab/lab-values.ts';
 import { parseMonitoringModel, serializeMonitoringModel, withTransfer, type MonitoringModel } from '../../core/model/monitoring-model.ts';
 import type { ModelVersionRow, Storage } from '../storage/storage.ts';
-import { ModelRequestError } from './model-service.ts';
+import { requestProblem } from '../api/problem.ts';
 
 async function loadSpectra(storage: Storage, id: string, role: string): Promise<{ axis: ArrayLike<number>; spectra: Float32Array[] }> {
   const b = await storage.getBatch(id);
-  if (!b) throw new ModelRequestError(404, `transfer batch "${id}" (${role}) does not exist; import it first (POST /api/import or tideline import)`);
-  if (b.status !== 'ended') throw new ModelRequestError(409, `transfer batch "${id}" is still open; only ended batches can be transfer sets`);
+  if (!b) throw requestProblem(404, `transfer batch "${id}" (${role}) does not exist; import it first (POST /api/import or tideline import)`);
+  if (b.status !== 'ended') throw requestProblem(409, `transfer batch "${id}" is still open; only ended batches can be transfer sets`);
   const spectra: Float32Array[] = [];
   for await (const s of storage.iterateSpectra(id)) spectra.push(s.values);
   return { axis: b.axis, spectra };
@@ -32,7 +32,7 @@ async function labOf(storage: Storage, model: MonitoringModel, ids: [string, str
       const { values, count } = labPropertyArray(await storage.listLabValues(id), name, n, model.pls.unit);
       if (count > 0) return values;
     } catch (e) {
-      if (e instanceof LabValueError) throw new ModelRequestError(422, `transfer batch "${id}": ${e.message}`, 'Lab values in another unit', 'lab-unit-mismatch');
+      if (e instanceof LabValueError) throw requestProblem(422, `transfer batch "${id}": ${e.message}`, 'Lab values in another unit', 'lab-unit-mismatch');
       throw e;
     }
   }
@@ -52,10 +52,10 @@ async function loadSets(storage: Storage, model: MonitoringModel, pairs: { old: 
 
 /** Fit, judge and store a transferred version of `src`; the caller writes the audit record. */
 export async function transferVersion(storage: Storage, src: ModelVersionRow, req: TransferModelRequest, user: string, now: number): Promise<ModelVersionRow> {
-  if (src.status === 'retired') throw new ModelRequestError(409, `model version ${src.name} v${src.version} is retired; transfer from a version in use`);
+  if (src.status === 'retired') throw requestProblem(409, `model version ${src.name} v${src.version} is retired; transfer from a version in use`);
   const all = [...req.fit, ...req.heldOut].flatMap((p) => [p.old, p.new]);
   const twice = all.find((id, i) => all.indexOf(id) !== i);
-  if (twice) throw new ModelRequestError(400, `batch "${twice}" is named twice among the transfer sets; each set is two batches of its own, and a held-out set is kept out of the fit`);
+  if (twice) throw requestProblem(400, `batch "${twice}" is named twice among the transfer sets; each set is two batches of its own, and a held-out set is kept out of the fit`);
   const source = parseMonitoringModel(src.body);
   const fit = await loadSets(storage, source, req.fit);
   const heldOut = await loadSets(storage, source, req.heldOut);
@@ -69,7 +69,7 @@ export async function transferVersion(storage: Storage, src: ModelVersionRow, re
     moved = withTransfer(source, transfer);
     text = serializeMonitoringModel(moved);
   } catch (e) {
-    if (e instanceof RangeError) throw new ModelRequestError(422, e.message, 'Transfer refused', 'transfer-refused');
+    if (e instanceof RangeError) throw requestProblem(422, e.message, 'Transfer refused', 'transfer-refused');
     throw e;
   }
   const row: ModelVersionRow = {
