@@ -16,7 +16,6 @@ import { DEFAULT_ALARM_SETTINGS } from '../../core/alarms/types.ts';
 import { nameSchema } from '../../core/io/names.ts';
 import { alarmName, alarmStateName } from '../../core/vocabulary/plain-names.ts';
 import { SignatureError } from '../auth/types.ts';
-import type { SqliteStorage } from '../storage/sqlite-storage.ts';
 
 /** The longest shelve an operator may ask for (core/alarms default: 8 h, one shift). */
 const MAX_SHELVE_MIN = DEFAULT_ALARM_SETTINGS.maxShelveMs / 60_000;
@@ -149,15 +148,14 @@ export function addPlantRoutes(t: RouteTable, ctx: ServerContext, startedAt: num
       if (signed) {
         // The reason for dropping the endpoint is signed (the signature's override, bound to the
         // model's hash) with the comparison as evidence; the deployment is written in the
-        // signature's unit of work (SQLite: its transaction), so a refused signature deploys nothing.
-        const sqlite = ctx.storage as unknown as SqliteStorage;
+        // signature's unit of work, so a refused signature deploys nothing.
         try {
           const r = await ctx.auth!.sign({
             user: req.user!, password: body.password!, meaning: 'deployed', objectType: 'model', objectId: m.id, objectHash: m.sha256,
             reason: body.reason || `deployed to ${body.unit}, dropping the endpoint property`, override: body.confirmEndpointLoss!,
             evidence: { unit: body.unit, before, endpointLoss: { reason: body.confirmEndpointLoss, warnings: preview.comparison.warnings }, comparison: preview.comparison },
             address: req.ip,
-          }, async () => sqlite.deploySync(d));
+          }, async (_sig, uow) => uow.models.deploy(d));
           signature = { auditSeq: r.signature.auditSeq, signedAt: r.signature.signedAt };
         } catch (e) {
           if (e instanceof SignatureError) throw new HttpProblem(e.status, 'Signature refused', `${e.message}. Nothing was deployed.`, 'signature-refused', [{ path: 'password', message: e.message }]);
