@@ -500,6 +500,8 @@ export interface PropertyModelView {
   /** Range of the lab values used (the calibration range), and the range the calibration was restricted to (null: none). */
   calibrationRange: [number, number];
   restrictedTo: [number, number] | null;
+  /** The lab method's sd of one result as the model owner stated it (settings.property.labSd), or null: not stated (the automatic margin then takes RMSECV whole). */
+  labSd?: number | null;
   /**
    * The flag "prediction outside its calibration": limits of the prediction's X-space T² and Q
    * (beyond either: flagged), their overall confidence and how they were calibrated.

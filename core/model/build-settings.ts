@@ -31,6 +31,7 @@ export const buildSettingsSchema = z.object({
       chain: chainSpecSchema.optional(),
       range: z.tuple([z.number().finite(), z.number().finite()]).optional(),
       extrapolationConfidence: z.number().gt(0.5).lt(1).optional(),
+      labSd: z.number().finite().nonnegative().optional(),
     })
     .optional(),
   excludeSpectra: z.array(z.object({ batch: z.string(), index: z.number().int().min(0) })).optional(),
@@ -88,8 +89,13 @@ export interface BuildSettings {
    * lab values in [lo, hi] only; extrapolationConfidence: confidence of the flag "prediction outside
    * its calibration" (default: the model's confidence), calibrated over the whole batch range so
    * that it fires on about 1 − this of the spectra of good batches.
+   * labSd: the lab (reference) method's standard deviation of one result near the target, in the
+   * property's unit (e.g. the repeatability sd of loss on drying from the site's method validation;
+   * with the sampling error when it is known). Given, the automatic endpoint margin takes it out of
+   * RMSECV (core/model/endpoint-calibration.ts predictionErrorForMargin); absent, RMSECV is taken
+   * whole, lab error and all (the margin errs late).
    */
-  property?: { name: string; unit: string; components: number | 'auto'; target?: number; direction?: 'below' | 'above'; chain?: ChainSpec; range?: [number, number]; extrapolationConfidence?: number };
+  property?: { name: string; unit: string; components: number | 'auto'; target?: number; direction?: 'below' | 'above'; chain?: ChainSpec; range?: [number, number]; extrapolationConfidence?: number; labSd?: number };
   excludeSpectra?: { batch: string; index: number }[];
   /**
    * Endpoints of reference batches marked by the model owner (core/model/reference-endpoints.ts):

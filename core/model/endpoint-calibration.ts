@@ -88,6 +88,46 @@ export interface PropertyContext {
   direction?: 'below' | 'above';
   /** RMSECV at the model's LV count (for margin 'auto'). */
   rmsecv: number | null;
+  /**
+   * The lab (reference) method's standard deviation of one result, in the property's unit
+   * (settings.property.labSd); absent: the margin takes RMSECV as it is.
+   */
+  labSd?: number;
+  /** Lab values the RMSECV was computed from (for the floor of the corrected error). */
+  nLab?: number;
+}
+
+/**
+ * The error of the property prediction against the TRUE property, for the automatic margin.
+ * RMSECV compares predictions with lab values, which carry the lab method's own error: with the
+ * prediction error and the lab error independent, RMSECV² ≈ σ²_prediction + s²_lab (the usual
+ * decomposition of NIR practice: DiFoggio 1995, Appl. Spectrosc. 49:67, "Examination of some
+ * misconceptions about near-infrared analysis"; Faber & Kowalski 1997, Appl. Spectrosc. 51:660,
+ * correcting prediction-error estimates for the error of the reference values — both from memory).
+ * Without `labSd` the margin takes RMSECV whole (as before this setting). With it,
+ * σ_prediction = √max(RMSECV² − s²_lab, floor): the floor is one standard error of RMSECV² itself,
+ * RMSECV²·√(2/n) (the standard deviation of a mean of n squared normal residuals, var = 2σ⁴/n; the
+ * residuals of a batch-grouped cross-validation are not fully independent, so this understates the
+ * uncertainty somewhat): a difference smaller than that cannot be told from zero, and the margin is
+ * not thinned below what the n lab values can show. The floor is our rule, not a published one.
+ */
+export function predictionErrorForMargin(rmsecv: number, labSd: number | undefined, nLab: number | undefined, unit: string): { sd: number; text: string } {
+  const u = unit ? ` ${unit}` : '';
+  if (labSd === undefined) return { sd: rmsecv, text: `RMSECV ${rmsecv.toPrecision(3)}${u} (lab values' own error included; no lab sd stated)` };
+  if (!(labSd >= 0) || !Number.isFinite(labSd)) throw new RangeError(`property lab sd ${labSd}: must be a finite number ≥ 0`);
+  const n = nLab ?? 0;
+  if (n < 2) throw new RangeError(`property lab sd: the corrected prediction error needs the number of lab values behind RMSECV (got ${n})`);
+  const r2 = rmsecv * rmsecv;
+  const diff = r2 - labSd * labSd;
+  const floor = r2 * Math.sqrt(2 / n);
+  const sd = Math.sqrt(Math.max(diff, floor));
+  const f = (v: number) => v.toPrecision(3);
+  const text =
+    `√max(RMSECV² − s²_lab, RMSECV²·√(2/n)) = √max(${f(rmsecv)}² − ${f(labSd)}², ${f(r2)}·√(2/${n})) = ${f(sd)}${u}` +
+    (diff >= floor
+      ? ` (the lab method's stated sd ${f(labSd)}${u} taken out of RMSECV ${f(rmsecv)}${u})`
+      : ` (floor: RMSECV² − s²_lab = ${diff.toPrecision(2)} is within one standard error of RMSECV² from ${n} lab values, so the lab sd ${f(labSd)}${u} is not taken out in full)`);
+  return { sd, text };
 }
 
 /**
@@ -115,7 +155,9 @@ export function resolveCriteria(
         if (rmsecv === null || !Number.isFinite(rmsecv)) throw new RangeError('endpoint criterion "property": margin "auto" needs the cross-validated error of the property model');
         const mc = c.marginConfidence ?? confidence;
         const z = normalQuantile(mc, 0, 1);
-        return { ...base, margin: z * rmsecv, marginMethod: `z(${mc})·RMSECV = ${z.toFixed(3)} × ${rmsecv.toPrecision(3)} ${property.unit} (one-sided bound on the prediction error)` };
+        if (property.labSd === undefined) return { ...base, margin: z * rmsecv, marginMethod: `z(${mc})·RMSECV = ${z.toFixed(3)} × ${rmsecv.toPrecision(3)} ${property.unit} (one-sided bound on the prediction error; RMSECV includes the lab values' own error, no lab sd stated)` };
+        const pe = predictionErrorForMargin(rmsecv, property.labSd, property.nLab, property.unit);
+        return { ...base, margin: z * pe.sd, marginMethod: `z(${mc})·σ_prediction = ${z.toFixed(3)} × ${pe.sd.toPrecision(3)} ${property.unit} (one-sided bound on the prediction error against the true ${property.name}); σ_prediction = ${pe.text}` };
       }
       case 'mbsd': {
         if (c.threshold !== 'auto') return { kind: 'mbsd', block: c.block, threshold: c.threshold, method: 'fixed by the model owner' };

@@ -309,7 +309,10 @@ export function buildMonitoringModel(batches: ReferenceBatch[], settingsInput: u
   }
   const endValues = endValuesOf(settings.endpoint, calib, batches.map((b) => b.id));
   const propertyContext: PropertyContext | null = settings.property
-    ? { name: settings.property.name, unit: settings.property.unit, target: settings.property.target, direction: settings.property.direction, rmsecv: pls?.rmsecv?.[pls.components - 1] ?? null }
+    ? {
+        name: settings.property.name, unit: settings.property.unit, target: settings.property.target, direction: settings.property.direction, rmsecv: pls?.rmsecv?.[pls.components - 1] ?? null,
+        ...(settings.property.labSd !== undefined ? { labSd: settings.property.labSd, nLab: pls?.evidence?.nLabValues } : {}),
+      }
     : null;
   const { criteria, minElapsed } = resolveCriteria(settings.endpoint, endValues, { A, confidence: conf, property: propertyContext, exclude: null });
   // The rule replayed leave-one-batch-out on the reference batches against their known endpoints.

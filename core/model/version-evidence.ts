@@ -60,6 +60,7 @@ export function propertyModelView(m: Pick<MonitoringModel, 'pls' | 'settings'>):
     batchesWithoutLab: ev.batchesWithoutLab,
     calibrationRange: ev.labRange,
     restrictedTo: p.range,
+    labSd: m.settings.property?.labSd ?? null,
     extrapolation: {
       confidence: lim.confidence, t2Limit: lim.t2Limit, qLimit: lim.qLimit, t2Method: lim.t2Method, qMethod: lim.qMethod,
       method: ev.extrapolation?.method ?? 'limits from the lab rows alone (a model built before the flag was calibrated over the whole batch range)',

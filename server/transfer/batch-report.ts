@@ -81,6 +81,7 @@ function evidenceSection(d: BatchReportData): string {
         ['property', `${p.name} (${p.unit})${p.target !== null ? `, endpoint target ${p.direction === 'above' ? '≥' : '≤'} ${num(p.target, 4)} ${p.unit}` : ''}`],
         ['latent variables', `${a} — ${plainText(p.componentsRule)}`],
         ['RMSECV / bias at that count', `${num(p.rmsecv[a - 1], 3)} / ${num(p.bias[a - 1], 3)} ${p.unit} (${plainText(p.cvMethod)})`],
+        ['lab method sd (stated)', p.labSd === null || p.labSd === undefined ? 'not stated: the automatic margin takes RMSECV whole, lab error included' : `${num(p.labSd, 3)} ${p.unit}: taken out of RMSECV for the automatic margin`],
         ['lab values', `${p.nLabValues} on ${p.nBatchesWithLab} of ${p.nBatches} reference batches, ${num(p.calibrationRange[0], 4)}–${num(p.calibrationRange[1], 4)} ${p.unit}${p.batchesWithoutLab.length ? `; none on ${p.batchesWithoutLab.join(', ')}` : ''}`],
         ['outside its calibration when', `T² > ${num(p.extrapolation.t2Limit, 4)} or Q > ${num(p.extrapolation.qLimit, 4)} (${num(p.extrapolation.confidence * 100, 4)} %): ${plainText(p.extrapolation.method)}`],
       ]),

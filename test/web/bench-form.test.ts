@@ -23,6 +23,11 @@ describe('Model bench form: property model and endpoint rule into build settings
     const none = settingsFromForm(prop, { ...rule, criteria: [{ kind: 'property', margin: 'none', marginConfidence: '' }] }, { qMethod: 'jackson-mudholkar' }, 4);
     expect((none.settings.endpoint as { criteria: unknown[] }).criteria).toEqual([{ kind: 'property' }]);
   });
+  it("carries the lab method's sd (decimal comma accepted) and refuses one that is not a number ≥ 0", () => {
+    expect(settingsFromForm({ ...prop, labSd: '0,12' }, rule, { qMethod: 'box' }, 'auto').settings.property).toMatchObject({ labSd: 0.12 });
+    expect(settingsFromForm({ ...prop, labSd: ' ' }, rule, { qMethod: 'box' }, 'auto').settings.property).not.toHaveProperty('labSd');
+    expect(settingsFromForm({ ...prop, labSd: '-0.1' }, rule, { qMethod: 'box' }, 'auto').errors['property.labSd']).toBe('The lab sd "-0.1" must be a number ≥ 0 in % w/w, or left empty.');
+  });
   it('says in a sentence beside each field what to fix', () => {
     const r = settingsFromForm(
       { ...prop, name: ' ', unit: '', lvs: '0', target: '' },

@@ -32,6 +32,8 @@ export interface PropertyForm {
   lvs: 'auto' | string;
   target: string;
   direction: Direction;
+  /** The lab method's sd of one result near the target, as text ('' or absent: not stated). */
+  labSd?: string;
 }
 
 export interface LimitsForm {
@@ -90,11 +92,17 @@ export function settingsFromForm(p: PropertyForm, rule: RuleForm, limits: Limits
       target = parseNumber(p.target);
       if (target === null) errors['property.target'] = `The target "${p.target}" is not a number.`;
     } else if (usesProperty) errors['property.target'] = `The endpoint rule watches the predicted ${p.name.trim() || 'property'}: give its target, e.g. 2.`;
+    let labSd: number | null = null;
+    if ((p.labSd ?? '').trim() !== '') {
+      labSd = parseNumber(p.labSd!);
+      if (labSd === null || labSd < 0) errors['property.labSd'] = `The lab sd "${p.labSd}" must be a number ≥ 0 in ${p.unit.trim() || "the property's unit"}, or left empty.`;
+    }
     settings.property = {
       name: p.name.trim().toLowerCase(),
       unit: p.unit.trim(),
       components: lvs,
       ...(target !== null ? { target, direction: p.direction } : {}),
+      ...(labSd !== null && labSd >= 0 ? { labSd } : {}),
     };
   } else if (usesProperty) {
     errors['endpoint.criteria'] = 'The criterion "predicted property past its target" needs a property model: turn it on above, or remove the criterion.';

@@ -68,6 +68,14 @@ export function PropertyFields({ value, onChange, known, knownNote, errors }: { 
             </label>
           </div>
           <FieldError text={errors['property.target']} />
+          <div class="form-row">
+            <label title="The standard deviation of one lab result near the target (e.g. the repeatability sd of loss on drying from the method validation), not the repeatability limit r. RMSECV compares predictions with lab values and so carries this error; the automatic endpoint margin takes it out (never below one standard error of RMSECV²).">
+              Lab method sd{' '}
+              <input size={7} aria-label="lab method sd" value={value.labSd ?? ''} placeholder="not stated" onInput={(e) => set({ labSd: (e.target as HTMLInputElement).value })} /> {value.unit}
+            </label>
+          </div>
+          <p class="muted small">Optional. Without it the automatic margin takes the whole RMSECV, lab error included, and calls the endpoint later than the prediction error alone needs.</p>
+          <FieldError text={errors['property.labSd']} />
           <p class="muted small">
             Each reference batch's endpoint is where its lab values cross this target (between the two lab values around the crossing), unless you mark it below.
           </p>
