@@ -100,7 +100,7 @@ export interface SitePlan {
 export function siteMarkdown(f: SiteFigures, r: Pick<SiteCheckResult, 'approval' | 'detail' | 'timings'>): string {
   const n = (v: number | null, d = 1) => (v === null ? '—' : v.toFixed(d));
   const prop = r.detail.property as { components: number; rmsecv: number[]; bias: number[]; nLabValues: number; nBatchesWithLab: number } | null;
-  const check = r.detail.endpointCheck as { early: number; onTime: number; late: number; notReached: number; medianIntervals: number | null } | null;
+  const check = r.detail.endpointCheck as { early: number; withinBracketCount?: number; onTime: number; late: number; notReached: number; medianIntervals: number | null } | null;
   return [
     `Site-style set (simulators/site-set.ts) through the public paths: ${f.site_reference_batches} reference batches, ${f.site_test_batches} test batches, a spectrum every ${f.site_interval_s} s.`,
     '',
@@ -119,7 +119,7 @@ export function siteMarkdown(f: SiteFigures, r: Pick<SiteCheckResult, 'approval'
     `| site_held_batches (endpoint held before done) | ${f.site_held_batches} | reported |`,
     `| true moisture at the call (good; median, min–max, % w/w) | ${f.site_moisture_at_done ? `${n(f.site_moisture_at_done.median, 3)} (${n(f.site_moisture_at_done.min, 3)}–${n(f.site_moisture_at_done.max, 3)})` : '—'} | reported |`,
     '',
-    `Property model: ${prop ? `${prop.components} LV, RMSECV ${prop.rmsecv[prop.components - 1]!.toPrecision(3)} % w/w, bias ${prop.bias[prop.components - 1]!.toPrecision(2)} % w/w, from ${prop.nLabValues} lab values in ${prop.nBatchesWithLab} batches` : 'none'}. Endpoint check at build (leave one batch out): ${check ? `${check.early} early, ${check.onTime} on time, ${check.late} late, ${check.notReached} not reached, median ${check.medianIntervals ?? '—'} intervals` : '—'}. Approval: ${r.approval.firstStatus === 200 ? 'signed without an override' : `refused first (${r.approval.firstStatus}: ${r.approval.firstDetail}); signed with an early-endpoint override`}. Stages (ms): ${JSON.stringify(r.timings)}.`,
+    `Property model: ${prop ? `${prop.components} LV, RMSECV ${prop.rmsecv[prop.components - 1]!.toPrecision(3)} % w/w, bias ${prop.bias[prop.components - 1]!.toPrecision(2)} % w/w, from ${prop.nLabValues} lab values in ${prop.nBatchesWithLab} batches` : 'none'}. Endpoint check at build (leave one batch out): ${check ? `${check.early} early, ${check.withinBracketCount ?? '—'} within the lab bracket, ${check.onTime} on time, ${check.late} late, ${check.notReached} not reached, median ${check.medianIntervals ?? '—'} intervals` : '—'}. Approval: ${r.approval.firstStatus === 200 ? 'signed without an override' : `refused first (${r.approval.firstStatus}: ${r.approval.firstDetail}); signed with an early-endpoint override`}. Stages (ms): ${JSON.stringify(r.timings)}.`,
   ].join('\n');
 }
 
@@ -200,7 +200,7 @@ async function main(): Promise<void> {
     }
   }
   if (json) {
-    const endpointCheck = check ? { early: check.early, earlyWithinBracket: check.earlyWithinBracket, earlyMaxIntervals: check.earlyMaxIntervals, onTime: check.onTime, late: check.late, notReached: check.notReached, medianIntervals: check.medianIntervals } : null;
+    const endpointCheck = check ? { early: check.early, withinBracket: check.withinBracketCount ?? null, earlyMaxIntervals: check.earlyMaxIntervals, onTime: check.onTime, late: check.late, notReached: check.notReached, medianIntervals: check.medianIntervals } : null;
     writeFileSync(json, JSON.stringify({ plan, model: { id: model.id, components: model.pca.nComponents, sha256: model.sha256, plsComponents: model.pls?.components ?? null, endpointCheck }, ...figures, ...siteOut }, null, 2));
     console.log(`figures written to ${json}`);
   }

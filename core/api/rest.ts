@@ -532,8 +532,14 @@ export interface EndpointCheckRowView {
   /** No known endpoint, lab values never past the target: the first spectrum after the last of them (the endpoint is no earlier) and that lab value in words; a call before it is early, counted from it. */
   notBefore?: { index: number; min: number; text: string } | null;
   propertyAtFire: number | null;
-  verdict: 'early' | 'on time' | 'late' | 'not reached' | 'no known endpoint';
-  /** An early call inside the lab bracket of the known endpoint: early against the placed endpoint, not provably before the true crossing. */
+  /**
+   * 'within bracket': the call lies inside the lab bracket of a lab-placed endpoint (after the last
+   * lab value short of the target, at or before the first past it) — neither early nor late as far
+   * as the lab values can tell; 'early' is then a call at or before the bracket's start, 'late' one
+   * after its end. Marked endpoints: early / on time / late against the mark.
+   */
+  verdict: 'early' | 'within bracket' | 'on time' | 'late' | 'not reached' | 'no known endpoint';
+  /** verdict is 'within bracket' (in models built before that verdict: an early call inside the bracket). */
   withinBracket: boolean;
 }
 
@@ -541,6 +547,9 @@ export interface EndpointCheckView {
   method: string;
   rows: EndpointCheckRowView[];
   early: number;
+  /** Calls inside the lab bracket (absent in models built before that verdict). */
+  withinBracketCount?: number;
+  /** In models built before the 'within bracket' verdict: early calls inside the bracket; 0 since. */
   earlyWithinBracket: number;
   earlyMaxIntervals: number;
   earlyMaxMinutes: number;

@@ -16,10 +16,15 @@
  * only delay a call, so a call early here may be later at run time, and one on time or late here
  * is not earlier there.
  *
- * A call counts as early when it comes before the known endpoint (any interval); approval of a rule
- * that is early on a reference batch needs a signed override (the approval route). With a lab
- * endpoint, placed late within its bracket on purpose, an early call may still lie inside the
- * bracket — not provably before the true crossing — and is marked so (withinBracket).
+ * Verdicts. A lab endpoint is known only to lie inside its lab bracket — after the last lab value
+ * not yet past the target, at or before the first past it — and is placed late within it on purpose
+ * (core/model/reference-endpoints.ts). A call inside the bracket is neither early nor late as far as
+ * the lab values can tell: its verdict is 'within bracket'. Early is a call at or before the
+ * bracket's start (the spectrum of the last lab value still short of the target: the lab said the
+ * batch was not there yet); late a call after its end. Marked endpoints have no bracket: any call
+ * before the mark is early, at it on time, after it late. Intervals and minutes are always counted
+ * from the placed (or marked) endpoint, with the bracket beside them. Approval of a rule that is
+ * early on a reference batch needs a signed override (the approval route).
  */
 import { EndpointTracker, type EndpointInputs } from '../endpoint/endpoint-tracker.ts';
 import { resolvedGuards, type EndpointRuleSpec, type ResolvedEndpointRule } from '../endpoint/spec.ts';
@@ -51,21 +56,19 @@ export interface EndpointCheckRow {
   notBefore?: { index: number; min: number; text: string } | null;
   /** The predicted property where the rule fired (property models only). */
   propertyAtFire: number | null;
-  verdict: 'early' | 'on time' | 'late' | 'not reached' | 'no known endpoint';
-  /**
-   * An early call that still lies inside the lab bracket of the known endpoint (after the last lab
-   * value not yet past the target): early against the placed endpoint, not provably before the
-   * true crossing. False otherwise (and for marked endpoints, which have no bracket).
-   */
+  verdict: 'early' | 'within bracket' | 'on time' | 'late' | 'not reached' | 'no known endpoint';
+  /** The call lies inside the lab bracket of the known endpoint (verdict 'within bracket'). */
   withinBracket: boolean;
 }
 
 export interface EndpointCheck {
   method: string;
   rows: EndpointCheckRow[];
-  /** Batches called early, and the most intervals / minutes early among them (0 when none). */
+  /** Batches called early (before the bracket's start, or before a mark), and the most intervals / minutes early among them (0 when none). */
   early: number;
-  /** Of the early ones, those inside the lab bracket of their known endpoint. */
+  /** Batches called inside the lab bracket of their known endpoint (neither early nor late as far as the lab values can tell); absent in models built before that verdict. */
+  withinBracketCount?: number;
+  /** Always 0 since calls inside the bracket have their own verdict (kept for readers of older files, where it counted early calls inside the bracket). */
   earlyWithinBracket: number;
   earlyMaxIntervals: number;
   earlyMaxMinutes: number;
@@ -78,7 +81,7 @@ export interface EndpointCheck {
 }
 
 export const ENDPOINT_CHECK_METHOD =
-  'leave-one-batch-out replay through the endpoint tracker: for each reference batch, property predictions from the PLS calibrated without its lab values and automatic thresholds and minimum time re-resolved from the other batches\u2019 known endpoints; the preprocessing, the PCA, the LV count and the automatic property margin are those of the model (not refitted per batch); run-time holds (alarms, predictions outside calibration) are not replayed — they can only delay a call. Early: the rule reached done before the known endpoint — or, on a batch without one whose lab values never cross the target, at or before its last lab value (not yet past the target).';
+  'leave-one-batch-out replay through the endpoint tracker: for each reference batch, property predictions from the PLS calibrated without its lab values and automatic thresholds and minimum time re-resolved from the other batches\u2019 known endpoints; the preprocessing, the PCA, the LV count and the automatic property margin are those of the model (not refitted per batch); run-time holds (alarms, predictions outside calibration) are not replayed — they can only delay a call. A lab endpoint is known only to lie in its lab bracket (after the last lab value short of the target, at or before the first past it): a call inside the bracket is \u2018within bracket\u2019, neither early nor late as far as the lab values can tell; early is a call at or before the bracket\u2019s start, late one after its end. A marked endpoint: early before the mark, late after it. A batch without one whose lab values never cross the target: early at or before its last lab value (not yet past the target).';
 
 export interface CheckBatch extends CalibrationBatch {
   id: string;
@@ -142,7 +145,24 @@ export function checkEndpointRule(spec: EndpointRuleSpec, batches: CheckBatch[],
     const nb = !e && b.notBefore && firedIndex !== null && firedIndex < b.notBefore.index ? b.notBefore : null;
     const intervals = e && firedIndex !== null ? firedIndex - e.index : nb ? firedIndex! - nb.index : null;
     const minutes = e && firedMin !== null ? firedMin - e.elapsedMin : nb ? firedMin! - nb.min : null;
-    const verdict: EndpointCheckRow['verdict'] = nb ? 'early' : !e ? 'no known endpoint' : intervals === null ? 'not reached' : intervals < 0 ? 'early' : intervals === 0 ? 'on time' : 'late';
+    const br = e?.bracket;
+    const verdict: EndpointCheckRow['verdict'] = nb
+      ? 'early'
+      : !e
+        ? 'no known endpoint'
+        : firedIndex === null
+          ? 'not reached'
+          : br
+            ? firedIndex <= br.fromIndex
+              ? 'early'
+              : firedIndex <= br.toIndex
+                ? 'within bracket'
+                : 'late'
+            : intervals! < 0
+              ? 'early'
+              : intervals === 0
+                ? 'on time'
+                : 'late';
     return {
       batch: b.id,
       knownIndex: e ? e.index : null,
@@ -156,7 +176,7 @@ export function checkEndpointRule(spec: EndpointRuleSpec, batches: CheckBatch[],
       ...(!e && b.notBefore ? { notBefore: b.notBefore } : {}),
       propertyAtFire: k !== null && b.predicted ? b.predicted[k]! : null,
       verdict,
-      withinBracket: verdict === 'early' && !!e?.bracket && firedIndex! > e.bracket.fromIndex,
+      withinBracket: verdict === 'within bracket',
     };
   });
   const early = rows.filter((r) => r.verdict === 'early');
@@ -164,7 +184,8 @@ export function checkEndpointRule(spec: EndpointRuleSpec, batches: CheckBatch[],
     method: ENDPOINT_CHECK_METHOD,
     rows,
     early: early.length,
-    earlyWithinBracket: early.filter((r) => r.withinBracket).length,
+    withinBracketCount: rows.filter((r) => r.verdict === 'within bracket').length,
+    earlyWithinBracket: 0,
     earlyMaxIntervals: early.reduce((m, r) => Math.max(m, -r.intervals!), 0),
     earlyMaxMinutes: early.reduce((m, r) => Math.max(m, -r.minutes!), 0),
     late: rows.filter((r) => r.verdict === 'late').length,
@@ -184,7 +205,7 @@ export function earlyBatchesText(c: EndpointCheck): string {
     .map((r) =>
       r.knownIndex === null && r.notBefore
         ? `"${r.batch}" at least ${-r.intervals!} interval${r.intervals === -1 ? '' : 's'} (${fmt(-r.minutes!)} min) early (no known endpoint, but done before its ${r.notBefore.text})`
-        : `"${r.batch}" ${-r.intervals!} interval${r.intervals === -1 ? '' : 's'} (${fmt(-r.minutes!)} min) early${r.withinBracket ? ' (inside its lab bracket)' : ''}`,
+        : `"${r.batch}" ${-r.intervals!} interval${r.intervals === -1 ? '' : 's'} (${fmt(-r.minutes!)} min) early${r.bracketMin ? ` (at or before its lab bracket ${fmt(r.bracketMin[0])}–${fmt(r.bracketMin[1])} min began)` : ''}`,
     )
     .join(', ')}`;
 }

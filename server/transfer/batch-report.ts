@@ -90,12 +90,12 @@ function evidenceSection(d: BatchReportData): string {
   const c = ev.endpointCheck;
   if (c) {
     parts.push(
-      `<p>Leave-one-batch-out check on the reference batches: ${c.early} early${c.early ? ` (at most ${c.earlyMaxIntervals} intervals, ${num(c.earlyMaxMinutes, 3)} min; ${c.earlyWithinBracket ?? 0} inside the lab bracket of their endpoint)` : ''}, ${c.onTime} on time, ${c.late} late, ${c.notReached} not reached, ${c.noEndpoint} without a known endpoint; median ${c.medianIntervals === null ? '—' : `${num(c.medianIntervals, 3)} intervals`} from the known endpoint.</p>`,
+      `<p>Leave-one-batch-out check on the reference batches: ${c.early} early${c.early ? ` (at most ${c.earlyMaxIntervals} intervals, ${num(c.earlyMaxMinutes, 3)} min${c.withinBracketCount === undefined ? `; ${c.earlyWithinBracket ?? 0} inside the lab bracket of their endpoint` : ''})` : ''}, ${c.withinBracketCount !== undefined ? `${c.withinBracketCount} within the lab bracket (neither early nor late as far as the lab values can tell), ` : ''}${c.onTime} on time, ${c.late} late, ${c.notReached} not reached, ${c.noEndpoint} without a known endpoint; median ${c.medianIntervals === null ? '—' : `${num(c.medianIntervals, 3)} intervals`} from the known endpoint.</p>`,
     );
     parts.push(
       table(
         ['reference batch', 'known endpoint (min)', 'from', 'rule reached done (min)', 'intervals', 'minutes', 'verdict'],
-        c.rows.map((r) => [r.batch, r.knownMin === null ? (r.notBefore ? `none; not before ${num(r.notBefore.min, 4)} (${r.notBefore.text})` : '—') : `${num(r.knownMin, 4)}${r.bracketMin ? ` (lab bracket ${num(r.bracketMin[0], 4)}–${num(r.bracketMin[1], 4)})` : ''}`, r.knownSource ?? '—', r.firedMin === null ? 'not reached' : num(r.firedMin, 4), r.intervals ?? '—', r.minutes === null ? '—' : num(r.minutes, 3), r.withinBracket ? `${r.verdict} (inside the lab bracket)` : r.verdict]),
+        c.rows.map((r) => [r.batch, r.knownMin === null ? (r.notBefore ? `none; not before ${num(r.notBefore.min, 4)} (${r.notBefore.text})` : '—') : `${num(r.knownMin, 4)}${r.bracketMin ? ` (lab bracket ${num(r.bracketMin[0], 4)}–${num(r.bracketMin[1], 4)})` : ''}`, r.knownSource ?? '—', r.firedMin === null ? 'not reached' : num(r.firedMin, 4), r.intervals ?? '—', r.minutes === null ? '—' : num(r.minutes, 3), r.verdict === 'within bracket' ? 'within the lab bracket' : r.withinBracket ? `${r.verdict} (inside the lab bracket)` : r.verdict]),
       ),
     );
     parts.push(`<p class="small">${esc(plainText(c.method))}</p>`);

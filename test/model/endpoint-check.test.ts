@@ -26,10 +26,11 @@ describe('checkEndpointRule on hand-worked batches', () => {
   // moisture ≤ 2 − 0.1, confirmed over 2 spectra: done at the 2nd consecutive spectrum at or below 1.9
   const spec = validateEndpointRuleSpec({ criteria: [{ kind: 'property', target: 2, margin: 0.1 }], combine: 'all', confirm: 2, nearingMin: 5 });
   const property = { name: 'moisture', unit: '% w/w', target: 2, direction: 'below' as const, rmsecv: null };
-  const batches = [
+  const batches: CheckBatch[] = [
     handBatch('early', [5, 4, 1.8, 1.85, 1.7, 1.6, 1.5], 5), // done at 3 (1.8, 1.85) → 2 intervals early
     handBatch('late', [5, 4, 3, 2.5, 1.95, 1.8, 1.8, 1.7], 4), // done at 6 → 2 late
-    handBatch('on-time', [5, 1.85, 2.1, 1.9, 1.88, 1.5], 4), // 1.85 then 2.1 breaks it; done at 4
+    // a marked endpoint (no lab bracket): 1.85 then 2.1 breaks it; done at 4, the mark
+    { ...handBatch('on-time', [5, 1.85, 2.1, 1.9, 1.88, 1.5], 4), endpoint: { batch: 'on-time', index: 4, elapsedMin: 2, source: 'marked' as const, detail: 'test' } },
     handBatch('never', [5, 4, 3, 2.5, 2.2], 3),
     handBatch('unknown', [5, 1.5, 1.5], null),
   ];
@@ -43,17 +44,29 @@ describe('checkEndpointRule on hand-worked batches', () => {
       ['never', null, null, 'not reached'],
       ['unknown', 2, null, 'no known endpoint'],
     ]);
-    // inside the bracket: a known endpoint at 5 with the bracket from 2 — the call at 3 is early, but not provably
+    // Inside the lab bracket (source: the rule of core/model/endpoint-check.ts, stated in
+    // docs/model-building.md): a known endpoint at 5 with the bracket (2, 5] — the call at 3 comes
+    // after the last lab value short of the target, so it is neither early nor late as far as the
+    // lab values can tell.
     const inside = { ...batches[0]!, endpoint: { ...batches[0]!.endpoint!, bracket: { fromIndex: 2, toIndex: 5, fromMin: 1, toMin: 2.5 } } };
     const c2 = checkEndpointRule(spec, [inside, batches[1]!], endValuesOf(spec, [inside, batches[1]!], ['early', 'late']), { A: 1, confidence: 0.99, property });
-    expect(c2.rows[0]).toMatchObject({ verdict: 'early', withinBracket: true });
-    expect(c2.earlyWithinBracket).toBe(1);
-    expect(earlyBatchesText(c2)).toContain('"early" 2 intervals (1.0 min) early (inside its lab bracket)');
+    expect(c2.rows[0]).toMatchObject({ verdict: 'within bracket', withinBracket: true, intervals: -2, minutes: -1, bracketMin: [1, 2.5] });
+    expect(c2).toMatchObject({ early: 0, withinBracketCount: 1, earlyWithinBracket: 0, earlyMaxIntervals: 0 });
+    expect(earlyBatchesText(c2)).toBe('the rule reached done before the known endpoint on no reference batch');
+    // a call AT the bracket's start (the spectrum of the last lab value short of the target) is early
+    const atStart = { ...batches[0]!, endpoint: { ...batches[0]!.endpoint!, bracket: { fromIndex: 3, toIndex: 5, fromMin: 1.5, toMin: 2.5 } } };
+    const c3 = checkEndpointRule(spec, [atStart, batches[1]!], endValuesOf(spec, [atStart, batches[1]!], ['early', 'late']), { A: 1, confidence: 0.99, property });
+    expect(c3.rows[0]).toMatchObject({ verdict: 'early', withinBracket: false });
+    expect(earlyBatchesText(c3)).toContain('"early" 2 intervals (1.0 min) early (at or before its lab bracket 1.5–2.5 min began)');
+    // after the known endpoint but still inside the bracket: within bracket, not late
+    const lateInside = { ...batches[1]!, endpoint: { ...batches[1]!.endpoint!, bracket: { fromIndex: 3, toIndex: 7, fromMin: 1.5, toMin: 3.5 } } };
+    const c4 = checkEndpointRule(spec, [batches[0]!, lateInside], endValuesOf(spec, [batches[0]!, lateInside], ['early', 'late']), { A: 1, confidence: 0.99, property });
+    expect(c4.rows[1]).toMatchObject({ verdict: 'within bracket', intervals: 2 });
     expect(c.rows[0]).toMatchObject({ firedMin: 1.5, knownMin: 2.5, minutes: -1, propertyAtFire: 1.85, bracketMin: [2, 2.5], knownSource: 'lab' });
     // the early call at spectrum 3 lies before the bracket (4, 5]: provably early
     expect(c.rows[0]!.withinBracket).toBe(false);
-    expect(c).toMatchObject({ early: 1, earlyWithinBracket: 0, earlyMaxIntervals: 2, earlyMaxMinutes: 1, late: 1, onTime: 1, notReached: 1, noEndpoint: 1, medianIntervals: 0 });
-    expect(earlyBatchesText(c)).toBe('the rule reached done before the known endpoint on 1 of 5 reference batches: "early" 2 intervals (1.0 min) early');
+    expect(c).toMatchObject({ early: 1, withinBracketCount: 0, earlyWithinBracket: 0, earlyMaxIntervals: 2, earlyMaxMinutes: 1, late: 1, onTime: 1, notReached: 1, noEndpoint: 1, medianIntervals: 0 });
+    expect(earlyBatchesText(c)).toBe('the rule reached done before the known endpoint on 1 of 5 reference batches: "early" 2 intervals (1.0 min) early (at or before its lab bracket 2.0–2.5 min began)');
     expect(c.method).toMatch(/^leave-one-batch-out replay through the endpoint tracker/);
   });
 });

@@ -110,7 +110,7 @@ export function Approve({ d, me, onDone }: { d: ModelVersionDetail; me: Me | nul
           <p class="small">
             <Badge tone="warn">early endpoint</Badge> Replayed leave-one-batch-out, the endpoint rule reached done before the known endpoint on {early.length} of{' '}
             {d.endpointCheck!.rows.length} reference batches:{' '}
-            {early.map((r) => `${r.batch} ${-r.intervals!} interval${r.intervals === -1 ? '' : 's'} (${fixed(-r.minutes!, 1)} min) early${r.withinBracket ? ', inside its lab bracket' : ''}`).join('; ')}. An endpoint signal may stop the unit:
+            {early.map((r) => `${r.batch} ${-r.intervals!} interval${r.intervals === -1 ? '' : 's'} (${fixed(-r.minutes!, 1)} min) early${r.withinBracket ? ', inside its lab bracket' : r.bracketMin ? `, at or before its lab bracket (${fixed(r.bracketMin[0], 1)}–${fixed(r.bracketMin[1], 1)} min) began` : ''}`).join('; ')}. An endpoint signal may stop the unit:
             approving this rule needs your reason, signed with the approval.
           </p>
           <label class="block">

@@ -8,7 +8,7 @@ import { fixed, sig } from '../../format/number-format.ts';
 import type { StatusTone } from '../../theme/palette.ts';
 import { plainText } from '../../../../core/vocabulary/plain-names.ts';
 
-const VERDICT_TONE: Record<EndpointCheckRowView['verdict'], StatusTone> = { early: 'alarm', 'on time': 'ok', late: 'info', 'not reached': 'warn', 'no known endpoint': 'muted' };
+const VERDICT_TONE: Record<EndpointCheckRowView['verdict'], StatusTone> = { early: 'alarm', 'within bracket': 'ok', 'on time': 'ok', late: 'info', 'not reached': 'warn', 'no known endpoint': 'muted' };
 const SOURCE_WORDS: Record<NonNullable<EndpointCheckRowView['knownSource']>, string> = { lab: 'lab values crossing the target', marked: 'marked', 'marked-last': 'marked: the last spectrum' };
 
 /** Early batches first (most early first), then the rest in the order given. */
@@ -47,6 +47,11 @@ export function EndpointCheckPanel({ check, ends }: { check: EndpointCheckView |
             )}{' '}
             {check.earlyWithinBracket > 0 &&
               `(${check.earlyWithinBracket} of them inside the lab bracket of the known endpoint: early against the placed endpoint, not provably before the true crossing) `}
+            {check.withinBracketCount !== undefined && (
+              <span data-testid="endpoint-check-within">
+                {check.withinBracketCount} within the lab bracket (between the last lab value short of the target and the first past it: neither early nor late as far as the lab values can tell),{' '}
+              </span>
+            )}
             {check.onTime} on time, {check.late} late, {check.notReached} not reached, {check.noEndpoint} without a known endpoint
             {check.medianIntervals !== null && ` · median ${sig(check.medianIntervals)} interval${Math.abs(check.medianIntervals) === 1 ? '' : 's'} from the known endpoint`}
           </p>
@@ -82,7 +87,8 @@ export function EndpointCheckPanel({ check, ends }: { check: EndpointCheckView |
                   <td class="num">{r.propertyAtFire === null ? '—' : sig(r.propertyAtFire)}</td>
                   <td>
                     <Badge tone={VERDICT_TONE[r.verdict]}>{r.verdict}</Badge>
-                    {r.withinBracket && <span class="small muted"> inside the lab bracket</span>}
+                    {r.withinBracket && r.verdict === 'early' && <span class="small muted"> inside the lab bracket</span>}
+                    {r.verdict === 'early' && r.bracketMin && <span class="small muted"> at or before the lab bracket began ({fixed(r.bracketMin[0], 1)} min)</span>}
                     {r.verdict === 'early' && r.knownIndex === null && r.notBefore && <span class="small muted"> before its {r.notBefore.text}</span>}
                   </td>
                 </tr>
