@@ -432,6 +432,12 @@ export interface ModelVersionDetail extends ModelVersionSummary {
   settings: Record<string, unknown>;
   explained: number[];
   cumulative: number[];
+  /**
+   * How the PCA component count was chosen: the count, the rule and what it found (settings
+   * components 'auto'), the largest count searched and whether the choice sits there (absent from
+   * servers before it was shown; rule null for a count fixed by the model owner).
+   */
+  pca?: { components: number; chosenBy: 'auto' | 'fixed'; rule: string | null; searched: number; atSearchLimit: boolean; press: number[] };
   /** qMethod: the method id, followed by why when the build fell back from the method asked for (e.g. Box where Jackson–Mudholkar is undefined). */
   limits: { t2: number; q: number; combined: number | null; confidence: number; t2Method: string; qMethod: string };
   /** The limits that raise alarms when the model has them above `limits` (settings.alarms.confidence), else null. */

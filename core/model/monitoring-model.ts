@@ -368,6 +368,15 @@ export function buildMonitoringModel(batches: ReferenceBatch[], settingsInput: u
 }
 
 /**
+ * The most PCA components 'auto' searches. It was 8: on a site's dryer spectra (another instrument
+ * with its own baseline offset, baseline wiggle, stray light and wavelength error, centred only) the
+ * cross-validated error still fell at 8 and was least at 10, so 'auto' sat at the top of the search
+ * range on a count the data did not choose. 20 leaves room for such instruments; a choice at it is
+ * still said to be there. Our choice, no published source.
+ */
+export const PCA_SEARCH_MAX = 20;
+
+/**
  * Cross-validation of the component count (Bro et al. 2008 ekf, core/pca crossValidatePca): Model
  * bench evidence and 'auto', which takes the one-standard-error rule over the folds
  * (core/model/parsimony.ts) rather than the least PRESS, and says when the choice is the largest
@@ -387,7 +396,7 @@ function crossValidateComponents(X: DenseMatrix): ModelMeta['pcaCv'] {
     note = `, every ${stride}th spectrum (${idx.length} of ${X.rows})`;
   }
   const folds = Math.min(7, Y.rows);
-  const maxA = Math.min(8, Y.cols - 1, Y.rows - Math.ceil(Y.rows / folds) - 1);
+  const maxA = Math.min(PCA_SEARCH_MAX, Y.cols - 1, Y.rows - Math.ceil(Y.rows / folds) - 1);
   const r = crossValidatePca(Y, Math.max(1, maxA), { folds });
   const perElement = r.press.map((v) => v / (Y.rows * Y.cols));
   const foldErr = r.foldPress.map((row) => row.map((v, f) => v / (r.foldRows[f]! * Y.cols)));

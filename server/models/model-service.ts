@@ -193,6 +193,13 @@ export async function latestApprovalEvidence(ctx: ServerContext, versionId: stri
   return evals.reduce((a, b) => (b.createdAt >= a.createdAt ? b : a)).evidence!;
 }
 
+/** How the version's PCA component count was chosen (ModelVersionDetail.pca). */
+function pcaChoiceView(m: MonitoringModel): NonNullable<ModelVersionDetail['pca']> {
+  const cv = m.meta.pcaCv;
+  const auto = m.settings.components === 'auto';
+  return { components: m.pca.nComponents, chosenBy: auto ? 'auto' : 'fixed', rule: auto ? (cv.rule ?? null) : null, searched: cv.press.length, atSearchLimit: auto && (cv.atSearchLimit ?? m.pca.nComponents === cv.press.length), press: cv.press };
+}
+
 export async function versionDetail(ctx: ServerContext, row: ModelVersionRow): Promise<ModelVersionDetail> {
   const model = (await ctx.ingest.loadModel(row.id)) as ModelShape | null;
   const full = model as unknown as MonitoringModel | null;
@@ -202,6 +209,7 @@ export async function versionDetail(ctx: ServerContext, row: ModelVersionRow): P
     settings: row.settings,
     explained: model ? model.pca.explained : [],
     cumulative: model ? model.pca.cumulative : [],
+    ...(full ? { pca: pcaChoiceView(full) } : {}),
     limits: model
       ? { t2: model.limits.t2.value, q: model.limits.q.value, combined: model.limits.combined?.value ?? null, confidence: model.limits.t2.confidence, t2Method: model.limits.t2.method, qMethod: model.limits.q.note ? `${model.limits.q.method} — ${model.limits.q.note}` : model.limits.q.method }
       : { t2: NaN, q: NaN, combined: null, confidence: row.confidence, t2Method: '', qMethod: '' },
