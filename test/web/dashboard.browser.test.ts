@@ -275,6 +275,11 @@ describe.skipIf(!haveChromium)('dashboard in headless Chromium', () => {
     await page.getByTestId('build').click();
     await prop.getByTestId('field-error').getByText('The endpoint rule watches the predicted moisture: give its target, e.g. 2.').waitFor();
     await shot('bench-property-target-missing');
+    // the lab method's sd (for the automatic margin) is refused beside its field when it is no number ≥ 0
+    await prop.getByLabel('lab method sd').fill('-0.1');
+    await page.getByTestId('build').click();
+    await prop.getByTestId('field-error').getByText('The lab sd "-0.1" must be a number ≥ 0 in % w/w, or left empty.').waitFor();
+    await prop.getByLabel('lab method sd').fill('');
     await prop.getByRole('checkbox').uncheck();
     const rule = page.getByTestId('endpoint-rule-fields');
     await rule.getByLabel('confirm over spectra').fill('0');
