@@ -14,6 +14,12 @@
  * its result says so and no condition, progress or endpoint state moves. Bad pixels on `onDelay` of
  * `onWindow` spectra raise the analyzer-quality condition (kind 'analyzer', key 'pixel-quality').
  *
+ * Suspect scans (a single point beyond a limit that raised no alarm on its own, `suspect`) are one
+ * by one taken as bad scans, not as the process; but `count` of them within the last `window`
+ * judged spectra (default 3 in 20: common practice, no source) point at the probe or the analyzer
+ * (fouling, a fibre, the lamp, bubbles) and raise the repeated-suspect condition (kind 'analyzer',
+ * key 'repeated-suspect'); it clears when the window holds fewer than `count` again.
+ *
  * Tideline advises: the site's validated control strategy, interlocks and procedures decide what
  * an alarm or an endpoint signal may do.
  */
@@ -39,6 +45,31 @@ import type { AlarmPriority, ConditionChange, ConditionKind, Contributions, Doma
 export interface BatchMonitorOptions {
   /** Pixel-quality settings (defaults: DEFAULT_PIXEL_QUALITY), or false to judge every spectrum as sent. */
   pixelQuality?: Partial<PixelQualitySettings> | false;
+  /**
+   * Repeated suspect scans: `count` suspect scans within the last `window` judged spectra raise the
+   * repeated-suspect condition (defaults: DEFAULT_SUSPECT_SCANS), or false never to raise it.
+   */
+  suspectScans?: Partial<SuspectScanSettings> | false;
+}
+
+export interface SuspectScanSettings {
+  /** Suspect scans within the window that raise the condition (1…window). */
+  count: number;
+  /** Judged spectra in the window (1…31). */
+  window: number;
+}
+
+/** 3 suspect scans within the last 20 judged spectra: common practice, no source. */
+export const DEFAULT_SUSPECT_SCANS: Readonly<SuspectScanSettings> = { count: 3, window: 20 };
+
+/** Key of the analyzer condition the monitor raises on repeated suspect scans. */
+export const REPEATED_SUSPECT_KEY = 'repeated-suspect';
+
+export function resolveSuspectScans(s: Partial<SuspectScanSettings>): SuspectScanSettings {
+  const out = { ...DEFAULT_SUSPECT_SCANS, ...s };
+  if (!Number.isInteger(out.window) || out.window < 1 || out.window > 31) throw new RangeError(`suspectScans.window must be an integer 1…31 (got ${out.window})`);
+  if (!Number.isInteger(out.count) || out.count < 1 || out.count > out.window) throw new RangeError(`suspectScans.count must be an integer 1…window (${out.window}) (got ${out.count})`);
+  return out;
 }
 
 /** Key of the analyzer-quality condition the monitor raises on repeated bad pixels. */
@@ -139,6 +170,11 @@ export function createBatchMonitor(model: MonitoringModel, batchStartT: number, 
   const footprint = new ChainFootprint(chain);
   const tsr = createTsrProjector(pca);
   const qualityFilter = new ConditionFilter(alarmSpec);
+  // Repeated suspect scans: the last `window` judged spectra as a bit ring (1 = suspect).
+  const ssSettings = opts.suspectScans === false ? null : resolveSuspectScans(opts.suspectScans ?? {});
+  const ssMask = ssSettings ? (2 ** ssSettings.window) - 1 : 0;
+  let ssBits = 0;
+  let ssActive = false;
   let lastProgress = 0;
   let lastProgressFraction = 0;
   let lastEndpoint: EndpointStatus | null = null;
@@ -159,10 +195,28 @@ export function createBatchMonitor(model: MonitoringModel, batchStartT: number, 
     events.push({ type: 'condition', change, t, seq });
   }
 
+  /** The repeated-suspect condition after a judged spectrum (suspect or not). */
+  function suspectCondition(suspect: boolean, seq: number, t: number, changes: ConditionChange[], events: DomainEvent[]): void {
+    if (!ssSettings) return;
+    ssBits = ((ssBits << 1) | (suspect ? 1 : 0)) & ssMask;
+    const n = popcount(ssBits);
+    const now = n >= ssSettings.count;
+    if (now === ssActive) return;
+    ssActive = now;
+    const { count, window } = ssSettings;
+    const message = now
+      ? `repeated suspect scans: ${n} of the last ${window} spectra were single points beyond a limit that raised no alarm on their own (alarm at ${count} in ${window}); check the probe and the analyzer (fouling, fibre, lamp, bubbles)`
+      : `repeated suspect scans over: ${n} of the last ${window} spectra suspect (below ${count})`;
+    const change: ConditionChange = { kind: 'analyzer', key: REPEATED_SUSPECT_KEY, active: now, message, value: n, limit: count, priority: 3 };
+    changes.push(change);
+    events.push({ type: 'condition', change, t, seq });
+  }
+
   function activeKeys(): string[] {
     const keys: string[] = [];
     for (const c of conds) if (c.filter.active) keys.push(c.key);
     if (qualityFilter.active) keys.push(PIXEL_QUALITY_KEY);
+    if (ssActive) keys.push(REPEATED_SUSPECT_KEY);
     return keys;
   }
 
@@ -337,6 +391,8 @@ export function createBatchMonitor(model: MonitoringModel, batchStartT: number, 
 
     if (checker) qualityCondition(bad, quality, seq, t, changes, events);
     if (qualityFilter.active) active.push(PIXEL_QUALITY_KEY);
+    suspectCondition(suspect, seq, t, changes, events);
+    if (ssActive) active.push(REPEATED_SUSPECT_KEY);
 
     // Endpoint.
     inputs.property = prediction ? prediction.value : null;
@@ -413,4 +469,10 @@ export function replayBatch(model: MonitoringModel, batchStartT: number, spectra
   const monitor = createBatchMonitor(model, batchStartT, opts);
   const results = spectra.map((s) => monitor.push(s.seq, s.t, s.values));
   return { monitor, results };
+}
+
+function popcount(x: number): number {
+  let c = 0;
+  while (x) { x &= x - 1; c++; }
+  return c;
 }
