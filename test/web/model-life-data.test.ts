@@ -13,11 +13,14 @@ describe('model-life panels', () => {
     expect(testStatus({ code: 'drift', failed: true, untested: false, text: '' })).toEqual({ word: 'fails', tone: 'alarm' });
     expect(testStatus({ code: 'bias', failed: false, untested: true, text: '' }).word).toBe('not tested');
     expect(healthLine(health(['drift', 'review']))).toEqual({ text: 'model health: drift of batch-mean scores, periodic review — fails', tone: 'warn' });
-    expect(healthLine(health([], ['bias']))!.text).toBe('model health: 5 of 6 tests pass over 2 batches');
+    expect(healthLine(health([], ['bias']))!.text).toBe('model health: 5 tests pass over 2 batches, 1 not tested yet');
     // symbols keep their case in the sentence: "T² beyond its limit", never "t²"
     expect(healthLine(health(['t2-rate', 'q-rate']))!.text).not.toMatch(/\bt²|\bq beyond/);
     expect(healthLine(health(['t2-rate']))!.text).toMatch(/^model health: T²/);
     expect(healthLine(null)).toBeNull();
+    // nothing tested is said as such, not as "0 of 6 tests pass" in the tone of a pass
+    const none = healthLine({ ...health([], ['alarm-rate', 't2-rate', 'q-rate', 'drift', 'bias', 'review']), batches: [] } as ModelHealth)!;
+    expect(none).toEqual({ text: 'model health: not tested yet (no finished batch since deployment)', tone: 'muted' });
   });
   it('words endpoint differences and lab figures', () => {
     expect(endpointDifference(3)).toBe('candidate 3.0 min later');

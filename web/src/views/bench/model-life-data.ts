@@ -30,7 +30,11 @@ export function healthLine(h: ModelHealth | null): { text: string; tone: StatusT
   const failed = h.tests.filter((t) => t.failed);
   if (failed.length) return { text: `model health: ${failed.map((t) => lowerFirst(testName(t.code))).join(', ')} — fails`, tone: 'warn' };
   const tested = h.tests.filter((t) => !t.untested).length;
-  return { text: `model health: ${tested} of ${h.tests.length} tests pass over ${h.batches.length} batch${h.batches.length === 1 ? '' : 'es'}`, tone: 'ok' };
+  const over = `${h.batches.length} batch${h.batches.length === 1 ? '' : 'es'}`;
+  // Nothing tested is not a pass: say so in words and without the "fine" tone.
+  if (tested === 0) return { text: `model health: not tested yet (${h.batches.length ? `${over}, too few to test` : 'no finished batch since deployment'})`, tone: 'muted' };
+  const waiting = h.tests.length - tested;
+  return { text: `model health: ${tested} test${tested === 1 ? '' : 's'} pass${tested === 1 ? 'es' : ''} over ${over}${waiting ? `, ${waiting} not tested yet` : ''}`, tone: 'ok' };
 }
 
 /** Endpoint difference in words, e.g. 'candidate 3.0 min later'. */
