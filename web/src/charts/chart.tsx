@@ -24,6 +24,16 @@ export function chartHeight(h: number): number {
   return typeof window !== 'undefined' && window.innerWidth >= 2200 ? Math.round(h * 1.4) : h;
 }
 
+/**
+ * setData only when the data has one array per series of the instance. A live update can arrive
+ * between the render that changed a chart's series (a model with alarm limits, a new batch) and the
+ * effect that rebuilds the chart for them; uPlot would then read a missing array and throw. The
+ * rebuild follows with the new data, so skipping that one update loses nothing.
+ */
+export function setDataIfShaped(u: uPlot | null, data: uPlot.AlignedData): void {
+  if (u && data.length === u.series.length) u.setData(data);
+}
+
 export function Chart(p: ChartProps) {
   const box = useRef<HTMLDivElement>(null);
   const plot = useRef<uPlot | null>(null);
@@ -59,7 +69,7 @@ export function Chart(p: ChartProps) {
   }, [p.optsKey, p.height]);
 
   useEffect(() => {
-    plot.current?.setData(p.data);
+    setDataIfShaped(plot.current, p.data);
   }, [p.data]);
 
   return (

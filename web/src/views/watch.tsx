@@ -6,7 +6,7 @@ import type { EndpointStatus } from '../../../core/monitor/types.ts';
 import { useLive } from '../live/use-live.ts';
 import type { LiveState } from '../live/live-state.ts';
 import { envCol } from '../live/live-state.ts';
-import { Chart } from '../charts/chart.tsx';
+import { Chart, setDataIfShaped } from '../charts/chart.tsx';
 import { planeOptions, scoreChartOptions, statChartOptions } from '../charts/chart-options.ts';
 import { Advisory, Badge, Empty, ErrorBox, Loading } from '../components/status.tsx';
 import { EndpointHolds } from './endpoint-holds.tsx';
@@ -178,7 +178,7 @@ function useSeriesFeed(live: ReturnType<typeof useLive>, data: () => uPlot.Align
   const dataRef = useRef(data);
   dataRef.current = data;
   useEffect(() => {
-    const f = () => inst.current?.setData(dataRef.current());
+    const f = () => setDataIfShaped(inst.current, dataRef.current());
     live.onSeries.add(f);
     return () => {
       live.onSeries.delete(f);
