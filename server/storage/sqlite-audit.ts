@@ -3,25 +3,9 @@
  * chain head, triggers that refuse UPDATE and DELETE.
  */
 import type Database from 'better-sqlite3';
+import { auditFromRow, type AuditRow } from './row-mappers.ts';
 import type { AuditRecord } from '../../core/api/audit.ts';
 import type { AuditChainLink, AuditQuery, AuditRepository } from './repositories.ts';
-
-interface Row {
-  seq: number;
-  at: string;
-  user: string;
-  action: string;
-  object: string;
-  before: string | null;
-  after: string | null;
-  reason: string | null;
-  prev_hash: string;
-  hash: string;
-}
-
-function fromRow(r: Row): AuditRecord {
-  return { seq: r.seq, at: r.at, user: r.user, action: r.action, object: r.object, before: r.before, after: r.after, reason: r.reason, prevHash: r.prev_hash, hash: r.hash };
-}
 
 function where(q: AuditQuery): { sql: string; args: unknown[] } {
   const conds: string[] = [];
@@ -71,7 +55,7 @@ export class SqliteAuditRepository implements AuditRepository {
     this.headStmt = db.prepare('INSERT INTO audit_head (id, seq, hash) VALUES (1, ?, ?) ON CONFLICT(id) DO UPDATE SET seq = excluded.seq, hash = excluded.hash');
     this.readHeadStmt = db.prepare<[], AuditChainLink>('SELECT seq, hash FROM audit_head WHERE id = 1');
     this.hashStmt = db.prepare<[number], { hash: string }>('SELECT hash FROM audit_trail WHERE seq = ?');
-    this.pageStmt = db.prepare<[number, number], Row>('SELECT * FROM audit_trail WHERE seq > ? ORDER BY seq LIMIT ?');
+    this.pageStmt = db.prepare<[number, number], AuditRow>('SELECT * FROM audit_trail WHERE seq > ? ORDER BY seq LIMIT ?');
   }
 
   async last(): Promise<AuditChainLink | null> {
@@ -96,7 +80,7 @@ export class SqliteAuditRepository implements AuditRepository {
     const w = where(q);
     const limit = q.limit === undefined ? '' : ' LIMIT ?';
     const args = q.limit === undefined ? w.args : [...w.args, q.limit];
-    return (this.db.prepare(`SELECT * FROM audit_trail${w.sql} ORDER BY seq ${q.descending ? 'DESC' : 'ASC'}${limit}`).all(...args) as Row[]).map(fromRow);
+    return (this.db.prepare(`SELECT * FROM audit_trail${w.sql} ORDER BY seq ${q.descending ? 'DESC' : 'ASC'}${limit}`).all(...args) as AuditRow[]).map(auditFromRow);
   }
 
   async count(q: AuditQuery): Promise<number> {
@@ -108,7 +92,7 @@ export class SqliteAuditRepository implements AuditRepository {
     let after = 0;
     for (;;) {
       const rows = this.pageStmt.all(after, pageSize);
-      for (const r of rows) yield fromRow(r);
+      for (const r of rows) yield auditFromRow(r);
       if (rows.length < pageSize) return;
       after = rows[rows.length - 1]!.seq;
     }

@@ -3,6 +3,7 @@
  * analyzer tokens — and the server core's own token table (001) for listing and revoking.
  */
 import type Database from 'better-sqlite3';
+import { tokenFromRow, type TokenRow } from './row-mappers.ts';
 import type {
   AnalyzerTokenRepository,
   AnalyzerTokenRow,
@@ -111,25 +112,6 @@ class SqliteLoginFailures implements LoginFailureRepository {
   async clear(key: string) {
     this.clearStmt.run(key);
   }
-}
-
-interface TokenRow {
-  id: string;
-  analyzer: string;
-  label: string;
-  token_hash: string;
-  created_at: string;
-  created_by: string;
-  revoked_at: string | null;
-  revoked_by: string | null;
-  last_used_at: string | null;
-}
-
-function tokenFromRow(r: TokenRow): AnalyzerTokenRow {
-  return {
-    id: r.id, analyzer: r.analyzer, label: r.label, tokenHash: r.token_hash, createdAt: r.created_at, createdBy: r.created_by,
-    revokedAt: r.revoked_at, revokedBy: r.revoked_by, lastUsedAt: r.last_used_at,
-  };
 }
 
 class SqliteAnalyzerTokens implements AnalyzerTokenRepository {

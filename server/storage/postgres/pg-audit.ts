@@ -7,29 +7,13 @@
  * commits or rolls back. It serializes appenders on every connection and every Tideline instance on
  * the database; under READ COMMITTED the read after the lock sees the last committed record.
  */
+import { auditFromRow, type AuditRow } from '../row-mappers.ts';
 import type { AuditRecord } from '../../../core/api/audit.ts';
 import type { AuditChainLink, AuditQuery, AuditRepository } from '../repositories.ts';
 import type { Q } from './pg-types.ts';
 
 /** The advisory lock key of the audit chain (an arbitrary constant: 'TDLA' in ASCII). */
 export const AUDIT_LOCK = 0x54444c41;
-
-interface Row {
-  seq: number;
-  at: string;
-  user: string;
-  action: string;
-  object: string;
-  before: string | null;
-  after: string | null;
-  reason: string | null;
-  prev_hash: string;
-  hash: string;
-}
-
-function fromRow(r: Row): AuditRecord {
-  return { seq: r.seq, at: r.at, user: r.user, action: r.action, object: r.object, before: r.before, after: r.after, reason: r.reason, prevHash: r.prev_hash, hash: r.hash };
-}
 
 function where(q: AuditQuery): { sql: string; args: (string | number)[] } {
   const conds: string[] = [];
@@ -93,8 +77,8 @@ export class PgAuditRepository implements AuditRepository {
     const w = where(q);
     const args = [...w.args];
     const limit = q.limit === undefined ? '' : ` LIMIT $${args.push(q.limit)}`;
-    const rows = await this.sql.unsafe<Row[]>(`SELECT * FROM audit_trail${w.sql} ORDER BY seq ${q.descending ? 'DESC' : 'ASC'}${limit}`, args);
-    return rows.map(fromRow);
+    const rows = await this.sql.unsafe<AuditRow[]>(`SELECT * FROM audit_trail${w.sql} ORDER BY seq ${q.descending ? 'DESC' : 'ASC'}${limit}`, args);
+    return rows.map(auditFromRow);
   }
 
   async count(q: AuditQuery): Promise<number> {
@@ -106,8 +90,8 @@ export class PgAuditRepository implements AuditRepository {
   async *scan(pageSize = 1000): AsyncIterable<AuditRecord> {
     let after = 0;
     for (;;) {
-      const rows = await this.sql<Row[]>`SELECT * FROM audit_trail WHERE seq > ${after} ORDER BY seq LIMIT ${pageSize}`;
-      for (const r of rows) yield fromRow(r);
+      const rows = await this.sql<AuditRow[]>`SELECT * FROM audit_trail WHERE seq > ${after} ORDER BY seq LIMIT ${pageSize}`;
+      for (const r of rows) yield auditFromRow(r);
       if (rows.length < pageSize) return;
       after = rows[rows.length - 1]!.seq;
     }

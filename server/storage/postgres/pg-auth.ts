@@ -3,7 +3,8 @@
  * users, sessions, login failures, analyzer tokens, signatures — and the server core's own token
  * table (001-core.sql) for listing and revoking.
  */
-import type { Role, SignatureMeaning, SignatureRecord } from '../../auth/types.ts';
+import { signatureFromRow, tokenFromRow, type SignatureRow, type TokenRow } from '../row-mappers.ts';
+import type { SignatureRecord } from '../../auth/types.ts';
 import type {
   AnalyzerTokenRepository,
   AnalyzerTokenRow,
@@ -106,25 +107,6 @@ class PgLoginFailures implements LoginFailureRepository {
   }
 }
 
-interface TokenRow {
-  id: string;
-  analyzer: string;
-  label: string;
-  token_hash: string;
-  created_at: string;
-  created_by: string;
-  revoked_at: string | null;
-  revoked_by: string | null;
-  last_used_at: string | null;
-}
-
-function tokenFromRow(r: TokenRow): AnalyzerTokenRow {
-  return {
-    id: r.id, analyzer: r.analyzer, label: r.label, tokenHash: r.token_hash, createdAt: r.created_at, createdBy: r.created_by,
-    revokedAt: r.revoked_at, revokedBy: r.revoked_by, lastUsedAt: r.last_used_at,
-  };
-}
-
 class PgAnalyzerTokens implements AnalyzerTokenRepository {
   constructor(private readonly sql: Q) {}
   async insert(t: Omit<AnalyzerTokenRow, 'revokedAt' | 'revokedBy' | 'lastUsedAt'>) {
@@ -154,30 +136,6 @@ export function pgAuthRepositories(sql: Q): AuthRepositories {
   return { users: new PgUsers(sql), sessions: new PgSessions(sql), loginFailures: new PgLoginFailures(sql), analyzerTokens: new PgAnalyzerTokens(sql) };
 }
 
-interface SignatureRow {
-  id: number;
-  user_id: number;
-  user_name: string;
-  full_name: string;
-  role: string;
-  meaning: string;
-  object_type: string;
-  object_id: string;
-  object_hash: string;
-  reason: string;
-  override: string | null;
-  signed_at: string;
-  audit_seq: number;
-}
-
-function signatureView(r: SignatureRow): SignatureRecord {
-  return {
-    id: r.id, userName: r.user_name, fullName: r.full_name, role: r.role as Role, meaning: r.meaning as SignatureMeaning,
-    objectType: r.object_type, objectId: r.object_id, objectHash: r.object_hash, reason: r.reason, override: r.override ?? null,
-    signedAt: r.signed_at, auditSeq: r.audit_seq,
-  };
-}
-
 /** Electronic signature records (table auth_signatures, append-only). */
 export class PgSignatureRepository implements SignatureRepository {
   constructor(private readonly sql: Q) {}
@@ -187,14 +145,14 @@ export class PgSignatureRepository implements SignatureRepository {
       INSERT INTO auth_signatures (user_id, user_name, full_name, role, meaning, object_type, object_id, object_hash, reason, override, signed_at, audit_seq)
       VALUES (${s.userId}, ${s.userName}, ${s.fullName}, ${s.role}, ${s.meaning}, ${s.objectType}, ${s.objectId}, ${s.objectHash}, ${s.reason}, ${s.override}, ${s.signedAt}, ${s.auditSeq})
       RETURNING *`;
-    return signatureView(r!);
+    return signatureFromRow(r!);
   }
 
   async forObject(objectType: string, objectId: string): Promise<SignatureRecord[]> {
-    return (await this.sql<SignatureRow[]>`SELECT * FROM auth_signatures WHERE object_type = ${objectType} AND object_id = ${objectId} ORDER BY id`).map(signatureView);
+    return (await this.sql<SignatureRow[]>`SELECT * FROM auth_signatures WHERE object_type = ${objectType} AND object_id = ${objectId} ORDER BY id`).map(signatureFromRow);
   }
 
   async list(limit = 500): Promise<SignatureRecord[]> {
-    return (await this.sql<SignatureRow[]>`SELECT * FROM auth_signatures ORDER BY id DESC LIMIT ${limit}`).map(signatureView);
+    return (await this.sql<SignatureRow[]>`SELECT * FROM auth_signatures ORDER BY id DESC LIMIT ${limit}`).map(signatureFromRow);
   }
 }
